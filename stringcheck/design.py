@@ -1,0 +1,778 @@
+"""The design file: TOML -> validated, frozen dataclasses.
+
+The schema is DESIGN.md section 3. Every error names the file, the dotted key and what would be valid;
+unknown keys are errors with the nearest valid key suggested. Values are converted to SI floats
+(temperatures in [degC], temperature differences in [K]) by :mod:`stringcheck.quantity`.
+
+Defaults that the file may leave out are recorded in :attr:`Design.assumptions`, so that the report can
+list every assumption that was made on the user's behalf.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import tomllib
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any, Mapping
+
+import numpy as np
+
+from . import presets
+from .errors import DesignError, QuantityError
+from .quantity import (
+    AMPERE,
+    AMPERE_PER_SECOND,
+    CELSIUS,
+    COULOMB,
+    DIMENSIONLESS,
+    FARAD,
+    HENRY,
+    HERTZ,
+    KELVIN_DIFFERENCE,
+    KELVIN_PER_WATT,
+    OHM,
+    PER_KELVIN,
+    SECOND,
+    VOLT,
+    VOLT_PER_KELVIN,
+    WATT,
+    Unit,
+    parse_quantity,
+)
+
+WAVEFORMS = ("dc", "half-sine", "square")
+HEATSINKS = ("shared", "separate")
+DEFAULT_DERATING = 0.8
+DEFAULT_AMBIENT = 25.0
+DEFAULT_TRIALS = 20_000
+DEFAULT_SEED = 20261202
+DEFAULT_CONFIDENCE = 0.95
+DEFAULT_SIGMA_AT_LIMIT = 3.0
+DEFAULT_TARGET_P_FAIL = 1e-3
+LOGNORMAL_PARAMETERS = ("i_r", "q_rr", "i_rm", "t_rr")
+NORMAL_PARAMETERS = ("v_t0", "r_t")
+SPREAD_PARAMETERS = LOGNORMAL_PARAMETERS + NORMAL_PARAMETERS
+
+# When a datasheet gives only a maximum, the median ("typ") is taken as this fraction of it. These are
+# our documented assumptions, listed in every report that uses them: leakage limits commonly sit about
+# a decade above the typical lot (common practice); charge, current and time limits and forward
+# figures sit closer to typical.
+TYP_FRACTION_OF_MAX = {"i_r": 0.1, "q_rr": 0.6, "i_rm": 0.7, "t_rr": 0.7, "v_t0": 0.9, "r_t": 0.8}
+
+_SPREAD_UNITS = {"i_r": AMPERE, "q_rr": COULOMB, "i_rm": AMPERE, "t_rr": SECOND, "v_t0": VOLT,
+                 "r_t": OHM}
+_CONDITION_UNITS = {"at_temperature": CELSIUS, "at_voltage": VOLT, "at_di_dt": AMPERE_PER_SECOND,
+                    "at_forward_current": AMPERE}
+_PART_SCALARS = {"v_rrm": VOLT, "i_fav": AMPERE, "c_j": FARAD, "r_th_jc": KELVIN_PER_WATT,
+                 "r_th_cs": KELVIN_PER_WATT, "t_j_max": CELSIUS, "leakage_doubling": KELVIN_DIFFERENCE,
+                 "leakage_voltage_exponent": DIMENSIONLESS, "tempco_v_t0": VOLT_PER_KELVIN,
+                 "tempco_r_t": PER_KELVIN}
+_PART_DEFAULTS = {"leakage_doubling": 10.0, "leakage_voltage_exponent": 0.5, "c_j": 0.0,
+                  "tempco_v_t0": -2e-3, "tempco_r_t": 0.0}
+_PART_DEFAULT_NOTES = {
+    "leakage_doubling": "leakage doubles every 10 K (silicon, common practice)",
+    "leakage_voltage_exponent": "leakage grows as V^0.5 (generation current, abrupt junction)",
+    "c_j": "junction capacitance 0 F (only the grading capacitor counts in the dynamic check)",
+    "tempco_v_t0": "V_T0 temperature coefficient -2 mV/K (silicon PN, common practice)",
+    "tempco_r_t": "r_T temperature coefficient 0 1/K",
+}
+
+
+@dataclass(frozen=True)
+class Spread:
+    """A datasheet spread of one parameter, in SI units.
+
+    ``typ`` is the median of the population; ``low`` and ``high`` are the datasheet limits (None where
+    the datasheet gives none). With neither limit the value is fixed (no scatter).
+    """
+
+    typ: float
+    low: float | None = None
+    high: float | None = None
+    at_temperature: float | None = None
+    at_voltage: float | None = None
+    at_di_dt: float | None = None
+    at_forward_current: float | None = None
+    typ_assumed: bool = False
+
+    @property
+    def fixed(self) -> bool:
+        """True when the parameter has no scatter."""
+        return self.low is None and self.high is None
+
+    def scaled(self, factor: float) -> "Spread":
+        """The same spread with typ and limits multiplied by ``factor`` (> 0)."""
+        return Spread(
+            typ=self.typ * factor,
+            low=None if self.low is None else self.low * factor,
+            high=None if self.high is None else self.high * factor,
+            at_temperature=self.at_temperature, at_voltage=self.at_voltage,
+            at_di_dt=self.at_di_dt, at_forward_current=self.at_forward_current,
+            typ_assumed=self.typ_assumed,
+        )
+
+
+@dataclass(frozen=True)
+class Part:
+    """One device type, all values SI (temperatures [degC], differences [K])."""
+
+    name: str
+    v_rrm: float
+    i_fav: float | None
+    i_r: Spread | None
+    q_rr: Spread | None
+    i_rm: Spread | None
+    t_rr: Spread | None
+    v_t0: Spread | None
+    r_t: Spread | None
+    c_j: float
+    r_th_jc: float | None
+    r_th_cs: float | None
+    t_j_max: float | None
+    leakage_doubling: float
+    leakage_voltage_exponent: float
+    tempco_v_t0: float
+    tempco_r_t: float
+    device_class: str | None = None
+
+    def spread(self, parameter: str) -> Spread | None:
+        """The spread of ``parameter`` (one of SPREAD_PARAMETERS), or None if not given."""
+        return getattr(self, parameter)
+
+
+@dataclass(frozen=True)
+class Duty:
+    """The operating duty of the string."""
+
+    reverse_voltage: float
+    forward_current: float | None
+    waveform: str
+    frequency: float | None
+    di_dt: float | None
+    ambient: float
+    stray_inductance: float | None
+
+
+@dataclass(frozen=True)
+class PositionOverride:
+    """A ``[[string.position]]`` entry: 1-based ``index``; ``branch`` None means every branch."""
+
+    index: int
+    branch: int | None
+    part: str | None
+    temperature_rise: float | None
+
+
+@dataclass(frozen=True)
+class StringLayout:
+    """The string: ``parallel`` branches of ``series`` devices each."""
+
+    series: int
+    parallel: int
+    derating: float
+    part: str
+    positions: tuple[PositionOverride, ...] = ()
+
+    def part_grid(self) -> np.ndarray:
+        """Part name of every device, shape (parallel, series), as an object array."""
+        grid = np.full((self.parallel, self.series), self.part, dtype=object)
+        for override in self.positions:
+            if override.part is None:
+                continue
+            rows = range(self.parallel) if override.branch is None else [override.branch - 1]
+            for row in rows:
+                grid[row, override.index - 1] = override.part
+        return grid
+
+    def temperature_rise_grid(self) -> np.ndarray:
+        """Temperature rise above ambient of every device [K], shape (parallel, series)."""
+        grid = np.zeros((self.parallel, self.series))
+        for override in self.positions:
+            if override.temperature_rise is None:
+                continue
+            rows = range(self.parallel) if override.branch is None else [override.branch - 1]
+            for row in rows:
+                grid[row, override.index - 1] = override.temperature_rise
+        return grid
+
+
+@dataclass(frozen=True)
+class Grading:
+    """The grading network of every stage (nominal values; tolerances are drawn by the sampler)."""
+
+    resistor: float | None
+    resistor_tolerance: float
+    resistor_tcr: float
+    resistor_rated_voltage: float | None
+    resistor_rated_power: float | None
+    capacitor: float | None
+    capacitor_tolerance: float
+    capacitor_rated_voltage: float | None
+    damping_resistor: float | None
+
+
+@dataclass(frozen=True)
+class MonteCarlo:
+    """Settings of the Monte Carlo run."""
+
+    trials: int
+    seed: int
+    confidence: float
+    sigma_at_limit: float
+    screened: bool
+    lot_share: float
+    correlation: tuple[tuple[str, str, float], ...] = ()
+
+
+@dataclass(frozen=True)
+class Sizing:
+    """Targets of the sizing search (``stringcheck size``)."""
+
+    target_p_fail: float
+    target_share: float | None
+    resistor_series: str
+    capacitor_series: str
+
+
+@dataclass(frozen=True)
+class Thermal:
+    """Heatsink arrangement (used by the parallel and thermal checks)."""
+
+    heatsink: str
+    r_th_sa: float | None
+    path_resistance: float
+
+
+@dataclass(frozen=True)
+class Review:
+    """Settings of the substitution review."""
+
+    tolerance: float
+
+
+@dataclass(frozen=True)
+class Design:
+    """A whole, validated design."""
+
+    title: str
+    notes: str
+    source: str
+    duty: Duty
+    string: StringLayout
+    parts: Mapping[str, Part]
+    grading: Grading
+    monte_carlo: MonteCarlo
+    sizing: Sizing
+    thermal: Thermal
+    review: Review
+    assumptions: tuple[str, ...] = field(default=())
+
+    def parts_used(self) -> tuple[str, ...]:
+        """Names of the parts that stand in at least one position, in first-use order."""
+        seen: dict[str, None] = {}
+        for name in self.string.part_grid().ravel():
+            seen.setdefault(name, None)
+        return tuple(seen)
+
+
+# ----------------------------------------------------------------------------------------------------
+# Reading
+
+
+_SCHEMA_KEYS = {
+    "design": ("title", "notes"),
+    "duty": ("reverse_voltage", "forward_current", "waveform", "frequency", "di_dt", "ambient",
+             "stray_inductance"),
+    "string": ("series", "parallel", "derating", "part", "position"),
+    "position": ("index", "branch", "part", "temperature_rise"),
+    "part": ("v_rrm", "i_fav", "i_r", "q_rr", "i_rm", "t_rr", "v_t0", "r_t", "c_j", "r_th_jc",
+             "r_th_cs", "t_j_max", "leakage_doubling", "leakage_voltage_exponent", "tempco_v_t0",
+             "tempco_r_t", "class", "measured", "fit"),
+    "spread": ("min", "typ", "max", "at_temperature", "at_voltage", "at_di_dt", "at_forward_current"),
+    "grading": ("resistor", "resistor_tolerance", "resistor_tcr", "resistor_rated_voltage",
+                "resistor_rated_power", "capacitor", "capacitor_tolerance", "capacitor_rated_voltage",
+                "damping_resistor"),
+    "thermal": ("heatsink", "r_th_sa", "path_resistance"),
+    "monte_carlo": ("trials", "seed", "confidence", "sigma_at_limit", "screened", "lot_share",
+                    "correlation"),
+    "sizing": ("target_p_fail", "target_share", "resistor_series", "capacitor_series"),
+    "review": ("tolerance",),
+}
+_TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
+              "review")
+_SERIES_NAMES = ("E6", "E12", "E24", "E48", "E96", "E192")
+
+
+class _Reader:
+    """Walks the raw TOML tables, converting values and collecting assumptions."""
+
+    def __init__(self, source: str):
+        self.source = source
+        self.assumptions: list[str] = []
+
+    def error(self, key: str, message: str) -> DesignError:
+        return DesignError(message, source=self.source, key=key)
+
+    def check_keys(self, table: Mapping[str, Any], allowed: tuple[str, ...], prefix: str) -> None:
+        for key in table:
+            if key not in allowed:
+                close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
+                hint = f"; did you mean '{close[0]}'?" if close else f"; valid keys: {', '.join(allowed)}"
+                raise self.error(_join(prefix, key), f"unknown key{hint}")
+
+    def table(self, raw: Mapping[str, Any], key: str, prefix: str = "") -> Mapping[str, Any]:
+        value = raw.get(key, {})
+        if not isinstance(value, Mapping):
+            raise self.error(_join(prefix, key), f"must be a table ([{_join(prefix, key)}]), "
+                                                 f"not {type(value).__name__}")
+        return value
+
+    def quantity(self, table: Mapping[str, Any], key: str, unit: Unit, prefix: str, *,
+                 required: bool = False, default: float | None = None, positive: bool = False,
+                 non_negative: bool = False, note: str | None = None) -> float | None:
+        dotted = _join(prefix, key)
+        if key not in table:
+            if required:
+                raise self.error(dotted, f"missing; give it in {unit.label}, e.g. {_example(unit)}")
+            if default is not None and note:
+                self.assumptions.append(f"{dotted} not given: {note}")
+            return default
+        try:
+            value = parse_quantity(table[key], unit, key=dotted)
+        except QuantityError as error:
+            raise DesignError(str(error), source=self.source, key=None) from None
+        if positive and not value > 0:
+            raise self.error(dotted, f"must be greater than zero, got {table[key]!r}")
+        if non_negative and value < 0:
+            raise self.error(dotted, f"must not be negative, got {table[key]!r}")
+        return value
+
+    def fraction(self, table: Mapping[str, Any], key: str, prefix: str, *, default: float,
+                 low: float, high: float, low_open: bool = False, high_open: bool = True,
+                 note: str | None = None) -> float:
+        value = self.quantity(table, key, DIMENSIONLESS, prefix, default=default, note=note)
+        assert value is not None
+        below = value <= low if low_open else value < low
+        above = value >= high if high_open else value > high
+        if below or above:
+            interval = f"{'(' if low_open else '['}{low:g}, {high:g}{')' if high_open else ']'}"
+            raise self.error(_join(prefix, key), f"must lie in {interval}, got {table.get(key)!r}")
+        return value
+
+    def integer(self, table: Mapping[str, Any], key: str, prefix: str, *, default: int | None = None,
+                minimum: int = 1, maximum: int | None = None) -> int:
+        dotted = _join(prefix, key)
+        if key not in table:
+            if default is None:
+                raise self.error(dotted, f"missing; give a whole number >= {minimum}")
+            return default
+        value = table[key]
+        if isinstance(value, bool) or not isinstance(value, int):
+            raise self.error(dotted, f"must be a whole number (no quotes, no unit), got {value!r}")
+        if value < minimum or (maximum is not None and value > maximum):
+            limit = f">= {minimum}" if maximum is None else f"in {minimum}..{maximum}"
+            raise self.error(dotted, f"must be a whole number {limit}, got {value}")
+        return value
+
+    def text(self, table: Mapping[str, Any], key: str, prefix: str, *, default: str | None = None,
+             choices: tuple[str, ...] | None = None) -> str | None:
+        dotted = _join(prefix, key)
+        if key not in table:
+            return default
+        value = table[key]
+        if not isinstance(value, str):
+            raise self.error(dotted, f"must be text in quotes, got {value!r}")
+        if choices is not None and value not in choices:
+            raise self.error(dotted, f"must be one of {', '.join(repr(c) for c in choices)}, "
+                                     f"got {value!r}")
+        return value
+
+    def spread(self, raw: Any, parameter: str, prefix: str) -> Spread:
+        dotted = _join(prefix, parameter)
+        unit = _SPREAD_UNITS[parameter]
+        if not isinstance(raw, Mapping):
+            value = self.quantity({parameter: raw}, parameter, unit, prefix, positive=True)
+            assert value is not None
+            return Spread(typ=value)
+        self.check_keys(raw, _SCHEMA_KEYS["spread"], dotted)
+        lognormal = parameter in LOGNORMAL_PARAMETERS
+        values = {}
+        for bound in ("min", "typ", "max"):
+            values[bound] = self.quantity(raw, bound, unit, dotted, positive=lognormal,
+                                          non_negative=not lognormal)
+        conditions = {name: self.quantity(raw, name, condition_unit, dotted)
+                      for name, condition_unit in _CONDITION_UNITS.items()}
+        low, typ, high = values["min"], values["typ"], values["max"]
+        typ_assumed = False
+        if typ is None:
+            if high is None:
+                raise self.error(dotted, "give at least 'typ' or 'max' (a lone 'min' says too little)")
+            if low is not None:
+                typ = math.sqrt(low * high) if lognormal else 0.5 * (low + high)
+                how = "geometric mean" if lognormal else "midpoint"
+                self.assumptions.append(f"{dotted}: typ not given, taken as the {how} of min and max")
+            else:
+                typ = TYP_FRACTION_OF_MAX[parameter] * high
+                self.assumptions.append(
+                    f"{dotted}: only max given, typ taken as {TYP_FRACTION_OF_MAX[parameter]:g} x max")
+            typ_assumed = True
+        if low is not None and low > typ:
+            raise self.error(dotted, f"min ({raw.get('min')!r}) is above typ; min <= typ <= max")
+        if high is not None and high < typ:
+            raise self.error(dotted, f"typ is above max ({raw.get('max')!r}); min <= typ <= max")
+        if lognormal and typ <= 0:
+            raise self.error(dotted, "typ must be greater than zero")
+        if low is not None and high is not None and low == high == typ:
+            low = high = None
+        return Spread(typ=typ, low=low, high=high, typ_assumed=typ_assumed, **conditions)
+
+
+def _join(prefix: str, key: str) -> str:
+    return f"{prefix}.{key}" if prefix else key
+
+
+def _example(unit: Unit) -> str:
+    from .quantity import _example as example
+
+    return f'"{example(unit)}"'
+
+
+def load_design(path: str | Path) -> Design:
+    """Read and validate the design file at ``path``.
+
+    Raises
+    ------
+    DesignError
+        For a missing, unreadable, empty or binary file, a TOML syntax error (with its line), and every
+        key or value that is not valid (naming the key and the fix).
+    """
+    path = Path(path)
+    source = str(path)
+    if not path.exists():
+        raise DesignError("no such file; check the path", source=source)
+    if path.is_dir():
+        raise DesignError("is a folder, not a design file", source=source)
+    try:
+        data = path.read_bytes()
+    except OSError as error:
+        raise DesignError(f"cannot be read ({error.strerror})", source=source) from None
+    if not data.strip():
+        raise DesignError("the file is empty; start from `stringcheck new FILE`", source=source)
+    if b"\x00" in data:
+        raise DesignError("is a binary file, not a TOML design file", source=source)
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError:
+        raise DesignError("is not UTF-8 text; save it as UTF-8", source=source) from None
+    return parse_design_text(text, source=source)
+
+
+def parse_design_text(text: str, *, source: str = "<design>") -> Design:
+    """Validate design-file text (TOML) into a :class:`Design`."""
+    try:
+        raw = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as error:
+        raise DesignError(f"TOML syntax error: {error}", source=source) from None
+    return parse_design(raw, source=source)
+
+
+def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
+    """Validate an already-parsed design table into a :class:`Design`."""
+    reader = _Reader(source)
+    reader.check_keys(raw, _TOP_LEVEL, "")
+
+    design_table = reader.table(raw, "design")
+    reader.check_keys(design_table, _SCHEMA_KEYS["design"], "design")
+    title = reader.text(design_table, "title", "design", default=Path(source).stem) or ""
+    notes = reader.text(design_table, "notes", "design", default="") or ""
+
+    parts = _read_parts(reader, raw)
+    duty = _read_duty(reader, raw)
+    string = _read_string(reader, raw, parts)
+    grading = _read_grading(reader, raw)
+    monte_carlo = _read_monte_carlo(reader, raw)
+    sizing = _read_sizing(reader, raw)
+    thermal = _read_thermal(reader, raw)
+    review_table = reader.table(raw, "review")
+    reader.check_keys(review_table, _SCHEMA_KEYS["review"], "review")
+    review = Review(tolerance=reader.fraction(review_table, "tolerance", "review", default=0.0,
+                                              low=0.0, high=1.0))
+
+    design = Design(title=title, notes=notes, source=source, duty=duty, string=string,
+                    parts=parts, grading=grading, monte_carlo=monte_carlo, sizing=sizing,
+                    thermal=thermal, review=review, assumptions=tuple(reader.assumptions))
+    _cross_check(reader, design)
+    return design
+
+
+def _read_parts(reader: _Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
+    parts_table = reader.table(raw, "parts")
+    if not parts_table:
+        raise reader.error("parts", "no parts defined; add a [parts.NAME] table with at least v_rrm "
+                                    "(or class = one of " + ", ".join(presets.PRESET_NAMES) + ")")
+    parts = {}
+    for name, table in parts_table.items():
+        prefix = f"parts.{name}"
+        if not isinstance(table, Mapping):
+            raise reader.error(prefix, f"must be a table ([{prefix}])")
+        reader.check_keys(table, _SCHEMA_KEYS["part"], prefix)
+        for unsupported in ("measured", "fit"):
+            if unsupported in table:
+                raise reader.error(_join(prefix, unsupported),
+                                   "measured lot data is not supported in this version; "
+                                   "give the datasheet spreads instead")
+        merged: dict[str, Any] = {}
+        device_class = reader.text(table, "class", prefix)
+        if device_class is not None:
+            if device_class not in presets.PRESET_NAMES:
+                close = difflib.get_close_matches(device_class, presets.PRESET_NAMES, n=1)
+                hint = f"did you mean '{close[0]}'?" if close else \
+                    "valid classes: " + ", ".join(presets.PRESET_NAMES)
+                raise reader.error(_join(prefix, "class"), f"unknown device class {device_class!r}; "
+                                                           + hint)
+            merged.update(presets.preset(device_class))
+            inherited = sorted(set(merged) - set(table))
+            if inherited:
+                reader.assumptions.append(
+                    f"{prefix}: {', '.join(inherited)} taken from class '{device_class}'")
+        merged.update({k: v for k, v in table.items() if k != "class"})
+        scalars = {}
+        for key, unit in _PART_SCALARS.items():
+            default = _PART_DEFAULTS.get(key)
+            scalars[key] = reader.quantity(
+                merged, key, unit, prefix, required=(key == "v_rrm"), default=default,
+                positive=key in ("v_rrm", "i_fav", "r_th_jc", "leakage_doubling"),
+                non_negative=key in ("c_j", "r_th_cs"),
+                note=_PART_DEFAULT_NOTES.get(key))
+        exponent = scalars["leakage_voltage_exponent"]
+        if not 0.0 <= exponent <= 1.0:
+            raise reader.error(_join(prefix, "leakage_voltage_exponent"),
+                               f"must lie in [0, 1] (0.5 for generation current), got {exponent:g}")
+        spreads = {parameter: reader.spread(merged[parameter], parameter, prefix)
+                   if parameter in merged else None for parameter in SPREAD_PARAMETERS}
+        spreads["i_r"] = _leakage_conditions(reader, spreads["i_r"], scalars["v_rrm"], prefix)
+        parts[name] = Part(name=name, device_class=device_class, **scalars, **spreads)
+    return parts
+
+
+def _leakage_conditions(reader: _Reader, spread: Spread | None, v_rrm: float,
+                        prefix: str) -> Spread | None:
+    """Fill in the test conditions of a leakage spread that the datasheet row left out."""
+    if spread is None:
+        return None
+    changes = {}
+    if spread.at_voltage is None:
+        changes["at_voltage"] = v_rrm
+        reader.assumptions.append(f"{prefix}.i_r: at_voltage not given, taken at V_RRM "
+                                  f"({v_rrm:g} V)")
+    if spread.at_temperature is None:
+        changes["at_temperature"] = DEFAULT_AMBIENT
+        reader.assumptions.append(f"{prefix}.i_r: at_temperature not given, taken at 25 degC")
+    return replace(spread, **changes) if changes else spread
+
+
+def _read_duty(reader: _Reader, raw: Mapping[str, Any]) -> Duty:
+    table = reader.table(raw, "duty")
+    reader.check_keys(table, _SCHEMA_KEYS["duty"], "duty")
+    if "duty" not in raw:
+        raise reader.error("duty", "missing; add a [duty] table with at least reverse_voltage")
+    waveform = reader.text(table, "waveform", "duty", default=None, choices=WAVEFORMS)
+    if waveform is None:
+        waveform = "dc"
+        reader.assumptions.append("duty.waveform not given: dc (continuous reverse voltage)")
+    return Duty(
+        reverse_voltage=reader.quantity(table, "reverse_voltage", VOLT, "duty", required=True,
+                                        positive=True),
+        forward_current=reader.quantity(table, "forward_current", AMPERE, "duty", positive=True),
+        waveform=waveform,
+        frequency=reader.quantity(table, "frequency", HERTZ, "duty", positive=True),
+        di_dt=reader.quantity(table, "di_dt", AMPERE_PER_SECOND, "duty", positive=True),
+        ambient=reader.quantity(table, "ambient", CELSIUS, "duty", default=DEFAULT_AMBIENT,
+                                note="ambient 25 degC") or 0.0,
+        stray_inductance=reader.quantity(table, "stray_inductance", HENRY, "duty", positive=True),
+    )
+
+
+def _read_string(reader: _Reader, raw: Mapping[str, Any], parts: Mapping[str, Part]) -> StringLayout:
+    table = reader.table(raw, "string")
+    if "string" not in raw:
+        raise reader.error("string", "missing; add a [string] table with at least series = N")
+    reader.check_keys(table, _SCHEMA_KEYS["string"], "string")
+    series = reader.integer(table, "series", "string")
+    parallel = reader.integer(table, "parallel", "string", default=1)
+    derating = reader.fraction(table, "derating", "string", default=DEFAULT_DERATING, low=0.0,
+                               high=1.0, low_open=True, high_open=False,
+                               note=f"derating {DEFAULT_DERATING:g} x V_RRM (common practice)")
+    default_part = reader.text(table, "part", "string")
+    if default_part is None:
+        if len(parts) != 1:
+            raise reader.error("string.part", "missing; name the default part (one of "
+                                              + ", ".join(parts) + ")")
+        default_part = next(iter(parts))
+    _check_part_name(reader, "string.part", default_part, parts)
+    raw_positions = table.get("position", [])
+    if not isinstance(raw_positions, list):
+        raise reader.error("string.position", "must be an array of tables ([[string.position]])")
+    positions = []
+    for number, entry in enumerate(raw_positions, start=1):
+        prefix = f"string.position[{number}]"
+        if not isinstance(entry, Mapping):
+            raise reader.error(prefix, "must be a table ([[string.position]])")
+        reader.check_keys(entry, _SCHEMA_KEYS["position"], prefix)
+        index = reader.integer(entry, "index", prefix, maximum=series)
+        branch = reader.integer(entry, "branch", prefix, default=0, minimum=0, maximum=parallel)
+        if "branch" in entry and branch == 0:
+            raise reader.error(_join(prefix, "branch"), f"must be in 1..{parallel}, got 0")
+        part = reader.text(entry, "part", prefix)
+        if part is not None:
+            _check_part_name(reader, _join(prefix, "part"), part, parts)
+        rise = reader.quantity(entry, "temperature_rise", KELVIN_DIFFERENCE, prefix,
+                               non_negative=True)
+        positions.append(PositionOverride(index=index, branch=branch or None, part=part,
+                                          temperature_rise=rise))
+    return StringLayout(series=series, parallel=parallel, derating=derating, part=default_part,
+                        positions=tuple(positions))
+
+
+def _check_part_name(reader: _Reader, key: str, name: str, parts: Mapping[str, Part]) -> None:
+    if name not in parts:
+        close = difflib.get_close_matches(name, list(parts), n=1)
+        hint = f"did you mean '{close[0]}'?" if close else "defined parts: " + ", ".join(parts)
+        raise reader.error(key, f"no part named {name!r}; {hint}")
+
+
+def _read_grading(reader: _Reader, raw: Mapping[str, Any]) -> Grading:
+    table = reader.table(raw, "grading")
+    reader.check_keys(table, _SCHEMA_KEYS["grading"], "grading")
+    prefix = "grading"
+    return Grading(
+        resistor=reader.quantity(table, "resistor", OHM, prefix, positive=True),
+        resistor_tolerance=reader.fraction(table, "resistor_tolerance", prefix, default=0.0,
+                                           low=0.0, high=1.0),
+        resistor_tcr=reader.quantity(table, "resistor_tcr", PER_KELVIN, prefix, default=0.0) or 0.0,
+        resistor_rated_voltage=reader.quantity(table, "resistor_rated_voltage", VOLT, prefix,
+                                               positive=True),
+        resistor_rated_power=reader.quantity(table, "resistor_rated_power", WATT, prefix,
+                                             positive=True),
+        capacitor=reader.quantity(table, "capacitor", FARAD, prefix, positive=True),
+        capacitor_tolerance=reader.fraction(table, "capacitor_tolerance", prefix, default=0.0,
+                                            low=0.0, high=1.0),
+        capacitor_rated_voltage=reader.quantity(table, "capacitor_rated_voltage", VOLT, prefix,
+                                                positive=True),
+        damping_resistor=reader.quantity(table, "damping_resistor", OHM, prefix, positive=True),
+    )
+
+
+def _read_monte_carlo(reader: _Reader, raw: Mapping[str, Any]) -> MonteCarlo:
+    table = reader.table(raw, "monte_carlo")
+    prefix = "monte_carlo"
+    reader.check_keys(table, _SCHEMA_KEYS[prefix], prefix)
+    screened = table.get("screened", True)
+    if not isinstance(screened, bool):
+        raise reader.error("monte_carlo.screened", f"must be true or false, got {screened!r}")
+    correlation = []
+    raw_correlation = reader.table(table, "correlation", prefix)
+    for key, value in raw_correlation.items():
+        dotted = f"{prefix}.correlation.{key}"
+        names = key.split("-")
+        if len(names) != 2 or any(name not in SPREAD_PARAMETERS for name in names) or \
+                names[0] == names[1]:
+            raise reader.error(dotted, "name two different parameters joined by '-', e.g. "
+                                       "q_rr-v_t0 = -0.5; parameters: " + ", ".join(SPREAD_PARAMETERS))
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or \
+                not -1.0 < float(value) < 1.0:
+            raise reader.error(dotted, f"must be a number in (-1, 1), got {value!r}")
+        correlation.append((names[0], names[1], float(value)))
+    return MonteCarlo(
+        trials=reader.integer(table, "trials", prefix, default=DEFAULT_TRIALS),
+        seed=reader.integer(table, "seed", prefix, default=DEFAULT_SEED, minimum=0),
+        confidence=reader.fraction(table, "confidence", prefix, default=DEFAULT_CONFIDENCE, low=0.0,
+                                   high=1.0, low_open=True),
+        sigma_at_limit=reader.quantity(table, "sigma_at_limit", DIMENSIONLESS, prefix,
+                                       default=DEFAULT_SIGMA_AT_LIMIT, positive=True) or 3.0,
+        screened=screened,
+        lot_share=reader.fraction(table, "lot_share", prefix, default=0.0, low=0.0, high=1.0),
+        correlation=tuple(correlation),
+    )
+
+
+def _read_sizing(reader: _Reader, raw: Mapping[str, Any]) -> Sizing:
+    table = reader.table(raw, "sizing")
+    prefix = "sizing"
+    reader.check_keys(table, _SCHEMA_KEYS[prefix], prefix)
+    series = {}
+    for key, default in (("resistor_series", "E96"), ("capacitor_series", "E12")):
+        value = reader.text(table, key, prefix, default=default)
+        assert value is not None
+        if value.upper() not in _SERIES_NAMES:
+            raise reader.error(_join(prefix, key), f"unknown preferred-value series {value!r}; "
+                                                   "one of " + ", ".join(_SERIES_NAMES))
+        series[key] = value.upper()
+    target_share = reader.quantity(table, "target_share", DIMENSIONLESS, prefix)
+    if target_share is not None and not target_share >= 1.0:
+        raise reader.error("sizing.target_share", "must be >= 1 (max branch current / mean), "
+                                                  f"got {table['target_share']!r}")
+    return Sizing(
+        target_p_fail=reader.fraction(table, "target_p_fail", prefix, default=DEFAULT_TARGET_P_FAIL,
+                                      low=0.0, high=1.0, low_open=True),
+        target_share=target_share,
+        **series,
+    )
+
+
+def _read_thermal(reader: _Reader, raw: Mapping[str, Any]) -> Thermal:
+    table = reader.table(raw, "thermal")
+    prefix = "thermal"
+    reader.check_keys(table, _SCHEMA_KEYS[prefix], prefix)
+    return Thermal(
+        heatsink=reader.text(table, "heatsink", prefix, default="separate", choices=HEATSINKS) or "",
+        r_th_sa=reader.quantity(table, "r_th_sa", KELVIN_PER_WATT, prefix, non_negative=True),
+        path_resistance=reader.quantity(table, "path_resistance", OHM, prefix, default=0.0,
+                                        non_negative=True) or 0.0,
+    )
+
+
+def correlation_matrix(pairs: tuple[tuple[str, str, float], ...],
+                       parameters: tuple[str, ...]) -> np.ndarray:
+    """The correlation matrix of ``parameters`` from the design's ``(a, b, rho)`` pairs.
+
+    Pairs naming a parameter outside ``parameters`` are left out (that parameter is not drawn).
+    """
+    matrix = np.eye(len(parameters))
+    for first, second, rho in pairs:
+        if first in parameters and second in parameters:
+            i, j = parameters.index(first), parameters.index(second)
+            matrix[i, j] = matrix[j, i] = rho
+    return matrix
+
+
+def _cross_check(reader: _Reader, design: Design) -> None:
+    """Checks that need more than one table: temperatures against limits, what each check needs."""
+    if design.monte_carlo.correlation:
+        try:
+            np.linalg.cholesky(correlation_matrix(design.monte_carlo.correlation, SPREAD_PARAMETERS))
+        except np.linalg.LinAlgError:
+            raise reader.error("monte_carlo.correlation", "the correlations given do not form a valid "
+                                                          "(positive definite) correlation matrix; "
+                                                          "make them weaker") from None
+    grid = design.string.part_grid()
+    rise = design.string.temperature_rise_grid()
+    for name in design.parts_used():
+        part = design.parts[name]
+        if part.t_j_max is not None:
+            hottest = design.duty.ambient + float(rise[grid == name].max())
+            if hottest >= part.t_j_max:
+                raise reader.error("duty.ambient",
+                                   f"ambient plus temperature rise ({hottest:g} degC) is not below "
+                                   f"t_j_max of part '{name}' ({part.t_j_max:g} degC); lower it")
+        if part.i_r is None:
+            raise reader.error(f"parts.{name}.i_r", "missing; the static check needs the reverse "
+                                                    "leakage, e.g. i_r = { max = \"0.5 mA\", "
+                                                    "at_temperature = \"125 degC\" }")
+    if design.grading.resistor is None and any(
+            design.parts[name].leakage_voltage_exponent == 0.0 for name in design.parts_used()):
+        raise reader.error("grading.resistor", "missing; with voltage-independent leakage "
+                                               "(leakage_voltage_exponent = 0) the string voltage "
+                                               "is undetermined without grading resistors")

@@ -1,0 +1,256 @@
+"""Device populations -> arrays of drawn parameters, shape (trials, parallel, series).
+
+How a spread becomes a draw (DESIGN.md section 4, "Spreads"):
+
+* ``typ`` is the median; a datasheet limit sits ``sigma_at_limit`` standard deviations away from it.
+  Leakage, recovery charge, peak recovery current and recovery time are lognormal, V_T0 and r_T normal.
+  Where both limits are given and sit at different distances from typ, each side of the median takes its
+  own standard deviation (a two-piece distribution; with symmetric limits it is the plain lognormal or
+  normal). Where only one limit is given it sets both sides.
+* Production-screened limits (``screened``, default on) truncate the draw at min/max: the latent normal
+  is mapped onto the truncated normal by its CDF, which keeps the Gaussian-copula dependence.
+* ``lot_share`` is the fraction of the latent variance common to every device of one part in one built
+  string (same lot): z = sqrt(s) z_lot + sqrt(1 - s) z_device.
+* Parameters of one device may be correlated through a Gaussian copula (``[monte_carlo.correlation]``).
+* Grading resistors and capacitors: normal about the nominal value with the tolerance at
+  ``sigma_at_limit``, always truncated at the tolerance (a component outside it is rejected by its maker).
+
+Random streams: trials are grouped in blocks of :data:`BLOCK_TRIALS`. Block b draws each component
+(one parameter of the devices, the lot of one part, the resistors, the capacitors) from its own stream,
+``SeedSequence(seed, spawn_key=(b, component))``. A run processes whole blocks in chunks, so the result
+does not depend on the chunk size or on how chunks are shared out among processes, and drawing one more
+parameter never changes the draws of the others.
+"""
+
+from __future__ import annotations
+
+import zlib
+from dataclasses import dataclass
+from typing import Mapping
+
+import numpy as np
+from scipy import special
+
+from .design import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Design, Spread, correlation_matrix
+
+BLOCK_TRIALS = 4096
+
+# Stream numbers of the components that are not a device parameter.
+_RESISTOR_STREAM = 1001
+_CAPACITOR_STREAM = 1002
+_LOT_STREAM_BASE = 2000
+
+
+@dataclass(frozen=True)
+class DrawnStrings:
+    """One chunk of built strings.
+
+    Attributes
+    ----------
+    first_trial
+        Index of the chunk's first trial in the whole run.
+    parameters
+        Drawn device parameter [SI] by name, each of shape (trials, parallel, series).
+    latent
+        The standard-normal latent value behind each drawn parameter (after lot sharing and
+        correlation, before truncation), same shapes: the coordinates the drivers analysis uses.
+    resistance
+        Drawn grading resistance [ohm] at 25 degC, (trials, parallel, series); None without resistors.
+    capacitance
+        Drawn grading capacitance [F], (trials, parallel, series); None without capacitors.
+    """
+
+    first_trial: int
+    parameters: Mapping[str, np.ndarray]
+    latent: Mapping[str, np.ndarray]
+    resistance: np.ndarray | None
+    capacitance: np.ndarray | None
+
+    @property
+    def trials(self) -> int:
+        """Number of trials in the chunk."""
+        first = next(iter(self.parameters.values()), None)
+        if first is None:
+            return 0 if self.resistance is None else self.resistance.shape[0]
+        return first.shape[0]
+
+
+def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigma_at_limit: float,
+                    screened: bool) -> np.ndarray:
+    """Map standard-normal ``latent`` values onto the spread's distribution [unit of the spread].
+
+    Parameters
+    ----------
+    spread
+        The datasheet spread (typ = median; limits at ``sigma_at_limit`` standard deviations).
+    latent
+        Standard-normal values, any shape.
+    lognormal
+        True for a lognormal parameter (spread in log space), False for a normal one.
+    sigma_at_limit
+        Number of standard deviations between typ and a limit [1], > 0.
+    screened
+        Truncate at the limits (production screening).
+
+    Notes
+    -----
+    Truncation maps z to Phi^-1(Phi(a) + Phi(z) (Phi(b) - Phi(a))), the inverse-CDF construction of a
+    truncated normal (e.g. C. P. Robert, "Simulation of truncated normal variables", Statistics and
+    Computing 5, 1995), with a = -sigma_at_limit where a lower limit exists and b = +sigma_at_limit where
+    an upper one does (minus or plus infinity otherwise).
+    """
+    if spread.fixed:
+        return np.full(np.shape(latent), spread.typ)
+    z = np.asarray(latent, dtype=float)
+    k = sigma_at_limit
+    if screened:
+        z = _truncate(z, -k if spread.low is not None else -np.inf, k if spread.high is not None else np.inf)
+    if lognormal:
+        upper = np.log(spread.high / spread.typ) / k if spread.high is not None else None
+        lower = np.log(spread.typ / spread.low) / k if spread.low is not None else None
+    else:
+        upper = (spread.high - spread.typ) / k if spread.high is not None else None
+        lower = (spread.typ - spread.low) / k if spread.low is not None else None
+    upper = lower if upper is None else upper
+    lower = upper if lower is None else lower
+    scaled = np.where(z >= 0, upper * z, lower * z)
+    return spread.typ * np.exp(scaled) if lognormal else spread.typ + scaled
+
+
+def _truncate(z: np.ndarray, low: float, high: float) -> np.ndarray:
+    """Map a standard normal onto the standard normal truncated to [low, high], rank-preserving."""
+    if np.isinf(low) and np.isinf(high):
+        return z
+    if np.isinf(low):
+        return special.ndtri(special.ndtr(z) * special.ndtr(high))
+    if np.isinf(high):
+        return -special.ndtri(special.ndtr(-z) * special.ndtr(-low))
+    p_low, p_high = special.ndtr(low), special.ndtr(high)
+    return np.clip(special.ndtri(p_low + special.ndtr(z) * (p_high - p_low)), low, high)
+
+
+def tolerance_draw(nominal: float, tolerance: float, latent: np.ndarray, *,
+                   sigma_at_limit: float) -> np.ndarray:
+    """Component values within a tolerance: normal, tolerance at ``sigma_at_limit``, truncated there.
+
+    Parameters
+    ----------
+    nominal
+        Nominal value [ohm] or [F], > 0.
+    tolerance
+        Relative tolerance [1], in [0, 1).
+    latent
+        Standard-normal values.
+    sigma_at_limit
+        Standard deviations at the tolerance limit [1].
+    """
+    if tolerance == 0:
+        return np.full(np.shape(latent), nominal)
+    z = _truncate(np.asarray(latent, dtype=float), -sigma_at_limit, sigma_at_limit)
+    return nominal * (1.0 + tolerance * z / sigma_at_limit)
+
+
+def _stream(seed: int, block: int, component: int) -> np.random.Generator:
+    return np.random.Generator(np.random.PCG64(np.random.SeedSequence(seed,
+                                                                       spawn_key=(block, component))))
+
+
+def _part_stream_id(name: str) -> int:
+    # A stable number per part name, so that two designs sharing a part share its lot draws.
+    return _LOT_STREAM_BASE + zlib.crc32(name.encode("utf-8")) % 1_000_000
+
+
+def _normals(seed: int, first_trial: int, count: int, component: int, width: int) -> np.ndarray:
+    """Standard normals (count, width) for trials first_trial.. of one component, block by block."""
+    rows = []
+    trial = first_trial
+    end = first_trial + count
+    while trial < end:
+        block, offset = divmod(trial, BLOCK_TRIALS)
+        take = min(BLOCK_TRIALS - offset, end - trial)
+        generator = _stream(seed, block, component)
+        # A block's draws are generated in order, so the first rows of a longer draw equal a shorter
+        # one: the offset rows are generated and dropped only when a chunk starts inside a block.
+        values = generator.standard_normal((offset + take, width))
+        rows.append(values[offset:])
+        trial += take
+    return np.concatenate(rows, axis=0) if rows else np.empty((0, width))
+
+
+def draw_strings(design: Design, parameters: tuple[str, ...], first_trial: int, count: int,
+                 *, seed: int | None = None) -> DrawnStrings:
+    """Draw ``count`` built strings, trials ``first_trial`` .. ``first_trial + count - 1``.
+
+    Parameters
+    ----------
+    design
+        The validated design.
+    parameters
+        The device parameters to draw (names from SPREAD_PARAMETERS); every part used must give them
+        (the studies check this before drawing).
+    first_trial, count
+        Which trials of the run to draw.
+    seed
+        Overrides the design's seed.
+    """
+    monte_carlo = design.monte_carlo
+    seed = monte_carlo.seed if seed is None else seed
+    layout = design.string
+    shape = (count, layout.parallel, layout.series)
+    devices = layout.parallel * layout.series
+    grid = layout.part_grid()
+    used = design.parts_used()
+    share = monte_carlo.lot_share
+
+
+    device_latent = {}
+    for parameter in parameters:
+        component = SPREAD_PARAMETERS.index(parameter)
+        device_latent[parameter] = _normals(seed, first_trial, count, component, devices).reshape(shape)
+    if share > 0:
+        for name in used:
+            lot = _normals(seed, first_trial, count, _part_stream_id(name), len(SPREAD_PARAMETERS))
+            mask = grid == name
+            for parameter in parameters:
+                column = lot[:, SPREAD_PARAMETERS.index(parameter)]
+                mixed = np.sqrt(share) * column[:, None, None] + np.sqrt(1 - share) * device_latent[
+                    parameter]
+                device_latent[parameter] = np.where(mask, mixed, device_latent[parameter])
+    matrix = correlation_matrix(monte_carlo.correlation, parameters)
+    if not np.allclose(matrix, np.eye(len(parameters))):
+        factor = np.linalg.cholesky(matrix)
+        stacked = np.stack([device_latent[p] for p in parameters], axis=-1) @ factor.T
+        device_latent = {p: stacked[..., i] for i, p in enumerate(parameters)}
+
+    values = {}
+    for parameter in parameters:
+        out = np.empty(shape)
+        for name in used:
+            mask = grid == name
+            spread = design.parts[name].spread(parameter)
+            if spread is None:
+                raise ValueError(f"part {name!r} has no {parameter}")
+            out[:, mask] = spread_quantile(
+                spread, device_latent[parameter][:, mask],
+                lognormal=parameter in LOGNORMAL_PARAMETERS,
+                sigma_at_limit=monte_carlo.sigma_at_limit, screened=monte_carlo.screened)
+        values[parameter] = out
+
+    grading = design.grading
+    resistance = capacitance = None
+    if grading.resistor is not None:
+        latent = _normals(seed, first_trial, count, _RESISTOR_STREAM, devices).reshape(shape)
+        resistance = tolerance_draw(grading.resistor, grading.resistor_tolerance, latent,
+                                    sigma_at_limit=monte_carlo.sigma_at_limit)
+    if grading.capacitor is not None:
+        latent = _normals(seed, first_trial, count, _CAPACITOR_STREAM, devices).reshape(shape)
+        capacitance = tolerance_draw(grading.capacitor, grading.capacitor_tolerance, latent,
+                                     sigma_at_limit=monte_carlo.sigma_at_limit)
+    return DrawnStrings(first_trial=first_trial, parameters=values, latent=device_latent,
+                        resistance=resistance, capacitance=capacitance)
+
+
+def chunk_bounds(trials: int, chunk_trials: int) -> list[tuple[int, int]]:
+    """(first_trial, count) of each chunk; chunks hold whole blocks except the last."""
+    chunk = max(BLOCK_TRIALS, (chunk_trials // BLOCK_TRIALS) * BLOCK_TRIALS)
+    return [(start, min(chunk, trials - start)) for start in range(0, trials, chunk)]
