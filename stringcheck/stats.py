@@ -1,0 +1,649 @@
+"""Statistics of Monte Carlo runs: failure probability with exact confidence, moments, percentiles.
+
+A trial is one built string; it fails or it does not. The number of failures in ``n`` independent
+trials is binomial, so the probability of failure is reported with the exact (Clopper-Pearson)
+interval, which never covers the true value less often than the stated confidence. When a run sees
+no failure at all, the upper end of that interval is what the run can vouch for, and
+``trials_for_upper_bound`` tells how many failure-free trials a target would need.
+
+Per-position statistics (mean, standard deviation, extremes, exceedances of a limit) are accumulated
+chunk by chunk with ``RunningMoments``, so that memory stays flat in the number of trials and the
+result does not depend on how the trials were split into chunks or worker processes.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+from scipy import stats as _scipy_stats
+
+from stringcheck.errors import StringcheckError
+
+__all__ = [
+    "FailureEstimate",
+    "MomentSummary",
+    "PercentileSummary",
+    "RunningMoments",
+    "clopper_pearson",
+    "failure_estimate",
+    "histogram_counts",
+    "percentile_summary",
+    "trials_for_relative_error",
+    "trials_for_upper_bound",
+]
+
+
+def _plain(array: NDArray) -> NDArray | float | int:
+    """A 0-d array as a Python int/float (JSON-friendly), any other array unchanged."""
+    return array.item() if array.ndim == 0 else array
+
+
+def _checked_confidence(confidence: float) -> float:
+    value = float(confidence)
+    if not 0.0 < value < 1.0:
+        raise StringcheckError(
+            f"confidence must be a fraction strictly between 0 and 1, e.g. 0.95; got {confidence!r}"
+        )
+    return value
+
+
+def _checked_counts(
+    failures: ArrayLike, trials: ArrayLike
+) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    failures_array = np.asarray(failures)
+    trials_array = np.asarray(trials)
+    for name, array in (("failures", failures_array), ("trials", trials_array)):
+        if array.dtype == np.bool_ or not (
+            np.issubdtype(array.dtype, np.integer)
+            or (np.issubdtype(array.dtype, np.floating) and np.all(array == np.round(array)))
+        ):
+            raise StringcheckError(f"{name} must be whole counts; got {array!r}")
+    failures_array = failures_array.astype(np.int64)
+    trials_array = trials_array.astype(np.int64)
+    if np.any(trials_array < 1):
+        raise StringcheckError("trials must be at least 1")
+    if np.any(failures_array < 0) or np.any(failures_array > trials_array):
+        raise StringcheckError("failures must lie between 0 and the number of trials")
+    return np.broadcast_arrays(failures_array, trials_array)
+
+
+def clopper_pearson(
+    failures: ArrayLike, trials: ArrayLike, *, confidence: float = 0.95
+) -> tuple[NDArray[np.float64] | float, NDArray[np.float64] | float]:
+    """Exact two-sided confidence interval for a binomial probability.
+
+    Parameters
+    ----------
+    failures
+        Number of failed trials ``k``, whole numbers ``0 <= k <= n``; any shape.
+    trials
+        Number of trials ``n >= 1``; broadcasts against ``failures``.
+    confidence
+        Two-sided confidence level, strictly between 0 and 1 (default 0.95).
+
+    Returns
+    -------
+    low, high : numpy.ndarray or float
+        Ends of the interval for the probability of failure [1], broadcast shape of the inputs;
+        Python floats for scalar inputs. ``low`` is 0 when ``k = 0`` and ``high`` is 1 when
+        ``k = n``.
+
+    Raises
+    ------
+    StringcheckError
+        If the counts are not whole, ``n < 1``, ``k`` is outside ``[0, n]``, or the confidence is
+        outside (0, 1).
+
+    Notes
+    -----
+    With ``alpha = 1 - confidence`` and ``B(q; a, b)`` the ``q``-quantile of the beta distribution:
+
+    .. math::
+
+        p_{low} = B(\\alpha / 2;\\ k,\\ n - k + 1), \\qquad
+        p_{high} = B(1 - \\alpha / 2;\\ k + 1,\\ n - k).
+
+    Each end is the probability at which observing ``k`` (or more, or fewer) failures has
+    probability ``alpha / 2``, so the interval covers the true probability at least as often as
+    stated, for every ``p`` and ``n``. For ``k = 0`` the upper end has the closed form
+    ``1 - (alpha / 2)^(1 / n)``.
+
+    References
+    ----------
+    .. [1] C. J. Clopper and E. S. Pearson, "The use of confidence or fiducial limits illustrated
+       in the case of the binomial", Biometrika 26 (4), 1934, pp. 404-413.
+    """
+    level = _checked_confidence(confidence)
+    k, n = _checked_counts(failures, trials)
+    tail = (1.0 - level) / 2.0
+    # Beta parameters must be positive; the ends where they are not are fixed at 0 and 1.
+    low = np.where(
+        k == 0, 0.0, _scipy_stats.beta.ppf(tail, np.maximum(k, 1), n - k + 1)
+    )
+    high = np.where(
+        k == n, 1.0, _scipy_stats.beta.ppf(1.0 - tail, k + 1, np.maximum(n - k, 1))
+    )
+    return _plain(np.asarray(low, dtype=np.float64)), _plain(np.asarray(high, dtype=np.float64))
+
+
+@dataclass(frozen=True)
+class FailureEstimate:
+    """Probability that a built string fails, with its exact confidence interval.
+
+    Attributes
+    ----------
+    failures
+        Number of failed trials.
+    trials
+        Number of trials.
+    p_fail
+        Point estimate ``failures / trials`` [1].
+    ci_low, ci_high
+        Two-sided Clopper-Pearson interval at ``confidence`` [1].
+    confidence
+        Two-sided confidence level of the interval.
+
+    Fields are Python numbers for scalar counts and numpy arrays for arrays of counts.
+    """
+
+    failures: int | NDArray[np.int64]
+    trials: int | NDArray[np.int64]
+    p_fail: float | NDArray[np.float64]
+    ci_low: float | NDArray[np.float64]
+    ci_high: float | NDArray[np.float64]
+    confidence: float
+
+    @property
+    def upper_bound(self) -> float | NDArray[np.float64]:
+        """Upper end of the interval: the failure probability the run can vouch for [1].
+
+        It is also the one-sided upper bound at confidence ``(1 + confidence) / 2``.
+        """
+        return self.ci_high
+
+
+def failure_estimate(
+    failures: ArrayLike, trials: ArrayLike, *, confidence: float = 0.95
+) -> FailureEstimate:
+    """Estimate a failure probability from counts, with its Clopper-Pearson interval.
+
+    Parameters
+    ----------
+    failures
+        Number of failed trials ``k``, whole numbers ``0 <= k <= n``; any shape.
+    trials
+        Number of trials ``n >= 1``; broadcasts against ``failures``.
+    confidence
+        Two-sided confidence level, strictly between 0 and 1 (default 0.95).
+
+    Returns
+    -------
+    FailureEstimate
+        Counts, point estimate ``k / n`` and the interval from :func:`clopper_pearson`.
+
+    Raises
+    ------
+    StringcheckError
+        As :func:`clopper_pearson`.
+
+    References
+    ----------
+    .. [1] C. J. Clopper and E. S. Pearson, Biometrika 26 (4), 1934, pp. 404-413.
+    """
+    low, high = clopper_pearson(failures, trials, confidence=confidence)
+    k, n = _checked_counts(failures, trials)
+    return FailureEstimate(
+        failures=_plain(k),
+        trials=_plain(n),
+        p_fail=_plain(k / n),
+        ci_low=low,
+        ci_high=high,
+        confidence=float(confidence),
+    )
+
+
+def _zero_failure_upper(trials: float, confidence: float) -> float:
+    """Upper end of the two-sided interval after ``trials`` trials without failure."""
+    return -math.expm1(math.log((1.0 - confidence) / 2.0) / trials)
+
+
+def trials_for_upper_bound(target: float, *, confidence: float = 0.95) -> int:
+    """Failure-free trials needed before the upper confidence bound falls to a target.
+
+    Parameters
+    ----------
+    target
+        Failure probability the upper bound must reach, strictly between 0 and 1 [1].
+    confidence
+        Two-sided confidence level of the interval, strictly between 0 and 1 (default 0.95).
+
+    Returns
+    -------
+    int
+        Smallest ``n`` for which ``n`` trials without a failure give a Clopper-Pearson upper end
+        ``<= target``. A run with fewer trials cannot show the target is met, whatever it sees.
+
+    Raises
+    ------
+    StringcheckError
+        If the target or confidence is outside (0, 1).
+
+    Notes
+    -----
+    With no failure the upper end is ``1 - (alpha / 2)^(1 / n)``, ``alpha = 1 - confidence``.
+    Setting it equal to the target and solving for ``n``:
+
+    .. math:: n = \\left\\lceil \\frac{\\ln(\\alpha / 2)}{\\ln(1 - p_{target})} \\right\\rceil
+              \\approx \\frac{3.69}{p_{target}} \\quad (\\text{95 %, two-sided}).
+
+    The one-sided 95 % bound gives the "rule of three", ``n ~ 3 / p``; the two-sided interval at
+    95 % spends 2.5 % in each tail, hence ``-ln 0.025 = 3.69``.
+
+    References
+    ----------
+    .. [1] C. J. Clopper and E. S. Pearson, Biometrika 26 (4), 1934, pp. 404-413.
+    .. [2] J. A. Hanley and A. Lippman-Hand, "If nothing goes wrong, is everything all right?
+       Interpreting zero numerators", JAMA 249 (13), 1983, pp. 1743-1745.
+    """
+    level = _checked_confidence(confidence)
+    probability = float(target)
+    if not 0.0 < probability < 1.0:
+        raise StringcheckError(
+            f"target must be a probability strictly between 0 and 1; got {target!r}"
+        )
+    estimate = math.log((1.0 - level) / 2.0) / math.log1p(-probability)
+    trials = max(1, math.ceil(estimate))
+    # The ceiling of a rounded quotient may be one off either way; settle it on the bound itself.
+    if trials > 1 and _zero_failure_upper(trials - 1, level) <= probability:
+        trials -= 1
+    elif _zero_failure_upper(trials, level) > probability:
+        trials += 1
+    return trials
+
+
+def trials_for_relative_error(p: float, relative_error: float) -> int:
+    """Trials a plain Monte Carlo run needs to estimate a probability to a relative error.
+
+    Parameters
+    ----------
+    p
+        Expected failure probability, ``0 < p <= 1`` [1].
+    relative_error
+        Wanted standard error of the estimate divided by ``p``, > 0 (0.1 for 10 %).
+
+    Returns
+    -------
+    int
+        Smallest ``n`` with ``sqrt(p (1 - p) / n) / p <= relative_error`` (at least 1).
+
+    Raises
+    ------
+    StringcheckError
+        If ``p`` or ``relative_error`` is out of range.
+
+    Notes
+    -----
+    The estimate ``k / n`` has variance ``p (1 - p) / n``, so ``n = (1 - p) / (p e^2)``: about
+    ``100 / p`` trials for 10 %. This is why rare failures need importance sampling.
+
+    References
+    ----------
+    .. [1] S. Asmussen and P. W. Glynn, Stochastic Simulation: Algorithms and Analysis, Springer,
+       2007, ch. VI (rare-event simulation; relative error of crude Monte Carlo), from memory.
+    """
+    probability = float(p)
+    error = float(relative_error)
+    if not 0.0 < probability <= 1.0:
+        raise StringcheckError(f"p must be a probability in (0, 1]; got {p!r}")
+    if not (error > 0.0 and math.isfinite(error)):
+        raise StringcheckError(f"relative_error must be positive, e.g. 0.1; got {relative_error!r}")
+    return max(1, math.ceil((1.0 - probability) / (probability * error**2)))
+
+
+@dataclass(frozen=True)
+class PercentileSummary:
+    """Percentiles of a Monte Carlo quantity over trials.
+
+    Attributes
+    ----------
+    percentiles
+        The levels [%], e.g. ``(50.0, 90.0, 99.0)``.
+    values
+        Array of shape ``(len(percentiles),) + positions``: row ``i`` is the ``percentiles[i]``-th
+        percentile over trials, in the unit of the input.
+    trials
+        Number of trials summarised.
+    """
+
+    percentiles: tuple[float, ...]
+    values: NDArray[np.float64]
+    trials: int
+
+    def at(self, percentile: float) -> NDArray[np.float64] | float:
+        """The row for one of the stored percentile levels."""
+        for index, level in enumerate(self.percentiles):
+            if level == float(percentile):
+                return _plain(self.values[index])
+        raise StringcheckError(
+            f"percentile {percentile!r} was not computed; available: {list(self.percentiles)}"
+        )
+
+
+def percentile_summary(
+    values: ArrayLike, percentiles: Sequence[float] = (50, 90, 99)
+) -> PercentileSummary:
+    """Percentiles over trials (the leading axis) of a Monte Carlo quantity.
+
+    Parameters
+    ----------
+    values
+        Array of shape ``(trials,) + positions`` [any unit], at least one trial. NaN propagates.
+    percentiles
+        Levels [%] in [0, 100] (default 50, 90 and 99).
+
+    Returns
+    -------
+    PercentileSummary
+        The levels, the percentile values (linear interpolation between order statistics, numpy's
+        default) and the number of trials.
+
+    Raises
+    ------
+    StringcheckError
+        If there are no trials or a level is outside [0, 100].
+
+    References
+    ----------
+    .. [1] R. J. Hyndman and Y. Fan, "Sample quantiles in statistical packages", The American
+       Statistician 50 (4), 1996, pp. 361-365 (definition 7, numpy's "linear").
+    """
+    array = np.asarray(values, dtype=np.float64)
+    levels = tuple(float(level) for level in percentiles)
+    if array.ndim == 0 or array.shape[0] == 0:
+        raise StringcheckError("percentile_summary needs at least one trial on the leading axis")
+    if not levels or not all(0.0 <= level <= 100.0 for level in levels):
+        raise StringcheckError(f"percentiles must be levels in [0, 100]; got {list(percentiles)!r}")
+    return PercentileSummary(
+        percentiles=levels,
+        values=np.percentile(array, levels, axis=0),
+        trials=int(array.shape[0]),
+    )
+
+
+@dataclass(frozen=True)
+class MomentSummary:
+    """Per-position statistics accumulated by :class:`RunningMoments`.
+
+    Attributes
+    ----------
+    count
+        Number of trials.
+    mean, std, minimum, maximum
+        Per-position mean, standard deviation (with the ``ddof`` asked for), extremes; unit of
+        the input.
+    exceed_counts
+        Per position, the number of trials above the threshold (None without a threshold).
+    trials_exceeding
+        Number of trials in which any position was above its threshold (None without one).
+    """
+
+    count: int
+    mean: NDArray[np.float64]
+    std: NDArray[np.float64]
+    minimum: NDArray[np.float64]
+    maximum: NDArray[np.float64]
+    exceed_counts: NDArray[np.int64] | None
+    trials_exceeding: int | None
+
+
+class RunningMoments:
+    """Accumulate per-position moments, extremes and exceedances over chunks of trials.
+
+    Feed chunks of shape ``(chunk_trials,) + positions`` with :meth:`add`, or combine accumulators
+    from separate workers with :meth:`merge`; memory stays that of a few position-shaped arrays.
+    Any split of the same trials gives the same mean and variance to rounding error (about 1e-12
+    relative), and exactly the same count, extremes and exceedance counts.
+
+    Parameters
+    ----------
+    threshold
+        Optional limit [unit of the data] broadcast against the position shape; a value strictly
+        above it counts as an exceedance.
+
+    Notes
+    -----
+    Each chunk's mean and sum of squared deviations ``M2`` are computed in two passes, then merged
+    with the running totals (sizes ``n_a``, ``n_b``, ``delta = mean_b - mean_a``):
+
+    .. math::
+
+        mean = mean_a + \\delta \\frac{n_b}{n}, \\qquad
+        M_2 = M_{2,a} + M_{2,b} + \\delta^2 \\frac{n_a n_b}{n}.
+
+    References
+    ----------
+    .. [1] T. F. Chan, G. H. Golub and R. J. LeVeque, "Algorithms for computing the sample
+       variance: analysis and recommendations", The American Statistician 37 (3), 1983,
+       pp. 242-247.
+    .. [2] B. P. Welford, "Note on a method for calculating corrected sums of squares and
+       products", Technometrics 4 (3), 1962, pp. 419-420.
+    """
+
+    def __init__(self, *, threshold: ArrayLike | None = None):
+        self._threshold = None if threshold is None else np.asarray(threshold, dtype=np.float64)
+        self._count = 0
+        self._position_shape: tuple[int, ...] | None = None
+        self._mean: NDArray[np.float64] | None = None
+        self._m2: NDArray[np.float64] | None = None
+        self._minimum: NDArray[np.float64] | None = None
+        self._maximum: NDArray[np.float64] | None = None
+        self._exceed_counts: NDArray[np.int64] | None = None
+        self._trials_exceeding = 0
+
+    # -- feeding --------------------------------------------------------------------------------
+    def add(self, chunk: ArrayLike) -> RunningMoments:
+        """Add a chunk of trials of shape ``(chunk_trials,) + positions``; returns ``self``."""
+        array = np.asarray(chunk, dtype=np.float64)
+        if array.ndim == 0:
+            raise StringcheckError("a chunk needs a leading trial axis, shape (trials, ...)")
+        self._check_shape(array.shape[1:])
+        trials = array.shape[0]
+        if trials == 0:
+            return self
+        mean = array.mean(axis=0)
+        m2 = np.square(array - mean).sum(axis=0)
+        exceed_counts = None
+        trials_exceeding = 0
+        if self._threshold is not None:
+            above = array > self._threshold
+            exceed_counts = above.sum(axis=0, dtype=np.int64)
+            trials_exceeding = int(np.any(above.reshape(trials, -1), axis=1).sum())
+        self._combine(
+            trials, mean, m2, array.min(axis=0), array.max(axis=0), exceed_counts, trials_exceeding
+        )
+        return self
+
+    def merge(self, other: RunningMoments) -> RunningMoments:
+        """Fold another accumulator (e.g. from a worker process) into this one; returns ``self``."""
+        if (self._threshold is None) != (other._threshold is None) or (
+            self._threshold is not None and not np.array_equal(self._threshold, other._threshold)
+        ):
+            raise StringcheckError("cannot merge accumulators that use different thresholds")
+        if other._count == 0:
+            return self
+        self._check_shape(other._position_shape)
+        self._combine(
+            other._count,
+            other._mean,
+            other._m2,
+            other._minimum,
+            other._maximum,
+            other._exceed_counts,
+            other._trials_exceeding,
+        )
+        return self
+
+    def _check_shape(self, shape: tuple[int, ...]) -> None:
+        if self._position_shape is None:
+            if self._threshold is not None:
+                try:
+                    np.broadcast_shapes(self._threshold.shape, shape)
+                except ValueError:
+                    raise StringcheckError(
+                        f"threshold of shape {self._threshold.shape} does not broadcast against "
+                        f"positions of shape {shape}"
+                    ) from None
+            self._position_shape = tuple(shape)
+        elif tuple(shape) != self._position_shape:
+            raise StringcheckError(
+                f"chunk positions have shape {tuple(shape)}; earlier chunks had "
+                f"{self._position_shape}"
+            )
+
+    def _combine(self, count, mean, m2, minimum, maximum, exceed_counts, trials_exceeding) -> None:
+        if self._count == 0:
+            self._mean = np.array(mean, dtype=np.float64)
+            self._m2 = np.array(m2, dtype=np.float64)
+            self._minimum = np.array(minimum, dtype=np.float64)
+            self._maximum = np.array(maximum, dtype=np.float64)
+            self._exceed_counts = None if exceed_counts is None else np.array(exceed_counts)
+        else:
+            total = self._count + count
+            delta = mean - self._mean
+            self._mean = self._mean + delta * (count / total)
+            self._m2 = self._m2 + m2 + np.square(delta) * (self._count * count / total)
+            self._minimum = np.minimum(self._minimum, minimum)
+            self._maximum = np.maximum(self._maximum, maximum)
+            if exceed_counts is not None:
+                self._exceed_counts = self._exceed_counts + exceed_counts
+        self._count += count
+        self._trials_exceeding += trials_exceeding
+
+    # -- results --------------------------------------------------------------------------------
+    def _require_data(self) -> None:
+        if self._count == 0:
+            raise StringcheckError("no trials accumulated yet; add a chunk first")
+
+    @property
+    def count(self) -> int:
+        """Number of trials accumulated."""
+        return self._count
+
+    @property
+    def mean(self) -> NDArray[np.float64]:
+        """Per-position mean over trials."""
+        self._require_data()
+        return self._mean.copy()
+
+    def variance(self, ddof: int = 0) -> NDArray[np.float64]:
+        """Per-position variance, ``M2 / (count - ddof)`` (NaN where ``count <= ddof``)."""
+        self._require_data()
+        denominator = self._count - ddof
+        if denominator <= 0:
+            return np.full_like(self._m2, np.nan)
+        return self._m2 / denominator
+
+    def std(self, ddof: int = 0) -> NDArray[np.float64]:
+        """Per-position standard deviation, square root of :meth:`variance`."""
+        return np.sqrt(self.variance(ddof))
+
+    @property
+    def minimum(self) -> NDArray[np.float64]:
+        """Per-position smallest value seen."""
+        self._require_data()
+        return self._minimum.copy()
+
+    @property
+    def maximum(self) -> NDArray[np.float64]:
+        """Per-position largest value seen."""
+        self._require_data()
+        return self._maximum.copy()
+
+    @property
+    def exceed_counts(self) -> NDArray[np.int64] | None:
+        """Per position, trials strictly above the threshold (None without a threshold)."""
+        self._require_data()
+        return None if self._exceed_counts is None else self._exceed_counts.copy()
+
+    @property
+    def trials_exceeding(self) -> int | None:
+        """Trials in which any position was above its threshold (None without a threshold)."""
+        return None if self._threshold is None else self._trials_exceeding
+
+    def summary(self, ddof: int = 1) -> MomentSummary:
+        """Freeze the accumulated statistics into a :class:`MomentSummary`."""
+        return MomentSummary(
+            count=self.count,
+            mean=self.mean,
+            std=self.std(ddof),
+            minimum=self.minimum,
+            maximum=self.maximum,
+            exceed_counts=self.exceed_counts,
+            trials_exceeding=self.trials_exceeding,
+        )
+
+
+def histogram_counts(
+    values: ArrayLike, *, bins: int = 20, limit: float | None = None
+) -> list[tuple[float, float, int]]:
+    """Count values in equal-width bins, for a report to draw as a histogram.
+
+    Parameters
+    ----------
+    values
+        Values of any shape [any unit]; flattened. NaN and infinities are left out (count them
+        separately if they mean something).
+    bins
+        Number of bins across the range of the values, >= 1 (default 20).
+    limit
+        Optional limit in the unit of the values (e.g. the allowed stress ratio). The range is
+        widened to include it, and it is made a bin edge, so that no bin straddles it; there may
+        then be one or two bins more than ``bins``.
+
+    Returns
+    -------
+    list of (low, high, count)
+        Bins in ascending order, each ``[low, high)`` except the last, which includes ``high``
+        (numpy's convention). With a limit, a value equal to it falls in the bin that starts at
+        it, and there is always such a bin. Empty list for no finite values. Equal values give a
+        single bin ``(v, v, count)`` (or, with a limit, bins up to and past it).
+
+    Raises
+    ------
+    StringcheckError
+        If ``bins`` is not a positive whole number or ``limit`` is not finite.
+    """
+    if isinstance(bins, bool) or int(bins) != bins or bins < 1:
+        raise StringcheckError(f"bins must be a positive whole number; got {bins!r}")
+    if limit is not None and not math.isfinite(limit):
+        raise StringcheckError(f"limit must be a finite number; got {limit!r}")
+    data = np.ravel(np.asarray(values, dtype=np.float64))
+    data = data[np.isfinite(data)]
+    if data.size == 0:
+        return []
+    low, high = float(data.min()), float(data.max())
+    if limit is None:
+        if low == high:
+            return [(low, high, int(data.size))]
+        edges = np.linspace(low, high, int(bins) + 1)
+    else:
+        low, high = min(low, limit), max(high, limit)
+        width = (high - low) / int(bins) if high > low else max(abs(limit), 1.0) / int(bins)
+        below = math.ceil((limit - low) / width)
+        above = max(1, math.ceil((high - limit) / width))
+        # Rounding in limit +/- count * width may leave an extreme value just outside the edges.
+        if limit - below * width > low:
+            below += 1
+        if limit + above * width < high:
+            above += 1
+        edges = limit + width * np.arange(-below, above + 1)
+        edges[below] = limit
+    counts, edges = np.histogram(data, bins=edges)
+    return [
+        (float(edges[index]), float(edges[index + 1]), int(counts[index]))
+        for index in range(counts.size)
+    ]
