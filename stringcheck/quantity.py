@@ -204,4 +204,6 @@ def format_quantity(value: float, unit_label: str, *, digits: int = 3) -> str:
         if magnitude >= scale * 0.9995:
             break
     text = f"{value / scale:.{digits}g}"
+    if unit_label == "ohm":
+        unit_label = "Ohm"
     return f"{text} {prefix}{unit_label}"

@@ -1,0 +1,19 @@
+"""stringcheck: Monte Carlo checks of voltage and current sharing in strings of power diodes."""
+
+from __future__ import annotations
+
+from .design import Design, load_design, parse_design_text
+from .errors import DesignError, QuantityError, SizingError, StringcheckError
+
+__version__ = "0.1.0"
+
+
+def check(design: Design, **options):
+    """Run the series check of ``design``; see :func:`stringcheck.studies.check.run_check`."""
+    from .studies.check import run_check
+
+    return run_check(design, **options)
+
+
+__all__ = ["Design", "DesignError", "QuantityError", "SizingError", "StringcheckError", "check",
+           "load_design", "parse_design_text", "__version__"]

@@ -1,0 +1,5 @@
+"""``python -m stringcheck``."""
+
+from .cli import main
+
+main()

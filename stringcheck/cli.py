@@ -1,0 +1,185 @@
+"""The ``stringcheck`` command line: parse options, call one study, hand the result to a renderer.
+
+Exit codes: 0 every check passes; 1 a check fails; 2 bad input or usage; 3 internal error;
+130 interrupted.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+import traceback
+from importlib import resources
+from pathlib import Path
+from typing import Callable, Optional
+
+import typer
+from rich.console import Console
+from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
+
+from .errors import StringcheckError
+
+EXIT_PASS, EXIT_FAIL, EXIT_INPUT, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
+
+app = typer.Typer(
+    add_completion=False,
+    no_args_is_help=True,
+    help="Monte Carlo checks of voltage sharing in series strings of power diodes.",
+    pretty_exceptions_enable=False,
+)
+
+_TRIALS = typer.Option(None, "--trials", min=1, help="Number of built strings to draw "
+                                                     "(default: the design's monte_carlo.trials).")
+_SEED = typer.Option(None, "--seed", min=0, help="Random seed (default: the design's).")
+_JSON = typer.Option(None, "--json", help="Write the machine-readable result to PATH ('-' for "
+                                          "standard output).", metavar="PATH")
+_CSV = typer.Option(None, "--csv", help="Write per-position statistics to PATH as CSV.",
+                    metavar="PATH")
+_QUIET = typer.Option(False, "--quiet", "-q", help="Print only a one-line verdict.")
+_DEBUG = typer.Option(False, "--debug", help="Show the traceback of an internal error.")
+
+
+def _console(stderr: bool = False) -> Console:
+    return Console(stderr=stderr, highlight=False, soft_wrap=False)
+
+
+class _DelayedProgress:
+    """A progress bar on stderr that appears only when a run lasts longer than about a second."""
+
+    def __init__(self, enabled: bool, label: str):
+        self.enabled = enabled
+        self.label = label
+        self.start = time.monotonic()
+        self.bar: Progress | None = None
+        self.task = None
+
+    def __call__(self, done: int, total: int) -> None:
+        if not self.enabled:
+            return
+        if self.bar is None:
+            elapsed = time.monotonic() - self.start
+            if done >= total or elapsed < 0.5 or elapsed * total / max(done, 1) < 1.0:
+                return
+            self.bar = Progress(TextColumn(self.label), BarColumn(), TextColumn("{task.completed:,}/"
+                                                                                "{task.total:,}"),
+                                TimeRemainingColumn(), console=_console(stderr=True), transient=True)
+            self.bar.start()
+            self.task = self.bar.add_task(self.label, total=total)
+        self.bar.update(self.task, completed=done)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.stop()
+
+
+def _run(action: Callable[[], int], debug: bool) -> None:
+    """Run ``action`` and turn its outcome into an exit code, never a traceback (unless --debug)."""
+    try:
+        code = action()
+    except StringcheckError as error:
+        _console(stderr=True).print(f"[bold red]error:[/] {error}", highlight=False, markup=True)
+        code = EXIT_INPUT
+    except KeyboardInterrupt:
+        _console(stderr=True).print("interrupted; no output file was written")
+        code = EXIT_INTERRUPTED
+    except Exception as error:  # the last guard: one line, and the way to the traceback
+        if debug:
+            traceback.print_exc()
+        else:
+            _console(stderr=True).print(
+                f"[bold red]internal error:[/] {type(error).__name__}: {error} "
+                "(rerun with --debug for the traceback, and please report it)", markup=True)
+        code = EXIT_INTERNAL
+    raise typer.Exit(code)
+
+
+def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, source_label=None) -> int:
+    from .design import load_design
+    from .report.export import json_text, positions_csv, result_to_dict, write_text_atomic
+    from .report.terminal import render_check, render_check_summary
+    from .studies.check import run_check
+
+    design = load_design(path)
+    if source_label is not None:
+        from dataclasses import replace
+
+        design = replace(design, source=source_label)
+    to_stdout = json_path == "-"
+    progress = _DelayedProgress(enabled=not quiet, label="drawing strings")
+    try:
+        result = run_check(design, trials=trials, seed=seed, progress=progress)
+    finally:
+        progress.close()
+    if json_path is not None:
+        write_text_atomic(json_path, json_text(result_to_dict(result)))
+    if csv_path is not None:
+        write_text_atomic(csv_path, positions_csv(result))
+    # With the JSON on standard output, the report goes to stderr so the two never mix.
+    console = _console(stderr=to_stdout)
+    if quiet:
+        render_check_summary(result, console)
+    else:
+        render_check(result, console)
+    return EXIT_PASS if result.verdict == "pass" else EXIT_FAIL
+
+
+@app.command()
+def check(
+    file: Path = typer.Argument(..., help="Design file (TOML).", show_default=False),
+    trials: Optional[int] = _TRIALS,
+    seed: Optional[int] = _SEED,
+    json: Optional[str] = _JSON,
+    csv: Optional[str] = _CSV,
+    quiet: bool = _QUIET,
+    debug: bool = _DEBUG,
+) -> None:
+    """Check a series string: static and dynamic voltage sharing, P(fail), grading ratings."""
+    _run(lambda: _check(file, trials=trials, seed=seed, json_path=json, csv_path=csv, quiet=quiet),
+         debug)
+
+
+@app.command()
+def demo(
+    trials: Optional[int] = _TRIALS,
+    seed: Optional[int] = _SEED,
+    json: Optional[str] = _JSON,
+    csv: Optional[str] = _CSV,
+    quiet: bool = _QUIET,
+    debug: bool = _DEBUG,
+) -> None:
+    """Run the check on the bundled example design (an invented 30 kV stack)."""
+    def action() -> int:
+        with resources.as_file(resources.files("stringcheck") / "data" / "demo.toml") as path:
+            return _check(path, trials=trials, seed=seed, json_path=json, csv_path=csv,
+                          quiet=quiet, source_label="demo (bundled example)")
+
+    _run(action, debug)
+
+
+@app.command()
+def new(
+    file: Path = typer.Argument(..., help="Where to write the starter design.", show_default=False),
+    force: bool = typer.Option(False, "--force", help="Overwrite FILE if it exists."),
+    debug: bool = _DEBUG,
+) -> None:
+    """Write a commented starter design file to edit."""
+    def action() -> int:
+        from .report.export import write_text_atomic
+        from .report.starter import starter_design
+
+        if file.exists() and not force:
+            raise StringcheckError(f"{file}: already exists; choose another name or add --force "
+                                   "to overwrite it")
+        write_text_atomic(file, starter_design())
+        _console().print(f"wrote {file}; edit it, then run: stringcheck check {file}")
+        return EXIT_PASS
+
+    _run(action, debug)
+
+
+def main() -> None:
+    """Console-script entry point."""
+    try:
+        app()
+    except KeyboardInterrupt:  # pragma: no cover - interrupt outside a command
+        sys.exit(EXIT_INTERRUPTED)

@@ -1,0 +1,154 @@
+"""Machine-readable output: JSON (stable keys, DESIGN.md section 6) and per-position CSV.
+
+Files are written atomically: to a temporary file in the same folder, then renamed over the target, so
+an existing file is replaced only by a complete new one.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import sys
+import tempfile
+from pathlib import Path
+from typing import Any
+
+from ..errors import StringcheckError
+from ..studies.check import CheckResult, SeriesCheck
+from .cautions import safety_cautions
+
+SCHEMA_VERSION = 1
+
+
+def _number(value: float | None) -> float | None:
+    """JSON has no inf or NaN: write them as null (the report text says why)."""
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def check_to_dict(check: SeriesCheck) -> dict[str, Any]:
+    """The JSON object of one check that ran."""
+    estimate = check.estimate
+    return {
+        "passed": check.passed,
+        "worst_voltage": _number(check.worst_voltage),
+        "worst_ratio": _number(check.worst_ratio),
+        "p50_ratio": _number(check.p50_ratio),
+        "p99_ratio": _number(check.p99_ratio),
+        "failures": estimate.failures,
+        "unsolved": check.unsolved,
+        "p_fail": estimate.p_fail,
+        "p_fail_ci": [estimate.ci_low, estimate.ci_high],
+        "worst_trial": check.worst_trial,
+        "positions": [
+            {
+                "branch": p.branch, "index": p.index, "part": p.part, "limit": p.limit,
+                "mean_voltage": _number(p.mean_voltage), "std_voltage": _number(p.std_voltage),
+                "max_voltage": _number(p.max_voltage), "failures": p.failures,
+            }
+            for p in check.positions
+        ],
+    }
+
+
+def result_to_dict(result: CheckResult) -> dict[str, Any]:
+    """The whole result of ``check`` as a JSON-ready dictionary (SI units, temperatures in degC)."""
+    design = result.design
+    grading = result.grading
+    checks = {name: check_to_dict(check) for name, check in result.checks.items() if check.ran}
+    skipped = {name: check.reason for name, check in result.checks.items() if not check.ran}
+    return {
+        "schema": SCHEMA_VERSION,
+        "design": {"title": design.title, "file": design.source},
+        "trials": result.trials,
+        "seed": result.seed,
+        "confidence": design.monte_carlo.confidence,
+        "verdict": result.verdict,
+        "impossible": result.impossible,
+        "checks": checks,
+        "skipped": skipped,
+        "network": {
+            "resistor": grading.resistor,
+            "capacitor": grading.capacitor,
+            "damping_resistor": grading.damping_resistor,
+            "worst_stage_voltage": _number(grading.worst_resistor_voltage),
+            "resistor_power_continuous": _number(grading.resistor_power_continuous),
+            "resistor_power_duty": _number(grading.resistor_power_duty),
+            "resistor_rated_power": grading.resistor_rated_power,
+            "resistor_rated_voltage": grading.resistor_rated_voltage,
+            "capacitor_rated_voltage": grading.capacitor_rated_voltage,
+            "total_grading_loss": _number(grading.total_grading_loss),
+            "stage_energy": _number(grading.stage_energy),
+            "total_energy": _number(grading.total_energy),
+            "discharge_time": _number(grading.discharge_time),
+            "grading_current": _number(grading.grading_current),
+            "hottest_max_leakage": _number(grading.hottest_max_leakage),
+            "rating_problems": list(grading.rating_problems),
+            "advisories": list(grading.advisories),
+        },
+        "assumptions": list(result.assumptions),
+        "no_scatter": list(result.no_scatter),
+        "cautions": safety_cautions(string_voltage=design.duty.reverse_voltage,
+                                    stage_energy=grading.stage_energy,
+                                    total_energy=grading.total_energy,
+                                    discharge_time=grading.discharge_time),
+    }
+
+
+def positions_csv(result: CheckResult) -> str:
+    """Per-position statistics of every check that ran, one row per check and position."""
+    header = "check,branch,index,part,limit_V,mean_V,std_V,max_V,failures"
+    rows = [header]
+    for name, check in result.checks.items():
+        for p in check.positions:
+            rows.append(f"{name},{p.branch},{p.index},{_csv_text(p.part)},{p.limit:.6g},"
+                        f"{p.mean_voltage:.6g},{p.std_voltage:.6g},{p.max_voltage:.6g},{p.failures}")
+    return "\n".join(rows) + "\n"
+
+
+def _csv_text(text: str) -> str:
+    return '"' + text.replace('"', '""') + '"' if any(c in text for c in ',"\n') else text
+
+
+def write_text_atomic(path: str | Path, text: str) -> None:
+    """Write ``text`` to ``path`` atomically ("-" writes to standard output).
+
+    Raises
+    ------
+    StringcheckError
+        When the folder does not exist or cannot be written.
+    """
+    if str(path) == "-":
+        sys.stdout.write(text)
+        sys.stdout.flush()
+        return
+    target = Path(path)
+    folder = target.parent if str(target.parent) else Path(".")
+    if not folder.is_dir():
+        raise StringcheckError(f"{target}: the folder {folder} does not exist")
+    if target.is_dir():
+        raise StringcheckError(f"{target}: is a folder; give a file name")
+    try:
+        handle, temporary = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+    except OSError as error:
+        raise StringcheckError(f"{target}: cannot write in {folder} ({error.strerror})") from None
+    try:
+        with os.fdopen(handle, "w", encoding="utf-8", newline="") as stream:
+            stream.write(text)
+            stream.flush()
+            os.fsync(stream.fileno())
+        os.replace(temporary, target)
+    except BaseException:
+        try:
+            os.unlink(temporary)
+        except OSError:
+            pass
+        raise
+
+
+def json_text(data: dict[str, Any]) -> str:
+    """Serialise ``data`` as indented JSON with a final newline."""
+    return json.dumps(data, indent=2, allow_nan=False) + "\n"

@@ -1,0 +1,191 @@
+"""The terminal report of ``stringcheck check`` (rich). Formats results; computes no physics."""
+
+from __future__ import annotations
+
+import math
+
+from rich.console import Console, Group
+from rich.panel import Panel
+from rich.table import Table
+from rich.text import Text
+
+from ..quantity import format_quantity
+from ..studies.check import CheckResult, SeriesCheck
+from .cautions import safety_cautions
+
+_TITLES = {
+    "static": "Blocking-state sharing (leakage vs grading resistors)",
+    "dynamic": "Turn-off sharing (recovery charge vs grading capacitance)",
+}
+
+
+def _ratio(value: float) -> str:
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "-"
+    if math.isinf(value):
+        return "unsolved"
+    return f"{value:.3f}"
+
+
+def _probability(check: SeriesCheck, confidence: float) -> str:
+    estimate = check.estimate
+    if estimate is None:
+        return "-"
+    if estimate.failures == 0:
+        return f"<= {estimate.ci_high:.2g} (none seen)"
+    return f"{estimate.p_fail:.2g} [{estimate.ci_low:.2g}, {estimate.ci_high:.2g}]"
+
+
+def render_check(result: CheckResult, console: Console) -> None:
+    """Print the whole check report to ``console``."""
+    design = result.design
+    layout = design.string
+    confidence = design.monte_carlo.confidence
+    parts = ", ".join(design.parts_used())
+    heading = Text.assemble(
+        (design.title, "bold"), "\n",
+        f"file {design.source}\n",
+        f"{layout.parallel} branch(es) x {layout.series} devices in series, part(s) {parts}; "
+        f"{format_quantity(design.duty.reverse_voltage, 'V')} peak reverse, "
+        f"{design.duty.waveform} duty, ambient {design.duty.ambient:g} degC\n",
+        f"{result.trials:,} built strings drawn (seed {result.seed}); device limit = derating "
+        f"{layout.derating:g} x V_RRM")
+    console.print(Panel(heading, title="stringcheck check", title_align="left"))
+
+    if result.verdict == "pass":
+        console.print(Text(" VERDICT: PASS ", style="bold black on green"),
+                      "no drawn device exceeded its allowed voltage and every rating given holds.")
+    else:
+        console.print(Text(" VERDICT: FAIL ", style="bold white on red"), _fail_reason(result))
+    if result.impossible:
+        console.print(Text(f"Impossible design: {result.impossible}.", style="bold red"))
+    console.print()
+
+    summary = Table(title="Checks", title_justify="left", show_lines=False)
+    probability_column = f"P(fail), {confidence:.0%} interval"
+    for column in ("check", "worst V", "worst/limit", "p99/limit", probability_column, "result"):
+        summary.add_column(column, justify="right" if column not in ("check", "result") else "left")
+    for name, check in result.checks.items():
+        if not check.ran:
+            summary.add_row(name, "-", "-", "-", "-", Text("not run", style="yellow"))
+            continue
+        outcome = Text("pass", style="green") if check.passed else Text("FAIL", style="bold red")
+        summary.add_row(name, format_quantity(check.worst_voltage, "V"), _ratio(check.worst_ratio),
+                        _ratio(check.p99_ratio), _probability(check, confidence), outcome)
+    console.print(summary)
+    for name, check in result.checks.items():
+        if not check.ran:
+            console.print(Text(f"{name} check not run: {check.reason}.", style="yellow"))
+    console.print()
+
+    for name, check in result.checks.items():
+        if check.ran:
+            _render_detail(name, check, console)
+
+    _render_network(result, console)
+
+    if result.assumptions:
+        console.print(Text("Assumptions made", style="bold"))
+        for line in result.assumptions:
+            console.print(f"  - {line}")
+    if result.no_scatter:
+        console.print(Text("Without scatter (fixed values)", style="bold"))
+        console.print("  - " + "; ".join(result.no_scatter))
+    console.print()
+    grading = result.grading
+    cautions = safety_cautions(string_voltage=design.duty.reverse_voltage,
+                               stage_energy=grading.stage_energy, total_energy=grading.total_energy,
+                               discharge_time=grading.discharge_time)
+    console.print(Panel("\n".join(f"! {line}" for line in cautions), title="High-voltage cautions",
+                        title_align="left", border_style="red"))
+
+
+def _fail_reason(result: CheckResult) -> str:
+    reasons = []
+    for name, check in result.checks.items():
+        if check.ran and not check.passed:
+            estimate = check.estimate
+            reasons.append(f"{name}: {estimate.failures:,} of {estimate.trials:,} strings have a "
+                           "device above its limit"
+                           + (f" ({check.unsolved} unsolved)" if check.unsolved else ""))
+    reasons += list(result.grading.rating_problems)
+    return "; ".join(reasons) if reasons else "see below"
+
+
+def _render_detail(name: str, check: SeriesCheck, console: Console) -> None:
+    console.print(Text(_TITLES.get(name, name), style="bold underline"))
+    single_branch = all(p.branch == 1 for p in check.positions)
+    ranked = sorted(check.positions, key=lambda p: p.max_voltage / p.limit, reverse=True)[:5]
+    table = Table(show_edge=False, pad_edge=False)
+    for column in ("position", "part", "mean V", "std V", "max V", "limit V", "max/limit",
+                   "over"):
+        table.add_column(column, justify="left" if column in ("position", "part") else "right")
+    for p in ranked:
+        label = f"#{p.index}" if single_branch else f"branch {p.branch} #{p.index}"
+        table.add_row(label, p.part, f"{p.mean_voltage:,.0f}",
+                      f"{p.std_voltage:,.1f}", f"{p.max_voltage:,.0f}", f"{p.limit:,.0f}",
+                      f"{p.max_voltage / p.limit:.3f}", f"{p.failures:,}")
+    console.print(Text("Most stressed positions:", style="italic"))
+    console.print(table)
+    if check.histogram:
+        console.print(Text("Worst device of each string, as a fraction of its limit:", style="italic"))
+        peak = max(count for _, _, count in check.histogram) or 1
+        for low, high, count in check.histogram:
+            bar = "#" * max(1 if count else 0, round(30 * count / peak))
+            marker = " <- over limit" if low >= 1.0 else ""
+            console.print(f"  {low:6.3f}-{high:6.3f} | {bar:<30} {count:>8,}{marker}")
+    console.print()
+
+
+def _render_network(result: CheckResult, console: Console) -> None:
+    grading = result.grading
+    console.print(Text("Grading network", style="bold underline"))
+    rows = []
+    if grading.resistor is not None:
+        rows.append(("resistor per stage", format_quantity(grading.resistor, "ohm")))
+        rows.append(("grading current at nominal share", format_quantity(grading.grading_current, "A")))
+        rows.append(("resistor power at worst static voltage (continuous)",
+                     format_quantity(grading.resistor_power_continuous, "W")))
+        rows.append((f"resistor power at worst static voltage ({result.design.duty.waveform} duty)",
+                     format_quantity(grading.resistor_power_duty, "W")
+                     + (f" (rated {format_quantity(grading.resistor_rated_power, 'W')})"
+                        if grading.resistor_rated_power else "")))
+        rows.append(("total grading loss at nominal share", format_quantity(grading.total_grading_loss, "W")))
+    rows.append(("worst stage voltage (static or dynamic)",
+                 format_quantity(grading.worst_resistor_voltage, "V")
+                 + (f" (resistor rated {format_quantity(grading.resistor_rated_voltage, 'V')})"
+                    if grading.resistor_rated_voltage else "")))
+    rows.append(("hottest device's maximum leakage", format_quantity(grading.hottest_max_leakage, "A")))
+    if grading.capacitor is not None:
+        rows.append(("capacitor per stage", format_quantity(grading.capacitor, "F")
+                     + (f" (rated {format_quantity(grading.capacitor_rated_voltage, 'V')})"
+                        if grading.capacitor_rated_voltage else "")))
+        rows.append(("damping resistor", format_quantity(grading.damping_resistor, "ohm")
+                     if grading.damping_resistor else "none"))
+        rows.append(("energy per capacitor at worst stage voltage", format_quantity(grading.stage_energy, "J")))
+    rows.append(("energy stored in the stack at nominal share", format_quantity(grading.total_energy, "J")))
+    rows.append(("time to fall below 60 V", "never (no bleed path)" if math.isinf(grading.discharge_time)
+                 else format_quantity(grading.discharge_time, "s")))
+    table = Table(show_header=False, show_edge=False, pad_edge=False)
+    table.add_column("item")
+    table.add_column("value", justify="right")
+    for row in rows:
+        table.add_row(*row)
+    console.print(table)
+    for problem in grading.rating_problems:
+        console.print(Text(f"  RATING EXCEEDED: {problem}", style="bold red"))
+    for advisory in grading.advisories:
+        console.print(Text(f"  advisory: {advisory}", style="yellow"))
+    console.print()
+
+
+def render_check_summary(result: CheckResult, console: Console) -> None:
+    """One line for ``--quiet``: the verdict and each check's P(fail) bound."""
+    parts = []
+    for name, check in result.checks.items():
+        if check.ran:
+            parts.append(f"{name} {'pass' if check.passed else 'FAIL'} "
+                         f"(P(fail) <= {check.estimate.ci_high:.2g})")
+        else:
+            parts.append(f"{name} not run")
+    console.print(f"{result.verdict}: " + ", ".join(parts), highlight=False)

@@ -1,0 +1,363 @@
+"""Static voltage sharing of a series diode string in the blocking state.
+
+Each stage of the string is a diode with its grading resistor in parallel. In steady blocking the
+same string current I flows through every stage, split between the resistor (G_k V_k) and the
+reverse leakage of the diode (c_k V_k^m_k). The stage voltages must add up to the string voltage.
+A device with low leakage takes more than its share of the voltage; the grading resistors
+limit that imbalance.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+__all__ = ["StaticSharing", "solve_static_sharing", "stage_voltage"]
+
+_EPSILON = np.finfo(float).eps
+_INNER_MAX_ITERATIONS = 100
+
+
+@dataclass(frozen=True)
+class StaticSharing:
+    """Stage voltages of a series string in steady blocking.
+
+    Attributes
+    ----------
+    voltages
+        Reverse voltage of each stage V_k [V], shape ``(..., n)``, summing to the string voltage
+        along the last axis.
+    string_current
+        Current I through every stage (resistor plus leakage) [A], shape ``...``.
+    converged
+        Whether the solution of each row met the tolerance, shape ``...`` (bool). Always true for
+        the closed form (all exponents 0).
+    iterations
+        Number of outer iterations used for the slowest row (0 for the closed form).
+    """
+
+    voltages: NDArray[np.float64]
+    string_current: NDArray[np.float64]
+    converged: NDArray[np.bool_]
+    iterations: int
+
+
+def stage_voltage(
+    string_current: ArrayLike,
+    conductance: ArrayLike,
+    leakage_current: ArrayLike,
+    *,
+    reference_voltage: ArrayLike,
+    voltage_exponent: ArrayLike,
+) -> NDArray[np.float64]:
+    """Voltage across one stage (diode with its grading resistor) that carries a given current.
+
+    Inverts I = G V + c V^m with c = I_R / V_ref^m.
+
+    Parameters
+    ----------
+    string_current
+        Current through the stage I [A], >= 0.
+    conductance
+        Conductance of the grading resistor G = 1 / R [S], >= 0 (0: no resistor); must be > 0
+        where the exponent is 0.
+    leakage_current
+        Leakage current I_R of the diode at ``reference_voltage`` (and at the operating junction
+        temperature) [A], >= 0.
+    reference_voltage
+        Reverse voltage at which ``leakage_current`` is given V_ref [V], > 0.
+    voltage_exponent
+        Exponent m of the leakage voltage law [-], in [0, 1].
+
+    Returns
+    -------
+    numpy.ndarray
+        Stage voltage V [V], broadcast shape of the inputs. Where m = 0 this is (I - c) / G, which
+        is negative when the leakage exceeds the current.
+
+    Notes
+    -----
+    m = 0 and m = 1 are linear and solved in closed form. For 0 < m < 1 the equation is solved
+    by Newton's method in u = ln V on g(u) = G e^u + c e^{m u} - I, a convex increasing function
+    of u. Newton's method started to the right of the root of a convex increasing function
+    converges monotonically, and V_0 = min(I / G, (I / c)^{1/m}) is such a start because either
+    term alone reaches I there.
+
+    References
+    ----------
+    .. [1] W. H. Press, S. A. Teukolsky, W. T. Vetterling and B. P. Flannery, *Numerical Recipes:
+       The Art of Scientific Computing*, 3rd ed., Cambridge University Press, 2007, section 9.4
+       (Newton-Raphson method using derivative).
+    .. [2] S. M. Sze and K. K. Ng, *Physics of Semiconductor Devices*, 3rd ed., Wiley, 2007,
+       chapter 2 (p-n junctions): generation current ~ depletion width ~ V^(1/2).
+    """
+    current = np.asarray(string_current, dtype=float)
+    conductance = np.asarray(conductance, dtype=float)
+    exponent = np.asarray(voltage_exponent, dtype=float)
+    coefficient = np.asarray(leakage_current, dtype=float) / np.power(
+        np.asarray(reference_voltage, dtype=float), exponent
+    )
+    shape = np.broadcast_shapes(current.shape, conductance.shape, coefficient.shape, exponent.shape)
+    return _stage_voltage(
+        np.broadcast_to(current, shape),
+        np.broadcast_to(conductance, shape),
+        np.broadcast_to(coefficient, shape),
+        np.broadcast_to(exponent, shape),
+    )
+
+
+def solve_static_sharing(
+    string_voltage: ArrayLike,
+    conductance: ArrayLike,
+    leakage_current: ArrayLike,
+    *,
+    reference_voltage: ArrayLike,
+    voltage_exponent: ArrayLike,
+    rtol: float = 1e-12,
+    max_iter: int = 200,
+) -> StaticSharing:
+    """Share the string voltage among series stages with grading resistors and leaky diodes.
+
+    Parameters
+    ----------
+    string_voltage
+        Reverse voltage across the whole string V_s [V], > 0; a scalar or shape ``...``.
+    conductance
+        Conductance of each stage's grading resistor G_k = 1 / R_k [S], shape ``(..., n)`` or
+        broadcastable to the other per-stage inputs, >= 0 (0: no resistor). Must be > 0 on every
+        stage whose exponent is 0.
+    leakage_current
+        Leakage current of each diode I_R,k at ``reference_voltage`` and at the operating
+        junction temperature (already scaled for temperature) [A], >= 0, shape ``(..., n)``.
+    reference_voltage
+        Reverse voltage at which ``leakage_current`` is given V_ref,k [V], > 0, broadcastable to
+        ``(..., n)``.
+    voltage_exponent
+        Exponent m_k of the leakage voltage law [-], in [0, 1], broadcastable to ``(..., n)``;
+        stages of different parts may differ.
+    rtol
+        Tolerance on the string equation: a row is solved when |sum_k V_k - V_s| <= rtol V_s.
+    max_iter
+        Largest number of outer iterations.
+
+    Returns
+    -------
+    StaticSharing
+        Stage voltages ``(..., n)`` [V], string current ``...`` [A], convergence flags ``...``
+        and the number of iterations.
+
+    Notes
+    -----
+    Each stage k carries the common string current I:
+
+    .. math::
+
+        G_k V_k + c_k V_k^{m_k} = I, \\qquad c_k = I_{R,k} / V_{\\mathrm{ref},k}^{m_k},
+        \\qquad \\sum_k V_k = V_s
+
+    *All exponents 0* (constant leakage) is linear and solved in closed form:
+
+    .. math:: I = \\frac{V_s + \\sum_k c_k / G_k}{\\sum_k 1 / G_k}, \\qquad V_k = (I - c_k) / G_k
+
+    The constant-current model can give V_k < 0 when one stage's leakage exceeds the string
+    current; a real diode cannot sustain its leakage without reverse voltage, so such a result
+    means the model does not apply (the resistors are far too small to matter, or far too large).
+
+    *Otherwise* each stage inverse V_k(I) (:func:`stage_voltage`) is increasing and convex in I
+    (the inverse of the increasing concave G V + c V^m), so F(I) = sum_k V_k(I) - V_s is too.
+    F is solved per row by Newton's method from I_0 = max_k (G_k V_s + c_k V_s^{m_k}), where every
+    stage alone would take at least V_s, so F(I_0) >= 0: from the right of the root of a convex
+    increasing function Newton's method converges monotonically. A bracket [lo, hi] with
+    F(lo) <= 0 <= F(hi) (lo starts at I = 0, where F <= -V_s) guards every step; a step that
+    would leave it is replaced by bisection. All rows iterate together under a mask of the
+    unconverged ones. A row is also taken as converged when the Newton step falls below the
+    floating-point resolution of I (the best answer a double can represent).
+
+    For n equal resistors R, one device at the minimum leakage and n - 1 at a leakage larger by
+    dI_R (m = 0), the low-leakage device takes V_DM when
+
+    .. math:: R = (n V_{DM} - V_s) / ((n - 1) \\, \\Delta I_R)
+
+    the textbook worst-case rule for static equalisation [1]_.
+
+    References
+    ----------
+    .. [1] M. H. Rashid, *Power Electronics: Circuits, Devices and Applications*, 3rd ed.,
+       Pearson Prentice Hall, 2004, chapter 2 (power semiconductor diodes), series-connected
+       diodes: steady-state voltage sharing with shunt resistors.
+    .. [2] W. H. Press, S. A. Teukolsky, W. T. Vetterling and B. P. Flannery, *Numerical Recipes:
+       The Art of Scientific Computing*, 3rd ed., Cambridge University Press, 2007, section 9.4
+       (Newton-Raphson method using derivative; safeguarded with bisection).
+    """
+    voltage = np.asarray(string_voltage, dtype=float)
+    conductance = np.asarray(conductance, dtype=float)
+    leakage = np.asarray(leakage_current, dtype=float)
+    reference = np.asarray(reference_voltage, dtype=float)
+    exponent = np.asarray(voltage_exponent, dtype=float)
+
+    stage_shape = np.broadcast_shapes(
+        conductance.shape, leakage.shape, reference.shape, exponent.shape
+    )
+    count = stage_shape[-1]
+    leading = np.broadcast_shapes(stage_shape[:-1], voltage.shape)
+    rows = int(np.prod(leading, dtype=int))
+
+    def per_stage(array: NDArray[np.float64]) -> NDArray[np.float64]:
+        return np.broadcast_to(array, leading + (count,)).reshape(rows, count)
+
+    conductance = per_stage(conductance)
+    exponent = per_stage(exponent)
+    coefficient = per_stage(leakage) / np.power(per_stage(reference), exponent)
+    voltage = np.broadcast_to(voltage, leading).reshape(rows)
+
+    if np.all(exponent == 0.0):
+        voltages, current = _constant_leakage(voltage, conductance, coefficient)
+        converged = np.ones(rows, dtype=bool)
+        iterations = 0
+    else:
+        voltages, current, converged, iterations = _iterate(
+            voltage, conductance, coefficient, exponent, rtol=rtol, max_iter=max_iter
+        )
+    return StaticSharing(
+        voltages=voltages.reshape(leading + (count,)),
+        string_current=current.reshape(leading),
+        converged=converged.reshape(leading),
+        iterations=iterations,
+    )
+
+
+def _constant_leakage(
+    voltage: NDArray[np.float64],
+    conductance: NDArray[np.float64],
+    coefficient: NDArray[np.float64],
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Closed form for m = 0 on every stage; rows on axis 0, stages on axis 1."""
+    with np.errstate(divide="ignore"):
+        resistance = 1.0 / conductance
+    current = (voltage + np.sum(coefficient * resistance, axis=-1)) / np.sum(resistance, axis=-1)
+    return resistance * (current[:, None] - coefficient), current
+
+
+def _iterate(
+    voltage: NDArray[np.float64],
+    conductance: NDArray[np.float64],
+    coefficient: NDArray[np.float64],
+    exponent: NDArray[np.float64],
+    *,
+    rtol: float,
+    max_iter: int,
+) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.bool_], int]:
+    """Safeguarded Newton on sum_k V_k(I) = V_s, all rows at once; rows on axis 0."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        start = np.max(
+            conductance * voltage[:, None] + coefficient * np.power(voltage[:, None], exponent),
+            axis=-1,
+        )
+    current = start
+    lower = np.zeros_like(current)
+    upper = current.copy()
+    voltages = _stage_voltage(current[:, None], conductance, coefficient, exponent)
+    residual = np.sum(voltages, axis=-1) - voltage
+    converged = np.abs(residual) <= rtol * voltage
+    active = ~converged & np.isfinite(residual)
+    iterations = 0
+
+    for iteration in range(1, max_iter + 1):
+        rows = np.flatnonzero(active)
+        if rows.size == 0:
+            break
+        iterations = iteration
+        row_current = current[rows]
+        slope = np.sum(
+            _stage_slope(voltages[rows], conductance[rows], coefficient[rows], exponent[rows]),
+            axis=-1,
+        )
+        step = residual[rows] / slope
+        stalled = np.abs(step) <= 4.0 * _EPSILON * np.abs(row_current)
+        candidate = row_current - step
+        outside = ~((candidate > lower[rows]) & (candidate < upper[rows]))
+        candidate = np.where(outside, 0.5 * (lower[rows] + upper[rows]), candidate)
+        candidate = np.where(stalled, row_current, candidate)
+
+        new_voltages = _stage_voltage(
+            candidate[:, None], conductance[rows], coefficient[rows], exponent[rows]
+        )
+        new_residual = np.sum(new_voltages, axis=-1) - voltage[rows]
+        current[rows] = candidate
+        voltages[rows] = new_voltages
+        residual[rows] = new_residual
+        upper[rows] = np.where(new_residual > 0.0, candidate, upper[rows])
+        lower[rows] = np.where(new_residual <= 0.0, candidate, lower[rows])
+        done = stalled | (np.abs(new_residual) <= rtol * voltage[rows])
+        converged[rows] = done
+        active[rows] = ~done & np.isfinite(new_residual)
+    return voltages, current, converged, iterations
+
+
+def _stage_slope(
+    voltages: NDArray[np.float64],
+    conductance: NDArray[np.float64],
+    coefficient: NDArray[np.float64],
+    exponent: NDArray[np.float64],
+) -> NDArray[np.float64]:
+    """dV/dI of each stage, 1 / (G + m c V^(m-1)); 0 at V = 0 when 0 < m < 1."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        leakage_slope = np.where(
+            exponent == 0.0, 0.0, exponent * coefficient * np.power(voltages, exponent - 1.0)
+        )
+        return 1.0 / (conductance + leakage_slope)
+
+
+def _stage_voltage(
+    current: NDArray[np.float64],
+    conductance: NDArray[np.float64],
+    coefficient: NDArray[np.float64],
+    exponent: NDArray[np.float64],
+) -> NDArray[np.float64]:
+    """Inverse of I = G V + c V^m elementwise (inputs broadcast against each other)."""
+    current, conductance, coefficient, exponent = np.broadcast_arrays(
+        current, conductance, coefficient, exponent
+    )
+    with np.errstate(divide="ignore", invalid="ignore"):
+        result = np.where(
+            exponent == 0.0,
+            (current - coefficient) / conductance,
+            current / (conductance + coefficient),
+        )
+    power_law = ~((exponent == 0.0) | (exponent == 1.0))
+    if np.any(power_law):
+        result[power_law] = _power_law_inverse(
+            current[power_law], conductance[power_law], coefficient[power_law], exponent[power_law]
+        )
+    return result
+
+
+def _power_law_inverse(
+    current: NDArray[np.float64],
+    conductance: NDArray[np.float64],
+    coefficient: NDArray[np.float64],
+    exponent: NDArray[np.float64],
+) -> NDArray[np.float64]:
+    """Newton in u = ln V on G e^u + c e^(m u) = I for 0 < m < 1 (1-D arrays)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_current = np.log(current)
+        log_voltage = np.minimum(
+            log_current - np.log(conductance), (log_current - np.log(coefficient)) / exponent
+        )
+    # I = 0 gives u = -inf (V = 0), exactly the root; NaN stays NaN.
+    active = np.flatnonzero(np.isfinite(log_voltage))
+    for _ in range(_INNER_MAX_ITERATIONS):
+        if active.size == 0:
+            break
+        u = log_voltage[active]
+        resistor_part = conductance[active] * np.exp(u)
+        leakage_part = coefficient[active] * np.exp(exponent[active] * u)
+        step = (resistor_part + leakage_part - current[active]) / (
+            resistor_part + exponent[active] * leakage_part
+        )
+        log_voltage[active] = u - step
+        # Monotone from the right: the step is positive until rounding takes over.
+        active = active[step > 4.0 * _EPSILON * np.maximum(1.0, np.abs(u))]
+    return np.exp(log_voltage)

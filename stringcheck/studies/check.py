@@ -1,0 +1,479 @@
+"""The series string check: draw built strings, solve static and dynamic sharing, count failures.
+
+A trial is one built string (all its branches). A trial fails a check when any device of it exceeds
+``derating x V_RRM`` of its part, or when the solver could not solve it (counted and reported, never
+dropped). Results are plain dataclasses; nothing here formats text.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from typing import Callable, Mapping
+
+import numpy as np
+
+from ..design import Design, Part, Spread
+from ..errors import DesignError
+from ..physics.grading import discharge_time, resistor_power, stored_energy
+from ..physics.leakage import leakage_current
+from ..physics.recovery import recovery_charge
+from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
+from ..solvers.series_dynamic import solve_dynamic_sharing
+from ..solvers.series_static import solve_static_sharing
+from ..stats import FailureEstimate, failure_estimate, histogram_counts
+
+# A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
+# in the trial count.
+_CHUNK_ELEMENTS = 1_000_000
+# Grading current below this multiple of the hottest maximum leakage draws an advisory (common
+# practice: "several times" the leakage; 5x is our threshold for saying so).
+GRADING_CURRENT_MULTIPLE = 5.0
+# Residual-voltage threshold and time: 60 V DC (IEC 61010-1 hazardous-live level) within 5 s
+# (IEC 60204-1 clause 6.2.4).
+SAFE_VOLTAGE = 60.0
+SAFE_DISCHARGE_TIME = 5.0
+RESISTOR_TCR_REFERENCE = 25.0  # [degC]; resistor TCR is specified from 25 degC (common practice)
+
+ProgressCallback = Callable[[int, int], None]
+
+
+@dataclass(frozen=True)
+class PositionStatistics:
+    """Statistics of one device position over all trials [V]."""
+
+    branch: int
+    index: int
+    part: str
+    limit: float
+    mean_voltage: float
+    std_voltage: float
+    max_voltage: float
+    failures: int
+
+
+@dataclass(frozen=True)
+class SeriesCheck:
+    """The outcome of one check (static or dynamic) over the whole run."""
+
+    name: str
+    ran: bool
+    reason: str
+    passed: bool
+    worst_voltage: float
+    worst_ratio: float
+    p50_ratio: float
+    p99_ratio: float
+    estimate: FailureEstimate | None
+    unsolved: int
+    worst_trial: int
+    worst_string: np.ndarray
+    positions: tuple[PositionStatistics, ...]
+    histogram: tuple[tuple[float, float, int], ...]
+
+
+@dataclass(frozen=True)
+class GradingSummary:
+    """What the grading network must withstand, from nominal values and the worst drawn voltages."""
+
+    resistor: float | None
+    capacitor: float | None
+    damping_resistor: float | None
+    worst_resistor_voltage: float
+    resistor_power_continuous: float | None
+    resistor_power_duty: float | None
+    resistor_rated_power: float | None
+    resistor_rated_voltage: float | None
+    total_grading_loss: float | None
+    worst_capacitor_voltage: float
+    capacitor_rated_voltage: float | None
+    stage_energy: float | None
+    total_energy: float | None
+    discharge_time: float
+    grading_current: float | None
+    hottest_max_leakage: float
+    rating_problems: tuple[str, ...]
+    advisories: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class CheckResult:
+    """Everything ``stringcheck check`` found."""
+
+    design: Design
+    trials: int
+    seed: int
+    checks: Mapping[str, SeriesCheck]
+    grading: GradingSummary
+    verdict: str
+    impossible: str | None
+    assumptions: tuple[str, ...]
+    no_scatter: tuple[str, ...]
+
+
+@dataclass
+class _Accumulator:
+    """Running per-position sums of one check, merged chunk by chunk (memory flat in trials)."""
+
+    shape: tuple[int, int]
+    limits: np.ndarray
+    count: int = 0
+    total: np.ndarray = field(init=False)
+    total_squares: np.ndarray = field(init=False)
+    maximum: np.ndarray = field(init=False)
+    failures_by_position: np.ndarray = field(init=False)
+    worst_ratios: list = field(default_factory=list)
+    unsolved: int = 0
+    worst_ratio: float = -np.inf
+    worst_trial: int = -1
+    worst_string: np.ndarray | None = None
+
+    def __post_init__(self) -> None:
+        self.total = np.zeros(self.shape)
+        self.total_squares = np.zeros(self.shape)
+        self.maximum = np.full(self.shape, -np.inf)
+        self.failures_by_position = np.zeros(self.shape, dtype=np.int64)
+
+    def add(self, voltages: np.ndarray, solved: np.ndarray, first_trial: int) -> None:
+        solved = solved & np.all(np.isfinite(voltages), axis=(1, 2))
+        ratio = voltages / self.limits
+        trial_ratio = np.where(solved, np.max(ratio, axis=(1, 2)), np.inf)
+        self.unsolved += int(np.count_nonzero(~solved))
+        good = voltages[solved]
+        # Sums are shifted by the limit to keep the variance sum well conditioned.
+        shifted = good - self.limits
+        self.total += shifted.sum(axis=0)
+        self.total_squares += np.square(shifted).sum(axis=0)
+        self.count += good.shape[0]
+        if good.shape[0]:
+            self.maximum = np.maximum(self.maximum, good.max(axis=0))
+        self.failures_by_position += np.count_nonzero(ratio > 1.0, axis=0)
+        self.worst_ratios.append(trial_ratio)
+        best = int(np.argmax(trial_ratio))
+        if trial_ratio[best] > self.worst_ratio:
+            self.worst_ratio = float(trial_ratio[best])
+            self.worst_trial = first_trial + best
+            self.worst_string = voltages[best].copy()
+
+
+def run_check(design: Design, *, trials: int | None = None, seed: int | None = None,
+              chunk_trials: int | None = None,
+              progress: ProgressCallback | None = None) -> CheckResult:
+    """Run the series check of ``design`` (static sharing always, dynamic when there is a turn-off).
+
+    Parameters
+    ----------
+    design
+        A validated design.
+    trials, seed
+        Override the design's Monte Carlo settings.
+    chunk_trials
+        Trials per chunk (rounded to whole sampling blocks); the result does not depend on it.
+    progress
+        Called with (trials done, trials in all) after each chunk.
+    """
+    trials = design.monte_carlo.trials if trials is None else trials
+    seed = design.monte_carlo.seed if seed is None else seed
+    if trials < 1:
+        raise DesignError(f"--trials must be at least 1, got {trials}", key="monte_carlo.trials")
+    design = _with_recovery_charge(design)
+    layout = design.string
+    shape = (layout.parallel, layout.series)
+    grid = layout.part_grid()
+    parts = [design.parts[name] for name in grid.ravel()]
+
+    def per_position(attribute: Callable[[Part], float]) -> np.ndarray:
+        return np.array([attribute(part) for part in parts], dtype=float).reshape(shape)
+
+    limits = layout.derating * per_position(lambda p: p.v_rrm)
+    temperature = design.duty.ambient + layout.temperature_rise_grid()
+    reference_voltage = per_position(lambda p: p.i_r.at_voltage)
+    reference_temperature = per_position(lambda p: p.i_r.at_temperature)
+    doubling = per_position(lambda p: p.leakage_doubling)
+    exponent = per_position(lambda p: p.leakage_voltage_exponent)
+    junction_capacitance = per_position(lambda p: p.c_j)
+
+    dynamic_reason = _dynamic_reason(design)
+    run_dynamic = dynamic_reason == ""
+    parameters = ("i_r", "q_rr") if run_dynamic else ("i_r",)
+    static = _Accumulator(shape, limits)
+    dynamic = _Accumulator(shape, limits) if run_dynamic else None
+
+    if chunk_trials is None:
+        chunk_trials = max(BLOCK_TRIALS, _CHUNK_ELEMENTS // (layout.series * layout.parallel))
+    done = 0
+    for first, count in chunk_bounds(trials, chunk_trials):
+        drawn = draw_strings(design, parameters, first, count, seed=seed)
+        _static_chunk(design, drawn, static, temperature, reference_voltage, reference_temperature,
+                      doubling, exponent)
+        if dynamic is not None:
+            _dynamic_chunk(design, drawn, dynamic, junction_capacitance)
+        done += count
+        if progress is not None:
+            progress(done, trials)
+
+    confidence = design.monte_carlo.confidence
+    checks = {"static": _finish("static", static, grid, confidence, trials)}
+    if dynamic is not None:
+        checks["dynamic"] = _finish("dynamic", dynamic, grid, confidence, trials)
+    else:
+        checks["dynamic"] = _not_run("dynamic", dynamic_reason)
+
+    impossible = _impossibility(design, limits)
+    grading = _grading_summary(design, checks, temperature, reference_voltage, reference_temperature,
+                               doubling, exponent, junction_capacitance)
+    passed = all(check.passed for check in checks.values() if check.ran)
+    verdict = "pass" if passed and impossible is None and not grading.rating_problems else "fail"
+    return CheckResult(design=design, trials=trials, seed=seed, checks=checks, grading=grading,
+                       verdict=verdict, impossible=impossible,
+                       assumptions=design.assumptions + _model_assumptions(design, run_dynamic),
+                       no_scatter=_no_scatter(design, parameters))
+
+
+def _static_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulator,
+                  temperature: np.ndarray, reference_voltage: np.ndarray,
+                  reference_temperature: np.ndarray, doubling: np.ndarray,
+                  exponent: np.ndarray) -> None:
+    leakage = leakage_current(drawn.parameters["i_r"], reference_voltage, temperature,
+                              reference_voltage=reference_voltage,
+                              reference_temperature=reference_temperature,
+                              doubling_temperature=doubling, voltage_exponent=exponent)
+    conductance = _grading_conductance(design, drawn, temperature)
+    solution = solve_static_sharing(design.duty.reverse_voltage, conductance, leakage,
+                                    reference_voltage=reference_voltage, voltage_exponent=exponent)
+    converged = np.asarray(solution.converged).reshape(solution.voltages.shape[0], -1).all(axis=1)
+    accumulator.add(solution.voltages, converged, drawn.first_trial)
+
+
+def _grading_conductance(design: Design, drawn: DrawnStrings, temperature: np.ndarray) -> np.ndarray:
+    if drawn.resistance is None:
+        return np.zeros_like(drawn.parameters["i_r"])
+    tcr = design.grading.resistor_tcr
+    resistance = drawn.resistance * (1.0 + tcr * (temperature - RESISTOR_TCR_REFERENCE))
+    return 1.0 / resistance
+
+
+def _dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulator,
+                   junction_capacitance: np.ndarray) -> None:
+    capacitance = junction_capacitance if drawn.capacitance is None else \
+        drawn.capacitance + junction_capacitance
+    capacitance = np.broadcast_to(capacitance, drawn.parameters["q_rr"].shape)
+    solution = solve_dynamic_sharing(design.duty.reverse_voltage, drawn.parameters["q_rr"],
+                                     capacitance)
+    solved = np.ones(solution.voltages.shape[0], dtype=bool)
+    accumulator.add(solution.voltages, solved, drawn.first_trial)
+
+
+def _finish(name: str, accumulator: _Accumulator, grid: np.ndarray, confidence: float,
+            trials: int) -> SeriesCheck:
+    ratios = np.concatenate(accumulator.worst_ratios)
+    failures = int(np.count_nonzero(~(ratios <= 1.0)))
+    estimate = failure_estimate(failures, trials, confidence=confidence)
+    count = max(accumulator.count, 1)
+    mean_shift = accumulator.total / count
+    variance = np.maximum(accumulator.total_squares / count - mean_shift ** 2, 0.0)
+    if accumulator.count > 1:
+        variance *= accumulator.count / (accumulator.count - 1)
+    mean = mean_shift + accumulator.limits
+    positions = []
+    for branch in range(grid.shape[0]):
+        for index in range(grid.shape[1]):
+            positions.append(PositionStatistics(
+                branch=branch + 1, index=index + 1, part=str(grid[branch, index]),
+                limit=float(accumulator.limits[branch, index]),
+                mean_voltage=float(mean[branch, index]),
+                std_voltage=float(np.sqrt(variance[branch, index])),
+                max_voltage=float(accumulator.maximum[branch, index]),
+                failures=int(accumulator.failures_by_position[branch, index])))
+    finite = ratios[np.isfinite(ratios)]
+    worst_string = accumulator.worst_string if accumulator.worst_string is not None else \
+        np.full(grid.shape, np.nan)
+    return SeriesCheck(
+        name=name, ran=True, reason="", passed=failures == 0,
+        worst_voltage=float(np.max(accumulator.maximum)) if accumulator.count else float("nan"),
+        worst_ratio=float(np.max(ratios)),
+        p50_ratio=float(np.percentile(finite, 50)) if finite.size else float("nan"),
+        p99_ratio=float(np.percentile(finite, 99)) if finite.size else float("nan"),
+        estimate=estimate, unsolved=accumulator.unsolved, worst_trial=accumulator.worst_trial,
+        worst_string=worst_string, positions=tuple(positions),
+        histogram=tuple(histogram_counts(finite, bins=12)) if finite.size else ())
+
+
+def _not_run(name: str, reason: str) -> SeriesCheck:
+    return SeriesCheck(name=name, ran=False, reason=reason, passed=False, worst_voltage=float("nan"),
+                       worst_ratio=float("nan"), p50_ratio=float("nan"), p99_ratio=float("nan"),
+                       estimate=None, unsolved=0, worst_trial=-1, worst_string=np.empty((0, 0)),
+                       positions=(), histogram=())
+
+
+def _dynamic_reason(design: Design) -> str:
+    """Why the dynamic check cannot run ("" when it can)."""
+    if design.duty.waveform == "dc" and design.duty.di_dt is None:
+        return ("dc duty with no turn-off: give duty.di_dt (or an ac waveform) to check the "
+                "voltage sharing at turn-off")
+    if design.grading.capacitor is None:
+        bare = [name for name in design.parts_used() if design.parts[name].c_j <= 0]
+        if bare:
+            raise DesignError(
+                "the dynamic check needs capacitance at every stage: give grading.capacitor, or "
+                f"the junction capacitance c_j of part(s) {', '.join(bare)}",
+                source=design.source, key="grading.capacitor")
+    return ""
+
+
+def _with_recovery_charge(design: Design) -> Design:
+    """Fill in Q_rr from I_RM and t_rr (Q_rr = 1/2 I_RM t_rr) where a part gives those but not Q_rr."""
+    if _dynamic_reason(design):
+        return design
+    parts = dict(design.parts)
+    notes = []
+    for name in design.parts_used():
+        part = parts[name]
+        if part.q_rr is not None:
+            continue
+        if part.i_rm is None or part.t_rr is None:
+            raise DesignError("missing; the dynamic check needs the recovery charge, or both i_rm "
+                              "and t_rr to derive it", source=design.source,
+                              key=f"parts.{name}.q_rr")
+        typ = float(recovery_charge(part.i_rm.typ, part.t_rr.typ))
+        high = None
+        if part.i_rm.high is not None or part.t_rr.high is not None:
+            high = float(recovery_charge(part.i_rm.high or part.i_rm.typ,
+                                         part.t_rr.high or part.t_rr.typ))
+        parts[name] = replace(part, q_rr=Spread(typ=typ, high=high, at_di_dt=part.i_rm.at_di_dt,
+                                                typ_assumed=True))
+        notes.append(f"parts.{name}.q_rr derived as 1/2 I_RM t_rr from i_rm and t_rr "
+                     "(max from the product of maxima: conservative)")
+    if not notes:
+        return design
+    return replace(design, parts=parts, assumptions=design.assumptions + tuple(notes))
+
+
+def _impossibility(design: Design, limits: np.ndarray) -> str | None:
+    capacity = limits.sum(axis=1)
+    weakest = float(capacity.min())
+    if design.duty.reverse_voltage > weakest:
+        layout = design.string
+        return (f"the string cannot hold {design.duty.reverse_voltage:g} V even with perfect "
+                f"sharing: the sum of derating x V_RRM over the {layout.series} devices of a branch "
+                f"is {weakest:g} V (derating {layout.derating:g})")
+    return None
+
+
+def _grading_summary(design: Design, checks: Mapping[str, SeriesCheck], temperature: np.ndarray,
+                     reference_voltage: np.ndarray, reference_temperature: np.ndarray,
+                     doubling: np.ndarray, exponent: np.ndarray,
+                     junction_capacitance: np.ndarray) -> GradingSummary:
+    grading = design.grading
+    layout = design.string
+    stage_count = layout.series * layout.parallel
+    nominal_share = design.duty.reverse_voltage / layout.series
+    static_worst = checks["static"].worst_voltage
+    dynamic_worst = checks["dynamic"].worst_voltage if checks["dynamic"].ran else float("nan")
+    worst_any = float(np.nanmax([static_worst, dynamic_worst]))
+    problems, advisories = [], []
+
+    power_continuous = power_duty = total_loss = grading_current = None
+    if grading.resistor is not None:
+        power_continuous = float(resistor_power(static_worst, grading.resistor, waveform="dc"))
+        power_duty = float(resistor_power(static_worst, grading.resistor, waveform=design.duty.waveform))
+        total_loss = float(stage_count * resistor_power(nominal_share, grading.resistor,
+                                                        waveform=design.duty.waveform))
+        grading_current = nominal_share / grading.resistor
+        if grading.resistor_rated_power is not None and power_duty > grading.resistor_rated_power:
+            problems.append(f"grading resistor dissipates {power_duty:.3g} W at the worst static "
+                            f"voltage, above its rating of {grading.resistor_rated_power:.3g} W")
+        if grading.resistor_rated_voltage is not None and worst_any > grading.resistor_rated_voltage:
+            problems.append(f"grading resistor sees {worst_any:.4g} V at worst, above its working-"
+                            f"voltage rating of {grading.resistor_rated_voltage:.4g} V")
+        if grading.resistor_rated_power is None:
+            advisories.append("grading.resistor_rated_power not given: resistor power not checked")
+        if grading.resistor_rated_voltage is None:
+            advisories.append("grading.resistor_rated_voltage not given: resistor working voltage "
+                              "not checked")
+
+    hottest_leakage = 0.0
+    grid = layout.part_grid()
+    for branch in range(layout.parallel):
+        for index in range(layout.series):
+            part = design.parts[grid[branch, index]]
+            spread = part.i_r
+            maximum = spread.high if spread.high is not None else spread.typ
+            value = float(leakage_current(maximum, reference_voltage[branch, index],
+                                          temperature[branch, index],
+                                          reference_voltage=reference_voltage[branch, index],
+                                          reference_temperature=reference_temperature[branch, index],
+                                          doubling_temperature=doubling[branch, index],
+                                          voltage_exponent=exponent[branch, index]))
+            hottest_leakage = max(hottest_leakage, value)
+    if grading_current is not None and grading_current < GRADING_CURRENT_MULTIPLE * hottest_leakage:
+        advisories.append(
+            f"grading current {grading_current * 1e6:.3g} uA is less than "
+            f"{GRADING_CURRENT_MULTIPLE:g} x the hottest maximum leakage "
+            f"({hottest_leakage * 1e6:.3g} uA); several times is common practice")
+    if grading.resistor is None:
+        advisories.append("no grading resistors: static sharing rests on the leakage alone and the "
+                          "stack has no bleed path for stored charge")
+
+    stage_energy = total_energy = None
+    capacitance = junction_capacitance + (grading.capacitor or 0.0)
+    if grading.capacitor is not None:
+        stage_energy = float(stored_energy(grading.capacitor, worst_any))
+        if grading.capacitor_rated_voltage is not None and worst_any > grading.capacitor_rated_voltage:
+            problems.append(f"grading capacitor sees {worst_any:.4g} V at worst, above its rating of "
+                            f"{grading.capacitor_rated_voltage:.4g} V")
+        if grading.capacitor_rated_voltage is None:
+            advisories.append("grading.capacitor_rated_voltage not given: capacitor voltage not "
+                              "checked")
+        if grading.damping_resistor is None:
+            advisories.append("grading.damping_resistor not given: an undamped grading capacitor "
+                              "rings with the stray inductance and discharges into the device at "
+                              "turn-on")
+    total_energy = float(np.sum(stored_energy(capacitance, nominal_share)))
+    resistances = np.full(layout.series, np.inf if grading.resistor is None else grading.resistor)
+    time = float(np.max([discharge_time(np.full(layout.series, nominal_share), resistances,
+                                        capacitance[branch]) for branch in range(layout.parallel)]))
+    if time > SAFE_DISCHARGE_TIME:
+        advisories.append(f"the stack takes {time:.3g} s to fall below {SAFE_VOLTAGE:g} V through "
+                          f"its grading resistors, longer than the {SAFE_DISCHARGE_TIME:g} s of "
+                          "IEC 60204-1 clause 6.2.4: provide a discharge device or earthing stick")
+    return GradingSummary(
+        resistor=grading.resistor, capacitor=grading.capacitor,
+        damping_resistor=grading.damping_resistor, worst_resistor_voltage=worst_any,
+        resistor_power_continuous=power_continuous, resistor_power_duty=power_duty,
+        resistor_rated_power=grading.resistor_rated_power,
+        resistor_rated_voltage=grading.resistor_rated_voltage, total_grading_loss=total_loss,
+        worst_capacitor_voltage=worst_any, capacitor_rated_voltage=grading.capacitor_rated_voltage,
+        stage_energy=stage_energy, total_energy=total_energy, discharge_time=time,
+        grading_current=grading_current, hottest_max_leakage=hottest_leakage,
+        rating_problems=tuple(problems), advisories=tuple(advisories))
+
+
+def _model_assumptions(design: Design, dynamic: bool) -> tuple[str, ...]:
+    notes = [
+        "static: the peak reverse voltage is held as dc; at line frequency the grading capacitors "
+        "also share the voltage, which this check does not credit",
+        "junction temperature = ambient + the position's temperature_rise (no self-heating); "
+        "leakage referred from its datasheet temperature with the part's doubling temperature",
+        f"grading resistor TCR referred to {RESISTOR_TCR_REFERENCE:g} degC, resistor at its "
+        "diode's temperature",
+    ]
+    if dynamic:
+        notes.append("dynamic: Q_rr taken at the datasheet's test conditions, not rescaled to the "
+                     "application's di/dt, forward current and junction temperature; the whole "
+                     "string voltage is assumed to appear after recovery (hard commutation)")
+    return tuple(notes)
+
+
+def _no_scatter(design: Design, parameters: tuple[str, ...]) -> tuple[str, ...]:
+    notes = []
+    for name in design.parts_used():
+        for parameter in parameters:
+            spread = design.parts[name].spread(parameter)
+            if spread is not None and spread.fixed:
+                notes.append(f"parts.{name}.{parameter}")
+    grading = design.grading
+    if grading.resistor is not None and grading.resistor_tolerance == 0:
+        notes.append("grading.resistor (no tolerance given)")
+    if grading.capacitor is not None and grading.capacitor_tolerance == 0:
+        notes.append("grading.capacitor (no tolerance given)")
+    return tuple(notes)
