@@ -6,7 +6,8 @@ nearest member of a series, steps along a series across decades, and picks the l
 smallest capacitor that still meets a bound once the component's tolerance is allowed for.
 
 The tables are written out literally, as the decade mantissas in [1, 10) that IEC 60063:2015 lists
-(Table 1 for E6, E12 and E24 with two significant figures; Table 2 for E48, E96 and E192 with three).
+(Table 1 for E6, E12 and E24 with two significant figures; Table 2 for E48, E96 and E192 with
+three).
 They were written from memory of the standard's tables, and the tests cross-check every member
 against the independent PyPI ``eseries`` package. The tables, not the geometric formula, are the
 truth: the rounded values of 10^(i/N) differ from the standardised E24 values at 2.7, 3.0, 3.3, 3.6,
@@ -460,7 +461,9 @@ def values_between(low: float, high: float, series: str) -> NDArray[np.float64]:
     if low_array.ndim or high_array.ndim:
         raise SizingError("values_between takes scalar ends low and high")
     if low_array > high_array:
-        raise SizingError(f"low ({float(low_array)!r}) must not exceed high ({float(high_array)!r})")
+        raise SizingError(
+            f"low ({float(low_array)!r}) must not exceed high ({float(high_array)!r})"
+        )
     first = int(_ceiling_index(prepared, low_array))
     last = int(_floor_index(prepared, high_array))
     return _member(prepared, np.arange(first, last + 1, dtype=np.int64))

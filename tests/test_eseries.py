@@ -113,11 +113,14 @@ def test_e24_departs_from_geometric_formula_at_known_values():
 
 @pytest.mark.parametrize("name", ["E48", "E96", "E192"])
 def test_three_figure_series_follow_formula_except_920(name):
-    # IEC 60063:2015, Table 2: 10^(i/N) rounded to three figures, except 9.20 in E192 (formula 9.19).
+    # IEC 60063:2015, Table 2: 10^(i/N) rounded to three figures, except 9.20 in E192
+    # (the formula gives 9.19).
     count = int(name[1:])
     formula = np.round(10.0 ** (np.arange(count) / count), 2)
     table = np.array(eseries.series_values(name))
-    differs = [(float(f), float(t)) for f, t in zip(formula, table, strict=True) if abs(f - t) > 1e-9]
+    differs = [
+        (float(f), float(t)) for f, t in zip(formula, table, strict=True) if abs(f - t) > 1e-9
+    ]
     assert differs == ([(9.19, 9.20)] if name == "E192" else [])
 
 
@@ -177,7 +180,11 @@ def test_every_member_over_thirty_decades_rounds_to_itself():
     # Each member typed as text ("4.7e-9") is found by all three roundings and by is_preferred.
     for name in eseries.SERIES_NAMES:
         values = np.array(
-            [float(f"{mantissa}e{exponent}") for exponent in range(-15, 16) for mantissa in _table(name)]
+            [
+                float(f"{mantissa}e{exponent}")
+                for exponent in range(-15, 16)
+                for mantissa in _table(name)
+            ]
         )
         np.testing.assert_array_equal(eseries.round_down(values, name), values)
         np.testing.assert_array_equal(eseries.round_up(values, name), values)
@@ -229,7 +236,9 @@ def test_step_refuses_values_off_the_series():
 
 def test_values_between_matches_pypi_erange():
     mine = eseries.values_between(1e3, 1e4, "E12")
-    expected = [1.0e3, 1.2e3, 1.5e3, 1.8e3, 2.2e3, 2.7e3, 3.3e3, 3.9e3, 4.7e3, 5.6e3, 6.8e3, 8.2e3, 1e4]
+    expected = [
+        1.0e3, 1.2e3, 1.5e3, 1.8e3, 2.2e3, 2.7e3, 3.3e3, 3.9e3, 4.7e3, 5.6e3, 6.8e3, 8.2e3, 1e4
+    ]  # fmt: skip
     np.testing.assert_array_equal(mine, expected)
     for name in eseries.SERIES_NAMES:
         low, high = 3.3e-10, 2.2e-7
