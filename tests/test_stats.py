@@ -1,0 +1,354 @@
+"""Tests of stringcheck.stats against scipy, closed forms and simulation."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from hypothesis.extra import numpy as hnp
+from scipy import stats as scipy_stats
+
+from stringcheck import stats
+from stringcheck.errors import StringcheckError
+
+
+# --- Clopper-Pearson -----------------------------------------------------------------------------
+COUNT_PAIRS = [
+    (k, n)
+    for n in (1, 2, 5, 10, 37, 100, 1000, 12345)
+    for k in sorted({0, 1, 2, n // 3, n // 2, n - 1, n})
+    if k <= n
+]
+
+
+@pytest.mark.parametrize("confidence", [0.8, 0.9, 0.95, 0.99])
+def test_clopper_pearson_matches_scipy_binomtest(confidence):
+    # scipy.stats.binomtest(k, n).proportion_ci(method="exact") is scipy's own Clopper-Pearson,
+    # found by a root finder on the binomial tail; it agrees to about 2e-8 relative, hence 1e-7.
+    for k, n in COUNT_PAIRS:
+        expected = scipy_stats.binomtest(k, n).proportion_ci(
+            confidence_level=confidence, method="exact"
+        )
+        low, high = stats.clopper_pearson(k, n, confidence=confidence)
+        assert low == pytest.approx(expected.low, rel=1e-7, abs=1e-15), (k, n)
+        assert high == pytest.approx(expected.high, rel=1e-7, abs=1e-15), (k, n)
+
+
+@pytest.mark.parametrize("n", [1, 2, 7, 100, 12345])
+def test_clopper_pearson_one_failure_closed_form(n):
+    # For k = 1 the lower end solves P(X >= 1) = 1 - (1 - p)^n = alpha/2, so
+    # p_low = 1 - (1 - alpha/2)^(1/n); by symmetry p_high(k = n - 1) = (1 - alpha/2)^(1/n)
+    # (Clopper and Pearson 1934, binomial tail equations). Exact, so a tight tolerance.
+    tail = 0.025
+    low = stats.clopper_pearson(1, n, confidence=0.95)[0]
+    assert low == pytest.approx(-math.expm1(math.log1p(-tail) / n), rel=1e-12)
+    high = stats.clopper_pearson(n - 1, n, confidence=0.95)[1]
+    assert high == pytest.approx(math.exp(math.log1p(-tail) / n), rel=1e-12)
+
+
+def test_clopper_pearson_is_vectorized():
+    failures = np.array([[0, 3], [7, 20]])
+    trials = np.array([20, 20])
+    low, high = stats.clopper_pearson(failures, trials)
+    assert low.shape == high.shape == (2, 2)
+    for index in np.ndindex(failures.shape):
+        scalar_low, scalar_high = stats.clopper_pearson(int(failures[index]), 20)
+        assert low[index] == scalar_low
+        assert high[index] == scalar_high
+    assert isinstance(stats.clopper_pearson(3, 20)[0], float)
+
+
+def test_clopper_pearson_ends():
+    # Clopper and Pearson (1934): low is 0 with no failure, high is 1 with all failures.
+    assert stats.clopper_pearson(0, 50)[0] == 0.0
+    assert stats.clopper_pearson(50, 50)[1] == 1.0
+    assert stats.clopper_pearson(0, 1)[1] == pytest.approx(0.975)  # 1 - 0.025^(1/1)
+
+
+@pytest.mark.parametrize("trials", [1, 10, 300, 10_000, 1_000_000])
+def test_zero_failure_upper_end_closed_form(trials):
+    # With k = 0 the beta quantile reduces to 1 - (alpha/2)^(1/n) (Clopper and Pearson 1934).
+    high = stats.clopper_pearson(0, trials, confidence=0.95)[1]
+    assert high == pytest.approx(1.0 - 0.025 ** (1.0 / trials), rel=1e-10)
+
+
+def test_rule_of_three():
+    # Hanley and Lippman-Hand, JAMA 1983 ("rule of three"): with no event in n trials the
+    # one-sided 95 % upper bound is about 3/n (exactly -ln(0.05)/n = 2.996/n for large n). The
+    # one-sided 95 % bound is the upper end of the two-sided 90 % interval.
+    n = 10_000
+    one_sided_95 = stats.clopper_pearson(0, n, confidence=0.90)[1]
+    assert one_sided_95 * n == pytest.approx(3.0, rel=2e-3)
+    # Two-sided 95 % spends 2.5 % in the upper tail: -ln(0.025) = 3.689.
+    two_sided_95 = stats.clopper_pearson(0, n, confidence=0.95)[1]
+    assert two_sided_95 * n == pytest.approx(-math.log(0.025), rel=5e-4)
+    assert two_sided_95 * n == pytest.approx(3.69, abs=0.01)
+
+
+@pytest.mark.parametrize(
+    ("failures", "trials", "message"),
+    [
+        (-1, 10, "failures"),
+        (11, 10, "failures"),
+        (1, 0, "trials"),
+        (1.5, 10, "whole"),
+        (True, 10, "whole"),
+    ],
+)
+def test_clopper_pearson_rejects_bad_counts(failures, trials, message):
+    with pytest.raises(StringcheckError, match=message):
+        stats.clopper_pearson(failures, trials)
+
+
+@pytest.mark.parametrize("confidence", [0.0, 1.0, 95, -0.5])
+def test_clopper_pearson_rejects_bad_confidence(confidence):
+    with pytest.raises(StringcheckError, match="confidence"):
+        stats.clopper_pearson(1, 10, confidence=confidence)
+
+
+@pytest.mark.parametrize("n", [10, 40, 150])
+def test_clopper_pearson_exact_coverage_is_at_least_nominal(n):
+    # The defining property (Clopper and Pearson 1934): for every p the probability that the
+    # interval covers p is >= the confidence. Exact coverage: sum of binomial pmf over the k whose
+    # interval contains p.
+    k = np.arange(n + 1)
+    low, high = stats.clopper_pearson(k, n, confidence=0.95)
+    for p in np.linspace(0.001, 0.999, 181):
+        covered = (low <= p) & (p <= high)
+        assert scipy_stats.binom.pmf(k[covered], n, p).sum() >= 0.95 - 1e-12, p
+
+
+@pytest.mark.parametrize(("p", "n"), [(0.01, 200), (0.05, 60), (0.3, 25), (0.5, 100)])
+def test_clopper_pearson_coverage_by_simulation(p, n):
+    # Simulated coverage at a fixed seed; the interval is conservative, so it covers at least as
+    # often as stated (95 %). 40 000 repetitions: standard error of a coverage ~0.97 is 0.0009.
+    rng = np.random.default_rng(1934)
+    failures = rng.binomial(n, p, size=40_000)
+    low, high = stats.clopper_pearson(failures, n, confidence=0.95)
+    coverage = np.mean((low <= p) & (p <= high))
+    assert coverage >= 0.95
+    # and it agrees with the exact coverage to within four standard errors
+    k = np.arange(n + 1)
+    exact_low, exact_high = stats.clopper_pearson(k, n, confidence=0.95)
+    exact = scipy_stats.binom.pmf(k[(exact_low <= p) & (p <= exact_high)], n, p).sum()
+    assert coverage == pytest.approx(exact, abs=4 * math.sqrt(exact * (1 - exact) / 40_000))
+
+
+# --- FailureEstimate -----------------------------------------------------------------------------
+def test_failure_estimate_fields():
+    estimate = stats.failure_estimate(3, 1000, confidence=0.9)
+    low, high = stats.clopper_pearson(3, 1000, confidence=0.9)
+    assert estimate.failures == 3 and estimate.trials == 1000
+    assert estimate.p_fail == 0.003
+    assert (estimate.ci_low, estimate.ci_high) == (low, high)
+    assert estimate.upper_bound == high
+    assert estimate.confidence == 0.9
+    assert isinstance(estimate.failures, int) and isinstance(estimate.p_fail, float)
+    with pytest.raises(AttributeError):
+        estimate.failures = 4  # frozen
+
+
+def test_failure_estimate_arrays():
+    estimate = stats.failure_estimate(np.array([0, 5]), np.array([100, 100]))
+    np.testing.assert_array_equal(estimate.p_fail, [0.0, 0.05])
+    assert estimate.upper_bound.shape == (2,)
+
+
+# --- trials needed -------------------------------------------------------------------------------
+def test_trials_for_upper_bound_worked_example():
+    # Hand calculation: ln(0.025) / ln(0.999) = 3687.2, so 3688 failure-free trials show
+    # P(fail) <= 1e-3 at 95 % (two-sided); about 3.69 / p.
+    assert stats.trials_for_upper_bound(1e-3, confidence=0.95) == 3688
+
+
+@given(
+    target=st.floats(min_value=1e-9, max_value=0.9),
+    confidence=st.floats(min_value=0.5, max_value=0.999),
+)
+def test_trials_for_upper_bound_round_trip(target, confidence):
+    trials = stats.trials_for_upper_bound(target, confidence=confidence)
+    # n failure-free trials reach the target, n - 1 do not (Clopper-Pearson via scipy's beta).
+    assert stats.clopper_pearson(0, trials, confidence=confidence)[1] <= target * (1 + 1e-9)
+    if trials > 1:
+        assert stats.clopper_pearson(0, trials - 1, confidence=confidence)[1] > target * (1 - 1e-9)
+
+
+@pytest.mark.parametrize("target", [0.0, 1.0, -0.1, math.nan])
+def test_trials_for_upper_bound_rejects_bad_target(target):
+    with pytest.raises(StringcheckError, match="target"):
+        stats.trials_for_upper_bound(target)
+
+
+def test_trials_for_relative_error_worked_example():
+    # (1 - p) / (p e^2) = 0.99 / (0.01 * 0.01) = 9900 (variance of a binomial proportion).
+    assert stats.trials_for_relative_error(0.01, 0.1) == 9900
+
+
+@pytest.mark.parametrize(("p", "relative_error"), [(0.5, 0.01), (1e-4, 0.2), (0.9, 0.05)])
+def test_trials_for_relative_error_against_binomial_spread(p, relative_error):
+    # scipy's binomial standard deviation of the count, divided by n p, is the relative error.
+    n = stats.trials_for_relative_error(p, relative_error)
+    assert scipy_stats.binom(n, p).std() / (n * p) <= relative_error * (1 + 1e-12)
+    assert scipy_stats.binom(n - 1, p).std() / ((n - 1) * p) > relative_error
+
+
+# --- percentiles ---------------------------------------------------------------------------------
+def test_percentile_summary():
+    # Hyndman and Fan (1996) definition 7: the 50th percentile of 1..100 is 50.5, the 90th 90.1.
+    summary = stats.percentile_summary(np.arange(1.0, 101.0))
+    assert summary.percentiles == (50.0, 90.0, 99.0)
+    np.testing.assert_allclose(summary.values, [50.5, 90.1, 99.01])
+    assert summary.trials == 100
+    assert summary.at(90) == pytest.approx(90.1)
+    with pytest.raises(StringcheckError, match="not computed"):
+        summary.at(95)
+
+
+def test_percentile_summary_per_position():
+    values = np.random.default_rng(7).normal(size=(500, 3, 2))
+    summary = stats.percentile_summary(values, percentiles=(5, 95))
+    assert summary.values.shape == (2, 3, 2)
+    np.testing.assert_array_equal(summary.values[1], np.percentile(values, 95, axis=0))
+    with pytest.raises(StringcheckError, match="percentiles"):
+        stats.percentile_summary(values, percentiles=(101,))
+    with pytest.raises(StringcheckError, match="at least one trial"):
+        stats.percentile_summary(np.empty((0, 3)))
+
+
+# --- running moments -----------------------------------------------------------------------------
+chunk_arrays = hnp.arrays(
+    dtype=np.float64,
+    shape=st.tuples(st.integers(1, 60), st.integers(1, 4)),
+    elements=st.floats(min_value=-1e3, max_value=1e3),
+)
+
+
+def _split(array: np.ndarray, cuts: list[int]) -> list[np.ndarray]:
+    points = sorted({cut % (array.shape[0] + 1) for cut in cuts})
+    return np.split(array, points)
+
+
+@settings(max_examples=200)
+@given(
+    array=chunk_arrays,
+    cuts=st.lists(st.integers(0, 100), max_size=8),
+    threshold=st.floats(-1e3, 1e3),
+)
+def test_running_moments_chunked_equals_one_pass(array, cuts, threshold):
+    # Chan, Golub and LeVeque (1983): the pairwise merge gives the same mean and variance as a
+    # single pass over all data. Relative tolerance 1e-12; the absolute floor (1e-12 of the data's
+    # scale) covers means and variances that are zero up to cancellation.
+    accumulator = stats.RunningMoments(threshold=threshold)
+    for chunk in _split(array, cuts):
+        accumulator.add(chunk)
+    scale = max(float(np.max(np.abs(array))), 1.0)
+    assert accumulator.count == array.shape[0]
+    np.testing.assert_allclose(accumulator.mean, array.mean(axis=0), rtol=1e-12, atol=1e-12 * scale)
+    np.testing.assert_allclose(
+        accumulator.variance(), array.var(axis=0), rtol=1e-12, atol=1e-12 * scale**2
+    )
+    if array.shape[0] > 1:
+        np.testing.assert_allclose(
+            accumulator.std(ddof=1), array.std(axis=0, ddof=1), rtol=1e-12, atol=1e-9 * scale
+        )
+    np.testing.assert_array_equal(accumulator.minimum, array.min(axis=0))
+    np.testing.assert_array_equal(accumulator.maximum, array.max(axis=0))
+    np.testing.assert_array_equal(accumulator.exceed_counts, (array > threshold).sum(axis=0))
+    assert accumulator.trials_exceeding == int(np.any(array > threshold, axis=1).sum())
+
+
+@settings(max_examples=100)
+@given(array=chunk_arrays, cut=st.integers(0, 100))
+def test_running_moments_merge_of_workers(array, cut):
+    # Two workers each see part of the trials; merging equals one accumulator over all.
+    split = cut % (array.shape[0] + 1)
+    first = stats.RunningMoments().add(array[:split])
+    second = stats.RunningMoments().add(array[split:])
+    merged = first.merge(second)
+    scale = max(float(np.max(np.abs(array))), 1.0)
+    np.testing.assert_allclose(merged.mean, array.mean(axis=0), rtol=1e-12, atol=1e-12 * scale)
+    np.testing.assert_allclose(
+        merged.variance(), array.var(axis=0), rtol=1e-12, atol=1e-12 * scale**2
+    )
+    assert merged.trials_exceeding is None and merged.exceed_counts is None
+
+
+def test_running_moments_large_offset_is_stable():
+    # A naive sum-of-squares formula loses everything at an offset of 1e9 with spread 1; the
+    # pairwise update keeps the variance (Chan, Golub and LeVeque 1983, their motivating case).
+    rng = np.random.default_rng(83)
+    data = 1e9 + rng.normal(size=(20_000, 2))
+    accumulator = stats.RunningMoments()
+    for chunk in np.array_split(data, 37):
+        accumulator.add(chunk)
+    np.testing.assert_allclose(accumulator.variance(), data.var(axis=0), rtol=1e-6)
+
+
+def test_running_moments_summary_and_positions_grid():
+    data = np.random.default_rng(3).normal(size=(200, 3, 4))
+    threshold = np.linspace(-1.0, 1.0, 4)
+    accumulator = stats.RunningMoments(threshold=threshold)
+    for chunk in np.array_split(data, 7):
+        accumulator.add(chunk)
+    summary = accumulator.summary()
+    assert summary.count == 200
+    np.testing.assert_allclose(summary.std, data.std(axis=0, ddof=1), rtol=1e-12)
+    np.testing.assert_array_equal(summary.exceed_counts, (data > threshold).sum(axis=0))
+    any_above = np.any((data > threshold).reshape(200, -1), axis=1)
+    assert summary.trials_exceeding == int(any_above.sum())
+
+
+def test_running_moments_errors():
+    accumulator = stats.RunningMoments()
+    with pytest.raises(StringcheckError, match="no trials"):
+        _ = accumulator.mean
+    accumulator.add(np.zeros((3, 2)))
+    with pytest.raises(StringcheckError, match="shape"):
+        accumulator.add(np.zeros((3, 5)))
+    with pytest.raises(StringcheckError, match="thresholds"):
+        accumulator.merge(stats.RunningMoments(threshold=1.0).add(np.zeros((1, 2))))
+    with pytest.raises(StringcheckError, match="broadcast"):
+        stats.RunningMoments(threshold=np.zeros(3)).add(np.zeros((2, 4)))
+
+
+# --- histogram counts ----------------------------------------------------------------------------
+def test_histogram_counts_without_limit_matches_numpy():
+    values = np.random.default_rng(11).lognormal(size=1000)
+    bins = stats.histogram_counts(values, bins=12)
+    counts, edges = np.histogram(values, bins=12)
+    assert [count for _, _, count in bins] == counts.tolist()
+    np.testing.assert_allclose([low for low, _, _ in bins], edges[:-1])
+
+
+@given(
+    values=st.lists(st.floats(-1e6, 1e6), min_size=1, max_size=200),
+    bins=st.integers(1, 30),
+    limit=st.none() | st.floats(-1e6, 1e6),
+)
+def test_histogram_counts_properties(values, bins, limit):
+    result = stats.histogram_counts(values, bins=bins, limit=limit)
+    data = np.array(values)
+    # every value is counted once, bins are contiguous and ascending
+    assert sum(count for _, _, count in result) == data.size
+    assert all(a[1] == b[0] for a, b in zip(result, result[1:]))
+    assert all(low <= high for low, high, _ in result)
+    if limit is not None:
+        # the limit is an edge, and the bins from it upward hold exactly the values >= limit
+        starts = [low for low, _, _ in result]
+        assert limit in starts
+        at_or_above = sum(count for low, _, count in result if low >= limit)
+        assert at_or_above == int(np.sum(data >= limit))
+        assert len(result) <= bins + 2
+
+
+def test_histogram_counts_edge_cases():
+    assert stats.histogram_counts([]) == []
+    assert stats.histogram_counts([np.nan, np.inf]) == []
+    assert stats.histogram_counts([2.0, 2.0, np.nan]) == [(2.0, 2.0, 2)]
+    with pytest.raises(StringcheckError, match="bins"):
+        stats.histogram_counts([1.0], bins=0)
+    with pytest.raises(StringcheckError, match="limit"):
+        stats.histogram_counts([1.0], limit=math.inf)
