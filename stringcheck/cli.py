@@ -39,8 +39,8 @@ _QUIET = typer.Option(False, "--quiet", "-q", help="Print only a one-line verdic
 _DEBUG = typer.Option(False, "--debug", help="Show the traceback of an internal error.")
 
 
-def _console(stderr: bool = False) -> Console:
-    return Console(stderr=stderr, highlight=False, soft_wrap=False)
+def _console(stderr: bool = False, *, wrap: bool = True) -> Console:
+    return Console(stderr=stderr, highlight=False, soft_wrap=not wrap)
 
 
 class _DelayedProgress:
@@ -72,12 +72,19 @@ class _DelayedProgress:
             self.bar.stop()
 
 
+def _one_line(error: BaseException) -> str:
+    from rich.markup import escape
+
+    return escape(" ".join(str(error).split()))
+
+
 def _run(action: Callable[[], int], debug: bool) -> None:
     """Run ``action`` and turn its outcome into an exit code, never a traceback (unless --debug)."""
     try:
         code = action()
     except StringcheckError as error:
-        _console(stderr=True).print(f"[bold red]error:[/] {error}", highlight=False, markup=True)
+        _console(stderr=True, wrap=False).print(f"[bold red]error:[/] {_one_line(error)}",
+                                                markup=True)
         code = EXIT_INPUT
     except KeyboardInterrupt:
         _console(stderr=True).print("interrupted; no output file was written")
@@ -86,8 +93,8 @@ def _run(action: Callable[[], int], debug: bool) -> None:
         if debug:
             traceback.print_exc()
         else:
-            _console(stderr=True).print(
-                f"[bold red]internal error:[/] {type(error).__name__}: {error} "
+            _console(stderr=True, wrap=False).print(
+                f"[bold red]internal error:[/] {type(error).__name__}: {_one_line(error)} "
                 "(rerun with --debug for the traceback, and please report it)", markup=True)
         code = EXIT_INTERNAL
     raise typer.Exit(code)
@@ -115,7 +122,7 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, source_label
     if csv_path is not None:
         write_text_atomic(csv_path, positions_csv(result))
     # With the JSON on standard output, the report goes to stderr so the two never mix.
-    console = _console(stderr=to_stdout)
+    console = _console(stderr=to_stdout, wrap=not quiet)
     if quiet:
         render_check_summary(result, console)
     else:

@@ -24,7 +24,8 @@ def _ratio(value: float) -> str:
         return "-"
     if math.isinf(value):
         return "unsolved"
-    return f"{value:.3f}"
+    # Near the limit, three decimals would print a passing 0.99996 as "1.000".
+    return f"{value:.5f}" if 0.995 <= value <= 1.005 else f"{value:.3f}"
 
 
 def _probability(check: SeriesCheck, confidence: float) -> str:

@@ -17,6 +17,7 @@ from ..errors import DesignError
 from ..physics.grading import discharge_time, resistor_power, stored_energy
 from ..physics.leakage import leakage_current
 from ..physics.recovery import recovery_charge
+from ..quantity import format_quantity as _q
 from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
 from ..solvers.series_dynamic import solve_dynamic_sharing
 from ..solvers.series_static import solve_static_sharing
@@ -380,11 +381,11 @@ def _grading_summary(design: Design, checks: Mapping[str, SeriesCheck], temperat
                                                         waveform=design.duty.waveform))
         grading_current = nominal_share / grading.resistor
         if grading.resistor_rated_power is not None and power_duty > grading.resistor_rated_power:
-            problems.append(f"grading resistor dissipates {power_duty:.3g} W at the worst static "
-                            f"voltage, above its rating of {grading.resistor_rated_power:.3g} W")
+            problems.append(f"grading resistor dissipates {_q(power_duty, 'W')} at the worst static "
+                            f"voltage, above its rating of {_q(grading.resistor_rated_power, 'W')}")
         if grading.resistor_rated_voltage is not None and worst_any > grading.resistor_rated_voltage:
-            problems.append(f"grading resistor sees {worst_any:.4g} V at worst, above its working-"
-                            f"voltage rating of {grading.resistor_rated_voltage:.4g} V")
+            problems.append(f"grading resistor sees {_q(worst_any, 'V')} at worst, above its working-"
+                            f"voltage rating of {_q(grading.resistor_rated_voltage, 'V')}")
         if grading.resistor_rated_power is None:
             advisories.append("grading.resistor_rated_power not given: resistor power not checked")
         if grading.resistor_rated_voltage is None:
@@ -407,9 +408,9 @@ def _grading_summary(design: Design, checks: Mapping[str, SeriesCheck], temperat
             hottest_leakage = max(hottest_leakage, value)
     if grading_current is not None and grading_current < GRADING_CURRENT_MULTIPLE * hottest_leakage:
         advisories.append(
-            f"grading current {grading_current * 1e6:.3g} uA is less than "
+            f"grading current {_q(grading_current, 'A')} is less than "
             f"{GRADING_CURRENT_MULTIPLE:g} x the hottest maximum leakage "
-            f"({hottest_leakage * 1e6:.3g} uA); several times is common practice")
+            f"({_q(hottest_leakage, 'A')}); several times is common practice")
     if grading.resistor is None:
         advisories.append("no grading resistors: static sharing rests on the leakage alone and the "
                           "stack has no bleed path for stored charge")
@@ -419,8 +420,8 @@ def _grading_summary(design: Design, checks: Mapping[str, SeriesCheck], temperat
     if grading.capacitor is not None:
         stage_energy = float(stored_energy(grading.capacitor, worst_any))
         if grading.capacitor_rated_voltage is not None and worst_any > grading.capacitor_rated_voltage:
-            problems.append(f"grading capacitor sees {worst_any:.4g} V at worst, above its rating of "
-                            f"{grading.capacitor_rated_voltage:.4g} V")
+            problems.append(f"grading capacitor sees {_q(worst_any, 'V')} at worst, above its rating "
+                            f"of {_q(grading.capacitor_rated_voltage, 'V')}")
         if grading.capacitor_rated_voltage is None:
             advisories.append("grading.capacitor_rated_voltage not given: capacitor voltage not "
                               "checked")
@@ -433,7 +434,7 @@ def _grading_summary(design: Design, checks: Mapping[str, SeriesCheck], temperat
     time = float(np.max([discharge_time(np.full(layout.series, nominal_share), resistances,
                                         capacitance[branch]) for branch in range(layout.parallel)]))
     if time > SAFE_DISCHARGE_TIME:
-        advisories.append(f"the stack takes {time:.3g} s to fall below {SAFE_VOLTAGE:g} V through "
+        advisories.append(f"the stack takes {_q(time, 's')} to fall below {SAFE_VOLTAGE:g} V through "
                           f"its grading resistors, longer than the {SAFE_DISCHARGE_TIME:g} s of "
                           "IEC 60204-1 clause 6.2.4: provide a discharge device or earthing stick")
     return GradingSummary(
