@@ -76,8 +76,9 @@ def water_fill(thresholds: ArrayLike, weights: ArrayLike, total: ArrayLike) -> W
 
     .. math:: L = t_{(j)} + (\\mathrm{total} - F_j) / W_j
 
-    The cumulative sums are taken on thresholds shifted by the row minimum, which keeps F_j free
-    of cancellation when the thresholds share a large common offset. Cost O(n log n) per row, all
+    The cumulative sums, the level and the amounts are all formed on thresholds shifted by the
+    row minimum, which keeps them free of cancellation when the thresholds share a large common
+    offset; the offset is added back to the returned level only. Cost O(n log n) per row, all
     rows at once (``argsort``, ``take_along_axis``, ``cumsum``); no loop over rows.
 
     References
@@ -119,11 +120,12 @@ def water_fill(thresholds: ArrayLike, weights: ArrayLike, total: ArrayLike) -> W
     start = np.take_along_axis(shifted, segment, axis=-1)[..., 0]
     start_value = np.take_along_axis(breakpoint_value, segment, axis=-1)[..., 0]
     slope = np.take_along_axis(cumulative_weight, segment, axis=-1)[..., 0]
-    level = offset[..., 0] + start + (total - start_value) / slope
+    shifted_level = start + (total - start_value) / slope
 
     invalid = (
         np.isnan(thresholds).any(axis=-1) | np.isnan(weights).any(axis=-1) | np.isnan(total)
     )
-    level = np.where(invalid, np.nan, level)
-    amounts = weights * np.maximum(level[..., None] - thresholds, 0.0)
-    return WaterFill(level=level, amounts=amounts)
+    shifted_level = np.where(invalid, np.nan, shifted_level)
+    # Amounts from the shifted level, so that a large common offset costs no precision.
+    amounts = weights * np.maximum(shifted_level[..., None] - (thresholds - offset), 0.0)
+    return WaterFill(level=offset[..., 0] + shifted_level, amounts=amounts)
