@@ -1,0 +1,206 @@
+"""The series check end to end, against closed forms and its own invariants."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from stringcheck.design import parse_design_text
+from stringcheck.errors import DesignError
+from stringcheck.physics.grading import worst_case_dynamic_capacitance, worst_case_static_resistance
+from stringcheck.studies.check import run_check
+
+
+def corner_design(*, series=8, string_voltage=9000.0, v_rrm=1400.0, derating=0.9,
+                  leak_low=2e-6, leak_high=12e-6, charge_low=0.4e-6, charge_high=1.0e-6,
+                  resistor=None, capacitor=None, exponent=0.0, trials=10, extra="") -> str:
+    """A fixed (no-scatter) corner: position 1 holds the low-leakage, fast part; the rest the other."""
+    resistor_line = f"resistor = {resistor!r}" if resistor is not None else ""
+    capacitor_line = f"capacitor = {capacitor!r}" if capacitor is not None else ""
+    return f"""
+[duty]
+reverse_voltage = {string_voltage}
+waveform = "half-sine"
+frequency = 50
+di_dt = "10 A/us"
+ambient = "25 degC"
+[string]
+series = {series}
+derating = {derating}
+part = "SLOW"
+[[string.position]]
+index = 1
+part = "FAST"
+[parts.FAST]
+v_rrm = {v_rrm}
+i_r = {{ typ = {leak_low}, at_temperature = "25 degC", at_voltage = {v_rrm} }}
+q_rr = {{ typ = {charge_low} }}
+leakage_voltage_exponent = {exponent}
+[parts.SLOW]
+v_rrm = {v_rrm}
+i_r = {{ typ = {leak_high}, at_temperature = "25 degC", at_voltage = {v_rrm} }}
+q_rr = {{ typ = {charge_high} }}
+leakage_voltage_exponent = {exponent}
+[grading]
+{resistor_line}
+{capacitor_line}
+[monte_carlo]
+trials = {trials}
+{extra}
+"""
+
+
+def test_static_textbook_corner_reaches_the_limit_exactly():
+    # Series-connected diodes, static equalisation: R <= (n V_DM - V_s) / ((n - 1) dI_R)
+    # (M. H. Rashid, Power Electronics, chapter on power diodes; N. Mohan et al., Power Electronics).
+    # At that R, the device with the least leakage blocks exactly V_DM. Operating point our own.
+    n, v_s, v_rrm, derating = 8, 9000.0, 1400.0, 0.9
+    v_dm = derating * v_rrm
+    resistance = float(worst_case_static_resistance(n, v_dm, v_s, 12e-6 - 2e-6))
+    design = parse_design_text(corner_design(resistor=resistance, capacitor=1e-6))
+    result = run_check(design)
+    static = result.checks["static"]
+    assert static.positions[0].max_voltage == pytest.approx(v_dm, rel=1e-9)
+    assert static.worst_voltage == pytest.approx(v_dm, rel=1e-9)
+    voltages = [p.max_voltage for p in static.positions]
+    assert sum(voltages) == pytest.approx(v_s, rel=1e-9)
+
+
+def test_static_corner_just_above_textbook_resistance_fails():
+    n, v_s, v_dm = 8, 9000.0, 0.9 * 1400.0
+    resistance = float(worst_case_static_resistance(n, v_dm, v_s, 10e-6)) * 1.01
+    result = run_check(parse_design_text(corner_design(resistor=resistance, capacitor=1e-6)))
+    assert not result.checks["static"].passed
+    assert result.verdict == "fail"
+
+
+def test_dynamic_textbook_corner_reaches_the_limit_exactly():
+    # Dynamic equalisation: C >= (n - 1) dQ_rr / (n V_DM - V_s) (same textbooks). With that C and
+    # no junction capacitance, the device with the least Q_rr recovers first and takes exactly V_DM.
+    n, v_s, v_dm = 8, 9000.0, 0.9 * 1400.0
+    capacitance = float(worst_case_dynamic_capacitance(n, v_dm, v_s, 1.0e-6 - 0.4e-6))
+    result = run_check(parse_design_text(corner_design(resistor=1e5, capacitor=capacitance)))
+    dynamic = result.checks["dynamic"]
+    assert dynamic.positions[0].max_voltage == pytest.approx(v_dm, rel=1e-9)
+    # The slower devices share the rest equally.
+    for position in dynamic.positions[1:]:
+        assert position.max_voltage == pytest.approx((v_s - v_dm) / (n - 1), rel=1e-9)
+
+
+def test_dynamic_corner_with_smaller_capacitor_fails():
+    n, v_s, v_dm = 8, 9000.0, 0.9 * 1400.0
+    capacitance = float(worst_case_dynamic_capacitance(n, v_dm, v_s, 0.6e-6)) * 0.98
+    result = run_check(parse_design_text(corner_design(resistor=1e5, capacitor=capacitance)))
+    assert not result.checks["dynamic"].passed
+    assert result.checks["dynamic"].estimate.failures == result.trials
+
+
+def test_no_failure_reports_the_upper_bound_not_zero():
+    result = run_check(parse_design_text(corner_design(resistor=1e5, capacitor=1e-6, trials=3000)))
+    estimate = result.checks["static"].estimate
+    assert estimate.failures == 0
+    # Clopper-Pearson with no failures: upper = 1 - (alpha/2)^(1/n) (Clopper & Pearson 1934).
+    assert estimate.ci_high == pytest.approx(1 - 0.025 ** (1 / 3000), rel=1e-9)
+
+
+SCATTER = """
+[duty]
+reverse_voltage = "20 kV"
+di_dt = "20 A/us"
+ambient = "45 degC"
+[string]
+series = 16
+parallel = 2
+derating = 0.8
+[[string.position]]
+index = 3
+temperature_rise = "20 K"
+[parts.D]
+class = "si-fast-recovery"
+v_rrm = "1.6 kV"
+i_r = { max = "0.2 mA", at_temperature = "125 degC" }
+q_rr = { typ = "0.3 uC", max = "0.6 uC" }
+c_j = "50 pF"
+[grading]
+resistor = "10 MOhm"
+resistor_tolerance = "2 %"
+capacitor = "4.7 nF"
+capacitor_tolerance = "10 %"
+[monte_carlo]
+trials = 9000
+seed = 5
+lot_share = 0.3
+"""
+
+
+def test_result_does_not_depend_on_chunk_size():
+    # DESIGN.md section 5: chunk c uses its own stream, so chunking never changes the answer.
+    design = parse_design_text(SCATTER)
+    one = run_check(design, chunk_trials=100_000)
+    many = run_check(design, chunk_trials=4096)
+    for name in ("static", "dynamic"):
+        a, b = one.checks[name], many.checks[name]
+        assert a.worst_voltage == b.worst_voltage
+        assert a.worst_trial == b.worst_trial
+        assert a.estimate == b.estimate
+        np.testing.assert_allclose([p.mean_voltage for p in a.positions],
+                                   [p.mean_voltage for p in b.positions], rtol=1e-12)
+
+
+def test_same_seed_same_answer_and_other_seed_differs():
+    design = parse_design_text(SCATTER)
+    a, b = run_check(design, trials=3000), run_check(design, trials=3000)
+    assert a.checks["static"].worst_voltage == b.checks["static"].worst_voltage
+    c = run_check(design, trials=3000, seed=6)
+    assert c.checks["static"].worst_voltage != a.checks["static"].worst_voltage
+
+
+def test_mean_static_voltage_sums_to_string_voltage_per_branch():
+    # Conservation: the voltages of every drawn string sum to V_s, so their means do too.
+    result = run_check(parse_design_text(SCATTER), trials=2000)
+    for name in ("static", "dynamic"):
+        positions = result.checks[name].positions
+        for branch in (1, 2):
+            total = sum(p.mean_voltage for p in positions if p.branch == branch)
+            assert total == pytest.approx(20e3, rel=1e-9)
+
+
+def test_hot_position_leaks_more_and_takes_less_static_voltage():
+    # Leakage doubles every 10 K (common practice): the hotter device carries more leakage, so at
+    # the same string current it blocks less voltage on average.
+    positions = run_check(parse_design_text(SCATTER), trials=3000).checks["static"].positions
+    hot = [p.mean_voltage for p in positions if p.index == 3]
+    others = [p.mean_voltage for p in positions if p.index != 3]
+    assert max(hot) < min(others)
+
+
+def test_dc_duty_without_turn_off_skips_the_dynamic_check_and_says_why():
+    text = SCATTER.replace('di_dt = "20 A/us"', 'waveform = "dc"')
+    result = run_check(parse_design_text(text), trials=1000)
+    assert not result.checks["dynamic"].ran
+    assert "di_dt" in result.checks["dynamic"].reason
+
+
+def test_impossible_string_is_reported_and_fails():
+    text = SCATTER.replace('reverse_voltage = "20 kV"', 'reverse_voltage = "30 kV"')
+    result = run_check(parse_design_text(text), trials=1000)
+    assert result.impossible is not None and "perfect sharing" in result.impossible
+    assert result.verdict == "fail"
+
+
+def test_dynamic_without_any_capacitance_is_a_clear_error():
+    text = SCATTER.replace('capacitor = "4.7 nF"', "").replace('c_j = "50 pF"', 'c_j = 0')
+    with pytest.raises(DesignError, match="grading.capacitor"):
+        run_check(parse_design_text(text), trials=100)
+
+
+def test_recovery_charge_derived_from_peak_current_and_time():
+    # Q_rr = 1/2 I_RM t_rr (triangular recovery; Rashid, chapter on power diodes).
+    text = corner_design(resistor=1e5, capacitor=1e-6).replace(
+        "q_rr = { typ = 1e-06 }", "i_rm = { typ = 2.0 }\nt_rr = { typ = 1e-6 }")
+    result = run_check(parse_design_text(text))
+    assert any("1/2 I_RM t_rr" in note for note in result.assumptions)
+    # All SLOW devices now have Q_rr = 1 uC: the same as the corner written directly.
+    direct = run_check(parse_design_text(corner_design(resistor=1e5, capacitor=1e-6)))
+    assert result.checks["dynamic"].worst_voltage == pytest.approx(
+        direct.checks["dynamic"].worst_voltage, rel=1e-12)
