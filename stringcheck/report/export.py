@@ -66,6 +66,8 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
         "trials": result.trials,
         "seed": result.seed,
         "confidence": design.monte_carlo.confidence,
+        "target_p_fail": result.target_p_fail,
+        "trials_needed": result.trials_needed,
         "verdict": result.verdict,
         "impossible": result.impossible,
         "checks": checks,

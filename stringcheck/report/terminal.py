@@ -50,12 +50,15 @@ def render_check(result: CheckResult, console: Console) -> None:
         f"{format_quantity(design.duty.reverse_voltage, 'V')} peak reverse, "
         f"{design.duty.waveform} duty, ambient {design.duty.ambient:g} degC\n",
         f"{result.trials:,} built strings drawn (seed {result.seed}); device limit = derating "
-        f"{layout.derating:g} x V_RRM")
+        f"{layout.derating:g} x V_RRM\n"
+        f"a check passes when P(fail) <= {result.target_p_fail:g} at {confidence:.0%} confidence "
+        "(upper bound of the exact interval)")
     console.print(Panel(heading, title="stringcheck check", title_align="left"))
 
     if result.verdict == "pass":
         console.print(Text(" VERDICT: PASS ", style="bold black on green"),
-                      "no drawn device exceeded its allowed voltage and every rating given holds.")
+                      f"P(fail) is shown to be at most {result.target_p_fail:g} for every check, and "
+                      "every rating given holds.")
     else:
         console.print(Text(" VERDICT: FAIL ", style="bold white on red"), _fail_reason(result))
     if result.impossible:
@@ -106,10 +109,18 @@ def _fail_reason(result: CheckResult) -> str:
     for name, check in result.checks.items():
         if check.ran and not check.passed:
             estimate = check.estimate
-            reasons.append(f"{name}: {estimate.failures:,} of {estimate.trials:,} strings have a "
-                           "device above its limit"
-                           + (f" ({check.unsolved} unsolved)" if check.unsolved else ""))
+            if estimate.failures:
+                reasons.append(f"{name}: {estimate.failures:,} of {estimate.trials:,} strings have a "
+                               "device above its limit, P(fail) up to "
+                               f"{estimate.ci_high:.2g} > {result.target_p_fail:g}"
+                               + (f" ({check.unsolved} unsolved)" if check.unsolved else ""))
     reasons += list(result.grading.rating_problems)
+    short = [name for name, check in result.checks.items()
+             if check.ran and check.estimate.failures == 0 and not check.passed]
+    if short:
+        reasons.append(f"{result.trials:,} trials cannot show P(fail) <= {result.target_p_fail:g} "
+                       f"even with no failure seen; run at least {result.trials_needed:,} "
+                       "(--trials)")
     return "; ".join(reasons) if reasons else "see below"
 
 

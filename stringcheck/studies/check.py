@@ -2,7 +2,9 @@
 
 A trial is one built string (all its branches). A trial fails a check when any device of it exceeds
 ``derating x V_RRM`` of its part, or when the solver could not solve it (counted and reported, never
-dropped). Results are plain dataclasses; nothing here formats text.
+dropped). A check passes when the upper bound of the exact confidence interval of P(fail) is within
+``[sizing] target_p_fail`` (default 1e-3): the same criterion the sizing search uses, and a run too
+short to show it cannot pass. Results are plain dataclasses; nothing here formats text.
 """
 
 from __future__ import annotations
@@ -21,7 +23,7 @@ from ..quantity import format_quantity as _q
 from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
 from ..solvers.series_dynamic import solve_dynamic_sharing
 from ..solvers.series_static import solve_static_sharing
-from ..stats import FailureEstimate, failure_estimate, histogram_counts
+from ..stats import FailureEstimate, failure_estimate, histogram_counts, trials_for_upper_bound
 
 # A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
 # in the trial count.
@@ -103,6 +105,8 @@ class CheckResult:
     design: Design
     trials: int
     seed: int
+    target_p_fail: float
+    trials_needed: int
     checks: Mapping[str, SeriesCheck]
     grading: GradingSummary
     verdict: str
@@ -157,7 +161,7 @@ class _Accumulator:
 
 
 def run_check(design: Design, *, trials: int | None = None, seed: int | None = None,
-              chunk_trials: int | None = None,
+              chunk_trials: int | None = None, only: tuple[str, ...] | None = None,
               progress: ProgressCallback | None = None) -> CheckResult:
     """Run the series check of ``design`` (static sharing always, dynamic when there is a turn-off).
 
@@ -169,6 +173,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         Override the design's Monte Carlo settings.
     chunk_trials
         Trials per chunk (rounded to whole sampling blocks); the result does not depend on it.
+    only
+        Run only these of ("static", "dynamic") (the sizing search uses it); a check left out is
+        reported as not run.
     progress
         Called with (trials done, trials in all) after each chunk.
     """
@@ -194,9 +201,12 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     junction_capacitance = per_position(lambda p: p.c_j)
 
     dynamic_reason = _dynamic_reason(design)
+    if only is not None and "dynamic" not in only and not dynamic_reason:
+        dynamic_reason = "not requested"
     run_dynamic = dynamic_reason == ""
+    run_static = only is None or "static" in only
     parameters = ("i_r", "q_rr") if run_dynamic else ("i_r",)
-    static = _Accumulator(shape, limits)
+    static = _Accumulator(shape, limits) if run_static else None
     dynamic = _Accumulator(shape, limits) if run_dynamic else None
 
     if chunk_trials is None:
@@ -204,8 +214,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     done = 0
     for first, count in chunk_bounds(trials, chunk_trials):
         drawn = draw_strings(design, parameters, first, count, seed=seed)
-        _static_chunk(design, drawn, static, temperature, reference_voltage, reference_temperature,
-                      doubling, exponent)
+        if static is not None:
+            _static_chunk(design, drawn, static, temperature, reference_voltage,
+                          reference_temperature, doubling, exponent)
         if dynamic is not None:
             _dynamic_chunk(design, drawn, dynamic, junction_capacitance)
         done += count
@@ -213,9 +224,12 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
             progress(done, trials)
 
     confidence = design.monte_carlo.confidence
-    checks = {"static": _finish("static", static, grid, confidence, trials)}
+    target = design.sizing.target_p_fail
+    checks = {"static": _finish("static", static, grid, confidence, trials, target)
+              if static is not None
+              else _not_run("static", "not requested")}
     if dynamic is not None:
-        checks["dynamic"] = _finish("dynamic", dynamic, grid, confidence, trials)
+        checks["dynamic"] = _finish("dynamic", dynamic, grid, confidence, trials, target)
     else:
         checks["dynamic"] = _not_run("dynamic", dynamic_reason)
 
@@ -224,7 +238,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                                doubling, exponent, junction_capacitance)
     passed = all(check.passed for check in checks.values() if check.ran)
     verdict = "pass" if passed and impossible is None and not grading.rating_problems else "fail"
-    return CheckResult(design=design, trials=trials, seed=seed, checks=checks, grading=grading,
+    return CheckResult(design=design, trials=trials, seed=seed, target_p_fail=target,
+                       trials_needed=trials_for_upper_bound(target, confidence=confidence),
+                       checks=checks, grading=grading,
                        verdict=verdict, impossible=impossible,
                        assumptions=design.assumptions + _model_assumptions(design, run_dynamic),
                        no_scatter=_no_scatter(design, parameters))
@@ -265,7 +281,9 @@ def _dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulato
 
 
 def _finish(name: str, accumulator: _Accumulator, grid: np.ndarray, confidence: float,
-            trials: int) -> SeriesCheck:
+            trials: int, target: float) -> SeriesCheck:
+    """Summarise one check. It passes when the upper confidence bound of P(fail) is within
+    ``target`` ([sizing] target_p_fail): a run too short to show that cannot pass."""
     ratios = np.concatenate(accumulator.worst_ratios)
     failures = int(np.count_nonzero(~(ratios <= 1.0)))
     estimate = failure_estimate(failures, trials, confidence=confidence)
@@ -289,7 +307,7 @@ def _finish(name: str, accumulator: _Accumulator, grid: np.ndarray, confidence: 
     worst_string = accumulator.worst_string if accumulator.worst_string is not None else \
         np.full(grid.shape, np.nan)
     return SeriesCheck(
-        name=name, ran=True, reason="", passed=failures == 0,
+        name=name, ran=True, reason="", passed=estimate.ci_high <= target,
         worst_voltage=float(np.max(accumulator.maximum)) if accumulator.count else float("nan"),
         worst_ratio=float(np.max(ratios)),
         p50_ratio=float(np.percentile(finite, 50)) if finite.size else float("nan"),
@@ -368,7 +386,7 @@ def _grading_summary(design: Design, checks: Mapping[str, SeriesCheck], temperat
     layout = design.string
     stage_count = layout.series * layout.parallel
     nominal_share = design.duty.reverse_voltage / layout.series
-    static_worst = checks["static"].worst_voltage
+    static_worst = checks["static"].worst_voltage if checks["static"].ran else float("nan")
     dynamic_worst = checks["dynamic"].worst_voltage if checks["dynamic"].ran else float("nan")
     worst_any = float(np.nanmax([static_worst, dynamic_worst]))
     problems, advisories = [], []

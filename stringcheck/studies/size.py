@@ -1,0 +1,393 @@
+"""Size the grading network: R, C, damping resistor R_d and, optionally, the device count.
+
+The search runs the series check on common random numbers: the same seed draws the same devices and
+the same latent component tolerances for every candidate value, so a candidate is judged on exactly
+the strings its neighbours were judged on. Raising every nominal R scales every drawn resistance by the
+same factor, which never lowers the worst static voltage; raising C never raises the worst dynamic
+voltage (both are properties of the solvers, tested there). The pass/fail of a candidate is therefore
+monotone along the preferred-value ladder, and a bisection over the ladder finds the boundary.
+
+A candidate passes when the upper bound of its P(fail) (exact Clopper-Pearson at the design's confidence)
+is at most ``[sizing] target_p_fail``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+from typing import Callable
+
+import numpy as np
+
+from .. import eseries
+from ..design import Design
+from ..errors import SizingError
+from ..physics.grading import (
+    discharge_time,
+    resistor_power,
+    stored_energy,
+    worst_case_dynamic_capacitance,
+    worst_case_static_resistance,
+)
+from ..physics.leakage import leakage_current
+from ..stats import trials_for_upper_bound
+from .check import CheckResult, run_check
+
+# Range of the ladders searched [ohm], [F]: wide enough for any grading network we know of.
+_RESISTOR_RANGE = (1.0, 1e11)
+_CAPACITOR_RANGE = (1e-13, 1e-3)
+# Critical damping of the stray-inductance ring: damping ratio zeta = 1 (series RLC).
+DAMPING_RATIO = 1.0
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """One value tried by the search and how it fared."""
+
+    value: float
+    passed: bool
+    failures: int
+    p_fail_upper: float
+    worst_ratio: float
+
+
+@dataclass(frozen=True)
+class LadderChoice:
+    """The chosen preferred value and its rejected neighbour (None at the end of the ladder)."""
+
+    series: str
+    chosen: Candidate | None
+    rejected_neighbour: Candidate | None
+    textbook_bound: float | None
+
+
+@dataclass(frozen=True)
+class Ratings:
+    """What the chosen network must be rated for, per stage and for the stack (SI)."""
+
+    resistor_voltage_required: float | None
+    resistor_power_continuous: float | None
+    resistor_power_duty: float | None
+    resistor_power_required: float | None
+    grading_loss_total: float | None
+    capacitor_voltage_required: float | None
+    damping_loss_per_stage: float | None
+    damping_loss_total: float | None
+    stage_energy: float | None
+    total_energy: float | None
+    discharge_time: float
+    worst_stage_voltage: float
+    derating: float
+
+
+@dataclass(frozen=True)
+class SizingResult:
+    """The proposed network, the evidence for it, and the check of the sized design."""
+
+    design: Design
+    resistor: LadderChoice
+    capacitor: LadderChoice | None
+    damping_resistor: float | None
+    damping_rule: str
+    series_count: int
+    series_searched: bool
+    ratings: Ratings
+    check: CheckResult
+    target_p_fail: float
+    advisories: tuple[str, ...]
+
+
+Evaluate = Callable[[float], Candidate]
+
+
+def size(design: Design, *, trials: int | None = None, seed: int | None = None,
+         resistor_series: str | None = None, capacitor_series: str | None = None,
+         find_series: bool = False, progress: Callable[[str], None] | None = None) -> SizingResult:
+    """Propose the grading network of ``design`` from preferred values.
+
+    Parameters
+    ----------
+    design
+        A validated design; its grading values (if any) are replaced by the sized ones, its tolerances,
+        TCR and ratings are kept.
+    trials, seed
+        Override the design's Monte Carlo settings.
+    resistor_series, capacitor_series
+        IEC 60063 series names (override ``[sizing]``).
+    find_series
+        Also find the smallest device count that passes with the chosen network.
+    progress
+        Called with a short description of each search step.
+    """
+    trials = design.monte_carlo.trials if trials is None else trials
+    seed = design.monte_carlo.seed if seed is None else seed
+    r_series = eseries.canonical_series_name(resistor_series or design.sizing.resistor_series)
+    c_series = eseries.canonical_series_name(capacitor_series or design.sizing.capacitor_series)
+    target = design.sizing.target_p_fail
+    confidence = design.monte_carlo.confidence
+    needed = trials_for_upper_bound(target, confidence=confidence)
+    if trials < needed:
+        raise SizingError(
+            f"{trials} trials cannot show P(fail) <= {target:g} at {confidence:.0%} confidence even "
+            f"with no failure; use --trials {needed} or more (or raise [sizing] target_p_fail)")
+    say = progress or (lambda message: None)
+
+    def evaluate(check_name: str, candidate_design: Design) -> Candidate:
+        result = run_check(candidate_design, trials=trials, seed=seed, only=(check_name,))
+        outcome = result.checks[check_name]
+        upper = outcome.estimate.ci_high
+        return Candidate(value=math.nan, passed=upper <= target, failures=outcome.estimate.failures,
+                         p_fail_upper=upper, worst_ratio=outcome.worst_ratio)
+
+    def with_resistor(value: float) -> Design:
+        return replace(design, grading=replace(design.grading, resistor=value))
+
+    say(f"resistor ({r_series})")
+    resistor = _search(lambda value: replace(evaluate("static", with_resistor(value)), value=value),
+                       r_series, _static_bound(design), _RESISTOR_RANGE, larger_is_harder=True)
+    if resistor.chosen is None:
+        raise SizingError("no grading resistor between 1 ohm and 100 GOhm meets the target: the "
+                          "string cannot hold its voltage in the blocking state; add devices")
+    sized = with_resistor(resistor.chosen.value)
+
+    capacitor = None
+    dynamic_needed = not (design.duty.waveform == "dc" and design.duty.di_dt is None)
+    if dynamic_needed:
+        say(f"capacitor ({c_series})")
+
+        def with_capacitor(value: float) -> Design:
+            return replace(sized, grading=replace(sized.grading, capacitor=value))
+
+        capacitor = _search(lambda value: replace(evaluate("dynamic", with_capacitor(value)),
+                                                  value=value),
+                            c_series, _dynamic_bound(sized), _CAPACITOR_RANGE,
+                            larger_is_harder=False)
+        if capacitor.chosen is None:
+            raise SizingError("no grading capacitor up to 1 mF meets the target at turn-off; add "
+                              "devices or choose parts with a tighter Q_rr spread")
+        sized = with_capacitor(capacitor.chosen.value)
+
+    damping, rule = _damping_resistor(sized)
+    if damping is not None:
+        sized = replace(sized, grading=replace(sized.grading, damping_resistor=damping))
+
+    series_count = sized.string.series
+    if find_series:
+        say("device count")
+        sized = _smallest_series(sized, trials, seed)
+        series_count = sized.string.series
+
+    say("final check")
+    check = run_check(sized, trials=trials, seed=seed)
+    ratings = _ratings(sized, check)
+    advisories = list(check.grading.advisories)
+    if sized.grading.capacitor is not None and damping is not None:
+        recovery = [sized.parts[name].t_rr.typ for name in sized.parts_used()
+                    if sized.parts[name].t_rr is not None]
+        if recovery and damping * sized.grading.capacitor > min(recovery):
+            advisories.append(
+                f"R_d C = {damping * sized.grading.capacitor:.3g} s is longer than the shortest "
+                f"typical t_rr ({min(recovery):.3g} s): the capacitor may not take the charge in "
+                "time; the transient check (when available) should confirm")
+    return SizingResult(design=sized, resistor=resistor, capacitor=capacitor,
+                        damping_resistor=damping, damping_rule=rule, series_count=series_count,
+                        series_searched=find_series, ratings=ratings, check=check,
+                        target_p_fail=target, advisories=tuple(advisories))
+
+
+def _search(evaluate: Evaluate, series: str, start: float | None, value_range: tuple[float, float],
+            *, larger_is_harder: bool) -> LadderChoice:
+    """Bisection along the preferred-value ladder for the pass/fail boundary.
+
+    ``larger_is_harder``: True for R (choose the largest passing value), False for C (the smallest).
+    """
+    ladder = eseries.values_between(value_range[0], value_range[1], series)
+    cache: dict[int, Candidate] = {}
+
+    def at(index: int) -> Candidate:
+        if index not in cache:
+            cache[index] = evaluate(float(ladder[index]))
+        return cache[index]
+
+    # "good" = passes. For R, passing indices form a prefix; for C a suffix.
+    def good(index: int) -> bool:
+        return at(index).passed
+
+    if start is None or not math.isfinite(start) or start <= 0:
+        start = float(np.sqrt(value_range[0] * value_range[1]))
+    middle = int(np.clip(np.searchsorted(ladder, start), 0, len(ladder) - 1))
+    step = len(eseries.series_values(series))  # one decade of the ladder
+    # Bracket: find a passing and a failing index around the start, a decade at a time.
+    if larger_is_harder:
+        low, high = middle, middle
+        if good(middle):
+            while high < len(ladder) - 1 and good(high):
+                low, high = high, min(high + step, len(ladder) - 1)
+            if good(high):
+                return LadderChoice(series, at(high), None, start)
+        else:
+            while low > 0 and not good(low):
+                high, low = low, max(low - step, 0)
+            if not good(low):
+                return LadderChoice(series, None, at(low), start)
+        while high - low > 1:
+            mid = (low + high) // 2
+            low, high = (mid, high) if good(mid) else (low, mid)
+        return LadderChoice(series, at(low), at(high), start)
+    low, high = middle, middle
+    if good(middle):
+        while low > 0 and good(low):
+            high, low = low, max(low - step, 0)
+        if good(low):
+            return LadderChoice(series, at(low), None, start)
+    else:
+        while high < len(ladder) - 1 and not good(high):
+            low, high = high, min(high + step, len(ladder) - 1)
+        if not good(high):
+            return LadderChoice(series, None, at(high), start)
+    while high - low > 1:
+        mid = (low + high) // 2
+        low, high = (low, mid) if good(mid) else (mid, high)
+    return LadderChoice(series, at(high), at(low), start)
+
+
+def _corner_limits(design: Design) -> tuple[int, float]:
+    layout = design.string
+    limits = [layout.derating * design.parts[name].v_rrm for name in design.parts_used()]
+    return layout.series, min(limits)
+
+
+def _static_bound(design: Design) -> float | None:
+    """The textbook worst-case R (n V_DM - V_s) / ((n - 1) dI_R), with leakage at the hottest device."""
+    n, v_dm = _corner_limits(design)
+    if n < 2:
+        return None
+    rise = float(design.string.temperature_rise_grid().max())
+    highs, lows = [], []
+    for name in design.parts_used():
+        part = design.parts[name]
+        spread = part.i_r
+        factor = float(leakage_current(1.0, spread.at_voltage, design.duty.ambient + rise,
+                                       reference_voltage=spread.at_voltage,
+                                       reference_temperature=spread.at_temperature,
+                                       doubling_temperature=part.leakage_doubling,
+                                       voltage_exponent=part.leakage_voltage_exponent))
+        highs.append(factor * (spread.high if spread.high is not None else spread.typ))
+        lows.append(factor * (spread.low if spread.low is not None else 0.0))
+    spread_current = max(highs) - min(lows)
+    if spread_current <= 0 or n * v_dm <= design.duty.reverse_voltage:
+        return None
+    return float(worst_case_static_resistance(n, v_dm, design.duty.reverse_voltage, spread_current))
+
+
+def _dynamic_bound(design: Design) -> float | None:
+    """The textbook worst-case C (n - 1) dQ_rr / (n V_DM - V_s)."""
+    n, v_dm = _corner_limits(design)
+    if n < 2 or n * v_dm <= design.duty.reverse_voltage:
+        return None
+    highs, lows = [], []
+    for name in design.parts_used():
+        spread = design.parts[name].q_rr
+        if spread is None:
+            return None
+        highs.append(spread.high if spread.high is not None else spread.typ)
+        lows.append(spread.low if spread.low is not None else 0.0)
+    charge = max(highs) - min(lows)
+    if charge <= 0:
+        return None
+    return float(worst_case_dynamic_capacitance(n, v_dm, design.duty.reverse_voltage, charge))
+
+
+def _damping_resistor(design: Design) -> tuple[float | None, str]:
+    """R_d from two rules; the larger wins, rounded up to E12.
+
+    1. Damp the ring of the commutation loop: the stray inductance L in series with the n grading
+       capacitors (C/n) and n damping resistors (n R_d) is a series RLC with damping ratio
+       zeta = (n R_d / 2) sqrt((C/n) / L) (any circuit-theory text, e.g. C. K. Alexander,
+       M. N. O. Sadiku, Fundamentals of Electric Circuits, series RLC step response). zeta = 1 gives
+       R_d = 2 sqrt(L / (n C)). L is duty.stray_inductance, or V_s / (di/dt) when only di_dt is given.
+    2. Limit the capacitor's discharge into a device at turn-on to the forward current: R_d >= V_k / I_F
+       with V_k the nominal stage voltage (common practice for RC snubbers: the discharge should not add
+       more than the load current to the device).
+    """
+    grading, duty = design.grading, design.duty
+    if grading.capacitor is None:
+        return None, "no grading capacitor: no damping resistor needed"
+    n = design.string.series
+    candidates, reasons = [], []
+    inductance = duty.stray_inductance
+    source = "duty.stray_inductance"
+    if inductance is None and duty.di_dt is not None:
+        inductance = duty.reverse_voltage / duty.di_dt
+        source = "V_s / (di/dt)"
+    if inductance is not None:
+        value = 2.0 * math.sqrt(inductance / (n * grading.capacitor)) * DAMPING_RATIO
+        candidates.append(value)
+        reasons.append(f"critical damping of L = {inductance:.3g} H ({source}) with the string's "
+                       f"capacitors: R_d >= 2 sqrt(L / (n C)) = {value:.3g} ohm")
+    if duty.forward_current is not None:
+        value = (duty.reverse_voltage / n) / duty.forward_current
+        candidates.append(value)
+        reasons.append(f"turn-on discharge limited to I_F: R_d >= V_s / (n I_F) = {value:.3g} ohm")
+    if not candidates:
+        if grading.damping_resistor is not None:
+            return grading.damping_resistor, "kept the design's value (no L, di/dt or I_F to size it)"
+        return None, ("not sized: give duty.stray_inductance (or di_dt) or duty.forward_current "
+                      "to size the damping resistor")
+    chosen = float(eseries.round_up(max(candidates), "E12"))
+    return chosen, "; ".join(reasons) + f"; rounded up to E12: {chosen:.3g} ohm"
+
+
+def _smallest_series(design: Design, trials: int, seed: int) -> Design:
+    """The smallest device count that passes the whole check with the design's network."""
+    layout = design.string
+    target = design.sizing.target_p_fail
+    _, v_dm = _corner_limits(design)
+    start = max(1, math.ceil(design.duty.reverse_voltage / v_dm))
+    for count in range(start, max(start * 4, layout.series * 2) + 1):
+        positions = tuple(p for p in layout.positions if p.index <= count)
+        candidate = replace(design, string=replace(layout, series=count, positions=positions))
+        result = run_check(candidate, trials=trials, seed=seed)
+        ran = [check for check in result.checks.values() if check.ran]
+        if all(check.estimate.ci_high <= target for check in ran) and result.impossible is None:
+            return candidate
+    raise SizingError(f"no device count up to {max(start * 4, layout.series * 2)} passes with this "
+                      "network")
+
+
+def _ratings(design: Design, check: CheckResult) -> Ratings:
+    grading, duty, layout = design.grading, design.duty, design.string
+    derating = layout.derating
+    stages = layout.series * layout.parallel
+    nominal = duty.reverse_voltage / layout.series
+    static = check.checks["static"].worst_voltage
+    worst = check.grading.worst_resistor_voltage
+    r = grading.resistor
+    continuous = float(resistor_power(static, r, waveform="dc")) if r else None
+    duty_power = float(resistor_power(static, r, waveform=duty.waveform)) if r else None
+    loss = float(stages * resistor_power(nominal, r, waveform=duty.waveform)) if r else None
+    c = grading.capacitor
+    damping_loss = None
+    if c is not None and duty.frequency is not None and duty.waveform != "dc":
+        # Each cycle the capacitor charges and discharges through R_d: C V^2 f per stage.
+        damping_loss = c * nominal ** 2 * duty.frequency
+    junction = np.array([design.parts[name].c_j for name in layout.part_grid()[0]])
+    capacitance = junction + (c or 0.0)
+    resistances = np.full(layout.series, np.inf if r is None else r)
+    time = float(discharge_time(np.full(layout.series, nominal), resistances, capacitance))
+    return Ratings(
+        resistor_voltage_required=worst / derating if r else None,
+        resistor_power_continuous=continuous,
+        resistor_power_duty=duty_power,
+        resistor_power_required=duty_power / derating if duty_power is not None else None,
+        grading_loss_total=loss,
+        capacitor_voltage_required=worst / derating if c else None,
+        damping_loss_per_stage=damping_loss,
+        damping_loss_total=damping_loss * stages if damping_loss is not None else None,
+        stage_energy=float(stored_energy(c, worst)) if c else None,
+        total_energy=float(stages * stored_energy(capacitance.mean(), nominal)),
+        discharge_time=time,
+        worst_stage_voltage=worst,
+        derating=derating,
+    )
+
