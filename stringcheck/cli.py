@@ -145,6 +145,67 @@ def check(
          debug)
 
 
+def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,
+          find_series) -> int:
+    from .design import load_design
+    from .report.export import json_text, sizing_to_dict, write_text_atomic
+    from .report.terminal import render_check_summary, render_sizing
+    from .studies.size import size as run_size
+
+    design = load_design(path)
+    status = _console(stderr=True)
+    with status.status("sizing", spinner="line") if not quiet else _nothing() as spinner:
+        def progress(step: str) -> None:
+            if spinner is not None:
+                spinner.update(f"sizing: {step}")
+
+        result = run_size(design, trials=trials, seed=seed, resistor_series=resistor_series,
+                          capacitor_series=capacitor_series, find_series=find_series,
+                          progress=progress)
+    if json_path is not None:
+        write_text_atomic(json_path, json_text(sizing_to_dict(result)))
+    console = _console(stderr=json_path == "-", wrap=not quiet)
+    if quiet:
+        r = result.resistor.chosen.value
+        c = result.capacitor.chosen.value if result.capacitor else None
+        console.print(f"R = {r:.4g} ohm" + (f", C = {c:.4g} F" if c else "")
+                      + (f", R_d = {result.damping_resistor:.3g} ohm" if result.damping_resistor
+                         else "") + f", n = {result.series_count}; ", end="")
+        render_check_summary(result.check, console)
+    else:
+        render_sizing(result, console)
+    return EXIT_PASS if result.check.verdict == "pass" else EXIT_FAIL
+
+
+class _nothing:
+    def __enter__(self):
+        return None
+
+    def __exit__(self, *exc):
+        return False
+
+
+@app.command()
+def size(
+    file: Path = typer.Argument(..., help="Design file (TOML).", show_default=False),
+    resistor_series: Optional[str] = typer.Option(
+        None, "--resistor-series", help="IEC 60063 series for R (default: [sizing], else E96)."),
+    capacitor_series: Optional[str] = typer.Option(
+        None, "--capacitor-series", help="IEC 60063 series for C (default: [sizing], else E12)."),
+    find_series: bool = typer.Option(False, "--find-series",
+                                     help="Also find the smallest device count that passes."),
+    trials: Optional[int] = _TRIALS,
+    seed: Optional[int] = _SEED,
+    json: Optional[str] = _JSON,
+    quiet: bool = _QUIET,
+    debug: bool = _DEBUG,
+) -> None:
+    """Propose grading R, C and damping resistor from preferred values, with their ratings."""
+    _run(lambda: _size(file, trials=trials, seed=seed, json_path=json, quiet=quiet,
+                       resistor_series=resistor_series, capacitor_series=capacitor_series,
+                       find_series=find_series), debug)
+
+
 @app.command()
 def demo(
     trials: Optional[int] = _TRIALS,

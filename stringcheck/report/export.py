@@ -12,11 +12,14 @@ import os
 import sys
 import tempfile
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ..errors import StringcheckError
 from ..studies.check import CheckResult, SeriesCheck
 from .cautions import safety_cautions
+
+if TYPE_CHECKING:
+    from ..studies.size import SizingResult
 
 SCHEMA_VERSION = 1
 
@@ -154,3 +157,52 @@ def write_text_atomic(path: str | Path, text: str) -> None:
 def json_text(data: dict[str, Any]) -> str:
     """Serialise ``data`` as indented JSON with a final newline."""
     return json.dumps(data, indent=2, allow_nan=False) + "\n"
+
+
+def sizing_to_dict(result: "SizingResult") -> dict[str, Any]:
+    """The result of ``size``: the check of the sized design plus ``grading`` (SI units)."""
+    data = result_to_dict(result.check)
+    ratings = result.ratings
+
+    def choice(ladder) -> dict[str, Any] | None:
+        if ladder is None:
+            return None
+
+        def candidate(c) -> dict[str, Any] | None:
+            if c is None:
+                return None
+            return {"value": c.value, "passed": c.passed, "failures": c.failures,
+                    "p_fail_upper": c.p_fail_upper, "worst_ratio": _number(c.worst_ratio)}
+
+        return {"series": ladder.series, "chosen": candidate(ladder.chosen),
+                "rejected_neighbour": candidate(ladder.rejected_neighbour),
+                "textbook_bound": _number(ladder.textbook_bound)}
+
+    data["grading"] = {
+        "resistor": result.resistor.chosen.value,
+        "capacitor": result.capacitor.chosen.value if result.capacitor else None,
+        "damping_resistor": result.damping_resistor,
+        "damping_rule": result.damping_rule,
+        "series_used": {"resistor": result.resistor.series,
+                        "capacitor": result.capacitor.series if result.capacitor else None},
+        "series_count": result.series_count,
+        "target_p_fail": result.target_p_fail,
+        "search": {"resistor": choice(result.resistor), "capacitor": choice(result.capacitor)},
+        "ratings": {
+            "derating": ratings.derating,
+            "worst_stage_voltage": _number(ratings.worst_stage_voltage),
+            "resistor_voltage_required": _number(ratings.resistor_voltage_required),
+            "resistor_power_continuous": _number(ratings.resistor_power_continuous),
+            "resistor_power_duty": _number(ratings.resistor_power_duty),
+            "resistor_power_required": _number(ratings.resistor_power_required),
+            "grading_loss_total": _number(ratings.grading_loss_total),
+            "capacitor_voltage_required": _number(ratings.capacitor_voltage_required),
+            "damping_loss_per_stage": _number(ratings.damping_loss_per_stage),
+            "damping_loss_total": _number(ratings.damping_loss_total),
+            "stage_energy": _number(ratings.stage_energy),
+            "total_energy": _number(ratings.total_energy),
+            "discharge_time": _number(ratings.discharge_time),
+        },
+        "advisories": list(result.advisories),
+    }
+    return data

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from typing import TYPE_CHECKING
 
 from rich.console import Console, Group
 from rich.panel import Panel
@@ -12,6 +13,9 @@ from rich.text import Text
 from ..quantity import format_quantity
 from ..studies.check import CheckResult, SeriesCheck
 from .cautions import safety_cautions
+
+if TYPE_CHECKING:
+    from ..studies.size import SizingResult
 
 _TITLES = {
     "static": "Blocking-state sharing (leakage vs grading resistors)",
@@ -201,3 +205,92 @@ def render_check_summary(result: CheckResult, console: Console) -> None:
         else:
             parts.append(f"{name} not run")
     console.print(f"{result.verdict}: " + ", ".join(parts), highlight=False)
+
+
+def render_sizing(result: "SizingResult", console: Console) -> None:
+    """Print the proposed grading network, the evidence for each value, ratings and cautions."""
+    design = result.design
+    ratings = result.ratings
+    console.print(Panel(Text.assemble(
+        (design.title, "bold"), "\n",
+        f"proposed grading network for {design.string.parallel} branch(es) x "
+        f"{result.series_count} devices at {format_quantity(design.duty.reverse_voltage, 'V')}\n",
+        f"target: P(fail) <= {result.target_p_fail:g} at {design.monte_carlo.confidence:.0%} "
+        f"confidence, {result.check.trials:,} strings drawn (seed {result.check.seed}), the same "
+        "strings for every candidate value"), title="stringcheck size", title_align="left"))
+    table = Table(title="Proposal", title_justify="left")
+    for column in ("item", "value", "why", "next value, rejected"):
+        table.add_column(column)
+    r = result.resistor
+    table.add_row(
+        f"grading resistor ({r.series})", format_quantity(r.chosen.value, "ohm"),
+        f"largest value with P(fail) <= {r.chosen.p_fail_upper:.3g} "
+        f"({r.chosen.failures} failures)",
+        _rejected(r.rejected_neighbour, "ohm", "larger"))
+    if result.capacitor is not None:
+        c = result.capacitor
+        table.add_row(
+            f"grading capacitor ({c.series})", format_quantity(c.chosen.value, "F"),
+            f"smallest value with P(fail) <= {c.chosen.p_fail_upper:.3g} "
+            f"({c.chosen.failures} failures)",
+            _rejected(c.rejected_neighbour, "F", "smaller"))
+    table.add_row("damping resistor", format_quantity(result.damping_resistor, "ohm")
+                  if result.damping_resistor else "-", "see the rule below", "")
+    if result.series_searched:
+        table.add_row("devices in series", str(result.series_count),
+                      "smallest count that passes every check with this network", "")
+    console.print(table)
+    console.print(f"  damping resistor: {result.damping_rule}")
+    if r.textbook_bound is not None:
+        console.print(f"  textbook worst-case corner: R <= {format_quantity(r.textbook_bound, 'ohm')}"
+                      + (f", C >= {format_quantity(result.capacitor.textbook_bound, 'F')}"
+                         if result.capacitor is not None and result.capacitor.textbook_bound
+                         else "")
+                      + " (every device at its limit at once; the Monte Carlo figure above is "
+                        "what the spreads give)")
+    console.print()
+    rows = [
+        ("worst stage voltage (static or dynamic)", format_quantity(ratings.worst_stage_voltage, "V")),
+        (f"resistor working voltage required (/ derating {ratings.derating:g})",
+         format_quantity(ratings.resistor_voltage_required, "V")),
+        ("resistor power at worst static voltage, continuous",
+         format_quantity(ratings.resistor_power_continuous, "W")),
+        (f"resistor power, {design.duty.waveform} duty (RMS)", format_quantity(ratings.resistor_power_duty, "W")),
+        (f"resistor power rating required (/ derating {ratings.derating:g})",
+         format_quantity(ratings.resistor_power_required, "W")),
+        ("total grading-resistor loss", format_quantity(ratings.grading_loss_total, "W")),
+    ]
+    if result.capacitor is not None:
+        rows += [
+            (f"capacitor voltage rating required (/ derating {ratings.derating:g})",
+             format_quantity(ratings.capacitor_voltage_required, "V")),
+            ("damping loss C V^2 f per stage / stack",
+             "-" if ratings.damping_loss_per_stage is None else
+             f"{format_quantity(ratings.damping_loss_per_stage, 'W')} / "
+             f"{format_quantity(ratings.damping_loss_total, 'W')}"),
+            ("energy per capacitor at worst stage voltage", format_quantity(ratings.stage_energy, "J")),
+        ]
+    rows += [
+        ("energy stored in the stack at nominal share", format_quantity(ratings.total_energy, "J")),
+        ("time to fall below 60 V", "never (no bleed path)" if math.isinf(ratings.discharge_time)
+         else format_quantity(ratings.discharge_time, "s")),
+    ]
+    ratings_table = Table(title="Ratings the chosen parts must have", title_justify="left",
+                          show_header=False)
+    ratings_table.add_column("item")
+    ratings_table.add_column("value", justify="right")
+    for row in rows:
+        ratings_table.add_row(*row)
+    console.print(ratings_table)
+    for advisory in result.advisories:
+        console.print(Text(f"  advisory: {advisory}", style="yellow"))
+    console.print()
+    console.print(Text("Check of the sized design", style="bold underline"))
+    render_check(result.check, console)
+
+
+def _rejected(candidate, unit: str, direction: str) -> str:
+    if candidate is None:
+        return f"none ({direction} end of the searched range)"
+    return (f"{format_quantity(candidate.value, unit)}: P(fail) up to {candidate.p_fail_upper:.3g} "
+            f"({candidate.failures} failures), over the target")
