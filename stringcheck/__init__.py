@@ -15,5 +15,12 @@ def check(design: Design, **options):
     return run_check(design, **options)
 
 
+def size(design: Design, **options):
+    """Propose the grading network of ``design``; see :func:`stringcheck.studies.size.size`."""
+    from .studies.size import size as run_size
+
+    return run_size(design, **options)
+
+
 __all__ = ["Design", "DesignError", "QuantityError", "SizingError", "StringcheckError", "check",
-           "load_design", "parse_design_text", "__version__"]
+           "load_design", "parse_design_text", "size", "__version__"]

@@ -771,8 +771,3 @@ def _cross_check(reader: _Reader, design: Design) -> None:
             raise reader.error(f"parts.{name}.i_r", "missing; the static check needs the reverse "
                                                     "leakage, e.g. i_r = { max = \"0.5 mA\", "
                                                     "at_temperature = \"125 degC\" }")
-    if design.grading.resistor is None and any(
-            design.parts[name].leakage_voltage_exponent == 0.0 for name in design.parts_used()):
-        raise reader.error("grading.resistor", "missing; with voltage-independent leakage "
-                                               "(leakage_voltage_exponent = 0) the string voltage "
-                                               "is undetermined without grading resistors")

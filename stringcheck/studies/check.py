@@ -183,7 +183,14 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     seed = design.monte_carlo.seed if seed is None else seed
     if trials < 1:
         raise DesignError(f"--trials must be at least 1, got {trials}", key="monte_carlo.trials")
-    design = _with_recovery_charge(design)
+    if design.grading.resistor is None and any(
+            design.parts[name].leakage_voltage_exponent == 0.0 for name in design.parts_used()):
+        raise DesignError("missing; with voltage-independent leakage (leakage_voltage_exponent = 0) "
+                          "the string voltage is undetermined without grading resistors (or run "
+                          "`stringcheck size` to choose them)", source=design.source,
+                          key="grading.resistor")
+    if only is None or "dynamic" in only:
+        design = _with_recovery_charge(design)
     layout = design.string
     shape = (layout.parallel, layout.series)
     grid = layout.part_grid()
@@ -200,9 +207,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     exponent = per_position(lambda p: p.leakage_voltage_exponent)
     junction_capacitance = per_position(lambda p: p.c_j)
 
-    dynamic_reason = _dynamic_reason(design)
-    if only is not None and "dynamic" not in only and not dynamic_reason:
-        dynamic_reason = "not requested"
+    dynamic_reason = "not requested" if only is not None and "dynamic" not in only else \
+        _dynamic_reason(design)
     run_dynamic = dynamic_reason == ""
     run_static = only is None or "static" in only
     parameters = ("i_r", "q_rr") if run_dynamic else ("i_r",)

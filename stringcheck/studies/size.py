@@ -146,8 +146,9 @@ def size(design: Design, *, trials: int | None = None, seed: int | None = None,
     resistor = _search(lambda value: replace(evaluate("static", with_resistor(value)), value=value),
                        r_series, _static_bound(design), _RESISTOR_RANGE, larger_is_harder=True)
     if resistor.chosen is None:
-        raise SizingError("no grading resistor between 1 ohm and 100 GOhm meets the target: the "
-                          "string cannot hold its voltage in the blocking state; add devices")
+        raise SizingError("no grading resistor between 1 ohm and 100 GOhm meets the target (with a "
+                          "small R the sharing follows the resistor tolerance); add devices or "
+                          "tighten grading.resistor_tolerance")
     sized = with_resistor(resistor.chosen.value)
 
     capacitor = None
@@ -163,8 +164,9 @@ def size(design: Design, *, trials: int | None = None, seed: int | None = None,
                             c_series, _dynamic_bound(sized), _CAPACITOR_RANGE,
                             larger_is_harder=False)
         if capacitor.chosen is None:
-            raise SizingError("no grading capacitor up to 1 mF meets the target at turn-off; add "
-                              "devices or choose parts with a tighter Q_rr spread")
+            raise SizingError("no grading capacitor up to 1 mF meets the target at turn-off (with a "
+                              "large C the sharing follows the capacitor tolerance); add devices, "
+                              "tighten grading.capacitor_tolerance or the parts' Q_rr spread")
         sized = with_capacitor(capacitor.chosen.value)
 
     damping, rule = _damping_resistor(sized)
