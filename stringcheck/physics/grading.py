@@ -69,9 +69,9 @@ def worst_case_static_resistance(
        diodes: steady-state voltage sharing.
     """
     n = np.asarray(series_count, dtype=float)
-    return (n * np.asarray(device_voltage_limit, dtype=float) - np.asarray(string_voltage, dtype=float)) / (
-        (n - 1.0) * np.asarray(leakage_spread, dtype=float)
-    )
+    limit = np.asarray(device_voltage_limit, dtype=float)
+    voltage = np.asarray(string_voltage, dtype=float)
+    return (n * limit - voltage) / ((n - 1.0) * np.asarray(leakage_spread, dtype=float))
 
 
 def worst_case_dynamic_capacitance(
@@ -113,9 +113,9 @@ def worst_case_dynamic_capacitance(
        diodes: dynamic voltage sharing.
     """
     n = np.asarray(series_count, dtype=float)
-    return (n - 1.0) * np.asarray(charge_spread, dtype=float) / (
-        n * np.asarray(device_voltage_limit, dtype=float) - np.asarray(string_voltage, dtype=float)
-    )
+    limit = np.asarray(device_voltage_limit, dtype=float)
+    voltage = np.asarray(string_voltage, dtype=float)
+    return (n - 1.0) * np.asarray(charge_spread, dtype=float) / (n * limit - voltage)
 
 
 def resistor_power(
@@ -270,7 +270,9 @@ def discharge_time(
     time_constant = np.broadcast_to(time_constant, leading + (count,)).reshape(rows, count)
     limit = np.broadcast_to(np.asarray(threshold, dtype=float), leading).reshape(rows)
 
-    invalid = np.isnan(voltages).any(axis=-1) | np.isnan(time_constant).any(axis=-1) | np.isnan(limit)
+    invalid = (
+        np.isnan(voltages).any(axis=-1) | np.isnan(time_constant).any(axis=-1) | np.isnan(limit)
+    )
     # Stages with tau = 0 hold nothing after t = 0+.
     voltages = np.where(time_constant == 0.0, 0.0, voltages)
     with np.errstate(divide="ignore"):

@@ -224,9 +224,9 @@ def recovery_time_to_fraction(
 
     Ending t_rr where the reverse current has fallen to 25 % of I_RM is common practice.
     JEDEC and IEC 60747-2 also define the end point by a straight line extrapolated through two
-    points of the tail (through 90 % and 25 % of I_RM, from memory) to zero current; that definition gives
-    a different t_rr for the same waveform, so a datasheet value must be read with the definition
-    it used.
+    points of the tail (through 90 % and 25 % of I_RM, from memory) to zero current; that
+    definition gives a different t_rr for the same waveform, so a datasheet value must be read
+    with the definition it used.
 
     References
     ----------
@@ -239,9 +239,8 @@ def recovery_time_to_fraction(
     .. [3] IEC 60747-2, *Semiconductor devices - Discrete devices - Part 2: Rectifier diodes*,
        definition and measurement of the reverse recovery time.
     """
-    return np.asarray(rise_time, dtype=float) - np.asarray(tail_time_constant, dtype=float) * np.log(
-        fraction
-    )
+    rise = np.asarray(rise_time, dtype=float)
+    return rise - np.asarray(tail_time_constant, dtype=float) * np.log(fraction)
 
 
 def recovery_time_fraction(recovery_time: ArrayLike, frequency: ArrayLike) -> NDArray[np.float64]:

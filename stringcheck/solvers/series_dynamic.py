@@ -3,9 +3,9 @@
 All devices of a series string carry the same current. At turn-off that common current first
 removes the recovery charge of every device; a device that has given up its own recovery charge
 Q_rr,k starts to block, and from then on the charge still flowing through the string charges its
-capacitance C_k (grading capacitor plus junction capacitance). The fastest device (least Q_rr) starts
-blocking first and takes the most voltage. When the currents have settled, the charge Q extracted
-through the string fixes every stage voltage.
+capacitance C_k (grading capacitor plus junction capacitance). The fastest device (least Q_rr)
+starts blocking first and takes the most voltage. When the currents have settled, the charge Q
+extracted through the string fixes every stage voltage.
 """
 
 from __future__ import annotations
