@@ -163,17 +163,23 @@ def solve_static_sharing(
 
     The constant-current model can give V_k < 0 when one stage's leakage exceeds the string
     current; a real diode cannot sustain its leakage without reverse voltage, so such a result
-    means the model does not apply (the resistors are far too small to matter, or far too large).
+    means the grading resistors are too large to set the sharing and the constant-leakage model
+    no longer applies (use m > 0).
 
-    *Otherwise* each stage inverse V_k(I) (:func:`stage_voltage`) is increasing and convex in I
-    (the inverse of the increasing concave G V + c V^m), so F(I) = sum_k V_k(I) - V_s is too.
-    F is solved per row by Newton's method from I_0 = max_k (G_k V_s + c_k V_s^{m_k}), where every
-    stage alone would take at least V_s, so F(I_0) >= 0: from the right of the root of a convex
-    increasing function Newton's method converges monotonically. A bracket [lo, hi] with
-    F(lo) <= 0 <= F(hi) (lo starts at I = 0, where F <= -V_s) guards every step; a step that
-    would leave it is replaced by bisection. All rows iterate together under a mask of the
-    unconverged ones. A row is also taken as converged when the Newton step falls below the
-    floating-point resolution of I (the best answer a double can represent).
+    *Otherwise* each stage inverse V_k(I) (:func:`stage_voltage`) is increasing (and convex in
+    I), so the string equation has one root per row. It is bracketed by
+    I_hi = max_k (G_k V_s + c_k V_s^{m_k}), where every stage alone would take at least V_s, and
+    I_lo = min_k (G_k V_s / n + c_k (V_s / n)^{m_k}), where every stage takes at most V_s / n.
+    Newton's method runs from I_hi in logarithmic coordinates, on ln(sum_k V_k) - ln V_s as a
+    function of ln I: a pure power law V ~ I^{1/m} becomes a straight line there (solved in one
+    step however far the start), and its slope is at least 1 (at most 1 / min m where every
+    stage has m > 0); Newton in I itself would creep in from the right at a rate 1 - m. A step
+    that would leave the bracket, or cannot be evaluated, is replaced by bisection of the
+    bracket in ln I; the bracket shrinks with every evaluation. All rows iterate together under
+    a mask of the unconverged ones. A row is also taken as converged when the Newton step falls
+    below the floating-point resolution of I (the best answer a double can represent). Stages
+    without a resistor and with a tiny exponent (V ~ I^{1/m} beyond the range of a double)
+    cannot be solved and return ``converged = False``.
 
     For n equal resistors R, one device at the minimum leakage and n - 1 at a leakage larger by
     dI_R (m = 0), the low-leakage device takes V_DM when
@@ -249,19 +255,21 @@ def _iterate(
     rtol: float,
     max_iter: int,
 ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.bool_], int]:
-    """Safeguarded Newton on sum_k V_k(I) = V_s, all rows at once; rows on axis 0."""
-    with np.errstate(divide="ignore", invalid="ignore"):
-        start = np.max(
-            conductance * voltage[:, None] + coefficient * np.power(voltage[:, None], exponent),
-            axis=-1,
+    """Safeguarded Newton on ln sum_k V_k(I) = ln V_s in ln I, all rows at once; rows on axis 0."""
+    count = conductance.shape[-1]
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        # Every stage takes at least V_s at the upper end and at most V_s / n at the lower end.
+        upper = np.max(
+            _stage_current(voltage[:, None], conductance, coefficient, exponent), axis=-1
         )
-    current = start
-    lower = np.zeros_like(current)
-    upper = current.copy()
+        lower = np.min(
+            _stage_current(voltage[:, None] / count, conductance, coefficient, exponent), axis=-1
+        )
+    current = upper.copy()
     voltages = _stage_voltage(current[:, None], conductance, coefficient, exponent)
     residual = np.sum(voltages, axis=-1) - voltage
     converged = np.abs(residual) <= rtol * voltage
-    active = ~converged & np.isfinite(residual)
+    active = ~converged & np.isfinite(residual) & (lower > 0.0)
     iterations = 0
 
     for iteration in range(1, max_iter + 1):
@@ -270,15 +278,20 @@ def _iterate(
             break
         iterations = iteration
         row_current = current[rows]
-        slope = np.sum(
-            _stage_slope(voltages[rows], conductance[rows], coefficient[rows], exponent[rows]),
-            axis=-1,
-        )
-        step = residual[rows] / slope
-        stalled = np.abs(step) <= 4.0 * _EPSILON * np.abs(row_current)
-        candidate = row_current - step
-        outside = ~((candidate > lower[rows]) & (candidate < upper[rows]))
-        candidate = np.where(outside, 0.5 * (lower[rows] + upper[rows]), candidate)
+        row_voltages = voltages[rows]
+        row_sum = voltage[rows] + residual[rows]
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            slope = np.sum(
+                _stage_slope(row_voltages, conductance[rows], coefficient[rows], exponent[rows]),
+                axis=-1,
+            )
+            # Newton step in s = ln I on ln(sum V) - ln V_s, whose slope I S' / sum V lies in
+            # [1, 1 / min m] for stages with a resistor or a power law: power laws become lines.
+            log_step = np.log1p(residual[rows] / voltage[rows]) / (row_current * slope / row_sum)
+            candidate = row_current * np.exp(-log_step)
+        stalled = np.abs(log_step) <= 4.0 * _EPSILON
+        inside = (candidate >= lower[rows]) & (candidate <= upper[rows])
+        candidate = np.where(inside, candidate, np.sqrt(lower[rows] * upper[rows]))
         candidate = np.where(stalled, row_current, candidate)
 
         new_voltages = _stage_voltage(
@@ -288,12 +301,22 @@ def _iterate(
         current[rows] = candidate
         voltages[rows] = new_voltages
         residual[rows] = new_residual
-        upper[rows] = np.where(new_residual > 0.0, candidate, upper[rows])
+        upper[rows] = np.where(new_residual >= 0.0, candidate, upper[rows])
         lower[rows] = np.where(new_residual <= 0.0, candidate, lower[rows])
         done = stalled | (np.abs(new_residual) <= rtol * voltage[rows])
         converged[rows] = done
-        active[rows] = ~done & np.isfinite(new_residual)
+        active[rows] = ~done & ~np.isnan(new_residual)
     return voltages, current, converged, iterations
+
+
+def _stage_current(
+    voltages: NDArray[np.float64],
+    conductance: NDArray[np.float64],
+    coefficient: NDArray[np.float64],
+    exponent: NDArray[np.float64],
+) -> NDArray[np.float64]:
+    """Current of each stage at a given voltage, G V + c V^m."""
+    return conductance * voltages + coefficient * np.power(voltages, exponent)
 
 
 def _stage_slope(
@@ -303,7 +326,7 @@ def _stage_slope(
     exponent: NDArray[np.float64],
 ) -> NDArray[np.float64]:
     """dV/dI of each stage, 1 / (G + m c V^(m-1)); 0 at V = 0 when 0 < m < 1."""
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         leakage_slope = np.where(
             exponent == 0.0, 0.0, exponent * coefficient * np.power(voltages, exponent - 1.0)
         )
@@ -352,12 +375,18 @@ def _power_law_inverse(
         if active.size == 0:
             break
         u = log_voltage[active]
-        resistor_part = conductance[active] * np.exp(u)
-        leakage_part = coefficient[active] * np.exp(exponent[active] * u)
-        step = (resistor_part + leakage_part - current[active]) / (
-            resistor_part + exponent[active] * leakage_part
-        )
-        log_voltage[active] = u - step
+        with np.errstate(over="ignore", invalid="ignore"):
+            # G = 0 (no resistor) must stay 0 even where e^u overflows.
+            resistor_part = np.where(
+                conductance[active] == 0.0, 0.0, conductance[active] * np.exp(u)
+            )
+            leakage_part = coefficient[active] * np.exp(exponent[active] * u)
+            step = (resistor_part + leakage_part - current[active]) / (
+                resistor_part + exponent[active] * leakage_part
+            )
+        moving = step > 4.0 * _EPSILON * np.maximum(1.0, np.abs(u))
         # Monotone from the right: the step is positive until rounding takes over.
-        active = active[step > 4.0 * _EPSILON * np.maximum(1.0, np.abs(u))]
-    return np.exp(log_voltage)
+        log_voltage[active[moving]] = u[moving] - step[moving]
+        active = active[moving]
+    with np.errstate(over="ignore"):
+        return np.exp(log_voltage)
