@@ -32,8 +32,8 @@ class StaticSharing:
     string_current
         Current I through every stage (resistor plus leakage) [A], shape ``...``.
     converged
-        Whether the solution of each row met the tolerance, shape ``...`` (bool). Always true for
-        the closed form (all exponents 0).
+        Whether the solution of each row met the tolerance, shape ``...`` (bool). For the closed
+        form (all exponents 0) true wherever the voltages are finite.
     iterations
         Number of outer iterations used for the slowest row (0 for the closed form).
     """
@@ -220,7 +220,7 @@ def solve_static_sharing(
 
     if np.all(exponent == 0.0):
         voltages, current = _constant_leakage(voltage, conductance, coefficient)
-        converged = np.ones(rows, dtype=bool)
+        converged = np.isfinite(voltages).all(axis=-1)
         iterations = 0
     else:
         voltages, current, converged, iterations = _iterate(

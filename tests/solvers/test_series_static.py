@@ -202,13 +202,14 @@ def test_result_type_and_shapes():
     assert scalar.voltages.shape == (2,) and scalar.string_current.shape == ()
 
 
-def test_nan_stays_in_its_trial():
+@pytest.mark.parametrize("exponent", [0.0, 0.5])
+def test_nan_stays_in_its_trial(exponent):
     sharing = solve_static_sharing(
         5e3,
         1e-6,
         [[1e-6, np.nan], [1e-6, 2e-6]],
         reference_voltage=REFERENCE_VOLTAGE,
-        voltage_exponent=0.5,
+        voltage_exponent=exponent,
     )
     assert np.isnan(sharing.voltages[0]).all() and not sharing.converged[0]
     assert sharing.converged[1] and math.isclose(sharing.voltages[1].sum(), 5e3, rel_tol=1e-12)
