@@ -342,7 +342,8 @@ class _Reader:
         try:
             value = parse_quantity(table[key], unit, key=dotted)
         except QuantityError as error:
-            raise DesignError(str(error), source=self.source, key=None) from None
+            message = str(error).removeprefix(f"{dotted}: ")
+            raise DesignError(message, source=self.source, key=dotted) from None
         if positive and not value > 0:
             raise self.error(dotted, f"must be greater than zero, got {table[key]!r}")
         if non_negative and value < 0:
@@ -622,9 +623,7 @@ def _read_string(reader: _Reader, raw: Mapping[str, Any], parts: Mapping[str, Pa
             raise reader.error(prefix, "must be a table ([[string.position]])")
         reader.check_keys(entry, _SCHEMA_KEYS["position"], prefix)
         index = reader.integer(entry, "index", prefix, maximum=series)
-        branch = reader.integer(entry, "branch", prefix, default=0, minimum=0, maximum=parallel)
-        if "branch" in entry and branch == 0:
-            raise reader.error(_join(prefix, "branch"), f"must be in 1..{parallel}, got 0")
+        branch = reader.integer(entry, "branch", prefix, default=0, minimum=1, maximum=parallel)
         part = reader.text(entry, "part", prefix)
         if part is not None:
             _check_part_name(reader, _join(prefix, "part"), part, parts)

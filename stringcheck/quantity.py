@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import math
 import re
+import unicodedata
 from dataclasses import dataclass
 from functools import lru_cache
 from typing import Any
@@ -49,9 +50,9 @@ DIMENSIONLESS = Unit("1", "dimensionless")
 
 # Spellings the trade writes that pint does not read as they stand.
 _SPELLINGS = (
-    (re.compile(r"(?<![A-Za-z])([kMGmunpµμ]?)(?:Ohm|OHM|ohms|Ohms)\b"), r"\1ohm"),
+    (re.compile(r"(?<![A-Za-z])([kMGTmunpfµμ]?)(?:Ohm|OHM|ohms|Ohms)\b"), r"\1ohm"),
     (re.compile(r"Ω"), "ohm"),
-    (re.compile(r"(?<![A-Za-z])([kMGmunpµμ]?)R\b"), r"\1ohm"),
+    (re.compile(r"(?<![A-Za-z])([kMGTmunpfµμ]?)R\b"), r"\1ohm"),
     (re.compile(r"°C"), "degC"),
     (re.compile(r"\bdeg\s?C\b"), "degC"),
     (re.compile(r"µ|μ"), "u"),
@@ -69,6 +70,8 @@ def _registry() -> Any:
 
 
 def _normalise(text: str) -> str:
+    # NFC maps U+2126 OHM SIGN onto U+03A9 and the compatibility micro sign stays as it is.
+    text = unicodedata.normalize("NFC", text)
     for pattern, replacement in _SPELLINGS:
         text = pattern.sub(replacement, text)
     return text.strip()
@@ -127,6 +130,23 @@ def parse_quantity(value: Any, unit: Unit, *, key: str = "value") -> float:
                 f"e.g. \"{_example(unit)}\", or as a bare number in {unit.label}"
             )
         return number
+    if not re.search(r"\d|\b(?:nan|inf)", text, re.IGNORECASE):
+        # "kV" alone is almost surely an edit that lost its number; pint would read it as 1 kV.
+        raise QuantityError(
+            f"{key}: cannot read {value!r} as a quantity: it has no number; write a number and a "
+            f"unit, e.g. \"{_example(unit)}\""
+        )
+    try:
+        number = _convert_with_pint(text, value, unit, key)
+    except OverflowError:
+        number = math.inf
+    if not math.isfinite(number):
+        raise QuantityError(f"{key}: the value {value!r} is not finite; give a finite number")
+    return number
+
+
+def _convert_with_pint(text: str, value: Any, unit: Unit, key: str) -> float:
+    """Read normalised ``text`` with pint and convert it to ``unit``; may raise OverflowError."""
     registry = _registry()
     try:
         quantity = registry.Quantity(text)
@@ -156,10 +176,7 @@ def parse_quantity(value: Any, unit: Unit, *, key: str = "value") -> float:
         ) from None
     # 12 significant digits drop the binary noise of prefix arithmetic (2.2 nF -> 2.2e-09 exactly),
     # so that a preferred value typed by the user is recognised as one.
-    number = float(f"{float(converted.magnitude):.12g}")
-    if not math.isfinite(number):
-        raise QuantityError(f"{key}: the value {value!r} is not finite; give a finite number")
-    return number
+    return float(f"{float(converted.magnitude):.12g}")
 
 
 _EXAMPLES = {

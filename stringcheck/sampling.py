@@ -203,24 +203,28 @@ def draw_strings(design: Design, parameters: tuple[str, ...], first_trial: int, 
     share = monte_carlo.lot_share
 
 
+    # With correlations the copula is applied over every spread parameter in the fixed order of
+    # SPREAD_PARAMETERS, so that a parameter's draws never depend on which others were asked for.
+    full_matrix = correlation_matrix(monte_carlo.correlation, SPREAD_PARAMETERS)
+    correlated = not np.allclose(full_matrix, np.eye(len(SPREAD_PARAMETERS)))
+    latent_names = SPREAD_PARAMETERS if correlated else tuple(parameters)
     device_latent = {}
-    for parameter in parameters:
+    for parameter in latent_names:
         component = SPREAD_PARAMETERS.index(parameter)
         device_latent[parameter] = _normals(seed, first_trial, count, component, devices).reshape(shape)
     if share > 0:
         for name in used:
             lot = _normals(seed, first_trial, count, _part_stream_id(name), len(SPREAD_PARAMETERS))
             mask = grid == name
-            for parameter in parameters:
+            for parameter in latent_names:
                 column = lot[:, SPREAD_PARAMETERS.index(parameter)]
                 mixed = np.sqrt(share) * column[:, None, None] + np.sqrt(1 - share) * device_latent[
                     parameter]
                 device_latent[parameter] = np.where(mask, mixed, device_latent[parameter])
-    matrix = correlation_matrix(monte_carlo.correlation, parameters)
-    if not np.allclose(matrix, np.eye(len(parameters))):
-        factor = np.linalg.cholesky(matrix)
-        stacked = np.stack([device_latent[p] for p in parameters], axis=-1) @ factor.T
-        device_latent = {p: stacked[..., i] for i, p in enumerate(parameters)}
+    if correlated:
+        factor = np.linalg.cholesky(full_matrix)
+        stacked = np.stack([device_latent[p] for p in SPREAD_PARAMETERS], axis=-1) @ factor.T
+        device_latent = {p: stacked[..., SPREAD_PARAMETERS.index(p)] for p in parameters}
 
     values = {}
     for parameter in parameters:

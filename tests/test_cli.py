@@ -1,0 +1,396 @@
+"""The command line through typer's CliRunner: exit codes, report lines, machine output, `new`,
+and bad input turned into one line and exit code 2."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+from importlib import resources
+
+import pytest
+from scipy import stats
+from typer.testing import CliRunner
+
+from stringcheck.cli import app
+from stringcheck.design import load_design
+
+# The installed typer keeps stdout and stderr apart (Result.stdout / Result.stderr; `output` is
+# both interleaved), so no mix_stderr switch is needed.
+runner = CliRunner()
+
+DEMO_TEXT = (resources.files("stringcheck") / "data" / "demo.toml").read_text(encoding="utf-8")
+PASSING_TRIALS = "4000"  # above the 3688 that P(fail) <= 1e-3 needs (see the test below)
+
+# Fails the dynamic check: no grading capacitor and only 5 pF of junction capacitance against a
+# recovery-charge spread of tens of nC (dQ / C ~ 10 nC / 5 pF = 2 kV per stage, above the 1.28 kV
+# limit). Our own invented values.
+FAILING_DESIGN = """
+[design]
+title = "Undergraded test stack"
+[duty]
+reverse_voltage = "4 kV"
+waveform = "half-sine"
+frequency = "50 Hz"
+di_dt = "10 A/us"
+[string]
+series = 4
+part = "A"
+[parts.A]
+v_rrm = "1.6 kV"
+i_r = { typ = "0.2 uA", max = "2 uA" }
+q_rr = { typ = "80 nC", max = "300 nC" }
+c_j = "5 pF"
+[grading]
+resistor = "4.7 MOhm"
+resistor_tolerance = "1 %"
+[monte_carlo]
+trials = 2000
+seed = 3
+"""
+
+
+def flat(text: str) -> str:
+    """Report text with box-drawing borders removed and whitespace collapsed (rich wraps lines)."""
+    for border in "│╭╮╰╯─┃━┏┓┗┛┡┩╇┳┻╈":
+        text = text.replace(border, " ")
+    return " ".join(text.split())
+
+
+def invoke(*args: str):
+    return runner.invoke(app, list(args))
+
+
+def assert_no_traceback(result) -> None:
+    assert "Traceback" not in result.output, result.output
+    assert result.exception is None or isinstance(result.exception, SystemExit), result.exception
+
+
+@pytest.fixture(scope="module")
+def demo_file(tmp_path_factory):
+    path = tmp_path_factory.mktemp("demo") / "demo.toml"
+    path.write_text(DEMO_TEXT, encoding="utf-8")
+    return path
+
+
+@pytest.fixture(scope="module")
+def demo_run(demo_file):
+    """One check of the demo design with JSON and CSV output, shared by the tests that read them."""
+    json_path = demo_file.parent / "result.json"
+    csv_path = demo_file.parent / "positions.csv"
+    result = invoke("check", str(demo_file), "--trials", PASSING_TRIALS, "--json", str(json_path),
+                    "--csv", str(csv_path))
+    return result, json_path, csv_path
+
+
+# --- demo and verdicts -----------------------------------------------------------------------------
+
+def test_demo_passes_with_the_key_report_lines():
+    result = invoke("demo", "--trials", PASSING_TRIALS)
+    assert result.exit_code == 0, result.output
+    text = flat(result.stdout)
+    assert "VERDICT: PASS" in text
+    assert "High-voltage cautions" in text
+    assert "LETHAL VOLTAGE" in text
+    assert "60 V" in text  # IEC 61010-1 hazardous-live level (DESIGN.md section 7)
+    assert "IEC 60204-1 clause 6.2.4" in text
+    assert "IEC 60664-1" in text  # creepage and clearance not checked
+    assert "4,000 built strings drawn" in text
+    assert "Assumptions made" in text
+    assert result.stderr == ""
+
+
+def test_trials_needed_for_the_target_follow_clopper_pearson():
+    # With no failure in n trials the exact two-sided 95 % upper bound is beta.ppf(0.975, 1, n)
+    # (Clopper & Pearson, Biometrika 1934; scipy.stats.beta as reference). It first reaches 1e-3 at
+    # n = 3688, so 3000 trials cannot pass and 4000 can.
+    assert stats.beta.ppf(0.975, 1, 3688) <= 1e-3 < stats.beta.ppf(0.975, 1, 3687)
+    result = invoke("demo", "--trials", "3000")
+    assert result.exit_code == 1, result.output
+    text = flat(result.stdout)
+    assert "VERDICT: FAIL" in text
+    assert "3,000 trials cannot show P(fail) <= 0.001" in text
+    assert "run at least 3,688" in text
+
+
+def test_check_of_an_undergraded_design_fails(tmp_path):
+    path = tmp_path / "weak.toml"
+    path.write_text(FAILING_DESIGN, encoding="utf-8")
+    result = invoke("check", str(path))
+    assert result.exit_code == 1, result.output
+    text = flat(result.stdout)
+    assert "VERDICT: FAIL" in text
+    assert "dynamic:" in text and "have a device above its limit" in text
+    assert "Undergraded test stack" in text
+    assert_no_traceback(result)
+
+
+def test_too_few_devices_is_impossible_and_fails(tmp_path):
+    # 2 x 0.8 x 1.6 kV = 2.56 kV < 4 kV: no sharing can hold it.
+    path = tmp_path / "short.toml"
+    path.write_text(FAILING_DESIGN.replace("series = 4", "series = 2")
+                    .replace('c_j = "5 pF"', 'c_j = "5 pF"\n[sizing]\ntarget_p_fail = 0.5'),
+                    encoding="utf-8")
+    result = invoke("check", str(path), "--trials", "200")
+    assert result.exit_code == 1, result.output
+    assert "Impossible design" in flat(result.stdout)
+
+
+def test_quiet_prints_one_line():
+    result = invoke("demo", "--trials", "2000", "--quiet")
+    assert result.exit_code == 1, result.output  # 2000 trials cannot show the target
+    lines = result.stdout.strip().splitlines()
+    assert len(lines) == 1, result.stdout
+    assert lines[0].startswith("fail: static FAIL (P(fail) <= ")
+    assert "dynamic" in lines[0]
+
+
+# --- machine output --------------------------------------------------------------------------------
+
+def test_json_has_the_stable_keys(demo_run, demo_file):
+    # DESIGN.md section 6, "Machine-readable result".
+    result, json_path, _ = demo_run
+    assert result.exit_code == 0, result.output
+    data = json.loads(json_path.read_text(encoding="utf-8"))
+    assert data["schema"] == 1
+    assert data["design"] == {"title": "Precipitator supply, 30 kV stack of 24",
+                              "file": str(demo_file)}
+    assert data["trials"] == 4000
+    assert data["seed"] == 2026
+    assert data["verdict"] == "pass"
+    assert set(data["checks"]) == {"static", "dynamic"}
+    for name, check in data["checks"].items():
+        for key in ("passed", "worst_voltage", "worst_ratio", "p99_ratio", "p_fail", "p_fail_ci",
+                    "positions"):
+            assert key in check, (name, key)
+        assert check["passed"] is True
+        low, high = check["p_fail_ci"]
+        assert 0.0 <= low <= check["p_fail"] <= high <= 1e-3
+        assert 0 < check["p99_ratio"] <= check["worst_ratio"] <= 1.0
+        # worst_ratio is stress / allowed limit; the demo's limit is 0.8 x 2 kV = 1.6 kV.
+        assert check["worst_voltage"] == pytest.approx(check["worst_ratio"] * 1600.0, rel=1e-9)
+        assert len(check["positions"]) == 24
+        assert [p["index"] for p in check["positions"]] == list(range(1, 25))
+        # Mean stage voltages sum to the string voltage (Kirchhoff's voltage law), 30 kV.
+        assert sum(p["mean_voltage"] for p in check["positions"]) == pytest.approx(30e3, rel=1e-6)
+
+
+def test_csv_has_a_header_and_a_row_per_check_and_position(demo_run):
+    result, _, csv_path = demo_run
+    assert result.exit_code == 0, result.output
+    rows = list(csv.DictReader(io.StringIO(csv_path.read_text(encoding="utf-8"))))
+    assert list(rows[0]) == ["check", "branch", "index", "part", "limit_V", "mean_V", "std_V",
+                             "max_V", "failures"]
+    assert len(rows) == 2 * 24
+    assert {row["check"] for row in rows} == {"static", "dynamic"}
+    assert all(float(row["limit_V"]) == pytest.approx(1600.0) for row in rows)
+
+
+def test_json_to_stdout_keeps_the_report_on_stderr(demo_file):
+    result = invoke("check", str(demo_file), "--trials", "2000", "--json", "-")
+    assert result.exit_code == 1, result.output
+    data = json.loads(result.stdout)  # stdout holds the JSON and nothing else
+    assert data["trials"] == 2000 and data["verdict"] == "fail"
+    assert "VERDICT: FAIL" in flat(result.stderr)
+    assert "High-voltage cautions" in flat(result.stderr)
+
+
+def test_same_seed_gives_identical_json_and_another_seed_does_not(demo_file, tmp_path):
+    outputs = []
+    for seed, name in (("7", "a.json"), ("7", "b.json"), ("8", "c.json")):
+        target = tmp_path / name
+        result = invoke("check", str(demo_file), "--trials", "2000", "--seed", seed,
+                        "--json", str(target))
+        assert result.exit_code in (0, 1), result.output
+        outputs.append(target.read_bytes())
+    assert outputs[0] == outputs[1]
+    assert outputs[0] != outputs[2]
+    assert json.loads(outputs[0])["seed"] == 7
+
+
+# --- new -------------------------------------------------------------------------------------------
+
+def test_new_writes_a_loadable_design(tmp_path):
+    target = tmp_path / "stack.toml"
+    result = invoke("new", str(target))
+    assert result.exit_code == 0, result.output
+    assert "wrote" in result.stdout
+    design = load_design(target)
+    assert design.string.series == 10
+
+
+def test_new_refuses_to_overwrite_without_force(tmp_path):
+    target = tmp_path / "stack.toml"
+    original = b"# my own work, keep it\n\x00\xff"
+    target.write_bytes(original)
+    result = invoke("new", str(target))
+    assert result.exit_code == 2, result.output
+    assert target.read_bytes() == original
+    assert "already exists" in result.stderr and "--force" in result.stderr
+    assert_no_traceback(result)
+
+    result = invoke("new", str(target), "--force")
+    assert result.exit_code == 0, result.output
+    assert target.read_bytes() != original
+    load_design(target)
+
+
+# --- bad input -------------------------------------------------------------------------------------
+
+def _design_with(old: str, new: str) -> str:
+    assert old in FAILING_DESIGN
+    return FAILING_DESIGN.replace(old, new)
+
+
+BAD_INPUTS = [
+    # (id, file content or None for a missing file, fragment the one-line error must hold)
+    ("missing file", None, "no such file"),
+    ("empty file", b"", "empty"),
+    ("binary file", b"\x00\x01\x02stringcheck", "binary"),
+    ("not utf-8", 'title = "Caf\u00e9"'.encode("latin-1"), "UTF-8"),
+    ("toml syntax", "[duty\nreverse_voltage = 1\n", "line 1"),
+    ("unknown key", _design_with("series = 4", "serie = 4"), "string.serie"),
+    ("wrong unit", _design_with('reverse_voltage = "4 kV"', 'reverse_voltage = "4 kA"'),
+     "duty.reverse_voltage"),
+    ("missing reverse voltage", _design_with('reverse_voltage = "4 kV"', ""), "duty.reverse_voltage"),
+    ("series zero", _design_with("series = 4", "series = 0"), "string.series"),
+    ("series text", _design_with("series = 4", 'series = "ten"'), "string.series"),
+    ("undefined part", _design_with('part = "A"', 'part = "B"'), "string.part"),
+    ("negative resistor", _design_with('resistor = "4.7 MOhm"', 'resistor = "-4.7 MOhm"'),
+     "grading.resistor"),
+    ("derating", _design_with("series = 4", "series = 4\nderating = 1.5"), "string.derating"),
+    ("measured", _design_with('c_j = "5 pF"', 'c_j = "5 pF"\nmeasured = "x.csv"'),
+     "parts.A.measured"),
+    ("unknown class", _design_with('c_j = "5 pF"', 'c_j = "5 pF"\nclass = "si-schotky"'),
+     "parts.A.class"),
+    ("temperature as difference",
+     _design_with('part = "A"', 'part = "A"\n[[string.position]]\nindex = 1\n'
+                                'temperature_rise = "10 degC"'),
+     "string.position[1].temperature_rise"),
+    # Found by the study, not the loader: the dynamic check needs capacitance at every stage.
+    ("no capacitance", _design_with('c_j = "5 pF"', ""), "grading.capacitor"),
+]
+
+
+@pytest.mark.parametrize(("content", "fragment"), [case[1:] for case in BAD_INPUTS],
+                         ids=[case[0] for case in BAD_INPUTS])
+def test_bad_input_exits_2_with_one_line(tmp_path, content, fragment):
+    # DESIGN.md section 6: exit 2 on bad input; STYLE.md: the CLI prints one line, no traceback.
+    path = tmp_path / "bad.toml"
+    if content is not None:
+        path.write_bytes(content if isinstance(content, bytes) else content.encode("utf-8"))
+    result = invoke("check", str(path), "--trials", "100")
+    assert result.exit_code == 2, result.output
+    assert result.stdout == ""
+    message = result.stderr.strip()
+    assert "\n" not in message, message
+    assert message.startswith("error: "), message
+    assert fragment in message, message
+    assert str(path) in message, message  # the file is named too
+    assert_no_traceback(result)
+
+
+def test_at_least_ten_kinds_of_bad_input():
+    assert len(BAD_INPUTS) >= 10
+
+
+def test_bad_option_value_exits_2_without_traceback(demo_file):
+    result = invoke("check", str(demo_file), "--trials", "0")
+    assert result.exit_code == 2, result.output
+    assert "--trials" in result.stderr
+    assert_no_traceback(result)
+
+
+def test_json_into_a_missing_folder_exits_2(demo_file, tmp_path):
+    target = tmp_path / "no" / "such" / "folder" / "out.json"
+    result = invoke("check", str(demo_file), "--trials", "100", "--json", str(target))
+    assert result.exit_code == 2, result.output
+    assert "does not exist" in result.stderr
+    assert not target.exists()
+    assert_no_traceback(result)
+
+
+def test_existing_outputs_survive_a_run_that_fails_on_bad_input(tmp_path):
+    bad = tmp_path / "bad.toml"
+    bad.write_text(_design_with("series = 4", "series = 0"), encoding="utf-8")
+    json_target, csv_target = tmp_path / "keep.json", tmp_path / "keep.csv"
+    json_bytes, csv_bytes = b'{"verdict": "pass", "mine": true}\n', b"check,branch\r\nx,1\r\n"
+    json_target.write_bytes(json_bytes)
+    csv_target.write_bytes(csv_bytes)
+    result = invoke("check", str(bad), "--json", str(json_target), "--csv", str(csv_target))
+    assert result.exit_code == 2, result.output
+    assert json_target.read_bytes() == json_bytes
+    assert csv_target.read_bytes() == csv_bytes
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["bad.toml", "keep.csv", "keep.json"]
+
+
+def test_overflowing_quantity_is_bad_input(tmp_path):
+    path = tmp_path / "huge.toml"
+    path.write_text(_design_with('reverse_voltage = "4 kV"', 'reverse_voltage = "2**2000 V"'),
+                    encoding="utf-8")
+    result = invoke("check", str(path))
+    assert result.exit_code == 2, result.output
+    assert "duty.reverse_voltage" in result.stderr
+
+
+# --- size ------------------------------------------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def sized(demo_file):
+    """One `size` run of the demo design with JSON to a file, shared by the tests that read it."""
+    target = demo_file.parent / "sized.json"
+    result = invoke("size", str(demo_file), "--trials", PASSING_TRIALS, "--json", str(target))
+    return result, json.loads(target.read_text(encoding="utf-8"))
+
+
+def test_size_proposes_a_network_that_passes(sized):
+    result, data = sized
+    assert result.exit_code == 0, result.output
+    assert data["verdict"] == "pass"
+    text = flat(result.stdout)
+    for words in ("grading resistor", "grading capacitor", "damping resistor", "local electrical codes"):
+        assert words in text.lower(), words
+
+
+def test_size_json_has_the_grading_keys_of_design_md(sized):
+    # DESIGN.md / issue 3: `grading` holds resistor, capacitor, damping_resistor [SI], series_used
+    # and the ratings.
+    _, data = sized
+    grading = data["grading"]
+    for key in ("resistor", "capacitor", "damping_resistor", "series_used", "ratings"):
+        assert key in grading, key
+    assert grading["series_used"] == {"resistor": "E96", "capacitor": "E12"}
+    # The proposed values are members of the series used (IEC 60063 tables).
+    from stringcheck import eseries
+
+    assert eseries.round_nearest(grading["resistor"], "E96") == pytest.approx(grading["resistor"])
+    assert eseries.round_nearest(grading["capacitor"], "E12") == pytest.approx(grading["capacitor"])
+    assert grading["ratings"]["resistor_power_required"] > 0
+
+
+def test_size_series_options_change_the_series_used(demo_file, tmp_path):
+    target = tmp_path / "e24.json"
+    result = invoke("size", str(demo_file), "--trials", PASSING_TRIALS, "--resistor-series", "E24",
+                    "--capacitor-series", "E6", "--json", str(target), "--quiet")
+    assert result.exit_code == 0, result.output
+    grading = json.loads(target.read_text(encoding="utf-8"))["grading"]
+    assert grading["series_used"] == {"resistor": "E24", "capacitor": "E6"}
+    from stringcheck import eseries
+
+    assert eseries.round_nearest(grading["resistor"], "E24") == pytest.approx(grading["resistor"])
+    assert eseries.round_nearest(grading["capacitor"], "E6") == pytest.approx(grading["capacitor"])
+
+
+@pytest.mark.parametrize("option", ["--resistor-series", "--capacitor-series"])
+def test_size_unknown_series_is_bad_input(demo_file, option):
+    result = invoke("size", str(demo_file), "--trials", "100", option, "E7")
+    assert result.exit_code == 2, result.output
+    assert_no_traceback(result)
+    assert "E7" in result.stderr and len(result.stderr.strip().splitlines()) == 1
+
+
+def test_size_with_too_few_trials_says_how_many_are_needed(demo_file):
+    result = invoke("size", str(demo_file), "--trials", "500")
+    assert result.exit_code == 2, result.output
+    assert_no_traceback(result)
+    assert "--trials" in result.stderr
