@@ -17,7 +17,7 @@ import typer
 from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 
-from .errors import StringcheckError
+from .errors import ImpossibleDesignError, StringcheckError
 
 EXIT_PASS, EXIT_FAIL, EXIT_INPUT, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
 
@@ -82,6 +82,10 @@ def _run(action: Callable[[], int], debug: bool) -> None:
     """Run ``action`` and turn its outcome into an exit code, never a traceback (unless --debug)."""
     try:
         code = action()
+    except ImpossibleDesignError as error:
+        _console(stderr=True, wrap=False).print(f"[bold red]impossible design:[/] {_one_line(error)}",
+                                                markup=True)
+        code = EXIT_FAIL
     except StringcheckError as error:
         _console(stderr=True, wrap=False).print(f"[bold red]error:[/] {_one_line(error)}",
                                                 markup=True)

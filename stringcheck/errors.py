@@ -44,3 +44,10 @@ class DesignError(StringcheckError):
 
 class SizingError(StringcheckError):
     """The sizing search was asked something it cannot answer (bad target, unknown series)."""
+
+
+class ImpossibleDesignError(StringcheckError):
+    """The design cannot pass whatever is drawn or sized (e.g. too few devices for the voltage).
+
+    The command line reports it as a failed design (exit code 1), not as bad input.
+    """

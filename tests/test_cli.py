@@ -141,7 +141,9 @@ def test_quiet_prints_one_line():
     assert result.exit_code == 1, result.output  # 2000 trials cannot show the target
     lines = result.stdout.strip().splitlines()
     assert len(lines) == 1, result.stdout
-    assert lines[0].startswith("fail: static FAIL (P(fail) <= ")
+    # No failure in 2000 trials, but the exact upper bound 1 - 0.025**(1/2000) = 0.0018 > 1e-3.
+    assert lines[0].startswith("fail: static FAIL, too few trials to show the target (0/2,000 "
+                               "failed, P(fail) upper bound 0.0018 vs target 0.001)"), lines[0]
     assert "dynamic" in lines[0]
 
 
@@ -394,3 +396,13 @@ def test_size_with_too_few_trials_says_how_many_are_needed(demo_file):
     assert result.exit_code == 2, result.output
     assert_no_traceback(result)
     assert "--trials" in result.stderr
+
+
+def test_size_of_an_impossible_string_exits_1_with_the_arithmetic(tmp_path):
+    # 4 kV across 2 devices of 1.6 kV at derating 0.8: 2 x 1280 V = 2560 V < 4000 V.
+    path = tmp_path / "short.toml"
+    path.write_text(FAILING_DESIGN.replace("series = 4", "series = 2"), encoding="utf-8")
+    result = invoke("size", str(path), "--trials", PASSING_TRIALS)
+    assert result.exit_code == 1, result.output
+    assert_no_traceback(result)
+    assert "2560 V" in result.stderr and "--find-series" in result.stderr

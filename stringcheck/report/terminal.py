@@ -200,10 +200,17 @@ def render_check_summary(result: CheckResult, console: Console) -> None:
     parts = []
     for name, check in result.checks.items():
         if check.ran:
-            parts.append(f"{name} {'pass' if check.passed else 'FAIL'} "
-                         f"(P(fail) <= {check.estimate.ci_high:.2g})")
+            estimate = check.estimate
+            status = "pass" if check.passed else "FAIL"
+            if not check.passed and estimate.failures == 0:
+                status = "FAIL, too few trials to show the target"
+            parts.append(f"{name} {status} "
+                         f"({estimate.failures:,}/{result.trials:,} failed, P(fail) upper bound "
+                         f"{estimate.ci_high:.2g} vs target {result.target_p_fail:g})")
         else:
             parts.append(f"{name} not run")
+    if result.impossible is not None:
+        parts.append("impossible design")
     console.print(f"{result.verdict}: " + ", ".join(parts), highlight=False)
 
 

@@ -21,7 +21,7 @@ import numpy as np
 
 from .. import eseries
 from ..design import Design
-from ..errors import SizingError
+from ..errors import ImpossibleDesignError, SizingError
 from ..physics.grading import (
     discharge_time,
     resistor_power,
@@ -131,43 +131,63 @@ def size(design: Design, *, trials: int | None = None, seed: int | None = None,
             f"{trials} trials cannot show P(fail) <= {target:g} at {confidence:.0%} confidence even "
             f"with no failure; use --trials {needed} or more (or raise [sizing] target_p_fail)")
     say = progress or (lambda message: None)
+    design = _enough_devices(design, find_series)
 
-    def evaluate(check_name: str, candidate_design: Design) -> Candidate:
-        result = run_check(candidate_design, trials=trials, seed=seed, only=(check_name,))
-        outcome = result.checks[check_name]
-        upper = outcome.estimate.ci_high
-        return Candidate(value=math.nan, passed=upper <= target, failures=outcome.estimate.failures,
-                         p_fail_upper=upper, worst_ratio=outcome.worst_ratio)
+    def network(design: Design) -> tuple[LadderChoice, LadderChoice | None, Design]:
+        """Size R (and C) for the design's device count; SizingError when none meets the target."""
+        def evaluate(check_name: str, candidate_design: Design) -> Candidate:
+            result = run_check(candidate_design, trials=trials, seed=seed, only=(check_name,))
+            outcome = result.checks[check_name]
+            upper = outcome.estimate.ci_high
+            return Candidate(value=math.nan, passed=upper <= target,
+                             failures=outcome.estimate.failures, p_fail_upper=upper,
+                             worst_ratio=outcome.worst_ratio)
 
-    def with_resistor(value: float) -> Design:
-        return replace(design, grading=replace(design.grading, resistor=value))
+        def with_resistor(value: float) -> Design:
+            return replace(design, grading=replace(design.grading, resistor=value))
 
-    say(f"resistor ({r_series})")
-    resistor = _search(lambda value: replace(evaluate("static", with_resistor(value)), value=value),
-                       r_series, _static_bound(design), _RESISTOR_RANGE, larger_is_harder=True)
-    if resistor.chosen is None:
-        raise SizingError("no grading resistor between 1 ohm and 100 GOhm meets the target (with a "
-                          "small R the sharing follows the resistor tolerance); add devices or "
-                          "tighten grading.resistor_tolerance")
-    sized = with_resistor(resistor.chosen.value)
+        say(f"resistor ({r_series})")
+        resistor = _search(lambda value: replace(evaluate("static", with_resistor(value)),
+                                                 value=value),
+                           r_series, _static_bound(design), _RESISTOR_RANGE, larger_is_harder=True)
+        if resistor.chosen is None:
+            raise SizingError("no grading resistor between 1 ohm and 100 GOhm meets the target "
+                              "(with a small R the sharing follows the resistor tolerance); add "
+                              "devices (--find-series) or tighten grading.resistor_tolerance")
+        sized = with_resistor(resistor.chosen.value)
 
-    capacitor = None
-    dynamic_needed = not (design.duty.waveform == "dc" and design.duty.di_dt is None)
-    if dynamic_needed:
-        say(f"capacitor ({c_series})")
+        capacitor = None
+        dynamic_needed = not (design.duty.waveform == "dc" and design.duty.di_dt is None)
+        if dynamic_needed:
+            say(f"capacitor ({c_series})")
 
-        def with_capacitor(value: float) -> Design:
-            return replace(sized, grading=replace(sized.grading, capacitor=value))
+            def with_capacitor(value: float) -> Design:
+                return replace(sized, grading=replace(sized.grading, capacitor=value))
 
-        capacitor = _search(lambda value: replace(evaluate("dynamic", with_capacitor(value)),
-                                                  value=value),
-                            c_series, _dynamic_bound(sized), _CAPACITOR_RANGE,
-                            larger_is_harder=False)
-        if capacitor.chosen is None:
-            raise SizingError("no grading capacitor up to 1 mF meets the target at turn-off (with a "
-                              "large C the sharing follows the capacitor tolerance); add devices, "
-                              "tighten grading.capacitor_tolerance or the parts' Q_rr spread")
-        sized = with_capacitor(capacitor.chosen.value)
+            capacitor = _search(lambda value: replace(evaluate("dynamic", with_capacitor(value)),
+                                                      value=value),
+                                c_series, _dynamic_bound(sized), _CAPACITOR_RANGE,
+                                larger_is_harder=False)
+            if capacitor.chosen is None:
+                raise SizingError("no grading capacitor up to 1 mF meets the target at turn-off "
+                                  "(with a large C the sharing follows the capacitor tolerance); "
+                                  "add devices (--find-series), tighten "
+                                  "grading.capacitor_tolerance or the parts' Q_rr spread")
+            sized = with_capacitor(capacitor.chosen.value)
+        return resistor, capacitor, sized
+
+    # With --find-series a count too short for any network is lengthened until one exists; the
+    # smallest count that passes with that network is searched below.
+    count_limit = max(2 * design.string.series, _minimum_series(design) + 8)
+    while True:
+        try:
+            resistor, capacitor, sized = network(design)
+            break
+        except SizingError:
+            if not find_series or design.string.series >= count_limit:
+                raise
+            design = _with_series(design, design.string.series + 1)
+            say(f"no network at the present count; trying {design.string.series} devices")
 
     damping, rule = _damping_resistor(sized)
     if damping is not None:
@@ -340,15 +360,46 @@ def _damping_resistor(design: Design) -> tuple[float | None, str]:
     return chosen, "; ".join(reasons) + f"; rounded up to E12: {chosen:.3g} ohm"
 
 
+def _minimum_series(design: Design) -> int:
+    """The fewest devices that can hold V_s even with perfect sharing: ceil(V_s / (derating V_RRM))."""
+    _, v_dm = _corner_limits(design)
+    return max(1, math.ceil(design.duty.reverse_voltage / v_dm))
+
+
+def _with_series(design: Design, count: int) -> Design:
+    layout = design.string
+    positions = tuple(p for p in layout.positions if p.index <= count)
+    return replace(design, string=replace(layout, series=count, positions=positions))
+
+
+def _enough_devices(design: Design, find_series: bool) -> Design:
+    """The design itself, or (with --find-series) the design raised to the minimum device count.
+
+    Raises ImpossibleDesignError, with the arithmetic, when the string is too short and the device
+    count is not to be searched: no grading network can make up for missing devices.
+    """
+    layout = design.string
+    grid = design.string.part_grid()
+    capacity = min(sum(layout.derating * design.parts[name].v_rrm for name in row) for row in grid)
+    if capacity >= design.duty.reverse_voltage:
+        return design
+    minimum = max(_minimum_series(design), layout.series + 1)
+    if find_series:
+        return _with_series(design, minimum)
+    raise ImpossibleDesignError(
+        f"{design.source or 'design'}: the string cannot hold {design.duty.reverse_voltage:g} V even "
+        f"with perfect sharing: derating x V_RRM summed over the {layout.series} devices of a branch "
+        f"is {capacity:g} V (derating {layout.derating:g}); no grading network can fix that: use "
+        f"string.series >= {minimum}, or add --find-series")
+
+
 def _smallest_series(design: Design, trials: int, seed: int) -> Design:
     """The smallest device count that passes the whole check with the design's network."""
     layout = design.string
     target = design.sizing.target_p_fail
-    _, v_dm = _corner_limits(design)
-    start = max(1, math.ceil(design.duty.reverse_voltage / v_dm))
+    start = _minimum_series(design)
     for count in range(start, max(start * 4, layout.series * 2) + 1):
-        positions = tuple(p for p in layout.positions if p.index <= count)
-        candidate = replace(design, string=replace(layout, series=count, positions=positions))
+        candidate = _with_series(design, count)
         result = run_check(candidate, trials=trials, seed=seed)
         ran = [check for check in result.checks.values() if check.ran]
         if all(check.estimate.ci_high <= target for check in ran) and result.impossible is None:

@@ -10,7 +10,7 @@ from hypothesis import strategies as st
 
 from stringcheck import eseries
 from stringcheck.design import parse_design_text
-from stringcheck.errors import DesignError, SizingError
+from stringcheck.errors import DesignError, ImpossibleDesignError, SizingError
 from stringcheck.physics.grading import worst_case_dynamic_capacitance, worst_case_static_resistance
 from stringcheck.studies.check import run_check
 from stringcheck.studies.size import size
@@ -109,6 +109,22 @@ def test_find_series_gives_the_smallest_count_that_passes():
     fewer = replace(result.design, string=replace(layout, series=n - 1, positions=tuple(
         p for p in layout.positions if p.index <= n - 1)))
     assert run_check(fewer).verdict == "fail"
+
+
+def test_too_short_a_string_is_impossible_with_the_arithmetic():
+    # Perfect sharing is the best any network can do: n x derating x V_RRM = 6 x 0.9 x 1400 V
+    # = 7560 V < 9000 V, so no R or C can pass (the string needs ceil(9000 / 1260) = 8 devices).
+    design = parse_design_text(corner(n=6))
+    with pytest.raises(ImpossibleDesignError, match=r"7560 V.*string.series >= 8"):
+        size(design)
+
+
+def test_find_series_lengthens_an_impossible_string():
+    # The same string with --find-series starts at the minimum count and grows until a network
+    # passes; the answer is then at least that minimum, and passes.
+    result = size(parse_design_text(corner(n=6)), find_series=True)
+    assert result.series_count >= 8
+    assert result.check.verdict == "pass"
 
 
 def test_too_few_trials_for_the_target_is_a_clear_error():
