@@ -37,6 +37,8 @@ _CSV = typer.Option(None, "--csv", help="Write per-position statistics to PATH a
                     metavar="PATH")
 _QUIET = typer.Option(False, "--quiet", "-q", help="Print only a one-line verdict.")
 _DEBUG = typer.Option(False, "--debug", help="Show the traceback of an internal error.")
+_WORKERS = typer.Option(1, "--workers", help="Processes to run the trials in (the result is the "
+                                             "same for any number).")
 
 
 def _console(stderr: bool = False, *, wrap: bool = True) -> Console:
@@ -104,7 +106,8 @@ def _run(action: Callable[[], int], debug: bool) -> None:
     raise typer.Exit(code)
 
 
-def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, source_label=None) -> int:
+def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
+           source_label=None) -> int:
     from .design import load_design
     from .report.export import json_text, positions_csv, result_to_dict, write_text_atomic
     from .report.terminal import render_check, render_check_summary
@@ -118,7 +121,7 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, source_label
     to_stdout = json_path == "-"
     progress = _DelayedProgress(enabled=not quiet, label="drawing strings")
     try:
-        result = run_check(design, trials=trials, seed=seed, progress=progress)
+        result = run_check(design, trials=trials, seed=seed, progress=progress, workers=workers)
     finally:
         progress.close()
     if json_path is not None:
@@ -142,15 +145,16 @@ def check(
     json: Optional[str] = _JSON,
     csv: Optional[str] = _CSV,
     quiet: bool = _QUIET,
+    workers: int = _WORKERS,
     debug: bool = _DEBUG,
 ) -> None:
     """Check a series string: static and dynamic voltage sharing, P(fail), grading ratings."""
-    _run(lambda: _check(file, trials=trials, seed=seed, json_path=json, csv_path=csv, quiet=quiet),
-         debug)
+    _run(lambda: _check(file, trials=trials, seed=seed, json_path=json, csv_path=csv, quiet=quiet,
+                        workers=workers), debug)
 
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,
-          find_series) -> int:
+          find_series, workers=1) -> int:
     from .design import load_design
     from .report.export import json_text, sizing_to_dict, write_text_atomic
     from .report.terminal import render_check_summary, render_sizing
@@ -165,7 +169,7 @@ def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capaci
 
         result = run_size(design, trials=trials, seed=seed, resistor_series=resistor_series,
                           capacitor_series=capacitor_series, find_series=find_series,
-                          progress=progress)
+                          progress=progress, workers=workers)
     if json_path is not None:
         write_text_atomic(json_path, json_text(sizing_to_dict(result)))
     console = _console(stderr=json_path == "-", wrap=not quiet)
@@ -202,12 +206,13 @@ def size(
     seed: Optional[int] = _SEED,
     json: Optional[str] = _JSON,
     quiet: bool = _QUIET,
+    workers: int = _WORKERS,
     debug: bool = _DEBUG,
 ) -> None:
     """Propose grading R, C and damping resistor from preferred values, with their ratings."""
     _run(lambda: _size(file, trials=trials, seed=seed, json_path=json, quiet=quiet,
                        resistor_series=resistor_series, capacitor_series=capacitor_series,
-                       find_series=find_series), debug)
+                       find_series=find_series, workers=workers), debug)
 
 
 @app.command()
@@ -217,13 +222,14 @@ def demo(
     json: Optional[str] = _JSON,
     csv: Optional[str] = _CSV,
     quiet: bool = _QUIET,
+    workers: int = _WORKERS,
     debug: bool = _DEBUG,
 ) -> None:
     """Run the check on the bundled example design (an invented 30 kV stack)."""
     def action() -> int:
         with resources.as_file(resources.files("stringcheck") / "data" / "demo.toml") as path:
             return _check(path, trials=trials, seed=seed, json_path=json, csv_path=csv,
-                          quiet=quiet, source_label="demo (bundled example)")
+                          quiet=quiet, workers=workers, source_label="demo (bundled example)")
 
     _run(action, debug)
 

@@ -406,3 +406,24 @@ def test_size_of_an_impossible_string_exits_1_with_the_arithmetic(tmp_path):
     assert result.exit_code == 1, result.output
     assert_no_traceback(result)
     assert "2560 V" in result.stderr and "--find-series" in result.stderr
+
+
+# --- workers ---------------------------------------------------------------------------------------
+
+def test_workers_two_and_one_give_identical_json(demo_file, tmp_path):
+    # DESIGN.md section 5: chunk c uses its own streams, so the result does not depend on the
+    # number of worker processes. 2 chunks of 4096 trials so that both workers get one.
+    outputs = []
+    for workers in ("1", "2"):
+        target = tmp_path / f"w{workers}.json"
+        result = invoke("check", str(demo_file), "--trials", "8192", "--workers", workers,
+                        "--json", str(target), "--quiet")
+        assert result.exit_code == 0, result.output
+        outputs.append(target.read_bytes())
+    assert outputs[0] == outputs[1]
+
+
+def test_workers_below_one_is_bad_input(demo_file):
+    result = invoke("check", str(demo_file), "--workers", "0")
+    assert result.exit_code == 2, result.output
+    assert "--workers" in result.stderr

@@ -9,6 +9,7 @@ short to show it cannot pass. Results are plain dataclasses; nothing here format
 
 from __future__ import annotations
 
+from contextlib import nullcontext
 from dataclasses import dataclass, field, replace
 from typing import Callable, Mapping
 
@@ -24,6 +25,7 @@ from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
 from ..solvers.series_dynamic import solve_dynamic_sharing
 from ..solvers.series_static import solve_static_sharing
 from ..stats import FailureEstimate, failure_estimate, histogram_counts, trials_for_upper_bound
+from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 
 # A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
 # in the trial count.
@@ -122,8 +124,8 @@ class _Accumulator:
     shape: tuple[int, int]
     limits: np.ndarray
     count: int = 0
-    total: np.ndarray = field(init=False)
-    total_squares: np.ndarray = field(init=False)
+    block_totals: list = field(default_factory=list)
+    block_squares: list = field(default_factory=list)
     maximum: np.ndarray = field(init=False)
     failures_by_position: np.ndarray = field(init=False)
     worst_ratios: list = field(default_factory=list)
@@ -133,21 +135,38 @@ class _Accumulator:
     worst_string: np.ndarray | None = None
 
     def __post_init__(self) -> None:
-        self.total = np.zeros(self.shape)
-        self.total_squares = np.zeros(self.shape)
         self.maximum = np.full(self.shape, -np.inf)
         self.failures_by_position = np.zeros(self.shape, dtype=np.int64)
+
+    def merge(self, other: "_Accumulator") -> None:
+        """Add the sums of a later chunk (chunks are merged in trial order)."""
+        self.count += other.count
+        self.block_totals.extend(other.block_totals)
+        self.block_squares.extend(other.block_squares)
+        self.maximum = np.maximum(self.maximum, other.maximum)
+        self.failures_by_position += other.failures_by_position
+        self.worst_ratios.extend(other.worst_ratios)
+        self.unsolved += other.unsolved
+        if other.worst_ratio > self.worst_ratio:
+            self.worst_ratio = other.worst_ratio
+            self.worst_trial = other.worst_trial
+            self.worst_string = other.worst_string
 
     def add(self, voltages: np.ndarray, solved: np.ndarray, first_trial: int) -> None:
         solved = solved & np.all(np.isfinite(voltages), axis=(1, 2))
         ratio = voltages / self.limits
         trial_ratio = np.where(solved, np.max(ratio, axis=(1, 2)), np.inf)
         self.unsolved += int(np.count_nonzero(~solved))
+        # Sums are shifted by the limit to keep the variance sum well conditioned, and are kept
+        # per sampling block (chunks start on block boundaries) and added up in block order at the
+        # end, so that they are the same bit for bit whatever the chunk size or the number of
+        # worker processes.
+        for start in range(0, voltages.shape[0], BLOCK_TRIALS):
+            block = slice(start, start + BLOCK_TRIALS)
+            shifted = voltages[block][solved[block]] - self.limits
+            self.block_totals.append(shifted.sum(axis=0))
+            self.block_squares.append(np.square(shifted).sum(axis=0))
         good = voltages[solved]
-        # Sums are shifted by the limit to keep the variance sum well conditioned.
-        shifted = good - self.limits
-        self.total += shifted.sum(axis=0)
-        self.total_squares += np.square(shifted).sum(axis=0)
         self.count += good.shape[0]
         if good.shape[0]:
             self.maximum = np.maximum(self.maximum, good.max(axis=0))
@@ -162,7 +181,8 @@ class _Accumulator:
 
 def run_check(design: Design, *, trials: int | None = None, seed: int | None = None,
               chunk_trials: int | None = None, only: tuple[str, ...] | None = None,
-              progress: ProgressCallback | None = None) -> CheckResult:
+              progress: ProgressCallback | None = None, workers: int = 1,
+              pool: WorkerPool | None = None) -> CheckResult:
     """Run the series check of ``design`` (static sharing always, dynamic when there is a turn-off).
 
     Parameters
@@ -178,6 +198,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         reported as not run.
     progress
         Called with (trials done, trials in all) after each chunk.
+    workers, pool
+        Run the chunks in ``workers`` processes, or in an open ``pool`` (see ``runner.worker_pool``);
+        the result is identical to a run in this process.
     """
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
@@ -214,20 +237,21 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     parameters = ("i_r", "q_rr") if run_dynamic else ("i_r",)
     static = _Accumulator(shape, limits) if run_static else None
     dynamic = _Accumulator(shape, limits) if run_dynamic else None
-
-    if chunk_trials is None:
-        chunk_trials = max(BLOCK_TRIALS, _CHUNK_ELEMENTS // (layout.series * layout.parallel))
-    done = 0
-    for first, count in chunk_bounds(trials, chunk_trials):
-        drawn = draw_strings(design, parameters, first, count, seed=seed)
-        if static is not None:
-            _static_chunk(design, drawn, static, temperature, reference_voltage,
-                          reference_temperature, doubling, exponent)
-        if dynamic is not None:
-            _dynamic_chunk(design, drawn, dynamic, junction_capacitance)
-        done += count
-        if progress is not None:
-            progress(done, trials)
+    context = _ChunkContext(design=design, seed=seed, parameters=parameters, run_static=run_static,
+                            run_dynamic=run_dynamic, limits=limits, temperature=temperature,
+                            reference_voltage=reference_voltage,
+                            reference_temperature=reference_temperature, doubling=doubling,
+                            exponent=exponent, junction_capacitance=junction_capacitance)
+    with worker_pool(workers) if pool is None else nullcontext(pool) as active:
+        if chunk_trials is None:
+            chunk_trials = chunk_size(trials, _CHUNK_ELEMENTS // (layout.series * layout.parallel),
+                                      active)
+        bounds = chunk_bounds(trials, chunk_trials)
+        for outcome in map_chunks(_run_chunk, context, bounds, pool=active, progress=progress):
+            if static is not None:
+                static.merge(outcome.static)
+            if dynamic is not None:
+                dynamic.merge(outcome.dynamic)
 
     confidence = design.monte_carlo.confidence
     target = design.sizing.target_p_fail
@@ -250,6 +274,46 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                        verdict=verdict, impossible=impossible,
                        assumptions=design.assumptions + _model_assumptions(design, run_dynamic),
                        no_scatter=_no_scatter(design, parameters))
+
+
+@dataclass(frozen=True)
+class _ChunkContext:
+    """What every chunk needs: picklable, so that chunks can run in worker processes."""
+
+    design: Design
+    seed: int
+    parameters: tuple[str, ...]
+    run_static: bool
+    run_dynamic: bool
+    limits: np.ndarray
+    temperature: np.ndarray
+    reference_voltage: np.ndarray
+    reference_temperature: np.ndarray
+    doubling: np.ndarray
+    exponent: np.ndarray
+    junction_capacitance: np.ndarray
+
+
+@dataclass(frozen=True)
+class _ChunkOutcome:
+    static: _Accumulator | None
+    dynamic: _Accumulator | None
+
+
+def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
+    """Draw and solve one chunk of trials; its sums, to be merged in trial order."""
+    design = context.design
+    shape = context.limits.shape
+    drawn = draw_strings(design, context.parameters, first, count, seed=context.seed)
+    static = dynamic = None
+    if context.run_static:
+        static = _Accumulator(shape, context.limits)
+        _static_chunk(design, drawn, static, context.temperature, context.reference_voltage,
+                      context.reference_temperature, context.doubling, context.exponent)
+    if context.run_dynamic:
+        dynamic = _Accumulator(shape, context.limits)
+        _dynamic_chunk(design, drawn, dynamic, context.junction_capacitance)
+    return _ChunkOutcome(static=static, dynamic=dynamic)
 
 
 def _static_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulator,
@@ -294,8 +358,13 @@ def _finish(name: str, accumulator: _Accumulator, grid: np.ndarray, confidence: 
     failures = int(np.count_nonzero(~(ratios <= 1.0)))
     estimate = failure_estimate(failures, trials, confidence=confidence)
     count = max(accumulator.count, 1)
-    mean_shift = accumulator.total / count
-    variance = np.maximum(accumulator.total_squares / count - mean_shift ** 2, 0.0)
+    total = np.zeros(grid.shape)
+    total_squares = np.zeros(grid.shape)
+    for block_total, block_squares in zip(accumulator.block_totals, accumulator.block_squares):
+        total += block_total
+        total_squares += block_squares
+    mean_shift = total / count
+    variance = np.maximum(total_squares / count - mean_shift ** 2, 0.0)
     if accumulator.count > 1:
         variance *= accumulator.count / (accumulator.count - 1)
     mean = mean_shift + accumulator.limits

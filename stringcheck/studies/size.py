@@ -32,6 +32,7 @@ from ..physics.grading import (
 from ..physics.leakage import leakage_current
 from ..stats import trials_for_upper_bound
 from .check import CheckResult, run_check
+from .runner import WorkerPool, worker_pool
 
 # Range of the ladders searched [ohm], [F]: wide enough for any grading network we know of.
 _RESISTOR_RANGE = (1.0, 1e11)
@@ -102,7 +103,8 @@ Evaluate = Callable[[float], Candidate]
 
 def size(design: Design, *, trials: int | None = None, seed: int | None = None,
          resistor_series: str | None = None, capacitor_series: str | None = None,
-         find_series: bool = False, progress: Callable[[str], None] | None = None) -> SizingResult:
+         find_series: bool = False, progress: Callable[[str], None] | None = None,
+         workers: int = 1) -> SizingResult:
     """Propose the grading network of ``design`` from preferred values.
 
     Parameters
@@ -118,7 +120,19 @@ def size(design: Design, *, trials: int | None = None, seed: int | None = None,
         Also find the smallest device count that passes with the chosen network.
     progress
         Called with a short description of each search step.
+    workers
+        Processes to run each check's trials in (one pool serves the whole search); the answer is
+        the same for any number.
     """
+    with worker_pool(workers) as pool:
+        return _size(design, trials=trials, seed=seed, resistor_series=resistor_series,
+                     capacitor_series=capacitor_series, find_series=find_series,
+                     progress=progress, pool=pool)
+
+
+def _size(design: Design, *, trials: int | None, seed: int | None, resistor_series: str | None,
+          capacitor_series: str | None, find_series: bool,
+          progress: Callable[[str], None] | None, pool: WorkerPool | None) -> SizingResult:
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
     r_series = eseries.canonical_series_name(resistor_series or design.sizing.resistor_series)
@@ -136,7 +150,8 @@ def size(design: Design, *, trials: int | None = None, seed: int | None = None,
     def network(design: Design) -> tuple[LadderChoice, LadderChoice | None, Design]:
         """Size R (and C) for the design's device count; SizingError when none meets the target."""
         def evaluate(check_name: str, candidate_design: Design) -> Candidate:
-            result = run_check(candidate_design, trials=trials, seed=seed, only=(check_name,))
+            result = run_check(candidate_design, trials=trials, seed=seed, only=(check_name,),
+                               pool=pool)
             outcome = result.checks[check_name]
             upper = outcome.estimate.ci_high
             return Candidate(value=math.nan, passed=upper <= target,
@@ -196,11 +211,11 @@ def size(design: Design, *, trials: int | None = None, seed: int | None = None,
     series_count = sized.string.series
     if find_series:
         say("device count")
-        sized = _smallest_series(sized, trials, seed)
+        sized = _smallest_series(sized, trials, seed, pool)
         series_count = sized.string.series
 
     say("final check")
-    check = run_check(sized, trials=trials, seed=seed)
+    check = run_check(sized, trials=trials, seed=seed, pool=pool)
     ratings = _ratings(sized, check)
     advisories = list(check.grading.advisories)
     if sized.grading.capacitor is not None and damping is not None:
@@ -393,14 +408,14 @@ def _enough_devices(design: Design, find_series: bool) -> Design:
         f"string.series >= {minimum}, or add --find-series")
 
 
-def _smallest_series(design: Design, trials: int, seed: int) -> Design:
+def _smallest_series(design: Design, trials: int, seed: int, pool: WorkerPool | None) -> Design:
     """The smallest device count that passes the whole check with the design's network."""
     layout = design.string
     target = design.sizing.target_p_fail
     start = _minimum_series(design)
     for count in range(start, max(start * 4, layout.series * 2) + 1):
         candidate = _with_series(design, count)
-        result = run_check(candidate, trials=trials, seed=seed)
+        result = run_check(candidate, trials=trials, seed=seed, pool=pool)
         ran = [check for check in result.checks.values() if check.ran]
         if all(check.estimate.ci_high <= target for check in ran) and result.impossible is None:
             return candidate

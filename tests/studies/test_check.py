@@ -143,8 +143,8 @@ def test_result_does_not_depend_on_chunk_size():
         assert a.worst_voltage == b.worst_voltage
         assert a.worst_trial == b.worst_trial
         assert a.estimate == b.estimate
-        np.testing.assert_allclose([p.mean_voltage for p in a.positions],
-                                   [p.mean_voltage for p in b.positions], rtol=1e-12)
+        # Sums are kept per sampling block and added in block order: identical, not just close.
+        assert a.positions == b.positions
 
 
 def test_same_seed_same_answer_and_other_seed_differs():
