@@ -349,7 +349,15 @@ def _stage_voltage(
             (current - coefficient) / conductance,
             current / (conductance + coefficient),
         )
-    power_law = ~((exponent == 0.0) | (exponent == 1.0))
+    # m = 1/2 (generation current, the default) is a quadratic in sqrt(V): G x^2 + c x - I = 0,
+    # whose positive root, in the cancellation-free form x = 2 I / (c + sqrt(c^2 + 4 G I)), is exact.
+    square_root_law = exponent == 0.5
+    if np.any(square_root_law):
+        i, g, c = current[square_root_law], conductance[square_root_law], coefficient[square_root_law]
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            root = 2.0 * i / (c + np.sqrt(c * c + 4.0 * g * i))
+        result[square_root_law] = root * root
+    power_law = ~((exponent == 0.0) | (exponent == 1.0) | square_root_law)
     if np.any(power_law):
         result[power_law] = _power_law_inverse(
             current[power_law], conductance[power_law], coefficient[power_law], exponent[power_law]
