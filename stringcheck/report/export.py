@@ -16,7 +16,9 @@ from typing import TYPE_CHECKING, Any
 
 from ..errors import StringcheckError
 from ..studies.check import CheckResult, SeriesCheck
+from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
+from .forward import parallel_to_dict, thermal_to_dict
 
 if TYPE_CHECKING:
     from ..studies.size import SizingResult
@@ -57,11 +59,20 @@ def check_to_dict(check: SeriesCheck) -> dict[str, Any]:
     }
 
 
+def _any_check_to_dict(check) -> dict[str, Any]:
+    if isinstance(check, ParallelCheck):
+        return parallel_to_dict(check)
+    if isinstance(check, ThermalCheck):
+        return thermal_to_dict(check)
+    return check_to_dict(check)
+
+
 def result_to_dict(result: CheckResult) -> dict[str, Any]:
     """The whole result of ``check`` as a JSON-ready dictionary (SI units, temperatures in degC)."""
     design = result.design
     grading = result.grading
-    checks = {name: check_to_dict(check) for name, check in result.checks.items() if check.ran}
+    checks = {name: _any_check_to_dict(check) for name, check in result.checks.items()
+              if check.ran}
     skipped = {name: check.reason for name, check in result.checks.items() if not check.ran}
     return {
         "schema": SCHEMA_VERSION,
@@ -104,10 +115,13 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
 
 
 def positions_csv(result: CheckResult) -> str:
-    """Per-position statistics of every check that ran, one row per check and position."""
+    """Per-position voltage statistics of every series check that ran, one row per check and
+    position (the forward checks' per-branch and per-device figures are in the JSON)."""
     header = "check,branch,index,part,limit_V,mean_V,std_V,max_V,failures"
     rows = [header]
     for name, check in result.checks.items():
+        if not isinstance(check, SeriesCheck):
+            continue
         for p in check.positions:
             rows.append(f"{name},{p.branch},{p.index},{_csv_text(p.part)},{p.limit:.6g},"
                         f"{p.mean_voltage:.6g},{p.std_voltage:.6g},{p.max_voltage:.6g},{p.failures}")

@@ -12,7 +12,9 @@ from rich.text import Text
 
 from ..quantity import format_quantity
 from ..studies.check import CheckResult, SeriesCheck
+from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
+from .forward import render_parallel, render_thermal, worst_value_text
 
 if TYPE_CHECKING:
     from ..studies.size import SizingResult
@@ -71,14 +73,16 @@ def render_check(result: CheckResult, console: Console) -> None:
 
     summary = Table(title="Checks", title_justify="left", show_lines=False)
     probability_column = f"P(fail), {confidence:.0%} interval"
-    for column in ("check", "worst V", "worst/limit", "p99/limit", probability_column, "result"):
+    for column in ("check", "worst", "worst/limit", "p99/limit", probability_column, "result"):
         summary.add_column(column, justify="right" if column not in ("check", "result") else "left")
     for name, check in result.checks.items():
         if not check.ran:
             summary.add_row(name, "-", "-", "-", "-", Text("not run", style="yellow"))
             continue
         outcome = Text("pass", style="green") if check.passed else Text("FAIL", style="bold red")
-        summary.add_row(name, format_quantity(check.worst_voltage, "V"), _ratio(check.worst_ratio),
+        worst = format_quantity(check.worst_voltage, "V") if isinstance(check, SeriesCheck) else \
+            worst_value_text(check)
+        summary.add_row(name, worst, _ratio(check.worst_ratio),
                         _ratio(check.p99_ratio), _probability(check, confidence), outcome)
     console.print(summary)
     for name, check in result.checks.items():
@@ -87,7 +91,13 @@ def render_check(result: CheckResult, console: Console) -> None:
     console.print()
 
     for name, check in result.checks.items():
-        if check.ran:
+        if not check.ran:
+            continue
+        if isinstance(check, ParallelCheck):
+            render_parallel(check, design, console)
+        elif isinstance(check, ThermalCheck):
+            render_thermal(check, design, console)
+        else:
             _render_detail(name, check, console)
 
     _render_network(result, console)

@@ -25,6 +25,17 @@ from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
 from ..solvers.series_dynamic import solve_dynamic_sharing
 from ..solvers.series_static import solve_static_sharing
 from ..stats import FailureEstimate, failure_estimate, histogram_counts, trials_for_upper_bound
+from .forward_check import (
+    ForwardAccumulator,
+    ForwardChunk,
+    ForwardSetup,
+    finish_parallel,
+    finish_thermal,
+    forward_parameters,
+    forward_reasons,
+    forward_setup,
+    run_forward_chunk,
+)
 from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 
 # A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
@@ -235,13 +246,22 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     run_dynamic = dynamic_reason == ""
     run_static = only is None or "static" in only
     parameters = ("i_r", "q_rr") if run_dynamic else ("i_r",)
+    run_forward = only is None
+    parallel_reason, thermal_reason = forward_reasons(design) if run_forward else \
+        ("not requested", "not requested")
+    forward = None
+    if not (parallel_reason and thermal_reason):
+        forward = forward_setup(design, parallel_reason, thermal_reason)
+        parameters = tuple(dict.fromkeys(parameters + forward_parameters(design)))
+    forward_sums = ForwardAccumulator()
     static = _Accumulator(shape, limits) if run_static else None
     dynamic = _Accumulator(shape, limits) if run_dynamic else None
     context = _ChunkContext(design=design, seed=seed, parameters=parameters, run_static=run_static,
                             run_dynamic=run_dynamic, limits=limits, temperature=temperature,
                             reference_voltage=reference_voltage,
                             reference_temperature=reference_temperature, doubling=doubling,
-                            exponent=exponent, junction_capacitance=junction_capacitance)
+                            exponent=exponent, junction_capacitance=junction_capacitance,
+                            forward=forward)
     with worker_pool(workers) if pool is None else nullcontext(pool) as active:
         if chunk_trials is None:
             chunk_trials = chunk_size(trials, _CHUNK_ELEMENTS // (layout.series * layout.parallel),
@@ -252,6 +272,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                 static.merge(outcome.static)
             if dynamic is not None:
                 dynamic.merge(outcome.dynamic)
+            if outcome.forward is not None:
+                forward_sums.merge(outcome.forward)
 
     confidence = design.monte_carlo.confidence
     target = design.sizing.target_p_fail
@@ -262,6 +284,11 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         checks["dynamic"] = _finish("dynamic", dynamic, grid, confidence, trials, target)
     else:
         checks["dynamic"] = _not_run("dynamic", dynamic_reason)
+    if run_forward:
+        checks["parallel"] = finish_parallel(design, forward, parallel_reason, forward_sums,
+                                             confidence, target, trials)
+        checks["thermal"] = finish_thermal(design, forward, thermal_reason, forward_sums,
+                                           confidence, target, trials)
 
     impossible = _impossibility(design, limits)
     grading = _grading_summary(design, checks, temperature, reference_voltage, reference_temperature,
@@ -292,12 +319,14 @@ class _ChunkContext:
     doubling: np.ndarray
     exponent: np.ndarray
     junction_capacitance: np.ndarray
+    forward: ForwardSetup | None
 
 
 @dataclass(frozen=True)
 class _ChunkOutcome:
     static: _Accumulator | None
     dynamic: _Accumulator | None
+    forward: ForwardChunk | None
 
 
 def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
@@ -313,7 +342,10 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     if context.run_dynamic:
         dynamic = _Accumulator(shape, context.limits)
         _dynamic_chunk(design, drawn, dynamic, context.junction_capacitance)
-    return _ChunkOutcome(static=static, dynamic=dynamic)
+    forward = None
+    if context.forward is not None:
+        forward = run_forward_chunk(design, context.forward, drawn)
+    return _ChunkOutcome(static=static, dynamic=dynamic, forward=forward)
 
 
 def _static_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulator,

@@ -1,0 +1,166 @@
+"""Report sections and JSON of the forward checks: parallel current sharing and the thermal check."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from rich.console import Console
+from rich.table import Table
+from rich.text import Text
+
+from ..quantity import format_quantity
+from ..studies.forward_check import ParallelCheck, ThermalCheck
+
+
+def _number(value: float | None) -> float | None:
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def _estimate(estimate) -> dict[str, Any]:
+    return {"failures": estimate.failures, "p_fail": estimate.p_fail,
+            "p_fail_ci": [estimate.ci_low, estimate.ci_high]}
+
+
+def parallel_to_dict(check: ParallelCheck) -> dict[str, Any]:
+    """JSON of the parallel check (currents [A], shares and ratios [-])."""
+    ballast = check.ballast
+    return {
+        "passed": check.passed,
+        "worst_share": _number(check.worst_share),
+        "p99_share": _number(check.p99_share),
+        "worst_ratio": _number(check.worst_ratio),
+        "p50_ratio": _number(check.p50_ratio),
+        "p99_ratio": _number(check.p99_ratio),
+        **_estimate(check.estimate),
+        "unsolved": check.unsolved,
+        "worst_trial": check.worst_trial,
+        "required_derating": _number(check.required_derating),
+        "electro_thermal": check.electro_thermal,
+        "branches": [
+            {"branch": b.branch, "limit_current": _number(b.limit_current),
+             "mean_current": _number(b.mean_current), "max_current": _number(b.max_current),
+             "mean_share": _number(b.mean_share), "max_share": _number(b.max_share),
+             "failures": b.failures}
+            for b in check.branches
+        ],
+        "ballast": None if ballast is None else {
+            "target_share": ballast.target_share, "resistance": _number(ballast.resistance),
+            "exact_resistance": _number(ballast.exact_resistance), "loss": _number(ballast.loss),
+            "quantile": ballast.quantile, "reachable": ballast.reachable},
+    }
+
+
+def thermal_to_dict(check: ThermalCheck) -> dict[str, Any]:
+    """JSON of the thermal check (temperatures [degC], powers [W])."""
+    runaway = check.runaway
+    return {
+        "passed": check.passed,
+        "worst_tj": _number(check.worst_tj),
+        "p99_tj": _number(check.p99_tj),
+        "worst_ratio": _number(check.worst_ratio),
+        "p50_ratio": _number(check.p50_ratio),
+        "p99_ratio": _number(check.p99_ratio),
+        **_estimate(check.estimate),
+        "p_runaway": runaway.p_fail,
+        "p_runaway_ci": [runaway.ci_low, runaway.ci_high],
+        "runaway_trials": runaway.failures,
+        "over_tj_max_trials": check.over_limit,
+        "worst_trial": check.worst_trial,
+        "runaway_ambient": {key: _number(value) for key, value in check.runaway_ambient.items()},
+        "runaway_ambient_trials": check.runaway_ambient_trials,
+        "runaway_search_limit": check.runaway_search_limit,
+        "mean_total_power": _number(check.total_power_mean),
+        "positions": [
+            {"branch": p.branch, "index": p.index, "part": p.part, "limit": p.limit,
+             "mean_tj": _number(p.mean_temperature), "max_tj": _number(p.max_temperature),
+             "failures": p.failures}
+            for p in check.positions
+        ],
+    }
+
+
+def worst_value_text(check) -> str:
+    """The 'worst' cell of the summary table for a forward check."""
+    if isinstance(check, ParallelCheck):
+        return f"share {check.worst_share:.3f}"
+    return "runaway" if not math.isfinite(check.worst_tj) else f"T_j {check.worst_tj:.0f} degC"
+
+
+def render_parallel(check: ParallelCheck, design, console: Console) -> None:
+    duty = design.duty
+    console.print(Text("Current sharing of the parallel branches", style="bold underline"))
+    source = "at electro-thermal equilibrium" if check.electro_thermal else \
+        "isothermal, at ambient + each position's temperature rise"
+    console.print(f"{format_quantity(duty.forward_current, 'A')} average ({duty.waveform}) shared "
+                  f"by {design.string.parallel} branches, {source}; share = max branch I_AV / mean "
+                  f"branch I_AV, limit = each device's I_F(AV)")
+    table = Table(show_edge=False, pad_edge=False)
+    for column in ("branch", "mean I_AV", "max I_AV", "I_F(AV)", "mean share", "max share",
+                   "over"):
+        table.add_column(column, justify="left" if column == "branch" else "right")
+    for b in check.branches:
+        table.add_row(str(b.branch), format_quantity(b.mean_current, "A"),
+                      format_quantity(b.max_current, "A"), format_quantity(b.limit_current, "A"),
+                      f"{b.mean_share:.3f}", f"{b.max_share:.3f}", f"{b.failures:,}")
+    console.print(table)
+    console.print(f"  worst share {check.worst_share:.3f}, 99th percentile {check.p99_share:.3f}: "
+                  f"rate the group at no more than {check.required_derating:.0%} of "
+                  f"{design.string.parallel} x I_F(AV)")
+    ballast = check.ballast
+    if ballast is not None and check.p99_share > ballast.target_share:
+        if not ballast.reachable:
+            console.print(Text(f"  no equal series ballast reaches a share of "
+                               f"{ballast.target_share:g}", style="yellow"))
+        else:
+            console.print(Text(
+                f"  to share within {ballast.target_share:g} in {ballast.quantile:.2%} of built "
+                f"groups: add {format_quantity(ballast.resistance, 'ohm')} (E12, from "
+                f"{format_quantity(ballast.exact_resistance, 'ohm')}) in series with each branch, "
+                f"about {format_quantity(ballast.loss, 'W')} of extra loss in all",
+                style="yellow"))
+    console.print()
+
+
+def render_thermal(check: ThermalCheck, design, console: Console) -> None:
+    console.print(Text("Junction temperatures and thermal runaway", style="bold underline"))
+    thermal = design.thermal
+    console.print(f"heatsink {thermal.heatsink}, R_th(s-a) {thermal.r_th_sa:g} K/W, ambient "
+                  f"{design.duty.ambient:g} degC; losses: conduction + leakage + recovery; "
+                  f"mean total loss {format_quantity(check.total_power_mean, 'W')}")
+    ranked = sorted(check.positions, key=lambda p: p.max_temperature, reverse=True)[:5]
+    single_branch = all(p.branch == 1 for p in check.positions)
+    table = Table(show_edge=False, pad_edge=False)
+    for column in ("position", "part", "mean T_j", "max T_j", "T_j,max", "over"):
+        table.add_column(column, justify="left" if column in ("position", "part") else "right")
+    for p in ranked:
+        label = f"#{p.index}" if single_branch else f"branch {p.branch} #{p.index}"
+        table.add_row(label, p.part, f"{p.mean_temperature:.1f}", f"{p.max_temperature:.1f}",
+                      f"{p.limit:.0f}", f"{p.failures:,}")
+    console.print(Text("Hottest positions (degC, trials with an equilibrium):", style="italic"))
+    console.print(table)
+    runaway = check.runaway
+    if runaway.failures:
+        console.print(Text(f"  {runaway.failures:,} built groups have no stable equilibrium "
+                           f"(thermal runaway): P = {runaway.p_fail:.2g} "
+                           f"[{runaway.ci_low:.2g}, {runaway.ci_high:.2g}]", style="bold red"))
+    else:
+        console.print(f"  no thermal runaway seen: P(runaway) <= {runaway.ci_high:.2g}")
+    if check.runaway_ambient:
+        values = check.runaway_ambient
+        text = ", ".join(f"{key} {_temperature(value, check.runaway_search_limit)}"
+                         for key, value in values.items())
+        console.print(f"  ambient at which the equilibrium is lost (first "
+                      f"{check.runaway_ambient_trials:,} trials): {text}")
+    console.print()
+
+
+def _temperature(value: float, limit: float) -> str:
+    if math.isinf(value) and value > 0:
+        return f"> {limit:.0f} degC"
+    if math.isinf(value):
+        return "already at the given ambient"
+    return f"{value:.1f} degC"

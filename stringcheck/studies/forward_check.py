@@ -1,0 +1,482 @@
+"""The forward checks of a string: current sharing of parallel branches, and electro-thermal stability.
+
+Both run inside the chunks of ``studies.check`` on the same drawn devices as the series checks.
+
+* ``parallel`` (``parallel >= 2`` and a forward current): the share of each built group, max branch
+  I_AV / mean branch I_AV, and each device's branch I_AV against its part's ``i_fav`` (I_F(AV)).
+  A trial fails when a device carries more than its rated average current.
+* ``thermal`` (a forward current and the thermal data: every part's ``r_th_jc`` and ``t_j_max``, and
+  ``thermal.r_th_sa``): the electro-thermal equilibrium of every built group
+  (``solvers.electrothermal``); a trial fails when a junction is above its T_j,max or the group runs
+  away (no equilibrium, or an unstable one). When the thermal check runs, the parallel check takes
+  its branch currents from the equilibrium (hot devices of a negative-tempco part take more); without
+  it, from the isothermal split at ambient + each position's ``temperature_rise``.
+
+Results are plain arrays and scalars; nothing here formats text.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .. import eseries
+from ..design import Design
+from ..sampling import DrawnStrings
+from ..solvers.electrothermal import (
+    ParallelDevices,
+    ParallelDuty,
+    runaway_ambient,
+    solve_equilibrium,
+)
+from ..solvers.parallel import ballast_for_share, branch_currents
+from ..physics.forward import slope_resistance, threshold_voltage
+from ..stats import FailureEstimate, failure_estimate
+
+# Runaway ambient is searched on the first trials of each chunk only (a bisection costs some fifteen
+# equilibrium solves); its percentiles describe the margin, the pass/fail rests on the equilibrium.
+RUNAWAY_SAMPLE = 256
+# Share target of the ballast advice when [sizing] target_share is not given: max / mean branch
+# current within 10 % (common practice for a well-shared group; the report states the value used).
+DEFAULT_TARGET_SHARE = 1.1
+
+
+@dataclass(frozen=True)
+class BranchStatistics:
+    """Statistics of one branch over all trials."""
+
+    branch: int
+    limit_current: float
+    mean_current: float
+    max_current: float
+    mean_share: float
+    max_share: float
+    failures: int
+
+
+@dataclass(frozen=True)
+class DeviceTemperature:
+    """Junction temperature of one device position over the converged trials [degC]."""
+
+    branch: int
+    index: int
+    part: str
+    limit: float
+    mean_temperature: float
+    max_temperature: float
+    failures: int
+
+
+@dataclass(frozen=True)
+class BallastAdvice:
+    """The series ballast per branch that brings the share under ``target_share``."""
+
+    target_share: float
+    resistance: float | None
+    exact_resistance: float
+    loss: float | None
+    quantile: float
+    reachable: bool
+
+
+@dataclass(frozen=True)
+class ParallelCheck:
+    """Current sharing of the parallel branches."""
+
+    name: str
+    ran: bool
+    reason: str
+    passed: bool
+    worst_share: float
+    p99_share: float
+    worst_ratio: float
+    p50_ratio: float
+    p99_ratio: float
+    estimate: FailureEstimate | None
+    unsolved: int
+    worst_trial: int
+    required_derating: float
+    electro_thermal: bool
+    branches: tuple[BranchStatistics, ...]
+    ballast: BallastAdvice | None
+
+
+@dataclass(frozen=True)
+class ThermalCheck:
+    """Electro-thermal equilibrium of the group: junction temperatures and runaway."""
+
+    name: str
+    ran: bool
+    reason: str
+    passed: bool
+    worst_tj: float
+    p99_tj: float
+    worst_ratio: float
+    p50_ratio: float
+    p99_ratio: float
+    estimate: FailureEstimate | None
+    runaway: FailureEstimate | None
+    over_limit: int
+    unsolved: int
+    worst_trial: int
+    runaway_ambient: dict[str, float]
+    runaway_ambient_trials: int
+    runaway_search_limit: float
+    positions: tuple[DeviceTemperature, ...]
+    total_power_mean: float
+
+
+@dataclass(frozen=True)
+class ForwardSetup:
+    """Per-position constants of the forward checks (picklable: it travels to worker processes)."""
+
+    run_parallel: bool
+    run_thermal: bool
+    forward_reference_temperature: np.ndarray
+    threshold_tempco: np.ndarray
+    resistance_tempco: np.ndarray
+    leakage_reference_voltage: np.ndarray
+    leakage_reference_temperature: np.ndarray
+    leakage_doubling: np.ndarray
+    leakage_voltage_exponent: np.ndarray
+    junction_to_sink: np.ndarray
+    max_junction_temperature: np.ndarray
+    rated_current: np.ndarray
+    position_temperature: np.ndarray
+    search_limit: float
+    target_share: float
+
+
+@dataclass
+class ForwardChunk:
+    """Per-trial figures of one chunk, merged in trial order."""
+
+    first_trial: int
+    share: np.ndarray
+    current_ratio: np.ndarray
+    branch_current: np.ndarray
+    tj_ratio: np.ndarray | None = None
+    worst_tj: np.ndarray | None = None
+    classification: np.ndarray | None = None
+    tj_sum: np.ndarray | None = None
+    tj_max: np.ndarray | None = None
+    tj_count: int = 0
+    tj_over: np.ndarray | None = None
+    power_total: np.ndarray | None = None
+    ballast: np.ndarray | None = None
+    ballast_loss_per_ohm: np.ndarray | None = None
+    runaway_ambient: np.ndarray | None = None
+
+
+def forward_reasons(design: Design) -> tuple[str, str]:
+    """Why the parallel and the thermal check cannot run ("" for a check that can)."""
+    duty = design.duty
+    layout = design.string
+    parts = [design.parts[name] for name in design.parts_used()]
+    if duty.forward_current is None:
+        missing = ("no duty.forward_current: give the average forward current of the whole group "
+                   "(I_F(AV)) to check current sharing and junction temperatures")
+        return missing, missing
+    lacking = [p.name for p in parts if p.v_t0 is None or p.r_t is None]
+    if lacking:
+        missing = (f"part(s) {', '.join(lacking)} give no v_t0 and r_t (forward characteristic); "
+                   "give them, or a class to inherit them from")
+        return missing, missing
+    parallel = "" if layout.parallel >= 2 else "one branch: no current to share"
+    if parallel == "":
+        unrated = [p.name for p in parts if p.i_fav is None]
+        if unrated:
+            parallel = (f"part(s) {', '.join(unrated)} give no i_fav (rated average forward "
+                        "current), the limit of this check")
+    thermal = ""
+    no_resistance = [p.name for p in parts if p.r_th_jc is None]
+    no_limit = [p.name for p in parts if p.t_j_max is None]
+    if no_resistance:
+        thermal = f"part(s) {', '.join(no_resistance)} give no r_th_jc"
+    elif no_limit:
+        thermal = f"part(s) {', '.join(no_limit)} give no t_j_max"
+    elif design.thermal.r_th_sa is None:
+        thermal = "no thermal.r_th_sa (heatsink to ambient): give it to check junction temperatures"
+    return parallel, thermal
+
+
+def forward_setup(design: Design, parallel_reason: str, thermal_reason: str) -> ForwardSetup:
+    """The per-position constants, shape (parallel, series)."""
+    layout = design.string
+    grid = layout.part_grid()
+    parts = [design.parts[name] for name in grid.ravel()]
+
+    def per_position(attribute) -> np.ndarray:
+        return np.array([attribute(part) for part in parts], dtype=float).reshape(grid.shape)
+
+    def limit_or_nan(value: float | None) -> float:
+        return np.nan if value is None else value
+
+    return ForwardSetup(
+        run_parallel=parallel_reason == "", run_thermal=thermal_reason == "",
+        forward_reference_temperature=per_position(lambda p: _reference(p.v_t0.at_temperature)),
+        threshold_tempco=per_position(lambda p: p.tempco_v_t0),
+        resistance_tempco=per_position(lambda p: p.tempco_r_t),
+        leakage_reference_voltage=per_position(lambda p: p.i_r.at_voltage),
+        leakage_reference_temperature=per_position(lambda p: p.i_r.at_temperature),
+        leakage_doubling=per_position(lambda p: p.leakage_doubling),
+        leakage_voltage_exponent=per_position(lambda p: p.leakage_voltage_exponent),
+        junction_to_sink=per_position(lambda p: limit_or_nan(p.r_th_jc) + (p.r_th_cs or 0.0)),
+        max_junction_temperature=per_position(lambda p: limit_or_nan(p.t_j_max)),
+        rated_current=per_position(lambda p: limit_or_nan(p.i_fav)),
+        position_temperature=design.duty.ambient + layout.temperature_rise_grid(),
+        # The runaway-ambient search ends at the highest T_j,max: no ambient above it is usable.
+        search_limit=float(max((p.t_j_max for p in parts if p.t_j_max is not None),
+                               default=design.duty.ambient + 100.0)),
+        target_share=design.sizing.target_share or DEFAULT_TARGET_SHARE,
+    )
+
+
+def _reference(temperature: float | None) -> float:
+    return 25.0 if temperature is None else temperature
+
+
+def forward_parameters(design: Design) -> tuple[str, ...]:
+    """The device parameters the forward checks draw (beyond the series checks' ones)."""
+    names = ["v_t0", "r_t", "i_r"]
+    if all(design.parts[name].q_rr is not None for name in design.parts_used()):
+        names.append("q_rr")
+    return tuple(names)
+
+
+def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings) -> ForwardChunk:
+    """Solve the forward checks of one chunk of drawn strings."""
+    duty = design.duty
+    parameters = drawn.parameters
+    count = drawn.trials
+    threshold = parameters["v_t0"]
+    resistance = parameters["r_t"]
+    shape = threshold.shape
+    charge = parameters["q_rr"] if "q_rr" in parameters else np.zeros(shape)
+    outcome_tj = None
+    if setup.run_thermal:
+        devices = ParallelDevices(
+            threshold_voltage=threshold, slope_resistance=resistance,
+            forward_reference_temperature=setup.forward_reference_temperature,
+            threshold_tempco=setup.threshold_tempco, resistance_tempco=setup.resistance_tempco,
+            leakage_current=parameters["i_r"],
+            leakage_reference_voltage=setup.leakage_reference_voltage,
+            leakage_reference_temperature=setup.leakage_reference_temperature,
+            leakage_doubling=setup.leakage_doubling,
+            leakage_voltage_exponent=setup.leakage_voltage_exponent,
+            recovery_charge=charge, junction_to_sink=setup.junction_to_sink,
+            max_junction_temperature=setup.max_junction_temperature)
+        operating = _duty(design)
+        equilibrium = solve_equilibrium(devices, operating)
+        temperature = equilibrium.junction_temperature
+        average = equilibrium.branch_average
+        converged = equilibrium.converged
+        rise_allowed = setup.max_junction_temperature - duty.ambient
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ratio = np.max((temperature - duty.ambient) / rise_allowed, axis=(1, 2))
+        runaway = equilibrium.classification == "runaway"
+        tj_ratio = np.where(runaway | ~np.isfinite(ratio), np.inf, ratio)
+        good = converged & ~runaway
+        hot = temperature[good]
+        outcome_tj = dict(
+            tj_ratio=tj_ratio,
+            worst_tj=np.where(runaway, np.inf, temperature.max(axis=(1, 2))),
+            classification=equilibrium.classification,
+            tj_sum=hot.sum(axis=0) if hot.size else np.zeros(shape[1:]),
+            tj_max=hot.max(axis=0) if hot.size else np.full(shape[1:], -np.inf),
+            tj_count=int(np.count_nonzero(good)),
+            tj_over=np.count_nonzero(temperature > setup.max_junction_temperature, axis=0),
+            power_total=equilibrium.power.sum(axis=(1, 2)),
+        )
+        sample = min(count, RUNAWAY_SAMPLE)
+        if sample:
+            head = _head(devices, sample)
+            found = runaway_ambient(head, _duty(design), upper_limit=setup.search_limit)
+            outcome_tj["runaway_ambient"] = found.ambient
+        branch_threshold = threshold_voltage(
+            threshold, setup.threshold_tempco, temperature,
+            setup.forward_reference_temperature).sum(axis=-1)
+        branch_resistance = slope_resistance(
+            resistance, setup.resistance_tempco, temperature,
+            setup.forward_reference_temperature).sum(axis=-1) + design.thermal.path_resistance
+    else:
+        temperature = np.broadcast_to(setup.position_temperature, shape)
+        branch_threshold = threshold_voltage(threshold, setup.threshold_tempco, temperature,
+                                             setup.forward_reference_temperature).sum(axis=-1)
+        branch_resistance = slope_resistance(resistance, setup.resistance_tempco, temperature,
+                                             setup.forward_reference_temperature).sum(axis=-1) \
+            + design.thermal.path_resistance
+        average = branch_currents(branch_threshold, branch_resistance, duty.forward_current,
+                                  duty.waveform).average
+    mean = average.mean(axis=-1)
+    share = average.max(axis=-1) / mean
+    with np.errstate(invalid="ignore", divide="ignore"):
+        current_ratio = np.max(average[..., None] / setup.rated_current, axis=(1, 2))
+    chunk = ForwardChunk(first_trial=drawn.first_trial, share=share, current_ratio=current_ratio,
+                         branch_current=average, **(outcome_tj or {}))
+    if setup.run_parallel:
+        needs = share > setup.target_share
+        ballast = np.zeros(count)
+        loss_per_ohm = np.zeros(count)
+        if np.any(needs):
+            found = ballast_for_share(branch_threshold[needs], branch_resistance[needs],
+                                      duty.forward_current, duty.waveform, setup.target_share)
+            ballast[needs] = found.resistance
+        rms = branch_currents(branch_threshold, branch_resistance, duty.forward_current,
+                              duty.waveform).rms
+        loss_per_ohm = np.sum(rms ** 2, axis=-1)
+        chunk.ballast = ballast
+        chunk.ballast_loss_per_ohm = loss_per_ohm
+    return chunk
+
+
+def _duty(design: Design) -> ParallelDuty:
+    duty = design.duty
+    return ParallelDuty(
+        forward_current=duty.forward_current, waveform=duty.waveform, ambient=duty.ambient,
+        blocking_voltage=duty.reverse_voltage / design.string.series,
+        frequency=duty.frequency or 0.0, path_resistance=design.thermal.path_resistance,
+        sink_to_ambient=design.thermal.r_th_sa, heatsink=design.thermal.heatsink)
+
+
+def _head(devices: ParallelDevices, count: int) -> ParallelDevices:
+    """The first ``count`` trials of the drawn devices (per-position constants kept as they are)."""
+    values = {}
+    for name in ParallelDevices.__dataclass_fields__:
+        value = np.asarray(getattr(devices, name))
+        values[name] = value[:count] if value.ndim == 3 else value
+    return ParallelDevices(**values)
+
+
+@dataclass
+class ForwardAccumulator:
+    """Chunks of the forward checks, kept in trial order."""
+
+    chunks: list = field(default_factory=list)
+
+    def merge(self, chunk: ForwardChunk) -> None:
+        self.chunks.append(chunk)
+
+    def joined(self, name: str) -> np.ndarray | None:
+        parts = [getattr(chunk, name) for chunk in self.chunks]
+        if any(part is None for part in parts) or not parts:
+            return None
+        return np.concatenate(parts)
+
+
+def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulator: ForwardAccumulator,
+                    confidence: float, target: float, trials: int) -> ParallelCheck:
+    """Summarise the parallel check over the whole run."""
+    if reason:
+        return ParallelCheck(name="parallel", ran=False, reason=reason, passed=False,
+                             worst_share=np.nan, p99_share=np.nan, worst_ratio=np.nan,
+                             p50_ratio=np.nan, p99_ratio=np.nan, estimate=None, unsolved=0,
+                             worst_trial=-1, required_derating=np.nan, electro_thermal=False,
+                             branches=(), ballast=None)
+    share = accumulator.joined("share")
+    ratio = accumulator.joined("current_ratio")
+    currents = accumulator.joined("branch_current")
+    unsolved = ~np.isfinite(ratio) | ~np.isfinite(share)
+    failed = unsolved | (ratio > 1.0)
+    estimate = failure_estimate(int(np.count_nonzero(failed)), trials, confidence=confidence)
+    finite = ratio[np.isfinite(ratio)]
+    mean = currents.mean(axis=-1, keepdims=True)
+    branch_share = currents / mean
+    limit = np.nanmin(setup.rated_current, axis=-1)
+    branches = tuple(
+        BranchStatistics(branch=b + 1, limit_current=float(limit[b]),
+                         mean_current=float(np.nanmean(currents[:, b])),
+                         max_current=float(np.nanmax(currents[:, b])),
+                         mean_share=float(np.nanmean(branch_share[:, b])),
+                         max_share=float(np.nanmax(branch_share[:, b])),
+                         failures=int(np.count_nonzero(currents[:, b] > limit[b])))
+        for b in range(currents.shape[1]))
+    worst_share = float(np.nanmax(share))
+    ballast = _ballast_advice(setup.target_share, accumulator.joined("ballast"),
+                              accumulator.joined("ballast_loss_per_ohm"), target)
+    return ParallelCheck(
+        name="parallel", ran=True, reason="", passed=estimate.ci_high <= target,
+        worst_share=worst_share, p99_share=float(np.nanpercentile(share, 99)),
+        worst_ratio=float(np.max(np.where(unsolved, np.inf, ratio))),
+        p50_ratio=float(np.percentile(finite, 50)) if finite.size else np.nan,
+        p99_ratio=float(np.percentile(finite, 99)) if finite.size else np.nan,
+        estimate=estimate, unsolved=int(np.count_nonzero(unsolved)),
+        worst_trial=int(np.argmax(np.where(unsolved, np.inf, ratio))),
+        # The group carries m x I_F(AV) only at perfect sharing; at the worst share seen, the
+        # rated current of the group must be derated to 1 / share of that.
+        required_derating=1.0 / worst_share, electro_thermal=setup.run_thermal,
+        branches=branches, ballast=ballast)
+
+
+def _ballast_advice(target_share: float, per_trial: np.ndarray | None,
+                    loss_per_ohm: np.ndarray | None, target_p_fail: float) -> BallastAdvice:
+    """Ballast that meets the share target in all but ``target_p_fail`` of the built groups,
+    rounded up to E12 (common practice for a power resistor); its loss at the mean branch RMS."""
+    quantile = 1.0 - target_p_fail
+    exact = float(np.quantile(per_trial, quantile, method="higher"))
+    if not np.isfinite(exact):
+        return BallastAdvice(target_share=target_share, resistance=None, exact_resistance=exact,
+                             loss=None, quantile=quantile, reachable=False)
+    if exact <= 0.0:
+        return BallastAdvice(target_share=target_share, resistance=0.0, exact_resistance=0.0,
+                             loss=0.0, quantile=quantile, reachable=True)
+    chosen = float(eseries.round_up(exact, "E12"))
+    return BallastAdvice(target_share=target_share, resistance=chosen, exact_resistance=exact,
+                         loss=float(chosen * np.mean(loss_per_ohm)), quantile=quantile,
+                         reachable=True)
+
+
+def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
+                   accumulator: ForwardAccumulator, confidence: float, target: float,
+                   trials: int) -> ThermalCheck:
+    """Summarise the thermal check over the whole run."""
+    if reason:
+        return ThermalCheck(name="thermal", ran=False, reason=reason, passed=False,
+                            worst_tj=np.nan, p99_tj=np.nan, worst_ratio=np.nan, p50_ratio=np.nan,
+                            p99_ratio=np.nan, estimate=None, runaway=None, over_limit=0,
+                            unsolved=0, worst_trial=-1, runaway_ambient={},
+                            runaway_ambient_trials=0, runaway_search_limit=setup.search_limit,
+                            positions=(), total_power_mean=np.nan)
+    ratio = accumulator.joined("tj_ratio")
+    worst = accumulator.joined("worst_tj")
+    classes = accumulator.joined("classification")
+    runaway = classes == "runaway"
+    over = classes == "over T_j,max"
+    failed = runaway | over | ~(ratio <= 1.0)
+    estimate = failure_estimate(int(np.count_nonzero(failed)), trials, confidence=confidence)
+    runaway_estimate = failure_estimate(int(np.count_nonzero(runaway)), trials,
+                                        confidence=confidence)
+    finite = ratio[np.isfinite(ratio)]
+    count = sum(chunk.tj_count for chunk in accumulator.chunks)
+    total = sum(chunk.tj_sum for chunk in accumulator.chunks)
+    maximum = np.max([chunk.tj_max for chunk in accumulator.chunks], axis=0)
+    exceed = sum(chunk.tj_over for chunk in accumulator.chunks)
+    grid = design.string.part_grid()
+    positions = tuple(
+        DeviceTemperature(branch=b + 1, index=k + 1, part=str(grid[b, k]),
+                          limit=float(setup.max_junction_temperature[b, k]),
+                          mean_temperature=float(total[b, k] / count) if count else np.nan,
+                          max_temperature=float(maximum[b, k]),
+                          failures=int(exceed[b, k]))
+        for b in range(grid.shape[0]) for k in range(grid.shape[1]))
+    ambient = accumulator.joined("runaway_ambient")
+    percentiles = {}
+    if ambient is not None and ambient.size:
+        for label, q in (("min", 0.0), ("p1", 1.0), ("p50", 50.0), ("p99", 99.0)):
+            percentiles[label] = float(np.percentile(ambient, q, method="lower"))
+    finite_worst = worst[np.isfinite(worst)]
+    return ThermalCheck(
+        name="thermal", ran=True, reason="", passed=estimate.ci_high <= target,
+        worst_tj=float(np.max(worst)), p99_tj=float(np.percentile(finite_worst, 99))
+        if finite_worst.size else np.nan,
+        worst_ratio=float(np.max(ratio)),
+        p50_ratio=float(np.percentile(finite, 50)) if finite.size else np.nan,
+        p99_ratio=float(np.percentile(finite, 99)) if finite.size else np.nan,
+        estimate=estimate, runaway=runaway_estimate, over_limit=int(np.count_nonzero(over)),
+        unsolved=int(np.count_nonzero(runaway)), worst_trial=int(np.argmax(ratio)),
+        runaway_ambient=percentiles,
+        runaway_ambient_trials=0 if ambient is None else int(ambient.size),
+        runaway_search_limit=setup.search_limit, positions=positions,
+        total_power_mean=float(np.mean(accumulator.joined("power_total"))))
+
