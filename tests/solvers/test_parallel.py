@@ -1,0 +1,206 @@
+"""Tests of stringcheck.solvers.parallel (current sharing, waveforms, ballast)."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from hypothesis.extra.numpy import arrays
+from scipy.integrate import quad
+from scipy.optimize import brentq
+
+from stringcheck.physics.forward import form_factor, peak_factor, phase_samples
+from stringcheck.solvers.parallel import (
+    Ballast,
+    BranchCurrents,
+    CurrentSplit,
+    ballast_for_share,
+    branch_currents,
+    split_current,
+)
+
+
+def _hand_split(thresholds, resistances, total):
+    """Two conducting branches: v - r_1 i_1 = V_1, v - r_2 i_2 = V_2, i_1 + i_2 = I (numpy solve)."""
+    system = np.array([[1.0, -resistances[0], 0.0], [1.0, 0.0, -resistances[1]], [0.0, 1.0, 1.0]])
+    return np.linalg.solve(system, [thresholds[0], thresholds[1], total])
+
+
+def test_two_branches_both_conducting_match_the_hand_solution():
+    # Kirchhoff: v = V_1 + r_1 i_1 = V_2 + r_2 i_2, i_1 + i_2 = I (three linear equations),
+    # branch values of our own invention.
+    thresholds, resistances, total = [1.62, 1.70], [4e-3, 2.5e-3], 120.0
+    voltage, first, second = _hand_split(thresholds, resistances, total)
+    assert first > 0 and second > 0
+    split = split_current(thresholds, resistances, total)
+    assert isinstance(split, CurrentSplit)
+    np.testing.assert_allclose(split.currents, [first, second], rtol=1e-12)
+    assert math.isclose(split.forward_voltage, voltage, rel_tol=1e-13)
+
+
+def test_two_branches_one_not_conducting_match_the_hand_solution():
+    # The linear system then gives i_2 < 0: the second branch carries nothing, the first all
+    # of I, and v = V_1 + r_1 I < V_2.
+    thresholds, resistances, total = [1.62, 1.90], [4e-3, 2.5e-3], 40.0
+    assert _hand_split(thresholds, resistances, total)[2] < 0
+    split = split_current(thresholds, resistances, total)
+    np.testing.assert_array_equal(split.currents, [total, 0.0])
+    assert math.isclose(split.forward_voltage, 1.62 + 4e-3 * total, rel_tol=1e-14)
+    assert split.forward_voltage < thresholds[1]
+
+
+def _quad_branch_currents(thresholds, resistances, average, waveform):
+    """Independent reference: brentq for the common voltage at each instant, scipy quad over
+    the conducting half period of a half-sine."""
+    peak = peak_factor(waveform) * average
+
+    def split_at(current):
+        if current <= 0:
+            return np.zeros(len(thresholds))
+
+        def excess(voltage):
+            return np.sum(np.maximum(voltage - thresholds, 0.0) / resistances) - current
+
+        high = np.max(thresholds) + current * np.max(resistances)
+        voltage = brentq(excess, np.min(thresholds), high, xtol=1e-14, rtol=1e-15)
+        return np.maximum(voltage - thresholds, 0.0) / resistances
+
+    result = []
+    for branch in range(len(thresholds)):
+        def instant(theta, power):
+            return split_at(peak * math.sin(theta))[branch] ** power
+
+        mean = quad(instant, 0, math.pi, args=(1,), epsabs=0, epsrel=1e-11, limit=200)[0]
+        square = quad(instant, 0, math.pi, args=(2,), epsabs=0, epsrel=1e-11, limit=200)[0]
+        result.append((mean / (2 * math.pi), math.sqrt(square / (2 * math.pi))))
+    return np.array(result), split_at(peak)
+
+
+def test_half_sine_branch_currents_against_quadrature():
+    # One branch starts conducting part-way up the sine: the midpoint samples must still meet
+    # brentq + scipy quad to the sampling accuracy (1e-4 relative).
+    thresholds = np.array([0.80, 0.86, 0.95])
+    resistances = np.array([3e-3, 2e-3, 4e-3])
+    average = 25.0
+    reference, peak = _quad_branch_currents(thresholds, resistances, average, "half-sine")
+    currents = branch_currents(thresholds, resistances, average, "half-sine")
+    assert isinstance(currents, BranchCurrents)
+    np.testing.assert_allclose(currents.average, reference[:, 0], rtol=2e-4)
+    np.testing.assert_allclose(currents.rms, reference[:, 1], rtol=2e-4)
+    np.testing.assert_allclose(currents.peak, peak, rtol=1e-12)
+    # ... and converge to it with more samples (midpoint rule, second order).
+    fine = branch_currents(thresholds, resistances, average, "half-sine", points=2000)
+    np.testing.assert_allclose(fine.average, reference[:, 0], rtol=1e-6)
+
+
+@pytest.mark.parametrize("waveform", ["half-sine", "square", "dc"])
+def test_single_branch_takes_the_group_waveform(waveform):
+    # One branch: its I_AV, I_RMS and peak are the group's (form and peak factors).
+    currents = branch_currents([[1.0]], [[5e-3]], [10.0], waveform)
+    assert currents.average.shape == (1, 1)
+    np.testing.assert_allclose(currents.average, 10.0, rtol=1e-4)
+    np.testing.assert_allclose(currents.rms, form_factor(waveform) * 10.0, rtol=1e-4)
+    np.testing.assert_allclose(currents.peak, peak_factor(waveform) * 10.0, rtol=1e-14)
+
+
+groups = st.integers(min_value=2, max_value=6).flatmap(
+    lambda count: st.tuples(
+        arrays(float, count, elements=st.floats(min_value=0.6, max_value=2.4)),
+        arrays(float, count, elements=st.floats(min_value=5e-4, max_value=2e-2)),
+        st.floats(min_value=0.1, max_value=500.0),
+        st.sampled_from(["dc", "half-sine", "square"]),
+    )
+)
+
+
+@settings(max_examples=60, deadline=None)
+@given(groups)
+def test_branch_currents_sum_to_the_group_current(group):
+    # Kirchhoff's current law at every phase sample, hence for the averages too.
+    thresholds, resistances, average, waveform = group
+    samples = phase_samples(average, waveform, points=16)
+    instant = split_current(thresholds, resistances, samples.currents)
+    np.testing.assert_allclose(instant.currents.sum(axis=-1), samples.currents, rtol=1e-12)
+    currents = branch_currents(thresholds, resistances, average, waveform, points=16)
+    assert math.isclose(currents.average.sum(), samples.currents @ samples.weights, rel_tol=1e-12)
+    assert math.isclose(currents.peak.sum(), samples.peak, rel_tol=1e-12)
+    assert (currents.average >= 0).all() and (currents.rms >= currents.average * (1 - 1e-12)).all()
+
+
+@settings(max_examples=60, deadline=None)
+@given(groups, st.randoms(use_true_random=False))
+def test_permuting_branches_permutes_the_answer(group, random):
+    thresholds, resistances, average, waveform = group
+    order = list(range(thresholds.size))
+    random.shuffle(order)
+    base = branch_currents(thresholds, resistances, average, waveform, points=16)
+    permuted = branch_currents(thresholds[order], resistances[order], average, waveform, points=16)
+    for name in ("average", "rms", "peak"):
+        np.testing.assert_allclose(getattr(permuted, name), getattr(base, name)[order],
+                                   rtol=1e-9, atol=1e-12 * average)
+
+
+def test_ballast_for_two_branches_matches_the_closed_form():
+    # dc, both branches conducting: i_1 = (I (r_2 + R) + dV) / (r_1 + r_2 + 2 R), dV = V_2 - V_1
+    # (hand solution of the two-branch equations with R added to each); share = 2 i_1 / I
+    # reaches s at R = (s I (r_1 + r_2) - 2 I r_2 - 2 dV) / (2 I (1 - s)).
+    thresholds, resistances, total, target = [0.80, 0.85], [2e-3, 3e-3], 30.0, 1.15
+    expected = (target * total * 5e-3 - 2 * total * 3e-3 - 2 * 0.05) / (2 * total * (1 - target))
+    ballast = ballast_for_share(thresholds, resistances, total, "dc", target)
+    assert isinstance(ballast, Ballast)
+    assert math.isclose(ballast.resistance, expected, rel_tol=1e-9)
+    assert math.isclose(ballast.share, target, rel_tol=1e-9) and ballast.share <= target
+    first = (total * (3e-3 + expected) + 0.05) / (5e-3 + 2 * expected)
+    assert math.isclose(ballast.loss, expected * (first**2 + (total - first) ** 2), rel_tol=1e-8)
+
+
+@pytest.mark.parametrize("waveform", ["half-sine", "square", "dc"])
+def test_ballast_meets_the_target_or_is_zero_when_already_under(waveform):
+    rng = np.random.default_rng(20260214)
+    thresholds = rng.normal(0.85, 0.03, size=(40, 4))
+    resistances = rng.normal(3e-3, 3e-4, size=(40, 4))
+    total = rng.uniform(5.0, 200.0, size=40)
+    target = 1.10
+    ballast = ballast_for_share(thresholds, resistances, total, waveform, target, points=32)
+    assert ballast.resistance.shape == (40,)
+    above = ballast.unballasted_share > target
+    assert above.any() and (~above).any()
+    # Above the target: the share with the ballast is the target (from below).
+    np.testing.assert_allclose(ballast.share[above], target, rtol=1e-9)
+    assert (ballast.share <= target * (1 + 1e-12)).all()
+    # Already under: no ballast, no added loss, share unchanged.
+    np.testing.assert_array_equal(ballast.resistance[~above], 0.0)
+    np.testing.assert_array_equal(ballast.loss[~above], 0.0)
+    np.testing.assert_array_equal(ballast.share[~above], ballast.unballasted_share[~above])
+    # The loss is R sum_b I_RMS,b^2 of the ballasted group (recomputed here).
+    currents = branch_currents(thresholds, resistances + ballast.resistance[:, None], total,
+                               waveform, points=32)
+    np.testing.assert_allclose(ballast.loss, ballast.resistance * (currents.rms**2).sum(axis=-1),
+                               rtol=1e-12)
+    # A slightly smaller ballast misses the target (the returned one is the smallest).
+    if waveform != "half-sine":
+        short = branch_currents(thresholds[above], resistances[above]
+                                + 0.999 * ballast.resistance[above, None], total[above], waveform)
+        assert (short.average.max(axis=-1) / short.average.mean(axis=-1) > target).all()
+
+
+def test_unreachable_target_gives_infinite_ballast():
+    ballast = ballast_for_share([[0.8, 0.9], [0.8, 0.8]], [[2e-3, 2e-3]], 10.0, "dc", 1.0)
+    assert ballast.resistance[0] == np.inf and np.isnan(ballast.loss[0])
+    # Equal branches already share perfectly: share 1 <= 1, no ballast.
+    assert ballast.resistance[1] == 0.0 and ballast.share[1] == 1.0
+
+
+@settings(max_examples=40, deadline=None)
+@given(groups, st.floats(min_value=0.0, max_value=0.05), st.floats(min_value=1.0, max_value=10.0))
+def test_more_ballast_never_raises_the_share_of_a_constant_current(group, ballast, factor):
+    # Proven in ballast_for_share's notes for one sample (dc, square): d i_b / dR =
+    # g_b (i_g - i_b) <= 0 for the largest branch current.
+    thresholds, resistances, average, waveform = group
+    waveform = "square" if waveform == "half-sine" else waveform
+    less = branch_currents(thresholds, resistances + ballast, average, waveform).average
+    more = branch_currents(thresholds, resistances + factor * ballast, average, waveform).average
+    assert more.max() <= less.max() * (1 + 1e-12)
