@@ -436,7 +436,7 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
                             worst_tj=np.nan, p99_tj=np.nan, worst_ratio=np.nan, p50_ratio=np.nan,
                             p99_ratio=np.nan, estimate=None, runaway=None, over_limit=0,
                             unsolved=0, worst_trial=-1, runaway_ambient={},
-                            runaway_ambient_trials=0, runaway_search_limit=setup.search_limit,
+                            runaway_ambient_trials=0, runaway_search_limit=np.nan,
                             positions=(), total_power_mean=np.nan)
     ratio = accumulator.joined("tj_ratio")
     worst = accumulator.joined("worst_tj")
