@@ -55,6 +55,11 @@ capacitor_tolerance = "10 %"
 capacitor_rated_voltage = "2 kV"
 damping_resistor = "100 Ohm"
 
+[thermal]                       # for the thermal check (junction temperatures, runaway)
+heatsink = "separate"           # separate | shared (one sink for every device)
+r_th_sa = "2 K/W"               # heatsink to ambient, per sink
+path_resistance = "0 Ohm"       # wiring / ballast in series with each branch
+
 [monte_carlo]
 trials = 20000
 seed = 1
@@ -67,6 +72,7 @@ lot_share = 0.3                 # fraction of the scatter common to one lot (one
 target_p_fail = 1e-3
 resistor_series = "E96"
 capacitor_series = "E12"
+target_share = 1.1              # parallel groups: allowed max / mean branch current (ballast advice)
 '''
 
 
