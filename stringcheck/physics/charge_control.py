@@ -18,6 +18,12 @@ tau and T_M (:func:`fit_charge_control`), map a Monte Carlo draw of Q_rr onto ta
 a fixed T_M (:func:`lifetime_for_charge`) and carry Q_rr from the test condition to the
 application's (:func:`rescale_recovery_charge`). All functions are pure, vectorized, in SI units,
 and let NaN propagate; an input for which no model exists gives NaN.
+
+References
+----------
+.. [1] P. O. Lauritzen and C. L. Ma, "A simple diode model with reverse recovery", *IEEE
+   Transactions on Power Electronics*, 6(2), 1991, pp. 188-191 (author order and pages from
+   memory).
 """
 
 from __future__ import annotations
@@ -98,12 +104,8 @@ def emitter_charge(
         Forward junction voltage v [V] (negative in reverse bias).
     lifetime
         High-level carrier lifetime tau [s], > 0.
-    saturation_current
-        I_S [A], > 0.
-    emission_coefficient
-        n [-], > 0.
-    temperature
-        T [K], > 0.
+    saturation_current, emission_coefficient, temperature
+        I_S [A], n [-] and T [K], > 0.
 
     Returns
     -------
@@ -134,10 +136,8 @@ def diode_current(
 
     Parameters
     ----------
-    emitter_charge
-        q_E [C].
-    stored_charge
-        q_M [C].
+    emitter_charge, stored_charge
+        q_E and q_M [C].
     transit_time
         Diffusion transit time T_M [s], > 0.
 
@@ -148,9 +148,7 @@ def diode_current(
 
     References
     ----------
-    .. [1] P. O. Lauritzen and C. L. Ma, "A simple diode model with reverse recovery", *IEEE
-       Transactions on Power Electronics*, 6(2), 1991, pp. 188-191 (author order and pages from
-       memory): i = (q_E - q_M) / T_M, dq_M/dt = i - q_M / tau, q_E = I_S tau (exp(v/nV_T) - 1).
+    .. [1] P. O. Lauritzen and C. L. Ma, IEEE Trans. Power Electronics 6(2), 1991 (module notes).
     """
     charge_difference = np.asarray(emitter_charge, float) - np.asarray(stored_charge, float)
     return charge_difference / np.asarray(transit_time, dtype=float)
@@ -163,12 +161,8 @@ def stored_charge_rate(
 
     Parameters
     ----------
-    current
-        Forward diode current i [A].
-    stored_charge
-        q_M [C].
-    lifetime
-        tau [s], > 0.
+    current, stored_charge, lifetime
+        Forward diode current i [A], q_M [C] and tau [s] (> 0).
 
     Returns
     -------
@@ -177,9 +171,7 @@ def stored_charge_rate(
 
     References
     ----------
-    .. [1] P. O. Lauritzen and C. L. Ma, "A simple diode model with reverse recovery", *IEEE
-       Transactions on Power Electronics*, 6(2), 1991, pp. 188-191 (author order and pages from
-       memory): i = (q_E - q_M) / T_M, dq_M/dt = i - q_M / tau, q_E = I_S tau (exp(v/nV_T) - 1).
+    .. [1] P. O. Lauritzen and C. L. Ma, IEEE Trans. Power Electronics 6(2), 1991 (module notes).
     """
     recombination = np.asarray(stored_charge, float) / np.asarray(lifetime, dtype=float)
     return np.asarray(current, dtype=float) - recombination
@@ -191,10 +183,8 @@ class ForwardState:
 
     Attributes
     ----------
-    junction_voltage
-        Forward junction voltage v [V].
-    stored_charge
-        Stored charge q_M = tau i_D [C].
+    junction_voltage, stored_charge
+        Forward junction voltage v [V] and stored charge q_M = tau i_D [C].
     """
 
     junction_voltage: NDArray[np.float64]
@@ -241,9 +231,7 @@ def forward_state(
 
     References
     ----------
-    .. [1] P. O. Lauritzen and C. L. Ma, "A simple diode model with reverse recovery", *IEEE
-       Transactions on Power Electronics*, 6(2), 1991, pp. 188-191 (author order and pages from
-       memory): i = (q_E - q_M) / T_M, dq_M/dt = i - q_M / tau, q_E = I_S tau (exp(v/nV_T) - 1).
+    .. [1] P. O. Lauritzen and C. L. Ma, IEEE Trans. Power Electronics 6(2), 1991 (module notes).
     """
     current = np.asarray(forward_current, dtype=float)
     tau = np.asarray(lifetime, dtype=float)
@@ -355,9 +343,7 @@ def ramp_recovery(
 
     References
     ----------
-    .. [1] P. O. Lauritzen and C. L. Ma, "A simple diode model with reverse recovery", *IEEE
-       Transactions on Power Electronics*, 6(2), 1991, pp. 188-191 (author order and pages from
-       memory): i = (q_E - q_M) / T_M, dq_M/dt = i - q_M / tau, q_E = I_S tau (exp(v/nV_T) - 1).
+    .. [1] P. O. Lauritzen and C. L. Ma, IEEE Trans. Power Electronics 6(2), 1991 (module notes).
     .. [2] R. M. Corless, G. H. Gonnet, D. E. G. Hare, D. J. Jeffrey and D. E. Knuth, "On the
        Lambert W function", *Advances in Computational Mathematics*, 5, 1996.
     """
@@ -414,10 +400,8 @@ class ChargeControlFit:
 
     Attributes
     ----------
-    lifetime
-        tau [s].
-    transit_time
-        T_M [s].
+    lifetime, transit_time
+        tau and T_M [s].
     """
 
     lifetime: NDArray[np.float64]
@@ -434,14 +418,10 @@ def fit_charge_control(
 
     Parameters
     ----------
-    recovery_charge
-        Q_rr at the test condition [C], > I_RM^2 / (2 di/dt).
-    peak_current
-        I_RM at the test condition [A], > 0.
-    forward_current
-        Test forward current I_F [A], > 0.
-    di_dt
-        Test rate of fall |di/dt| [A/s], > 0.
+    recovery_charge, peak_current
+        Q_rr [C] and I_RM [A] at the test condition, > 0, with Q_rr > I_RM^2 / (2 di/dt).
+    forward_current, di_dt
+        Test forward current I_F [A] and rate of fall |di/dt| [A/s], > 0.
 
     Returns
     -------
@@ -462,9 +442,7 @@ def fit_charge_control(
 
     References
     ----------
-    .. [1] P. O. Lauritzen and C. L. Ma, "A simple diode model with reverse recovery", *IEEE
-       Transactions on Power Electronics*, 6(2), 1991, pp. 188-191 (author order and pages from
-       memory): i = (q_E - q_M) / T_M, dq_M/dt = i - q_M / tau, q_E = I_S tau (exp(v/nV_T) - 1).
+    .. [1] P. O. Lauritzen and C. L. Ma, IEEE Trans. Power Electronics 6(2), 1991 (module notes).
     """
     charge = np.asarray(recovery_charge, dtype=float)
     peak = np.asarray(peak_current, dtype=float)
@@ -528,9 +506,7 @@ def peak_current_from_recovery_time(
 
     References
     ----------
-    .. [1] P. O. Lauritzen and C. L. Ma, "A simple diode model with reverse recovery", *IEEE
-       Transactions on Power Electronics*, 6(2), 1991, pp. 188-191 (author order and pages from
-       memory): i = (q_E - q_M) / T_M, dq_M/dt = i - q_M / tau, q_E = I_S tau (exp(v/nV_T) - 1).
+    .. [1] P. O. Lauritzen and C. L. Ma, IEEE Trans. Power Electronics 6(2), 1991 (module notes).
     """
     charge = np.asarray(recovery_charge, dtype=float)
     time = np.asarray(recovery_time, dtype=float)
@@ -557,10 +533,8 @@ def lifetime_for_charge(
         Q_rr of each device at the test condition [C], > 0; for example shape (trials, n).
     transit_time
         T_M [s], > 0, broadcastable (usually the value fitted to the typical device).
-    forward_current
-        Test forward current I_F [A], > 0.
-    di_dt
-        Test rate of fall a [A/s], > 0.
+    forward_current, di_dt
+        Test forward current I_F [A] and rate of fall a [A/s], > 0.
 
     Returns
     -------
@@ -578,9 +552,7 @@ def lifetime_for_charge(
 
     References
     ----------
-    .. [1] P. O. Lauritzen and C. L. Ma, "A simple diode model with reverse recovery", *IEEE
-       Transactions on Power Electronics*, 6(2), 1991, pp. 188-191 (author order and pages from
-       memory): i = (q_E - q_M) / T_M, dq_M/dt = i - q_M / tau, q_E = I_S tau (exp(v/nV_T) - 1).
+    .. [1] P. O. Lauritzen and C. L. Ma, IEEE Trans. Power Electronics 6(2), 1991 (module notes).
     """
     charge = np.asarray(recovery_charge, dtype=float)
     transit = np.asarray(transit_time, dtype=float)
@@ -634,9 +606,7 @@ def rescale_recovery_charge(
 
     References
     ----------
-    .. [1] P. O. Lauritzen and C. L. Ma, "A simple diode model with reverse recovery", *IEEE
-       Transactions on Power Electronics*, 6(2), 1991, pp. 188-191 (author order and pages from
-       memory): i = (q_E - q_M) / T_M, dq_M/dt = i - q_M / tau, q_E = I_S tau (exp(v/nV_T) - 1).
+    .. [1] P. O. Lauritzen and C. L. Ma, IEEE Trans. Power Electronics 6(2), 1991 (module notes).
     """
     tau = lifetime_for_charge(recovery_charge, transit_time, test_forward_current, test_di_dt)
     return ramp_recovery(tau, transit_time, forward_current, di_dt).recovery_charge

@@ -25,15 +25,14 @@ left at the zero crossing is what the model's own recombination leaves; starting
 crossing would need that charge from the closed form of an exact ramp. I_F = 0 starts from rest
 (a step response).
 
-Integrator. TR-BDF2 with gamma = 2 - sqrt(2) [1]_ [2]_: a trapezoidal stage to t + gamma h and a
-BDF2 stage to t + h. It is one-step (restarts at no cost after a rejected step or the snap of a
-stage), second order, L-stable (the stiff modes of the junction and R_d C_j are damped, not
-reflected as trapezoidal would leave them) and both stages share one Newton matrix
-M - (gamma / 2) h J. The local error C h^3 x''' (C = (-3 gamma^2 + 4 gamma - 2) / (12 (2 - gamma)))
-is estimated from the three rates of the step and filtered through the Newton matrix [3]_, so
-stiff components that the method damps do not shrink the step. The step is controlled per trial
-with h <- h min(5, max(0.2, 0.9 err^(-1/3))) on the max norm of the error over all components
-weighted by rtol max(|x|, scale); a step whose Newton iteration fails is retried at h / 4.
+Integrator. TR-BDF2 with gamma = 2 - sqrt(2) [1]_ [2]_: a trapezoidal stage to t + gamma h, then
+a BDF2 stage to t + h. One-step (no restart cost after a rejection or a stage's snap), second
+order, L-stable (the stiff junction and R_d C_j modes are damped, where trapezoidal alone would
+reflect them), and both stages share one Newton matrix M - (gamma / 2) h J. The local error
+C h^3 x''' (C = (-3 gamma^2 + 4 gamma - 2) / (12 (2 - gamma))) is estimated from the step's three
+rates and filtered through the Newton matrix [3]_, so damped stiff components do not shrink the
+step. Per trial, h <- h min(5, max(0.2, 0.9 err^(-1/3))) on the max norm of the error weighted by
+rtol max(|x|, scale); a step whose Newton iteration fails is retried at h / 4.
 
 Elimination. Within a Newton step the stages couple only through the loop current: eliminating
 q_M and w of a stage leaves one scalar S_k per stage with dv_k = (rhs_k + a di) / S_k, and the
@@ -108,18 +107,12 @@ class TurnOffTrace:
 
     Attributes
     ----------
-    accepted
-        Whether the row holds an accepted step of the trial.
-    time
-        t [s] since the source reversed.
-    current
-        Loop current i [A], positive in the forward direction.
-    voltage
-        Reverse voltage of each stage -v_k [V].
-    capacitor_voltage
-        Reverse voltage of each grading capacitor -w_k [V] (the stage voltage where R_d = 0).
-    stored_charge
-        Stored charge of each diode q_M [C].
+    accepted, time, current
+        Whether the row holds an accepted step of the trial; t [s] since the source reversed;
+        loop current i [A], positive in the forward direction.
+    voltage, capacitor_voltage, stored_charge
+        Reverse voltage of each stage -v_k [V]; of each grading capacitor -w_k [V] (the stage
+        voltage where R_d = 0); stored charge of each diode q_M [C].
     """
 
     accepted: NDArray[np.bool_]
@@ -136,13 +129,11 @@ class TurnOff:
 
     Attributes
     ----------
-    peak_voltage
-        Largest reverse voltage of each stage [V], shape ``(trials, n)``.
-    peak_time
-        When it occurred, since the source reversed [s], shape ``(trials, n)``.
-    settled_voltage
-        Charge-balance share the ringing decays towards [V], shape ``(trials, n)``; sums to V_s.
-    overshoot
+    peak_voltage, peak_time
+        Largest reverse voltage of each stage [V] and when it occurred, since the source
+        reversed [s], shape ``(trials, n)``.
+    settled_voltage, overshoot
+        Charge-balance share the ringing decays towards (summing to V_s) and
         ``peak_voltage - settled_voltage`` [V], shape ``(trials, n)``.
     peak_current
         Peak reverse loop current, the string's I_RM [A], shape ``(trials,)``.
@@ -155,12 +146,9 @@ class TurnOff:
     settled
         Whether the trial ended because its diodes had recovered and its ringing had decayed
         (rather than at ``duration``), shape ``(trials,)``.
-    end_time
-        Time at which the trial's integration stopped [s], shape ``(trials,)``.
-    steps
-        Accepted steps, shape ``(trials,)``.
-    rejected_steps
-        Rejected steps (error too large or Newton failure), shape ``(trials,)``.
+    end_time, steps, rejected_steps
+        When the trial's integration stopped [s], its accepted steps and its rejected steps
+        (error too large or Newton failure), shape ``(trials,)``.
     trace
         The trajectory with ``record=True``, else None.
     """
@@ -361,14 +349,10 @@ def simulate_turn_off(
     lifetime, transit_time
         Charge-control tau and T_M of each diode [s], > 0; ``(trials, n)`` or broadcastable
         (see :func:`stringcheck.physics.charge_control.fit_charge_control`).
-    junction_capacitance
-        C_j [F], >= 0; ``(trials, n)`` or broadcastable. C_j + C_k must be > 0.
-    grading_resistance
-        R_k [ohm], > 0, ``inf`` for none; ``(trials, n)`` or broadcastable.
-    grading_capacitance
-        C_k [F], >= 0; ``(trials, n)`` or broadcastable.
-    damping_resistance
-        R_d in series with C_k [ohm], >= 0; 0 puts C_k directly across the stage.
+    junction_capacitance, grading_resistance, grading_capacitance, damping_resistance
+        C_j [F] >= 0, R_k [ohm] > 0 (``inf`` for none), C_k [F] >= 0 with C_j + C_k > 0, and
+        R_d [ohm] >= 0 in series with C_k (0 puts C_k directly across the stage); each
+        ``(trials, n)`` or broadcastable.
     leakage_conductance
         Leakage of each stage as a conductance [S], >= 0.
     loop_resistance
@@ -390,7 +374,7 @@ def simulate_turn_off(
     max_steps
         Most steps (accepted and rejected) per trial before it is reported as not converged.
     record
-        Keep every step in :attr:`TurnOff.trace` (memory grows with steps x trials x n).
+        Keep every step in :attr:`TurnOff.trace` (memory grows as steps x trials x n).
 
     Returns
     -------
@@ -418,7 +402,8 @@ def simulate_turn_off(
          damping_resistance, leakage_conductance, saturation_current, emission_coefficient,
          temperature],
     )
-    circuit, state = _build(loop, stage)
+    with np.errstate(divide="ignore", invalid="ignore"):  # bad rows are flagged just below
+        circuit, state = _build(loop, stage)
     trials, count = state.v.shape
     peak_voltage, peak_time = -state.v, np.zeros((trials, count))
     peak_current = np.maximum(-state.i, 0.0)
@@ -426,11 +411,15 @@ def simulate_turn_off(
     converged, settled = np.zeros(trials, dtype=bool), np.zeros(trials, dtype=bool)
     end_time, steps, rejected = np.zeros(trials), np.zeros(trials, int), np.zeros(trials, int)
 
-    # Rows with a non-finite input or starting state are reported as not converged, with NaN.
+    # Rows with a non-finite input or starting state, or without the positive L, tau, T_M,
+    # C_j + C_k, duration and step limit the integration needs, are reported as not converged.
     valid = np.isfinite(np.concatenate(
         [np.stack(loop[:4] + [circuit.duration, circuit.max_step, circuit.current_scale], axis=1),
          state.v, state.q] + [getattr(circuit, f.name) for f in fields(_Circuit)
                               if getattr(circuit, f.name).ndim == 2], axis=1)).all(axis=1)
+    valid &= (np.concatenate([circuit.lifetime, circuit.transit_time, circuit.stage_capacitance,
+                              np.stack([circuit.inductance, circuit.duration, circuit.max_step],
+                                       axis=1)], axis=1) > 0.0).all(axis=1)
     for output in (peak_voltage, peak_time, peak_current, energy):
         output[~valid] = np.nan
     rows = np.flatnonzero(valid)
@@ -516,15 +505,12 @@ class _State:
     history_i: NDArray[np.float64]  # (2, T): reverse loop current there
 
     def take(self, rows: NDArray[np.intp]) -> _State:
-        picked = {f.name: getattr(self, f.name) for f in fields(self)}
-        for name, value in picked.items():
+        def pick(name, value):
             if name == "rates":
-                picked[name] = tuple(r[rows] for r in value)
-            elif name.startswith("history"):
-                picked[name] = value[:, rows]
-            else:
-                picked[name] = value[rows]
-        return _State(**picked)
+                return tuple(r[rows] for r in value)
+            return value[:, rows] if name.startswith("history") else value[rows]
+
+        return _State(**{f.name: pick(f.name, getattr(self, f.name)) for f in fields(self)})
 
 
 def _build(loop, stage):

@@ -209,13 +209,17 @@ def test_trials_do_not_depend_on_their_batch():
 
 
 def test_failures_are_reported_not_hidden():
-    # A NaN input and a step budget too small to finish are flagged per trial; the others are not
-    # affected.
-    lifetime = np.array([[0.5e-6, np.nan], [0.5e-6, 0.6e-6]])
-    result = simulate_turn_off(3000.0, 60e-6, 100.0, lifetime, 0.1e-6, 100e-12, 1e6, 10e-9, 20.0)
-    assert result.converged.tolist() == [False, True]
-    assert np.isnan(result.peak_voltage[0]).all() and np.isfinite(result.peak_voltage[1]).all()
-    short = simulate_turn_off(3000.0, 60e-6, 100.0, lifetime[1:], 0.1e-6, 100e-12, 1e6, 10e-9,
+    # A NaN input, a stage with no capacitance at all, and a step budget too small to finish are
+    # flagged per trial; the other trials are not affected.
+    lifetime = np.array([[0.5e-6, np.nan], [0.5e-6, 0.6e-6], [0.5e-6, 0.6e-6]])
+    capacitor = np.array([[10e-9, 10e-9], [10e-9, 10e-9], [10e-9, 0.0]])
+    junction = np.array([[100e-12], [100e-12], [0.0]])
+    result = simulate_turn_off(3000.0, 60e-6, 100.0, lifetime, 0.1e-6, junction, 1e6, capacitor,
+                               20.0)
+    assert result.converged.tolist() == [False, True, False]
+    assert np.isnan(result.peak_voltage[[0, 2]]).all()
+    assert np.isfinite(result.peak_voltage[1]).all()
+    short = simulate_turn_off(3000.0, 60e-6, 100.0, lifetime[1:2], 0.1e-6, 100e-12, 1e6, 10e-9,
                               20.0, max_steps=30)
     assert not short.converged[0] and not short.settled[0]
 
