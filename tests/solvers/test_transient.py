@@ -2,7 +2,7 @@
 
 References outside the project: the closed-form step response of a series R-L-C circuit (any
 circuit-theory text, e.g. C. K. Alexander and M. N. O. Sadiku, Fundamentals of Electric Circuits,
-ch. 8, second-order circuits), the charge-control equations of P. O. Lauritzen and C. L. Ma (IEEE
+ch. 8, second-order circuits; chapter number from memory), the charge-control equations of P. O. Lauritzen and C. L. Ma (IEEE
 Trans. Power Electronics 6(2), 1991) integrated by scipy's solve_ivp (Radau), Kirchhoff's voltage
 law, and the charge-balance solver of stringcheck.solvers.series_dynamic (itself checked against
 Rashid's textbook corner and brentq). Circuit values are invented.
@@ -163,7 +163,8 @@ def test_settled_voltages_follow_charge_balance(capacitance):
     # clamp and the string equalises: charge balance no longer applies). R_d itself does not
     # enter the charge balance. Residual difference: once the first stage blocks, the loop's
     # di/dt is no longer exactly V_s / L, which moves the later stages' recovered charge; it is
-    # below 0.1 % of V_s / n here, against a charge-balance spread of 4-12 %. Tolerance 0.3 %.
+    # below 0.1 % of V_s / n here, against a charge-balance spread (max - min) of 8-24 % of
+    # V_s / n. Tolerance 0.3 % of V_s / n.
     from stringcheck.physics.charge_control import ramp_recovery
 
     voltage, inductance, current = 3000.0, 60e-6, 100.0
