@@ -37,6 +37,13 @@ _CSV = typer.Option(None, "--csv", help="Write per-position statistics to PATH a
                     metavar="PATH")
 _QUIET = typer.Option(False, "--quiet", "-q", help="Print only a one-line verdict.")
 _DEBUG = typer.Option(False, "--debug", help="Show the traceback of an internal error.")
+_TRANSIENT = typer.Option(False, "--transient", help="Also simulate the turn-off in the time "
+                                                    "domain (overshoot, ringing).")
+_TRANSIENT_WORST = typer.Option(20, "--transient-worst", min=0, metavar="N",
+                                help="With --transient: simulate the N worst charge-balance strings.")
+_TRANSIENT_SAMPLE = typer.Option(None, "--transient-sample", min=1, metavar="N",
+                                 help="With --transient: random strings to estimate P(fail) on "
+                                      "(default: as many as the target needs).")
 _WORKERS = typer.Option(1, "--workers", help="Processes to run the trials in (the result is the "
                                              "same for any number).")
 
@@ -107,7 +114,7 @@ def _run(action: Callable[[], int], debug: bool) -> None:
 
 
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
-           source_label=None) -> int:
+           transient=None, source_label=None) -> int:
     from .design import load_design
     from .report.export import json_text, positions_csv, result_to_dict, write_text_atomic
     from .report.terminal import render_check, render_check_summary
@@ -121,7 +128,8 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
     to_stdout = json_path == "-"
     progress = _DelayedProgress(enabled=not quiet, label="drawing strings")
     try:
-        result = run_check(design, trials=trials, seed=seed, progress=progress, workers=workers)
+        result = run_check(design, trials=trials, seed=seed, progress=progress, workers=workers,
+                           **(transient or {}))
     finally:
         progress.close()
     if json_path is not None:
@@ -146,11 +154,22 @@ def check(
     csv: Optional[str] = _CSV,
     quiet: bool = _QUIET,
     workers: int = _WORKERS,
+    transient: bool = _TRANSIENT,
+    transient_worst: int = _TRANSIENT_WORST,
+    transient_sample: Optional[int] = _TRANSIENT_SAMPLE,
     debug: bool = _DEBUG,
 ) -> None:
-    """Check a series string: static and dynamic voltage sharing, P(fail), grading ratings."""
+    """Check a string: static and dynamic voltage sharing, parallel current sharing, junction
+    temperatures and runaway, optionally the time-domain turn-off; P(fail), grading ratings."""
+    options = _transient_options(transient, transient_worst, transient_sample)
     _run(lambda: _check(file, trials=trials, seed=seed, json_path=json, csv_path=csv, quiet=quiet,
-                        workers=workers), debug)
+                        workers=workers, transient=options), debug)
+
+
+def _transient_options(transient: bool, worst: int, sample: Optional[int]) -> dict:
+    if not transient:
+        return {}
+    return {"transient": True, "transient_worst": worst, "transient_sample": sample}
 
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,
@@ -223,13 +242,19 @@ def demo(
     csv: Optional[str] = _CSV,
     quiet: bool = _QUIET,
     workers: int = _WORKERS,
+    transient: bool = _TRANSIENT,
+    transient_worst: int = _TRANSIENT_WORST,
+    transient_sample: Optional[int] = _TRANSIENT_SAMPLE,
     debug: bool = _DEBUG,
 ) -> None:
     """Run the check on the bundled example design (an invented 30 kV stack)."""
+    options = _transient_options(transient, transient_worst, transient_sample)
+
     def action() -> int:
         with resources.as_file(resources.files("stringcheck") / "data" / "demo.toml") as path:
             return _check(path, trials=trials, seed=seed, json_path=json, csv_path=csv,
-                          quiet=quiet, workers=workers, source_label="demo (bundled example)")
+                          quiet=quiet, workers=workers, transient=options,
+                          source_label="demo (bundled example)")
 
     _run(action, debug)
 

@@ -18,7 +18,8 @@ from ..errors import StringcheckError
 from ..studies.check import CheckResult, SeriesCheck
 from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
-from .forward import parallel_to_dict, thermal_to_dict
+from ..studies.transient_check import TransientCheck
+from .check_sections import parallel_to_dict, thermal_to_dict, transient_to_dict
 
 if TYPE_CHECKING:
     from ..studies.size import SizingResult
@@ -64,6 +65,8 @@ def _any_check_to_dict(check) -> dict[str, Any]:
         return parallel_to_dict(check)
     if isinstance(check, ThermalCheck):
         return thermal_to_dict(check)
+    if isinstance(check, TransientCheck):
+        return transient_to_dict(check)
     return check_to_dict(check)
 
 

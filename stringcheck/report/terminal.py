@@ -14,7 +14,8 @@ from ..quantity import format_quantity
 from ..studies.check import CheckResult, SeriesCheck
 from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
-from .forward import render_parallel, render_thermal, worst_value_text
+from ..studies.transient_check import TransientCheck
+from .check_sections import render_parallel, render_thermal, render_transient, worst_value_text
 
 if TYPE_CHECKING:
     from ..studies.size import SizingResult
@@ -97,6 +98,8 @@ def render_check(result: CheckResult, console: Console) -> None:
             render_parallel(check, design, console)
         elif isinstance(check, ThermalCheck):
             render_thermal(check, design, console)
+        elif isinstance(check, TransientCheck):
+            render_transient(check, design, console)
         else:
             _render_detail(name, check, console)
 
@@ -128,6 +131,9 @@ def _fail_reason(result: CheckResult) -> str:
                                "device above its limit, P(fail) up to "
                                f"{estimate.ci_high:.2g} > {result.target_p_fail:g}"
                                + (f" ({check.unsolved} unsolved)" if check.unsolved else ""))
+    transient = result.checks.get("transient")
+    if transient is not None and not transient.ran:
+        reasons.append(f"the requested transient check could not run ({transient.reason})")
     reasons += list(result.grading.rating_problems)
     short = [name for name, check in result.checks.items()
              if check.ran and check.estimate.failures == 0 and not check.passed]

@@ -36,6 +36,8 @@ from .forward_check import (
     forward_setup,
     run_forward_chunk,
 )
+from .transient_check import DEFAULT_WORST, run_transient
+from .transient_check import not_run as not_run_transient
 from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 
 # A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
@@ -193,7 +195,9 @@ class _Accumulator:
 def run_check(design: Design, *, trials: int | None = None, seed: int | None = None,
               chunk_trials: int | None = None, only: tuple[str, ...] | None = None,
               progress: ProgressCallback | None = None, workers: int = 1,
-              pool: WorkerPool | None = None) -> CheckResult:
+              pool: WorkerPool | None = None, transient: bool = False,
+              transient_worst: int = DEFAULT_WORST,
+              transient_sample: int | None = None) -> CheckResult:
     """Run the series check of ``design`` (static sharing always, dynamic when there is a turn-off).
 
     Parameters
@@ -212,6 +216,10 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     workers, pool
         Run the chunks in ``workers`` processes, or in an open ``pool`` (see ``runner.worker_pool``);
         the result is identical to a run in this process.
+    transient, transient_worst, transient_sample
+        Also run the time-domain turn-off (``studies.transient_check``) on the worst
+        ``transient_worst`` charge-balance trials and a random sample of ``transient_sample``
+        trials (default: the trials the target needs, so that the check can pass).
     """
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
@@ -284,6 +292,17 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         checks["dynamic"] = _finish("dynamic", dynamic, grid, confidence, trials, target)
     else:
         checks["dynamic"] = _not_run("dynamic", dynamic_reason)
+    if transient:
+        if dynamic is None:
+            checks["transient"] = not_run_transient(f"needs the dynamic check, which did not run: "
+                                                    f"{dynamic_reason}")
+        else:
+            needed = trials_for_upper_bound(target, confidence=confidence)
+            checks["transient"] = run_transient(
+                design, dynamic_ratios=np.concatenate(dynamic.worst_ratios), trials=trials,
+                seed=seed, worst=transient_worst,
+                sample=needed if transient_sample is None else transient_sample,
+                confidence=confidence, target=target)
     if run_forward:
         checks["parallel"] = finish_parallel(design, forward, parallel_reason, forward_sums,
                                              confidence, target, trials)
@@ -294,7 +313,10 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     grading = _grading_summary(design, checks, temperature, reference_voltage, reference_temperature,
                                doubling, exponent, junction_capacitance)
     passed = all(check.passed for check in checks.values() if check.ran)
-    verdict = "pass" if passed and impossible is None and not grading.rating_problems else "fail"
+    # A check the user asked for that could not run never lets the design pass.
+    requested_missing = transient and not checks["transient"].ran
+    verdict = "pass" if passed and impossible is None and not grading.rating_problems \
+        and not requested_missing else "fail"
     return CheckResult(design=design, trials=trials, seed=seed, target_p_fail=target,
                        trials_needed=trials_for_upper_bound(target, confidence=confidence),
                        checks=checks, grading=grading,

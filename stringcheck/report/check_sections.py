@@ -1,4 +1,4 @@
-"""Report sections and JSON of the forward checks: parallel current sharing and the thermal check."""
+"""Report sections and JSON of the checks beyond the series ones: parallel sharing, thermal, transient."""
 
 from __future__ import annotations
 
@@ -11,6 +11,7 @@ from rich.text import Text
 
 from ..quantity import format_quantity
 from ..studies.forward_check import ParallelCheck, ThermalCheck
+from ..studies.transient_check import TransientCheck
 
 
 def _number(value: float | None) -> float | None:
@@ -83,8 +84,71 @@ def thermal_to_dict(check: ThermalCheck) -> dict[str, Any]:
     }
 
 
+def transient_to_dict(check: TransientCheck) -> dict[str, Any]:
+    """JSON of the transient check (voltages [V], currents [A], energies [J])."""
+    return {
+        "passed": check.passed,
+        "worst_voltage": _number(check.worst_voltage),
+        "overshoot": _number(check.overshoot),
+        "worst_ratio": _number(check.worst_ratio),
+        "p50_ratio": _number(check.p50_ratio),
+        "p99_ratio": _number(check.p99_ratio),
+        **_estimate(check.estimate),
+        "unsolved": check.unsolved,
+        "worst_trial": check.worst_trial,
+        "sampled": check.sampled,
+        "worst_simulated": check.worst_simulated,
+        "worst_failures": check.worst_failures,
+        "peak_recovery_current": _number(check.peak_recovery_current),
+        "damping_energy": _number(check.damping_energy),
+        "inductance": _number(check.inductance),
+        "forward_current": _number(check.forward_current),
+        "notes": list(check.notes),
+        "positions": [
+            {"branch": p.branch, "index": p.index, "part": p.part, "limit": p.limit,
+             "mean_voltage": _number(p.mean_voltage), "std_voltage": _number(p.std_voltage),
+             "max_voltage": _number(p.max_voltage), "max_overshoot": _number(p.max_overshoot),
+             "failures": p.failures}
+            for p in check.positions
+        ],
+    }
+
+
+def render_transient(check: TransientCheck, design, console: Console) -> None:
+    console.print(Text("Turn-off in the time domain (stray inductance, recovery, damping)",
+                       style="bold underline"))
+    console.print(f"L = {format_quantity(check.inductance, 'H')}, I_F = "
+                  f"{format_quantity(check.forward_current, 'A')} per branch; simulated: the "
+                  f"{check.worst_simulated} worst charge-balance strings and a random sample of "
+                  f"{check.sampled:,} (P(fail) is estimated on the sample)")
+    ranked = sorted(check.positions, key=lambda p: p.max_voltage / p.limit, reverse=True)[:5]
+    single_branch = all(p.branch == 1 for p in check.positions)
+    table = Table(show_edge=False, pad_edge=False)
+    for column in ("position", "part", "mean peak V", "max peak V", "max overshoot V", "limit V",
+                   "over"):
+        table.add_column(column, justify="left" if column in ("position", "part") else "right")
+    for p in ranked:
+        label = f"#{p.index}" if single_branch else f"branch {p.branch} #{p.index}"
+        table.add_row(label, p.part, f"{p.mean_voltage:,.0f}", f"{p.max_voltage:,.0f}",
+                      f"{p.max_overshoot:,.0f}", f"{p.limit:,.0f}", f"{p.failures:,}")
+    console.print(table)
+    console.print(f"  worst peak {format_quantity(check.worst_voltage, 'V')} (overshoot up to "
+                  f"{format_quantity(check.overshoot, 'V')} above the settled share); peak recovery "
+                  f"current {format_quantity(check.peak_recovery_current, 'A')}; energy per "
+                  f"damping resistor per turn-off up to {format_quantity(check.damping_energy, 'J')}")
+    if check.worst_failures:
+        console.print(Text(f"  {check.worst_failures} of the {check.worst_simulated} worst "
+                           "charge-balance strings exceed the limit in the time domain",
+                           style="bold red"))
+    for note in check.notes:
+        console.print(Text(f"  note: {note}", style="italic"))
+    console.print()
+
+
 def worst_value_text(check) -> str:
-    """The 'worst' cell of the summary table for a forward check."""
+    """The 'worst' cell of the summary table for a check that is not a series check."""
+    if isinstance(check, TransientCheck):
+        return format_quantity(check.worst_voltage, "V")
     if isinstance(check, ParallelCheck):
         return f"share {check.worst_share:.3f}"
     return "runaway" if not math.isfinite(check.worst_tj) else f"T_j {check.worst_tj:.0f} degC"

@@ -1,0 +1,268 @@
+"""The transient check: time-domain turn-off of selected built strings (``check --transient``).
+
+Charge balance gives the voltage left on each device after recovery; the transient engine
+(``solvers.transient``, charge-control diodes with C_j, grading R, C and R_d, in a loop with the
+commutation inductance) adds the overshoot of the stray inductance and a snappy recovery. It costs
+milliseconds per string, so it runs on a selection of the trials of the check:
+
+* the ``worst`` trials of the charge-balance (dynamic) check, every one of them simulated, and
+* a uniform random ``sample`` of all trials (its own random stream), on which P(fail) is estimated
+  with the exact interval, as for the other checks.
+
+A trial fails when a device's peak reverse voltage exceeds ``derating x V_RRM``, or when the
+engine could not finish it. The check passes only when the sample's P(fail) upper bound meets the
+target and none of the worst trials fails. Each part's tau and T_M are fitted to its typical Q_rr
+and I_RM (or t_rr) at the datasheet's test I_F and di/dt; the drawn Q_rr of each device maps onto
+its tau (``physics.charge_control``), so the engine itself carries the recovery charge over from the
+test conditions to the application's I_F and di/dt.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..design import Design
+from ..physics.charge_control import (
+    fit_charge_control,
+    lifetime_for_charge,
+    peak_current_from_recovery_time,
+)
+from ..sampling import BLOCK_TRIALS, draw_strings
+from ..solvers.transient import simulate_turn_off
+from ..stats import FailureEstimate, failure_estimate
+
+# Stream of the random sample, apart from every stream of the draws (sampling.py uses < 3000 and
+# part streams from 2000 up; this one is ours alone).
+_SAMPLE_STREAM = 7001
+# Trials simulated at once (memory of the engine's working set stays small).
+_BATCH = 512
+DEFAULT_WORST = 20
+
+
+@dataclass(frozen=True)
+class TransientPosition:
+    """Peak reverse voltage of one position over the random sample [V]."""
+
+    branch: int
+    index: int
+    part: str
+    limit: float
+    mean_voltage: float
+    std_voltage: float
+    max_voltage: float
+    max_overshoot: float
+    failures: int
+
+
+@dataclass(frozen=True)
+class TransientCheck:
+    """Outcome of the transient check."""
+
+    name: str
+    ran: bool
+    reason: str
+    passed: bool
+    worst_voltage: float
+    worst_ratio: float
+    p50_ratio: float
+    p99_ratio: float
+    overshoot: float
+    estimate: FailureEstimate | None
+    unsolved: int
+    worst_trial: int
+    sampled: int
+    worst_simulated: int
+    worst_failures: int
+    peak_recovery_current: float
+    damping_energy: float
+    inductance: float
+    forward_current: float
+    positions: tuple[TransientPosition, ...]
+    notes: tuple[str, ...]
+
+
+def not_run(reason: str) -> TransientCheck:
+    return TransientCheck(name="transient", ran=False, reason=reason, passed=False,
+                          worst_voltage=math.nan, worst_ratio=math.nan, p50_ratio=math.nan,
+                          p99_ratio=math.nan, overshoot=math.nan, estimate=None, unsolved=0,
+                          worst_trial=-1, sampled=0, worst_simulated=0, worst_failures=0,
+                          peak_recovery_current=math.nan, damping_energy=math.nan,
+                          inductance=math.nan, forward_current=math.nan, positions=(), notes=())
+
+
+def transient_reason(design: Design) -> str:
+    """Why the transient check cannot run for this design ("" when it can)."""
+    duty = design.duty
+    if duty.stray_inductance is None and duty.di_dt is None:
+        return "give duty.stray_inductance or duty.di_dt (the commutation loop)"
+    for name in design.parts_used():
+        part = design.parts[name]
+        if part.q_rr is None:
+            return f"parts.{name} gives no q_rr"
+        if part.i_rm is None and part.t_rr is None:
+            return f"parts.{name} gives neither i_rm nor t_rr: the recovery model needs one"
+        if part.q_rr.at_di_dt is None:
+            return f"parts.{name}.q_rr has no at_di_dt (the datasheet's test di/dt)"
+        if part.q_rr.at_forward_current is None and duty.forward_current is None:
+            return (f"parts.{name}.q_rr has no at_forward_current and the duty no forward_current")
+    return ""
+
+
+def _fits(design: Design) -> dict[str, tuple[float, float, float]]:
+    """(T_M, test I_F, test di/dt) of each part, fitted to its typical recovery."""
+    fits = {}
+    for name in design.parts_used():
+        part = design.parts[name]
+        test_rate = part.q_rr.at_di_dt
+        test_current = part.q_rr.at_forward_current or design.duty.forward_current
+        if part.i_rm is not None:
+            peak = part.i_rm.typ
+        else:
+            peak = float(peak_current_from_recovery_time(part.q_rr.typ, part.t_rr.typ, test_rate))
+        fit = fit_charge_control(part.q_rr.typ, peak, test_current, test_rate)
+        transit = float(fit.transit_time)
+        if not math.isfinite(transit):
+            raise ValueError(name)
+        fits[name] = (transit, test_current, test_rate)
+    return fits
+
+
+def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, seed: int,
+                  worst: int, sample: int, confidence: float, target: float) -> TransientCheck:
+    """Simulate the worst ``worst`` charge-balance trials and a random ``sample`` of all trials."""
+    reason = transient_reason(design)
+    if reason:
+        return not_run(reason)
+    try:
+        fits = _fits(design)
+    except ValueError as error:
+        return not_run(f"parts.{error}: its typical q_rr, i_rm or t_rr and at_di_dt are not "
+                       "consistent with any recovery waveform (with t_rr: Q_rr <= di/dt t_rr^2 / 2; "
+                       "with i_rm: Q_rr > I_RM^2 / (2 di/dt)); check the datasheet values")
+    worst = min(worst, trials)
+    sample = min(sample, trials)
+    order = np.argsort(-np.nan_to_num(dynamic_ratios, nan=np.inf), kind="stable")
+    worst_set = np.sort(order[:worst])
+    rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(_SAMPLE_STREAM,)))
+    sample_set = np.sort(rng.choice(trials, size=sample, replace=False))
+    selected = np.union1d(worst_set, sample_set)
+
+    layout = design.string
+    duty = design.duty
+    grid = layout.part_grid()
+    limits = layout.derating * np.array([[design.parts[p].v_rrm for p in row] for row in grid])
+    notes = []
+    inductance = duty.stray_inductance if duty.stray_inductance is not None else \
+        duty.reverse_voltage / duty.di_dt
+    forward = duty.forward_current
+    if forward is None:
+        forward = max(fit[1] for fit in fits.values())
+        notes.append(f"no duty.forward_current: each branch starts from the parts' test I_F "
+                     f"({forward:g} A)")
+    else:
+        forward = forward / layout.parallel
+    if layout.parallel > 1:
+        notes.append(f"each of the {layout.parallel} branches is simulated as its own loop with "
+                     f"{layout.parallel} x L and 1/{layout.parallel} of the current")
+    notes.append("leakage and the grading resistor's TCR are left out of the turn-off "
+                 "(microseconds); junction temperature enters only the thermal voltage")
+
+    peaks, overshoots, currents, energies, solved = _simulate(
+        design, fits, selected, trials, seed, inductance * layout.parallel, forward)
+    ratio = np.max(peaks / limits, axis=(1, 2))
+    ratio = np.where(solved, ratio, np.inf)
+    failed = ~(ratio <= 1.0)
+    in_sample = np.isin(selected, sample_set)
+    in_worst = np.isin(selected, worst_set)
+    estimate = failure_estimate(int(np.count_nonzero(failed[in_sample])), sample,
+                                confidence=confidence)
+    worst_failures = int(np.count_nonzero(failed[in_worst]))
+    sample_peaks = peaks[in_sample]
+    finite = ratio[in_sample][np.isfinite(ratio[in_sample])]
+    good = sample_peaks[solved[in_sample]]
+    positions = []
+    for b in range(grid.shape[0]):
+        for k in range(grid.shape[1]):
+            values = good[:, b, k]
+            positions.append(TransientPosition(
+                branch=b + 1, index=k + 1, part=str(grid[b, k]), limit=float(limits[b, k]),
+                mean_voltage=float(values.mean()) if values.size else math.nan,
+                std_voltage=float(values.std(ddof=1)) if values.size > 1 else math.nan,
+                max_voltage=float(values.max()) if values.size else math.nan,
+                max_overshoot=float(np.nanmax(overshoots[:, b, k])),
+                failures=int(np.count_nonzero(sample_peaks[:, b, k] > limits[b, k]))))
+    top = int(np.argmax(ratio))
+    return TransientCheck(
+        name="transient", ran=True, reason="",
+        passed=estimate.ci_high <= target and worst_failures == 0,
+        worst_voltage=float(np.nanmax(np.where(solved[:, None, None], peaks, np.nan))),
+        worst_ratio=float(ratio[top]),
+        p50_ratio=float(np.percentile(finite, 50)) if finite.size else math.nan,
+        p99_ratio=float(np.percentile(finite, 99)) if finite.size else math.nan,
+        overshoot=float(np.nanmax(overshoots)), estimate=estimate,
+        unsolved=int(np.count_nonzero(~solved)), worst_trial=int(selected[top]),
+        sampled=sample, worst_simulated=worst, worst_failures=worst_failures,
+        peak_recovery_current=float(np.nanmax(currents)),
+        damping_energy=float(np.nanmax(energies)), inductance=float(inductance),
+        forward_current=float(forward), positions=tuple(positions), notes=tuple(notes))
+
+
+def _simulate(design: Design, fits, selected: np.ndarray, trials: int, seed: int,
+              inductance: float, forward: float):
+    """Redraw the selected trials (block by block) and run each branch through the engine."""
+    layout = design.string
+    grid = layout.part_grid()
+    shape = (selected.size, layout.parallel, layout.series)
+    charge = np.empty(shape)
+    resistance = np.full(shape, np.inf)
+    capacitance = np.zeros(shape)
+    blocks = selected // BLOCK_TRIALS
+    for block in np.unique(blocks):
+        first = int(block) * BLOCK_TRIALS
+        drawn = draw_strings(design, ("q_rr",), first, min(BLOCK_TRIALS, trials - first), seed=seed)
+        rows = selected[blocks == block] - first
+        where = blocks == block
+        charge[where] = drawn.parameters["q_rr"][rows]
+        if drawn.resistance is not None:
+            resistance[where] = drawn.resistance[rows]
+        if drawn.capacitance is not None:
+            capacitance[where] = drawn.capacitance[rows]
+    transit = np.empty(grid.shape)
+    lifetime = np.empty(shape)
+    for name, (t_m, test_current, test_rate) in fits.items():
+        mask = grid == name
+        transit[mask] = t_m
+        lifetime[:, mask] = lifetime_for_charge(charge[:, mask], t_m, test_current, test_rate)
+    junction = np.array([[design.parts[p].c_j for p in row] for row in grid])
+    damping = design.grading.damping_resistor or 0.0
+    temperature = design.duty.ambient + 273.15
+    flat = selected.size * layout.parallel
+    rows_shape = (flat, layout.series)
+    lifetime = lifetime.reshape(rows_shape)
+    resistance = resistance.reshape(rows_shape)
+    capacitance = capacitance.reshape(rows_shape)
+    transit_rows = np.broadcast_to(transit, shape).reshape(rows_shape)
+    junction_rows = np.broadcast_to(junction, shape).reshape(rows_shape)
+    peaks = np.empty(rows_shape)
+    overshoot = np.empty(rows_shape)
+    current = np.empty(flat)
+    energy = np.empty(rows_shape)
+    converged = np.empty(flat, dtype=bool)
+    for start in range(0, flat, _BATCH):
+        part = slice(start, start + _BATCH)
+        result = simulate_turn_off(
+            design.duty.reverse_voltage, inductance, forward, lifetime[part], transit_rows[part],
+            junction_rows[part], resistance[part], capacitance[part], damping,
+            temperature=temperature)
+        peaks[part] = result.peak_voltage
+        overshoot[part] = result.overshoot
+        current[part] = result.peak_current
+        energy[part] = result.damping_energy
+        converged[part] = result.converged & np.all(np.isfinite(result.peak_voltage), axis=1)
+    per_trial = (selected.size, layout.parallel)
+    solved = converged.reshape(per_trial).all(axis=1)
+    return (peaks.reshape(shape), overshoot.reshape(shape), current.reshape(per_trial),
+            energy.reshape(shape), solved)
