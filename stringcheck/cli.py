@@ -173,7 +173,7 @@ def _transient_options(transient: bool, worst: int, sample: Optional[int]) -> di
 
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,
-          find_series, workers=1) -> int:
+          find_series, workers=1, transient=False) -> int:
     from .design import load_design
     from .report.export import json_text, sizing_to_dict, write_text_atomic
     from .report.terminal import render_check_summary, render_sizing
@@ -188,13 +188,13 @@ def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capaci
 
         result = run_size(design, trials=trials, seed=seed, resistor_series=resistor_series,
                           capacitor_series=capacitor_series, find_series=find_series,
-                          progress=progress, workers=workers)
+                          progress=progress, workers=workers, transient=transient)
     if json_path is not None:
         write_text_atomic(json_path, json_text(sizing_to_dict(result)))
     console = _console(stderr=json_path == "-", wrap=not quiet)
     if quiet:
         r = result.resistor.chosen.value
-        c = result.capacitor.chosen.value if result.capacitor else None
+        c = result.design.grading.capacitor if result.capacitor else None
         console.print(f"R = {r:.4g} ohm" + (f", C = {c:.4g} F" if c else "")
                       + (f", R_d = {result.damping_resistor:.3g} ohm" if result.damping_resistor
                          else "") + f", n = {result.series_count}; ", end="")
@@ -226,12 +226,15 @@ def size(
     json: Optional[str] = _JSON,
     quiet: bool = _QUIET,
     workers: int = _WORKERS,
+    transient: bool = typer.Option(False, "--transient",
+                                   help="Choose the damping resistor in the time domain and "
+                                        "include the transient in the final check."),
     debug: bool = _DEBUG,
 ) -> None:
     """Propose grading R, C and damping resistor from preferred values, with their ratings."""
     _run(lambda: _size(file, trials=trials, seed=seed, json_path=json, quiet=quiet,
                        resistor_series=resistor_series, capacitor_series=capacitor_series,
-                       find_series=find_series, workers=workers), debug)
+                       find_series=find_series, workers=workers, transient=transient), debug)
 
 
 @app.command()

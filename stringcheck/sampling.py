@@ -121,10 +121,11 @@ def _truncate(z: np.ndarray, low: float, high: float) -> np.ndarray:
     """Map a standard normal onto the standard normal truncated to [low, high], rank-preserving."""
     if np.isinf(low) and np.isinf(high):
         return z
+    # The clips only remove the rounding of ndtri(ndtr(x)) ~ x at the limits themselves.
     if np.isinf(low):
-        return special.ndtri(special.ndtr(z) * special.ndtr(high))
+        return np.minimum(special.ndtri(special.ndtr(z) * special.ndtr(high)), high)
     if np.isinf(high):
-        return -special.ndtri(special.ndtr(-z) * special.ndtr(-low))
+        return np.maximum(-special.ndtri(special.ndtr(-z) * special.ndtr(-low)), low)
     p_low, p_high = special.ndtr(low), special.ndtr(high)
     return np.clip(special.ndtri(p_low + special.ndtr(z) * (p_high - p_low)), low, high)
 

@@ -197,9 +197,12 @@ def sizing_to_dict(result: "SizingResult") -> dict[str, Any]:
 
     data["grading"] = {
         "resistor": result.resistor.chosen.value,
-        "capacitor": result.capacitor.chosen.value if result.capacitor else None,
+        "capacitor": result.design.grading.capacitor if result.capacitor else None,
         "damping_resistor": result.damping_resistor,
         "damping_rule": result.damping_rule,
+        "damping_candidates": [
+            {"value": c.value, "worst_ratio": _number(c.worst_ratio), "energy": _number(c.energy),
+             "within_limit": c.within_limit} for c in result.damping_candidates],
         "series_used": {"resistor": result.resistor.series,
                         "capacitor": result.capacitor.series if result.capacitor else None},
         "series_count": result.series_count,

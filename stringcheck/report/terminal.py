@@ -252,11 +252,14 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
         _rejected(r.rejected_neighbour, "ohm", "larger"))
     if result.capacitor is not None:
         c = result.capacitor
-        table.add_row(
-            f"grading capacitor ({c.series})", format_quantity(c.chosen.value, "F"),
-            f"smallest value with P(fail) <= {c.chosen.p_fail_upper:.3g} "
-            f"({c.chosen.failures} failures)",
-            _rejected(c.rejected_neighbour, "F", "smaller"))
+        final = result.design.grading.capacitor
+        why = (f"smallest value with P(fail) <= {c.chosen.p_fail_upper:.3g} "
+               f"({c.chosen.failures} failures)")
+        if final != c.chosen.value:
+            why = (f"raised from {format_quantity(c.chosen.value, 'F')} (charge balance: {why}) "
+                   "for the time-domain turn-off")
+        table.add_row(f"grading capacitor ({c.series})", format_quantity(final, "F"), why,
+                      _rejected(c.rejected_neighbour, "F", "smaller"))
     table.add_row("damping resistor", format_quantity(result.damping_resistor, "ohm")
                   if result.damping_resistor else "-", "see the rule below", "")
     if result.series_searched:
@@ -264,6 +267,11 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
                       "smallest count that passes every check with this network", "")
     console.print(table)
     console.print(f"  damping resistor: {result.damping_rule}")
+    if result.damping_candidates:
+        console.print("  damping resistors tried in the time domain: " + "; ".join(
+            f"{format_quantity(c.value, 'ohm')} peak/limit {c.worst_ratio:.3f} "
+            f"{format_quantity(c.energy, 'J')}{'' if c.within_limit else ' (over)'}"
+            for c in result.damping_candidates))
     if r.textbook_bound is not None:
         console.print(f"  textbook worst-case corner: R <= {format_quantity(r.textbook_bound, 'ohm')}"
                       + (f", C >= {format_quantity(result.capacitor.textbook_bound, 'F')}"

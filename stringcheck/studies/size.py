@@ -39,6 +39,12 @@ _RESISTOR_RANGE = (1.0, 1e11)
 _CAPACITOR_RANGE = (1e-13, 1e-3)
 # Critical damping of the stray-inductance ring: damping ratio zeta = 1 (series RLC).
 DAMPING_RATIO = 1.0
+# Strings simulated per damping candidate: the worst charge-balance ones and a random sample.
+_SEARCH_WORST = 20
+_SEARCH_SAMPLE = 100
+_MAX_CAPACITOR_STEPS = 6
+# One capacitor step of the time-domain search: about x1.8 whatever the series (a quarter decade).
+_CAPACITOR_STEP = {"E6": 1, "E12": 3, "E24": 6, "E48": 12, "E96": 24, "E192": 48}
 
 
 @dataclass(frozen=True)
@@ -82,6 +88,16 @@ class Ratings:
 
 
 @dataclass(frozen=True)
+class DampingCandidate:
+    """One damping resistor tried in the time domain."""
+
+    value: float
+    worst_ratio: float
+    energy: float
+    within_limit: bool
+
+
+@dataclass(frozen=True)
 class SizingResult:
     """The proposed network, the evidence for it, and the check of the sized design."""
 
@@ -96,6 +112,7 @@ class SizingResult:
     check: CheckResult
     target_p_fail: float
     advisories: tuple[str, ...]
+    damping_candidates: tuple[DampingCandidate, ...] = ()
 
 
 Evaluate = Callable[[float], Candidate]
@@ -104,7 +121,7 @@ Evaluate = Callable[[float], Candidate]
 def size(design: Design, *, trials: int | None = None, seed: int | None = None,
          resistor_series: str | None = None, capacitor_series: str | None = None,
          find_series: bool = False, progress: Callable[[str], None] | None = None,
-         workers: int = 1) -> SizingResult:
+         workers: int = 1, transient: bool = False) -> SizingResult:
     """Propose the grading network of ``design`` from preferred values.
 
     Parameters
@@ -123,16 +140,20 @@ def size(design: Design, *, trials: int | None = None, seed: int | None = None,
     workers
         Processes to run each check's trials in (one pool serves the whole search); the answer is
         the same for any number.
+    transient
+        Choose the damping resistor in the time domain (the E12 value with the least damping
+        energy whose peak stays within the limit) and run the final check with the transient.
     """
     with worker_pool(workers) as pool:
         return _size(design, trials=trials, seed=seed, resistor_series=resistor_series,
                      capacitor_series=capacitor_series, find_series=find_series,
-                     progress=progress, pool=pool)
+                     progress=progress, pool=pool, transient=transient)
 
 
 def _size(design: Design, *, trials: int | None, seed: int | None, resistor_series: str | None,
           capacitor_series: str | None, find_series: bool,
-          progress: Callable[[str], None] | None, pool: WorkerPool | None) -> SizingResult:
+          progress: Callable[[str], None] | None, pool: WorkerPool | None,
+          transient: bool) -> SizingResult:
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
     r_series = eseries.canonical_series_name(resistor_series or design.sizing.resistor_series)
@@ -205,6 +226,23 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
             say(f"no network at the present count; trying {design.string.series} devices")
 
     damping, rule = _damping_resistor(sized)
+    candidates: tuple[DampingCandidate, ...] = ()
+    raised = []
+    if transient and damping is not None:
+        # Charge balance knows no inductance: when no damping resistor keeps the ring within the
+        # limit, the capacitor goes up its series, a step at a time, until one does.
+        for _ in range(_MAX_CAPACITOR_STEPS + 1):
+            say("damping resistor (time domain)")
+            damping, rule, candidates = _damping_in_time_domain(sized, damping, rule, trials,
+                                                                seed, pool)
+            if any(c.within_limit for c in candidates) or not candidates:
+                break
+            previous = sized.grading.capacitor
+            larger = float(eseries.step(previous, c_series, _CAPACITOR_STEP[c_series]))
+            raised.append(f"capacitor raised from {previous:.3g} F to {larger:.3g} F: no damping "
+                          "resistor kept the simulated turn-off within the limit")
+            sized = replace(sized, grading=replace(sized.grading, capacitor=larger))
+            damping, rule = _damping_resistor(sized)
     if damping is not None:
         sized = replace(sized, grading=replace(sized.grading, damping_resistor=damping))
 
@@ -215,9 +253,9 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
         series_count = sized.string.series
 
     say("final check")
-    check = run_check(sized, trials=trials, seed=seed, pool=pool)
+    check = run_check(sized, trials=trials, seed=seed, pool=pool, transient=transient)
     ratings = _ratings(sized, check)
-    advisories = list(check.grading.advisories)
+    advisories = raised + list(check.grading.advisories)
     if sized.grading.capacitor is not None and damping is not None:
         recovery = [sized.parts[name].t_rr.typ for name in sized.parts_used()
                     if sized.parts[name].t_rr is not None]
@@ -225,11 +263,12 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
             advisories.append(
                 f"R_d C = {damping * sized.grading.capacitor:.3g} s is longer than the shortest "
                 f"typical t_rr ({min(recovery):.3g} s): the capacitor may not take the charge in "
-                "time; the transient check (when available) should confirm")
+                "time; `--transient` checks it in the time domain")
     return SizingResult(design=sized, resistor=resistor, capacitor=capacitor,
                         damping_resistor=damping, damping_rule=rule, series_count=series_count,
                         series_searched=find_series, ratings=ratings, check=check,
-                        target_p_fail=target, advisories=tuple(advisories))
+                        target_p_fail=target, advisories=tuple(advisories),
+                        damping_candidates=candidates)
 
 
 def _search(evaluate: Evaluate, series: str, start: float | None, value_range: tuple[float, float],
@@ -406,6 +445,36 @@ def _enough_devices(design: Design, find_series: bool) -> Design:
         f"with perfect sharing: derating x V_RRM summed over the {layout.series} devices of a branch "
         f"is {capacity:g} V (derating {layout.derating:g}); no grading network can fix that: use "
         f"string.series >= {minimum}, or add --find-series")
+
+
+def _damping_in_time_domain(design: Design, rule_value: float, rule: str, trials: int, seed: int,
+                            pool: WorkerPool | None
+                            ) -> tuple[float, str, tuple[DampingCandidate, ...]]:
+    """The E12 damping resistor, from rule/4 to 4 x rule, with the least energy per turn-off among
+    those whose worst simulated peak stays within derating x V_RRM (the worst charge-balance
+    strings and a random sample of them); the rule's value when none does."""
+    low, high = rule_value / 4.0, rule_value * 4.0
+    tried = []
+    for value in eseries.values_between(low, high, "E12"):
+        candidate = replace(design, grading=replace(design.grading, damping_resistor=float(value)))
+        result = run_check(candidate, trials=trials, seed=seed, only=("dynamic",), pool=pool,
+                           transient=True, transient_worst=_SEARCH_WORST,
+                           transient_sample=_SEARCH_SAMPLE)
+        check = result.checks["transient"]
+        if not check.ran:
+            return rule_value, rule + f"; not chosen in the time domain: {check.reason}", ()
+        tried.append(DampingCandidate(value=float(value), worst_ratio=check.worst_ratio,
+                                      energy=check.damping_energy,
+                                      within_limit=bool(check.worst_ratio <= 1.0)))
+    good = [c for c in tried if c.within_limit]
+    if not good:
+        return rule_value, rule + ("; no E12 value from rule/4 to 4 x rule keeps the simulated "
+                                   "peak within the limit: kept the rule's value"), tuple(tried)
+    best = min(good, key=lambda c: (c.energy, c.worst_ratio))
+    return best.value, (f"time domain: least energy per turn-off ({best.energy:.3g} J) among the "
+                        f"E12 values whose worst simulated peak stays within the limit "
+                        f"(peak/limit {best.worst_ratio:.3f}); the damping rule gave "
+                        f"{rule_value:.3g} ohm"), tuple(tried)
 
 
 def _smallest_series(design: Design, trials: int, seed: int, pool: WorkerPool | None) -> Design:

@@ -197,3 +197,46 @@ def test_tighter_target_never_gives_larger_r_or_smaller_c(seed):
     tight = size(parse_design_text(SCATTERED.format(trials=400, seed=seed, target=0.02)))
     assert tight.resistor.chosen.value <= loose.resistor.chosen.value
     assert tight.capacitor.chosen.value >= loose.capacitor.chosen.value
+
+
+SMALL_STACK = """
+[duty]
+reverse_voltage = "3 kV"
+waveform = "half-sine"
+frequency = "50 Hz"
+di_dt = "20 A/us"
+forward_current = "1 A"
+[string]
+series = 4
+derating = 0.9
+part = "F"
+[parts.F]
+v_rrm = "1 kV"
+i_r = { typ = "0.5 uA", max = "3 uA", at_temperature = "25 degC" }
+q_rr = { typ = "60 nC", max = "100 nC", at_di_dt = "20 A/us", at_forward_current = "1 A" }
+t_rr = { typ = "0.15 us", at_di_dt = "20 A/us" }
+c_j = "20 pF"
+[grading]
+resistor_tolerance = "1 %"
+capacitor_tolerance = "5 %"
+[monte_carlo]
+trials = 400
+seed = 5
+[sizing]
+target_p_fail = 0.02
+"""
+
+
+def test_transient_chooses_the_least_energy_damping_resistor_within_the_limit():
+    # The time-domain choice is an argmin over the E12 values tried: the chosen R_d is one whose
+    # worst simulated peak stays within the limit, with the least energy per turn-off among them.
+    result = size(parse_design_text(SMALL_STACK), transient=True)
+    tried = result.damping_candidates
+    assert tried, result.damping_rule
+    good = [c for c in tried if c.within_limit]
+    assert good, [(c.value, c.worst_ratio) for c in tried]
+    best = min(good, key=lambda c: (c.energy, c.worst_ratio))
+    assert result.damping_resistor == best.value
+    assert all(c.worst_ratio <= 1.0 for c in good)
+    # The final check of the sized design includes the transient.
+    assert result.check.checks["transient"].ran
