@@ -317,9 +317,11 @@ def conduction_loss(
        Applications, and Design*, 3rd ed., Wiley, 2003, chapter 20 (power diodes), on-state
        losses (section from memory).
     """
-    return np.asarray(threshold, dtype=float) * np.asarray(average_current, dtype=float) + np.asarray(
-        resistance, dtype=float
-    ) * np.square(np.asarray(rms_current, dtype=float))
+    threshold = np.asarray(threshold, dtype=float)
+    resistance = np.asarray(resistance, dtype=float)
+    return threshold * np.asarray(average_current, dtype=float) + resistance * np.square(
+        np.asarray(rms_current, dtype=float)
+    )
 
 
 def blocking_factor(

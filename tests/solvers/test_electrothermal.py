@@ -171,13 +171,15 @@ def test_equilibrium_matches_fsolve_on_small_random_groups(seed):
             rng.uniform(0.3, 0.9, shape), rng.uniform(1e-7, 2e-6, shape), 900.0, 4e-6, 0.15,
             40.0, float(rng.uniform(15.0, 50.0)) * branches, waveform, heatsink, 2e3,
             rng.uniform(0.0, 1e-3, branches))
-    threshold, resistance, tempco_v, tempco_r, rth, leak, bv, q_rr, sink, ambient, current = case[:11]
+    (threshold, resistance, tempco_v, tempco_r, rth, leak, bv, q_rr, sink, ambient,
+     current) = case[:11]
     # Recovery at Q_rr = 4 uC per device with the default (upper-bound) tail fraction.
     devices = _devices(threshold_voltage=threshold, slope_resistance=resistance,
                        threshold_tempco=tempco_v, resistance_tempco=tempco_r,
                        junction_to_sink=rth, leakage_current=leak, recovery_charge=q_rr)
-    duty = _duty(forward_current=current, waveform=waveform, heatsink=heatsink, sink_to_ambient=sink,
-                 blocking_voltage=bv, frequency=2e3, path_resistance=case[-1], ambient=ambient)
+    duty = _duty(forward_current=current, waveform=waveform, heatsink=heatsink,
+                 sink_to_ambient=sink, blocking_voltage=bv, frequency=2e3,
+                 path_resistance=case[-1], ambient=ambient)
     equilibrium = solve_equilibrium(devices, duty, points=2000)
     start = np.full(branches * length, ambient)
     reference, info, _, message = fsolve(lambda t: t - _reference_map(t, case), start,
@@ -240,9 +242,10 @@ def test_over_junction_limit_is_reported_separately_from_runaway():
 
 
 def test_result_shapes_and_loss_bookkeeping():
-    devices = _devices(threshold_voltage=np.array([0.80, 0.82, 0.79])[:, None], leakage_current=1e-5,
-                       recovery_charge=3e-6)
-    duty = _duty(forward_current=np.array([30.0, 90.0]), waveform="half-sine", blocking_voltage=700.0)
+    devices = _devices(threshold_voltage=np.array([0.80, 0.82, 0.79])[:, None],
+                       leakage_current=1e-5, recovery_charge=3e-6)
+    duty = _duty(forward_current=np.array([30.0, 90.0]), waveform="half-sine",
+                 blocking_voltage=700.0)
     equilibrium = solve_equilibrium(devices, duty, points=64)
     assert equilibrium.junction_temperature.shape == (2, 3, 1)
     for name in ("branch_average", "branch_rms", "branch_peak"):
