@@ -72,11 +72,11 @@ class PhaseSamples:
     Attributes
     ----------
     currents
-        Instantaneous current of the whole group at each sample [A], shape ``(..., p)`` where
+        Instantaneous current of the whole group at each sample [A], shape ``(..., q)`` where
         ``...`` is the shape of the average current; only the conducting part of the period is
         sampled (the rest carries no current and adds nothing to any average).
     weights
-        Fraction of the period each sample stands for [-], shape ``(p,)``; they add up to the
+        Fraction of the period each sample stands for [-], shape ``(q,)``; they add up to the
         conducting fraction of the period (1 for dc, 1/2 for half-sine and square).
     peak
         Peak group current I_pk [A], shape ``...`` (exact, not sampled).
@@ -245,9 +245,9 @@ def phase_samples(
     Returns
     -------
     PhaseSamples
-        ``currents`` of shape ``(..., p)`` [A], ``weights`` of shape ``(p,)`` [-] and ``peak`` of
-        shape ``...`` [A]. The average over the period of any g(i) with g(0) = 0 is
-        ``sum(weights * g(currents), axis=-1)``.
+        ``currents`` of shape ``(..., q)`` [A], ``weights`` of shape ``(q,)`` [-] and ``peak`` of
+        shape ``...`` [A], with q = ceil(points / 2) for a half-sine and 1 otherwise. The average
+        over the period of any g(i) with g(0) = 0 is ``sum(weights * g(currents), axis=-1)``.
 
     Notes
     -----
@@ -258,16 +258,23 @@ def phase_samples(
 
     The midpoint rule keeps its second-order accuracy where a branch current has a kink (a
     branch that starts conducting part-way up the sine), which a Gauss rule would not. See
-    :data:`DEFAULT_PHASE_POINTS` for the error. Square: one sample at I_pk = 2 I_F(AV) with weight
+    :data:`DEFAULT_PHASE_POINTS` for the error. Since sin(theta_j) = sin(theta_(p-1-j)), the
+    p samples are returned as q = ceil(p / 2) distinct currents, paired ones with weight 1 / p:
+    the same sums for half the work. Square: one sample at I_pk = 2 I_F(AV) with weight
     1/2. dc: one sample at I_F(AV) with weight 1.
     """
     _check_waveform(waveform)
     average = np.asarray(average_current, dtype=float)
     peak = peak_factor(waveform) * average
     if waveform == "half-sine":
-        phase = (np.arange(points) + 0.5) * (np.pi / points)
+        # sin(theta) = sin(pi - theta): the midpoint samples pair up, so keep one of each pair
+        # with twice the weight (the middle one of an odd count stands alone).
+        kept = (points + 1) // 2
+        phase = (np.arange(kept) + 0.5) * (np.pi / points)
         currents = peak[..., None] * np.sin(phase)
-        weights = np.full(points, 0.5 / points)
+        weights = np.full(kept, 1.0 / points)
+        if points % 2:
+            weights[-1] = 0.5 / points
     else:
         currents = peak[..., None]
         weights = np.array([1.0 if waveform == "dc" else 0.5])
@@ -310,9 +317,11 @@ def conduction_loss(
        Applications, and Design*, 3rd ed., Wiley, 2003, chapter 20 (power diodes), on-state
        losses (section from memory).
     """
-    return np.asarray(threshold, dtype=float) * np.asarray(average_current, dtype=float) + np.asarray(
-        resistance, dtype=float
-    ) * np.square(np.asarray(rms_current, dtype=float))
+    threshold = np.asarray(threshold, dtype=float)
+    resistance = np.asarray(resistance, dtype=float)
+    return threshold * np.asarray(average_current, dtype=float) + resistance * np.square(
+        np.asarray(rms_current, dtype=float)
+    )
 
 
 def blocking_factor(

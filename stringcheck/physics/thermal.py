@@ -172,7 +172,6 @@ def semenov_limit(
        571-582, 1928 (title and pages from memory).
     """
     rate = np.asarray(rate, dtype=float)
-    product = (
-        rate * np.asarray(thermal_resistance, dtype=float) * np.asarray(reference_power, dtype=float)
-    )
+    resistance = np.asarray(thermal_resistance, dtype=float)
+    product = rate * resistance * np.asarray(reference_power, dtype=float)
     return np.asarray(reference_temperature, dtype=float) - (1.0 + np.log(product)) / rate

@@ -27,16 +27,20 @@ Jacobian
     converges quadratically.
 
 Damped Newton scheme
-    Newton on R(T) = T - F(T), started at the ambient temperature (below every equilibrium,
-    since every loss is >= 0), batched over trials with ``numpy.linalg.solve``; each step is
-    scaled so that no temperature moves more than ``max_step`` (25 K). Where det(I - A) <= 0
-    the iterate lies beyond a fold of the heat balance (in one dimension: past the maximum of
-    the concave R), where a Newton step would head for an unstable equilibrium; there the
-    step is a heating step of length ``max_step`` along F(T) - T, the direction the physical
-    heating transient takes. In one dimension with a convex loss the iterates then rise
-    monotonically to the lower (stable) root, and run off to the cap when there is none (the
-    Newton steps from below lengthen until they pass the maximum of R). A trial has converged
-    when max |T - F(T)| <= ``tolerance`` (1e-9 K); it has diverged when a temperature passes
+    Newton on T - F(T) = 0, started at the ambient temperature (below every equilibrium, since
+    every loss is >= 0), batched over trials with ``numpy.linalg.solve``; a Newton step is
+    scaled so that no temperature moves more than ``max_step`` (25 K). It is taken only where
+    det(I - A) > 0 and it agrees with the heat imbalance, step . (F(T) - T) > 0. Otherwise the
+    iterate lies beyond a fold of the heat balance (in one dimension: past the maximum of the
+    concave T - F(T); there both conditions reduce to A < 1), where a Newton step would head
+    for an unstable equilibrium, and the step is a heating step along F(T) - T, the direction
+    of the physical heating transient: at least the relaxation step F(T) - T, its length
+    doubling while heating steps repeat, so that a trial crosses the slow region near a fold
+    in a few steps and a runaway reaches the cap quickly. Temperatures are kept >= T_a. In one
+    dimension with a convex loss the iterates rise monotonically to the lower (stable) root
+    and run off when there is none. For A >= 0 below a stable root, (I - A)^-1 >= 0, so the
+    Newton step is >= 0 and is always accepted. A trial has converged when
+    max |T - F(T)| <= ``tolerance`` (1e-9 K); it has diverged when a temperature passes
     ``temperature_cap`` (1000 degC: far above any T_j,max, and far below the overflow of the
     leakage exponential for any T_double >= 1 K) or is not finite; after ``max_iter`` (100)
     iterations an unfinished trial counts as not converged. Finished trials leave the batch.
@@ -250,7 +254,7 @@ def _broadcast(devices: ParallelDevices, duty: ParallelDuty):
     shapes += [np.shape(a) + (1, 1) for a in trial_arrays.values()] + [path.shape + (1,)]
     shape = np.broadcast_shapes((1, 1, 1), *shapes)
     if len(shape) != 3:
-        raise ValueError(f"device arrays must broadcast to (trials, m, n); got shape {shape}")
+        raise StringcheckError(f"devices: arrays must broadcast to (trials, m, n); got {shape}")
     device_arrays = {k: np.broadcast_to(a, shape) for k, a in device_arrays.items()}
     trial_arrays = {k: np.broadcast_to(a, shape[:1]) for k, a in trial_arrays.items()}
     path = np.broadcast_to(path, shape[:2])
@@ -418,7 +422,8 @@ def solve_equilibrium(
     References
     ----------
     .. [1] C. T. Kelley, *Solving Nonlinear Equations with Newton's Method*, SIAM, 2003,
-       chapters 1 and 2 (Newton's method, its local convergence and globalization).
+       chapters 1 and 2 (Newton's method, its local convergence and globalization; chapters
+       from memory).
     .. [2] N. N. Semenov, "Zur Theorie des Verbrennungsprozesses", *Zeitschrift fuer Physik* 48,
        571-582, 1928 (title and pages from memory): existence of a steady state when heat
        generation grows exponentially with temperature.
@@ -431,6 +436,9 @@ def solve_equilibrium(
     else:
         temperature = np.broadcast_to(np.asarray(initial_temperature, dtype=float), shape).copy()
     converged = np.zeros(trials, dtype=bool)
+    jacobian = np.full((trials, size, size), np.nan)
+    heating_length = np.zeros(trials)
+    floor = np.broadcast_to(duty.ambient[:, None, None], shape)
     active = np.arange(trials)
     iterations = 0
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
@@ -439,26 +447,31 @@ def solve_equilibrium(
             part_devices, part_duty = _rows(devices, duty, active)
             current = temperature[active]
             state = _evaluate(part_devices, part_duty, current, points, jacobian=True)
-            residual = (current - state.mapped).reshape(-1, size)
-            finite = np.isfinite(residual).all(axis=-1) & np.isfinite(state.jacobian).all(
+            imbalance = (state.mapped - current).reshape(-1, size)  # F(T) - T
+            finite = np.isfinite(imbalance).all(axis=-1) & np.isfinite(state.jacobian).all(
                 axis=(-2, -1))
-            done = finite & (np.abs(residual).max(axis=-1, initial=0.0) <= tolerance)
+            largest = np.abs(imbalance).max(axis=-1, initial=0.0)
+            done = finite & (largest <= tolerance)
             converged[active[done]] = True
+            jacobian[active[done]] = state.jacobian[done]
             keep = finite & ~done
-            active, current, residual = active[keep], current[keep], residual[keep]
+            active, current, imbalance = active[keep], current[keep], imbalance[keep]
+            largest = largest[keep]
             if not active.size:
                 break
             system = np.eye(size) - state.jacobian[keep]
             sign, _ = np.linalg.slogdet(system)
-            newton_ok = sign > 0.0
-            system[~newton_ok] = np.eye(size)
-            step = np.linalg.solve(system, -residual[..., None])[..., 0]
-            heating = -residual[~newton_ok]
-            heating *= max_step / np.abs(heating).max(axis=-1, keepdims=True)
-            step[~newton_ok] = heating
-            largest = np.abs(step).max(axis=-1)
-            step *= np.minimum(1.0, max_step / np.where(largest > 0.0, largest, 1.0))[:, None]
-            updated = current + step.reshape(current.shape)
+            system[sign <= 0.0] = np.eye(size)
+            step = np.linalg.solve(system, imbalance[..., None])[..., 0]
+            newton = (sign > 0.0) & (np.einsum("tk,tk->t", step, imbalance) > 0.0)
+            longest = np.abs(step).max(axis=-1)
+            step *= np.minimum(1.0, max_step / np.where(longest > 0.0, longest, 1.0))[:, None]
+            # Heating step along F(T) - T: at least the relaxation step, doubling while repeated.
+            length = np.maximum(largest, 2.0 * heating_length[active])
+            heating = imbalance * (length / largest)[:, None]
+            step = np.where(newton[:, None], step, heating)
+            heating_length[active] = np.where(newton, 0.0, length)
+            updated = np.maximum(current + step.reshape(current.shape), floor[active])
             temperature[active] = updated
             running = np.isfinite(updated).all(axis=(-2, -1)) & (
                 updated.max(axis=(-2, -1)) <= temperature_cap)
@@ -468,9 +481,7 @@ def solve_equilibrium(
         radius = np.full(trials, np.nan)
         real = np.full(trials, np.nan)
         if converged.any():
-            final = _evaluate(*_rows(devices, duty, converged), temperature[converged], points,
-                              jacobian=True)
-            eigenvalues = np.linalg.eigvals(final.jacobian)
+            eigenvalues = np.linalg.eigvals(jacobian[converged])
             radius[converged] = np.abs(eigenvalues).max(axis=-1)
             real[converged] = eigenvalues.real.max(axis=-1)
         threshold, resistance = _device_lines(devices, temperature)

@@ -50,7 +50,8 @@ def test_semenov_limit_is_the_tangency_of_the_heat_balance(power, rate, resistan
                                        reference_temperature=reference), 1 / math.e, rel_tol=1e-12)
 
     def excess(temperature, ambient):
-        return ambient + resistance * power * math.exp(rate * (temperature - reference)) - temperature
+        heating = resistance * power * math.exp(rate * (temperature - reference))
+        return ambient + heating - temperature
 
     lowest = minimize_scalar(lambda t: excess(t, limit), bracket=(limit, limit + 2 / rate),
                              tol=1e-12)

@@ -24,7 +24,7 @@ from stringcheck.solvers.parallel import (
 
 
 def _hand_split(thresholds, resistances, total):
-    """Two conducting branches: v - r_1 i_1 = V_1, v - r_2 i_2 = V_2, i_1 + i_2 = I (numpy solve)."""
+    """Both branches conducting: v - r_1 i_1 = V_1, v - r_2 i_2 = V_2, i_1 + i_2 = I (linear)."""
     system = np.array([[1.0, -resistances[0], 0.0], [1.0, 0.0, -resistances[1]], [0.0, 1.0, 1.0]])
     return np.linalg.solve(system, [thresholds[0], thresholds[1], total])
 
