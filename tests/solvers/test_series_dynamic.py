@@ -102,10 +102,12 @@ strings = st.integers(min_value=2, max_value=10).flatmap(
 @settings(max_examples=100, deadline=None)
 @given(strings)
 def test_voltages_sum_to_the_string_voltage(string):
-    # Conservation (Kirchhoff's voltage law around the string).
+    # Conservation (Kirchhoff's voltage law around the string). With capacitances four decades
+    # apart, (Q - Q_rr,k) / C_k rounds to a few ulps of the level over C_min: 1e-10 relative is
+    # far below anything physical and well above that rounding (a case at 1.05e-12 was found).
     string_voltage, charges, capacitances = string
     sharing = solve_dynamic_sharing(string_voltage, charges, capacitances)
-    assert math.isclose(sharing.voltages.sum(), string_voltage, rel_tol=1e-12)
+    assert math.isclose(sharing.voltages.sum(), string_voltage, rel_tol=1e-10)
     assert (sharing.voltages >= 0.0).all()
     # Charge balance: every blocking stage holds Q - Q_rr,k on its capacitance.
     blocking = sharing.voltages > 0.0
