@@ -6,6 +6,7 @@ from __future__ import annotations
 import csv
 import io
 import json
+from pathlib import Path
 from importlib import resources
 
 import pytest
@@ -427,3 +428,16 @@ def test_workers_below_one_is_bad_input(demo_file):
     result = invoke("check", str(demo_file), "--workers", "0")
     assert result.exit_code == 2, result.output
     assert "--workers" in result.stderr
+
+
+# --- examples --------------------------------------------------------------------------------------
+
+EXAMPLES = sorted((Path(__file__).resolve().parent.parent / "examples").glob("*.toml"))
+
+
+@pytest.mark.parametrize("path", EXAMPLES, ids=[p.stem for p in EXAMPLES])
+def test_every_example_runs_to_a_verdict(path):
+    # The README lists them as working scenarios: each must load and give pass or fail (0 or 1).
+    result = invoke("check", str(path), "--trials", "300", "--quiet")
+    assert result.exit_code in (0, 1), result.output
+    assert_no_traceback(result)

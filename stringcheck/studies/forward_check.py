@@ -40,6 +40,8 @@ RUNAWAY_SAMPLE = 256
 # Share target of the ballast advice when [sizing] target_share is not given: max / mean branch
 # current within 10 % (common practice for a well-shared group; the report states the value used).
 DEFAULT_TARGET_SHARE = 1.1
+# Relative bracket of the ballast bisection: far finer than the E12 step it is rounded to.
+_BALLAST_RTOL = 1e-6
 
 
 @dataclass(frozen=True)
@@ -321,7 +323,8 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings) 
         loss_per_ohm = np.zeros(count)
         if np.any(needs):
             found = ballast_for_share(branch_threshold[needs], branch_resistance[needs],
-                                      duty.forward_current, duty.waveform, setup.target_share)
+                                      duty.forward_current, duty.waveform, setup.target_share,
+                                      rtol=_BALLAST_RTOL)
             ballast[needs] = found.resistance
         rms = branch_currents(branch_threshold, branch_resistance, duty.forward_current,
                               duty.waveform).rms
