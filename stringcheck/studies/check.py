@@ -38,6 +38,7 @@ from .forward_check import (
 )
 from .transient_check import DEFAULT_WORST, run_transient
 from .transient_check import not_run as not_run_transient
+from .recovery_conditions import RecoveryRescaling, recovery_rescaling, rescale_charges
 from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 
 # A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
@@ -264,12 +265,13 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     forward_sums = ForwardAccumulator()
     static = _Accumulator(shape, limits) if run_static else None
     dynamic = _Accumulator(shape, limits) if run_dynamic else None
+    rescaling, rescaling_note = recovery_rescaling(design) if run_dynamic else (None, "")
     context = _ChunkContext(design=design, seed=seed, parameters=parameters, run_static=run_static,
                             run_dynamic=run_dynamic, limits=limits, temperature=temperature,
                             reference_voltage=reference_voltage,
                             reference_temperature=reference_temperature, doubling=doubling,
                             exponent=exponent, junction_capacitance=junction_capacitance,
-                            forward=forward)
+                            forward=forward, rescaling=rescaling)
     with worker_pool(workers) if pool is None else nullcontext(pool) as active:
         if chunk_trials is None:
             chunk_trials = chunk_size(trials, _CHUNK_ELEMENTS // (layout.series * layout.parallel),
@@ -321,7 +323,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                        trials_needed=trials_for_upper_bound(target, confidence=confidence),
                        checks=checks, grading=grading,
                        verdict=verdict, impossible=impossible,
-                       assumptions=design.assumptions + _model_assumptions(design, run_dynamic),
+                       assumptions=design.assumptions + _model_assumptions(design, rescaling_note),
                        no_scatter=_no_scatter(design, parameters))
 
 
@@ -342,6 +344,7 @@ class _ChunkContext:
     exponent: np.ndarray
     junction_capacitance: np.ndarray
     forward: ForwardSetup | None
+    rescaling: RecoveryRescaling | None
 
 
 @dataclass(frozen=True)
@@ -363,7 +366,7 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
                       context.reference_temperature, context.doubling, context.exponent)
     if context.run_dynamic:
         dynamic = _Accumulator(shape, context.limits)
-        _dynamic_chunk(design, drawn, dynamic, context.junction_capacitance)
+        _dynamic_chunk(design, drawn, dynamic, context.junction_capacitance, context.rescaling)
     forward = None
     if context.forward is not None:
         forward = run_forward_chunk(design, context.forward, drawn)
@@ -394,12 +397,14 @@ def _grading_conductance(design: Design, drawn: DrawnStrings, temperature: np.nd
 
 
 def _dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulator,
-                   junction_capacitance: np.ndarray) -> None:
+                   junction_capacitance: np.ndarray, rescaling: RecoveryRescaling | None) -> None:
     capacitance = junction_capacitance if drawn.capacitance is None else \
         drawn.capacitance + junction_capacitance
-    capacitance = np.broadcast_to(capacitance, drawn.parameters["q_rr"].shape)
-    solution = solve_dynamic_sharing(design.duty.reverse_voltage, drawn.parameters["q_rr"],
-                                     capacitance)
+    charge = drawn.parameters["q_rr"]
+    if rescaling is not None:
+        charge = rescale_charges(charge, design.string.part_grid(), rescaling)
+    capacitance = np.broadcast_to(capacitance, charge.shape)
+    solution = solve_dynamic_sharing(design.duty.reverse_voltage, charge, capacitance)
     solved = np.ones(solution.voltages.shape[0], dtype=bool)
     accumulator.add(solution.voltages, solved, drawn.first_trial)
 
@@ -596,7 +601,7 @@ def _grading_summary(design: Design, checks: Mapping[str, SeriesCheck], temperat
         rating_problems=tuple(problems), advisories=tuple(advisories))
 
 
-def _model_assumptions(design: Design, dynamic: bool) -> tuple[str, ...]:
+def _model_assumptions(design: Design, rescaling_note: str) -> tuple[str, ...]:
     notes = [
         "static: the peak reverse voltage is held as dc; at line frequency the grading capacitors "
         "also share the voltage, which this check does not credit",
@@ -605,9 +610,8 @@ def _model_assumptions(design: Design, dynamic: bool) -> tuple[str, ...]:
         f"grading resistor TCR referred to {RESISTOR_TCR_REFERENCE:g} degC, resistor at its "
         "diode's temperature",
     ]
-    if dynamic:
-        notes.append("dynamic: Q_rr taken at the datasheet's test conditions, not rescaled to the "
-                     "application's di/dt, forward current and junction temperature; the whole "
+    if rescaling_note:
+        notes.append(rescaling_note + "; junction temperature does not enter Q_rr; the whole "
                      "string voltage is assumed to appear after recovery (hard commutation)")
     return tuple(notes)
 

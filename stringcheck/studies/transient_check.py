@@ -25,14 +25,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..design import Design
-from ..physics.charge_control import (
-    fit_charge_control,
-    lifetime_for_charge,
-    peak_current_from_recovery_time,
-)
+from ..physics.charge_control import lifetime_for_charge
 from ..sampling import BLOCK_TRIALS, draw_strings
 from ..solvers.transient import simulate_turn_off
 from ..stats import FailureEstimate, failure_estimate
+from .recovery_conditions import InconsistentRecoveryData, missing_recovery_data, part_fits
 
 # Stream of the random sample, apart from every stream of the draws (sampling.py uses < 3000 and
 # part streams from 2000 up; this one is ours alone).
@@ -98,36 +95,7 @@ def transient_reason(design: Design) -> str:
     duty = design.duty
     if duty.stray_inductance is None and duty.di_dt is None:
         return "give duty.stray_inductance or duty.di_dt (the commutation loop)"
-    for name in design.parts_used():
-        part = design.parts[name]
-        if part.q_rr is None:
-            return f"parts.{name} gives no q_rr"
-        if part.i_rm is None and part.t_rr is None:
-            return f"parts.{name} gives neither i_rm nor t_rr: the recovery model needs one"
-        if part.q_rr.at_di_dt is None:
-            return f"parts.{name}.q_rr has no at_di_dt (the datasheet's test di/dt)"
-        if part.q_rr.at_forward_current is None and duty.forward_current is None:
-            return (f"parts.{name}.q_rr has no at_forward_current and the duty no forward_current")
-    return ""
-
-
-def _fits(design: Design) -> dict[str, tuple[float, float, float]]:
-    """(T_M, test I_F, test di/dt) of each part, fitted to its typical recovery."""
-    fits = {}
-    for name in design.parts_used():
-        part = design.parts[name]
-        test_rate = part.q_rr.at_di_dt
-        test_current = part.q_rr.at_forward_current or design.duty.forward_current
-        if part.i_rm is not None:
-            peak = part.i_rm.typ
-        else:
-            peak = float(peak_current_from_recovery_time(part.q_rr.typ, part.t_rr.typ, test_rate))
-        fit = fit_charge_control(part.q_rr.typ, peak, test_current, test_rate)
-        transit = float(fit.transit_time)
-        if not math.isfinite(transit):
-            raise ValueError(name)
-        fits[name] = (transit, test_current, test_rate)
-    return fits
+    return missing_recovery_data(design)
 
 
 def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, seed: int,
@@ -137,8 +105,9 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
     if reason:
         return not_run(reason)
     try:
-        fits = _fits(design)
-    except ValueError as error:
+        fits = {name: (fit.transit_time, fit.test_current, fit.test_rate)
+                for name, fit in part_fits(design).items()}
+    except InconsistentRecoveryData as error:
         return not_run(f"parts.{error}: its typical q_rr, i_rm or t_rr and at_di_dt are not "
                        "consistent with any recovery waveform (with t_rr: Q_rr <= di/dt t_rr^2 / 2; "
                        "with i_rm: Q_rr > I_RM^2 / (2 di/dt)); check the datasheet values")
