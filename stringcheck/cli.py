@@ -237,6 +237,58 @@ def size(
                        find_series=find_series, workers=workers, transient=transient), debug)
 
 
+def _review(base_path: Path, candidate_path: Optional[Path], *, swap, trials, seed, json_path,
+            quiet, workers, transient) -> int:
+    from .design import load_design
+    from .report.export import json_text, write_text_atomic
+    from .report.review import render_review, render_review_summary, review_to_dict
+    from .studies.review import parse_swap, review, swapped
+
+    baseline = load_design(base_path)
+    if (candidate_path is None) == (swap is None):
+        raise StringcheckError("give either a CANDIDATE design file or --swap POSITIONS:PART "
+                               "(e.g. --swap 1-4:B), not both and not neither")
+    if candidate_path is not None:
+        candidate = load_design(candidate_path)
+    else:
+        positions, part = parse_swap(swap, baseline)
+        candidate = swapped(baseline, positions, part)
+    status = _console(stderr=True)
+    with status.status("checking baseline and candidate", spinner="line") if not quiet \
+            else _nothing():
+        result = review(baseline, candidate, trials=trials, seed=seed, workers=workers,
+                        transient=transient)
+    if json_path is not None:
+        write_text_atomic(json_path, json_text(review_to_dict(result)))
+    console = _console(stderr=json_path == "-", wrap=not quiet)
+    if quiet:
+        render_review_summary(result, console)
+    else:
+        render_review(result, console)
+    return EXIT_PASS if result.verdict == "accept" else EXIT_FAIL
+
+
+@app.command()
+def review(
+    base: Path = typer.Argument(..., help="Baseline design file (TOML).", show_default=False),
+    candidate: Optional[Path] = typer.Argument(None, help="Candidate design file (TOML).",
+                                               show_default=False),
+    swap: Optional[str] = typer.Option(None, "--swap", metavar="POSITIONS:PART",
+                                       help="Candidate = BASE with PART (defined in BASE) in these "
+                                            "positions of every branch, e.g. 1-4:B or 7,9:B."),
+    trials: Optional[int] = _TRIALS,
+    seed: Optional[int] = _SEED,
+    json: Optional[str] = _JSON,
+    quiet: bool = _QUIET,
+    workers: int = _WORKERS,
+    transient: bool = _TRANSIENT,
+    debug: bool = _DEBUG,
+) -> None:
+    """May a candidate replace the baseline? Both checked on the same draws; exit 0 accept, 1 reject."""
+    _run(lambda: _review(base, candidate, swap=swap, trials=trials, seed=seed, json_path=json,
+                         quiet=quiet, workers=workers, transient=transient), debug)
+
+
 @app.command()
 def demo(
     trials: Optional[int] = _TRIALS,

@@ -1,0 +1,130 @@
+"""Report and JSON of ``stringcheck review`` (baseline against candidate)."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from rich.console import Console
+from rich.panel import Panel
+from rich.table import Table
+from rich.text import Text
+
+from ..studies.review import ReviewResult
+from .cautions import safety_cautions
+from .export import result_to_dict
+
+
+def _number(value: float | None) -> float | None:
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def review_to_dict(result: ReviewResult) -> dict[str, Any]:
+    """``baseline``, ``candidate`` (each a whole check result), ``changes`` and ``verdict``."""
+    return {
+        "schema": 1,
+        "verdict": result.verdict,
+        "tolerance": result.tolerance,
+        "baseline": result_to_dict(result.baseline),
+        "candidate": result_to_dict(result.candidate),
+        "changes": {
+            "checks": [
+                {"check": c.name, "baseline_ran": c.baseline_ran, "candidate_ran": c.candidate_ran,
+                 "baseline_worst_ratio": _number(c.baseline_worst_ratio),
+                 "candidate_worst_ratio": _number(c.candidate_worst_ratio),
+                 "baseline_p_fail_upper": _number(c.baseline_p_fail_upper),
+                 "candidate_p_fail_upper": _number(c.candidate_p_fail_upper),
+                 "rise": _number(c.rise), "acceptable": c.acceptable}
+                for c in result.changes],
+            "worse_positions": [
+                {"check": p.check, "branch": p.branch, "index": p.index,
+                 "baseline_part": p.baseline_part, "candidate_part": p.candidate_part,
+                 "baseline_max_voltage": _number(p.baseline_max),
+                 "candidate_max_voltage": _number(p.candidate_max), "limit": p.limit}
+                for p in result.worse_positions],
+            "reasons": list(result.reasons),
+        },
+    }
+
+
+def _ratio(value: float | None) -> str:
+    return "-" if value is None or not math.isfinite(value) else f"{value:.3f}"
+
+
+def _bound(value: float | None) -> str:
+    return "-" if value is None else f"{value:.2g}"
+
+
+def render_review(result: ReviewResult, console: Console) -> None:
+    base, cand = result.baseline, result.candidate
+    heading = Text.assemble(
+        ("baseline  ", "bold"), f"{base.design.title} ({base.design.source})\n",
+        ("candidate ", "bold"), f"{cand.design.title} ({cand.design.source})\n",
+        f"{base.trials:,} built strings each, seed {base.seed}, on common random numbers (the same "
+        "draws wherever the two share a part); accepted when the candidate passes and no check's "
+        f"P(fail) upper bound rises by more than {result.tolerance:g}")
+    console.print(Panel(heading, title="stringcheck review", title_align="left"))
+    if result.verdict == "accept":
+        console.print(Text(" ACCEPT ", style="bold black on green"),
+                      "the candidate passes and is no worse than the baseline within the tolerance.")
+    else:
+        console.print(Text(" REJECT ", style="bold white on red"), _why(result))
+    console.print()
+    table = Table(title="Side by side (worst = stress / limit; P up = upper bound of P(fail))",
+                  title_justify="left")
+    for column in ("check", "base worst", "cand worst", "base P up", "cand P up", "change",
+                   "result"):
+        table.add_column(column, justify="left" if column in ("check", "result") else "right")
+    for c in result.changes:
+        change = "-" if c.rise is None else f"{c.rise:+.2g}"
+        outcome = Text("ok", style="green") if c.acceptable else Text("WORSE", style="bold red")
+        if not c.baseline_ran and not c.candidate_ran:
+            outcome = Text("not run", style="yellow")
+        table.add_row(c.name, _ratio(c.baseline_worst_ratio), _ratio(c.candidate_worst_ratio),
+                      _bound(c.baseline_p_fail_upper), _bound(c.candidate_p_fail_upper), change,
+                      outcome)
+    console.print(table)
+    if result.worse_positions:
+        console.print(Text("Positions that got worse (largest rise first):", style="italic"))
+        worse = Table(show_edge=False, pad_edge=False)
+        for column in ("check", "position", "part base -> cand", "max V base", "max V cand",
+                       "limit V"):
+            worse.add_column(column, justify="left" if column in ("check", "position",
+                                                                  "part base -> cand") else "right")
+        for p in result.worse_positions[:8]:
+            worse.add_row(p.check, f"branch {p.branch} #{p.index}",
+                          f"{p.baseline_part} -> {p.candidate_part}", f"{p.baseline_max:,.0f}",
+                          f"{p.candidate_max:,.0f}", f"{p.limit:,.0f}")
+        console.print(worse)
+    if result.reasons:
+        console.print(Text("Why, in physical terms:", style="bold"))
+        for line in result.reasons:
+            console.print(f"  - {line}")
+    console.print()
+    grading = cand.grading
+    cautions = safety_cautions(string_voltage=cand.design.duty.reverse_voltage,
+                               stage_energy=grading.stage_energy, total_energy=grading.total_energy,
+                               discharge_time=grading.discharge_time)
+    console.print(Panel("\n".join(f"! {line}" for line in cautions), title="High-voltage cautions",
+                        title_align="left", border_style="red"))
+
+
+def _why(result: ReviewResult) -> str:
+    parts = []
+    if result.candidate.verdict != "pass":
+        parts.append("the candidate does not pass on its own")
+    worse = [c.name for c in result.changes if not c.acceptable and (c.baseline_ran or
+                                                                       c.candidate_ran)]
+    if worse:
+        parts.append("worse than the baseline in: " + ", ".join(worse))
+    return "; ".join(parts) or "see below"
+
+
+def render_review_summary(result: ReviewResult, console: Console) -> None:
+    worse = [c.name for c in result.changes if not c.acceptable and (c.baseline_ran or
+                                                                       c.candidate_ran)]
+    console.print(f"{result.verdict}: candidate {result.candidate.verdict}"
+                  + (f"; worse in {', '.join(worse)}" if worse else ""), highlight=False)

@@ -1,0 +1,220 @@
+"""Substitution review: may a candidate string (other parts in some positions) replace a baseline?
+
+Both designs are checked on common random numbers: the same seed and trial count, so every
+grading component, every lot and every device parameter of a position is drawn from the same
+latent standard-normal value in both (sampling.py keys its streams by block, parameter and part),
+and only the mapping of that latent value through the part's spread differs where the part
+changed. Differences between the two results are therefore the parts' doing, not sampling noise.
+
+Verdict "accept" when the candidate passes and no check's P(fail) upper bound rises above the
+baseline's by more than ``[review] tolerance`` (of the baseline design); otherwise "reject".
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, replace
+
+from ..design import Design, PositionOverride
+from ..errors import StringcheckError
+from .check import CheckResult, run_check
+from .runner import worker_pool
+
+
+@dataclass(frozen=True)
+class CheckChange:
+    """One check in both designs."""
+
+    name: str
+    baseline_ran: bool
+    candidate_ran: bool
+    baseline_worst_ratio: float | None
+    candidate_worst_ratio: float | None
+    baseline_p_fail_upper: float | None
+    candidate_p_fail_upper: float | None
+    rise: float | None
+    acceptable: bool
+
+
+@dataclass(frozen=True)
+class PositionChange:
+    """A position whose worst stress rose (series checks: worst voltage [V])."""
+
+    check: str
+    branch: int
+    index: int
+    baseline_part: str
+    candidate_part: str
+    baseline_max: float
+    candidate_max: float
+    limit: float
+
+
+@dataclass(frozen=True)
+class ReviewResult:
+    baseline: CheckResult
+    candidate: CheckResult
+    changes: tuple[CheckChange, ...]
+    worse_positions: tuple[PositionChange, ...]
+    reasons: tuple[str, ...]
+    tolerance: float
+    verdict: str
+
+
+_SWAP = re.compile(r"^\s*([0-9,\-\s]+)\s*:\s*([^:\s]+)\s*$")
+
+
+def parse_swap(text: str, design: Design) -> tuple[tuple[int, ...], str]:
+    """``"1-4:B"`` or ``"7,9:B"`` -> (positions, part), checked against ``design``."""
+    match = _SWAP.match(text)
+    if not match:
+        raise StringcheckError(f"--swap {text!r}: write POSITIONS:PART, e.g. 1-4:B or 7,9:B")
+    positions: list[int] = []
+    for piece in match.group(1).split(","):
+        piece = piece.strip()
+        if not piece:
+            continue
+        if "-" in piece:
+            first, _, last = piece.partition("-")
+            if not (first.strip().isdigit() and last.strip().isdigit()):
+                raise StringcheckError(f"--swap {text!r}: {piece!r} is not a range like 1-4")
+            low, high = int(first), int(last)
+            if low > high:
+                raise StringcheckError(f"--swap {text!r}: the range {piece} runs backwards")
+            positions.extend(range(low, high + 1))
+        elif piece.isdigit():
+            positions.append(int(piece))
+        else:
+            raise StringcheckError(f"--swap {text!r}: {piece!r} is not a position number")
+    series = design.string.series
+    outside = [p for p in positions if not 1 <= p <= series]
+    if outside or not positions:
+        raise StringcheckError(f"--swap {text!r}: positions must lie in 1..{series} (the string's "
+                               f"series count), got {outside or 'none'}")
+    part = match.group(2)
+    if part not in design.parts:
+        known = ", ".join(sorted(design.parts))
+        raise StringcheckError(f"--swap {text!r}: no part {part!r} in {design.source}; define "
+                               f"[parts.{part}] there (known: {known})")
+    return tuple(sorted(set(positions))), part
+
+
+def swapped(design: Design, positions: tuple[int, ...], part: str) -> Design:
+    """The design with ``part`` in ``positions`` of every branch (other overrides kept)."""
+    kept = []
+    for override in design.string.positions:
+        if override.index in positions and override.part is not None:
+            if override.temperature_rise is not None:
+                kept.append(replace(override, part=None))
+            continue
+        kept.append(override)
+    added = [PositionOverride(index=index, branch=None, part=part, temperature_rise=None)
+             for index in positions]
+    layout = replace(design.string, positions=tuple(kept + added))
+    title = f"{design.title} with {part} in position(s) {_ranges(positions)}"
+    return replace(design, string=layout, title=title)
+
+
+def _ranges(positions: tuple[int, ...]) -> str:
+    out, start = [], positions[0]
+    for previous, current in zip(positions, positions[1:] + (None,)):
+        if current != previous + 1:
+            out.append(str(start) if start == previous else f"{start}-{previous}")
+            start = current
+    return ",".join(out)
+
+
+def review(baseline: Design, candidate: Design, *, trials: int | None = None,
+           seed: int | None = None, workers: int = 1, transient: bool = False) -> ReviewResult:
+    """Check both designs on common random numbers and compare them."""
+    if (baseline.string.series, baseline.string.parallel) != \
+            (candidate.string.series, candidate.string.parallel):
+        raise StringcheckError(
+            f"{candidate.source}: the candidate is {candidate.string.parallel} x "
+            f"{candidate.string.series}, the baseline {baseline.string.parallel} x "
+            f"{baseline.string.series}; a review compares the same string arrangement")
+    trials = baseline.monte_carlo.trials if trials is None else trials
+    seed = baseline.monte_carlo.seed if seed is None else seed
+    with worker_pool(workers) as pool:
+        base = run_check(baseline, trials=trials, seed=seed, pool=pool, transient=transient)
+        cand = run_check(candidate, trials=trials, seed=seed, pool=pool, transient=transient)
+    tolerance = baseline.review.tolerance
+    changes = []
+    for name, base_check in base.checks.items():
+        cand_check = cand.checks.get(name)
+        base_upper = base_check.estimate.ci_high if base_check.ran else None
+        cand_upper = cand_check.estimate.ci_high if cand_check is not None and cand_check.ran \
+            else None
+        rise = None if base_upper is None or cand_upper is None else cand_upper - base_upper
+        acceptable = (cand_check is not None and cand_check.ran and cand_check.passed
+                      and (rise is None or rise <= tolerance)) or \
+            (not base_check.ran and (cand_check is None or not cand_check.ran))
+        changes.append(CheckChange(
+            name=name, baseline_ran=base_check.ran,
+            candidate_ran=cand_check is not None and cand_check.ran,
+            baseline_worst_ratio=base_check.worst_ratio if base_check.ran else None,
+            candidate_worst_ratio=cand_check.worst_ratio if cand_check is not None and
+            cand_check.ran else None,
+            baseline_p_fail_upper=base_upper, candidate_p_fail_upper=cand_upper, rise=rise,
+            acceptable=acceptable))
+    worse = _worse_positions(base, cand)
+    verdict = "accept" if cand.verdict == "pass" and all(c.acceptable for c in changes) \
+        else "reject"
+    return ReviewResult(baseline=base, candidate=cand, changes=tuple(changes),
+                        worse_positions=worse, reasons=_reasons(baseline, candidate, worse),
+                        tolerance=tolerance, verdict=verdict)
+
+
+def _worse_positions(base: CheckResult, cand: CheckResult) -> tuple[PositionChange, ...]:
+    grid_base = base.design.string.part_grid()
+    grid_cand = cand.design.string.part_grid()
+    rows = []
+    for name in ("static", "dynamic", "transient"):
+        a, b = base.checks.get(name), cand.checks.get(name)
+        if a is None or b is None or not (a.ran and b.ran):
+            continue
+        for pa, pb in zip(a.positions, b.positions):
+            # A rise below 0.1 % of the limit is rounding of the same draws, not a change.
+            if pb.max_voltage > pa.max_voltage + 1e-3 * pa.limit:
+                rows.append(PositionChange(
+                    check=name, branch=pa.branch, index=pa.index,
+                    baseline_part=str(grid_base[pa.branch - 1, pa.index - 1]),
+                    candidate_part=str(grid_cand[pa.branch - 1, pa.index - 1]),
+                    baseline_max=pa.max_voltage, candidate_max=pb.max_voltage, limit=pb.limit))
+    rows.sort(key=lambda r: (r.candidate_max - r.baseline_max) / r.limit, reverse=True)
+    return tuple(rows)
+
+
+def _reasons(baseline: Design, candidate: Design, worse) -> tuple[str, ...]:
+    """Plain-words physics of each substitution (typical values compared)."""
+    grid_base = baseline.string.part_grid()
+    grid_cand = candidate.string.part_grid()
+    pairs = sorted({(str(a), str(b)) for a, b in zip(grid_base.ravel(), grid_cand.ravel())
+                    if a != b})
+    reasons = []
+    for old, new in pairs:
+        a, b = baseline.parts[old], candidate.parts[new]
+        if a.q_rr is not None and b.q_rr is not None and b.q_rr.typ < 0.9 * a.q_rr.typ:
+            reasons.append(f"{new} stores less recovery charge than {old} (typ "
+                           f"{b.q_rr.typ:.3g} C vs {a.q_rr.typ:.3g} C): it recovers first, blocks "
+                           "before the others and takes the voltage at turn-off (dynamic check)")
+        if a.q_rr is not None and b.q_rr is not None and b.q_rr.typ > 1.1 * a.q_rr.typ:
+            reasons.append(f"{new} stores more recovery charge than {old}: it recovers last and "
+                           "pushes the turn-off voltage onto the others")
+        if a.i_r is not None and b.i_r is not None and b.i_r.typ > 1.5 * a.i_r.typ:
+            reasons.append(f"{new} leaks more than {old} (typ {b.i_r.typ:.3g} A vs "
+                           f"{a.i_r.typ:.3g} A): it takes less of the blocking voltage and pushes "
+                           "it onto the others (static check)")
+        if a.i_r is not None and b.i_r is not None and b.i_r.typ < a.i_r.typ / 1.5:
+            reasons.append(f"{new} leaks less than {old}: it takes more of the blocking voltage "
+                           "(static check)")
+        if a.v_t0 is not None and b.v_t0 is not None and b.v_t0.typ < a.v_t0.typ - 0.02:
+            reasons.append(f"{new} has a lower threshold voltage than {old} (typ "
+                           f"{b.v_t0.typ:.3g} V vs {a.v_t0.typ:.3g} V): in a parallel group its "
+                           "branch takes more current (parallel and thermal checks)")
+        if b.v_rrm < a.v_rrm:
+            reasons.append(f"{new} is rated for less reverse voltage than {old} ("
+                           f"{b.v_rrm:.4g} V vs {a.v_rrm:.4g} V): its limit is lower")
+    if not pairs and not worse:
+        reasons.append("no position changed part: the candidate is the baseline")
+    return tuple(reasons)
