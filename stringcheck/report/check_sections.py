@@ -228,3 +228,33 @@ def _temperature(value: float, limit: float) -> str:
     if math.isinf(value):
         return "already at the given ambient"
     return f"{value:.1f} degC"
+
+
+def drivers_to_list(drivers) -> list[dict[str, Any]]:
+    """JSON of the drivers ranking (``check --drivers``)."""
+    return [{"check": d.check, "input": d.input, "label": d.label,
+             "rank_correlation": d.rank_correlation,
+             "tightened_p99_ratio": _number(d.tightened_p99_ratio),
+             "tightened_p_fail_upper": _number(d.tightened_p_fail_upper)} for d in drivers]
+
+
+def render_drivers(result, console: Console) -> None:
+    """What drives each series check, and what halving each input's spread would buy."""
+    if not result.drivers:
+        return
+    console.print(Text("What drives the worst stress", style="bold underline"))
+    console.print("rank correlation of each input's mismatch across the string with the string's "
+                  "worst stress ratio (first 20,000 trials); each top input rerun with its spread "
+                  "halved on the same draws")
+    table = Table(show_edge=False, pad_edge=False)
+    for column in ("check", "input", "rank corr.", "p99/limit now", "p99/limit halved",
+                   "P(fail) upper halved"):
+        table.add_column(column, justify="left" if column in ("check", "input") else "right")
+    for d in result.drivers:
+        now = result.checks[d.check].p99_ratio
+        table.add_row(d.check, d.label, f"{d.rank_correlation:+.2f}", f"{now:.3f}",
+                      "-" if d.tightened_p99_ratio is None else f"{d.tightened_p99_ratio:.3f}",
+                      "-" if d.tightened_p_fail_upper is None else
+                      f"{d.tightened_p_fail_upper:.2g}")
+    console.print(table)
+    console.print()

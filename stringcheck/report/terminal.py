@@ -15,7 +15,7 @@ from ..studies.check import CheckResult, SeriesCheck
 from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
 from ..studies.transient_check import TransientCheck
-from .check_sections import render_parallel, render_thermal, render_transient, worst_value_text
+from .check_sections import render_drivers, render_parallel, render_thermal, render_transient, worst_value_text
 
 if TYPE_CHECKING:
     from ..studies.size import SizingResult
@@ -103,6 +103,7 @@ def render_check(result: CheckResult, console: Console) -> None:
         else:
             _render_detail(name, check, console)
 
+    render_drivers(result, console)
     _render_network(result, console)
 
     if result.assumptions:

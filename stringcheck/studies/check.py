@@ -17,10 +17,8 @@ import numpy as np
 
 from ..design import Design, Part, Spread
 from ..errors import DesignError
-from ..physics.grading import discharge_time, resistor_power, stored_energy
 from ..physics.leakage import leakage_current
 from ..physics.recovery import recovery_charge
-from ..quantity import format_quantity as _q
 from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
 from ..solvers.series_dynamic import solve_dynamic_sharing
 from ..solvers.series_static import solve_static_sharing
@@ -38,19 +36,15 @@ from .forward_check import (
 )
 from .transient_check import DEFAULT_WORST, run_transient
 from .transient_check import not_run as not_run_transient
+from .drivers import DRIVER_TRIALS, TOP_DRIVERS, Driver, chunk_features, label, rank_inputs
+from .drivers import tightened
+from .grading_summary import GradingSummary, grading_summary
 from .recovery_conditions import RecoveryRescaling, recovery_rescaling, rescale_charges
 from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 
 # A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
 # in the trial count.
 _CHUNK_ELEMENTS = 1_000_000
-# Grading current below this multiple of the hottest maximum leakage draws an advisory (common
-# practice: "several times" the leakage; 5x is our threshold for saying so).
-GRADING_CURRENT_MULTIPLE = 5.0
-# Residual-voltage threshold and time: 60 V DC (IEC 61010-1 hazardous-live level) within 5 s
-# (IEC 60204-1 clause 6.2.4).
-SAFE_VOLTAGE = 60.0
-SAFE_DISCHARGE_TIME = 5.0
 RESISTOR_TCR_REFERENCE = 25.0  # [degC]; resistor TCR is specified from 25 degC (common practice)
 
 ProgressCallback = Callable[[int, int], None]
@@ -91,30 +85,6 @@ class SeriesCheck:
 
 
 @dataclass(frozen=True)
-class GradingSummary:
-    """What the grading network must withstand, from nominal values and the worst drawn voltages."""
-
-    resistor: float | None
-    capacitor: float | None
-    damping_resistor: float | None
-    worst_resistor_voltage: float
-    resistor_power_continuous: float | None
-    resistor_power_duty: float | None
-    resistor_rated_power: float | None
-    resistor_rated_voltage: float | None
-    total_grading_loss: float | None
-    worst_capacitor_voltage: float
-    capacitor_rated_voltage: float | None
-    stage_energy: float | None
-    total_energy: float | None
-    discharge_time: float
-    grading_current: float | None
-    hottest_max_leakage: float
-    rating_problems: tuple[str, ...]
-    advisories: tuple[str, ...]
-
-
-@dataclass(frozen=True)
 class CheckResult:
     """Everything ``stringcheck check`` found."""
 
@@ -129,6 +99,7 @@ class CheckResult:
     impossible: str | None
     assumptions: tuple[str, ...]
     no_scatter: tuple[str, ...]
+    drivers: tuple[Driver, ...] = ()
 
 
 @dataclass
@@ -198,7 +169,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
               progress: ProgressCallback | None = None, workers: int = 1,
               pool: WorkerPool | None = None, transient: bool = False,
               transient_worst: int = DEFAULT_WORST,
-              transient_sample: int | None = None) -> CheckResult:
+              transient_sample: int | None = None, drivers: bool = False) -> CheckResult:
     """Run the series check of ``design`` (static sharing always, dynamic when there is a turn-off).
 
     Parameters
@@ -221,6 +192,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         Also run the time-domain turn-off (``studies.transient_check``) on the worst
         ``transient_worst`` charge-balance trials and a random sample of ``transient_sample``
         trials (default: the trials the target needs, so that the check can pass).
+    drivers
+        Rank the inputs by their influence on each series check's worst stress, and rerun the
+        check with each of the top inputs tightened (``studies.drivers``).
     """
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
@@ -271,7 +245,10 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                             reference_voltage=reference_voltage,
                             reference_temperature=reference_temperature, doubling=doubling,
                             exponent=exponent, junction_capacitance=junction_capacitance,
-                            forward=forward, rescaling=rescaling)
+                            forward=forward, rescaling=rescaling,
+                            driver_trials=DRIVER_TRIALS if drivers else 0)
+    features: dict[str, list] = {}
+    ratios: dict[str, list] = {"static": [], "dynamic": []}
     with worker_pool(workers) if pool is None else nullcontext(pool) as active:
         if chunk_trials is None:
             chunk_trials = chunk_size(trials, _CHUNK_ELEMENTS // (layout.series * layout.parallel),
@@ -284,6 +261,14 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                 dynamic.merge(outcome.dynamic)
             if outcome.forward is not None:
                 forward_sums.merge(outcome.forward)
+            if outcome.features is not None:
+                for name, values in outcome.features.items():
+                    features.setdefault(name, []).append(values)
+                count = len(next(iter(outcome.features.values())))
+                for name, accumulator in (("static", outcome.static),
+                                          ("dynamic", outcome.dynamic)):
+                    if accumulator is not None:
+                        ratios[name].append(accumulator.worst_ratios[0][:count])
 
     confidence = design.monte_carlo.confidence
     target = design.sizing.target_p_fail
@@ -312,9 +297,13 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                                            confidence, target, trials)
 
     impossible = _impossibility(design, limits)
-    grading = _grading_summary(design, checks, temperature, reference_voltage, reference_temperature,
+    grading = grading_summary(design, checks, temperature, reference_voltage, reference_temperature,
                                doubling, exponent, junction_capacitance)
     passed = all(check.passed for check in checks.values() if check.ran)
+    ranking: tuple[Driver, ...] = ()
+    if drivers and features:
+        ranking = _drivers(design, checks, features, ratios, trials=trials, seed=seed,
+                           pool=pool if pool is not None else None)
     # A check the user asked for that could not run never lets the design pass.
     requested_missing = transient and not checks["transient"].ran
     verdict = "pass" if passed and impossible is None and not grading.rating_problems \
@@ -324,7 +313,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                        checks=checks, grading=grading,
                        verdict=verdict, impossible=impossible,
                        assumptions=design.assumptions + _model_assumptions(design, rescaling_note),
-                       no_scatter=_no_scatter(design, parameters))
+                       no_scatter=_no_scatter(design, parameters), drivers=ranking)
 
 
 @dataclass(frozen=True)
@@ -345,6 +334,7 @@ class _ChunkContext:
     junction_capacitance: np.ndarray
     forward: ForwardSetup | None
     rescaling: RecoveryRescaling | None
+    driver_trials: int
 
 
 @dataclass(frozen=True)
@@ -352,6 +342,7 @@ class _ChunkOutcome:
     static: _Accumulator | None
     dynamic: _Accumulator | None
     forward: ForwardChunk | None
+    features: dict[str, np.ndarray] | None
 
 
 def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
@@ -370,7 +361,10 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     forward = None
     if context.forward is not None:
         forward = run_forward_chunk(design, context.forward, drawn)
-    return _ChunkOutcome(static=static, dynamic=dynamic, forward=forward)
+    features = None
+    if first < context.driver_trials:
+        features = chunk_features(drawn, design, min(count, context.driver_trials - first))
+    return _ChunkOutcome(static=static, dynamic=dynamic, forward=forward, features=features)
 
 
 def _static_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulator,
@@ -512,93 +506,24 @@ def _impossibility(design: Design, limits: np.ndarray) -> str | None:
     return None
 
 
-def _grading_summary(design: Design, checks: Mapping[str, SeriesCheck], temperature: np.ndarray,
-                     reference_voltage: np.ndarray, reference_temperature: np.ndarray,
-                     doubling: np.ndarray, exponent: np.ndarray,
-                     junction_capacitance: np.ndarray) -> GradingSummary:
-    grading = design.grading
-    layout = design.string
-    stage_count = layout.series * layout.parallel
-    nominal_share = design.duty.reverse_voltage / layout.series
-    static_worst = checks["static"].worst_voltage if checks["static"].ran else float("nan")
-    dynamic_worst = checks["dynamic"].worst_voltage if checks["dynamic"].ran else float("nan")
-    worst_any = float(np.nanmax([static_worst, dynamic_worst]))
-    problems, advisories = [], []
-
-    power_continuous = power_duty = total_loss = grading_current = None
-    if grading.resistor is not None:
-        power_continuous = float(resistor_power(static_worst, grading.resistor, waveform="dc"))
-        power_duty = float(resistor_power(static_worst, grading.resistor, waveform=design.duty.waveform))
-        total_loss = float(stage_count * resistor_power(nominal_share, grading.resistor,
-                                                        waveform=design.duty.waveform))
-        grading_current = nominal_share / grading.resistor
-        if grading.resistor_rated_power is not None and power_duty > grading.resistor_rated_power:
-            problems.append(f"grading resistor dissipates {_q(power_duty, 'W')} at the worst static "
-                            f"voltage, above its rating of {_q(grading.resistor_rated_power, 'W')}")
-        if grading.resistor_rated_voltage is not None and worst_any > grading.resistor_rated_voltage:
-            problems.append(f"grading resistor sees {_q(worst_any, 'V')} at worst, above its working-"
-                            f"voltage rating of {_q(grading.resistor_rated_voltage, 'V')}")
-        if grading.resistor_rated_power is None:
-            advisories.append("grading.resistor_rated_power not given: resistor power not checked")
-        if grading.resistor_rated_voltage is None:
-            advisories.append("grading.resistor_rated_voltage not given: resistor working voltage "
-                              "not checked")
-
-    hottest_leakage = 0.0
-    grid = layout.part_grid()
-    for branch in range(layout.parallel):
-        for index in range(layout.series):
-            part = design.parts[grid[branch, index]]
-            spread = part.i_r
-            maximum = spread.high if spread.high is not None else spread.typ
-            value = float(leakage_current(maximum, reference_voltage[branch, index],
-                                          temperature[branch, index],
-                                          reference_voltage=reference_voltage[branch, index],
-                                          reference_temperature=reference_temperature[branch, index],
-                                          doubling_temperature=doubling[branch, index],
-                                          voltage_exponent=exponent[branch, index]))
-            hottest_leakage = max(hottest_leakage, value)
-    if grading_current is not None and grading_current < GRADING_CURRENT_MULTIPLE * hottest_leakage:
-        advisories.append(
-            f"grading current {_q(grading_current, 'A')} is less than "
-            f"{GRADING_CURRENT_MULTIPLE:g} x the hottest maximum leakage "
-            f"({_q(hottest_leakage, 'A')}); several times is common practice")
-    if grading.resistor is None:
-        advisories.append("no grading resistors: static sharing rests on the leakage alone and the "
-                          "stack has no bleed path for stored charge")
-
-    stage_energy = total_energy = None
-    capacitance = junction_capacitance + (grading.capacitor or 0.0)
-    if grading.capacitor is not None:
-        stage_energy = float(stored_energy(grading.capacitor, worst_any))
-        if grading.capacitor_rated_voltage is not None and worst_any > grading.capacitor_rated_voltage:
-            problems.append(f"grading capacitor sees {_q(worst_any, 'V')} at worst, above its rating "
-                            f"of {_q(grading.capacitor_rated_voltage, 'V')}")
-        if grading.capacitor_rated_voltage is None:
-            advisories.append("grading.capacitor_rated_voltage not given: capacitor voltage not "
-                              "checked")
-        if grading.damping_resistor is None:
-            advisories.append("grading.damping_resistor not given: an undamped grading capacitor "
-                              "rings with the stray inductance and discharges into the device at "
-                              "turn-on")
-    total_energy = float(np.sum(stored_energy(capacitance, nominal_share)))
-    resistances = np.full(layout.series, np.inf if grading.resistor is None else grading.resistor)
-    time = float(np.max([discharge_time(np.full(layout.series, nominal_share), resistances,
-                                        capacitance[branch]) for branch in range(layout.parallel)]))
-    if time > SAFE_DISCHARGE_TIME:
-        advisories.append(f"the stack takes {_q(time, 's')} to fall below {SAFE_VOLTAGE:g} V through "
-                          f"its grading resistors, longer than the {SAFE_DISCHARGE_TIME:g} s of "
-                          "IEC 60204-1 clause 6.2.4: provide a discharge device or earthing stick")
-    return GradingSummary(
-        resistor=grading.resistor, capacitor=grading.capacitor,
-        damping_resistor=grading.damping_resistor, worst_resistor_voltage=worst_any,
-        resistor_power_continuous=power_continuous, resistor_power_duty=power_duty,
-        resistor_rated_power=grading.resistor_rated_power,
-        resistor_rated_voltage=grading.resistor_rated_voltage, total_grading_loss=total_loss,
-        worst_capacitor_voltage=worst_any, capacitor_rated_voltage=grading.capacitor_rated_voltage,
-        stage_energy=stage_energy, total_energy=total_energy, discharge_time=time,
-        grading_current=grading_current, hottest_max_leakage=hottest_leakage,
-        rating_problems=tuple(problems), advisories=tuple(advisories))
+def _drivers(design: Design, checks, features: dict[str, list], ratios: dict[str, list], *,
+             trials: int, seed: int, pool: WorkerPool | None) -> tuple[Driver, ...]:
+    """Rank the inputs of each series check that ran, and rerun it with the top ones tightened."""
+    joined = {name: np.concatenate(parts) for name, parts in features.items()}
+    out = []
+    for name in ("static", "dynamic"):
+        if not checks[name].ran or not ratios[name]:
+            continue
+        ranked = rank_inputs(name, joined, np.concatenate(ratios[name]))
+        for position, (driver, rho) in enumerate(ranked):
+            p99 = upper = None
+            if position < TOP_DRIVERS:
+                rerun = run_check(tightened(design, driver), trials=trials, seed=seed,
+                                  only=(name,), pool=pool).checks[name]
+                p99, upper = rerun.p99_ratio, rerun.estimate.ci_high
+            out.append(Driver(check=name, input=driver, label=label(driver), rank_correlation=rho,
+                              tightened_p99_ratio=p99, tightened_p_fail_upper=upper))
+    return tuple(out)
 
 
 def _model_assumptions(design: Design, rescaling_note: str) -> tuple[str, ...]:

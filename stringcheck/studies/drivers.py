@@ -1,0 +1,113 @@
+"""What drives the worst stress of a check, and what tightening each input would buy.
+
+For the first :data:`DRIVER_TRIALS` trials of a run the check keeps, per trial, the *mismatch* of
+each scattered input across the string: the range (max - min over all positions) of the latent
+standard-normal value of each device parameter, and of the drawn grading resistor and capacitor
+relative to their nominal values. A series string suffers from mismatch, not from the level of a
+parameter, so the range is the feature that carries the physics (one fast device among slow ones).
+Each input is ranked by the absolute Spearman rank correlation of its mismatch with the trial's
+worst stress ratio (scipy.stats.spearmanr). For the top inputs the check is run again on the same
+draws with that input's spread halved (device limits halfway to typ, in the log domain for the
+lognormal parameters; a grading tolerance halved), and the new 99th-percentile stress and P(fail)
+bound show what the tightening would buy.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+from scipy import stats
+
+from ..design import LOGNORMAL_PARAMETERS, Design, Spread
+from ..sampling import DrawnStrings
+
+DRIVER_TRIALS = 20_000
+TOP_DRIVERS = 3
+# The inputs each check's physics depends on (DESIGN.md section 4): the blocking-state sharing on
+# leakage against the resistors, the turn-off sharing on recovery charge against the capacitors.
+CHECK_INPUTS = {"static": ("i_r", "resistor"), "dynamic": ("q_rr", "capacitor")}
+
+_LABELS = {"i_r": "leakage I_R", "q_rr": "recovery charge Q_rr", "v_t0": "threshold voltage V_T0",
+           "r_t": "slope resistance r_T", "i_rm": "peak recovery current I_RM",
+           "t_rr": "recovery time t_rr", "resistor": "grading resistor tolerance",
+           "capacitor": "grading capacitor tolerance"}
+
+
+@dataclass(frozen=True)
+class Driver:
+    """One input's influence on one check's worst stress."""
+
+    check: str
+    input: str
+    label: str
+    rank_correlation: float
+    tightened_p99_ratio: float | None
+    tightened_p_fail_upper: float | None
+
+
+def chunk_features(drawn: DrawnStrings, design: Design, count: int) -> dict[str, np.ndarray]:
+    """Per-trial mismatch of every scattered input for the first ``count`` trials of a chunk."""
+    features = {}
+    for name, latent in drawn.latent.items():
+        values = latent[:count].reshape(count, -1)
+        features[name] = values.max(axis=1) - values.min(axis=1)
+    grading = design.grading
+    for name, values, nominal in (("resistor", drawn.resistance, grading.resistor),
+                                  ("capacitor", drawn.capacitance, grading.capacitor)):
+        if values is not None and nominal:
+            flat = values[:count].reshape(count, -1) / nominal
+            features[name] = flat.max(axis=1) - flat.min(axis=1)
+    return features
+
+
+def rank_inputs(check: str, features: dict[str, np.ndarray],
+                ratios: np.ndarray) -> list[tuple[str, float]]:
+    """(input, Spearman rho) sorted by |rho|, inputs with no variation left out."""
+    finite = np.isfinite(ratios)
+    ranked = []
+    for name, values in features.items():
+        if name not in CHECK_INPUTS.get(check, (name,)):
+            continue
+        x, y = values[finite], ratios[finite]
+        if x.size < 10 or np.ptp(x) == 0 or np.ptp(y) == 0:
+            continue
+        rho = float(stats.spearmanr(x, y).statistic)
+        if math.isfinite(rho):
+            ranked.append((name, rho))
+    ranked.sort(key=lambda item: abs(item[1]), reverse=True)
+    return ranked
+
+
+def tightened(design: Design, name: str) -> Design:
+    """The design with input ``name``'s spread halved (see the module docstring)."""
+    if name == "resistor":
+        grading = replace(design.grading, resistor_tolerance=design.grading.resistor_tolerance / 2)
+        return replace(design, grading=grading)
+    if name == "capacitor":
+        grading = replace(design.grading,
+                          capacitor_tolerance=design.grading.capacitor_tolerance / 2)
+        return replace(design, grading=grading)
+    parts = dict(design.parts)
+    for part_name in design.parts_used():
+        part = parts[part_name]
+        spread = part.spread(name)
+        if spread is not None and not spread.fixed:
+            parts[part_name] = replace(part, **{name: _halved(spread, name in LOGNORMAL_PARAMETERS)})
+    return replace(design, parts=parts)
+
+
+def _halved(spread: Spread, lognormal: bool) -> Spread:
+    def toward(limit: float | None) -> float | None:
+        if limit is None:
+            return None
+        if lognormal:
+            return spread.typ * math.sqrt(limit / spread.typ)
+        return spread.typ + (limit - spread.typ) / 2
+
+    return replace(spread, low=toward(spread.low), high=toward(spread.high))
+
+
+def label(name: str) -> str:
+    return _LABELS.get(name, name)

@@ -1,0 +1,140 @@
+"""What the grading network must withstand: resistor power and voltage, capacitor voltage, stored
+energy and discharge time, from the nominal values and the worst voltages the checks found.
+
+Ratings exceeded are "rating problems" (they fail the verdict); rules of thumb are advisories,
+marked as common practice, never hidden constraints.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Mapping
+
+import numpy as np
+
+from ..design import Design
+from ..physics.grading import discharge_time, resistor_power, stored_energy
+from ..physics.leakage import leakage_current
+from ..quantity import format_quantity as _q
+
+# Grading current below this multiple of the hottest maximum leakage draws an advisory (common
+# practice: "several times" the leakage; 5x is our threshold for saying so).
+GRADING_CURRENT_MULTIPLE = 5.0
+# Residual-voltage threshold and time: 60 V DC (IEC 61010-1 hazardous-live level) within 5 s
+# (IEC 60204-1 clause 6.2.4).
+SAFE_VOLTAGE = 60.0
+SAFE_DISCHARGE_TIME = 5.0
+
+
+@dataclass(frozen=True)
+class GradingSummary:
+    """What the grading network must withstand, from nominal values and the worst drawn voltages."""
+
+    resistor: float | None
+    capacitor: float | None
+    damping_resistor: float | None
+    worst_resistor_voltage: float
+    resistor_power_continuous: float | None
+    resistor_power_duty: float | None
+    resistor_rated_power: float | None
+    resistor_rated_voltage: float | None
+    total_grading_loss: float | None
+    worst_capacitor_voltage: float
+    capacitor_rated_voltage: float | None
+    stage_energy: float | None
+    total_energy: float | None
+    discharge_time: float
+    grading_current: float | None
+    hottest_max_leakage: float
+    rating_problems: tuple[str, ...]
+    advisories: tuple[str, ...]
+
+
+
+def grading_summary(design: Design, checks: Mapping[str, object], temperature: np.ndarray,
+                     reference_voltage: np.ndarray, reference_temperature: np.ndarray,
+                     doubling: np.ndarray, exponent: np.ndarray,
+                     junction_capacitance: np.ndarray) -> GradingSummary:
+    grading = design.grading
+    layout = design.string
+    stage_count = layout.series * layout.parallel
+    nominal_share = design.duty.reverse_voltage / layout.series
+    static_worst = checks["static"].worst_voltage if checks["static"].ran else float("nan")
+    dynamic_worst = checks["dynamic"].worst_voltage if checks["dynamic"].ran else float("nan")
+    worst_any = float(np.nanmax([static_worst, dynamic_worst]))
+    problems, advisories = [], []
+
+    power_continuous = power_duty = total_loss = grading_current = None
+    if grading.resistor is not None:
+        power_continuous = float(resistor_power(static_worst, grading.resistor, waveform="dc"))
+        power_duty = float(resistor_power(static_worst, grading.resistor, waveform=design.duty.waveform))
+        total_loss = float(stage_count * resistor_power(nominal_share, grading.resistor,
+                                                        waveform=design.duty.waveform))
+        grading_current = nominal_share / grading.resistor
+        if grading.resistor_rated_power is not None and power_duty > grading.resistor_rated_power:
+            problems.append(f"grading resistor dissipates {_q(power_duty, 'W')} at the worst static "
+                            f"voltage, above its rating of {_q(grading.resistor_rated_power, 'W')}")
+        if grading.resistor_rated_voltage is not None and worst_any > grading.resistor_rated_voltage:
+            problems.append(f"grading resistor sees {_q(worst_any, 'V')} at worst, above its working-"
+                            f"voltage rating of {_q(grading.resistor_rated_voltage, 'V')}")
+        if grading.resistor_rated_power is None:
+            advisories.append("grading.resistor_rated_power not given: resistor power not checked")
+        if grading.resistor_rated_voltage is None:
+            advisories.append("grading.resistor_rated_voltage not given: resistor working voltage "
+                              "not checked")
+
+    hottest_leakage = 0.0
+    grid = layout.part_grid()
+    for branch in range(layout.parallel):
+        for index in range(layout.series):
+            part = design.parts[grid[branch, index]]
+            spread = part.i_r
+            maximum = spread.high if spread.high is not None else spread.typ
+            value = float(leakage_current(maximum, reference_voltage[branch, index],
+                                          temperature[branch, index],
+                                          reference_voltage=reference_voltage[branch, index],
+                                          reference_temperature=reference_temperature[branch, index],
+                                          doubling_temperature=doubling[branch, index],
+                                          voltage_exponent=exponent[branch, index]))
+            hottest_leakage = max(hottest_leakage, value)
+    if grading_current is not None and grading_current < GRADING_CURRENT_MULTIPLE * hottest_leakage:
+        advisories.append(
+            f"grading current {_q(grading_current, 'A')} is less than "
+            f"{GRADING_CURRENT_MULTIPLE:g} x the hottest maximum leakage "
+            f"({_q(hottest_leakage, 'A')}); several times is common practice")
+    if grading.resistor is None:
+        advisories.append("no grading resistors: static sharing rests on the leakage alone and the "
+                          "stack has no bleed path for stored charge")
+
+    stage_energy = total_energy = None
+    capacitance = junction_capacitance + (grading.capacitor or 0.0)
+    if grading.capacitor is not None:
+        stage_energy = float(stored_energy(grading.capacitor, worst_any))
+        if grading.capacitor_rated_voltage is not None and worst_any > grading.capacitor_rated_voltage:
+            problems.append(f"grading capacitor sees {_q(worst_any, 'V')} at worst, above its rating "
+                            f"of {_q(grading.capacitor_rated_voltage, 'V')}")
+        if grading.capacitor_rated_voltage is None:
+            advisories.append("grading.capacitor_rated_voltage not given: capacitor voltage not "
+                              "checked")
+        if grading.damping_resistor is None:
+            advisories.append("grading.damping_resistor not given: an undamped grading capacitor "
+                              "rings with the stray inductance and discharges into the device at "
+                              "turn-on")
+    total_energy = float(np.sum(stored_energy(capacitance, nominal_share)))
+    resistances = np.full(layout.series, np.inf if grading.resistor is None else grading.resistor)
+    time = float(np.max([discharge_time(np.full(layout.series, nominal_share), resistances,
+                                        capacitance[branch]) for branch in range(layout.parallel)]))
+    if time > SAFE_DISCHARGE_TIME:
+        advisories.append(f"the stack takes {_q(time, 's')} to fall below {SAFE_VOLTAGE:g} V through "
+                          f"its grading resistors, longer than the {SAFE_DISCHARGE_TIME:g} s of "
+                          "IEC 60204-1 clause 6.2.4: provide a discharge device or earthing stick")
+    return GradingSummary(
+        resistor=grading.resistor, capacitor=grading.capacitor,
+        damping_resistor=grading.damping_resistor, worst_resistor_voltage=worst_any,
+        resistor_power_continuous=power_continuous, resistor_power_duty=power_duty,
+        resistor_rated_power=grading.resistor_rated_power,
+        resistor_rated_voltage=grading.resistor_rated_voltage, total_grading_loss=total_loss,
+        worst_capacitor_voltage=worst_any, capacitor_rated_voltage=grading.capacitor_rated_voltage,
+        stage_energy=stage_energy, total_energy=total_energy, discharge_time=time,
+        grading_current=grading_current, hottest_max_leakage=hottest_leakage,
+        rating_problems=tuple(problems), advisories=tuple(advisories))
