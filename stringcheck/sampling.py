@@ -178,52 +178,81 @@ def _normals(seed: int, first_trial: int, count: int, component: int, width: int
     return np.concatenate(rows, axis=0) if rows else np.empty((0, width))
 
 
-def draw_strings(design: Design, parameters: tuple[str, ...], first_trial: int, count: int,
-                 *, seed: int | None = None) -> DrawnStrings:
-    """Draw ``count`` built strings, trials ``first_trial`` .. ``first_trial + count - 1``.
+@dataclass(frozen=True)
+class Latent:
+    """The independent standard-normal values behind a set of built strings.
 
-    Parameters
-    ----------
-    design
-        The validated design.
-    parameters
-        The device parameters to draw (names from SPREAD_PARAMETERS); every part used must give them
-        (the studies check this before drawing).
-    first_trial, count
-        Which trials of the run to draw.
-    seed
-        Overrides the design's seed.
+    ``device``: per parameter, shape (trials, parallel, series); ``lot``: per part, shape
+    (trials, len(SPREAD_PARAMETERS)) (empty without ``lot_share``); ``resistor`` and ``capacitor``:
+    (trials, parallel, series) or None. The Monte Carlo draws them from seeded streams; the rare-event
+    estimator chooses them itself.
     """
-    monte_carlo = design.monte_carlo
-    seed = monte_carlo.seed if seed is None else seed
+
+    device: Mapping[str, np.ndarray]
+    lot: Mapping[str, np.ndarray]
+    resistor: np.ndarray | None
+    capacitor: np.ndarray | None
+
+
+def latent_parameters(design: Design, parameters: tuple[str, ...]) -> tuple[str, ...]:
+    """The device parameters whose latent values ``parameters`` need: all of them when the design
+    correlates parameters (the copula mixes them in the order of SPREAD_PARAMETERS)."""
+    return SPREAD_PARAMETERS if _correlated(design) else tuple(parameters)
+
+
+def _correlated(design: Design) -> bool:
+    matrix = correlation_matrix(design.monte_carlo.correlation, SPREAD_PARAMETERS)
+    return not np.allclose(matrix, np.eye(len(SPREAD_PARAMETERS)))
+
+
+def draw_latent(design: Design, parameters: tuple[str, ...], first_trial: int, count: int,
+                seed: int) -> Latent:
+    """The seeded latent values of trials ``first_trial`` .. ``first_trial + count - 1``."""
     layout = design.string
     shape = (count, layout.parallel, layout.series)
     devices = layout.parallel * layout.series
+    device = {}
+    for parameter in latent_parameters(design, parameters):
+        component = SPREAD_PARAMETERS.index(parameter)
+        device[parameter] = _normals(seed, first_trial, count, component, devices).reshape(shape)
+    lot = {}
+    if design.monte_carlo.lot_share > 0:
+        for name in design.parts_used():
+            lot[name] = _normals(seed, first_trial, count, _part_stream_id(name),
+                                 len(SPREAD_PARAMETERS))
+    grading = design.grading
+    resistor = capacitor = None
+    if grading.resistor is not None:
+        resistor = _normals(seed, first_trial, count, _RESISTOR_STREAM, devices).reshape(shape)
+    if grading.capacitor is not None:
+        capacitor = _normals(seed, first_trial, count, _CAPACITOR_STREAM, devices).reshape(shape)
+    return Latent(device=device, lot=lot, resistor=resistor, capacitor=capacitor)
+
+
+def strings_from_latent(design: Design, parameters: tuple[str, ...], latent: Latent,
+                        first_trial: int = 0) -> DrawnStrings:
+    """Map latent values onto built strings: lot sharing, copula, spreads and tolerances."""
+    monte_carlo = design.monte_carlo
+    layout = design.string
     grid = layout.part_grid()
     used = design.parts_used()
     share = monte_carlo.lot_share
-
-
-    # With correlations the copula is applied over every spread parameter in the fixed order of
-    # SPREAD_PARAMETERS, so that a parameter's draws never depend on which others were asked for.
-    full_matrix = correlation_matrix(monte_carlo.correlation, SPREAD_PARAMETERS)
-    correlated = not np.allclose(full_matrix, np.eye(len(SPREAD_PARAMETERS)))
-    latent_names = SPREAD_PARAMETERS if correlated else tuple(parameters)
-    device_latent = {}
-    for parameter in latent_names:
-        component = SPREAD_PARAMETERS.index(parameter)
-        device_latent[parameter] = _normals(seed, first_trial, count, component, devices).reshape(shape)
+    names = latent_parameters(design, parameters)
+    device_latent = dict(latent.device)
+    shape = next(iter(device_latent.values())).shape if device_latent else None
     if share > 0:
         for name in used:
-            lot = _normals(seed, first_trial, count, _part_stream_id(name), len(SPREAD_PARAMETERS))
+            lot = latent.lot[name]
             mask = grid == name
-            for parameter in latent_names:
+            for parameter in names:
                 column = lot[:, SPREAD_PARAMETERS.index(parameter)]
                 mixed = np.sqrt(share) * column[:, None, None] + np.sqrt(1 - share) * device_latent[
                     parameter]
                 device_latent[parameter] = np.where(mask, mixed, device_latent[parameter])
-    if correlated:
-        factor = np.linalg.cholesky(full_matrix)
+    # With correlations the copula is applied over every spread parameter in the fixed order of
+    # SPREAD_PARAMETERS, so that a parameter's draws never depend on which others were asked for.
+    if _correlated(design):
+        factor = np.linalg.cholesky(correlation_matrix(monte_carlo.correlation, SPREAD_PARAMETERS))
         stacked = np.stack([device_latent[p] for p in SPREAD_PARAMETERS], axis=-1) @ factor.T
         device_latent = {p: stacked[..., SPREAD_PARAMETERS.index(p)] for p in parameters}
 
@@ -244,15 +273,34 @@ def draw_strings(design: Design, parameters: tuple[str, ...], first_trial: int, 
     grading = design.grading
     resistance = capacitance = None
     if grading.resistor is not None:
-        latent = _normals(seed, first_trial, count, _RESISTOR_STREAM, devices).reshape(shape)
-        resistance = tolerance_draw(grading.resistor, grading.resistor_tolerance, latent,
+        resistance = tolerance_draw(grading.resistor, grading.resistor_tolerance, latent.resistor,
                                     sigma_at_limit=monte_carlo.sigma_at_limit)
     if grading.capacitor is not None:
-        latent = _normals(seed, first_trial, count, _CAPACITOR_STREAM, devices).reshape(shape)
-        capacitance = tolerance_draw(grading.capacitor, grading.capacitor_tolerance, latent,
-                                     sigma_at_limit=monte_carlo.sigma_at_limit)
+        capacitance = tolerance_draw(grading.capacitor, grading.capacitor_tolerance,
+                                     latent.capacitor, sigma_at_limit=monte_carlo.sigma_at_limit)
     return DrawnStrings(first_trial=first_trial, parameters=values, latent=device_latent,
                         resistance=resistance, capacitance=capacitance)
+
+
+def draw_strings(design: Design, parameters: tuple[str, ...], first_trial: int, count: int,
+                 *, seed: int | None = None) -> DrawnStrings:
+    """Draw ``count`` built strings, trials ``first_trial`` .. ``first_trial + count - 1``.
+
+    Parameters
+    ----------
+    design
+        The validated design.
+    parameters
+        The device parameters to draw (names from SPREAD_PARAMETERS); every part used must give them
+        (the studies check this before drawing).
+    first_trial, count
+        Which trials of the run to draw.
+    seed
+        Overrides the design's seed.
+    """
+    seed = design.monte_carlo.seed if seed is None else seed
+    latent = draw_latent(design, parameters, first_trial, count, seed)
+    return strings_from_latent(design, parameters, latent, first_trial)
 
 
 def chunk_bounds(trials: int, chunk_trials: int) -> list[tuple[int, int]]:
