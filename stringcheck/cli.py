@@ -46,6 +46,8 @@ _TRANSIENT_SAMPLE = typer.Option(None, "--transient-sample", min=1, metavar="N",
                                       "(default: as many as the target needs).")
 _DRIVERS = typer.Option(False, "--drivers", help="Rank what drives the worst stress and what "
                                                   "halving each input's spread would buy.")
+_RARE = typer.Option(False, "--rare", help="Estimate small P(fail) of the series checks by "
+                                            "importance sampling.")
 _WORKERS = typer.Option(1, "--workers", help="Processes to run the trials in (the result is the "
                                              "same for any number).")
 
@@ -116,7 +118,7 @@ def _run(action: Callable[[], int], debug: bool) -> None:
 
 
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
-           transient=None, drivers=False, source_label=None) -> int:
+           transient=None, drivers=False, rare=False, source_label=None) -> int:
     from .design import load_design
     from .report.export import json_text, positions_csv, result_to_dict, write_text_atomic
     from .report.terminal import render_check, render_check_summary
@@ -131,7 +133,7 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
     progress = _DelayedProgress(enabled=not quiet, label="drawing strings")
     try:
         result = run_check(design, trials=trials, seed=seed, progress=progress, workers=workers,
-                           drivers=drivers, **(transient or {}))
+                           drivers=drivers, rare=rare, **(transient or {}))
     finally:
         progress.close()
     if json_path is not None:
@@ -160,13 +162,14 @@ def check(
     transient_worst: int = _TRANSIENT_WORST,
     transient_sample: Optional[int] = _TRANSIENT_SAMPLE,
     drivers: bool = _DRIVERS,
+    rare: bool = _RARE,
     debug: bool = _DEBUG,
 ) -> None:
     """Check a string: static and dynamic voltage sharing, parallel current sharing, junction
     temperatures and runaway, optionally the time-domain turn-off; P(fail), grading ratings."""
     options = _transient_options(transient, transient_worst, transient_sample)
     _run(lambda: _check(file, trials=trials, seed=seed, json_path=json, csv_path=csv, quiet=quiet,
-                        workers=workers, transient=options, drivers=drivers), debug)
+                        workers=workers, transient=options, drivers=drivers, rare=rare), debug)
 
 
 def _transient_options(transient: bool, worst: int, sample: Optional[int]) -> dict:
@@ -304,6 +307,7 @@ def demo(
     transient_worst: int = _TRANSIENT_WORST,
     transient_sample: Optional[int] = _TRANSIENT_SAMPLE,
     drivers: bool = _DRIVERS,
+    rare: bool = _RARE,
     debug: bool = _DEBUG,
 ) -> None:
     """Run the check on the bundled example design (an invented 30 kV stack)."""
@@ -313,7 +317,7 @@ def demo(
         with resources.as_file(resources.files("stringcheck") / "data" / "demo.toml") as path:
             return _check(path, trials=trials, seed=seed, json_path=json, csv_path=csv,
                           quiet=quiet, workers=workers, transient=options, drivers=drivers,
-                          source_label="demo (bundled example)")
+                          rare=rare, source_label="demo (bundled example)")
 
     _run(action, debug)
 

@@ -36,6 +36,10 @@ def _ratio(value: float) -> str:
 
 
 def _probability(check: SeriesCheck, confidence: float) -> str:
+    rare = getattr(check, "rare", None)
+    if rare is not None:
+        return f"{rare.p_fail:.2g} [{rare.ci_low:.2g}, {rare.ci_high:.2g}] (IS)" \
+            if rare.found_failure_point else f"<= {rare.ci_high:.2g} (IS: none found)"
     estimate = check.estimate
     if estimate is None:
         return "-"
@@ -89,6 +93,14 @@ def render_check(result: CheckResult, console: Console) -> None:
     for name, check in result.checks.items():
         if not check.ran:
             console.print(Text(f"{name} check not run: {check.reason}.", style="yellow"))
+        elif getattr(check, "rare", None) is not None:
+            rare = check.rare
+            console.print(
+                f"{name}: P(fail) from {rare.estimator}; {rare.samples:,} samples, standard error "
+                f"{rare.std_error:.2g}" + (f", beta = {rare.beta:.2f} (first-order Phi(-beta) = "
+                                           f"{rare.first_order:.2g}, for reference)"
+                                           if rare.found_failure_point else "")
+                + f"; plain Monte Carlo: {check.estimate.failures:,} of {check.estimate.trials:,}")
     console.print()
 
     for name, check in result.checks.items():

@@ -39,6 +39,7 @@ from .transient_check import not_run as not_run_transient
 from .drivers import DRIVER_TRIALS, TOP_DRIVERS, Driver, chunk_features, label, rank_inputs
 from .drivers import tightened
 from .grading_summary import GradingSummary, grading_summary
+from .rare_events import DEFAULT_SAMPLES, RareEstimate, rare_event_estimate
 from .recovery_conditions import RecoveryRescaling, recovery_rescaling, rescale_charges
 from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 
@@ -82,6 +83,7 @@ class SeriesCheck:
     worst_string: np.ndarray
     positions: tuple[PositionStatistics, ...]
     histogram: tuple[tuple[float, float, int], ...]
+    rare: RareEstimate | None = None
 
 
 @dataclass(frozen=True)
@@ -169,7 +171,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
               progress: ProgressCallback | None = None, workers: int = 1,
               pool: WorkerPool | None = None, transient: bool = False,
               transient_worst: int = DEFAULT_WORST,
-              transient_sample: int | None = None, drivers: bool = False) -> CheckResult:
+              transient_sample: int | None = None, drivers: bool = False,
+              rare: bool = False, rare_samples: int = DEFAULT_SAMPLES) -> CheckResult:
     """Run the series check of ``design`` (static sharing always, dynamic when there is a turn-off).
 
     Parameters
@@ -192,6 +195,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         Also run the time-domain turn-off (``studies.transient_check``) on the worst
         ``transient_worst`` charge-balance trials and a random sample of ``transient_sample``
         trials (default: the trials the target needs, so that the check can pass).
+    rare, rare_samples
+        Estimate each series check's P(fail) by importance sampling (``studies.rare_events``)
+        with ``rare_samples`` strings; the check then passes on that estimate's upper bound.
     drivers
         Rank the inputs by their influence on each series check's worst stress, and rerun the
         check with each of the top inputs tightened (``studies.drivers``).
@@ -300,6 +306,11 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     grading = grading_summary(design, checks, temperature, reference_voltage, reference_temperature,
                                doubling, exponent, junction_capacitance)
     passed = all(check.passed for check in checks.values() if check.ran)
+    if rare:
+        for name in ("static", "dynamic"):
+            if checks[name].ran:
+                checks[name] = _with_rare(checks[name], context, seed, confidence, target,
+                                          rare_samples)
     ranking: tuple[Driver, ...] = ()
     if drivers and features:
         ranking = _drivers(design, checks, features, ratios, trials=trials, seed=seed,
@@ -504,6 +515,28 @@ def _impossibility(design: Design, limits: np.ndarray) -> str | None:
                 f"sharing: the sum of derating x V_RRM over the {layout.series} devices of a branch "
                 f"is {weakest:g} V (derating {layout.derating:g})")
     return None
+
+
+def evaluate_strings(context: _ChunkContext, drawn: DrawnStrings, check: str) -> np.ndarray:
+    """Each drawn string's worst stress ratio in ``check`` ("static" or "dynamic"); inf unsolved."""
+    accumulator = _Accumulator(context.limits.shape, context.limits)
+    if check == "static":
+        _static_chunk(context.design, drawn, accumulator, context.temperature,
+                      context.reference_voltage, context.reference_temperature, context.doubling,
+                      context.exponent)
+    else:
+        _dynamic_chunk(context.design, drawn, accumulator, context.junction_capacitance,
+                       context.rescaling)
+    return accumulator.worst_ratios[0]
+
+
+def _with_rare(check: SeriesCheck, context: _ChunkContext, seed: int, confidence: float,
+               target: float, samples: int) -> SeriesCheck:
+    parameters = ("i_r",) if check.name == "static" else ("q_rr",)
+    estimate = rare_event_estimate(context.design, check.name, parameters,
+                                   lambda drawn: evaluate_strings(context, drawn, check.name),
+                                   seed=seed, confidence=confidence, samples=samples)
+    return replace(check, rare=estimate, passed=estimate.ci_high <= target)
 
 
 def _drivers(design: Design, checks, features: dict[str, list], ratios: dict[str, list], *,
