@@ -518,7 +518,9 @@ def _build(loop, stage):
     source, inductance, current, resistance, duration, max_step = loop
     tau, transit, c_j, r_grading, c_grading, r_damping, g_leak, i_sat, emission, temp = stage
     count = tau.shape[1]
-    merged = r_damping <= 0.0
+    # A subnormal R_d has no finite conductance: it puts C_k across the stage, as R_d = 0 does.
+    with np.errstate(over="ignore"):
+        merged = (r_damping <= 0.0) | (1.0 / r_damping == np.inf)
     unused = merged | (c_grading <= 0.0)
     shunt = g_leak + 1.0 / r_grading
     stage_capacitance = c_j + c_grading

@@ -269,3 +269,19 @@ def test_more_grading_capacitance_never_raises_the_worst_peak(lifetime, capacita
                                damping)
     assert result.converged.all()
     assert result.peak_voltage[1].max() <= result.peak_voltage[0].max() * (1 + 1e-3)
+
+
+def test_a_subnormal_damping_resistance_acts_as_none():
+    # Found by hypothesis: a positive R_d so small that 1 / R_d overflows (here 1e-320 ohm) gave
+    # an infinite conductance and a trial flagged as failed. Physically it is R_d = 0 (C_k across
+    # the stage), which the engine now uses: the same constants, so bit-identical results. A NaN
+    # R_d is still reported as not converged.
+    inputs = dict(source_voltage=3000.0, inductance=60e-6, forward_current=100.0,
+                  lifetime=STRING["lifetime"], transit_time=STRING["transit"],
+                  junction_capacitance=STRING["junction"], grading_resistance=STRING["grading"],
+                  grading_capacitance=STRING["capacitor"])
+    tiny = simulate_turn_off(**inputs, damping_resistance=np.array([[1e-320], [np.nan]]))
+    none = simulate_turn_off(**inputs, damping_resistance=0.0)
+    assert tiny.converged.tolist() == [True, False]
+    for name in ("peak_voltage", "peak_time", "settled_voltage", "peak_current", "end_time"):
+        np.testing.assert_array_equal(getattr(tiny, name)[0], getattr(none, name)[0])
