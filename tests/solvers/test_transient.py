@@ -327,7 +327,8 @@ def test_one_diode_under_a_ramp_recovery_time_and_triangle_charge(lifetime, tran
     #   (I_RM t_rr / 2) / Q_rr = (1 + 2 s ln 2) / (1 + 2 s),
     # between ln 2 (very soft) and 1 (abrupt). The triangle therefore holds only to 1 - ln 2 = 31 %
     # in general within this model: 2.8 % low at s = 0.05, 20 % low at s = 1. The measured
-    # ratio follows the exponential-tail formula within 0.5 %.
+    # ratio follows the exponential-tail formula within 0.5 %. (Checked once with the engine's
+    # recombination q_M / (1.2 tau): I_RM off by 20-30 %, both cases fail.)
     voltage = 1000.0
     inductance, snubber = voltage / di_dt, 10e-9
     result = simulate_turn_off(voltage, inductance, forward, lifetime, transit, 10e-12, np.inf,

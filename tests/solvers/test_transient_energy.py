@@ -55,8 +55,10 @@ def test_energy_balance_from_the_trace(damping):
     # recomputed from the traced v and q_M with physics.charge_control's functions. Quadrature:
     # trapezoidal on the accepted samples, independently of the engine's own TR-BDF2 quadrature
     # of the damping energy. Tolerance 1 % of the source's energy at every sample (measured
-    # residual about 0.1 %, the quadrature's O(h^2) error at rtol 1e-4); in the damped case every
-    # term exceeds 2 % of it, so leaving out any one of them breaks the balance.
+    # residual 0.14 % damped, 0.19 % with C_k across: the quadrature's O(h^2) error at rtol
+    # 1e-4); in the damped case every term exceeds 3 % of it (smallest: the diode's, 3.5 %), so
+    # leaving out any one of them breaks the balance. Checked once by dropping the leakage
+    # conductance from the engine: residual 5 % and 10 %.
     voltage, inductance, current, loop = 3000.0, 60e-6, 20.0, 5.0
     result = simulate_turn_off(
         voltage, inductance, current, BALANCE["lifetime"], BALANCE["transit"],
@@ -82,7 +84,7 @@ def test_energy_balance_from_the_trace(damping):
         # The engine's own damping energy, integrated with the state, agrees with the trace.
         np.testing.assert_allclose(result.damping_energy[0], damped[-1], rtol=1e-2)
         for name, term in terms.items():
-            assert abs(term[-1]) > 0.02 * source[-1], name
+            assert abs(term[-1]) > 0.03 * source[-1], name
     else:  # R_d = 0: C_k sits across the stage, its voltage is the stage's
         np.testing.assert_array_equal(w, v)
     residual = source - sum(terms.values())
@@ -109,7 +111,8 @@ def test_equal_stages_overshoot_follows_the_series_rlc(fraction):
     # U exp(-k (pi - 2 arctan k)), k = zeta / sqrt(1 - zeta^2), zeta = R_d / (2 sqrt(L / (n C_k)))
     # (the derivative of k (pi - 2 arctan k) is 2 arctan(1/k) - 2k / (1 + k^2) > 0, so the
     # overshoot falls as R_d rises). Tolerance 5e-4 U (rtol 1e-5; global error as in
-    # test_transient's series R-L-C test).
+    # test_transient's series R-L-C test). This test, the next two and the property fail when
+    # the engine's damping conductance is broken (checked once with R_d / 2500 for 1 / R_d).
     voltage, inductance, count, capacitance = 3000.0, 60e-6, 3, 10e-9
     critical = 2.0 * math.sqrt(inductance / (count * capacitance))
     result = simulate_turn_off(voltage, inductance, 0.0, np.full(count, 0.5e-6), 0.1e-6,
