@@ -351,8 +351,8 @@ def simulate_turn_off(
         (see :func:`stringcheck.physics.charge_control.fit_charge_control`).
     junction_capacitance, grading_resistance, grading_capacitance, damping_resistance
         C_j [F] >= 0, R_k [ohm] > 0 (``inf`` for none), C_k [F] >= 0 with C_j + C_k > 0, and
-        R_d [ohm] >= 0 in series with C_k (0 puts C_k directly across the stage); each
-        ``(trials, n)`` or broadcastable.
+        R_d [ohm] >= 0 in series with C_k (0, or below 1e-12 sqrt(L / (C_j + C_k)), puts C_k
+        directly across the stage); each ``(trials, n)`` or broadcastable.
     leakage_conductance
         Leakage of each stage as a conductance [S], >= 0.
     loop_resistance
@@ -518,10 +518,14 @@ def _build(loop, stage):
     source, inductance, current, resistance, duration, max_step = loop
     tau, transit, c_j, r_grading, c_grading, r_damping, g_leak, i_sat, emission, temp = stage
     count = tau.shape[1]
-    merged = r_damping <= 0.0
+    stage_capacitance = c_j + c_grading
+    # R_d below 1e-12 of the stage's impedance sqrt(L / C) changes no result above rounding but
+    # makes the equations needlessly stiff (and 1 / R_d overflows for a subnormal R_d): it puts
+    # C_k across the stage, as R_d = 0 does.
+    negligible = 1e-12 * np.sqrt(inductance[:, None] / stage_capacitance)
+    merged = r_damping <= np.where(np.isfinite(negligible), negligible, 0.0)
     unused = merged | (c_grading <= 0.0)
     shunt = g_leak + 1.0 / r_grading
-    stage_capacitance = c_j + c_grading
     series_capacitance = 1.0 / (1.0 / stage_capacitance).sum(axis=1)
     period = 2.0 * np.pi * np.sqrt(inductance * series_capacitance)
     ramp = ramp_recovery(tau, transit, current[:, None], (source / inductance)[:, None])
