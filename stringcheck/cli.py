@@ -295,6 +295,49 @@ def review(
                          quiet=quiet, workers=workers, transient=transient), debug)
 
 
+def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height) -> int:
+    from .design import load_design
+    from .report.export import write_text_atomic
+    from .report.waveform import waveform_csv, waveform_plot
+    from .studies.transient_check import trial_trace
+
+    design = load_design(path)
+    result, notes = trial_trace(design, trial, trials=trials, seed=seed, branch=branch)
+    if csv_path is not None:
+        write_text_atomic(csv_path, waveform_csv(result.trace, capacitor_voltages=True))
+    console = _console(stderr=csv_path == "-")
+    if not bool(result.converged[0]):
+        console.print("[bold red]the engine could not finish this trial; the plot shows what was "
+                      "reached[/]", markup=True)
+    console.print(f"{design.title}: trial {trial}, branch {branch}; turn-off from "
+                  f"{result.trace.time.shape[0]} recorded steps", highlight=False)
+    console.print(waveform_plot(result.trace, width=width, height=height, worst=worst),
+                  end="", highlight=False, markup=False)
+    for note in notes:
+        console.print(f"note: {note}", highlight=False)
+    return EXIT_PASS
+
+
+@app.command()
+def wave(
+    file: Path = typer.Argument(..., help="Design file (TOML).", show_default=False),
+    trial: int = typer.Option(0, "--trial", min=0, help="Trial (built string) of the run, from 0."),
+    branch: int = typer.Option(1, "--branch", min=1, help="Branch of a parallel group, from 1."),
+    worst: Optional[int] = typer.Option(6, "--worst", min=1,
+                                        help="Plot only the N stages with the highest peaks."),
+    width: int = typer.Option(80, "--width", min=40, help="Plot width in characters."),
+    height: int = typer.Option(24, "--height", min=12, help="Plot height in lines."),
+    trials: Optional[int] = _TRIALS,
+    seed: Optional[int] = _SEED,
+    csv: Optional[str] = typer.Option(None, "--csv", metavar="PATH",
+                                      help="Write the waveforms of the trial as CSV."),
+    debug: bool = _DEBUG,
+) -> None:
+    """Simulate one built string's turn-off and plot its stage voltages and loop current."""
+    _run(lambda: _wave(file, trial=trial, branch=branch, trials=trials, seed=seed, csv_path=csv,
+                       worst=worst, width=width, height=height), debug)
+
+
 @app.command()
 def demo(
     trials: Optional[int] = _TRIALS,

@@ -441,3 +441,28 @@ def test_every_example_runs_to_a_verdict(path):
     result = invoke("check", str(path), "--trials", "300", "--quiet")
     assert result.exit_code in (0, 1), result.output
     assert_no_traceback(result)
+
+
+# --- wave ------------------------------------------------------------------------------------------
+
+def test_wave_plots_one_trial_and_writes_its_csv(demo_file, tmp_path):
+    import pandas as pd
+
+    target = tmp_path / "wave.csv"
+    result = invoke("wave", str(demo_file), "--trial", "3", "--csv", str(target), "--height", "16")
+    assert result.exit_code == 0, result.output
+    assert "stage reverse voltage [kV]" in result.stdout and "loop current [A]" in result.stdout
+    table = pd.read_csv(target)
+    assert list(table.columns[:3]) == ["time_s", "current_A", "v1_V"]
+    assert (table["time_s"].diff().dropna() > 0).all()
+    # Kirchhoff: at the end of the turn-off the stage voltages carry the whole string voltage
+    # (30 kV in the demo, reverse voltages positive), within the ringing left (1 %).
+    stages = [c for c in table.columns if c.startswith("v") and c.endswith("_V")
+              and not c.startswith("vc")]
+    assert table[stages].iloc[-1].sum() == pytest.approx(30e3, rel=0.01)
+
+
+def test_wave_trial_outside_the_run_is_bad_input(demo_file):
+    result = invoke("wave", str(demo_file), "--trial", "99999999", "--trials", "100")
+    assert result.exit_code == 2, result.output
+    assert "--trial" in result.stderr

@@ -28,6 +28,7 @@ from ..design import Design
 from ..physics.charge_control import lifetime_for_charge
 from ..sampling import BLOCK_TRIALS, draw_strings
 from ..solvers.transient import simulate_turn_off
+from ..errors import StringcheckError
 from ..stats import FailureEstimate, failure_estimate
 from .recovery_conditions import InconsistentRecoveryData, missing_recovery_data, part_fits
 
@@ -123,24 +124,11 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
     duty = design.duty
     grid = layout.part_grid()
     limits = layout.derating * np.array([[design.parts[p].v_rrm for p in row] for row in grid])
-    notes = []
-    inductance = duty.stray_inductance if duty.stray_inductance is not None else \
-        duty.reverse_voltage / duty.di_dt
-    forward = duty.forward_current
-    if forward is None:
-        forward = max(fit[1] for fit in fits.values())
-        notes.append(f"no duty.forward_current: each branch starts from the parts' test I_F "
-                     f"({forward:g} A)")
-    else:
-        forward = forward / layout.parallel
-    if layout.parallel > 1:
-        notes.append(f"each of the {layout.parallel} branches is simulated as its own loop with "
-                     f"{layout.parallel} x L and 1/{layout.parallel} of the current")
-    notes.append("leakage and the grading resistor's TCR are left out of the turn-off "
-                 "(microseconds); junction temperature enters only the thermal voltage")
+    inductance, forward, notes = _loop(design, fits)
+    notes = list(notes)
 
     peaks, overshoots, currents, energies, solved = _simulate(
-        design, fits, selected, trials, seed, inductance * layout.parallel, forward)
+        design, fits, selected, trials, seed, inductance, forward)
     ratio = np.max(peaks / limits, axis=(1, 2))
     ratio = np.where(solved, ratio, np.inf)
     failed = ~(ratio <= 1.0)
@@ -175,13 +163,13 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
         unsolved=int(np.count_nonzero(~solved)), worst_trial=int(selected[top]),
         sampled=sample, worst_simulated=worst, worst_failures=worst_failures,
         peak_recovery_current=float(np.nanmax(currents)),
-        damping_energy=float(np.nanmax(energies)), inductance=float(inductance),
+        damping_energy=float(np.nanmax(energies)), inductance=float(inductance / layout.parallel),
         forward_current=float(forward), positions=tuple(positions), notes=tuple(notes))
 
 
-def _simulate(design: Design, fits, selected: np.ndarray, trials: int, seed: int,
-              inductance: float, forward: float):
-    """Redraw the selected trials (block by block) and run each branch through the engine."""
+def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: int) -> dict:
+    """Redraw the selected trials (block by block); the engine's stage inputs, one row per branch
+    of each selected trial, shape (selected x parallel, series)."""
     layout = design.string
     grid = layout.part_grid()
     shape = (selected.size, layout.parallel, layout.series)
@@ -206,15 +194,78 @@ def _simulate(design: Design, fits, selected: np.ndarray, trials: int, seed: int
         transit[mask] = t_m
         lifetime[:, mask] = lifetime_for_charge(charge[:, mask], t_m, test_current, test_rate)
     junction = np.array([[design.parts[p].c_j for p in row] for row in grid])
+    rows_shape = (selected.size * layout.parallel, layout.series)
+    return {"lifetime": lifetime.reshape(rows_shape),
+            "transit_time": np.broadcast_to(transit, shape).reshape(rows_shape),
+            "junction_capacitance": np.broadcast_to(junction, shape).reshape(rows_shape),
+            "grading_resistance": resistance.reshape(rows_shape),
+            "grading_capacitance": capacitance.reshape(rows_shape)}
+
+
+def _loop(design: Design, fits) -> tuple[float, float, tuple[str, ...]]:
+    """Inductance per branch loop [H], I_F per branch [A], and the notes on how they were chosen."""
+    layout = design.string
+    duty = design.duty
+    notes = []
+    inductance = duty.stray_inductance if duty.stray_inductance is not None else \
+        duty.reverse_voltage / duty.di_dt
+    forward = duty.forward_current
+    if forward is None:
+        forward = max(fit[1] for fit in fits.values())
+        notes.append(f"no duty.forward_current: each branch starts from the parts' test I_F "
+                     f"({forward:g} A)")
+    else:
+        forward = forward / layout.parallel
+    if layout.parallel > 1:
+        notes.append(f"each of the {layout.parallel} branches is simulated as its own loop with "
+                     f"{layout.parallel} x L and 1/{layout.parallel} of the current")
+    notes.append("leakage and the grading resistor's TCR are left out of the turn-off "
+                 "(microseconds); junction temperature enters only the thermal voltage")
+    return inductance * layout.parallel, forward, tuple(notes)
+
+
+def trial_trace(design: Design, trial: int, *, trials: int | None = None,
+                seed: int | None = None, branch: int = 1):
+    """The recorded turn-off of one trial (one branch) of the design's Monte Carlo run, for
+    ``stringcheck wave``. Returns (TurnOff with its trace, notes)."""
+    trials = design.monte_carlo.trials if trials is None else trials
+    seed = design.monte_carlo.seed if seed is None else seed
+    reason = transient_reason(design)
+    if reason:
+        raise StringcheckError(f"{design.source}: cannot simulate the turn-off: {reason}")
+    if not 1 <= branch <= design.string.parallel:
+        raise StringcheckError(f"--branch must be in 1..{design.string.parallel}, got {branch}")
+    if not 0 <= trial < trials:
+        raise StringcheckError(f"--trial must be in 0..{trials - 1} (the run has {trials} trials),"
+                               f" got {trial}")
+    try:
+        fits = {name: (fit.transit_time, fit.test_current, fit.test_rate)
+                for name, fit in part_fits(design).items()}
+    except InconsistentRecoveryData as error:
+        raise StringcheckError(f"{design.source}: parts.{error}: its recovery data fit no "
+                               "recovery waveform") from None
+    inductance, forward, notes = _loop(design, fits)
+    stage = _stage_rows(design, fits, np.array([trial]), trials, seed)
+    row = slice(branch - 1, branch)
+    result = simulate_turn_off(
+        design.duty.reverse_voltage, inductance, forward, stage["lifetime"][row],
+        stage["transit_time"][row], stage["junction_capacitance"][row],
+        stage["grading_resistance"][row], stage["grading_capacitance"][row],
+        design.grading.damping_resistor or 0.0, temperature=design.duty.ambient + 273.15,
+        record=True)
+    return result, notes
+
+
+def _simulate(design: Design, fits, selected: np.ndarray, trials: int, seed: int,
+              inductance: float, forward: float):
+    """Run each branch of the selected trials through the engine, in batches."""
+    layout = design.string
+    shape = (selected.size, layout.parallel, layout.series)
+    stage = _stage_rows(design, fits, selected, trials, seed)
     damping = design.grading.damping_resistor or 0.0
     temperature = design.duty.ambient + 273.15
     flat = selected.size * layout.parallel
     rows_shape = (flat, layout.series)
-    lifetime = lifetime.reshape(rows_shape)
-    resistance = resistance.reshape(rows_shape)
-    capacitance = capacitance.reshape(rows_shape)
-    transit_rows = np.broadcast_to(transit, shape).reshape(rows_shape)
-    junction_rows = np.broadcast_to(junction, shape).reshape(rows_shape)
     peaks = np.empty(rows_shape)
     overshoot = np.empty(rows_shape)
     current = np.empty(flat)
@@ -223,8 +274,9 @@ def _simulate(design: Design, fits, selected: np.ndarray, trials: int, seed: int
     for start in range(0, flat, _BATCH):
         part = slice(start, start + _BATCH)
         result = simulate_turn_off(
-            design.duty.reverse_voltage, inductance, forward, lifetime[part], transit_rows[part],
-            junction_rows[part], resistance[part], capacitance[part], damping,
+            design.duty.reverse_voltage, inductance, forward, stage["lifetime"][part],
+            stage["transit_time"][part], stage["junction_capacitance"][part],
+            stage["grading_resistance"][part], stage["grading_capacitance"][part], damping,
             temperature=temperature)
         peaks[part] = result.peak_voltage
         overshoot[part] = result.overshoot
