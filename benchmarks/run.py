@@ -282,11 +282,72 @@ def bench_turn_off(trials: int, reference_trials: int) -> dict:
                         and ours < 60.0 * trials / 1e4 and result.converged.all())}
 
 
+# Two stages, one with unscreened lognormal leakage: the failure region is a half-plane in latent
+# space, P(fail) = Phi(-beta) exactly (tests/studies/test_rare_events.py has the derivation).
+RARE_DESIGN = """
+[duty]
+reverse_voltage = "2 kV"
+[string]
+series = 2
+derating = 1.0
+part = "FIX"
+[[string.position]]
+index = 2
+part = "VAR"
+[parts.FIX]
+v_rrm = "VR V"
+i_r = { typ = "1 uA", at_temperature = "25 degC" }
+leakage_voltage_exponent = 0
+[parts.VAR]
+v_rrm = "VR V"
+i_r = { typ = "1 uA", max = "10 uA", at_temperature = "25 degC" }
+leakage_voltage_exponent = 0
+[grading]
+resistor = "100 MOhm"
+[monte_carlo]
+trials = 4096
+seed = 1
+screened = false
+"""
+
+
+def bench_rare(samples: int) -> dict:
+    """Importance sampling at P = 1e-4 against the plain Monte Carlo that reaches the same
+    relative standard error: n = (1 - p) / (p r^2) trials, timed on 10^5 trials and scaled."""
+    from scipy import stats
+
+    from stringcheck.studies.check import run_check
+
+    beta = float(stats.norm.isf(1e-4))
+    leakage = 1e-6 * math.exp(math.log(10.0) / 3.0 * beta)
+    v_rrm = float(1000.0 + 100e6 * (leakage - 1e-6) / 2.0)
+    design = parse_design_text(RARE_DESIGN.replace("VR V", f"{v_rrm!r} V"), source="benchmark")
+    run_check(design, trials=4096, rare=True, rare_samples=1000)  # warm-up
+    start = time.perf_counter()
+    rare = run_check(design, trials=4096, rare=True, rare_samples=samples).checks["static"].rare
+    ours = time.perf_counter() - start
+    relative = rare.std_error / rare.p_fail
+    exact = 1e-4
+    plain_trials = (1 - exact) / (exact * relative ** 2)
+    start = time.perf_counter()
+    run_check(design, trials=100_000)
+    per_trial = (time.perf_counter() - start) / 100_000
+    reference = per_trial * plain_trials
+    return {"name": f"rare events at P = 1e-4: importance sampling ({samples:,} samples) vs plain "
+                    "Monte Carlo at the same relative error",
+            "ours_s": ours, "reference_s": reference, "ratio": reference / ours,
+            "agreement": f"estimate {rare.p_fail:.4g} vs exact {exact:g} (relative standard error "
+                         f"{relative:.2%}); plain Monte Carlo needs {plain_trials:,.0f} trials, "
+                         f"{plain_trials / samples:,.0f}x the samples",
+            "target": "faster than plain Monte Carlo at the same relative error",
+            "met": bool(reference > ours and abs(rare.p_fail - exact) <= 3 * rare.std_error)}
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="smaller sizes")
     parser.add_argument("--json", metavar="PATH", help="also write the rows as JSON")
-    parser.add_argument("--only", choices=("check", "memory", "turn-off"), action="append",
+    parser.add_argument("--only", choices=("check", "memory", "turn-off", "rare"), action="append",
                         help="run only this row (repeatable)")
     options = parser.parse_args(argv)
     trials = 100_000 if options.quick else 1_000_000
@@ -295,6 +356,7 @@ def main(argv: list[str] | None = None) -> int:
         "memory": lambda: bench_memory(trials // 10, trials),
         "turn-off": lambda: bench_turn_off(1000 if options.quick else 10_000,
                                            3 if options.quick else 10),
+        "rare": lambda: bench_rare(5000 if options.quick else 20_000),
     }
     rows = []
     for name, bench in benches.items():
