@@ -11,6 +11,7 @@ from rich.table import Table
 from rich.text import Text
 
 from ..quantity import format_quantity
+from ..stats import trials_for_relative_error
 from ..studies.check import CheckResult, SeriesCheck
 from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
@@ -93,7 +94,9 @@ def render_check(result: CheckResult, console: Console) -> None:
     for name, check in result.checks.items():
         if not check.ran:
             console.print(Text(f"{name} check not run: {check.reason}.", style="yellow"))
-        elif getattr(check, "rare", None) is not None:
+        elif _convergence_note(check):
+            console.print(_convergence_note(check), highlight=False)
+        if check.ran and getattr(check, "rare", None) is not None:
             rare = check.rare
             console.print(
                 f"{name}: P(fail) from {rare.estimator}; {rare.samples:,} samples, standard error "
@@ -132,6 +135,24 @@ def render_check(result: CheckResult, console: Console) -> None:
                                discharge_time=grading.discharge_time)
     console.print(Panel("\n".join(f"! {line}" for line in cautions), title="High-voltage cautions",
                         title_align="left", border_style="red"))
+
+
+WANTED_RELATIVE_ERROR = 0.1  # relative standard error of P(fail) the report asks for
+
+
+def _convergence_note(check) -> str:
+    """How precisely the plain Monte Carlo run knows P(fail), when it is too short for 10 %."""
+    estimate = check.estimate
+    if estimate is None or estimate.failures == 0 or estimate.failures == estimate.trials:
+        return ""
+    p = estimate.p_fail
+    relative = math.sqrt(p * (1 - p) / estimate.trials) / p
+    if relative <= WANTED_RELATIVE_ERROR:
+        return ""
+    needed = trials_for_relative_error(p, WANTED_RELATIVE_ERROR)
+    return (f"{check.name}: {estimate.failures:,} failures in {estimate.trials:,} trials know "
+            f"P(fail) to +-{relative:.0%} (standard error); about {needed:,} trials would give "
+            f"+-{WANTED_RELATIVE_ERROR:.0%}, or use --rare")
 
 
 def _fail_reason(result: CheckResult) -> str:
