@@ -16,6 +16,7 @@ from numpy.typing import ArrayLike, NDArray
 
 __all__ = ["StaticSharing", "solve_static_sharing", "stage_voltage"]
 
+_STALL_RTOL = 1e-9
 _EPSILON = np.finfo(float).eps
 _INNER_MAX_ITERATIONS = 100
 
@@ -303,8 +304,12 @@ def _iterate(
         residual[rows] = new_residual
         upper[rows] = np.where(new_residual >= 0.0, candidate, upper[rows])
         lower[rows] = np.where(new_residual <= 0.0, candidate, lower[rows])
-        done = stalled | (np.abs(new_residual) <= rtol * voltage[rows])
-        converged[rows] = done
+        within = np.abs(new_residual) <= rtol * voltage[rows]
+        # A stalled step ends the iteration, but it is a solution only if Kirchhoff holds to the
+        # 1e-9 the check promises (V ~ I^(1/m) can leave the range of a double first).
+        settled = stalled & (np.abs(new_residual) <= max(rtol, _STALL_RTOL) * voltage[rows])
+        done = stalled | within
+        converged[rows] = within | settled
         active[rows] = ~done & ~np.isnan(new_residual)
     return voltages, current, converged, iterations
 
