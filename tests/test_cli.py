@@ -468,14 +468,13 @@ def test_wave_trial_outside_the_run_is_bad_input(demo_file):
     assert "--trial" in result.stderr
 
 
-def test_report_says_how_many_trials_a_ten_percent_estimate_needs(tmp_path):
+def test_report_says_how_many_trials_a_ten_percent_estimate_needs(tmp_path, half_plane_design):
     import numpy as np
 
-    # 2 stages, one lognormal leakage unscreened: P(fail) = Phi(-2.326) = 1e-2 (see
-    # tests/studies/test_rare_events.py). With 2000 trials about 20 failures: relative standard
+    # The two-stage design of tests/conftest.py: P(fail) = Phi(-2.326) = 1e-2. With 2000 trials about 20 failures: relative standard
     # error sqrt((1 - p) / (n p)) ~ 22 %; 10 % needs (1 - p) / (p 0.1^2) ~ 9,900 trials.
     path = tmp_path / "rare.toml"
-    path.write_text(rare_design_text(2.326), encoding="utf-8")
+    path.write_text(half_plane_design(2.326, trials=2000), encoding="utf-8")
     result = invoke("check", str(path))
     assert result.exit_code == 1, result.output
     text = flat(result.stdout)
@@ -486,34 +485,3 @@ def test_report_says_how_many_trials_a_ten_percent_estimate_needs(tmp_path):
     p = count / 2000
     assert f"{int(np.ceil((1 - p) / (p * 0.01))):,} trials" in text
 
-
-def rare_design_text(beta: float) -> str:
-    import numpy as np
-
-    leakage = 1e-6 * np.exp(np.log(10.0) / 3.0 * beta)
-    v_rrm = float(1000.0 + 100e6 * (leakage - 1e-6) / 2.0)
-    return f"""
-[duty]
-reverse_voltage = "2 kV"
-[string]
-series = 2
-derating = 1.0
-part = "FIX"
-[[string.position]]
-index = 2
-part = "VAR"
-[parts.FIX]
-v_rrm = "{v_rrm!r} V"
-i_r = {{ typ = "1 uA", at_temperature = "25 degC" }}
-leakage_voltage_exponent = 0
-[parts.VAR]
-v_rrm = "{v_rrm!r} V"
-i_r = {{ typ = "1 uA", max = "10 uA", at_temperature = "25 degC" }}
-leakage_voltage_exponent = 0
-[grading]
-resistor = "100 MOhm"
-[monte_carlo]
-trials = 2000
-seed = 1
-screened = false
-"""
