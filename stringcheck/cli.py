@@ -6,9 +6,11 @@ Exit codes: 0 every check passes; 1 a check fails; 2 bad input or usage; 3 inter
 
 from __future__ import annotations
 
+import os
 import sys
 import time
 import traceback
+import warnings
 from importlib import resources
 from pathlib import Path
 from typing import Callable, Optional
@@ -94,7 +96,12 @@ def _one_line(error: BaseException) -> str:
 def _run(action: Callable[[], int], debug: bool) -> None:
     """Run ``action`` and turn its outcome into an exit code, never a traceback (unless --debug)."""
     try:
-        code = action()
+        with warnings.catch_warnings():
+            if not debug:
+                # numpy's overflow and invalid-value warnings are not messages for a user: a trial
+                # that could not be solved is counted and reported as such. --debug shows them.
+                warnings.simplefilter("ignore", RuntimeWarning)
+            code = action()
     except ImpossibleDesignError as error:
         _console(stderr=True, wrap=False).print(f"[bold red]impossible design:[/] {_one_line(error)}",
                                                 markup=True)
@@ -104,7 +111,7 @@ def _run(action: Callable[[], int], debug: bool) -> None:
                                                 markup=True)
         code = EXIT_INPUT
     except KeyboardInterrupt:
-        _console(stderr=True).print("interrupted; no output file was written")
+        _console(stderr=True).print("interrupted; no partial output file was left behind")
         code = EXIT_INTERRUPTED
     except Exception as error:  # the last guard: one line, and the way to the traceback
         if debug:
@@ -120,27 +127,38 @@ def _run(action: Callable[[], int], debug: bool) -> None:
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
            transient=None, drivers=False, rare=False, source_label=None) -> int:
     from .design import load_design
-    from .report.export import json_text, positions_csv, result_to_dict, write_text_atomic
+    from .report.export import (
+        check_output_targets,
+        json_text,
+        positions_csv,
+        result_to_dict,
+        write_files_atomic,
+    )
     from .report.terminal import render_check, render_check_summary
     from .studies.check import run_check
 
     design = load_design(path)
+    check_output_targets({"--json": json_path, "--csv": csv_path},
+                         inputs=[path] if source_label is None else [])
     if source_label is not None:
         from dataclasses import replace
 
         design = replace(design, source=source_label)
-    to_stdout = json_path == "-"
+    to_stdout = "-" in (json_path, csv_path)
     progress = _DelayedProgress(enabled=not quiet, label="drawing strings")
     try:
         result = run_check(design, trials=trials, seed=seed, progress=progress, workers=workers,
                            drivers=drivers, rare=rare, **(transient or {}))
     finally:
         progress.close()
+    # Both texts are made before either file is touched, and both files are replaced together.
+    outputs = []
     if json_path is not None:
-        write_text_atomic(json_path, json_text(result_to_dict(result)))
+        outputs.append((json_path, json_text(result_to_dict(result))))
     if csv_path is not None:
-        write_text_atomic(csv_path, positions_csv(result))
-    # With the JSON on standard output, the report goes to stderr so the two never mix.
+        outputs.append((csv_path, positions_csv(result)))
+    write_files_atomic(outputs)
+    # With machine output on standard output, the report goes to stderr so the two never mix.
     console = _console(stderr=to_stdout, wrap=not quiet)
     if quiet:
         render_check_summary(result, console)
@@ -181,11 +199,12 @@ def _transient_options(transient: bool, worst: int, sample: Optional[int]) -> di
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,
           find_series, workers=1, transient=False) -> int:
     from .design import load_design
-    from .report.export import json_text, sizing_to_dict, write_text_atomic
+    from .report.export import check_output_targets, json_text, sizing_to_dict, write_text_atomic
     from .report.terminal import render_check_summary, render_sizing
     from .studies.size import size as run_size
 
     design = load_design(path)
+    check_output_targets({"--json": json_path}, inputs=[path])
     status = _console(stderr=True)
     with status.status("sizing", spinner="line") if not quiet else _nothing() as spinner:
         def progress(step: str) -> None:
@@ -367,7 +386,8 @@ def demo(
 
 @app.command()
 def new(
-    file: Path = typer.Argument(..., help="Where to write the starter design.", show_default=False),
+    file: Path = typer.Argument(..., help="Where to write the starter design ('-' for standard "
+                                          "output).", show_default=False),
     force: bool = typer.Option(False, "--force", help="Overwrite FILE if it exists."),
     debug: bool = _DEBUG,
 ) -> None:
@@ -376,7 +396,10 @@ def new(
         from .report.export import write_text_atomic
         from .report.starter import starter_design
 
-        if file.exists() and not force:
+        if str(file) == "-":  # the starter on standard output, and nothing else there
+            write_text_atomic("-", starter_design())
+            return EXIT_PASS
+        if os.path.lexists(file) and not force:
             raise StringcheckError(f"{file}: already exists; choose another name or add --force "
                                    "to overwrite it")
         write_text_atomic(file, starter_design())

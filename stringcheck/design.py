@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import re
 import tomllib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -51,6 +52,21 @@ DEFAULT_SEED = 20261202
 DEFAULT_CONFIDENCE = 0.95
 DEFAULT_SIGMA_AT_LIMIT = 3.0
 DEFAULT_TARGET_P_FAIL = 1e-3
+# Devices in one string (series x parallel). The engine holds one block of 4096 trials of every device
+# in memory at once (about 33 kB per device and array), so a larger string would exhaust the memory
+# of an ordinary machine; the largest stacks the tool is meant for have a few hundred devices.
+MAX_DEVICES = 10_000
+# A datasheet limit at fewer than 1 standard deviation from typ would leave a third of the parts
+# outside it; at more than 10 it says the parameter has no scatter (give {typ} alone for that).
+SIGMA_AT_LIMIT_RANGE = (1.0, 10.0)
+# A design file is a page of text; anything larger is surely not one (and is not read into memory).
+MAX_FILE_BYTES = 4 * 1024 * 1024
+# Leakage referred over more doublings than this (a factor 2^200 ~ 1e60) is a slip in a temperature
+# or in leakage_doubling, and would overflow the leakage arithmetic of the static check.
+MAX_LEAKAGE_DOUBLINGS = 200
+# The grading resistor's TCR is specified from this temperature [degC] (common practice); the same
+# value as stringcheck.studies.check.RESISTOR_TCR_REFERENCE (a test holds them equal).
+RESISTOR_TCR_REFERENCE = 25.0
 LOGNORMAL_PARAMETERS = ("i_r", "q_rr", "i_rm", "t_rr")
 NORMAL_PARAMETERS = ("v_t0", "r_t")
 SPREAD_PARAMETERS = LOGNORMAL_PARAMETERS + NORMAL_PARAMETERS
@@ -175,10 +191,14 @@ class StringLayout:
     part: str
     positions: tuple[PositionOverride, ...] = ()
 
+    def _ordered_positions(self) -> list[PositionOverride]:
+        """Overrides of every branch first, so that an override of one branch is never undone."""
+        return sorted(self.positions, key=lambda override: override.branch is not None)
+
     def part_grid(self) -> np.ndarray:
         """Part name of every device, shape (parallel, series), as an object array."""
         grid = np.full((self.parallel, self.series), self.part, dtype=object)
-        for override in self.positions:
+        for override in self._ordered_positions():
             if override.part is None:
                 continue
             rows = range(self.parallel) if override.branch is None else [override.branch - 1]
@@ -189,7 +209,7 @@ class StringLayout:
     def temperature_rise_grid(self) -> np.ndarray:
         """Temperature rise above ambient of every device [K], shape (parallel, series)."""
         grid = np.zeros((self.parallel, self.series))
-        for override in self.positions:
+        for override in self._ordered_positions():
             if override.temperature_rise is None:
                 continue
             rows = range(self.parallel) if override.branch is None else [override.branch - 1]
@@ -363,7 +383,8 @@ class _Reader:
         return value
 
     def integer(self, table: Mapping[str, Any], key: str, prefix: str, *, default: int | None = None,
-                minimum: int = 1, maximum: int | None = None) -> int:
+                minimum: int = 1, maximum: int | None = None, cap: int | None = None) -> int:
+        """A whole number in ``minimum..maximum``; ``cap`` is a limit of the tool, not the schema's."""
         dotted = _join(prefix, key)
         if key not in table:
             if default is None:
@@ -375,6 +396,9 @@ class _Reader:
         if value < minimum or (maximum is not None and value > maximum):
             limit = f">= {minimum}" if maximum is None else f"in {minimum}..{maximum}"
             raise self.error(dotted, f"must be a whole number {limit}, got {value}")
+        if cap is not None and value > cap:
+            raise self.error(dotted, f"must be at most {cap:,} (the largest string this tool holds "
+                                     f"in memory), got {value:,}")
         return value
 
     def text(self, table: Mapping[str, Any], key: str, prefix: str, *, default: str | None = None,
@@ -403,9 +427,13 @@ class _Reader:
         for bound in ("min", "typ", "max"):
             values[bound] = self.quantity(raw, bound, unit, dotted, positive=lognormal,
                                           non_negative=not lognormal)
-        conditions = {name: self.quantity(raw, name, condition_unit, dotted)
+        conditions = {name: self.quantity(raw, name, condition_unit, dotted,
+                                          positive=name != "at_temperature")
                       for name, condition_unit in _CONDITION_UNITS.items()}
         low, typ, high = values["min"], values["typ"], values["max"]
+        if low is not None and high is not None and low > high:
+            raise self.error(dotted, f"min ({raw.get('min')!r}) is above max ({raw.get('max')!r}); "
+                                     "min <= typ <= max")
         typ_assumed = False
         if typ is None:
             if high is None:
@@ -451,22 +479,35 @@ def load_design(path: str | Path) -> Design:
     """
     path = Path(path)
     source = str(path)
-    if not path.exists():
-        raise DesignError("no such file; check the path", source=source)
-    if path.is_dir():
-        raise DesignError("is a folder, not a design file", source=source)
     try:
-        data = path.read_bytes()
+        if not path.exists():
+            raise DesignError("no such file; check the path", source=source)
+        if path.is_dir():
+            raise DesignError("is a folder, not a design file", source=source)
+        if not path.is_file():
+            # A pipe or a device would block or never end; a design file is a regular file.
+            raise DesignError("is not a regular file (a pipe or a device?); give a design file",
+                              source=source)
+        size = path.stat().st_size
+        if size > MAX_FILE_BYTES:
+            raise DesignError(f"is {size:,} bytes, too large for a design file (at most "
+                              f"{MAX_FILE_BYTES:,}); check the path", source=source)
+        with path.open("rb") as stream:
+            data = stream.read(MAX_FILE_BYTES + 1)
     except OSError as error:
-        raise DesignError(f"cannot be read ({error.strerror})", source=source) from None
+        reason = error.strerror or type(error).__name__
+        raise DesignError(f"cannot be read ({reason})", source=source) from None
     if not data.strip():
         raise DesignError("the file is empty; start from `stringcheck new FILE`", source=source)
     if b"\x00" in data:
         raise DesignError("is a binary file, not a TOML design file", source=source)
     try:
-        text = data.decode("utf-8")
-    except UnicodeDecodeError:
-        raise DesignError("is not UTF-8 text; save it as UTF-8", source=source) from None
+        # utf-8-sig: some editors start a UTF-8 file with a byte-order mark, which TOML does not allow.
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError as error:
+        line = data[:error.start].count(b"\n") + 1
+        raise DesignError(f"is not UTF-8 text (line {line}); save it as UTF-8",
+                          source=source) from None
     return parse_design_text(text, source=source)
 
 
@@ -475,8 +516,34 @@ def parse_design_text(text: str, *, source: str = "<design>") -> Design:
     try:
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
-        raise DesignError(f"TOML syntax error: {error}", source=source) from None
+        raise DesignError(f"TOML syntax error: {error}{_quoted_line(text, str(error))}",
+                          source=source) from None
+    except ValueError as error:
+        # tomllib lets Python's own limit on integer digits through as a plain ValueError.
+        line = _line_of_long_number(text)
+        raise DesignError(f"TOML syntax error: a number too long to read (line {line}); "
+                          "write it in exponent form, e.g. 1e3", source=source) from None
     return parse_design(raw, source=source)
+
+
+def _quoted_line(text: str, message: str) -> str:
+    """``; line N reads: ...`` for a TOML error message that names its line, else ""."""
+    found = re.search(r"at line (\d+)", message)
+    if not found:
+        return ""
+    lines = text.split("\n")  # TOML counts lines by "\n" alone
+    number = int(found.group(1))
+    if not 1 <= number <= len(lines) or not lines[number - 1].strip():
+        return ""
+    line = "".join(c if c.isprintable() else "?" for c in " ".join(lines[number - 1].split()))
+    if len(line) > 60:
+        line = line[:57] + "..."
+    return f"; line {number} reads: {line}"
+
+
+def _line_of_long_number(text: str) -> int:
+    found = re.search(r"\d[\d_]{4000,}", text)
+    return text.count("\n", 0, found.start()) + 1 if found else 1
 
 
 def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
@@ -516,6 +583,9 @@ def _read_parts(reader: _Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
     parts = {}
     for name, table in parts_table.items():
         prefix = f"parts.{name}"
+        if not name.strip():
+            raise reader.error(f'parts."{name}"', "a part needs a name; write [parts.NAME] with "
+                                                  "a NAME such as MAIN")
         if not isinstance(table, Mapping):
             raise reader.error(prefix, f"must be a table ([{prefix}])")
         reader.check_keys(table, _SCHEMA_KEYS["part"], prefix)
@@ -601,8 +671,12 @@ def _read_string(reader: _Reader, raw: Mapping[str, Any], parts: Mapping[str, Pa
     if "string" not in raw:
         raise reader.error("string", "missing; add a [string] table with at least series = N")
     reader.check_keys(table, _SCHEMA_KEYS["string"], "string")
-    series = reader.integer(table, "series", "string")
-    parallel = reader.integer(table, "parallel", "string", default=1)
+    series = reader.integer(table, "series", "string", cap=MAX_DEVICES)
+    parallel = reader.integer(table, "parallel", "string", default=1, cap=MAX_DEVICES)
+    if series * parallel > MAX_DEVICES:
+        raise reader.error("string.parallel", f"{parallel} branches of {series} devices make "
+                                              f"{series * parallel:,} devices, more than the "
+                                              f"{MAX_DEVICES:,} this tool can hold in memory")
     derating = reader.fraction(table, "derating", "string", default=DEFAULT_DERATING, low=0.0,
                                high=1.0, low_open=True, high_open=False,
                                note=f"derating {DEFAULT_DERATING:g} x V_RRM (common practice)")
@@ -617,6 +691,7 @@ def _read_string(reader: _Reader, raw: Mapping[str, Any], parts: Mapping[str, Pa
     if not isinstance(raw_positions, list):
         raise reader.error("string.position", "must be an array of tables ([[string.position]])")
     positions = []
+    seen: dict[tuple[int, int], int] = {}
     for number, entry in enumerate(raw_positions, start=1):
         prefix = f"string.position[{number}]"
         if not isinstance(entry, Mapping):
@@ -629,6 +704,15 @@ def _read_string(reader: _Reader, raw: Mapping[str, Any], parts: Mapping[str, Pa
             _check_part_name(reader, _join(prefix, "part"), part, parts)
         rise = reader.quantity(entry, "temperature_rise", KELVIN_DIFFERENCE, prefix,
                                non_negative=True)
+        # Two entries for the same place would leave one of them silently unused. An entry for every
+        # branch (no branch key) and one for a single branch may stand together: the single branch's
+        # entry wins, whatever their order (StringLayout._ordered_positions).
+        if (index, branch) in seen:
+            where = f"index {index}" + (f", branch {branch}" if branch else " (every branch)")
+            first = seen[index, branch]
+            raise reader.error(prefix, f"{where} is already set by string.position[{first}]; "
+                                       "merge the two entries")
+        seen[index, branch] = number
         positions.append(PositionOverride(index=index, branch=branch or None, part=part,
                                           temperature_rise=rise))
     return StringLayout(series=series, parallel=parallel, derating=derating, part=default_part,
@@ -689,8 +773,9 @@ def _read_monte_carlo(reader: _Reader, raw: Mapping[str, Any]) -> MonteCarlo:
         seed=reader.integer(table, "seed", prefix, default=DEFAULT_SEED, minimum=0),
         confidence=reader.fraction(table, "confidence", prefix, default=DEFAULT_CONFIDENCE, low=0.0,
                                    high=1.0, low_open=True),
-        sigma_at_limit=reader.quantity(table, "sigma_at_limit", DIMENSIONLESS, prefix,
-                                       default=DEFAULT_SIGMA_AT_LIMIT, positive=True) or 3.0,
+        sigma_at_limit=reader.fraction(table, "sigma_at_limit", prefix,
+                                       default=DEFAULT_SIGMA_AT_LIMIT, low=SIGMA_AT_LIMIT_RANGE[0],
+                                       high=SIGMA_AT_LIMIT_RANGE[1], high_open=False),
         screened=screened,
         lot_share=reader.fraction(table, "lot_share", prefix, default=0.0, low=0.0, high=1.0),
         correlation=tuple(correlation),
@@ -770,3 +855,24 @@ def _cross_check(reader: _Reader, design: Design) -> None:
             raise reader.error(f"parts.{name}.i_r", "missing; the static check needs the reverse "
                                                     "leakage, e.g. i_r = { max = \"0.5 mA\", "
                                                     "at_temperature = \"125 degC\" }")
+        temperatures = design.duty.ambient + rise[grid == name]
+        reference = part.i_r.at_temperature if part.i_r.at_temperature is not None else \
+            DEFAULT_AMBIENT
+        doublings = float(np.max(np.abs(temperatures - reference))) / part.leakage_doubling
+        if doublings > MAX_LEAKAGE_DOUBLINGS:
+            raise reader.error(f"parts.{name}.leakage_doubling",
+                               f"referring the leakage from {reference:g} degC to "
+                               f"{float(np.max(temperatures)):g} degC takes {doublings:.3g} "
+                               f"doublings (factor 2^{doublings:.3g}), more than "
+                               f"{MAX_LEAKAGE_DOUBLINGS}; check leakage_doubling (about 10 K for "
+                               "silicon), i_r.at_temperature and duty.ambient")
+    tcr = design.grading.resistor_tcr
+    if design.grading.resistor is not None and tcr != 0.0:
+        temperatures = design.duty.ambient + rise
+        extreme = float(temperatures.max() if tcr < 0 else temperatures.min())
+        factor = 1.0 + tcr * (extreme - RESISTOR_TCR_REFERENCE)
+        if not factor > 0.0:
+            raise reader.error("grading.resistor_tcr",
+                               f"at {extreme:g} degC the grading resistor would be {factor:.3g} x its "
+                               f"nominal value (referred to {RESISTOR_TCR_REFERENCE:g} degC), not "
+                               "positive; a TCR is usually given in ppm/K, e.g. \"100 ppm/K\"")

@@ -98,15 +98,20 @@ def parse_quantity(value: Any, unit: Unit, *, key: str = "value") -> float:
     ------
     QuantityError
         When the text is not a quantity, the unit has the wrong dimension, a unit is missing where the
-        number alone would be ambiguous, or the value is not finite.
+        number alone would be ambiguous, the text holds a power (``**``, ``^``), the value is not
+        finite, or an absolute temperature is not above absolute zero.
     """
     if isinstance(value, bool):
         raise QuantityError(f"{key}: expected a quantity in {unit.label}, got a true/false value")
     if isinstance(value, (int, float)):
-        number = float(value)
+        try:
+            number = float(value)
+        except OverflowError:  # a TOML integer beyond the float range
+            number = math.inf
         if not math.isfinite(number):
-            raise QuantityError(f"{key}: the value {value!r} is not finite; give a finite number")
-        return number
+            raise QuantityError(f"{key}: the value {_shown(value)} is not finite; give a finite "
+                                "number")
+        return _checked_temperature(number, value, unit, key)
     if not isinstance(value, str):
         raise QuantityError(
             f"{key}: expected a quantity in {unit.label} such as \"{_example(unit)}\", "
@@ -130,6 +135,13 @@ def parse_quantity(value: Any, unit: Unit, *, key: str = "value") -> float:
                 f"e.g. \"{_example(unit)}\", or as a bare number in {unit.label}"
             )
         return number
+    if _POWER.search(text):
+        # pint evaluates powers of integers exactly: "10**10**10 V" would never finish. No unit of
+        # the design file needs a power, so none is read.
+        raise QuantityError(
+            f"{key}: cannot read {value!r} as a quantity: powers (**, ^) are not accepted; write a "
+            f"number and a unit, e.g. \"{_example(unit)}\" (1e3 for a thousand)"
+        )
     if not re.search(r"\d|\b(?:nan|inf)", text, re.IGNORECASE):
         # "kV" alone is almost surely an edit that lost its number; pint would read it as 1 kV.
         raise QuantityError(
@@ -142,7 +154,28 @@ def parse_quantity(value: Any, unit: Unit, *, key: str = "value") -> float:
         number = math.inf
     if not math.isfinite(number):
         raise QuantityError(f"{key}: the value {value!r} is not finite; give a finite number")
+    return _checked_temperature(number, value, unit, key)
+
+
+# Absolute zero in [degC] (SI Brochure 2.3.1: T/degC = T/K - 273.15).
+ABSOLUTE_ZERO = -273.15
+_POWER = re.compile(r"\*\*|\^|[\u2070\u00b9\u00b2\u00b3\u2074-\u207f]")
+
+
+def _checked_temperature(number: float, value: Any, unit: Unit, key: str) -> float:
+    """An absolute temperature must lie above absolute zero."""
+    if unit.absolute_temperature and not number > ABSOLUTE_ZERO:
+        raise QuantityError(f"{key}: {value!r} is not above absolute zero ({ABSOLUTE_ZERO:g} degC); "
+                            f"give a temperature such as \"{_example(unit)}\"")
     return number
+
+
+def _shown(value: Any) -> str:
+    """``repr`` of a number; a huge integer is described (its repr may be too long, or refused)."""
+    if isinstance(value, int) and abs(value) >= 10**30:
+        digits = int(value.bit_length() * math.log10(2)) + 1
+        return f"(an integer of about {digits} digits)"
+    return repr(value)
 
 
 def _convert_with_pint(text: str, value: Any, unit: Unit, key: str) -> float:

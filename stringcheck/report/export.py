@@ -1,7 +1,9 @@
 """Machine-readable output: JSON (stable keys, DESIGN.md section 6) and per-position CSV.
 
 Files are written atomically: to a temporary file in the same folder, then renamed over the target, so
-an existing file is replaced only by a complete new one.
+an existing file is replaced only by a complete new one; an interrupt or an error before the rename
+leaves the old file as it was and no temporary file behind. The output paths are checked before a run
+(:func:`check_output_targets`), so a long run does not end in an error about where to write.
 """
 
 from __future__ import annotations
@@ -9,10 +11,11 @@ from __future__ import annotations
 import json
 import math
 import os
+import stat
 import sys
 import tempfile
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, Mapping, Sequence
 
 from ..errors import StringcheckError
 from ..studies.check import CheckResult, SeriesCheck
@@ -142,40 +145,167 @@ def _csv_text(text: str) -> str:
     return '"' + text.replace('"', '""') + '"' if any(c in text for c in ',"\n') else text
 
 
-def write_text_atomic(path: str | Path, text: str) -> None:
-    """Write ``text`` to ``path`` atomically ("-" writes to standard output).
+def check_output_targets(targets: Mapping[str, str | Path | None], *,
+                         inputs: Sequence[str | Path] = ()) -> None:
+    """Check, before a run, that every requested output can be written, so that a long run never
+    ends in an error about its output.
+
+    Parameters
+    ----------
+    targets
+        Option name (``"--json"``) -> path, ``"-"`` for standard output, or None when not requested.
+    inputs
+        Files the run reads (the design file): an output must not replace them.
 
     Raises
     ------
     StringcheckError
-        When the folder does not exist or cannot be written.
+        When two outputs go to standard output or to the same file, an output would replace an
+        input, or a path is empty, is a folder, or lies in a folder that does not exist or cannot
+        be written.
     """
-    if str(path) == "-":
+    to_stdout = [option for option, path in targets.items() if path is not None and str(path) == "-"]
+    if len(to_stdout) > 1:
+        raise StringcheckError(f"{' and '.join(to_stdout)} both write to standard output ('-'), "
+                               "where they would mix; send all but one of them to a file")
+    read = {_real(Path(path)): str(path) for path in inputs}
+    seen: dict[str, str] = {}
+    for option, path in targets.items():
+        if path is None or str(path) == "-":
+            continue
+        if not str(path).strip():
+            raise StringcheckError(f"{option}: empty path; give a file name, or '-' for standard "
+                                   "output")
+        target = Path(path)
+        real = _real(target)
+        if real in read:
+            raise StringcheckError(f"{option} {target}: is the design file this run reads; give "
+                                   "another name (the design would be overwritten)")
+        if real in seen:
+            raise StringcheckError(f"{option} {target}: the same file as {seen[real]}; give each "
+                                   "output its own name")
+        seen[real] = option
+        try:
+            _writable(target)
+        except StringcheckError as error:
+            raise StringcheckError(f"{option} {error}") from None
+
+
+def write_text_atomic(path: str | Path, text: str) -> None:
+    """Write ``text`` to ``path`` atomically ("-" writes to standard output).
+
+    See :func:`write_files_atomic`.
+    """
+    write_files_atomic([(path, text)])
+
+
+def write_files_atomic(files: Sequence[tuple[str | Path, str]]) -> None:
+    """Write each ``(path, text)``: all to temporary files first, then each renamed over its target.
+
+    A failure or an interrupt before the renames leaves every existing target as it was and removes
+    every temporary file; a target is only ever replaced by a complete new file. A symbolic link is
+    followed (its target is replaced, the link kept); an existing file keeps its permissions; a
+    target that is not a regular file (``/dev/null``, a pipe) is written in place. ``"-"`` writes to
+    standard output, after the files.
+
+    Raises
+    ------
+    StringcheckError
+        When a folder does not exist or cannot be written, or a target is a folder.
+    """
+    staged: list[tuple[str, Path]] = []
+    in_place: list[tuple[Path, str]] = []
+    to_stdout: list[str] = []
+    try:
+        for path, text in files:
+            if str(path) == "-":
+                to_stdout.append(text)
+                continue
+            target = _writable(Path(path))
+            if target.exists() and not target.is_file():
+                in_place.append((target, text))
+                continue
+            staged.append((_stage(target, text), target))
+        for temporary, target in staged:
+            os.replace(temporary, target)
+    except BaseException:
+        for temporary, _ in staged:
+            try:
+                os.unlink(temporary)
+            except OSError:
+                pass  # renamed already, or never made
+        raise
+    for target, text in in_place:
+        try:
+            with open(target, "w", encoding="utf-8", newline="") as stream:
+                stream.write(text)
+        except OSError as error:
+            raise StringcheckError(f"{target}: cannot be written ({error.strerror})") from None
+    for text in to_stdout:
         sys.stdout.write(text)
         sys.stdout.flush()
-        return
-    target = Path(path)
-    folder = target.parent if str(target.parent) else Path(".")
-    if not folder.is_dir():
-        raise StringcheckError(f"{target}: the folder {folder} does not exist")
-    if target.is_dir():
-        raise StringcheckError(f"{target}: is a folder; give a file name")
+
+
+def _real(path: Path) -> str:
+    """The path with symbolic links resolved, for comparing two names of one file."""
+    return os.path.realpath(path)
+
+
+def _writable(target: Path) -> Path:
+    """The file to write for ``target`` (links followed), after checking that it can be written."""
     try:
-        handle, temporary = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+        real = Path(_real(target))
+        folder = real.parent
+        if real.is_dir():
+            raise StringcheckError(f"{target}: is a folder; give a file name")
+        if real.exists() and not real.is_file():  # a device or a pipe: written in place
+            if not os.access(real, os.W_OK):
+                raise StringcheckError(f"{target}: cannot be written (permission denied)")
+            return real
+        if not folder.is_dir():
+            shown = target.parent if str(target.parent) else Path(".")
+            raise StringcheckError(f"{target}: the folder {shown} does not exist")
+        if not os.access(folder, os.W_OK):
+            raise StringcheckError(f"{target}: the folder {folder} cannot be written (permission "
+                                   "denied)")
     except OSError as error:
-        raise StringcheckError(f"{target}: cannot write in {folder} ({error.strerror})") from None
+        raise StringcheckError(f"{target}: cannot be written ({error.strerror})") from None
+    return real
+
+
+def _stage(target: Path, text: str) -> str:
+    """Write ``text`` to a new temporary file beside ``target``; return its path."""
+    try:
+        mode = stat.S_IMODE(target.stat().st_mode)
+    except OSError:
+        mode = 0o666 & ~_umask()  # what a newly created file would get
+    try:
+        handle, temporary = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp",
+                                             dir=target.parent)
+    except OSError as error:
+        raise StringcheckError(f"{target}: cannot write in {target.parent} "
+                               f"({error.strerror})") from None
     try:
         with os.fdopen(handle, "w", encoding="utf-8", newline="") as stream:
+            os.fchmod(stream.fileno(), mode)
             stream.write(text)
             stream.flush()
             os.fsync(stream.fileno())
-        os.replace(temporary, target)
-    except BaseException:
+    except BaseException as error:
         try:
             os.unlink(temporary)
         except OSError:
             pass
+        if isinstance(error, OSError):
+            raise StringcheckError(f"{target}: cannot be written ({error.strerror})") from None
         raise
+    return temporary
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def json_text(data: dict[str, Any]) -> str:
