@@ -1062,16 +1062,11 @@ def test_fuzz_random_bytes_load_or_raise_the_packages_error(fuzz_folder, data):
     assert isinstance(design, Design)
 
 
-# --- bugs found outside this issue's files (strict xfail: they pass once fixed) --------------------
+# --- bugs found outside this issue's files by the fuzzing (fixed) -----------------------------------
 
 _STALLED = dict(reference_voltage=1000.0, voltage_exponent=0.01)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "solvers.series_static._iterate marks a row converged when its Newton step stalls below the "
-    "resolution of I ('stalled'), whatever the residual: with no grading resistor and m = 0.01 "
-    "(V ~ I^100) it returns converged=True for stage voltages [1e3, 1e303] V on a 1 kV string. "
-    "The docstring promises converged=False where V ~ I^(1/m) leaves the range of a double."))
 def test_static_solver_never_calls_a_wrong_answer_converged():
     # Two stages without resistors, leakage 125 nA and 0.125 nA at 1 kV, m = 0.01; our own values,
     # found by the fuzzing of wide value ranges. Kirchhoff: the stage voltages sum to V_s.
@@ -1102,12 +1097,6 @@ leakage_voltage_exponent = 0.01
 
 
 @pytest.mark.filterwarnings("ignore::RuntimeWarning")  # the overflow this bug causes
-@pytest.mark.xfail(strict=True, reason=(
-    "studies.check trusts the static solver's converged flag: the stalled rows above are counted as "
-    "solved (unsolved = 0) and position 2 of a 1 kV string is reported at a mean of 1e303 V, "
-    "instead of the trial being counted as unsolved (README: 'a trial the solver could not solve "
-    "(counted and reported, never dropped)'). The verdict is still 'fail', so it is not silently "
-    "safe, but the figures are not finite."))
 def test_check_counts_a_trial_the_static_solver_could_not_solve():
     result = check_study.run_check(parse_design_text(_STALLED_DESIGN), trials=3, seed=1)
     static = result.checks["static"]
