@@ -993,13 +993,14 @@ def corrupted_designs(draw) -> dict[str, Any]:
         if action == "delete":
             del parent[key]
         elif action == "value":
-            parent[key] = draw(st.sampled_from(BAD_VALUES))
+            # A copy: a shared list or table would carry one example's edits into the next.
+            parent[key] = copy.deepcopy(draw(st.sampled_from(BAD_VALUES)))
         elif isinstance(parent, dict):
             new_key = _typo(str(key), draw)
             if action == "rename" and new_key not in parent:
                 parent[new_key] = parent.pop(key)
             else:
-                parent[new_key + "_extra"] = parent[key]
+                parent[new_key + "_extra"] = copy.deepcopy(parent[key])
     return design
 
 
