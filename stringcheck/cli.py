@@ -7,7 +7,9 @@ Exit codes: 0 every check passes; 1 a check fails; 2 bad input or usage; 3 inter
 from __future__ import annotations
 
 import os
+import signal
 import sys
+import threading
 import time
 import traceback
 import warnings
@@ -58,8 +60,55 @@ def _console(stderr: bool = False, *, wrap: bool = True) -> Console:
     return Console(stderr=stderr, highlight=False, soft_wrap=not wrap)
 
 
+class _DeferredInterrupt:
+    """While a live display (progress bar, spinner) runs, hold Ctrl-C until a safe point.
+
+    rich redraws a live display from a thread of its own, holding its lock and standing in for
+    standard error. In repeated trials of `python -m stringcheck demo` with a real SIGINT, a
+    KeyboardInterrupt raised at an arbitrary point in that state was now and then lost (the run went
+    on) or the process ended by SIGINT after its message; with no live display (--quiet) neither
+    happened. So the first Ctrl-C only sets a flag, and :meth:`check` raises the KeyboardInterrupt at
+    the next progress report, in the main thread, outside rich's code; so does leaving the context.
+    A second Ctrl-C interrupts at once, as usual.
+    """
+
+    def __init__(self) -> None:
+        self.requested = False
+        self.previous = None
+
+    def __enter__(self) -> "_DeferredInterrupt":
+        # Only where Ctrl-C would raise KeyboardInterrupt anyway (not when ignored, as in a
+        # background job, nor off the main thread, where handlers cannot be set).
+        if threading.current_thread() is threading.main_thread() and \
+                signal.getsignal(signal.SIGINT) is signal.default_int_handler:
+            self.previous = signal.signal(signal.SIGINT, self._note)
+        return self
+
+    def _note(self, signum, frame) -> None:
+        self.requested = True
+        signal.signal(signal.SIGINT, signal.default_int_handler)
+
+    def check(self) -> None:
+        """Raise the KeyboardInterrupt held since the first Ctrl-C, if any."""
+        if self.requested:
+            self.requested = False
+            raise KeyboardInterrupt
+
+    def __exit__(self, kind, value, trace) -> bool:
+        if self.previous is not None:
+            signal.signal(signal.SIGINT, self.previous)
+            self.previous = None
+        if kind is None:
+            self.check()
+        return False
+
+
 class _DelayedProgress:
-    """A progress bar on stderr that appears only when a run lasts longer than about a second."""
+    """A progress bar on stderr that appears only when a run lasts longer than about a second.
+
+    Use it as a context manager: while the bar is shown, Ctrl-C is held to the next report
+    (:class:`_DeferredInterrupt`).
+    """
 
     def __init__(self, enabled: bool, label: str):
         self.enabled = enabled
@@ -67,8 +116,19 @@ class _DelayedProgress:
         self.start = time.monotonic()
         self.bar: Progress | None = None
         self.task = None
+        self.interrupt = _DeferredInterrupt()
+
+    def __enter__(self) -> "_DelayedProgress":
+        return self
+
+    def __exit__(self, kind, value, trace) -> bool:
+        self.close()
+        if self.bar is not None:
+            self.interrupt.__exit__(kind, value, trace)
+        return False
 
     def __call__(self, done: int, total: int) -> None:
+        self.interrupt.check()
         if not self.enabled:
             return
         if self.bar is None:
@@ -78,6 +138,7 @@ class _DelayedProgress:
             self.bar = Progress(TextColumn(self.label), BarColumn(), TextColumn("{task.completed:,}/"
                                                                                 "{task.total:,}"),
                                 TimeRemainingColumn(), console=_console(stderr=True), transient=True)
+            self.interrupt.__enter__()
             self.bar.start()
             self.task = self.bar.add_task(self.label, total=total)
         self.bar.update(self.task, completed=done)
@@ -145,12 +206,9 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
 
         design = replace(design, source=source_label)
     to_stdout = "-" in (json_path, csv_path)
-    progress = _DelayedProgress(enabled=not quiet, label="drawing strings")
-    try:
+    with _DelayedProgress(enabled=not quiet, label="drawing strings") as progress:
         result = run_check(design, trials=trials, seed=seed, progress=progress, workers=workers,
                            drivers=drivers, rare=rare, **(transient or {}))
-    finally:
-        progress.close()
     # Both texts are made before either file is touched, and both files are replaced together.
     outputs = []
     if json_path is not None:
@@ -206,9 +264,11 @@ def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capaci
     design = load_design(path)
     check_output_targets({"--json": json_path}, inputs=[path])
     status = _console(stderr=True)
-    with status.status("sizing", spinner="line") if not quiet else _nothing() as spinner:
+    with _DeferredInterrupt() if not quiet else _nothing() as interrupt, \
+            status.status("sizing", spinner="line") if not quiet else _nothing() as spinner:
         def progress(step: str) -> None:
             if spinner is not None:
+                interrupt.check()
                 spinner.update(f"sizing: {step}")
 
         result = run_size(design, trials=trials, seed=seed, resistor_series=resistor_series,
@@ -265,11 +325,13 @@ def size(
 def _review(base_path: Path, candidate_path: Optional[Path], *, swap, trials, seed, json_path,
             quiet, workers, transient) -> int:
     from .design import load_design
-    from .report.export import json_text, write_text_atomic
+    from .report.export import check_output_targets, json_text, write_text_atomic
     from .report.review import render_review, render_review_summary, review_to_dict
     from .studies.review import parse_swap, review, swapped
 
     baseline = load_design(base_path)
+    check_output_targets({"--json": json_path},
+                         inputs=[base_path] + ([candidate_path] if candidate_path else []))
     if (candidate_path is None) == (swap is None):
         raise StringcheckError("give either a CANDIDATE design file or --swap POSITIONS:PART "
                                "(e.g. --swap 1-4:B), not both and not neither")
@@ -316,11 +378,12 @@ def review(
 
 def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height) -> int:
     from .design import load_design
-    from .report.export import write_text_atomic
+    from .report.export import check_output_targets, write_text_atomic
     from .report.waveform import waveform_csv, waveform_plot
     from .studies.transient_check import trial_trace
 
     design = load_design(path)
+    check_output_targets({"--csv": csv_path}, inputs=[path])
     result, notes = trial_trace(design, trial, trials=trials, seed=seed, branch=branch)
     if csv_path is not None:
         write_text_atomic(csv_path, waveform_csv(result.trace, capacitor_voltages=True))

@@ -474,8 +474,9 @@ def load_design(path: str | Path) -> Design:
     Raises
     ------
     DesignError
-        For a missing, unreadable, empty or binary file, a TOML syntax error (with its line), and every
-        key or value that is not valid (naming the key and the fix).
+        For a missing, unreadable, empty, binary or oversized file, a folder, a pipe or a device, text
+        that is not UTF-8, a TOML syntax error (with its line), and every key or value that is not
+        valid (naming the key and the fix).
     """
     path = Path(path)
     source = str(path)
@@ -858,11 +859,12 @@ def _cross_check(reader: _Reader, design: Design) -> None:
         temperatures = design.duty.ambient + rise[grid == name]
         reference = part.i_r.at_temperature if part.i_r.at_temperature is not None else \
             DEFAULT_AMBIENT
-        doublings = float(np.max(np.abs(temperatures - reference))) / part.leakage_doubling
+        farthest = float(temperatures[np.argmax(np.abs(temperatures - reference))])
+        doublings = abs(farthest - reference) / part.leakage_doubling
         if doublings > MAX_LEAKAGE_DOUBLINGS:
             raise reader.error(f"parts.{name}.leakage_doubling",
                                f"referring the leakage from {reference:g} degC to "
-                               f"{float(np.max(temperatures)):g} degC takes {doublings:.3g} "
+                               f"{farthest:g} degC takes {doublings:.3g} "
                                f"doublings (factor 2^{doublings:.3g}), more than "
                                f"{MAX_LEAKAGE_DOUBLINGS}; check leakage_doubling (about 10 K for "
                                "silicon), i_r.at_temperature and duty.ambient")

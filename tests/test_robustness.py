@@ -20,11 +20,16 @@ import math
 import os
 import pathlib
 import re
+import signal
 import stat
+import subprocess
+import sys
 import tempfile
+import time
 import warnings
 from typing import Any
 
+import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -33,10 +38,12 @@ from typer.testing import CliRunner
 import stringcheck.cli as cli
 import stringcheck.report.export as export
 import stringcheck.studies.check as check_study
+import stringcheck.studies.size as size_study  # imported before any test patches run_check
 from stringcheck.cli import app
-from stringcheck.design import Design, load_design, parse_design_text
+from stringcheck.design import Design, Spread, load_design, parse_design_text
 from stringcheck.errors import DesignError, StringcheckError
 from stringcheck.presets import PRESET_NAMES
+from stringcheck.sampling import spread_quantile
 from stringcheck.solvers.series_static import solve_static_sharing
 
 runner = CliRunner()
@@ -425,7 +432,7 @@ def no_study(monkeypatch):
         raise AssertionError("the study ran although an output could not be written")
 
     monkeypatch.setattr(check_study, "run_check", forbidden)
-    monkeypatch.setattr("stringcheck.studies.size.size", forbidden)
+    monkeypatch.setattr(size_study, "size", forbidden)
 
 
 @pytest.mark.parametrize(("options", "fragments"), [
@@ -544,6 +551,76 @@ def test_an_interrupted_run_exits_130_and_leaves_no_file(tmp_path, monkeypatch):
     assert result.exit_code == 130, result.output
     assert "interrupted" in result.stderr
     assert [p.name for p in tmp_path.iterdir()] == ["stack.toml"]
+
+
+def test_ctrl_c_under_a_live_display_is_held_to_the_next_report():
+    # cli._DeferredInterrupt: the first SIGINT only sets a flag (rich's redraw thread must not be cut
+    # at an arbitrary point), check() raises it, a second SIGINT raises at once, and the handler of
+    # before is back afterwards.
+    before = signal.getsignal(signal.SIGINT)
+    with pytest.raises(KeyboardInterrupt):
+        with cli._DeferredInterrupt() as interrupt:
+            os.kill(os.getpid(), signal.SIGINT)
+            time.sleep(0.01)  # the handler has run by now, and raised nothing
+            assert interrupt.requested
+            interrupt.check()
+    assert signal.getsignal(signal.SIGINT) is before
+    with pytest.raises(KeyboardInterrupt):
+        with cli._DeferredInterrupt():
+            os.kill(os.getpid(), signal.SIGINT)
+            time.sleep(0.01)
+        # leaving the context raises the interrupt still held
+    with pytest.raises(KeyboardInterrupt):
+        with cli._DeferredInterrupt():
+            os.kill(os.getpid(), signal.SIGINT)
+            time.sleep(0.01)
+            os.kill(os.getpid(), signal.SIGINT)  # the second one is not held
+            time.sleep(1.0)
+            raise AssertionError("the second Ctrl-C was held too")
+    assert signal.getsignal(signal.SIGINT) is before
+
+
+def _wait_for_library(pid: int, name: str, timeout: float = 60.0) -> None:
+    """Wait until process ``pid`` has mapped a shared library whose path holds ``name`` (Linux)."""
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline:
+        if name in pathlib.Path(f"/proc/{pid}/maps").read_text():
+            return
+        time.sleep(0.05)
+    raise AssertionError(f"process {pid} never loaded {name}")
+
+
+@pytest.mark.skipif(not pathlib.Path("/proc/self/maps").exists(), reason="needs Linux /proc")
+def test_ctrl_c_of_the_real_command_exits_130_and_keeps_the_old_output(tmp_path):
+    # The same through the console entry point and a real SIGINT, not a simulated one.
+    old = tmp_path / "keep.json"
+    old.write_bytes(OLD_JSON)
+    environment = dict(os.environ, PYTHONPATH=os.pathsep.join(
+        [str(pathlib.Path(cli.__file__).parents[1]), os.environ.get("PYTHONPATH", "")]))
+    process = subprocess.Popen(
+        [sys.executable, "-m", "stringcheck", "demo", "--trials", "10000000", "--json", str(old),
+         "--csv", str(tmp_path / "new.csv")], cwd=tmp_path, env=environment,
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+        # A shell without job control starts background jobs with SIGINT ignored; undo that.
+        preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
+    try:
+        # scipy is first imported inside the command's own error handling (cli._run imports the
+        # study), so from then on Ctrl-C is the command's to handle; half a second more is well into
+        # the run (10 million trials take minutes). numpy's bundled BLAS is named after scipy too,
+        # hence the folder.
+        _wait_for_library(process.pid, f"{os.sep}scipy{os.sep}")
+        time.sleep(0.5)
+        process.send_signal(signal.SIGINT)
+        stdout, stderr = process.communicate(timeout=60)
+    finally:
+        process.kill()
+    # A shell reports both as 130: the exit code 130, or death by SIGINT (128 + 2). The second was
+    # seen about once in 50 runs with the progress bar shown, after the command's own message; its
+    # cause is not found (cli._DeferredInterrupt made it rarer).
+    assert process.returncode in (130, -signal.SIGINT), stderr
+    assert stdout == "" and "interrupted" in stderr and "Traceback" not in stderr
+    assert old.read_bytes() == OLD_JSON
+    assert [p.name for p in tmp_path.iterdir()] == ["keep.json"]
 
 
 def test_writer_interrupted_between_temporary_write_and_rename_removes_the_temporary(
@@ -918,13 +995,14 @@ def corrupted_designs(draw) -> dict[str, Any]:
         if action == "delete":
             del parent[key]
         elif action == "value":
-            parent[key] = draw(st.sampled_from(BAD_VALUES))
+            # A copy: a shared list or table would carry one example's edits into the next.
+            parent[key] = copy.deepcopy(draw(st.sampled_from(BAD_VALUES)))
         elif isinstance(parent, dict):
             new_key = _typo(str(key), draw)
             if action == "rename" and new_key not in parent:
                 parent[new_key] = parent.pop(key)
             else:
-                parent[new_key + "_extra"] = parent[key]
+                parent[new_key + "_extra"] = copy.deepcopy(parent[key])
     return design
 
 
@@ -1102,3 +1180,14 @@ def test_check_counts_a_trial_the_static_solver_could_not_solve():
     static = result.checks["static"]
     assert static.unsolved == 3 or sum(p.mean_voltage for p in static.positions) == \
         pytest.approx(1000.0, rel=1e-9), [p.mean_voltage for p in static.positions]
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "sampling.spread_quantile with screened=True lets a normal draw leave its datasheet limit by "
+    "rounding: typ 1, max 2, sigma_at_limit 5.09375, latent 9 gives 2.000000000004479, above the max "
+    "by 4.5e-12 relative; tests/test_sampling.py::test_screened_draws_never_leave_the_limits allows "
+    "1e-12 and so fails now and then under a random hypothesis seed (found while running the suite)"))
+def test_screened_normal_draw_stays_within_its_limit():
+    drawn = spread_quantile(Spread(typ=1.0, high=2.0), np.array([9.0]), lognormal=False,
+                            sigma_at_limit=5.09375, screened=True)
+    assert drawn[0] <= 2.0 * (1 + 1e-12), repr(drawn[0])
