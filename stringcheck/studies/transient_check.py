@@ -121,7 +121,6 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
     selected = np.union1d(worst_set, sample_set)
 
     layout = design.string
-    duty = design.duty
     grid = layout.part_grid()
     limits = layout.derating * np.array([[design.parts[p].v_rrm for p in row] for row in grid])
     inductance, forward, notes = _loop(design, fits)

@@ -38,7 +38,7 @@ tempco_r_t = "{tr}"
 leakage_voltage_exponent = 0
 {extra}
 """
-    branch_b = "" if parallel < 2 else f"""
+    branch_b = "" if parallel < 2 else """
 [[string.position]]
 index = 1
 branch = 2

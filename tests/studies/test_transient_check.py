@@ -5,7 +5,6 @@ from __future__ import annotations
 import json
 from importlib import resources
 
-import pytest
 
 from stringcheck.design import parse_design_text
 from stringcheck.report.export import json_text, result_to_dict
