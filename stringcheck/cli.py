@@ -472,9 +472,27 @@ def new(
     _run(action, debug)
 
 
-def main() -> None:
-    """Console-script entry point."""
+def _usage_error_type() -> type[Exception]:
+    """The usage-error class of the click that typer runs on (vendored by recent typer)."""
     try:
-        app()
+        from typer._click.exceptions import UsageError
+    except ImportError:  # typer releases that depend on the click package
+        from click.exceptions import UsageError
+    return UsageError
+
+
+def main() -> None:
+    """Console-script entry point: a usage error is one line on stderr and exit code 2."""
+    usage_error = _usage_error_type()
+    try:
+        code = app(standalone_mode=False)
+    except usage_error as error:
+        if type(error).__name__ == "NoArgsIsHelpError":  # bare `stringcheck`: help was shown
+            sys.exit(EXIT_INPUT)
+        where = error.ctx.command_path if error.ctx is not None else "stringcheck"
+        print(f"error: {' '.join(error.format_message().split())} (see '{where} --help')",
+              file=sys.stderr)
+        sys.exit(EXIT_INPUT)
     except KeyboardInterrupt:  # pragma: no cover - interrupt outside a command
         sys.exit(EXIT_INTERRUPTED)
+    sys.exit(code if isinstance(code, int) else EXIT_PASS)

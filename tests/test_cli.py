@@ -485,3 +485,22 @@ def test_report_says_how_many_trials_a_ten_percent_estimate_needs(tmp_path, half
     p = count / 2000
     assert f"{int(np.ceil((1 - p) / (p * 0.01))):,} trials" in text
 
+
+
+@pytest.mark.parametrize("args,fragment", [
+    (["check", "--bogus", "x"], "No such option: --bogus"),
+    (["chek"], "No such command 'chek'"),
+    (["check"], "Missing argument 'file'"),
+    (["check", "--trials", "abc", "x.toml"], "--trials"),
+])
+def test_usage_errors_of_the_installed_command_are_one_line(args, fragment):
+    # The console entry point (cli.main), not CliRunner: usage errors are one line, exit 2.
+    import subprocess
+    import sys
+
+    done = subprocess.run([sys.executable, "-m", "stringcheck", *args], capture_output=True,
+                          text=True, timeout=60)
+    assert done.returncode == 2, done.stderr
+    lines = done.stderr.strip().splitlines()
+    assert len(lines) == 1 and fragment in lines[0], done.stderr
+    assert "Traceback" not in done.stderr and done.stdout == ""
