@@ -217,11 +217,8 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
         outputs.append((csv_path, positions_csv(result)))
     write_files_atomic(outputs)
     # With machine output on standard output, the report goes to stderr so the two never mix.
-    console = _console(stderr=to_stdout, wrap=not quiet)
-    if quiet:
-        render_check_summary(result, console)
-    else:
-        render_check(result, console)
+    _print_report(result, quiet=quiet, stderr=to_stdout, full=render_check,
+                  summary=render_check_summary)
     return EXIT_PASS if result.verdict == "pass" else EXIT_FAIL
 
 
@@ -340,19 +337,20 @@ def _review(base_path: Path, candidate_path: Optional[Path], *, swap, trials, se
     else:
         positions, part = parse_swap(swap, baseline)
         candidate = swapped(baseline, positions, part)
-    status = _console(stderr=True)
-    with status.status("checking baseline and candidate", spinner="line") if not quiet \
-            else _nothing():
+    with _DelayedProgress(enabled=not quiet, label="baseline, then candidate") as progress:
         result = review(baseline, candidate, trials=trials, seed=seed, workers=workers,
-                        transient=transient)
+                        transient=transient, progress=progress)
     if json_path is not None:
         write_text_atomic(json_path, json_text(review_to_dict(result)))
-    console = _console(stderr=json_path == "-", wrap=not quiet)
-    if quiet:
-        render_review_summary(result, console)
-    else:
-        render_review(result, console)
+    _print_report(result, quiet=quiet, stderr=json_path == "-", full=render_review,
+                  summary=render_review_summary)
     return EXIT_PASS if result.verdict == "accept" else EXIT_FAIL
+
+
+def _print_report(result, *, quiet: bool, stderr: bool, full, summary) -> None:
+    """The report, or its one line with --quiet; on stderr when machine output is on stdout."""
+    console = _console(stderr=stderr, wrap=not quiet)
+    (summary if quiet else full)(result, console)
 
 
 @app.command()

@@ -125,8 +125,10 @@ def _ranges(positions: tuple[int, ...]) -> str:
 
 
 def review(baseline: Design, candidate: Design, *, trials: int | None = None,
-           seed: int | None = None, workers: int = 1, transient: bool = False) -> ReviewResult:
-    """Check both designs on common random numbers and compare them."""
+           seed: int | None = None, workers: int = 1, transient: bool = False,
+           progress=None) -> ReviewResult:
+    """Check both designs on common random numbers and compare them (``progress`` is passed on
+    to both checks)."""
     if (baseline.string.series, baseline.string.parallel) != \
             (candidate.string.series, candidate.string.parallel):
         raise StringcheckError(
@@ -136,8 +138,10 @@ def review(baseline: Design, candidate: Design, *, trials: int | None = None,
     trials = baseline.monte_carlo.trials if trials is None else trials
     seed = baseline.monte_carlo.seed if seed is None else seed
     with worker_pool(workers) as pool:
-        base = run_check(baseline, trials=trials, seed=seed, pool=pool, transient=transient)
-        cand = run_check(candidate, trials=trials, seed=seed, pool=pool, transient=transient)
+        base = run_check(baseline, trials=trials, seed=seed, pool=pool, transient=transient,
+                         progress=progress)
+        cand = run_check(candidate, trials=trials, seed=seed, pool=pool, transient=transient,
+                         progress=progress)
     tolerance = baseline.review.tolerance
     changes = []
     for name, base_check in base.checks.items():
