@@ -507,14 +507,29 @@ def _with_recovery_charge(design: Design) -> Design:
 
 
 def _impossibility(design: Design, limits: np.ndarray) -> str | None:
+    """Why no built string can pass whatever is drawn (with the arithmetic), or None."""
+    layout = design.string
+    reasons = []
     capacity = limits.sum(axis=1)
     weakest = float(capacity.min())
     if design.duty.reverse_voltage > weakest:
-        layout = design.string
-        return (f"the string cannot hold {design.duty.reverse_voltage:g} V even with perfect "
-                f"sharing: the sum of derating x V_RRM over the {layout.series} devices of a branch "
-                f"is {weakest:g} V (derating {layout.derating:g})")
-    return None
+        reasons.append(
+            f"the string cannot hold {design.duty.reverse_voltage:g} V even with perfect "
+            f"sharing: the sum of derating x V_RRM over the {layout.series} devices of a branch "
+            f"is {weakest:g} V (derating {layout.derating:g})")
+    grid = layout.part_grid()
+    ratings = [[design.parts[name].i_fav for name in row] for row in grid]
+    current = design.duty.forward_current
+    if current is not None and all(r is not None for row in ratings for r in row):
+        # A branch carries no more than its weakest device's I_F(AV); perfect sharing at best
+        # brings every branch to that limit at once.
+        group = sum(min(row) for row in ratings)
+        if current > group:
+            reasons.append(
+                f"the group cannot carry {current:g} A average even with perfect sharing: the "
+                f"{layout.parallel} branch(es) together are rated {group:g} A (the sum over the "
+                "branches of the weakest device's i_fav)")
+    return "; ".join(reasons) if reasons else None
 
 
 def evaluate_strings(context: _ChunkContext, drawn: DrawnStrings, check: str) -> np.ndarray:

@@ -154,3 +154,10 @@ def test_forward_checks_skip_without_a_forward_current():
     for name in ("parallel", "thermal"):
         assert not result.checks[name].ran
         assert "forward_current" in result.checks[name].reason
+
+
+def test_a_group_that_cannot_carry_the_current_is_impossible():
+    # 2 branches x 20 A rated = 40 A at perfect sharing < 50 A asked: impossible, with the sum.
+    result = run_check(parse_design_text(design(current="50 A", thermal=False)), trials=200)
+    assert result.verdict == "fail"
+    assert "cannot carry 50 A" in result.impossible and "40 A" in result.impossible
