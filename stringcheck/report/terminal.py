@@ -68,9 +68,16 @@ def render_check(result: CheckResult, console: Console) -> None:
     console.print(Panel(heading, title="stringcheck check", title_align="left"))
 
     if result.verdict == "pass":
+        skipped = [name for name, check in result.checks.items() if not check.ran]
+        caveat = ""
+        if skipped:
+            caveat += f" Not checked: {', '.join(skipped)} (reasons below)."
+        if "transient" not in result.checks and result.checks["dynamic"].ran:
+            caveat += (" The turn-off was judged by charge balance only; --transient adds the "
+                       "overshoot of the stray inductance.")
         console.print(Text(" VERDICT: PASS ", style="bold black on green"),
-                      f"P(fail) is shown to be at most {result.target_p_fail:g} for every check, and "
-                      "every rating given holds.")
+                      f"P(fail) is shown to be at most {result.target_p_fail:g} for every check "
+                      "that ran, and every rating given holds." + caveat)
     else:
         console.print(Text(" VERDICT: FAIL ", style="bold white on red"), _fail_reason(result))
     if result.impossible:
