@@ -24,6 +24,7 @@ from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 from .errors import ImpossibleDesignError, StringcheckError
 
 EXIT_PASS, EXIT_FAIL, EXIT_INPUT, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
+EXIT_BROKEN_PIPE = 141  # 128 + SIGPIPE, what a shell reports for a writer whose reader left
 
 app = typer.Typer(
     add_completion=False,
@@ -174,6 +175,14 @@ def _run(action: Callable[[], int], debug: bool) -> None:
     except KeyboardInterrupt:
         _console(stderr=True).print("interrupted; no partial output file was left behind")
         code = EXIT_INTERRUPTED
+    except BrokenPipeError:
+        # The reader of standard output went away (`--json - | head`): not an error of ours.
+        # Point stdout at /dev/null so that the interpreter's final flush stays quiet.
+        try:
+            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        except (OSError, ValueError, AttributeError):  # stdout is no real file (e.g. in tests)
+            pass
+        code = EXIT_BROKEN_PIPE
     except Exception as error:  # the last guard: one line, and the way to the traceback
         if debug:
             traceback.print_exc()

@@ -504,3 +504,18 @@ def test_usage_errors_of_the_installed_command_are_one_line(args, fragment):
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and fragment in lines[0], done.stderr
     assert "Traceback" not in done.stderr and done.stdout == ""
+
+
+def test_a_reader_that_goes_away_is_not_an_internal_error(demo_file, monkeypatch):
+    # `--json - | head`: the pipe closes under us. Exit 141 (128 + SIGPIPE, the shell's code for
+    # it), no "internal error" and no traceback.
+    import stringcheck.report.export as export
+
+    def closed(*args, **kwargs):
+        raise BrokenPipeError(32, "Broken pipe")
+
+    monkeypatch.setattr(export, "write_files_atomic", closed)
+    result = invoke("check", str(demo_file), "--trials", "200", "--json", "-")
+    assert result.exit_code == 141, result.output
+    assert "internal error" not in result.output
+    assert_no_traceback(result)
