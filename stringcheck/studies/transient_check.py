@@ -30,7 +30,12 @@ from ..sampling import BLOCK_TRIALS, draw_strings
 from ..solvers.transient import simulate_turn_off
 from ..errors import StringcheckError
 from ..stats import FailureEstimate, failure_estimate
-from .recovery_conditions import InconsistentRecoveryData, missing_recovery_data, part_fits
+from .recovery_conditions import (
+    InconsistentRecoveryData,
+    PartFit,
+    missing_recovery_data,
+    part_fits,
+)
 
 # Stream of the random sample, apart from every stream of the draws (sampling.py uses < 3000 and
 # part streams from 2000 up; this one is ours alone).
@@ -99,19 +104,25 @@ def transient_reason(design: Design) -> str:
     return missing_recovery_data(design)
 
 
+def _fits_or_reason(design: Design) -> tuple[dict[str, PartFit], str]:
+    """Each part's fitted recovery model, or why the turn-off cannot be simulated."""
+    reason = transient_reason(design)
+    if reason:
+        return {}, reason
+    try:
+        return part_fits(design), ""
+    except InconsistentRecoveryData as error:
+        return {}, (f"parts.{error}: its typical q_rr, i_rm or t_rr and at_di_dt are not "
+                    "consistent with any recovery waveform (with t_rr: Q_rr <= di/dt t_rr^2 / 2; "
+                    "with i_rm: Q_rr > I_RM^2 / (2 di/dt)); check the datasheet values")
+
+
 def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, seed: int,
                   worst: int, sample: int, confidence: float, target: float) -> TransientCheck:
     """Simulate the worst ``worst`` charge-balance trials and a random ``sample`` of all trials."""
-    reason = transient_reason(design)
+    fits, reason = _fits_or_reason(design)
     if reason:
         return not_run(reason)
-    try:
-        fits = {name: (fit.transit_time, fit.test_current, fit.test_rate)
-                for name, fit in part_fits(design).items()}
-    except InconsistentRecoveryData as error:
-        return not_run(f"parts.{error}: its typical q_rr, i_rm or t_rr and at_di_dt are not "
-                       "consistent with any recovery waveform (with t_rr: Q_rr <= di/dt t_rr^2 / 2; "
-                       "with i_rm: Q_rr > I_RM^2 / (2 di/dt)); check the datasheet values")
     worst = min(worst, trials)
     sample = min(sample, trials)
     order = np.argsort(-np.nan_to_num(dynamic_ratios, nan=np.inf), kind="stable")
@@ -188,10 +199,11 @@ def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: i
             capacitance[where] = drawn.capacitance[rows]
     transit = np.empty(grid.shape)
     lifetime = np.empty(shape)
-    for name, (t_m, test_current, test_rate) in fits.items():
+    for name, fit in fits.items():
         mask = grid == name
-        transit[mask] = t_m
-        lifetime[:, mask] = lifetime_for_charge(charge[:, mask], t_m, test_current, test_rate)
+        transit[mask] = fit.transit_time
+        lifetime[:, mask] = lifetime_for_charge(charge[:, mask], fit.transit_time,
+                                                fit.test_current, fit.test_rate)
     junction = np.array([[design.parts[p].c_j for p in row] for row in grid])
     rows_shape = (selected.size * layout.parallel, layout.series)
     return {"lifetime": lifetime.reshape(rows_shape),
@@ -210,7 +222,7 @@ def _loop(design: Design, fits) -> tuple[float, float, tuple[str, ...]]:
         duty.reverse_voltage / duty.di_dt
     forward = duty.forward_current
     if forward is None:
-        forward = max(fit[1] for fit in fits.values())
+        forward = max(fit.test_current for fit in fits.values())
         notes.append(f"no duty.forward_current: each branch starts from the parts' test I_F "
                      f"({forward:g} A)")
     else:
@@ -229,7 +241,7 @@ def trial_trace(design: Design, trial: int, *, trials: int | None = None,
     ``stringcheck wave``. Returns (TurnOff with its trace, notes)."""
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
-    reason = transient_reason(design)
+    fits, reason = _fits_or_reason(design)
     if reason:
         raise StringcheckError(f"{design.source}: cannot simulate the turn-off: {reason}")
     if not 1 <= branch <= design.string.parallel:
@@ -237,12 +249,6 @@ def trial_trace(design: Design, trial: int, *, trials: int | None = None,
     if not 0 <= trial < trials:
         raise StringcheckError(f"--trial must be in 0..{trials - 1} (the run has {trials} trials),"
                                f" got {trial}")
-    try:
-        fits = {name: (fit.transit_time, fit.test_current, fit.test_rate)
-                for name, fit in part_fits(design).items()}
-    except InconsistentRecoveryData as error:
-        raise StringcheckError(f"{design.source}: parts.{error}: its recovery data fit no "
-                               "recovery waveform") from None
     inductance, forward, notes = _loop(design, fits)
     stage = _stage_rows(design, fits, np.array([trial]), trials, seed)
     row = slice(branch - 1, branch)
