@@ -11,9 +11,12 @@ list every assumption that was made on the user's behalf.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Mapping
+from typing import TYPE_CHECKING, Mapping
 
 import numpy as np
+
+if TYPE_CHECKING:
+    from .lots import MeasuredLot
 
 WAVEFORMS = ("dc", "half-sine", "square")
 HEATSINKS = ("shared", "separate")
@@ -105,6 +108,7 @@ class Part:
     tempco_v_t0: float
     tempco_r_t: float
     device_class: str | None = None
+    measured: "MeasuredLot | None" = None
 
     def spread(self, parameter: str) -> Spread | None:
         """The spread of ``parameter`` (one of SPREAD_PARAMETERS), or None if not given."""
@@ -126,12 +130,17 @@ class Duty:
 
 @dataclass(frozen=True)
 class PositionOverride:
-    """A ``[[string.position]]`` entry: 1-based ``index``; ``branch`` None means every branch."""
+    """A ``[[string.position]]`` entry: 1-based ``index``; ``branch`` None means every branch.
+
+    ``serial`` names one measured device of the position's part (its lot's serial column): that
+    device stands in the position in every trial.
+    """
 
     index: int
     branch: int | None
     part: str | None
     temperature_rise: float | None
+    serial: str | None = None
 
 
 @dataclass(frozen=True)
@@ -144,31 +153,33 @@ class StringLayout:
     part: str
     positions: tuple[PositionOverride, ...] = ()
 
-    def _ordered_positions(self) -> list[PositionOverride]:
-        """Overrides of every branch first, so that an override of one branch is never undone."""
-        return sorted(self.positions, key=lambda override: override.branch is not None)
+    def _grid(self, attribute: str, fill, dtype) -> np.ndarray:
+        """``attribute`` of the overrides over every device, ``fill`` where none sets it.
+
+        Overrides of every branch go first, so that an override of one branch is never undone.
+        """
+        grid = np.full((self.parallel, self.series), fill, dtype=dtype)
+        for override in sorted(self.positions, key=lambda entry: entry.branch is not None):
+            value = getattr(override, attribute)
+            if value is None:
+                continue
+            rows = range(self.parallel) if override.branch is None else [override.branch - 1]
+            for row in rows:
+                grid[row, override.index - 1] = value
+        return grid
 
     def part_grid(self) -> np.ndarray:
         """Part name of every device, shape (parallel, series), as an object array."""
-        grid = np.full((self.parallel, self.series), self.part, dtype=object)
-        for override in self._ordered_positions():
-            if override.part is None:
-                continue
-            rows = range(self.parallel) if override.branch is None else [override.branch - 1]
-            for row in rows:
-                grid[row, override.index - 1] = override.part
-        return grid
+        return self._grid("part", self.part, object)
+
+    def serial_grid(self) -> np.ndarray:
+        """Serial number of the measured device in every position (None where drawn from the
+        part), shape (parallel, series), as an object array."""
+        return self._grid("serial", None, object)
 
     def temperature_rise_grid(self) -> np.ndarray:
         """Temperature rise above ambient of every device [K], shape (parallel, series)."""
-        grid = np.zeros((self.parallel, self.series))
-        for override in self._ordered_positions():
-            if override.temperature_rise is None:
-                continue
-            rows = range(self.parallel) if override.branch is None else [override.branch - 1]
-            for row in rows:
-                grid[row, override.index - 1] = override.temperature_rise
-        return grid
+        return self._grid("temperature_rise", 0.0, float)
 
 
 @dataclass(frozen=True)

@@ -94,7 +94,7 @@ _SCHEMA_KEYS = {
     "duty": ("reverse_voltage", "forward_current", "waveform", "frequency", "di_dt", "ambient",
              "stray_inductance"),
     "string": ("series", "parallel", "derating", "part", "position"),
-    "position": ("index", "branch", "part", "temperature_rise"),
+    "position": ("index", "branch", "part", "temperature_rise", "serial"),
     "part": ("v_rrm", "i_fav", "i_r", "q_rr", "i_rm", "t_rr", "v_t0", "r_t", "c_j", "r_th_jc",
              "r_th_cs", "t_j_max", "leakage_doubling", "leakage_voltage_exponent", "tempco_v_t0",
              "tempco_r_t", "class", "measured", "fit"),
@@ -378,11 +378,6 @@ def _read_parts(reader: _Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
         if not isinstance(table, Mapping):
             raise reader.error(prefix, f"must be a table ([{prefix}])")
         reader.check_keys(table, _SCHEMA_KEYS["part"], prefix)
-        for unsupported in ("measured", "fit"):
-            if unsupported in table:
-                raise reader.error(_join(prefix, unsupported),
-                                   "measured lot data is not supported in this version; "
-                                   "give the datasheet spreads instead")
         merged: dict[str, Any] = {}
         device_class = reader.text(table, "class", prefix)
         if device_class is not None:
@@ -397,7 +392,7 @@ def _read_parts(reader: _Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
             if inherited:
                 reader.assumptions.append(
                     f"{prefix}: {', '.join(inherited)} taken from class '{device_class}'")
-        merged.update({k: v for k, v in table.items() if k != "class"})
+        merged.update({k: v for k, v in table.items() if k not in ("class", "measured", "fit")})
         scalars = {}
         for key, unit in _PART_SCALARS.items():
             default = _PART_DEFAULTS.get(key)
@@ -412,9 +407,50 @@ def _read_parts(reader: _Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
                                f"must lie in [0, 1] (0.5 for generation current), got {exponent:g}")
         spreads = {parameter: reader.spread(merged[parameter], parameter, prefix)
                    if parameter in merged else None for parameter in SPREAD_PARAMETERS}
+        lot = _read_lot(reader, table, spreads, prefix)
         spreads["i_r"] = _leakage_conditions(reader, spreads["i_r"], scalars["v_rrm"], prefix)
-        parts[name] = Part(name=name, device_class=device_class, **scalars, **spreads)
+        parts[name] = Part(name=name, device_class=device_class, measured=lot, **scalars,
+                           **spreads)
     return parts
+
+
+def _read_lot(reader: _Reader, table: Mapping[str, Any], spreads: dict[str, Spread | None],
+              prefix: str):
+    """The part's measured lot (``measured``, ``fit``), or None; fills in a spread for each
+    measured parameter the datasheet does not give (the lot's median, min and max), so that test
+    conditions and ratings have one home."""
+    from .lots import FITS, read_lot
+
+    fit = reader.text(table, "fit", prefix, choices=FITS)
+    path_text = reader.text(table, "measured", prefix)
+    if path_text is None:
+        if fit is not None:
+            raise reader.error(_join(prefix, "fit"), "says how to use a measured lot, but the part "
+                                                     "has none; add measured = \"lot.csv\" or "
+                                                     "remove fit")
+        return None
+    if not path_text.strip():
+        raise reader.error(_join(prefix, "measured"), "is empty; give the lot's CSV file, e.g. "
+                                                      "measured = \"lot42.csv\"")
+    path = Path(path_text)
+    if not path.is_absolute() and not reader.source.startswith("<"):
+        path = Path(reader.source).parent / path
+    lot = read_lot(path, key=_join(prefix, "measured"), design_source=reader.source,
+                   fit=fit or "resample", datasheet=spreads)
+    where = Path(path_text).name
+    if fit is None:
+        reader.assumptions.append(f"{prefix}: devices resampled from the measured lot {where} "
+                                  "(fit not given)")
+    for column in lot.columns:
+        if spreads[column.parameter] is None:
+            spreads[column.parameter] = Spread(typ=column.median,
+                                               low=None if column.low == column.high else column.low,
+                                               high=None if column.low == column.high else
+                                               column.high)
+            reader.assumptions.append(
+                f"{prefix}.{column.parameter}: no datasheet row; the measured lot's median, min and "
+                "max stand for it in the textbook bounds (test conditions as noted)")
+    return lot
 
 
 def _leakage_conditions(reader: _Reader, spread: Spread | None, v_rrm: float,
@@ -493,9 +529,19 @@ def _read_string(reader: _Reader, raw: Mapping[str, Any], parts: Mapping[str, Pa
             _check_part_name(reader, _join(prefix, "part"), part, parts)
         rise = reader.quantity(entry, "temperature_rise", KELVIN_DIFFERENCE, prefix,
                                non_negative=True)
+        serial = reader.text(entry, "serial", prefix)
+        if serial is not None:
+            serial = serial.strip()
+            if not serial:
+                raise reader.error(_join(prefix, "serial"), "is empty; give the serial number of "
+                                                            "the measured device, or remove it")
+            if branch == 0 and parallel > 1:
+                raise reader.error(_join(prefix, "serial"), f"names one device, but the entry "
+                                                            f"covers all {parallel} branches; "
+                                                            "add branch = N")
         # Two entries for the same place would leave one of them silently unused. An entry for every
         # branch (no branch key) and one for a single branch may stand together: the single branch's
-        # entry wins, whatever their order (StringLayout._ordered_positions).
+        # entry wins, whatever their order (StringLayout._grid).
         if (index, branch) in seen:
             where = f"index {index}" + (f", branch {branch}" if branch else " (every branch)")
             first = seen[index, branch]
@@ -503,7 +549,7 @@ def _read_string(reader: _Reader, raw: Mapping[str, Any], parts: Mapping[str, Pa
                                        "merge the two entries")
         seen[index, branch] = number
         positions.append(PositionOverride(index=index, branch=branch or None, part=part,
-                                          temperature_rise=rise))
+                                          temperature_rise=rise, serial=serial))
     return StringLayout(series=series, parallel=parallel, derating=derating, part=default_part,
                         positions=tuple(positions))
 
@@ -618,6 +664,7 @@ def _cross_check(reader: _Reader, design: Design) -> None:
                                                           "make them weaker") from None
     grid = design.string.part_grid()
     rise = design.string.temperature_rise_grid()
+    _check_serials(reader, design, grid)
     for name in design.parts_used():
         part = design.parts[name]
         if part.t_j_max is not None:
@@ -652,3 +699,45 @@ def _cross_check(reader: _Reader, design: Design) -> None:
                                f"at {extreme:g} degC the grading resistor would be {factor:.3g} x its "
                                f"nominal value (referred to {RESISTOR_TCR_REFERENCE:g} degC), not "
                                "positive; a TCR is usually given in ppm/K, e.g. \"100 ppm/K\"")
+
+
+def _check_serials(reader: _Reader, design: Design, grid: np.ndarray) -> None:
+    """Each serial names a device of its position's lot, once; a resampled lot covers the string."""
+    serials = design.string.serial_grid()
+    used: dict[tuple[str, str], tuple[int, int]] = {}
+    for override_number, override in enumerate(design.string.positions, start=1):
+        if override.serial is None:
+            continue
+        key = f"string.position[{override_number}].serial"
+        row = (override.branch or 1) - 1
+        name = grid[row, override.index - 1]
+        lot = design.parts[name].measured
+        if lot is None:
+            raise reader.error(key, f"position {override.index} holds part '{name}', which has no "
+                                    "measured lot; give that part measured = \"lot.csv\" with a "
+                                    "serial column")
+        if lot.serials is None:
+            raise reader.error(key, f"the lot of part '{name}' ({Path(lot.path).name}) has no "
+                                    "'serial' column; add one")
+        if lot.row_of(override.serial) is None:
+            raise reader.error(key, f"no device {override.serial!r} in the lot of part '{name}' "
+                                    f"({Path(lot.path).name}); check the serial number")
+        if (name, override.serial) in used:
+            branch, index = used[name, override.serial]
+            raise reader.error(key, f"device {override.serial!r} already stands in position "
+                                    f"{index} (branch {branch}); one device, one position")
+        used[name, override.serial] = (row + 1, override.index)
+    for name in design.parts_used():
+        lot = design.parts[name].measured
+        if lot is None or not lot.resampled:
+            continue
+        drawn = int(np.count_nonzero((grid == name) & (serials == None)))  # noqa: E711
+        pinned = int(np.count_nonzero((grid == name) & (serials != None)))  # noqa: E711
+        available = lot.devices - pinned
+        if drawn > available:
+            raise reader.error(f"parts.{name}.measured",
+                               f"the lot {Path(lot.path).name} holds {lot.devices} device(s)"
+                               + (f", {pinned} of them placed by serial," if pinned else "")
+                               + f" but the string draws {drawn} from it; a built string takes "
+                               "each device once: measure more devices, or use a fit "
+                               "(fit = \"auto\")")

@@ -25,7 +25,7 @@ parameter never changes the draws of the others.
 from __future__ import annotations
 
 import zlib
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Mapping
 
 import numpy as np
@@ -39,6 +39,10 @@ BLOCK_TRIALS = 4096
 _RESISTOR_STREAM = 1001
 _CAPACITOR_STREAM = 1002
 _LOT_STREAM_BASE = 2000
+# Which devices of a measured lot stand in a string: one stream per part, apart from its lot stream.
+_MEASURED_STREAM_BASE = 3_000_000
+# Uniforms generated at once when choosing devices from a measured lot (memory bound).
+_ROW_DRAW_VALUES = 4_000_000
 
 
 @dataclass(frozen=True)
@@ -161,8 +165,10 @@ def _part_stream_id(name: str) -> int:
     return _LOT_STREAM_BASE + zlib.crc32(name.encode("utf-8")) % 1_000_000
 
 
-def _normals(seed: int, first_trial: int, count: int, component: int, width: int) -> np.ndarray:
-    """Standard normals (count, width) for trials first_trial.. of one component, block by block."""
+def _block_draws(seed: int, first_trial: int, count: int, component: int, width: int,
+                 draw) -> np.ndarray:
+    """``draw(generator, rows)`` -> (rows, width) for trials first_trial.. of one component, block
+    by block."""
     rows = []
     trial = first_trial
     end = first_trial + count
@@ -172,10 +178,39 @@ def _normals(seed: int, first_trial: int, count: int, component: int, width: int
         generator = _stream(seed, block, component)
         # A block's draws are generated in order, so the first rows of a longer draw equal a shorter
         # one: the offset rows are generated and dropped only when a chunk starts inside a block.
-        values = generator.standard_normal((offset + take, width))
+        values = draw(generator, offset + take)
         rows.append(values[offset:])
         trial += take
     return np.concatenate(rows, axis=0) if rows else np.empty((0, width))
+
+
+def _normals(seed: int, first_trial: int, count: int, component: int, width: int) -> np.ndarray:
+    """Standard normals (count, width) for trials first_trial.. of one component, block by block."""
+    return _block_draws(seed, first_trial, count, component, width,
+                        lambda generator, rows: generator.standard_normal((rows, width)))
+
+
+def _lot_rows(seed: int, first_trial: int, count: int, component: int, devices: int,
+              take: int) -> np.ndarray:
+    """Indices (count, take) of ``take`` distinct devices out of ``devices`` per trial, in random
+    order: the ``take`` smallest of ``devices`` independent uniforms, ordered by value, are a
+    uniformly random ordered sample without replacement."""
+
+    def draw(generator: np.random.Generator, rows: int) -> np.ndarray:
+        out = np.empty((rows, take), dtype=np.int64)
+        step = max(1, _ROW_DRAW_VALUES // devices)
+        # Consecutive calls continue one stream, so the result does not depend on ``step``.
+        for start in range(0, rows, step):
+            uniforms = generator.random((min(step, rows - start), devices))
+            if take < devices:
+                chosen = np.argpartition(uniforms, take - 1, axis=1)[:, :take]
+            else:
+                chosen = np.broadcast_to(np.arange(devices), uniforms.shape)
+            order = np.argsort(np.take_along_axis(uniforms, chosen, axis=1), axis=1)
+            out[start:start + uniforms.shape[0]] = np.take_along_axis(chosen, order, axis=1)
+        return out
+
+    return _block_draws(seed, first_trial, count, component, take, draw).astype(np.int64)
 
 
 @dataclass(frozen=True)
@@ -184,20 +219,39 @@ class Latent:
 
     ``device``: per parameter, shape (trials, parallel, series); ``lot``: per part, shape
     (trials, len(SPREAD_PARAMETERS)) (empty without ``lot_share``); ``resistor`` and ``capacitor``:
-    (trials, parallel, series) or None. The Monte Carlo draws them from seeded streams; the rare-event
-    estimator chooses them itself.
+    (trials, parallel, series) or None; ``measured_rows``: per part resampled from a measured lot,
+    the lot rows of its drawn positions, (trials, positions). The Monte Carlo draws them from seeded
+    streams; the rare-event estimator chooses the normal values itself (and refuses resampled lots).
     """
 
     device: Mapping[str, np.ndarray]
     lot: Mapping[str, np.ndarray]
     resistor: np.ndarray | None
     capacitor: np.ndarray | None
+    measured_rows: Mapping[str, np.ndarray] = field(default_factory=dict)
 
 
 def latent_parameters(design: Design, parameters: tuple[str, ...]) -> tuple[str, ...]:
     """The device parameters whose latent values ``parameters`` need: all of them when the design
     correlates parameters (the copula mixes them in the order of SPREAD_PARAMETERS)."""
-    return SPREAD_PARAMETERS if _correlated(design) else tuple(parameters)
+    if _correlated(design):
+        return SPREAD_PARAMETERS
+    # A fitted lot's copula mixes all of its columns: draw them all, whichever were asked for.
+    fitted = {parameter for name in design.parts_used()
+              for parameter in _fitted_lot_parameters(design, name)}
+    return tuple(p for p in SPREAD_PARAMETERS if p in fitted or p in parameters)
+
+
+def _fitted_lot_parameters(design: Design, name: str) -> tuple[str, ...]:
+    lot = design.parts[name].measured
+    return lot.parameters if lot is not None and not lot.resampled else ()
+
+
+def _drawn_from_lot(design: Design, name: str) -> np.ndarray:
+    """Mask (parallel, series) of the positions of part ``name`` drawn from its lot (not placed by
+    serial number)."""
+    layout = design.string
+    return (layout.part_grid() == name) & np.equal(layout.serial_grid(), None)
 
 
 def _correlated(design: Design) -> bool:
@@ -226,7 +280,77 @@ def draw_latent(design: Design, parameters: tuple[str, ...], first_trial: int, c
         resistor = _normals(seed, first_trial, count, _RESISTOR_STREAM, devices).reshape(shape)
     if grading.capacitor is not None:
         capacitor = _normals(seed, first_trial, count, _CAPACITOR_STREAM, devices).reshape(shape)
-    return Latent(device=device, lot=lot, resistor=resistor, capacitor=capacitor)
+    rows = {}
+    for name in design.parts_used():
+        measured = design.parts[name].measured
+        if measured is not None and measured.resampled:
+            take = int(np.count_nonzero(_drawn_from_lot(design, name)))
+            if take:
+                rows[name] = _lot_rows(seed, first_trial, count, _measured_stream_id(name),
+                                       len(_lot_pool(design, name)), take)
+    return Latent(device=device, lot=lot, resistor=resistor, capacitor=capacitor,
+                  measured_rows=rows)
+
+
+def _measured_stream_id(name: str) -> int:
+    return _MEASURED_STREAM_BASE + zlib.crc32(name.encode("utf-8")) % 1_000_000
+
+
+def _lot_pool(design: Design, name: str) -> np.ndarray:
+    """Rows of part ``name``'s lot free to be drawn: those not placed by serial number."""
+    lot = design.parts[name].measured
+    layout = design.string
+    placed = {lot.row_of(serial) for serial, part in zip(layout.serial_grid().ravel(),
+                                                         layout.part_grid().ravel())
+              if serial is not None and part == name}
+    return np.array([row for row in range(lot.devices) if row not in placed], dtype=np.int64)
+
+
+def _apply_measured(design: Design, parameters: tuple[str, ...], latent: Latent,
+                    values: dict[str, np.ndarray], scores: dict[str, np.ndarray]) -> None:
+    """Put the devices of measured lots into ``values`` [SI] and their scores into ``scores``.
+
+    Resampled: the lot rows chosen per trial (``latent.measured_rows``). Fitted: the lot's Gaussian
+    copula on the independent device normals, through each column's fitted distribution. Placed by
+    serial: that device's row in every trial.
+    """
+    layout = design.string
+    grid = layout.part_grid()
+    serials = layout.serial_grid()
+    for name in design.parts_used():
+        lot = design.parts[name].measured
+        if lot is None:
+            continue
+        measured = [p for p in parameters if p in lot.parameters]
+        if not measured:
+            continue
+        drawn = _drawn_from_lot(design, name)
+        if np.any(drawn):
+            if lot.resampled:
+                if name not in latent.measured_rows:
+                    raise ValueError(f"part {name!r} is resampled from a measured lot: its rows "
+                                     "are not latent normal values")
+                rows = _lot_pool(design, name)[latent.measured_rows[name]]
+                for parameter in measured:
+                    column = lot.parameters.index(parameter)
+                    values[parameter][:, drawn] = lot.values[rows, column]
+                    scores[parameter][:, drawn] = lot.scores[rows, column]
+            else:
+                stacked = np.stack([latent.device[p][:, drawn] for p in lot.parameters], axis=-1)
+                correlated = stacked @ np.linalg.cholesky(lot.correlation).T
+                for parameter in measured:
+                    column = lot.parameters.index(parameter)
+                    values[parameter][:, drawn] = lot.columns[column].quantile(
+                        correlated[..., column])
+                    scores[parameter][:, drawn] = correlated[..., column]
+        for (branch, index), serial in np.ndenumerate(serials):
+            if serial is None or grid[branch, index] != name:
+                continue
+            row = lot.row_of(serial)
+            for parameter in measured:
+                column = lot.parameters.index(parameter)
+                values[parameter][:, branch, index] = lot.values[row, column]
+                scores[parameter][:, branch, index] = lot.scores[row, column]
 
 
 def strings_from_latent(design: Design, parameters: tuple[str, ...], latent: Latent,
@@ -269,6 +393,9 @@ def strings_from_latent(design: Design, parameters: tuple[str, ...], latent: Lat
                 lognormal=parameter in LOGNORMAL_PARAMETERS,
                 sigma_at_limit=monte_carlo.sigma_at_limit, screened=monte_carlo.screened)
         values[parameter] = out
+    if any(design.parts[name].measured is not None for name in used):
+        device_latent = {p: np.array(device_latent[p], dtype=float) for p in parameters}
+        _apply_measured(design, parameters, latent, values, device_latent)
 
     grading = design.grading
     resistance = capacitance = None

@@ -318,7 +318,7 @@ BAD_TEXT = [
     ("series ten", {"string": 'series = "ten"'}, "string.series", "whole number"),
     ("series 2.5", {"string": "series = 2.5"}, "string.series", "whole number"),
     ("measured", {"parts_A": BASE["parts.A"] + '\nmeasured = "x.csv"'}, "parts.A.measured",
-     "not supported"),
+     "no such lot file"),
     ("wrong unit", {"duty": 'reverse_voltage = "4 kA"'}, "duty.reverse_voltage", "not in V"),
     ("no unit", {"duty": 'reverse_voltage = "4000"'}, "duty.reverse_voltage", "no unit"),
     ("temperature for a difference",

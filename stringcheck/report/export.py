@@ -22,6 +22,7 @@ from ..studies.check import CheckResult, SeriesCheck
 from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
 from ..studies.transient_check import TransientCheck
+from .lots import lots_to_list
 from .check_sections import drivers_to_list, parallel_to_dict, thermal_to_dict, transient_to_dict
 
 if TYPE_CHECKING:
@@ -118,6 +119,7 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
             "advisories": list(grading.advisories),
         },
         "drivers": drivers_to_list(result.drivers),
+        "lots": lots_to_list(design),
         "assumptions": list(result.assumptions),
         "no_scatter": list(result.no_scatter),
         "cautions": safety_cautions(string_voltage=design.duty.reverse_voltage,

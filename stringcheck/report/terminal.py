@@ -16,6 +16,7 @@ from ..studies.check import CheckResult, SeriesCheck
 from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
 from ..studies.transient_check import TransientCheck
+from .lots import render_lots
 from .check_sections import render_drivers, render_parallel, render_thermal, render_transient, worst_value_text
 
 if TYPE_CHECKING:
@@ -126,6 +127,7 @@ def render_check(result: CheckResult, console: Console) -> None:
             _render_detail(name, check, console)
 
     render_drivers(result, console)
+    render_lots(design, console)
     _render_network(result, console)
 
     if result.assumptions:

@@ -37,7 +37,7 @@ from .forward_check import (
 from .transient_check import DEFAULT_WORST, run_transient
 from .transient_check import not_run as not_run_transient
 from .drivers import DRIVER_TRIALS, TOP_DRIVERS, Driver, chunk_features, label, rank_inputs
-from .drivers import tightened
+from .drivers import tightenable, tightened
 from .grading_summary import GradingSummary, grading_summary
 from .rare_events import DEFAULT_SAMPLES, RareEstimate, rare_event_estimate
 from .recovery_conditions import RecoveryRescaling, recovery_rescaling, rescale_charges
@@ -212,6 +212,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                           "the string voltage is undetermined without grading resistors (or run "
                           "`stringcheck size` to choose them)", source=design.source,
                           key="grading.resistor")
+    if rare:
+        _check_rare_inputs(design)
     if only is None or "dynamic" in only:
         design = _with_recovery_charge(design)
     layout = design.string
@@ -545,6 +547,17 @@ def evaluate_strings(context: _ChunkContext, drawn: DrawnStrings, check: str) ->
     return accumulator.worst_ratios[0]
 
 
+def _check_rare_inputs(design: Design) -> None:
+    """The importance sampler moves latent normal values; a resampled lot has none to move."""
+    for name in design.parts_used():
+        lot = design.parts[name].measured
+        if lot is not None and lot.resampled:
+            raise DesignError("is \"resample\" (or not given), but --rare shifts a continuous "
+                              "distribution, which a resampled lot does not have; set fit = "
+                              "\"auto\" (a fit to the lot) to use --rare",
+                              source=design.source, key=f"parts.{name}.fit")
+
+
 def _with_rare(check: SeriesCheck, context: _ChunkContext, seed: int, confidence: float,
                target: float, samples: int) -> SeriesCheck:
     parameters = ("i_r",) if check.name == "static" else ("q_rr",)
@@ -565,7 +578,7 @@ def _drivers(design: Design, checks, features: dict[str, list], ratios: dict[str
         ranked = rank_inputs(name, joined, np.concatenate(ratios[name]))
         for position, (driver, rho) in enumerate(ranked):
             p99 = upper = None
-            if position < TOP_DRIVERS:
+            if position < TOP_DRIVERS and tightenable(design, driver):
                 rerun = run_check(tightened(design, driver), trials=trials, seed=seed,
                                   only=(name,), pool=pool).checks[name]
                 p99, upper = rerun.p99_ratio, rerun.estimate.ci_high

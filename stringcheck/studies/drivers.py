@@ -80,6 +80,20 @@ def rank_inputs(check: str, features: dict[str, np.ndarray],
     return ranked
 
 
+def tightenable(design: Design, name: str) -> bool:
+    """Whether halving input ``name``'s spread changes the draws: not for a parameter that comes
+    only from measured lots (a measured device is what it is)."""
+    if name in ("resistor", "capacitor"):
+        return True
+    for part_name in design.parts_used():
+        part = design.parts[part_name]
+        spread = part.spread(name)
+        measured = part.measured is not None and name in part.measured.parameters
+        if spread is not None and not spread.fixed and not measured:
+            return True
+    return False
+
+
 def tightened(design: Design, name: str) -> Design:
     """The design with input ``name``'s spread halved (see the module docstring)."""
     if name == "resistor":

@@ -1,0 +1,385 @@
+"""Measured lots: one part's devices as measured, read from CSV, checked and fitted.
+
+A lot file has one row per device. Its columns are named after the part's spread parameters with the
+unit in square brackets (``i_r [uA]``, ``q_rr [nC]``, ``v_t0 [V]``, ``r_t [mOhm]``, ``i_rm [A]``,
+``t_rr [ns]``), and optionally ``serial`` (the device's serial number, text, unique). The Monte Carlo
+then takes each device of that part from the lot, either
+
+* ``fit = "resample"`` (default): whole rows drawn without replacement within one built string, so
+  the measured correlations between a device's parameters are kept exactly, and no device stands in
+  two positions of one string; or
+* ``fit = "lognormal"``, ``"normal"`` or ``"auto"`` (lognormal for leakage and recovery parameters,
+  normal for V_T0 and r_T, as DESIGN.md section 4): each column fitted by maximum likelihood
+  (scipy.stats), joined by a Gaussian copula whose correlation is that of the lot's fitted normal
+  scores, so correlations are kept there too.
+
+This module reads the file (pandas), checks every cell, and fits; the draws are made by
+:mod:`stringcheck.sampling`.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+from scipy import special, stats
+
+from .design import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Spread
+from .errors import DesignError, QuantityError
+from .quantity import AMPERE, COULOMB, OHM, SECOND, VOLT, parse_quantity
+
+FITS = ("resample", "lognormal", "normal", "auto")
+# A fit from fewer devices than this says more about the fit than about the lot.
+MIN_FIT_DEVICES = 10
+# A lot file is a table of devices; anything larger is surely not one (and is not read).
+MAX_LOT_BYTES = 64 * 1024 * 1024
+SERIAL_COLUMN = "serial"
+_UNITS = {"i_r": AMPERE, "q_rr": COULOMB, "i_rm": AMPERE, "t_rr": SECOND, "v_t0": VOLT, "r_t": OHM}
+_HEADER = re.compile(r"^\s*([^\[\]]*?)\s*(?:\[\s*([^\[\]]*?)\s*\])?\s*$")
+
+
+@dataclass(frozen=True)
+class ColumnFit:
+    """One measured parameter: its lot statistics and its fitted distribution.
+
+    ``family`` is "lognormal" (``location`` = mean of ln x, ``scale`` = standard deviation of ln x,
+    x in SI) or "normal" (mean and standard deviation [SI]); ``ks_p_value`` is the Kolmogorov-Smirnov
+    p-value of the lot against the fit (approximate: the parameters were fitted to the same data).
+    ``below`` and ``above`` count the devices outside the datasheet limits (0 where the datasheet
+    gives none).
+    """
+
+    parameter: str
+    family: str
+    location: float
+    scale: float
+    ks_p_value: float
+    median: float
+    low: float
+    high: float
+    below: int
+    above: int
+
+    def quantile(self, latent: np.ndarray) -> np.ndarray:
+        """The fitted distribution's value at standard-normal ``latent`` [SI]."""
+        if self.family == "lognormal":
+            return np.exp(self.location + self.scale * latent)
+        return self.location + self.scale * latent
+
+
+@dataclass(frozen=True)
+class MeasuredLot:
+    """A validated lot of one part.
+
+    Attributes
+    ----------
+    path
+        The lot file as the design names it, resolved against the design file's folder.
+    fit
+        One of :data:`FITS`.
+    parameters
+        The measured parameters, in the order of SPREAD_PARAMETERS.
+    values
+        Measured values [SI], shape (devices, len(parameters)).
+    serials
+        Serial number of each device, or None when the file has no serial column.
+    columns
+        Per parameter, the lot statistics and its fit (fitted even when resampling, for the report).
+    scores
+        Standard-normal score of each value: its fitted latent value under a fit, its rank score
+        Phi^-1((rank - 1/2) / devices) when resampling; shape of ``values``.
+    correlation
+        Correlation matrix of the scores (the copula of a fit), (len(parameters),) * 2.
+    """
+
+    path: str
+    fit: str
+    parameters: tuple[str, ...]
+    values: np.ndarray
+    serials: tuple[str, ...] | None
+    columns: tuple[ColumnFit, ...]
+    scores: np.ndarray
+    correlation: np.ndarray
+
+    @property
+    def devices(self) -> int:
+        """Number of devices in the lot."""
+        return self.values.shape[0]
+
+    @property
+    def resampled(self) -> bool:
+        """True when devices are drawn from the lot itself, False when from the fit."""
+        return self.fit == "resample"
+
+    def column(self, parameter: str) -> np.ndarray:
+        """The measured values of ``parameter`` [SI], one per device."""
+        return self.values[:, self.parameters.index(parameter)]
+
+    def row_of(self, serial: str) -> int | None:
+        """The row of the device with ``serial``, or None."""
+        if self.serials is None or serial not in self.serials:
+            return None
+        return self.serials.index(serial)
+
+    def outside_limits(self, part: str) -> tuple[str, ...]:
+        """One warning per parameter whose measured devices lie outside the datasheet limits."""
+        notes = []
+        for column in self.columns:
+            for count, side in ((column.below, "below the datasheet min"),
+                                (column.above, "above the datasheet max")):
+                if count:
+                    notes.append(f"parts.{part}: {count} of {self.devices} devices of "
+                                 f"{Path(self.path).name} have {column.parameter} {side}")
+        return tuple(notes)
+
+
+def fit_column(values: np.ndarray, family: str) -> tuple[float, float]:
+    """Maximum-likelihood fit of one measured column.
+
+    Parameters
+    ----------
+    values
+        Measured values [SI], at least 2, all > 0 for "lognormal".
+    family
+        "lognormal" or "normal".
+
+    Returns
+    -------
+    (location, scale)
+        Lognormal: mean and standard deviation of ln x (scipy.stats.lognorm with loc fixed at 0:
+        shape s = scale, scale parameter exp(location)). Normal: mean and standard deviation
+        (scipy.stats.norm.fit, the maximum-likelihood estimates, divisor n).
+
+    References
+    ----------
+    Johnson, Kotz and Balakrishnan, Continuous Univariate Distributions, vol. 1, 2nd ed. (1994),
+    ch. 13 (normal) and ch. 14 (lognormal): the maximum-likelihood estimates are the mean and the
+    divisor-n standard deviation of x or of ln x.
+    """
+    values = np.asarray(values, dtype=float)
+    if family == "lognormal":
+        shape, _, scale = stats.lognorm.fit(values, floc=0.0)
+        return float(np.log(scale)), float(shape)
+    location, scale = stats.norm.fit(values)
+    return float(location), float(scale)
+
+
+def rank_scores(values: np.ndarray) -> np.ndarray:
+    """Standard-normal rank scores Phi^-1((rank - 1/2) / n) of each column (ties share a rank).
+
+    The normal-scores transform of rank statistics (Blom-type plotting positions with a = 1/2;
+    e.g. Hajek, Sidak and Sen, Theory of Rank Tests, 2nd ed., 1999, section 4.3).
+    """
+    values = np.atleast_2d(np.asarray(values, dtype=float))
+    ranks = stats.rankdata(values, axis=0)
+    return special.ndtri((ranks - 0.5) / values.shape[0])
+
+
+def score_correlation(scores: np.ndarray) -> np.ndarray:
+    """The correlation matrix of the score columns, made positive definite if rounding left it not.
+
+    A column with no variation is uncorrelated with the others.
+    """
+    width = scores.shape[1]
+    if width == 1 or scores.shape[0] < 3:
+        return np.eye(width)
+    spread = scores.std(axis=0)
+    matrix = np.eye(width)
+    varied = spread > 0
+    if np.count_nonzero(varied) > 1:
+        matrix[np.ix_(varied, varied)] = np.corrcoef(scores[:, varied], rowvar=False)
+    # Eigenvalues clipped to a small floor and the diagonal restored: the nearest usable copula
+    # when the lot's columns are (almost) collinear.
+    eigenvalues, vectors = np.linalg.eigh(matrix)
+    if eigenvalues.min() < 1e-6:
+        matrix = vectors @ np.diag(np.maximum(eigenvalues, 1e-6)) @ vectors.T
+        scale = np.sqrt(np.diag(matrix))
+        matrix = matrix / np.outer(scale, scale)
+    return matrix
+
+
+def family_of(parameter: str, fit: str) -> str:
+    """The distribution family a ``fit`` setting gives ``parameter``."""
+    if fit in ("lognormal", "normal"):
+        return fit
+    return "lognormal" if parameter in LOGNORMAL_PARAMETERS else "normal"
+
+
+def read_lot(path: Path, *, key: str, design_source: str, fit: str,
+             datasheet: dict[str, Spread | None]) -> MeasuredLot:
+    """Read and validate the lot file at ``path`` (the design's ``key``, e.g. parts.B.measured).
+
+    ``datasheet`` holds the part's datasheet spreads, to count devices outside their limits.
+    Every problem is a :class:`DesignError` naming the lot file, the row and the column.
+    """
+    import pandas as pd
+
+    source = str(path)
+    where = f"(from {design_source}: {key})"
+    try:
+        if not path.exists():
+            raise DesignError(f"no such lot file {source!r}; check the path (it is read relative "
+                              "to the design file's folder)", source=design_source, key=key)
+        if not path.is_file():
+            raise DesignError(f"{source!r} is not a regular file; give a CSV file of measured "
+                              "devices", source=design_source, key=key)
+        if path.stat().st_size > MAX_LOT_BYTES:
+            raise DesignError(f"is larger than {MAX_LOT_BYTES:,} bytes {where}; a lot file holds "
+                              "one row per device", source=source)
+        table = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True,
+                            encoding="utf-8-sig")
+    except DesignError:
+        raise
+    except pd.errors.EmptyDataError:
+        raise DesignError(f"the lot file is empty {where}; it needs a header row and one row per "
+                          "device", source=source) from None
+    except (pd.errors.ParserError, UnicodeDecodeError, OSError) as error:
+        reason = str(error).splitlines()[0] if str(error) else type(error).__name__
+        raise DesignError(f"cannot be read as CSV ({reason}) {where}; write one row per device, "
+                          "comma-separated, with a header row", source=source) from None
+    parameters, units, serial_column = _header(table.columns, source, where)
+    if table.shape[0] == 0:
+        raise DesignError(f"the lot is empty: a header and no devices {where}; add one row per "
+                          "measured device", source=source)
+    order = sorted(range(len(parameters)), key=lambda i: SPREAD_PARAMETERS.index(parameters[i]))
+    values = np.empty((table.shape[0], len(parameters)))
+    for out, i in enumerate(order):
+        header = table.columns[_column_position(table.columns, parameters[i], serial_column)]
+        values[:, out] = _numbers(table[header].to_numpy(), header, parameters[i], units[i],
+                                  source, where)
+    parameters = tuple(parameters[i] for i in order)
+    serials = None
+    if serial_column is not None:
+        serials = tuple(str(s).strip() for s in table[serial_column].to_numpy())
+        _check_serials(serials, serial_column, source, where)
+    devices = values.shape[0]
+    if fit != "resample" and devices < MIN_FIT_DEVICES:
+        raise DesignError(f"{devices} device(s) are too few to fit a distribution to {where}; "
+                          f"measure at least {MIN_FIT_DEVICES}, or use fit = \"resample\"",
+                          source=source)
+    columns = []
+    latent = np.empty_like(values)
+    for i, parameter in enumerate(parameters):
+        family = family_of(parameter, fit)
+        column = values[:, i]
+        if devices >= 2 and np.ptp(column) > 0:
+            location, scale = fit_column(column, family)
+            law = stats.lognorm(scale, scale=math.exp(location)) if family == "lognormal" else \
+                stats.norm(location, scale)
+            p_value = float(stats.kstest(column, law.cdf).pvalue)
+        else:
+            # One device, or all alike: the lot states a fixed value.
+            location = math.log(column[0]) if family == "lognormal" else float(column[0])
+            scale, p_value = 0.0, float("nan")
+        transformed = np.log(column) if family == "lognormal" else column
+        latent[:, i] = (transformed - location) / scale if scale > 0 else 0.0
+        spread = datasheet.get(parameter)
+        below = int(np.count_nonzero(column < spread.low)) if spread and spread.low else 0
+        above = int(np.count_nonzero(column > spread.high)) if spread and spread.high else 0
+        columns.append(ColumnFit(parameter=parameter, family=family, location=location,
+                                 scale=scale, ks_p_value=p_value, median=float(np.median(column)),
+                                 low=float(column.min()), high=float(column.max()),
+                                 below=below, above=above))
+    scores = rank_scores(values) if fit == "resample" else latent
+    return MeasuredLot(path=source, fit=fit, parameters=parameters, values=values, serials=serials,
+                       columns=tuple(columns), scores=scores,
+                       correlation=score_correlation(scores))
+
+
+def _header(columns, source: str, where: str) -> tuple[list[str], list, str | None]:
+    parameters, units, serial = [], [], None
+    for number, header in enumerate(columns, start=1):
+        text = str(header)
+        match = _HEADER.match(text)
+        name = match.group(1).strip().lower() if match else text
+        unit_text = match.group(2) if match else None
+        if name == SERIAL_COLUMN:
+            if serial is not None:
+                raise DesignError(f"column {number} repeats 'serial' {where}; keep one serial "
+                                  "column", source=source)
+            serial = text
+            continue
+        if name not in _UNITS:
+            valid = (SERIAL_COLUMN,) + SPREAD_PARAMETERS
+            close = difflib.get_close_matches(name, valid, n=1, cutoff=0.6)
+            hint = f"did you mean '{close[0]}'?" if close else "valid columns: " + ", ".join(valid)
+            shown = text if text.strip() and not text.startswith("Unnamed:") else "(blank)"
+            raise DesignError(f"unknown column {number} {shown!r} {where}; {hint}", source=source)
+        if name in parameters:
+            raise DesignError(f"column {number} {text!r} repeats {name} {where}; keep one column "
+                              "per parameter", source=source)
+        expected = _UNITS[name]
+        if not unit_text:
+            raise DesignError(f"column {number} {text!r} has no unit {where}; write the unit in "
+                              f"brackets, e.g. '{name} [{_example_unit(name)}]'", source=source)
+        try:
+            factor = parse_quantity(f"1 {unit_text}", expected, key=f"column {text!r}")
+        except QuantityError:
+            raise DesignError(f"column {number} {text!r}: {unit_text!r} is not a unit of "
+                              f"{expected.pint_unit} ({expected.label}) {where}; e.g. "
+                              f"'{name} [{_example_unit(name)}]'", source=source) from None
+        parameters.append(name)
+        units.append(factor)
+    if not parameters:
+        raise DesignError(f"no measured parameter columns {where}; name columns after the part's "
+                          "parameters with units, e.g. 'i_r [uA]', 'q_rr [nC]'", source=source)
+    return parameters, units, serial
+
+
+def _column_position(columns, parameter: str, serial: str | None) -> int:
+    for position, header in enumerate(columns):
+        match = _HEADER.match(str(header))
+        if header != serial and match and match.group(1).strip().lower() == parameter:
+            return position
+    raise AssertionError(parameter)  # _header found it
+
+
+def _example_unit(parameter: str) -> str:
+    return {"i_r": "uA", "q_rr": "nC", "i_rm": "A", "t_rr": "ns", "v_t0": "V", "r_t": "mOhm"}[
+        parameter]
+
+
+def _numbers(cells: np.ndarray, header: str, parameter: str, factor: float, source: str,
+             where: str) -> np.ndarray:
+    out = np.empty(cells.shape[0])
+    for row, cell in enumerate(cells):
+        # Line numbers as an editor shows them: the header is line 1.
+        line = row + 2
+        text = str(cell).strip()
+        try:
+            number = float(text)
+        except ValueError:
+            shown = "an empty cell" if not text else repr(text)
+            raise DesignError(f"line {line}, column {header!r}: {shown} is not a number {where}; "
+                              "every measured cell must be a number in the column's unit",
+                              source=source) from None
+        if not math.isfinite(number):
+            raise DesignError(f"line {line}, column {header!r}: {text!r} is not a finite number "
+                              f"{where}; leave out a device that was not measured", source=source)
+        value = number * factor
+        if parameter in LOGNORMAL_PARAMETERS and value <= 0:
+            raise DesignError(f"line {line}, column {header!r}: {text} must be greater than zero "
+                              f"{where}", source=source)
+        if parameter not in LOGNORMAL_PARAMETERS and value < 0:
+            raise DesignError(f"line {line}, column {header!r}: {text} must not be negative "
+                              f"{where}", source=source)
+        out[row] = value
+    return out
+
+
+def _check_serials(serials: tuple[str, ...], header: str, source: str, where: str) -> None:
+    seen: dict[str, int] = {}
+    for row, serial in enumerate(serials):
+        line = row + 2
+        if not serial:
+            raise DesignError(f"line {line}, column {header!r}: empty serial number {where}; give "
+                              "every device its serial, or drop the column", source=source)
+        if serial in seen:
+            raise DesignError(f"line {line}, column {header!r}: serial {serial!r} repeats line "
+                              f"{seen[serial]} {where}; serial numbers must be unique",
+                              source=source)
+        seen[serial] = line

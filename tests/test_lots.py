@@ -1,0 +1,402 @@
+"""Measured lots (issue 6 item 3): reading the CSV, its errors, resampling, fits, serial numbers.
+
+Sources of the expectations: the lot values are invented for the tests. Resampling without
+replacement gives every position the lot's empirical distribution, checked with the
+Dvoretzky-Kiefer-Wolfowitz bound (with Massart's constant, Ann. Probab. 18, 1990); maximum-likelihood
+fits are checked against scipy.stats.lognorm.fit / norm.fit and against the closed forms (mean and
+divisor-n standard deviation of ln x; Johnson, Kotz and Balakrishnan, Continuous Univariate
+Distributions vol. 1, ch. 14); the copula's correlation against the lot's with its sampling error
+(Fisher's z, standard error 1/sqrt(n - 3)).
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy import stats
+
+from stringcheck.design import load_design
+from stringcheck.errors import DesignError
+from stringcheck.lots import fit_column, rank_scores, score_correlation
+from stringcheck.sampling import draw_strings
+from stringcheck.studies.check import run_check
+
+DESIGN = """
+[duty]
+reverse_voltage = "{voltage}"
+waveform = "half-sine"
+frequency = "50 Hz"
+di_dt = "10 A/us"
+[string]
+series = {series}
+parallel = {parallel}
+part = "A"
+{positions}
+[parts.A]
+v_rrm = "2 kV"
+i_r = {{ typ = "0.2 uA", max = "2 uA", at_voltage = "2 kV", at_temperature = "25 degC" }}
+q_rr = {{ typ = "80 nC", max = "150 nC", at_di_dt = "10 A/us" }}
+c_j = "15 pF"
+measured = "{lot}"
+{fit}
+[grading]
+resistor = "4.7 MOhm"
+resistor_tolerance = "1 %"
+capacitor = "2.2 nF"
+capacitor_tolerance = "5 %"
+[monte_carlo]
+trials = 2000
+seed = 11
+"""
+
+
+def _lot_values(devices: int, seed: int = 3) -> tuple[np.ndarray, np.ndarray]:
+    """Invented lot: lognormal leakage [uA] and charge [nC] with correlation 0.6 in log space."""
+    rng = np.random.default_rng(seed)
+    z = rng.multivariate_normal([0.0, 0.0], [[1.0, 0.6], [0.6, 1.0]], size=devices)
+    return 0.3 * np.exp(0.6 * z[:, 0]), 90.0 * np.exp(0.2 * z[:, 1])
+
+
+def _write_lot(folder: Path, devices: int = 80, *, name: str = "lot.csv", header: str | None = None,
+               rows: list[str] | None = None, seed: int = 3) -> Path:
+    path = folder / name
+    if rows is None:
+        leakage, charge = _lot_values(devices, seed)
+        rows = [f"S{k:03d},{a:.6g},{b:.6g}" for k, (a, b) in enumerate(zip(leakage, charge))]
+    text = (header or "serial,i_r [uA],q_rr [nC]") + "\n" + "\n".join(rows) + "\n"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def _design(folder: Path, *, series: int = 10, parallel: int = 1, fit: str = "",
+            positions: str = "", lot: str = "lot.csv", voltage: str = "12 kV"):
+    path = folder / "design.toml"
+    path.write_text(DESIGN.format(series=series, parallel=parallel, fit=fit, positions=positions,
+                                  lot=lot, voltage=voltage), encoding="utf-8")
+    return load_design(path)
+
+
+def _lot_array(folder: Path, name: str = "lot.csv") -> np.ndarray:
+    lines = (folder / name).read_text().splitlines()[1:]
+    return np.array([[float(x) for x in line.split(",")[1:]] for line in lines])
+
+
+# --- reading -------------------------------------------------------------------------------------
+
+
+def test_lot_is_read_in_si_units_with_serials(tmp_path):
+    _write_lot(tmp_path, 20)
+    lot = _design(tmp_path, series=5).parts["A"].measured
+    raw = _lot_array(tmp_path)
+    assert lot.devices == 20 and lot.parameters == ("i_r", "q_rr")
+    np.testing.assert_allclose(lot.column("i_r"), raw[:, 0] * 1e-6, rtol=1e-15)
+    np.testing.assert_allclose(lot.column("q_rr"), raw[:, 1] * 1e-9, rtol=1e-15)
+    assert lot.serials[:2] == ("S000", "S001") and lot.row_of("S007") == 7
+
+
+def test_columns_may_come_in_any_order_and_case(tmp_path):
+    _write_lot(tmp_path, rows=["2.0, 0.5, X1", "3.0, 0.7, X2"], header="Q_RR [nC], I_R [uA], serial")
+    lot = _design(tmp_path, series=2).parts["A"].measured
+    assert lot.parameters == ("i_r", "q_rr")
+    np.testing.assert_allclose(lot.values, [[0.5e-6, 2e-9], [0.7e-6, 3e-9]])
+
+
+def test_lot_outside_the_datasheet_limit_is_counted(tmp_path):
+    # Datasheet max of i_r is 2 uA: two devices above it (by hand).
+    rows = [f"S{k},{v},{90}" for k, v in enumerate([0.1, 0.2, 2.5, 0.3, 3.0, 0.2])]
+    _write_lot(tmp_path, rows=rows)
+    lot = _design(tmp_path, series=4).parts["A"].measured
+    leakage = lot.columns[0]
+    assert (leakage.below, leakage.above) == (0, 2)
+    assert any("2 of 6 devices" in w and "above the datasheet max" in w
+               for w in lot.outside_limits("A"))
+
+
+# --- errors: one DesignError naming the lot, the row and the column --------------------------------
+
+BAD_LOTS = [
+    ("unknown column", "serial,i_x [uA],q_rr [nC]", ["S1,1,2"], "unknown column 2 'i_x [uA]'"),
+    ("missing unit", "serial,i_r,q_rr [nC]", ["S1,1,2"], "has no unit"),
+    ("wrong unit", "serial,i_r [V],q_rr [nC]", ["S1,1,2"], "not a unit of ampere"),
+    ("non-numeric cell", "serial,i_r [uA],q_rr [nC]", ["S1,1,2", "S2,abc,3"],
+     "line 3, column 'i_r [uA]': 'abc' is not a number"),
+    ("empty cell", "serial,i_r [uA],q_rr [nC]", ["S1,1,2", "S2,,3"],
+     "line 3, column 'i_r [uA]': an empty cell is not a number"),
+    ("NaN", "serial,i_r [uA],q_rr [nC]", ["S1,1,2", "S2,1,nan"],
+     "line 3, column 'q_rr [nC]': 'nan' is not a finite number"),
+    ("negative leakage", "serial,i_r [uA],q_rr [nC]", ["S1,-1,2"], "must be greater than zero"),
+    ("header only", "serial,i_r [uA],q_rr [nC]", [], "the lot is empty"),
+    ("repeated serial", "serial,i_r [uA],q_rr [nC]", ["S1,1,2", "S1,1,2"],
+     "serial 'S1' repeats line 2"),
+    ("no parameter column", "serial", ["S1", "S2"], "no measured parameter columns"),
+    ("repeated column", "i_r [uA],i_r [nA]", ["1,2"], "repeats i_r"),
+]
+
+
+@pytest.mark.parametrize("case, header, rows, expected", BAD_LOTS, ids=[c[0] for c in BAD_LOTS])
+def test_bad_lot_is_one_clear_error(tmp_path, case, header, rows, expected):
+    _write_lot(tmp_path, header=header, rows=rows)
+    with pytest.raises(DesignError) as error:
+        _design(tmp_path, series=1)
+    message = str(error.value)
+    assert expected in message, message
+    assert "lot.csv" in message and "parts.A.measured" in message and "\n" not in message
+
+
+def test_empty_file_and_missing_file(tmp_path):
+    (tmp_path / "lot.csv").write_text("")
+    with pytest.raises(DesignError, match="the lot file is empty"):
+        _design(tmp_path)
+    with pytest.raises(DesignError, match="no such lot file"):
+        _design(tmp_path, lot="nowhere.csv")
+
+
+def test_lot_smaller_than_the_string(tmp_path):
+    _write_lot(tmp_path, 8)
+    with pytest.raises(DesignError, match=r"holds 8 device\(s\) but the string draws 10"):
+        _design(tmp_path, series=10)
+    # Two branches of 4 draw 8: exactly enough.
+    _design(tmp_path, series=4, parallel=2)
+
+
+def test_fit_needs_enough_devices_and_a_lot(tmp_path):
+    _write_lot(tmp_path, 5)
+    with pytest.raises(DesignError, match="too few to fit"):
+        _design(tmp_path, series=2, fit='fit = "lognormal"')
+    with pytest.raises(DesignError, match="must be one of"):
+        _design(tmp_path, series=2, fit='fit = "weibull"')
+
+
+def test_serial_errors(tmp_path):
+    _write_lot(tmp_path, 20)
+    one = '[[string.position]]\nindex = 1\nserial = "{}"\n'
+    with pytest.raises(DesignError, match="no device 'NOPE'"):
+        _design(tmp_path, series=4, positions=one.format("NOPE"))
+    twice = one.format("S001") + '[[string.position]]\nindex = 2\nserial = "S001"\n'
+    with pytest.raises(DesignError, match="already stands in position 1"):
+        _design(tmp_path, series=4, positions=twice)
+    with pytest.raises(DesignError, match="add branch = N"):
+        _design(tmp_path, series=4, parallel=2, positions=one.format("S001"))
+    _write_lot(tmp_path, rows=["1,2", "2,3"], header="i_r [uA],q_rr [nC]")
+    with pytest.raises(DesignError, match="has no 'serial' column"):
+        _design(tmp_path, series=2, positions=one.format("S001"))
+
+
+# --- resampling ----------------------------------------------------------------------------------
+
+
+def test_resampling_takes_whole_rows_without_replacement(tmp_path):
+    _write_lot(tmp_path, 30)
+    design = _design(tmp_path, series=12)
+    drawn = draw_strings(design, ("i_r", "q_rr"), 0, 3000)
+    lot = design.parts["A"].measured
+    pairs = np.stack([drawn.parameters["i_r"], drawn.parameters["q_rr"]], axis=-1).reshape(-1, 2)
+    # Every drawn device is a row of the lot, with its own leakage and charge together (the
+    # measured correlation is kept exactly).
+    rows = {tuple(row) for row in lot.values}
+    assert all(tuple(pair) in rows for pair in pairs)
+    # No device stands twice in one string.
+    leakage = drawn.parameters["i_r"].reshape(3000, -1)
+    assert all(len(set(trial)) == trial.size for trial in leakage)
+
+
+def test_resampling_reproduces_the_lots_empirical_quantiles(tmp_path):
+    _write_lot(tmp_path, 200)
+    design = _design(tmp_path, series=20)
+    trials = 5000
+    drawn = draw_strings(design, ("i_r",), 0, trials).parameters["i_r"]
+    lot = np.sort(design.parts["A"].measured.column("i_r"))
+    # Each position's marginal is the lot's empirical distribution: a DKW band at alpha = 1e-3
+    # (Massart: P(sup |F_n - F| > eps) <= 2 exp(-2 n eps^2)) holds at every position.
+    epsilon = math.sqrt(math.log(2 / 1e-3) / (2 * trials))
+    for position in (0, 7, 19):
+        values = np.sort(drawn[:, 0, position])
+        empirical = np.searchsorted(values, lot, side="right") / trials
+        exact = np.arange(1, lot.size + 1) / lot.size
+        assert np.max(np.abs(empirical - exact)) < epsilon
+    pooled = drawn.ravel()
+    for q in (0.05, 0.25, 0.5, 0.75, 0.95):
+        # Quantiles of the pooled draws sit within one lot step of the lot's own.
+        low, high = np.quantile(lot, [max(q - 0.01, 0), min(q + 0.01, 1)])
+        assert low <= np.quantile(pooled, q) <= high
+
+
+def test_resampling_is_independent_of_chunking(tmp_path):
+    _write_lot(tmp_path, 50)
+    design = _design(tmp_path, series=10)
+    whole = draw_strings(design, ("i_r", "q_rr"), 0, 9000).parameters["q_rr"]
+    first = draw_strings(design, ("i_r", "q_rr"), 0, 5000).parameters["q_rr"]
+    rest = draw_strings(design, ("i_r", "q_rr"), 5000, 4000).parameters["q_rr"]
+    np.testing.assert_array_equal(whole, np.concatenate([first, rest]))
+
+
+@settings(max_examples=30, deadline=None)
+@given(devices=st.integers(1, 40), take=st.integers(1, 40), seed=st.integers(0, 2**31))
+def test_lot_rows_are_distinct_and_in_range(devices, take, seed):
+    # Property: for any lot size and any string that fits in it, every trial gets distinct rows of
+    # the lot, and every row is used with equal frequency in the long run (not tested here).
+    from stringcheck.sampling import _lot_rows
+
+    take = min(take, devices)
+    rows = _lot_rows(seed, 4090, 20, 77, devices, take)
+    assert rows.shape == (20, take)
+    assert rows.min() >= 0 and rows.max() < devices
+    assert all(np.unique(r).size == take for r in rows)
+
+
+def test_every_device_is_equally_likely(tmp_path):
+    _write_lot(tmp_path, 25)
+    design = _design(tmp_path, series=5)
+    drawn = draw_strings(design, ("i_r",), 0, 8000).parameters["i_r"][:, 0, 3]
+    lot = design.parts["A"].measured.column("i_r")
+    counts = np.array([np.count_nonzero(drawn == value) for value in lot])
+    # Chi-square against the uniform over the lot's 25 devices (scipy.stats.chisquare).
+    assert counts.sum() == 8000
+    assert stats.chisquare(counts).pvalue > 1e-4
+
+
+def test_serial_places_one_device_and_removes_it_from_the_draws(tmp_path):
+    _write_lot(tmp_path, 12)
+    positions = ('[[string.position]]\nindex = 3\nserial = "S005"\n'
+                 '[[string.position]]\nindex = 1\nserial = "S000"\n')
+    design = _design(tmp_path, series=12, positions=positions)
+    drawn = draw_strings(design, ("i_r", "q_rr"), 0, 500)
+    lot = design.parts["A"].measured
+    assert np.all(drawn.parameters["i_r"][:, 0, 2] == lot.column("i_r")[5])
+    assert np.all(drawn.parameters["q_rr"][:, 0, 0] == lot.column("q_rr")[0])
+    others = drawn.parameters["i_r"][:, 0, [1] + list(range(3, 12))]
+    assert not np.any(np.isin(others, lot.column("i_r")[[0, 5]]))
+    # 12 devices, 2 placed, 10 drawn: every string is the whole lot.
+    assert all(np.unique(row).size == 12 for row in drawn.parameters["i_r"].reshape(500, -1))
+
+
+def test_a_stack_built_by_serial_has_no_device_scatter(tmp_path):
+    _write_lot(tmp_path, 4)
+    positions = "".join(f'[[string.position]]\nindex = {k + 1}\nserial = "S{k:03d}"\n'
+                        for k in range(4))
+    design = _design(tmp_path, series=4, positions=positions, voltage="5 kV")
+    drawn = draw_strings(design, ("i_r",), 0, 100).parameters["i_r"]
+    np.testing.assert_array_equal(drawn, np.broadcast_to(
+        design.parts["A"].measured.column("i_r"), drawn.shape))
+    result = run_check(design, trials=200)
+    assert result.checks["static"].ran
+
+
+# --- fits ----------------------------------------------------------------------------------------
+
+
+def test_lognormal_fit_matches_scipy_and_the_closed_form():
+    values = _lot_values(300, seed=5)[0] * 1e-6
+    location, scale = fit_column(values, "lognormal")
+    shape, loc, scipy_scale = stats.lognorm.fit(values, floc=0.0)
+    assert loc == 0.0
+    assert location == pytest.approx(math.log(scipy_scale), rel=1e-6)
+    assert scale == pytest.approx(shape, rel=1e-6)
+    # Closed form of the maximum-likelihood estimates: mean and divisor-n sd of ln x.
+    assert location == pytest.approx(np.mean(np.log(values)), rel=1e-9)
+    assert scale == pytest.approx(np.std(np.log(values)), rel=1e-6)
+
+
+def test_normal_fit_matches_scipy():
+    values = np.random.default_rng(9).normal(0.9, 0.02, size=100)
+    location, scale = fit_column(values, "normal")
+    assert (location, scale) == pytest.approx(stats.norm.fit(values), rel=1e-12)
+
+
+def test_fitted_draws_follow_the_fit_and_keep_the_lots_correlation(tmp_path):
+    _write_lot(tmp_path, 150)
+    design = _design(tmp_path, series=10, fit='fit = "auto"')
+    lot = design.parts["A"].measured
+    drawn = draw_strings(design, ("i_r", "q_rr"), 0, 2000)
+    leakage = drawn.parameters["i_r"][:, 0, 4]
+    fit = lot.columns[0]
+    law = stats.lognorm(fit.scale, scale=math.exp(fit.location))
+    # The draws of one position are the fitted lognormal (KS against scipy.stats.lognorm).
+    assert stats.kstest(leakage, law.cdf).pvalue > 1e-3
+    # Their log-space correlation equals the lot's score correlation within 4 standard errors of
+    # Fisher's z (1 / sqrt(n - 3)).
+    logs = np.log(np.stack([drawn.parameters["i_r"].ravel(), drawn.parameters["q_rr"].ravel()]))
+    rho = np.corrcoef(logs)[0, 1]
+    assert abs(np.arctanh(rho) - np.arctanh(lot.correlation[0, 1])) < 4 / math.sqrt(
+        logs.shape[1] / 10 - 3)
+    # A static-only request draws the same leakage (the copula always mixes both columns).
+    alone = draw_strings(design, ("i_r",), 0, 2000).parameters["i_r"]
+    np.testing.assert_array_equal(alone, drawn.parameters["i_r"])
+
+
+def test_rank_scores_and_their_correlation():
+    # Hand example: ranks 1..4 of n = 4 give Phi^-1((r - 1/2) / 4).
+    scores = rank_scores(np.array([[3.0], [1.0], [4.0], [2.0]]))[:, 0]
+    np.testing.assert_allclose(scores, stats.norm.ppf(np.array([2.5, 0.5, 3.5, 1.5]) / 4))
+    # Collinear columns still give a usable (positive definite) copula.
+    x = np.linspace(0, 1, 20)
+    matrix = score_correlation(np.stack([x, 2 * x], axis=1))
+    np.linalg.cholesky(matrix)
+    assert matrix[0, 1] == pytest.approx(1.0, abs=1e-5)
+
+
+# --- the studies ---------------------------------------------------------------------------------
+
+
+def test_rare_refuses_a_resampled_lot_and_works_on_a_fit(tmp_path):
+    _write_lot(tmp_path, 60)
+    with pytest.raises(DesignError, match="parts.A.fit"):
+        run_check(_design(tmp_path, series=10), trials=500, rare=True)
+    result = run_check(_design(tmp_path, series=10, fit='fit = "lognormal"'), trials=500,
+                       rare=True, rare_samples=2000)
+    assert result.checks["static"].rare is not None
+
+
+def test_a_leakier_lot_shifts_voltage_to_the_others(tmp_path):
+    # Physics: a device leaking more takes less of the blocking voltage. A lot whose first
+    # device leaks 100 x the others, placed by serial in position 1, holds the lowest voltage.
+    rows = ["S0,50,90"] + [f"S{k},0.5,90" for k in range(1, 10)]
+    _write_lot(tmp_path, rows=rows)
+    design = _design(tmp_path, series=10, positions='[[string.position]]\nindex = 1\n'
+                                                    'serial = "S0"\n')
+    static = run_check(design, trials=300, only=("static",)).checks["static"]
+    means = [p.mean_voltage for p in static.positions]
+    assert means[0] == min(means) and means[0] < 0.9 * np.mean(means[1:])
+
+
+# --- the command line ----------------------------------------------------------------------------
+
+
+def test_cli_reports_the_lot_and_its_warning(tmp_path):
+    import json
+
+    from typer.testing import CliRunner
+
+    from stringcheck.cli import app
+
+    example = Path(__file__).resolve().parent.parent / "examples" / \
+        "precipitator-30kv-measured.toml"
+    out = tmp_path / "result.json"
+    result = CliRunner().invoke(app, ["check", str(example), "--trials", "4000", "--json",
+                                      str(out)], terminal_width=120)
+    assert result.exit_code == 0, result.output
+    assert "Measured lot of part FR2K: fr2k-incoming-lot.csv, 60 devices" in result.output
+    assert "above the datasheet max" in result.output
+    lots = json.loads(out.read_text())["lots"]
+    assert lots[0]["devices"] == 60 and lots[0]["fit"] == "resample"
+    assert lots[0]["columns"][0]["above_datasheet_max"] == 1  # 2.391 uA > 2 uA, by hand
+
+
+def test_cli_bad_lot_is_one_line_exit_2(tmp_path):
+    from typer.testing import CliRunner
+
+    from stringcheck.cli import app
+
+    _write_lot(tmp_path, header="serial,i_r [uA],q_rr [nC]", rows=["S1,1,2", "S2,1.5,oops"])
+    (tmp_path / "design.toml").write_text(DESIGN.format(series=2, parallel=1, fit="", positions="",
+                                                        lot="lot.csv", voltage="2 kV"))
+    result = CliRunner().invoke(app, ["check", str(tmp_path / "design.toml")], terminal_width=300)
+    assert result.exit_code == 2, result.output
+    lines = [line for line in result.output.splitlines() if line.strip()]
+    assert len(lines) == 1 and "line 3, column 'q_rr [nC]': 'oops' is not a number" in lines[0]
+    assert "Traceback" not in result.output
