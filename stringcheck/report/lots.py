@@ -25,10 +25,10 @@ _HOW = {"resample": "devices drawn from the lot itself, without replacement in a
                 "normal for V_T0 and r_T), joined by the lot's correlation (Gaussian copula)"}
 
 
-def _lots(design: Design):
+def _lots(design: Design, skip: frozenset = frozenset()):
     for name in design.parts_used():
         lot = design.parts[name].measured
-        if lot is not None:
+        if lot is not None and (name, lot.path) not in skip:
             yield name, lot
 
 
@@ -38,9 +38,16 @@ def _placed(design: Design, name: str) -> int:
                                 & ~np.equal(layout.serial_grid(), None)))
 
 
-def render_lots(design: Design, console: Console) -> None:
-    """Print one table per measured lot (nothing when the design has none)."""
-    for name, lot in _lots(design):
+def render_lots(design: Design, console: Console, *, also: Design | None = None) -> None:
+    """Print one table per measured lot (nothing when the design has none); with ``also`` (the
+    review's other design), its lots too, each lot once."""
+    if also is not None:
+        render_lots(design, console)
+        shown = frozenset((name, lot.path) for name, lot in _lots(design))
+        design, lots = also, list(_lots(also, shown))
+    else:
+        lots = list(_lots(design))
+    for name, lot in lots:
         console.print(Text(f"Measured lot of part {name}: {Path(lot.path).name}, "
                            f"{lot.devices} devices", style="bold"))
         console.print(f"  {_HOW[lot.fit]}.", highlight=False)

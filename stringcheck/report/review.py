@@ -13,6 +13,7 @@ from rich.text import Text
 from ..studies.review import ReviewResult
 from .cautions import safety_cautions
 from .export import result_to_dict
+from .lots import render_lots
 
 
 def _number(value: float | None) -> float | None:
@@ -104,6 +105,7 @@ def render_review(result: ReviewResult, console: Console) -> None:
         for line in result.reasons:
             console.print(f"  - {line}")
     console.print()
+    render_lots(base.design, console, also=cand.design)
     grading = cand.grading
     cautions = safety_cautions(string_voltage=cand.design.duty.reverse_voltage,
                                stage_energy=grading.stage_energy, total_energy=grading.total_energy,
