@@ -32,6 +32,7 @@ part = "MAIN"                   # default part of every position
 # index = 1
 # temperature_rise = "15 K"     # this position runs hotter than ambient
 # part = "OTHER"                # a different part in this position
+# serial = "L7-012"             # this measured device of the part's lot (see measured below)
 
 [parts.MAIN]
 class = "si-fast-recovery"      # si-rectifier | si-fast-recovery | si-schottky | sic-schottky
@@ -43,6 +44,9 @@ c_j = "15 pF"
 t_j_max = "150 degC"
 # leakage_doubling = "10 K"     # leakage doubles every ... (silicon: about 10 K)
 # leakage_voltage_exponent = 0.5
+# measured = "lot.csv"          # a measured lot: one row per device, header like
+#                               #   serial,i_r [uA],q_rr [nC]   (at the test conditions above)
+# fit = "resample"              # resample (whole rows) | lognormal | normal | auto
 
 [grading]
 resistor = "4.7 MOhm"           # per stage
