@@ -2,21 +2,19 @@
 
 Every error names the file, the dotted key and what would be valid; unknown keys are errors with
 the nearest valid key suggested; defaults taken on the user's behalf go into ``Design.assumptions``.
+The key lists and the value reader are in design_schema.py, the parts in part_reading.py.
 """
 
 from __future__ import annotations
 
 import difflib
-import math
 import re
 import tomllib
-from dataclasses import replace
 from pathlib import Path
 from typing import Any, Mapping
 
 import numpy as np
 
-from . import presets
 from .design import (
     DEFAULT_AMBIENT,
     DEFAULT_CONFIDENCE,
@@ -26,14 +24,12 @@ from .design import (
     DEFAULT_TARGET_P_FAIL,
     DEFAULT_TRIALS,
     HEATSINKS,
-    LOGNORMAL_PARAMETERS,
     MAX_DEVICES,
     MAX_FILE_BYTES,
     MAX_LEAKAGE_DOUBLINGS,
     RESISTOR_TCR_REFERENCE,
     SIGMA_AT_LIMIT_RANGE,
     SPREAD_PARAMETERS,
-    TYP_FRACTION_OF_MAX,
     WAVEFORMS,
     Design,
     Duty,
@@ -43,17 +39,15 @@ from .design import (
     PositionOverride,
     Review,
     Sizing,
-    Spread,
     StringLayout,
     Thermal,
     correlation_matrix,
 )
-from .errors import DesignError, QuantityError
+from .errors import DesignError
 from .quantity import (
     AMPERE,
     AMPERE_PER_SECOND,
     CELSIUS,
-    COULOMB,
     DIMENSIONLESS,
     FARAD,
     HENRY,
@@ -62,198 +56,14 @@ from .quantity import (
     KELVIN_PER_WATT,
     OHM,
     PER_KELVIN,
-    SECOND,
     VOLT,
-    VOLT_PER_KELVIN,
     WATT,
-    Unit,
-    parse_quantity,
 )
 
-_SPREAD_UNITS = {"i_r": AMPERE, "q_rr": COULOMB, "i_rm": AMPERE, "t_rr": SECOND, "v_t0": VOLT,
-                 "r_t": OHM}
-_CONDITION_UNITS = {"at_temperature": CELSIUS, "at_voltage": VOLT, "at_di_dt": AMPERE_PER_SECOND,
-                    "at_forward_current": AMPERE}
-_PART_SCALARS = {"v_rrm": VOLT, "i_fav": AMPERE, "c_j": FARAD, "r_th_jc": KELVIN_PER_WATT,
-                 "r_th_cs": KELVIN_PER_WATT, "t_j_max": CELSIUS, "leakage_doubling": KELVIN_DIFFERENCE,
-                 "leakage_voltage_exponent": DIMENSIONLESS, "tempco_v_t0": VOLT_PER_KELVIN,
-                 "tempco_r_t": PER_KELVIN}
-_PART_DEFAULTS = {"leakage_doubling": 10.0, "leakage_voltage_exponent": 0.5, "c_j": 0.0,
-                  "tempco_v_t0": -2e-3, "tempco_r_t": 0.0}
-_PART_DEFAULT_NOTES = {
-    "leakage_doubling": "leakage doubles every 10 K (silicon, common practice)",
-    "leakage_voltage_exponent": "leakage grows as V^0.5 (generation current, abrupt junction)",
-    "c_j": "junction capacitance 0 F (only the grading capacitor counts in the dynamic check)",
-    "tempco_v_t0": "V_T0 temperature coefficient -2 mV/K (silicon PN, common practice)",
-    "tempco_r_t": "r_T temperature coefficient 0 1/K",
-}
+from .design_schema import _SCHEMA_KEYS, _TOP_LEVEL, _Reader, _join
+from .part_reading import check_serials, read_parts
 
-
-_SCHEMA_KEYS = {
-    "design": ("title", "notes"),
-    "duty": ("reverse_voltage", "forward_current", "waveform", "frequency", "di_dt", "ambient",
-             "stray_inductance"),
-    "string": ("series", "parallel", "derating", "part", "position"),
-    "position": ("index", "branch", "part", "temperature_rise", "serial"),
-    "part": ("v_rrm", "i_fav", "i_r", "q_rr", "i_rm", "t_rr", "v_t0", "r_t", "c_j", "r_th_jc",
-             "r_th_cs", "t_j_max", "leakage_doubling", "leakage_voltage_exponent", "tempco_v_t0",
-             "tempco_r_t", "class", "measured", "fit"),
-    "spread": ("min", "typ", "max", "at_temperature", "at_voltage", "at_di_dt", "at_forward_current"),
-    "grading": ("resistor", "resistor_tolerance", "resistor_tcr", "resistor_rated_voltage",
-                "resistor_rated_power", "capacitor", "capacitor_tolerance", "capacitor_rated_voltage",
-                "damping_resistor"),
-    "thermal": ("heatsink", "r_th_sa", "path_resistance"),
-    "monte_carlo": ("trials", "seed", "confidence", "sigma_at_limit", "screened", "lot_share",
-                    "correlation"),
-    "sizing": ("target_p_fail", "target_share", "resistor_series", "capacitor_series"),
-    "review": ("tolerance",),
-}
-_TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
-              "review")
 _SERIES_NAMES = ("E6", "E12", "E24", "E48", "E96", "E192")
-
-
-class _Reader:
-    """Walks the raw TOML tables, converting values and collecting assumptions."""
-
-    def __init__(self, source: str):
-        self.source = source
-        self.assumptions: list[str] = []
-
-    def error(self, key: str, message: str) -> DesignError:
-        return DesignError(message, source=self.source, key=key)
-
-    def check_keys(self, table: Mapping[str, Any], allowed: tuple[str, ...], prefix: str) -> None:
-        for key in table:
-            if key not in allowed:
-                close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
-                hint = f"; did you mean '{close[0]}'?" if close else f"; valid keys: {', '.join(allowed)}"
-                raise self.error(_join(prefix, key), f"unknown key{hint}")
-
-    def table(self, raw: Mapping[str, Any], key: str, prefix: str = "") -> Mapping[str, Any]:
-        value = raw.get(key, {})
-        if not isinstance(value, Mapping):
-            raise self.error(_join(prefix, key), f"must be a table ([{_join(prefix, key)}]), "
-                                                 f"not {type(value).__name__}")
-        return value
-
-    def quantity(self, table: Mapping[str, Any], key: str, unit: Unit, prefix: str, *,
-                 required: bool = False, default: float | None = None, positive: bool = False,
-                 non_negative: bool = False, note: str | None = None) -> float | None:
-        dotted = _join(prefix, key)
-        if key not in table:
-            if required:
-                raise self.error(dotted, f"missing; give it in {unit.label}, e.g. {_example(unit)}")
-            if default is not None and note:
-                self.assumptions.append(f"{dotted} not given: {note}")
-            return default
-        try:
-            value = parse_quantity(table[key], unit, key=dotted)
-        except QuantityError as error:
-            message = str(error).removeprefix(f"{dotted}: ")
-            raise DesignError(message, source=self.source, key=dotted) from None
-        if positive and not value > 0:
-            raise self.error(dotted, f"must be greater than zero, got {table[key]!r}")
-        if non_negative and value < 0:
-            raise self.error(dotted, f"must not be negative, got {table[key]!r}")
-        return value
-
-    def fraction(self, table: Mapping[str, Any], key: str, prefix: str, *, default: float,
-                 low: float, high: float, low_open: bool = False, high_open: bool = True,
-                 note: str | None = None) -> float:
-        value = self.quantity(table, key, DIMENSIONLESS, prefix, default=default, note=note)
-        assert value is not None
-        below = value <= low if low_open else value < low
-        above = value >= high if high_open else value > high
-        if below or above:
-            interval = f"{'(' if low_open else '['}{low:g}, {high:g}{')' if high_open else ']'}"
-            raise self.error(_join(prefix, key), f"must lie in {interval}, got {table.get(key)!r}")
-        return value
-
-    def integer(self, table: Mapping[str, Any], key: str, prefix: str, *, default: int | None = None,
-                minimum: int = 1, maximum: int | None = None, cap: int | None = None) -> int:
-        """A whole number in ``minimum..maximum``; ``cap`` is a limit of the tool, not the schema's."""
-        dotted = _join(prefix, key)
-        if key not in table:
-            if default is None:
-                raise self.error(dotted, f"missing; give a whole number >= {minimum}")
-            return default
-        value = table[key]
-        if isinstance(value, bool) or not isinstance(value, int):
-            raise self.error(dotted, f"must be a whole number (no quotes, no unit), got {value!r}")
-        if value < minimum or (maximum is not None and value > maximum):
-            limit = f">= {minimum}" if maximum is None else f"in {minimum}..{maximum}"
-            raise self.error(dotted, f"must be a whole number {limit}, got {value}")
-        if cap is not None and value > cap:
-            raise self.error(dotted, f"must be at most {cap:,} (the largest string this tool holds "
-                                     f"in memory), got {value:,}")
-        return value
-
-    def text(self, table: Mapping[str, Any], key: str, prefix: str, *, default: str | None = None,
-             choices: tuple[str, ...] | None = None) -> str | None:
-        dotted = _join(prefix, key)
-        if key not in table:
-            return default
-        value = table[key]
-        if not isinstance(value, str):
-            raise self.error(dotted, f"must be text in quotes, got {value!r}")
-        if choices is not None and value not in choices:
-            raise self.error(dotted, f"must be one of {', '.join(repr(c) for c in choices)}, "
-                                     f"got {value!r}")
-        return value
-
-    def spread(self, raw: Any, parameter: str, prefix: str) -> Spread:
-        dotted = _join(prefix, parameter)
-        unit = _SPREAD_UNITS[parameter]
-        if not isinstance(raw, Mapping):
-            value = self.quantity({parameter: raw}, parameter, unit, prefix, positive=True)
-            assert value is not None
-            return Spread(typ=value)
-        self.check_keys(raw, _SCHEMA_KEYS["spread"], dotted)
-        lognormal = parameter in LOGNORMAL_PARAMETERS
-        values = {}
-        for bound in ("min", "typ", "max"):
-            values[bound] = self.quantity(raw, bound, unit, dotted, positive=lognormal,
-                                          non_negative=not lognormal)
-        conditions = {name: self.quantity(raw, name, condition_unit, dotted,
-                                          positive=name != "at_temperature")
-                      for name, condition_unit in _CONDITION_UNITS.items()}
-        low, typ, high = values["min"], values["typ"], values["max"]
-        if low is not None and high is not None and low > high:
-            raise self.error(dotted, f"min ({raw.get('min')!r}) is above max ({raw.get('max')!r}); "
-                                     "min <= typ <= max")
-        typ_assumed = False
-        if typ is None:
-            if high is None:
-                raise self.error(dotted, "give at least 'typ' or 'max' (a lone 'min' says too little)")
-            if low is not None:
-                typ = math.sqrt(low * high) if lognormal else 0.5 * (low + high)
-                how = "geometric mean" if lognormal else "midpoint"
-                self.assumptions.append(f"{dotted}: typ not given, taken as the {how} of min and max")
-            else:
-                typ = TYP_FRACTION_OF_MAX[parameter] * high
-                self.assumptions.append(
-                    f"{dotted}: only max given, typ taken as {TYP_FRACTION_OF_MAX[parameter]:g} x max")
-            typ_assumed = True
-        if low is not None and low > typ:
-            raise self.error(dotted, f"min ({raw.get('min')!r}) is above typ; min <= typ <= max")
-        if high is not None and high < typ:
-            raise self.error(dotted, f"typ is above max ({raw.get('max')!r}); min <= typ <= max")
-        if lognormal and typ <= 0:
-            raise self.error(dotted, "typ must be greater than zero")
-        if low is not None and high is not None and low == high == typ:
-            low = high = None
-        return Spread(typ=typ, low=low, high=high, typ_assumed=typ_assumed, **conditions)
-
-
-def _join(prefix: str, key: str) -> str:
-    return f"{prefix}.{key}" if prefix else key
-
-
-def _example(unit: Unit) -> str:
-    from .quantity import _example as example
-
-    return f'"{example(unit)}"'
 
 
 def load_design(path: str | Path) -> Design:
@@ -345,7 +155,7 @@ def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
     title = reader.text(design_table, "title", "design", default=Path(source).stem) or ""
     notes = reader.text(design_table, "notes", "design", default="") or ""
 
-    parts = _read_parts(reader, raw)
+    parts = read_parts(reader, raw)
     duty = _read_duty(reader, raw)
     string = _read_string(reader, raw, parts)
     grading = _read_grading(reader, raw)
@@ -362,111 +172,6 @@ def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
                     thermal=thermal, review=review, assumptions=tuple(reader.assumptions))
     _cross_check(reader, design)
     return design
-
-
-def _read_parts(reader: _Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
-    parts_table = reader.table(raw, "parts")
-    if not parts_table:
-        raise reader.error("parts", "no parts defined; add a [parts.NAME] table with at least v_rrm "
-                                    "(or class = one of " + ", ".join(presets.PRESET_NAMES) + ")")
-    parts = {}
-    for name, table in parts_table.items():
-        prefix = f"parts.{name}"
-        if not name.strip():
-            raise reader.error(f'parts."{name}"', "a part needs a name; write [parts.NAME] with "
-                                                  "a NAME such as MAIN")
-        if not isinstance(table, Mapping):
-            raise reader.error(prefix, f"must be a table ([{prefix}])")
-        reader.check_keys(table, _SCHEMA_KEYS["part"], prefix)
-        merged: dict[str, Any] = {}
-        device_class = reader.text(table, "class", prefix)
-        if device_class is not None:
-            if device_class not in presets.PRESET_NAMES:
-                close = difflib.get_close_matches(device_class, presets.PRESET_NAMES, n=1)
-                hint = f"did you mean '{close[0]}'?" if close else \
-                    "valid classes: " + ", ".join(presets.PRESET_NAMES)
-                raise reader.error(_join(prefix, "class"), f"unknown device class {device_class!r}; "
-                                                           + hint)
-            merged.update(presets.preset(device_class))
-            inherited = sorted(set(merged) - set(table))
-            if inherited:
-                reader.assumptions.append(
-                    f"{prefix}: {', '.join(inherited)} taken from class '{device_class}'")
-        merged.update({k: v for k, v in table.items() if k not in ("class", "measured", "fit")})
-        scalars = {}
-        for key, unit in _PART_SCALARS.items():
-            default = _PART_DEFAULTS.get(key)
-            scalars[key] = reader.quantity(
-                merged, key, unit, prefix, required=(key == "v_rrm"), default=default,
-                positive=key in ("v_rrm", "i_fav", "r_th_jc", "leakage_doubling"),
-                non_negative=key in ("c_j", "r_th_cs"),
-                note=_PART_DEFAULT_NOTES.get(key))
-        exponent = scalars["leakage_voltage_exponent"]
-        if not 0.0 <= exponent <= 1.0:
-            raise reader.error(_join(prefix, "leakage_voltage_exponent"),
-                               f"must lie in [0, 1] (0.5 for generation current), got {exponent:g}")
-        spreads = {parameter: reader.spread(merged[parameter], parameter, prefix)
-                   if parameter in merged else None for parameter in SPREAD_PARAMETERS}
-        lot = _read_lot(reader, table, spreads, prefix)
-        spreads["i_r"] = _leakage_conditions(reader, spreads["i_r"], scalars["v_rrm"], prefix)
-        parts[name] = Part(name=name, device_class=device_class, measured=lot, **scalars,
-                           **spreads)
-    return parts
-
-
-def _read_lot(reader: _Reader, table: Mapping[str, Any], spreads: dict[str, Spread | None],
-              prefix: str):
-    """The part's measured lot (``measured``, ``fit``), or None; fills in a spread for each
-    measured parameter the datasheet does not give (the lot's median, min and max), so that test
-    conditions and ratings have one home."""
-    from .lots import FITS, read_lot
-
-    fit = reader.text(table, "fit", prefix, choices=FITS)
-    path_text = reader.text(table, "measured", prefix)
-    if path_text is None:
-        if fit is not None:
-            raise reader.error(_join(prefix, "fit"), "says how to use a measured lot, but the part "
-                                                     "has none; add measured = \"lot.csv\" or "
-                                                     "remove fit")
-        return None
-    if not path_text.strip():
-        raise reader.error(_join(prefix, "measured"), "is empty; give the lot's CSV file, e.g. "
-                                                      "measured = \"lot42.csv\"")
-    path = Path(path_text)
-    if not path.is_absolute() and not reader.source.startswith("<"):
-        path = Path(reader.source).parent / path
-    lot = read_lot(path, key=_join(prefix, "measured"), design_source=reader.source,
-                   fit=fit or "resample", datasheet=spreads)
-    where = Path(path_text).name
-    if fit is None:
-        reader.assumptions.append(f"{prefix}: devices resampled from the measured lot {where} "
-                                  "(fit not given)")
-    for column in lot.columns:
-        if spreads[column.parameter] is None:
-            spreads[column.parameter] = Spread(typ=column.median,
-                                               low=None if column.low == column.high else column.low,
-                                               high=None if column.low == column.high else
-                                               column.high)
-            reader.assumptions.append(
-                f"{prefix}.{column.parameter}: no datasheet row; the measured lot's median, min and "
-                "max stand for it in the textbook bounds (test conditions as noted)")
-    return lot
-
-
-def _leakage_conditions(reader: _Reader, spread: Spread | None, v_rrm: float,
-                        prefix: str) -> Spread | None:
-    """Fill in the test conditions of a leakage spread that the datasheet row left out."""
-    if spread is None:
-        return None
-    changes = {}
-    if spread.at_voltage is None:
-        changes["at_voltage"] = v_rrm
-        reader.assumptions.append(f"{prefix}.i_r: at_voltage not given, taken at V_RRM "
-                                  f"({v_rrm:g} V)")
-    if spread.at_temperature is None:
-        changes["at_temperature"] = DEFAULT_AMBIENT
-        reader.assumptions.append(f"{prefix}.i_r: at_temperature not given, taken at 25 degC")
-    return replace(spread, **changes) if changes else spread
 
 
 def _read_duty(reader: _Reader, raw: Mapping[str, Any]) -> Duty:
@@ -664,7 +369,7 @@ def _cross_check(reader: _Reader, design: Design) -> None:
                                                           "make them weaker") from None
     grid = design.string.part_grid()
     rise = design.string.temperature_rise_grid()
-    _check_serials(reader, design, grid)
+    check_serials(reader, design, grid)
     for name in design.parts_used():
         part = design.parts[name]
         if part.t_j_max is not None:
@@ -701,43 +406,3 @@ def _cross_check(reader: _Reader, design: Design) -> None:
                                "positive; a TCR is usually given in ppm/K, e.g. \"100 ppm/K\"")
 
 
-def _check_serials(reader: _Reader, design: Design, grid: np.ndarray) -> None:
-    """Each serial names a device of its position's lot, once; a resampled lot covers the string."""
-    serials = design.string.serial_grid()
-    used: dict[tuple[str, str], tuple[int, int]] = {}
-    for override_number, override in enumerate(design.string.positions, start=1):
-        if override.serial is None:
-            continue
-        key = f"string.position[{override_number}].serial"
-        row = (override.branch or 1) - 1
-        name = grid[row, override.index - 1]
-        lot = design.parts[name].measured
-        if lot is None:
-            raise reader.error(key, f"position {override.index} holds part '{name}', which has no "
-                                    "measured lot; give that part measured = \"lot.csv\" with a "
-                                    "serial column")
-        if lot.serials is None:
-            raise reader.error(key, f"the lot of part '{name}' ({Path(lot.path).name}) has no "
-                                    "'serial' column; add one")
-        if lot.row_of(override.serial) is None:
-            raise reader.error(key, f"no device {override.serial!r} in the lot of part '{name}' "
-                                    f"({Path(lot.path).name}); check the serial number")
-        if (name, override.serial) in used:
-            branch, index = used[name, override.serial]
-            raise reader.error(key, f"device {override.serial!r} already stands in position "
-                                    f"{index} (branch {branch}); one device, one position")
-        used[name, override.serial] = (row + 1, override.index)
-    for name in design.parts_used():
-        lot = design.parts[name].measured
-        if lot is None or not lot.resampled:
-            continue
-        drawn = int(np.count_nonzero((grid == name) & (serials == None)))  # noqa: E711
-        pinned = int(np.count_nonzero((grid == name) & (serials != None)))  # noqa: E711
-        available = lot.devices - pinned
-        if drawn > available:
-            raise reader.error(f"parts.{name}.measured",
-                               f"the lot {Path(lot.path).name} holds {lot.devices} device(s)"
-                               + (f", {pinned} of them placed by serial," if pinned else "")
-                               + f" but the string draws {drawn} from it; a built string takes "
-                               "each device once: measure more devices, or use a fit "
-                               "(fit = \"auto\")")

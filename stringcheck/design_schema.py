@@ -1,0 +1,203 @@
+"""The design file's key lists and the value reader shared by the table readers.
+
+:class:`_Reader` walks raw TOML tables: it converts quantities (checked against their unit), fractions,
+integers, text and spreads, collects the assumptions made on the user's behalf, and raises a
+:class:`~stringcheck.errors.DesignError` naming the file, the dotted key and the fix.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+from typing import Any, Mapping
+
+from .design import (
+    LOGNORMAL_PARAMETERS,
+    TYP_FRACTION_OF_MAX,
+    Spread,
+)
+from .errors import DesignError, QuantityError
+from .quantity import (
+    AMPERE,
+    AMPERE_PER_SECOND,
+    CELSIUS,
+    COULOMB,
+    DIMENSIONLESS,
+    OHM,
+    SECOND,
+    VOLT,
+    Unit,
+    parse_quantity,
+)
+
+_SPREAD_UNITS = {"i_r": AMPERE, "q_rr": COULOMB, "i_rm": AMPERE, "t_rr": SECOND, "v_t0": VOLT,
+                 "r_t": OHM}
+_CONDITION_UNITS = {"at_temperature": CELSIUS, "at_voltage": VOLT, "at_di_dt": AMPERE_PER_SECOND,
+                    "at_forward_current": AMPERE}
+_SCHEMA_KEYS = {
+    "design": ("title", "notes"),
+    "duty": ("reverse_voltage", "forward_current", "waveform", "frequency", "di_dt", "ambient",
+             "stray_inductance"),
+    "string": ("series", "parallel", "derating", "part", "position"),
+    "position": ("index", "branch", "part", "temperature_rise", "serial"),
+    "part": ("v_rrm", "i_fav", "i_r", "q_rr", "i_rm", "t_rr", "v_t0", "r_t", "c_j", "r_th_jc",
+             "r_th_cs", "t_j_max", "leakage_doubling", "leakage_voltage_exponent", "tempco_v_t0",
+             "tempco_r_t", "class", "measured", "fit"),
+    "spread": ("min", "typ", "max", "at_temperature", "at_voltage", "at_di_dt", "at_forward_current"),
+    "grading": ("resistor", "resistor_tolerance", "resistor_tcr", "resistor_rated_voltage",
+                "resistor_rated_power", "capacitor", "capacitor_tolerance", "capacitor_rated_voltage",
+                "damping_resistor"),
+    "thermal": ("heatsink", "r_th_sa", "path_resistance"),
+    "monte_carlo": ("trials", "seed", "confidence", "sigma_at_limit", "screened", "lot_share",
+                    "correlation"),
+    "sizing": ("target_p_fail", "target_share", "resistor_series", "capacitor_series"),
+    "review": ("tolerance",),
+}
+_TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
+              "review")
+_SERIES_NAMES = ("E6", "E12", "E24", "E48", "E96", "E192")
+
+
+class _Reader:
+    """Walks the raw TOML tables, converting values and collecting assumptions."""
+
+    def __init__(self, source: str):
+        self.source = source
+        self.assumptions: list[str] = []
+
+    def error(self, key: str, message: str) -> DesignError:
+        return DesignError(message, source=self.source, key=key)
+
+    def check_keys(self, table: Mapping[str, Any], allowed: tuple[str, ...], prefix: str) -> None:
+        for key in table:
+            if key not in allowed:
+                close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
+                hint = f"; did you mean '{close[0]}'?" if close else f"; valid keys: {', '.join(allowed)}"
+                raise self.error(_join(prefix, key), f"unknown key{hint}")
+
+    def table(self, raw: Mapping[str, Any], key: str, prefix: str = "") -> Mapping[str, Any]:
+        value = raw.get(key, {})
+        if not isinstance(value, Mapping):
+            raise self.error(_join(prefix, key), f"must be a table ([{_join(prefix, key)}]), "
+                                                 f"not {type(value).__name__}")
+        return value
+
+    def quantity(self, table: Mapping[str, Any], key: str, unit: Unit, prefix: str, *,
+                 required: bool = False, default: float | None = None, positive: bool = False,
+                 non_negative: bool = False, note: str | None = None) -> float | None:
+        dotted = _join(prefix, key)
+        if key not in table:
+            if required:
+                raise self.error(dotted, f"missing; give it in {unit.label}, e.g. {_example(unit)}")
+            if default is not None and note:
+                self.assumptions.append(f"{dotted} not given: {note}")
+            return default
+        try:
+            value = parse_quantity(table[key], unit, key=dotted)
+        except QuantityError as error:
+            message = str(error).removeprefix(f"{dotted}: ")
+            raise DesignError(message, source=self.source, key=dotted) from None
+        if positive and not value > 0:
+            raise self.error(dotted, f"must be greater than zero, got {table[key]!r}")
+        if non_negative and value < 0:
+            raise self.error(dotted, f"must not be negative, got {table[key]!r}")
+        return value
+
+    def fraction(self, table: Mapping[str, Any], key: str, prefix: str, *, default: float,
+                 low: float, high: float, low_open: bool = False, high_open: bool = True,
+                 note: str | None = None) -> float:
+        value = self.quantity(table, key, DIMENSIONLESS, prefix, default=default, note=note)
+        assert value is not None
+        below = value <= low if low_open else value < low
+        above = value >= high if high_open else value > high
+        if below or above:
+            interval = f"{'(' if low_open else '['}{low:g}, {high:g}{')' if high_open else ']'}"
+            raise self.error(_join(prefix, key), f"must lie in {interval}, got {table.get(key)!r}")
+        return value
+
+    def integer(self, table: Mapping[str, Any], key: str, prefix: str, *, default: int | None = None,
+                minimum: int = 1, maximum: int | None = None, cap: int | None = None) -> int:
+        """A whole number in ``minimum..maximum``; ``cap`` is a limit of the tool, not the schema's."""
+        dotted = _join(prefix, key)
+        if key not in table:
+            if default is None:
+                raise self.error(dotted, f"missing; give a whole number >= {minimum}")
+            return default
+        value = table[key]
+        if isinstance(value, bool) or not isinstance(value, int):
+            raise self.error(dotted, f"must be a whole number (no quotes, no unit), got {value!r}")
+        if value < minimum or (maximum is not None and value > maximum):
+            limit = f">= {minimum}" if maximum is None else f"in {minimum}..{maximum}"
+            raise self.error(dotted, f"must be a whole number {limit}, got {value}")
+        if cap is not None and value > cap:
+            raise self.error(dotted, f"must be at most {cap:,} (the largest string this tool holds "
+                                     f"in memory), got {value:,}")
+        return value
+
+    def text(self, table: Mapping[str, Any], key: str, prefix: str, *, default: str | None = None,
+             choices: tuple[str, ...] | None = None) -> str | None:
+        dotted = _join(prefix, key)
+        if key not in table:
+            return default
+        value = table[key]
+        if not isinstance(value, str):
+            raise self.error(dotted, f"must be text in quotes, got {value!r}")
+        if choices is not None and value not in choices:
+            raise self.error(dotted, f"must be one of {', '.join(repr(c) for c in choices)}, "
+                                     f"got {value!r}")
+        return value
+
+    def spread(self, raw: Any, parameter: str, prefix: str) -> Spread:
+        dotted = _join(prefix, parameter)
+        unit = _SPREAD_UNITS[parameter]
+        if not isinstance(raw, Mapping):
+            value = self.quantity({parameter: raw}, parameter, unit, prefix, positive=True)
+            assert value is not None
+            return Spread(typ=value)
+        self.check_keys(raw, _SCHEMA_KEYS["spread"], dotted)
+        lognormal = parameter in LOGNORMAL_PARAMETERS
+        values = {}
+        for bound in ("min", "typ", "max"):
+            values[bound] = self.quantity(raw, bound, unit, dotted, positive=lognormal,
+                                          non_negative=not lognormal)
+        conditions = {name: self.quantity(raw, name, condition_unit, dotted,
+                                          positive=name != "at_temperature")
+                      for name, condition_unit in _CONDITION_UNITS.items()}
+        low, typ, high = values["min"], values["typ"], values["max"]
+        if low is not None and high is not None and low > high:
+            raise self.error(dotted, f"min ({raw.get('min')!r}) is above max ({raw.get('max')!r}); "
+                                     "min <= typ <= max")
+        typ_assumed = False
+        if typ is None:
+            if high is None:
+                raise self.error(dotted, "give at least 'typ' or 'max' (a lone 'min' says too little)")
+            if low is not None:
+                typ = math.sqrt(low * high) if lognormal else 0.5 * (low + high)
+                how = "geometric mean" if lognormal else "midpoint"
+                self.assumptions.append(f"{dotted}: typ not given, taken as the {how} of min and max")
+            else:
+                typ = TYP_FRACTION_OF_MAX[parameter] * high
+                self.assumptions.append(
+                    f"{dotted}: only max given, typ taken as {TYP_FRACTION_OF_MAX[parameter]:g} x max")
+            typ_assumed = True
+        if low is not None and low > typ:
+            raise self.error(dotted, f"min ({raw.get('min')!r}) is above typ; min <= typ <= max")
+        if high is not None and high < typ:
+            raise self.error(dotted, f"typ is above max ({raw.get('max')!r}); min <= typ <= max")
+        if lognormal and typ <= 0:
+            raise self.error(dotted, "typ must be greater than zero")
+        if low is not None and high is not None and low == high == typ:
+            low = high = None
+        return Spread(typ=typ, low=low, high=high, typ_assumed=typ_assumed, **conditions)
+
+
+def _join(prefix: str, key: str) -> str:
+    return f"{prefix}.{key}" if prefix else key
+
+
+def _example(unit: Unit) -> str:
+    from .quantity import _example as example
+
+    return f'"{example(unit)}"'
+
+
