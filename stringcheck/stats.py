@@ -1,4 +1,4 @@
-"""Statistics of Monte Carlo runs: failure probability with exact confidence, moments, percentiles.
+"""Statistics of Monte Carlo runs: failure probability with exact confidence, trials needed, histograms.
 
 A trial is one built string; it fails or it does not. The number of failures in ``n`` independent
 trials is binomial, so the probability of failure is reported with the exact (Clopper-Pearson)
@@ -7,14 +7,14 @@ no failure at all, the upper end of that interval is what the run can vouch for,
 ``trials_for_upper_bound`` tells how many failure-free trials a target would need.
 
 Per-position statistics (mean, standard deviation, extremes, exceedances of a limit) are accumulated
-chunk by chunk with ``RunningMoments``, so that memory stays flat in the number of trials and the
-result does not depend on how the trials were split into chunks or worker processes.
+by the check itself (studies/check.py), block by block, so that memory stays flat in the number of
+trials and the result is the same bit for bit however the trials were split into chunks or worker
+processes.
 """
 
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -25,13 +25,9 @@ from stringcheck.errors import StringcheckError
 
 __all__ = [
     "FailureEstimate",
-    "MomentSummary",
-    "PercentileSummary",
-    "RunningMoments",
     "clopper_pearson",
     "failure_estimate",
     "histogram_counts",
-    "percentile_summary",
     "trials_for_relative_error",
     "trials_for_upper_bound",
 ]
@@ -302,289 +298,6 @@ def trials_for_relative_error(p: float, relative_error: float) -> int:
     if not (error > 0.0 and math.isfinite(error)):
         raise StringcheckError(f"relative_error must be positive, e.g. 0.1; got {relative_error!r}")
     return max(1, math.ceil((1.0 - probability) / (probability * error**2)))
-
-
-@dataclass(frozen=True)
-class PercentileSummary:
-    """Percentiles of a Monte Carlo quantity over trials.
-
-    Attributes
-    ----------
-    percentiles
-        The levels [%], e.g. ``(50.0, 90.0, 99.0)``.
-    values
-        Array of shape ``(len(percentiles),) + positions``: row ``i`` is the ``percentiles[i]``-th
-        percentile over trials, in the unit of the input.
-    trials
-        Number of trials summarised.
-    """
-
-    percentiles: tuple[float, ...]
-    values: NDArray[np.float64]
-    trials: int
-
-    def at(self, percentile: float) -> NDArray[np.float64] | float:
-        """The row for one of the stored percentile levels."""
-        for index, level in enumerate(self.percentiles):
-            if level == float(percentile):
-                return _plain(self.values[index])
-        raise StringcheckError(
-            f"percentile {percentile!r} was not computed; available: {list(self.percentiles)}"
-        )
-
-
-def percentile_summary(
-    values: ArrayLike, percentiles: Sequence[float] = (50, 90, 99)
-) -> PercentileSummary:
-    """Percentiles over trials (the leading axis) of a Monte Carlo quantity.
-
-    Parameters
-    ----------
-    values
-        Array of shape ``(trials,) + positions`` [any unit], at least one trial. NaN propagates.
-    percentiles
-        Levels [%] in [0, 100] (default 50, 90 and 99).
-
-    Returns
-    -------
-    PercentileSummary
-        The levels, the percentile values (linear interpolation between order statistics, numpy's
-        default) and the number of trials.
-
-    Raises
-    ------
-    StringcheckError
-        If there are no trials or a level is outside [0, 100].
-
-    References
-    ----------
-    .. [1] R. J. Hyndman and Y. Fan, "Sample quantiles in statistical packages", The American
-       Statistician 50 (4), 1996, pp. 361-365 (definition 7, numpy's "linear").
-    """
-    array = np.asarray(values, dtype=np.float64)
-    levels = tuple(float(level) for level in percentiles)
-    if array.ndim == 0 or array.shape[0] == 0:
-        raise StringcheckError("percentile_summary needs at least one trial on the leading axis")
-    if not levels or not all(0.0 <= level <= 100.0 for level in levels):
-        raise StringcheckError(f"percentiles must be levels in [0, 100]; got {list(percentiles)!r}")
-    return PercentileSummary(
-        percentiles=levels,
-        values=np.percentile(array, levels, axis=0),
-        trials=int(array.shape[0]),
-    )
-
-
-@dataclass(frozen=True)
-class MomentSummary:
-    """Per-position statistics accumulated by :class:`RunningMoments`.
-
-    Attributes
-    ----------
-    count
-        Number of trials.
-    mean, std, minimum, maximum
-        Per-position mean, standard deviation (with the ``ddof`` asked for), extremes; unit of
-        the input.
-    exceed_counts
-        Per position, the number of trials above the threshold (None without a threshold).
-    trials_exceeding
-        Number of trials in which any position was above its threshold (None without one).
-    """
-
-    count: int
-    mean: NDArray[np.float64]
-    std: NDArray[np.float64]
-    minimum: NDArray[np.float64]
-    maximum: NDArray[np.float64]
-    exceed_counts: NDArray[np.int64] | None
-    trials_exceeding: int | None
-
-
-class RunningMoments:
-    """Accumulate per-position moments, extremes and exceedances over chunks of trials.
-
-    Feed chunks of shape ``(chunk_trials,) + positions`` with :meth:`add`, or combine accumulators
-    from separate workers with :meth:`merge`; memory stays that of a few position-shaped arrays.
-    Any split of the same trials gives the same mean and variance to rounding error (about 1e-12
-    relative), and exactly the same count, extremes and exceedance counts.
-
-    Parameters
-    ----------
-    threshold
-        Optional limit [unit of the data] broadcast against the position shape; a value strictly
-        above it counts as an exceedance.
-
-    Notes
-    -----
-    Each chunk's mean and sum of squared deviations ``M2`` are computed in two passes, then merged
-    with the running totals (sizes ``n_a``, ``n_b``, ``delta = mean_b - mean_a``):
-
-    .. math::
-
-        mean = mean_a + \\delta \\frac{n_b}{n}, \\qquad
-        M_2 = M_{2,a} + M_{2,b} + \\delta^2 \\frac{n_a n_b}{n}.
-
-    References
-    ----------
-    .. [1] T. F. Chan, G. H. Golub and R. J. LeVeque, "Algorithms for computing the sample
-       variance: analysis and recommendations", The American Statistician 37 (3), 1983,
-       pp. 242-247.
-    .. [2] B. P. Welford, "Note on a method for calculating corrected sums of squares and
-       products", Technometrics 4 (3), 1962, pp. 419-420.
-    """
-
-    def __init__(self, *, threshold: ArrayLike | None = None):
-        self._threshold = None if threshold is None else np.asarray(threshold, dtype=np.float64)
-        self._count = 0
-        self._position_shape: tuple[int, ...] | None = None
-        self._mean: NDArray[np.float64] | None = None
-        self._m2: NDArray[np.float64] | None = None
-        self._minimum: NDArray[np.float64] | None = None
-        self._maximum: NDArray[np.float64] | None = None
-        self._exceed_counts: NDArray[np.int64] | None = None
-        self._trials_exceeding = 0
-
-    # -- feeding --------------------------------------------------------------------------------
-    def add(self, chunk: ArrayLike) -> RunningMoments:
-        """Add a chunk of trials of shape ``(chunk_trials,) + positions``; returns ``self``."""
-        array = np.asarray(chunk, dtype=np.float64)
-        if array.ndim == 0:
-            raise StringcheckError("a chunk needs a leading trial axis, shape (trials, ...)")
-        self._check_shape(array.shape[1:])
-        trials = array.shape[0]
-        if trials == 0:
-            return self
-        mean = array.mean(axis=0)
-        m2 = np.square(array - mean).sum(axis=0)
-        exceed_counts = None
-        trials_exceeding = 0
-        if self._threshold is not None:
-            above = array > self._threshold
-            exceed_counts = above.sum(axis=0, dtype=np.int64)
-            trials_exceeding = int(np.any(above.reshape(trials, -1), axis=1).sum())
-        self._combine(
-            trials, mean, m2, array.min(axis=0), array.max(axis=0), exceed_counts, trials_exceeding
-        )
-        return self
-
-    def merge(self, other: RunningMoments) -> RunningMoments:
-        """Fold another accumulator (e.g. from a worker process) into this one; returns ``self``."""
-        if (self._threshold is None) != (other._threshold is None) or (
-            self._threshold is not None and not np.array_equal(self._threshold, other._threshold)
-        ):
-            raise StringcheckError("cannot merge accumulators that use different thresholds")
-        if other._count == 0:
-            return self
-        self._check_shape(other._position_shape)
-        self._combine(
-            other._count,
-            other._mean,
-            other._m2,
-            other._minimum,
-            other._maximum,
-            other._exceed_counts,
-            other._trials_exceeding,
-        )
-        return self
-
-    def _check_shape(self, shape: tuple[int, ...]) -> None:
-        if self._position_shape is None:
-            if self._threshold is not None:
-                try:
-                    np.broadcast_shapes(self._threshold.shape, shape)
-                except ValueError:
-                    raise StringcheckError(
-                        f"threshold of shape {self._threshold.shape} does not broadcast against "
-                        f"positions of shape {shape}"
-                    ) from None
-            self._position_shape = tuple(shape)
-        elif tuple(shape) != self._position_shape:
-            raise StringcheckError(
-                f"chunk positions have shape {tuple(shape)}; earlier chunks had "
-                f"{self._position_shape}"
-            )
-
-    def _combine(self, count, mean, m2, minimum, maximum, exceed_counts, trials_exceeding) -> None:
-        if self._count == 0:
-            self._mean = np.array(mean, dtype=np.float64)
-            self._m2 = np.array(m2, dtype=np.float64)
-            self._minimum = np.array(minimum, dtype=np.float64)
-            self._maximum = np.array(maximum, dtype=np.float64)
-            self._exceed_counts = None if exceed_counts is None else np.array(exceed_counts)
-        else:
-            total = self._count + count
-            delta = mean - self._mean
-            self._mean = self._mean + delta * (count / total)
-            self._m2 = self._m2 + m2 + np.square(delta) * (self._count * count / total)
-            self._minimum = np.minimum(self._minimum, minimum)
-            self._maximum = np.maximum(self._maximum, maximum)
-            if exceed_counts is not None:
-                self._exceed_counts = self._exceed_counts + exceed_counts
-        self._count += count
-        self._trials_exceeding += trials_exceeding
-
-    # -- results --------------------------------------------------------------------------------
-    def _require_data(self) -> None:
-        if self._count == 0:
-            raise StringcheckError("no trials accumulated yet; add a chunk first")
-
-    @property
-    def count(self) -> int:
-        """Number of trials accumulated."""
-        return self._count
-
-    @property
-    def mean(self) -> NDArray[np.float64]:
-        """Per-position mean over trials."""
-        self._require_data()
-        return self._mean.copy()
-
-    def variance(self, ddof: int = 0) -> NDArray[np.float64]:
-        """Per-position variance, ``M2 / (count - ddof)`` (NaN where ``count <= ddof``)."""
-        self._require_data()
-        denominator = self._count - ddof
-        if denominator <= 0:
-            return np.full_like(self._m2, np.nan)
-        return self._m2 / denominator
-
-    def std(self, ddof: int = 0) -> NDArray[np.float64]:
-        """Per-position standard deviation, square root of :meth:`variance`."""
-        return np.sqrt(self.variance(ddof))
-
-    @property
-    def minimum(self) -> NDArray[np.float64]:
-        """Per-position smallest value seen."""
-        self._require_data()
-        return self._minimum.copy()
-
-    @property
-    def maximum(self) -> NDArray[np.float64]:
-        """Per-position largest value seen."""
-        self._require_data()
-        return self._maximum.copy()
-
-    @property
-    def exceed_counts(self) -> NDArray[np.int64] | None:
-        """Per position, trials strictly above the threshold (None without a threshold)."""
-        self._require_data()
-        return None if self._exceed_counts is None else self._exceed_counts.copy()
-
-    @property
-    def trials_exceeding(self) -> int | None:
-        """Trials in which any position was above its threshold (None without a threshold)."""
-        return None if self._threshold is None else self._trials_exceeding
-
-    def summary(self, ddof: int = 1) -> MomentSummary:
-        """Freeze the accumulated statistics into a :class:`MomentSummary`."""
-        return MomentSummary(
-            count=self.count,
-            mean=self.mean,
-            std=self.std(ddof),
-            minimum=self.minimum,
-            maximum=self.maximum,
-            exceed_counts=self.exceed_counts,
-            trials_exceeding=self.trials_exceeding,
-        )
 
 
 def histogram_counts(

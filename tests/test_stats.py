@@ -6,9 +6,8 @@ import math
 
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import given
 from hypothesis import strategies as st
-from hypothesis.extra import numpy as hnp
 from scipy import stats as scipy_stats
 
 from stringcheck import stats
@@ -193,125 +192,6 @@ def test_trials_for_relative_error_against_binomial_spread(p, relative_error):
     n = stats.trials_for_relative_error(p, relative_error)
     assert scipy_stats.binom(n, p).std() / (n * p) <= relative_error * (1 + 1e-12)
     assert scipy_stats.binom(n - 1, p).std() / ((n - 1) * p) > relative_error
-
-
-# --- percentiles ---------------------------------------------------------------------------------
-def test_percentile_summary():
-    # Hyndman and Fan (1996) definition 7: the 50th percentile of 1..100 is 50.5, the 90th 90.1.
-    summary = stats.percentile_summary(np.arange(1.0, 101.0))
-    assert summary.percentiles == (50.0, 90.0, 99.0)
-    np.testing.assert_allclose(summary.values, [50.5, 90.1, 99.01])
-    assert summary.trials == 100
-    assert summary.at(90) == pytest.approx(90.1)
-    with pytest.raises(StringcheckError, match="not computed"):
-        summary.at(95)
-
-
-def test_percentile_summary_per_position():
-    values = np.random.default_rng(7).normal(size=(500, 3, 2))
-    summary = stats.percentile_summary(values, percentiles=(5, 95))
-    assert summary.values.shape == (2, 3, 2)
-    np.testing.assert_array_equal(summary.values[1], np.percentile(values, 95, axis=0))
-    with pytest.raises(StringcheckError, match="percentiles"):
-        stats.percentile_summary(values, percentiles=(101,))
-    with pytest.raises(StringcheckError, match="at least one trial"):
-        stats.percentile_summary(np.empty((0, 3)))
-
-
-# --- running moments -----------------------------------------------------------------------------
-chunk_arrays = hnp.arrays(
-    dtype=np.float64,
-    shape=st.tuples(st.integers(1, 60), st.integers(1, 4)),
-    elements=st.floats(min_value=-1e3, max_value=1e3),
-)
-
-
-def _split(array: np.ndarray, cuts: list[int]) -> list[np.ndarray]:
-    points = sorted({cut % (array.shape[0] + 1) for cut in cuts})
-    return np.split(array, points)
-
-
-@settings(max_examples=200)
-@given(
-    array=chunk_arrays,
-    cuts=st.lists(st.integers(0, 100), max_size=8),
-    threshold=st.floats(-1e3, 1e3),
-)
-def test_running_moments_chunked_equals_one_pass(array, cuts, threshold):
-    # Chan, Golub and LeVeque (1983): the pairwise merge gives the same mean and variance as a
-    # single pass over all data. Relative tolerance 1e-12; the absolute floor (1e-12 of the data's
-    # scale) covers means and variances that are zero up to cancellation.
-    accumulator = stats.RunningMoments(threshold=threshold)
-    for chunk in _split(array, cuts):
-        accumulator.add(chunk)
-    scale = max(float(np.max(np.abs(array))), 1.0)
-    assert accumulator.count == array.shape[0]
-    np.testing.assert_allclose(accumulator.mean, array.mean(axis=0), rtol=1e-12, atol=1e-12 * scale)
-    np.testing.assert_allclose(
-        accumulator.variance(), array.var(axis=0), rtol=1e-12, atol=1e-12 * scale**2
-    )
-    if array.shape[0] > 1:
-        np.testing.assert_allclose(
-            accumulator.std(ddof=1), array.std(axis=0, ddof=1), rtol=1e-12, atol=1e-9 * scale
-        )
-    np.testing.assert_array_equal(accumulator.minimum, array.min(axis=0))
-    np.testing.assert_array_equal(accumulator.maximum, array.max(axis=0))
-    np.testing.assert_array_equal(accumulator.exceed_counts, (array > threshold).sum(axis=0))
-    assert accumulator.trials_exceeding == int(np.any(array > threshold, axis=1).sum())
-
-
-@settings(max_examples=100)
-@given(array=chunk_arrays, cut=st.integers(0, 100))
-def test_running_moments_merge_of_workers(array, cut):
-    # Two workers each see part of the trials; merging equals one accumulator over all.
-    split = cut % (array.shape[0] + 1)
-    first = stats.RunningMoments().add(array[:split])
-    second = stats.RunningMoments().add(array[split:])
-    merged = first.merge(second)
-    scale = max(float(np.max(np.abs(array))), 1.0)
-    np.testing.assert_allclose(merged.mean, array.mean(axis=0), rtol=1e-12, atol=1e-12 * scale)
-    np.testing.assert_allclose(
-        merged.variance(), array.var(axis=0), rtol=1e-12, atol=1e-12 * scale**2
-    )
-    assert merged.trials_exceeding is None and merged.exceed_counts is None
-
-
-def test_running_moments_large_offset_is_stable():
-    # A naive sum-of-squares formula loses everything at an offset of 1e9 with spread 1; the
-    # pairwise update keeps the variance (Chan, Golub and LeVeque 1983, their motivating case).
-    rng = np.random.default_rng(83)
-    data = 1e9 + rng.normal(size=(20_000, 2))
-    accumulator = stats.RunningMoments()
-    for chunk in np.array_split(data, 37):
-        accumulator.add(chunk)
-    np.testing.assert_allclose(accumulator.variance(), data.var(axis=0), rtol=1e-6)
-
-
-def test_running_moments_summary_and_positions_grid():
-    data = np.random.default_rng(3).normal(size=(200, 3, 4))
-    threshold = np.linspace(-1.0, 1.0, 4)
-    accumulator = stats.RunningMoments(threshold=threshold)
-    for chunk in np.array_split(data, 7):
-        accumulator.add(chunk)
-    summary = accumulator.summary()
-    assert summary.count == 200
-    np.testing.assert_allclose(summary.std, data.std(axis=0, ddof=1), rtol=1e-12)
-    np.testing.assert_array_equal(summary.exceed_counts, (data > threshold).sum(axis=0))
-    any_above = np.any((data > threshold).reshape(200, -1), axis=1)
-    assert summary.trials_exceeding == int(any_above.sum())
-
-
-def test_running_moments_errors():
-    accumulator = stats.RunningMoments()
-    with pytest.raises(StringcheckError, match="no trials"):
-        _ = accumulator.mean
-    accumulator.add(np.zeros((3, 2)))
-    with pytest.raises(StringcheckError, match="shape"):
-        accumulator.add(np.zeros((3, 5)))
-    with pytest.raises(StringcheckError, match="thresholds"):
-        accumulator.merge(stats.RunningMoments(threshold=1.0).add(np.zeros((1, 2))))
-    with pytest.raises(StringcheckError, match="broadcast"):
-        stats.RunningMoments(threshold=np.zeros(3)).add(np.zeros((2, 4)))
 
 
 # --- histogram counts ----------------------------------------------------------------------------
