@@ -135,21 +135,37 @@ class PositionOverride:
 
 
 @dataclass(frozen=True)
+class Mix:
+    """Mixed stock: in every built string each device independently is ``part`` with probability
+    ``fraction`` [1], in [0, 1], and otherwise the part its position holds (``review --mix``; not a
+    design-file key)."""
+
+    fraction: float
+    part: str
+
+
+@dataclass(frozen=True)
 class StringLayout:
-    """The string: ``parallel`` branches of ``series`` devices each."""
+    """The string: ``parallel`` branches of ``series`` devices each.
+
+    ``part`` and ``positions`` give the part each position holds; with a ``mix`` any device may
+    instead be the mix's part, drawn anew in every built string (``sampling.draw_strings``).
+    """
 
     series: int
     parallel: int
     derating: float
     part: str
     positions: tuple[PositionOverride, ...] = ()
+    mix: Mix | None = None
 
     def _ordered_positions(self) -> list[PositionOverride]:
         """Overrides of every branch first, so that an override of one branch is never undone."""
         return sorted(self.positions, key=lambda override: override.branch is not None)
 
     def part_grid(self) -> np.ndarray:
-        """Part name of every device, shape (parallel, series), as an object array."""
+        """Part name of every device, shape (parallel, series), as an object array (with a mix:
+        the part a position holds when its device is not substituted)."""
         grid = np.full((self.parallel, self.series), self.part, dtype=object)
         for override in self._ordered_positions():
             if override.part is None:
@@ -158,6 +174,26 @@ class StringLayout:
             for row in rows:
                 grid[row, override.index - 1] = override.part
         return grid
+
+    def part_grids(self) -> tuple[np.ndarray, ...]:
+        """The part grids a built string picks its devices from, device by device: the part grid
+        alone; with a mix of fraction 1 the mix's part everywhere; with a fraction strictly between
+        0 and 1 both (a mix of fraction 0 changes nothing)."""
+        grid = self.part_grid()
+        if self.mix is None or self.mix.fraction == 0.0:
+            return (grid,)
+        everywhere = np.full(grid.shape, self.mix.part, dtype=object)
+        return (everywhere,) if self.mix.fraction == 1.0 else (grid, everywhere)
+
+    def part_labels(self) -> np.ndarray:
+        """The part of each position as reports name it, (parallel, series): ``"A|B"`` where a mix
+        makes the part vary from string to string (A held, B mixed in), else the one part."""
+        grids = self.part_grids()
+        labels = grids[0].copy()
+        for other in grids[1:]:
+            differ = labels != other
+            labels[differ] = [f"{a}|{b}" for a, b in zip(labels[differ], other[differ])]
+        return labels
 
     def temperature_rise_grid(self) -> np.ndarray:
         """Temperature rise above ambient of every device [K], shape (parallel, series)."""
@@ -243,10 +279,12 @@ class Design:
     assumptions: tuple[str, ...] = field(default=())
 
     def parts_used(self) -> tuple[str, ...]:
-        """Names of the parts that stand in at least one position, in first-use order."""
+        """Names of the parts that stand in at least one position, in first-use order (with a mix,
+        the parts that can stand there: see ``StringLayout.part_grids``)."""
         seen: dict[str, None] = {}
-        for name in self.string.part_grid().ravel():
-            seen.setdefault(name, None)
+        for grid in self.string.part_grids():
+            for name in grid.ravel():
+                seen.setdefault(name, None)
         return tuple(seen)
 
 

@@ -20,12 +20,17 @@ Random streams: trials are grouped in blocks of :data:`BLOCK_TRIALS`. Block b dr
 ``SeedSequence(seed, spawn_key=(b, component))``. A run processes whole blocks in chunks, so the result
 does not depend on the chunk size or on how chunks are shared out among processes, and drawing one more
 parameter never changes the draws of the others.
+
+Mixed stock (``StringLayout.mix``, ``review --mix``): one more component draws a uniform u per device
+and block; the device is the mix's part where u < fraction, else the part its position holds. Every
+other draw is the one the design without the mix makes, so a mixed design and its baseline run on
+common random numbers; and the devices substituted at a fraction f1 are a subset of those at f2 > f1.
 """
 
 from __future__ import annotations
 
 import zlib
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Mapping
 
 import numpy as np
@@ -38,6 +43,7 @@ BLOCK_TRIALS = 4096
 # Stream numbers of the components that are not a device parameter.
 _RESISTOR_STREAM = 1001
 _CAPACITOR_STREAM = 1002
+_MIX_STREAM = 1003
 _LOT_STREAM_BASE = 2000
 
 
@@ -58,6 +64,11 @@ class DrawnStrings:
         Drawn grading resistance [ohm] at 25 degC, (trials, parallel, series); None without resistors.
     capacitance
         Drawn grading capacitance [F], (trials, parallel, series); None without capacitors.
+    part_index
+        With a mix: the part of every device, (trials, parallel, series), an index into
+        ``part_names``; None without a mix (each position holds its part of ``part_grid``).
+    part_names
+        The names ``part_index`` points to.
     """
 
     first_trial: int
@@ -65,6 +76,8 @@ class DrawnStrings:
     latent: Mapping[str, np.ndarray]
     resistance: np.ndarray | None
     capacitance: np.ndarray | None
+    part_index: np.ndarray | None = None
+    part_names: tuple[str, ...] = ()
 
     @property
     def trials(self) -> int:
@@ -300,7 +313,68 @@ def draw_strings(design: Design, parameters: tuple[str, ...], first_trial: int, 
     """
     seed = design.monte_carlo.seed if seed is None else seed
     latent = draw_latent(design, parameters, first_trial, count, seed)
+    if design.string.mix is not None:
+        return _mixed_strings(design, parameters, latent, first_trial, seed)
     return strings_from_latent(design, parameters, latent, first_trial)
+
+
+def _uniforms(seed: int, first_trial: int, count: int, component: int, width: int) -> np.ndarray:
+    """Uniforms on [0, 1), (count, width), for trials first_trial.. of one component, block by
+    block (as ``_normals``)."""
+    rows = []
+    trial = first_trial
+    end = first_trial + count
+    while trial < end:
+        block, offset = divmod(trial, BLOCK_TRIALS)
+        take = min(BLOCK_TRIALS - offset, end - trial)
+        rows.append(_stream(seed, block, component).random((offset + take, width))[offset:])
+        trial += take
+    return np.concatenate(rows, axis=0) if rows else np.empty((0, width))
+
+
+def substituted_devices(design: Design, first_trial: int, count: int, seed: int) -> np.ndarray:
+    """Which devices of trials ``first_trial`` .. are the mix's part, (count, parallel, series).
+
+    A device is substituted when its uniform u (the mix's own stream) is below the fraction, so it
+    is substituted with probability ``fraction`` independently of every other device and draw.
+    """
+    layout = design.string
+    width = layout.parallel * layout.series
+    u = _uniforms(seed, first_trial, count, _MIX_STREAM, width)
+    return (u < layout.mix.fraction).reshape(count, layout.parallel, layout.series)
+
+
+def _mixed_strings(design: Design, parameters: tuple[str, ...], latent: Latent, first_trial: int,
+                   seed: int) -> DrawnStrings:
+    """Built strings of a design with a mix: every device takes the draw its own part gives its
+    latent values (lot sharing within each part), chosen device by device."""
+    layout = design.string
+    mix = layout.mix
+    names = design.parts_used()
+    lookup = {name: number for number, name in enumerate(names)}
+    plain = replace(design, string=replace(layout, mix=None))
+    # Every device of the mix's part: the override parts go, their temperature rises stay.
+    kept = tuple(replace(o, part=None) for o in layout.positions if o.temperature_rise is not None)
+    everywhere = replace(design, string=replace(layout, part=mix.part, positions=kept, mix=None))
+    if mix.fraction == 1.0:
+        drawn = strings_from_latent(everywhere, parameters, latent, first_trial)
+        index = np.full((drawn.trials, layout.parallel, layout.series), lookup[mix.part],
+                        dtype=np.int16)
+        return replace(drawn, part_index=index, part_names=names)
+    base = strings_from_latent(plain, parameters, latent, first_trial)
+    grid = np.array([[lookup[name] for name in row] for row in layout.part_grid()], dtype=np.int16)
+    index = np.broadcast_to(grid, (base.trials,) + grid.shape).copy()
+    if mix.fraction == 0.0:
+        return replace(base, part_index=index, part_names=names)
+    other = strings_from_latent(everywhere, parameters, latent, first_trial)
+    swap = substituted_devices(design, first_trial, base.trials, seed)
+    index[swap] = lookup[mix.part]
+
+    def pick(a: Mapping[str, np.ndarray], b: Mapping[str, np.ndarray]) -> dict:
+        return {key: np.where(swap, b[key], a[key]) for key in a}
+
+    return replace(base, parameters=pick(base.parameters, other.parameters),
+                   latent=pick(base.latent, other.latent), part_index=index, part_names=names)
 
 
 def chunk_bounds(trials: int, chunk_trials: int) -> list[tuple[int, int]]:

@@ -31,6 +31,7 @@ from .forward_check import (
     finish_thermal,
     forward_parameters,
     forward_reasons,
+    forward_for_devices,
     forward_setup,
     run_forward_chunk,
 )
@@ -40,6 +41,13 @@ from .drivers import DRIVER_TRIALS, TOP_DRIVERS, Driver, chunk_features, label, 
 from .drivers import tightened
 from .grading_summary import GradingSummary, grading_summary
 from .rare_events import DEFAULT_SAMPLES, RareEstimate, rare_event_estimate
+from .mixed_stock import (
+    device_part_grid,
+    device_values,
+    mix_description,
+    position_values,
+    refuse_under_mix,
+)
 from .recovery_conditions import RecoveryRescaling, recovery_rescaling, rescale_charges
 from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 
@@ -120,6 +128,9 @@ class _Accumulator:
     worst_ratio: float = -np.inf
     worst_trial: int = -1
     worst_string: np.ndarray | None = None
+    # With a mix: the limit of each drawn device (trials, parallel, series) for the chunk in hand;
+    # ``limits`` then holds each position's lowest limit, for the per-position figures.
+    device_limits: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         self.maximum = np.full(self.shape, -np.inf)
@@ -141,7 +152,7 @@ class _Accumulator:
 
     def add(self, voltages: np.ndarray, solved: np.ndarray, first_trial: int) -> None:
         solved = solved & np.all(np.isfinite(voltages), axis=(1, 2))
-        ratio = voltages / self.limits
+        ratio = voltages / (self.limits if self.device_limits is None else self.device_limits)
         trial_ratio = np.where(solved, np.max(ratio, axis=(1, 2)), np.inf)
         self.unsolved += int(np.count_nonzero(~solved))
         # Sums are shifted by the limit to keep the variance sum well conditioned, and are kept
@@ -204,6 +215,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     """
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
+    if rare or drivers:
+        refuse_under_mix(design, "--rare" if rare else "--drivers")
     if trials < 1:
         raise DesignError(f"--trials must be at least 1, got {trials}", key="monte_carlo.trials")
     if design.grading.resistor is None and any(
@@ -216,11 +229,11 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         design = _with_recovery_charge(design)
     layout = design.string
     shape = (layout.parallel, layout.series)
-    grid = layout.part_grid()
-    parts = [design.parts[name] for name in grid.ravel()]
+    grid = layout.part_labels()
 
     def per_position(attribute: Callable[[Part], float]) -> np.ndarray:
-        return np.array([attribute(part) for part in parts], dtype=float).reshape(shape)
+        # With a mix these are each position's lowest values; chunks use each device's own.
+        return position_values(design, attribute)
 
     limits = layout.derating * per_position(lambda p: p.v_rrm)
     temperature = design.duty.ambient + layout.temperature_rise_grid()
@@ -302,9 +315,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         checks["thermal"] = finish_thermal(design, forward, thermal_reason, forward_sums,
                                            confidence, target, trials)
 
-    impossible = _impossibility(design, limits)
-    grading = grading_summary(design, checks, temperature, reference_voltage, reference_temperature,
-                               doubling, exponent, junction_capacitance)
+    impossible = _impossibility(design)
+    grading = grading_summary(design, checks, temperature,
+                              position_values(design, lambda p: p.c_j, pick=np.maximum))
     passed = all(check.passed for check in checks.values() if check.ran)
     if rare:
         for name in ("static", "dynamic"):
@@ -361,21 +374,43 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     design = context.design
     shape = context.limits.shape
     drawn = draw_strings(design, context.parameters, first, count, seed=context.seed)
+    devices = context if drawn.part_index is None else _for_devices(context, drawn)
+    own_limits = None if drawn.part_index is None else devices.limits
     static = dynamic = None
     if context.run_static:
-        static = _Accumulator(shape, context.limits)
-        _static_chunk(design, drawn, static, context.temperature, context.reference_voltage,
-                      context.reference_temperature, context.doubling, context.exponent)
+        static = _Accumulator(shape, context.limits, device_limits=own_limits)
+        _static_chunk(design, drawn, static, devices.temperature, devices.reference_voltage,
+                      devices.reference_temperature, devices.doubling, devices.exponent)
+        static.device_limits = None
     if context.run_dynamic:
-        dynamic = _Accumulator(shape, context.limits)
-        _dynamic_chunk(design, drawn, dynamic, context.junction_capacitance, context.rescaling)
+        dynamic = _Accumulator(shape, context.limits, device_limits=own_limits)
+        _dynamic_chunk(design, drawn, dynamic, devices.junction_capacitance, context.rescaling)
+        dynamic.device_limits = None
     forward = None
     if context.forward is not None:
-        forward = run_forward_chunk(design, context.forward, drawn)
+        forward = run_forward_chunk(design, devices.forward, drawn)
     features = None
     if first < context.driver_trials:
         features = chunk_features(drawn, design, min(count, context.driver_trials - first))
     return _ChunkOutcome(static=static, dynamic=dynamic, forward=forward, features=features)
+
+
+def _for_devices(context: _ChunkContext, drawn: DrawnStrings) -> _ChunkContext:
+    """The context with each drawn device's own part constants (a mix), (trials, parallel, series)."""
+    design = context.design
+
+    def values(attribute: Callable[[Part], float]) -> np.ndarray:
+        return device_values(design, drawn, attribute)
+
+    return replace(
+        context, limits=design.string.derating * values(lambda p: p.v_rrm),
+        reference_voltage=values(lambda p: p.i_r.at_voltage),
+        reference_temperature=values(lambda p: p.i_r.at_temperature),
+        doubling=values(lambda p: p.leakage_doubling),
+        exponent=values(lambda p: p.leakage_voltage_exponent),
+        junction_capacitance=values(lambda p: p.c_j),
+        forward=None if context.forward is None else forward_for_devices(design, context.forward,
+                                                                          drawn))
 
 
 def _static_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulator,
@@ -407,7 +442,7 @@ def _dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulato
         drawn.capacitance + junction_capacitance
     charge = drawn.parameters["q_rr"]
     if rescaling is not None:
-        charge = rescale_charges(charge, design.string.part_grid(), rescaling)
+        charge = rescale_charges(charge, device_part_grid(design, drawn), rescaling)
     capacitance = np.broadcast_to(capacitance, charge.shape)
     solution = solve_dynamic_sharing(design.duty.reverse_voltage, charge, capacitance)
     solved = np.ones(solution.voltages.shape[0], dtype=bool)
@@ -506,24 +541,24 @@ def _with_recovery_charge(design: Design) -> Design:
     return replace(design, parts=parts, assumptions=design.assumptions + tuple(notes))
 
 
-def _impossibility(design: Design, limits: np.ndarray) -> str | None:
-    """Why no built string can pass whatever is drawn (with the arithmetic), or None."""
+def _impossibility(design: Design) -> str | None:
+    """Why no built string can pass whatever is drawn (with the arithmetic), or None. With a mix
+    each position counts with the best of the parts that can stand there."""
     layout = design.string
     reasons = []
-    capacity = limits.sum(axis=1)
-    weakest = float(capacity.min())
+    capacity = layout.derating * position_values(design, lambda p: p.v_rrm, pick=np.maximum)
+    weakest = float(capacity.sum(axis=1).min())
     if design.duty.reverse_voltage > weakest:
         reasons.append(
             f"the string cannot hold {design.duty.reverse_voltage:g} V even with perfect "
             f"sharing: the sum of derating x V_RRM over the {layout.series} devices of a branch "
             f"is {weakest:g} V (derating {layout.derating:g})")
-    grid = layout.part_grid()
-    ratings = [[design.parts[name].i_fav for name in row] for row in grid]
     current = design.duty.forward_current
-    if current is not None and all(r is not None for row in ratings for r in row):
+    if current is not None and all(design.parts[n].i_fav is not None for n in design.parts_used()):
         # A branch carries no more than its weakest device's I_F(AV); perfect sharing at best
         # brings every branch to that limit at once.
-        group = sum(min(row) for row in ratings)
+        ratings = position_values(design, lambda p: p.i_fav, pick=np.maximum)
+        group = float(ratings.min(axis=1).sum())
         if current > group:
             reasons.append(
                 f"the group cannot carry {current:g} A average even with perfect sharing: the "
@@ -583,6 +618,10 @@ def _model_assumptions(design: Design, rescaling_note: str) -> tuple[str, ...]:
         f"grading resistor TCR referred to {RESISTOR_TCR_REFERENCE:g} degC, resistor at its "
         "diode's temperature",
     ]
+    if design.string.mix is not None:
+        notes.append("mixed stock: " + mix_description(design) + "; a mixed position (part A|B) "
+                     "is judged device by device against the limit of the part drawn, and its "
+                     "per-position limit shown is the lowest of the two")
     if rescaling_note:
         notes.append(rescaling_note + "; junction temperature does not enter Q_rr; the whole "
                      "string voltage is assumed to appear after recovery (hard commutation)")

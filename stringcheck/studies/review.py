@@ -6,16 +6,22 @@ latent standard-normal value in both (sampling.py keys its streams by block, par
 and only the mapping of that latent value through the part's spread differs where the part
 changed. Differences between the two results are therefore the parts' doing, not sampling noise.
 
+A mixed-stock candidate (``--mix FRACTION:PART``, :func:`mixed`) keeps the baseline's parts but
+makes every device of every built string the given part with probability FRACTION, drawn from a
+stream of its own (``sampling.substituted_devices``), so it too shares every other draw with the
+baseline.
+
 Verdict "accept" when the candidate passes and no check's P(fail) upper bound rises above the
 baseline's by more than ``[review] tolerance`` (of the baseline design); otherwise "reject".
 """
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass, replace
 
-from ..design import Design, PositionOverride
+from ..design import Design, Mix, PositionOverride
 from ..errors import StringcheckError
 from .check import CheckResult, run_check
 from .runner import worker_pool
@@ -115,6 +121,39 @@ def swapped(design: Design, positions: tuple[int, ...], part: str) -> Design:
     return replace(design, string=layout, title=title)
 
 
+_MIX = re.compile(r"^\s*([^:%\s]+)\s*(%?)\s*:\s*([^:\s]+)\s*$")
+
+
+def parse_mix(text: str, design: Design) -> tuple[float, str]:
+    """``"0.25:B"`` or ``"25%:B"`` -> (fraction [1] in [0, 1], part), checked against ``design``."""
+    match = _MIX.match(text)
+    if not match:
+        raise StringcheckError(f"--mix {text!r}: write FRACTION:PART, e.g. 0.25:B or 25%:B")
+    try:
+        fraction = float(match.group(1))
+    except ValueError:
+        raise StringcheckError(f"--mix {text!r}: {match.group(1)!r} is not a number; write "
+                               "FRACTION:PART, e.g. 0.25:B or 25%:B") from None
+    if match.group(2):
+        fraction /= 100.0
+    if not (math.isfinite(fraction) and 0.0 <= fraction <= 1.0):
+        raise StringcheckError(f"--mix {text!r}: the fraction must lie in 0..1 (or 0%..100%)")
+    part = match.group(3)
+    if part not in design.parts:
+        known = ", ".join(sorted(design.parts))
+        raise StringcheckError(f"--mix {text!r}: no part {part!r} in {design.source}; define "
+                               f"[parts.{part}] there (known: {known})")
+    return fraction, part
+
+
+def mixed(design: Design, fraction: float, part: str) -> Design:
+    """The design with mixed stock: each device of every built string is ``part`` with probability
+    ``fraction`` [1], else the part its position holds."""
+    layout = replace(design.string, mix=Mix(fraction=fraction, part=part))
+    title = f"{design.title} with {part} mixed in at {100 * fraction:.4g} % of the devices"
+    return replace(design, string=layout, title=title)
+
+
 def _ranges(positions: tuple[int, ...]) -> str:
     out, start = [], positions[0]
     for previous, current in zip(positions, positions[1:] + (None,)):
@@ -170,8 +209,8 @@ def review(baseline: Design, candidate: Design, *, trials: int | None = None,
 
 
 def _worse_positions(base: CheckResult, cand: CheckResult) -> tuple[PositionChange, ...]:
-    grid_base = base.design.string.part_grid()
-    grid_cand = cand.design.string.part_grid()
+    grid_base = base.design.string.part_labels()
+    grid_cand = cand.design.string.part_labels()
     rows = []
     for name in ("static", "dynamic", "transient"):
         a, b = base.checks.get(name), cand.checks.get(name)
@@ -192,9 +231,9 @@ def _worse_positions(base: CheckResult, cand: CheckResult) -> tuple[PositionChan
 def _reasons(baseline: Design, candidate: Design, worse) -> tuple[str, ...]:
     """Plain-words physics of each substitution (typical values compared)."""
     grid_base = baseline.string.part_grid()
-    grid_cand = candidate.string.part_grid()
-    pairs = sorted({(str(a), str(b)) for a, b in zip(grid_base.ravel(), grid_cand.ravel())
-                    if a != b})
+    # With a mix, each part that can stand at a position against the baseline's there.
+    pairs = sorted({(str(a), str(b)) for grid_cand in candidate.string.part_grids()
+                    for a, b in zip(grid_base.ravel(), grid_cand.ravel()) if a != b})
     reasons = []
     for old, new in pairs:
         a, b = baseline.parts[old], candidate.parts[new]
