@@ -15,10 +15,9 @@ from typing import Callable, Mapping
 
 import numpy as np
 
-from ..design import Design, Part, Spread
+from ..design import Design, Part
 from ..errors import DesignError
 from ..physics.leakage import leakage_current
-from ..physics.recovery import recovery_charge
 from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
 from ..solvers.series_dynamic import solve_dynamic_sharing
 from ..solvers.series_static import solve_static_sharing
@@ -41,20 +40,21 @@ from .drivers import DRIVER_TRIALS, TOP_DRIVERS, Driver, chunk_features, label, 
 from .drivers import tightened
 from .grading_summary import GradingSummary, grading_summary
 from .rare_events import DEFAULT_SAMPLES, RareEstimate, rare_event_estimate
-from .mixed_stock import (
-    device_part_grid,
-    device_values,
-    mix_description,
-    position_values,
-    refuse_under_mix,
+from .check_inputs import (
+    RESISTOR_TCR_REFERENCE,
+    dynamic_check_reason,
+    impossibility,
+    model_assumptions,
+    no_scatter,
+    with_recovery_charge,
 )
+from .mixed_stock import device_part_grid, device_values, position_values, refuse_under_mix
 from .recovery_conditions import RecoveryRescaling, recovery_rescaling, rescale_charges
 from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 
 # A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
 # in the trial count.
 _CHUNK_ELEMENTS = 1_000_000
-RESISTOR_TCR_REFERENCE = 25.0  # [degC]; resistor TCR is specified from 25 degC (common practice)
 
 ProgressCallback = Callable[[int, int], None]
 
@@ -226,7 +226,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                           "`stringcheck size` to choose them)", source=design.source,
                           key="grading.resistor")
     if only is None or "dynamic" in only:
-        design = _with_recovery_charge(design)
+        design = with_recovery_charge(design)
     layout = design.string
     shape = (layout.parallel, layout.series)
     grid = layout.part_labels()
@@ -244,7 +244,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     junction_capacitance = per_position(lambda p: p.c_j)
 
     dynamic_reason = "not requested" if only is not None and "dynamic" not in only else \
-        _dynamic_reason(design)
+        dynamic_check_reason(design)
     run_dynamic = dynamic_reason == ""
     run_static = only is None or "static" in only
     parameters = ("i_r", "q_rr") if run_dynamic else ("i_r",)
@@ -315,7 +315,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         checks["thermal"] = finish_thermal(design, forward, thermal_reason, forward_sums,
                                            confidence, target, trials)
 
-    impossible = _impossibility(design)
+    impossible = impossibility(design)
     grading = grading_summary(design, checks, temperature,
                               position_values(design, lambda p: p.c_j, pick=np.maximum))
     passed = all(check.passed for check in checks.values() if check.ran)
@@ -336,8 +336,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                        trials_needed=trials_for_upper_bound(target, confidence=confidence),
                        checks=checks, grading=grading,
                        verdict=verdict, impossible=impossible,
-                       assumptions=design.assumptions + _model_assumptions(design, rescaling_note),
-                       no_scatter=_no_scatter(design, parameters), drivers=ranking)
+                       assumptions=design.assumptions + model_assumptions(design, rescaling_note),
+                       no_scatter=no_scatter(design, parameters), drivers=ranking)
 
 
 @dataclass(frozen=True)
@@ -498,75 +498,6 @@ def _not_run(name: str, reason: str) -> SeriesCheck:
                        positions=(), histogram=())
 
 
-def _dynamic_reason(design: Design) -> str:
-    """Why the dynamic check cannot run ("" when it can)."""
-    if design.duty.waveform == "dc" and design.duty.di_dt is None:
-        return ("dc duty with no turn-off: give duty.di_dt (or an ac waveform) to check the "
-                "voltage sharing at turn-off")
-    if design.grading.capacitor is None:
-        bare = [name for name in design.parts_used() if design.parts[name].c_j <= 0]
-        if bare:
-            raise DesignError(
-                "the dynamic check needs capacitance at every stage: give grading.capacitor, or "
-                f"the junction capacitance c_j of part(s) {', '.join(bare)}",
-                source=design.source, key="grading.capacitor")
-    return ""
-
-
-def _with_recovery_charge(design: Design) -> Design:
-    """Fill in Q_rr from I_RM and t_rr (Q_rr = 1/2 I_RM t_rr) where a part gives those but not Q_rr."""
-    if _dynamic_reason(design):
-        return design
-    parts = dict(design.parts)
-    notes = []
-    for name in design.parts_used():
-        part = parts[name]
-        if part.q_rr is not None:
-            continue
-        if part.i_rm is None or part.t_rr is None:
-            raise DesignError("missing; the dynamic check needs the recovery charge, or both i_rm "
-                              "and t_rr to derive it", source=design.source,
-                              key=f"parts.{name}.q_rr")
-        typ = float(recovery_charge(part.i_rm.typ, part.t_rr.typ))
-        high = None
-        if part.i_rm.high is not None or part.t_rr.high is not None:
-            high = float(recovery_charge(part.i_rm.high or part.i_rm.typ,
-                                         part.t_rr.high or part.t_rr.typ))
-        parts[name] = replace(part, q_rr=Spread(typ=typ, high=high, at_di_dt=part.i_rm.at_di_dt,
-                                                typ_assumed=True))
-        notes.append(f"parts.{name}.q_rr derived as 1/2 I_RM t_rr from i_rm and t_rr "
-                     "(max from the product of maxima: conservative)")
-    if not notes:
-        return design
-    return replace(design, parts=parts, assumptions=design.assumptions + tuple(notes))
-
-
-def _impossibility(design: Design) -> str | None:
-    """Why no built string can pass whatever is drawn (with the arithmetic), or None. With a mix
-    each position counts with the best of the parts that can stand there."""
-    layout = design.string
-    reasons = []
-    capacity = layout.derating * position_values(design, lambda p: p.v_rrm, pick=np.maximum)
-    weakest = float(capacity.sum(axis=1).min())
-    if design.duty.reverse_voltage > weakest:
-        reasons.append(
-            f"the string cannot hold {design.duty.reverse_voltage:g} V even with perfect "
-            f"sharing: the sum of derating x V_RRM over the {layout.series} devices of a branch "
-            f"is {weakest:g} V (derating {layout.derating:g})")
-    current = design.duty.forward_current
-    if current is not None and all(design.parts[n].i_fav is not None for n in design.parts_used()):
-        # A branch carries no more than its weakest device's I_F(AV); perfect sharing at best
-        # brings every branch to that limit at once.
-        ratings = position_values(design, lambda p: p.i_fav, pick=np.maximum)
-        group = float(ratings.min(axis=1).sum())
-        if current > group:
-            reasons.append(
-                f"the group cannot carry {current:g} A average even with perfect sharing: the "
-                f"{layout.parallel} branch(es) together are rated {group:g} A (the sum over the "
-                "branches of the weakest device's i_fav)")
-    return "; ".join(reasons) if reasons else None
-
-
 def evaluate_strings(context: _ChunkContext, drawn: DrawnStrings, check: str) -> np.ndarray:
     """Each drawn string's worst stress ratio in ``check`` ("static" or "dynamic"); inf unsolved."""
     accumulator = _Accumulator(context.limits.shape, context.limits)
@@ -607,37 +538,3 @@ def _drivers(design: Design, checks, features: dict[str, list], ratios: dict[str
             out.append(Driver(check=name, input=driver, label=label(driver), rank_correlation=rho,
                               tightened_p99_ratio=p99, tightened_p_fail_upper=upper))
     return tuple(out)
-
-
-def _model_assumptions(design: Design, rescaling_note: str) -> tuple[str, ...]:
-    notes = [
-        "static: the peak reverse voltage is held as dc; at line frequency the grading capacitors "
-        "also share the voltage, which this check does not credit",
-        "junction temperature = ambient + the position's temperature_rise (no self-heating); "
-        "leakage referred from its datasheet temperature with the part's doubling temperature",
-        f"grading resistor TCR referred to {RESISTOR_TCR_REFERENCE:g} degC, resistor at its "
-        "diode's temperature",
-    ]
-    if design.string.mix is not None:
-        notes.append("mixed stock: " + mix_description(design) + "; a mixed position (part A|B) "
-                     "is judged device by device against the limit of the part drawn, and its "
-                     "per-position limit shown is the lowest of the two")
-    if rescaling_note:
-        notes.append(rescaling_note + "; junction temperature does not enter Q_rr; the whole "
-                     "string voltage is assumed to appear after recovery (hard commutation)")
-    return tuple(notes)
-
-
-def _no_scatter(design: Design, parameters: tuple[str, ...]) -> tuple[str, ...]:
-    notes = []
-    for name in design.parts_used():
-        for parameter in parameters:
-            spread = design.parts[name].spread(parameter)
-            if spread is not None and spread.fixed:
-                notes.append(f"parts.{name}.{parameter}")
-    grading = design.grading
-    if grading.resistor is not None and grading.resistor_tolerance == 0:
-        notes.append("grading.resistor (no tolerance given)")
-    if grading.capacitor is not None and grading.capacitor_tolerance == 0:
-        notes.append("grading.capacitor (no tolerance given)")
-    return tuple(notes)
