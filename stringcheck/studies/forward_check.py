@@ -169,6 +169,7 @@ class ForwardChunk:
     power_total: np.ndarray | None = None
     ballast: np.ndarray | None = None
     ballast_loss_per_ohm: np.ndarray | None = None
+    branch_limit: np.ndarray | None = None
     runaway_ambient: np.ndarray | None = None
 
 
@@ -331,6 +332,8 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings) 
     chunk = ForwardChunk(first_trial=drawn.first_trial, share=share, current_ratio=current_ratio,
                          branch_current=average, **(outcome_tj or {}))
     if setup.run_parallel:
+        # Each branch's rated current, its weakest device's (with a mix, of the parts drawn).
+        chunk.branch_limit = np.broadcast_to(np.min(setup.rated_current, axis=-1), average.shape)
         needs = share > setup.target_share
         ballast = np.zeros(count)
         loss_per_ohm = np.zeros(count)
@@ -399,14 +402,15 @@ def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulato
     finite = ratio[np.isfinite(ratio)]
     mean = currents.mean(axis=-1, keepdims=True)
     branch_share = currents / mean
-    limit = np.nanmin(setup.rated_current, axis=-1)
+    limit = np.nanmin(setup.rated_current, axis=-1)  # with a mix the lowest the branch can have
+    drawn_limit = accumulator.joined("branch_limit")
     branches = tuple(
         BranchStatistics(branch=b + 1, limit_current=float(limit[b]),
                          mean_current=float(np.nanmean(currents[:, b])),
                          max_current=float(np.nanmax(currents[:, b])),
                          mean_share=float(np.nanmean(branch_share[:, b])),
                          max_share=float(np.nanmax(branch_share[:, b])),
-                         failures=int(np.count_nonzero(currents[:, b] > limit[b])))
+                         failures=int(np.count_nonzero(currents[:, b] > drawn_limit[:, b])))
         for b in range(currents.shape[1]))
     worst_share = float(np.nanmax(share))
     ballast = _ballast_advice(setup.target_share, accumulator.joined("ballast"),

@@ -37,10 +37,12 @@ def position_values(design: Design, attribute: Attribute, *, pick=np.minimum) ->
 
 def device_values(design: Design, drawn: DrawnStrings, attribute: Attribute) -> np.ndarray:
     """``attribute`` of the part of every drawn device: (trials, parallel, series) with a mix,
-    else the per-position (parallel, series) array."""
+    else (and where every part has the same value) a per-position (parallel, series) array."""
     if drawn.part_index is None:
         return position_values(design, attribute)
     table = np.array([attribute(design.parts[name]) for name in drawn.part_names], dtype=float)
+    if np.all(table == table[0]):  # the same for every part: no need for a per-trial array
+        return np.full(drawn.part_index.shape[1:], table[0])
     return table[drawn.part_index]
 
 
