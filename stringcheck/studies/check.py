@@ -28,9 +28,9 @@ from .forward_check import (
     ForwardSetup,
     finish_parallel,
     finish_thermal,
+    forward_for_devices,
     forward_parameters,
     forward_reasons,
-    forward_for_devices,
     forward_setup,
     run_forward_chunk,
 )

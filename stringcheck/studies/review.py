@@ -21,7 +21,9 @@ import math
 import re
 from dataclasses import dataclass, replace
 
-from ..design import Design, Mix, PositionOverride
+import numpy as np
+
+from ..design import MAX_LEAKAGE_DOUBLINGS, Design, Mix, PositionOverride
 from ..errors import StringcheckError
 from .check import CheckResult, run_check
 from .runner import worker_pool
@@ -102,7 +104,10 @@ def parse_swap(text: str, design: Design) -> tuple[tuple[int, ...], str]:
         known = ", ".join(sorted(design.parts))
         raise StringcheckError(f"--swap {text!r}: no part {part!r} in {design.source}; define "
                                f"[parts.{part}] there (known: {known})")
-    return tuple(sorted(set(positions))), part
+    positions = tuple(sorted(set(positions)))
+    _check_substitute(design, part, f"--swap {text!r}",
+                      design.string.temperature_rise_grid()[:, [p - 1 for p in positions]])
+    return positions, part
 
 
 def swapped(design: Design, positions: tuple[int, ...], part: str) -> Design:
@@ -143,7 +148,29 @@ def parse_mix(text: str, design: Design) -> tuple[float, str]:
         known = ", ".join(sorted(design.parts))
         raise StringcheckError(f"--mix {text!r}: no part {part!r} in {design.source}; define "
                                f"[parts.{part}] there (known: {known})")
+    _check_substitute(design, part, f"--mix {text!r}", design.string.temperature_rise_grid())
     return fraction, part
+
+
+def _check_substitute(design: Design, name: str, option: str, rise) -> None:
+    """What the design reader checks of a part in use, for a part the option brings in; ``rise``
+    holds the temperature rises [K] of the positions it may take."""
+    part = design.parts[name]
+    if part.i_r is None:
+        raise StringcheckError(f"{option}: part {name!r} gives no i_r; the static check needs its "
+                               f"reverse leakage: add parts.{name}.i_r to {design.source}")
+    hottest = design.duty.ambient + float(np.max(rise))
+    if part.t_j_max is not None and hottest >= part.t_j_max:
+        raise StringcheckError(f"{option}: ambient plus temperature rise ({hottest:g} degC) is not "
+                               f"below t_j_max of part {name!r} ({part.t_j_max:g} degC); choose "
+                               "another part or lower duty.ambient")
+    temperatures = design.duty.ambient + np.asarray(rise, dtype=float)
+    doublings = float(np.max(np.abs(temperatures - part.i_r.at_temperature))) / \
+        part.leakage_doubling
+    if doublings > MAX_LEAKAGE_DOUBLINGS:
+        raise StringcheckError(f"{option}: referring part {name!r}'s leakage from its "
+                               f"i_r.at_temperature takes {doublings:.3g} doublings, more than "
+                               f"{MAX_LEAKAGE_DOUBLINGS}; check parts.{name}.leakage_doubling")
 
 
 def mixed(design: Design, fraction: float, part: str) -> Design:

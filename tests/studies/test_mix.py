@@ -25,7 +25,7 @@ from stringcheck.report.export import result_to_dict
 from stringcheck.sampling import BLOCK_TRIALS, draw_strings, substituted_devices
 from stringcheck.solvers.series_static import solve_static_sharing
 from stringcheck.studies.check import run_check
-from stringcheck.studies.review import mixed, parse_mix, review, swapped
+from stringcheck.studies.review import mixed, parse_mix, parse_swap, review, swapped
 
 runner = CliRunner()
 EXAMPLES = Path(__file__).resolve().parents[2] / "examples"
@@ -266,6 +266,26 @@ def test_mix_strings(text, expected):
 def test_bad_mix_strings_name_the_problem(text, fragment):
     with pytest.raises(StringcheckError, match=fragment):
         parse_mix(text, parse_design_text(BASE))
+
+
+def test_a_substitute_is_checked_as_the_reader_checks_a_part_in_use():
+    text = BASE + """
+[parts.NOLEAK]
+v_rrm = "1.6 kV"
+q_rr = { typ = "1.0 uC" }
+[parts.COOL]
+v_rrm = "1.6 kV"
+i_r = { typ = "1 uA", at_temperature = "25 degC" }
+q_rr = { typ = "1.0 uC" }
+t_j_max = "20 degC"
+"""
+    design = parse_design_text(text)
+    with pytest.raises(StringcheckError, match="NOLEAK.*i_r"):
+        parse_mix("0.1:NOLEAK", design)
+    with pytest.raises(StringcheckError, match="t_j_max of part 'COOL'"):
+        parse_mix("0.1:COOL", design)
+    with pytest.raises(StringcheckError, match="--swap.*NOLEAK.*i_r"):
+        parse_swap("2:NOLEAK", design)
 
 
 def test_rare_and_drivers_refuse_a_mix():
