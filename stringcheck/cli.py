@@ -328,21 +328,23 @@ def size(
                        find_series=find_series, workers=workers, transient=transient), debug)
 
 
-def _review(base_path: Path, candidate_path: Optional[Path], *, swap, trials, seed, json_path,
-            quiet, workers, transient) -> int:
+def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trials, seed,
+            json_path, quiet, workers, transient) -> int:
     from .design import load_design
     from .report.export import check_output_targets, json_text, write_text_atomic
     from .report.review import render_review, render_review_summary, review_to_dict
-    from .studies.review import parse_swap, review, swapped
+    from .studies.review import mixed, parse_mix, parse_swap, review, swapped
 
     baseline = load_design(base_path)
     check_output_targets({"--json": json_path},
                          inputs=[base_path] + ([candidate_path] if candidate_path else []))
-    if (candidate_path is None) == (swap is None):
-        raise StringcheckError("give either a CANDIDATE design file or --swap POSITIONS:PART "
-                               "(e.g. --swap 1-4:B), not both and not neither")
+    if [candidate_path, swap, mix].count(None) != 2:
+        raise StringcheckError("give exactly one of a CANDIDATE design file, --swap POSITIONS:PART "
+                               "(e.g. --swap 1-4:B) or --mix FRACTION:PART (e.g. --mix 0.25:B)")
     if candidate_path is not None:
         candidate = load_design(candidate_path)
+    elif mix is not None:
+        candidate = mixed(baseline, *parse_mix(mix, baseline))
     else:
         positions, part = parse_swap(swap, baseline)
         candidate = swapped(baseline, positions, part)
@@ -370,6 +372,10 @@ def review(
     swap: Optional[str] = typer.Option(None, "--swap", metavar="POSITIONS:PART",
                                        help="Candidate = BASE with PART (defined in BASE) in these "
                                             "positions of every branch, e.g. 1-4:B or 7,9:B."),
+    mix: Optional[str] = typer.Option(None, "--mix", metavar="FRACTION:PART",
+                                      help="Candidate = BASE with mixed stock: every device of "
+                                           "every built string is PART (defined in BASE) with "
+                                           "probability FRACTION, e.g. 0.25:B or 25%:B."),
     trials: Optional[int] = _TRIALS,
     seed: Optional[int] = _SEED,
     json: Optional[str] = _JSON,
@@ -379,7 +385,7 @@ def review(
     debug: bool = _DEBUG,
 ) -> None:
     """May a candidate replace the baseline? Both checked on the same draws; exit 0 accept, 1 reject."""
-    _run(lambda: _review(base, candidate, swap=swap, trials=trials, seed=seed, json_path=json,
+    _run(lambda: _review(base, candidate, swap=swap, mix=mix, trials=trials, seed=seed, json_path=json,
                          quiet=quiet, workers=workers, transient=transient), debug)
 
 

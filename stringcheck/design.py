@@ -10,7 +10,7 @@ list every assumption that was made on the user's behalf.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING, Mapping
 
 import numpy as np
@@ -144,14 +144,29 @@ class PositionOverride:
 
 
 @dataclass(frozen=True)
+class Mix:
+    """Mixed stock: in every built string each device independently is ``part`` with probability
+    ``fraction`` [1], in [0, 1], and otherwise the part its position holds (``review --mix``; not a
+    design-file key)."""
+
+    fraction: float
+    part: str
+
+
+@dataclass(frozen=True)
 class StringLayout:
-    """The string: ``parallel`` branches of ``series`` devices each."""
+    """The string: ``parallel`` branches of ``series`` devices each.
+
+    ``part`` and ``positions`` give the part each position holds; with a ``mix`` any device may
+    instead be the mix's part, drawn anew in every built string (``sampling.draw_strings``).
+    """
 
     series: int
     parallel: int
     derating: float
     part: str
     positions: tuple[PositionOverride, ...] = ()
+    mix: Mix | None = None
 
     def _grid(self, attribute: str, fill, dtype) -> np.ndarray:
         """``attribute`` of the overrides over every device, ``fill`` where none sets it.
@@ -169,13 +184,34 @@ class StringLayout:
         return grid
 
     def part_grid(self) -> np.ndarray:
-        """Part name of every device, shape (parallel, series), as an object array."""
+        """Part name of every device, shape (parallel, series), as an object array (with a mix:
+        the part a position holds when its device is not substituted)."""
         return self._grid("part", self.part, object)
 
     def serial_grid(self) -> np.ndarray:
         """Serial number of the measured device in every position (None where drawn from the
         part), shape (parallel, series), as an object array."""
         return self._grid("serial", None, object)
+
+    def part_grids(self) -> tuple[np.ndarray, ...]:
+        """The part grids a built string picks its devices from, device by device: the part grid
+        alone; with a mix of fraction 1 the mix's part everywhere; with a fraction strictly between
+        0 and 1 both (a mix of fraction 0 changes nothing)."""
+        grid = self.part_grid()
+        if self.mix is None or self.mix.fraction == 0.0:
+            return (grid,)
+        everywhere = np.full(grid.shape, self.mix.part, dtype=object)
+        return (everywhere,) if self.mix.fraction == 1.0 else (grid, everywhere)
+
+    def part_labels(self) -> np.ndarray:
+        """The part of each position as reports name it, (parallel, series): ``"A|B"`` where a mix
+        makes the part vary from string to string (A held, B mixed in), else the one part."""
+        grids = self.part_grids()
+        labels = grids[0].copy()
+        for other in grids[1:]:
+            differ = labels != other
+            labels[differ] = [f"{a}|{b}" for a, b in zip(labels[differ], other[differ])]
+        return labels
 
     def temperature_rise_grid(self) -> np.ndarray:
         """Temperature rise above ambient of every device [K], shape (parallel, series)."""
@@ -253,11 +289,33 @@ class Design:
     review: Review
     assumptions: tuple[str, ...] = field(default=())
 
+    def mix_variants(self) -> tuple["Design", ...]:
+        """The mix-free designs a built string picks its devices from, device by device: the design
+        itself without a mix; with a mix also the design with the mix's part in every position
+        (temperature rises kept; a device placed by serial number is never substituted)."""
+        layout = self.string
+        plain = replace(self, string=replace(layout, mix=None))
+        if layout.mix is None:
+            return (plain,)
+        grid = layout.part_grid()
+        kept = []
+        for override in layout.positions:
+            if override.serial is not None:
+                row = (override.branch or 1) - 1
+                kept.append(replace(override, part=grid[row, override.index - 1]))
+            elif override.temperature_rise is not None:
+                kept.append(replace(override, part=None))
+        everywhere = replace(self, string=replace(layout, part=layout.mix.part,
+                                                  positions=tuple(kept), mix=None))
+        return plain, everywhere
+
     def parts_used(self) -> tuple[str, ...]:
-        """Names of the parts that stand in at least one position, in first-use order."""
+        """Names of the parts that stand in at least one position, in first-use order (with a mix,
+        the parts that can stand there: see ``StringLayout.part_grids``)."""
         seen: dict[str, None] = {}
-        for name in self.string.part_grid().ravel():
-            seen.setdefault(name, None)
+        for grid in self.string.part_grids():
+            for name in grid.ravel():
+                seen.setdefault(name, None)
         return tuple(seen)
 
 

@@ -155,7 +155,6 @@ def _leakage_conditions(reader: _Reader, spread: Spread | None, v_rrm: float,
 
 def check_serials(reader: _Reader, design: Design, grid: np.ndarray) -> None:
     """Each serial names a device of its position's lot, once; a resampled lot covers the string."""
-    serials = design.string.serial_grid()
     used: dict[tuple[str, str], tuple[int, int]] = {}
     for override_number, override in enumerate(design.string.positions, start=1):
         if override.serial is None:
@@ -179,12 +178,21 @@ def check_serials(reader: _Reader, design: Design, grid: np.ndarray) -> None:
             raise reader.error(key, f"device {override.serial!r} already stands in position "
                                     f"{index} (branch {branch}); one device, one position")
         used[name, override.serial] = (row + 1, override.index)
+    check_lot_sizes(reader, design)
+
+
+def check_lot_sizes(reader: _Reader, design: Design) -> None:
+    """A resampled lot holds every device a built string draws from it (with a mix, in the
+    variant that draws the most: ``Design.mix_variants``)."""
+    serials = design.string.serial_grid()
+    placed = ~np.equal(serials, None)
     for name in design.parts_used():
         lot = design.parts[name].measured
         if lot is None or not lot.resampled:
             continue
-        drawn = int(np.count_nonzero((grid == name) & (serials == None)))  # noqa: E711
-        pinned = int(np.count_nonzero((grid == name) & (serials != None)))  # noqa: E711
+        pinned = int(np.count_nonzero((design.string.part_grid() == name) & placed))
+        drawn = max(int(np.count_nonzero((variant.string.part_grid() == name) & ~placed))
+                    for variant in design.mix_variants())
         available = lot.devices - pinned
         if drawn > available:
             raise reader.error(f"parts.{name}.measured",

@@ -20,12 +20,17 @@ Random streams: trials are grouped in blocks of :data:`BLOCK_TRIALS`. Block b dr
 ``SeedSequence(seed, spawn_key=(b, component))``. A run processes whole blocks in chunks, so the result
 does not depend on the chunk size or on how chunks are shared out among processes, and drawing one more
 parameter never changes the draws of the others.
+
+Mixed stock (``StringLayout.mix``, ``review --mix``): one more component draws a uniform u per device
+and block; the device is the mix's part where u < fraction, else the part its position holds. Every
+other draw is the one the design without the mix makes, so a mixed design and its baseline run on
+common random numbers; and the devices substituted at a fraction f1 are a subset of those at f2 > f1.
 """
 
 from __future__ import annotations
 
 import zlib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Mapping
 
 import numpy as np
@@ -38,6 +43,7 @@ BLOCK_TRIALS = 4096
 # Stream numbers of the components that are not a device parameter.
 _RESISTOR_STREAM = 1001
 _CAPACITOR_STREAM = 1002
+_MIX_STREAM = 1003
 _LOT_STREAM_BASE = 2000
 # Which devices of a measured lot stand in a string: one stream per part, apart from its lot stream.
 _MEASURED_STREAM_BASE = 3_000_000
@@ -62,6 +68,11 @@ class DrawnStrings:
         Drawn grading resistance [ohm] at 25 degC, (trials, parallel, series); None without resistors.
     capacitance
         Drawn grading capacitance [F], (trials, parallel, series); None without capacitors.
+    part_index
+        With a mix: the part of every device, (trials, parallel, series), an index into
+        ``part_names``; None without a mix (each position holds its part of ``part_grid``).
+    part_names
+        The names ``part_index`` points to.
     """
 
     first_trial: int
@@ -69,6 +80,8 @@ class DrawnStrings:
     latent: Mapping[str, np.ndarray]
     resistance: np.ndarray | None
     capacitance: np.ndarray | None
+    part_index: np.ndarray | None = None
+    part_names: tuple[str, ...] = ()
 
     @property
     def trials(self) -> int:
@@ -281,10 +294,14 @@ def draw_latent(design: Design, parameters: tuple[str, ...], first_trial: int, c
     if grading.capacitor is not None:
         capacitor = _normals(seed, first_trial, count, _CAPACITOR_STREAM, devices).reshape(shape)
     rows = {}
+    variants = design.mix_variants()
     for name in design.parts_used():
         measured = design.parts[name].measured
         if measured is not None and measured.resampled:
-            take = int(np.count_nonzero(_drawn_from_lot(design, name)))
+            # With a mix, enough rows for the variant that draws the most devices of the part; a
+            # variant drawing fewer takes the first of them (still a sample without replacement).
+            take = max(int(np.count_nonzero(_drawn_from_lot(variant, name)))
+                       for variant in variants)
             if take:
                 rows[name] = _lot_rows(seed, first_trial, count, _measured_stream_id(name),
                                        len(_lot_pool(design, name)), take)
@@ -330,7 +347,8 @@ def _apply_measured(design: Design, parameters: tuple[str, ...], latent: Latent,
                 if name not in latent.measured_rows:
                     raise ValueError(f"part {name!r} is resampled from a measured lot: its rows "
                                      "are not latent normal values")
-                rows = _lot_pool(design, name)[latent.measured_rows[name]]
+                chosen = latent.measured_rows[name][:, :int(np.count_nonzero(drawn))]
+                rows = _lot_pool(design, name)[chosen]
                 for parameter in measured:
                     column = lot.parameters.index(parameter)
                     values[parameter][:, drawn] = lot.values[rows, column]
@@ -427,7 +445,60 @@ def draw_strings(design: Design, parameters: tuple[str, ...], first_trial: int, 
     """
     seed = design.monte_carlo.seed if seed is None else seed
     latent = draw_latent(design, parameters, first_trial, count, seed)
+    if design.string.mix is not None:
+        return _mixed_strings(design, parameters, latent, first_trial, seed)
     return strings_from_latent(design, parameters, latent, first_trial)
+
+
+def _uniforms(seed: int, first_trial: int, count: int, component: int, width: int) -> np.ndarray:
+    """Uniforms on [0, 1), (count, width), for trials first_trial.. of one component, block by
+    block (as ``_normals``)."""
+    return _block_draws(seed, first_trial, count, component, width,
+                        lambda generator, rows: generator.random((rows, width)))
+
+
+def substituted_devices(design: Design, first_trial: int, count: int, seed: int) -> np.ndarray:
+    """Which devices of trials ``first_trial`` .. are the mix's part, (count, parallel, series).
+
+    A device is substituted when its uniform u (the mix's own stream) is below the fraction, so it
+    is substituted with probability ``fraction`` independently of every other device and draw.
+    """
+    layout = design.string
+    width = layout.parallel * layout.series
+    u = _uniforms(seed, first_trial, count, _MIX_STREAM, width)
+    # A device placed by serial number is the one built in: never substituted.
+    placed = ~np.equal(layout.serial_grid(), None)
+    return (u < layout.mix.fraction).reshape(count, layout.parallel, layout.series) & ~placed
+
+
+def _mixed_strings(design: Design, parameters: tuple[str, ...], latent: Latent, first_trial: int,
+                   seed: int) -> DrawnStrings:
+    """Built strings of a design with a mix: every device takes the draw its own part gives its
+    latent values (lot sharing within each part), chosen device by device."""
+    layout = design.string
+    mix = layout.mix
+    names = design.parts_used()
+    lookup = {name: number for number, name in enumerate(names)}
+    plain, everywhere = design.mix_variants()
+    if mix.fraction == 1.0:
+        drawn = strings_from_latent(everywhere, parameters, latent, first_trial)
+        index = np.full((drawn.trials, layout.parallel, layout.series), lookup[mix.part],
+                        dtype=np.int16)
+        return replace(drawn, part_index=index, part_names=names)
+    base = strings_from_latent(plain, parameters, latent, first_trial)
+    grid = np.array([[lookup[name] for name in row] for row in layout.part_grid()], dtype=np.int16)
+    index = np.broadcast_to(grid, (base.trials,) + grid.shape).copy()
+    if mix.fraction == 0.0:
+        return replace(base, part_index=index, part_names=names)
+    other = strings_from_latent(everywhere, parameters, latent, first_trial)
+    swap = substituted_devices(design, first_trial, base.trials, seed)
+    index[swap] = lookup[mix.part]
+
+    def pick(a: Mapping[str, np.ndarray], b: Mapping[str, np.ndarray]) -> dict:
+        return {key: np.where(swap, b[key], a[key]) for key in a}
+
+    return replace(base, parameters=pick(base.parameters, other.parameters),
+                   latent=pick(base.latent, other.latent), part_index=index, part_names=names)
 
 
 def chunk_bounds(trials: int, chunk_trials: int) -> list[tuple[int, int]]:

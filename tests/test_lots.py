@@ -401,3 +401,75 @@ def test_cli_bad_lot_is_one_line_exit_2(tmp_path):
     lines = [line for line in result.output.splitlines() if line.strip()]
     assert len(lines) == 1 and "line 3, column 'q_rr [nC]': 'oops' is not a number" in lines[0]
     assert "Traceback" not in result.output
+
+
+# --- measured lots in a review (swap and mix) ----------------------------------------------------
+
+_PART_B = """
+[parts.B]
+v_rrm = "2 kV"
+i_r = { typ = "0.4 uA", max = "4 uA", at_voltage = "2 kV", at_temperature = "25 degC" }
+q_rr = { typ = "60 nC", max = "120 nC", at_di_dt = "10 A/us" }
+c_j = "15 pF"
+measured = "lot_b.csv"
+"""
+
+
+def _write_lot_b(folder: Path, devices: int) -> None:
+    # B's devices leak ten times more than A's (whole decades apart, so no value is in both lots).
+    leakage, charge = _lot_values(devices, seed=8)
+    _write_lot(folder, name="lot_b.csv", rows=[f"B{k:03d},{10 * a + 5:.6g},{b:.6g}" for k, (a, b)
+                                               in enumerate(zip(leakage, charge))])
+
+
+def _design_with_b(folder: Path, *, series: int, positions: str = ""):
+    text = DESIGN.format(series=series, parallel=1, fit="", positions=positions, lot="lot.csv",
+                         voltage="12 kV") + _PART_B
+    (folder / "design.toml").write_text(text)
+    return load_design(folder / "design.toml")
+
+
+def test_mix_with_a_resampled_substitute_draws_distinct_devices(tmp_path):
+    from stringcheck.sampling import substituted_devices
+    from stringcheck.studies.review import mixed
+
+    _write_lot(tmp_path, 40)
+    _write_lot_b(tmp_path, 12)
+    design = mixed(_design_with_b(tmp_path, series=12), 0.5, "B")
+    drawn = draw_strings(design, ("i_r", "q_rr"), 0, 400)
+    swap = substituted_devices(design, 0, 400, design.monte_carlo.seed)
+    lot_b = design.parts["B"].measured.column("i_r")
+    leakage = drawn.parameters["i_r"]
+    # Substituted devices come from B's lot, the others from A's, none twice in one string.
+    assert np.all(np.isin(leakage[swap], lot_b))
+    assert not np.any(np.isin(leakage[~swap], lot_b))
+    assert all(np.unique(row).size == row.size for row in leakage.reshape(400, -1))
+    assert 0 < swap.mean() < 1
+
+
+def test_mix_or_swap_needing_more_devices_than_the_lot_holds_is_refused(tmp_path):
+    from stringcheck.studies.review import mixed, swapped
+
+    _write_lot(tmp_path, 40)
+    _write_lot_b(tmp_path, 6)
+    design = _design_with_b(tmp_path, series=12)
+    # A mix may put B in every one of the 12 positions of a string: 6 devices are not enough.
+    with pytest.raises(DesignError, match=r"parts.B.measured: the lot lot_b.csv holds 6"):
+        mixed(design, 0.2, "B")
+    swapped(design, (1, 2, 3, 4, 5, 6), "B")
+    with pytest.raises(DesignError, match="draws 7 from it"):
+        swapped(design, (1, 2, 3, 4, 5, 6, 7), "B")
+
+
+def test_swap_over_a_serial_position_puts_in_a_new_device(tmp_path):
+    from stringcheck.studies.review import swapped
+
+    _write_lot(tmp_path, 40)
+    _write_lot_b(tmp_path, 12)
+    design = _design_with_b(tmp_path, series=6, positions='[[string.position]]\nindex = 2\n'
+                                                         'serial = "S003"\ntemperature_rise = "5 K"\n')
+    candidate = swapped(design, (2,), "B")
+    assert candidate.string.serial_grid()[0, 1] is None
+    assert candidate.string.temperature_rise_grid()[0, 1] == 5.0
+    leakage = draw_strings(candidate, ("i_r",), 0, 200).parameters["i_r"][:, 0, 1]
+    assert np.all(np.isin(leakage, candidate.parts["B"].measured.column("i_r")))

@@ -29,6 +29,7 @@ def review_to_dict(result: ReviewResult) -> dict[str, Any]:
         "schema": 1,
         "verdict": result.verdict,
         "tolerance": result.tolerance,
+        "mix": _mix(result),
         "baseline": result_to_dict(result.baseline),
         "candidate": result_to_dict(result.candidate),
         "changes": {
@@ -57,6 +58,12 @@ def _ratio(value: float | None) -> str:
 
 def _bound(value: float | None) -> str:
     return "-" if value is None else f"{value:.2g}"
+
+
+def _mix(result: ReviewResult) -> dict[str, Any] | None:
+    """The candidate's mixed stock (``--mix``), or None."""
+    mix = result.candidate.design.string.mix
+    return None if mix is None else {"fraction": mix.fraction, "part": mix.part}
 
 
 def render_review(result: ReviewResult, console: Console) -> None:

@@ -15,10 +15,9 @@ from typing import Callable, Mapping
 
 import numpy as np
 
-from ..design import Design, Part, Spread
+from ..design import Design, Part
 from ..errors import DesignError
 from ..physics.leakage import leakage_current
-from ..physics.recovery import recovery_charge
 from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
 from ..solvers.series_dynamic import solve_dynamic_sharing
 from ..solvers.series_static import solve_static_sharing
@@ -29,6 +28,7 @@ from .forward_check import (
     ForwardSetup,
     finish_parallel,
     finish_thermal,
+    forward_for_devices,
     forward_parameters,
     forward_reasons,
     forward_setup,
@@ -40,13 +40,21 @@ from .drivers import DRIVER_TRIALS, TOP_DRIVERS, Driver, chunk_features, label, 
 from .drivers import tightenable, tightened
 from .grading_summary import GradingSummary, grading_summary
 from .rare_events import DEFAULT_SAMPLES, RareEstimate, rare_event_estimate
+from .check_inputs import (
+    RESISTOR_TCR_REFERENCE,
+    dynamic_check_reason,
+    impossibility,
+    model_assumptions,
+    no_scatter,
+    with_recovery_charge,
+)
+from .mixed_stock import device_part_grid, device_values, position_values, refuse_under_mix
 from .recovery_conditions import RecoveryRescaling, recovery_rescaling, rescale_charges
 from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 
 # A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
 # in the trial count.
 _CHUNK_ELEMENTS = 1_000_000
-RESISTOR_TCR_REFERENCE = 25.0  # [degC]; resistor TCR is specified from 25 degC (common practice)
 
 ProgressCallback = Callable[[int, int], None]
 
@@ -120,6 +128,9 @@ class _Accumulator:
     worst_ratio: float = -np.inf
     worst_trial: int = -1
     worst_string: np.ndarray | None = None
+    # With a mix: the limit of each drawn device (trials, parallel, series) for the chunk in hand;
+    # ``limits`` then holds each position's lowest limit, for the per-position figures.
+    device_limits: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         self.maximum = np.full(self.shape, -np.inf)
@@ -141,7 +152,7 @@ class _Accumulator:
 
     def add(self, voltages: np.ndarray, solved: np.ndarray, first_trial: int) -> None:
         solved = solved & np.all(np.isfinite(voltages), axis=(1, 2))
-        ratio = voltages / self.limits
+        ratio = voltages / (self.limits if self.device_limits is None else self.device_limits)
         trial_ratio = np.where(solved, np.max(ratio, axis=(1, 2)), np.inf)
         self.unsolved += int(np.count_nonzero(~solved))
         # Sums are shifted by the limit to keep the variance sum well conditioned, and are kept
@@ -204,6 +215,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     """
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
+    if rare or drivers:
+        refuse_under_mix(design, "--rare" if rare else "--drivers")
     if trials < 1:
         raise DesignError(f"--trials must be at least 1, got {trials}", key="monte_carlo.trials")
     if design.grading.resistor is None and any(
@@ -215,14 +228,14 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     if rare:
         _check_rare_inputs(design)
     if only is None or "dynamic" in only:
-        design = _with_recovery_charge(design)
+        design = with_recovery_charge(design)
     layout = design.string
     shape = (layout.parallel, layout.series)
-    grid = layout.part_grid()
-    parts = [design.parts[name] for name in grid.ravel()]
+    grid = layout.part_labels()
 
     def per_position(attribute: Callable[[Part], float]) -> np.ndarray:
-        return np.array([attribute(part) for part in parts], dtype=float).reshape(shape)
+        # With a mix these are each position's lowest values; chunks use each device's own.
+        return position_values(design, attribute)
 
     limits = layout.derating * per_position(lambda p: p.v_rrm)
     temperature = design.duty.ambient + layout.temperature_rise_grid()
@@ -233,7 +246,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     junction_capacitance = per_position(lambda p: p.c_j)
 
     dynamic_reason = "not requested" if only is not None and "dynamic" not in only else \
-        _dynamic_reason(design)
+        dynamic_check_reason(design)
     run_dynamic = dynamic_reason == ""
     run_static = only is None or "static" in only
     parameters = ("i_r", "q_rr") if run_dynamic else ("i_r",)
@@ -304,9 +317,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         checks["thermal"] = finish_thermal(design, forward, thermal_reason, forward_sums,
                                            confidence, target, trials)
 
-    impossible = _impossibility(design, limits)
-    grading = grading_summary(design, checks, temperature, reference_voltage, reference_temperature,
-                               doubling, exponent, junction_capacitance)
+    impossible = impossibility(design)
+    grading = grading_summary(design, checks, temperature,
+                              position_values(design, lambda p: p.c_j, pick=np.maximum))
     passed = all(check.passed for check in checks.values() if check.ran)
     if rare:
         for name in ("static", "dynamic"):
@@ -325,8 +338,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                        trials_needed=trials_for_upper_bound(target, confidence=confidence),
                        checks=checks, grading=grading,
                        verdict=verdict, impossible=impossible,
-                       assumptions=design.assumptions + _model_assumptions(design, rescaling_note),
-                       no_scatter=_no_scatter(design, parameters), drivers=ranking)
+                       assumptions=design.assumptions + model_assumptions(design, rescaling_note),
+                       no_scatter=no_scatter(design, parameters), drivers=ranking)
 
 
 @dataclass(frozen=True)
@@ -363,21 +376,43 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     design = context.design
     shape = context.limits.shape
     drawn = draw_strings(design, context.parameters, first, count, seed=context.seed)
+    devices = context if drawn.part_index is None else _for_devices(context, drawn)
+    own_limits = None if drawn.part_index is None else devices.limits
     static = dynamic = None
     if context.run_static:
-        static = _Accumulator(shape, context.limits)
-        _static_chunk(design, drawn, static, context.temperature, context.reference_voltage,
-                      context.reference_temperature, context.doubling, context.exponent)
+        static = _Accumulator(shape, context.limits, device_limits=own_limits)
+        _static_chunk(design, drawn, static, devices.temperature, devices.reference_voltage,
+                      devices.reference_temperature, devices.doubling, devices.exponent)
+        static.device_limits = None
     if context.run_dynamic:
-        dynamic = _Accumulator(shape, context.limits)
-        _dynamic_chunk(design, drawn, dynamic, context.junction_capacitance, context.rescaling)
+        dynamic = _Accumulator(shape, context.limits, device_limits=own_limits)
+        _dynamic_chunk(design, drawn, dynamic, devices.junction_capacitance, context.rescaling)
+        dynamic.device_limits = None
     forward = None
     if context.forward is not None:
-        forward = run_forward_chunk(design, context.forward, drawn)
+        forward = run_forward_chunk(design, devices.forward, drawn)
     features = None
     if first < context.driver_trials:
         features = chunk_features(drawn, design, min(count, context.driver_trials - first))
     return _ChunkOutcome(static=static, dynamic=dynamic, forward=forward, features=features)
+
+
+def _for_devices(context: _ChunkContext, drawn: DrawnStrings) -> _ChunkContext:
+    """The context with each drawn device's own part constants (a mix), (trials, parallel, series)."""
+    design = context.design
+
+    def values(attribute: Callable[[Part], float]) -> np.ndarray:
+        return device_values(design, drawn, attribute)
+
+    return replace(
+        context, limits=design.string.derating * values(lambda p: p.v_rrm),
+        reference_voltage=values(lambda p: p.i_r.at_voltage),
+        reference_temperature=values(lambda p: p.i_r.at_temperature),
+        doubling=values(lambda p: p.leakage_doubling),
+        exponent=values(lambda p: p.leakage_voltage_exponent),
+        junction_capacitance=values(lambda p: p.c_j),
+        forward=None if context.forward is None else forward_for_devices(design, context.forward,
+                                                                          drawn))
 
 
 def _static_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulator,
@@ -409,7 +444,7 @@ def _dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulato
         drawn.capacitance + junction_capacitance
     charge = drawn.parameters["q_rr"]
     if rescaling is not None:
-        charge = rescale_charges(charge, design.string.part_grid(), rescaling)
+        charge = rescale_charges(charge, device_part_grid(design, drawn), rescaling)
     capacitance = np.broadcast_to(capacitance, charge.shape)
     solution = solve_dynamic_sharing(design.duty.reverse_voltage, charge, capacitance)
     solved = np.ones(solution.voltages.shape[0], dtype=bool)
@@ -465,75 +500,6 @@ def _not_run(name: str, reason: str) -> SeriesCheck:
                        positions=(), histogram=())
 
 
-def _dynamic_reason(design: Design) -> str:
-    """Why the dynamic check cannot run ("" when it can)."""
-    if design.duty.waveform == "dc" and design.duty.di_dt is None:
-        return ("dc duty with no turn-off: give duty.di_dt (or an ac waveform) to check the "
-                "voltage sharing at turn-off")
-    if design.grading.capacitor is None:
-        bare = [name for name in design.parts_used() if design.parts[name].c_j <= 0]
-        if bare:
-            raise DesignError(
-                "the dynamic check needs capacitance at every stage: give grading.capacitor, or "
-                f"the junction capacitance c_j of part(s) {', '.join(bare)}",
-                source=design.source, key="grading.capacitor")
-    return ""
-
-
-def _with_recovery_charge(design: Design) -> Design:
-    """Fill in Q_rr from I_RM and t_rr (Q_rr = 1/2 I_RM t_rr) where a part gives those but not Q_rr."""
-    if _dynamic_reason(design):
-        return design
-    parts = dict(design.parts)
-    notes = []
-    for name in design.parts_used():
-        part = parts[name]
-        if part.q_rr is not None:
-            continue
-        if part.i_rm is None or part.t_rr is None:
-            raise DesignError("missing; the dynamic check needs the recovery charge, or both i_rm "
-                              "and t_rr to derive it", source=design.source,
-                              key=f"parts.{name}.q_rr")
-        typ = float(recovery_charge(part.i_rm.typ, part.t_rr.typ))
-        high = None
-        if part.i_rm.high is not None or part.t_rr.high is not None:
-            high = float(recovery_charge(part.i_rm.high or part.i_rm.typ,
-                                         part.t_rr.high or part.t_rr.typ))
-        parts[name] = replace(part, q_rr=Spread(typ=typ, high=high, at_di_dt=part.i_rm.at_di_dt,
-                                                typ_assumed=True))
-        notes.append(f"parts.{name}.q_rr derived as 1/2 I_RM t_rr from i_rm and t_rr "
-                     "(max from the product of maxima: conservative)")
-    if not notes:
-        return design
-    return replace(design, parts=parts, assumptions=design.assumptions + tuple(notes))
-
-
-def _impossibility(design: Design, limits: np.ndarray) -> str | None:
-    """Why no built string can pass whatever is drawn (with the arithmetic), or None."""
-    layout = design.string
-    reasons = []
-    capacity = limits.sum(axis=1)
-    weakest = float(capacity.min())
-    if design.duty.reverse_voltage > weakest:
-        reasons.append(
-            f"the string cannot hold {design.duty.reverse_voltage:g} V even with perfect "
-            f"sharing: the sum of derating x V_RRM over the {layout.series} devices of a branch "
-            f"is {weakest:g} V (derating {layout.derating:g})")
-    grid = layout.part_grid()
-    ratings = [[design.parts[name].i_fav for name in row] for row in grid]
-    current = design.duty.forward_current
-    if current is not None and all(r is not None for row in ratings for r in row):
-        # A branch carries no more than its weakest device's I_F(AV); perfect sharing at best
-        # brings every branch to that limit at once.
-        group = sum(min(row) for row in ratings)
-        if current > group:
-            reasons.append(
-                f"the group cannot carry {current:g} A average even with perfect sharing: the "
-                f"{layout.parallel} branch(es) together are rated {group:g} A (the sum over the "
-                "branches of the weakest device's i_fav)")
-    return "; ".join(reasons) if reasons else None
-
-
 def evaluate_strings(context: _ChunkContext, drawn: DrawnStrings, check: str) -> np.ndarray:
     """Each drawn string's worst stress ratio in ``check`` ("static" or "dynamic"); inf unsolved."""
     accumulator = _Accumulator(context.limits.shape, context.limits)
@@ -585,33 +551,3 @@ def _drivers(design: Design, checks, features: dict[str, list], ratios: dict[str
             out.append(Driver(check=name, input=driver, label=label(driver), rank_correlation=rho,
                               tightened_p99_ratio=p99, tightened_p_fail_upper=upper))
     return tuple(out)
-
-
-def _model_assumptions(design: Design, rescaling_note: str) -> tuple[str, ...]:
-    notes = [
-        "static: the peak reverse voltage is held as dc; at line frequency the grading capacitors "
-        "also share the voltage, which this check does not credit",
-        "junction temperature = ambient + the position's temperature_rise (no self-heating); "
-        "leakage referred from its datasheet temperature with the part's doubling temperature",
-        f"grading resistor TCR referred to {RESISTOR_TCR_REFERENCE:g} degC, resistor at its "
-        "diode's temperature",
-    ]
-    if rescaling_note:
-        notes.append(rescaling_note + "; junction temperature does not enter Q_rr; the whole "
-                     "string voltage is assumed to appear after recovery (hard commutation)")
-    return tuple(notes)
-
-
-def _no_scatter(design: Design, parameters: tuple[str, ...]) -> tuple[str, ...]:
-    notes = []
-    for name in design.parts_used():
-        for parameter in parameters:
-            spread = design.parts[name].spread(parameter)
-            if spread is not None and spread.fixed:
-                notes.append(f"parts.{name}.{parameter}")
-    grading = design.grading
-    if grading.resistor is not None and grading.resistor_tolerance == 0:
-        notes.append("grading.resistor (no tolerance given)")
-    if grading.capacitor is not None and grading.capacitor_tolerance == 0:
-        notes.append("grading.capacitor (no tolerance given)")
-    return tuple(notes)

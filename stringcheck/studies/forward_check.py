@@ -17,7 +17,7 @@ Results are plain arrays and scalars; nothing here formats text.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -33,6 +33,7 @@ from ..solvers.electrothermal import (
 from ..solvers.parallel import ballast_for_share, branch_currents
 from ..physics.forward import slope_resistance, threshold_voltage
 from ..stats import FailureEstimate, failure_estimate
+from .mixed_stock import device_values, position_values
 
 # Runaway ambient is searched on the first trials of each chunk only (a bisection costs some fifteen
 # equilibrium solves); its percentiles describe the margin, the pass/fail rests on the equilibrium.
@@ -168,6 +169,7 @@ class ForwardChunk:
     power_total: np.ndarray | None = None
     ballast: np.ndarray | None = None
     ballast_loss_per_ohm: np.ndarray | None = None
+    branch_limit: np.ndarray | None = None
     runaway_ambient: np.ndarray | None = None
 
 
@@ -204,34 +206,46 @@ def forward_reasons(design: Design) -> tuple[str, str]:
 
 
 def forward_setup(design: Design, parallel_reason: str, thermal_reason: str) -> ForwardSetup:
-    """The per-position constants, shape (parallel, series)."""
+    """The per-position constants, shape (parallel, series); with a mix each position's lowest
+    value over the parts that can stand there (the limits shown per position), which the chunks
+    replace by each drawn device's own (``forward_for_devices``)."""
     layout = design.string
-    grid = layout.part_grid()
-    parts = [design.parts[name] for name in grid.ravel()]
-
-    def per_position(attribute) -> np.ndarray:
-        return np.array([attribute(part) for part in parts], dtype=float).reshape(grid.shape)
-
-    def limit_or_nan(value: float | None) -> float:
-        return np.nan if value is None else value
-
+    parts = [design.parts[name] for name in design.parts_used()]
     return ForwardSetup(
         run_parallel=parallel_reason == "", run_thermal=thermal_reason == "",
-        forward_reference_temperature=per_position(lambda p: _reference(p.v_t0.at_temperature)),
-        threshold_tempco=per_position(lambda p: p.tempco_v_t0),
-        resistance_tempco=per_position(lambda p: p.tempco_r_t),
-        leakage_reference_voltage=per_position(lambda p: p.i_r.at_voltage),
-        leakage_reference_temperature=per_position(lambda p: p.i_r.at_temperature),
-        leakage_doubling=per_position(lambda p: p.leakage_doubling),
-        leakage_voltage_exponent=per_position(lambda p: p.leakage_voltage_exponent),
-        junction_to_sink=per_position(lambda p: limit_or_nan(p.r_th_jc) + (p.r_th_cs or 0.0)),
-        max_junction_temperature=per_position(lambda p: limit_or_nan(p.t_j_max)),
-        rated_current=per_position(lambda p: limit_or_nan(p.i_fav)),
+        **_part_constants(lambda attribute: position_values(design, attribute)),
         position_temperature=design.duty.ambient + layout.temperature_rise_grid(),
         # The runaway-ambient search ends at the highest T_j,max: no ambient above it is usable.
         search_limit=float(max((p.t_j_max for p in parts if p.t_j_max is not None),
                                default=design.duty.ambient + 100.0)),
         target_share=design.sizing.target_share or DEFAULT_TARGET_SHARE,
+    )
+
+
+def forward_for_devices(design: Design, setup: ForwardSetup, drawn: DrawnStrings) -> ForwardSetup:
+    """``setup`` with the constants of each drawn device's own part, (trials, parallel, series)
+    (a mix: ``sampling.DrawnStrings.part_index``)."""
+    return replace(setup, **_part_constants(lambda attribute: device_values(design, drawn,
+                                                                            attribute)))
+
+
+def _part_constants(values) -> dict[str, np.ndarray]:
+    """The ForwardSetup fields that follow the part, each from ``values(attribute)``."""
+
+    def limit_or_nan(value: float | None) -> float:
+        return np.nan if value is None else value
+
+    return dict(
+        forward_reference_temperature=values(lambda p: _reference(p.v_t0.at_temperature)),
+        threshold_tempco=values(lambda p: p.tempco_v_t0),
+        resistance_tempco=values(lambda p: p.tempco_r_t),
+        leakage_reference_voltage=values(lambda p: p.i_r.at_voltage),
+        leakage_reference_temperature=values(lambda p: p.i_r.at_temperature),
+        leakage_doubling=values(lambda p: p.leakage_doubling),
+        leakage_voltage_exponent=values(lambda p: p.leakage_voltage_exponent),
+        junction_to_sink=values(lambda p: limit_or_nan(p.r_th_jc) + (p.r_th_cs or 0.0)),
+        max_junction_temperature=values(lambda p: limit_or_nan(p.t_j_max)),
+        rated_current=values(lambda p: limit_or_nan(p.i_fav)),
     )
 
 
@@ -318,6 +332,8 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings) 
     chunk = ForwardChunk(first_trial=drawn.first_trial, share=share, current_ratio=current_ratio,
                          branch_current=average, **(outcome_tj or {}))
     if setup.run_parallel:
+        # Each branch's rated current, its weakest device's (with a mix, of the parts drawn).
+        chunk.branch_limit = np.broadcast_to(np.min(setup.rated_current, axis=-1), average.shape)
         needs = share > setup.target_share
         ballast = np.zeros(count)
         loss_per_ohm = np.zeros(count)
@@ -386,14 +402,15 @@ def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulato
     finite = ratio[np.isfinite(ratio)]
     mean = currents.mean(axis=-1, keepdims=True)
     branch_share = currents / mean
-    limit = np.nanmin(setup.rated_current, axis=-1)
+    limit = np.nanmin(setup.rated_current, axis=-1)  # with a mix the lowest the branch can have
+    drawn_limit = accumulator.joined("branch_limit")
     branches = tuple(
         BranchStatistics(branch=b + 1, limit_current=float(limit[b]),
                          mean_current=float(np.nanmean(currents[:, b])),
                          max_current=float(np.nanmax(currents[:, b])),
                          mean_share=float(np.nanmean(branch_share[:, b])),
                          max_share=float(np.nanmax(branch_share[:, b])),
-                         failures=int(np.count_nonzero(currents[:, b] > limit[b])))
+                         failures=int(np.count_nonzero(currents[:, b] > drawn_limit[:, b])))
         for b in range(currents.shape[1]))
     worst_share = float(np.nanmax(share))
     ballast = _ballast_advice(setup.target_share, accumulator.joined("ballast"),
@@ -455,7 +472,7 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
     total = sum(chunk.tj_sum for chunk in accumulator.chunks)
     maximum = np.max([chunk.tj_max for chunk in accumulator.chunks], axis=0)
     exceed = sum(chunk.tj_over for chunk in accumulator.chunks)
-    grid = design.string.part_grid()
+    grid = design.string.part_labels()
     positions = tuple(
         DeviceTemperature(branch=b + 1, index=k + 1, part=str(grid[b, k]),
                           limit=float(setup.max_junction_temperature[b, k]),

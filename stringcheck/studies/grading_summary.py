@@ -52,8 +52,6 @@ class GradingSummary:
 
 
 def grading_summary(design: Design, checks: Mapping[str, object], temperature: np.ndarray,
-                     reference_voltage: np.ndarray, reference_temperature: np.ndarray,
-                     doubling: np.ndarray, exponent: np.ndarray,
                      junction_capacitance: np.ndarray) -> GradingSummary:
     grading = design.grading
     layout = design.string
@@ -84,19 +82,19 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
                               "not checked")
 
     hottest_leakage = 0.0
-    grid = layout.part_grid()
-    for branch in range(layout.parallel):
-        for index in range(layout.series):
-            part = design.parts[grid[branch, index]]
-            spread = part.i_r
-            maximum = spread.high if spread.high is not None else spread.typ
-            value = float(leakage_current(maximum, reference_voltage[branch, index],
-                                          temperature[branch, index],
-                                          reference_voltage=reference_voltage[branch, index],
-                                          reference_temperature=reference_temperature[branch, index],
-                                          doubling_temperature=doubling[branch, index],
-                                          voltage_exponent=exponent[branch, index]))
-            hottest_leakage = max(hottest_leakage, value)
+    # With a mix, every part that can stand at a position (StringLayout.part_grids).
+    for grid in layout.part_grids():
+        for branch in range(layout.parallel):
+            for index in range(layout.series):
+                part = design.parts[grid[branch, index]]
+                spread = part.i_r
+                maximum = spread.high if spread.high is not None else spread.typ
+                value = float(leakage_current(maximum, spread.at_voltage, temperature[branch, index],
+                                              reference_voltage=spread.at_voltage,
+                                              reference_temperature=spread.at_temperature,
+                                              doubling_temperature=part.leakage_doubling,
+                                              voltage_exponent=part.leakage_voltage_exponent))
+                hottest_leakage = max(hottest_leakage, value)
     if grading_current is not None and grading_current < GRADING_CURRENT_MULTIPLE * hottest_leakage:
         advisories.append(
             f"grading current {_q(grading_current, 'A')} is less than "

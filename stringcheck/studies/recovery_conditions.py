@@ -132,16 +132,18 @@ def recovery_rescaling(design: Design) -> tuple[RecoveryRescaling | None, str]:
 def rescale_charges(charge: np.ndarray, grid: np.ndarray,
                     rescaling: RecoveryRescaling) -> np.ndarray:
     """Q_rr [C] of each drawn device at the application's conditions; ``charge`` is
-    (trials, parallel, series) at the test conditions, ``grid`` the part name of each position."""
+    (trials, parallel, series) at the test conditions, ``grid`` the part name of each position
+    (parallel, series), or of each drawn device (trials, parallel, series) under a mix."""
     out = np.empty_like(charge)
+    grid = np.broadcast_to(grid, charge.shape)
     for name, fit in rescaling.fits.items():
         mask = grid == name
-        values = charge[:, mask]
+        values = charge[mask]
         if values.size == 0:
             continue
         nodes, mapped = rescaling.nodes[name], rescaling.mapped[name]
         if nodes.size == 1:
-            out[:, mask] = mapped[0]
+            out[mask] = mapped[0]
             continue
         result = np.exp(np.interp(np.log(values), np.log(nodes), np.log(mapped)))
         outside = (values < nodes[0]) | (values > nodes[-1])
@@ -149,5 +151,5 @@ def rescale_charges(charge: np.ndarray, grid: np.ndarray,
             result[outside] = rescale_recovery_charge(values[outside], fit.transit_time,
                                                       fit.test_current, fit.test_rate,
                                                       rescaling.forward_current, rescaling.di_dt)
-        out[:, mask] = result
+        out[mask] = result
     return out

@@ -6,17 +6,27 @@ latent standard-normal value in both (sampling.py keys its streams by block, par
 and only the mapping of that latent value through the part's spread differs where the part
 changed. Differences between the two results are therefore the parts' doing, not sampling noise.
 
+A mixed-stock candidate (``--mix FRACTION:PART``, :func:`mixed`) keeps the baseline's parts but
+makes every device of every built string the given part with probability FRACTION, drawn from a
+stream of its own (``sampling.substituted_devices``), so it too shares every other draw with the
+baseline.
+
 Verdict "accept" when the candidate passes and no check's P(fail) upper bound rises above the
 baseline's by more than ``[review] tolerance`` (of the baseline design); otherwise "reject".
 """
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass, replace
 
-from ..design import Design, PositionOverride
+import numpy as np
+
+from ..design import MAX_LEAKAGE_DOUBLINGS, Design, Mix, PositionOverride
+from ..design_schema import _Reader
 from ..errors import StringcheckError
+from ..part_reading import check_lot_sizes
 from .check import CheckResult, run_check
 from .runner import worker_pool
 
@@ -96,23 +106,90 @@ def parse_swap(text: str, design: Design) -> tuple[tuple[int, ...], str]:
         known = ", ".join(sorted(design.parts))
         raise StringcheckError(f"--swap {text!r}: no part {part!r} in {design.source}; define "
                                f"[parts.{part}] there (known: {known})")
-    return tuple(sorted(set(positions))), part
+    positions = tuple(sorted(set(positions)))
+    _check_substitute(design, part, f"--swap {text!r}",
+                      design.string.temperature_rise_grid()[:, [p - 1 for p in positions]])
+    return positions, part
 
 
 def swapped(design: Design, positions: tuple[int, ...], part: str) -> Design:
     """The design with ``part`` in ``positions`` of every branch (other overrides kept)."""
     kept = []
     for override in design.string.positions:
-        if override.index in positions and override.part is not None:
+        if override.index in positions and (override.part is not None or
+                                            override.serial is not None):
+            # The position now holds a new device of ``part``: its own part and any measured
+            # device placed there by serial number go; its temperature rise stays.
             if override.temperature_rise is not None:
-                kept.append(replace(override, part=None))
+                kept.append(replace(override, part=None, serial=None))
             continue
         kept.append(override)
     added = [PositionOverride(index=index, branch=None, part=part, temperature_rise=None)
              for index in positions]
     layout = replace(design.string, positions=tuple(kept + added))
     title = f"{design.title} with {part} in position(s) {_ranges(positions)}"
-    return replace(design, string=layout, title=title)
+    return _lots_checked(replace(design, string=layout, title=title))
+
+
+def _lots_checked(candidate: Design) -> Design:
+    """The candidate, once its measured lots are known to hold the devices it draws."""
+    check_lot_sizes(_Reader(candidate.source), candidate)
+    return candidate
+
+
+_MIX = re.compile(r"^\s*([^:%\s]+)\s*(%?)\s*:\s*([^:\s]+)\s*$")
+
+
+def parse_mix(text: str, design: Design) -> tuple[float, str]:
+    """``"0.25:B"`` or ``"25%:B"`` -> (fraction [1] in [0, 1], part), checked against ``design``."""
+    match = _MIX.match(text)
+    if not match:
+        raise StringcheckError(f"--mix {text!r}: write FRACTION:PART, e.g. 0.25:B or 25%:B")
+    try:
+        fraction = float(match.group(1))
+    except ValueError:
+        raise StringcheckError(f"--mix {text!r}: {match.group(1)!r} is not a number; write "
+                               "FRACTION:PART, e.g. 0.25:B or 25%:B") from None
+    if match.group(2):
+        fraction /= 100.0
+    if not (math.isfinite(fraction) and 0.0 <= fraction <= 1.0):
+        raise StringcheckError(f"--mix {text!r}: the fraction must lie in 0..1 (or 0%..100%)")
+    part = match.group(3)
+    if part not in design.parts:
+        known = ", ".join(sorted(design.parts))
+        raise StringcheckError(f"--mix {text!r}: no part {part!r} in {design.source}; define "
+                               f"[parts.{part}] there (known: {known})")
+    _check_substitute(design, part, f"--mix {text!r}", design.string.temperature_rise_grid())
+    return fraction, part
+
+
+def _check_substitute(design: Design, name: str, option: str, rise) -> None:
+    """What the design reader checks of a part in use, for a part the option brings in; ``rise``
+    holds the temperature rises [K] of the positions it may take."""
+    part = design.parts[name]
+    if part.i_r is None:
+        raise StringcheckError(f"{option}: part {name!r} gives no i_r; the static check needs its "
+                               f"reverse leakage: add parts.{name}.i_r to {design.source}")
+    hottest = design.duty.ambient + float(np.max(rise))
+    if part.t_j_max is not None and hottest >= part.t_j_max:
+        raise StringcheckError(f"{option}: ambient plus temperature rise ({hottest:g} degC) is not "
+                               f"below t_j_max of part {name!r} ({part.t_j_max:g} degC); choose "
+                               "another part or lower duty.ambient")
+    temperatures = design.duty.ambient + np.asarray(rise, dtype=float)
+    doublings = float(np.max(np.abs(temperatures - part.i_r.at_temperature))) / \
+        part.leakage_doubling
+    if doublings > MAX_LEAKAGE_DOUBLINGS:
+        raise StringcheckError(f"{option}: referring part {name!r}'s leakage from its "
+                               f"i_r.at_temperature takes {doublings:.3g} doublings, more than "
+                               f"{MAX_LEAKAGE_DOUBLINGS}; check parts.{name}.leakage_doubling")
+
+
+def mixed(design: Design, fraction: float, part: str) -> Design:
+    """The design with mixed stock: each device of every built string is ``part`` with probability
+    ``fraction`` [1], else the part its position holds."""
+    layout = replace(design.string, mix=Mix(fraction=fraction, part=part))
+    title = f"{design.title} with {part} mixed in at {100 * fraction:.4g} % of the devices"
+    return _lots_checked(replace(design, string=layout, title=title))
 
 
 def _ranges(positions: tuple[int, ...]) -> str:
@@ -170,8 +247,8 @@ def review(baseline: Design, candidate: Design, *, trials: int | None = None,
 
 
 def _worse_positions(base: CheckResult, cand: CheckResult) -> tuple[PositionChange, ...]:
-    grid_base = base.design.string.part_grid()
-    grid_cand = cand.design.string.part_grid()
+    grid_base = base.design.string.part_labels()
+    grid_cand = cand.design.string.part_labels()
     rows = []
     for name in ("static", "dynamic", "transient"):
         a, b = base.checks.get(name), cand.checks.get(name)
@@ -192,9 +269,9 @@ def _worse_positions(base: CheckResult, cand: CheckResult) -> tuple[PositionChan
 def _reasons(baseline: Design, candidate: Design, worse) -> tuple[str, ...]:
     """Plain-words physics of each substitution (typical values compared)."""
     grid_base = baseline.string.part_grid()
-    grid_cand = candidate.string.part_grid()
-    pairs = sorted({(str(a), str(b)) for a, b in zip(grid_base.ravel(), grid_cand.ravel())
-                    if a != b})
+    # With a mix, each part that can stand at a position against the baseline's there.
+    pairs = sorted({(str(a), str(b)) for grid_cand in candidate.string.part_grids()
+                    for a, b in zip(grid_base.ravel(), grid_cand.ravel()) if a != b})
     reasons = []
     for old, new in pairs:
         a, b = baseline.parts[old], candidate.parts[new]

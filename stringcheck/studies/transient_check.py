@@ -30,6 +30,7 @@ from ..sampling import BLOCK_TRIALS, draw_strings
 from ..solvers.transient import simulate_turn_off
 from ..errors import StringcheckError
 from ..stats import FailureEstimate, failure_estimate
+from .mixed_stock import device_part_grid, position_values
 from .recovery_conditions import (
     InconsistentRecoveryData,
     PartFit,
@@ -132,14 +133,16 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
     selected = np.union1d(worst_set, sample_set)
 
     layout = design.string
-    grid = layout.part_grid()
-    limits = layout.derating * np.array([[design.parts[p].v_rrm for p in row] for row in grid])
+    grid = layout.part_labels()
+    # Per position the lowest limit of the parts that can stand there (a mix); each simulated
+    # device is judged against its own part's.
+    limits = layout.derating * position_values(design, lambda p: p.v_rrm)
     inductance, forward, notes = _loop(design, fits)
     notes = list(notes)
 
-    peaks, overshoots, currents, energies, solved = _simulate(
+    peaks, overshoots, currents, energies, solved, device_limits = _simulate(
         design, fits, selected, trials, seed, inductance, forward)
-    ratio = np.max(peaks / limits, axis=(1, 2))
+    ratio = np.max(peaks / device_limits, axis=(1, 2))
     ratio = np.where(solved, ratio, np.inf)
     failed = ~(ratio <= 1.0)
     in_sample = np.isin(selected, sample_set)
@@ -160,7 +163,8 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
                 std_voltage=float(values.std(ddof=1)) if values.size > 1 else math.nan,
                 max_voltage=float(values.max()) if values.size else math.nan,
                 max_overshoot=float(np.nanmax(overshoots[:, b, k])),
-                failures=int(np.count_nonzero(sample_peaks[:, b, k] > limits[b, k]))))
+                failures=int(np.count_nonzero(sample_peaks[:, b, k] >
+                                              device_limits[in_sample][:, b, k]))))
     top = int(np.argmax(ratio))
     return TransientCheck(
         name="transient", ran=True, reason="",
@@ -179,10 +183,11 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
 
 def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: int) -> dict:
     """Redraw the selected trials (block by block); the engine's stage inputs, one row per branch
-    of each selected trial, shape (selected x parallel, series)."""
+    of each selected trial, shape (selected x parallel, series), and each device's limit
+    derating x V_RRM [V], (selected, parallel, series)."""
     layout = design.string
-    grid = layout.part_grid()
     shape = (selected.size, layout.parallel, layout.series)
+    grid = np.empty(shape, dtype=object)
     charge = np.empty(shape)
     resistance = np.full(shape, np.inf)
     capacitance = np.zeros(shape)
@@ -193,24 +198,30 @@ def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: i
         rows = selected[blocks == block] - first
         where = blocks == block
         charge[where] = drawn.parameters["q_rr"][rows]
+        parts = device_part_grid(design, drawn)
+        grid[where] = parts if parts.ndim == 2 else parts[rows]
         if drawn.resistance is not None:
             resistance[where] = drawn.resistance[rows]
         if drawn.capacitance is not None:
             capacitance[where] = drawn.capacitance[rows]
-    transit = np.empty(grid.shape)
+    # The part of each device (with a mix it varies from trial to trial).
+    transit = np.empty(shape)
     lifetime = np.empty(shape)
+    junction = np.empty(shape)
+    limit = np.empty(shape)
     for name, fit in fits.items():
         mask = grid == name
         transit[mask] = fit.transit_time
-        lifetime[:, mask] = lifetime_for_charge(charge[:, mask], fit.transit_time,
-                                                fit.test_current, fit.test_rate)
-    junction = np.array([[design.parts[p].c_j for p in row] for row in grid])
+        lifetime[mask] = lifetime_for_charge(charge[mask], fit.transit_time, fit.test_current,
+                                             fit.test_rate)
+        junction[mask] = design.parts[name].c_j
+        limit[mask] = layout.derating * design.parts[name].v_rrm
     rows_shape = (selected.size * layout.parallel, layout.series)
     return {"lifetime": lifetime.reshape(rows_shape),
-            "transit_time": np.broadcast_to(transit, shape).reshape(rows_shape),
-            "junction_capacitance": np.broadcast_to(junction, shape).reshape(rows_shape),
+            "transit_time": transit.reshape(rows_shape),
+            "junction_capacitance": junction.reshape(rows_shape),
             "grading_resistance": resistance.reshape(rows_shape),
-            "grading_capacitance": capacitance.reshape(rows_shape)}
+            "grading_capacitance": capacitance.reshape(rows_shape), "limit": limit}
 
 
 def _loop(design: Design, fits) -> tuple[float, float, tuple[str, ...]]:
@@ -291,4 +302,4 @@ def _simulate(design: Design, fits, selected: np.ndarray, trials: int, seed: int
     per_trial = (selected.size, layout.parallel)
     solved = converged.reshape(per_trial).all(axis=1)
     return (peaks.reshape(shape), overshoot.reshape(shape), current.reshape(per_trial),
-            energy.reshape(shape), solved)
+            energy.reshape(shape), solved, stage["limit"])

@@ -107,4 +107,4 @@ def test_cli_review_exit_codes_and_json(tmp_path):
     bad = runner.invoke(app, ["review", str(path), "--swap", "2:NOPE"])
     assert bad.exit_code == 2 and "NOPE" in bad.stderr
     both = runner.invoke(app, ["review", str(path), str(path), "--swap", "2:FAST"])
-    assert both.exit_code == 2 and "not both" in both.stderr
+    assert both.exit_code == 2 and "exactly one" in both.stderr

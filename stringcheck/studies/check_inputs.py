@@ -1,0 +1,122 @@
+"""What the series check needs of a design before it draws, and what it says about it.
+
+Which checks a design can run (the dynamic check needs a turn-off and capacitance at every stage),
+the recovery charge derived from I_RM and t_rr where a part gives only those, the arithmetic that
+shows no built string can pass whatever is drawn, and the model assumptions the report lists.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+
+from ..design import Design, Spread
+from ..errors import DesignError
+from ..physics.recovery import recovery_charge
+from .mixed_stock import mix_description, position_values
+
+RESISTOR_TCR_REFERENCE = 25.0  # [degC]; resistor TCR is specified from 25 degC (common practice)
+
+
+def dynamic_check_reason(design: Design) -> str:
+    """Why the dynamic check cannot run ("" when it can)."""
+    if design.duty.waveform == "dc" and design.duty.di_dt is None:
+        return ("dc duty with no turn-off: give duty.di_dt (or an ac waveform) to check the "
+                "voltage sharing at turn-off")
+    if design.grading.capacitor is None:
+        bare = [name for name in design.parts_used() if design.parts[name].c_j <= 0]
+        if bare:
+            raise DesignError(
+                "the dynamic check needs capacitance at every stage: give grading.capacitor, or "
+                f"the junction capacitance c_j of part(s) {', '.join(bare)}",
+                source=design.source, key="grading.capacitor")
+    return ""
+
+
+def with_recovery_charge(design: Design) -> Design:
+    """Fill in Q_rr from I_RM and t_rr (Q_rr = 1/2 I_RM t_rr) where a part gives those but not Q_rr."""
+    if dynamic_check_reason(design):
+        return design
+    parts = dict(design.parts)
+    notes = []
+    for name in design.parts_used():
+        part = parts[name]
+        if part.q_rr is not None:
+            continue
+        if part.i_rm is None or part.t_rr is None:
+            raise DesignError("missing; the dynamic check needs the recovery charge, or both i_rm "
+                              "and t_rr to derive it", source=design.source,
+                              key=f"parts.{name}.q_rr")
+        typ = float(recovery_charge(part.i_rm.typ, part.t_rr.typ))
+        high = None
+        if part.i_rm.high is not None or part.t_rr.high is not None:
+            high = float(recovery_charge(part.i_rm.high or part.i_rm.typ,
+                                         part.t_rr.high or part.t_rr.typ))
+        parts[name] = replace(part, q_rr=Spread(typ=typ, high=high, at_di_dt=part.i_rm.at_di_dt,
+                                                typ_assumed=True))
+        notes.append(f"parts.{name}.q_rr derived as 1/2 I_RM t_rr from i_rm and t_rr "
+                     "(max from the product of maxima: conservative)")
+    if not notes:
+        return design
+    return replace(design, parts=parts, assumptions=design.assumptions + tuple(notes))
+
+
+def impossibility(design: Design) -> str | None:
+    """Why no built string can pass whatever is drawn (with the arithmetic), or None. With a mix
+    each position counts with the best of the parts that can stand there."""
+    layout = design.string
+    reasons = []
+    capacity = layout.derating * position_values(design, lambda p: p.v_rrm, pick=np.maximum)
+    weakest = float(capacity.sum(axis=1).min())
+    if design.duty.reverse_voltage > weakest:
+        reasons.append(
+            f"the string cannot hold {design.duty.reverse_voltage:g} V even with perfect "
+            f"sharing: the sum of derating x V_RRM over the {layout.series} devices of a branch "
+            f"is {weakest:g} V (derating {layout.derating:g})")
+    current = design.duty.forward_current
+    if current is not None and all(design.parts[n].i_fav is not None for n in design.parts_used()):
+        # A branch carries no more than its weakest device's I_F(AV); perfect sharing at best
+        # brings every branch to that limit at once.
+        ratings = position_values(design, lambda p: p.i_fav, pick=np.maximum)
+        group = float(ratings.min(axis=1).sum())
+        if current > group:
+            reasons.append(
+                f"the group cannot carry {current:g} A average even with perfect sharing: the "
+                f"{layout.parallel} branch(es) together are rated {group:g} A (the sum over the "
+                "branches of the weakest device's i_fav)")
+    return "; ".join(reasons) if reasons else None
+
+
+def model_assumptions(design: Design, rescaling_note: str) -> tuple[str, ...]:
+    notes = [
+        "static: the peak reverse voltage is held as dc; at line frequency the grading capacitors "
+        "also share the voltage, which this check does not credit",
+        "junction temperature = ambient + the position's temperature_rise (no self-heating); "
+        "leakage referred from its datasheet temperature with the part's doubling temperature",
+        f"grading resistor TCR referred to {RESISTOR_TCR_REFERENCE:g} degC, resistor at its "
+        "diode's temperature",
+    ]
+    if design.string.mix is not None:
+        notes.append("mixed stock: " + mix_description(design) + "; a mixed position (part A|B) "
+                     "is judged device by device against the limit of the part drawn, and its "
+                     "per-position limit shown is the lowest of the two")
+    if rescaling_note:
+        notes.append(rescaling_note + "; junction temperature does not enter Q_rr; the whole "
+                     "string voltage is assumed to appear after recovery (hard commutation)")
+    return tuple(notes)
+
+
+def no_scatter(design: Design, parameters: tuple[str, ...]) -> tuple[str, ...]:
+    notes = []
+    for name in design.parts_used():
+        for parameter in parameters:
+            spread = design.parts[name].spread(parameter)
+            if spread is not None and spread.fixed:
+                notes.append(f"parts.{name}.{parameter}")
+    grading = design.grading
+    if grading.resistor is not None and grading.resistor_tolerance == 0:
+        notes.append("grading.resistor (no tolerance given)")
+    if grading.capacitor is not None and grading.capacitor_tolerance == 0:
+        notes.append("grading.capacitor (no tolerance given)")
+    return tuple(notes)
