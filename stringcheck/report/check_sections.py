@@ -26,6 +26,16 @@ def _estimate(estimate) -> dict[str, Any]:
             "p_fail_ci": [estimate.ci_low, estimate.ci_high]}
 
 
+def rare_to_dict(rare) -> dict[str, Any] | None:
+    """JSON of a check's importance-sampling estimate (``--rare``), or None."""
+    if rare is None:
+        return None
+    return {"estimator": rare.estimator, "p_fail": rare.p_fail, "std_error": rare.std_error,
+            "p_fail_ci": [rare.ci_low, rare.ci_high], "beta": _number(rare.beta),
+            "first_order": rare.first_order, "samples": rare.samples,
+            "found_failure_point": rare.found_failure_point}
+
+
 def parallel_to_dict(check: ParallelCheck) -> dict[str, Any]:
     """JSON of the parallel check (currents [A], shares and ratios [-])."""
     ballast = check.ballast
@@ -37,6 +47,7 @@ def parallel_to_dict(check: ParallelCheck) -> dict[str, Any]:
         "p50_ratio": _number(check.p50_ratio),
         "p99_ratio": _number(check.p99_ratio),
         **_estimate(check.estimate),
+        "rare": rare_to_dict(check.rare),
         "unsolved": check.unsolved,
         "worst_trial": check.worst_trial,
         "required_derating": _number(check.required_derating),
@@ -66,6 +77,7 @@ def thermal_to_dict(check: ThermalCheck) -> dict[str, Any]:
         "p50_ratio": _number(check.p50_ratio),
         "p99_ratio": _number(check.p99_ratio),
         **_estimate(check.estimate),
+        "rare": rare_to_dict(check.rare),
         "p_runaway": runaway.p_fail,
         "p_runaway_ci": [runaway.ci_low, runaway.ci_high],
         "runaway_trials": runaway.failures,

@@ -23,7 +23,7 @@ from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
 from ..studies.transient_check import TransientCheck
 from .lots import lots_to_list
-from .check_sections import drivers_to_list, parallel_to_dict, thermal_to_dict, transient_to_dict
+from .check_sections import drivers_to_list, rare_to_dict, parallel_to_dict, thermal_to_dict, transient_to_dict
 
 if TYPE_CHECKING:
     from ..studies.size import SizingResult
@@ -53,12 +53,7 @@ def check_to_dict(check: SeriesCheck) -> dict[str, Any]:
         "p_fail": estimate.p_fail,
         "p_fail_ci": [estimate.ci_low, estimate.ci_high],
         "worst_trial": check.worst_trial,
-        "rare": None if check.rare is None else {
-            "estimator": check.rare.estimator, "p_fail": check.rare.p_fail,
-            "std_error": check.rare.std_error,
-            "p_fail_ci": [check.rare.ci_low, check.rare.ci_high],
-            "beta": _number(check.rare.beta), "first_order": check.rare.first_order,
-            "samples": check.rare.samples, "found_failure_point": check.rare.found_failure_point},
+        "rare": rare_to_dict(check.rare),
         "positions": [
             {
                 "branch": p.branch, "index": p.index, "part": p.part, "limit": p.limit,

@@ -30,6 +30,7 @@ from .forward_check import (
     finish_thermal,
     forward_for_devices,
     forward_parameters,
+    forward_ratios,
     forward_reasons,
     forward_setup,
     run_forward_chunk,
@@ -55,6 +56,9 @@ from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 # A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
 # in the trial count.
 _CHUNK_ELEMENTS = 1_000_000
+# The checks --rare estimates by importance sampling (the time-domain transient check simulates too
+# few strings for it: it keeps its plain estimate).
+RARE_CHECKS = ("static", "dynamic", "parallel", "thermal")
 
 ProgressCallback = Callable[[int, int], None]
 
@@ -320,12 +324,12 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     impossible = impossibility(design)
     grading = grading_summary(design, checks, temperature,
                               position_values(design, lambda p: p.c_j, pick=np.maximum))
-    passed = all(check.passed for check in checks.values() if check.ran)
     if rare:
-        for name in ("static", "dynamic"):
-            if checks[name].ran:
+        for name in RARE_CHECKS:
+            if name in checks and checks[name].ran:
                 checks[name] = _with_rare(checks[name], context, seed, confidence, target,
                                           rare_samples)
+    passed = all(check.passed for check in checks.values() if check.ran)
     ranking: tuple[Driver, ...] = ()
     if drivers and features:
         ranking = _drivers(design, checks, features, ratios, trials=trials, seed=seed,
@@ -524,12 +528,25 @@ def _check_rare_inputs(design: Design) -> None:
                               source=design.source, key=f"parts.{name}.fit")
 
 
-def _with_rare(check: SeriesCheck, context: _ChunkContext, seed: int, confidence: float,
-               target: float, samples: int) -> SeriesCheck:
-    parameters = ("i_r",) if check.name == "static" else ("q_rr",)
-    estimate = rare_event_estimate(context.design, check.name, parameters,
-                                   lambda drawn: evaluate_strings(context, drawn, check.name),
-                                   seed=seed, confidence=confidence, samples=samples)
+def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, target: float,
+               samples: int):
+    """The check with its P(fail) estimated by importance sampling, passing on that estimate's
+    upper bound."""
+    name = check.name
+    if name in ("static", "dynamic"):
+        parameters = ("i_r",) if name == "static" else ("q_rr",)
+
+        def evaluate(drawn: DrawnStrings) -> np.ndarray:
+            return evaluate_strings(context, drawn, name)
+    else:
+        # The forward checks depend on V_T0 and r_T and, through the losses and the junction
+        # temperatures, on the leakage and recovery charge.
+        parameters = forward_parameters(context.design)
+
+        def evaluate(drawn: DrawnStrings) -> np.ndarray:
+            return forward_ratios(context.design, context.forward, drawn, name)
+    estimate = rare_event_estimate(context.design, name, parameters, evaluate, seed=seed,
+                                   confidence=confidence, samples=samples)
     return replace(check, rare=estimate, passed=estimate.ci_high <= target)
 
 

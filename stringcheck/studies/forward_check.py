@@ -25,6 +25,8 @@ from .. import eseries
 from ..design import Design
 from ..sampling import DrawnStrings
 from ..solvers.electrothermal import (
+    OVER_LIMIT,
+    RUNAWAY,
     ParallelDevices,
     ParallelDuty,
     runaway_ambient,
@@ -34,6 +36,7 @@ from ..solvers.parallel import ballast_for_share, branch_currents
 from ..physics.forward import slope_resistance, threshold_voltage
 from ..stats import FailureEstimate, failure_estimate
 from .mixed_stock import device_values, position_values
+from .rare_events import RareEstimate
 
 # Runaway ambient is searched on the first trials of each chunk only (a bisection costs some fifteen
 # equilibrium solves); its percentiles describe the margin, the pass/fail rests on the equilibrium.
@@ -103,6 +106,7 @@ class ParallelCheck:
     electro_thermal: bool
     branches: tuple[BranchStatistics, ...]
     ballast: BallastAdvice | None
+    rare: RareEstimate | None = None
 
 
 @dataclass(frozen=True)
@@ -128,6 +132,7 @@ class ThermalCheck:
     runaway_search_limit: float
     positions: tuple[DeviceTemperature, ...]
     total_power_mean: float
+    rare: RareEstimate | None = None
 
 
 @dataclass(frozen=True)
@@ -261,8 +266,10 @@ def forward_parameters(design: Design) -> tuple[str, ...]:
     return tuple(names)
 
 
-def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings) -> ForwardChunk:
-    """Solve the forward checks of one chunk of drawn strings."""
+def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, *,
+                      summaries: bool = True) -> ForwardChunk:
+    """Solve the forward checks of one chunk of drawn strings (``summaries``: also the runaway
+    ambient of the chunk's first trials and the ballast each trial needs)."""
     duty = design.duty
     parameters = drawn.parameters
     count = drawn.trials
@@ -305,7 +312,7 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings) 
             tj_over=np.count_nonzero(temperature > setup.max_junction_temperature, axis=0),
             power_total=equilibrium.power.sum(axis=(1, 2)),
         )
-        sample = min(count, RUNAWAY_SAMPLE)
+        sample = min(count, RUNAWAY_SAMPLE) if summaries else 0
         if sample:
             head = _head(devices, sample)
             found = runaway_ambient(head, _duty(design), upper_limit=setup.search_limit)
@@ -331,7 +338,7 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings) 
         current_ratio = np.max(average[..., None] / setup.rated_current, axis=(1, 2))
     chunk = ForwardChunk(first_trial=drawn.first_trial, share=share, current_ratio=current_ratio,
                          branch_current=average, **(outcome_tj or {}))
-    if setup.run_parallel:
+    if setup.run_parallel and summaries:
         # Each branch's rated current, its weakest device's (with a mix, of the parts drawn).
         chunk.branch_limit = np.broadcast_to(np.min(setup.rated_current, axis=-1), average.shape)
         needs = share > setup.target_share
@@ -348,6 +355,20 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings) 
         chunk.ballast = ballast
         chunk.ballast_loss_per_ohm = loss_per_ohm
     return chunk
+
+
+def forward_ratios(design: Design, setup: ForwardSetup, drawn: DrawnStrings,
+                   check: str) -> np.ndarray:
+    """Each drawn group's failure ratio in ``check`` ("parallel": max device I_AV / I_F(AV);
+    "thermal": max (T_j - T_a) / (T_j,max - T_a)), inf where it cannot be solved, runs away or
+    has no equilibrium below T_j,max: the function g of the rare-event estimator (fails when > 1)."""
+    chunk = run_forward_chunk(design, setup, drawn, summaries=False)
+    if check == "parallel":
+        solved = np.isfinite(chunk.current_ratio) & np.isfinite(chunk.share)
+        return np.where(solved, chunk.current_ratio, np.inf)
+    failed = np.isin(chunk.classification, (RUNAWAY, OVER_LIMIT))
+    ratio = np.where(np.isnan(chunk.tj_ratio), np.inf, chunk.tj_ratio)
+    return np.where(failed & ~(ratio > 1.0), np.inf, ratio)
 
 
 def _duty(design: Design) -> ParallelDuty:
