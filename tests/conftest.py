@@ -55,3 +55,38 @@ screened = {"true" if screened else "false"}
 def half_plane_design():
     """The function :func:`half_plane_design_text`."""
     return half_plane_design_text
+
+
+# Two branches of one device, dc, no thermal data: branch currents i_k = (v - V_T0,k) / r_T with one
+# r_T, so the hotter branch carries I / 2 + |V_T0,1 - V_T0,2| / (2 r_T) (DESIGN.md 4, forward
+# sharing, solved by hand). It exceeds I_F(AV) when |dV| > d = 2 r_T (I_F(AV) - I / 2). V_T0 normal,
+# sigma = 10 mV, unscreened: dV ~ N(0, 2 sigma^2), two half-planes at beta = d / (sigma sqrt 2) in
+# latent space, P(fail) = 2 Phi(-beta) (scipy.stats.norm).
+PARALLEL_PAIR = """
+[duty]
+reverse_voltage = "1 kV"
+forward_current = "15 A"
+waveform = "dc"
+[string]
+series = 1
+parallel = 2
+derating = 1.0
+part = "P"
+[parts.P]
+v_rrm = "2 kV"
+i_fav = "9.8 A"
+i_r = { typ = "1 uA", at_temperature = "25 degC" }
+v_t0 = { typ = "0.9 V", min = "0.87 V", max = "0.93 V", at_temperature = "25 degC" }
+r_t = { typ = "10 mOhm" }
+[grading]
+resistor = "100 MOhm"
+[monte_carlo]
+screened = false
+seed = 5
+"""
+
+
+@pytest.fixture
+def parallel_pair_design():
+    """The design text :data:`PARALLEL_PAIR` (P(fail) of the parallel check = 2 Phi(-beta))."""
+    return PARALLEL_PAIR

@@ -33,7 +33,24 @@ def rare_to_dict(rare) -> dict[str, Any] | None:
     return {"estimator": rare.estimator, "p_fail": rare.p_fail, "std_error": rare.std_error,
             "p_fail_ci": [rare.ci_low, rare.ci_high], "beta": _number(rare.beta),
             "first_order": rare.first_order, "samples": rare.samples,
-            "found_failure_point": rare.found_failure_point}
+            "found_failure_point": rare.found_failure_point,
+            "importance": [{"input": item.input, "share": item.share, "branch": item.branch,
+                            "index": item.index, "sign": item.sign}
+                           for item in rare.importance]}
+
+
+def failure_point_text(rare, *, top: int = 3) -> str:
+    """The inputs that make up most of the failure point, in words (empty without one)."""
+    if rare is None or not rare.found_failure_point:
+        return ""
+    pieces = []
+    for item in rare.importance[:top]:
+        if item.share < 0.01:
+            break
+        where = "" if item.branch is None else f", mostly branch {item.branch} #{item.index} " \
+            f"{'high' if item.sign > 0 else 'low'}"
+        pieces.append(f"{item.share:.0%} {item.input}{where}")
+    return "failure point: " + "; ".join(pieces) if pieces else ""
 
 
 def parallel_to_dict(check: ParallelCheck) -> dict[str, Any]:
@@ -245,9 +262,10 @@ def _temperature(value: float, limit: float) -> str:
 def drivers_to_list(drivers) -> list[dict[str, Any]]:
     """JSON of the drivers ranking (``check --drivers``)."""
     return [{"check": d.check, "input": d.input, "label": d.label,
-             "rank_correlation": d.rank_correlation,
+             "rank_correlation": _number(d.rank_correlation),
              "tightened_p99_ratio": _number(d.tightened_p99_ratio),
-             "tightened_p_fail_upper": _number(d.tightened_p_fail_upper)} for d in drivers]
+             "tightened_p_fail_upper": _number(d.tightened_p_fail_upper),
+             "failure_point_share": _number(d.failure_point_share)} for d in drivers]
 
 
 def render_drivers(result, console: Console) -> None:
@@ -257,16 +275,21 @@ def render_drivers(result, console: Console) -> None:
     console.print(Text("What drives the worst stress", style="bold underline"))
     console.print("rank correlation of each input's mismatch across the string with the string's "
                   "worst stress ratio (first 20,000 trials); each top input rerun with its spread "
-                  "halved on the same draws")
+                  "halved on the same draws, and the ambient rerun 10 K cooler")
+    shares = any(d.failure_point_share is not None for d in result.drivers)
     table = Table(show_edge=False, pad_edge=False)
-    for column in ("check", "input", "rank corr.", "p99/limit now", "p99/limit halved",
-                   "P(fail) upper halved"):
+    columns = ["check", "input", "rank corr.", "p99/limit now", "p99/limit after",
+               "P(fail) upper after"] + (["share of failure point"] if shares else [])
+    for column in columns:
         table.add_column(column, justify="left" if column in ("check", "input") else "right")
     for d in result.drivers:
         now = result.checks[d.check].p99_ratio
-        table.add_row(d.check, d.label, f"{d.rank_correlation:+.2f}", f"{now:.3f}",
-                      "-" if d.tightened_p99_ratio is None else f"{d.tightened_p99_ratio:.3f}",
-                      "-" if d.tightened_p_fail_upper is None else
-                      f"{d.tightened_p_fail_upper:.2g}")
+        row = [d.check, d.label, "-" if math.isnan(d.rank_correlation) else
+               f"{d.rank_correlation:+.2f}", f"{now:.3f}",
+               "-" if d.tightened_p99_ratio is None else f"{d.tightened_p99_ratio:.3f}",
+               "-" if d.tightened_p_fail_upper is None else f"{d.tightened_p_fail_upper:.2g}"]
+        if shares:
+            row.append("-" if d.failure_point_share is None else f"{d.failure_point_share:.0%}")
+        table.add_row(*row)
     console.print(table)
     console.print()

@@ -17,7 +17,7 @@ from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
 from ..studies.transient_check import TransientCheck
 from .lots import render_lots
-from .check_sections import render_drivers, render_parallel, render_thermal, render_transient, worst_value_text
+from .check_sections import failure_point_text, render_drivers, render_parallel, render_thermal, render_transient, worst_value_text
 
 if TYPE_CHECKING:
     from ..studies.size import SizingResult
@@ -111,7 +111,8 @@ def render_check(result: CheckResult, console: Console) -> None:
                 f"{rare.std_error:.2g}" + (f", beta = {rare.beta:.2f} (first-order Phi(-beta) = "
                                            f"{rare.first_order:.2g}, for reference)"
                                            if rare.found_failure_point else "")
-                + f"; plain Monte Carlo: {check.estimate.failures:,} of {check.estimate.trials:,}")
+                + f"; plain Monte Carlo: {check.estimate.failures:,} of {check.estimate.trials:,}"
+                + (f"; {failure_point_text(rare)}" if failure_point_text(rare) else ""))
     console.print()
 
     for name, check in result.checks.items():

@@ -37,8 +37,8 @@ from .forward_check import (
 )
 from .transient_check import DEFAULT_WORST, run_transient
 from .transient_check import not_run as not_run_transient
-from .drivers import DRIVER_TRIALS, TOP_DRIVERS, Driver, chunk_features, label, rank_inputs
-from .drivers import tightenable, tightened
+from .drivers import DRIVER_TRIALS, TEMPERATURE_CHECKS, TOP_DRIVERS, Driver, chunk_features
+from .drivers import cooler, label, rank_inputs, tightenable, tightened
 from .grading_summary import GradingSummary, grading_summary
 from .rare_events import DEFAULT_SAMPLES, RareEstimate, rare_event_estimate
 from .check_inputs import (
@@ -273,7 +273,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                             forward=forward, rescaling=rescaling,
                             driver_trials=DRIVER_TRIALS if drivers else 0)
     features: dict[str, list] = {}
-    ratios: dict[str, list] = {"static": [], "dynamic": []}
+    ratios: dict[str, list] = {"static": [], "dynamic": [], "parallel": [], "thermal": []}
     with worker_pool(workers) if pool is None else nullcontext(pool) as active:
         if chunk_trials is None:
             chunk_trials = chunk_size(trials, _CHUNK_ELEMENTS // (layout.series * layout.parallel),
@@ -294,6 +294,10 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                                           ("dynamic", outcome.dynamic)):
                     if accumulator is not None:
                         ratios[name].append(accumulator.worst_ratios[0][:count])
+                if outcome.forward is not None:
+                    ratios["parallel"].append(outcome.forward.current_ratio[:count])
+                    if outcome.forward.tj_ratio is not None:
+                        ratios["thermal"].append(outcome.forward.tj_ratio[:count])
 
     confidence = design.monte_carlo.confidence
     target = design.sizing.target_p_fail
@@ -552,19 +556,34 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
 
 def _drivers(design: Design, checks, features: dict[str, list], ratios: dict[str, list], *,
              trials: int, seed: int, pool: WorkerPool | None) -> tuple[Driver, ...]:
-    """Rank the inputs of each series check that ran, and rerun it with the top ones tightened."""
+    """Rank the inputs of each check that ran, and rerun it with the top ones tightened and with a
+    cooler ambient."""
     joined = {name: np.concatenate(parts) for name, parts in features.items()}
     out = []
-    for name in ("static", "dynamic"):
-        if not checks[name].ran or not ratios[name]:
+
+    def rerun(changed: Design, name: str) -> tuple[float, float]:
+        only = (name,) if name in ("static", "dynamic") else None
+        again = run_check(changed, trials=trials, seed=seed, only=only, pool=pool).checks[name]
+        return again.p99_ratio, again.estimate.ci_high
+
+    for name in RARE_CHECKS:
+        if name not in checks or not checks[name].ran or not ratios[name]:
             continue
+        shares = {}
+        rare = getattr(checks[name], "rare", None)
+        if rare is not None and rare.found_failure_point:
+            shares = {item.input: item.share for item in rare.importance}
         ranked = rank_inputs(name, joined, np.concatenate(ratios[name]))
         for position, (driver, rho) in enumerate(ranked):
             p99 = upper = None
             if position < TOP_DRIVERS and tightenable(design, driver):
-                rerun = run_check(tightened(design, driver), trials=trials, seed=seed,
-                                  only=(name,), pool=pool).checks[name]
-                p99, upper = rerun.p99_ratio, rerun.estimate.ci_high
+                p99, upper = rerun(tightened(design, driver), name)
             out.append(Driver(check=name, input=driver, label=label(driver), rank_correlation=rho,
-                              tightened_p99_ratio=p99, tightened_p_fail_upper=upper))
+                              tightened_p99_ratio=p99, tightened_p_fail_upper=upper,
+                              failure_point_share=shares.get(driver)))
+        if name in TEMPERATURE_CHECKS:
+            p99, upper = rerun(cooler(design), name)
+            out.append(Driver(check=name, input="ambient", label=label("ambient"),
+                              rank_correlation=float("nan"), tightened_p99_ratio=p99,
+                              tightened_p_fail_upper=upper))
     return tuple(out)

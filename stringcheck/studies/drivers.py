@@ -9,7 +9,10 @@ Each input is ranked by the absolute Spearman rank correlation of its mismatch w
 worst stress ratio (scipy.stats.spearmanr). For the top inputs the check is run again on the same
 draws with that input's spread halved (device limits halfway to typ, in the log domain for the
 lognormal parameters; a grading tolerance halved), and the new 99th-percentile stress and P(fail)
-bound show what the tightening would buy.
+bound show what the tightening would buy. The parallel and thermal checks rank V_T0, r_T, I_R and
+Q_rr the same way. The ambient does not scatter, so it is not ranked: the checks that depend on it
+(static, parallel, thermal) are rerun with it :data:`COOLER_BY` kelvin lower. With ``--rare``, each
+input's share of the most likely failure point (``rare_events.FailurePointShare``) stands beside it.
 """
 
 from __future__ import annotations
@@ -27,12 +30,19 @@ DRIVER_TRIALS = 20_000
 TOP_DRIVERS = 3
 # The inputs each check's physics depends on (DESIGN.md section 4): the blocking-state sharing on
 # leakage against the resistors, the turn-off sharing on recovery charge against the capacitors.
-CHECK_INPUTS = {"static": ("i_r", "resistor"), "dynamic": ("q_rr", "capacitor")}
+CHECK_INPUTS = {"static": ("i_r", "resistor"), "dynamic": ("q_rr", "capacitor"),
+                "parallel": ("v_t0", "r_t", "i_r", "q_rr"),
+                "thermal": ("v_t0", "r_t", "i_r", "q_rr")}
+# The checks whose physics depends on the temperature (leakage doubling, forward temperature
+# coefficients, the thermal balance); the dynamic check's Q_rr does not (DESIGN.md 4).
+TEMPERATURE_CHECKS = ("static", "parallel", "thermal")
+COOLER_BY = 10.0  # [K] the ambient change the drivers table shows
 
 _LABELS = {"i_r": "leakage I_R", "q_rr": "recovery charge Q_rr", "v_t0": "threshold voltage V_T0",
            "r_t": "slope resistance r_T", "i_rm": "peak recovery current I_RM",
            "t_rr": "recovery time t_rr", "resistor": "grading resistor tolerance",
-           "capacitor": "grading capacitor tolerance"}
+           "capacitor": "grading capacitor tolerance",
+           "ambient": f"ambient -{COOLER_BY:g} K"}
 
 
 @dataclass(frozen=True)
@@ -45,6 +55,7 @@ class Driver:
     rank_correlation: float
     tightened_p99_ratio: float | None
     tightened_p_fail_upper: float | None
+    failure_point_share: float | None = None
 
 
 def chunk_features(drawn: DrawnStrings, design: Design, count: int) -> dict[str, np.ndarray]:
@@ -65,6 +76,11 @@ def chunk_features(drawn: DrawnStrings, design: Design, count: int) -> dict[str,
 def rank_inputs(check: str, features: dict[str, np.ndarray],
                 ratios: np.ndarray) -> list[tuple[str, float]]:
     """(input, Spearman rho) sorted by |rho|, inputs with no variation left out."""
+    # A string that could not be solved or ran away is the worst of all: it ranks above every
+    # finite ratio (rank correlation needs only the order).
+    ratios = np.asarray(ratios, dtype=float)
+    finite_max = np.max(ratios[np.isfinite(ratios)], initial=0.0)
+    ratios = np.where(np.isposinf(ratios), finite_max + 1.0, ratios)
     finite = np.isfinite(ratios)
     ranked = []
     for name, values in features.items():
@@ -78,6 +94,11 @@ def rank_inputs(check: str, features: dict[str, np.ndarray],
             ranked.append((name, rho))
     ranked.sort(key=lambda item: abs(item[1]), reverse=True)
     return ranked
+
+
+def cooler(design: Design, kelvin: float = COOLER_BY) -> Design:
+    """The design with the ambient ``kelvin`` [K] lower."""
+    return replace(design, duty=replace(design.duty, ambient=design.duty.ambient - kelvin))
 
 
 def tightenable(design: Design, name: str) -> bool:

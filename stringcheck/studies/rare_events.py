@@ -56,6 +56,26 @@ class RareEstimate:
     samples: int
     failures: int
     found_failure_point: bool
+    importance: tuple["FailurePointShare", ...] = ()
+
+
+@dataclass(frozen=True)
+class FailurePointShare:
+    """How much of the most likely failure point one input makes up.
+
+    ``share`` is the input's part of beta^2 = |u*|^2, the sum of its latent coordinates squared over
+    beta^2 (the squared direction cosines of first-order reliability, summed per input; O. Ditlevsen
+    and H. O. Madsen, Structural Reliability Methods, Wiley 1996, ch. 5: the "importance factors").
+    ``branch`` and ``index`` (1-based) are the position whose coordinate is largest, for inputs
+    drawn per position (None for a lot). ``sign`` is that coordinate's sign: +1 when failure comes
+    from that input high, -1 when low.
+    """
+
+    input: str
+    share: float
+    branch: int | None
+    index: int | None
+    sign: int
 
 
 class _Space:
@@ -76,6 +96,24 @@ class _Space:
         if design.grading.capacitor is not None:
             self.blocks.append(("capacitor", "", size))
         self.dimension = sum(size for _, _, size in self.blocks)
+
+    def importance(self, point: np.ndarray) -> tuple[FailurePointShare, ...]:
+        """The failure point's beta^2 shared out among the inputs, largest first."""
+        total = float(point @ point)
+        out = []
+        start = 0
+        for kind, name, size in self.blocks:
+            piece = point[start:start + size]
+            start += size
+            share = float(piece @ piece) / total if total > 0 else 0.0
+            top = int(np.argmax(np.abs(piece)))
+            label = name if kind == "device" else (f"lot:{name}" if kind == "lot" else kind)
+            branch, index = (None, None) if kind == "lot" else \
+                (top // self.shape[1] + 1, top % self.shape[1] + 1)
+            out.append(FailurePointShare(input=label, share=share, branch=branch, index=index,
+                                         sign=1 if piece[top] >= 0 else -1))
+        out.sort(key=lambda item: item.share, reverse=True)
+        return tuple(out)
 
     def latent(self, u: np.ndarray) -> Latent:
         k = u.shape[0]
@@ -150,7 +188,8 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
         p_fail=p_fail, std_error=std_error, ci_low=max(0.0, p_fail - z * std_error),
         ci_high=p_fail + z * std_error, confidence=confidence, beta=beta,
         first_order=float(stats.norm.sf(beta)) if found else 0.0, samples=samples,
-        failures=int(np.count_nonzero(failed)), found_failure_point=found)
+        failures=int(np.count_nonzero(failed)), found_failure_point=found,
+        importance=space.importance(shift))
 
 
 def _gradient(g, u: np.ndarray) -> tuple[float, np.ndarray]:

@@ -87,3 +87,47 @@ def test_rank_is_by_absolute_correlation(seed, strength):
     ratio = -strength * a + 0.05 * rng.normal(size=500)
     ranked = rank_inputs("dynamic", {"q_rr": a, "capacitor": b}, ratio)
     assert ranked[0][0] == "q_rr" and ranked[0][1] < 0
+
+
+def test_a_cooler_ambient_lowers_the_static_stress_of_a_leaky_string():
+    # Leakage doubles every 10 K (DESIGN.md 4), so 10 K cooler halves every leakage; with the
+    # resistors fixed the leakage spread pushes less voltage around: the static p99 falls, and the
+    # dynamic check (Q_rr has no temperature in the model) gets no ambient row.
+    text = design(q_rr='{ typ = "1 uC", max = "2 uC" }', capacitor_tolerance="0 %",
+                  i_r='{ typ = "20 uA", max = "200 uA", at_temperature = "25 degC" }',
+                  resistor_tolerance="0 %")
+    result = run_check(parse_design_text(text), drivers=True)
+    ambient = [d for d in result.drivers if d.input == "ambient"]
+    assert [d.check for d in ambient] == ["static"]
+    assert ambient[0].tightened_p99_ratio < result.checks["static"].p99_ratio
+
+
+def test_parallel_drivers_rank_the_threshold_voltage_and_show_the_failure_point(
+        parallel_pair_design):
+    # Two branches whose only scatter that matters is V_T0 (tests/conftest.py, PARALLEL_PAIR):
+    # V_T0 is ranked first for the parallel check, and with --rare it makes up the whole failure
+    # point (its share of beta^2 is 1 to rounding).
+    result = run_check(parse_design_text(parallel_pair_design), trials=8192, drivers=True, rare=True,
+                       rare_samples=4000)
+    first = _first(result, "parallel")
+    assert first.input == "v_t0" and first.rank_correlation > 0.3
+    assert first.failure_point_share == pytest.approx(1.0, abs=1e-3)
+    importance = result.checks["parallel"].rare.importance
+    assert importance[0].input == "v_t0" and importance[0].branch in (1, 2)
+
+
+def test_drivers_with_the_ambient_row_write_valid_json():
+    # The ambient row has no rank correlation: it must be null in the JSON, never NaN (which is
+    # not JSON; the writer refuses it).
+    import json
+
+    from stringcheck.report.export import json_text, result_to_dict
+
+    text = design(q_rr='{ typ = "1 uC", max = "2 uC" }', capacitor_tolerance="0 %",
+                  i_r='{ typ = "20 uA", max = "200 uA", at_temperature = "25 degC" }',
+                  resistor_tolerance="1 %")
+    result = run_check(parse_design_text(text), trials=2000, drivers=True)
+    drivers = json.loads(json_text(result_to_dict(result)))["drivers"]
+    ambient = [d for d in drivers if d["input"] == "ambient"]
+    assert ambient and ambient[0]["rank_correlation"] is None
+    assert all(d["failure_point_share"] is None for d in drivers)

@@ -52,40 +52,12 @@ def test_the_verdict_follows_the_importance_sampling_bound(half_plane_design):
     assert run_check(design, trials=2000, rare=True, rare_samples=5000).verdict == "pass"
 
 
-# Two branches of one device, dc, no thermal data: branch currents i_k = (v - V_T0,k) / r_T with one
-# r_T, so the hotter branch carries I / 2 + |V_T0,1 - V_T0,2| / (2 r_T) (DESIGN.md 4, forward
-# sharing, solved by hand). It exceeds I_F(AV) when |dV| > d = 2 r_T (I_F(AV) - I / 2). V_T0 normal,
-# sigma = 10 mV, unscreened: dV ~ N(0, 2 sigma^2), two half-planes at beta = d / (sigma sqrt 2) in
-# latent space, P(fail) = 2 Phi(-beta) (scipy.stats.norm).
-PARALLEL_PAIR = """
-[duty]
-reverse_voltage = "1 kV"
-forward_current = "15 A"
-waveform = "dc"
-[string]
-series = 1
-parallel = 2
-derating = 1.0
-part = "P"
-[parts.P]
-v_rrm = "2 kV"
-i_fav = "9.8 A"
-i_r = { typ = "1 uA", at_temperature = "25 degC" }
-v_t0 = { typ = "0.9 V", min = "0.87 V", max = "0.93 V", at_temperature = "25 degC" }
-r_t = { typ = "10 mOhm" }
-[grading]
-resistor = "100 MOhm"
-[monte_carlo]
-screened = false
-seed = 5
-"""
-
-
-def test_importance_sampling_of_the_parallel_check_against_two_half_planes():
+# The parallel pair of tests/conftest.py (fixture parallel_pair_design): P(fail) = 2 Phi(-beta).
+def test_importance_sampling_of_the_parallel_check_against_two_half_planes(parallel_pair_design):
     d = 2 * 0.010 * (9.8 - 15 / 2)
     beta = d / (0.010 * 2 ** 0.5)
     exact = 2 * stats.norm.sf(beta)  # about 1.1e-3
-    result = run_check(parse_design_text(PARALLEL_PAIR), trials=20000, rare=True,
+    result = run_check(parse_design_text(parallel_pair_design), trials=20000, rare=True,
                        rare_samples=20000)
     check = result.checks["parallel"]
     assert check.ran and check.rare.found_failure_point
