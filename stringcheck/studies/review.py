@@ -204,8 +204,8 @@ def _ranges(positions: tuple[int, ...]) -> str:
 def review(baseline: Design, candidate: Design, *, trials: int | None = None,
            seed: int | None = None, workers: int = 1, transient: bool = False,
            progress=None) -> ReviewResult:
-    """Check both designs on common random numbers and compare them (``progress`` is passed on
-    to both checks)."""
+    """Check both designs on common random numbers and compare them (``progress`` is called with
+    (trials done, trials in all) over both checks: one bar from 0 to twice the trials)."""
     if (baseline.string.series, baseline.string.parallel) != \
             (candidate.string.series, candidate.string.parallel):
         raise StringcheckError(
@@ -216,9 +216,9 @@ def review(baseline: Design, candidate: Design, *, trials: int | None = None,
     seed = baseline.monte_carlo.seed if seed is None else seed
     with worker_pool(workers) as pool:
         base = run_check(baseline, trials=trials, seed=seed, pool=pool, transient=transient,
-                         progress=progress)
+                         progress=_stage(progress, 0))
         cand = run_check(candidate, trials=trials, seed=seed, pool=pool, transient=transient,
-                         progress=progress)
+                         progress=_stage(progress, 1))
     tolerance = baseline.review.tolerance
     changes = []
     for name, base_check in base.checks.items():
@@ -244,6 +244,13 @@ def review(baseline: Design, candidate: Design, *, trials: int | None = None,
     return ReviewResult(baseline=base, candidate=cand, changes=tuple(changes),
                         worse_positions=worse, reasons=_reasons(baseline, candidate, worse),
                         tolerance=tolerance, verdict=verdict)
+
+
+def _stage(progress, stage: int):
+    """The progress callback of one of the review's two checks, mapped onto the whole review."""
+    if progress is None:
+        return None
+    return lambda done, total: progress(stage * total + done, 2 * total)
 
 
 def _worse_positions(base: CheckResult, cand: CheckResult) -> tuple[PositionChange, ...]:

@@ -108,3 +108,15 @@ def test_cli_review_exit_codes_and_json(tmp_path):
     assert bad.exit_code == 2 and "NOPE" in bad.stderr
     both = runner.invoke(app, ["review", str(path), str(path), "--swap", "2:FAST"])
     assert both.exit_code == 2 and "exactly one" in both.stderr
+
+
+def test_one_progress_count_runs_over_both_checks():
+    # The review reports progress as one count from 0 to twice the trials (baseline, then
+    # candidate), never starting again from zero.
+    baseline = parse_design_text(BASE)
+    calls = []
+    review(baseline, swapped(baseline, (1,), baseline.string.part), trials=9000, seed=1,
+           progress=lambda done, total: calls.append((done, total)))
+    assert [total for _, total in calls] == [18000] * len(calls)
+    done = [d for d, _ in calls]
+    assert done == sorted(done) and done[-1] == 18000
