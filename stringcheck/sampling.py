@@ -24,6 +24,7 @@ parameter never changes the draws of the others.
 
 from __future__ import annotations
 
+import functools
 import zlib
 from dataclasses import dataclass
 from typing import Mapping
@@ -97,7 +98,8 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
     Truncation maps z to Phi^-1(Phi(a) + Phi(z) (Phi(b) - Phi(a))), the inverse-CDF construction of a
     truncated normal (e.g. C. P. Robert, "Simulation of truncated normal variables", Statistics and
     Computing 5, 1995), with a = -sigma_at_limit where a lower limit exists and b = +sigma_at_limit where
-    an upper one does (minus or plus infinity otherwise).
+    an upper one does (minus or plus infinity otherwise). The map is evaluated from a piecewise
+    polynomial fitted to it, within a few units of the last place (``_truncate``).
     """
     if spread.fixed:
         return np.full(np.shape(latent), spread.typ)
@@ -118,16 +120,88 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
 
 
 def _truncate(z: np.ndarray, low: float, high: float) -> np.ndarray:
-    """Map a standard normal onto the standard normal truncated to [low, high], rank-preserving."""
+    """Map a standard normal onto the standard normal truncated to [low, high], rank-preserving.
+
+    Evaluated from :func:`_truncation_table` on [-8, 8] (a piecewise polynomial of the exact map,
+    within a few units of the last place of it) and by :func:`_truncate_exact` outside, element by
+    element, so that a value's image never depends on the array it arrives in.
+    """
     if np.isinf(low) and np.isinf(high):
         return z
-    # The clips only remove the rounding of ndtri(ndtr(x)) ~ x at the limits themselves.
-    if np.isinf(low):
-        return np.minimum(special.ndtri(special.ndtr(z) * special.ndtr(high)), high)
-    if np.isinf(high):
-        return np.maximum(-special.ndtri(special.ndtr(-z) * special.ndtr(-low)), low)
-    p_low, p_high = special.ndtr(low), special.ndtr(high)
-    return np.clip(special.ndtri(p_low + special.ndtr(z) * (p_high - p_low)), low, high)
+    table = _truncation_table(float(low), float(high))
+    flat = np.ascontiguousarray(z, dtype=float).reshape(-1)
+    out = np.empty_like(flat)
+    scale = 1.0 / _TABLE_STEP
+    # Blocks of a few hundred kB: the temporaries stay in cache.
+    with np.errstate(invalid="ignore"):  # values outside the table are replaced below
+        for start in range(0, flat.size, _TABLE_BLOCK):
+            block = flat[start:start + _TABLE_BLOCK]
+            position = block + _TABLE_RANGE
+            position *= scale
+            index = position.astype(np.intp)
+            position -= index  # the coordinate within the interval, in [0, 1)
+            value = np.take(table[-1], index, mode="clip")
+            term = np.empty_like(value)
+            for coefficient in table[-2::-1]:
+                value *= position
+                value += np.take(coefficient, index, out=term, mode="clip")
+            out[start:start + block.size] = value
+    outside = np.flatnonzero(~(np.abs(flat) < _TABLE_RANGE))  # also NaN
+    if outside.size:
+        out[outside] = _truncate_exact(flat[outside], low, high)
+    np.clip(out, low, high, out=out)
+    return out.reshape(np.shape(z))
+
+
+def _truncate_exact(z: np.ndarray, low: float, high: float) -> np.ndarray:
+    """The truncation map from the normal CDF, each side in its accurate form.
+
+    Phi(y) = Phi(a) + w Phi(z) and, equivalently, Phi(-y) = Phi(-b) + w Phi(-z), with
+    w = Phi(b) - Phi(a): the first for z <= 0 and the second for z > 0, so that the
+    probability handed to the inverse CDF is never a small difference from 1.
+    """
+    p_low, q_high = special.ndtr(low), special.ndtr(-high)
+    width = special.ndtr(high) - p_low
+    with np.errstate(invalid="ignore"):
+        below = special.ndtri(p_low + width * special.ndtr(z))
+        above = -special.ndtri(q_high + width * special.ndtr(-z))
+    # The clip only removes the rounding of the inverse at the limits themselves.
+    return np.clip(np.where(z <= 0.0, below, above), low, high)
+
+
+# The table of the truncation map: intervals of _TABLE_STEP on [-_TABLE_RANGE, _TABLE_RANGE], a
+# polynomial of _TABLE_DEGREE on each. Degree 6 on steps of 1/64 reproduces the exact map within
+# 6e-15 for limits at 1 to 6 standard deviations (tests/test_sampling.py).
+_TABLE_RANGE = 8.0
+_TABLE_STEP = 2.0**-6
+_TABLE_DEGREE = 6
+_TABLE_BLOCK = 32768
+
+
+@functools.lru_cache(maxsize=128)
+def _truncation_table(low: float, high: float) -> tuple[np.ndarray, ...]:
+    """Coefficients c_j of the truncation map on each interval, in powers of the coordinate
+    t in [0, 1) within it: y = sum_j c_j[i] t^j; one array per power.
+
+    Notes
+    -----
+    Interpolation of :func:`_truncate_exact` at the Chebyshev points of each interval (the map
+    is smooth, so the interpolant converges fast: the error falls as step^(degree + 1)); the
+    power-basis coefficients come from one (degree + 1)-square Vandermonde solve for all
+    intervals at once.
+
+    References
+    ----------
+    .. [1] L. N. Trefethen, *Approximation Theory and Approximation Practice*, SIAM, 2013,
+       chapters 2 to 8 (Chebyshev points; convergence of interpolants of smooth functions).
+    """
+    count = int(round(2.0 * _TABLE_RANGE / _TABLE_STEP))
+    left = -_TABLE_RANGE + _TABLE_STEP * np.arange(count)
+    order = _TABLE_DEGREE + 1
+    nodes = 0.5 * (1.0 - np.cos(np.pi * (np.arange(order) + 0.5) / order))
+    values = _truncate_exact(left[:, None] + _TABLE_STEP * nodes, low, high)
+    coefficients = np.linalg.solve(np.vander(nodes, order, increasing=True), values.T)
+    return tuple(np.ascontiguousarray(row) for row in coefficients)
 
 
 def tolerance_draw(nominal: float, tolerance: float, latent: np.ndarray, *,

@@ -195,6 +195,29 @@ def test_tolerance_draw_spread_matches_truncated_normal():
     assert stats.kstest(mapped_back, stats.truncnorm(-K, K).cdf).pvalue > 0.01
 
 
+@pytest.mark.parametrize("low, high", [(-3.0, 3.0), (-math.inf, 3.0), (-3.0, math.inf),
+                                       (-1.0, 1.0), (-math.inf, 6.0), (-1.0, 6.0)])
+def test_tabulated_truncation_matches_the_exact_map(low, high):
+    # The piecewise polynomial that evaluates the truncation map must agree with the map from
+    # the normal CDF (ndtr / ndtri, each side in its accurate form) to a few units of the last
+    # place, on a dense grid and across the interval joints; beyond |z| = 8 the exact map is used.
+    from stringcheck.sampling import _truncate, _truncate_exact
+
+    z = np.concatenate([np.linspace(-9.0, 9.0, 400_001), np.arange(-512, 513) / 64.0,
+                        [-np.inf, np.inf, np.nan]])
+    table = _truncate(z, low, high)
+    exact = _truncate_exact(z, low, high)
+    finite = ~np.isnan(z)
+    np.testing.assert_allclose(table[finite], exact[finite], rtol=0.0, atol=1e-14)
+    assert np.isnan(table[-1])
+    # Rank-preserving to rounding (the exact map too wobbles by an ulp where it is flat).
+    assert np.all(np.diff(table[:400_001]) >= -2e-15)
+    # The exact map against scipy's truncated normal: Phi_trunc^-1(Phi(z)).
+    q = np.linspace(0.001, 0.999, 101)
+    np.testing.assert_allclose(_truncate(stats.norm.ppf(q), low, high),
+                               stats.truncnorm(low, high).ppf(q), rtol=1e-9, atol=1e-12)
+
+
 # --- whole strings ---------------------------------------------------------------------------------
 
 def _assert_same(a, b):
