@@ -115,8 +115,13 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
         lower = (spread.typ - spread.low) / k if spread.low is not None else None
     upper = lower if upper is None else upper
     lower = upper if lower is None else lower
-    scaled = np.where(z >= 0, upper * z, lower * z)
-    return spread.typ * np.exp(scaled) if lognormal else spread.typ + scaled
+    scaled = upper * z if upper == lower else np.where(z >= 0, upper * z, lower * z)
+    if lognormal:
+        np.exp(scaled, out=scaled)
+        scaled *= spread.typ
+    else:
+        scaled += spread.typ
+    return scaled
 
 
 def _truncate(z: np.ndarray, low: float, high: float) -> np.ndarray:
@@ -132,6 +137,7 @@ def _truncate(z: np.ndarray, low: float, high: float) -> np.ndarray:
     flat = np.ascontiguousarray(z, dtype=float).reshape(-1)
     out = np.empty_like(flat)
     scale = 1.0 / _TABLE_STEP
+    outside = []
     # Blocks of a few hundred kB: the temporaries stay in cache.
     with np.errstate(invalid="ignore"):  # values outside the table are replaced below
         for start in range(0, flat.size, _TABLE_BLOCK):
@@ -145,11 +151,13 @@ def _truncate(z: np.ndarray, low: float, high: float) -> np.ndarray:
             for coefficient in table[-2::-1]:
                 value *= position
                 value += np.take(coefficient, index, out=term, mode="clip")
-            out[start:start + block.size] = value
-    outside = np.flatnonzero(~(np.abs(flat) < _TABLE_RANGE))  # also NaN
-    if outside.size:
-        out[outside] = _truncate_exact(flat[outside], low, high)
-    np.clip(out, low, high, out=out)
+            np.clip(value, low, high, out=out[start:start + block.size])
+            np.abs(block, out=term)
+            if not term.max() < _TABLE_RANGE:  # also NaN
+                outside.append(start + np.flatnonzero(~(term < _TABLE_RANGE)))
+    if outside:
+        rows = np.concatenate(outside)
+        out[rows] = _truncate_exact(flat[rows], low, high)
     return out.reshape(np.shape(z))
 
 
@@ -332,16 +340,18 @@ def strings_from_latent(design: Design, parameters: tuple[str, ...], latent: Lat
 
     values = {}
     for parameter in parameters:
-        out = np.empty(shape)
+        out = None if len(used) == 1 else np.empty(shape)
         for name in used:
             mask = grid == name
             spread = design.parts[name].spread(parameter)
             if spread is None:
                 raise ValueError(f"part {name!r} has no {parameter}")
-            out[:, mask] = spread_quantile(
-                spread, device_latent[parameter][:, mask],
-                lognormal=parameter in LOGNORMAL_PARAMETERS,
-                sigma_at_limit=monte_carlo.sigma_at_limit, screened=monte_carlo.screened)
+            options = dict(lognormal=parameter in LOGNORMAL_PARAMETERS,
+                           sigma_at_limit=monte_carlo.sigma_at_limit, screened=monte_carlo.screened)
+            if out is None:  # one part everywhere: no gather and scatter by position
+                out = spread_quantile(spread, device_latent[parameter], **options)
+            else:
+                out[:, mask] = spread_quantile(spread, device_latent[parameter][:, mask], **options)
         values[parameter] = out
 
     grading = design.grading
