@@ -105,8 +105,10 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
         return np.full(np.shape(latent), spread.typ)
     z = np.asarray(latent, dtype=float)
     k = sigma_at_limit
-    if screened:
+    fresh = False  # whether z is an array of our own, to be worked on in place
+    if screened and (spread.low is not None or spread.high is not None):
         z = _truncate(z, -k if spread.low is not None else -np.inf, k if spread.high is not None else np.inf)
+        fresh = True
     if lognormal:
         upper = np.log(spread.high / spread.typ) / k if spread.high is not None else None
         lower = np.log(spread.typ / spread.low) / k if spread.low is not None else None
@@ -115,7 +117,10 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
         lower = (spread.typ - spread.low) / k if spread.low is not None else None
     upper = lower if upper is None else upper
     lower = upper if lower is None else lower
-    scaled = upper * z if upper == lower else np.where(z >= 0, upper * z, lower * z)
+    if upper == lower:
+        scaled = np.multiply(upper, z, out=z if fresh else None)
+    else:
+        scaled = np.where(z >= 0, upper * z, lower * z)
     if lognormal:
         np.exp(scaled, out=scaled)
         scaled *= spread.typ
@@ -230,7 +235,12 @@ def tolerance_draw(nominal: float, tolerance: float, latent: np.ndarray, *,
     if tolerance == 0:
         return np.full(np.shape(latent), nominal)
     z = _truncate(np.asarray(latent, dtype=float), -sigma_at_limit, sigma_at_limit)
-    return nominal * (1.0 + tolerance * z / sigma_at_limit)
+    # nominal * (1 + tolerance * z / sigma_at_limit), in place on the fresh array z.
+    z *= tolerance
+    z /= sigma_at_limit
+    z += 1.0
+    z *= nominal
+    return z
 
 
 def _stream(seed: int, block: int, component: int) -> np.random.Generator:
@@ -245,19 +255,23 @@ def _part_stream_id(name: str) -> int:
 
 def _normals(seed: int, first_trial: int, count: int, component: int, width: int) -> np.ndarray:
     """Standard normals (count, width) for trials first_trial.. of one component, block by block."""
-    rows = []
+    out = np.empty((count, width))
     trial = first_trial
     end = first_trial + count
     while trial < end:
         block, offset = divmod(trial, BLOCK_TRIALS)
         take = min(BLOCK_TRIALS - offset, end - trial)
         generator = _stream(seed, block, component)
-        # A block's draws are generated in order, so the first rows of a longer draw equal a shorter
-        # one: the offset rows are generated and dropped only when a chunk starts inside a block.
-        values = generator.standard_normal((offset + take, width))
-        rows.append(values[offset:])
+        rows = out[trial - first_trial:trial - first_trial + take]
+        if offset == 0:
+            generator.standard_normal(out=rows)  # straight into the result, no copy
+        else:
+            # A block's draws are generated in order, so the first rows of a longer draw equal a
+            # shorter one: the offset rows are generated and dropped only when a chunk starts
+            # inside a block.
+            rows[...] = generator.standard_normal((offset + take, width))[offset:]
         trial += take
-    return np.concatenate(rows, axis=0) if rows else np.empty((0, width))
+    return out
 
 
 @dataclass(frozen=True)
