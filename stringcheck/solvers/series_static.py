@@ -224,6 +224,7 @@ def solve_static_sharing(
     # V_ref^m before broadcasting: usually one value per position, not per trial.
     coefficient = per_stage(leakage / np.power(reference, exponent))
     constant = bool(np.all(exponent == 0.0))
+    square_root = bool(np.all(exponent == 0.5))
     exponent = per_stage(exponent)
     voltage = np.broadcast_to(voltage, leading).reshape(rows)
 
@@ -233,7 +234,8 @@ def solve_static_sharing(
         iterations = 0
     else:
         voltages, current, converged, iterations = _iterate(
-            voltage, conductance, coefficient, exponent, rtol=rtol, max_iter=max_iter
+            voltage, conductance, coefficient, exponent, square_root=square_root, rtol=rtol,
+            max_iter=max_iter,
         )
     return StaticSharing(
         voltages=voltages.reshape(leading + (count,)),
@@ -261,29 +263,19 @@ def _iterate(
     coefficient: NDArray[np.float64],
     exponent: NDArray[np.float64],
     *,
+    square_root: bool,
     rtol: float,
     max_iter: int,
 ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.bool_], int]:
     """Safeguarded Newton on ln sum_k V_k(I) = ln V_s in ln I, all rows at once; rows on axis 0."""
     count = conductance.shape[-1]
     total_rows = conductance.shape[0]
-    if np.all(exponent == 0.5):
+    if square_root:
         stages: _SquareRootStages | _PowerLawStages = _SquareRootStages(conductance, coefficient)
     else:
         stages = _PowerLawStages(conductance, coefficient, exponent)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        # Stage currents at V_s bound the root: at sum_k I_k(V_s) every stage takes at least V_s;
-        # each I_k(V) lies above its chord from the origin on [0, V_s], so at
-        # 1 / sum_k (1 / I_k(V_s)) the stages take at most V_s together.
-        at_string = stages.current_at(voltage)
-        upper = _row_sum(at_string)
-        lower = 1.0 / _row_sum(1.0 / at_string)
-        del at_string
-        # Start where the tangents of the stage laws at V_s / n take V_s together: each I_k(V)
-        # is concave, so lies below its tangent, and the start is at or above the root.
-        offset, inverse_slope = stages.tangent(voltage / count)
-        start = (voltage + _row_sum(offset * inverse_slope)) / _row_sum(inverse_slope)
-        del offset, inverse_slope
+        upper, lower, start = stages.bracket_and_start(voltage, count)
     current = np.where((start >= lower) & (start <= upper), start, upper)
     voltages, slope = stages.evaluate(current, slice(None))
     residual = _row_sum(voltages) - voltage
@@ -339,6 +331,28 @@ def _row_sum(values: NDArray[np.float64]) -> NDArray[np.float64]:
     return np.einsum("ij->i", values)
 
 
+def _bracket_and_start(
+    at_string: NDArray[np.float64],
+    offset: NDArray[np.float64],
+    inverse_slope: NDArray[np.float64],
+    voltage: NDArray[np.float64],
+) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+    """Bracket and start of the string current from the stage currents at V_s and the tangents
+    I = a_k + b_k V of the stage laws at V_s / n (given as a_k and 1 / b_k); arrays are reused.
+
+    At sum_k I_k(V_s) every stage takes at least V_s. Each I_k(V) is concave, so on [0, V_s] it
+    lies above its chord from the origin, and at 1 / sum_k (1 / I_k(V_s)) the stages take at most
+    V_s together; and it lies below its tangent, so where the tangents take V_s together,
+    I = (V_s + sum_k a_k / b_k) / sum_k (1 / b_k), the stages take at least V_s.
+    """
+    upper = _row_sum(at_string)
+    lower = 1.0 / _row_sum(np.divide(1.0, at_string, out=at_string))
+    start = (voltage + _row_sum(np.multiply(offset, inverse_slope, out=offset))) / _row_sum(
+        inverse_slope
+    )
+    return upper, lower, start
+
+
 class _SquareRootStages:
     """Every stage with m = 1/2: the stage law is a quadratic in x = V^(1/2) (closed form).
 
@@ -350,32 +364,31 @@ class _SquareRootStages:
     def __init__(self, conductance: NDArray[np.float64], coefficient: NDArray[np.float64]):
         self.conductance = conductance
         self.coefficient = coefficient
-        self.four_conductance = 4.0 * conductance
         self.coefficient_squared = coefficient * coefficient
 
-    def current_at(self, voltage: NDArray[np.float64]) -> NDArray[np.float64]:
-        """G_k V + c_k V^(1/2) for one voltage V per row."""
-        return self.conductance * voltage[:, None] + self.coefficient * np.sqrt(voltage)[:, None]
-
-    def tangent(
-        self, voltage: NDArray[np.float64]
-    ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-        """The tangent I = a_k + b_k V of each stage law at one voltage per row: (a_k, 1 / b_k)."""
-        root = np.sqrt(voltage)[:, None]
-        inverse_slope = 1.0 / (self.conductance + self.coefficient * (0.5 / root))
-        return self.coefficient * (0.5 * root), inverse_slope
+    def bracket_and_start(
+        self, voltage: NDArray[np.float64], count: int
+    ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+        """Upper and lower bounds of the string current and the start (:func:`_bracket_and_start`)."""
+        at_string = self.coefficient * np.sqrt(voltage)[:, None]
+        at_string += self.conductance * voltage[:, None]
+        # The tangent of G V + c V^(1/2) at V_t: a = c V_t^(1/2) / 2, b = G + c / (2 V_t^(1/2)).
+        root = np.sqrt(voltage / count)[:, None]
+        inverse_slope = self.coefficient * (0.5 / root)
+        inverse_slope += self.conductance
+        np.divide(1.0, inverse_slope, out=inverse_slope)
+        return _bracket_and_start(at_string, self.coefficient * (0.5 * root), inverse_slope, voltage)
 
     def evaluate(
         self, current: NDArray[np.float64], rows: NDArray[np.intp] | slice
     ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
         """Stage voltages of the given rows at one current per row, and dS/dI = sum_k dV_k/dI."""
-        twice = 2.0 * current[:, None]
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            root = self.four_conductance[rows] * current[:, None]
+            root = self.conductance[rows] * (4.0 * current)[:, None]
             root += self.coefficient_squared[rows]
             np.sqrt(root, out=root)
             x = self.coefficient[rows] + root
-            np.divide(twice, x, out=x)
+            np.divide((2.0 * current)[:, None], x, out=x)
             slope = 2.0 * _row_sum(np.divide(x, root, out=root))
             np.square(x, out=x)
         return x, slope
@@ -394,17 +407,16 @@ class _PowerLawStages:
         self.coefficient = coefficient
         self.exponent = exponent
 
-    def current_at(self, voltage: NDArray[np.float64]) -> NDArray[np.float64]:
-        """G_k V + c_k V^m_k for one voltage V per row."""
-        return _stage_current(voltage[:, None], self.conductance, self.coefficient, self.exponent)
-
-    def tangent(
-        self, voltage: NDArray[np.float64]
-    ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-        """The tangent I = a_k + b_k V of each stage law at one voltage per row: (a_k, 1 / b_k)."""
-        leak = self.coefficient * np.power(voltage[:, None], self.exponent)
-        slope = self.conductance + self.exponent * leak / voltage[:, None]
-        return (1.0 - self.exponent) * leak, 1.0 / slope
+    def bracket_and_start(
+        self, voltage: NDArray[np.float64], count: int
+    ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+        """Upper and lower bounds of the string current and the start (:func:`_bracket_and_start`)."""
+        at_string = _stage_current(voltage[:, None], self.conductance, self.coefficient,
+                                   self.exponent)
+        tangent_voltage = (voltage / count)[:, None]
+        leak = self.coefficient * np.power(tangent_voltage, self.exponent)
+        inverse_slope = 1.0 / (self.conductance + self.exponent * leak / tangent_voltage)
+        return _bracket_and_start(at_string, (1.0 - self.exponent) * leak, inverse_slope, voltage)
 
     def evaluate(
         self, current: NDArray[np.float64], rows: NDArray[np.intp] | slice

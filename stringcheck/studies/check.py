@@ -140,20 +140,26 @@ class _Accumulator:
             self.worst_string = other.worst_string
 
     def add(self, voltages: np.ndarray, solved: np.ndarray, first_trial: int) -> None:
-        solved = solved & np.all(np.isfinite(voltages), axis=(1, 2))
+        rows = voltages.shape[0]
+        with np.errstate(invalid="ignore"):
+            # A NaN or infinite voltage makes its trial's sum NaN or infinite (the sum of finite
+            # voltages would overflow only beyond 1e307 V).
+            solved = solved & np.isfinite(np.einsum("ij->i", voltages.reshape(rows, -1)))
         ratio = voltages / self.limits
-        trial_ratio = np.where(solved, np.max(ratio, axis=(1, 2)), np.inf)
-        self.unsolved += int(np.count_nonzero(~solved))
+        trial_ratio = np.where(solved, np.max(ratio.reshape(rows, -1), axis=1), np.inf)
+        unsolved = int(np.count_nonzero(~solved))
+        self.unsolved += unsolved
         # Sums are shifted by the limit to keep the variance sum well conditioned, and are kept
         # per sampling block (chunks start on block boundaries) and added up in block order at the
         # end, so that they are the same bit for bit whatever the chunk size or the number of
         # worker processes.
-        for start in range(0, voltages.shape[0], BLOCK_TRIALS):
+        for start in range(0, rows, BLOCK_TRIALS):
             block = slice(start, start + BLOCK_TRIALS)
-            shifted = voltages[block][solved[block]] - self.limits
+            shifted = voltages[block] - self.limits if not unsolved else \
+                voltages[block][solved[block]] - self.limits
             self.block_totals.append(shifted.sum(axis=0))
-            self.block_squares.append(np.square(shifted).sum(axis=0))
-        good = voltages[solved]
+            self.block_squares.append(np.square(shifted, out=shifted).sum(axis=0))
+        good = voltages if not unsolved else voltages[solved]
         self.count += good.shape[0]
         if good.shape[0]:
             self.maximum = np.maximum(self.maximum, good.max(axis=0))
