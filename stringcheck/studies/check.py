@@ -46,6 +46,8 @@ from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 # A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
 # in the trial count.
 _CHUNK_ELEMENTS = 1_000_000
+# Trials per slice of a chunk in the solvers (whole sampling blocks).
+_SOLVE_TRIALS = 2 * BLOCK_TRIALS
 RESISTOR_TCR_REFERENCE = 25.0  # [degC]; resistor TCR is specified from 25 degC (common practice)
 
 ProgressCallback = Callable[[int, int], None]
@@ -367,14 +369,17 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     design = context.design
     shape = context.limits.shape
     drawn = draw_strings(design, context.parameters, first, count, seed=context.seed)
-    static = dynamic = None
-    if context.run_static:
-        static = _Accumulator(shape, context.limits)
-        _static_chunk(design, drawn, static, context.temperature, context.reference_voltage,
-                      context.reference_temperature, context.doubling, context.exponent)
-    if context.run_dynamic:
-        dynamic = _Accumulator(shape, context.limits)
-        _dynamic_chunk(design, drawn, dynamic, context.junction_capacitance, context.rescaling)
+    static = _Accumulator(shape, context.limits) if context.run_static else None
+    dynamic = _Accumulator(shape, context.limits) if context.run_dynamic else None
+    # The solvers work through the chunk in slices of whole sampling blocks, small enough for
+    # their temporaries to stay in cache; the accumulators take them in trial order.
+    for start in range(0, count, _SOLVE_TRIALS):
+        part = _trial_slice(drawn, start, _SOLVE_TRIALS)
+        if static is not None:
+            _static_chunk(design, part, static, context.temperature, context.reference_voltage,
+                          context.reference_temperature, context.doubling, context.exponent)
+        if dynamic is not None:
+            _dynamic_chunk(design, part, dynamic, context.junction_capacitance, context.rescaling)
     forward = None
     if context.forward is not None:
         forward = run_forward_chunk(design, context.forward, drawn)
@@ -382,6 +387,17 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     if first < context.driver_trials:
         features = chunk_features(drawn, design, min(count, context.driver_trials - first))
     return _ChunkOutcome(static=static, dynamic=dynamic, forward=forward, features=features)
+
+
+def _trial_slice(drawn: DrawnStrings, start: int, count: int) -> DrawnStrings:
+    """Trials ``start`` .. ``start + count - 1`` of a chunk (views, no copies)."""
+    cut = slice(start, start + count)
+    return DrawnStrings(
+        first_trial=drawn.first_trial + start,
+        parameters={name: values[cut] for name, values in drawn.parameters.items()},
+        latent={name: values[cut] for name, values in drawn.latent.items()},
+        resistance=None if drawn.resistance is None else drawn.resistance[cut],
+        capacitance=None if drawn.capacitance is None else drawn.capacitance[cut])
 
 
 def _static_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulator,
