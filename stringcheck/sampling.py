@@ -105,10 +105,6 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
         return np.full(np.shape(latent), spread.typ)
     z = np.asarray(latent, dtype=float)
     k = sigma_at_limit
-    fresh = False  # whether z is an array of our own, to be worked on in place
-    if screened and (spread.low is not None or spread.high is not None):
-        z = _truncate(z, -k if spread.low is not None else -np.inf, k if spread.high is not None else np.inf)
-        fresh = True
     if lognormal:
         upper = np.log(spread.high / spread.typ) / k if spread.high is not None else None
         lower = np.log(spread.typ / spread.low) / k if spread.low is not None else None
@@ -117,6 +113,14 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
         lower = (spread.typ - spread.low) / k if spread.low is not None else None
     upper = lower if upper is None else upper
     lower = upper if lower is None else lower
+    fresh = False  # whether z is an array of our own, to be worked on in place
+    if screened:
+        low, high = -k if spread.low is not None else -np.inf, k if spread.high is not None else np.inf
+        if lognormal and upper == lower:
+            # typ exp(sigma y) of the truncated y is one smooth map of z: tabulated as a whole.
+            return _truncate(z, low, high, log_scale=upper, median=spread.typ)
+        z = _truncate(z, low, high)
+        fresh = True
     if upper == lower:
         scaled = np.multiply(upper, z, out=z if fresh else None)
     else:
@@ -129,8 +133,10 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
     return scaled
 
 
-def _truncate(z: np.ndarray, low: float, high: float) -> np.ndarray:
-    """Map a standard normal onto the standard normal truncated to [low, high], rank-preserving.
+def _truncate(z: np.ndarray, low: float, high: float, *, log_scale: float | None = None,
+              median: float = 1.0) -> np.ndarray:
+    """Map a standard normal onto the standard normal truncated to [low, high], rank-preserving;
+    with ``log_scale`` s, onto median exp(s y) of the truncated y (a screened lognormal draw).
 
     Evaluated from :func:`_truncation_table` on [-8, 8] (a piecewise polynomial of the exact map,
     within a few units of the last place of it) and by :func:`_truncate_exact` outside, element by
@@ -138,7 +144,10 @@ def _truncate(z: np.ndarray, low: float, high: float) -> np.ndarray:
     """
     if np.isinf(low) and np.isinf(high):
         return z
-    table = _truncation_table(float(low), float(high))
+    table = _truncation_table(float(low), float(high), log_scale, median)
+    # The values at the limits themselves bound the result (the table rounds too).
+    floor = -np.inf if np.isinf(low) else float(_scaled(np.float64(low), log_scale, median))
+    ceiling = np.inf if np.isinf(high) else float(_scaled(np.float64(high), log_scale, median))
     flat = np.ascontiguousarray(z, dtype=float).reshape(-1)
     out = np.empty_like(flat)
     scale = 1.0 / _TABLE_STEP
@@ -156,14 +165,28 @@ def _truncate(z: np.ndarray, low: float, high: float) -> np.ndarray:
             for coefficient in table[-2::-1]:
                 value *= position
                 value += np.take(coefficient, index, out=term, mode="clip")
-            np.clip(value, low, high, out=out[start:start + block.size])
+            np.clip(value, floor, ceiling, out=out[start:start + block.size])
             np.abs(block, out=term)
             if not term.max() < _TABLE_RANGE:  # also NaN
                 outside.append(start + np.flatnonzero(~(term < _TABLE_RANGE)))
     if outside:
         rows = np.concatenate(outside)
-        out[rows] = _truncate_exact(flat[rows], low, high)
+        out[rows] = _exact_map(flat[rows], low, high, log_scale, median)
     return out.reshape(np.shape(z))
+
+
+def _exact_map(z: np.ndarray, low: float, high: float, log_scale: float | None,
+               median: float) -> np.ndarray:
+    """The exact map that :func:`_truncate` tabulates."""
+    return _scaled(_truncate_exact(z, low, high), log_scale, median)
+
+
+def _scaled(truncated: np.ndarray, log_scale: float | None, median: float) -> np.ndarray:
+    """median exp(log_scale y) of the truncated y, or y itself without ``log_scale``."""
+    if log_scale is None:
+        return truncated
+    with np.errstate(over="ignore"):
+        return median * np.exp(log_scale * truncated)
 
 
 def _truncate_exact(z: np.ndarray, low: float, high: float) -> np.ndarray:
@@ -191,10 +214,11 @@ _TABLE_DEGREE = 4
 _TABLE_BLOCK = 32768
 
 
-@functools.lru_cache(maxsize=128)
-def _truncation_table(low: float, high: float) -> tuple[np.ndarray, ...]:
-    """Coefficients c_j of the truncation map on each interval, in powers of the coordinate
-    t in [0, 1) within it: y = sum_j c_j[i] t^j; one array per power.
+@functools.lru_cache(maxsize=32)
+def _truncation_table(low: float, high: float, log_scale: float | None,
+                      median: float) -> tuple[np.ndarray, ...]:
+    """Coefficients c_j of the map of :func:`_truncate` on each interval, in powers of the
+    coordinate t in [0, 1) within it: y = sum_j c_j[i] t^j; one array per power.
 
     Notes
     -----
@@ -212,7 +236,7 @@ def _truncation_table(low: float, high: float) -> tuple[np.ndarray, ...]:
     left = -_TABLE_RANGE + _TABLE_STEP * np.arange(count)
     order = _TABLE_DEGREE + 1
     nodes = 0.5 * (1.0 - np.cos(np.pi * (np.arange(order) + 0.5) / order))
-    values = _truncate_exact(left[:, None] + _TABLE_STEP * nodes, low, high)
+    values = _exact_map(left[:, None] + _TABLE_STEP * nodes, low, high, log_scale, median)
     coefficients = np.linalg.solve(np.vander(nodes, order, increasing=True), values.T)
     return tuple(np.ascontiguousarray(row) for row in coefficients)
 

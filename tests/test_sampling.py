@@ -218,6 +218,21 @@ def test_tabulated_truncation_matches_the_exact_map(low, high):
                                stats.truncnorm(low, high).ppf(q), rtol=1e-9, atol=1e-12)
 
 
+@pytest.mark.parametrize("low, high, log_scale", [(-math.inf, 3.0, math.log(10.0) / 3.0),
+                                                  (-3.0, 3.0, math.log(2.0) / 3.0),
+                                                  (-math.inf, 2.0, 1.5), (-3.0, 3.0, 0.0)])
+def test_tabulated_screened_lognormal_matches_the_exact_map(low, high, log_scale):
+    # A screened lognormal draw typ exp(sigma y), y the truncated latent, is tabulated as one map:
+    # it must agree with the exact map to a few units of the last place, relative.
+    from stringcheck.sampling import _exact_map, _truncate
+
+    z = np.concatenate([np.linspace(-9.0, 9.0, 400_001), np.arange(-2048, 2049) / 256.0])
+    table = _truncate(z, low, high, log_scale=log_scale, median=2e-7)
+    exact = _exact_map(z, low, high, log_scale, 2e-7)
+    np.testing.assert_allclose(table, exact, rtol=2e-14, atol=0.0)
+    assert table.max() <= 2e-7 * math.exp(log_scale * high)
+
+
 # --- whole strings ---------------------------------------------------------------------------------
 
 def _assert_same(a, b):
