@@ -151,6 +151,7 @@ def _truncate(z: np.ndarray, low: float, high: float, *, log_scale: float | None
     flat = np.ascontiguousarray(z, dtype=float).reshape(-1)
     out = np.empty_like(flat)
     scale = 1.0 / _TABLE_STEP
+    count = table[0].size
     outside = []
     # Blocks of a few hundred kB: the temporaries stay in cache.
     with np.errstate(invalid="ignore"):  # values outside the table are replaced below
@@ -158,6 +159,8 @@ def _truncate(z: np.ndarray, low: float, high: float, *, log_scale: float | None
             block = flat[start:start + _TABLE_BLOCK]
             position = block + _TABLE_RANGE
             position *= scale
+            if not (position.min() >= 0.0 and position.max() < count):  # also NaN
+                outside.append(start + np.flatnonzero(~(np.abs(block) < _TABLE_RANGE)))
             index = position.astype(np.intp)
             position -= index  # the coordinate within the interval, in [0, 1)
             value = np.take(table[-1], index, mode="clip")
@@ -165,10 +168,10 @@ def _truncate(z: np.ndarray, low: float, high: float, *, log_scale: float | None
             for coefficient in table[-2::-1]:
                 value *= position
                 value += np.take(coefficient, index, out=term, mode="clip")
-            np.clip(value, floor, ceiling, out=out[start:start + block.size])
-            np.abs(block, out=term)
-            if not term.max() < _TABLE_RANGE:  # also NaN
-                outside.append(start + np.flatnonzero(~(term < _TABLE_RANGE)))
+            target = out[start:start + block.size]
+            if floor > -np.inf:
+                np.maximum(value, floor, out=value)
+            np.minimum(value, ceiling, out=target)
     if outside:
         rows = np.concatenate(outside)
         out[rows] = _exact_map(flat[rows], low, high, log_scale, median)
