@@ -146,9 +146,9 @@ class _Accumulator:
         with np.errstate(invalid="ignore"):
             # A NaN or infinite voltage makes its trial's sum NaN or infinite (the sum of finite
             # voltages would overflow only beyond 1e307 V).
-            solved = solved & np.isfinite(np.einsum("ij->i", voltages.reshape(rows, -1)))
+            solved = solved & np.isfinite(np.einsum("ijk->i", voltages))
         ratio = voltages / self.limits
-        trial_ratio = np.where(solved, np.max(ratio.reshape(rows, -1), axis=1), np.inf)
+        trial_ratio = np.where(solved, _trial_maximum(ratio), np.inf)
         unsolved = int(np.count_nonzero(~solved))
         self.unsolved += unsolved
         # Sums are shifted by the limit to keep the variance sum well conditioned, and are kept
@@ -159,19 +159,43 @@ class _Accumulator:
             block = slice(start, start + BLOCK_TRIALS)
             shifted = voltages[block] - self.limits if not unsolved else \
                 voltages[block][solved[block]] - self.limits
-            self.block_totals.append(shifted.sum(axis=0))
-            self.block_squares.append(np.square(shifted, out=shifted).sum(axis=0))
+            self.block_totals.append(np.einsum("ijk->jk", shifted))
+            self.block_squares.append(np.einsum("ijk->jk", np.square(shifted, out=shifted)))
         good = voltages if not unsolved else voltages[solved]
         self.count += good.shape[0]
         if good.shape[0]:
-            self.maximum = np.maximum(self.maximum, good.max(axis=0))
-        self.failures_by_position += np.count_nonzero(ratio > 1.0, axis=0)
+            self.maximum = np.maximum(self.maximum, _position_maximum(good))
+        # A position above its limit puts its trial's ratio above 1: only those trials are looked at.
+        over = np.flatnonzero(trial_ratio > 1.0)
+        if over.size:
+            self.failures_by_position += np.count_nonzero(ratio[over] > 1.0, axis=0)
         self.worst_ratios.append(trial_ratio)
         best = int(np.argmax(trial_ratio))
         if trial_ratio[best] > self.worst_ratio:
             self.worst_ratio = float(trial_ratio[best])
             self.worst_trial = first_trial + best
             self.worst_string = voltages[best].copy()
+
+
+def _trial_maximum(values: np.ndarray) -> np.ndarray:
+    """Largest value of each trial (axis 0) over its positions; NaN if any is NaN."""
+    flat = values.reshape(-1)
+    width = flat.size // max(values.shape[0], 1)
+    # reduceat over the rows of the flat array is about twice as fast as max(axis=1) on short rows.
+    return np.maximum.reduceat(flat, np.arange(0, flat.size, width)) if flat.size else \
+        np.full(values.shape[0], -np.inf)
+
+
+def _position_maximum(values: np.ndarray) -> np.ndarray:
+    """Largest value of each position over the trials (axis 0), by halving: much faster than
+    max(axis=0) on a few positions per trial."""
+    while values.shape[0] > 1:
+        half = values.shape[0] // 2
+        folded = np.maximum(values[:half], values[half:2 * half])
+        if values.shape[0] % 2:
+            folded[0] = np.maximum(folded[0], values[-1])
+        values = folded
+    return values[0]
 
 
 def run_check(design: Design, *, trials: int | None = None, seed: int | None = None,
