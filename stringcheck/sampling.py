@@ -113,18 +113,14 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
         lower = (spread.typ - spread.low) / k if spread.low is not None else None
     upper = lower if upper is None else upper
     lower = upper if lower is None else lower
-    fresh = False  # whether z is an array of our own, to be worked on in place
     if screened:
         low, high = -k if spread.low is not None else -np.inf, k if spread.high is not None else np.inf
-        if lognormal and upper == lower:
-            # typ exp(sigma y) of the truncated y is one smooth map of z: tabulated as a whole.
-            return _truncate(z, low, high, log_scale=upper, median=spread.typ)
+        if upper == lower:
+            # typ exp(sigma y) or typ + sigma y of the truncated y is one smooth map of z:
+            # tabulated as a whole.
+            return _truncate(z, low, high, scale=upper, median=spread.typ, lognormal=lognormal)
         z = _truncate(z, low, high)
-        fresh = True
-    if upper == lower:
-        scaled = np.multiply(upper, z, out=z if fresh else None)
-    else:
-        scaled = np.where(z >= 0, upper * z, lower * z)
+    scaled = upper * z if upper == lower else np.where(z >= 0, upper * z, lower * z)
     if lognormal:
         np.exp(scaled, out=scaled)
         scaled *= spread.typ
@@ -133,10 +129,11 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
     return scaled
 
 
-def _truncate(z: np.ndarray, low: float, high: float, *, log_scale: float | None = None,
-              median: float = 1.0) -> np.ndarray:
+def _truncate(z: np.ndarray, low: float, high: float, *, scale: float | None = None,
+              median: float = 0.0, lognormal: bool = False) -> np.ndarray:
     """Map a standard normal onto the standard normal truncated to [low, high], rank-preserving;
-    with ``log_scale`` s, onto median exp(s y) of the truncated y (a screened lognormal draw).
+    with ``scale`` s, onto median + s y of the truncated y, or median exp(s y) if ``lognormal``
+    (a screened draw).
 
     Evaluated from :func:`_truncation_table` on [-8, 8] (a piecewise polynomial of the exact map,
     within a few units of the last place of it) and by :func:`_truncate_exact` outside, element by
@@ -144,13 +141,14 @@ def _truncate(z: np.ndarray, low: float, high: float, *, log_scale: float | None
     """
     if np.isinf(low) and np.isinf(high):
         return z
-    table = _truncation_table(float(low), float(high), log_scale, median)
+    table = _truncation_table(float(low), float(high), scale, median, lognormal)
     # The values at the limits themselves bound the result (the table rounds too).
-    floor = -np.inf if np.isinf(low) else float(_scaled(np.float64(low), log_scale, median))
-    ceiling = np.inf if np.isinf(high) else float(_scaled(np.float64(high), log_scale, median))
+    floor = -np.inf if np.isinf(low) else float(_scaled(np.float64(low), scale, median, lognormal))
+    ceiling = np.inf if np.isinf(high) else float(_scaled(np.float64(high), scale, median,
+                                                          lognormal))
     flat = np.ascontiguousarray(z, dtype=float).reshape(-1)
     out = np.empty_like(flat)
-    scale = 1.0 / _TABLE_STEP
+    per_step = 1.0 / _TABLE_STEP
     count = table[0].size
     outside = []
     # Blocks of a few hundred kB: the temporaries stay in cache.
@@ -158,7 +156,7 @@ def _truncate(z: np.ndarray, low: float, high: float, *, log_scale: float | None
         for start in range(0, flat.size, _TABLE_BLOCK):
             block = flat[start:start + _TABLE_BLOCK]
             position = block + _TABLE_RANGE
-            position *= scale
+            position *= per_step
             if not (position.min() >= 0.0 and position.max() < count):  # also NaN
                 outside.append(start + np.flatnonzero(~(np.abs(block) < _TABLE_RANGE)))
             index = position.astype(np.intp)
@@ -174,22 +172,26 @@ def _truncate(z: np.ndarray, low: float, high: float, *, log_scale: float | None
             np.minimum(value, ceiling, out=target)
     if outside:
         rows = np.concatenate(outside)
-        out[rows] = _exact_map(flat[rows], low, high, log_scale, median)
+        out[rows] = _exact_map(flat[rows], low, high, scale, median, lognormal)
     return out.reshape(np.shape(z))
 
 
-def _exact_map(z: np.ndarray, low: float, high: float, log_scale: float | None,
-               median: float) -> np.ndarray:
+def _exact_map(z: np.ndarray, low: float, high: float, scale: float | None, median: float,
+               lognormal: bool) -> np.ndarray:
     """The exact map that :func:`_truncate` tabulates."""
-    return _scaled(_truncate_exact(z, low, high), log_scale, median)
+    return _scaled(_truncate_exact(z, low, high), scale, median, lognormal)
 
 
-def _scaled(truncated: np.ndarray, log_scale: float | None, median: float) -> np.ndarray:
-    """median exp(log_scale y) of the truncated y, or y itself without ``log_scale``."""
-    if log_scale is None:
+def _scaled(truncated: np.ndarray, scale: float | None, median: float,
+            lognormal: bool) -> np.ndarray:
+    """median + scale y, or median exp(scale y) if ``lognormal``, of the truncated y; y itself
+    without ``scale``."""
+    if scale is None:
         return truncated
+    if not lognormal:
+        return median + scale * truncated
     with np.errstate(over="ignore"):
-        return median * np.exp(log_scale * truncated)
+        return median * np.exp(scale * truncated)
 
 
 def _truncate_exact(z: np.ndarray, low: float, high: float) -> np.ndarray:
@@ -218,8 +220,8 @@ _TABLE_BLOCK = 32768
 
 
 @functools.lru_cache(maxsize=32)
-def _truncation_table(low: float, high: float, log_scale: float | None,
-                      median: float) -> tuple[np.ndarray, ...]:
+def _truncation_table(low: float, high: float, scale: float | None, median: float,
+                      lognormal: bool) -> tuple[np.ndarray, ...]:
     """Coefficients c_j of the map of :func:`_truncate` on each interval, in powers of the
     coordinate t in [0, 1) within it: y = sum_j c_j[i] t^j; one array per power.
 
@@ -239,7 +241,7 @@ def _truncation_table(low: float, high: float, log_scale: float | None,
     left = -_TABLE_RANGE + _TABLE_STEP * np.arange(count)
     order = _TABLE_DEGREE + 1
     nodes = 0.5 * (1.0 - np.cos(np.pi * (np.arange(order) + 0.5) / order))
-    values = _exact_map(left[:, None] + _TABLE_STEP * nodes, low, high, log_scale, median)
+    values = _exact_map(left[:, None] + _TABLE_STEP * nodes, low, high, scale, median, lognormal)
     coefficients = np.linalg.solve(np.vander(nodes, order, increasing=True), values.T)
     return tuple(np.ascontiguousarray(row) for row in coefficients)
 
@@ -261,13 +263,9 @@ def tolerance_draw(nominal: float, tolerance: float, latent: np.ndarray, *,
     """
     if tolerance == 0:
         return np.full(np.shape(latent), nominal)
-    z = _truncate(np.asarray(latent, dtype=float), -sigma_at_limit, sigma_at_limit)
-    # nominal * (1 + tolerance * z / sigma_at_limit), in place on the fresh array z.
-    z *= tolerance
-    z /= sigma_at_limit
-    z += 1.0
-    z *= nominal
-    return z
+    # nominal + (nominal tolerance / sigma_at_limit) y of the truncated y, tabulated as one map.
+    return _truncate(np.asarray(latent, dtype=float), -sigma_at_limit, sigma_at_limit,
+                     scale=nominal * tolerance / sigma_at_limit, median=nominal)
 
 
 def _stream(seed: int, block: int, component: int) -> np.random.Generator:

@@ -221,16 +221,20 @@ def test_tabulated_truncation_matches_the_exact_map(low, high):
 @pytest.mark.parametrize("low, high, log_scale", [(-math.inf, 3.0, math.log(10.0) / 3.0),
                                                   (-3.0, 3.0, math.log(2.0) / 3.0),
                                                   (-math.inf, 2.0, 1.5), (-3.0, 3.0, 0.0)])
-def test_tabulated_screened_lognormal_matches_the_exact_map(low, high, log_scale):
-    # A screened lognormal draw typ exp(sigma y), y the truncated latent, is tabulated as one map:
-    # it must agree with the exact map to a few units of the last place, relative.
+def test_tabulated_screened_draw_matches_the_exact_map(low, high, log_scale):
+    # A screened draw, typ exp(sigma y) (lognormal) or typ + sigma y (normal, and the tolerance
+    # draws), y the truncated latent, is tabulated as one map: it must agree with the exact map to
+    # a few units of the last place, relative.
     from stringcheck.sampling import _exact_map, _truncate
 
     z = np.concatenate([np.linspace(-9.0, 9.0, 400_001), np.arange(-2048, 2049) / 256.0])
-    table = _truncate(z, low, high, log_scale=log_scale, median=2e-7)
-    exact = _exact_map(z, low, high, log_scale, 2e-7)
+    table = _truncate(z, low, high, scale=log_scale, median=2e-7, lognormal=True)
+    exact = _exact_map(z, low, high, log_scale, 2e-7, True)
     np.testing.assert_allclose(table, exact, rtol=2e-14, atol=0.0)
     assert table.max() <= 2e-7 * math.exp(log_scale * high)
+    table = _truncate(z, low, high, scale=4.7e6 * 0.05 / 3.0, median=4.7e6)
+    exact = _exact_map(z, low, high, 4.7e6 * 0.05 / 3.0, 4.7e6, False)
+    np.testing.assert_allclose(table, exact, rtol=1e-15, atol=0.0)
 
 
 # --- whole strings ---------------------------------------------------------------------------------
