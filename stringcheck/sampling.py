@@ -75,6 +75,22 @@ class DrawnStrings:
             return 0 if self.resistance is None else self.resistance.shape[0]
         return first.shape[0]
 
+    def trial_slice(self, start: int, count: int) -> "DrawnStrings":
+        """Trials ``start`` .. ``start + count - 1`` of the chunk: every per-trial array cut on its
+        leading axis (views, no copies), everything else as it is."""
+        cut = slice(start, start + count)
+
+        def part(value):
+            if isinstance(value, np.ndarray):
+                return value[cut]
+            if isinstance(value, Mapping):
+                return {name: part(array) for name, array in value.items()}
+            return value
+
+        fields = {name: part(getattr(self, name)) for name in self.__dataclass_fields__}
+        fields["first_trial"] = self.first_trial + start
+        return DrawnStrings(**fields)
+
 
 def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigma_at_limit: float,
                     screened: bool) -> np.ndarray:

@@ -398,3 +398,21 @@ def test_correlated_draws_do_not_depend_on_which_parameters_are_requested(first,
     a = draw_strings(design, first, 0, 500)
     b = draw_strings(design, second, 0, 500)
     np.testing.assert_allclose(a.parameters[name], b.parameters[name], rtol=1e-12)
+
+
+def test_trial_slice_cuts_every_per_trial_array():
+    # The check works through a chunk in slices: a slice must equal drawing those trials alone.
+    design = make_design()
+    drawn = draw_strings(design, ("i_r", "q_rr"), 0, 3 * BLOCK_TRIALS)
+    part = drawn.trial_slice(BLOCK_TRIALS, BLOCK_TRIALS)
+    alone = draw_strings(design, ("i_r", "q_rr"), BLOCK_TRIALS, BLOCK_TRIALS)
+    assert part.first_trial == alone.first_trial == BLOCK_TRIALS and part.trials == BLOCK_TRIALS
+    for name in ("i_r", "q_rr"):
+        np.testing.assert_array_equal(part.parameters[name], alone.parameters[name])
+        np.testing.assert_array_equal(part.latent[name], alone.latent[name])
+    for got, expected in ((part.resistance, alone.resistance),
+                          (part.capacitance, alone.capacitance)):
+        if expected is None:
+            assert got is None
+        else:
+            np.testing.assert_array_equal(got, expected)

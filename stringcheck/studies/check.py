@@ -398,7 +398,7 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     # The solvers work through the chunk in slices of whole sampling blocks, small enough for
     # their temporaries to stay in cache; the accumulators take them in trial order.
     for start in range(0, count, _SOLVE_TRIALS):
-        part = _trial_slice(drawn, start, _SOLVE_TRIALS)
+        part = drawn.trial_slice(start, _SOLVE_TRIALS)
         if static is not None:
             _static_chunk(design, part, static, context.temperature, context.reference_voltage,
                           context.reference_temperature, context.doubling, context.exponent)
@@ -411,17 +411,6 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     if first < context.driver_trials:
         features = chunk_features(drawn, design, min(count, context.driver_trials - first))
     return _ChunkOutcome(static=static, dynamic=dynamic, forward=forward, features=features)
-
-
-def _trial_slice(drawn: DrawnStrings, start: int, count: int) -> DrawnStrings:
-    """Trials ``start`` .. ``start + count - 1`` of a chunk (views, no copies)."""
-    cut = slice(start, start + count)
-    return DrawnStrings(
-        first_trial=drawn.first_trial + start,
-        parameters={name: values[cut] for name, values in drawn.parameters.items()},
-        latent={name: values[cut] for name, values in drawn.latent.items()},
-        resistance=None if drawn.resistance is None else drawn.resistance[cut],
-        capacitance=None if drawn.capacitance is None else drawn.capacitance[cut])
 
 
 def _static_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulator,
