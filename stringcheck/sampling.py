@@ -130,7 +130,8 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
     upper = lower if upper is None else upper
     lower = upper if lower is None else lower
     if screened:
-        low, high = -k if spread.low is not None else -np.inf, k if spread.high is not None else np.inf
+        low = -k if spread.low is not None else -np.inf
+        high = k if spread.high is not None else np.inf
         if upper == lower:
             # typ exp(sigma y) or typ + sigma y of the truncated y is one smooth map of z:
             # tabulated as a whole.

@@ -369,7 +369,7 @@ class _SquareRootStages:
     def bracket_and_start(
         self, voltage: NDArray[np.float64], count: int
     ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
-        """Upper and lower bounds of the string current and the start (:func:`_bracket_and_start`)."""
+        """Bounds of the string current and the start (:func:`_bracket_and_start`)."""
         at_string = self.coefficient * np.sqrt(voltage)[:, None]
         at_string += self.conductance * voltage[:, None]
         # The tangent of G V + c V^(1/2) at V_t: a = c V_t^(1/2) / 2, b = G + c / (2 V_t^(1/2)).
@@ -377,7 +377,8 @@ class _SquareRootStages:
         inverse_slope = self.coefficient * (0.5 / root)
         inverse_slope += self.conductance
         np.divide(1.0, inverse_slope, out=inverse_slope)
-        return _bracket_and_start(at_string, self.coefficient * (0.5 * root), inverse_slope, voltage)
+        offset = self.coefficient * (0.5 * root)
+        return _bracket_and_start(at_string, offset, inverse_slope, voltage)
 
     def evaluate(
         self, current: NDArray[np.float64], rows: NDArray[np.intp] | slice
@@ -410,7 +411,7 @@ class _PowerLawStages:
     def bracket_and_start(
         self, voltage: NDArray[np.float64], count: int
     ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
-        """Upper and lower bounds of the string current and the start (:func:`_bracket_and_start`)."""
+        """Bounds of the string current and the start (:func:`_bracket_and_start`)."""
         at_string = _stage_current(voltage[:, None], self.conductance, self.coefficient,
                                    self.exponent)
         tangent_voltage = (voltage / count)[:, None]

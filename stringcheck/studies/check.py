@@ -165,7 +165,7 @@ class _Accumulator:
         self.count += good.shape[0]
         if good.shape[0]:
             self.maximum = np.maximum(self.maximum, _position_maximum(good))
-        # A position above its limit puts its trial's ratio above 1: only those trials are looked at.
+        # A position above its limit puts its trial's ratio above 1: only those trials count.
         over = np.flatnonzero(trial_ratio > 1.0)
         if over.size:
             self.failures_by_position += np.count_nonzero(ratio[over] > 1.0, axis=0)
