@@ -195,6 +195,48 @@ def test_tolerance_draw_spread_matches_truncated_normal():
     assert stats.kstest(mapped_back, stats.truncnorm(-K, K).cdf).pvalue > 0.01
 
 
+@pytest.mark.parametrize("low, high", [(-3.0, 3.0), (-math.inf, 3.0), (-3.0, math.inf),
+                                       (-1.0, 1.0), (-math.inf, 6.0), (-1.0, 6.0)])
+def test_tabulated_truncation_matches_the_exact_map(low, high):
+    # The piecewise polynomial that evaluates the truncation map must agree with the map from
+    # the normal CDF (ndtr / ndtri, each side in its accurate form) to a few units of the last
+    # place, on a dense grid and across the interval joints; beyond |z| = 8 the exact map is used.
+    from stringcheck.sampling import _truncate, _truncate_exact
+
+    z = np.concatenate([np.linspace(-9.0, 9.0, 400_001), np.arange(-512, 513) / 64.0,
+                        [-np.inf, np.inf, np.nan]])
+    table = _truncate(z, low, high)
+    exact = _truncate_exact(z, low, high)
+    finite = ~np.isnan(z)
+    np.testing.assert_allclose(table[finite], exact[finite], rtol=0.0, atol=1e-14)
+    assert np.isnan(table[-1])
+    # Rank-preserving to rounding (the exact map too wobbles by an ulp where it is flat).
+    assert np.all(np.diff(table[:400_001]) >= -2e-15)
+    # The exact map against scipy's truncated normal: Phi_trunc^-1(Phi(z)).
+    q = np.linspace(0.001, 0.999, 101)
+    np.testing.assert_allclose(_truncate(stats.norm.ppf(q), low, high),
+                               stats.truncnorm(low, high).ppf(q), rtol=1e-9, atol=1e-12)
+
+
+@pytest.mark.parametrize("low, high, log_scale", [(-math.inf, 3.0, math.log(10.0) / 3.0),
+                                                  (-3.0, 3.0, math.log(2.0) / 3.0),
+                                                  (-math.inf, 2.0, 1.5), (-3.0, 3.0, 0.0)])
+def test_tabulated_screened_draw_matches_the_exact_map(low, high, log_scale):
+    # A screened draw, typ exp(sigma y) (lognormal) or typ + sigma y (normal, and the tolerance
+    # draws), y the truncated latent, is tabulated as one map: it must agree with the exact map to
+    # a few units of the last place, relative.
+    from stringcheck.sampling import _exact_map, _truncate
+
+    z = np.concatenate([np.linspace(-9.0, 9.0, 400_001), np.arange(-2048, 2049) / 256.0])
+    table = _truncate(z, low, high, scale=log_scale, median=2e-7, lognormal=True)
+    exact = _exact_map(z, low, high, log_scale, 2e-7, True)
+    np.testing.assert_allclose(table, exact, rtol=2e-14, atol=0.0)
+    assert table.max() <= 2e-7 * math.exp(log_scale * high)
+    table = _truncate(z, low, high, scale=4.7e6 * 0.05 / 3.0, median=4.7e6)
+    exact = _exact_map(z, low, high, 4.7e6 * 0.05 / 3.0, 4.7e6, False)
+    np.testing.assert_allclose(table, exact, rtol=1e-15, atol=0.0)
+
+
 # --- whole strings ---------------------------------------------------------------------------------
 
 def _assert_same(a, b):
@@ -356,3 +398,21 @@ def test_correlated_draws_do_not_depend_on_which_parameters_are_requested(first,
     a = draw_strings(design, first, 0, 500)
     b = draw_strings(design, second, 0, 500)
     np.testing.assert_allclose(a.parameters[name], b.parameters[name], rtol=1e-12)
+
+
+def test_trial_slice_cuts_every_per_trial_array():
+    # The check works through a chunk in slices: a slice must equal drawing those trials alone.
+    design = make_design()
+    drawn = draw_strings(design, ("i_r", "q_rr"), 0, 3 * BLOCK_TRIALS)
+    part = drawn.trial_slice(BLOCK_TRIALS, BLOCK_TRIALS)
+    alone = draw_strings(design, ("i_r", "q_rr"), BLOCK_TRIALS, BLOCK_TRIALS)
+    assert part.first_trial == alone.first_trial == BLOCK_TRIALS and part.trials == BLOCK_TRIALS
+    for name in ("i_r", "q_rr"):
+        np.testing.assert_array_equal(part.parameters[name], alone.parameters[name])
+        np.testing.assert_array_equal(part.latent[name], alone.latent[name])
+    for got, expected in ((part.resistance, alone.resistance),
+                          (part.capacitance, alone.capacitance)):
+        if expected is None:
+            assert got is None
+        else:
+            np.testing.assert_array_equal(got, expected)

@@ -59,6 +59,8 @@ _CHUNK_ELEMENTS = 1_000_000
 # The checks --rare estimates by importance sampling (the time-domain transient check simulates too
 # few strings for it: it keeps its plain estimate).
 RARE_CHECKS = ("static", "dynamic", "parallel", "thermal")
+# Trials per slice of a chunk in the solvers (whole sampling blocks).
+_SOLVE_TRIALS = 2 * BLOCK_TRIALS
 
 ProgressCallback = Callable[[int, int], None]
 
@@ -155,30 +157,60 @@ class _Accumulator:
             self.worst_string = other.worst_string
 
     def add(self, voltages: np.ndarray, solved: np.ndarray, first_trial: int) -> None:
-        solved = solved & np.all(np.isfinite(voltages), axis=(1, 2))
+        rows = voltages.shape[0]
+        with np.errstate(invalid="ignore"):
+            # A NaN or infinite voltage makes its trial's sum NaN or infinite (the sum of finite
+            # voltages would overflow only beyond 1e307 V).
+            solved = solved & np.isfinite(np.einsum("ijk->i", voltages))
         ratio = voltages / (self.limits if self.device_limits is None else self.device_limits)
-        trial_ratio = np.where(solved, np.max(ratio, axis=(1, 2)), np.inf)
-        self.unsolved += int(np.count_nonzero(~solved))
+        trial_ratio = np.where(solved, _trial_maximum(ratio), np.inf)
+        unsolved = int(np.count_nonzero(~solved))
+        self.unsolved += unsolved
         # Sums are shifted by the limit to keep the variance sum well conditioned, and are kept
         # per sampling block (chunks start on block boundaries) and added up in block order at the
         # end, so that they are the same bit for bit whatever the chunk size or the number of
         # worker processes.
-        for start in range(0, voltages.shape[0], BLOCK_TRIALS):
+        for start in range(0, rows, BLOCK_TRIALS):
             block = slice(start, start + BLOCK_TRIALS)
-            shifted = voltages[block][solved[block]] - self.limits
-            self.block_totals.append(shifted.sum(axis=0))
-            self.block_squares.append(np.square(shifted).sum(axis=0))
-        good = voltages[solved]
+            shifted = voltages[block] - self.limits if not unsolved else \
+                voltages[block][solved[block]] - self.limits
+            self.block_totals.append(np.einsum("ijk->jk", shifted))
+            self.block_squares.append(np.einsum("ijk->jk", np.square(shifted, out=shifted)))
+        good = voltages if not unsolved else voltages[solved]
         self.count += good.shape[0]
         if good.shape[0]:
-            self.maximum = np.maximum(self.maximum, good.max(axis=0))
-        self.failures_by_position += np.count_nonzero(ratio > 1.0, axis=0)
+            self.maximum = np.maximum(self.maximum, _position_maximum(good))
+        # A position above its limit puts its trial's ratio above 1: only those trials count.
+        over = np.flatnonzero(trial_ratio > 1.0)
+        if over.size:
+            self.failures_by_position += np.count_nonzero(ratio[over] > 1.0, axis=0)
         self.worst_ratios.append(trial_ratio)
         best = int(np.argmax(trial_ratio))
         if trial_ratio[best] > self.worst_ratio:
             self.worst_ratio = float(trial_ratio[best])
             self.worst_trial = first_trial + best
             self.worst_string = voltages[best].copy()
+
+
+def _trial_maximum(values: np.ndarray) -> np.ndarray:
+    """Largest value of each trial (axis 0) over its positions; NaN if any is NaN."""
+    flat = values.reshape(-1)
+    width = flat.size // max(values.shape[0], 1)
+    # reduceat over the rows of the flat array is about twice as fast as max(axis=1) on short rows.
+    return np.maximum.reduceat(flat, np.arange(0, flat.size, width)) if flat.size else \
+        np.full(values.shape[0], -np.inf)
+
+
+def _position_maximum(values: np.ndarray) -> np.ndarray:
+    """Largest value of each position over the trials (axis 0), by halving: much faster than
+    max(axis=0) on a few positions per trial."""
+    while values.shape[0] > 1:
+        half = values.shape[0] // 2
+        folded = np.maximum(values[:half], values[half:2 * half])
+        if values.shape[0] % 2:
+            folded[0] = np.maximum(folded[0], values[-1])
+        values = folded
+    return values[0]
 
 
 def run_check(design: Design, *, trials: int | None = None, seed: int | None = None,
@@ -384,18 +416,29 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     design = context.design
     shape = context.limits.shape
     drawn = draw_strings(design, context.parameters, first, count, seed=context.seed)
-    devices = context if drawn.part_index is None else _for_devices(context, drawn)
+    static = _Accumulator(shape, context.limits) if context.run_static else None
+    dynamic = _Accumulator(shape, context.limits) if context.run_dynamic else None
+    if drawn.part_index is None:
+        # The solvers work through the chunk in slices of whole sampling blocks, small enough for
+        # their temporaries to stay in cache; the accumulators take them in trial order.
+        devices = context
+        slices = [drawn.trial_slice(start, _SOLVE_TRIALS) for start in range(0, count, _SOLVE_TRIALS)]
+    else:
+        # With a mix, each drawn device's own part constants, (trials, parallel, series), for the
+        # whole chunk at once.
+        devices = _for_devices(context, drawn)
+        slices = [drawn]
     own_limits = None if drawn.part_index is None else devices.limits
-    static = dynamic = None
-    if context.run_static:
-        static = _Accumulator(shape, context.limits, device_limits=own_limits)
-        _static_chunk(design, drawn, static, devices.temperature, devices.reference_voltage,
-                      devices.reference_temperature, devices.doubling, devices.exponent)
-        static.device_limits = None
-    if context.run_dynamic:
-        dynamic = _Accumulator(shape, context.limits, device_limits=own_limits)
-        _dynamic_chunk(design, drawn, dynamic, devices.junction_capacitance, context.rescaling)
-        dynamic.device_limits = None
+    for part in slices:
+        if static is not None:
+            static.device_limits = own_limits
+            _static_chunk(design, part, static, devices.temperature, devices.reference_voltage,
+                          devices.reference_temperature, devices.doubling, devices.exponent)
+            static.device_limits = None
+        if dynamic is not None:
+            dynamic.device_limits = own_limits
+            _dynamic_chunk(design, part, dynamic, devices.junction_capacitance, context.rescaling)
+            dynamic.device_limits = None
     forward = None
     if context.forward is not None:
         forward = run_forward_chunk(design, devices.forward, drawn)

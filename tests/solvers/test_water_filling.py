@@ -148,3 +148,21 @@ def test_more_total_never_takes_from_any_channel(row, factor):
     more = water_fill(threshold_voltages, 1.0 / resistances, factor * total)
     assert more.level >= base.level
     assert (more.amounts >= base.amounts * (1 - 1e-12) - 1e-12 * total).all()
+
+
+def test_sorting_finishes_rows_the_newton_steps_leave(monkeypatch):
+    # The active-set Newton steps and the sort that finishes the rows they leave must give the
+    # same levels (both against scipy's brentq): with no Newton step every row is sorted, and
+    # thresholds far apart need one step per closing channel.
+    import stringcheck.solvers.water_filling as module
+
+    rng = np.random.default_rng(7)
+    thresholds = np.vstack([rng.normal(0.0, 1.0, size=(50, 6)), 10.0 ** np.arange(6.0)[None]])
+    weights = rng.uniform(0.1, 10.0, size=(51, 6))
+    totals = np.append(10.0 ** rng.uniform(-3.0, 2.0, size=50), 1.0)
+    expected = [_brentq_level(t, w, s) for t, w, s in zip(thresholds, weights, totals)]
+    for steps in (0, 1, 10):
+        monkeypatch.setattr(module, "_NEWTON_STEPS", steps)
+        solution = water_fill(thresholds, weights, totals)
+        np.testing.assert_allclose(solution.level, expected, rtol=1e-12, atol=1e-12)
+        np.testing.assert_allclose(solution.amounts.sum(axis=-1), totals, rtol=1e-12)
