@@ -201,7 +201,7 @@ def test_tabulated_truncation_matches_the_exact_map(low, high):
     # The piecewise polynomial that evaluates the truncation map must agree with the map from
     # the normal CDF (ndtr / ndtri, each side in its accurate form) to a few units of the last
     # place, on a dense grid and across the interval joints; beyond |z| = 8 the exact map is used.
-    from stringcheck.sampling import _truncate, _truncate_exact
+    from stringcheck.spread_maps import _truncate, _truncate_exact
 
     z = np.concatenate([np.linspace(-9.0, 9.0, 400_001), np.arange(-512, 513) / 64.0,
                         [-np.inf, np.inf, np.nan]])
@@ -225,7 +225,7 @@ def test_tabulated_screened_draw_matches_the_exact_map(low, high, log_scale):
     # A screened draw, typ exp(sigma y) (lognormal) or typ + sigma y (normal, and the tolerance
     # draws), y the truncated latent, is tabulated as one map: it must agree with the exact map to
     # a few units of the last place, relative.
-    from stringcheck.sampling import _exact_map, _truncate
+    from stringcheck.spread_maps import _exact_map, _truncate
 
     z = np.concatenate([np.linspace(-9.0, 9.0, 400_001), np.arange(-2048, 2049) / 256.0])
     table = _truncate(z, low, high, scale=log_scale, median=2e-7, lognormal=True)

@@ -10,7 +10,7 @@ short to show it cannot pass. Results are plain dataclasses; nothing here format
 from __future__ import annotations
 
 from contextlib import nullcontext
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from typing import Callable, Mapping
 
 import numpy as np
@@ -51,6 +51,7 @@ from .check_inputs import (
 )
 from .mixed_stock import device_part_grid, device_values, position_values, refuse_under_mix
 from .recovery_conditions import RecoveryRescaling, recovery_rescaling, rescale_charges
+from .position_sums import PositionSums
 from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 
 # A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
@@ -116,101 +117,6 @@ class CheckResult:
     assumptions: tuple[str, ...]
     no_scatter: tuple[str, ...]
     drivers: tuple[Driver, ...] = ()
-
-
-@dataclass
-class _Accumulator:
-    """Running per-position sums of one check, merged chunk by chunk (memory flat in trials)."""
-
-    shape: tuple[int, int]
-    limits: np.ndarray
-    count: int = 0
-    block_totals: list = field(default_factory=list)
-    block_squares: list = field(default_factory=list)
-    maximum: np.ndarray = field(init=False)
-    failures_by_position: np.ndarray = field(init=False)
-    worst_ratios: list = field(default_factory=list)
-    unsolved: int = 0
-    worst_ratio: float = -np.inf
-    worst_trial: int = -1
-    worst_string: np.ndarray | None = None
-    # With a mix: the limit of each drawn device (trials, parallel, series) for the chunk in hand;
-    # ``limits`` then holds each position's lowest limit, for the per-position figures.
-    device_limits: np.ndarray | None = None
-
-    def __post_init__(self) -> None:
-        self.maximum = np.full(self.shape, -np.inf)
-        self.failures_by_position = np.zeros(self.shape, dtype=np.int64)
-
-    def merge(self, other: "_Accumulator") -> None:
-        """Add the sums of a later chunk (chunks are merged in trial order)."""
-        self.count += other.count
-        self.block_totals.extend(other.block_totals)
-        self.block_squares.extend(other.block_squares)
-        self.maximum = np.maximum(self.maximum, other.maximum)
-        self.failures_by_position += other.failures_by_position
-        self.worst_ratios.extend(other.worst_ratios)
-        self.unsolved += other.unsolved
-        if other.worst_ratio > self.worst_ratio:
-            self.worst_ratio = other.worst_ratio
-            self.worst_trial = other.worst_trial
-            self.worst_string = other.worst_string
-
-    def add(self, voltages: np.ndarray, solved: np.ndarray, first_trial: int) -> None:
-        rows = voltages.shape[0]
-        with np.errstate(invalid="ignore"):
-            # A NaN or infinite voltage makes its trial's sum NaN or infinite (the sum of finite
-            # voltages would overflow only beyond 1e307 V).
-            solved = solved & np.isfinite(np.einsum("ijk->i", voltages))
-        ratio = voltages / (self.limits if self.device_limits is None else self.device_limits)
-        trial_ratio = np.where(solved, _trial_maximum(ratio), np.inf)
-        unsolved = int(np.count_nonzero(~solved))
-        self.unsolved += unsolved
-        # Sums are shifted by the limit to keep the variance sum well conditioned, and are kept
-        # per sampling block (chunks start on block boundaries) and added up in block order at the
-        # end, so that they are the same bit for bit whatever the chunk size or the number of
-        # worker processes.
-        for start in range(0, rows, BLOCK_TRIALS):
-            block = slice(start, start + BLOCK_TRIALS)
-            shifted = voltages[block] - self.limits if not unsolved else \
-                voltages[block][solved[block]] - self.limits
-            self.block_totals.append(np.einsum("ijk->jk", shifted))
-            self.block_squares.append(np.einsum("ijk->jk", np.square(shifted, out=shifted)))
-        good = voltages if not unsolved else voltages[solved]
-        self.count += good.shape[0]
-        if good.shape[0]:
-            self.maximum = np.maximum(self.maximum, _position_maximum(good))
-        # A position above its limit puts its trial's ratio above 1: only those trials count.
-        over = np.flatnonzero(trial_ratio > 1.0)
-        if over.size:
-            self.failures_by_position += np.count_nonzero(ratio[over] > 1.0, axis=0)
-        self.worst_ratios.append(trial_ratio)
-        best = int(np.argmax(trial_ratio))
-        if trial_ratio[best] > self.worst_ratio:
-            self.worst_ratio = float(trial_ratio[best])
-            self.worst_trial = first_trial + best
-            self.worst_string = voltages[best].copy()
-
-
-def _trial_maximum(values: np.ndarray) -> np.ndarray:
-    """Largest value of each trial (axis 0) over its positions; NaN if any is NaN."""
-    flat = values.reshape(-1)
-    width = flat.size // max(values.shape[0], 1)
-    # reduceat over the rows of the flat array is about twice as fast as max(axis=1) on short rows.
-    return np.maximum.reduceat(flat, np.arange(0, flat.size, width)) if flat.size else \
-        np.full(values.shape[0], -np.inf)
-
-
-def _position_maximum(values: np.ndarray) -> np.ndarray:
-    """Largest value of each position over the trials (axis 0), by halving: much faster than
-    max(axis=0) on a few positions per trial."""
-    while values.shape[0] > 1:
-        half = values.shape[0] // 2
-        folded = np.maximum(values[:half], values[half:2 * half])
-        if values.shape[0] % 2:
-            folded[0] = np.maximum(folded[0], values[-1])
-        values = folded
-    return values[0]
 
 
 def run_check(design: Design, *, trials: int | None = None, seed: int | None = None,
@@ -294,8 +200,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         forward = forward_setup(design, parallel_reason, thermal_reason)
         parameters = tuple(dict.fromkeys(parameters + forward_parameters(design)))
     forward_sums = ForwardAccumulator()
-    static = _Accumulator(shape, limits) if run_static else None
-    dynamic = _Accumulator(shape, limits) if run_dynamic else None
+    static = PositionSums(shape, limits) if run_static else None
+    dynamic = PositionSums(shape, limits) if run_dynamic else None
     rescaling, rescaling_note = recovery_rescaling(design) if run_dynamic else (None, "")
     context = _ChunkContext(design=design, seed=seed, parameters=parameters, run_static=run_static,
                             run_dynamic=run_dynamic, limits=limits, temperature=temperature,
@@ -405,8 +311,8 @@ class _ChunkContext:
 
 @dataclass(frozen=True)
 class _ChunkOutcome:
-    static: _Accumulator | None
-    dynamic: _Accumulator | None
+    static: PositionSums | None
+    dynamic: PositionSums | None
     forward: ForwardChunk | None
     features: dict[str, np.ndarray] | None
 
@@ -416,8 +322,8 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     design = context.design
     shape = context.limits.shape
     drawn = draw_strings(design, context.parameters, first, count, seed=context.seed)
-    static = _Accumulator(shape, context.limits) if context.run_static else None
-    dynamic = _Accumulator(shape, context.limits) if context.run_dynamic else None
+    static = PositionSums(shape, context.limits) if context.run_static else None
+    dynamic = PositionSums(shape, context.limits) if context.run_dynamic else None
     if drawn.part_index is None:
         # The solvers work through the chunk in slices of whole sampling blocks, small enough for
         # their temporaries to stay in cache; the accumulators take them in trial order.
@@ -466,7 +372,7 @@ def _for_devices(context: _ChunkContext, drawn: DrawnStrings) -> _ChunkContext:
                                                                           drawn))
 
 
-def _static_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulator,
+def _static_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums,
                   temperature: np.ndarray, reference_voltage: np.ndarray,
                   reference_temperature: np.ndarray, doubling: np.ndarray,
                   exponent: np.ndarray) -> None:
@@ -489,7 +395,7 @@ def _grading_conductance(design: Design, drawn: DrawnStrings, temperature: np.nd
     return 1.0 / resistance
 
 
-def _dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulator,
+def _dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums,
                    junction_capacitance: np.ndarray, rescaling: RecoveryRescaling | None) -> None:
     capacitance = junction_capacitance if drawn.capacitance is None else \
         drawn.capacitance + junction_capacitance
@@ -502,7 +408,7 @@ def _dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: _Accumulato
     accumulator.add(solution.voltages, solved, drawn.first_trial)
 
 
-def _finish(name: str, accumulator: _Accumulator, grid: np.ndarray, confidence: float,
+def _finish(name: str, accumulator: PositionSums, grid: np.ndarray, confidence: float,
             trials: int, target: float) -> SeriesCheck:
     """Summarise one check. It passes when the upper confidence bound of P(fail) is within
     ``target`` ([sizing] target_p_fail): a run too short to show that cannot pass."""
@@ -553,7 +459,7 @@ def _not_run(name: str, reason: str) -> SeriesCheck:
 
 def evaluate_strings(context: _ChunkContext, drawn: DrawnStrings, check: str) -> np.ndarray:
     """Each drawn string's worst stress ratio in ``check`` ("static" or "dynamic"); inf unsolved."""
-    accumulator = _Accumulator(context.limits.shape, context.limits)
+    accumulator = PositionSums(context.limits.shape, context.limits)
     if check == "static":
         _static_chunk(context.design, drawn, accumulator, context.temperature,
                       context.reference_voltage, context.reference_temperature, context.doubling,
