@@ -182,8 +182,8 @@ def check_serials(reader: _Reader, design: Design, grid: np.ndarray) -> None:
 
 
 def check_lot_sizes(reader: _Reader, design: Design) -> None:
-    """A resampled lot holds every device a built string draws from it (with a mix, in the
-    variant that draws the most: ``Design.mix_variants``)."""
+    """A resampled lot holds every device a built string may draw from it (with a mix, every
+    position that may hold the part in either of ``Design.mix_variants``)."""
     serials = design.string.serial_grid()
     placed = ~np.equal(serials, None)
     for name in design.parts_used():
@@ -191,8 +191,8 @@ def check_lot_sizes(reader: _Reader, design: Design) -> None:
         if lot is None or not lot.resampled:
             continue
         pinned = int(np.count_nonzero((design.string.part_grid() == name) & placed))
-        drawn = max(int(np.count_nonzero((variant.string.part_grid() == name) & ~placed))
-                    for variant in design.mix_variants())
+        drawn = int(np.count_nonzero(np.logical_or.reduce(
+            [(variant.string.part_grid() == name) & ~placed for variant in design.mix_variants()])))
         available = lot.devices - pinned
         if drawn > available:
             raise reader.error(f"parts.{name}.measured",

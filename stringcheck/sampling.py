@@ -50,8 +50,6 @@ _MIX_STREAM = 1003
 _LOT_STREAM_BASE = 2000
 # Which devices of a measured lot stand in a string: one stream per part, apart from its lot stream.
 _MEASURED_STREAM_BASE = 3_000_000
-# Uniforms generated at once when choosing devices from a measured lot (memory bound).
-_ROW_DRAW_VALUES = 4_000_000
 
 
 @dataclass(frozen=True)
@@ -155,27 +153,28 @@ def _normals(seed: int, first_trial: int, count: int, component: int, width: int
 
 def _lot_rows(seed: int, first_trial: int, count: int, component: int, devices: int,
               take: int) -> np.ndarray:
-    """Indices (count, take) of ``take`` distinct devices out of ``devices`` per trial, in random
-    order: the ``take`` smallest of ``devices`` independent uniforms, ordered by value, are a
-    uniformly random ordered sample without replacement."""
+    """Indices (count, take) of ``take`` distinct devices out of ``devices`` per trial, in
+    uniformly random order (a uniformly random ordered sample without replacement).
+
+    Notes
+    -----
+    Floyd's algorithm picks the set (J. Bentley, "Programming pearls: a sample of brilliance",
+    Communications of the ACM 30 (9), 1987): for j = devices - take .. devices - 1 draw t uniform
+    on 0..j and take t, or j when t is taken already. Each t is floor(u (j + 1)) of a uniform u on
+    [0, 1), and a second set of ``take`` uniforms, sorted, puts the set in random order: 2 take
+    uniforms per trial whatever the lot's size, drawn row by row, so a shorter draw is the first
+    rows of a longer one (the block scheme of :func:`_block_draws`).
+    """
 
     def draw(generator: np.random.Generator, offset: int, rows: np.ndarray) -> None:
-        step = max(1, _ROW_DRAW_VALUES // devices)
-        # Consecutive calls continue one stream, so the result does not depend on ``step``; the
-        # offset rows are drawn and dropped.
-        for start in range(0, offset + rows.shape[0], step):
-            stop = min(start + step, offset + rows.shape[0])
-            uniforms = generator.random((stop - start, devices))
-            if stop <= offset:
-                continue
-            if take < devices:
-                chosen = np.argpartition(uniforms, take - 1, axis=1)[:, :take]
-            else:
-                chosen = np.broadcast_to(np.arange(devices), uniforms.shape)
-            order = np.argsort(np.take_along_axis(uniforms, chosen, axis=1), axis=1)
-            picked = np.take_along_axis(chosen, order, axis=1)
-            first = max(start, offset)
-            rows[first - offset:stop - offset] = picked[first - start:]
+        uniforms = generator.random((offset + rows.shape[0], 2 * take))[offset:]
+        chosen = rows
+        for i, j in enumerate(range(devices - take, devices)):
+            t = np.minimum((uniforms[:, i] * (j + 1)).astype(np.int64), j)
+            taken = np.any(chosen[:, :i] == t[:, None], axis=1)
+            chosen[:, i] = np.where(taken, j, t)
+        order = np.argsort(uniforms[:, take:], axis=1)
+        rows[...] = np.take_along_axis(chosen, order, axis=1)
 
     return _block_draws(seed, first_trial, count, component, take, draw, dtype=np.int64)
 
@@ -187,7 +186,7 @@ class Latent:
     ``device``: per parameter, shape (trials, parallel, series); ``lot``: per part, shape
     (trials, len(SPREAD_PARAMETERS)) (empty without ``lot_share``); ``resistor`` and ``capacitor``:
     (trials, parallel, series) or None; ``measured_rows``: per part resampled from a measured lot,
-    the lot rows of its drawn positions, (trials, positions). The Monte Carlo draws them from seeded
+    the lot row of each position that may draw it, (trials, parallel, series), -1 elsewhere. The Monte Carlo draws them from seeded
     streams; the rare-event estimator chooses the normal values itself (and refuses resampled lots).
     """
 
@@ -248,17 +247,22 @@ def draw_latent(design: Design, parameters: tuple[str, ...], first_trial: int, c
     if grading.capacitor is not None:
         capacitor = _normals(seed, first_trial, count, _CAPACITOR_STREAM, devices).reshape(shape)
     rows = {}
-    variants = design.mix_variants()
     for name in design.parts_used():
         measured = design.parts[name].measured
         if measured is not None and measured.resampled:
-            # With a mix, enough rows for the variant that draws the most devices of the part; a
-            # variant drawing fewer takes the first of them (still a sample without replacement).
-            take = max(int(np.count_nonzero(_drawn_from_lot(variant, name)))
-                       for variant in variants)
+            # Every position that may draw the part (with a mix, in either variant) gets its own
+            # device of one sample without replacement, so that whichever variant a device comes
+            # from, no lot device stands twice in a string.
+            slots = np.logical_or.reduce([_drawn_from_lot(variant, name)
+                                          for variant in design.mix_variants()])
+            take = int(np.count_nonzero(slots))
             if take:
-                rows[name] = _lot_rows(seed, first_trial, count, _measured_stream_id(name),
-                                       len(_lot_pool(design, name)), take)
+                pool = _lot_pool(design, name)
+                picked = _lot_rows(seed, first_trial, count, _measured_stream_id(name),
+                                   len(pool), take)
+                per_position = np.full((count,) + slots.shape, -1, dtype=np.int64)
+                per_position[:, slots] = pool[picked]
+                rows[name] = per_position
     return Latent(device=device, lot=lot, resistor=resistor, capacitor=capacitor,
                   measured_rows=rows)
 
@@ -301,8 +305,7 @@ def _apply_measured(design: Design, parameters: tuple[str, ...], latent: Latent,
                 if name not in latent.measured_rows:
                     raise ValueError(f"part {name!r} is resampled from a measured lot: its rows "
                                      "are not latent normal values")
-                chosen = latent.measured_rows[name][:, :int(np.count_nonzero(drawn))]
-                rows = _lot_pool(design, name)[chosen]
+                rows = latent.measured_rows[name][:, drawn]
                 for parameter in measured:
                     column = lot.parameters.index(parameter)
                     values[parameter][:, drawn] = lot.values[rows, column]

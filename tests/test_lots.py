@@ -473,3 +473,32 @@ def test_swap_over_a_serial_position_puts_in_a_new_device(tmp_path):
     assert candidate.string.temperature_rise_grid()[0, 1] == 5.0
     leakage = draw_strings(candidate, ("i_r",), 0, 200).parameters["i_r"][:, 0, 1]
     assert np.all(np.isin(leakage, candidate.parts["B"].measured.column("i_r")))
+
+
+def test_mix_of_a_part_that_already_stands_in_the_string_never_repeats_a_device(tmp_path):
+    # B stands in position 5 of the baseline and is mixed in elsewhere: a device of B's lot drawn
+    # for position 5 (baseline variant) and one drawn for another position (mixed-in variant)
+    # must still differ.
+    from stringcheck.studies.review import mixed
+
+    _write_lot(tmp_path, 40)
+    _write_lot_b(tmp_path, 12)
+    design = mixed(_design_with_b(tmp_path, series=8, positions='[[string.position]]\nindex = 5\n'
+                                                               'part = "B"\n'), 0.5, "B")
+    leakage = draw_strings(design, ("i_r", "q_rr"), 0, 4096).parameters["i_r"].reshape(4096, -1)
+    assert all(np.unique(row).size == row.size for row in leakage)
+
+
+def test_every_ordered_sample_is_equally_likely():
+    # Floyd's algorithm plus a random order gives every ordered pair of distinct devices out of 5
+    # the same probability 1/20 (chi-square, scipy.stats.chisquare), and a lot far larger than
+    # the string costs no more than a small one (2 uniforms per drawn device).
+    from stringcheck.sampling import _lot_rows
+
+    pairs = _lot_rows(11, 0, 40_000, 5, 5, 2)
+    counts = np.zeros((5, 5), dtype=int)
+    np.add.at(counts, (pairs[:, 0], pairs[:, 1]), 1)
+    assert np.all(np.diag(counts) == 0)
+    assert stats.chisquare(counts[~np.eye(5, dtype=bool)]).pvalue > 1e-4
+    big = _lot_rows(11, 0, 4096, 5, 2_000_000, 3)
+    assert big.max() < 2_000_000 and all(np.unique(r).size == 3 for r in big)
