@@ -38,6 +38,8 @@ MIN_FIT_DEVICES = 10
 # A lot file is a table of devices; anything larger is surely not one (and is not read).
 MAX_LOT_BYTES = 64 * 1024 * 1024
 SERIAL_COLUMN = "serial"
+# A normal fit of a quantity that cannot be negative may put at most this fraction below zero.
+_NEGATIVE_TOLERANCE = 1e-6
 _UNITS = {"i_r": AMPERE, "q_rr": COULOMB, "i_rm": AMPERE, "t_rr": SECOND, "v_t0": VOLT, "r_t": OHM}
 _HEADER = re.compile(r"^\s*([^\[\]]*?)\s*(?:\[\s*([^\[\]]*?)\s*\])?\s*$")
 
@@ -94,6 +96,8 @@ class MeasuredLot:
         Phi^-1((rank - 1/2) / devices) when resampling; shape of ``values``.
     correlation
         Correlation matrix of the scores (the copula of a fit), (len(parameters),) * 2.
+    notes
+        What was derived from or left out of the file, for the report.
     """
 
     path: str
@@ -104,6 +108,7 @@ class MeasuredLot:
     columns: tuple[ColumnFit, ...]
     scores: np.ndarray
     correlation: np.ndarray
+    notes: tuple[str, ...] = ()
 
     @property
     def devices(self) -> int:
@@ -216,31 +221,9 @@ def read_lot(path: Path, *, key: str, design_source: str, fit: str,
     ``datasheet`` holds the part's datasheet spreads, to count devices outside their limits.
     Every problem is a :class:`DesignError` naming the lot file, the row and the column.
     """
-    import pandas as pd
-
     source = str(path)
     where = f"(from {design_source}: {key})"
-    try:
-        if not path.exists():
-            raise DesignError(f"no such lot file {source!r}; check the path (it is read relative "
-                              "to the design file's folder)", source=design_source, key=key)
-        if not path.is_file():
-            raise DesignError(f"{source!r} is not a regular file; give a CSV file of measured "
-                              "devices", source=design_source, key=key)
-        if path.stat().st_size > MAX_LOT_BYTES:
-            raise DesignError(f"is larger than {MAX_LOT_BYTES:,} bytes {where}; a lot file holds "
-                              "one row per device", source=source)
-        table = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True,
-                            encoding="utf-8-sig")
-    except DesignError:
-        raise
-    except pd.errors.EmptyDataError:
-        raise DesignError(f"the lot file is empty {where}; it needs a header row and one row per "
-                          "device", source=source) from None
-    except (pd.errors.ParserError, UnicodeDecodeError, OSError) as error:
-        reason = str(error).splitlines()[0] if str(error) else type(error).__name__
-        raise DesignError(f"cannot be read as CSV ({reason}) {where}; write one row per device, "
-                          "comma-separated, with a header row", source=source) from None
+    table, lines = _read_table(path, source, where, design_source=design_source, key=key)
     parameters, units, serial_column = _header(table.columns, source, where)
     if table.shape[0] == 0:
         raise DesignError(f"the lot is empty: a header and no devices {where}; add one row per "
@@ -249,13 +232,14 @@ def read_lot(path: Path, *, key: str, design_source: str, fit: str,
     values = np.empty((table.shape[0], len(parameters)))
     for out, i in enumerate(order):
         header = table.columns[_column_position(table.columns, parameters[i], serial_column)]
-        values[:, out] = _numbers(table[header].to_numpy(), header, parameters[i], units[i],
-                                  source, where)
+        values[:, out] = _numbers(table[header].to_numpy(), lines, header, parameters[i],
+                                  units[i], source, where)
     parameters = tuple(parameters[i] for i in order)
+    parameters, values, notes = _recovery_columns(parameters, values, source, where)
     serials = None
     if serial_column is not None:
         serials = tuple(str(s).strip() for s in table[serial_column].to_numpy())
-        _check_serials(serials, serial_column, source, where)
+        _check_serials(serials, lines, serial_column, source, where)
     devices = values.shape[0]
     if fit != "resample" and devices < MIN_FIT_DEVICES:
         raise DesignError(f"{devices} device(s) are too few to fit a distribution to {where}; "
@@ -275,6 +259,14 @@ def read_lot(path: Path, *, key: str, design_source: str, fit: str,
             # One device, or all alike: the lot states a fixed value.
             location = math.log(column[0]) if family == "lognormal" else float(column[0])
             scale, p_value = 0.0, float("nan")
+        if family == "normal" and scale > 0:
+            below_zero = float(stats.norm.cdf(0.0, location, scale))
+            if below_zero > _NEGATIVE_TOLERANCE:
+                raise DesignError(
+                    f"fit = \"{fit}\" puts {below_zero:.2g} of the {parameter} draws below zero "
+                    f"(the lot's mean is {location / scale:.2g} standard deviations above 0) "
+                    f"{where}; use fit = \"lognormal\" or \"auto\", or \"resample\"",
+                    source=source)
         transformed = np.log(column) if family == "lognormal" else column
         latent[:, i] = (transformed - location) / scale if scale > 0 else 0.0
         spread = datasheet.get(parameter)
@@ -287,7 +279,74 @@ def read_lot(path: Path, *, key: str, design_source: str, fit: str,
     scores = rank_scores(values) if fit == "resample" else latent
     return MeasuredLot(path=source, fit=fit, parameters=parameters, values=values, serials=serials,
                        columns=tuple(columns), scores=scores,
-                       correlation=score_correlation(scores))
+                       correlation=score_correlation(scores), notes=notes)
+
+
+def _read_table(path: Path, source: str, where: str, *, design_source: str, key: str):
+    """The lot's cells as text, and the file line of each row (blank lines dropped)."""
+    import pandas as pd
+
+    try:
+        if not path.exists():
+            raise DesignError(f"no such lot file {source!r}; check the path (it is read relative "
+                              "to the design file's folder)", source=design_source, key=key)
+        if not path.is_file():
+            raise DesignError(f"{source!r} is not a regular file; give a CSV file of measured "
+                              "devices", source=design_source, key=key)
+        if path.stat().st_size > MAX_LOT_BYTES:
+            raise DesignError(f"is larger than {MAX_LOT_BYTES:,} bytes {where}; a lot file holds "
+                              "one row per device", source=source)
+        table = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True,
+                            encoding="utf-8-sig", skip_blank_lines=False)
+    except DesignError:
+        raise
+    except pd.errors.EmptyDataError:
+        raise DesignError(f"the lot file is empty {where}; it needs a header row and one row per "
+                          "device", source=source) from None
+    except UnicodeDecodeError:
+        raise DesignError(f"is not UTF-8 text {where}; save it as UTF-8 (\"CSV UTF-8\" in a "
+                          "spreadsheet)", source=source) from None
+    except (pd.errors.ParserError, OSError) as error:
+        reason = str(error).splitlines()[0] if str(error) else type(error).__name__
+        raise DesignError(f"cannot be read as CSV ({reason}) {where}; write one row per device, "
+                          "comma-separated, with a header row", source=source) from None
+    if table.shape[1] == 1:
+        header = str(table.columns[0])
+        for separator, name in ((";", "semicolons"), ("\t", "tabs")):
+            if separator in header:
+                raise DesignError(f"the cells are separated by {name} {where}; save the lot as "
+                                  "comma-separated CSV (decimal points, not commas)", source=source)
+    # A trailing comma on every row (spreadsheet exports) leaves an unnamed, empty column.
+    empty = [c for c in table.columns if str(c).startswith("Unnamed:")
+             and not table[c].astype(str).str.strip().any()]
+    table = table.drop(columns=empty)
+    # Line numbers as an editor shows them (the header is line 1), counted before blank rows go.
+    lines = np.arange(2, table.shape[0] + 2)
+    blank = ~table.astype(str).apply(lambda column: column.str.strip() != "").any(axis=1).to_numpy() \
+        if table.shape[1] else np.zeros(table.shape[0], dtype=bool)
+    return table[~blank].reset_index(drop=True), lines[~blank]
+
+
+def _recovery_columns(parameters: tuple[str, ...], values: np.ndarray, source: str, where: str):
+    """A lot that measured I_RM and t_rr but not Q_rr gets Q_rr = 1/2 I_RM t_rr per device (the
+    triangular recovery of DESIGN.md section 4); I_RM or t_rr alone is refused, and beside a
+    measured Q_rr they are kept for the report only. Returns (parameters, values, notes)."""
+    has = set(parameters)
+    if not has & {"i_rm", "t_rr"}:
+        return parameters, values, ()
+    if "q_rr" in has:
+        return parameters, values, ("i_rm and t_rr are shown for reference; the checks use the "
+                                    "measured q_rr",)
+    if not {"i_rm", "t_rr"} <= has:
+        alone = "i_rm" if "i_rm" in has else "t_rr"
+        raise DesignError(f"column {alone} alone is not used by any check {where}; measure q_rr, "
+                          "or both i_rm and t_rr (Q_rr = 1/2 I_RM t_rr)", source=source)
+    charge = 0.5 * values[:, parameters.index("i_rm")] * values[:, parameters.index("t_rr")]
+    position = SPREAD_PARAMETERS.index("q_rr")
+    at = sum(SPREAD_PARAMETERS.index(p) < position for p in parameters)
+    return (parameters[:at] + ("q_rr",) + parameters[at:],
+            np.insert(values, at, charge, axis=1),
+            ("q_rr of each device derived as 1/2 I_RM t_rr from its measured i_rm and t_rr",))
 
 
 def _header(columns, source: str, where: str) -> tuple[list[str], list, str | None]:
@@ -343,12 +402,11 @@ def _example_unit(parameter: str) -> str:
         parameter]
 
 
-def _numbers(cells: np.ndarray, header: str, parameter: str, factor: float, source: str,
-             where: str) -> np.ndarray:
+def _numbers(cells: np.ndarray, lines: np.ndarray, header: str, parameter: str, factor: float,
+             source: str, where: str) -> np.ndarray:
     out = np.empty(cells.shape[0])
     for row, cell in enumerate(cells):
-        # Line numbers as an editor shows them: the header is line 1.
-        line = row + 2
+        line = int(lines[row])
         text = str(cell).strip()
         try:
             number = float(text)
@@ -371,10 +429,11 @@ def _numbers(cells: np.ndarray, header: str, parameter: str, factor: float, sour
     return out
 
 
-def _check_serials(serials: tuple[str, ...], header: str, source: str, where: str) -> None:
+def _check_serials(serials: tuple[str, ...], lines: np.ndarray, header: str, source: str,
+                   where: str) -> None:
     seen: dict[str, int] = {}
     for row, serial in enumerate(serials):
-        line = row + 2
+        line = int(lines[row])
         if not serial:
             raise DesignError(f"line {line}, column {header!r}: empty serial number {where}; give "
                               "every device its serial, or drop the column", source=source)

@@ -127,13 +127,20 @@ def _read_lot(reader: _Reader, table: Mapping[str, Any], spreads: dict[str, Spre
                                   "(fit not given)")
     for column in lot.columns:
         if spreads[column.parameter] is None:
+            # A charge derived from I_RM and t_rr was measured at their test conditions.
+            source = spreads["i_rm"] or spreads["t_rr"] if column.parameter == "q_rr" else None
+            conditions = {} if source is None else {
+                "at_temperature": source.at_temperature, "at_di_dt": source.at_di_dt,
+                "at_forward_current": source.at_forward_current}
+            fixed = column.low == column.high
             spreads[column.parameter] = Spread(typ=column.median,
-                                               low=None if column.low == column.high else column.low,
-                                               high=None if column.low == column.high else
-                                               column.high)
+                                               low=None if fixed else column.low,
+                                               high=None if fixed else column.high, **conditions)
             reader.assumptions.append(
                 f"{prefix}.{column.parameter}: no datasheet row; the measured lot's median, min and "
                 "max stand for it in the textbook bounds (test conditions as noted)")
+    for note in lot.notes:
+        reader.assumptions.append(f"{prefix}.measured: {note}")
     return lot
 
 
@@ -178,12 +185,13 @@ def check_serials(reader: _Reader, design: Design, grid: np.ndarray) -> None:
             raise reader.error(key, f"device {override.serial!r} already stands in position "
                                     f"{index} (branch {branch}); one device, one position")
         used[name, override.serial] = (row + 1, override.index)
-    check_lot_sizes(reader, design)
+    check_lot_sizes(design, reader)
 
 
-def check_lot_sizes(reader: _Reader, design: Design) -> None:
+def check_lot_sizes(design: Design, reader: _Reader | None = None) -> None:
     """A resampled lot holds every device a built string may draw from it (with a mix, every
-    position that may hold the part in either of ``Design.mix_variants``)."""
+    position that may hold the part in either of ``Design.mix_variants``); raises DesignError."""
+    reader = _Reader(design.source) if reader is None else reader
     serials = design.string.serial_grid()
     placed = ~np.equal(serials, None)
     for name in design.parts_used():

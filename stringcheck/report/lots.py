@@ -84,6 +84,8 @@ def render_lots(design: Design, console: Console, *, also: Design | None = None)
                      for j, b in enumerate(lot.parameters) if j > i]
             console.print("  correlation of the normal scores: " + ", ".join(pairs),
                           highlight=False)
+        for note in lot.notes:
+            console.print(f"  {note}.", highlight=False)
         for warning in lot.outside_limits(name):
             console.print(Text(f"  ! {warning}: the lot lies outside the datasheet limits (the "
                                "check uses the devices as measured)", style="yellow"))
@@ -108,5 +110,6 @@ def lots_to_list(design: Design) -> list[dict[str, Any]]:
             "correlation": {"parameters": list(lot.parameters),
                             "matrix": lot.correlation.tolist()},
             "warnings": list(lot.outside_limits(name)),
+            "notes": list(lot.notes),
         })
     return out

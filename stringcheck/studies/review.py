@@ -24,7 +24,6 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..design import MAX_LEAKAGE_DOUBLINGS, Design, Mix, PositionOverride
-from ..design_schema import _Reader
 from ..errors import StringcheckError
 from ..part_reading import check_lot_sizes
 from .check import CheckResult, run_check
@@ -133,7 +132,7 @@ def swapped(design: Design, positions: tuple[int, ...], part: str) -> Design:
 
 def _lots_checked(candidate: Design) -> Design:
     """The candidate, once its measured lots are known to hold the devices it draws."""
-    check_lot_sizes(_Reader(candidate.source), candidate)
+    check_lot_sizes(candidate)
     return candidate
 
 
