@@ -496,8 +496,8 @@ def test_with_rare_the_report_drops_its_own_hint(tmp_path, half_plane_design):
 
 
 def test_quiet_line_gives_the_bound_that_decided(tmp_path, half_plane_design):
-    # tests/conftest.py's half-plane at beta = 5.199 (P(fail) = 1e-7): 2,000 plain trials cannot show
-    # 1e-3 (exact bound 1.8e-3), the importance sampler can; the one line quotes its bound.
+    # tests/conftest.py's half-plane at beta = 5.199 (P(fail) = 1e-7): 2,000 plain trials cannot
+    # show 1e-3 (exact bound 1.8e-3), the importance sampler can; the one line quotes its bound.
     path = tmp_path / "rare.toml"
     path.write_text(half_plane_design(5.199, trials=2000), encoding="utf-8")
     result = invoke("check", str(path), "--rare", "--quiet")

@@ -139,7 +139,8 @@ def test_three_branches_against_three_half_planes(parallel_pair_design):
 
 def test_a_failing_parallel_pair_no_longer_passes(parallel_pair_design):
     # beta = 4: P(fail) = 2 Phi(-4) = 6.3e-5 above a 5e-5 target. Shifted to one branch's failure
-    # point only, the estimate was Phi(-4) = 3.2e-5 with a small standard error and the check passed.
+    # point only, the estimate was Phi(-4) = 3.2e-5 with a small standard error, and the check
+    # passed.
     text = _parallel_group(parallel_pair_design, 2, 4.0) + "[sizing]\ntarget_p_fail = 5e-5\n"
     result = run_check(parse_design_text(text), trials=4096, rare=True)
     check = result.checks["parallel"]
