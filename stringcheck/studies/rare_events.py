@@ -278,6 +278,7 @@ def failure_point_images(design: Design, space: _Space, point: np.ndarray) -> np
     branches, series = keys.shape
     branch, index = space.dominant_position(point)
     images = [point]
+    tolerance = 1e-9 * max(1.0, float(np.linalg.norm(point)))
     for other_branch in range(branches):
         for other_index in range(series):
             rows, columns = np.arange(branches), np.arange(series)
@@ -286,8 +287,7 @@ def failure_point_images(design: Design, space: _Space, point: np.ndarray) -> np
             if not np.all(keys[np.ix_(rows, columns)] == keys):
                 continue
             image = space.permuted(point, rows, columns)
-            tolerance = 1e-9 * max(1.0, float(np.linalg.norm(point)))
-            if all(np.linalg.norm(image - kept) > tolerance for kept in images):
+            if np.min(np.linalg.norm(np.asarray(images) - image, axis=1)) > tolerance:
                 images.append(image)
     return np.array(images)
 
@@ -315,8 +315,12 @@ def mixture_weight(u: np.ndarray, shifts: np.ndarray, defensive: float) -> np.nd
     """
     if shifts.shape[0] == 0:
         return np.ones(u.shape[0])
-    exponents = u @ shifts.T - 0.5 * np.einsum("ij,ij->i", shifts, shifts)[None, :]
-    log_shifted = special.logsumexp(exponents, axis=1) - math.log(shifts.shape[0])
+    half_squares = 0.5 * np.einsum("ij,ij->i", shifts, shifts)
+    log_shifted = np.empty(u.shape[0])
+    for start in range(0, u.shape[0], _BATCH):  # (rows x shifts) at a time: flat memory
+        exponents = u[start:start + _BATCH] @ shifts.T - half_squares[None, :]
+        log_shifted[start:start + _BATCH] = special.logsumexp(exponents, axis=1)
+    log_shifted -= math.log(shifts.shape[0])
     return np.exp(-np.logaddexp(math.log(defensive), math.log(1.0 - defensive) + log_shifted))
 
 
