@@ -51,8 +51,8 @@ _TRANSIENT_SAMPLE = typer.Option(None, "--transient-sample", min=1, metavar="N",
                                       "(default: as many as the target needs).")
 _DRIVERS = typer.Option(False, "--drivers", help="Rank what drives the worst stress and what "
                                                   "halving each input's spread would buy.")
-_RARE = typer.Option(False, "--rare", help="Estimate small P(fail) of the series checks by "
-                                            "importance sampling.")
+_RARE = typer.Option(False, "--rare", help="Estimate small P(fail) of the static, dynamic, "
+                                            "parallel and thermal checks by importance sampling.")
 _WORKERS = typer.Option(1, "--workers", help="Processes to run the trials in (the result is the "
                                              "same for any number).")
 

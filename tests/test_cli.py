@@ -487,6 +487,54 @@ def test_report_says_how_many_trials_a_ten_percent_estimate_needs(tmp_path, half
 
 
 
+def test_with_rare_the_report_drops_its_own_hint(tmp_path, half_plane_design):
+    # As above, with --rare: the convergence note stays, the hint to run --rare goes.
+    path = tmp_path / "rare.toml"
+    path.write_text(half_plane_design(2.326, trials=2000), encoding="utf-8")
+    text = flat(invoke("check", str(path), "--rare").stdout)
+    assert "would give +-10%" in text and "or use --rare" not in text
+
+
+def test_quiet_line_gives_the_bound_that_decided(tmp_path, half_plane_design):
+    # tests/conftest.py's half-plane at beta = 5.199 (P(fail) = 1e-7): 2,000 plain trials cannot
+    # show 1e-3 (exact bound 1.8e-3), the importance sampler can; the one line quotes its bound.
+    path = tmp_path / "rare.toml"
+    path.write_text(half_plane_design(5.199, trials=2000), encoding="utf-8")
+    result = invoke("check", str(path), "--rare", "--quiet")
+    assert result.exit_code == 0, result.output
+    line = flat(result.stdout)
+    assert line.startswith("pass: static pass (P(fail) upper bound ") and "(IS) vs target 0.001" \
+        in line and "plain 0/2,000 failed" in line
+    assert "0.0018" not in line  # the plain bound did not decide
+    data = json.loads(invoke("check", str(path), "--rare", "--json", "-").stdout)
+    rare = data["checks"]["static"]["rare"]
+    assert rare["decides"] is True and rare["failure_points"] == 1 and rare["pooled_trials"] == 0
+
+
+def test_drivers_label_their_reruns_as_plain_monte_carlo(tmp_path, parallel_pair_design):
+    # The reruns behind "P(fail) upper after" are plain Monte Carlo even with --rare deciding the
+    # check (tests/conftest.py, PARALLEL_PAIR): the column and the table's lead-in say so.
+    path = tmp_path / "pair.toml"
+    path.write_text(parallel_pair_design, encoding="utf-8")
+    result = runner.invoke(app, ["check", str(path), "--drivers", "--rare", "--trials", "4096"],
+                           env={"COLUMNS": "200"})
+    assert "P(fail) upper after (plain)" in result.stdout, result.output
+    assert "(plain Monte Carlo: the P(fail) bound after is the exact interval's" in \
+        flat(result.stdout)
+
+
+def test_no_failure_point_pools_the_plain_run_in_the_quiet_line(tmp_path, half_plane_design):
+    # Screened, nothing can fail (tests/studies/test_rare_events.py): 100,000 plain trials and the
+    # sampler's 20,000 pooled show 3.1e-5 < 1e-4 (exact interval, 0 of 120,000).
+    path = tmp_path / "none.toml"
+    path.write_text(half_plane_design(5.2, screened=True, trials=100_000)
+                    + "[sizing]\ntarget_p_fail = 1e-4\n", encoding="utf-8")
+    result = invoke("check", str(path), "--rare", "--quiet")
+    assert result.exit_code == 0, result.output
+    assert "static pass (0/120,000 failed (pooled), P(fail) upper bound 3.1e-05 vs target " \
+        "0.0001)" in flat(result.stdout)
+
+
 @pytest.mark.parametrize("args,fragment", [
     (["check", "--bogus", "x"], "No such option: --bogus"),
     (["chek"], "No such command 'chek'"),

@@ -34,6 +34,8 @@ def rare_to_dict(rare) -> dict[str, Any] | None:
             "p_fail_ci": [rare.ci_low, rare.ci_high], "beta": _number(rare.beta),
             "first_order": rare.first_order, "samples": rare.samples,
             "found_failure_point": rare.found_failure_point,
+            "failure_points": rare.failure_points, "pooled_trials": rare.pooled_trials,
+            "decides": rare.decides, "note": rare.note,
             "importance": [{"input": item.input, "share": item.share, "branch": item.branch,
                             "index": item.index, "sign": item.sign}
                            for item in rare.importance]}
@@ -275,11 +277,13 @@ def render_drivers(result, console: Console) -> None:
     console.print(Text("What drives the worst stress", style="bold underline"))
     console.print("rank correlation of each input's mismatch across the string with the string's "
                   "worst stress ratio (first 20,000 trials); each top input rerun with its spread "
-                  "halved on the same draws, and the ambient rerun 10 K cooler")
+                  "halved on the same draws, and the ambient rerun 10 K cooler (plain Monte "
+                  "Carlo: the P(fail) bound after is the exact interval's, never importance "
+                  "sampling's)")
     shares = any(d.failure_point_share is not None for d in result.drivers)
     table = Table(show_edge=False, pad_edge=False)
     columns = ["check", "input", "rank corr.", "p99/limit now", "p99/limit after",
-               "P(fail) upper after"] + (["share of failure point"] if shares else [])
+               "P(fail) upper after (plain)"] + (["share of failure point"] if shares else [])
     for column in columns:
         table.add_column(column, justify="left" if column in ("check", "input") else "right")
     for d in result.drivers:

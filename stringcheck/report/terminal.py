@@ -37,17 +37,28 @@ def _ratio(value: float) -> str:
     return f"{value:.5f}" if 0.995 <= value <= 1.005 else f"{value:.3f}"
 
 
-def _probability(check: SeriesCheck, confidence: float) -> str:
+def _deciding_rare(check):
+    """The check's importance-sampling estimate when it decided the check, else None."""
     rare = getattr(check, "rare", None)
+    return rare if rare is not None and rare.decides else None
+
+
+def _probability(check: SeriesCheck, confidence: float) -> str:
+    rare = _deciding_rare(check)
     if rare is not None:
-        return f"{rare.p_fail:.2g} [{rare.ci_low:.2g}, {rare.ci_high:.2g}] (IS)" \
-            if rare.found_failure_point else f"<= {rare.ci_high:.2g} (IS: none found)"
+        if rare.found_failure_point:
+            return f"{rare.p_fail:.2g} [{rare.ci_low:.2g}, {rare.ci_high:.2g}] (IS)"
+        pooled = " (pooled)" if rare.pooled_trials else " (IS: none found)"
+        if rare.p_fail == 0.0:
+            return f"<= {rare.ci_high:.2g}{pooled}"
+        return f"{rare.p_fail:.2g} [{rare.ci_low:.2g}, {rare.ci_high:.2g}]{pooled}"
     estimate = check.estimate
     if estimate is None:
         return "-"
+    plain_decided = " (plain; IS disagrees)" if getattr(check, "rare", None) is not None else ""
     if estimate.failures == 0:
-        return f"<= {estimate.ci_high:.2g} (none seen)"
-    return f"{estimate.p_fail:.2g} [{estimate.ci_low:.2g}, {estimate.ci_high:.2g}]"
+        return f"<= {estimate.ci_high:.2g} (none seen){plain_decided}"
+    return f"{estimate.p_fail:.2g} [{estimate.ci_low:.2g}, {estimate.ci_high:.2g}]{plain_decided}"
 
 
 def render_check(result: CheckResult, console: Console) -> None:
@@ -112,7 +123,8 @@ def render_check(result: CheckResult, console: Console) -> None:
                                            f"{rare.first_order:.2g}, for reference)"
                                            if rare.found_failure_point else "")
                 + f"; plain Monte Carlo: {check.estimate.failures:,} of {check.estimate.trials:,}"
-                + (f"; {failure_point_text(rare)}" if failure_point_text(rare) else ""))
+                + (f"; {failure_point_text(rare)}" if failure_point_text(rare) else "")
+                + ("" if rare.decides else f"; {rare.note}"))
     console.print()
 
     for name, check in result.checks.items():
@@ -151,7 +163,8 @@ WANTED_RELATIVE_ERROR = 0.1  # relative standard error of P(fail) the report ask
 
 
 def _convergence_note(check) -> str:
-    """How precisely the plain Monte Carlo run knows P(fail), when it is too short for 10 %."""
+    """How precisely the plain Monte Carlo run knows P(fail), when it is too short for 10 %
+    (pointing to --rare unless it ran)."""
     estimate = check.estimate
     if estimate is None or estimate.failures == 0 or estimate.failures == estimate.trials:
         return ""
@@ -162,7 +175,8 @@ def _convergence_note(check) -> str:
     needed = trials_for_relative_error(p, WANTED_RELATIVE_ERROR)
     return (f"{check.name}: {estimate.failures:,} failures in {estimate.trials:,} trials know "
             f"P(fail) to +-{relative:.0%} (standard error); about {needed:,} trials would give "
-            f"+-{WANTED_RELATIVE_ERROR:.0%}, or use --rare")
+            f"+-{WANTED_RELATIVE_ERROR:.0%}" + ("" if getattr(check, "rare", None) is not None
+                                                else ", or use --rare"))
 
 
 def _fail_reason(result: CheckResult) -> str:
@@ -170,7 +184,12 @@ def _fail_reason(result: CheckResult) -> str:
     for name, check in result.checks.items():
         if check.ran and not check.passed:
             estimate = check.estimate
-            if estimate.failures:
+            rare = _deciding_rare(check)
+            if rare is not None:
+                reasons.append(f"{name}: P(fail) up to {rare.ci_high:.2g} "
+                               f"({'IS' if rare.found_failure_point else 'pooled plain'}) > "
+                               f"{result.target_p_fail:g}")
+            elif estimate.failures:
                 reasons.append(f"{name}: {estimate.failures:,} of {estimate.trials:,} strings have a "
                                "device above its limit, P(fail) up to "
                                f"{estimate.ci_high:.2g} > {result.target_p_fail:g}"
@@ -180,7 +199,8 @@ def _fail_reason(result: CheckResult) -> str:
         reasons.append(f"the requested transient check could not run ({transient.reason})")
     reasons += list(result.grading.rating_problems)
     short = [name for name, check in result.checks.items()
-             if check.ran and check.estimate.failures == 0 and not check.passed]
+             if check.ran and check.estimate.failures == 0 and not check.passed
+             and _deciding_rare(check) is None]
     if short:
         reasons.append(f"{result.trials:,} trials cannot show P(fail) <= {result.target_p_fail:g} "
                        f"even with no failure seen; run at least {result.trials_needed:,} "
@@ -256,17 +276,32 @@ def _render_network(result: CheckResult, console: Console) -> None:
 
 
 def render_check_summary(result: CheckResult, console: Console) -> None:
-    """One line for ``--quiet``: the verdict and each check's P(fail) bound."""
+    """One line for ``--quiet``: the verdict and each check's P(fail) bound, the one that decided
+    it (marked (IS) when the importance sampler's, (pooled) for its pooled plain interval)."""
     parts = []
     for name, check in result.checks.items():
         if check.ran:
             estimate = check.estimate
+            rare = _deciding_rare(check)
             status = "pass" if check.passed else "FAIL"
-            if not check.passed and estimate.failures == 0:
+            if rare is not None and rare.found_failure_point:
+                parts.append(f"{name} {status} (P(fail) upper bound {rare.ci_high:.2g} (IS) vs "
+                             f"target {result.target_p_fail:g}; plain {estimate.failures:,}/"
+                             f"{estimate.trials:,} failed)")
+                continue
+            failures, trials, bound, mark = estimate.failures, result.trials, estimate.ci_high, ""
+            if rare is not None:
+                pooled = rare.pooled_trials > 0
+                failures = rare.failures + (estimate.failures if pooled else 0)
+                trials, bound = (rare.pooled_trials if pooled else rare.samples), rare.ci_high
+                mark = " (pooled)" if pooled else " (IS: none found)"
+            elif getattr(check, "rare", None) is not None:
+                mark = " (plain; IS disagrees)"
+            if not check.passed and failures == 0:
                 status = "FAIL, too few trials to show the target"
             parts.append(f"{name} {status} "
-                         f"({estimate.failures:,}/{result.trials:,} failed, P(fail) upper bound "
-                         f"{estimate.ci_high:.2g} vs target {result.target_p_fail:g})")
+                         f"({failures:,}/{trials:,} failed{mark}, P(fail) upper bound "
+                         f"{bound:.2g} vs target {result.target_p_fail:g})")
         else:
             parts.append(f"{name} not run")
     if result.impossible is not None:

@@ -149,8 +149,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         ``transient_worst`` charge-balance trials and a random sample of ``transient_sample``
         trials (default: the trials the target needs, so that the check can pass).
     rare, rare_samples
-        Estimate each series check's P(fail) by importance sampling (``studies.rare_events``)
-        with ``rare_samples`` strings; the check then passes on that estimate's upper bound.
+        Estimate the P(fail) of the static, dynamic, parallel and thermal checks by importance
+        sampling (``studies.rare_events``) with ``rare_samples`` strings; each check then passes
+        on that estimate's upper bound (the plain exact interval decides when the two disagree).
     drivers
         Rank the inputs by their influence on each series check's worst stress, and rerun the
         check with each of the top inputs tightened (``studies.drivers``).
@@ -484,7 +485,8 @@ def _check_rare_inputs(design: Design) -> None:
 def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, target: float,
                samples: int):
     """The check with its P(fail) estimated by importance sampling, passing on that estimate's
-    upper bound."""
+    upper bound, unless that bound lies below the plain run's exact lower bound (then the plain
+    interval decides, and the estimate says so)."""
     name = check.name
     if name in ("static", "dynamic"):
         parameters = ("i_r",) if name == "static" else ("q_rr",)
@@ -498,8 +500,18 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
 
         def evaluate(drawn: DrawnStrings) -> np.ndarray:
             return forward_ratios(context.design, context.forward, drawn, name)
+    plain = check.estimate
     estimate = rare_event_estimate(context.design, name, parameters, evaluate, seed=seed,
-                                   confidence=confidence, samples=samples)
+                                   confidence=confidence, samples=samples, plain=plain)
+    if estimate.found_failure_point and plain is not None and estimate.ci_high < plain.ci_low:
+        # Two intervals of one probability that do not meet: one of the estimators is wrong, and
+        # the importance sampler is the one that can be (a failure region it never sampled, such
+        # as a failure point it did not find). The exact plain interval decides.
+        note = (f"the importance-sampling upper bound {estimate.ci_high:.2g} lies below the plain "
+                f"Monte Carlo lower bound {plain.ci_low:.2g} ({plain.failures:,} of "
+                f"{plain.trials:,}): the estimators disagree, so the plain interval decides")
+        estimate = replace(estimate, decides=False, note=note)
+        return replace(check, rare=estimate, passed=plain.ci_high <= target)
     return replace(check, rare=estimate, passed=estimate.ci_high <= target)
 
 

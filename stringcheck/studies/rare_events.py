@@ -11,11 +11,28 @@ g(u) = worst stress ratio > 1.
    SLSQP (scipy.optimize.minimize) with batched finite-difference gradients. beta = |u*|, and the
    first-order estimate Phi(-beta) (R. Rackwitz, B. Fiessler, "Structural reliability under combined
    random load sequences", Computers & Structures 9, 1978) is reported for reference only.
-2. Samples from the defensive mixture q(u) = a phi(u) + (1 - a) phi(u - u*) with a = 1/2
-   (T. Hesterberg, "Weighted average importance sampling and defensive mixture distributions",
-   Technometrics 37, 1995), weighted by phi(u) / q(u) = 1 / (a + (1 - a) exp(u.u* - beta^2 / 2)).
-   The estimate is the mean of w 1[g(u) > 1], its standard error the sample standard deviation over
-   sqrt(N), and the interval the normal one at the design's confidence (clipped at 0).
+   When the gradient at the origin is useless (g = max over exchangeable devices has a kink there
+   and its finite-difference gradient points along the direction that keeps them balanced), the
+   rays along the pilot samples with the highest g, and along the gradient of g at those samples,
+   still find the failure region: they break the tie between the devices.
+2. Exchangeable positions (same part, same temperature rise, no measured device placed by serial)
+   and identical parallel branches each have their own, equally likely failure point: the images
+   u_1 = u*, ..., u_M of u* under the permutations of the latent coordinates that swap the
+   dominant position (largest share of beta^2) with each exchangeable one (with its branch).
+   Shifting to u* alone would almost never sample the others and estimate ~1/M of P(fail) with a
+   small standard error. The samples come from the defensive mixture
+   q(u) = a phi(u) + (1 - a) / M sum_i phi(u - u_i), a = 1/2 (T. Hesterberg, "Weighted average
+   importance sampling and defensive mixture distributions", Technometrics 37, 1995; a mixture over
+   several design points as in S. K. Au and J. L. Beck, "A new adaptive importance sampling scheme
+   for reliability calculations", Structural Safety 21, 1999, from memory), weighted by
+   phi(u) / q(u) = 1 / (a + (1 - a) / M sum_i exp(u.u_i - beta^2 / 2)) (|u_i| = beta for every i).
+   The estimate is unbiased for any set of shifts (the defensive part keeps the weight <= 1 / a);
+   the images only make it efficient. The estimate is the mean of w 1[g(u) > 1], its standard
+   error the sample standard deviation over sqrt(N), and the interval the normal one at the
+   design's confidence (clipped at 0).
+3. No failure point found: the samples are plain Monte Carlo. With the check's own plain run
+   given (``plain``), both are pooled into one exact (Clopper-Pearson) interval; the pilot samples
+   are left out, since finding no failure point depended on them.
 """
 
 from __future__ import annotations
@@ -25,11 +42,11 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize, special, stats
 
 from ..design import SPREAD_PARAMETERS, Design
 from ..sampling import DrawnStrings, Latent, latent_parameters, strings_from_latent
-from ..stats import failure_estimate
+from ..stats import FailureEstimate, failure_estimate
 
 DEFAULT_SAMPLES = 20_000
 _MIXTURE_WEIGHT = 0.5
@@ -38,11 +55,19 @@ _STEP = 1e-4  # finite-difference step in latent units
 _RAY_LIMIT = 12.0  # |u| beyond which failure is not looked for (Phi(-12) ~ 2e-33)
 _BATCH = 4096
 _PILOT = 10_000  # plain samples whose nearest failure (if any) seeds the search
+_SEEDS = 2  # pilot samples with the highest g whose direction and gradient also seed rays
 
 
 @dataclass(frozen=True)
 class RareEstimate:
-    """P(fail) of one check by importance sampling."""
+    """P(fail) of one check by importance sampling.
+
+    ``failure_points`` is the number of shifts of the mixture (the most likely failure point and
+    its images under the exchangeable positions; 0 when none was found). ``pooled_trials`` is the
+    number of plain trials behind the interval when no failure point was found (the sampler's plain
+    samples plus the check's own run; 0 otherwise). ``decides`` is False when the check's verdict
+    comes from its plain Monte Carlo run instead (set by the check), and ``note`` says why.
+    """
 
     check: str
     estimator: str
@@ -57,6 +82,11 @@ class RareEstimate:
     failures: int
     found_failure_point: bool
     importance: tuple["FailurePointShare", ...] = ()
+    failure_points: int = 0
+    pooled_trials: int = 0
+    decides: bool = True
+    note: str = ""
+
 
 
 @dataclass(frozen=True)
@@ -115,6 +145,30 @@ class _Space:
         out.sort(key=lambda item: item.share, reverse=True)
         return tuple(out)
 
+    def dominant_position(self, point: np.ndarray) -> tuple[int, int]:
+        """(branch, index), 0-based, of the position with the largest share of |point|^2 over the
+        per-position blocks (device parameters, resistor, capacitor)."""
+        squares = np.zeros(self.shape)
+        start = 0
+        for kind, _, size in self.blocks:
+            if kind != "lot":
+                squares += point[start:start + size].reshape(self.shape) ** 2
+            start += size
+        flat = int(np.argmax(squares))
+        return flat // self.shape[1], flat % self.shape[1]
+
+    def permuted(self, point: np.ndarray, rows: np.ndarray, columns: np.ndarray) -> np.ndarray:
+        """``point`` with every per-position block's grid taken as grid[rows][:, columns] (lots
+        stay: they are per part, and the permutations used keep every position's part)."""
+        out = point.copy()
+        start = 0
+        for kind, _, size in self.blocks:
+            if kind != "lot":
+                grid = point[start:start + size].reshape(self.shape)
+                out[start:start + size] = grid[np.ix_(rows, columns)].ravel()
+            start += size
+        return out
+
     def latent(self, u: np.ndarray) -> Latent:
         k = u.shape[0]
         device, lot, resistor, capacitor = {}, {}, None, None
@@ -135,10 +189,13 @@ class _Space:
 
 def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
                         evaluate: Callable[[DrawnStrings], np.ndarray], *, seed: int,
-                        confidence: float, samples: int = DEFAULT_SAMPLES) -> RareEstimate:
+                        confidence: float, samples: int = DEFAULT_SAMPLES,
+                        plain: FailureEstimate | None = None) -> RareEstimate:
     """Importance-sampling estimate of P(worst stress ratio > 1) for one check.
 
     ``evaluate`` maps built strings to each string's worst stress ratio (unsolved strings: inf).
+    ``plain`` is the check's own plain Monte Carlo estimate: pooled with the sampler's samples into
+    one exact interval when no failure point is found (see the module notes).
     """
     space = _Space(design, parameters)
 
@@ -152,44 +209,119 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
 
     rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(_STREAM,)))
     pilot = rng.standard_normal((_PILOT, space.dimension))
-    pilot_failed = ~(g(pilot) <= 1.0)
-    nearest = None
-    if np.any(pilot_failed):
-        candidates = pilot[pilot_failed]
-        nearest = candidates[np.argmin(np.einsum("ij,ij->i", candidates, candidates))]
-    point = _failure_point(g, space.dimension, nearest)
+    point = _failure_point(g, space.dimension, pilot, g(pilot))
     found = point is not None
-    shift = point if found else np.zeros(space.dimension)
-    beta = float(np.linalg.norm(shift)) if found else math.inf
-    u = rng.standard_normal((samples, space.dimension))
-    shifted = rng.random(samples) >= _MIXTURE_WEIGHT
-    u[shifted] += shift
+    shifts = failure_point_images(design, space, point) if found \
+        else np.zeros((0, space.dimension))
+    beta = float(np.linalg.norm(point)) if found else math.inf
+    u = mixture_sample(rng, samples, shifts, _MIXTURE_WEIGHT)
     failed = ~(g(u) <= 1.0)
-    with np.errstate(over="ignore"):
-        weight = 1.0 / (_MIXTURE_WEIGHT + (1.0 - _MIXTURE_WEIGHT)
-                        * np.exp(u @ shift - 0.5 * beta ** 2 if found else 0.0))
+    weight = mixture_weight(u, shifts, _MIXTURE_WEIGHT)
     contribution = np.where(failed, weight, 0.0)
     p_fail = float(contribution.mean())
     std_error = float(contribution.std(ddof=1) / math.sqrt(samples))
     z = float(stats.norm.ppf(0.5 + confidence / 2))
     if not found:
-        # Not shown impossible, only not found: the samples are plain Monte Carlo, so the exact
-        # (Clopper-Pearson) interval of their failure count is the honest statement.
-        plain = failure_estimate(int(np.count_nonzero(failed)), samples, confidence=confidence)
+        # Not shown impossible, only not found: the samples are plain Monte Carlo, as is the
+        # check's own run (other streams), so one exact interval of the pooled count is the honest
+        # statement. The pilot is left out: finding nothing was decided on it.
+        failures = int(np.count_nonzero(failed))
+        extra_failures, extra_trials = (0, 0) if plain is None else (plain.failures, plain.trials)
+        pooled = failure_estimate(failures + extra_failures, samples + extra_trials,
+                                  confidence=confidence)
+        text = (f"no failure point found within |u| <= {_RAY_LIMIT:g} (steepest ascent, "
+                f"{_PILOT:,} plain pilot samples and rays from the highest of them): ")
+        text += (f"the sampler's {samples:,} plain samples pooled with the check's "
+                 f"{extra_trials:,} Monte Carlo trials, exact interval" if extra_trials
+                 else "plain sampling with the exact interval")
+        pooled_error = math.sqrt(pooled.p_fail * (1 - pooled.p_fail) / pooled.trials)
         return RareEstimate(
-            check=check, estimator="no failure point found within |u| <= 12 (steepest ascent and "
-            "10,000 plain pilot samples): plain sampling with the exact interval", p_fail=plain.p_fail,
-            std_error=std_error, ci_low=plain.ci_low, ci_high=plain.ci_high,
-            confidence=confidence, beta=math.inf, first_order=0.0, samples=samples,
-            failures=plain.failures, found_failure_point=False)
+            check=check, estimator=text, p_fail=pooled.p_fail, std_error=pooled_error,
+            ci_low=pooled.ci_low, ci_high=pooled.ci_high, confidence=confidence, beta=math.inf,
+            first_order=0.0, samples=samples, failures=failures, found_failure_point=False,
+            pooled_trials=pooled.trials if extra_trials else 0)
+    count = shifts.shape[0]
+    text = "importance sampling, defensive mixture shifted to the most likely failure point"
+    if count > 1:
+        text += f" and its {count - 1} image(s) under the exchangeable positions"
     return RareEstimate(
-        check=check,
-        estimator="importance sampling, defensive mixture shifted to the most likely failure point",
-        p_fail=p_fail, std_error=std_error, ci_low=max(0.0, p_fail - z * std_error),
-        ci_high=p_fail + z * std_error, confidence=confidence, beta=beta,
-        first_order=float(stats.norm.sf(beta)) if found else 0.0, samples=samples,
-        failures=int(np.count_nonzero(failed)), found_failure_point=found,
-        importance=space.importance(shift))
+        check=check, estimator=text, p_fail=p_fail, std_error=std_error,
+        ci_low=max(0.0, p_fail - z * std_error), ci_high=p_fail + z * std_error,
+        confidence=confidence, beta=beta, first_order=float(stats.norm.sf(beta)),
+        samples=samples, failures=int(np.count_nonzero(failed)), found_failure_point=True,
+        importance=space.importance(point), failure_points=count)
+
+
+def _position_keys(design: Design) -> np.ndarray:
+    """What makes two positions interchangeable: part, temperature rise and placed serial."""
+    layout = design.string
+    keys = np.empty((layout.parallel, layout.series), dtype=object)
+    parts, rises, serials = layout.part_grid(), layout.temperature_rise_grid(), \
+        layout.serial_grid()
+    for position in np.ndindex(keys.shape):
+        keys[position] = (parts[position], float(rises[position]), serials[position])
+    return keys
+
+
+def failure_point_images(design: Design, space: _Space, point: np.ndarray) -> np.ndarray:
+    """The failure point and its distinct images under the design's exchangeable positions, (M, D).
+
+    The dominant position (b, i) is swapped with every other position (b', j): branches b and b'
+    trade places, then positions i and j trade places in every branch. A swap is used only when it
+    maps every position onto one of the same part, temperature rise and serial (None: drawn), so
+    that the check's stress is unchanged by it: devices in series share one current and parallel
+    branches one voltage, whatever their order. A design with a mix is refused before (a position
+    holds either part from string to string). Any set of shifts keeps the estimate unbiased; the
+    images make it efficient.
+    """
+    keys = _position_keys(design)
+    branches, series = keys.shape
+    branch, index = space.dominant_position(point)
+    images = [point]
+    tolerance = 1e-9 * max(1.0, float(np.linalg.norm(point)))
+    for other_branch in range(branches):
+        for other_index in range(series):
+            rows, columns = np.arange(branches), np.arange(series)
+            rows[[branch, other_branch]] = rows[[other_branch, branch]]
+            columns[[index, other_index]] = columns[[other_index, index]]
+            if not np.all(keys[np.ix_(rows, columns)] == keys):
+                continue
+            image = space.permuted(point, rows, columns)
+            if np.min(np.linalg.norm(np.asarray(images) - image, axis=1)) > tolerance:
+                images.append(image)
+    return np.array(images)
+
+
+def mixture_sample(rng: np.random.Generator, count: int, shifts: np.ndarray,
+                   defensive: float) -> np.ndarray:
+    """``count`` draws of q = a N(0, I) + (1 - a) / M sum_i N(u_i, I), a = ``defensive``; with no
+    shift (M = 0), of N(0, I)."""
+    dimension = shifts.shape[1]
+    u = rng.standard_normal((count, dimension))
+    pick = rng.random(count)
+    if shifts.shape[0]:
+        shifted = pick >= defensive
+        which = np.minimum(((pick[shifted] - defensive) / (1.0 - defensive)
+                            * shifts.shape[0]).astype(np.int64), shifts.shape[0] - 1)
+        u[shifted] += shifts[which]
+    return u
+
+
+def mixture_weight(u: np.ndarray, shifts: np.ndarray, defensive: float) -> np.ndarray:
+    """phi(u) / q(u) of :func:`mixture_sample`'s mixture; 1 with no shift.
+
+    phi(u - u_i) / phi(u) = exp(u.u_i - |u_i|^2 / 2), summed in the log domain (logsumexp), so
+    that samples far out along a shift neither overflow nor lose the defensive floor 1 / a.
+    """
+    if shifts.shape[0] == 0:
+        return np.ones(u.shape[0])
+    half_squares = 0.5 * np.einsum("ij,ij->i", shifts, shifts)
+    log_shifted = np.empty(u.shape[0])
+    for start in range(0, u.shape[0], _BATCH):  # (rows x shifts) at a time: flat memory
+        exponents = u[start:start + _BATCH] @ shifts.T - half_squares[None, :]
+        log_shifted[start:start + _BATCH] = special.logsumexp(exponents, axis=1)
+    log_shifted -= math.log(shifts.shape[0])
+    return np.exp(-np.logaddexp(math.log(defensive), math.log(1.0 - defensive) + log_shifted))
 
 
 def _gradient(g, u: np.ndarray) -> tuple[float, np.ndarray]:
@@ -219,21 +351,33 @@ def _on_ray(g, direction: np.ndarray) -> np.ndarray | None:
     return high * direction
 
 
-def _failure_point(g, dimension: int, nearest: np.ndarray | None) -> np.ndarray | None:
+def _failure_point(g, dimension: int, pilot: np.ndarray,
+                   pilot_values: np.ndarray) -> np.ndarray | None:
     """u* = argmin |u| subject to g(u) >= 1, or None when no failure is found.
 
-    Starts from the first failure along the steepest ascent of g from the origin, or along the
-    direction of the nearest failing pilot sample, whichever is closer, then SLSQP."""
+    Rays from the origin: along the steepest ascent of g at the origin, along the nearest failing
+    pilot sample, and along each of the ``_SEEDS`` pilot samples with the highest g and the
+    gradient of g there (failing or not: at the symmetric origin the gradient of a max() over
+    exchangeable devices keeps them balanced, a pilot sample does not). The closest first failure
+    on any ray starts SLSQP."""
     origin = np.zeros(dimension)
     value, gradient = _gradient(g, origin)
     if value > 1.0:
         return origin
+    directions = [gradient]
+    failing = ~(pilot_values <= 1.0)
+    if np.any(failing):
+        candidates = pilot[failing]
+        directions.append(candidates[np.argmin(np.einsum("ij,ij->i", candidates, candidates))])
+    finite = np.where(np.isfinite(pilot_values), pilot_values, -np.inf)
+    for row in np.argsort(-finite, kind="stable")[:_SEEDS]:
+        directions.append(pilot[row])
+        directions.append(_gradient(g, pilot[row])[1])
     starts = []
-    norm = np.linalg.norm(gradient)
-    if norm > 0:
-        starts.append(_on_ray(g, gradient / norm))
-    if nearest is not None:
-        starts.append(_on_ray(g, nearest / np.linalg.norm(nearest)))
+    for direction in directions:
+        norm = np.linalg.norm(direction)
+        if norm > 0 and np.isfinite(norm):
+            starts.append(_on_ray(g, direction / norm))
     starts = [point for point in starts if point is not None]
     if not starts:
         return None

@@ -2,11 +2,18 @@
 
 from __future__ import annotations
 
+import math
+
+import numpy as np
 import pytest
+from hypothesis import given, strategies as st
 from scipy import stats
 
 from stringcheck.design import parse_design_text
+from stringcheck.studies import rare_events
 from stringcheck.studies.check import run_check
+from stringcheck.studies.rare_events import _Space, failure_point_images, mixture_sample, \
+    mixture_weight
 
 # The two-stage design of tests/conftest.py (fixture half_plane_design): P(fail) = Phi(-beta)
 # exactly, a half-plane in latent space.
@@ -36,12 +43,31 @@ def test_plain_monte_carlo_agrees_at_one_in_a_hundred(half_plane_design):
 
 def test_screened_limits_leave_no_failure_and_the_bound_stays_honest(half_plane_design):
     # Screening truncates stage 2 at 10 uA (3 sigma), so with beta = 5.2 nothing can fail; the
-    # estimator finds no failure point and falls back to the exact interval of its plain samples.
+    # estimator finds no failure point and falls back to the exact interval of its plain samples,
+    # pooled with the check's own 4,096 plain trials.
     design = parse_design_text(half_plane_design(5.2, screened=True))
-    rare = run_check(design, trials=4096, rare=True, rare_samples=5000).checks["static"].rare
-    assert not rare.found_failure_point
-    assert rare.p_fail == 0.0
-    assert rare.ci_high == pytest.approx(1 - 0.025 ** (1 / 5000), rel=1e-6)  # exact CP, 0 of n
+    check = run_check(design, trials=4096, rare=True, rare_samples=5000).checks["static"]
+    rare = check.rare
+    assert not rare.found_failure_point and rare.failure_points == 0
+    assert rare.p_fail == 0.0 and check.estimate.failures == 0
+    assert rare.pooled_trials == 4096 + 5000
+    # Exact (Clopper-Pearson) upper bound for 0 of n: 1 - (alpha / 2)^(1 / n).
+    assert rare.ci_high == pytest.approx(1 - 0.025 ** (1 / (4096 + 5000)), rel=1e-6)
+    assert "pooled" in rare.estimator
+
+
+def test_no_failure_point_pools_a_long_plain_run_instead_of_failing_it(half_plane_design):
+    # Screened at 3 sigma with beta = 5.2 no string can fail (as above). 100,000 plain trials with
+    # no failure bound P(fail) by 1 - 0.025^(1 / n) = 3.7e-5 < 1e-4 (exact interval); the sampler's
+    # 20,000 samples alone would give 1.8e-4 and fail the check for "too few trials".
+    text = half_plane_design(5.2, screened=True, trials=100_000) \
+        + "[sizing]\ntarget_p_fail = 1e-4\n"
+    result = run_check(parse_design_text(text), rare=True, rare_samples=20_000)
+    check = result.checks["static"]
+    assert not check.rare.found_failure_point
+    assert check.rare.pooled_trials == 120_000
+    assert check.rare.ci_high == pytest.approx(1 - 0.025 ** (1 / 120_000), rel=1e-6)
+    assert check.passed and result.verdict == "pass"
 
 
 def test_the_verdict_follows_the_importance_sampling_bound(half_plane_design):
@@ -66,6 +92,132 @@ def test_importance_sampling_of_the_parallel_check_against_two_half_planes(paral
     # Plain Monte Carlo agrees with the closed form too (its exact interval).
     assert check.estimate.ci_low <= exact <= check.estimate.ci_high
     assert result.checks["thermal"].rare is None  # not run: no thermal data
+
+
+def _parallel_group(text: str, branches: int, beta: float) -> str:
+    """PARALLEL_PAIR with ``branches`` branches and I_F(AV) put at ``beta`` (see below)."""
+    # m branches, one V_T0 each, one r_T: i_k = I / m + (mean V_T0 - V_T0,k) / r_T (DESIGN.md 4,
+    # forward sharing by hand), so branch k fails when sigma w_k > d = r_T (I_F(AV) - I / m), with
+    # w_k = mean z - z_k, Var w_k = (m - 1) / m: a half-plane at beta = d / (sigma sqrt((m-1)/m)).
+    i_fav = 15.0 / branches + beta * math.sqrt((branches - 1) / branches)
+    return text.replace("parallel = 2", f"parallel = {branches}").replace(
+        'i_fav = "9.8 A"', f'i_fav = "{i_fav!r} A"')
+
+
+def test_both_branch_failure_points_are_sampled_at_beta_four_and_a_half(parallel_pair_design):
+    # The gradient at the symmetric origin keeps the two branches balanced and 10,000 pilot samples
+    # see no failure at 7e-6: the rays from the highest pilot samples find the failure point, and
+    # the mixture samples it and its image (the branches swapped). Closed form 2 Phi(-beta).
+    beta = 4.5
+    exact = 2 * stats.norm.sf(beta)  # 6.8e-6
+    check = run_check(parse_design_text(_parallel_group(parallel_pair_design, 2, beta)),
+                      trials=4096, rare=True).checks["parallel"]
+    rare = check.rare
+    assert rare.found_failure_point and rare.failure_points == 2
+    assert rare.beta == pytest.approx(beta, rel=1e-3)
+    assert abs(rare.p_fail - exact) <= 3.0 * rare.std_error
+    assert rare.std_error < 0.1 * exact
+
+
+def test_three_branches_against_three_half_planes(parallel_pair_design):
+    # Three branches (see _parallel_group): the events w_k > beta sqrt((m-1)/m) sigma... in units of
+    # their own standard deviation, X_k > beta with Corr(X_j, X_k) = -1/2 (Cov(w_j, w_k) = -1/3).
+    # No three at once (the w_k sum to 0), so by inclusion-exclusion
+    # P = 3 Phi(-beta) - 3 P(X_1 > beta, X_2 > beta), and the pair term is at most
+    # P(X_1 + X_2 > 2 beta) = Phi(-2 beta) (Var(X_1 + X_2) = 2 - 1 = 1): 3e-23 at beta = 5.
+    beta = 5.0
+    exact = 3 * stats.norm.sf(beta)  # 8.6e-7
+    pair_term = 3 * stats.norm.sf(2 * beta)
+    check = run_check(parse_design_text(_parallel_group(parallel_pair_design, 3, beta)),
+                      trials=4096, rare=True).checks["parallel"]
+    rare = check.rare
+    assert rare.found_failure_point and rare.failure_points == 3
+    assert rare.beta == pytest.approx(beta, rel=1e-3)
+    assert abs(rare.p_fail - exact) <= 3.0 * rare.std_error + pair_term
+    assert rare.std_error < 0.1 * exact
+
+
+def test_a_failing_parallel_pair_no_longer_passes(parallel_pair_design):
+    # beta = 4: P(fail) = 2 Phi(-4) = 6.3e-5 above a 5e-5 target. Shifted to one branch's failure
+    # point only, the estimate was Phi(-4) = 3.2e-5 with a small standard error, and the check
+    # passed.
+    text = _parallel_group(parallel_pair_design, 2, 4.0) + "[sizing]\ntarget_p_fail = 5e-5\n"
+    result = run_check(parse_design_text(text), trials=4096, rare=True)
+    check = result.checks["parallel"]
+    assert abs(check.rare.p_fail - 2 * stats.norm.sf(4.0)) <= 3.0 * check.rare.std_error
+    assert not check.passed and result.verdict == "fail"
+
+
+def test_estimators_that_disagree_leave_the_verdict_to_the_exact_interval(parallel_pair_design,
+                                                                           monkeypatch):
+    # The old sampler (one shift, no images) on the beta = 4 pair: its upper bound ~3.3e-5 lies
+    # below the plain run's exact lower bound (4 of 20,000 with seed 5: 5.4e-5), which it must
+    # not overrule: the plain interval decides (upper 5.1e-4 > 5e-5, so the check fails).
+    monkeypatch.setattr(rare_events, "failure_point_images",
+                        lambda design, space, point: point[None, :])
+    text = _parallel_group(parallel_pair_design, 2, 4.0) + "[sizing]\ntarget_p_fail = 5e-5\n"
+    check = run_check(parse_design_text(text), trials=20000, rare=True).checks["parallel"]
+    assert check.rare.ci_high < check.estimate.ci_low  # the situation the net is for
+    assert not check.rare.decides and "plain interval decides" in check.rare.note
+    assert not check.passed
+
+
+_SERIES_FOUR = """
+[duty]
+reverse_voltage = "2 kV"
+[string]
+series = 4
+parallel = {parallel}
+part = "A"
+{override}
+[parts.A]
+v_rrm = "1 kV"
+i_r = {{ typ = "1 uA", max = "10 uA" }}
+[grading]
+resistor = "100 MOhm"
+"""
+
+
+@pytest.mark.parametrize("parallel,override,images", [
+    (1, "", 4),
+    (2, "", 8),
+    # A hotter position is not interchangeable with the others.
+    (1, "[[string.position]]\nindex = 3\ntemperature_rise = \"10 K\"", 3),
+    # Nor is one of another part (and with a different part in one branch only, the branches are
+    # not interchangeable either).
+    (2, "[[string.position]]\nindex = 4\nbranch = 2\npart = \"B\"\n[parts.B]\nv_rrm = \"1 kV\""
+        "\ni_r = { typ = \"1 uA\", max = \"10 uA\" }", 3),
+])
+def test_images_swap_the_dominant_position_with_each_interchangeable_one(parallel, override,
+                                                                         images):
+    design = parse_design_text(_SERIES_FOUR.format(parallel=parallel, override=override))
+    space = _Space(design, ("i_r",))
+    point = np.zeros(space.dimension)
+    size = parallel * 4
+    point[:size] = 0.5  # every device's leakage a little high ...
+    point[1] = -3.0  # ... and branch 1 #2's low: it dominates
+    point[size:2 * size] = np.linspace(-0.2, 0.2, size)  # resistors, swapped along
+    shifts = failure_point_images(design, space, point)
+    assert shifts.shape == (images, space.dimension)
+    # Permutations: the same norm, and each image's dominant device somewhere else.
+    assert np.allclose(np.linalg.norm(shifts, axis=1), np.linalg.norm(point))
+    assert len({int(np.argmin(shift[:size])) for shift in shifts}) == images
+
+
+@given(shifts=st.lists(st.lists(st.floats(-3.0, 3.0), min_size=3, max_size=3), min_size=1,
+                       max_size=4),
+       seed=st.integers(0, 2 ** 16))
+def test_the_mixture_weight_is_the_likelihood_ratio(shifts, seed):
+    # E_q[phi / q] = 1 and E_q[(phi / q) 1(u_1 > 1)] = Phi(-1) for any set of shifts (importance
+    # sampling identity; Hesterberg 1995): a wrong normalisation of the mixture fails this.
+    shifts = np.array(shifts)
+    rng = np.random.default_rng(seed)
+    u = mixture_sample(rng, 40_000, shifts, 0.5)
+    weight = mixture_weight(u, shifts, 0.5)
+    assert np.all(weight <= 2.0 + 1e-12)  # the defensive half bounds the weight by 1 / a
+    for values, expected in ((weight, 1.0), (weight * (u[:, 0] > 1.0), stats.norm.sf(1.0))):
+        error = values.std() / math.sqrt(values.size)
+        assert abs(values.mean() - expected) <= 5.0 * error + 1e-12
 
 
 # One device, dc, 10 A, fixed r_T = 10 mOhm, no temperature coefficients, R_th 1 + 1 K/W to a 25 degC
@@ -114,3 +266,44 @@ def test_importance_sampling_of_the_thermal_check_against_a_half_plane():
     assert check.rare.beta == pytest.approx(beta, rel=1e-3)
     assert abs(check.rare.p_fail - exact) <= 3.0 * check.rare.std_error
     assert check.rare.std_error < 0.1 * exact
+
+
+
+# Two branches of four identical stages on 2 kV, unscreened lognormal leakage (max 10x typ), 1 %
+# resistors: P(fail) of the static check ~ 2.6e-3. Our own values.
+_GRID = """
+[duty]
+reverse_voltage = "2 kV"
+[string]
+series = 4
+parallel = 2
+part = "A"
+derating = 1.0
+[parts.A]
+v_rrm = "900 V"
+i_r = { typ = "1 uA", max = "10 uA" }
+leakage_voltage_exponent = 0
+[grading]
+resistor = "100 MOhm"
+resistor_tolerance = "1 %"
+[monte_carlo]
+screened = false
+seed = 3
+"""
+
+
+def test_a_series_parallel_grid_of_identical_positions_against_a_long_plain_run():
+    # Each of the 8 positions has its own failure point (that device's leakage low, the others of
+    # its branch high). No closed form: the reference is 400,000 plain trials (about 1,000
+    # failures); the two estimates must agree within 3 combined standard errors (independent
+    # streams). At this beta (~3.6) the defensive half still reaches the other seven failure
+    # points, so one shift alone is not far off here, but its standard error is ~18 % (~3 % now).
+    check = run_check(parse_design_text(_GRID), trials=400_000, rare=True,
+                      only=("static",)).checks["static"]
+    plain, rare = check.estimate, check.rare
+    assert plain.failures > 500
+    assert rare.failure_points == 8
+    plain_error = math.sqrt(plain.p_fail * (1 - plain.p_fail) / plain.trials)
+    assert abs(rare.p_fail - plain.p_fail) <= 3.0 * math.hypot(rare.std_error, plain_error)
+    assert rare.std_error < 0.06 * rare.p_fail
+    assert rare.decides
