@@ -17,7 +17,7 @@ import numpy as np
 
 from ..design import Design
 from ..sampling import spread_quantile
-from ..physics.charge_control import (
+from ..physics.charge_control_fit import (
     fit_charge_control,
     peak_current_from_recovery_time,
     rescale_recovery_charge,

@@ -25,7 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..design import Design
-from ..physics.charge_control import lifetime_for_charge
+from ..physics.charge_control_fit import lifetime_for_charge
 from ..sampling import BLOCK_TRIALS, draw_strings
 from ..solvers.transient import simulate_turn_off
 from ..errors import StringcheckError
