@@ -85,6 +85,8 @@ from stringcheck.physics.charge_control import (
     thermal_voltage,
 )
 
+from stringcheck.solvers.turn_off_newton import _Circuit, _factor, _newton, _rates, _settled, _solve
+
 __all__ = ["TurnOff", "TurnOffTrace", "simulate_turn_off"]
 
 _GAMMA = 2.0 - math.sqrt(2.0)
@@ -92,9 +94,6 @@ _IMPLICIT = _GAMMA / 2.0  # = (1 - gamma) / (2 - gamma): the same Newton matrix 
 _FROM_STAGE = 1.0 / (_GAMMA * (2.0 - _GAMMA))
 _FROM_START = (1.0 - _GAMMA) ** 2 / (_GAMMA * (2.0 - _GAMMA))
 _ERROR_CONSTANT = (-3.0 * _GAMMA**2 + 4.0 * _GAMMA - 2.0) / (12.0 * (2.0 - _GAMMA))
-_NEWTON_TOLERANCE = 0.03
-_NEWTON_ITERATIONS = 10
-_FORWARD_CAP = 4.0  # largest rise of v per Newton iteration in forward bias [n V_T]
 
 
 @dataclass(frozen=True)
@@ -165,125 +164,6 @@ class TurnOff:
     steps: NDArray[np.int64]
     rejected_steps: NDArray[np.int64]
     trace: TurnOffTrace | None
-
-
-@dataclass(frozen=True)
-class _Circuit:
-    """Per-trial constants of the working set; loop arrays (T,), stage arrays (T, n)."""
-
-    source: NDArray[np.float64]
-    inductance: NDArray[np.float64]
-    loop_resistance: NDArray[np.float64]
-    saturation_charge: NDArray[np.float64]
-    inverse_scale: NDArray[np.float64]
-    lifetime: NDArray[np.float64]
-    transit_time: NDArray[np.float64]
-    node_capacitance: NDArray[np.float64]
-    branch_capacitance: NDArray[np.float64]
-    held_capacitance: NDArray[np.float64]
-    damping_conductance: NDArray[np.float64]
-    shunt_conductance: NDArray[np.float64]
-    stage_capacitance: NDArray[np.float64]
-    voltage_scale: NDArray[np.float64]
-    current_scale: NDArray[np.float64]
-    charge_scale: NDArray[np.float64]
-    duration: NDArray[np.float64]
-    max_step: NDArray[np.float64]
-
-    def take(self, rows: NDArray[np.intp]) -> _Circuit:
-        return _Circuit(**{f.name: getattr(self, f.name)[rows] for f in fields(self)})
-
-
-def _rates(c, v, q, w, i):
-    """Right-hand sides M x' = f(x), the diode's dI_D/dv and the damping-resistor power."""
-    growth = np.exp(np.minimum(v * c.inverse_scale, 300.0))
-    diode = (c.saturation_charge * (growth - 1.0) - q) / c.transit_time
-    slope = c.saturation_charge * c.inverse_scale * growth / c.transit_time
-    branch = c.damping_conductance * (v - w)
-    rate_v = i[:, None] - diode - c.shunt_conductance * v - branch
-    rate_q = diode - q / c.lifetime
-    rate_i = -c.source - c.loop_resistance * i - v.sum(axis=1)
-    return rate_v, rate_q, branch, rate_i, slope, branch * (v - w)
-
-
-def _factor(c, a, slope):
-    """Pivots of M - a J after eliminating q_M and w of every stage (Schur complement)."""
-    a2 = a[:, None]
-    pivot_q = 1.0 + a2 / c.transit_time + a2 / c.lifetime
-    pivot_w = c.branch_capacitance + a2 * c.damping_conductance
-    pivot_v = (
-        c.node_capacitance
-        + a2 * c.shunt_conductance
-        + a2 * slope * (1.0 + a2 / c.lifetime) / pivot_q
-        + a2 * c.damping_conductance * c.branch_capacitance / pivot_w
-    )
-    pivot_i = c.inductance + a * c.loop_resistance + a * a * (1.0 / pivot_v).sum(axis=1)
-    return pivot_q, pivot_w, pivot_v, pivot_i
-
-
-def _solve(c, a, factors, slope, bv, bq, bw, bi, room=None):
-    """(M - a J) dx = b by the Schur complement; dv capped at ``room`` before back substitution."""
-    pivot_q, pivot_w, pivot_v, pivot_i = factors
-    a2 = a[:, None]
-    reduced = bv + (a2 / c.transit_time) * bq / pivot_q + a2 * c.damping_conductance * bw / pivot_w
-    di = (bi - a * (reduced / pivot_v).sum(axis=1)) / pivot_i
-    dv = (reduced + a2 * di[:, None]) / pivot_v
-    if room is not None:
-        dv = np.minimum(dv, room)
-    dq = (bq + a2 * slope * dv) / pivot_q
-    return dv, dq, (bw + a2 * c.damping_conductance * dv) / pivot_w, di
-
-
-def _newton(c, a, rhs, start, weights, iterations=_NEWTON_ITERATIONS):
-    """Solve M x - a f(x) = rhs for every trial; returns x and a convergence flag per trial.
-
-    Once fewer than half of the trials are still iterating, the rest continue on their own
-    (a recursive call on the subset): the same arithmetic per trial, less work per iteration.
-    """
-    v, q, w, i = start
-    weight_v, weight_q, weight_i = weights
-    active = np.ones(i.shape, dtype=bool)
-    converged = np.zeros(i.shape, dtype=bool)
-    cap = _FORWARD_CAP / c.inverse_scale
-    a2 = a[:, None]
-    for iteration in range(iterations):
-        rate_v, rate_q, rate_w, rate_i, slope, _ = _rates(c, v, q, w, i)
-        bv = rhs[0] - c.node_capacitance * v + a2 * rate_v
-        bq = rhs[1] - q + a2 * rate_q
-        bw = rhs[2] - c.branch_capacitance * w + a2 * rate_w
-        bi = rhs[3] - c.inductance * i + a * rate_i
-        room = np.maximum(np.maximum(v, 0.0) + cap - v, 0.0)
-        dv, dq, dw, di = _solve(c, a, _factor(c, a, slope), slope, bv, bq, bw, bi, room)
-        size = np.maximum(
-            np.max(np.maximum(np.abs(dv) / weight_v, np.abs(dw) / weight_v), axis=1),
-            np.maximum(np.max(np.abs(dq) / weight_q, axis=1), np.abs(di) / weight_i),
-        )
-        rows = active[:, None]
-        v = np.where(rows, v + dv, v)
-        q = np.where(rows, q + dq, q)
-        w = np.where(rows, w + dw, w)
-        i = np.where(active, i + di, i)
-        done = active & (size <= _NEWTON_TOLERANCE)
-        converged |= done
-        active &= ~done & np.isfinite(size)
-        left = np.flatnonzero(active)
-        if left.size == 0 or iteration + 1 == iterations:
-            break
-        if 2 * left.size < active.size:
-            (v[left], q[left], w[left], i[left]), converged[left] = _newton(
-                c.take(left), a[left], tuple(part[left] for part in rhs),
-                (v[left], q[left], w[left], i[left]), tuple(part[left] for part in weights),
-                iterations - iteration - 1)
-            break
-    return (v, q, w, i), converged
-
-
-def _settled(c, v, w):
-    """Charge-balance reverse voltages the ringing decays towards (module notes)."""
-    charge = -(c.node_capacitance * v + c.held_capacitance * w)
-    inverse = 1.0 / c.stage_capacitance
-    further = (c.source - (charge * inverse).sum(axis=1)) / inverse.sum(axis=1)
-    return (charge + further[:, None]) * inverse
 
 
 def _parabola_peak(t0, t1, t2, y0, y1, y2):
