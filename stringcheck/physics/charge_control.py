@@ -41,17 +41,12 @@ __all__ = [
     "BOLTZMANN_OVER_CHARGE",
     "DEFAULT_EMISSION_COEFFICIENT",
     "DEFAULT_SATURATION_CURRENT",
-    "ChargeControlFit",
     "ForwardState",
     "RampRecovery",
     "diode_current",
     "emitter_charge",
-    "fit_charge_control",
     "forward_state",
-    "lifetime_for_charge",
-    "peak_current_from_recovery_time",
     "ramp_recovery",
-    "rescale_recovery_charge",
     "stored_charge_rate",
     "thermal_voltage",
 ]
@@ -363,12 +358,16 @@ def ramp_recovery(
     )
 
 
-# The fitting to datasheet figures is its own module (charge_control_fit.py); its functions are part
-# of this module's API.
-from stringcheck.physics.charge_control_fit import (  # noqa: E402
-    ChargeControlFit,
-    fit_charge_control,
-    lifetime_for_charge,
-    peak_current_from_recovery_time,
-    rescale_recovery_charge,
-)
+# The fitting to datasheet figures is its own module (charge_control_fit.py, which imports this one);
+# its names stay reachable from here, resolved on first use so that either module may be imported
+# first (PEP 562 module __getattr__).
+_FITTING = ("ChargeControlFit", "fit_charge_control", "lifetime_for_charge",
+            "peak_current_from_recovery_time", "rescale_recovery_charge")
+
+
+def __getattr__(name: str):
+    if name in _FITTING:
+        from stringcheck.physics import charge_control_fit
+
+        return getattr(charge_control_fit, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -21,6 +21,9 @@ from numpy.typing import ArrayLike, NDArray
 from stringcheck.physics.charge_control import _SOLVER_ITERATIONS, _peak_current, ramp_recovery
 from stringcheck.physics.recovery import RECOVERY_END_FRACTION
 
+__all__ = ["ChargeControlFit", "fit_charge_control", "lifetime_for_charge",
+           "peak_current_from_recovery_time", "rescale_recovery_charge"]
+
 
 def _solve_increasing(function, target, low, high):
     """Solve function(x) = target for x in [low, high] (increasing, bracketing), per element.
