@@ -232,7 +232,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                 for name, accumulator in (("static", outcome.static),
                                           ("dynamic", outcome.dynamic)):
                     if accumulator is not None:
-                        ratios[name].append(accumulator.worst_ratios[0][:count])
+                        ratios[name].append(np.concatenate(accumulator.worst_ratios)[:count])
                 if outcome.forward is not None:
                     ratios["parallel"].append(outcome.forward.current_ratio[:count])
                     if outcome.forward.tj_ratio is not None:
@@ -468,7 +468,7 @@ def evaluate_strings(context: _ChunkContext, drawn: DrawnStrings, check: str) ->
     else:
         _dynamic_chunk(context.design, drawn, accumulator, context.junction_capacitance,
                        context.rescaling)
-    return accumulator.worst_ratios[0]
+    return np.concatenate(accumulator.worst_ratios)
 
 
 def _check_rare_inputs(design: Design) -> None:

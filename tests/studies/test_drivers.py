@@ -131,3 +131,12 @@ def test_drivers_with_the_ambient_row_write_valid_json():
     ambient = [d for d in drivers if d["input"] == "ambient"]
     assert ambient and ambient[0]["rank_correlation"] is None
     assert all(d["failure_point_share"] is None for d in drivers)
+
+
+def test_drivers_over_a_chunk_the_solvers_take_in_slices():
+    # 10,000 trials: the first chunk is solved in slices of two sampling blocks (8,192 trials), and
+    # every trial's ratio must reach the ranking, not only the first slice's.
+    text = design(q_rr='{ typ = "1 uC", max = "2 uC" }', capacitor_tolerance="0 %",
+                  i_r='{ typ = "1 uA", at_temperature = "25 degC" }', resistor_tolerance="2 %")
+    result = run_check(parse_design_text(text), trials=10_000, drivers=True)
+    assert _first(result, "dynamic").input == "q_rr"
