@@ -213,6 +213,10 @@ class StringLayout:
             labels[differ] = [f"{a}|{b}" for a, b in zip(labels[differ], other[differ])]
         return labels
 
+    def placed_by_serial(self) -> np.ndarray:
+        """Mask (parallel, series) of the positions holding a measured device by serial number."""
+        return ~np.equal(self.serial_grid(), None)
+
     def temperature_rise_grid(self) -> np.ndarray:
         """Temperature rise above ambient of every device [K], shape (parallel, series)."""
         return self._grid("temperature_rise", 0.0, float)
@@ -308,6 +312,14 @@ class Design:
         everywhere = replace(self, string=replace(layout, part=layout.mix.part,
                                                   positions=tuple(kept), mix=None))
         return plain, everywhere
+
+    def lot_positions(self, name: str) -> np.ndarray:
+        """Mask (parallel, series) of the positions that may draw a device of part ``name`` from its
+        lot: those that hold it (with a mix, in either of :meth:`mix_variants`), less those holding
+        a device placed by serial number."""
+        placed = self.string.placed_by_serial()
+        return np.logical_or.reduce([(variant.string.part_grid() == name) & ~placed
+                                     for variant in self.mix_variants()])
 
     def parts_used(self) -> tuple[str, ...]:
         """Names of the parts that stand in at least one position, in first-use order (with a mix,

@@ -192,15 +192,13 @@ def check_lot_sizes(design: Design, reader: _Reader | None = None) -> None:
     """A resampled lot holds every device a built string may draw from it (with a mix, every
     position that may hold the part in either of ``Design.mix_variants``); raises DesignError."""
     reader = _Reader(design.source) if reader is None else reader
-    serials = design.string.serial_grid()
-    placed = ~np.equal(serials, None)
+    placed = design.string.placed_by_serial()
     for name in design.parts_used():
         lot = design.parts[name].measured
         if lot is None or not lot.resampled:
             continue
         pinned = int(np.count_nonzero((design.string.part_grid() == name) & placed))
-        drawn = int(np.count_nonzero(np.logical_or.reduce(
-            [(variant.string.part_grid() == name) & ~placed for variant in design.mix_variants()])))
+        drawn = int(np.count_nonzero(design.lot_positions(name)))
         available = lot.devices - pinned
         if drawn > available:
             raise reader.error(f"parts.{name}.measured",

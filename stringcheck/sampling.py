@@ -213,13 +213,6 @@ def _fitted_lot_parameters(design: Design, name: str) -> tuple[str, ...]:
     return lot.parameters if lot is not None and not lot.resampled else ()
 
 
-def _drawn_from_lot(design: Design, name: str) -> np.ndarray:
-    """Mask (parallel, series) of the positions of part ``name`` drawn from its lot (not placed by
-    serial number)."""
-    layout = design.string
-    return (layout.part_grid() == name) & np.equal(layout.serial_grid(), None)
-
-
 def _correlated(design: Design) -> bool:
     matrix = correlation_matrix(design.monte_carlo.correlation, SPREAD_PARAMETERS)
     return not np.allclose(matrix, np.eye(len(SPREAD_PARAMETERS)))
@@ -253,8 +246,7 @@ def draw_latent(design: Design, parameters: tuple[str, ...], first_trial: int, c
             # Every position that may draw the part (with a mix, in either variant) gets its own
             # device of one sample without replacement, so that whichever variant a device comes
             # from, no lot device stands twice in a string.
-            slots = np.logical_or.reduce([_drawn_from_lot(variant, name)
-                                          for variant in design.mix_variants()])
+            slots = design.lot_positions(name)
             take = int(np.count_nonzero(slots))
             if take:
                 pool = _lot_pool(design, name)
@@ -299,7 +291,7 @@ def _apply_measured(design: Design, parameters: tuple[str, ...], latent: Latent,
         measured = [p for p in parameters if p in lot.parameters]
         if not measured:
             continue
-        drawn = _drawn_from_lot(design, name)
+        drawn = design.lot_positions(name)
         if np.any(drawn):
             if lot.resampled:
                 if name not in latent.measured_rows:
@@ -431,7 +423,7 @@ def substituted_devices(design: Design, first_trial: int, count: int, seed: int)
     width = layout.parallel * layout.series
     u = _uniforms(seed, first_trial, count, _MIX_STREAM, width)
     # A device placed by serial number is the one built in: never substituted.
-    placed = ~np.equal(layout.serial_grid(), None)
+    placed = layout.placed_by_serial()
     return (u < layout.mix.fraction).reshape(count, layout.parallel, layout.series) & ~placed
 
 
