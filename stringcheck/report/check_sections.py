@@ -14,7 +14,8 @@ from ..studies.forward_check import ParallelCheck, ThermalCheck
 from ..studies.transient_check import TransientCheck
 
 
-def _number(value: float | None) -> float | None:
+def json_number(value: float | None) -> float | None:
+    """JSON has no inf or NaN: write them as null (the report text says why)."""
     if value is None:
         return None
     value = float(value)
@@ -31,7 +32,7 @@ def rare_to_dict(rare) -> dict[str, Any] | None:
     if rare is None:
         return None
     return {"estimator": rare.estimator, "p_fail": rare.p_fail, "std_error": rare.std_error,
-            "p_fail_ci": [rare.ci_low, rare.ci_high], "beta": _number(rare.beta),
+            "p_fail_ci": [rare.ci_low, rare.ci_high], "beta": json_number(rare.beta),
             "first_order": rare.first_order, "samples": rare.samples,
             "found_failure_point": rare.found_failure_point,
             "failure_points": rare.failure_points, "pooled_trials": rare.pooled_trials,
@@ -60,27 +61,27 @@ def parallel_to_dict(check: ParallelCheck) -> dict[str, Any]:
     ballast = check.ballast
     return {
         "passed": check.passed,
-        "worst_share": _number(check.worst_share),
-        "p99_share": _number(check.p99_share),
-        "worst_ratio": _number(check.worst_ratio),
-        "p50_ratio": _number(check.p50_ratio),
-        "p99_ratio": _number(check.p99_ratio),
+        "worst_share": json_number(check.worst_share),
+        "p99_share": json_number(check.p99_share),
+        "worst_ratio": json_number(check.worst_ratio),
+        "p50_ratio": json_number(check.p50_ratio),
+        "p99_ratio": json_number(check.p99_ratio),
         **_estimate(check.estimate),
         "rare": rare_to_dict(check.rare),
         "unsolved": check.unsolved,
         "worst_trial": check.worst_trial,
-        "required_derating": _number(check.required_derating),
+        "required_derating": json_number(check.required_derating),
         "electro_thermal": check.electro_thermal,
         "branches": [
-            {"branch": b.branch, "limit_current": _number(b.limit_current),
-             "mean_current": _number(b.mean_current), "max_current": _number(b.max_current),
-             "mean_share": _number(b.mean_share), "max_share": _number(b.max_share),
+            {"branch": b.branch, "limit_current": json_number(b.limit_current),
+             "mean_current": json_number(b.mean_current), "max_current": json_number(b.max_current),
+             "mean_share": json_number(b.mean_share), "max_share": json_number(b.max_share),
              "failures": b.failures}
             for b in check.branches
         ],
         "ballast": None if ballast is None else {
-            "target_share": ballast.target_share, "resistance": _number(ballast.resistance),
-            "exact_resistance": _number(ballast.exact_resistance), "loss": _number(ballast.loss),
+            "target_share": ballast.target_share, "resistance": json_number(ballast.resistance),
+            "exact_resistance": json_number(ballast.exact_resistance), "loss": json_number(ballast.loss),
             "quantile": ballast.quantile, "reachable": ballast.reachable},
     }
 
@@ -90,11 +91,11 @@ def thermal_to_dict(check: ThermalCheck) -> dict[str, Any]:
     runaway = check.runaway
     return {
         "passed": check.passed,
-        "worst_tj": _number(check.worst_tj),
-        "p99_tj": _number(check.p99_tj),
-        "worst_ratio": _number(check.worst_ratio),
-        "p50_ratio": _number(check.p50_ratio),
-        "p99_ratio": _number(check.p99_ratio),
+        "worst_tj": json_number(check.worst_tj),
+        "p99_tj": json_number(check.p99_tj),
+        "worst_ratio": json_number(check.worst_ratio),
+        "p50_ratio": json_number(check.p50_ratio),
+        "p99_ratio": json_number(check.p99_ratio),
         **_estimate(check.estimate),
         "rare": rare_to_dict(check.rare),
         "p_runaway": runaway.p_fail,
@@ -102,13 +103,13 @@ def thermal_to_dict(check: ThermalCheck) -> dict[str, Any]:
         "runaway_trials": runaway.failures,
         "over_tj_max_trials": check.over_limit,
         "worst_trial": check.worst_trial,
-        "runaway_ambient": {key: _number(value) for key, value in check.runaway_ambient.items()},
+        "runaway_ambient": {key: json_number(value) for key, value in check.runaway_ambient.items()},
         "runaway_ambient_trials": check.runaway_ambient_trials,
         "runaway_search_limit": check.runaway_search_limit,
-        "mean_total_power": _number(check.total_power_mean),
+        "mean_total_power": json_number(check.total_power_mean),
         "positions": [
             {"branch": p.branch, "index": p.index, "part": p.part, "limit": p.limit,
-             "mean_tj": _number(p.mean_temperature), "max_tj": _number(p.max_temperature),
+             "mean_tj": json_number(p.mean_temperature), "max_tj": json_number(p.max_temperature),
              "failures": p.failures}
             for p in check.positions
         ],
@@ -119,26 +120,26 @@ def transient_to_dict(check: TransientCheck) -> dict[str, Any]:
     """JSON of the transient check (voltages [V], currents [A], energies [J])."""
     return {
         "passed": check.passed,
-        "worst_voltage": _number(check.worst_voltage),
-        "overshoot": _number(check.overshoot),
-        "worst_ratio": _number(check.worst_ratio),
-        "p50_ratio": _number(check.p50_ratio),
-        "p99_ratio": _number(check.p99_ratio),
+        "worst_voltage": json_number(check.worst_voltage),
+        "overshoot": json_number(check.overshoot),
+        "worst_ratio": json_number(check.worst_ratio),
+        "p50_ratio": json_number(check.p50_ratio),
+        "p99_ratio": json_number(check.p99_ratio),
         **_estimate(check.estimate),
         "unsolved": check.unsolved,
         "worst_trial": check.worst_trial,
         "sampled": check.sampled,
         "worst_simulated": check.worst_simulated,
         "worst_failures": check.worst_failures,
-        "peak_recovery_current": _number(check.peak_recovery_current),
-        "damping_energy": _number(check.damping_energy),
-        "inductance": _number(check.inductance),
-        "forward_current": _number(check.forward_current),
+        "peak_recovery_current": json_number(check.peak_recovery_current),
+        "damping_energy": json_number(check.damping_energy),
+        "inductance": json_number(check.inductance),
+        "forward_current": json_number(check.forward_current),
         "notes": list(check.notes),
         "positions": [
             {"branch": p.branch, "index": p.index, "part": p.part, "limit": p.limit,
-             "mean_voltage": _number(p.mean_voltage), "std_voltage": _number(p.std_voltage),
-             "max_voltage": _number(p.max_voltage), "max_overshoot": _number(p.max_overshoot),
+             "mean_voltage": json_number(p.mean_voltage), "std_voltage": json_number(p.std_voltage),
+             "max_voltage": json_number(p.max_voltage), "max_overshoot": json_number(p.max_overshoot),
              "failures": p.failures}
             for p in check.positions
         ],
@@ -264,10 +265,10 @@ def _temperature(value: float, limit: float) -> str:
 def drivers_to_list(drivers) -> list[dict[str, Any]]:
     """JSON of the drivers ranking (``check --drivers``)."""
     return [{"check": d.check, "input": d.input, "label": d.label,
-             "rank_correlation": _number(d.rank_correlation),
-             "tightened_p99_ratio": _number(d.tightened_p99_ratio),
-             "tightened_p_fail_upper": _number(d.tightened_p_fail_upper),
-             "failure_point_share": _number(d.failure_point_share)} for d in drivers]
+             "rank_correlation": json_number(d.rank_correlation),
+             "tightened_p99_ratio": json_number(d.tightened_p99_ratio),
+             "tightened_p_fail_upper": json_number(d.tightened_p_fail_upper),
+             "failure_point_share": json_number(d.failure_point_share)} for d in drivers]
 
 
 def render_drivers(result, console: Console) -> None:

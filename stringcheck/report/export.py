@@ -9,7 +9,6 @@ leaves the old file as it was and no temporary file behind. The output paths are
 from __future__ import annotations
 
 import json
-import math
 import os
 import stat
 import sys
@@ -23,7 +22,14 @@ from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
 from ..studies.transient_check import TransientCheck
 from .lots import lots_to_list
-from .check_sections import drivers_to_list, rare_to_dict, parallel_to_dict, thermal_to_dict, transient_to_dict
+from .check_sections import (
+    drivers_to_list,
+    json_number,
+    parallel_to_dict,
+    rare_to_dict,
+    thermal_to_dict,
+    transient_to_dict,
+)
 
 if TYPE_CHECKING:
     from ..studies.size import SizingResult
@@ -31,23 +37,15 @@ if TYPE_CHECKING:
 SCHEMA_VERSION = 1
 
 
-def _number(value: float | None) -> float | None:
-    """JSON has no inf or NaN: write them as null (the report text says why)."""
-    if value is None:
-        return None
-    value = float(value)
-    return value if math.isfinite(value) else None
-
-
 def check_to_dict(check: SeriesCheck) -> dict[str, Any]:
     """The JSON object of one check that ran."""
     estimate = check.estimate
     return {
         "passed": check.passed,
-        "worst_voltage": _number(check.worst_voltage),
-        "worst_ratio": _number(check.worst_ratio),
-        "p50_ratio": _number(check.p50_ratio),
-        "p99_ratio": _number(check.p99_ratio),
+        "worst_voltage": json_number(check.worst_voltage),
+        "worst_ratio": json_number(check.worst_ratio),
+        "p50_ratio": json_number(check.p50_ratio),
+        "p99_ratio": json_number(check.p99_ratio),
         "failures": estimate.failures,
         "unsolved": check.unsolved,
         "p_fail": estimate.p_fail,
@@ -57,8 +55,8 @@ def check_to_dict(check: SeriesCheck) -> dict[str, Any]:
         "positions": [
             {
                 "branch": p.branch, "index": p.index, "part": p.part, "limit": p.limit,
-                "mean_voltage": _number(p.mean_voltage), "std_voltage": _number(p.std_voltage),
-                "max_voltage": _number(p.max_voltage), "failures": p.failures,
+                "mean_voltage": json_number(p.mean_voltage), "std_voltage": json_number(p.std_voltage),
+                "max_voltage": json_number(p.max_voltage), "failures": p.failures,
             }
             for p in check.positions
         ],
@@ -98,18 +96,18 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
             "resistor": grading.resistor,
             "capacitor": grading.capacitor,
             "damping_resistor": grading.damping_resistor,
-            "worst_stage_voltage": _number(grading.worst_resistor_voltage),
-            "resistor_power_continuous": _number(grading.resistor_power_continuous),
-            "resistor_power_duty": _number(grading.resistor_power_duty),
+            "worst_stage_voltage": json_number(grading.worst_resistor_voltage),
+            "resistor_power_continuous": json_number(grading.resistor_power_continuous),
+            "resistor_power_duty": json_number(grading.resistor_power_duty),
             "resistor_rated_power": grading.resistor_rated_power,
             "resistor_rated_voltage": grading.resistor_rated_voltage,
             "capacitor_rated_voltage": grading.capacitor_rated_voltage,
-            "total_grading_loss": _number(grading.total_grading_loss),
-            "stage_energy": _number(grading.stage_energy),
-            "total_energy": _number(grading.total_energy),
-            "discharge_time": _number(grading.discharge_time),
-            "grading_current": _number(grading.grading_current),
-            "hottest_max_leakage": _number(grading.hottest_max_leakage),
+            "total_grading_loss": json_number(grading.total_grading_loss),
+            "stage_energy": json_number(grading.stage_energy),
+            "total_energy": json_number(grading.total_energy),
+            "discharge_time": json_number(grading.discharge_time),
+            "grading_current": json_number(grading.grading_current),
+            "hottest_max_leakage": json_number(grading.hottest_max_leakage),
             "rating_problems": list(grading.rating_problems),
             "advisories": list(grading.advisories),
         },
@@ -323,11 +321,11 @@ def sizing_to_dict(result: "SizingResult") -> dict[str, Any]:
             if c is None:
                 return None
             return {"value": c.value, "passed": c.passed, "failures": c.failures,
-                    "p_fail_upper": c.p_fail_upper, "worst_ratio": _number(c.worst_ratio)}
+                    "p_fail_upper": c.p_fail_upper, "worst_ratio": json_number(c.worst_ratio)}
 
         return {"series": ladder.series, "chosen": candidate(ladder.chosen),
                 "rejected_neighbour": candidate(ladder.rejected_neighbour),
-                "textbook_bound": _number(ladder.textbook_bound)}
+                "textbook_bound": json_number(ladder.textbook_bound)}
 
     data["grading"] = {
         "resistor": result.resistor.chosen.value,
@@ -335,7 +333,7 @@ def sizing_to_dict(result: "SizingResult") -> dict[str, Any]:
         "damping_resistor": result.damping_resistor,
         "damping_rule": result.damping_rule,
         "damping_candidates": [
-            {"value": c.value, "worst_ratio": _number(c.worst_ratio), "energy": _number(c.energy),
+            {"value": c.value, "worst_ratio": json_number(c.worst_ratio), "energy": json_number(c.energy),
              "within_limit": c.within_limit} for c in result.damping_candidates],
         "series_used": {"resistor": result.resistor.series,
                         "capacitor": result.capacitor.series if result.capacitor else None},
@@ -344,18 +342,18 @@ def sizing_to_dict(result: "SizingResult") -> dict[str, Any]:
         "search": {"resistor": choice(result.resistor), "capacitor": choice(result.capacitor)},
         "ratings": {
             "derating": ratings.derating,
-            "worst_stage_voltage": _number(ratings.worst_stage_voltage),
-            "resistor_voltage_required": _number(ratings.resistor_voltage_required),
-            "resistor_power_continuous": _number(ratings.resistor_power_continuous),
-            "resistor_power_duty": _number(ratings.resistor_power_duty),
-            "resistor_power_required": _number(ratings.resistor_power_required),
-            "grading_loss_total": _number(ratings.grading_loss_total),
-            "capacitor_voltage_required": _number(ratings.capacitor_voltage_required),
-            "damping_loss_per_stage": _number(ratings.damping_loss_per_stage),
-            "damping_loss_total": _number(ratings.damping_loss_total),
-            "stage_energy": _number(ratings.stage_energy),
-            "total_energy": _number(ratings.total_energy),
-            "discharge_time": _number(ratings.discharge_time),
+            "worst_stage_voltage": json_number(ratings.worst_stage_voltage),
+            "resistor_voltage_required": json_number(ratings.resistor_voltage_required),
+            "resistor_power_continuous": json_number(ratings.resistor_power_continuous),
+            "resistor_power_duty": json_number(ratings.resistor_power_duty),
+            "resistor_power_required": json_number(ratings.resistor_power_required),
+            "grading_loss_total": json_number(ratings.grading_loss_total),
+            "capacitor_voltage_required": json_number(ratings.capacitor_voltage_required),
+            "damping_loss_per_stage": json_number(ratings.damping_loss_per_stage),
+            "damping_loss_total": json_number(ratings.damping_loss_total),
+            "stage_energy": json_number(ratings.stage_energy),
+            "total_energy": json_number(ratings.total_energy),
+            "discharge_time": json_number(ratings.discharge_time),
         },
         "advisories": list(result.advisories),
     }

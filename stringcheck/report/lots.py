@@ -13,6 +13,7 @@ from rich.text import Text
 
 from ..design import Design
 from ..quantity import format_quantity
+from .check_sections import json_number
 
 _UNITS = {"i_r": "A", "q_rr": "C", "i_rm": "A", "t_rr": "s", "v_t0": "V", "r_t": "ohm"}
 _HOW = {"resample": "devices drawn from the lot itself, without replacement in a string "
@@ -34,8 +35,7 @@ def _lots(design: Design, skip: frozenset = frozenset()):
 
 def _placed(design: Design, name: str) -> int:
     layout = design.string
-    return int(np.count_nonzero((layout.part_grid() == name)
-                                & ~np.equal(layout.serial_grid(), None)))
+    return int(np.count_nonzero((layout.part_grid() == name) & layout.placed_by_serial()))
 
 
 def render_lots(design: Design, console: Console, *, also: Design | None = None) -> None:
@@ -103,8 +103,8 @@ def lots_to_list(design: Design) -> list[dict[str, Any]]:
             "fit": lot.fit,
             "placed_by_serial": _placed(design, name),
             "columns": [{"parameter": c.parameter, "family": c.family, "location": c.location,
-                         "scale": c.scale, "ks_p_value": None if np.isnan(c.ks_p_value)
-                         else c.ks_p_value, "median": c.median, "min": c.low, "max": c.high,
+                         "scale": c.scale, "ks_p_value": json_number(c.ks_p_value),
+                         "median": c.median, "min": c.low, "max": c.high,
                          "below_datasheet_min": c.below, "above_datasheet_max": c.above}
                         for c in lot.columns],
             "correlation": {"parameters": list(lot.parameters),

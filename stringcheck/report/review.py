@@ -12,15 +12,9 @@ from rich.text import Text
 
 from ..studies.review import ReviewResult
 from .cautions import safety_cautions
+from .check_sections import json_number
 from .export import result_to_dict
 from .lots import render_lots
-
-
-def _number(value: float | None) -> float | None:
-    if value is None:
-        return None
-    value = float(value)
-    return value if math.isfinite(value) else None
 
 
 def review_to_dict(result: ReviewResult) -> dict[str, Any]:
@@ -35,17 +29,17 @@ def review_to_dict(result: ReviewResult) -> dict[str, Any]:
         "changes": {
             "checks": [
                 {"check": c.name, "baseline_ran": c.baseline_ran, "candidate_ran": c.candidate_ran,
-                 "baseline_worst_ratio": _number(c.baseline_worst_ratio),
-                 "candidate_worst_ratio": _number(c.candidate_worst_ratio),
-                 "baseline_p_fail_upper": _number(c.baseline_p_fail_upper),
-                 "candidate_p_fail_upper": _number(c.candidate_p_fail_upper),
-                 "rise": _number(c.rise), "acceptable": c.acceptable}
+                 "baseline_worst_ratio": json_number(c.baseline_worst_ratio),
+                 "candidate_worst_ratio": json_number(c.candidate_worst_ratio),
+                 "baseline_p_fail_upper": json_number(c.baseline_p_fail_upper),
+                 "candidate_p_fail_upper": json_number(c.candidate_p_fail_upper),
+                 "rise": json_number(c.rise), "acceptable": c.acceptable}
                 for c in result.changes],
             "worse_positions": [
                 {"check": p.check, "branch": p.branch, "index": p.index,
                  "baseline_part": p.baseline_part, "candidate_part": p.candidate_part,
-                 "baseline_max_voltage": _number(p.baseline_max),
-                 "candidate_max_voltage": _number(p.candidate_max), "limit": p.limit}
+                 "baseline_max_voltage": json_number(p.baseline_max),
+                 "candidate_max_voltage": json_number(p.candidate_max), "limit": p.limit}
                 for p in result.worse_positions],
             "reasons": list(result.reasons),
         },
