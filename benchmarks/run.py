@@ -13,11 +13,13 @@ same physics; peak memory for 10^6 trials at most 1.5x that for 10^5.
 
 The reference loop solves the same drawn strings trial by trial in plain Python floats (bisection
 on the string current for the static sharing, a sorted scan for the charge balance). It is timed on
-a subset of the trials and scaled to the full count: it is linear in the trial count. Of the
-engine's time on the check row (3.2 s when last measured on the shared 2-core development machine),
-drawing the 8 x 10^7 random values takes about 1.9 s: about 1.0 s for numpy's standard normals of
-the seeded streams and most of the rest for the truncation map; the static solve takes about 0.5 s,
-the charge balance about 0.2 s and the per-position sums about 0.25 s.
+a subset of the trials and scaled to the full count: it is linear in the trial count. On the
+shared 2-core development machine the check row last measured 1.9 to 1.95 s and about 120x (met,
+with little margin: the machine's load moves it by a few hundredths). Of that, drawing the
+8 x 10^7 uniform scores takes about 0.25 s and mapping them through the tabulated quantile
+functions about 0.55 s; the static solve about 0.45 s, the charge balance about 0.3 s and the
+per-position sums about 0.2 s. (Drawing standard normals and mapping them through the truncation
+instead took 1.9 s of the 2.8 s the row took before.)
 
 The turn-off row runs 10^4 strings of 12 charge-control diodes through one turn-off with
 ``simulate_turn_off`` (10^3 with ``--quick``) and times scipy's ``solve_ivp`` (Radau, with the

@@ -9,6 +9,10 @@ How a spread becomes a draw (DESIGN.md section 4, "Spreads"):
   normal). Where only one limit is given it sets both sides.
 * Production-screened limits (``screened``, default on) truncate the draw at min/max: the latent normal
   is mapped onto the truncated normal by its CDF, which keeps the Gaussian-copula dependence.
+* The streams give uniform scores u, one per device and parameter, and each drawn value is the
+  spread's quantile function at u (:mod:`stringcheck.spread_maps`); the latent normal of a score is
+  z = Phi^-1(u), computed only where a copula or lot sharing mixes latent values. (Drawing u and
+  mapping it costs about half of drawing a normal and mapping it through the truncation.)
 * ``lot_share`` is the fraction of the latent variance common to every device of one part in one built
   string (same lot): z = sqrt(s) z_lot + sqrt(1 - s) z_device.
 * Parameters of one device may be correlated through a Gaussian copula (``[monte_carlo.correlation]``).
@@ -35,7 +39,7 @@ from typing import Mapping
 
 import numpy as np
 from .design import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Design, correlation_matrix
-from .spread_maps import spread_quantile, tolerance_draw
+from .spread_maps import normal_scores, spread_quantile, tolerance_draw
 
 __all__ = ["BLOCK_TRIALS", "DrawnStrings", "Latent", "chunk_bounds", "draw_latent", "draw_strings",
            "latent_parameters", "spread_quantile", "strings_from_latent", "substituted_devices",
@@ -63,8 +67,9 @@ class DrawnStrings:
     parameters
         Drawn device parameter [SI] by name, each of shape (trials, parallel, series).
     latent
-        The standard-normal latent value behind each drawn parameter (after lot sharing and
-        correlation, before truncation), same shapes: the coordinates the drivers analysis uses.
+        The latent value behind each drawn parameter (after lot sharing and correlation, before
+        truncation), same shapes: a uniform score if ``latent_uniform``, else a standard normal.
+        :meth:`latent_normals` gives the standard normals the drivers analysis uses.
     resistance
         Drawn grading resistance [ohm] at 25 degC, (trials, parallel, series); None without resistors.
     capacitance
@@ -74,6 +79,8 @@ class DrawnStrings:
         ``part_names``; None without a mix (each position holds its part of ``part_grid``).
     part_names
         The names ``part_index`` points to.
+    latent_uniform
+        ``latent`` holds uniform scores u rather than standard normals z = Phi^-1(u).
     """
 
     first_trial: int
@@ -83,6 +90,13 @@ class DrawnStrings:
     capacitance: np.ndarray | None
     part_index: np.ndarray | None = None
     part_names: tuple[str, ...] = ()
+    latent_uniform: bool = False
+
+    def latent_normals(self, name: str, count: int | None = None) -> np.ndarray:
+        """The standard-normal latent values of parameter ``name`` for the first ``count`` trials
+        (all without ``count``)."""
+        values = self.latent[name][:count]
+        return normal_scores(values) if self.latent_uniform else values
 
     @property
     def trials(self) -> int:
@@ -139,18 +153,6 @@ def _block_draws(seed: int, first_trial: int, count: int, component: int, width:
     return out
 
 
-def _normals(seed: int, first_trial: int, count: int, component: int, width: int) -> np.ndarray:
-    """Standard normals (count, width) for trials first_trial.. of one component, block by block."""
-
-    def draw(generator: np.random.Generator, offset: int, rows: np.ndarray) -> None:
-        if offset == 0:
-            generator.standard_normal(out=rows)  # straight into the result, no copy
-        else:
-            rows[...] = generator.standard_normal((offset + rows.shape[0], width))[offset:]
-
-    return _block_draws(seed, first_trial, count, component, width, draw)
-
-
 def _lot_rows(seed: int, first_trial: int, count: int, component: int, devices: int,
               take: int) -> np.ndarray:
     """Indices (count, take) of ``take`` distinct devices out of ``devices`` per trial, in
@@ -181,13 +183,16 @@ def _lot_rows(seed: int, first_trial: int, count: int, component: int, devices: 
 
 @dataclass(frozen=True)
 class Latent:
-    """The independent standard-normal values behind a set of built strings.
+    """The independent latent values behind a set of built strings: uniform scores u in [0, 1)
+    (``uniform``, the Monte Carlo's streams) or standard normals z (the rare-event estimator); the
+    two are one variable, z = Phi^-1(u).
 
     ``device``: per parameter, shape (trials, parallel, series); ``lot``: per part, shape
     (trials, len(SPREAD_PARAMETERS)) (empty without ``lot_share``); ``resistor`` and ``capacitor``:
     (trials, parallel, series) or None; ``measured_rows``: per part resampled from a measured lot,
-    the lot row of each position that may draw it, (trials, parallel, series), -1 elsewhere. The Monte Carlo draws them from seeded
-    streams; the rare-event estimator chooses the normal values itself (and refuses resampled lots).
+    the lot row of each position that may draw it, (trials, parallel, series), -1 elsewhere. The
+    Monte Carlo draws them from seeded streams; the rare-event estimator chooses the normal values
+    itself (and refuses resampled lots).
     """
 
     device: Mapping[str, np.ndarray]
@@ -195,6 +200,26 @@ class Latent:
     resistor: np.ndarray | None
     capacitor: np.ndarray | None
     measured_rows: Mapping[str, np.ndarray] = field(default_factory=dict)
+    uniform: bool = False
+
+
+@dataclass(frozen=True)
+class StreamScores:
+    """Uniform scores of one stream not drawn yet, (count, parallel, series): the grading
+    components' scores are drawn and mapped block by block where they are used
+    (:func:`_mapped_scores`), so that they never fill an array of their own."""
+
+    seed: int
+    first_trial: int
+    count: int
+    component: int
+    shape: tuple[int, int]
+
+    def drawn(self) -> np.ndarray:
+        """The scores themselves."""
+        width = self.shape[0] * self.shape[1]
+        return _uniforms(self.seed, self.first_trial, self.count, self.component,
+                         width).reshape((self.count,) + self.shape)
 
 
 def latent_parameters(design: Design, parameters: tuple[str, ...]) -> tuple[str, ...]:
@@ -227,18 +252,19 @@ def draw_latent(design: Design, parameters: tuple[str, ...], first_trial: int, c
     device = {}
     for parameter in latent_parameters(design, parameters):
         component = SPREAD_PARAMETERS.index(parameter)
-        device[parameter] = _normals(seed, first_trial, count, component, devices).reshape(shape)
+        device[parameter] = _uniforms(seed, first_trial, count, component, devices).reshape(shape)
     lot = {}
     if design.monte_carlo.lot_share > 0:
         for name in design.parts_used():
-            lot[name] = _normals(seed, first_trial, count, _part_stream_id(name),
+            lot[name] = _uniforms(seed, first_trial, count, _part_stream_id(name),
                                  len(SPREAD_PARAMETERS))
     grading = design.grading
     resistor = capacitor = None
+    positions = (layout.parallel, layout.series)
     if grading.resistor is not None:
-        resistor = _normals(seed, first_trial, count, _RESISTOR_STREAM, devices).reshape(shape)
+        resistor = StreamScores(seed, first_trial, count, _RESISTOR_STREAM, positions)
     if grading.capacitor is not None:
-        capacitor = _normals(seed, first_trial, count, _CAPACITOR_STREAM, devices).reshape(shape)
+        capacitor = StreamScores(seed, first_trial, count, _CAPACITOR_STREAM, positions)
     rows = {}
     for name in design.parts_used():
         measured = design.parts[name].measured
@@ -256,7 +282,7 @@ def draw_latent(design: Design, parameters: tuple[str, ...], first_trial: int, c
                 per_position[:, slots] = pool[picked]
                 rows[name] = per_position
     return Latent(device=device, lot=lot, resistor=resistor, capacitor=capacitor,
-                  measured_rows=rows)
+                  measured_rows=rows, uniform=True)
 
 
 def _measured_stream_id(name: str) -> int:
@@ -320,9 +346,28 @@ def _apply_measured(design: Design, parameters: tuple[str, ...], latent: Latent,
                 scores[parameter][:, branch, index] = lot.scores[row, column]
 
 
+def _needs_normals(design: Design) -> bool:
+    """Whether the design mixes latent values (lot sharing, a copula, a measured lot's scores), so
+    that its device latents must be standard normals rather than uniform scores."""
+    return (design.monte_carlo.lot_share > 0 or _correlated(design)
+            or any(design.parts[name].measured is not None for name in design.parts_used()))
+
+
 def strings_from_latent(design: Design, parameters: tuple[str, ...], latent: Latent,
-                        first_trial: int = 0) -> DrawnStrings:
-    """Map latent values onto built strings: lot sharing, copula, spreads and tolerances."""
+                        first_trial: int = 0, *, normal_latent: bool | None = None) -> DrawnStrings:
+    """Map latent values onto built strings: lot sharing, copula, spreads and tolerances.
+
+    Uniform device scores are turned into standard normals first where the design mixes them
+    (``normal_latent``, by default :func:`_needs_normals`); the grading components keep theirs.
+    """
+    grading_uniform = latent.uniform
+    if normal_latent is None:
+        normal_latent = _needs_normals(design)
+    if latent.uniform and normal_latent:
+        latent = replace(latent, uniform=False,
+                         device={k: normal_scores(v) for k, v in latent.device.items()},
+                         lot={k: normal_scores(v) for k, v in latent.lot.items()})
+    device_uniform = latent.uniform
     monte_carlo = design.monte_carlo
     layout = design.string
     grid = layout.part_grid()
@@ -356,7 +401,8 @@ def strings_from_latent(design: Design, parameters: tuple[str, ...], latent: Lat
             if spread is None:
                 raise ValueError(f"part {name!r} has no {parameter}")
             options = dict(lognormal=parameter in LOGNORMAL_PARAMETERS,
-                           sigma_at_limit=monte_carlo.sigma_at_limit, screened=monte_carlo.screened)
+                           sigma_at_limit=monte_carlo.sigma_at_limit, screened=monte_carlo.screened,
+                           uniform=device_uniform)
             if out is None:  # one part everywhere: no gather and scatter by position
                 out = spread_quantile(spread, device_latent[parameter], **options)
             else:
@@ -368,14 +414,24 @@ def strings_from_latent(design: Design, parameters: tuple[str, ...], latent: Lat
 
     grading = design.grading
     resistance = capacitance = None
-    if grading.resistor is not None:
-        resistance = tolerance_draw(grading.resistor, grading.resistor_tolerance, latent.resistor,
-                                    sigma_at_limit=monte_carlo.sigma_at_limit)
-    if grading.capacitor is not None:
-        capacitance = tolerance_draw(grading.capacitor, grading.capacitor_tolerance,
-                                     latent.capacitor, sigma_at_limit=monte_carlo.sigma_at_limit)
+    for nominal, tolerance, scores, name in (
+            (grading.resistor, grading.resistor_tolerance, latent.resistor, "resistance"),
+            (grading.capacitor, grading.capacitor_tolerance, latent.capacitor, "capacitance")):
+        if nominal is None:
+            continue
+        options = dict(sigma_at_limit=monte_carlo.sigma_at_limit, uniform=grading_uniform)
+        if isinstance(scores, StreamScores):
+            drawn = _mapped_scores(scores, lambda u, out: tolerance_draw(nominal, tolerance, u,
+                                                                         out=out, **options))
+        else:
+            drawn = tolerance_draw(nominal, tolerance, scores, **options)
+        if name == "resistance":
+            resistance = drawn
+        else:
+            capacitance = drawn
     return DrawnStrings(first_trial=first_trial, parameters=values, latent=device_latent,
-                        resistance=resistance, capacitance=capacitance)
+                        resistance=resistance, capacitance=capacitance,
+                        latent_uniform=device_uniform)
 
 
 def draw_strings(design: Design, parameters: tuple[str, ...], first_trial: int, count: int,
@@ -401,9 +457,22 @@ def draw_strings(design: Design, parameters: tuple[str, ...], first_trial: int, 
     return strings_from_latent(design, parameters, latent, first_trial)
 
 
+def _mapped_scores(scores: StreamScores, mapper) -> np.ndarray:
+    """``mapper(u, out)`` of a stream's uniform scores, drawn and mapped one sampling block at a
+    time: the block's scores stay in cache and are not kept."""
+    width = scores.shape[0] * scores.shape[1]
+
+    def draw(generator: np.random.Generator, offset: int, rows: np.ndarray) -> None:
+        u = generator.random((offset + rows.shape[0], width))[offset:]
+        mapper(u, rows)
+
+    return _block_draws(scores.seed, scores.first_trial, scores.count, scores.component, width,
+                        draw).reshape((scores.count,) + scores.shape)
+
+
 def _uniforms(seed: int, first_trial: int, count: int, component: int, width: int) -> np.ndarray:
     """Uniforms on [0, 1), (count, width), for trials first_trial.. of one component, block by
-    block (as ``_normals``)."""
+    block: a longer draw begins with a shorter one."""
     def draw(generator: np.random.Generator, offset: int, rows: np.ndarray) -> None:
         if offset == 0:
             generator.random(out=rows)
@@ -436,17 +505,23 @@ def _mixed_strings(design: Design, parameters: tuple[str, ...], latent: Latent, 
     names = design.parts_used()
     lookup = {name: number for number, name in enumerate(names)}
     plain, everywhere = design.mix_variants()
+    # Both variants read the latent values alike, so that a device's draw is its own part's map
+    # of one latent value whichever part it turns out to be.
+    normal_latent = _needs_normals(plain) or _needs_normals(everywhere)
     if mix.fraction == 1.0:
-        drawn = strings_from_latent(everywhere, parameters, latent, first_trial)
+        drawn = strings_from_latent(everywhere, parameters, latent, first_trial,
+                                    normal_latent=normal_latent)
         index = np.full((drawn.trials, layout.parallel, layout.series), lookup[mix.part],
                         dtype=np.int16)
         return replace(drawn, part_index=index, part_names=names)
-    base = strings_from_latent(plain, parameters, latent, first_trial)
+    base = strings_from_latent(plain, parameters, latent, first_trial,
+                               normal_latent=normal_latent)
     grid = np.array([[lookup[name] for name in row] for row in layout.part_grid()], dtype=np.int16)
     index = np.broadcast_to(grid, (base.trials,) + grid.shape).copy()
     if mix.fraction == 0.0:
         return replace(base, part_index=index, part_names=names)
-    other = strings_from_latent(everywhere, parameters, latent, first_trial)
+    other = strings_from_latent(everywhere, parameters, latent, first_trial,
+                                normal_latent=normal_latent)
     swap = substituted_devices(design, first_trial, base.trials, seed)
     index[swap] = lookup[mix.part]
 

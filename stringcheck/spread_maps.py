@@ -1,8 +1,11 @@
-"""Datasheet spreads as maps of standard-normal latent values: the two-piece normal and lognormal,
-production-screened truncation, and the grading components' tolerance draws (DESIGN.md section 4,
-"Spreads"). Each value's image depends on that value alone, so the maps are the same whatever the
-chunking of a run. :mod:`stringcheck.sampling` feeds them its seeded latent draws; the rare-event
-estimator feeds them its own.
+"""Datasheet spreads as maps of latent values: the two-piece normal and lognormal, production-screened
+truncation, and the grading components' tolerance draws (DESIGN.md section 4, "Spreads"). Each value's
+image depends on that value alone, so the maps are the same whatever the chunking of a run.
+
+One latent variable has two faces: a uniform score u on (0, 1) and the standard normal
+z = Phi^-1(u). :mod:`stringcheck.sampling` draws uniform scores (``uniform=True``: the quantile
+function of the spread applied to u, tabulated, no normal draw and no normal CDF in between); the
+rare-event estimator and the copulas work with z (``uniform=False``).
 """
 
 from __future__ import annotations
@@ -16,33 +19,37 @@ from .design import Spread
 
 
 def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigma_at_limit: float,
-                    screened: bool) -> np.ndarray:
-    """Map standard-normal ``latent`` values onto the spread's distribution [unit of the spread].
+                    screened: bool, uniform: bool = False) -> np.ndarray:
+    """Map latent values onto the spread's distribution [unit of the spread].
 
     Parameters
     ----------
     spread
         The datasheet spread (typ = median; limits at ``sigma_at_limit`` standard deviations).
     latent
-        Standard-normal values, any shape.
+        Standard-normal values z, or with ``uniform`` uniform scores u in [0, 1) (a score u stands
+        for the midpoint u + 2^-54 of its cell, so that neither 0 nor 1 is ever reached); any shape.
     lognormal
         True for a lognormal parameter (spread in log space), False for a normal one.
     sigma_at_limit
         Number of standard deviations between typ and a limit [1], > 0.
     screened
         Truncate at the limits (production screening).
+    uniform
+        ``latent`` holds uniform scores rather than standard normals.
 
     Notes
     -----
     Truncation maps z to Phi^-1(Phi(a) + Phi(z) (Phi(b) - Phi(a))), the inverse-CDF construction of a
     truncated normal (e.g. C. P. Robert, "Simulation of truncated normal variables", Statistics and
     Computing 5, 1995), with a = -sigma_at_limit where a lower limit exists and b = +sigma_at_limit where
-    an upper one does (minus or plus infinity otherwise). The map is evaluated from a piecewise
-    polynomial fitted to it, within a few units of the last place (``_truncate``).
+    an upper one does (minus or plus infinity otherwise); a uniform score u takes the place of
+    Phi(z). The z map is evaluated from a piecewise polynomial fitted to it, within a few units of
+    the last place (``_truncate``); the u map from a piecewise quadratic within 1e-8 standard
+    deviations of the exact map, which is evaluated itself in the tails (``_from_uniform``).
     """
     if spread.fixed:
         return np.full(np.shape(latent), spread.typ)
-    z = np.asarray(latent, dtype=float)
     k = sigma_at_limit
     if lognormal:
         upper = np.log(spread.high / spread.typ) / k if spread.high is not None else None
@@ -52,9 +59,12 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
         lower = (spread.typ - spread.low) / k if spread.low is not None else None
     upper = lower if upper is None else upper
     lower = upper if lower is None else lower
+    low = -k if screened and spread.low is not None else -np.inf
+    high = k if screened and spread.high is not None else np.inf
+    if uniform:
+        return _from_uniform(latent, low, high, float(upper), float(lower), spread.typ, lognormal)
+    z = np.asarray(latent, dtype=float)
     if screened:
-        low = -k if spread.low is not None else -np.inf
-        high = k if spread.high is not None else np.inf
         if upper == lower:
             # typ exp(sigma y) or typ + sigma y of the truncated y is one smooth map of z:
             # tabulated as a whole.
@@ -67,6 +77,21 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
     else:
         scaled += spread.typ
     return scaled
+
+
+def normal_scores(u: np.ndarray) -> np.ndarray:
+    """The standard normal z = Phi^-1(u + 2^-54) behind uniform scores u in [0, 1), each side
+    computed from its own tail probability so that no precision is lost near 1."""
+    u = np.asarray(u, dtype=float)
+    below, above = _cell_probabilities(u)
+    return np.where(u < 0.5, special.ndtri(below), -special.ndtri(above))
+
+
+def _cell_probabilities(u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(u + 2^-54, (1 - u) - 2^-54): the midpoint of the score's cell and its complement, both
+    exact for a score k 2^-53 on its own side of 1/2."""
+    half_cell = 2.0**-54
+    return u + half_cell, (1.0 - u) - half_cell
 
 
 def _truncate(z: np.ndarray, low: float, high: float, *, scale: float | None = None,
@@ -141,13 +166,132 @@ def _truncate_exact(z: np.ndarray, low: float, high: float) -> np.ndarray:
     w = Phi(b) - Phi(a): the first for z <= 0 and the second for z > 0, so that the
     probability handed to the inverse CDF is never a small difference from 1.
     """
+    return _truncated_quantile(special.ndtr(z), special.ndtr(-z), z <= 0.0, low, high)
+
+
+def _truncated_quantile(below: np.ndarray, above: np.ndarray, lower_side: np.ndarray, low: float,
+                        high: float) -> np.ndarray:
+    """The standard normal truncated to [low, high] at probability ``below`` (where
+    ``lower_side``) or at upper-tail probability ``above`` (elsewhere): Phi(y) = Phi(a) + w below,
+    Phi(-y) = Phi(-b) + w above, w = Phi(b) - Phi(a) (the inverse-CDF construction, see
+    :func:`spread_quantile`)."""
     p_low, q_high = special.ndtr(low), special.ndtr(-high)
     width = special.ndtr(high) - p_low
     with np.errstate(invalid="ignore"):
-        below = special.ndtri(p_low + width * special.ndtr(z))
-        above = -special.ndtri(q_high + width * special.ndtr(-z))
+        y_below = special.ndtri(p_low + width * below)
+        y_above = -special.ndtri(q_high + width * above)
     # The clip only removes the rounding of the inverse at the limits themselves.
-    return np.clip(np.where(z <= 0.0, below, above), low, high)
+    return np.clip(np.where(lower_side, y_below, y_above), low, high)
+
+
+def _exact_from_uniform(u: np.ndarray, low: float, high: float, upper: float, lower: float,
+                        median: float, lognormal: bool) -> np.ndarray:
+    """The exact map that :func:`_from_uniform` tabulates: truncated quantile y of the score,
+    then median + s y or median exp(s y), s = ``upper`` for y >= 0 and ``lower`` below."""
+    u = np.asarray(u, dtype=float)
+    below, above = _cell_probabilities(u)
+    y = _truncated_quantile(below, above, u < 0.5, low, high)
+    scaled = np.where(y >= 0.0, upper * y, lower * y)
+    if not lognormal:
+        return median + scaled
+    with np.errstate(over="ignore"):
+        return median * np.exp(scaled)
+
+
+# The table of the uniform-score map: _SCORE_INTERVALS equal intervals of [0, 1), a quadratic
+# through the ends and the middle of each. An interval whose quadratic is off by more than
+# _SCORE_TOLERANCE standard deviations at its quarter points (the steep tails, a two-piece kink)
+# is evaluated exactly instead: about 1 % of the scores for limits at 3 standard deviations.
+_SCORE_INTERVALS = 2**14
+_SCORE_TOLERANCE = 1e-8
+
+
+@functools.lru_cache(maxsize=32)
+def _score_table(low: float, high: float, upper: float, lower: float, median: float,
+                 lognormal: bool) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(c0, c1, c2, exact) of the map of :func:`_from_uniform`: value = c0 + c1 t + c2 t^2 at the
+    coordinate t in [0, 1) within an interval; ``exact`` marks the intervals evaluated exactly.
+
+    Notes
+    -----
+    Quadratic interpolation at the ends and the midpoint of each interval (Lagrange form turned
+    into powers of t); the error of the interpolant of a smooth map falls as step^3 (e.g.
+    L. N. Trefethen, *Approximation Theory and Approximation Practice*, SIAM, 2013, chapter 8).
+    """
+    count = _SCORE_INTERVALS
+    step = 1.0 / count
+    left = step * np.arange(count)
+    arguments = dict(low=low, high=high, upper=upper, lower=lower, median=median,
+                     lognormal=lognormal)
+    ends = _exact_from_uniform(step * np.arange(count + 1), **arguments)
+    middle = _exact_from_uniform(left + 0.5 * step, **arguments)
+    start, end = ends[:-1], ends[1:]
+    c0 = start
+    c1 = 4.0 * middle - 3.0 * start - end
+    c2 = 2.0 * (start + end) - 4.0 * middle
+    quarters = np.array([0.25, 0.75])
+    check = _exact_from_uniform(left[:, None] + step * quarters, **arguments)
+    with np.errstate(invalid="ignore"):
+        error = np.abs(c0[:, None] + (c1[:, None] + c2[:, None] * quarters) * quarters - check)
+        # One standard deviation of the value near the check point: s, or s times the value.
+        unit = max(upper, lower) * (np.abs(check) if lognormal else 1.0)
+        exact = ~np.all(error <= _SCORE_TOLERANCE * unit, axis=1)
+    exact |= ~(np.isfinite(c0) & np.isfinite(c1) & np.isfinite(c2))
+    return tuple(np.ascontiguousarray(a) for a in (c0, c1, c2)) + (exact,)
+
+
+@functools.lru_cache(maxsize=32)
+def _exact_ends(exact: bytes) -> tuple[float, float] | None:
+    """(a, b) when the intervals evaluated exactly are just the scores u < a and u >= b (the
+    tails; compared directly, cheaper than looking each score's interval up); None when some lie
+    between (a two-piece kink)."""
+    flags = np.frombuffer(exact, dtype=bool)
+    count = flags.size
+    leading = int(np.argmin(flags)) if not flags.all() else count
+    trailing = int(np.argmin(flags[::-1])) if not flags.all() else 0
+    if flags[leading:count - trailing].any():
+        return None
+    return leading / count, (count - trailing) / count
+
+
+def _from_uniform(u: np.ndarray, low: float, high: float, upper: float, lower: float,
+                  median: float, lognormal: bool, out: np.ndarray | None = None) -> np.ndarray:
+    """The spread's quantile function at uniform scores u in [0, 1) [unit of the spread]: the
+    exact map of :func:`_exact_from_uniform`, tabulated (:func:`_score_table`) and evaluated
+    exactly in the intervals the table leaves out, element by element (a score's image never
+    depends on the array it arrives in); into ``out`` (the shape of ``u``) if given."""
+    c0, c1, c2, exact = _score_table(float(low), float(high), float(upper), float(lower),
+                                     float(median), bool(lognormal))
+    ends = _exact_ends(exact.tobytes())
+    flat = np.ascontiguousarray(u, dtype=float).reshape(-1)
+    result = np.empty(np.shape(u)) if out is None else out
+    out = result.reshape(-1)  # a view: ``result`` is contiguous
+    size = min(_TABLE_BLOCK, flat.size)
+    position, term = np.empty(size), np.empty(size)
+    index, tail = np.empty(size, dtype=np.intp), np.empty(size, dtype=bool)
+    rows = []
+    for start in range(0, flat.size, _TABLE_BLOCK):
+        block = flat[start:start + _TABLE_BLOCK]
+        n = block.size
+        t, i, value, flag = position[:n], index[:n], out[start:start + n], tail[:n]
+        np.multiply(block, _SCORE_INTERVALS, out=t)
+        np.copyto(i, t, casting="unsafe")  # truncation toward zero: the interval
+        t -= i
+        if ends is None:
+            np.take(exact, i, out=flag, mode="clip")
+        else:
+            np.less(block, ends[0], out=flag)
+            flag |= block >= ends[1]
+        rows.append(start + np.flatnonzero(flag))
+        np.take(c2, i, out=value, mode="clip")
+        value *= t
+        value += np.take(c1, i, out=term[:n], mode="clip")
+        value *= t
+        value += np.take(c0, i, out=term[:n], mode="clip")
+    rows = np.concatenate(rows) if rows else np.empty(0, dtype=np.intp)
+    if rows.size:  # all at once: the exact map costs mostly calls on a few hundred values
+        out[rows] = _exact_from_uniform(flat[rows], low, high, upper, lower, median, lognormal)
+    return result
 
 
 # The table of the truncation map: intervals of _TABLE_STEP on [-_TABLE_RANGE, _TABLE_RANGE], a
@@ -187,8 +331,10 @@ def _truncation_table(low: float, high: float, scale: float | None, median: floa
 
 
 def tolerance_draw(nominal: float, tolerance: float, latent: np.ndarray, *,
-                   sigma_at_limit: float) -> np.ndarray:
-    """Component values within a tolerance: normal, tolerance at ``sigma_at_limit``, truncated there.
+                   sigma_at_limit: float, uniform: bool = False,
+                   out: np.ndarray | None = None) -> np.ndarray:
+    """Component values within a tolerance: normal, tolerance at ``sigma_at_limit``, truncated there
+    [unit of ``nominal``] (common practice: a maker rejects parts outside the tolerance).
 
     Parameters
     ----------
@@ -197,12 +343,23 @@ def tolerance_draw(nominal: float, tolerance: float, latent: np.ndarray, *,
     tolerance
         Relative tolerance [1], in [0, 1).
     latent
-        Standard-normal values.
+        Standard-normal values, or with ``uniform`` uniform scores in [0, 1).
     sigma_at_limit
         Standard deviations at the tolerance limit [1].
+    uniform
+        ``latent`` holds uniform scores (see :func:`spread_quantile`).
+    out
+        With ``uniform``: a contiguous array of the shape of ``latent`` to write the values into.
     """
     if tolerance == 0:
-        return np.full(np.shape(latent), nominal)
+        if out is None:
+            return np.full(np.shape(latent), nominal)
+        out[...] = nominal
+        return out
+    scale = nominal * tolerance / sigma_at_limit
+    if uniform:
+        return _from_uniform(latent, -sigma_at_limit, sigma_at_limit, scale, scale, nominal, False,
+                             out=out)
     # nominal + (nominal tolerance / sigma_at_limit) y of the truncated y, tabulated as one map.
     return _truncate(np.asarray(latent, dtype=float), -sigma_at_limit, sigma_at_limit,
-                     scale=nominal * tolerance / sigma_at_limit, median=nominal)
+                     scale=scale, median=nominal)

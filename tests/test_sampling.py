@@ -323,7 +323,7 @@ TOLERANCE = 5.0 / math.sqrt(N_CORRELATION)
 
 def test_no_lot_share_leaves_positions_uncorrelated():
     drawn = draw_strings(make_design(lot_share=0.0), ("i_r",), 0, N_CORRELATION)
-    latent = drawn.latent["i_r"]
+    latent = drawn.latent_normals("i_r")
     assert abs(_position_correlation(latent, (0, 0), (0, 1))) < TOLERANCE
     assert abs(_position_correlation(latent, (0, 2), (1, 2))) < TOLERANCE
     # Each latent is standard normal (scipy.stats.kstest against norm).

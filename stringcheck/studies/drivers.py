@@ -61,8 +61,8 @@ class Driver:
 def chunk_features(drawn: DrawnStrings, design: Design, count: int) -> dict[str, np.ndarray]:
     """Per-trial mismatch of every scattered input for the first ``count`` trials of a chunk."""
     features = {}
-    for name, latent in drawn.latent.items():
-        values = latent[:count].reshape(count, -1)
+    for name in drawn.latent:
+        values = drawn.latent_normals(name, count).reshape(count, -1)
         features[name] = values.max(axis=1) - values.min(axis=1)
     grading = design.grading
     for name, values, nominal in (("resistor", drawn.resistance, grading.resistor),
