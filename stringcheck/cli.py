@@ -51,8 +51,10 @@ _TRANSIENT_SAMPLE = typer.Option(None, "--transient-sample", min=1, metavar="N",
                                       "(default: as many as the target needs).")
 _DRIVERS = typer.Option(False, "--drivers", help="Rank what drives the worst stress and what "
                                                   "halving each input's spread would buy.")
-_RARE = typer.Option(False, "--rare", help="Estimate small P(fail) of the static, dynamic, "
-                                            "parallel and thermal checks by importance sampling.")
+_RARE = typer.Option(None, "--rare/--no-rare", show_default=False,
+                     help="Estimate small P(fail) of the static, dynamic, parallel and thermal "
+                          "checks by importance sampling. Default: only for a check whose plain "
+                          "run saw fewer than 10 failures and could not decide it.")
 _WORKERS = typer.Option(1, "--workers", help="Processes to run the trials in (the result is the "
                                              "same for any number).")
 
@@ -195,7 +197,7 @@ def _run(action: Callable[[], int], debug: bool) -> None:
 
 
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
-           transient=None, drivers=False, rare=False, source_label=None) -> int:
+           transient=None, drivers=False, rare=None, source_label=None) -> int:
     from .design import load_design
     from .report.export import (
         check_output_targets,
@@ -244,7 +246,7 @@ def check(
     transient_worst: int = _TRANSIENT_WORST,
     transient_sample: Optional[int] = _TRANSIENT_SAMPLE,
     drivers: bool = _DRIVERS,
-    rare: bool = _RARE,
+    rare: Optional[bool] = _RARE,
     debug: bool = _DEBUG,
 ) -> None:
     """Check a string: static and dynamic voltage sharing, parallel current sharing, junction
@@ -445,7 +447,7 @@ def demo(
     transient_worst: int = _TRANSIENT_WORST,
     transient_sample: Optional[int] = _TRANSIENT_SAMPLE,
     drivers: bool = _DRIVERS,
-    rare: bool = _RARE,
+    rare: Optional[bool] = _RARE,
     debug: bool = _DEBUG,
 ) -> None:
     """Run the check on the bundled example design (an invented 30 kV stack)."""

@@ -22,7 +22,7 @@ from __future__ import annotations
 import difflib
 import math
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -123,6 +123,24 @@ class MeasuredLot:
     def column(self, parameter: str) -> np.ndarray:
         """The measured values of ``parameter`` [SI], one per device."""
         return self.values[:, self.parameters.index(parameter)]
+
+    def as_fitted(self) -> "MeasuredLot":
+        """The lot drawn from its fit instead of resampled: each column's family fit (``columns``,
+        fitted when the lot was read) joined by the Gaussian copula of the fitted scores, as
+        ``fit = "auto"`` reads it. For estimators that need a continuous distribution (the
+        importance sampler); a lot too small to fit raises :class:`DesignError`."""
+        if not self.resampled:
+            return self
+        if self.devices < MIN_FIT_DEVICES:
+            raise DesignError(f"{self.devices} device(s) are too few to fit a distribution to; "
+                              f"measure at least {MIN_FIT_DEVICES}", source=self.path)
+        latent = np.zeros_like(self.values)
+        for i, column in enumerate(self.columns):
+            if column.scale > 0:
+                values = self.values[:, i]
+                transformed = np.log(values) if column.family == "lognormal" else values
+                latent[:, i] = (transformed - column.location) / column.scale
+        return replace(self, fit="auto", scores=latent, correlation=score_correlation(latent))
 
     def row_of(self, serial: str) -> int | None:
         """The row of the device with ``serial``, or None."""

@@ -106,12 +106,40 @@ def test_trials_needed_for_the_target_follow_clopper_pearson():
     # (Clopper & Pearson, Biometrika 1934; scipy.stats.beta as reference). It first reaches 1e-3 at
     # n = 3688, so 3000 trials cannot pass and 4000 can.
     assert stats.beta.ppf(0.975, 1, 3688) <= 1e-3 < stats.beta.ppf(0.975, 1, 3687)
-    result = invoke("demo", "--trials", "3000")
+    result = invoke("demo", "--trials", "3000", "--no-rare")
     assert result.exit_code == 1, result.output
     text = flat(result.stdout)
     assert "VERDICT: FAIL" in text
     assert "3,000 trials cannot show P(fail) <= 0.001" in text
     assert "run at least 3,688" in text
+
+
+def test_a_run_too_short_to_decide_calls_the_importance_sampler_by_itself(demo_file, tmp_path):
+    # 2000 plain trials without a failure cannot show 1e-3 (upper bound 0.0018): by default the
+    # importance sampler runs on each such check, says that it ran by itself and why, and decides
+    # (here with no failure point: its plain samples pooled with the run's, 22,000 in all, upper
+    # bound 1.7e-4). --no-rare leaves the verdict to the plain run; --rare runs it on every check.
+    target = tmp_path / "auto.json"
+    result = invoke("check", str(demo_file), "--trials", "2000", "--json", str(target))
+    assert result.exit_code == 0, result.output
+    assert "run automatically: the plain run saw too few failures" in flat(result.stdout)
+    data = json.loads(target.read_text())
+    for name in ("static", "dynamic"):
+        rare = data["checks"][name]["rare"]
+        assert rare["automatic"] is True and rare["decides"] is True
+        assert rare["pooled_trials"] == 22_000
+        assert rare["p_fail_ci"][1] == pytest.approx(stats.beta.ppf(0.975, 1, 22_000), rel=1e-9)
+    refused = invoke("check", str(demo_file), "--trials", "2000", "--no-rare")
+    assert refused.exit_code == 1 and "run automatically" not in flat(refused.stdout)
+    # A run long enough to decide costs nothing more: no sampler.
+    decided = tmp_path / "decided.json"
+    invoke("check", str(demo_file), "--trials", "4000", "--json", str(decided))
+    assert all(check.get("rare") is None
+               for check in json.loads(decided.read_text())["checks"].values())
+    asked = tmp_path / "asked.json"
+    invoke("check", str(demo_file), "--trials", "4000", "--rare", "--json", str(asked))
+    rare = json.loads(asked.read_text())["checks"]["static"]["rare"]
+    assert rare is not None and rare["automatic"] is False
 
 
 def test_check_of_an_undergraded_design_fails(tmp_path):
@@ -138,7 +166,7 @@ def test_too_few_devices_is_impossible_and_fails(tmp_path):
 
 
 def test_quiet_prints_one_line():
-    result = invoke("demo", "--trials", "2000", "--quiet")
+    result = invoke("demo", "--trials", "2000", "--quiet", "--no-rare")
     assert result.exit_code == 1, result.output  # 2000 trials cannot show the target
     lines = result.stdout.strip().splitlines()
     assert len(lines) == 1, result.stdout
@@ -190,7 +218,7 @@ def test_csv_has_a_header_and_a_row_per_check_and_position(demo_run):
 
 
 def test_json_to_stdout_keeps_the_report_on_stderr(demo_file):
-    result = invoke("check", str(demo_file), "--trials", "2000", "--json", "-")
+    result = invoke("check", str(demo_file), "--trials", "2000", "--json", "-", "--no-rare")
     assert result.exit_code == 1, result.output
     data = json.loads(result.stdout)  # stdout holds the JSON and nothing else
     assert data["trials"] == 2000 and data["verdict"] == "fail"

@@ -343,13 +343,40 @@ def test_rank_scores_and_their_correlation():
 # --- the studies ---------------------------------------------------------------------------------
 
 
-def test_rare_refuses_a_resampled_lot_and_works_on_a_fit(tmp_path):
+def test_rare_draws_a_resampled_lot_from_its_fit(tmp_path):
+    # The importance sampler needs a continuous distribution: a resampled lot enters it through
+    # its fit (the same figures as fit = "auto", which fits the same families), and says so.
+    # At 15 kV on 10 devices (50 V below the limit) the charge balance can fail: P ~ 3e-5.
     _write_lot(tmp_path, 60)
-    with pytest.raises(DesignError, match="parts.A.fit"):
-        run_check(_design(tmp_path, series=10), trials=500, rare=True)
-    result = run_check(_design(tmp_path, series=10, fit='fit = "lognormal"'), trials=500,
-                       rare=True, rare_samples=2000)
-    assert result.checks["static"].rare is not None
+    result = run_check(_design(tmp_path, series=10, voltage="15 kV"), trials=500, rare=True,
+                       rare_samples=2000)
+    resampled = result.checks
+    fitted = run_check(_design(tmp_path, series=10, fit='fit = "auto"', voltage="15 kV"),
+                       trials=500, rare=True, rare_samples=2000).checks
+    rare = resampled["dynamic"].rare
+    assert rare.found_failure_point and rare.decides
+    assert "drawn from their fit" in rare.estimator and "A" in rare.estimator
+    assert rare.p_fail == fitted["dynamic"].rare.p_fail > 0
+    assert rare.ci_high == fitted["dynamic"].rare.ci_high
+    # No failure point (the static check): a model of the lot is not pooled with the lot itself,
+    # and the plain run decides.
+    static = resampled["static"]
+    assert not static.rare.found_failure_point and static.rare.pooled_trials == 0
+    assert not static.rare.decides and "plain run (the lot itself) decides" in static.rare.note
+    assert static.passed == (static.estimate.ci_high <= result.target_p_fail)
+
+
+def test_as_fitted_is_the_auto_fit_and_refuses_a_small_lot(tmp_path):
+    _write_lot(tmp_path, 60)
+    resampled = _design(tmp_path, series=10).parts["A"].measured
+    auto = _design(tmp_path, series=10, fit='fit = "auto"').parts["A"].measured
+    refitted = resampled.as_fitted()
+    assert refitted.fit == "auto" and not refitted.resampled
+    np.testing.assert_allclose(refitted.scores, auto.scores, rtol=1e-12, atol=1e-12)
+    np.testing.assert_allclose(refitted.correlation, auto.correlation, rtol=1e-12, atol=1e-12)
+    _write_lot(tmp_path, 5)
+    with pytest.raises(DesignError, match="parts.A.measured.*too few"):
+        run_check(_design(tmp_path, series=4), trials=200, rare=True)
 
 
 def test_a_leakier_lot_shifts_voltage_to_the_others(tmp_path):

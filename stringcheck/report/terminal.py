@@ -117,8 +117,11 @@ def render_check(result: CheckResult, console: Console) -> None:
             console.print(_convergence_note(check), highlight=False)
         if check.ran and getattr(check, "rare", None) is not None:
             rare = check.rare
+            automatic = (" (run automatically: the plain run saw too few failures to decide the "
+                         "check)" if rare.automatic else "")
             console.print(
-                f"{name}: P(fail) from {rare.estimator}; {rare.samples:,} samples, standard error "
+                f"{name}: P(fail) from {rare.estimator}{automatic}; {rare.samples:,} samples, "
+                f"standard error "
                 f"{rare.std_error:.2g}" + (f", beta = {rare.beta:.2f} (first-order Phi(-beta) = "
                                            f"{rare.first_order:.2g}, for reference)"
                                            if rare.found_failure_point else "")
@@ -173,7 +176,8 @@ def _convergence_note(check) -> str:
     if relative <= WANTED_RELATIVE_ERROR:
         return ""
     needed = trials_for_relative_error(p, WANTED_RELATIVE_ERROR)
-    return (f"{check.name}: {estimate.failures:,} failures in {estimate.trials:,} trials know "
+    failures = f"{estimate.failures:,} failure" + ("" if estimate.failures == 1 else "s")
+    return (f"{check.name}: {failures} in {estimate.trials:,} trials know "
             f"P(fail) to +-{relative:.0%} (standard error); about {needed:,} trials would give "
             f"+-{WANTED_RELATIVE_ERROR:.0%}" + ("" if getattr(check, "rare", None) is not None
                                                 else ", or use --rare"))

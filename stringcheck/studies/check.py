@@ -60,6 +60,10 @@ _CHUNK_ELEMENTS = 1_000_000
 # The checks --rare estimates by importance sampling (the time-domain transient check simulates too
 # few strings for it: it keeps its plain estimate).
 RARE_CHECKS = ("static", "dynamic", "parallel", "thermal")
+# The automatic importance sampler runs on a check whose plain run saw fewer failures than this
+# (and could not decide the check): about the count below which the plain run's relative error
+# exceeds 30 % (common practice).
+AUTO_RARE_FAILURES = 10
 # Trials per slice of a chunk in the solvers (whole sampling blocks).
 _SOLVE_TRIALS = 2 * BLOCK_TRIALS
 
@@ -125,7 +129,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
               pool: WorkerPool | None = None, transient: bool = False,
               transient_worst: int = DEFAULT_WORST,
               transient_sample: int | None = None, drivers: bool = False,
-              rare: bool = False, rare_samples: int = DEFAULT_SAMPLES) -> CheckResult:
+              rare: bool | None = False, rare_samples: int = DEFAULT_SAMPLES) -> CheckResult:
     """Run the series check of ``design`` (static sharing always, dynamic when there is a turn-off).
 
     Parameters
@@ -152,12 +156,16 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         Estimate the P(fail) of the static, dynamic, parallel and thermal checks by importance
         sampling (``studies.rare_events``) with ``rare_samples`` strings; each check then passes
         on that estimate's upper bound (the plain exact interval decides when the two disagree).
+        None: automatically, for each check whose plain run could not decide it with fewer than
+        :data:`AUTO_RARE_FAILURES` failures (:func:`needs_rare`); never under a mix.
     drivers
         Rank the inputs by their influence on each series check's worst stress, and rerun the
         check with each of the top inputs tightened (``studies.drivers``).
     """
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
+    if rare is None and design.string.mix is not None:
+        rare = False  # automatic: not available under a mix
     if rare or drivers:
         refuse_under_mix(design, "--rare" if rare else "--drivers")
     if trials < 1:
@@ -169,7 +177,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                           "`stringcheck size` to choose them)", source=design.source,
                           key="grading.resistor")
     if rare:
-        _check_rare_inputs(design)
+        rare_design(design)  # a lot too small to fit is refused before the run
     if only is None or "dynamic" in only:
         design = with_recovery_charge(design)
     layout = design.string
@@ -267,11 +275,11 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     impossible = impossibility(design)
     grading = grading_summary(design, checks, temperature,
                               position_values(design, lambda p: p.c_j, pick=np.maximum))
-    if rare:
+    if rare is not False:
         for name in RARE_CHECKS:
-            if name in checks and checks[name].ran:
+            if name in checks and checks[name].ran and (rare or needs_rare(checks[name], target)):
                 checks[name] = _with_rare(checks[name], context, seed, confidence, target,
-                                          rare_samples)
+                                          rare_samples, automatic=rare is None)
     passed = all(check.passed for check in checks.values() if check.ran)
     ranking: tuple[Driver, ...] = ()
     if drivers and features:
@@ -471,19 +479,39 @@ def evaluate_strings(context: _ChunkContext, drawn: DrawnStrings, check: str) ->
     return np.concatenate(accumulator.worst_ratios)
 
 
-def _check_rare_inputs(design: Design) -> None:
-    """The importance sampler moves latent normal values; a resampled lot has none to move."""
+def rare_design(design: Design) -> tuple[Design, tuple[str, ...]]:
+    """The design the importance sampler draws from, and the parts whose lots it refitted.
+
+    The sampler moves latent normal values, and a resampled lot has none to move (its devices are
+    discrete rows): such a lot enters through its fit instead (:meth:`MeasuredLot.as_fitted`).
+    A lot too small to fit is a :class:`DesignError` naming ``parts.NAME.measured``.
+    """
+    parts = dict(design.parts)
+    refitted = []
     for name in design.parts_used():
-        lot = design.parts[name].measured
+        lot = parts[name].measured
         if lot is not None and lot.resampled:
-            raise DesignError("is \"resample\" (or not given), but --rare shifts a continuous "
-                              "distribution, which a resampled lot does not have; set fit = "
-                              "\"auto\" (a fit to the lot) to use --rare",
-                              source=design.source, key=f"parts.{name}.fit")
+            try:
+                parts[name] = replace(parts[name], measured=lot.as_fitted())
+            except DesignError as error:
+                raise DesignError(f"is resampled, and --rare needs a fit to it: {error.detail}, "
+                                  "or run without --rare", source=design.source,
+                                  key=f"parts.{name}.measured") from None
+            refitted.append(name)
+    return (replace(design, parts=parts) if refitted else design), tuple(refitted)
+
+
+def needs_rare(check, target: float) -> bool:
+    """Whether the automatic mode runs the importance sampler on ``check``: its plain run saw
+    fewer than :data:`AUTO_RARE_FAILURES` failures and its exact interval holds the target (the
+    plain run fails the check only for want of trials: a longer run could pass it)."""
+    estimate = check.estimate
+    return (estimate is not None and estimate.failures < AUTO_RARE_FAILURES
+            and estimate.ci_low <= target < estimate.ci_high)
 
 
 def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, target: float,
-               samples: int):
+               samples: int, *, automatic: bool = False):
     """The check with its P(fail) estimated by importance sampling, passing on that estimate's
     upper bound, unless that bound lies below the plain run's exact lower bound (then the plain
     interval decides, and the estimate says so)."""
@@ -501,8 +529,27 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
         def evaluate(drawn: DrawnStrings) -> np.ndarray:
             return forward_ratios(context.design, context.forward, drawn, name)
     plain = check.estimate
-    estimate = rare_event_estimate(context.design, name, parameters, evaluate, seed=seed,
-                                   confidence=confidence, samples=samples, plain=plain)
+    try:
+        design, refitted = rare_design(context.design)
+    except DesignError:
+        if not automatic:
+            raise
+        return check  # automatic: a lot too small to fit keeps the plain estimate
+    # A refitted lot is a model of the lot, the plain run's draws are the lot itself: the two are
+    # not pooled, and without a failure point the plain run decides.
+    estimate = rare_event_estimate(design, name, parameters, evaluate, seed=seed,
+                                   confidence=confidence, samples=samples,
+                                   plain=None if refitted else plain)
+    estimate = replace(estimate, automatic=automatic)
+    if refitted:
+        estimate = replace(estimate, estimator=estimate.estimator + (
+            f"; the resampled lot(s) of {', '.join(refitted)} drawn from their fit (per column "
+            "lognormal or normal, Gaussian copula)"))
+        if not estimate.found_failure_point:
+            note = ("no failure point found and the sampler drew the lot's fit, not the lot: the "
+                    "plain run (the lot itself) decides")
+            estimate = replace(estimate, decides=False, note=note)
+            return replace(check, rare=estimate, passed=plain.ci_high <= target)
     if estimate.found_failure_point and plain is not None and estimate.ci_high < plain.ci_low:
         # Two intervals of one probability that do not meet: one of the estimators is wrong, and
         # the importance sampler is the one that can be (a failure region it never sampled, such

@@ -67,6 +67,8 @@ class RareEstimate:
     number of plain trials behind the interval when no failure point was found (the sampler's plain
     samples plus the check's own run; 0 otherwise). ``decides`` is False when the check's verdict
     comes from its plain Monte Carlo run instead (set by the check), and ``note`` says why.
+    ``automatic`` is True when the estimator ran without being asked, because the check's plain
+    run saw too few failures to decide it (set by the check).
     """
 
     check: str
@@ -86,6 +88,7 @@ class RareEstimate:
     pooled_trials: int = 0
     decides: bool = True
     note: str = ""
+    automatic: bool = False
 
 
 
