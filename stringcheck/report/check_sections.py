@@ -136,6 +136,7 @@ def transient_to_dict(check: TransientCheck) -> dict[str, Any]:
         "inductance": json_number(check.inductance),
         "forward_current": json_number(check.forward_current),
         "notes": list(check.notes),
+        "rare": rare_to_dict(check.rare),
         "positions": [
             {"branch": p.branch, "index": p.index, "part": p.part, "limit": p.limit,
              "mean_voltage": json_number(p.mean_voltage), "std_voltage": json_number(p.std_voltage),

@@ -35,12 +35,18 @@ from .forward_check import (
     forward_setup,
     run_forward_chunk,
 )
-from .transient_check import DEFAULT_WORST, run_transient
+from .transient_check import DEFAULT_WORST, run_transient, transient_evaluator
 from .transient_check import not_run as not_run_transient
 from .drivers import DRIVER_TRIALS, TEMPERATURE_CHECKS, TOP_DRIVERS, Driver, chunk_features
 from .drivers import cooler, label, rank_inputs, tightenable, tightened
 from .grading_summary import GradingSummary, grading_summary
-from .rare_events import DEFAULT_SAMPLES, RareEstimate, rare_event_estimate
+from .rare_events import (
+    COARSE_SEARCH,
+    DEFAULT_SAMPLES,
+    RareEstimate,
+    SearchEffort,
+    rare_event_estimate,
+)
 from .check_inputs import (
     RESISTOR_TCR_REFERENCE,
     dynamic_check_reason,
@@ -57,9 +63,11 @@ from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 # A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
 # in the trial count.
 _CHUNK_ELEMENTS = 1_000_000
-# The checks --rare estimates by importance sampling (the time-domain transient check simulates too
-# few strings for it: it keeps its plain estimate).
+# The checks whose inputs the drivers rank; --rare estimates these and the transient check by
+# importance sampling.
 RARE_CHECKS = ("static", "dynamic", "parallel", "thermal")
+# The transient check's importance sampler: each string costs milliseconds of the turn-off engine.
+TRANSIENT_RARE_SAMPLES = 2000
 # The automatic importance sampler runs on a check whose plain run saw fewer failures than this
 # (and could not decide the check): about the count below which the plain run's relative error
 # exceeds 30 % (common practice).
@@ -276,7 +284,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     grading = grading_summary(design, checks, temperature,
                               position_values(design, lambda p: p.c_j, pick=np.maximum))
     if rare is not False:
-        for name in RARE_CHECKS:
+        for name in RARE_CHECKS + ("transient",):
             if name in checks and checks[name].ran and (rare or needs_rare(checks[name], target)):
                 checks[name] = _with_rare(checks[name], context, seed, confidence, target,
                                           rare_samples, automatic=rare is None)
@@ -516,7 +524,13 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
     upper bound, unless that bound lies below the plain run's exact lower bound (then the plain
     interval decides, and the estimate says so)."""
     name = check.name
-    if name in ("static", "dynamic"):
+    effort = SearchEffort()
+    if name == "transient":
+        parameters = ("q_rr",)
+        evaluate = transient_evaluator(context.design)
+        effort = COARSE_SEARCH
+        samples = min(samples, TRANSIENT_RARE_SAMPLES)
+    elif name in ("static", "dynamic"):
         parameters = ("i_r",) if name == "static" else ("q_rr",)
 
         def evaluate(drawn: DrawnStrings) -> np.ndarray:
@@ -539,8 +553,10 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
     # not pooled, and without a failure point the plain run decides.
     estimate = rare_event_estimate(design, name, parameters, evaluate, seed=seed,
                                    confidence=confidence, samples=samples,
-                                   plain=None if refitted else plain)
+                                   plain=None if refitted else plain, effort=effort)
     estimate = replace(estimate, automatic=automatic)
+    # The transient check also fails on any of its simulated worst charge-balance strings.
+    worst_ok = getattr(check, "worst_failures", 0) == 0
     if refitted:
         estimate = replace(estimate, estimator=estimate.estimator + (
             f"; the resampled lot(s) of {', '.join(refitted)} drawn from their fit (per column "
@@ -549,7 +565,7 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
             note = ("no failure point found and the sampler drew the lot's fit, not the lot: the "
                     "plain run (the lot itself) decides")
             estimate = replace(estimate, decides=False, note=note)
-            return replace(check, rare=estimate, passed=plain.ci_high <= target)
+            return replace(check, rare=estimate, passed=plain.ci_high <= target and worst_ok)
     if estimate.found_failure_point and plain is not None and estimate.ci_high < plain.ci_low:
         # Two intervals of one probability that do not meet: one of the estimators is wrong, and
         # the importance sampler is the one that can be (a failure region it never sampled, such
@@ -558,8 +574,8 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
                 f"Monte Carlo lower bound {plain.ci_low:.2g} ({plain.failures:,} of "
                 f"{plain.trials:,}): the estimators disagree, so the plain interval decides")
         estimate = replace(estimate, decides=False, note=note)
-        return replace(check, rare=estimate, passed=plain.ci_high <= target)
-    return replace(check, rare=estimate, passed=estimate.ci_high <= target)
+        return replace(check, rare=estimate, passed=plain.ci_high <= target and worst_ok)
+    return replace(check, rare=estimate, passed=estimate.ci_high <= target and worst_ok)
 
 
 def _drivers(design: Design, checks, features: dict[str, list], ratios: dict[str, list], *,

@@ -56,6 +56,34 @@ _RAY_LIMIT = 12.0  # |u| beyond which failure is not looked for (Phi(-12) ~ 2e-3
 _BATCH = 4096
 _PILOT = 10_000  # plain samples whose nearest failure (if any) seeds the search
 _SEEDS = 2  # pilot samples with the highest g whose direction and gradient also seed rays
+_NEAR_RADIUS = 1.0  # latent units: an image this close to failure is a shift of the mixture
+
+
+@dataclass(frozen=True)
+class SearchEffort:
+    """How hard the failure-point search works: ``pilot`` plain samples, finite-difference
+    ``step`` in latent units, ``ray_points`` strings along each ray, then ``rounds`` of
+    ``round_points`` strings each closing in on the first failure (one point a round is
+    bisection), and at most ``refine_iterations`` of SLSQP (0: none; the closest first failure
+    on a ray is the failure point). The defaults suit failure functions that cost microseconds a
+    string and are exact to rounding; an expensive or noisy one (the time-domain turn-off,
+    milliseconds a string whatever the batch, integrated to a relative tolerance) takes fewer,
+    batched evaluations and a coarser step (:data:`COARSE_SEARCH`). The estimate is unbiased
+    whatever the search finds; a poorer failure point only widens its interval."""
+
+    pilot: int = _PILOT
+    step: float = _STEP
+    ray_points: int = 241
+    rounds: int = 40
+    round_points: int = 1
+    refine_iterations: int = 60
+
+
+# For the transient check: integration noise of ~1e-4 relative needs a step of 1e-2 for useful
+# gradients; single strings cost as much as batches of dozens, so the rays close in 15 points a
+# round (4 rounds: to 4e-6 of |u|) and SLSQP, one string a call, is left out.
+COARSE_SEARCH = SearchEffort(pilot=1000, step=1e-2, ray_points=49, rounds=4, round_points=15,
+                             refine_iterations=0)
 
 
 @dataclass(frozen=True)
@@ -193,7 +221,8 @@ class _Space:
 def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
                         evaluate: Callable[[DrawnStrings], np.ndarray], *, seed: int,
                         confidence: float, samples: int = DEFAULT_SAMPLES,
-                        plain: FailureEstimate | None = None) -> RareEstimate:
+                        plain: FailureEstimate | None = None,
+                        effort: SearchEffort = SearchEffort()) -> RareEstimate:
     """Importance-sampling estimate of P(worst stress ratio > 1) for one check.
 
     ``evaluate`` maps built strings to each string's worst stress ratio (unsolved strings: inf).
@@ -211,11 +240,19 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
         return out
 
     rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(_STREAM,)))
-    pilot = rng.standard_normal((_PILOT, space.dimension))
-    point = _failure_point(g, space.dimension, pilot, g(pilot))
+    pilot = rng.standard_normal((effort.pilot, space.dimension))
+    point = _failure_point(g, space.dimension, pilot, g(pilot), effort)
     found = point is not None
-    shifts = failure_point_images(design, space, point) if found \
-        else np.zeros((0, space.dimension))
+    if found:
+        # An image within one latent unit of failure along the steepest ascent counts as near.
+        slope = float(np.linalg.norm(_gradient(g, point, effort.step)[1]))
+
+        def near(images: np.ndarray) -> np.ndarray:
+            return g(images) >= 1.0 - _NEAR_RADIUS * slope
+
+        shifts = failure_point_images(design, space, point, near)
+    else:
+        shifts = np.zeros((0, space.dimension))
     beta = float(np.linalg.norm(point)) if found else math.inf
     u = mixture_sample(rng, samples, shifts, _MIXTURE_WEIGHT)
     failed = ~(g(u) <= 1.0)
@@ -233,7 +270,7 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
         pooled = failure_estimate(failures + extra_failures, samples + extra_trials,
                                   confidence=confidence)
         text = (f"no failure point found within |u| <= {_RAY_LIMIT:g} (steepest ascent, "
-                f"{_PILOT:,} plain pilot samples and rays from the highest of them): ")
+                f"{effort.pilot:,} plain pilot samples and rays from the highest of them): ")
         text += (f"the sampler's {samples:,} plain samples pooled with the check's "
                  f"{extra_trials:,} Monte Carlo trials, exact interval" if extra_trials
                  else "plain sampling with the exact interval")
@@ -255,42 +292,62 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
         importance=space.importance(point), failure_points=count)
 
 
-def _position_keys(design: Design) -> np.ndarray:
-    """What makes two positions interchangeable: part, temperature rise and placed serial."""
+def _position_keys(design: Design, *, with_temperature: bool = True) -> np.ndarray:
+    """What makes two positions interchangeable: part, temperature rise and placed serial (the
+    temperature rise left out with ``with_temperature`` False)."""
     layout = design.string
     keys = np.empty((layout.parallel, layout.series), dtype=object)
     parts, rises, serials = layout.part_grid(), layout.temperature_rise_grid(), \
         layout.serial_grid()
     for position in np.ndindex(keys.shape):
-        keys[position] = (parts[position], float(rises[position]), serials[position])
+        rise = float(rises[position]) if with_temperature else 0.0
+        keys[position] = (parts[position], rise, serials[position])
     return keys
 
 
-def failure_point_images(design: Design, space: _Space, point: np.ndarray) -> np.ndarray:
+def failure_point_images(design: Design, space: _Space, point: np.ndarray,
+                         near: Callable[[np.ndarray], np.ndarray] | None = None) -> np.ndarray:
     """The failure point and its distinct images under the design's exchangeable positions, (M, D).
 
     The dominant position (b, i) is swapped with every other position (b', j): branches b and b'
-    trade places, then positions i and j trade places in every branch. A swap is used only when it
+    trade places, then positions i and j trade places in every branch. A swap is used when it
     maps every position onto one of the same part, temperature rise and serial (None: drawn), so
     that the check's stress is unchanged by it: devices in series share one current and parallel
-    branches one voltage, whatever their order. A design with a mix is refused before (a position
+    branches one voltage, whatever their order. With ``near`` (images -> bool each), a swap that
+    differs only in temperature rises is used too where ``near`` says its image lies close to
+    failure: a check the temperature hardly moves (the charge balance, the turn-off) has nearly
+    the same failure point at every position, and leaving them out would estimate only the
+    share of P(fail) of the positions kept. A design with a mix is refused before (a position
     holds either part from string to string). Any set of shifts keeps the estimate unbiased; the
     images make it efficient.
     """
     keys = _position_keys(design)
+    loose = _position_keys(design, with_temperature=False)
     branches, series = keys.shape
     branch, index = space.dominant_position(point)
     images = [point]
+    candidates = []
     tolerance = 1e-9 * max(1.0, float(np.linalg.norm(point)))
+
+    def distinct(image: np.ndarray) -> bool:
+        return np.min(np.linalg.norm(np.asarray(images) - image, axis=1)) > tolerance
+
     for other_branch in range(branches):
         for other_index in range(series):
             rows, columns = np.arange(branches), np.arange(series)
             rows[[branch, other_branch]] = rows[[other_branch, branch]]
             columns[[index, other_index]] = columns[[other_index, index]]
-            if not np.all(keys[np.ix_(rows, columns)] == keys):
-                continue
-            image = space.permuted(point, rows, columns)
-            if np.min(np.linalg.norm(np.asarray(images) - image, axis=1)) > tolerance:
+            swap = np.ix_(rows, columns)
+            if np.all(keys[swap] == keys):
+                image = space.permuted(point, rows, columns)
+                if distinct(image):
+                    images.append(image)
+            elif near is not None and np.all(loose[swap] == loose):
+                candidates.append(space.permuted(point, rows, columns))
+    if candidates:
+        candidates = np.array(candidates)
+        for image in candidates[np.asarray(near(candidates), dtype=bool)]:
+            if distinct(image):
                 images.append(image)
     return np.array(images)
 
@@ -327,35 +384,40 @@ def mixture_weight(u: np.ndarray, shifts: np.ndarray, defensive: float) -> np.nd
     return np.exp(-np.logaddexp(math.log(defensive), math.log(1.0 - defensive) + log_shifted))
 
 
-def _gradient(g, u: np.ndarray) -> tuple[float, np.ndarray]:
+def _gradient(g, u: np.ndarray, step: float = _STEP) -> tuple[float, np.ndarray]:
     """g(u) and its forward-difference gradient, all in one batch of D + 1 strings."""
     dimension = u.size
     rows = np.repeat(u[None, :], dimension + 1, axis=0)
-    rows[1:] += _STEP * np.eye(dimension)
+    rows[1:] += step * np.eye(dimension)
     values = g(rows)
-    return float(values[0]), (values[1:] - values[0]) / _STEP
+    return float(values[0]), (values[1:] - values[0]) / step
 
 
-def _on_ray(g, direction: np.ndarray) -> np.ndarray | None:
-    """The first point of the ray t d (0 < t <= 12) with g > 1, to 1e-12, or None."""
-    radii = np.linspace(0.0, _RAY_LIMIT, 241)
+def _on_ray(g, direction: np.ndarray, effort: SearchEffort = SearchEffort()) -> np.ndarray | None:
+    """The first point of the ray t d (0 < t <= 12) with g > 1, or None: located among
+    ``ray_points`` radii, then narrowed ``rounds`` times by ``round_points`` equally spaced
+    radii inside the bracket (bisection for one; 1e-12 by default)."""
+    radii = np.linspace(0.0, _RAY_LIMIT, effort.ray_points)
     along = g(radii[:, None] * direction[None, :])
     beyond = np.flatnonzero(along > 1.0)
     if beyond.size == 0:
         return None
     high = radii[beyond[0]]
     low = radii[beyond[0] - 1]
-    for _ in range(40):
-        middle = 0.5 * (low + high)
-        if g(middle * direction[None, :])[0] > 1.0:
-            high = middle
+    inside = np.arange(1, effort.round_points + 1) / (effort.round_points + 1)
+    for _ in range(effort.rounds):
+        trial = low + (high - low) * inside
+        failing = np.flatnonzero(g(trial[:, None] * direction[None, :]) > 1.0)
+        if failing.size:
+            high = trial[failing[0]]
+            low = trial[failing[0] - 1] if failing[0] > 0 else low
         else:
-            low = middle
+            low = trial[-1]
     return high * direction
 
 
-def _failure_point(g, dimension: int, pilot: np.ndarray,
-                   pilot_values: np.ndarray) -> np.ndarray | None:
+def _failure_point(g, dimension: int, pilot: np.ndarray, pilot_values: np.ndarray,
+                   effort: SearchEffort = SearchEffort()) -> np.ndarray | None:
     """u* = argmin |u| subject to g(u) >= 1, or None when no failure is found.
 
     Rays from the origin: along the steepest ascent of g at the origin, along the nearest failing
@@ -364,7 +426,7 @@ def _failure_point(g, dimension: int, pilot: np.ndarray,
     exchangeable devices keeps them balanced, a pilot sample does not). The closest first failure
     on any ray starts SLSQP."""
     origin = np.zeros(dimension)
-    value, gradient = _gradient(g, origin)
+    value, gradient = _gradient(g, origin, effort.step)
     if value > 1.0:
         return origin
     directions = [gradient]
@@ -375,27 +437,29 @@ def _failure_point(g, dimension: int, pilot: np.ndarray,
     finite = np.where(np.isfinite(pilot_values), pilot_values, -np.inf)
     for row in np.argsort(-finite, kind="stable")[:_SEEDS]:
         directions.append(pilot[row])
-        directions.append(_gradient(g, pilot[row])[1])
+        directions.append(_gradient(g, pilot[row], effort.step)[1])
     starts = []
     for direction in directions:
         norm = np.linalg.norm(direction)
         if norm > 0 and np.isfinite(norm):
-            starts.append(_on_ray(g, direction / norm))
+            starts.append(_on_ray(g, direction / norm, effort))
     starts = [point for point in starts if point is not None]
     if not starts:
         return None
     start = min(starts, key=np.linalg.norm)
+    if effort.refine_iterations == 0:
+        return start
 
     def constraint(u):
         return float(g(u[None, :])[0]) - 1.0
 
     def constraint_jacobian(u):
-        return _gradient(g, u)[1]
+        return _gradient(g, u, effort.step)[1]
 
     result = optimize.minimize(lambda u: 0.5 * float(u @ u), start, jac=lambda u: u,
                                method="SLSQP",
                                constraints=[{"type": "ineq", "fun": constraint,
                                              "jac": constraint_jacobian}],
-                               options={"maxiter": 60, "ftol": 1e-10})
+                               options={"maxiter": effort.refine_iterations, "ftol": 1e-10})
     candidate = result.x if result.success and g(result.x[None, :])[0] >= 1.0 - 1e-6 else start
     return candidate if np.linalg.norm(candidate) <= np.linalg.norm(start) else start

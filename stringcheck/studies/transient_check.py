@@ -21,16 +21,18 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
 
 from ..design import Design
 from ..physics.charge_control_fit import lifetime_for_charge
-from ..sampling import BLOCK_TRIALS, draw_strings
+from ..sampling import BLOCK_TRIALS, DrawnStrings, draw_strings
 from ..solvers.transient import simulate_turn_off
 from ..errors import StringcheckError
 from ..stats import FailureEstimate, failure_estimate
 from .mixed_stock import device_part_grid, position_values
+from .rare_events import RareEstimate
 from .recovery_conditions import (
     InconsistentRecoveryData,
     PartFit,
@@ -86,6 +88,7 @@ class TransientCheck:
     forward_current: float
     positions: tuple[TransientPosition, ...]
     notes: tuple[str, ...]
+    rare: RareEstimate | None = None
 
 
 def not_run(reason: str) -> TransientCheck:
@@ -182,9 +185,8 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
 
 
 def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: int) -> dict:
-    """Redraw the selected trials (block by block); the engine's stage inputs, one row per branch
-    of each selected trial, shape (selected x parallel, series), and each device's limit
-    derating x V_RRM [V], (selected, parallel, series)."""
+    """Redraw the selected trials (block by block); the engine's stage inputs
+    (:func:`_engine_inputs`)."""
     layout = design.string
     shape = (selected.size, layout.parallel, layout.series)
     grid = np.empty(shape, dtype=object)
@@ -204,6 +206,17 @@ def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: i
             resistance[where] = drawn.resistance[rows]
         if drawn.capacitance is not None:
             capacitance[where] = drawn.capacitance[rows]
+    return _engine_inputs(design, fits, grid, charge, resistance, capacitance)
+
+
+def _engine_inputs(design: Design, fits, grid: np.ndarray, charge: np.ndarray,
+                   resistance: np.ndarray, capacitance: np.ndarray) -> dict:
+    """The engine's stage inputs, one row per branch of each string, shape (strings x parallel,
+    series), from each device's part (``grid``), drawn Q_rr [C] and grading R [ohm] and C [F],
+    (strings, parallel, series); and each device's limit derating x V_RRM [V], (strings,
+    parallel, series)."""
+    layout = design.string
+    shape = charge.shape
     # The part of each device (with a mix it varies from trial to trial).
     transit = np.empty(shape)
     lifetime = np.empty(shape)
@@ -216,12 +229,36 @@ def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: i
                                              fit.test_rate)
         junction[mask] = design.parts[name].c_j
         limit[mask] = layout.derating * design.parts[name].v_rrm
-    rows_shape = (selected.size * layout.parallel, layout.series)
+    rows_shape = (shape[0] * layout.parallel, layout.series)
     return {"lifetime": lifetime.reshape(rows_shape),
             "transit_time": transit.reshape(rows_shape),
             "junction_capacitance": junction.reshape(rows_shape),
             "grading_resistance": resistance.reshape(rows_shape),
             "grading_capacitance": capacitance.reshape(rows_shape), "limit": limit}
+
+
+def transient_evaluator(design: Design) -> Callable[[DrawnStrings], np.ndarray]:
+    """The worst peak reverse voltage of each built string over its limit, inf where the engine
+    could not finish: the failure function of the transient check for the importance sampler
+    (strings drawn with ``("q_rr",)``, no mix). The design must pass :func:`transient_reason`."""
+    fits, reason = _fits_or_reason(design)
+    if reason:
+        raise ValueError(f"the turn-off cannot be simulated: {reason}")
+    inductance, forward, _ = _loop(design, fits)
+    layout = design.string
+
+    def evaluate(drawn: DrawnStrings) -> np.ndarray:
+        charge = drawn.parameters["q_rr"]
+        shape = charge.shape
+        grid = np.broadcast_to(layout.part_grid(), shape)
+        resistance = np.full(shape, np.inf) if drawn.resistance is None else drawn.resistance
+        capacitance = np.zeros(shape) if drawn.capacitance is None else drawn.capacitance
+        stage = _engine_inputs(design, fits, grid, charge, resistance, capacitance)
+        peaks, _, _, _, solved = _run_engine(design, stage, shape[0], inductance, forward)
+        ratio = np.max(peaks / stage["limit"], axis=(1, 2))
+        return np.where(solved, ratio, np.inf)
+
+    return evaluate
 
 
 def _loop(design: Design, fits) -> tuple[float, float, tuple[str, ...]]:
@@ -275,12 +312,19 @@ def trial_trace(design: Design, trial: int, *, trials: int | None = None,
 def _simulate(design: Design, fits, selected: np.ndarray, trials: int, seed: int,
               inductance: float, forward: float):
     """Run each branch of the selected trials through the engine, in batches."""
-    layout = design.string
-    shape = (selected.size, layout.parallel, layout.series)
     stage = _stage_rows(design, fits, selected, trials, seed)
+    return _run_engine(design, stage, selected.size, inductance, forward) + (stage["limit"],)
+
+
+def _run_engine(design: Design, stage: dict, strings: int, inductance: float, forward: float):
+    """Each branch of ``strings`` strings (``stage``: :func:`_engine_inputs`) through the engine,
+    in batches: peaks, overshoots and damping energies (strings, parallel, series) [V, V, J],
+    peak recovery currents (strings, parallel) [A], and whether each string was solved."""
+    layout = design.string
+    shape = (strings, layout.parallel, layout.series)
     damping = design.grading.damping_resistor or 0.0
     temperature = design.duty.ambient + 273.15
-    flat = selected.size * layout.parallel
+    flat = strings * layout.parallel
     rows_shape = (flat, layout.series)
     peaks = np.empty(rows_shape)
     overshoot = np.empty(rows_shape)
@@ -299,7 +343,7 @@ def _simulate(design: Design, fits, selected: np.ndarray, trials: int, seed: int
         current[part] = result.peak_current
         energy[part] = result.damping_energy
         converged[part] = result.converged & np.all(np.isfinite(result.peak_voltage), axis=1)
-    per_trial = (selected.size, layout.parallel)
+    per_trial = (strings, layout.parallel)
     solved = converged.reshape(per_trial).all(axis=1)
     return (peaks.reshape(shape), overshoot.reshape(shape), current.reshape(per_trial),
-            energy.reshape(shape), solved, stage["limit"])
+            energy.reshape(shape), solved)

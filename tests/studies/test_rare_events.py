@@ -155,7 +155,7 @@ def test_estimators_that_disagree_leave_the_verdict_to_the_exact_interval(parall
     # 8.1e-5), which it must not overrule: the plain interval decides (upper 5.8e-4 > 5e-5, so
     # the check fails).
     monkeypatch.setattr(rare_events, "failure_point_images",
-                        lambda design, space, point: point[None, :])
+                        lambda design, space, point, near=None: point[None, :])
     text = _parallel_group(parallel_pair_design, 2, 4.0) + "[sizing]\ntarget_p_fail = 5e-5\n"
     check = run_check(parse_design_text(text), trials=20000, seed=48,
                       rare=True).checks["parallel"]
@@ -310,3 +310,116 @@ def test_a_series_parallel_grid_of_identical_positions_against_a_long_plain_run(
     assert abs(rare.p_fail - plain.p_fail) <= 3.0 * math.hypot(rare.std_error, plain_error)
     assert rare.std_error < 0.06 * rare.p_fail
     assert rare.decides
+
+
+# Four stages on 1.9 kV sharing the turn-off by charge balance, 0.5 nF each, unscreened lognormal
+# Q_rr (max 2.5x typ): P(fail) ~ 3.5e-3. Position 1 runs 30 K hotter, which moves its leakage but
+# not its recovery charge. Our own values.
+_HOT_FIRST = """
+[duty]
+reverse_voltage = "1.9 kV"
+di_dt = "10 A/us"
+[string]
+series = 4
+part = "A"
+derating = 1.0
+[[string.position]]
+index = 1
+temperature_rise = "30 K"
+[parts.A]
+v_rrm = "600 V"
+i_r = { typ = "1 uA", max = "10 uA" }
+q_rr = { typ = "80 nC", max = "200 nC" }
+[grading]
+resistor = "100 MOhm"
+capacitor = "0.5 nF"
+[monte_carlo]
+screened = false
+seed = 3
+"""
+
+
+def test_positions_that_differ_only_in_temperature_still_share_the_charge_balance_failure(
+        monkeypatch):
+    # The charge balance does not depend on the temperature rise, so all four positions have
+    # the same failure point; keyed on the temperature rise alone, the images would cover 1 or 3
+    # of them and the estimate ~1/4 or ~3/4 of P(fail). Reference: 200,000 plain trials (~700
+    # failures), agreement within 3 combined standard errors.
+    design = parse_design_text(_HOT_FIRST)
+    check = run_check(design, trials=200_000, rare=True, only=("dynamic",)).checks["dynamic"]
+    plain, rare = check.estimate, check.rare
+    assert plain.failures > 400 and rare.failure_points == 4
+    plain_error = math.sqrt(plain.p_fail * (1 - plain.p_fail) / plain.trials)
+    assert abs(rare.p_fail - plain.p_fail) <= 3.0 * math.hypot(rare.std_error, plain_error)
+    # Without the check of which images lie near failure, the hot position is left out or alone.
+    original = rare_events.failure_point_images
+    monkeypatch.setattr(rare_events, "failure_point_images",
+                        lambda design, space, point, near=None: original(design, space, point))
+    keyed = run_check(design, trials=4096, rare=True, only=("dynamic",)).checks["dynamic"].rare
+    assert keyed.failure_points in (1, 3)
+
+
+# Four fast-recovery stages on 7.35 kV with R-C-R_d grading, 1.2 kOhm damping: the turn-off peak
+# of the worst stage passes V_RRM in about 1.3 % of built strings. Our own values.
+_TURN_OFF_FOUR = """
+[duty]
+reverse_voltage = "7.35 kV"
+forward_current = "0.5 A"
+waveform = "half-sine"
+frequency = "50 Hz"
+di_dt = "10 A/us"
+[string]
+series = 4
+part = "F"
+derating = 1.0
+[parts.F]
+v_rrm = "2 kV"
+i_r = { typ = "0.2 uA", max = "2 uA", at_temperature = "25 degC", at_voltage = "2 kV" }
+q_rr = { typ = "80 nC", max = "150 nC", at_di_dt = "10 A/us", at_forward_current = "0.5 A" }
+t_rr = { typ = "0.2 us", max = "0.3 us", at_di_dt = "10 A/us" }
+c_j = "15 pF"
+[grading]
+resistor = "4.7 MOhm"
+resistor_tolerance = "1 %"
+capacitor = "2.2 nF"
+capacitor_tolerance = "10 %"
+damping_resistor = "1.2 kOhm"
+[monte_carlo]
+seed = 4
+"""
+
+
+def test_the_transient_failure_function_is_the_transient_checks_own():
+    # The importance sampler judges a string with the engine exactly as the check does: the same
+    # drawn strings give the same worst peak over limit.
+    from stringcheck.sampling import draw_strings
+    from stringcheck.studies.transient_check import (
+        _fits_or_reason,
+        _loop,
+        _simulate,
+        transient_evaluator,
+    )
+
+    design = parse_design_text(_TURN_OFF_FOUR)
+    fits, _ = _fits_or_reason(design)
+    inductance, forward, _ = _loop(design, fits)
+    peaks, _, _, _, solved, limits = _simulate(design, fits, np.arange(6), 6, 4, inductance,
+                                               forward)
+    expected = np.where(solved, np.max(peaks / limits, axis=(1, 2)), np.inf)
+    drawn = draw_strings(design, ("q_rr",), 0, 6, seed=4)
+    np.testing.assert_array_equal(transient_evaluator(design)(drawn), expected)
+
+
+def test_importance_sampling_of_the_transient_check_against_its_plain_sample():
+    # No closed form for a turn-off: the reference is the check's own plain sample of 3,000
+    # simulated strings (~40 failures). The two must agree within 3 combined standard errors;
+    # the sampler shifts to all four stages (identical), with a coarse search (SearchEffort).
+    result = run_check(parse_design_text(_TURN_OFF_FOUR), trials=4096, transient=True,
+                       transient_sample=3000, transient_worst=0, rare=True)
+    check = result.checks["transient"]
+    plain, rare = check.estimate, check.rare
+    assert plain.failures > 15 and rare.found_failure_point and rare.failure_points == 4
+    assert rare.samples == 2000 and rare.decides
+    plain_error = math.sqrt(plain.p_fail * (1 - plain.p_fail) / plain.trials)
+    assert abs(rare.p_fail - plain.p_fail) <= 3.0 * math.hypot(rare.std_error, plain_error)
+    assert check.passed == (rare.ci_high <= result.target_p_fail)
