@@ -331,7 +331,7 @@ def size(
 
 
 def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trials, seed,
-            json_path, quiet, workers, transient) -> int:
+            json_path, quiet, workers, transient, drivers=False, rare=None) -> int:
     from .design import load_design
     from .report.export import check_output_targets, json_text, write_text_atomic
     from .report.review import render_review, render_review_summary, review_to_dict
@@ -352,7 +352,7 @@ def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trial
         candidate = swapped(baseline, positions, part)
     with _DelayedProgress(enabled=not quiet, label="baseline, then candidate") as progress:
         result = review(baseline, candidate, trials=trials, seed=seed, workers=workers,
-                        transient=transient, progress=progress)
+                        transient=transient, rare=rare, drivers=drivers, progress=progress)
     if json_path is not None:
         write_text_atomic(json_path, json_text(review_to_dict(result)))
     _print_report(result, quiet=quiet, stderr=json_path == "-", full=render_review,
@@ -384,11 +384,14 @@ def review(
     quiet: bool = _QUIET,
     workers: int = _WORKERS,
     transient: bool = _TRANSIENT,
+    drivers: bool = _DRIVERS,
+    rare: Optional[bool] = _RARE,
     debug: bool = _DEBUG,
 ) -> None:
     """May a candidate replace the baseline? Both checked on the same draws; exit 0 accept, 1 reject."""
     _run(lambda: _review(base, candidate, swap=swap, mix=mix, trials=trials, seed=seed, json_path=json,
-                         quiet=quiet, workers=workers, transient=transient), debug)
+                         quiet=quiet, workers=workers, transient=transient, drivers=drivers,
+                         rare=rare), debug)
 
 
 def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height) -> int:

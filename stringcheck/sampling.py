@@ -38,6 +38,8 @@ from dataclasses import dataclass, field, replace
 from typing import Mapping
 
 import numpy as np
+from scipy import special
+
 from .design import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Design, correlation_matrix
 from .spread_maps import normal_scores, spread_quantile, tolerance_draw
 
@@ -201,6 +203,9 @@ class Latent:
     capacitor: np.ndarray | None
     measured_rows: Mapping[str, np.ndarray] = field(default_factory=dict)
     uniform: bool = False
+    # With a mix: each device's substitution score, (trials, parallel, series); the device is the
+    # mix's part where the score (u, or Phi(z)) is below the fraction. None: the mix's own stream.
+    mix: np.ndarray | None = None
 
 
 @dataclass(frozen=True)
@@ -354,12 +359,19 @@ def _needs_normals(design: Design) -> bool:
 
 
 def strings_from_latent(design: Design, parameters: tuple[str, ...], latent: Latent,
-                        first_trial: int = 0, *, normal_latent: bool | None = None) -> DrawnStrings:
+                        first_trial: int = 0, *, normal_latent: bool | None = None,
+                        seed: int | None = None) -> DrawnStrings:
     """Map latent values onto built strings: lot sharing, copula, spreads and tolerances.
 
     Uniform device scores are turned into standard normals first where the design mixes them
     (``normal_latent``, by default :func:`_needs_normals`); the grading components keep theirs.
+    A design with a mix picks each device's part by ``latent.mix``, or without it by the mix's
+    own stream of ``seed``.
     """
+    if design.string.mix is not None:
+        if latent.mix is None and seed is None:
+            raise ValueError("a design with a mix needs latent.mix or the seed of its stream")
+        return _mixed_strings(design, parameters, latent, first_trial, seed)
     grading_uniform = latent.uniform
     if normal_latent is None:
         normal_latent = _needs_normals(design)
@@ -452,9 +464,7 @@ def draw_strings(design: Design, parameters: tuple[str, ...], first_trial: int, 
     """
     seed = design.monte_carlo.seed if seed is None else seed
     latent = draw_latent(design, parameters, first_trial, count, seed)
-    if design.string.mix is not None:
-        return _mixed_strings(design, parameters, latent, first_trial, seed)
-    return strings_from_latent(design, parameters, latent, first_trial)
+    return strings_from_latent(design, parameters, latent, first_trial, seed=seed)
 
 
 def _mapped_scores(scores: StreamScores, mapper) -> np.ndarray:
@@ -482,22 +492,30 @@ def _uniforms(seed: int, first_trial: int, count: int, component: int, width: in
     return _block_draws(seed, first_trial, count, component, width, draw)
 
 
-def substituted_devices(design: Design, first_trial: int, count: int, seed: int) -> np.ndarray:
+def substituted_devices(design: Design, first_trial: int, count: int, seed: int,
+                        latent: Latent | None = None) -> np.ndarray:
     """Which devices of trials ``first_trial`` .. are the mix's part, (count, parallel, series).
 
     A device is substituted when its uniform u (the mix's own stream) is below the fraction, so it
     is substituted with probability ``fraction`` independently of every other device and draw.
+    With ``latent.mix`` given, that score decides instead: u < fraction for uniform scores,
+    z < Phi^-1(fraction) for standard normals (the rare-event estimator's), the same event.
     """
     layout = design.string
     width = layout.parallel * layout.series
-    u = _uniforms(seed, first_trial, count, _MIX_STREAM, width)
+    fraction = layout.mix.fraction
+    if latent is not None and latent.mix is not None:
+        scores = latent.mix.reshape(count, width)
+        chosen = scores < fraction if latent.uniform else scores < special.ndtri(fraction)
+    else:
+        chosen = _uniforms(seed, first_trial, count, _MIX_STREAM, width) < fraction
     # A device placed by serial number is the one built in: never substituted.
     placed = layout.placed_by_serial()
-    return (u < layout.mix.fraction).reshape(count, layout.parallel, layout.series) & ~placed
+    return chosen.reshape(count, layout.parallel, layout.series) & ~placed
 
 
 def _mixed_strings(design: Design, parameters: tuple[str, ...], latent: Latent, first_trial: int,
-                   seed: int) -> DrawnStrings:
+                   seed: int | None) -> DrawnStrings:
     """Built strings of a design with a mix: every device takes the draw its own part gives its
     latent values (lot sharing within each part), chosen device by device."""
     layout = design.string
@@ -522,7 +540,7 @@ def _mixed_strings(design: Design, parameters: tuple[str, ...], latent: Latent, 
         return replace(base, part_index=index, part_names=names)
     other = strings_from_latent(everywhere, parameters, latent, first_trial,
                                 normal_latent=normal_latent)
-    swap = substituted_devices(design, first_trial, base.trials, seed)
+    swap = substituted_devices(design, first_trial, base.trials, seed, latent)
     index[swap] = lookup[mix.part]
 
     def pick(a: Mapping[str, np.ndarray], b: Mapping[str, np.ndarray]) -> dict:

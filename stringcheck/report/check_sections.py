@@ -50,9 +50,15 @@ def failure_point_text(rare, *, top: int = 3) -> str:
     for item in rare.importance[:top]:
         if item.share < 0.01:
             break
+        if item.input == "mix":  # a low substitution score is a substituted device
+            state = "kept" if item.sign > 0 else "substituted"
+            name = "substitution (mix)"
+        else:
+            state = "high" if item.sign > 0 else "low"
+            name = item.input
         where = "" if item.branch is None else f", mostly branch {item.branch} #{item.index} " \
-            f"{'high' if item.sign > 0 else 'low'}"
-        pieces.append(f"{item.share:.0%} {item.input}{where}")
+            f"{state}"
+        pieces.append(f"{item.share:.0%} {name}{where}")
     return "failure point: " + "; ".join(pieces) if pieces else ""
 
 

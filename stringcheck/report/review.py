@@ -12,7 +12,7 @@ from rich.text import Text
 
 from ..studies.review import ReviewResult
 from .cautions import safety_cautions
-from .check_sections import json_number
+from .check_sections import json_number, render_drivers
 from .export import result_to_dict
 from .lots import render_lots
 
@@ -33,6 +33,7 @@ def review_to_dict(result: ReviewResult) -> dict[str, Any]:
                  "candidate_worst_ratio": json_number(c.candidate_worst_ratio),
                  "baseline_p_fail_upper": json_number(c.baseline_p_fail_upper),
                  "candidate_p_fail_upper": json_number(c.candidate_p_fail_upper),
+                 "baseline_p_fail_by": c.baseline_by, "candidate_p_fail_by": c.candidate_by,
                  "rise": json_number(c.rise), "acceptable": c.acceptable}
                 for c in result.changes],
             "worse_positions": [
@@ -50,8 +51,10 @@ def _ratio(value: float | None) -> str:
     return "-" if value is None or not math.isfinite(value) else f"{value:.3f}"
 
 
-def _bound(value: float | None) -> str:
-    return "-" if value is None else f"{value:.2g}"
+def _bound(value: float | None, by: str = "plain") -> str:
+    if value is None:
+        return "-"
+    return f"{value:.2g}" + (" (IS)" if by == "importance sampling" else "")
 
 
 def _mix(result: ReviewResult) -> dict[str, Any] | None:
@@ -75,8 +78,8 @@ def render_review(result: ReviewResult, console: Console) -> None:
     else:
         console.print(Text(" REJECT ", style="bold white on red"), _why(result))
     console.print()
-    table = Table(title="Side by side (worst = stress / limit; P up = upper bound of P(fail))",
-                  title_justify="left")
+    table = Table(title="Side by side (worst = stress / limit; P up = upper bound of P(fail), "
+                        "(IS) where the importance sampler decided)", title_justify="left")
     for column in ("check", "base worst", "cand worst", "base P up", "cand P up", "change",
                    "result"):
         table.add_column(column, justify="left" if column in ("check", "result") else "right")
@@ -86,7 +89,8 @@ def render_review(result: ReviewResult, console: Console) -> None:
         if not c.baseline_ran and not c.candidate_ran:
             outcome = Text("not run", style="yellow")
         table.add_row(c.name, _ratio(c.baseline_worst_ratio), _ratio(c.candidate_worst_ratio),
-                      _bound(c.baseline_p_fail_upper), _bound(c.candidate_p_fail_upper), change,
+                      _bound(c.baseline_p_fail_upper, c.baseline_by),
+                      _bound(c.candidate_p_fail_upper, c.candidate_by), change,
                       outcome)
     console.print(table)
     if result.worse_positions:
@@ -105,6 +109,16 @@ def render_review(result: ReviewResult, console: Console) -> None:
         console.print(Text("Why, in physical terms:", style="bold"))
         for line in result.reasons:
             console.print(f"  - {line}")
+    for label, checked in (("baseline", base), ("candidate", cand)):
+        for name, check in checked.checks.items():
+            rare = getattr(check, "rare", None) if check.ran else None
+            if rare is not None:
+                console.print(f"{label} {name}: P(fail) from {rare.estimator}"
+                              + (" (run automatically)" if rare.automatic else "")
+                              + f"; {rare.samples:,} samples"
+                              + ("" if rare.decides else f"; {rare.note}"), highlight=False)
+    if cand.drivers:
+        render_drivers(cand, console)
     console.print()
     render_lots(base.design, console, also=cand.design)
     grading = cand.grading

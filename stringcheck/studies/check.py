@@ -55,7 +55,7 @@ from .check_inputs import (
     no_scatter,
     with_recovery_charge,
 )
-from .mixed_stock import device_part_grid, device_values, position_values, refuse_under_mix
+from .mixed_stock import device_part_grid, device_values, position_values
 from .recovery_conditions import RecoveryRescaling, recovery_rescaling, rescale_charges
 from .position_sums import PositionSums
 from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
@@ -165,17 +165,13 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         sampling (``studies.rare_events``) with ``rare_samples`` strings; each check then passes
         on that estimate's upper bound (the plain exact interval decides when the two disagree).
         None: automatically, for each check whose plain run could not decide it with fewer than
-        :data:`AUTO_RARE_FAILURES` failures (:func:`needs_rare`); never under a mix.
+        :data:`AUTO_RARE_FAILURES` failures (:func:`needs_rare`).
     drivers
         Rank the inputs by their influence on each series check's worst stress, and rerun the
         check with each of the top inputs tightened (``studies.drivers``).
     """
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
-    if rare is None and design.string.mix is not None:
-        rare = False  # automatic: not available under a mix
-    if rare or drivers:
-        refuse_under_mix(design, "--rare" if rare else "--drivers")
     if trials < 1:
         raise DesignError(f"--trials must be at least 1, got {trials}", key="monte_carlo.trials")
     if design.grading.resistor is None and any(
@@ -475,16 +471,25 @@ def _not_run(name: str, reason: str) -> SeriesCheck:
 
 
 def evaluate_strings(context: _ChunkContext, drawn: DrawnStrings, check: str) -> np.ndarray:
-    """Each drawn string's worst stress ratio in ``check`` ("static" or "dynamic"); inf unsolved."""
+    """Each drawn string's worst stress ratio in ``check`` ("static" or "dynamic"); inf unsolved.
+    With a mix each device is judged with its own part's constants and limit."""
+    devices = _devices(context, drawn)
     accumulator = PositionSums(context.limits.shape, context.limits)
+    if drawn.part_index is not None:
+        accumulator.device_limits = devices.limits
     if check == "static":
-        _static_chunk(context.design, drawn, accumulator, context.temperature,
-                      context.reference_voltage, context.reference_temperature, context.doubling,
-                      context.exponent)
+        _static_chunk(context.design, drawn, accumulator, devices.temperature,
+                      devices.reference_voltage, devices.reference_temperature, devices.doubling,
+                      devices.exponent)
     else:
-        _dynamic_chunk(context.design, drawn, accumulator, context.junction_capacitance,
+        _dynamic_chunk(context.design, drawn, accumulator, devices.junction_capacitance,
                        context.rescaling)
     return np.concatenate(accumulator.worst_ratios)
+
+
+def _devices(context: _ChunkContext, drawn: DrawnStrings) -> _ChunkContext:
+    """The context with per-device constants under a mix (:func:`_for_devices`), else itself."""
+    return context if drawn.part_index is None else _for_devices(context, drawn)
 
 
 def rare_design(design: Design) -> tuple[Design, tuple[str, ...]]:
@@ -541,7 +546,7 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
         parameters = forward_parameters(context.design)
 
         def evaluate(drawn: DrawnStrings) -> np.ndarray:
-            return forward_ratios(context.design, context.forward, drawn, name)
+            return forward_ratios(context.design, _devices(context, drawn).forward, drawn, name)
     plain = check.estimate
     try:
         design, refitted = rare_design(context.design)

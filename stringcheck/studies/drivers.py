@@ -13,6 +13,8 @@ bound show what the tightening would buy. The parallel and thermal checks rank V
 Q_rr the same way. The ambient does not scatter, so it is not ranked: the checks that depend on it
 (static, parallel, thermal) are rerun with it :data:`COOLER_BY` kelvin lower. With ``--rare``, each
 input's share of the most likely failure point (``rare_events.FailurePointShare``) stands beside it.
+Under a mix (``review --mix``) the number of substituted devices in each string is one more input
+("mix"), ranked for every check; its rerun halves the mixed-in fraction.
 """
 
 from __future__ import annotations
@@ -30,9 +32,9 @@ DRIVER_TRIALS = 20_000
 TOP_DRIVERS = 3
 # The inputs each check's physics depends on (DESIGN.md section 4): the blocking-state sharing on
 # leakage against the resistors, the turn-off sharing on recovery charge against the capacitors.
-CHECK_INPUTS = {"static": ("i_r", "resistor"), "dynamic": ("q_rr", "capacitor"),
-                "parallel": ("v_t0", "r_t", "i_r", "q_rr"),
-                "thermal": ("v_t0", "r_t", "i_r", "q_rr")}
+CHECK_INPUTS = {"static": ("i_r", "resistor", "mix"), "dynamic": ("q_rr", "capacitor", "mix"),
+                "parallel": ("v_t0", "r_t", "i_r", "q_rr", "mix"),
+                "thermal": ("v_t0", "r_t", "i_r", "q_rr", "mix")}
 # The checks whose physics depends on the temperature (leakage doubling, forward temperature
 # coefficients, the thermal balance); the dynamic check's Q_rr does not (DESIGN.md 4).
 TEMPERATURE_CHECKS = ("static", "parallel", "thermal")
@@ -42,7 +44,8 @@ _LABELS = {"i_r": "leakage I_R", "q_rr": "recovery charge Q_rr", "v_t0": "thresh
            "r_t": "slope resistance r_T", "i_rm": "peak recovery current I_RM",
            "t_rr": "recovery time t_rr", "resistor": "grading resistor tolerance",
            "capacitor": "grading capacitor tolerance",
-           "ambient": f"ambient -{COOLER_BY:g} K"}
+           "ambient": f"ambient -{COOLER_BY:g} K", "mix": "substituted devices (mix; rerun at "
+                                                          "half the fraction)"}
 
 
 @dataclass(frozen=True)
@@ -70,6 +73,10 @@ def chunk_features(drawn: DrawnStrings, design: Design, count: int) -> dict[str,
         if values is not None and nominal:
             flat = values[:count].reshape(count, -1) / nominal
             features[name] = flat.max(axis=1) - flat.min(axis=1)
+    mix = design.string.mix
+    if drawn.part_index is not None and mix is not None and mix.part in drawn.part_names:
+        substituted = drawn.part_index[:count] == drawn.part_names.index(mix.part)
+        features["mix"] = substituted.reshape(count, -1).sum(axis=1).astype(float)
     return features
 
 
@@ -106,6 +113,8 @@ def tightenable(design: Design, name: str) -> bool:
     only from measured lots (a measured device is what it is)."""
     if name in ("resistor", "capacitor"):
         return True
+    if name == "mix":
+        return design.string.mix is not None
     for part_name in design.parts_used():
         part = design.parts[part_name]
         spread = part.spread(name)
@@ -124,6 +133,10 @@ def tightened(design: Design, name: str) -> Design:
         grading = replace(design.grading,
                           capacitor_tolerance=design.grading.capacitor_tolerance / 2)
         return replace(design, grading=grading)
+    if name == "mix":
+        layout = design.string
+        return replace(design, string=replace(layout, mix=replace(layout.mix,
+                                                                  fraction=layout.mix.fraction / 2)))
     parts = dict(design.parts)
     for part_name in design.parts_used():
         part = parts[part_name]

@@ -18,7 +18,6 @@ from typing import Callable
 import numpy as np
 
 from ..design import Design, Part
-from ..errors import StringcheckError
 from ..sampling import DrawnStrings
 
 Attribute = Callable[[Part], float]
@@ -52,14 +51,6 @@ def device_part_grid(design: Design, drawn: DrawnStrings) -> np.ndarray:
     if drawn.part_index is None:
         return design.string.part_grid()
     return np.array(drawn.part_names, dtype=object)[drawn.part_index]
-
-
-def refuse_under_mix(design: Design, what: str) -> None:
-    """Raise the one-line error of an option that does not support a mix."""
-    mix = design.string.mix
-    if mix is not None:
-        raise StringcheckError(f"{what} is not supported with --mix {mix.fraction:g}:{mix.part}; "
-                               f"run it without --mix (e.g. on a --swap candidate)")
 
 
 def mix_description(design: Design) -> str:

@@ -140,7 +140,9 @@ class FailurePointShare:
 
 
 class _Space:
-    """The layout of the latent vector u: device parameters, lots, resistors, capacitors."""
+    """The layout of the latent vector u: device parameters, lots, resistors, capacitors and, with
+    a mix, each device's substitution (the mix's part where Phi(u) < fraction: a step in u, which
+    the ray search crosses and the importance weights need no special case for)."""
 
     def __init__(self, design: Design, parameters: tuple[str, ...]):
         layout = design.string
@@ -156,6 +158,9 @@ class _Space:
             self.blocks.append(("resistor", "", size))
         if design.grading.capacitor is not None:
             self.blocks.append(("capacitor", "", size))
+        mix = design.string.mix
+        if mix is not None and 0.0 < mix.fraction < 1.0:
+            self.blocks.append(("mix", "", size))
         self.dimension = sum(size for _, _, size in self.blocks)
 
     def importance(self, point: np.ndarray) -> tuple[FailurePointShare, ...]:
@@ -202,7 +207,7 @@ class _Space:
 
     def latent(self, u: np.ndarray) -> Latent:
         k = u.shape[0]
-        device, lot, resistor, capacitor = {}, {}, None, None
+        device, lot, resistor, capacitor, mix = {}, {}, None, None, None
         start = 0
         for kind, name, size in self.blocks:
             piece = u[:, start:start + size]
@@ -213,9 +218,11 @@ class _Space:
                 lot[name] = piece
             elif kind == "resistor":
                 resistor = piece.reshape((k,) + self.shape)
-            else:
+            elif kind == "capacitor":
                 capacitor = piece.reshape((k,) + self.shape)
-        return Latent(device=device, lot=lot, resistor=resistor, capacitor=capacitor)
+            else:
+                mix = piece.reshape((k,) + self.shape)
+        return Latent(device=device, lot=lot, resistor=resistor, capacitor=capacitor, mix=mix)
 
 
 def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
@@ -317,9 +324,9 @@ def failure_point_images(design: Design, space: _Space, point: np.ndarray,
     differs only in temperature rises is used too where ``near`` says its image lies close to
     failure: a check the temperature hardly moves (the charge balance, the turn-off) has nearly
     the same failure point at every position, and leaving them out would estimate only the
-    share of P(fail) of the positions kept. A design with a mix is refused before (a position
-    holds either part from string to string). Any set of shifts keeps the estimate unbiased; the
-    images make it efficient.
+    share of P(fail) of the positions kept. With a mix every position draws its substitution alike
+    (but one placed by serial number, whose key differs), so the keys hold as they are. Any set
+    of shifts keeps the estimate unbiased; the images make it efficient.
     """
     keys = _position_keys(design)
     loose = _position_keys(design, with_temperature=False)

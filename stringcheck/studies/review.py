@@ -32,7 +32,9 @@ from .runner import worker_pool
 
 @dataclass(frozen=True)
 class CheckChange:
-    """One check in both designs."""
+    """One check in both designs. The P(fail) upper bounds are the ones that decided each check:
+    the importance sampler's where it ran and decided (``*_by`` "importance sampling"), else the
+    plain run's exact interval ("plain")."""
 
     name: str
     baseline_ran: bool
@@ -43,6 +45,8 @@ class CheckChange:
     candidate_p_fail_upper: float | None
     rise: float | None
     acceptable: bool
+    baseline_by: str = "plain"
+    candidate_by: str = "plain"
 
 
 @dataclass(frozen=True)
@@ -202,9 +206,10 @@ def _ranges(positions: tuple[int, ...]) -> str:
 
 def review(baseline: Design, candidate: Design, *, trials: int | None = None,
            seed: int | None = None, workers: int = 1, transient: bool = False,
-           progress=None) -> ReviewResult:
+           rare: bool | None = False, drivers: bool = False, progress=None) -> ReviewResult:
     """Check both designs on common random numbers and compare them (``progress`` is called with
-    (trials done, trials in all) over both checks: one bar from 0 to twice the trials)."""
+    (trials done, trials in all) over both checks: one bar from 0 to twice the trials).
+    ``rare`` and ``drivers`` are :func:`run_check`'s, for both designs."""
     if (baseline.string.series, baseline.string.parallel) != \
             (candidate.string.series, candidate.string.parallel):
         raise StringcheckError(
@@ -214,17 +219,16 @@ def review(baseline: Design, candidate: Design, *, trials: int | None = None,
     trials = baseline.monte_carlo.trials if trials is None else trials
     seed = baseline.monte_carlo.seed if seed is None else seed
     with worker_pool(workers) as pool:
-        base = run_check(baseline, trials=trials, seed=seed, pool=pool, transient=transient,
-                         progress=_stage(progress, 0))
-        cand = run_check(candidate, trials=trials, seed=seed, pool=pool, transient=transient,
-                         progress=_stage(progress, 1))
+        options = dict(trials=trials, seed=seed, pool=pool, transient=transient, rare=rare,
+                       drivers=drivers)
+        base = run_check(baseline, progress=_stage(progress, 0), **options)
+        cand = run_check(candidate, progress=_stage(progress, 1), **options)
     tolerance = baseline.review.tolerance
     changes = []
     for name, base_check in base.checks.items():
         cand_check = cand.checks.get(name)
-        base_upper = base_check.estimate.ci_high if base_check.ran else None
-        cand_upper = cand_check.estimate.ci_high if cand_check is not None and cand_check.ran \
-            else None
+        base_upper, base_by = _deciding_bound(base_check)
+        cand_upper, cand_by = _deciding_bound(cand_check)
         rise = None if base_upper is None or cand_upper is None else cand_upper - base_upper
         acceptable = (cand_check is not None and cand_check.ran and cand_check.passed
                       and (rise is None or rise <= tolerance)) or \
@@ -236,13 +240,23 @@ def review(baseline: Design, candidate: Design, *, trials: int | None = None,
             candidate_worst_ratio=cand_check.worst_ratio if cand_check is not None and
             cand_check.ran else None,
             baseline_p_fail_upper=base_upper, candidate_p_fail_upper=cand_upper, rise=rise,
-            acceptable=acceptable))
+            acceptable=acceptable, baseline_by=base_by, candidate_by=cand_by))
     worse = _worse_positions(base, cand)
     verdict = "accept" if cand.verdict == "pass" and all(c.acceptable for c in changes) \
         else "reject"
     return ReviewResult(baseline=base, candidate=cand, changes=tuple(changes),
                         worse_positions=worse, reasons=_reasons(baseline, candidate, worse),
                         tolerance=tolerance, verdict=verdict)
+
+
+def _deciding_bound(check) -> tuple[float | None, str]:
+    """The P(fail) upper bound that decided ``check`` and the estimator that gave it."""
+    if check is None or not check.ran:
+        return None, "plain"
+    rare = getattr(check, "rare", None)
+    if rare is not None and rare.decides:
+        return rare.ci_high, "importance sampling"
+    return check.estimate.ci_high, "plain"
 
 
 def _stage(progress, stage: int):

@@ -240,17 +240,17 @@ def _engine_inputs(design: Design, fits, grid: np.ndarray, charge: np.ndarray,
 def transient_evaluator(design: Design) -> Callable[[DrawnStrings], np.ndarray]:
     """The worst peak reverse voltage of each built string over its limit, inf where the engine
     could not finish: the failure function of the transient check for the importance sampler
-    (strings drawn with ``("q_rr",)``, no mix). The design must pass :func:`transient_reason`."""
+    (strings drawn with ``("q_rr",)``; with a mix each device with its own part's recovery fit and
+    limit). The design must pass :func:`transient_reason`."""
     fits, reason = _fits_or_reason(design)
     if reason:
         raise ValueError(f"the turn-off cannot be simulated: {reason}")
     inductance, forward, _ = _loop(design, fits)
-    layout = design.string
 
     def evaluate(drawn: DrawnStrings) -> np.ndarray:
         charge = drawn.parameters["q_rr"]
         shape = charge.shape
-        grid = np.broadcast_to(layout.part_grid(), shape)
+        grid = np.broadcast_to(device_part_grid(design, drawn), shape)
         resistance = np.full(shape, np.inf) if drawn.resistance is None else drawn.resistance
         capacitance = np.zeros(shape) if drawn.capacitance is None else drawn.capacitance
         stage = _engine_inputs(design, fits, grid, charge, resistance, capacitance)

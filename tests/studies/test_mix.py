@@ -8,6 +8,7 @@ swapped), the binomial law of the substituted count (scipy.stats), a coupling pr
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import replace
 from pathlib import Path
 
@@ -288,11 +289,82 @@ t_j_max = "20 degC"
         parse_swap("2:NOLEAK", design)
 
 
-def test_rare_and_drivers_refuse_a_mix():
+def _pair_with_a_lower_threshold(pair: str, beta: float, shift: float) -> str:
+    """``pair`` (tests/conftest.py PARALLEL_PAIR) at beta, and part LOW: the same with V_T0 lower by
+    ``shift`` standard deviations of dV = V_T0,1 - V_T0,2 (sigma sqrt 2, sigma = 10 mV)."""
+    sigma = 0.010
+    i_fav = 7.5 + beta * sigma * math.sqrt(2) / (2 * 0.010)  # d = 2 r_T (I_F(AV) - I / 2)
+    delta = shift * sigma * math.sqrt(2)
+    return pair.replace('i_fav = "9.8 A"', f'i_fav = "{i_fav!r} A"') + f"""
+[parts.LOW]
+v_rrm = "2 kV"
+i_fav = "{i_fav!r} A"
+i_r = {{ typ = "1 uA", at_temperature = "25 degC" }}
+v_t0 = {{ typ = "{0.9 - delta!r} V", min = "{0.87 - delta!r} V", max = "{0.93 - delta!r} V", \
+at_temperature = "25 degC" }}
+r_t = {{ typ = "10 mOhm" }}
+"""
+
+
+@pytest.mark.parametrize("beta, shift, fraction, trials", [(2.5, 1.0, 0.3, 100_000),
+                                                          (5.0, 1.5, 0.1, 4096)])
+def test_importance_sampling_under_a_mix_against_the_closed_form(beta, shift, fraction, trials,
+                                                                 parallel_pair_design):
+    # Two branches (tests/conftest.py PARALLEL_PAIR): a branch fails when the other's V_T0 exceeds
+    # its own by more than d = beta sigma sqrt 2. With each device LOW (V_T0 lower by
+    # shift sigma sqrt 2) with probability f, independently: P(fail) = ((1-f)^2 + f^2) 2 Phi(-beta)
+    # + 2 f (1-f) (Phi(-(beta - shift)) + Phi(-(beta + shift))) (scipy.stats.norm). The
+    # substitution is a step in the sampler's latent space; the estimate must still be within its
+    # own 3 standard errors (and agree with the plain run where that sees failures).
+    exact = ((1 - fraction) ** 2 + fraction ** 2) * 2 * stats.norm.sf(beta) + \
+        2 * fraction * (1 - fraction) * (stats.norm.sf(beta - shift) + stats.norm.sf(beta + shift))
+    text = _pair_with_a_lower_threshold(parallel_pair_design, beta, shift)
+    design = mixed(parse_design_text(text), fraction, "LOW")
+    check = run_check(design, trials=trials, rare=True).checks["parallel"]
+    rare = check.rare
+    assert rare.found_failure_point and rare.decides
+    assert abs(rare.p_fail - exact) <= 3.0 * rare.std_error
+    assert rare.std_error < 0.25 * exact
+    if check.estimate.failures > 100:
+        plain = check.estimate
+        plain_error = math.sqrt(plain.p_fail * (1 - plain.p_fail) / plain.trials)
+        assert abs(plain.p_fail - exact) <= 3.0 * plain_error
+
+
+def test_drivers_under_a_mix_rank_the_substitution():
+    # A faster part (30 % less Q_rr) mixed in at 20 %: in the turn-off the substituted devices
+    # block first and take more voltage (charge balance), so the more of them a string holds, the
+    # worse it is; halving the fraction lowers the 99th-percentile stress.
     design = mixed(parse_design_text(BASE), 0.2, "FAST")
-    for option in ("rare", "drivers"):
-        with pytest.raises(StringcheckError, match=f"--{option} is not supported with --mix"):
-            run_check(design, trials=100, **{option: True})
+    result = run_check(design, trials=8192, drivers=True)
+    dynamic = {d.input: d for d in result.drivers if d.check == "dynamic"}
+    assert "mix" in dynamic and dynamic["mix"].rank_correlation > 0.1
+    mix = dynamic["mix"]
+    assert mix.tightened_p99_ratio is not None
+    assert mix.tightened_p99_ratio <= result.checks["dynamic"].p99_ratio
+    assert "substituted devices" in mix.label
+
+
+def test_cli_review_takes_rare_and_drivers_under_a_mix(tmp_path):
+    path = tmp_path / "base.toml"
+    path.write_text(BASE, encoding="utf-8")
+    target = tmp_path / "review.json"
+    out = runner.invoke(app, ["review", str(path), "--mix", "0.2:FAST", "--trials", "2048",
+                              "--rare", "--drivers", "--json", str(target)])
+    assert out.exit_code in (0, 1), out.output
+    data = json.loads(target.read_text(encoding="utf-8"))
+    for side in ("baseline", "candidate"):
+        rare = data[side]["checks"]["dynamic"]["rare"]
+        assert rare is not None and rare["automatic"] is False
+    changes = {c["check"]: c for c in data["changes"]["checks"]}
+    dynamic = changes["dynamic"]
+    assert dynamic["candidate_p_fail_by"] in ("importance sampling", "plain")
+    rare = data["candidate"]["checks"]["dynamic"]["rare"]
+    if rare["decides"]:
+        assert dynamic["candidate_p_fail_upper"] == rare["p_fail_ci"][1]
+    assert any(d["input"] == "mix" for d in data["candidate"]["drivers"])
+    assert "candidate dynamic: P(fail) from" in " ".join(out.output.split())
+    assert "What drives the worst stress" in out.output
 
 
 def test_cli_review_mix_exit_codes(tmp_path):
