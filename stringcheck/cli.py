@@ -52,9 +52,9 @@ _TRANSIENT_SAMPLE = typer.Option(None, "--transient-sample", min=1, metavar="N",
 _DRIVERS = typer.Option(False, "--drivers", help="Rank what drives the worst stress and what "
                                                   "halving each input's spread would buy.")
 _RARE = typer.Option(None, "--rare/--no-rare", show_default=False,
-                     help="Estimate small P(fail) of the static, dynamic, parallel and thermal "
-                          "checks by importance sampling. Default: only for a check whose plain "
-                          "run saw fewer than 10 failures and could not decide it.")
+                     help="Estimate small P(fail) of every check (static, dynamic, transient, "
+                          "parallel, thermal) by importance sampling. Default: only for a check "
+                          "whose plain run saw fewer than 10 failures and could not decide it.")
 _WORKERS = typer.Option(1, "--workers", help="Processes to run the trials in (the result is the "
                                              "same for any number).")
 
