@@ -80,11 +80,10 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
 
 
 def normal_scores(u: np.ndarray) -> np.ndarray:
-    """The standard normal z = Phi^-1(u + 2^-54) behind uniform scores u in [0, 1), each side
-    computed from its own tail probability so that no precision is lost near 1."""
-    u = np.asarray(u, dtype=float)
-    below, above = _cell_probabilities(u)
-    return np.where(u < 0.5, special.ndtri(below), -special.ndtri(above))
+    """The standard normal z = Phi^-1(u + 2^-54) behind uniform scores u in [0, 1): the untruncated
+    quantile map of :func:`_from_uniform`, within 1e-8 of the exact value (exact in the tails,
+    each side from its own tail probability); about ten times faster than the inverse CDF."""
+    return _from_uniform(u, -np.inf, np.inf, 1.0, 1.0, 0.0, False)
 
 
 def _cell_probabilities(u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -264,6 +263,9 @@ def _from_uniform(u: np.ndarray, low: float, high: float, upper: float, lower: f
                                      float(median), bool(lognormal))
     ends = _exact_ends(exact.tobytes())
     flat = np.ascontiguousarray(u, dtype=float).reshape(-1)
+    if out is not None and (out.shape != np.shape(u) or not out.flags.c_contiguous
+                            or np.shares_memory(out, u)):
+        raise ValueError("out must be a C-contiguous array of the shape of u, apart from u")
     result = np.empty(np.shape(u)) if out is None else out
     out = result.reshape(-1)  # a view: ``result`` is contiguous
     size = min(_TABLE_BLOCK, flat.size)

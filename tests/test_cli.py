@@ -452,6 +452,24 @@ def test_workers_two_and_one_give_identical_json(demo_file, tmp_path):
     assert outputs[0] == outputs[1]
 
 
+def test_workers_two_and_one_give_identical_json_with_the_forward_checks(tmp_path):
+    # The parallel and thermal checks too: the runaway-ambient sample is taken per sampling block
+    # and the junction-temperature sums are added block by block (they were per chunk, and the
+    # chunks follow the worker count). 3 blocks, so that the workers split them unevenly.
+    example = Path(__file__).resolve().parents[1] / "examples" / \
+        "furnace-rectifier-3x2-parallel.toml"
+    outputs = []
+    for workers in ("1", "2"):
+        target = tmp_path / f"w{workers}.json"
+        result = invoke("check", str(example), "--trials", "12288", "--workers", workers,
+                        "--json", str(target), "--quiet")
+        assert result.exit_code in (0, 1), result.output
+        outputs.append(target.read_bytes())
+    data = json.loads(outputs[0])
+    assert data["checks"]["thermal"]["runaway_ambient_trials"] == 3 * 64
+    assert outputs[0] == outputs[1]
+
+
 def test_workers_below_one_is_bad_input(demo_file):
     result = invoke("check", str(demo_file), "--workers", "0")
     assert result.exit_code == 2, result.output

@@ -364,6 +364,9 @@ def test_rare_draws_a_resampled_lot_from_its_fit(tmp_path):
     assert not static.rare.found_failure_point and static.rare.pooled_trials == 0
     assert not static.rare.decides and "plain run (the lot itself) decides" in static.rare.note
     assert static.passed == (static.estimate.ci_high <= result.target_p_fail)
+    from stringcheck.report.terminal import _plain_mark
+
+    assert _plain_mark(static) == " (plain; IS found no failure point)"
 
 
 def test_as_fitted_is_the_auto_fit_and_refuses_a_small_lot(tmp_path):

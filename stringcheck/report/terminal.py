@@ -43,6 +43,16 @@ def _deciding_rare(check):
     return rare if rare is not None and rare.decides else None
 
 
+def _plain_mark(check) -> str:
+    """Why the plain run decided a check the importance sampler also ran on ("" if it did not)."""
+    rare = getattr(check, "rare", None)
+    if rare is None or rare.decides:
+        return ""
+    if rare.found_failure_point:
+        return " (plain; IS disagrees)"
+    return " (plain; IS found no failure point)"
+
+
 def _probability(check: SeriesCheck, confidence: float) -> str:
     rare = _deciding_rare(check)
     if rare is not None:
@@ -55,7 +65,7 @@ def _probability(check: SeriesCheck, confidence: float) -> str:
     estimate = check.estimate
     if estimate is None:
         return "-"
-    plain_decided = " (plain; IS disagrees)" if getattr(check, "rare", None) is not None else ""
+    plain_decided = _plain_mark(check)
     if estimate.failures == 0:
         return f"<= {estimate.ci_high:.2g} (none seen){plain_decided}"
     return f"{estimate.p_fail:.2g} [{estimate.ci_low:.2g}, {estimate.ci_high:.2g}]{plain_decided}"
@@ -300,7 +310,7 @@ def render_check_summary(result: CheckResult, console: Console) -> None:
                 trials, bound = (rare.pooled_trials if pooled else rare.samples), rare.ci_high
                 mark = " (pooled)" if pooled else " (IS: none found)"
             elif getattr(check, "rare", None) is not None:
-                mark = " (plain; IS disagrees)"
+                mark = _plain_mark(check)
             if not check.passed and failures == 0:
                 status = "FAIL, too few trials to show the target"
             parts.append(f"{name} {status} "

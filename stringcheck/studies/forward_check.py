@@ -23,7 +23,7 @@ import numpy as np
 
 from .. import eseries
 from ..design import Design
-from ..sampling import DrawnStrings
+from ..sampling import BLOCK_TRIALS, DrawnStrings
 from ..solvers.electrothermal import (
     OVER_LIMIT,
     RUNAWAY,
@@ -38,9 +38,10 @@ from ..stats import FailureEstimate, failure_estimate
 from .mixed_stock import device_values, position_values
 from .rare_events import RareEstimate
 
-# Runaway ambient is searched on the first trials of each chunk only (a bisection costs some fifteen
-# equilibrium solves); its percentiles describe the margin, the pass/fail rests on the equilibrium.
-RUNAWAY_SAMPLE = 256
+# Runaway ambient is searched on the first trials of each sampling block only (a bisection costs
+# some fifteen equilibrium solves); its percentiles describe the margin, the pass/fail rests on the
+# equilibrium. Per block, not per chunk: the sample is the same whatever the chunking or workers.
+RUNAWAY_SAMPLE = 64
 # Share target of the ballast advice when [sizing] target_share is not given: max / mean branch
 # current within 10 % (common practice for a well-shared group; the report states the value used).
 DEFAULT_TARGET_SHARE = 1.1
@@ -306,16 +307,21 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
             tj_ratio=tj_ratio,
             worst_tj=np.where(runaway, np.inf, temperature.max(axis=(1, 2))),
             classification=equilibrium.classification,
-            tj_sum=hot.sum(axis=0) if hot.size else np.zeros(shape[1:]),
+            # Per sampling block (chunks hold whole blocks), added up in block order at the end:
+            # the same figures bit for bit whatever the chunking or the number of workers.
+            tj_sum=_block_sums(temperature, good, drawn.first_trial),
             tj_max=hot.max(axis=0) if hot.size else np.full(shape[1:], -np.inf),
             tj_count=int(np.count_nonzero(good)),
             tj_over=np.count_nonzero(temperature > setup.max_junction_temperature, axis=0),
             power_total=equilibrium.power.sum(axis=(1, 2)),
         )
-        sample = min(count, RUNAWAY_SAMPLE) if summaries else 0
-        if sample:
-            head = _head(devices, sample)
-            found = runaway_ambient(head, _duty(design), upper_limit=setup.search_limit)
+        # The first RUNAWAY_SAMPLE trials of every sampling block, so that the sample does not
+        # depend on how the run is cut into chunks.
+        rows = np.flatnonzero((drawn.first_trial + np.arange(count)) % BLOCK_TRIALS
+                              < RUNAWAY_SAMPLE) if summaries else np.zeros(0, dtype=np.intp)
+        if rows.size:
+            found = runaway_ambient(_rows(devices, rows), _duty(design),
+                                    upper_limit=setup.search_limit)
             outcome_tj["runaway_ambient"] = found.ambient
         branch_threshold = threshold_voltage(
             threshold, setup.threshold_tempco, temperature,
@@ -380,13 +386,24 @@ def _duty(design: Design) -> ParallelDuty:
         sink_to_ambient=design.thermal.r_th_sa, heatsink=design.thermal.heatsink)
 
 
-def _head(devices: ParallelDevices, count: int) -> ParallelDevices:
-    """The first ``count`` trials of the drawn devices (per-position constants kept as they are)."""
+def _rows(devices: ParallelDevices, rows: np.ndarray) -> ParallelDevices:
+    """Trials ``rows`` of the drawn devices (per-position constants kept as they are)."""
     values = {}
     for name in ParallelDevices.__dataclass_fields__:
         value = np.asarray(getattr(devices, name))
-        values[name] = value[:count] if value.ndim == 3 else value
+        values[name] = value[rows] if value.ndim == 3 else value
     return ParallelDevices(**values)
+
+
+def _block_sums(temperature: np.ndarray, good: np.ndarray, first_trial: int) -> np.ndarray:
+    """Sums of the junction temperatures [degC] of the ``good`` trials per position, one per
+    sampling block of the chunk, (blocks, parallel, series)."""
+    count = temperature.shape[0]
+    starts = np.arange(0, count, BLOCK_TRIALS) if first_trial % BLOCK_TRIALS == 0 else \
+        np.array([0])  # a chunk that does not start on a block (the sampler's own strings)
+    kept = np.where(good[:, None, None], temperature, 0.0)
+    return np.stack([kept[start:start + BLOCK_TRIALS].sum(axis=0) for start in starts]) \
+        if count else np.zeros((1,) + temperature.shape[1:])
 
 
 @dataclass
@@ -490,7 +507,7 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
                                         confidence=confidence)
     finite = ratio[np.isfinite(ratio)]
     count = sum(chunk.tj_count for chunk in accumulator.chunks)
-    total = sum(chunk.tj_sum for chunk in accumulator.chunks)
+    total = np.concatenate([chunk.tj_sum for chunk in accumulator.chunks]).sum(axis=0)
     maximum = np.max([chunk.tj_max for chunk in accumulator.chunks], axis=0)
     exceed = sum(chunk.tj_over for chunk in accumulator.chunks)
     grid = design.string.part_labels()

@@ -37,6 +37,7 @@ g(u) = worst stress ratio > 1.
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass
 from typing import Callable
@@ -57,6 +58,8 @@ _BATCH = 4096
 _PILOT = 10_000  # plain samples whose nearest failure (if any) seeds the search
 _SEEDS = 2  # pilot samples with the highest g whose direction and gradient also seed rays
 _NEAR_RADIUS = 1.0  # latent units: an image this close to failure is a shift of the mixture
+_MAX_IMAGES = 1024  # rearrangements of the failure point used as shifts, at most
+_CLUSTER_TOLERANCE = 0.05  # latent units: positions whose coordinates agree this well count as one
 
 
 @dataclass(frozen=True)
@@ -181,27 +184,26 @@ class _Space:
         out.sort(key=lambda item: item.share, reverse=True)
         return tuple(out)
 
-    def dominant_position(self, point: np.ndarray) -> tuple[int, int]:
-        """(branch, index), 0-based, of the position with the largest share of |point|^2 over the
-        per-position blocks (device parameters, resistor, capacitor)."""
-        squares = np.zeros(self.shape)
+    def position_vectors(self, point: np.ndarray) -> np.ndarray:
+        """Each position's coordinates over the per-position blocks, (parallel, series, blocks)."""
+        pieces = []
         start = 0
         for kind, _, size in self.blocks:
             if kind != "lot":
-                squares += point[start:start + size].reshape(self.shape) ** 2
+                pieces.append(point[start:start + size].reshape(self.shape))
             start += size
-        flat = int(np.argmax(squares))
-        return flat // self.shape[1], flat % self.shape[1]
+        if not pieces:
+            return np.zeros(self.shape + (0,))
+        return np.stack(pieces, axis=-1)
 
-    def permuted(self, point: np.ndarray, rows: np.ndarray, columns: np.ndarray) -> np.ndarray:
-        """``point`` with every per-position block's grid taken as grid[rows][:, columns] (lots
-        stay: they are per part, and the permutations used keep every position's part)."""
+    def rearranged(self, point: np.ndarray, source: np.ndarray) -> np.ndarray:
+        """``point`` with flat position p of every per-position block taking the coordinates of
+        flat position ``source[p]`` (lots stay: they are per part)."""
         out = point.copy()
         start = 0
         for kind, _, size in self.blocks:
             if kind != "lot":
-                grid = point[start:start + size].reshape(self.shape)
-                out[start:start + size] = grid[np.ix_(rows, columns)].ravel()
+                out[start:start + size] = point[start:start + size][source]
             start += size
         return out
 
@@ -253,6 +255,8 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
     if found:
         # An image within one latent unit of failure along the steepest ascent counts as near.
         slope = float(np.linalg.norm(_gradient(g, point, effort.step)[1]))
+        if not math.isfinite(slope):  # an unsolved string at the point: failing images only
+            slope = 0.0
 
         def near(images: np.ndarray) -> np.ndarray:
             return g(images) >= 1.0 - _NEAR_RADIUS * slope
@@ -299,64 +303,152 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
         importance=space.importance(point), failure_points=count)
 
 
-def _position_keys(design: Design, *, with_temperature: bool = True) -> np.ndarray:
-    """What makes two positions interchangeable: part, temperature rise and placed serial (the
-    temperature rise left out with ``with_temperature`` False)."""
+def _position_keys(design: Design) -> np.ndarray:
+    """What makes two positions interchangeable: part, temperature rise and placed serial."""
     layout = design.string
     keys = np.empty((layout.parallel, layout.series), dtype=object)
     parts, rises, serials = layout.part_grid(), layout.temperature_rise_grid(), \
         layout.serial_grid()
     for position in np.ndindex(keys.shape):
-        rise = float(rises[position]) if with_temperature else 0.0
-        keys[position] = (parts[position], rise, serials[position])
+        keys[position] = (parts[position], float(rises[position]), serials[position])
     return keys
 
 
 def failure_point_images(design: Design, space: _Space, point: np.ndarray,
                          near: Callable[[np.ndarray], np.ndarray] | None = None) -> np.ndarray:
-    """The failure point and its distinct images under the design's exchangeable positions, (M, D).
+    """The failure point and its distinct images under the string's symmetries, (M, D), the point
+    first.
 
-    The dominant position (b, i) is swapped with every other position (b', j): branches b and b'
-    trade places, then positions i and j trade places in every branch. A swap is used when it
-    maps every position onto one of the same part, temperature rise and serial (None: drawn), so
-    that the check's stress is unchanged by it: devices in series share one current and parallel
-    branches one voltage, whatever their order. With ``near`` (images -> bool each), a swap that
-    differs only in temperature rises is used too where ``near`` says its image lies close to
-    failure: a check the temperature hardly moves (the charge balance, the turn-off) has nearly
-    the same failure point at every position, and leaving them out would estimate only the
-    share of P(fail) of the positions kept. With a mix every position draws its substitution alike
-    (but one placed by serial number, whose key differs), so the keys hold as they are. Any set
-    of shifts keeps the estimate unbiased; the images make it efficient.
+    Devices in series share one current and parallel branches one voltage, whatever their order:
+    permuting the positions of a branch, or whole branches, leaves the stress unchanged where it
+    maps every position onto one of the same part, temperature rise and serial (None: drawn). The
+    images are the distinct rearrangements of the point's per-position coordinates under those
+    permutations; positions whose coordinates agree within :data:`_CLUSTER_TOLERANCE` count as
+    one (the other devices of a string at its failure point are usually alike), so M is the size
+    of the orbit: n for one device unlike n - 1 alike ones, n (n - 1) for two unlike ones. Fewer
+    images would leave part of the failure region to the defensive half of the samples and
+    estimate too little with a small standard error. Beyond :data:`_MAX_IMAGES` rearrangements the
+    tolerance is doubled until they fit. With ``near`` (images -> bool each), rearrangements
+    between positions that differ in part or temperature rise (not in a placed serial) are used
+    too where ``near`` says the image lies close to failure: the charge balance and the turn-off
+    hardly feel the temperature, two parts may be alike, and leaving such positions out would
+    estimate only the share of P(fail) of those kept. Lots stay (they are per part). Any set of
+    shifts keeps the estimate unbiased; the images make it efficient.
     """
     keys = _position_keys(design)
-    loose = _position_keys(design, with_temperature=False)
-    branches, series = keys.shape
-    branch, index = space.dominant_position(point)
-    images = [point]
-    candidates = []
-    tolerance = 1e-9 * max(1.0, float(np.linalg.norm(point)))
+    # Without ``near`` only exact symmetries may be used; with it, positions with the same placed
+    # serial (None: drawn) may trade places, each such image checked by ``near``.
+    classes = np.empty(keys.shape, dtype=object)
+    for position in np.ndindex(keys.shape):
+        classes[position] = keys[position][2] if near is not None else keys[position]
+    vectors = space.position_vectors(point)
+    tolerance = _CLUSTER_TOLERANCE
+    while True:
+        sources = _rearrangements(vectors, classes, tolerance, _MAX_IMAGES)
+        if sources is not None:
+            break
+        tolerance *= 2.0
+    flat_keys = keys.reshape(-1)
+    exact, others = [], []
+    for source in sources:
+        image = space.rearranged(point, source)
+        same = all(flat_keys[source[p]] == flat_keys[p] for p in range(flat_keys.size))
+        (exact if same else others).append(image)
+    images = exact
+    if others and near is not None:
+        candidates = np.array(others)
+        images = exact + list(candidates[np.asarray(near(candidates), dtype=bool)])
+    # The point first; rearrangements that coincide within rounding kept once.
+    out = [point]
+    limit = 1e-9 * max(1.0, float(np.linalg.norm(point)))
+    for image in images:
+        if np.min(np.linalg.norm(np.asarray(out) - image, axis=1)) > limit:
+            out.append(image)
+    return np.array(out)
 
-    def distinct(image: np.ndarray) -> bool:
-        return np.min(np.linalg.norm(np.asarray(images) - image, axis=1)) > tolerance
 
-    for other_branch in range(branches):
-        for other_index in range(series):
-            rows, columns = np.arange(branches), np.arange(series)
-            rows[[branch, other_branch]] = rows[[other_branch, branch]]
-            columns[[index, other_index]] = columns[[other_index, index]]
-            swap = np.ix_(rows, columns)
-            if np.all(keys[swap] == keys):
-                image = space.permuted(point, rows, columns)
-                if distinct(image):
-                    images.append(image)
-            elif near is not None and np.all(loose[swap] == loose):
-                candidates.append(space.permuted(point, rows, columns))
-    if candidates:
-        candidates = np.array(candidates)
-        for image in candidates[np.asarray(near(candidates), dtype=bool)]:
-            if distinct(image):
-                images.append(image)
-    return np.array(images)
+def _rearrangements(vectors: np.ndarray, classes: np.ndarray, tolerance: float,
+                    limit: int) -> list[np.ndarray] | None:
+    """Source maps (flat position -> the flat position whose coordinates it takes) of the distinct
+    rearrangements of ``vectors`` (parallel, series, k) under permutations of whole branches and of
+    positions within a branch, every position keeping its class (``classes``); vectors within
+    ``tolerance`` of each other count as one. None when there are more than ``limit``."""
+    branches, series = classes.shape
+    labels = np.empty((branches, series), dtype=np.int64)
+    representatives: list[tuple[object, np.ndarray]] = []
+    for b in range(branches):
+        for i in range(series):
+            for number, (key, vector) in enumerate(representatives):
+                if key == classes[b, i] and np.linalg.norm(vectors[b, i] - vector) <= tolerance:
+                    labels[b, i] = number
+                    break
+            else:
+                labels[b, i] = len(representatives)
+                representatives.append((classes[b, i], vectors[b, i]))
+    out: list[np.ndarray] = []
+    seen: set[tuple] = set()
+    for order in itertools.permutations(range(branches)):
+        # Target branch t takes the devices of branch order[t], rearranged within it.
+        per_branch = []
+        for target, source in enumerate(order):
+            if sorted(map(repr, classes[target])) != sorted(map(repr, classes[source])):
+                break
+            per_branch.append(_row_rearrangements(labels[source], classes[source],
+                                                  classes[target], limit + 1))
+        else:
+            for rows in itertools.product(*per_branch):
+                source_map = np.concatenate([order[t] * series + np.asarray(row, dtype=np.intp)
+                                             for t, row in enumerate(rows)])
+                signature = tuple(labels.reshape(-1)[source_map])
+                if signature in seen:
+                    continue
+                seen.add(signature)
+                out.append(source_map)
+                if len(out) > limit:
+                    return None
+    return out
+
+
+def _row_rearrangements(labels: np.ndarray, source_classes: np.ndarray,
+                        target_classes: np.ndarray, limit: int) -> list[list[int]]:
+    """The distinct ways (at most ``limit``) to put one branch's positions (``labels``: alike
+    ones share a label) into a branch of ``target_classes``, class by class: per target position
+    the source position it takes."""
+    series = labels.size
+    per_class = []
+    for key in dict.fromkeys(map(repr, target_classes)):
+        targets = [j for j in range(series) if repr(target_classes[j]) == key]
+        by_label: dict[int, list[int]] = {}
+        for j in range(series):
+            if repr(source_classes[j]) == key:
+                by_label.setdefault(int(labels[j]), []).append(j)
+        counts = {label: len(items) for label, items in by_label.items()}
+        ways = []
+        for arrangement in itertools.islice(_multiset_permutations(counts, len(targets)), limit):
+            used = {label: iter(items) for label, items in by_label.items()}
+            ways.append([(targets[k], next(used[label])) for k, label in enumerate(arrangement)])
+        per_class.append(ways)
+    out = []
+    for combination in itertools.islice(itertools.product(*per_class), limit):
+        row = [0] * series
+        for pairs in combination:
+            for target, source in pairs:
+                row[target] = source
+        out.append(row)
+    return out
+
+
+def _multiset_permutations(counts: dict[int, int], length: int):
+    """The distinct orderings of a multiset given as {label: count}, lazily."""
+    if length == 0:
+        yield ()
+        return
+    for label in list(counts):
+        if counts[label]:
+            counts[label] -= 1
+            for rest in _multiset_permutations(counts, length - 1):
+                yield (label,) + rest
+            counts[label] += 1
 
 
 def mixture_sample(rng: np.random.Generator, count: int, shifts: np.ndarray,
