@@ -284,10 +284,10 @@ def render_drivers(result, console: Console) -> None:
         return
     console.print(Text("What drives the worst stress", style="bold underline"))
     console.print("rank correlation of each input's mismatch across the string with the string's "
-                  "worst stress ratio (first 20,000 trials); each top input rerun with its spread "
-                  "halved on the same draws, and the ambient rerun 10 K cooler (plain Monte "
-                  "Carlo: the P(fail) bound after is the exact interval's, never importance "
-                  "sampling's)")
+                  "worst stress ratio (first 20,000 trials; for the transient check its random "
+                  "sample); each top input rerun with its spread halved on the same draws, and "
+                  "the ambient rerun 10 K cooler (plain Monte Carlo: the P(fail) bound after is "
+                  "the exact interval's, never importance sampling's)")
     shares = any(d.failure_point_share is not None for d in result.drivers)
     table = Table(show_edge=False, pad_edge=False)
     columns = ["check", "input", "rank corr.", "p99/limit now", "p99/limit after",

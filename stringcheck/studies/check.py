@@ -269,7 +269,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                 design, dynamic_ratios=np.concatenate(dynamic.worst_ratios), trials=trials,
                 seed=seed, worst=transient_worst,
                 sample=needed if transient_sample is None else transient_sample,
-                confidence=confidence, target=target)
+                confidence=confidence, target=target, drivers=drivers)
     if run_forward:
         checks["parallel"] = finish_parallel(design, forward, parallel_reason, forward_sums,
                                              confidence, target, trials)
@@ -289,6 +289,12 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     if drivers and features:
         ranking = _drivers(design, checks, features, ratios, trials=trials, seed=seed,
                            pool=pool if pool is not None else None)
+    if drivers and transient and checks["transient"].ran:
+        rare_estimate = checks["transient"].rare
+        shares = {item.input: item.share for item in rare_estimate.importance} \
+            if rare_estimate is not None and rare_estimate.found_failure_point else {}
+        ranking += tuple(replace(driver, failure_point_share=shares.get(driver.input))
+                         for driver in checks["transient"].drivers)
     # A check the user asked for that could not run never lets the design pass.
     requested_missing = transient and not checks["transient"].ran
     verdict = "pass" if passed and impossible is None and not grading.rating_problems \

@@ -34,7 +34,8 @@ TOP_DRIVERS = 3
 # leakage against the resistors, the turn-off sharing on recovery charge against the capacitors.
 CHECK_INPUTS = {"static": ("i_r", "resistor", "mix"), "dynamic": ("q_rr", "capacitor", "mix"),
                 "parallel": ("v_t0", "r_t", "i_r", "q_rr", "mix"),
-                "thermal": ("v_t0", "r_t", "i_r", "q_rr", "mix")}
+                "thermal": ("v_t0", "r_t", "i_r", "q_rr", "mix"),
+                "transient": ("q_rr", "capacitor", "resistor", "mix")}
 # The checks whose physics depends on the temperature (leakage doubling, forward temperature
 # coefficients, the thermal balance); the dynamic check's Q_rr does not (DESIGN.md 4).
 TEMPERATURE_CHECKS = ("static", "parallel", "thermal")

@@ -32,6 +32,8 @@ from ..solvers.transient import simulate_turn_off
 from ..errors import StringcheckError
 from ..stats import FailureEstimate, failure_estimate
 from .mixed_stock import device_part_grid, position_values
+from .drivers import TOP_DRIVERS, Driver, chunk_features, label, rank_inputs, tightenable
+from .drivers import tightened
 from .rare_events import RareEstimate
 from .recovery_conditions import (
     InconsistentRecoveryData,
@@ -89,6 +91,7 @@ class TransientCheck:
     positions: tuple[TransientPosition, ...]
     notes: tuple[str, ...]
     rare: RareEstimate | None = None
+    drivers: tuple[Driver, ...] = ()
 
 
 def not_run(reason: str) -> TransientCheck:
@@ -122,8 +125,13 @@ def _fits_or_reason(design: Design) -> tuple[dict[str, PartFit], str]:
 
 
 def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, seed: int,
-                  worst: int, sample: int, confidence: float, target: float) -> TransientCheck:
-    """Simulate the worst ``worst`` charge-balance trials and a random ``sample`` of all trials."""
+                  worst: int, sample: int, confidence: float, target: float,
+                  drivers: bool = False) -> TransientCheck:
+    """Simulate the worst ``worst`` charge-balance trials and a random ``sample`` of all trials.
+
+    With ``drivers``, rank the inputs by the rank correlation of their mismatch with the worst
+    peak over limit on the sample (``studies.drivers``), and simulate the same sampled strings
+    again with each of the top inputs' spread halved (the worst set kept)."""
     fits, reason = _fits_or_reason(design)
     if reason:
         return not_run(reason)
@@ -169,6 +177,11 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
                 failures=int(np.count_nonzero(sample_peaks[:, b, k] >
                                               device_limits[in_sample][:, b, k]))))
     top = int(np.argmax(ratio))
+    ranked = ()
+    if drivers:
+        options = dict(dynamic_ratios=dynamic_ratios, trials=trials, seed=seed, worst=worst,
+                       sample=sample, confidence=confidence, target=target)
+        ranked = _rank(design, sample_set, ratio[in_sample], trials, seed, options)
     return TransientCheck(
         name="transient", ran=True, reason="",
         passed=estimate.ci_high <= target and worst_failures == 0,
@@ -181,7 +194,32 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
         sampled=sample, worst_simulated=worst, worst_failures=worst_failures,
         peak_recovery_current=float(np.nanmax(currents)),
         damping_energy=float(np.nanmax(energies)), inductance=float(inductance / layout.parallel),
-        forward_current=float(forward), positions=tuple(positions), notes=tuple(notes))
+        forward_current=float(forward), positions=tuple(positions), notes=tuple(notes),
+        drivers=ranked)
+
+
+def _rank(design: Design, sample_set: np.ndarray, ratios: np.ndarray, trials: int, seed: int,
+          options: dict) -> tuple[Driver, ...]:
+    """The drivers of the transient check on its sample (see :func:`run_transient`)."""
+    features: dict[str, list] = {}
+    blocks = sample_set // BLOCK_TRIALS
+    for block in np.unique(blocks):
+        first = int(block) * BLOCK_TRIALS
+        count = min(BLOCK_TRIALS, trials - first)
+        drawn = draw_strings(design, ("q_rr",), first, count, seed=seed)
+        rows = sample_set[blocks == block] - first
+        for name, values in chunk_features(drawn, design, count).items():
+            features.setdefault(name, []).append(values[rows])
+    joined = {name: np.concatenate(parts) for name, parts in features.items()}
+    out = []
+    for position, (name, rho) in enumerate(rank_inputs("transient", joined, ratios)):
+        p99 = upper = None
+        if position < TOP_DRIVERS and tightenable(design, name):
+            again = run_transient(tightened(design, name), **options)
+            p99, upper = again.p99_ratio, again.estimate.ci_high
+        out.append(Driver(check="transient", input=name, label=label(name), rank_correlation=rho,
+                          tightened_p99_ratio=p99, tightened_p_fail_upper=upper))
+    return tuple(out)
 
 
 def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: int) -> dict:
