@@ -1,7 +1,8 @@
 """Small failure probabilities by importance sampling in the latent standard-normal space.
 
 Every built string is a deterministic function of independent standard-normal latent values
-(``sampling.Latent``: one per device parameter and position, per part lot, per grading component);
+(``sampling.Latent``: one per device parameter and position, per part lot, per grading component,
+and under a mix one per device for its substitution);
 screening (truncation) and the copula act inside that map, so the latent space stays exactly
 standard normal and the method needs no special case for them. A check's failure is
 g(u) = worst stress ratio > 1.
@@ -17,10 +18,10 @@ g(u) = worst stress ratio > 1.
    still find the failure region: they break the tie between the devices.
 2. Exchangeable positions (same part, same temperature rise, no measured device placed by serial)
    and identical parallel branches each have their own, equally likely failure point: the images
-   u_1 = u*, ..., u_M of u* under the permutations of the latent coordinates that swap the
-   dominant position (largest share of beta^2) with each exchangeable one (with its branch).
-   Shifting to u* alone would almost never sample the others and estimate ~1/M of P(fail) with a
-   small standard error. The samples come from the defensive mixture
+   u_1 = u*, ..., u_M of u* are its orbit, every distinct rearrangement of its per-position
+   coordinates within branches and of whole branches (:func:`failure_point_images`). Shifting to
+   u* alone, or to part of the orbit, would almost never sample the rest and estimate a fraction
+   of P(fail) with a small standard error. The samples come from the defensive mixture
    q(u) = a phi(u) + (1 - a) / M sum_i phi(u - u_i), a = 1/2 (T. Hesterberg, "Weighted average
    importance sampling and defensive mixture distributions", Technometrics 37, 1995; a mixture over
    several design points as in S. K. Au and J. L. Beck, "A new adaptive importance sampling scheme
