@@ -195,12 +195,13 @@ class StringLayout:
 
     def part_grids(self) -> tuple[np.ndarray, ...]:
         """The part grids a built string picks its devices from, device by device: the part grid
-        alone; with a mix of fraction 1 the mix's part everywhere; with a fraction strictly between
-        0 and 1 both (a mix of fraction 0 changes nothing)."""
+        alone; with a mix of fraction 1 the mix's part everywhere (but where a measured device is
+        placed by serial number: it is never substituted); with a fraction strictly between 0 and
+        1 both (a mix of fraction 0 changes nothing)."""
         grid = self.part_grid()
         if self.mix is None or self.mix.fraction == 0.0:
             return (grid,)
-        everywhere = np.full(grid.shape, self.mix.part, dtype=object)
+        everywhere = np.where(self.placed_by_serial(), grid, self.mix.part).astype(object)
         return (everywhere,) if self.mix.fraction == 1.0 else (grid, everywhere)
 
     def part_labels(self) -> np.ndarray:

@@ -368,8 +368,9 @@ def strings_from_latent(design: Design, parameters: tuple[str, ...], latent: Lat
     A design with a mix picks each device's part by ``latent.mix``, or without it by the mix's
     own stream of ``seed``.
     """
-    if design.string.mix is not None:
-        if latent.mix is None and seed is None:
+    mix = design.string.mix
+    if mix is not None:
+        if latent.mix is None and seed is None and 0.0 < mix.fraction < 1.0:
             raise ValueError("a design with a mix needs latent.mix or the seed of its stream")
         return _mixed_strings(design, parameters, latent, first_trial, seed)
     grading_uniform = latent.uniform

@@ -586,3 +586,21 @@ def test_latin_1_lot_and_trailing_commas(tmp_path):
         _design(tmp_path, series=1)
     (tmp_path / "lot.csv").write_text("serial,i_r [uA],q_rr [nC],\nS1,1,2,\nS2,1.5,3,\n")
     assert _design(tmp_path, series=2).parts["A"].measured.devices == 2
+
+
+def test_a_full_mix_keeps_the_serial_placed_devices_part(tmp_path):
+    # At fraction 1 every drawn device is the mix's part, but a device placed by serial number is
+    # the one built in: its part stays in use (with lot sharing its lot draws were missing).
+    from stringcheck.studies.review import mixed
+
+    _write_lot(tmp_path, 40)
+    _write_lot_b(tmp_path, 12)
+    text = DESIGN.format(series=4, parallel=1, fit="", lot="lot.csv", voltage="6 kV",
+                         positions='[[string.position]]\nindex = 1\nserial = "S000"\n') \
+        .replace("seed = 11", "seed = 11\nlot_share = 0.3") + _PART_B
+    (tmp_path / "design.toml").write_text(text)
+    design = mixed(load_design(tmp_path / "design.toml"), 1.0, "B")
+    assert design.parts_used() == ("A", "B")
+    assert list(design.string.part_grids()[0][0]) == ["A", "B", "B", "B"]
+    result = run_check(design, trials=600)
+    assert result.checks["static"].ran

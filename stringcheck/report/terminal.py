@@ -48,6 +48,8 @@ def _plain_mark(check) -> str:
     rare = getattr(check, "rare", None)
     if rare is None or rare.decides:
         return ""
+    if not rare.orbit_complete:
+        return " (plain; IS orbit incomplete)"
     if rare.found_failure_point:
         return " (plain; IS disagrees)"
     return " (plain; IS found no failure point)"

@@ -137,7 +137,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
               pool: WorkerPool | None = None, transient: bool = False,
               transient_worst: int = DEFAULT_WORST,
               transient_sample: int | None = None, drivers: bool = False,
-              rare: bool | None = False, rare_samples: int = DEFAULT_SAMPLES) -> CheckResult:
+              rare: bool | None | tuple[str, ...] = False,
+              rare_samples: int = DEFAULT_SAMPLES) -> CheckResult:
     """Run the series check of ``design`` (static sharing always, dynamic when there is a turn-off).
 
     Parameters
@@ -165,7 +166,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         sampling (``studies.rare_events``) with ``rare_samples`` strings; each check then passes
         on that estimate's upper bound (the plain exact interval decides when the two disagree).
         None: automatically, for each check whose plain run could not decide it with fewer than
-        :data:`AUTO_RARE_FAILURES` failures (:func:`needs_rare`).
+        :data:`AUTO_RARE_FAILURES` failures (:func:`needs_rare`). A tuple of check names: for
+        those (``review`` gives both designs the same).
     drivers
         Rank the inputs by their influence on each series check's worst stress, and rerun the
         check with each of the top inputs tightened (``studies.drivers``).
@@ -281,7 +283,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                               position_values(design, lambda p: p.c_j, pick=np.maximum))
     if rare is not False:
         for name in RARE_CHECKS + ("transient",):
-            if name in checks and checks[name].ran and (rare or needs_rare(checks[name], target)):
+            wanted = name in rare if isinstance(rare, tuple) else \
+                (rare or needs_rare(checks[name], target)) if name in checks else False
+            if name in checks and checks[name].ran and wanted:
                 checks[name] = _with_rare(checks[name], context, seed, confidence, target,
                                           rare_samples, automatic=rare is None)
     passed = all(check.passed for check in checks.values() if check.ran)
@@ -587,6 +591,8 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
                 f"Monte Carlo lower bound {plain.ci_low:.2g} ({plain.failures:,} of "
                 f"{plain.trials:,}): the estimators disagree, so the plain interval decides")
         estimate = replace(estimate, decides=False, note=note)
+        return replace(check, rare=estimate, passed=plain.ci_high <= target and worst_ok)
+    if not estimate.decides:  # the estimator itself declined (an incomplete orbit)
         return replace(check, rare=estimate, passed=plain.ci_high <= target and worst_ok)
     return replace(check, rare=estimate, passed=estimate.ci_high <= target and worst_ok)
 

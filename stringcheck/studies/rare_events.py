@@ -61,6 +61,7 @@ _SEEDS = 2  # pilot samples with the highest g whose direction and gradient also
 _NEAR_RADIUS = 1.0  # latent units: an image this close to failure is a shift of the mixture
 _MAX_IMAGES = 1024  # rearrangements of the failure point used as shifts, at most
 _CLUSTER_TOLERANCE = 0.05  # latent units: positions whose coordinates agree this well count as one
+_CLUSTER_SHARE = 0.25  # ... or within this share of the largest departure from the median position
 
 
 @dataclass(frozen=True)
@@ -100,7 +101,8 @@ class RareEstimate:
     samples plus the check's own run; 0 otherwise). ``decides`` is False when the check's verdict
     comes from its plain Monte Carlo run instead (set by the check), and ``note`` says why.
     ``automatic`` is True when the estimator ran without being asked, because the check's plain
-    run saw too few failures to decide it (set by the check).
+    run saw too few failures to decide it (set by the check). ``orbit_complete`` is False when the
+    failure point had more images than the sampler takes: the estimate then does not decide.
     """
 
     check: str
@@ -121,6 +123,7 @@ class RareEstimate:
     decides: bool = True
     note: str = ""
     automatic: bool = False
+    orbit_complete: bool = True
 
 
 
@@ -254,15 +257,18 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
     point = _failure_point(g, space.dimension, pilot, g(pilot), effort)
     found = point is not None
     if found:
-        # An image within one latent unit of failure along the steepest ascent counts as near.
-        slope = float(np.linalg.norm(_gradient(g, point, effort.step)[1]))
-        if not math.isfinite(slope):  # an unsolved string at the point: failing images only
-            slope = 0.0
+        beta_found = float(np.linalg.norm(point))
 
-        def near(images: np.ndarray) -> np.ndarray:
-            return g(images) >= 1.0 - _NEAR_RADIUS * slope
+        def near(image: np.ndarray) -> np.ndarray | None:
+            # A near image settles on its own failure: the first failure along its direction,
+            # kept within one latent unit of beta (farther ones weigh e^-beta less, or more).
+            norm = float(np.linalg.norm(image))
+            settled = _on_ray(g, image / norm, effort) if norm > 0 else None
+            if settled is None or np.linalg.norm(settled) > beta_found + _NEAR_RADIUS:
+                return None
+            return settled
 
-        shifts = failure_point_images(design, space, point, near)
+        shifts, complete = failure_point_orbit(design, space, point, near)
     else:
         shifts = np.zeros((0, space.dimension))
     beta = float(np.linalg.norm(point)) if found else math.inf
@@ -301,7 +307,13 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
         ci_low=max(0.0, p_fail - z * std_error), ci_high=p_fail + z * std_error,
         confidence=confidence, beta=beta, first_order=float(stats.norm.sf(beta)),
         samples=samples, failures=int(np.count_nonzero(failed)), found_failure_point=True,
-        importance=space.importance(point), failure_points=count)
+        importance=space.importance(point), failure_points=count, orbit_complete=complete,
+        decides=complete,
+        note="" if complete else (
+            f"the failure point found has more than {_MAX_IMAGES:,} rearrangements under the "
+            "string's symmetries (its other devices are not alike): the sampler used "
+            f"{_MAX_IMAGES:,} of them and may miss part of P(fail), so the plain interval "
+            "decides"))
 
 
 def _position_keys(design: Design) -> np.ndarray:
@@ -316,20 +328,30 @@ def _position_keys(design: Design) -> np.ndarray:
 
 
 def failure_point_images(design: Design, space: _Space, point: np.ndarray,
-                         near: Callable[[np.ndarray], np.ndarray] | None = None) -> np.ndarray:
+                         near: Callable[[np.ndarray], np.ndarray | None] | None = None
+                         ) -> np.ndarray:
+    """The images of :func:`failure_point_orbit` alone."""
+    return failure_point_orbit(design, space, point, near)[0]
+
+
+def failure_point_orbit(design: Design, space: _Space, point: np.ndarray,
+                        near: Callable[[np.ndarray], np.ndarray | None] | None = None
+                        ) -> tuple[np.ndarray, bool]:
     """The failure point and its distinct images under the string's symmetries, (M, D), the point
-    first.
+    first, and whether they are the whole orbit.
 
     Devices in series share one current and parallel branches one voltage, whatever their order:
     permuting the positions of a branch, or whole branches, leaves the stress unchanged where it
     maps every position onto one of the same part, temperature rise and serial (None: drawn). The
     images are the distinct rearrangements of the point's per-position coordinates under those
-    permutations; positions whose coordinates agree within :data:`_CLUSTER_TOLERANCE` count as
+    permutations; positions whose coordinates agree within :data:`_CLUSTER_TOLERANCE`, or within
+    :data:`_CLUSTER_SHARE` of the largest departure of a position from the median one, count as
     one (the other devices of a string at its failure point are usually alike), so M is the size
     of the orbit: n for one device unlike n - 1 alike ones, n (n - 1) for two unlike ones. Fewer
     images would leave part of the failure region to the defensive half of the samples and
-    estimate too little with a small standard error. Beyond :data:`_MAX_IMAGES` rearrangements the
-    tolerance is doubled until they fit. With ``near`` (images -> bool each), rearrangements
+    estimate too little with a small standard error: an orbit of more than :data:`_MAX_IMAGES`
+    (a failure point whose other devices are not alike) is cut there and reported incomplete
+    (False), and the estimate must then not decide. With ``near`` (images -> bool each), rearrangements
     between positions that differ in part or temperature rise (not in a placed serial) are used
     too where ``near`` says the image lies close to failure: the charge balance and the turn-off
     hardly feel the temperature, two parts may be alike, and leaving such positions out would
@@ -337,43 +359,61 @@ def failure_point_images(design: Design, space: _Space, point: np.ndarray,
     shifts keeps the estimate unbiased; the images make it efficient.
     """
     keys = _position_keys(design)
-    # Without ``near`` only exact symmetries may be used; with it, positions with the same placed
-    # serial (None: drawn) may trade places, each such image checked by ``near``.
-    classes = np.empty(keys.shape, dtype=object)
-    for position in np.ndindex(keys.shape):
-        classes[position] = keys[position][2] if near is not None else keys[position]
     vectors = space.position_vectors(point)
-    tolerance = _CLUSTER_TOLERANCE
-    while True:
-        sources = _rearrangements(vectors, classes, tolerance, _MAX_IMAGES)
-        if sources is not None:
-            break
-        tolerance *= 2.0
-    flat_keys = keys.reshape(-1)
-    exact, others = [], []
-    for source in sources:
-        image = space.rearranged(point, source)
-        same = all(flat_keys[source[p]] == flat_keys[p] for p in range(flat_keys.size))
-        (exact if same else others).append(image)
-    images = exact
-    if others and near is not None:
-        candidates = np.array(others)
-        images = exact + list(candidates[np.asarray(near(candidates), dtype=bool)])
-    # The point first; rearrangements that coincide within rounding kept once.
+    # Alike: within 0.05, or within a quarter of the largest departure of a position from the
+    # median position (a device that stands out stays apart; the small, uneven rest of the string
+    # counts as one background, whose order barely moves the image).
+    flat = vectors.reshape(-1, vectors.shape[-1])
+    departures = np.linalg.norm(flat - np.median(flat, axis=0), axis=1) if flat.size else \
+        np.zeros(flat.shape[0])
+    tolerance = max(_CLUSTER_TOLERANCE, _CLUSTER_SHARE * float(np.max(departures, initial=0.0)))
+    sources, complete = _rearrangements(vectors, keys, tolerance, _MAX_IMAGES)
+    images = [space.rearranged(point, source) for source in sources]
+    if near is not None:
+        # Near symmetries (another part or temperature rise, no serial placed): the device that
+        # stands out moved to each other such position of its branch, the rest left where it is
+        # (in a temperature gradient the rest follows the positions, not the device).
+        series = keys.shape[1]
+        serials = design.string.serial_grid().reshape(-1)
+        flat_keys = keys.reshape(-1)
+        dominant = int(np.argmax(departures))
+        candidates = []
+        for source in sources:
+            where = int(np.flatnonzero(source == dominant)[0])
+            branch = where // series
+            for other in range(branch * series, (branch + 1) * series):
+                if other == where or serials[other] is not None or serials[where] is not None \
+                        or flat_keys[other] == flat_keys[where]:  # the orbit has that one
+                    continue
+                swap = np.arange(source.size)
+                swap[[where, other]] = swap[[other, where]]
+                candidates.append(space.rearranged(point, source[swap]))
+                if len(candidates) >= _MAX_IMAGES:
+                    break
+            if len(candidates) >= _MAX_IMAGES:
+                break
+        for candidate in candidates:
+            settled = near(candidate)
+            if settled is not None:
+                images.append(settled)
+    # The point first; images that coincide within rounding kept once.
     out = [point]
     limit = 1e-9 * max(1.0, float(np.linalg.norm(point)))
     for image in images:
         if np.min(np.linalg.norm(np.asarray(out) - image, axis=1)) > limit:
             out.append(image)
-    return np.array(out)
+    return np.array(out), complete
 
 
 def _rearrangements(vectors: np.ndarray, classes: np.ndarray, tolerance: float,
-                    limit: int) -> list[np.ndarray] | None:
+                    limit: int) -> tuple[list[np.ndarray], bool]:
     """Source maps (flat position -> the flat position whose coordinates it takes) of the distinct
     rearrangements of ``vectors`` (parallel, series, k) under permutations of whole branches and of
     positions within a branch, every position keeping its class (``classes``); vectors within
-    ``tolerance`` of each other count as one. None when there are more than ``limit``."""
+    ``tolerance`` of each other count as one. At most ``limit`` of them, and whether that is all.
+
+    Branches alike in classes and coordinates are one: only the distinct branch orders are walked
+    (a multiset permutation), so many identical branches cost no factorial."""
     branches, series = classes.shape
     labels = np.empty((branches, series), dtype=np.int64)
     representatives: list[tuple[object, np.ndarray]] = []
@@ -386,28 +426,50 @@ def _rearrangements(vectors: np.ndarray, classes: np.ndarray, tolerance: float,
             else:
                 labels[b, i] = len(representatives)
                 representatives.append((classes[b, i], vectors[b, i]))
+    shapes = [tuple(sorted(map(repr, classes[b]))) for b in range(branches)]
+    signatures = [(shapes[b], tuple(sorted(labels[b]))) for b in range(branches)]
+    kinds = list(dict.fromkeys(signatures))
+    members = {kind: [b for b in range(branches) if signatures[b] == kind] for kind in kinds}
     out: list[np.ndarray] = []
     seen: set[tuple] = set()
-    for order in itertools.permutations(range(branches)):
-        # Target branch t takes the devices of branch order[t], rearranged within it.
-        per_branch = []
-        for target, source in enumerate(order):
-            if sorted(map(repr, classes[target])) != sorted(map(repr, classes[source])):
-                break
-            per_branch.append(_row_rearrangements(labels[source], classes[source],
-                                                  classes[target], limit + 1))
-        else:
-            for rows in itertools.product(*per_branch):
-                source_map = np.concatenate([order[t] * series + np.asarray(row, dtype=np.intp)
-                                             for t, row in enumerate(rows)])
-                signature = tuple(labels.reshape(-1)[source_map])
-                if signature in seen:
-                    continue
-                seen.add(signature)
-                out.append(source_map)
-                if len(out) > limit:
-                    return None
-    return out
+    for order in _branch_orders(kinds, members, shapes):
+        per_branch = [_row_rearrangements(labels[source], classes[source], classes[target],
+                                          limit + 1)
+                      for target, source in enumerate(order)]
+        for rows in itertools.product(*per_branch):
+            source_map = np.concatenate([order[t] * series + np.asarray(row, dtype=np.intp)
+                                         for t, row in enumerate(rows)])
+            signature = tuple(labels.reshape(-1)[source_map])
+            if signature in seen:
+                continue
+            if len(out) == limit:
+                return out, False
+            seen.add(signature)
+            out.append(source_map)
+    return out, True
+
+
+def _branch_orders(kinds: list, members: dict, shapes: list):
+    """The distinct orders of the branches, lazily: target branch t takes a source of a kind whose
+    class shape matches its own, the first unused branch of that kind."""
+    branches = len(shapes)
+    counts = {kind: len(members[kind]) for kind in kinds}
+
+    def extend(order: list):
+        target = len(order)
+        if target == branches:
+            yield list(order)
+            return
+        for kind in kinds:
+            if counts[kind] and kind[0] == shapes[target]:
+                used = len(members[kind]) - counts[kind]
+                counts[kind] -= 1
+                order.append(members[kind][used])
+                yield from extend(order)
+                order.pop()
+                counts[kind] += 1
+
+    yield from extend([])
 
 
 def _row_rearrangements(labels: np.ndarray, source_classes: np.ndarray,

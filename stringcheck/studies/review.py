@@ -223,12 +223,20 @@ def review(baseline: Design, candidate: Design, *, trials: int | None = None,
                        drivers=drivers)
         base = run_check(baseline, progress=_stage(progress, 0), **options)
         cand = run_check(candidate, progress=_stage(progress, 1), **options)
+        if rare is None:
+            # The automatic sampler ran where each design's own plain run could not decide: a
+            # check it ran on for one design runs it for the other too, so that the two are
+            # compared by one estimator.
+            union = tuple(sorted(_sampled(base) | _sampled(cand)))
+            if _sampled(base) != set(union):
+                base = run_check(baseline, **{**options, "rare": union})
+            if _sampled(cand) != set(union):
+                cand = run_check(candidate, **{**options, "rare": union})
     tolerance = baseline.review.tolerance
     changes = []
     for name, base_check in base.checks.items():
         cand_check = cand.checks.get(name)
-        base_upper, base_by = _deciding_bound(base_check)
-        cand_upper, cand_by = _deciding_bound(cand_check)
+        base_upper, base_by, cand_upper, cand_by = _compared_bounds(base_check, cand_check)
         rise = None if base_upper is None or cand_upper is None else cand_upper - base_upper
         acceptable = (cand_check is not None and cand_check.ran and cand_check.passed
                       and (rise is None or rise <= tolerance)) or \
@@ -249,14 +257,29 @@ def review(baseline: Design, candidate: Design, *, trials: int | None = None,
                         tolerance=tolerance, verdict=verdict)
 
 
-def _deciding_bound(check) -> tuple[float | None, str]:
-    """The P(fail) upper bound that decided ``check`` and the estimator that gave it."""
-    if check is None or not check.ran:
-        return None, "plain"
-    rare = getattr(check, "rare", None)
-    if rare is not None and rare.decides:
-        return rare.ci_high, "importance sampling"
-    return check.estimate.ci_high, "plain"
+def _sampled(result: CheckResult) -> set[str]:
+    """The checks of a result the importance sampler ran on."""
+    return {name for name, check in result.checks.items()
+            if check.ran and getattr(check, "rare", None) is not None}
+
+
+def _compared_bounds(base_check, cand_check) -> tuple[float | None, str, float | None, str]:
+    """The P(fail) upper bounds of one check of both designs, by one estimator: the importance
+    sampler's where it decided on both sides, else the plain exact intervals (never one of each:
+    a tight bound against a loose one would make a better part look worse, or a worse one
+    better). Each with the estimator's name."""
+    def deciding(check):
+        rare = getattr(check, "rare", None) if check is not None and check.ran else None
+        return rare if rare is not None and rare.decides else None
+
+    def plain(check):
+        return (check.estimate.ci_high if check is not None and check.ran else None), "plain"
+
+    base_rare, cand_rare = deciding(base_check), deciding(cand_check)
+    if base_rare is not None and cand_rare is not None:
+        return (base_rare.ci_high, "importance sampling", cand_rare.ci_high,
+                "importance sampling")
+    return plain(base_check) + plain(cand_check)
 
 
 def _stage(progress, stage: int):

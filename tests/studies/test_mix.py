@@ -417,3 +417,12 @@ def test_cli_mix_workers_two_equals_one(tmp_path):
         assert out.exit_code in (0, 1), out.output
         outputs.append(target.read_text(encoding="utf-8"))
     assert outputs[0] == outputs[1]
+
+
+@pytest.mark.parametrize("fraction", [0.0, 1.0])
+def test_rare_takes_a_mix_of_none_or_all(fraction):
+    # Fractions 0 and 1 draw no substitution at all (every device one part): the sampler has no
+    # mix coordinates to move and must still build the strings.
+    design = mixed(parse_design_text(BASE), fraction, "FAST")
+    result = run_check(design, trials=2048, rare=True)
+    assert result.checks["static"].rare is not None
