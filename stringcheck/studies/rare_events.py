@@ -372,26 +372,21 @@ def failure_point_orbit(design: Design, space: _Space, point: np.ndarray,
     if near is not None:
         # Near symmetries (another part or temperature rise, no serial placed): the device that
         # stands out moved to each other such position of its branch, the rest left where it is
-        # (in a temperature gradient the rest follows the positions, not the device).
+        # (in a temperature gradient the rest follows the positions, not the device). From the
+        # point alone: from one of its exact images it would reach the same places again.
         series = keys.shape[1]
         serials = design.string.serial_grid().reshape(-1)
         flat_keys = keys.reshape(-1)
-        dominant = int(np.argmax(departures))
+        where = int(np.argmax(departures))
+        branch = where // series
         candidates = []
-        for source in sources:
-            where = int(np.flatnonzero(source == dominant)[0])
-            branch = where // series
-            for other in range(branch * series, (branch + 1) * series):
-                if other == where or serials[other] is not None or serials[where] is not None \
-                        or flat_keys[other] == flat_keys[where]:  # the orbit has that one
-                    continue
-                swap = np.arange(source.size)
-                swap[[where, other]] = swap[[other, where]]
-                candidates.append(space.rearranged(point, source[swap]))
-                if len(candidates) >= _MAX_IMAGES:
-                    break
-            if len(candidates) >= _MAX_IMAGES:
-                break
+        for other in range(branch * series, (branch + 1) * series):
+            if other == where or serials[other] is not None or serials[where] is not None \
+                    or flat_keys[other] == flat_keys[where]:  # the orbit has that one
+                continue
+            swap = np.arange(flat_keys.size)
+            swap[[where, other]] = swap[[other, where]]
+            candidates.append(space.rearranged(point, swap))
         for candidate in candidates:
             settled = near(candidate)
             if settled is not None:
