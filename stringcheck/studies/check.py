@@ -45,6 +45,8 @@ from .rare_events import (
     DEFAULT_SAMPLES,
     RareEstimate,
     SearchEffort,
+    needs_rare,
+    rare_design,
     rare_event_estimate,
 )
 from .check_inputs import (
@@ -68,10 +70,6 @@ _CHUNK_ELEMENTS = 1_000_000
 RARE_CHECKS = ("static", "dynamic", "parallel", "thermal")
 # The transient check's importance sampler: each string costs milliseconds of the turn-off engine.
 TRANSIENT_RARE_SAMPLES = 2000
-# The automatic importance sampler runs on a check whose plain run saw fewer failures than this
-# (and could not decide the check): about the count below which the plain run's relative error
-# exceeds 30 % (common practice).
-AUTO_RARE_FAILURES = 10
 # Trials per slice of a chunk in the solvers (whole sampling blocks).
 _SOLVE_TRIALS = 2 * BLOCK_TRIALS
 
@@ -162,12 +160,13 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         ``transient_worst`` charge-balance trials and a random sample of ``transient_sample``
         trials (default: the trials the target needs, so that the check can pass).
     rare, rare_samples
-        Estimate the P(fail) of the static, dynamic, parallel and thermal checks by importance
-        sampling (``studies.rare_events``) with ``rare_samples`` strings; each check then passes
-        on that estimate's upper bound (the plain exact interval decides when the two disagree).
+        Estimate the P(fail) of every check (static, dynamic, transient, parallel, thermal) by
+        importance sampling (``studies.rare_events``) with ``rare_samples`` strings (the transient
+        check at most ``TRANSIENT_RARE_SAMPLES``); each check then passes on that estimate's upper
+        bound (the plain exact interval decides when the two disagree or the estimator declines).
         None: automatically, for each check whose plain run could not decide it with fewer than
-        :data:`AUTO_RARE_FAILURES` failures (:func:`needs_rare`). A tuple of check names: for
-        those (``review`` gives both designs the same).
+        ``rare_events.AUTO_RARE_FAILURES`` failures (``rare_events.needs_rare``). A tuple of
+        check names: for those (``review`` gives both designs the same).
     drivers
         Rank the inputs by their influence on each series check's worst stress, and rerun the
         check with each of the top inputs tightened (``studies.drivers``).
@@ -500,39 +499,6 @@ def evaluate_strings(context: _ChunkContext, drawn: DrawnStrings, check: str) ->
 def _devices(context: _ChunkContext, drawn: DrawnStrings) -> _ChunkContext:
     """The context with per-device constants under a mix (:func:`_for_devices`), else itself."""
     return context if drawn.part_index is None else _for_devices(context, drawn)
-
-
-def rare_design(design: Design) -> tuple[Design, tuple[str, ...]]:
-    """The design the importance sampler draws from, and the parts whose lots it refitted.
-
-    The sampler moves latent normal values, and a resampled lot has none to move (its devices are
-    discrete rows): such a lot enters through its fit instead (:meth:`MeasuredLot.as_fitted`).
-    A lot too small to fit is a :class:`DesignError` naming ``parts.NAME.measured``.
-    """
-    parts = dict(design.parts)
-    refitted = []
-    for name in design.parts_used():
-        lot = parts[name].measured
-        if lot is not None and lot.resampled:
-            try:
-                parts[name] = replace(parts[name], measured=lot.as_fitted())
-            except DesignError as error:
-                raise DesignError(f"is resampled, and --rare needs a fit to it: {error.detail}, "
-                                  "or run without --rare", source=design.source,
-                                  key=f"parts.{name}.measured") from None
-            refitted.append(name)
-    return (replace(design, parts=parts) if refitted else design), tuple(refitted)
-
-
-def needs_rare(check, target: float) -> bool:
-    """Whether the automatic mode runs the importance sampler on ``check``: its plain run saw
-    fewer than :data:`AUTO_RARE_FAILURES` failures and its exact interval holds the target (the
-    plain run fails the check only for want of trials: a longer run could pass it)."""
-    estimate = check.estimate
-    if getattr(check, "worst_failures", 0):
-        return False  # the transient check fails on a failing worst string whatever P(fail) is
-    return (estimate is not None and estimate.failures < AUTO_RARE_FAILURES
-            and estimate.ci_low <= target < estimate.ci_high)
 
 
 def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, target: float,

@@ -12,7 +12,8 @@ from scipy import stats
 from stringcheck.design import parse_design_text
 from stringcheck.studies import rare_events
 from stringcheck.studies.check import run_check
-from stringcheck.studies.rare_events import _Space, failure_point_images, mixture_sample, \
+from stringcheck.studies.failure_orbits import failure_point_images
+from stringcheck.studies.rare_events import _Space, mixture_sample, \
     mixture_weight
 
 # The two-stage design of tests/conftest.py (fixture half_plane_design): P(fail) = Phi(-beta)
@@ -588,7 +589,7 @@ def test_a_temperature_gradient_stack_that_fails_is_not_passed():
 def test_an_orbit_too_large_to_take_is_cut_and_reported_incomplete():
     # Eight positions all unlike: 8! = 40,320 rearrangements, more than the 1,024 taken. The orbit
     # is reported incomplete, and an estimate on it does not decide (the plain interval does).
-    from stringcheck.studies.rare_events import _MAX_IMAGES, failure_point_orbit
+    from stringcheck.studies.failure_orbits import MAX_IMAGES, failure_point_orbit
 
     design = parse_design_text(_SERIES_FOUR.format(parallel=1, override="").replace(
         "series = 4", "series = 8"))
@@ -596,7 +597,7 @@ def test_an_orbit_too_large_to_take_is_cut_and_reported_incomplete():
     point = np.zeros(space.dimension)
     point[:8] = np.linspace(-3.0, 3.0, 8)
     images, complete = failure_point_orbit(design, space, point)
-    assert not complete and _MAX_IMAGES <= images.shape[0] <= _MAX_IMAGES + 1
+    assert not complete and MAX_IMAGES <= images.shape[0] <= MAX_IMAGES + 1
     full, whole = failure_point_orbit(design, space, np.r_[np.full(8, 0.5), np.zeros(8)])
     assert whole and full.shape[0] == 1
 
