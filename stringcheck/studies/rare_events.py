@@ -64,6 +64,7 @@ _SEEDS = 2  # pilot samples with the highest g whose direction and gradient also
 # exceeds 30 % (common practice).
 AUTO_RARE_FAILURES = 10
 _NEAR_RADIUS = 1.0  # latent units: an image this close to failure is a shift of the mixture
+_RECENTRE = 3  # times the failure point may move to a closer image of itself
 
 
 @dataclass(frozen=True)
@@ -303,7 +304,19 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
                 return None
             return settled
 
-        shifts, complete = failure_point_orbit(design, space, point, near)
+        # An image of another position may lie closer than the point found (a local optimum, as
+        # in a temperature gradient, where each position has its own failure point): re-centre
+        # on the closest, refined, a few times.
+        for _ in range(_RECENTRE):
+            shifts, complete = failure_point_orbit(design, space, point, near)
+            norms = np.linalg.norm(shifts, axis=1)
+            closest = int(np.argmin(norms))
+            if norms[closest] >= norms[0] - 1e-6:
+                break
+            point = _refined(g, shifts[closest], effort)
+            beta_found = float(np.linalg.norm(point))
+        else:
+            shifts, complete = failure_point_orbit(design, space, point, near)
     else:
         shifts = np.zeros((0, space.dimension))
     beta = float(np.linalg.norm(point)) if found else math.inf
@@ -445,7 +458,11 @@ def _failure_point(g, dimension: int, pilot: np.ndarray, pilot_values: np.ndarra
     starts = [point for point in starts if point is not None]
     if not starts:
         return None
-    start = min(starts, key=np.linalg.norm)
+    return _refined(g, min(starts, key=np.linalg.norm), effort)
+
+
+def _refined(g, start: np.ndarray, effort: SearchEffort) -> np.ndarray:
+    """SLSQP from a failing ``start``: the closest failure it reaches, or ``start`` itself."""
     if effort.refine_iterations == 0:
         return start
 

@@ -578,12 +578,18 @@ def test_a_temperature_gradient_stack_that_fails_is_not_passed():
     # target. An earlier version merged alike positions ever more coarsely until the images fit,
     # down to one, and passed it at ~1e-5. The failing device now moves to every position (each
     # image settled on its own failure along its ray), and the check fails on every seed.
+    # Each position has its own failure point there: the search, from different pilot samples,
+    # ends on different ones (beta 5.69 to 6.05), and re-centring on the closest image reaches the
+    # same, closest one from every seed.
     design = parse_design_text(_gradient_stack(24, 0.5, "20.25 kV", "2e-5"))
+    betas = set()
     for seed in (1, 4, 6):
         check = run_check(design, trials=4096, seed=seed, rare=True,
                           only=("static",)).checks["static"]
         assert check.rare.found_failure_point and check.rare.failure_points >= 12
         assert not check.passed
+        betas.add(round(check.rare.beta, 3))
+    assert len(betas) == 1
 
 
 def test_an_orbit_too_large_to_take_is_cut_and_reported_incomplete():
