@@ -191,7 +191,8 @@ class Latent:
 
     ``device``: per parameter, shape (trials, parallel, series); ``lot``: per part, shape
     (trials, len(SPREAD_PARAMETERS)) (empty without ``lot_share``); ``resistor`` and ``capacitor``:
-    (trials, parallel, series) or None; ``measured_rows``: per part resampled from a measured lot,
+    (trials, parallel, series), a :class:`StreamScores` not drawn yet, or None (no such grading
+    component, or not wanted); ``measured_rows``: per part resampled from a measured lot,
     the lot row of each position that may draw it, (trials, parallel, series), -1 elsewhere. The
     Monte Carlo draws them from seeded streams; the rare-event estimator chooses the normal values
     itself (and refuses resampled lots).
@@ -199,8 +200,8 @@ class Latent:
 
     device: Mapping[str, np.ndarray]
     lot: Mapping[str, np.ndarray]
-    resistor: np.ndarray | None
-    capacitor: np.ndarray | None
+    resistor: np.ndarray | StreamScores | None
+    capacitor: np.ndarray | StreamScores | None
     measured_rows: Mapping[str, np.ndarray] = field(default_factory=dict)
     uniform: bool = False
     # With a mix: each device's substitution score, (trials, parallel, series); the device is the
@@ -219,12 +220,6 @@ class StreamScores:
     count: int
     component: int
     shape: tuple[int, int]
-
-    def drawn(self) -> np.ndarray:
-        """The scores themselves."""
-        width = self.shape[0] * self.shape[1]
-        return _uniforms(self.seed, self.first_trial, self.count, self.component,
-                         width).reshape((self.count,) + self.shape)
 
 
 def latent_parameters(design: Design, parameters: tuple[str, ...]) -> tuple[str, ...]:
@@ -430,7 +425,7 @@ def strings_from_latent(design: Design, parameters: tuple[str, ...], latent: Lat
     for nominal, tolerance, scores, name in (
             (grading.resistor, grading.resistor_tolerance, latent.resistor, "resistance"),
             (grading.capacitor, grading.capacitor_tolerance, latent.capacitor, "capacitance")):
-        if nominal is None:
+        if nominal is None or scores is None:
             continue
         options = dict(sigma_at_limit=monte_carlo.sigma_at_limit, uniform=grading_uniform)
         if isinstance(scores, StreamScores):
@@ -539,7 +534,9 @@ def _mixed_strings(design: Design, parameters: tuple[str, ...], latent: Latent, 
     index = np.broadcast_to(grid, (base.trials,) + grid.shape).copy()
     if mix.fraction == 0.0:
         return replace(base, part_index=index, part_names=names)
-    other = strings_from_latent(everywhere, parameters, latent, first_trial,
+    # Only the devices are picked from the other variant: its grading is not drawn again.
+    other = strings_from_latent(everywhere, parameters,
+                                replace(latent, resistor=None, capacitor=None), first_trial,
                                 normal_latent=normal_latent)
     swap = substituted_devices(design, first_trial, base.trials, seed, latent)
     index[swap] = lookup[mix.part]
