@@ -70,12 +70,20 @@ def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigm
             # tabulated as a whole.
             return _truncate(z, low, high, scale=upper, median=spread.typ, lognormal=lognormal)
         z = _truncate(z, low, high)
-    scaled = upper * z if upper == lower else np.where(z >= 0, upper * z, lower * z)
-    if lognormal:
+    return _two_piece(z, upper, lower, spread.typ, lognormal)
+
+
+def _two_piece(y: np.ndarray, upper: float, lower: float, median: float,
+               lognormal: bool) -> np.ndarray:
+    """median + s y, or median exp(s y) if ``lognormal``, with s = ``upper`` for y >= 0 and
+    ``lower`` below (the two-piece spread of a latent y) [unit of the spread]."""
+    scaled = upper * y if upper == lower else np.where(y >= 0.0, upper * y, lower * y)
+    if not lognormal:
+        scaled += median
+        return scaled
+    with np.errstate(over="ignore"):
         np.exp(scaled, out=scaled)
-        scaled *= spread.typ
-    else:
-        scaled += spread.typ
+    scaled *= median
     return scaled
 
 
@@ -189,12 +197,8 @@ def _exact_from_uniform(u: np.ndarray, low: float, high: float, upper: float, lo
     then median + s y or median exp(s y), s = ``upper`` for y >= 0 and ``lower`` below."""
     u = np.asarray(u, dtype=float)
     below, above = _cell_probabilities(u)
-    y = _truncated_quantile(below, above, u < 0.5, low, high)
-    scaled = np.where(y >= 0.0, upper * y, lower * y)
-    if not lognormal:
-        return median + scaled
-    with np.errstate(over="ignore"):
-        return median * np.exp(scaled)
+    return _two_piece(_truncated_quantile(below, above, u < 0.5, low, high), upper, lower, median,
+                      lognormal)
 
 
 # The table of the uniform-score map: _SCORE_INTERVALS equal intervals of [0, 1), a quadratic
