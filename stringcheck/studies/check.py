@@ -346,15 +346,14 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     drawn = draw_strings(design, context.parameters, first, count, seed=context.seed)
     static = PositionSums(shape, context.limits) if context.run_static else None
     dynamic = PositionSums(shape, context.limits) if context.run_dynamic else None
+    devices = _devices(context, drawn)
     if drawn.part_index is None:
         # The solvers work through the chunk in slices of whole sampling blocks, small enough for
         # their temporaries to stay in cache; the accumulators take them in trial order.
-        devices = context
         slices = [drawn.trial_slice(start, _SOLVE_TRIALS) for start in range(0, count, _SOLVE_TRIALS)]
     else:
-        # With a mix, each drawn device's own part constants, (trials, parallel, series), for the
-        # whole chunk at once.
-        devices = _for_devices(context, drawn)
+        # With a mix, each drawn device's own part constants, (trials, parallel, series), cover
+        # the whole chunk at once.
         slices = [drawn]
     own_limits = None if drawn.part_index is None else devices.limits
     for part in slices:
@@ -548,7 +547,6 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
             note = ("no failure point found and the sampler drew the lot's fit, not the lot: the "
                     "plain run (the lot itself) decides")
             estimate = replace(estimate, decides=False, note=note)
-            return replace(check, rare=estimate, passed=plain.ci_high <= target and worst_ok)
     if estimate.found_failure_point and plain is not None and estimate.ci_high < plain.ci_low:
         # Two intervals of one probability that do not meet: one of the estimators is wrong, and
         # the importance sampler is the one that can be (a failure region it never sampled, such
@@ -557,10 +555,10 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
                 f"Monte Carlo lower bound {plain.ci_low:.2g} ({plain.failures:,} of "
                 f"{plain.trials:,}): the estimators disagree, so the plain interval decides")
         estimate = replace(estimate, decides=False, note=note)
-        return replace(check, rare=estimate, passed=plain.ci_high <= target and worst_ok)
-    if not estimate.decides:  # the estimator itself declined (an incomplete orbit)
-        return replace(check, rare=estimate, passed=plain.ci_high <= target and worst_ok)
-    return replace(check, rare=estimate, passed=estimate.ci_high <= target and worst_ok)
+    # An estimate that does not decide (the cases above, or an incomplete orbit, which the
+    # estimator declines itself) leaves the verdict to the plain interval.
+    bound = estimate.ci_high if estimate.decides else plain.ci_high
+    return replace(check, rare=estimate, passed=bound <= target and worst_ok)
 
 
 def _drivers(design: Design, checks, features: dict[str, list], ratios: dict[str, list], *,

@@ -293,14 +293,12 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
     point = _failure_point(g, space.dimension, pilot, g(pilot), effort)
     found = point is not None
     if found:
-        beta_found = float(np.linalg.norm(point))
-
         def near(image: np.ndarray) -> np.ndarray | None:
             # A near image settles on its own failure: the first failure along its direction,
             # kept within one latent unit of beta (farther ones weigh e^-beta less, or more).
             norm = float(np.linalg.norm(image))
             settled = _on_ray(g, image / norm, effort) if norm > 0 else None
-            if settled is None or np.linalg.norm(settled) > beta_found + _NEAR_RADIUS:
+            if settled is None or np.linalg.norm(settled) > np.linalg.norm(point) + _NEAR_RADIUS:
                 return None
             return settled
 
@@ -314,7 +312,6 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
             if norms[closest] >= norms[0] - 1e-6:
                 break
             point = _refined(g, shifts[closest], effort)
-            beta_found = float(np.linalg.norm(point))
         else:
             shifts, complete = failure_point_orbit(design, space, point, near)
     else:
