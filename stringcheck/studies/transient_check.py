@@ -202,13 +202,8 @@ def _rank(design: Design, sample_set: np.ndarray, ratios: np.ndarray, trials: in
           options: dict) -> tuple[Driver, ...]:
     """The drivers of the transient check on its sample (see :func:`run_transient`)."""
     features: dict[str, list] = {}
-    blocks = sample_set // BLOCK_TRIALS
-    for block in np.unique(blocks):
-        first = int(block) * BLOCK_TRIALS
-        count = min(BLOCK_TRIALS, trials - first)
-        drawn = draw_strings(design, ("q_rr",), first, count, seed=seed)
-        rows = sample_set[blocks == block] - first
-        for name, values in chunk_features(drawn, design, count).items():
+    for _, rows, drawn in _redrawn(design, sample_set, trials, seed):
+        for name, values in chunk_features(drawn, design, drawn.trials).items():
             features.setdefault(name, []).append(values[rows])
     joined = {name: np.concatenate(parts) for name, parts in features.items()}
     out = []
@@ -231,12 +226,7 @@ def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: i
     charge = np.empty(shape)
     resistance = np.full(shape, np.inf)
     capacitance = np.zeros(shape)
-    blocks = selected // BLOCK_TRIALS
-    for block in np.unique(blocks):
-        first = int(block) * BLOCK_TRIALS
-        drawn = draw_strings(design, ("q_rr",), first, min(BLOCK_TRIALS, trials - first), seed=seed)
-        rows = selected[blocks == block] - first
-        where = blocks == block
+    for where, rows, drawn in _redrawn(design, selected, trials, seed):
         charge[where] = drawn.parameters["q_rr"][rows]
         parts = device_part_grid(design, drawn)
         grid[where] = parts if parts.ndim == 2 else parts[rows]
@@ -245,6 +235,18 @@ def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: i
         if drawn.capacitance is not None:
             capacitance[where] = drawn.capacitance[rows]
     return _engine_inputs(design, fits, grid, charge, resistance, capacitance)
+
+
+def _redrawn(design: Design, selected: np.ndarray, trials: int, seed: int):
+    """The sampling blocks that hold the (sorted) ``selected`` trials, redrawn one at a time:
+    (mask of ``selected`` in the block, their rows in it, the block's strings drawn with
+    ``("q_rr",)``)."""
+    blocks = selected // BLOCK_TRIALS
+    for block in np.unique(blocks):
+        first = int(block) * BLOCK_TRIALS
+        drawn = draw_strings(design, ("q_rr",), first, min(BLOCK_TRIALS, trials - first), seed=seed)
+        where = blocks == block
+        yield where, selected[where] - first, drawn
 
 
 def _engine_inputs(design: Design, fits, grid: np.ndarray, charge: np.ndarray,
