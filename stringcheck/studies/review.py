@@ -32,9 +32,9 @@ from .runner import worker_pool
 
 @dataclass(frozen=True)
 class CheckChange:
-    """One check in both designs. The P(fail) upper bounds are the ones that decided each check:
-    the importance sampler's where it ran and decided (``*_by`` "importance sampling"), else the
-    plain run's exact interval ("plain")."""
+    """One check in both designs. The P(fail) upper bounds compare the two by one estimator: the
+    importance sampler's where it decided on both sides (``*_by`` "importance sampling"), else
+    the plain runs' exact intervals ("plain"); see :func:`_compared_bounds`."""
 
     name: str
     baseline_ran: bool
