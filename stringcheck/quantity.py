@@ -85,8 +85,8 @@ _SUPERSCRIPT = "\u207a\u207b\u2070\u00b9\u00b2\u00b3\u2074-\u2079"
 # A power of the number itself ("10**3 V", "10^3 V", "10³ V"): pint would evaluate integer powers
 # exactly, and "10**10**10 V" would never finish.
 _NUMBER_POWER = re.compile(rf"\s*(?:\*\*|\^|[{_SUPERSCRIPT}])")
-# The unit's own powers ("m^2", "K**-1", "K⁻¹") follow a unit name or a parenthesis.
-_UNIT_POWER = re.compile(rf"(?<=[^\W\d]|\))\s*(?:(?:\*\*|\^)\s*[+-]?[0-9]{{1,2}}(?![0-9])"
+# The unit's own powers ("m^2", "K**-1", "K⁻¹") follow a unit name, a unit sign or a parenthesis.
+_UNIT_POWER = re.compile(rf"(?<=[^\W\d]|[)%\u00b0\u2103\u2109])\s*(?:(?:\*\*|\^)\s*[+-]?[0-9]{{1,2}}(?![0-9])"
                          rf"|[{_SUPERSCRIPT}]+)")
 # "1/K" and "0.004 1/K": the 1 of a reciprocal unit.
 _RECIPROCAL = re.compile(r"^\s*1\s*/")
@@ -292,7 +292,7 @@ def _second_number(number_text: str, rest: str, unit: Unit,
     """A second value after the unit ("2.2 nF 10 %"), or some other second number."""
     first_digit = re.search(r"[0-9.]*\d", _masked(rest))
     assert first_digit is not None
-    head = rest[:first_digit.start()].strip()
+    head = rest[:first_digit.start()].strip().rstrip(",;").strip()
     tail = " ".join(rest[first_digit.start():].split())
     if head and re.search(r"[^\W\d]", head) and not re.search(r"[-+/*(^.,]\s*$", head):
         read = f"a second value after the unit: {tail}"
@@ -421,7 +421,8 @@ def format_quantity(value: float, unit_label: str, *, digits: int = 3) -> str:
     if value is None or not math.isfinite(value):
         return f"{value} {unit_label}".strip()
     if unit_label in ("degC", "K", "1", "1/K", "%", ""):
-        return f"{value:.{digits}g} {unit_label}".strip()
+        # A dimensionless number is printed bare, as the parser reads it back ("0.8", not "0.8 1").
+        return f"{value:.{digits}g} {'' if unit_label == '1' else unit_label}".strip()
     if value == 0:
         return f"0 {unit_label}"
     prefixes = ((1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"),
