@@ -86,8 +86,8 @@ _SUPERSCRIPT = "\u207a\u207b\u2070\u00b9\u00b2\u00b3\u2074-\u2079"
 # exactly, and "10**10**10 V" would never finish.
 _NUMBER_POWER = re.compile(rf"\s*(?:\*\*|\^|[{_SUPERSCRIPT}])")
 # The unit's own powers ("m^2", "K**-1", "K⁻¹") follow a unit name, a unit sign or a parenthesis.
-_UNIT_POWER = re.compile(rf"(?<=[^\W\d]|[)%\u00b0\u2103\u2109])\s*(?:(?:\*\*|\^)\s*[+-]?[0-9]{{1,2}}(?![0-9])"
-                         rf"|[{_SUPERSCRIPT}]+)")
+_UNIT_POWER = re.compile(rf"(?<=[^\W\d]|[)%\u00b0\u2103\u2109])\s*"
+                         rf"(?:(?:\*\*|\^)\s*[+-]?[0-9]{{1,2}}(?![0-9])|[{_SUPERSCRIPT}]+)")
 # "1/K" and "0.004 1/K": the 1 of a reciprocal unit.
 _RECIPROCAL = re.compile(r"^\s*1\s*/")
 # A number written in scientific notation the long way: "2 x 10^3 V", "2·10³ V".
@@ -127,7 +127,8 @@ def parse_quantity(value: Any, unit: Unit, *, key: str = "value",
     value
         A string with a number and a unit (``"2.2 nF"``), or a bare int/float already in ``unit``.
     unit
-        The expected unit (one of the module constants). A value of a different dimension is an error.
+        The expected unit (one of the module constants). A value of a different dimension is an
+        error.
     key
         The design-file key the value belongs to, used in the error message.
     tolerance_key
@@ -144,8 +145,8 @@ def parse_quantity(value: Any, unit: Unit, *, key: str = "value",
     QuantityError
         When the text is not one number and one unit (a decimal comma, digits grouped by spaces, a
         second number), the unit has the wrong dimension, a unit is missing where the number alone
-        would be ambiguous, the number is raised to a power (``**``, ``^``), the value is not finite,
-        or an absolute temperature is not above absolute zero.
+        would be ambiguous, the number is raised to a power (``**``, ``^``), the value is not
+        finite, or an absolute temperature is not above absolute zero.
     """
     if isinstance(value, bool):
         raise QuantityError(f"{key}: expected a quantity in {unit.label}, got a true/false value")
@@ -163,6 +164,7 @@ def parse_quantity(value: Any, unit: Unit, *, key: str = "value",
             f"{key}: expected a quantity in {unit.label} such as \"{example(unit)}\", "
             f"got {type(value).__name__}"
         )
+    shown = _quoted(value)
     # NFC maps U+2126 OHM SIGN onto U+03A9 and U+212A KELVIN SIGN onto K; the micro sign stays.
     text = _DASHES.sub("-", unicodedata.normalize("NFC", value)).strip()
     if not text:
@@ -171,18 +173,18 @@ def parse_quantity(value: Any, unit: Unit, *, key: str = "value",
     if found is None:
         if re.search(r"\d", text):
             raise QuantityError(
-                f"{key}: cannot read {value!r} as a quantity: write the number first, then its "
+                f"{key}: cannot read {shown} as a quantity: write the number first, then its "
                 f"unit, e.g. \"{example(unit)}\"")
         # "kV" alone is almost surely an edit that lost its number; pint would read it as 1 kV.
         raise QuantityError(
-            f"{key}: cannot read {value!r} as a quantity: it has no number; write a number and a "
+            f"{key}: cannot read {shown} as a quantity: it has no number; write a number and a "
             f"unit, e.g. \"{example(unit)}\""
         )
     number_text = re.sub(r"\s+", "", found["number"])
     rest = found["rest"]
     number = float(number_text)
     if not math.isfinite(number):
-        raise QuantityError(f"{key}: the value {value!r} is not finite; give a finite number")
+        raise QuantityError(f"{key}: the value {shown} is not finite; give a finite number")
     _check_one_number(number_text, rest, value, unit, key, tolerance_key)
     unit_text = _spelled(rest)
     if not unit_text:
@@ -190,7 +192,7 @@ def parse_quantity(value: Any, unit: Unit, *, key: str = "value",
             # A quoted number without a unit is more likely a slip than a deliberate SI value;
             # a bare TOML number (no quotes) is the way to give SI.
             raise QuantityError(
-                f"{key}: {value!r} has no unit; write it with a unit in {unit.label}, "
+                f"{key}: {shown} has no unit; write it with a unit in {unit.label}, "
                 f"e.g. \"{example(unit)}\", or as a bare number in {unit.label}"
             )
         return number
@@ -201,7 +203,7 @@ def parse_quantity(value: Any, unit: Unit, *, key: str = "value",
     except OverflowError:
         number = math.inf
     if not math.isfinite(number):
-        raise QuantityError(f"{key}: the value {value!r} is not finite; give a finite number")
+        raise QuantityError(f"{key}: the value {shown} is not finite; give a finite number")
     return _checked_temperature(number, value, unit, key)
 
 
@@ -211,23 +213,28 @@ def _check_one_number(number_text: str, rest: str, value: str, unit: Unit, key: 
 
     pint reads juxtaposed terms as a product: "12 500 V" would be 6 kV and "2.2 nF 10 %" 0.22 nF.
     """
+    shown = _quoted(value)
     if _NUMBER_POWER.match(rest):
         raise QuantityError(
-            f"{key}: cannot read {value!r} as a quantity: powers (**, ^) of the number are not "
+            f"{key}: cannot read {shown} as a quantity: powers (**, ^) of the number are not "
             f"accepted; write a number and a unit, e.g. \"{example(unit)}\" (1e3 for a thousand)")
     body = _masked(rest)
     if re.search(r"(?:\*\*|\^)\s*[+-]?[0-9]{3,}", body):
         raise QuantityError(
-            f"{key}: cannot read {value!r} as a quantity: a unit's power must be a whole number "
+            f"{key}: cannot read {shown} as a quantity: a unit's power must be a whole number "
             f"below 100; write a number and a unit, e.g. \"{example(unit)}\"")
     if not re.search(r"\d", body):
         if re.search(r"[+-]", body):
             raise QuantityError(
-                f"{key}: cannot read {value!r} as a quantity: a sign inside the unit; write one "
+                f"{key}: cannot read {shown} as a quantity: a sign inside the unit; write one "
                 f"number and one unit, e.g. \"{example(unit)}\"")
         return
-    what, fix = _one_number_hint(number_text, rest, unit, tolerance_key)
-    raise QuantityError(f"{key}: cannot read {value!r} as one quantity ({what}); {fix}")
+    if len(rest) > _SHOWN_LENGTH:
+        what = "more than one number"
+        fix = f"write one number and one unit, e.g. \"{example(unit)}\""
+    else:
+        what, fix = _one_number_hint(number_text, rest, unit, tolerance_key)
+    raise QuantityError(f"{key}: cannot read {shown} as one quantity ({what}); {fix}")
 
 
 def _masked(rest: str) -> str:
@@ -245,7 +252,7 @@ def _one_number_hint(number_text: str, rest: str, unit: Unit,
     integer = re.fullmatch(r"[+-]?[0-9]+", number_text) is not None
     grouped = re.fullmatch(r"[+-]?[0-9]{1,3}", number_text) is not None
     # Digits grouped in threes by spaces, apostrophes or commas: "12 500 V", "1,000,000 V".
-    groups = re.match(r"((?:(?:\s+|'|\u2019|,)[0-9]{3})+)(\.[0-9]+)?(?![0-9])(?P<unit>.*)", rest,
+    groups = re.match(r"((?:(?:\s+|'|\u2019|,|_)[0-9]{3})+)(\.[0-9]+)?(?![0-9])(?P<unit>.*)", rest,
                       re.DOTALL)
     if grouped and groups and not re.search(r"\d", groups["unit"]):
         joined = number_text + re.sub(r"[^0-9]", "", groups[1]) + (groups[2] or "")
@@ -257,7 +264,7 @@ def _one_number_hint(number_text: str, rest: str, unit: Unit,
                     f"write \"{decimal} {unit_part}\" if the comma is a decimal mark, or "
                     f"\"{joined} {unit_part}\" if it groups thousands")
         how = "commas" if "," in groups[1] else "spaces" if groups[1][0].isspace() else \
-            "apostrophes"
+            "underscores" if "_" in groups[1] else "apostrophes"
         return (f"digits grouped with {how}, read as {number_text} and "
                 f"{' and '.join(re.findall(r'[0-9]+', groups[1]))}",
                 f"write \"{joined} {unit_part}\"")
@@ -292,9 +299,11 @@ def _second_number(number_text: str, rest: str, unit: Unit,
     """A second value after the unit ("2.2 nF 10 %"), or some other second number."""
     first_digit = re.search(r"[0-9.]*\d", _masked(rest))
     assert first_digit is not None
-    head = rest[:first_digit.start()].strip().rstrip(",;").strip()
+    # The unit before the second value, without what joined the two ("2.2 nF, 10 %", "± 10 %").
+    head = re.sub(r"(?:[\s,;\u00b1]|\+/-|\+-)*$", "", rest[:first_digit.start()])
     tail = " ".join(rest[first_digit.start():].split())
-    if head and re.search(r"[^\W\d]", head) and not re.search(r"[-+/*(^.,]\s*$", head):
+    head = head.strip()
+    if head and re.search(r"[^\W\d_]", head) and not re.search(r"[-+/*(^.,]\s*$", head):
         read = f"a second value after the unit: {tail}"
         if tolerance_key is not None and re.search(r"%|percent|ppm", tail):
             return read, (f"write \"{number_text} {head}\" and give the tolerance as "
@@ -311,10 +320,23 @@ ABSOLUTE_ZERO = -273.15
 
 def _checked_temperature(number: float, value: Any, unit: Unit, key: str) -> float:
     """An absolute temperature must lie above absolute zero."""
+    shown = _quoted(value)
     if unit.absolute_temperature and not number > ABSOLUTE_ZERO:
-        raise QuantityError(f"{key}: {value!r} is not above absolute zero ({ABSOLUTE_ZERO:g} degC); "
+        raise QuantityError(f"{key}: {shown} is not above absolute zero ({ABSOLUTE_ZERO:g} degC); "
                             f"give a temperature such as \"{example(unit)}\"")
     return number
+
+
+def _quoted(value: Any) -> str:
+    """``repr`` of the value as written, a long text cut short so that an error stays one short
+    line."""
+    if not isinstance(value, str) or len(value) <= _SHOWN_LENGTH:
+        return repr(value)
+    return repr(value[:_SHOWN_LENGTH - 20]) + f" (cut, {len(value):,} characters)"
+
+
+# Texts longer than this are cut in messages and get no suggestion built from them.
+_SHOWN_LENGTH = 80
 
 
 def _shown(value: Any) -> str:
@@ -338,17 +360,22 @@ def _convert_with_pint(number: float, unit_text: str, value: Any, unit: Unit, ke
     (``mV/degC`` is ``mV/delta_degC``), whereas a whole-text ``Quantity("-6 mV/degC")`` would
     convert the degree Celsius as a temperature (-6 mV / 274.15 K).
     """
+    shown = _quoted(value)
     registry = _registry()
     try:
         units = registry.parse_units(unit_text)
     except Exception as error:  # pint raises several unrelated types for unreadable text
         raise QuantityError(
-            f"{key}: cannot read {value!r} as a quantity ({type(error).__name__}); "
+            f"{key}: cannot read {shown} as a quantity ({type(error).__name__}); "
             f"write a number and a unit, e.g. \"{example(unit)}\""
         ) from None
     if units.dimensionless and unit is not DIMENSIONLESS:
+        if unit.absolute_temperature and "degree" in str(units):
+            raise QuantityError(
+                f"{key}: {shown} is an angle (a degree sign alone); write the scale too, e.g. "
+                f"\"{example(unit)}\"")
         raise QuantityError(
-            f"{key}: {value!r} has no unit; write it with a unit in {unit.label}, "
+            f"{key}: {shown} has no unit; write it with a unit in {unit.label}, "
             f"e.g. \"{example(unit)}\""
         )
     if unit not in _RATIO_UNITS and not units.dimensionless:
@@ -356,14 +383,14 @@ def _convert_with_pint(number: float, unit_text: str, value: Any, unit: Unit, ke
                   if registry.parse_units(name).dimensionless]
         if ratios:
             raise QuantityError(
-                f"{key}: cannot read {value!r} as one quantity (a ratio, {ratios[0]}, beside "
+                f"{key}: cannot read {shown} as one quantity (a ratio, {ratios[0]}, beside "
                 f"the unit scales it); write one number and a unit in {unit.label}, e.g. "
                 f"\"{example(unit)}\"")
     quantity = registry.Quantity(number, units)
     offset = _is_offset(registry, units)
     if unit is KELVIN_DIFFERENCE and offset:
         raise QuantityError(
-            f"{key}: {value!r} is a temperature, not a temperature difference; write it in K, "
+            f"{key}: {shown} is a temperature, not a temperature difference; write it in K, "
             f"e.g. \"{example(unit)}\""
         )
     try:
@@ -372,7 +399,7 @@ def _convert_with_pint(number: float, unit_text: str, value: Any, unit: Unit, ke
         raise
     except Exception:
         raise QuantityError(
-            f"{key}: {value!r} is not in {unit.label} (it is in {units:~}); "
+            f"{key}: {shown} is not in {unit.label} (it is in {units:~}); "
             f"write it as e.g. \"{example(unit)}\""
         ) from None
     # 12 significant digits drop the binary noise of prefix arithmetic (2.2 nF -> 2.2e-09 exactly),

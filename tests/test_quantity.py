@@ -374,6 +374,9 @@ TWO_NUMBERS = [
     ("36 kV, 40 kV", VOLT, "a second value after the unit"),
     ("0.004 1/K 2", PER_KELVIN, "a second value after the unit: 2"),
     ("45 degC 10 %", CELSIUS, 'write "45 degC"'),
+    ("2.2 nF \u00b1 10 %", FARAD, 'write "2.2 nF";'),
+    ("2.2nF+/-10%", FARAD, 'write "2.2 nF";'),
+    ("1_000 V", VOLT, 'write "1000 V"'),
 ]
 
 
@@ -384,6 +387,22 @@ def test_two_numbers_are_refused_showing_what_was_read_and_the_fix(text, unit, f
     message = str(caught.value)
     assert message.startswith("duty.reverse_voltage: cannot read " + repr(text)), message
     assert fix in message and "\n" not in message, message
+
+
+def test_a_long_text_is_cut_short_in_the_message():
+    # STYLE.md "Errors": one short line, whatever was pasted.
+    text = "1 " + "000 " * 20000 + "V"
+    with pytest.raises(QuantityError) as caught:
+        parse_quantity(text, VOLT, key="duty.reverse_voltage")
+    message = str(caught.value)
+    assert len(message) < 300 and f"{len(text):,} characters" in message, message
+
+
+@pytest.mark.parametrize("text", ["45 \u00b0", "45 deg"])
+def test_a_degree_sign_alone_is_named_as_an_angle(text):
+    # pint reads a lone degree as the plane angle (SI Brochure table 8: 1 deg = pi/180 rad).
+    with pytest.raises(QuantityError, match=r"an angle.*e\.g\. \"45 degC\""):
+        parse_quantity(text, CELSIUS, key="duty.ambient")
 
 
 @pytest.mark.parametrize("dash", ["\u2010", "\u2011", "\u2012", "\u2013", "\u2014", "\u2015",
