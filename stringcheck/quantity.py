@@ -300,9 +300,8 @@ def _second_number(number_text: str, rest: str, unit: Unit,
     first_digit = re.search(r"[0-9.]*\d", _masked(rest))
     assert first_digit is not None
     # The unit before the second value, without what joined the two ("2.2 nF, 10 %", "± 10 %").
-    head = re.sub(r"(?:[\s,;\u00b1]|\+/-|\+-)*$", "", rest[:first_digit.start()])
+    head = re.sub(r"(?:[\s,;\u00b1]|\+/-|\+-)*$", "", rest[:first_digit.start()]).strip()
     tail = " ".join(rest[first_digit.start():].split())
-    head = head.strip()
     if head and re.search(r"[^\W\d_]", head) and not re.search(r"[-+/*(^.,]\s*$", head):
         read = f"a second value after the unit: {tail}"
         if tolerance_key is not None and re.search(r"%|percent|ppm", tail):
