@@ -297,6 +297,9 @@ def _read_monte_carlo(reader: _Reader, raw: Mapping[str, Any]) -> MonteCarlo:
         raise reader.error("monte_carlo.screened", f"must be true or false, got {screened!r}")
     correlation = []
     raw_correlation = reader.table(table, "correlation", prefix)
+    # One entry per pair: "r_t-v_t0" and "v_t0-r_t" name the same coefficient, and the matrix would
+    # keep whichever came last.
+    pairs: dict[frozenset[str], str] = {}
     for key, value in raw_correlation.items():
         dotted = f"{prefix}.correlation.{key}"
         names = key.split("-")
@@ -304,6 +307,13 @@ def _read_monte_carlo(reader: _Reader, raw: Mapping[str, Any]) -> MonteCarlo:
                 names[0] == names[1]:
             raise reader.error(dotted, "name two different parameters joined by '-', e.g. "
                                        "q_rr-v_t0 = -0.5; parameters: " + ", ".join(SPREAD_PARAMETERS))
+        pair = frozenset(names)
+        if pair in pairs:
+            first = pairs[pair]
+            raise reader.error(dotted, f"gives the pair again: {prefix}.correlation.{first} = "
+                                       f"{raw_correlation[first]!r} and {key} = {value!r} name one "
+                                       "coefficient; keep one of the two")
+        pairs[pair] = key
         if isinstance(value, bool) or not isinstance(value, (int, float)) or \
                 not -1.0 < float(value) < 1.0:
             raise reader.error(dotted, f"must be a number in (-1, 1), got {value!r}")

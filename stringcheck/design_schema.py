@@ -27,6 +27,7 @@ from .quantity import (
     SECOND,
     VOLT,
     Unit,
+    example,
     parse_quantity,
 )
 
@@ -92,8 +93,13 @@ class _Reader:
             if default is not None and note:
                 self.assumptions.append(f"{dotted} not given: {note}")
             return default
+        # A value's tolerance key in the same table ("capacitor" -> "capacitor_tolerance"), named
+        # when the text carries one after its unit ("2.2 nF 10 %").
+        tolerance = f"{key}_tolerance"
+        tolerance_key = _join(prefix, tolerance) if tolerance in _SCHEMA_KEYS.get(prefix, ()) \
+            else None
         try:
-            value = parse_quantity(table[key], unit, key=dotted)
+            value = parse_quantity(table[key], unit, key=dotted, tolerance_key=tolerance_key)
         except QuantityError as error:
             message = str(error).removeprefix(f"{dotted}: ")
             raise DesignError(message, source=self.source, key=dotted) from None
@@ -196,8 +202,6 @@ def _join(prefix: str, key: str) -> str:
 
 
 def _example(unit: Unit) -> str:
-    from .quantity import _example as example
-
     return f'"{example(unit)}"'
 
 

@@ -376,6 +376,69 @@ def test_quantity_errors_carry_the_key_attribute():
     assert caught.value.key == "duty.reverse_voltage"
 
 
+# --- correlations: one entry per pair (issue 15 item 4) --------------------------------------------
+
+CORRELATION_TWICE = [
+    # (id, [monte_carlo.correlation] body, key named, fragments: both entries as written)
+    ("reversed pair, opposite sign", "r_t-v_t0 = 0.9\nv_t0-r_t = -0.9",
+     "monte_carlo.correlation.v_t0-r_t", ["monte_carlo.correlation.r_t-v_t0 = 0.9",
+                                          "v_t0-r_t = -0.9", "keep one"]),
+    ("reversed pair, same value", "q_rr-i_r = 0.5\ni_r-q_rr = 0.5",
+     "monte_carlo.correlation.i_r-q_rr", ["monte_carlo.correlation.q_rr-i_r = 0.5",
+                                          "i_r-q_rr = 0.5"]),
+    ("reversed pair among others", "i_r-q_rr = 0.3\nr_t-v_t0 = 0.2\nq_rr-i_r = -0.3",
+     "monte_carlo.correlation.q_rr-i_r", ["monte_carlo.correlation.i_r-q_rr = 0.3",
+                                          "q_rr-i_r = -0.3"]),
+]
+
+
+@pytest.mark.parametrize(("body", "key", "fragments"), [case[1:] for case in CORRELATION_TWICE],
+                         ids=[case[0] for case in CORRELATION_TWICE])
+def test_a_correlation_pair_given_twice_is_refused_naming_both(tmp_path, body, key, fragments):
+    # A correlation coefficient is symmetric (rho_ab = rho_ba), so "a-b" and "b-a" set one number;
+    # keeping the last silently would drop the other.
+    from typer.testing import CliRunner
+
+    from stringcheck.cli import app
+
+    text = design_text(monte_carlo="[monte_carlo.correlation]\n" + body)
+    with pytest.raises(DesignError) as caught:
+        parse_design_text(text, source="stack.toml")
+    message = str(caught.value)
+    assert caught.value.key == key and "\n" not in message, message
+    for fragment in fragments:
+        assert fragment in message, (fragment, message)
+    path = tmp_path / "stack.toml"
+    path.write_text(text, encoding="utf-8")
+    result = CliRunner().invoke(app, ["check", str(path), "--trials", "100"])
+    assert result.exit_code == 2, result.output
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1 and str(path) in lines[0] and key in lines[0], result.stderr
+    for fragment in fragments:
+        assert fragment in lines[0], (fragment, lines[0])
+
+
+def test_the_same_key_twice_is_a_toml_error_with_its_line():
+    # TOML 1.0 (section "Keys"): defining a key twice is invalid; a quoted and a bare key are the
+    # same key.
+    text = design_text(monte_carlo='[monte_carlo.correlation]\nr_t-v_t0 = 0.9\n"r_t-v_t0" = 0.8')
+    with pytest.raises(DesignError, match="TOML syntax error"):
+        parse_design_text(text)
+
+
+def test_a_pair_in_either_order_gives_the_same_matrix():
+    from stringcheck.design import SPREAD_PARAMETERS, correlation_matrix
+
+    def matrix(body):
+        design = parse_design_text(design_text(monte_carlo="[monte_carlo.correlation]\n" + body))
+        return correlation_matrix(design.monte_carlo.correlation, SPREAD_PARAMETERS)
+
+    forward, backward = matrix("r_t-v_t0 = -0.4"), matrix("v_t0-r_t = -0.4")
+    np.testing.assert_array_equal(forward, backward)
+    i, j = SPREAD_PARAMETERS.index("r_t"), SPREAD_PARAMETERS.index("v_t0")
+    assert forward[i, j] == forward[j, i] == -0.4
+
+
 def test_branch_out_of_range_message_offers_only_valid_branches():
     text = design_text(string='series = 4\nparallel = 2\n[[string.position]]\nindex = 1\n'
                               'branch = 3')

@@ -99,6 +99,28 @@ def test_lot_is_read_in_si_units_with_serials(tmp_path):
     assert lot.serials[:2] == ("S000", "S001") and lot.row_of("S007") == 7
 
 
+@pytest.mark.parametrize("unit", ["uA/degC*K", "uA/\u00b0C*K", "uA/\u2103*K", "uA*K/degC",
+                                  "\u00b5A", "\u03bcA"])
+def test_a_column_unit_per_degree_celsius_times_kelvin_is_the_plain_unit(tmp_path, unit):
+    # SI Brochure (9th ed.) 2.3.1: a difference of 1 degC is 1 K, so uA/degC*K is uA. Read as an
+    # absolute temperature the column would be scaled by 1 K / 274.15 K.
+    _write_lot(tmp_path, rows=["S1,0.5,2", "S2,0.7,3"], header=f"serial,i_r [{unit}],q_rr [nC]")
+    lot = _design(tmp_path, series=2).parts["A"].measured
+    np.testing.assert_array_equal(lot.column("i_r"), [0.5e-6, 0.7e-6])
+
+
+@pytest.mark.parametrize("unit", ["2 uA", "1,5 uA", "uA 10", "10^3 uA"])
+def test_a_column_unit_holding_a_number_is_refused(tmp_path, unit):
+    # A column's unit is a unit alone; "[2 uA]" would scale every cell by 2. The header is quoted
+    # (RFC 4180) so that a comma stays in it.
+    _write_lot(tmp_path, rows=["S1,0.5,2"], header=f'serial,"i_r [{unit}]",q_rr [nC]')
+    with pytest.raises(DesignError) as error:
+        _design(tmp_path, series=1)
+    message = str(error.value)
+    assert f"'i_r [{unit}]'" in message and "not a unit of ampere" in message, message
+    assert "parts.A.measured" in message and "\n" not in message
+
+
 def test_columns_may_come_in_any_order_and_case(tmp_path):
     _write_lot(tmp_path, rows=["2.0, 0.5, X1", "3.0, 0.7, X2"], header="Q_RR [nC], I_R [uA], serial")
     lot = _design(tmp_path, series=2).parts["A"].measured

@@ -242,3 +242,373 @@ def test_format_quantity_non_finite_passes_through():
 def test_format_quantity_ohm_extreme_prefixes_round_trip(value):
     text = format_quantity(value, "ohm")
     assert parse_quantity(text, OHM, key="grading.resistor") == pytest.approx(value, rel=5e-3)
+
+
+# --- text pasted from a datasheet: one number and one unit (issue 15) -----------------------------
+
+# A small valid design of our own invention; the cases below replace one fragment of it.
+PASTE_BASE = """\
+[duty]
+reverse_voltage = "6 kV"
+ambient = "35 degC"
+[string]
+series = 6
+part = "MAIN"
+[[string.position]]
+index = 1
+temperature_rise = "10 K"
+[parts.MAIN]
+v_rrm = "1.6 kV"
+i_r = { typ = "0.3 uA", max = "3 uA", at_temperature = "25 degC" }
+q_rr = { typ = "90 nC", max = "160 nC" }
+t_j_max = "150 degC"
+tempco_v_t0 = "-2 mV/K"
+[grading]
+resistor = "3.3 MOhm"
+resistor_tolerance = "1 %"
+resistor_tcr = "100 ppm/K"
+capacitor = "2.2 nF"
+capacitor_tolerance = "10 %"
+"""
+
+
+def pasted(old: str, new: str) -> str:
+    assert PASTE_BASE.count(old) == 1, old
+    return PASTE_BASE.replace(old, new)
+
+
+PASTED_BAD = [
+    # (id, fragment replaced, replacement, key named, fragments of the one line: what was read and
+    # the fix). Item numbers of issue 15.
+    # 1: decimal commas, digit groups and second values are refused, not multiplied.
+    ("decimal comma", '"6 kV"', '"6,5 kV"', "duty.reverse_voltage",
+     ["'6,5 kV'", 'write "6.5 kV"']),
+    ("decimal comma with dots grouping", '"6 kV"', '"6.000,5 V"', "duty.reverse_voltage",
+     ["'6.000,5 V'", 'write "6000.5 V"']),
+    ("comma between three digits", '"6 kV"', '"6,000 V"', "duty.reverse_voltage",
+     ['"6.000 V" if the comma is a decimal mark', '"6000 V" if it groups thousands']),
+    ("digits grouped by a space", '"6 kV"', '"6 000 V"', "duty.reverse_voltage",
+     ["read as 6 and 000", 'write "6000 V"']),
+    ("digits grouped by a no-break space", '"6 kV"', '"6\u00a0000 V"', "duty.reverse_voltage",
+     ['write "6000 V"']),
+    ("digits grouped by a thin space", '"1.6 kV"', '"1\u2009600 V"', "parts.MAIN.v_rrm",
+     ['write "1600 V"']),
+    ("two numbers before the unit", '"6 kV"', '"6 6 kV"', "duty.reverse_voltage",
+     ["two numbers, 6 and 6", '"66 kV" or "6.6 kV"']),
+    ("tolerance after a capacitor", '"2.2 nF"', '"2.2 nF 10 %"', "grading.capacitor",
+     ["a second value after the unit: 10 %", 'write "2.2 nF"',
+      'grading.capacitor_tolerance = "10 %"']),
+    ("tolerance after a resistor", '"3.3 MOhm"', '"3.3 MOhm 1%"', "grading.resistor",
+     ['write "3.3 MOhm"', 'grading.resistor_tolerance = "1%"']),
+    ("second value after a leakage", '"3 uA"', '"3 uA 125 degC"', "parts.MAIN.i_r.max",
+     ["a second value after the unit: 125 degC", 'write "3 uA"']),
+    ("times a power of ten", '"6 kV"', '"6 x 10^3 V"', "duty.reverse_voltage",
+     ['write "6e3 V"']),
+    ("ratio beside a unit", '"2.2 nF"', '"2.2 nF %"', "grading.capacitor", ["a ratio, percent"]),
+    # 2: a typographic minus is a minus: the sign is kept, so a positive-only key refuses it.
+    ("minus sign U+2212 on a resistor", '"3.3 MOhm"', '"\u22123.3 MOhm"', "grading.resistor",
+     ["greater than zero"]),
+    ("en dash on a capacitor", '"2.2 nF"', '"\u20132.2 nF"', "grading.capacitor",
+     ["greater than zero"]),
+    # 3: per degree Celsius is per kelvin: -10 %/degC makes the resistor negative 10 K from the
+    # reference, as -10 %/K does (read as -10 % / 274.15 K it would pass).
+    ("TCR per degC makes the resistor negative", '"100 ppm/K"', '"-10 %/\u00b0C"',
+     "grading.resistor_tcr", ["not positive"]),
+    ("degree Celsius sign for a difference", '"10 K"', '"10 \u2103"',
+     "string.position[1].temperature_rise", ["temperature difference"]),
+    # 16: the degree Celsius sign is read as degC.
+    ("ambient in U+2103 above t_j_max", '"35 degC"', '"160 \u2103"', "duty.ambient",
+     ["t_j_max"]),
+]
+
+
+@pytest.mark.parametrize(("old", "new", "key", "fragments"), [c[1:] for c in PASTED_BAD],
+                         ids=[c[0] for c in PASTED_BAD])
+def test_pasted_notation_is_refused_by_the_reader_and_the_cli(tmp_path, old, new, key, fragments):
+    from typer.testing import CliRunner
+
+    from stringcheck.cli import app
+    from stringcheck.design import parse_design_text
+    from stringcheck.errors import DesignError
+
+    text = pasted(old, new)
+    with pytest.raises(DesignError) as caught:
+        parse_design_text(text, source="stack.toml")
+    assert caught.value.key == key, str(caught.value)
+    message = str(caught.value)
+    assert message.startswith(f"stack.toml: {key}: ") and "\n" not in message, message
+    for fragment in fragments:
+        assert fragment in message, (fragment, message)
+    path = tmp_path / "stack.toml"
+    path.write_text(text, encoding="utf-8")
+    result = CliRunner().invoke(app, ["check", str(path), "--trials", "100"])
+    assert result.exit_code == 2, result.output  # bad input (STYLE.md "Errors")
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("error: "), result.stderr
+    assert str(path) in lines[0] and key in lines[0], lines[0]
+    for fragment in fragments:
+        assert fragment in lines[0], (fragment, lines[0])
+
+
+def test_the_pasted_base_design_is_valid():
+    from stringcheck.design import parse_design_text
+
+    design = parse_design_text(PASTE_BASE)
+    assert design.grading.capacitor == 2.2e-9 and design.duty.reverse_voltage == 6e3
+
+
+# Digits and separators as a thousands group or a decimal comma would put them, and second values.
+TWO_NUMBERS = [
+    ("1,2 kV", VOLT, 'write "1.2 kV"'),
+    ("2,5 kV", VOLT, 'write "2.5 kV"'),
+    ("12 500 V", VOLT, 'write "12500 V"'),
+    ("12'500 V", VOLT, 'write "12500 V"'),
+    ("1,000,000 V", VOLT, 'write "1000000 V"'),
+    ("2 2 kV", VOLT, '"22 kV" or "2.2 kV"'),
+    ("2.2 nF 10 %", FARAD, 'write "2.2 nF"'),
+    ("4.7 MOhm 1%", OHM, 'write "4.7 MOhm"'),
+    ("4,7 M\u03a9", OHM, 'write "4.7 M\u03a9"'),  # the suggestion keeps the user's spelling
+    ("2\u00b710\u00b3 V", VOLT, 'write "2e3 V"'),
+    ("1/0 V", VOLT, "a second number"),
+    ("-5 V-3", VOLT, "a second number"),
+    ("36 kV, 40 kV", VOLT, "a second value after the unit"),
+    ("0.004 1/K 2", PER_KELVIN, "a second value after the unit: 2"),
+    ("45 degC 10 %", CELSIUS, 'write "45 degC"'),
+    ("2.2 nF \u00b1 10 %", FARAD, 'write "2.2 nF";'),
+    ("2.2nF+/-10%", FARAD, 'write "2.2 nF";'),
+    ("1_000 V", VOLT, 'write "1000 V"'),
+]
+
+
+@pytest.mark.parametrize(("text", "unit", "fix"), TWO_NUMBERS, ids=[c[0] for c in TWO_NUMBERS])
+def test_two_numbers_are_refused_showing_what_was_read_and_the_fix(text, unit, fix):
+    with pytest.raises(QuantityError) as caught:
+        parse_quantity(text, unit, key="duty.reverse_voltage")
+    message = str(caught.value)
+    assert message.startswith("duty.reverse_voltage: cannot read " + repr(text)), message
+    assert fix in message and "\n" not in message, message
+
+
+def test_a_long_text_is_cut_short_in_the_message():
+    # STYLE.md "Errors": one short line, whatever was pasted.
+    text = "1 " + "000 " * 20000 + "V"
+    with pytest.raises(QuantityError) as caught:
+        parse_quantity(text, VOLT, key="duty.reverse_voltage")
+    message = str(caught.value)
+    assert len(message) < 300 and f"{len(text):,} characters" in message, message
+
+
+@pytest.mark.parametrize("text", ["45 \u00b0", "45 deg"])
+def test_a_degree_sign_alone_is_named_as_an_angle(text):
+    # pint reads a lone degree as the plane angle (SI Brochure table 8: 1 deg = pi/180 rad).
+    with pytest.raises(QuantityError, match=r"an angle.*e\.g\. \"45 degC\""):
+        parse_quantity(text, CELSIUS, key="duty.ambient")
+
+
+@pytest.mark.parametrize("dash", ["\u2010", "\u2011", "\u2012", "\u2013", "\u2014", "\u2015",
+                                  "\u2212", "\ufe63", "\uff0d", "-"])
+def test_every_dash_in_the_number_is_a_minus(dash):
+    # A PDF copy gives U+2212 MINUS SIGN or a dash for "-"; the sign is never dropped. Expected
+    # values: the ASCII spelling, by hand.
+    assert parse_quantity(f"{dash}6 mV/K", VOLT_PER_KELVIN) == -6e-3
+    assert parse_quantity(f"{dash} 6 mV/K", VOLT_PER_KELVIN) == -6e-3
+    assert parse_quantity(f"{dash}20 {chr(0xb0)}C", CELSIUS) == -20.0
+    assert parse_quantity(f"1e{dash}3 V", VOLT) == 1e-3
+
+
+# Every spelling of the degree Celsius the reader accepts, and of the degree Fahrenheit.
+CELSIUS_SPELLINGS = ["degC", "deg C", "\u00b0C", "\u00b0 C", "\u2103", "\u00baC", "\u02daC",
+                     "degree_Celsius"]
+FAHRENHEIT_SPELLINGS = ["degF", "\u00b0F", "\u2109"]
+# Every temperature-bearing unit of the schema with a degree in it, and its per-kelvin twin.
+TEMPERATURE_COMPOUNDS = [
+    ("0.5 {T}/W", "0.5 K/W", KELVIN_PER_WATT),  # r_th_jc, r_th_cs, r_th_sa
+    ("-6 mV/{T}", "-6 mV/K", VOLT_PER_KELVIN),  # tempco_v_t0
+    ("100 ppm/{T}", "100 ppm/K", PER_KELVIN),  # resistor_tcr, tempco_r_t
+    ("0.4 %/{T}", "0.4 %/K", PER_KELVIN),
+    ("0.004 1/{T}", "0.004 1/K", PER_KELVIN),
+    ("-6 mV {T}^-1", "-6 mV K^-1", VOLT_PER_KELVIN),
+    ("100 ppm {T}\u207b\u00b9", "100 ppm K\u207b\u00b9", PER_KELVIN),
+]
+
+
+@pytest.mark.parametrize("spelling", CELSIUS_SPELLINGS)
+@pytest.mark.parametrize(("text", "twin", "unit"), TEMPERATURE_COMPOUNDS,
+                         ids=[c[1] for c in TEMPERATURE_COMPOUNDS])
+def test_per_degree_celsius_is_per_kelvin(spelling, text, twin, unit):
+    # SI Brochure (BIPM, 9th ed. 2019) 2.3.1: a temperature difference has the same value in degC
+    # and in K, so a coefficient per degC equals the one per K exactly. Read as an absolute
+    # temperature, "-6 mV/degC" would be -6 mV / 274.15 K = -2.2e-5 V/K.
+    value = parse_quantity(text.format(T=spelling), unit, key="k")
+    assert value == parse_quantity(twin, unit, key="k")
+
+
+@pytest.mark.parametrize("spelling", FAHRENHEIT_SPELLINGS)
+@pytest.mark.parametrize(("text", "twin", "unit"), TEMPERATURE_COMPOUNDS,
+                         ids=[c[1] for c in TEMPERATURE_COMPOUNDS])
+def test_per_degree_fahrenheit_is_per_five_ninths_kelvin(spelling, text, twin, unit):
+    # NIST SP 811 (2008) appendix B.9, temperature interval: 1 degF = 5/9 K (from memory). A unit
+    # per degree is 9/5 of it per kelvin; K/W with the degree in the numerator is 5/9 of it.
+    value = parse_quantity(text.format(T=spelling), unit, key="k")
+    factor = 5.0 / 9.0 if unit is KELVIN_PER_WATT else 9.0 / 5.0
+    assert value == pytest.approx(parse_quantity(twin, unit, key="k") * factor, rel=1e-11)
+
+
+@pytest.mark.parametrize("spelling", CELSIUS_SPELLINGS)
+def test_degree_celsius_spellings_of_a_temperature(spelling):
+    # Unicode Standard: U+2103 DEGREE CELSIUS is the degree-Celsius sign; U+00BA (masculine
+    # ordinal) and U+02DA (ring above) are what keyboards and PDF copies give for the degree sign.
+    assert parse_quantity(f"45 {spelling}", CELSIUS, key="duty.ambient") == 45.0
+    with pytest.raises(QuantityError, match="temperature difference"):
+        parse_quantity(f"10 {spelling}", KELVIN_DIFFERENCE, key="leakage_doubling")
+
+
+@pytest.mark.parametrize("spelling", FAHRENHEIT_SPELLINGS)
+def test_degree_fahrenheit_spellings_of_a_temperature(spelling):
+    # NIST SP 811 (2008) 4.2.1.1: t/degC = (t/degF - 32) / 1.8; 113 degF = 45 degC by hand.
+    assert parse_quantity(f"113 {spelling}", CELSIUS, key="duty.ambient") == 45.0
+
+
+def test_kelvin_sign_and_micro_and_ohm_code_points():
+    # Unicode Standard: U+212A KELVIN SIGN decomposes canonically to K; U+00B5 MICRO SIGN and
+    # U+03BC GREEK SMALL LETTER MU are both micro; U+2126 OHM SIGN decomposes to U+03A9.
+    assert parse_quantity("10 \u212a", KELVIN_DIFFERENCE) == 10.0
+    assert parse_quantity("-2 mV/\u212a", VOLT_PER_KELVIN) == -2e-3
+    assert parse_quantity("2 \u00b5s", SECOND) == parse_quantity("2 \u03bcs", SECOND) == 2e-6
+    assert parse_quantity("10 k\u2126", OHM) == parse_quantity("10 k\u03a9", OHM) == 10e3
+
+
+def test_unit_powers_are_read_but_powers_of_the_number_are_not():
+    # The unit may carry its own power (K^-1, K**-1, K⁻¹); the number may not (1e3 is the way).
+    assert parse_quantity("100 ppm K^-1", PER_KELVIN) == 100e-6
+    assert parse_quantity("100 ppm K**-1", PER_KELVIN) == 100e-6
+    assert parse_quantity("-2 mV K\u207b\u00b9", VOLT_PER_KELVIN) == -2e-3
+    for text in ("10^3 V", "10**3 V", "10\u00b3 V", "2**2000 V"):
+        with pytest.raises(QuantityError, match="powers"):
+            parse_quantity(text, VOLT, key="k")
+    with pytest.raises(QuantityError, match="below 100"):
+        parse_quantity("1 V^999999999", VOLT, key="k")
+
+
+def test_design_with_degrees_celsius_equals_its_kelvin_twin():
+    # SI Brochure 2.3.1 (a difference of 1 degC is 1 K): every coefficient and thermal resistance
+    # the schema takes reads the same per degC as per K.
+    from stringcheck.design import parse_design_text
+
+    keys = {"r_th_jc": "0.5 {K}/W", "r_th_cs": "0.1 {K}/W", "tempco_v_t0": "-2.5 mV/{K}",
+            "tempco_r_t": "0.4 %/{K}"}
+    celsius = {name: text.format(K="\u00b0C") for name, text in keys.items()}
+    kelvin = {name: text.format(K="K") for name, text in keys.items()}
+    celsius["tempco_r_t"] = "0.4 %/\u2103"
+
+    def read(values, tcr, r_th_sa):
+        lines = "\n".join(f'{name} = "{text}"' for name, text in values.items())
+        text = pasted('tempco_v_t0 = "-2 mV/K"\n', lines + "\n")
+        text = text.replace('"100 ppm/K"', f'"{tcr}"') + f'[thermal]\nr_th_sa = "{r_th_sa}"\n'
+        return parse_design_text(text)
+
+    hot = read(celsius, "100 ppm/\u00b0C", "2 \u2103/W")
+    cold = read(kelvin, "100 ppm/K", "2 K/W")
+    for name in keys:
+        assert getattr(hot.parts["MAIN"], name) == getattr(cold.parts["MAIN"], name), name
+    assert hot.parts["MAIN"].tempco_v_t0 == -2.5e-3
+    assert hot.grading.resistor_tcr == cold.grading.resistor_tcr == 100e-6
+    assert hot.thermal.r_th_sa == cold.thermal.r_th_sa == 2.0
+
+
+# --- properties: one number and one unit -----------------------------------------------------------
+
+# (spelling, expected unit, the formatter's label, factor to the SI value; offset for temperatures).
+# Factors: SI Brochure table 7 prefixes; degF: NIST SP 811 (2008) 4.2.1.1 and B.9 (from memory).
+_ACCEPTED_UNITS = [
+    ("kV", VOLT, "V", 1e3, 0.0), ("mV", VOLT, "V", 1e-3, 0.0), ("V", VOLT, "V", 1.0, 0.0),
+    ("mA", AMPERE, "A", 1e-3, 0.0), ("\u00b5A", AMPERE, "A", 1e-6, 0.0),
+    ("nF", FARAD, "F", 1e-9, 0.0), ("pF", FARAD, "F", 1e-12, 0.0),
+    ("\u03bcC", COULOMB, "C", 1e-6, 0.0), ("nC", COULOMB, "C", 1e-9, 0.0),
+    ("us", SECOND, "s", 1e-6, 0.0), ("ns", SECOND, "s", 1e-9, 0.0),
+    ("kHz", HERTZ, "Hz", 1e3, 0.0), ("uH", HENRY, "H", 1e-6, 0.0), ("mW", WATT, "W", 1e-3, 0.0),
+    ("MOhm", OHM, "ohm", 1e6, 0.0), ("k\u03a9", OHM, "ohm", 1e3, 0.0),
+    ("M\u2126", OHM, "ohm", 1e6, 0.0), ("R", OHM, "ohm", 1.0, 0.0),
+    ("A/us", AMPERE_PER_SECOND, "A/s", 1e6, 0.0), ("A/\u00b5s", AMPERE_PER_SECOND, "A/s", 1e6, 0.0),
+    ("mV/K", VOLT_PER_KELVIN, "V/K", 1e-3, 0.0), ("mV/\u00b0C", VOLT_PER_KELVIN, "V/K", 1e-3, 0.0),
+    ("mV/\u2103", VOLT_PER_KELVIN, "V/K", 1e-3, 0.0),
+    ("K/W", KELVIN_PER_WATT, "K/W", 1.0, 0.0), ("\u00b0C/W", KELVIN_PER_WATT, "K/W", 1.0, 0.0),
+    ("\u2109/W", KELVIN_PER_WATT, "K/W", 5.0 / 9.0, 0.0),
+    ("ppm/K", PER_KELVIN, "1/K", 1e-6, 0.0), ("ppm/\u00b0C", PER_KELVIN, "1/K", 1e-6, 0.0),
+    ("%/\u2103", PER_KELVIN, "1/K", 1e-2, 0.0), ("1/K", PER_KELVIN, "1/K", 1.0, 0.0),
+    ("degC", CELSIUS, "degC", 1.0, 0.0), ("\u00b0C", CELSIUS, "degC", 1.0, 0.0),
+    ("\u2103", CELSIUS, "degC", 1.0, 0.0), ("K", CELSIUS, "degC", 1.0, -273.15),
+    ("\u2109", CELSIUS, "degC", 5.0 / 9.0, -32.0 * 5.0 / 9.0),
+    ("K", KELVIN_DIFFERENCE, "K", 1.0, 0.0), ("mK", KELVIN_DIFFERENCE, "K", 1e-3, 0.0),
+    ("%", DIMENSIONLESS, "1", 1e-2, 0.0), ("", DIMENSIONLESS, "1", 1.0, 0.0),
+]
+_NUMBER_STYLES = [repr, "{:.6g}".format, "{:.3e}".format, "{:.4f}".format, "{:E}".format]
+
+
+@st.composite
+def accepted_quantities(draw):
+    """A quantity string as a user might write it, with its expected value by hand."""
+    number = draw(st.floats(min_value=1e-6, max_value=1e6))
+    style = draw(st.sampled_from(_NUMBER_STYLES))
+    sign = draw(st.sampled_from(["", "+", "-", "\u2212", "\u2013"]))
+    spelling, unit, label, factor, offset = draw(st.sampled_from(_ACCEPTED_UNITS))
+    # No gap before "1/K": "1.01/K" is the number 1.01.
+    gap = draw(st.sampled_from([" ", "  "] if spelling[:1].isdigit() else [" ", "", "  "]))
+    digits = style(number)
+    text = f"{sign}{digits}{gap}{spelling}" if spelling else f"{sign}{digits}"
+    magnitude = float(digits) * (1.0 if sign in ("", "+") else -1.0)
+    return text, unit, label, magnitude * factor + offset
+
+
+@settings(max_examples=300)
+@given(case=accepted_quantities())
+def test_every_accepted_quantity_round_trips_through_the_formatter(case):
+    # Read, print with the project's formatter at 17 significant digits (enough for any float,
+    # IEEE 754-2008 clause 5.12.2), read again: the same float. The first reading is checked against
+    # the value by hand (SI prefixes, NIST SP 811 for degF) to the parser's 12 significant digits.
+    text, unit, label, expected = case
+    try:
+        value = parse_quantity(text, unit, key="k")
+    except QuantityError as error:
+        # Only a temperature below absolute zero may be refused.
+        assert unit is CELSIUS and expected <= -273.15 + 1e-6, str(error)
+        return
+    assert value == pytest.approx(expected, rel=1e-11, abs=1e-9)
+    printed = format_quantity(value, label, digits=17)
+    assert parse_quantity(printed, unit, key="k") == value, printed
+
+
+_PLAIN_NUMBERS = st.one_of(st.integers(min_value=0, max_value=99999).map(str),
+                           st.floats(min_value=0.001, max_value=1e4).map("{:.4g}".format),
+                           st.floats(min_value=1e-9, max_value=1e9).map("{:.2e}".format))
+
+
+@st.composite
+def two_number_texts(draw):
+    """A text that holds two numbers: grouped digits, a decimal comma, a second value."""
+    first, second = draw(_PLAIN_NUMBERS), draw(_PLAIN_NUMBERS)
+    spelling, unit, *_ = draw(st.sampled_from([u for u in _ACCEPTED_UNITS if u[0]]))
+    other = draw(st.sampled_from(_ACCEPTED_UNITS))[0]
+    separator = draw(st.sampled_from([" ", ",", ", ", "\u00a0", "\u2009", "\u202f", "'", " x ",
+                                      "/", " / ", "*"]))
+    form = draw(st.sampled_from(["before", "after", "twice"]))
+    if form == "before":  # "12 500 V", "1,2 kV", "2 2 kV"
+        text = f"{first}{separator}{second} {spelling}"
+    elif form == "after":  # "2.2 nF 10 %", "4.7 MOhm 1%"
+        text = f"{first} {spelling}{separator}{second}{' ' if other else ''}{other}"
+    else:  # "36 kV, 40 kV"
+        text = f"{first} {spelling}{separator}{second} {spelling}"
+    return text, unit
+
+
+@settings(max_examples=300)
+@given(case=two_number_texts())
+def test_no_accepted_string_holds_two_numbers(case):
+    # DESIGN.md section 3: a quantity is one number and one unit; pint alone would multiply
+    # juxtaposed terms. Every text with a second number is refused, naming what was read.
+    text, unit = case
+    with pytest.raises(QuantityError) as caught:
+        parse_quantity(text, unit, key="grading.capacitor")
+    message = str(caught.value)
+    assert message.startswith("grading.capacitor: ") and repr(text) in message, message
+    assert "\n" not in message
