@@ -114,9 +114,12 @@ class ParallelDevices:
     threshold_voltage
         V_T0 at ``forward_reference_temperature`` [V] (design key ``v_t0``), > 0.
     slope_resistance
-        r_T at ``forward_reference_temperature`` [ohm] (design key ``r_t``), > 0.
+        r_T at ``resistance_reference_temperature`` [ohm] (design key ``r_t``), > 0.
     forward_reference_temperature
-        Temperature at which V_T0 and r_T are given [degC].
+        Temperature at which V_T0 is given [degC] (the ``v_t0`` row's ``at_temperature``).
+    resistance_reference_temperature
+        Temperature at which r_T is given [degC] (the ``r_t`` row's ``at_temperature``; a
+        datasheet may give the two rows at different temperatures).
     threshold_tempco
         dV_T0/dT [V/K] (``tempco_v_t0``); about -2e-3 for silicon PN (common practice).
     resistance_tempco
@@ -142,6 +145,7 @@ class ParallelDevices:
     threshold_voltage: ArrayLike
     slope_resistance: ArrayLike
     forward_reference_temperature: ArrayLike
+    resistance_reference_temperature: ArrayLike
     threshold_tempco: ArrayLike
     resistance_tempco: ArrayLike
     leakage_current: ArrayLike
@@ -289,7 +293,7 @@ def _device_lines(devices: ParallelDevices, temperature):
     threshold = threshold_voltage(devices.threshold_voltage, devices.threshold_tempco,
                                   temperature, devices.forward_reference_temperature)
     resistance = slope_resistance(devices.slope_resistance, devices.resistance_tempco,
-                                  temperature, devices.forward_reference_temperature)
+                                  temperature, devices.resistance_reference_temperature)
     return threshold, resistance
 
 
@@ -331,7 +335,7 @@ def _evaluate(devices: ParallelDevices, duty: ParallelDuty, temperature, points:
     # Derivatives of the device lines; the floor of r_T(T) has zero slope.
     threshold_slope = np.broadcast_to(d.threshold_tempco, temperature.shape)
     unclipped = d.slope_resistance * (1.0 + d.resistance_tempco
-                                      * (temperature - d.forward_reference_temperature))
+                                      * (temperature - d.resistance_reference_temperature))
     resistance_slope = np.where(unclipped > SLOPE_RESISTANCE_FLOOR,
                                 d.slope_resistance * d.resistance_tempco, 0.0)
     # Water-filling derivatives at each sample, summed over the samples as matrix products.

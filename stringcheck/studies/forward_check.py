@@ -143,6 +143,7 @@ class ForwardSetup:
     run_parallel: bool
     run_thermal: bool
     forward_reference_temperature: np.ndarray
+    resistance_reference_temperature: np.ndarray
     threshold_tempco: np.ndarray
     resistance_tempco: np.ndarray
     leakage_reference_voltage: np.ndarray
@@ -242,7 +243,10 @@ def _part_constants(values) -> dict[str, np.ndarray]:
         return np.nan if value is None else value
 
     return dict(
+        # Each row of the forward line has its own test temperature (V_T0 and r_T may be given
+        # at different ones).
         forward_reference_temperature=values(lambda p: _reference(p.v_t0.at_temperature)),
+        resistance_reference_temperature=values(lambda p: _reference(p.r_t.at_temperature)),
         threshold_tempco=values(lambda p: p.tempco_v_t0),
         resistance_tempco=values(lambda p: p.tempco_r_t),
         leakage_reference_voltage=values(lambda p: p.i_r.at_voltage),
@@ -283,6 +287,7 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
         devices = ParallelDevices(
             threshold_voltage=threshold, slope_resistance=resistance,
             forward_reference_temperature=setup.forward_reference_temperature,
+            resistance_reference_temperature=setup.resistance_reference_temperature,
             threshold_tempco=setup.threshold_tempco, resistance_tempco=setup.resistance_tempco,
             leakage_current=parameters["i_r"],
             leakage_reference_voltage=setup.leakage_reference_voltage,
@@ -323,19 +328,12 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
             found = runaway_ambient(_rows(devices, rows), _duty(design),
                                     upper_limit=setup.search_limit)
             outcome_tj["runaway_ambient"] = found.ambient
-        branch_threshold = threshold_voltage(
-            threshold, setup.threshold_tempco, temperature,
-            setup.forward_reference_temperature).sum(axis=-1)
-        branch_resistance = slope_resistance(
-            resistance, setup.resistance_tempco, temperature,
-            setup.forward_reference_temperature).sum(axis=-1) + design.thermal.path_resistance
+        branch_threshold, branch_resistance = _branch_lines(design, setup, threshold,
+                                                            resistance, temperature)
     else:
         temperature = np.broadcast_to(setup.position_temperature, shape)
-        branch_threshold = threshold_voltage(threshold, setup.threshold_tempco, temperature,
-                                             setup.forward_reference_temperature).sum(axis=-1)
-        branch_resistance = slope_resistance(resistance, setup.resistance_tempco, temperature,
-                                             setup.forward_reference_temperature).sum(axis=-1) \
-            + design.thermal.path_resistance
+        branch_threshold, branch_resistance = _branch_lines(design, setup, threshold,
+                                                            resistance, temperature)
         average = branch_currents(branch_threshold, branch_resistance, duty.forward_current,
                                   duty.waveform).average
     mean = average.mean(axis=-1)
@@ -361,6 +359,17 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
         chunk.ballast = ballast
         chunk.ballast_loss_per_ohm = loss_per_ohm
     return chunk
+
+
+def _branch_lines(design: Design, setup: ForwardSetup, threshold: np.ndarray,
+                  resistance: np.ndarray, temperature: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Threshold [V] and resistance [ohm] of each branch at the junction temperatures, each
+    device's V_T0 and r_T referred from its own row's temperature."""
+    branch_threshold = threshold_voltage(threshold, setup.threshold_tempco, temperature,
+                                         setup.forward_reference_temperature).sum(axis=-1)
+    branch_resistance = slope_resistance(resistance, setup.resistance_tempco, temperature,
+                                         setup.resistance_reference_temperature).sum(axis=-1)
+    return branch_threshold, branch_resistance + design.thermal.path_resistance
 
 
 def forward_ratios(design: Design, setup: ForwardSetup, drawn: DrawnStrings,
