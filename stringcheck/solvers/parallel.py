@@ -7,10 +7,11 @@ branch is again a line, with threshold Theta_b = sum of its devices' V_T0(T) and
 rho_b = sum of their r_T(T) plus R_path. At an instant the branches share the group current at a
 common voltage, sum_b max((v - Theta_b) / rho_b, 0) = i, solved exactly by
 :func:`stringcheck.solvers.water_filling.water_fill` (the solver that also serves dynamic series
-sharing). Over a waveform the phase is sampled (:func:`stringcheck.physics.forward.phase_samples`)
-and the branch I_AV, I_RMS and peak follow from the sampled split; all samples and trials go
-through one call of the water-filling solver. The electro-thermal equilibrium built on this
-split is in :mod:`stringcheck.solvers.electrothermal`.
+sharing). Over a waveform the branch I_AV, I_RMS and peak follow from the split at the nodes of
+a quadrature rule that is exact for every branch (:func:`phase_rule`: a dc or square current is
+one node; a half-sine is cut where each branch starts to conduct, and each piece gets two
+nodes); all nodes and trials go through one call of the water-filling solver. The
+electro-thermal equilibrium built on this split is in :mod:`stringcheck.solvers.electrothermal`.
 """
 
 from __future__ import annotations
@@ -20,15 +21,17 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from stringcheck.physics.forward import DEFAULT_PHASE_POINTS, phase_samples
+from stringcheck.physics.forward import phase_samples
 from stringcheck.solvers.water_filling import water_fill
 
 __all__ = [
     "Ballast",
     "BranchCurrents",
     "CurrentSplit",
+    "PhaseRule",
     "ballast_for_share",
     "branch_currents",
+    "phase_rule",
     "split_current",
 ]
 
@@ -110,17 +113,123 @@ def split_current(
     return CurrentSplit(forward_voltage=solution.level, currents=solution.amounts)
 
 
-def _sampled_split(threshold, resistance, average_current, waveform, points):
-    """Branch currents at the phase samples, shape (..., p, m), and the phase samples."""
+@dataclass(frozen=True)
+class PhaseRule:
+    """Nodes and weights of a quadrature over one period, exact for every branch of a group.
+
+    Attributes
+    ----------
+    currents
+        Group current at each node [A], shape ``(..., q)``.
+    weights
+        Fraction of the period each node stands for [-], shape ``(..., q)``; they add up to the
+        conducting fraction of the period (1 for dc, 1/2 for half-sine and square).
+    peak
+        Peak group current I_pk [A], shape ``...``.
+    """
+
+    currents: NDArray[np.float64]
+    weights: NDArray[np.float64]
+    peak: NDArray[np.float64]
+
+
+def phase_rule(
+    branch_threshold: ArrayLike,
+    branch_resistance: ArrayLike,
+    average_current: ArrayLike,
+    waveform: str,
+) -> PhaseRule:
+    """A quadrature over one period that is exact for the currents of every branch of a group.
+
+    Parameters
+    ----------
+    branch_threshold
+        Threshold voltage of each branch Theta_b [V], shape ``(..., m)``, finite.
+    branch_resistance
+        Resistance of each branch rho_b [ohm], broadcastable to ``branch_threshold``, > 0.
+    average_current
+        Average forward current of the whole group I_F(AV) [A], broadcastable to ``...``, >= 0.
+    waveform
+        ``"dc"``, ``"half-sine"`` or ``"square"`` (see :mod:`stringcheck.physics.forward`).
+
+    Returns
+    -------
+    PhaseRule
+        Nodes ``(..., q)`` [A] and weights ``(..., q)`` [-], q = 1 for dc and square and 2 m for
+        a half-sine; the period average of any g(i_b) of degree <= 2 in the branch currents
+        (I_AV, I_RMS^2, products of two branches) is ``sum(weights * g(split at currents))``,
+        exact up to rounding.
+
+    Notes
+    -----
+    dc and square: the current is constant while it flows, one node (I_F(AV), weight 1; or
+    I_pk = 2 I_F(AV), weight 1/2). Half-sine, i = I_pk sin(theta) on (0, pi): branch c starts
+    to conduct when the group current reaches
+
+    .. math:: I_c = \\sum_b \\max(\\Theta_c - \\Theta_b, 0) / \\rho_b
+
+    (the water-filling breakpoints), at the phase theta_c = arcsin(I_c / I_pk). Between two
+    such phases the conducting set is fixed and every branch current is linear in i, so an
+    integrand of degree <= 2 in the branch currents is a polynomial of degree <= 2 in
+    s = sin(theta). On each piece [a, b] of (0, pi/2) (mirrored onto (pi/2, pi), sin being
+    symmetric there), with h = (b - a) / 2, c = (a + b) / 2 and sinc(x) = sin(x) / x,
+
+    .. math:: \\bar s = \\sin c \\,\\mathrm{sinc}\\,h, \\qquad
+              \\overline{s^2} = \\tfrac12 (1 - \\mathrm{sinc}\\,2h) + \\mathrm{sinc}\\,2h \\sin^2 c
+
+    (the integrals of sin and sin^2 over the piece divided by its width), and the two nodes
+    s = s_bar -+ sigma, sigma^2 = mean(s^2) - s_bar^2, each of weight (b - a) / (2 pi),
+    reproduce the piece's integrals of 1, s and s^2 exactly. The nodes lie inside the piece
+    (they are clipped to it against rounding in pieces narrower than about 1e-7), so the split
+    at a node has the piece's conducting set. The pieces' edges move with Theta and rho, but
+    the branch currents are continuous across them, so the derivatives of the exact averages
+    are the same rule applied to the piecewise derivatives of the split (Leibniz's rule: the
+    edge terms cancel).
+
+    References
+    ----------
+    .. [1] P. J. Davis and P. Rabinowitz, *Methods of Numerical Integration*, 2nd ed., Academic
+       Press, 1984, chapter 2 (rules exact for polynomials; chapter from memory).
+    """
+    threshold = np.asarray(branch_threshold, dtype=float)
+    resistance = np.asarray(branch_resistance, dtype=float)
+    average = np.asarray(average_current, dtype=float)
+    leading = np.broadcast_shapes(threshold.shape[:-1], resistance.shape[:-1], average.shape)
+    samples = phase_samples(np.broadcast_to(average, leading), waveform, points=1)
+    if waveform != "half-sine":
+        return PhaseRule(currents=samples.currents,
+                         weights=np.broadcast_to(samples.weights, samples.currents.shape),
+                         peak=samples.peak)
+    count = max(threshold.shape[-1], resistance.shape[-1])
+    threshold = np.broadcast_to(threshold, leading + (count,))
+    conductance = np.broadcast_to(1.0 / resistance, leading + (count,))
+    onset = np.einsum("...b,...cb->...c", conductance,
+                      np.maximum(threshold[..., :, None] - threshold[..., None, :], 0.0))
+    peak = samples.peak[..., None]
+    ratio = np.divide(onset, peak, out=np.ones_like(onset), where=peak > 0.0)
+    lower = np.sort(np.arcsin(np.clip(ratio, 0.0, 1.0)), axis=-1)
+    upper = np.concatenate([lower[..., 1:], np.full(leading + (1,), 0.5 * np.pi)], axis=-1)
+    centre, half = 0.5 * (upper + lower), 0.5 * (upper - lower)
+    sine = np.sin(centre)
+    whole = np.sinc(2.0 * half / np.pi)  # sin(2h) / (2h), 1 at h = 0
+    mean = sine * np.sinc(half / np.pi)
+    square = 0.5 * (1.0 - whole) + whole * sine * sine
+    spread = np.sqrt(np.maximum(square - mean * mean, 0.0))
+    low_end, high_end = np.sin(lower), np.sin(upper)
+    nodes = np.concatenate([np.clip(mean - spread, low_end, high_end),
+                            np.clip(mean + spread, low_end, high_end)], axis=-1)
+    weight = half / np.pi  # (b - a) / (2 pi) per node, both halves of the sine
+    return PhaseRule(currents=peak * nodes, weights=np.concatenate([weight, weight], axis=-1),
+                     peak=samples.peak)
+
+
+def _sampled_split(threshold, resistance, average_current, waveform):
+    """Branch currents at the nodes of :func:`phase_rule`, shape (..., q, m), and the rule."""
     threshold = np.asarray(threshold, dtype=float)
     resistance = np.asarray(resistance, dtype=float)
-    average = np.asarray(average_current, dtype=float)
-    leading = np.broadcast_shapes(
-        threshold.shape[:-1], resistance.shape[:-1], average.shape
-    )
-    samples = phase_samples(np.broadcast_to(average, leading), waveform, points=points)
-    split = split_current(threshold[..., None, :], resistance[..., None, :], samples.currents)
-    return split.currents, samples
+    rule = phase_rule(threshold, resistance, average_current, waveform)
+    split = split_current(threshold[..., None, :], resistance[..., None, :], rule.currents)
+    return split.currents, rule
 
 
 def branch_currents(
@@ -128,8 +237,6 @@ def branch_currents(
     branch_resistance: ArrayLike,
     average_current: ArrayLike,
     waveform: str,
-    *,
-    points: int = DEFAULT_PHASE_POINTS,
 ) -> BranchCurrents:
     """Average, RMS and peak current of each branch of a group over one period.
 
@@ -143,8 +250,6 @@ def branch_currents(
         Average forward current of the whole group I_F(AV) [A], broadcastable to ``...``, >= 0.
     waveform
         ``"dc"``, ``"half-sine"`` or ``"square"`` (see :mod:`stringcheck.physics.forward`).
-    points
-        Phase samples of a half-sine (see :func:`stringcheck.physics.forward.phase_samples`).
 
     Returns
     -------
@@ -153,20 +258,19 @@ def branch_currents(
 
     Notes
     -----
-    With samples i_j of the group current, weights w_j and the split i_bj at each sample,
+    With the nodes i_j and weights w_j of :func:`phase_rule` and the split i_bj at each node,
 
     .. math:: I_{AV,b} = \\sum_j w_j i_{bj}, \\qquad I_{RMS,b}^2 = \\sum_j w_j i_{bj}^2
 
+    exact up to rounding, also for a branch that starts to conduct part-way up a half-sine.
     Each branch current is nondecreasing in the group current, so the branch peak is the split
-    of the group peak, computed exactly rather than sampled. All samples and trials go through
-    one call of the water-filling solver.
+    of the group peak. All nodes and trials go through one call of the water-filling solver.
     """
-    currents, samples = _sampled_split(
-        branch_threshold, branch_resistance, average_current, waveform, points
-    )
-    average = np.einsum("...pm,p->...m", currents, samples.weights)
-    rms = np.sqrt(np.einsum("...pm,p->...m", currents * currents, samples.weights))
-    peak = split_current(branch_threshold, branch_resistance, samples.peak).currents
+    currents, rule = _sampled_split(branch_threshold, branch_resistance, average_current,
+                                    waveform)
+    average = np.einsum("...pm,...p->...m", currents, rule.weights)
+    rms = np.sqrt(np.einsum("...pm,...p->...m", currents * currents, rule.weights))
+    peak = split_current(branch_threshold, branch_resistance, rule.peak).currents
     return BranchCurrents(average=average, rms=rms, peak=peak)
 
 
@@ -194,9 +298,8 @@ class Ballast:
     loss: NDArray[np.float64]
 
 
-def _share_and_loss(threshold, resistance, added, total, waveform, points):
-    currents = branch_currents(threshold, resistance + added[..., None], total, waveform,
-                               points=points)
+def _share_and_loss(threshold, resistance, added, total, waveform):
+    currents = branch_currents(threshold, resistance + added[..., None], total, waveform)
     share = currents.average.max(axis=-1) / currents.average.mean(axis=-1)
     return share, added * np.sum(currents.rms**2, axis=-1)
 
@@ -208,7 +311,6 @@ def ballast_for_share(
     waveform: str,
     target_share: float,
     *,
-    points: int = DEFAULT_PHASE_POINTS,
     rtol: float = 1e-12,
 ) -> Ballast:
     """Smallest equal series resistance per branch that meets a current-share target.
@@ -226,8 +328,6 @@ def ballast_for_share(
         ``"dc"``, ``"half-sine"`` or ``"square"``.
     target_share
         Allowed max branch I_AV / mean branch I_AV [-], > 1.
-    points
-        Phase samples of a half-sine.
     rtol
         Relative width of the final bracket on the resistance [-].
 
@@ -259,7 +359,7 @@ def ballast_for_share(
     rows = total.size
 
     zero = np.zeros(rows)
-    unballasted, _ = _share_and_loss(threshold, resistance, zero, total, waveform, points)
+    unballasted, _ = _share_and_loss(threshold, resistance, zero, total, waveform)
     low, high = zero.copy(), np.full(rows, np.inf)
     pending = np.flatnonzero(unballasted > target_share)
     if target_share > 1.0 and pending.size:
@@ -267,7 +367,7 @@ def ballast_for_share(
         trial = np.maximum(resistance[pending].max(axis=-1), spread)
         for _ in range(200):  # doublings of the upper end, all rows at once
             share, _ = _share_and_loss(threshold[pending], resistance[pending], trial,
-                                       total[pending], waveform, points)
+                                       total[pending], waveform)
             met = share <= target_share
             high[pending[met]] = trial[met]
             pending, trial = pending[~met], 2.0 * trial[~met]
@@ -277,7 +377,7 @@ def ballast_for_share(
         while active.size:
             middle = 0.5 * (low[active] + high[active])
             share, _ = _share_and_loss(threshold[active], resistance[active], middle,
-                                       total[active], waveform, points)
+                                       total[active], waveform)
             met = share <= target_share
             high[active[met]] = middle[met]
             low[active[~met]] = middle[~met]
@@ -285,7 +385,7 @@ def ballast_for_share(
     added = np.where(unballasted > target_share, high, 0.0)
     finite = np.isfinite(added)
     share, loss = _share_and_loss(threshold, resistance, np.where(finite, added, 0.0), total,
-                                  waveform, points)
+                                  waveform)
     share = np.where(finite, share, np.nan)
     loss = np.where(finite, loss, np.nan)
     return Ballast(
