@@ -186,6 +186,7 @@ def test_thermal_runaway_fails_and_is_counted():
     data = json.loads(json_text(result_to_dict(result)))
     assert data["checks"]["thermal"]["runaway_trials"] == result.trials
     assert data["checks"]["thermal"]["worst_tj"] is None  # runaway: no finite temperature
+    assert data["checks"]["thermal"]["mean_total_power"] is None  # nor a steady loss
 
 
 def test_json_holds_the_forward_keys():
