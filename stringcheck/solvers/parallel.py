@@ -7,10 +7,11 @@ branch is again a line, with threshold Theta_b = sum of its devices' V_T0(T) and
 rho_b = sum of their r_T(T) plus R_path. At an instant the branches share the group current at a
 common voltage, sum_b max((v - Theta_b) / rho_b, 0) = i, solved exactly by
 :func:`stringcheck.solvers.water_filling.water_fill` (the solver that also serves dynamic series
-sharing). Over a waveform the branch I_AV, I_RMS and peak follow from the split at the nodes of
-a quadrature rule that is exact for every branch (:func:`phase_rule`: a dc or square current is
-one node; a half-sine is cut where each branch starts to conduct, and each piece gets two
-nodes); all nodes and trials go through one call of the water-filling solver. The
+sharing). Over a waveform the branch I_AV, I_RMS and peak are exact for every branch: a dc or
+square current is constant while it flows; a half-sine is cut where each branch starts to
+conduct, and on each piece the branch currents are linear in the group current, so their
+averages are closed forms (:func:`branch_currents`, O(m log m) per group) and a two-node rule per
+piece integrates them exactly (:func:`phase_rule`, for the electro-thermal Jacobian). The
 electro-thermal equilibrium built on this split is in :mod:`stringcheck.solvers.electrothermal`.
 """
 
@@ -21,7 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from stringcheck.physics.forward import phase_samples
+from stringcheck.physics.forward import peak_factor, phase_samples
 from stringcheck.solvers.water_filling import water_fill
 
 __all__ = [
@@ -209,27 +210,69 @@ def phase_rule(
     ratio = np.divide(onset, peak, out=np.ones_like(onset), where=peak > 0.0)
     lower = np.sort(np.arcsin(np.clip(ratio, 0.0, 1.0)), axis=-1)
     upper = np.concatenate([lower[..., 1:], np.full(leading + (1,), 0.5 * np.pi)], axis=-1)
-    centre, half = 0.5 * (upper + lower), 0.5 * (upper - lower)
-    sine = np.sin(centre)
-    whole = np.sinc(2.0 * half / np.pi)  # sin(2h) / (2h), 1 at h = 0
-    mean = sine * np.sinc(half / np.pi)
-    square = 0.5 * (1.0 - whole) + whole * sine * sine
+    mean, square = _piece_moments(lower, upper)
     spread = np.sqrt(np.maximum(square - mean * mean, 0.0))
     low_end, high_end = np.sin(lower), np.sin(upper)
     nodes = np.concatenate([np.clip(mean - spread, low_end, high_end),
                             np.clip(mean + spread, low_end, high_end)], axis=-1)
-    weight = half / np.pi  # (b - a) / (2 pi) per node, both halves of the sine
+    weight = 0.5 * (upper - lower) / np.pi  # (b - a) / (2 pi) per node, both halves of the sine
     return PhaseRule(currents=peak * nodes, weights=np.concatenate([weight, weight], axis=-1),
                      peak=samples.peak)
 
 
-def _sampled_split(threshold, resistance, average_current, waveform):
-    """Branch currents at the nodes of :func:`phase_rule`, shape (..., q, m), and the rule."""
-    threshold = np.asarray(threshold, dtype=float)
-    resistance = np.asarray(resistance, dtype=float)
-    rule = phase_rule(threshold, resistance, average_current, waveform)
-    split = split_current(threshold[..., None, :], resistance[..., None, :], rule.currents)
-    return split.currents, rule
+def _piece_moments(lower, upper):
+    """Means of sin and sin^2 of the phase over pieces [lower, upper] of (0, pi/2) (their
+    integrals divided by the width; the value at ``lower`` for an empty piece)."""
+    centre, half = 0.5 * (upper + lower), 0.5 * (upper - lower)
+    sine = np.sin(centre)
+    whole = np.sinc(2.0 * half / np.pi)  # sin(2h) / (2h), 1 at h = 0
+    return sine * np.sinc(half / np.pi), 0.5 * (1.0 - whole) + whole * sine * sine
+
+
+def _half_sine_moments(threshold, resistance, average):
+    """Exact I_AV and mean of i^2 of each branch over a half-sine, (..., m), in O(m log m) per
+    row (see :func:`branch_currents`)."""
+    threshold, resistance = np.broadcast_arrays(np.asarray(threshold, dtype=float),
+                                                np.asarray(resistance, dtype=float))
+    peak = peak_factor("half-sine") * np.asarray(average, dtype=float)
+    leading = np.broadcast_shapes(threshold.shape[:-1], peak.shape)
+    count = threshold.shape[-1]
+    threshold = np.broadcast_to(threshold, leading + (count,))
+    resistance = np.broadcast_to(resistance, leading + (count,))
+    peak = np.broadcast_to(peak, leading)[..., None]
+    order = np.argsort(threshold, axis=-1, kind="stable")
+    # Thresholds from the lowest: only differences matter, and they are small.
+    level = np.take_along_axis(threshold, order, axis=-1)
+    level = level - level[..., :1]
+    conductance = 1.0 / np.take_along_axis(resistance, order, axis=-1)
+    total = np.cumsum(conductance, axis=-1)  # G_k over the k + 1 lowest branches
+    moment = np.cumsum(conductance * level, axis=-1)  # S_k
+    onset = np.maximum.accumulate(np.maximum(level * total - moment, 0.0), axis=-1)
+    ratio = np.divide(onset, peak, out=np.ones_like(onset), where=peak > 0.0)
+    lower = np.arcsin(np.clip(ratio, 0.0, 1.0))
+    upper = np.concatenate([lower[..., 1:], np.full(leading + (1,), 0.5 * np.pi)], axis=-1)
+    mean, mean_square = _piece_moments(lower, upper)
+    # Moments of the group current over piece k (branches 0..k conducting), as fractions of
+    # the period (both halves of the sine): of 1, i and i^2.
+    weight = (upper - lower) / np.pi
+    first = weight * peak * mean
+    second = weight * peak * peak * mean_square
+    # v = (i + S_k) / G_k on piece k: its integrals over the piece.
+    voltage = (first + moment * weight) / total
+    voltage_square = (second + 2.0 * moment * first + moment * moment * weight) / (total * total)
+
+    def from_here(values):  # sums over the pieces k, k + 1, ... on which branch k conducts
+        return np.flip(np.cumsum(np.flip(values, axis=-1), axis=-1), axis=-1)
+
+    weights, voltages, squares = from_here(weight), from_here(voltage), from_here(voltage_square)
+    branch_average = conductance * (voltages - level * weights)
+    branch_square = conductance ** 2 * (squares - 2.0 * level * voltages + level ** 2 * weights)
+    inverse = np.argsort(order, axis=-1)
+    branch_average = np.take_along_axis(np.maximum(branch_average, 0.0), inverse, axis=-1)
+    branch_square = np.take_along_axis(np.maximum(branch_square, 0.0), inverse, axis=-1)
+    bad = (np.isnan(threshold) | np.isnan(resistance)).any(axis=-1, keepdims=True) \
+        | np.isnan(peak)
+    return np.where(bad, np.nan, branch_average), np.where(bad, np.nan, branch_square)
 
 
 def branch_currents(
@@ -258,19 +301,35 @@ def branch_currents(
 
     Notes
     -----
-    With the nodes i_j and weights w_j of :func:`phase_rule` and the split i_bj at each node,
+    dc and square: the split of the constant current that flows (I_F(AV), or I_pk = 2 I_F(AV)
+    for half the period). Half-sine, exact: with the branches sorted by threshold, G_k and S_k
+    the sums of g = 1 / rho and of g Theta over the k + 1 lowest, branch k starts to conduct at
+    the group current I_k = Theta_k G_k - S_k, i.e. at the phase arcsin(I_k / I_pk) (the pieces
+    of :func:`phase_rule`). On piece j the common voltage is v = (i + S_j) / G_j and each
+    conducting branch carries g_b (v - Theta_b), so
 
-    .. math:: I_{AV,b} = \\sum_j w_j i_{bj}, \\qquad I_{RMS,b}^2 = \\sum_j w_j i_{bj}^2
+    .. math:: I_{AV,b} = g_b \\sum_{j \\ge b} \\left(\\langle v \\rangle_j
+              - \\Theta_b \\langle 1 \\rangle_j\\right), \\qquad
+              I_{RMS,b}^2 = g_b^2 \\sum_{j \\ge b} \\left(\\langle v^2 \\rangle_j
+              - 2 \\Theta_b \\langle v \\rangle_j + \\Theta_b^2 \\langle 1 \\rangle_j\\right)
 
-    exact up to rounding, also for a branch that starts to conduct part-way up a half-sine.
-    Each branch current is nondecreasing in the group current, so the branch peak is the split
-    of the group peak. All nodes and trials go through one call of the water-filling solver.
+    where <.>_j is the period average over piece j, from the integrals of 1, sin and sin^2 of
+    the phase over it (:func:`phase_rule`'s Notes); the sums over j are cumulative sums, so a
+    row costs O(m log m) and no water-filling. Exact up to rounding, also for a branch that
+    starts to conduct part-way up the sine. Each branch current is nondecreasing in the group
+    current, so the branch peak is the split of the group peak.
     """
-    currents, rule = _sampled_split(branch_threshold, branch_resistance, average_current,
-                                    waveform)
-    average = np.einsum("...pm,...p->...m", currents, rule.weights)
-    rms = np.sqrt(np.einsum("...pm,...p->...m", currents * currents, rule.weights))
-    peak = split_current(branch_threshold, branch_resistance, rule.peak).currents
+    threshold = np.asarray(branch_threshold, dtype=float)
+    resistance = np.asarray(branch_resistance, dtype=float)
+    peak_current = peak_factor(waveform) * np.asarray(average_current, dtype=float)
+    if waveform == "half-sine":
+        average, mean_square = _half_sine_moments(threshold, resistance, average_current)
+        rms = np.sqrt(mean_square)
+        peak = split_current(threshold, resistance, peak_current).currents
+    else:
+        peak = split_current(threshold, resistance, peak_current).currents
+        fraction = 1.0 if waveform == "dc" else 0.5  # of the period the current flows
+        average, rms = fraction * peak, np.sqrt(fraction) * peak
     return BranchCurrents(average=average, rms=rms, peak=peak)
 
 

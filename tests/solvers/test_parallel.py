@@ -159,6 +159,33 @@ def test_branch_currents_sum_to_the_group_current(group):
 
 
 @settings(max_examples=60, deadline=None)
+@given(groups)
+def test_the_closed_form_and_the_phase_rule_agree(group):
+    # Two exact integrations of the same half-sine, written independently: cumulative sums over
+    # the pieces (branch_currents) and the split at the two-node rule of each piece (phase_rule +
+    # the water-filling solver).
+    thresholds, resistances, average, _ = group
+    rule = phase_rule(thresholds, resistances, average, "half-sine")
+    split = split_current(thresholds, resistances, rule.currents).currents
+    currents = branch_currents(thresholds, resistances, average, "half-sine")
+    scale = 1e-12 * average
+    np.testing.assert_allclose(currents.average, rule.weights @ split, rtol=1e-9, atol=scale)
+    np.testing.assert_allclose(currents.rms ** 2, rule.weights @ split ** 2, rtol=1e-9,
+                               atol=scale * average)
+
+
+def test_a_large_group_keeps_kirchhoff():
+    # 2,000 branches x 50 trials (the closed form works on (trials, m) arrays, never on
+    # (trials, m, m)); Kirchhoff holds for the averages (they add up to I_F(AV)).
+    rng = np.random.default_rng(5)
+    thresholds = rng.normal(0.85, 0.03, size=(50, 2000))
+    resistances = rng.normal(3e-3, 3e-4, size=(50, 2000))
+    currents = branch_currents(thresholds, resistances, 4000.0, "half-sine")
+    np.testing.assert_allclose(currents.average.sum(axis=-1), 4000.0, rtol=1e-10)
+    assert (currents.average >= 0).all() and (currents.rms >= currents.average).all()
+
+
+@settings(max_examples=60, deadline=None)
 @given(groups, st.randoms(use_true_random=False))
 def test_permuting_branches_permutes_the_answer(group, random):
     thresholds, resistances, average, waveform = group
