@@ -261,7 +261,9 @@ def phase_samples(
     :data:`DEFAULT_PHASE_POINTS` for the error. Since sin(theta_j) = sin(theta_(p-1-j)), the
     p samples are returned as q = ceil(p / 2) distinct currents, paired ones with weight 1 / p:
     the same sums for half the work. Square: one sample at I_pk = 2 I_F(AV) with weight
-    1/2. dc: one sample at I_F(AV) with weight 1.
+    1/2. dc: one sample at I_F(AV) with weight 1. The parallel and electro-thermal solvers
+    integrate each branch of a group exactly instead, cutting the sine where each branch starts
+    to conduct (:func:`stringcheck.solvers.parallel.phase_rule`).
     """
     _check_waveform(waveform)
     average = np.asarray(average_current, dtype=float)

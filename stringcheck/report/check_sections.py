@@ -22,6 +22,30 @@ def json_number(value: float | None) -> float | None:
     return value if math.isfinite(value) else None
 
 
+# How each basis of the turn-off current (studies.recovery_conditions.TurnOffCurrent) reads.
+_TURN_OFF_BASIS = {
+    "dc": "the dc forward current",
+    "square_peak": "a square wave commutates from its peak, 2 I_F(AV)",
+    "half_sine_average": "the half-sine's average I_F(AV); its decay to the zero crossing is not "
+                         "modelled yet",
+    "test_current": "the parts' test I_F: no duty.forward_current",
+}
+
+
+def turn_off_to_dict(turn_off) -> dict[str, Any] | None:
+    """JSON of the current a branch commutates from (null where no check used one)."""
+    if turn_off is None:
+        return None
+    return {"value": json_number(turn_off.current), "unit": "A", "per": "branch",
+            "basis": turn_off.basis}
+
+
+def turn_off_text(turn_off) -> str:
+    """The current a branch commutates from, in words."""
+    return (f"I_F = {format_quantity(turn_off.current, 'A')} per branch at turn-off "
+            f"({_TURN_OFF_BASIS[turn_off.basis]})")
+
+
 def _estimate(estimate) -> dict[str, Any]:
     return {"failures": estimate.failures, "p_fail": estimate.p_fail,
             "p_fail_ci": [estimate.ci_low, estimate.ci_high]}
@@ -114,6 +138,7 @@ def thermal_to_dict(check: ThermalCheck) -> dict[str, Any]:
         "runaway_ambient_trials": check.runaway_ambient_trials,
         "runaway_search_limit": check.runaway_search_limit,
         "mean_total_power": json_number(check.total_power_mean),
+        "turn_off_current": turn_off_to_dict(check.turn_off_current),
         "positions": [
             {"branch": p.branch, "index": p.index, "part": p.part, "limit": p.limit,
              "mean_tj": json_number(p.mean_temperature), "max_tj": json_number(p.max_temperature),
@@ -137,11 +162,13 @@ def transient_to_dict(check: TransientCheck) -> dict[str, Any]:
         "worst_trial": check.worst_trial,
         "sampled": check.sampled,
         "worst_simulated": check.worst_simulated,
+        "simulated": check.simulated,
         "worst_failures": check.worst_failures,
         "peak_recovery_current": json_number(check.peak_recovery_current),
         "damping_energy": json_number(check.damping_energy),
         "inductance": json_number(check.inductance),
         "forward_current": json_number(check.forward_current),
+        "turn_off_current": turn_off_to_dict(check.turn_off_current),
         "notes": list(check.notes),
         "rare": rare_to_dict(check.rare),
         "positions": [
@@ -157,8 +184,9 @@ def transient_to_dict(check: TransientCheck) -> dict[str, Any]:
 def render_transient(check: TransientCheck, design, console: Console) -> None:
     console.print(Text("Turn-off in the time domain (stray inductance, recovery, damping)",
                        style="bold underline"))
-    console.print(f"L = {format_quantity(check.inductance, 'H')}, I_F = "
-                  f"{format_quantity(check.forward_current, 'A')} per branch; simulated: the "
+    current = turn_off_text(check.turn_off_current) if check.turn_off_current is not None else \
+        f"I_F = {format_quantity(check.forward_current, 'A')} per branch"
+    console.print(f"L = {format_quantity(check.inductance, 'H')}, {current}; simulated: the "
                   f"{check.worst_simulated} worst charge-balance strings and a random sample of "
                   f"{check.sampled:,} (P(fail) is estimated on the sample)")
     ranked = sorted(check.positions, key=lambda p: p.max_voltage / p.limit, reverse=True)[:5]
@@ -234,7 +262,12 @@ def render_thermal(check: ThermalCheck, design, console: Console) -> None:
     thermal = design.thermal
     console.print(f"heatsink {thermal.heatsink}, R_th(s-a) {thermal.r_th_sa:g} K/W, ambient "
                   f"{design.duty.ambient:g} degC; losses: conduction + leakage + recovery; "
-                  f"mean total loss {format_quantity(check.total_power_mean, 'W')}")
+                  + (f"mean total loss {format_quantity(check.total_power_mean, 'W')} (groups "
+                     "with an equilibrium)" if math.isfinite(check.total_power_mean) else
+                     "no group reaches an equilibrium"))
+    if check.turn_off_current is not None:
+        console.print(f"recovery loss Q_rr V f with each device's Q_rr carried, as in the dynamic "
+                      f"check, to {turn_off_text(check.turn_off_current)}")
     ranked = sorted(check.positions, key=lambda p: p.max_temperature, reverse=True)[:5]
     single_branch = all(p.branch == 1 for p in check.positions)
     table = Table(show_edge=False, pad_edge=False)

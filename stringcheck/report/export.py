@@ -29,6 +29,7 @@ from .check_sections import (
     rare_to_dict,
     thermal_to_dict,
     transient_to_dict,
+    turn_off_to_dict,
 )
 
 if TYPE_CHECKING:
@@ -52,6 +53,9 @@ def check_to_dict(check: SeriesCheck) -> dict[str, Any]:
         "p_fail_ci": [estimate.ci_low, estimate.ci_high],
         "worst_trial": check.worst_trial,
         "rare": rare_to_dict(check.rare),
+        # The dynamic check: the current each branch commutates from (null: Q_rr not carried).
+        **({"turn_off_current": turn_off_to_dict(check.turn_off_current)}
+           if check.name == "dynamic" else {}),
         "positions": [
             {
                 "branch": p.branch, "index": p.index, "part": p.part, "limit": p.limit,

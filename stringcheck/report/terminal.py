@@ -17,7 +17,7 @@ from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
 from ..studies.transient_check import TransientCheck
 from .lots import render_lots
-from .check_sections import failure_point_text, render_drivers, render_parallel, render_thermal, render_transient, worst_value_text
+from .check_sections import failure_point_text, render_drivers, render_parallel, render_thermal, render_transient, turn_off_text, worst_value_text
 
 if TYPE_CHECKING:
     from ..studies.size import SizingResult
@@ -226,6 +226,11 @@ def _fail_reason(result: CheckResult) -> str:
 
 def _render_detail(name: str, check: SeriesCheck, console: Console) -> None:
     console.print(Text(_TITLES.get(name, name), style="bold underline"))
+    if name == "dynamic":
+        console.print("Q_rr of each device carried to " + turn_off_text(check.turn_off_current)
+                      if check.turn_off_current is not None else
+                      "Q_rr of each device at the datasheet's test conditions (not carried to the "
+                      "application's turn-off; see the assumptions)")
     single_branch = all(p.branch == 1 for p in check.positions)
     ranked = sorted(check.positions, key=lambda p: p.max_voltage / p.limit, reverse=True)[:5]
     table = Table(show_edge=False, pad_edge=False)
@@ -300,24 +305,32 @@ def render_check_summary(result: CheckResult, console: Console) -> None:
             estimate = check.estimate
             rare = _deciding_rare(check)
             status = "pass" if check.passed else "FAIL"
+            # The transient check simulates a random sample and the worst charge-balance
+            # strings, not every trial of the run: say how many.
+            worst = (f"; {check.worst_failures:,}/{check.worst_simulated:,} worst "
+                     f"charge-balance strings failed; {check.simulated:,} of the "
+                     f"{result.trials:,} strings simulated"
+                     if isinstance(check, TransientCheck) else "")
+            sampled = " sampled" if isinstance(check, TransientCheck) else ""
             if rare is not None and rare.found_failure_point:
                 parts.append(f"{name} {status} (P(fail) upper bound {rare.ci_high:.2g} (IS) vs "
                              f"target {result.target_p_fail:g}; plain {estimate.failures:,}/"
-                             f"{estimate.trials:,} failed)")
+                             f"{estimate.trials:,}{sampled} failed{worst})")
                 continue
-            failures, trials, bound, mark = estimate.failures, result.trials, estimate.ci_high, ""
+            failures, trials, bound, mark = estimate.failures, estimate.trials, estimate.ci_high, ""
             if rare is not None:
                 pooled = rare.pooled_trials > 0
                 failures = rare.failures + (estimate.failures if pooled else 0)
                 trials, bound = (rare.pooled_trials if pooled else rare.samples), rare.ci_high
                 mark = " (pooled)" if pooled else " (IS: none found)"
+                sampled = ""
             elif getattr(check, "rare", None) is not None:
                 mark = _plain_mark(check)
             if not check.passed and failures == 0:
                 status = "FAIL, too few trials to show the target"
             parts.append(f"{name} {status} "
-                         f"({failures:,}/{trials:,} failed{mark}, P(fail) upper bound "
-                         f"{bound:.2g} vs target {result.target_p_fail:g})")
+                         f"({failures:,}/{trials:,}{sampled} failed{mark}, P(fail) upper bound "
+                         f"{bound:.2g} vs target {result.target_p_fail:g}{worst})")
         else:
             parts.append(f"{name} not run")
     if result.impossible is not None:

@@ -10,9 +10,9 @@ Model
     (:func:`stringcheck.physics.thermal.junction_temperature`) fed with each device's loss
     P_k(T) = conduction + leakage + recovery (:mod:`stringcheck.physics.forward`), the junction
     temperature being steady over a period. Conduction: the branch currents over the waveform
-    (:func:`stringcheck.solvers.parallel.split_current` at the phase samples of
-    :func:`stringcheck.physics.forward.phase_samples`) give each device V_T0(T) I_AV + r_T(T)
-    I_RMS^2 of its branch. Leakage: the device's blocking voltage share and I_R(V, T) over the
+    (:func:`stringcheck.solvers.parallel.split_current` at the nodes of
+    :func:`stringcheck.solvers.parallel.phase_rule`, exact for every branch) give each device
+    V_T0(T) I_AV + r_T(T) I_RMS^2 of its branch. Leakage: the device's blocking voltage share and I_R(V, T) over the
     blocking part of the period. Recovery: Q_rr V f per device while the group carries current
     and the waveform commutates (not dc); Q_rr is taken at the value given, without a
     temperature law.
@@ -21,10 +21,12 @@ Jacobian
     A = dF/dT is formed analytically. The direct terms are dV_T0/dT, dr_T/dT and the leakage
     rate ln 2 / T_double; the redistribution of branch currents couples every device of the
     group through the 2 m branch parameters (Theta_b, rho_b). On the conducting set C of a
-    sample, with g = 1 / rho and G = sum_C g, water-filling gives
+    node, with g = 1 / rho and G = sum_C g, water-filling gives
     di_b/dTheta_c = g_b (g_c / G - delta_bc) and di_b/drho_c = g_b g_c i_c / G - delta_bc g_b i_b
-    (b, c in C; 0 otherwise). A is the exact derivative of the sampled model, so Newton's method
-    converges quadratically.
+    (b, c in C; 0 otherwise). These are constant or linear in the branch currents on each piece
+    of the rule, which integrates them exactly, and the moving edges of the pieces add nothing
+    (the branch currents are continuous there): A is the exact derivative of the model, so
+    Newton's method converges quadratically.
 
 Damped Newton scheme
     Newton on T - F(T) = 0, started at the ambient temperature (below every equilibrium, since
@@ -58,7 +60,8 @@ Stability and classification
 
 Cost
     A is dense, N x N per trial with N = m n: O(N^3) per trial and iteration, memory
-    O(trials N^2), plus O(trials p m) for the phase samples. Chunk the trials of large groups.
+    O(trials N^2), plus O(trials m^2) for the nodes of a half-sine. Chunk the trials of large
+    groups.
 """
 
 from __future__ import annotations
@@ -70,7 +73,6 @@ from numpy.typing import ArrayLike, NDArray
 
 from stringcheck.errors import StringcheckError
 from stringcheck.physics.forward import (
-    DEFAULT_PHASE_POINTS,
     SLOPE_RESISTANCE_FLOOR,
     leakage_loss,
     phase_samples,
@@ -79,7 +81,7 @@ from stringcheck.physics.forward import (
     threshold_voltage,
 )
 from stringcheck.physics.thermal import HEATSINKS, junction_temperature
-from stringcheck.solvers.parallel import split_current
+from stringcheck.solvers.parallel import phase_rule, split_current
 
 __all__ = [
     "OVER_LIMIT",
@@ -114,9 +116,12 @@ class ParallelDevices:
     threshold_voltage
         V_T0 at ``forward_reference_temperature`` [V] (design key ``v_t0``), > 0.
     slope_resistance
-        r_T at ``forward_reference_temperature`` [ohm] (design key ``r_t``), > 0.
+        r_T at ``resistance_reference_temperature`` [ohm] (design key ``r_t``), > 0.
     forward_reference_temperature
-        Temperature at which V_T0 and r_T are given [degC].
+        Temperature at which V_T0 is given [degC] (the ``v_t0`` row's ``at_temperature``).
+    resistance_reference_temperature
+        Temperature at which r_T is given [degC] (the ``r_t`` row's ``at_temperature``; a
+        datasheet may give the two rows at different temperatures).
     threshold_tempco
         dV_T0/dT [V/K] (``tempco_v_t0``); about -2e-3 for silicon PN (common practice).
     resistance_tempco
@@ -142,6 +147,7 @@ class ParallelDevices:
     threshold_voltage: ArrayLike
     slope_resistance: ArrayLike
     forward_reference_temperature: ArrayLike
+    resistance_reference_temperature: ArrayLike
     threshold_tempco: ArrayLike
     resistance_tempco: ArrayLike
     leakage_current: ArrayLike
@@ -289,24 +295,24 @@ def _device_lines(devices: ParallelDevices, temperature):
     threshold = threshold_voltage(devices.threshold_voltage, devices.threshold_tempco,
                                   temperature, devices.forward_reference_temperature)
     resistance = slope_resistance(devices.slope_resistance, devices.resistance_tempco,
-                                  temperature, devices.forward_reference_temperature)
+                                  temperature, devices.resistance_reference_temperature)
     return threshold, resistance
 
 
-def _evaluate(devices: ParallelDevices, duty: ParallelDuty, temperature, points: int,
+def _evaluate(devices: ParallelDevices, duty: ParallelDuty, temperature,
               jacobian: bool) -> _State:
     """Losses and the thermal map at the junction temperatures ``temperature`` (t, m, n)."""
     d = devices
     threshold, resistance = _device_lines(devices, temperature)
     branch_threshold = threshold.sum(axis=-1)
     branch_resistance = resistance.sum(axis=-1) + duty.path_resistance
-    samples = phase_samples(duty.forward_current, duty.waveform, points=points)
+    rule = phase_rule(branch_threshold, branch_resistance, duty.forward_current, duty.waveform)
     split = split_current(branch_threshold[:, None, :], branch_resistance[:, None, :],
-                          samples.currents)
+                          rule.currents)
     current = split.currents  # (t, p, m)
-    weights = samples.weights
-    average = np.einsum("tpm,p->tm", current, weights)
-    mean_square = np.einsum("tpm,p->tm", current * current, weights)
+    weights = rule.weights  # (t, p)
+    average = np.einsum("tpm,tp->tm", current, weights)
+    mean_square = np.einsum("tpm,tp->tm", current * current, weights)
 
     conduction = threshold * average[..., None] + resistance * mean_square[..., None]
     leakage = leakage_loss(
@@ -331,10 +337,10 @@ def _evaluate(devices: ParallelDevices, duty: ParallelDuty, temperature, points:
     # Derivatives of the device lines; the floor of r_T(T) has zero slope.
     threshold_slope = np.broadcast_to(d.threshold_tempco, temperature.shape)
     unclipped = d.slope_resistance * (1.0 + d.resistance_tempco
-                                      * (temperature - d.forward_reference_temperature))
+                                      * (temperature - d.resistance_reference_temperature))
     resistance_slope = np.where(unclipped > SLOPE_RESISTANCE_FLOOR,
                                 d.slope_resistance * d.resistance_tempco, 0.0)
-    # Water-filling derivatives at each sample, summed over the samples as matrix products.
+    # Water-filling derivatives at each node, summed over the nodes as matrix products.
     conductance = np.where(current > 0.0, 1.0 / branch_resistance[:, None, :], 0.0)
     total = conductance.sum(axis=-1)
     inverse_total = np.divide(1.0, total, out=np.zeros_like(total), where=total > 0.0)
@@ -345,15 +351,15 @@ def _evaluate(devices: ParallelDevices, duty: ParallelDuty, temperature, points:
     eye = np.eye(count)
     # d I_AV,b / d Theta_c and d <i_b^2> / d Theta_c
     avg_theta = transpose(conductance, 1, 2) @ scaled - eye * np.einsum(
-        "tpm,p->tm", conductance, weights)[..., None]
+        "tpm,tp->tm", conductance, weights)[..., None]
     sq_theta = transpose(twice * conductance, 1, 2) @ scaled - eye * np.einsum(
-        "tpm,p->tm", twice * conductance, weights)[..., None]
+        "tpm,tp->tm", twice * conductance, weights)[..., None]
     # d I_AV,b / d rho_c and d <i_b^2> / d rho_c
     scaled_flow = flowing * (weights * inverse_total)[..., None]
     avg_rho = transpose(conductance, 1, 2) @ scaled_flow - eye * np.einsum(
-        "tpm,p->tm", flowing, weights)[..., None]
+        "tpm,tp->tm", flowing, weights)[..., None]
     sq_rho = transpose(twice * conductance, 1, 2) @ scaled_flow - eye * np.einsum(
-        "tpm,p->tm", twice * flowing, weights)[..., None]
+        "tpm,tp->tm", twice * flowing, weights)[..., None]
     # dP_(b,k)/dTheta_c and dP_(b,k)/drho_c: (t, m, n, m)
     by_theta = (threshold[..., None] * avg_theta[:, :, None, :]
                 + resistance[..., None] * sq_theta[:, :, None, :])
@@ -380,7 +386,6 @@ def solve_equilibrium(
     devices: ParallelDevices,
     duty: ParallelDuty,
     *,
-    points: int = DEFAULT_PHASE_POINTS,
     tolerance: float = 1e-9,
     max_iter: int = 100,
     max_step: float = 25.0,
@@ -395,8 +400,6 @@ def solve_equilibrium(
         Parameters of every device, broadcastable to ``(trials, m, n)``.
     duty
         Operating point of the group.
-    points
-        Phase samples of a half-sine (:func:`stringcheck.physics.forward.phase_samples`).
     tolerance
         Convergence limit on max_k |T_k - F_k(T)| [K], > 0.
     max_iter
@@ -446,7 +449,7 @@ def solve_equilibrium(
             iterations += 1
             part_devices, part_duty = _rows(devices, duty, active)
             current = temperature[active]
-            state = _evaluate(part_devices, part_duty, current, points, jacobian=True)
+            state = _evaluate(part_devices, part_duty, current, jacobian=True)
             imbalance = (state.mapped - current).reshape(-1, size)  # F(T) - T
             finite = np.isfinite(imbalance).all(axis=-1) & np.isfinite(state.jacobian).all(
                 axis=(-2, -1))
@@ -477,7 +480,7 @@ def solve_equilibrium(
                 updated.max(axis=(-2, -1)) <= temperature_cap)
             active = active[running]
 
-        state = _evaluate(devices, duty, temperature, points, jacobian=False)
+        state = _evaluate(devices, duty, temperature, jacobian=False)
         radius = np.full(trials, np.nan)
         real = np.full(trials, np.nan)
         if converged.any():
@@ -535,7 +538,6 @@ def runaway_ambient(
     *,
     upper_limit: float,
     tolerance: float = 0.01,
-    points: int = DEFAULT_PHASE_POINTS,
     **solver_options,
 ) -> RunawayAmbient:
     """Per trial, the ambient temperature at which the group runs away thermally.
@@ -548,8 +550,6 @@ def runaway_ambient(
         Upper end of the search [degC].
     tolerance
         Width of the final bracket [K], > 0.
-    points
-        Phase samples of a half-sine.
     **solver_options
         Passed on to :func:`solve_equilibrium` (``tolerance`` excepted).
 
@@ -571,9 +571,8 @@ def runaway_ambient(
     trials = np.shape(devices.threshold_voltage)[0]
     low = np.array(duty.ambient, dtype=float)
     high = np.full(trials, float(upper_limit))
-    at_low = solve_equilibrium(devices, duty, points=points, **solver_options)
-    at_high = solve_equilibrium(devices, replace(duty, ambient=high), points=points,
-                                **solver_options)
+    at_low = solve_equilibrium(devices, duty, **solver_options)
+    at_high = solve_equilibrium(devices, replace(duty, ambient=high), **solver_options)
     lost_low = at_low.classification == RUNAWAY
     lost_high = at_high.classification == RUNAWAY
     lower = np.where(lost_low, -np.inf, np.where(lost_high, low, high))
@@ -584,7 +583,7 @@ def runaway_ambient(
         middle = 0.5 * (lower[active] + upper[active])
         part_devices, part_duty = _rows(devices, duty, active)
         guess = start[active] + (middle - lower[active])[:, None, None]
-        result = solve_equilibrium(part_devices, replace(part_duty, ambient=middle), points=points,
+        result = solve_equilibrium(part_devices, replace(part_duty, ambient=middle),
                                    initial_temperature=guess, **solver_options)
         lost = result.classification == RUNAWAY
         upper[active[lost]] = middle[lost]

@@ -7,10 +7,12 @@ branch is again a line, with threshold Theta_b = sum of its devices' V_T0(T) and
 rho_b = sum of their r_T(T) plus R_path. At an instant the branches share the group current at a
 common voltage, sum_b max((v - Theta_b) / rho_b, 0) = i, solved exactly by
 :func:`stringcheck.solvers.water_filling.water_fill` (the solver that also serves dynamic series
-sharing). Over a waveform the phase is sampled (:func:`stringcheck.physics.forward.phase_samples`)
-and the branch I_AV, I_RMS and peak follow from the sampled split; all samples and trials go
-through one call of the water-filling solver. The electro-thermal equilibrium built on this
-split is in :mod:`stringcheck.solvers.electrothermal`.
+sharing). Over a waveform the branch I_AV, I_RMS and peak are exact for every branch: a dc or
+square current is constant while it flows; a half-sine is cut where each branch starts to
+conduct, and on each piece the branch currents are linear in the group current, so their
+averages are closed forms (:func:`branch_currents`, O(m log m) per group) and a two-node rule per
+piece integrates them exactly (:func:`phase_rule`, for the electro-thermal Jacobian). The
+electro-thermal equilibrium built on this split is in :mod:`stringcheck.solvers.electrothermal`.
 """
 
 from __future__ import annotations
@@ -20,15 +22,17 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from stringcheck.physics.forward import DEFAULT_PHASE_POINTS, phase_samples
+from stringcheck.physics.forward import peak_factor, phase_samples
 from stringcheck.solvers.water_filling import water_fill
 
 __all__ = [
     "Ballast",
     "BranchCurrents",
     "CurrentSplit",
+    "PhaseRule",
     "ballast_for_share",
     "branch_currents",
+    "phase_rule",
     "split_current",
 ]
 
@@ -110,17 +114,165 @@ def split_current(
     return CurrentSplit(forward_voltage=solution.level, currents=solution.amounts)
 
 
-def _sampled_split(threshold, resistance, average_current, waveform, points):
-    """Branch currents at the phase samples, shape (..., p, m), and the phase samples."""
-    threshold = np.asarray(threshold, dtype=float)
-    resistance = np.asarray(resistance, dtype=float)
+@dataclass(frozen=True)
+class PhaseRule:
+    """Nodes and weights of a quadrature over one period, exact for every branch of a group.
+
+    Attributes
+    ----------
+    currents
+        Group current at each node [A], shape ``(..., q)``.
+    weights
+        Fraction of the period each node stands for [-], shape ``(..., q)``; they add up to the
+        conducting fraction of the period (1 for dc, 1/2 for half-sine and square).
+    peak
+        Peak group current I_pk [A], shape ``...``.
+    """
+
+    currents: NDArray[np.float64]
+    weights: NDArray[np.float64]
+    peak: NDArray[np.float64]
+
+
+def phase_rule(
+    branch_threshold: ArrayLike,
+    branch_resistance: ArrayLike,
+    average_current: ArrayLike,
+    waveform: str,
+) -> PhaseRule:
+    """A quadrature over one period that is exact for the currents of every branch of a group.
+
+    Parameters
+    ----------
+    branch_threshold
+        Threshold voltage of each branch Theta_b [V], shape ``(..., m)``, finite.
+    branch_resistance
+        Resistance of each branch rho_b [ohm], broadcastable to ``branch_threshold``, > 0.
+    average_current
+        Average forward current of the whole group I_F(AV) [A], broadcastable to ``...``, >= 0.
+    waveform
+        ``"dc"``, ``"half-sine"`` or ``"square"`` (see :mod:`stringcheck.physics.forward`).
+
+    Returns
+    -------
+    PhaseRule
+        Nodes ``(..., q)`` [A] and weights ``(..., q)`` [-], q = 1 for dc and square and 2 m for
+        a half-sine; the period average of any g(i_b) of degree <= 2 in the branch currents
+        (I_AV, I_RMS^2, products of two branches) is ``sum(weights * g(split at currents))``,
+        exact up to rounding.
+
+    Notes
+    -----
+    dc and square: the current is constant while it flows, one node (I_F(AV), weight 1; or
+    I_pk = 2 I_F(AV), weight 1/2). Half-sine, i = I_pk sin(theta) on (0, pi): branch c starts
+    to conduct when the group current reaches
+
+    .. math:: I_c = \\sum_b \\max(\\Theta_c - \\Theta_b, 0) / \\rho_b
+
+    (the water-filling breakpoints), at the phase theta_c = arcsin(I_c / I_pk). Between two
+    such phases the conducting set is fixed and every branch current is linear in i, so an
+    integrand of degree <= 2 in the branch currents is a polynomial of degree <= 2 in
+    s = sin(theta). On each piece [a, b] of (0, pi/2) (mirrored onto (pi/2, pi), sin being
+    symmetric there), with h = (b - a) / 2, c = (a + b) / 2 and sinc(x) = sin(x) / x,
+
+    .. math:: \\bar s = \\sin c \\,\\mathrm{sinc}\\,h, \\qquad
+              \\overline{s^2} = \\tfrac12 (1 - \\mathrm{sinc}\\,2h) + \\mathrm{sinc}\\,2h \\sin^2 c
+
+    (the integrals of sin and sin^2 over the piece divided by its width), and the two nodes
+    s = s_bar -+ sigma, sigma^2 = mean(s^2) - s_bar^2, each of weight (b - a) / (2 pi),
+    reproduce the piece's integrals of 1, s and s^2 exactly. The nodes lie inside the piece
+    (they are clipped to it against rounding in pieces narrower than about 1e-7), so the split
+    at a node has the piece's conducting set. The pieces' edges move with Theta and rho, but
+    the branch currents are continuous across them, so the derivatives of the exact averages
+    are the same rule applied to the piecewise derivatives of the split (Leibniz's rule: the
+    edge terms cancel).
+
+    References
+    ----------
+    .. [1] P. J. Davis and P. Rabinowitz, *Methods of Numerical Integration*, 2nd ed., Academic
+       Press, 1984, chapter 2 (rules exact for polynomials; chapter from memory).
+    """
+    threshold = np.asarray(branch_threshold, dtype=float)
+    resistance = np.asarray(branch_resistance, dtype=float)
     average = np.asarray(average_current, dtype=float)
-    leading = np.broadcast_shapes(
-        threshold.shape[:-1], resistance.shape[:-1], average.shape
-    )
-    samples = phase_samples(np.broadcast_to(average, leading), waveform, points=points)
-    split = split_current(threshold[..., None, :], resistance[..., None, :], samples.currents)
-    return split.currents, samples
+    leading = np.broadcast_shapes(threshold.shape[:-1], resistance.shape[:-1], average.shape)
+    samples = phase_samples(np.broadcast_to(average, leading), waveform, points=1)
+    if waveform != "half-sine":
+        return PhaseRule(currents=samples.currents,
+                         weights=np.broadcast_to(samples.weights, samples.currents.shape),
+                         peak=samples.peak)
+    count = max(threshold.shape[-1], resistance.shape[-1])
+    threshold = np.broadcast_to(threshold, leading + (count,))
+    conductance = np.broadcast_to(1.0 / resistance, leading + (count,))
+    onset = np.einsum("...b,...cb->...c", conductance,
+                      np.maximum(threshold[..., :, None] - threshold[..., None, :], 0.0))
+    peak = samples.peak[..., None]
+    ratio = np.divide(onset, peak, out=np.ones_like(onset), where=peak > 0.0)
+    lower = np.sort(np.arcsin(np.clip(ratio, 0.0, 1.0)), axis=-1)
+    upper = np.concatenate([lower[..., 1:], np.full(leading + (1,), 0.5 * np.pi)], axis=-1)
+    mean, square = _piece_moments(lower, upper)
+    spread = np.sqrt(np.maximum(square - mean * mean, 0.0))
+    low_end, high_end = np.sin(lower), np.sin(upper)
+    nodes = np.concatenate([np.clip(mean - spread, low_end, high_end),
+                            np.clip(mean + spread, low_end, high_end)], axis=-1)
+    weight = 0.5 * (upper - lower) / np.pi  # (b - a) / (2 pi) per node, both halves of the sine
+    return PhaseRule(currents=peak * nodes, weights=np.concatenate([weight, weight], axis=-1),
+                     peak=samples.peak)
+
+
+def _piece_moments(lower, upper):
+    """Means of sin and sin^2 of the phase over pieces [lower, upper] of (0, pi/2) (their
+    integrals divided by the width; the value at ``lower`` for an empty piece)."""
+    centre, half = 0.5 * (upper + lower), 0.5 * (upper - lower)
+    sine = np.sin(centre)
+    whole = np.sinc(2.0 * half / np.pi)  # sin(2h) / (2h), 1 at h = 0
+    return sine * np.sinc(half / np.pi), 0.5 * (1.0 - whole) + whole * sine * sine
+
+
+def _half_sine_moments(threshold, resistance, average):
+    """Exact I_AV and mean of i^2 of each branch over a half-sine, (..., m), in O(m log m) per
+    row (see :func:`branch_currents`)."""
+    threshold, resistance = np.broadcast_arrays(np.asarray(threshold, dtype=float),
+                                                np.asarray(resistance, dtype=float))
+    peak = peak_factor("half-sine") * np.asarray(average, dtype=float)
+    leading = np.broadcast_shapes(threshold.shape[:-1], peak.shape)
+    count = threshold.shape[-1]
+    threshold = np.broadcast_to(threshold, leading + (count,))
+    resistance = np.broadcast_to(resistance, leading + (count,))
+    peak = np.broadcast_to(peak, leading)[..., None]
+    order = np.argsort(threshold, axis=-1, kind="stable")
+    # Thresholds from the lowest: only differences matter, and they are small.
+    level = np.take_along_axis(threshold, order, axis=-1)
+    level = level - level[..., :1]
+    conductance = 1.0 / np.take_along_axis(resistance, order, axis=-1)
+    total = np.cumsum(conductance, axis=-1)  # G_k over the k + 1 lowest branches
+    moment = np.cumsum(conductance * level, axis=-1)  # S_k
+    onset = np.maximum.accumulate(np.maximum(level * total - moment, 0.0), axis=-1)
+    ratio = np.divide(onset, peak, out=np.ones_like(onset), where=peak > 0.0)
+    lower = np.arcsin(np.clip(ratio, 0.0, 1.0))
+    upper = np.concatenate([lower[..., 1:], np.full(leading + (1,), 0.5 * np.pi)], axis=-1)
+    mean, mean_square = _piece_moments(lower, upper)
+    # Moments of the group current over piece k (branches 0..k conducting), as fractions of
+    # the period (both halves of the sine): of 1, i and i^2.
+    weight = (upper - lower) / np.pi
+    first = weight * peak * mean
+    second = weight * peak * peak * mean_square
+    # v = (i + S_k) / G_k on piece k: its integrals over the piece.
+    voltage = (first + moment * weight) / total
+    voltage_square = (second + 2.0 * moment * first + moment * moment * weight) / (total * total)
+
+    def from_here(values):  # sums over the pieces k, k + 1, ... on which branch k conducts
+        return np.flip(np.cumsum(np.flip(values, axis=-1), axis=-1), axis=-1)
+
+    weights, voltages, squares = from_here(weight), from_here(voltage), from_here(voltage_square)
+    branch_average = conductance * (voltages - level * weights)
+    branch_square = conductance ** 2 * (squares - 2.0 * level * voltages + level ** 2 * weights)
+    inverse = np.argsort(order, axis=-1)
+    branch_average = np.take_along_axis(np.maximum(branch_average, 0.0), inverse, axis=-1)
+    branch_square = np.take_along_axis(np.maximum(branch_square, 0.0), inverse, axis=-1)
+    bad = (np.isnan(threshold) | np.isnan(resistance)).any(axis=-1, keepdims=True) \
+        | np.isnan(peak)
+    return np.where(bad, np.nan, branch_average), np.where(bad, np.nan, branch_square)
 
 
 def branch_currents(
@@ -128,8 +280,6 @@ def branch_currents(
     branch_resistance: ArrayLike,
     average_current: ArrayLike,
     waveform: str,
-    *,
-    points: int = DEFAULT_PHASE_POINTS,
 ) -> BranchCurrents:
     """Average, RMS and peak current of each branch of a group over one period.
 
@@ -143,8 +293,6 @@ def branch_currents(
         Average forward current of the whole group I_F(AV) [A], broadcastable to ``...``, >= 0.
     waveform
         ``"dc"``, ``"half-sine"`` or ``"square"`` (see :mod:`stringcheck.physics.forward`).
-    points
-        Phase samples of a half-sine (see :func:`stringcheck.physics.forward.phase_samples`).
 
     Returns
     -------
@@ -153,20 +301,35 @@ def branch_currents(
 
     Notes
     -----
-    With samples i_j of the group current, weights w_j and the split i_bj at each sample,
+    dc and square: the split of the constant current that flows (I_F(AV), or I_pk = 2 I_F(AV)
+    for half the period). Half-sine, exact: with the branches sorted by threshold, G_k and S_k
+    the sums of g = 1 / rho and of g Theta over the k + 1 lowest, branch k starts to conduct at
+    the group current I_k = Theta_k G_k - S_k, i.e. at the phase arcsin(I_k / I_pk) (the pieces
+    of :func:`phase_rule`). On piece j the common voltage is v = (i + S_j) / G_j and each
+    conducting branch carries g_b (v - Theta_b), so
 
-    .. math:: I_{AV,b} = \\sum_j w_j i_{bj}, \\qquad I_{RMS,b}^2 = \\sum_j w_j i_{bj}^2
+    .. math:: I_{AV,b} = g_b \\sum_{j \\ge b} \\left(\\langle v \\rangle_j
+              - \\Theta_b \\langle 1 \\rangle_j\\right), \\qquad
+              I_{RMS,b}^2 = g_b^2 \\sum_{j \\ge b} \\left(\\langle v^2 \\rangle_j
+              - 2 \\Theta_b \\langle v \\rangle_j + \\Theta_b^2 \\langle 1 \\rangle_j\\right)
 
-    Each branch current is nondecreasing in the group current, so the branch peak is the split
-    of the group peak, computed exactly rather than sampled. All samples and trials go through
-    one call of the water-filling solver.
+    where <.>_j is the period average over piece j, from the integrals of 1, sin and sin^2 of
+    the phase over it (:func:`phase_rule`'s Notes); the sums over j are cumulative sums, so a
+    row costs O(m log m) and no water-filling. Exact up to rounding, also for a branch that
+    starts to conduct part-way up the sine. Each branch current is nondecreasing in the group
+    current, so the branch peak is the split of the group peak.
     """
-    currents, samples = _sampled_split(
-        branch_threshold, branch_resistance, average_current, waveform, points
-    )
-    average = np.einsum("...pm,p->...m", currents, samples.weights)
-    rms = np.sqrt(np.einsum("...pm,p->...m", currents * currents, samples.weights))
-    peak = split_current(branch_threshold, branch_resistance, samples.peak).currents
+    threshold = np.asarray(branch_threshold, dtype=float)
+    resistance = np.asarray(branch_resistance, dtype=float)
+    peak_current = peak_factor(waveform) * np.asarray(average_current, dtype=float)
+    if waveform == "half-sine":
+        average, mean_square = _half_sine_moments(threshold, resistance, average_current)
+        rms = np.sqrt(mean_square)
+        peak = split_current(threshold, resistance, peak_current).currents
+    else:
+        peak = split_current(threshold, resistance, peak_current).currents
+        fraction = 1.0 if waveform == "dc" else 0.5  # of the period the current flows
+        average, rms = fraction * peak, np.sqrt(fraction) * peak
     return BranchCurrents(average=average, rms=rms, peak=peak)
 
 
@@ -194,9 +357,8 @@ class Ballast:
     loss: NDArray[np.float64]
 
 
-def _share_and_loss(threshold, resistance, added, total, waveform, points):
-    currents = branch_currents(threshold, resistance + added[..., None], total, waveform,
-                               points=points)
+def _share_and_loss(threshold, resistance, added, total, waveform):
+    currents = branch_currents(threshold, resistance + added[..., None], total, waveform)
     share = currents.average.max(axis=-1) / currents.average.mean(axis=-1)
     return share, added * np.sum(currents.rms**2, axis=-1)
 
@@ -208,7 +370,6 @@ def ballast_for_share(
     waveform: str,
     target_share: float,
     *,
-    points: int = DEFAULT_PHASE_POINTS,
     rtol: float = 1e-12,
 ) -> Ballast:
     """Smallest equal series resistance per branch that meets a current-share target.
@@ -226,8 +387,6 @@ def ballast_for_share(
         ``"dc"``, ``"half-sine"`` or ``"square"``.
     target_share
         Allowed max branch I_AV / mean branch I_AV [-], > 1.
-    points
-        Phase samples of a half-sine.
     rtol
         Relative width of the final bracket on the resistance [-].
 
@@ -259,7 +418,7 @@ def ballast_for_share(
     rows = total.size
 
     zero = np.zeros(rows)
-    unballasted, _ = _share_and_loss(threshold, resistance, zero, total, waveform, points)
+    unballasted, _ = _share_and_loss(threshold, resistance, zero, total, waveform)
     low, high = zero.copy(), np.full(rows, np.inf)
     pending = np.flatnonzero(unballasted > target_share)
     if target_share > 1.0 and pending.size:
@@ -267,7 +426,7 @@ def ballast_for_share(
         trial = np.maximum(resistance[pending].max(axis=-1), spread)
         for _ in range(200):  # doublings of the upper end, all rows at once
             share, _ = _share_and_loss(threshold[pending], resistance[pending], trial,
-                                       total[pending], waveform, points)
+                                       total[pending], waveform)
             met = share <= target_share
             high[pending[met]] = trial[met]
             pending, trial = pending[~met], 2.0 * trial[~met]
@@ -277,7 +436,7 @@ def ballast_for_share(
         while active.size:
             middle = 0.5 * (low[active] + high[active])
             share, _ = _share_and_loss(threshold[active], resistance[active], middle,
-                                       total[active], waveform, points)
+                                       total[active], waveform)
             met = share <= target_share
             high[active[met]] = middle[met]
             low[active[~met]] = middle[~met]
@@ -285,7 +444,7 @@ def ballast_for_share(
     added = np.where(unballasted > target_share, high, 0.0)
     finite = np.isfinite(added)
     share, loss = _share_and_loss(threshold, resistance, np.where(finite, added, 0.0), total,
-                                  waveform, points)
+                                  waveform)
     share = np.where(finite, share, np.nan)
     loss = np.where(finite, loss, np.nan)
     return Ballast(

@@ -57,8 +57,13 @@ from .check_inputs import (
     no_scatter,
     with_recovery_charge,
 )
-from .mixed_stock import device_part_grid, device_values, position_values
-from .recovery_conditions import RecoveryRescaling, recovery_rescaling, rescale_charges
+from .mixed_stock import device_values, position_values
+from .recovery_conditions import (
+    RecoveryRescaling,
+    TurnOffCurrent,
+    carried_charges,
+    recovery_rescaling,
+)
 from .position_sums import PositionSums
 from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
 
@@ -109,6 +114,9 @@ class SeriesCheck:
     positions: tuple[PositionStatistics, ...]
     histogram: tuple[tuple[float, float, int], ...]
     rare: RareEstimate | None = None
+    # The dynamic check: the current each branch commutates from, to which Q_rr was carried
+    # (None: Q_rr taken at the datasheet's test conditions; the static check has none).
+    turn_off_current: TurnOffCurrent | None = None
 
 
 @dataclass(frozen=True)
@@ -209,14 +217,17 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     run_forward = only is None
     parallel_reason, thermal_reason = forward_reasons(design) if run_forward else \
         ("not requested", "not requested")
+    # The recovery charge carried to the application's turn-off: one value per drawn device for
+    # the dynamic check and the thermal check's recovery loss (a turn-off exactly when the
+    # dynamic check can run: an ac waveform or a di_dt).
+    rescaling, rescaling_note = recovery_rescaling(design) if run_dynamic else (None, "")
     forward = None
     if not (parallel_reason and thermal_reason):
-        forward = forward_setup(design, parallel_reason, thermal_reason)
+        forward = forward_setup(design, parallel_reason, thermal_reason, rescaling)
         parameters = tuple(dict.fromkeys(parameters + forward_parameters(design)))
     forward_sums = ForwardAccumulator()
     static = PositionSums(shape, limits) if run_static else None
     dynamic = PositionSums(shape, limits) if run_dynamic else None
-    rescaling, rescaling_note = recovery_rescaling(design) if run_dynamic else (None, "")
     context = _ChunkContext(design=design, seed=seed, parameters=parameters, run_static=run_static,
                             run_dynamic=run_dynamic, limits=limits, temperature=temperature,
                             reference_voltage=reference_voltage,
@@ -257,7 +268,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
               if static is not None
               else _not_run("static", "not requested")}
     if dynamic is not None:
-        checks["dynamic"] = _finish("dynamic", dynamic, grid, confidence, trials, target)
+        checks["dynamic"] = replace(_finish("dynamic", dynamic, grid, confidence, trials, target),
+                                    turn_off_current=None if rescaling is None
+                                    else rescaling.turn_off)
     else:
         checks["dynamic"] = _not_run("dynamic", dynamic_reason)
     if transient:
@@ -420,9 +433,7 @@ def _dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSum
                    junction_capacitance: np.ndarray, rescaling: RecoveryRescaling | None) -> None:
     capacitance = junction_capacitance if drawn.capacitance is None else \
         drawn.capacitance + junction_capacitance
-    charge = drawn.parameters["q_rr"]
-    if rescaling is not None:
-        charge = rescale_charges(charge, device_part_grid(design, drawn), rescaling)
+    charge = carried_charges(design, drawn, rescaling)
     capacitance = np.broadcast_to(capacitance, charge.shape)
     solution = solve_dynamic_sharing(design.duty.reverse_voltage, charge, capacitance)
     solved = np.ones(solution.voltages.shape[0], dtype=bool)

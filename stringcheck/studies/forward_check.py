@@ -37,6 +37,7 @@ from ..physics.forward import slope_resistance, threshold_voltage
 from ..stats import FailureEstimate, failure_estimate
 from .mixed_stock import device_values, position_values
 from .rare_events import RareEstimate
+from .recovery_conditions import RecoveryRescaling, TurnOffCurrent, carried_charges
 
 # Runaway ambient is searched on the first trials of each sampling block only (a bisection costs
 # some fifteen equilibrium solves); its percentiles describe the margin, the pass/fail rests on the
@@ -134,6 +135,9 @@ class ThermalCheck:
     positions: tuple[DeviceTemperature, ...]
     total_power_mean: float
     rare: RareEstimate | None = None
+    # The current each branch commutates from, to which the recovery loss's Q_rr was carried
+    # (None: Q_rr at the datasheet's test conditions, or no turn-off).
+    turn_off_current: TurnOffCurrent | None = None
 
 
 @dataclass(frozen=True)
@@ -143,6 +147,7 @@ class ForwardSetup:
     run_parallel: bool
     run_thermal: bool
     forward_reference_temperature: np.ndarray
+    resistance_reference_temperature: np.ndarray
     threshold_tempco: np.ndarray
     resistance_tempco: np.ndarray
     leakage_reference_voltage: np.ndarray
@@ -155,6 +160,9 @@ class ForwardSetup:
     position_temperature: np.ndarray
     search_limit: float
     target_share: float
+    # Carries each drawn Q_rr to the application, as for the dynamic check (None: the drawn
+    # value at the datasheet's test conditions).
+    rescaling: RecoveryRescaling | None = None
 
 
 @dataclass
@@ -211,10 +219,13 @@ def forward_reasons(design: Design) -> tuple[str, str]:
     return parallel, thermal
 
 
-def forward_setup(design: Design, parallel_reason: str, thermal_reason: str) -> ForwardSetup:
+def forward_setup(design: Design, parallel_reason: str, thermal_reason: str,
+                  rescaling: RecoveryRescaling | None = None) -> ForwardSetup:
     """The per-position constants, shape (parallel, series); with a mix each position's lowest
     value over the parts that can stand there (the limits shown per position), which the chunks
-    replace by each drawn device's own (``forward_for_devices``)."""
+    replace by each drawn device's own (``forward_for_devices``). ``rescaling``: the dynamic
+    check's (``recovery_conditions.recovery_rescaling``), so that the recovery loss takes the
+    same carried Q_rr as the charge balance."""
     layout = design.string
     parts = [design.parts[name] for name in design.parts_used()]
     return ForwardSetup(
@@ -225,6 +236,7 @@ def forward_setup(design: Design, parallel_reason: str, thermal_reason: str) -> 
         search_limit=float(max((p.t_j_max for p in parts if p.t_j_max is not None),
                                default=design.duty.ambient + 100.0)),
         target_share=design.sizing.target_share or DEFAULT_TARGET_SHARE,
+        rescaling=rescaling,
     )
 
 
@@ -242,7 +254,10 @@ def _part_constants(values) -> dict[str, np.ndarray]:
         return np.nan if value is None else value
 
     return dict(
+        # Each row of the forward line has its own test temperature (V_T0 and r_T may be given
+        # at different ones).
         forward_reference_temperature=values(lambda p: _reference(p.v_t0.at_temperature)),
+        resistance_reference_temperature=values(lambda p: _reference(p.r_t.at_temperature)),
         threshold_tempco=values(lambda p: p.tempco_v_t0),
         resistance_tempco=values(lambda p: p.tempco_r_t),
         leakage_reference_voltage=values(lambda p: p.i_r.at_voltage),
@@ -277,12 +292,15 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
     threshold = parameters["v_t0"]
     resistance = parameters["r_t"]
     shape = threshold.shape
-    charge = parameters["q_rr"] if "q_rr" in parameters else np.zeros(shape)
+    # Q_rr at the application's turn-off, the value the dynamic check takes for the same device.
+    charge = carried_charges(design, drawn, setup.rescaling) if "q_rr" in parameters else \
+        np.zeros(shape)
     outcome_tj = None
     if setup.run_thermal:
         devices = ParallelDevices(
             threshold_voltage=threshold, slope_resistance=resistance,
             forward_reference_temperature=setup.forward_reference_temperature,
+            resistance_reference_temperature=setup.resistance_reference_temperature,
             threshold_tempco=setup.threshold_tempco, resistance_tempco=setup.resistance_tempco,
             leakage_current=parameters["i_r"],
             leakage_reference_voltage=setup.leakage_reference_voltage,
@@ -323,19 +341,12 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
             found = runaway_ambient(_rows(devices, rows), _duty(design),
                                     upper_limit=setup.search_limit)
             outcome_tj["runaway_ambient"] = found.ambient
-        branch_threshold = threshold_voltage(
-            threshold, setup.threshold_tempco, temperature,
-            setup.forward_reference_temperature).sum(axis=-1)
-        branch_resistance = slope_resistance(
-            resistance, setup.resistance_tempco, temperature,
-            setup.forward_reference_temperature).sum(axis=-1) + design.thermal.path_resistance
+        branch_threshold, branch_resistance = _branch_lines(design, setup, threshold,
+                                                            resistance, temperature)
     else:
         temperature = np.broadcast_to(setup.position_temperature, shape)
-        branch_threshold = threshold_voltage(threshold, setup.threshold_tempco, temperature,
-                                             setup.forward_reference_temperature).sum(axis=-1)
-        branch_resistance = slope_resistance(resistance, setup.resistance_tempco, temperature,
-                                             setup.forward_reference_temperature).sum(axis=-1) \
-            + design.thermal.path_resistance
+        branch_threshold, branch_resistance = _branch_lines(design, setup, threshold,
+                                                            resistance, temperature)
         average = branch_currents(branch_threshold, branch_resistance, duty.forward_current,
                                   duty.waveform).average
     mean = average.mean(axis=-1)
@@ -361,6 +372,17 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
         chunk.ballast = ballast
         chunk.ballast_loss_per_ohm = loss_per_ohm
     return chunk
+
+
+def _branch_lines(design: Design, setup: ForwardSetup, threshold: np.ndarray,
+                  resistance: np.ndarray, temperature: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Threshold [V] and resistance [ohm] of each branch at the junction temperatures, each
+    device's V_T0 and r_T referred from its own row's temperature."""
+    branch_threshold = threshold_voltage(threshold, setup.threshold_tempco, temperature,
+                                         setup.forward_reference_temperature).sum(axis=-1)
+    branch_resistance = slope_resistance(resistance, setup.resistance_tempco, temperature,
+                                         setup.resistance_reference_temperature).sum(axis=-1)
+    return branch_threshold, branch_resistance + design.thermal.path_resistance
 
 
 def forward_ratios(design: Design, setup: ForwardSetup, drawn: DrawnStrings,
@@ -524,6 +546,8 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
         for label, q in (("min", 0.0), ("p1", 1.0), ("p50", 50.0), ("p99", 99.0)):
             percentiles[label] = float(np.percentile(ambient, q, method="lower"))
     finite_worst = worst[np.isfinite(worst)]
+    power = accumulator.joined("power_total")
+    settled = ~runaway & np.isfinite(power)
     return ThermalCheck(
         name="thermal", ran=True, reason="", passed=estimate.ci_high <= target,
         worst_tj=float(np.max(worst)), p99_tj=float(np.percentile(finite_worst, 99))
@@ -536,5 +560,9 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
         runaway_ambient=percentiles,
         runaway_ambient_trials=0 if ambient is None else int(ambient.size),
         runaway_search_limit=setup.search_limit, positions=positions,
-        total_power_mean=float(np.mean(accumulator.joined("power_total"))))
+        # Over the groups with an equilibrium, as the temperatures: a group that runs away has
+        # no steady loss (its last iterate's is not one), and would make the mean infinite.
+        total_power_mean=float(np.mean(power[settled])) if np.any(settled) else np.nan,
+        turn_off_current=None if setup.rescaling is None or design.duty.waveform == "dc"
+        else setup.rescaling.turn_off)
 

@@ -3,9 +3,11 @@
 A datasheet gives Q_rr at its own test forward current and di/dt. Each part's charge-control
 parameters (tau, T_M; ``physics.charge_control``) are fitted to its typical Q_rr and I_RM (or t_rr)
 there; a device's drawn Q_rr then maps onto its own tau at the fixed T_M, and the model gives its
-Q_rr at the application's I_F and di/dt. The map is monotone, so it is evaluated exactly on a grid
-of drawn values per part and interpolated in log-log coordinates (relative error below 1e-6;
-tests/studies/test_recovery_conditions.py).
+Q_rr at the application's turn-off current (:func:`turn_off_current`) and di/dt. The map is
+monotone, so it is evaluated exactly on a grid of drawn values per part and interpolated in log-log
+coordinates (relative error below 1e-6; tests/studies/test_recovery_conditions.py).
+:func:`carried_charges` gives every check that needs the recovery charge of a drawn device (the
+dynamic check's charge balance, the thermal check's recovery loss) the same value.
 """
 
 from __future__ import annotations
@@ -16,12 +18,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..design import Design
-from ..sampling import spread_quantile
+from ..sampling import DrawnStrings, spread_quantile
 from ..physics.charge_control_fit import (
     fit_charge_control,
     peak_current_from_recovery_time,
     rescale_recovery_charge,
 )
+from ..physics.forward import peak_factor
+from .mixed_stock import device_part_grid
 
 _GRID_POINTS = 513
 _LATENT_SPAN = 9.0
@@ -76,6 +80,50 @@ def missing_recovery_data(design: Design) -> str:
     return ""
 
 
+# Where the turn-off current comes from (TurnOffCurrent.basis).
+TURN_OFF_DC = "dc"
+TURN_OFF_SQUARE_PEAK = "square_peak"
+TURN_OFF_HALF_SINE_AVERAGE = "half_sine_average"
+TURN_OFF_TEST_CURRENT = "test_current"
+
+
+@dataclass(frozen=True)
+class TurnOffCurrent:
+    """The forward current a branch commutates from at turn-off.
+
+    Attributes
+    ----------
+    current
+        I_F per branch at the start of the turn-off [A].
+    basis
+        Where it comes from: ``"dc"`` (the constant I_F(AV) / parallel), ``"square_peak"`` (a
+        square wave turns off from its peak, I_pk = 2 I_F(AV) / parallel), ``"half_sine_average"``
+        (I_F(AV) / parallel: the decay of a half-sine towards its zero crossing is not modelled
+        yet, issue 12) or ``"test_current"`` (no duty.forward_current: the parts' highest test
+        I_F).
+    """
+
+    current: float
+    basis: str
+
+
+def turn_off_current(design: Design, fits: dict[str, PartFit]) -> TurnOffCurrent:
+    """The current each branch commutates from, the same for every check that carries Q_rr
+    (dynamic, thermal) or simulates the turn-off (transient); ``fits`` from :func:`part_fits`."""
+    duty = design.duty
+    if duty.forward_current is None:
+        return TurnOffCurrent(current=max(fit.test_current for fit in fits.values()),
+                              basis=TURN_OFF_TEST_CURRENT)
+    per_branch = duty.forward_current / design.string.parallel
+    if duty.waveform == "square":
+        # I_pk = 2 I_AV flows until the commutation (physics.forward.peak_factor).
+        return TurnOffCurrent(current=per_branch * peak_factor("square"),
+                              basis=TURN_OFF_SQUARE_PEAK)
+    if duty.waveform == "half-sine":
+        return TurnOffCurrent(current=per_branch, basis=TURN_OFF_HALF_SINE_AVERAGE)
+    return TurnOffCurrent(current=per_branch, basis=TURN_OFF_DC)
+
+
 @dataclass(frozen=True)
 class RecoveryRescaling:
     """How to carry each part's drawn Q_rr to the application (I_F per branch [A], di/dt [A/s]).
@@ -90,31 +138,39 @@ class RecoveryRescaling:
     di_dt: float
     nodes: dict[str, np.ndarray]
     mapped: dict[str, np.ndarray]
+    turn_off: TurnOffCurrent | None = None
 
 
 def recovery_rescaling(design: Design) -> tuple[RecoveryRescaling | None, str]:
-    """The rescaling for the dynamic check, or None, with the sentence the report lists."""
+    """The rescaling for the dynamic check and the thermal check's recovery loss, or None, with
+    the sentence the report lists."""
     duty = design.duty
     di_dt = duty.di_dt if duty.di_dt is not None else (
         duty.reverse_voltage / duty.stray_inductance if duty.stray_inductance else None)
     missing = missing_recovery_data(design) if di_dt is not None else "no di/dt"
     if missing:
-        return None, ("dynamic: Q_rr taken at the datasheet's test conditions, not rescaled to the "
-                      f"application ({missing})")
+        return None, ("recovery charge: Q_rr taken at the datasheet's test conditions, not "
+                      f"rescaled to the application ({missing})")
     try:
         fits = part_fits(design)
     except InconsistentRecoveryData as error:
-        return None, (f"dynamic: Q_rr taken at the datasheet's test conditions: parts.{error}'s "
-                      "typical q_rr, i_rm or t_rr and at_di_dt fit no recovery waveform")
-    if duty.forward_current is not None:
-        current = duty.forward_current / design.string.parallel
-        source = f"I_F = {current:.3g} A per branch"
-    else:
-        current = max(fit.test_current for fit in fits.values())
-        source = f"I_F = the test I_F ({current:.3g} A; no duty.forward_current)"
-    note = (f"dynamic: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
-            f"({source}, di/dt = {di_dt:.3g} A/s) through the charge-control model fitted to "
-            "each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma)")
+        return None, (f"recovery charge: Q_rr taken at the datasheet's test conditions: "
+                      f"parts.{error}'s typical q_rr, i_rm or t_rr and at_di_dt fit no recovery "
+                      "waveform")
+    turn_off = turn_off_current(design, fits)
+    current = turn_off.current
+    source = {
+        TURN_OFF_TEST_CURRENT: f"I_F = the test I_F ({current:.3g} A; no duty.forward_current)",
+        TURN_OFF_SQUARE_PEAK: f"I_F = {current:.3g} A per branch, the square wave's peak",
+        TURN_OFF_HALF_SINE_AVERAGE: f"I_F = {current:.3g} A per branch, the half-sine's average "
+                                    "(its decay to the zero crossing is not modelled)",
+        TURN_OFF_DC: f"I_F = {current:.3g} A per branch",
+    }[turn_off.basis]
+    note = (f"recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the "
+            f"application's ({source}, di/dt = {di_dt:.3g} A/s) through the charge-control model "
+            "fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); the charge "
+            "balance of the dynamic check and the recovery loss of the thermal check use the same "
+            "carried value")
     nodes, mapped = {}, {}
     for name, fit in fits.items():
         spread = design.parts[name].q_rr
@@ -126,7 +182,19 @@ def recovery_rescaling(design: Design) -> tuple[RecoveryRescaling | None, str]:
         mapped[name] = rescale_recovery_charge(grid, fit.transit_time, fit.test_current,
                                                fit.test_rate, current, di_dt)
     return RecoveryRescaling(fits=fits, forward_current=current, di_dt=di_dt, nodes=nodes,
-                             mapped=mapped), note
+                             mapped=mapped, turn_off=turn_off), note
+
+
+def carried_charges(design: Design, drawn: DrawnStrings,
+                    rescaling: RecoveryRescaling | None) -> np.ndarray:
+    """Q_rr [C] of each drawn device at the application's turn-off, (trials, parallel, series):
+    the drawn value carried by :func:`rescale_charges`, or the drawn value itself where the
+    rescaling is None (the report says Q_rr stays at the test conditions). The one value the
+    dynamic check's charge balance and the thermal check's recovery loss both take."""
+    charge = drawn.parameters["q_rr"]
+    if rescaling is None:
+        return charge
+    return rescale_charges(charge, device_part_grid(design, drawn), rescaling)
 
 
 def rescale_charges(charge: np.ndarray, grid: np.ndarray,

@@ -36,10 +36,13 @@ from .drivers import TOP_DRIVERS, Driver, chunk_features, label, rank_inputs, ti
 from .drivers import tightened
 from .rare_events import RareEstimate
 from .recovery_conditions import (
+    TURN_OFF_TEST_CURRENT,
     InconsistentRecoveryData,
     PartFit,
+    TurnOffCurrent,
     missing_recovery_data,
     part_fits,
+    turn_off_current,
 )
 
 # Stream of the random sample, apart from every stream of the draws (sampling.py uses < 3000 and
@@ -92,6 +95,11 @@ class TransientCheck:
     notes: tuple[str, ...]
     rare: RareEstimate | None = None
     drivers: tuple[Driver, ...] = ()
+    # The current each branch commutates from (``forward_current`` is its value [A]).
+    turn_off_current: TurnOffCurrent | None = None
+    # Strings simulated in all: the random sample and the worst ones (a string in both counts
+    # once).
+    simulated: int = 0
 
 
 def not_run(reason: str) -> TransientCheck:
@@ -150,6 +158,7 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
     limits = layout.derating * position_values(design, lambda p: p.v_rrm)
     inductance, forward, notes = _loop(design, fits)
     notes = list(notes)
+    turn_off = turn_off_current(design, fits)
 
     peaks, overshoots, currents, energies, solved, device_limits = _simulate(
         design, fits, selected, trials, seed, inductance, forward)
@@ -195,7 +204,7 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
         peak_recovery_current=float(np.nanmax(currents)),
         damping_energy=float(np.nanmax(energies)), inductance=float(inductance / layout.parallel),
         forward_current=float(forward), positions=tuple(positions), notes=tuple(notes),
-        drivers=ranked)
+        drivers=ranked, turn_off_current=turn_off, simulated=int(selected.size))
 
 
 def _rank(design: Design, sample_set: np.ndarray, ratios: np.ndarray, trials: int, seed: int,
@@ -302,19 +311,19 @@ def transient_evaluator(design: Design) -> Callable[[DrawnStrings], np.ndarray]:
 
 
 def _loop(design: Design, fits) -> tuple[float, float, tuple[str, ...]]:
-    """Inductance per branch loop [H], I_F per branch [A], and the notes on how they were chosen."""
+    """Inductance per branch loop [H], I_F per branch at the turn-off [A]
+    (:func:`recovery_conditions.turn_off_current`, as the dynamic check's), and the notes on how
+    they were chosen."""
     layout = design.string
     duty = design.duty
     notes = []
     inductance = duty.stray_inductance if duty.stray_inductance is not None else \
         duty.reverse_voltage / duty.di_dt
-    forward = duty.forward_current
-    if forward is None:
-        forward = max(fit.test_current for fit in fits.values())
+    turn_off = turn_off_current(design, fits)
+    forward = turn_off.current
+    if turn_off.basis == TURN_OFF_TEST_CURRENT:
         notes.append(f"no duty.forward_current: each branch starts from the parts' test I_F "
                      f"({forward:g} A)")
-    else:
-        forward = forward / layout.parallel
     if layout.parallel > 1:
         notes.append(f"each of the {layout.parallel} branches is simulated as its own loop with "
                      f"{layout.parallel} x L and 1/{layout.parallel} of the current")

@@ -25,6 +25,7 @@ from stringcheck.solvers.electrothermal import (
 
 DEVICE = dict(
     threshold_voltage=0.80, slope_resistance=3e-3, forward_reference_temperature=25.0,
+    resistance_reference_temperature=25.0,
     threshold_tempco=-2e-3, resistance_tempco=0.0, leakage_current=0.0,
     leakage_reference_voltage=1000.0, leakage_reference_temperature=25.0, leakage_doubling=10.0,
     leakage_voltage_exponent=0.5, recovery_charge=0.0, junction_to_sink=0.6,
@@ -113,13 +114,14 @@ def test_runaway_ambient_infinite_when_stable_to_the_limit_and_minus_infinite_wh
 
 # --- Independent solution by scipy fsolve -------------------------------------------------------
 
-def _reference_map(temperature, case):
-    """F(T) written out again with brentq for each instant and scipy quad_vec over the phase."""
+def _reference_map(temperature, case, resistance_reference=25.0):
+    """F(T) written out again with brentq for each instant and scipy quad_vec over the phase
+    (V_T0 given at 25 degC, r_T at ``resistance_reference``)."""
     (threshold, resistance, tempco_v, tempco_r, rth, leak, bv, q_rr, sink, ambient, current,
      waveform, heatsink, frequency, path) = case
     temperature = temperature.reshape(threshold.shape)
     device_threshold = threshold + tempco_v * (temperature - 25.0)
-    device_resistance = resistance * (1.0 + tempco_r * (temperature - 25.0))
+    device_resistance = resistance * (1.0 + tempco_r * (temperature - resistance_reference))
     branch_threshold = device_threshold.sum(axis=-1)
     branch_resistance = device_resistance.sum(axis=-1) + path
 
@@ -176,29 +178,30 @@ def test_equilibrium_matches_fsolve_on_small_random_groups(seed):
     # Recovery at Q_rr = 4 uC per device with the default (upper-bound) tail fraction.
     devices = _devices(threshold_voltage=threshold, slope_resistance=resistance,
                        threshold_tempco=tempco_v, resistance_tempco=tempco_r,
-                       junction_to_sink=rth, leakage_current=leak, recovery_charge=q_rr)
+                       junction_to_sink=rth, leakage_current=leak, recovery_charge=q_rr,
+                       resistance_reference_temperature=125.0)
     duty = _duty(forward_current=current, waveform=waveform, heatsink=heatsink,
                  sink_to_ambient=sink, blocking_voltage=bv, frequency=2e3,
                  path_resistance=case[-1], ambient=ambient)
-    equilibrium = solve_equilibrium(devices, duty, points=2000)
+    equilibrium = solve_equilibrium(devices, duty)
     start = np.full(branches * length, ambient)
-    reference, info, _, message = fsolve(lambda t: t - _reference_map(t, case), start,
+    # r_T given at 125 degC, V_T0 at 25 degC: each line referred from its own row's temperature.
+    reference, info, _, message = fsolve(lambda t: t - _reference_map(t, case, 125.0), start,
                                          xtol=1e-12, full_output=True)
     assert np.abs(info["fvec"]).max() < 1e-9, message
     assert equilibrium.classification[0] == STABLE
-    # Midpoint sampling with 2000 points: I_AV to ~2e-7 relative.
-    tolerance = 1e-8 if waveform != "half-sine" else 1e-4
+    # The half-sine is integrated exactly per branch (solvers.parallel.phase_rule), so every
+    # waveform meets quad_vec + fsolve to the solvers' tolerances.
     np.testing.assert_allclose(equilibrium.junction_temperature.ravel(), reference, rtol=0,
-                               atol=tolerance)
+                               atol=1e-8)
     # Stability: spectral radius of dF/dT from central differences of the reference map
     # (numpy eigvals), which checks the current-redistribution terms of the solver's Jacobian.
     step = 1e-4
-    columns = [(_reference_map(reference + step * unit, case)
-                - _reference_map(reference - step * unit, case)) / (2 * step)
+    columns = [(_reference_map(reference + step * unit, case, 125.0)
+                - _reference_map(reference - step * unit, case, 125.0)) / (2 * step)
                for unit in np.eye(reference.size)]
     radius = np.abs(np.linalg.eigvals(np.array(columns).T)).max()
-    assert math.isclose(equilibrium.spectral_radius[0], radius,
-                        rel_tol=1e-6 if waveform != "half-sine" else 1e-3)
+    assert math.isclose(equilibrium.spectral_radius[0], radius, rel_tol=1e-6)
 
 
 def test_runaway_classification_agrees_with_a_heating_transient():
@@ -246,7 +249,7 @@ def test_result_shapes_and_loss_bookkeeping():
                        leakage_current=1e-5, recovery_charge=3e-6)
     duty = _duty(forward_current=np.array([30.0, 90.0]), waveform="half-sine",
                  blocking_voltage=700.0)
-    equilibrium = solve_equilibrium(devices, duty, points=64)
+    equilibrium = solve_equilibrium(devices, duty)
     assert equilibrium.junction_temperature.shape == (2, 3, 1)
     for name in ("branch_average", "branch_rms", "branch_peak"):
         assert getattr(equilibrium, name).shape == (2, 3)
@@ -286,13 +289,13 @@ def test_positive_resistance_tempco_shares_better_as_current_rises(resistances, 
     common = dict(slope_resistance=np.array(resistances)[:, None], threshold_tempco=0.0,
                   junction_to_sink=rth)
     duty = _duty(forward_current=currents, waveform=waveform, heatsink=heatsink)
-    heated = solve_equilibrium(_devices(resistance_tempco=tempco, **common), duty, points=16)
+    heated = solve_equilibrium(_devices(resistance_tempco=tempco, **common), duty)
     assume(heated.stable.all())
     shares = _share(heated)
     assert shares[1] <= shares[0] * (1 + 1e-9)
     if np.ptp(resistances) > 1e-3 * max(resistances):
         assert shares[1] < shares[0]  # the heating must show, not merely leave the share alone
-    control = _share(solve_equilibrium(_devices(resistance_tempco=0.0, **common), duty, points=16))
+    control = _share(solve_equilibrium(_devices(resistance_tempco=0.0, **common), duty))
     assert math.isclose(control[0], control[1], rel_tol=1e-9)
 
 
@@ -313,13 +316,13 @@ def test_negative_threshold_tempco_shares_worse_as_junctions_run_hotter(threshol
     common = dict(threshold_voltage=np.array(thresholds)[:, None], slope_resistance=resistance,
                   junction_to_sink=np.array([rth, factor * rth])[:, None, None])
     duty = _duty(forward_current=current * count, waveform=waveform, heatsink=heatsink)
-    heated = solve_equilibrium(_devices(threshold_tempco=-2e-3, **common), duty, points=16)
+    heated = solve_equilibrium(_devices(threshold_tempco=-2e-3, **common), duty)
     assume(heated.stable.all())
     shares = _share(heated)
     assert shares[1] >= shares[0] * (1 - 1e-9)
     if np.ptp(thresholds) > 1e-3 and (heated.branch_average > 0).all():
         assert shares[1] > shares[0]  # the heating must show, not merely leave the share alone
-    control = _share(solve_equilibrium(_devices(threshold_tempco=0.0, **common), duty, points=16))
+    control = _share(solve_equilibrium(_devices(threshold_tempco=0.0, **common), duty))
     assert math.isclose(control[0], control[1], rel_tol=1e-9)
 
 

@@ -1,0 +1,75 @@
+"""The terminal report's one-line summary (--quiet) and the turn-off current it states."""
+
+from __future__ import annotations
+
+import io
+
+import pytest
+from rich.console import Console
+
+from stringcheck.design import parse_design_text
+from stringcheck.report.terminal import render_check, render_check_summary
+from stringcheck.studies.check import run_check
+
+# Two stages turning off a square current of 10 A average (20 A peak); invented values.
+_DESIGN = """
+[duty]
+reverse_voltage = "1 kV"
+forward_current = "10 A"
+waveform = "square"
+frequency = "20 kHz"
+di_dt = "100 A/us"
+ambient = "40 degC"
+[string]
+series = 2
+derating = 0.9
+part = "A"
+[parts.A]
+v_rrm = "1.2 kV"
+i_r = { typ = "1 nA", max = "10 nA", at_temperature = "25 degC", at_voltage = "1 kV" }
+q_rr = { typ = "1 uC", max = "1.5 uC", at_forward_current = "5 A", at_di_dt = "50 A/us" }
+t_rr = { typ = "0.3 us", at_di_dt = "50 A/us" }
+c_j = "0 pF"
+[grading]
+resistor = "10 MOhm"
+capacitor = "10 nF"
+damping_resistor = "10 Ohm"
+[monte_carlo]
+trials = 1000
+seed = 3
+"""
+
+
+def _text(render, result) -> str:
+    buffer = io.StringIO()
+    render(result, Console(file=buffer, width=2000, color_system=None))
+    return buffer.getvalue()
+
+
+@pytest.fixture(scope="module")
+def result():
+    return run_check(parse_design_text(_DESIGN), transient=True, transient_sample=20,
+                     transient_worst=3, rare=False)
+
+
+def test_quiet_line_counts_the_transient_strings_it_simulated(result):
+    # Issue 14 item 9: the transient check simulates a random sample and the worst
+    # charge-balance strings, not the run's 1,000 trials; the line must say how many.
+    check = result.checks["transient"]
+    assert check.ran and check.estimate.trials == 20
+    assert 20 <= check.simulated <= 23
+    line = _text(render_check_summary, result)
+    transient = line[line.index("transient"):]
+    assert f"({check.estimate.failures}/20 sampled failed" in transient, line
+    assert f"{check.worst_failures}/3 worst charge-balance strings failed" in transient
+    assert f"{check.simulated} of the 1,000 strings simulated" in transient
+    assert "/1,000" not in transient, line
+    # The run's own checks still count every trial.
+    assert "static pass (0/1,000 failed" in line or "static FAIL" in line, line
+
+
+def test_report_states_the_turn_off_current_of_each_check(result):
+    # Issue 14 item 4: a square wave turns off from I_pk = 2 I_F(AV) = 20 A.
+    text = _text(render_check, result)
+    phrase = "I_F = 20 A per branch at turn-off (a square wave commutates from its peak"
+    assert text.count(phrase) == 2, text  # the dynamic and the transient check
