@@ -436,17 +436,11 @@ def _finish(name: str, accumulator: PositionSums, grid: np.ndarray, confidence: 
     ratios = np.concatenate(accumulator.worst_ratios)
     failures = int(np.count_nonzero(~(ratios <= 1.0)))
     estimate = failure_estimate(failures, trials, confidence=confidence)
-    count = max(accumulator.count, 1)
-    total = np.zeros(grid.shape)
-    total_squares = np.zeros(grid.shape)
-    for block_total, block_squares in zip(accumulator.block_totals, accumulator.block_squares):
-        total += block_total
-        total_squares += block_squares
-    mean_shift = total / count
-    variance = np.maximum(total_squares / count - mean_shift ** 2, 0.0)
-    if accumulator.count > 1:
-        variance *= accumulator.count / (accumulator.count - 1)
-    mean = mean_shift + accumulator.limits
+    moments = accumulator.moments()
+    # No solved trial: the mean of nothing is 0 shifted by nothing, as before (the limit).
+    mean = moments.mean if moments.count else accumulator.limits.copy()
+    # One solved trial has no spread to speak of: 0, as before.
+    variance = moments.variance(ddof=1) if moments.count > 1 else np.zeros(grid.shape)
     positions = []
     for branch in range(grid.shape[0]):
         for index in range(grid.shape[1]):
