@@ -97,6 +97,7 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
             "capacitor": grading.capacitor,
             "damping_resistor": grading.damping_resistor,
             "worst_stage_voltage": json_number(grading.worst_resistor_voltage),
+            "worst_stage_voltage_check": grading.worst_voltage_check or None,
             "resistor_power_continuous": json_number(grading.resistor_power_continuous),
             "resistor_power_duty": json_number(grading.resistor_power_duty),
             "resistor_rated_power": grading.resistor_rated_power,
@@ -343,6 +344,7 @@ def sizing_to_dict(result: "SizingResult") -> dict[str, Any]:
         "ratings": {
             "derating": ratings.derating,
             "worst_stage_voltage": json_number(ratings.worst_stage_voltage),
+            "worst_stage_voltage_check": ratings.worst_voltage_check or None,
             "resistor_voltage_required": json_number(ratings.resistor_voltage_required),
             "resistor_power_continuous": json_number(ratings.resistor_power_continuous),
             "resistor_power_duty": json_number(ratings.resistor_power_duty),

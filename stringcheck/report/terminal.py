@@ -263,7 +263,7 @@ def _render_network(result: CheckResult, console: Console) -> None:
                      + (f" (rated {format_quantity(grading.resistor_rated_power, 'W')})"
                         if grading.resistor_rated_power else "")))
         rows.append(("total grading loss at nominal share", format_quantity(grading.total_grading_loss, "W")))
-    rows.append(("worst stage voltage (static or dynamic)",
+    rows.append((f"worst stage voltage ({_worst_from(grading.worst_voltage_check)})",
                  format_quantity(grading.worst_resistor_voltage, "V")
                  + (f" (resistor rated {format_quantity(grading.resistor_rated_voltage, 'V')})"
                     if grading.resistor_rated_voltage else "")))
@@ -376,7 +376,8 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
                         "what the spreads give)")
     console.print()
     rows = [
-        ("worst stage voltage (static or dynamic)", format_quantity(ratings.worst_stage_voltage, "V")),
+        (f"worst stage voltage ({_worst_from(ratings.worst_voltage_check)})",
+         format_quantity(ratings.worst_stage_voltage, "V")),
         (f"resistor working voltage required (/ derating {ratings.derating:g})",
          format_quantity(ratings.resistor_voltage_required, "V")),
         ("resistor power at worst static voltage, continuous",
@@ -413,6 +414,12 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
     console.print()
     console.print(Text("Check of the sized design", style="bold underline"))
     render_check(result.check, console)
+
+
+def _worst_from(check: str) -> str:
+    """Which check found the worst stage voltage, for a row label."""
+    return f"{check} check, the worst of every voltage check that ran" if check else \
+        "no voltage check ran"
 
 
 def _rejected(candidate, unit: str, direction: str) -> str:

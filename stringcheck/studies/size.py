@@ -88,6 +88,7 @@ class Ratings:
     discharge_time: float
     worst_stage_voltage: float
     derating: float
+    worst_voltage_check: str = ""
 
 
 @dataclass(frozen=True)
@@ -581,5 +582,6 @@ def _ratings(design: Design, check: CheckResult) -> Ratings:
         discharge_time=time,
         worst_stage_voltage=worst,
         derating=derating,
+        worst_voltage_check=check.grading.worst_voltage_check,
     )
 
