@@ -142,7 +142,8 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
     if time > SAFE_DISCHARGE_TIME:
         advisories.append(f"the stack takes {_q(time, 's')} to fall below {SAFE_VOLTAGE:g} V through "
                           f"its grading resistors, longer than the {SAFE_DISCHARGE_TIME:g} s of "
-                          "IEC 60204-1 clause 6.2.4: provide a discharge device or earthing stick")
+                          "IEC 60204-1:2016 clause 6.2.4: provide a discharge device or earthing "
+                          "stick")
     return GradingSummary(
         resistor=grading.resistor, capacitor=grading.capacitor,
         damping_resistor=grading.damping_resistor, worst_resistor_voltage=worst_any,
