@@ -116,11 +116,17 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
         "lots": lots_to_list(design),
         "assumptions": list(result.assumptions),
         "no_scatter": list(result.no_scatter),
+        "warnings": warnings_to_list(result.warnings),
         "cautions": safety_cautions(string_voltage=design.duty.reverse_voltage,
                                     stage_energy=grading.stage_energy,
                                     total_energy=grading.total_energy,
                                     discharge_time=grading.discharge_time),
     }
+
+
+def warnings_to_list(warnings) -> list[dict[str, str]]:
+    """The plausibility warnings as JSON objects {key, message}."""
+    return [{"key": warning.key, "message": warning.message} for warning in warnings]
 
 
 def positions_csv(result: CheckResult) -> str:

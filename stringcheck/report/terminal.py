@@ -106,6 +106,7 @@ def render_check(result: CheckResult, console: Console) -> None:
         console.print(Text(" VERDICT: FAIL ", style="bold white on red"), _fail_reason(result))
     if result.impossible:
         console.print(Text(f"Impossible design: {result.impossible}.", style="bold red"))
+    render_warnings(result.warnings, console)
     console.print()
 
     summary = Table(title="Checks", title_justify="left", show_lines=False)
@@ -172,6 +173,13 @@ def render_check(result: CheckResult, console: Console) -> None:
                                discharge_time=grading.discharge_time)
     console.print(Panel("\n".join(f"! {line}" for line in cautions), title="High-voltage cautions",
                         title_align="left", border_style="red"))
+
+
+def render_warnings(warnings, console: Console, *, label: str = "") -> None:
+    """The plausibility warnings, one line each (nothing when there are none)."""
+    for warning in warnings:
+        console.print(Text(f"warning{label}: {warning.key}: {warning.message}", style="bold yellow"),
+                      highlight=False)
 
 
 WANTED_RELATIVE_ERROR = 0.1  # relative standard error of P(fail) the report asks for
@@ -323,6 +331,7 @@ def render_check_summary(result: CheckResult, console: Console) -> None:
     if result.impossible is not None:
         parts.append("impossible design")
     console.print(f"{result.verdict}: " + ", ".join(parts), highlight=False)
+    render_warnings(result.warnings, console)
 
 
 def render_sizing(result: "SizingResult", console: Console) -> None:

@@ -18,6 +18,7 @@ import numpy as np
 from ..design import Design, Part
 from ..errors import DesignError
 from ..physics.leakage import leakage_current
+from ..plausibility import PlausibilityWarning, plausibility_warnings
 from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
 from ..solvers.series_dynamic import solve_dynamic_sharing
 from ..solvers.series_static import solve_static_sharing
@@ -127,6 +128,8 @@ class CheckResult:
     assumptions: tuple[str, ...]
     no_scatter: tuple[str, ...]
     drivers: tuple[Driver, ...] = ()
+    # Valid values that are probably slips (``plausibility``): shown by the report, never fatal.
+    warnings: tuple[PlausibilityWarning, ...] = ()
 
 
 def run_check(design: Design, *, trials: int | None = None, seed: int | None = None,
@@ -307,7 +310,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                        checks=checks, grading=grading,
                        verdict=verdict, impossible=impossible,
                        assumptions=design.assumptions + model_assumptions(design, rescaling_note),
-                       no_scatter=no_scatter(design, parameters), drivers=ranking)
+                       no_scatter=no_scatter(design, parameters), drivers=ranking,
+                       warnings=plausibility_warnings(design,
+                                                      grading_loss=grading.total_grading_loss))
 
 
 @dataclass(frozen=True)
