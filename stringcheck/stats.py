@@ -9,8 +9,8 @@ no failure at all, the upper end of that interval is what the run can vouch for,
 Per-position statistics (mean, standard deviation, extremes, exceedances of a limit) are accumulated
 by the check itself (studies/check.py), block by block, so that memory stays flat in the number of
 trials and the result is the same bit for bit however the trials were split into chunks or worker
-processes. Mean and variance of a block come from :func:`block_moments` (two passes over the block,
-shifted by its first row) and the blocks are combined by :func:`merge_moments` (pairwise), so that a
+processes. Mean and variance of a block come from :func:`block_moments` (sums of the block shifted by
+its first row) and the blocks are combined by :func:`merge_moments` (pairwise), so that a
 position without scatter has a standard deviation of exactly 0 and a tiny spread about a large mean
 keeps its digits.
 """
@@ -411,12 +411,14 @@ def block_moments(values: ArrayLike) -> Moments:
 
     Notes
     -----
-    The corrected two-pass algorithm on data shifted by the first row: d = x - x_0,
-    m = mean(d), S = sum (d - m)^2 (T. F. Chan, G. H. Golub and R. J. LeVeque, "Algorithms for
-    computing the sample variance: analysis and recommendations", The American Statistician 37(3),
-    1983). Where every row is equal, d = 0 and S = 0 exactly; the shift keeps a tiny spread about
-    a large mean from cancelling. A sum of squares about a fixed reference (x^2 summed less n mean^2)
-    loses every digit of such a spread.
+    The shifted-data algorithm, shifted by the block's first row: d = x - x_0,
+    m = sum(d) / n, S = sum(d^2) - n m^2 (T. F. Chan, G. H. Golub and R. J. LeVeque, "Algorithms
+    for computing the sample variance: analysis and recommendations", The American Statistician
+    37(3), 1983, section 3: a shift by a data value makes the one-pass sums as accurate as two
+    passes unless x_0 lies many standard deviations from the mean; the relative error of S is about
+    eps (1 + z_0^2) for x_0 at z_0 standard deviations). Where every row is equal, d = 0 and S = 0
+    exactly. A sum of squares about a fixed reference far from the mean (0, or a limit) loses every
+    digit of a tiny spread about a large mean. One pass over the block, as fast as the plain sums.
     """
     data = np.asarray(values, dtype=float)
     rows = data.shape[0]
@@ -425,10 +427,12 @@ def block_moments(values: ArrayLike) -> Moments:
         return Moments(count=0, reference=zeros, offset=zeros.copy(), squares=zeros.copy())
     shift = data[0].copy()
     deviation = data - shift
-    offset = np.sum(deviation, axis=0) / rows
-    deviation -= offset
-    squares = np.einsum("i...,i...->...", deviation, deviation)
-    return Moments(count=rows, reference=shift, offset=offset, squares=squares)
+    total = np.einsum("i...->...", deviation)
+    squares = np.einsum("i...->...", np.square(deviation, out=deviation))
+    offset = total / rows
+    # S = sum d^2 - (sum d)^2 / n >= 0; rounding may leave a few ulps below zero.
+    return Moments(count=rows, reference=shift, offset=offset,
+                   squares=np.maximum(squares - total * offset, 0.0))
 
 
 def merge_moments(parts: "list[Moments] | tuple[Moments, ...]") -> Moments:
