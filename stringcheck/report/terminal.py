@@ -426,9 +426,8 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
 
 
 def _worst_from(check: str) -> str:
-    """Which check found the worst stage voltage, for a row label."""
-    return f"{check} check, the worst of every voltage check that ran" if check else \
-        "no voltage check ran"
+    """Which check found the worst stage voltage (the worst of all that ran), for a row label."""
+    return f"of every check that ran: {check}" if check else "no voltage check ran"
 
 
 def _rejected(candidate, unit: str, direction: str) -> str:
