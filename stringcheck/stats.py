@@ -9,7 +9,10 @@ no failure at all, the upper end of that interval is what the run can vouch for,
 Per-position statistics (mean, standard deviation, extremes, exceedances of a limit) are accumulated
 by the check itself (studies/check.py), block by block, so that memory stays flat in the number of
 trials and the result is the same bit for bit however the trials were split into chunks or worker
-processes.
+processes. Mean and variance of a block come from :func:`block_moments` (sums of the block shifted by
+its first row) and the blocks are combined by :func:`merge_moments` (pairwise), so that a
+position without scatter has a standard deviation of exactly 0 and a tiny spread about a large mean
+keeps its digits.
 """
 
 from __future__ import annotations
@@ -25,9 +28,12 @@ from stringcheck.errors import StringcheckError
 
 __all__ = [
     "FailureEstimate",
+    "Moments",
+    "block_moments",
     "clopper_pearson",
     "failure_estimate",
     "histogram_counts",
+    "merge_moments",
     "trials_for_relative_error",
     "trials_for_upper_bound",
 ]
@@ -360,3 +366,117 @@ def histogram_counts(
         (float(edges[index]), float(edges[index + 1]), int(counts[index]))
         for index in range(counts.size)
     ]
+
+
+@dataclass(frozen=True)
+class Moments:
+    """Count, mean and sum of squared deviations from the mean of values, per element.
+
+    ``count`` [1] is a whole number; ``reference`` (one of the values) and ``offset`` (the mean less
+    it) [unit of the values] and ``squares`` (sum_i (x_i - mean)^2) [unit squared] are arrays of one
+    shape (one entry per position). The mean is kept as reference + offset so that two blocks'
+    means are compared without the rounding of a large mean (see :func:`merge_moments`).
+    """
+
+    count: int
+    reference: NDArray[np.float64]
+    offset: NDArray[np.float64]
+    squares: NDArray[np.float64]
+
+    @property
+    def mean(self) -> NDArray[np.float64]:
+        """The mean [unit of the values]."""
+        return self.reference + self.offset
+
+    def variance(self, *, ddof: int = 1) -> NDArray[np.float64]:
+        """The variance with ``ddof`` degrees of freedom removed [unit squared]; NaN where
+        ``count <= ddof``."""
+        if self.count <= ddof:
+            return np.full(np.shape(self.squares), np.nan)
+        return self.squares / (self.count - ddof)
+
+
+def block_moments(values: ArrayLike) -> Moments:
+    """The moments of ``values`` over their leading axis (one block of rows held in memory).
+
+    Parameters
+    ----------
+    values
+        Array (rows, ...) [any unit]; the moments are per element of the trailing shape.
+
+    Returns
+    -------
+    Moments
+        With ``count`` = rows; for no rows, zeros.
+
+    Notes
+    -----
+    The shifted-data algorithm, shifted by the block's first row: d = x - x_0,
+    m = sum(d) / n, S = sum(d^2) - n m^2 (T. F. Chan, G. H. Golub and R. J. LeVeque, "Algorithms
+    for computing the sample variance: analysis and recommendations", The American Statistician
+    37(3), 1983, section 3: a shift by a data value makes the one-pass sums as accurate as two
+    passes unless x_0 lies many standard deviations from the mean; the relative error of S is about
+    eps (1 + z_0^2) for x_0 at z_0 standard deviations). Where every row is equal, d = 0 and S = 0
+    exactly. A sum of squares about a fixed reference far from the mean (0, or a limit) loses every
+    digit of a tiny spread about a large mean. One pass over the block, as fast as the plain sums.
+    """
+    data = np.asarray(values, dtype=float)
+    rows = data.shape[0]
+    if rows == 0:
+        zeros = np.zeros(data.shape[1:])
+        return Moments(count=0, reference=zeros, offset=zeros.copy(), squares=zeros.copy())
+    shift = data[0].copy()
+    deviation = data - shift
+    total = np.einsum("i...->...", deviation)
+    squares = np.einsum("i...->...", np.square(deviation, out=deviation))
+    offset = total / rows
+    # S = sum d^2 - (sum d)^2 / n >= 0; rounding may leave a few ulps below zero.
+    return Moments(count=rows, reference=shift, offset=offset,
+                   squares=np.maximum(squares - total * offset, 0.0))
+
+
+def merge_moments(parts: "list[Moments] | tuple[Moments, ...]") -> Moments:
+    """The moments of the union of disjoint blocks, merged pairwise in the order given.
+
+    Parameters
+    ----------
+    parts
+        Moments of blocks of one trailing shape (see :func:`block_moments`), at least one.
+
+    Returns
+    -------
+    Moments
+        The same for any grouping of the blocks into chunks, as long as their order is kept.
+
+    Notes
+    -----
+    Two blocks A and B combine as n = n_A + n_B, delta = mean_B - mean_A,
+    mean = mean_A + delta n_B / n, S = S_A + S_B + delta^2 n_A n_B / n (T. F. Chan, G. H. Golub and
+    R. J. LeVeque, "Updating formulae and a pairwise algorithm for computing sample variances",
+    Stanford report STAN-CS-79-773, 1979); merging neighbours pairwise, level by level, keeps the
+    rounding error growing with the logarithm of the number of blocks. delta is formed from the
+    blocks' references (values of the data, whose difference is exact when they lie within a
+    factor of two of each other) and offsets, never from two rounded large means.
+    """
+    level = list(parts)
+    if not level:
+        raise ValueError("merge_moments needs at least one block")
+    while len(level) > 1:
+        merged = [_merge_pair(level[i], level[i + 1]) for i in range(0, len(level) - 1, 2)]
+        if len(level) % 2:
+            merged.append(level[-1])
+        level = merged
+    return level[0]
+
+
+def _merge_pair(first: Moments, second: Moments) -> Moments:
+    if second.count == 0:
+        return first
+    if first.count == 0:
+        return second
+    count = first.count + second.count
+    delta = (second.reference - first.reference) + (second.offset - first.offset)
+    weight = second.count / count
+    offset = first.offset + delta * weight
+    squares = first.squares + second.squares + delta * delta * (first.count * weight)
+    return Moments(count=count, reference=first.reference, offset=offset, squares=squares)

@@ -93,8 +93,8 @@ def test_demo_passes_with_the_key_report_lines():
     assert "VERDICT: PASS" in text
     assert "High-voltage cautions" in text
     assert "LETHAL VOLTAGE" in text
-    assert "60 V" in text  # IEC 61010-1 hazardous-live level (DESIGN.md section 7)
-    assert "IEC 60204-1 clause 6.2.4" in text
+    assert "60 V" in text  # residual-voltage criterion (DESIGN.md section 7)
+    assert "IEC 60204-1:2016 clause 6.2.4" in text
     assert "IEC 60664-1" in text  # creepage and clearance not checked
     assert "4,000 built strings drawn" in text
     assert "Assumptions made" in text

@@ -232,3 +232,62 @@ def test_histogram_counts_edge_cases():
         stats.histogram_counts([1.0], bins=0)
     with pytest.raises(StringcheckError, match="limit"):
         stats.histogram_counts([1.0], limit=math.inf)
+
+
+# --- Moments of blocks (per-position mean and standard deviation) ----------------------------------
+def _merged_std(values, block):
+    parts = [stats.block_moments(values[start:start + block])
+             for start in range(0, values.shape[0], block)]
+    moments = stats.merge_moments(parts)
+    return moments, np.sqrt(moments.variance(ddof=1))
+
+
+def test_block_moments_match_numpy_on_a_tiny_spread_about_a_large_mean():
+    # Reference: numpy.mean and numpy.std(ddof=1) of the whole array (two passes over it). A
+    # position at 10 kV with a spread of a microvolt: a sum of squares about a far reference
+    # (here the 0 V of the raw sums, or a limit) loses every digit of it; the shifted two-pass
+    # blocks and the pairwise merge (Chan, Golub and LeVeque 1979/1983) keep it.
+    rng = np.random.default_rng(3)
+    values = 1.0e4 + 1.0e-6 * rng.standard_normal((10_000, 3))
+    values[:, 2] = 1.5e5 + 3.0e-7 * rng.standard_normal(10_000)
+    moments, std = _merged_std(values, 4096)
+    # The mean within a thousandth of the spread of the exactly rounded mean (math.fsum).
+    exact = np.array([math.fsum(column) / column.size for column in values.T])
+    np.testing.assert_allclose(moments.mean, exact, rtol=0, atol=3e-10)
+    # numpy.std of each column as a contiguous array (its pairwise sums; along axis 0 of a 2-d
+    # array numpy sums naively and is itself off by some 1e-6 on the last column).
+    reference = np.array([np.ascontiguousarray(column).std(ddof=1) for column in values.T])
+    np.testing.assert_allclose(std, reference, rtol=1e-8)
+    # The data are hard: the textbook one-pass formula about 0 is off by orders of magnitude.
+    naive = np.sqrt(np.abs((np.sum(values**2, axis=0) - values.shape[0] * values.mean(axis=0)**2)
+                           / (values.shape[0] - 1)))
+    assert np.all(np.abs(naive - reference) > 10 * reference)
+
+
+@pytest.mark.parametrize("value", [0.1, 1234.5678, 1.0e4 / 3.0, 7.0e5])
+def test_constant_values_have_exactly_zero_spread(value):
+    # A position without scatter: every value equal, so the spread is 0 exactly and the mean is
+    # the value itself (numpy.std, whose mean is rounded, gives about 2e-15 for 0.1).
+    values = np.full((3 * 4096 + 17, 2), value)
+    moments, std = _merged_std(values, 4096)
+    assert np.all(std == 0.0)
+    assert np.all(moments.mean == value)
+
+
+@given(st.lists(st.integers(min_value=0, max_value=40), min_size=1, max_size=8),
+       st.floats(min_value=-1e6, max_value=1e6), st.floats(min_value=1e-9, max_value=1e3),
+       st.integers(min_value=0, max_value=2**31))
+def test_merged_blocks_agree_with_numpy_for_any_split(sizes, centre, scale, seed):
+    # Property: however the rows are split into blocks (empty blocks included), the merged
+    # moments are numpy's mean and variance of the whole.
+    total = sum(sizes)
+    if total < 2:
+        return
+    rng = np.random.default_rng(seed)
+    values = centre + scale * rng.standard_normal(total)
+    edges = np.cumsum([0] + sizes)
+    moments = stats.merge_moments([stats.block_moments(values[a:b])
+                                   for a, b in zip(edges[:-1], edges[1:])])
+    assert moments.count == total
+    assert moments.mean == pytest.approx(values.mean(), rel=1e-12, abs=1e-12 * scale)
+    assert moments.variance(ddof=1) == pytest.approx(values.var(ddof=1), rel=1e-7)

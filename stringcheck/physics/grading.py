@@ -243,17 +243,19 @@ def discharge_time(
     root, then converges monotonically, and is exact in one step for equal time constants. All
     rows iterate together.
 
-    60 V DC is the level above which a part is hazardous live under normal conditions in
-    IEC 61010-1, and IEC 60204-1 clause 6.2.4 asks that exposed live parts of machinery discharge
-    to 60 V or less within 5 s after the supply is disconnected.
+    IEC 60204-1:2016 clause 6.2.4 asks that exposed live parts of machinery discharge to 60 V or
+    less within 5 s after the supply is disconnected: the criterion the report applies. The
+    hazardous-live levels of IEC 61010-1 differ between editions (from memory: 30 V r.m.s.,
+    42.4 V peak, 60 V DC in the 2001 edition; 33 V r.m.s., 46.7 V peak, 70 V DC in normal condition
+    in the 2010 edition) and are not the criterion here.
 
     References
     ----------
     .. [1] J. W. Nilsson and S. A. Riedel, *Electric Circuits*, 9th ed., Prentice Hall, 2011,
        chapter 7 (response of first-order RL and RC circuits): natural response of an RC circuit.
-    .. [2] IEC 61010-1:2010, *Safety requirements for electrical equipment for measurement,
-       control, and laboratory use - Part 1: General requirements*, clause 6.3.1 (levels of
-       hazardous live in normal condition: 30 V r.m.s., 42.4 V peak, 60 V DC).
+    .. [2] IEC 61010-1, *Safety requirements for electrical equipment for measurement,
+       control, and laboratory use - Part 1: General requirements*, 2nd ed. 2001 and 3rd ed.
+       2010, clause 6.3 (levels of hazardous live; from memory, as quoted above).
     .. [3] IEC 60204-1:2016, *Safety of machinery - Electrical equipment of machines - Part 1:
        General requirements*, clause 6.2.4 (protection against residual voltages).
     .. [4] S. Boyd and L. Vandenberghe, *Convex Optimization*, Cambridge University Press, 2004,

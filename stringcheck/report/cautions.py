@@ -37,16 +37,27 @@ def safety_cautions(*, string_voltage: float, stage_energy: float | None, total_
     if total_energy is not None:
         stored += f", {format_quantity(total_energy, 'J')} in the whole stack at the nominal share"
     lines.append(stored + ".")
+    # The criterion: below 60 V within 5 s of switching off (IEC 60204-1:2016 clause 6.2.4, from
+    # memory). IEC 61010-1's hazardous-live levels differ between editions (from memory: 60 V dc
+    # in the 2001 edition, 70 V dc in normal condition in the 2010 edition): cited with theirs.
+    criterion = (f"{safe_voltage:g} V within {allowed_time:g} s is the residual-voltage criterion "
+                 "of IEC 60204-1:2016 clause 6.2.4 for machinery; the hazardous-live levels of "
+                 "IEC 61010-1 differ by edition: 60 V dc in IEC 61010-1:2001, 70 V dc in normal "
+                 "condition in IEC 61010-1:2010")
+    own = ("This counts only the stack's own capacitance (grading capacitors and junctions): a "
+           "filter or smoothing capacitor across the output, or the load, holds its charge far "
+           "longer and is not in this figure.")
     if math.isinf(discharge_time):
         lines.append(f"There is no grading-resistor bleed path: the stack can stay above "
-                     f"{safe_voltage:g} V indefinitely. Discharge and earth every stage before touching.")
+                     f"{safe_voltage:g} V indefinitely ({criterion}). {own} Discharge and earth "
+                     "every stage before touching.")
     else:
         verdict = "within" if discharge_time <= allowed_time else "LONGER than"
         lines.append(
-            f"Through its grading resistors the stack falls below {safe_voltage:g} V (the IEC 61010-1 "
-            f"hazardous-live level) in {format_quantity(discharge_time, 's')}, {verdict} the "
-            f"{allowed_time:g} s that IEC 60204-1 clause 6.2.4 allows for residual voltage on "
-            "machinery. Resistors fail open: always discharge and earth the stack before touching it.")
+            f"Through its grading resistors alone the stack falls below {safe_voltage:g} V in "
+            f"{format_quantity(discharge_time, 's')}, {verdict} {allowed_time:g} s ({criterion}). "
+            f"{own} Resistors fail open: whatever this time, discharge and earth the stack and "
+            "everything connected to it, and prove it dead, before touching it.")
     lines += [
         "Grading resistors must be rated for the working voltage and power shown, with margin; "
         "HV resistor ratings fall with temperature and altitude.",

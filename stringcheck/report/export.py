@@ -101,6 +101,7 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
             "capacitor": grading.capacitor,
             "damping_resistor": grading.damping_resistor,
             "worst_stage_voltage": json_number(grading.worst_resistor_voltage),
+            "worst_stage_voltage_check": grading.worst_voltage_check or None,
             "resistor_power_continuous": json_number(grading.resistor_power_continuous),
             "resistor_power_duty": json_number(grading.resistor_power_duty),
             "resistor_rated_power": grading.resistor_rated_power,
@@ -119,11 +120,17 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
         "lots": lots_to_list(design),
         "assumptions": list(result.assumptions),
         "no_scatter": list(result.no_scatter),
+        "warnings": warnings_to_list(result.warnings),
         "cautions": safety_cautions(string_voltage=design.duty.reverse_voltage,
                                     stage_energy=grading.stage_energy,
                                     total_energy=grading.total_energy,
                                     discharge_time=grading.discharge_time),
     }
+
+
+def warnings_to_list(warnings) -> list[dict[str, str]]:
+    """The plausibility warnings as JSON objects {key, message}."""
+    return [{"key": warning.key, "message": warning.message} for warning in warnings]
 
 
 def positions_csv(result: CheckResult) -> str:
@@ -347,6 +354,7 @@ def sizing_to_dict(result: "SizingResult") -> dict[str, Any]:
         "ratings": {
             "derating": ratings.derating,
             "worst_stage_voltage": json_number(ratings.worst_stage_voltage),
+            "worst_stage_voltage_check": ratings.worst_voltage_check or None,
             "resistor_voltage_required": json_number(ratings.resistor_voltage_required),
             "resistor_power_continuous": json_number(ratings.resistor_power_continuous),
             "resistor_power_duty": json_number(ratings.resistor_power_duty),

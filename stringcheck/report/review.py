@@ -15,6 +15,7 @@ from .cautions import safety_cautions
 from .check_sections import json_number, render_drivers
 from .export import result_to_dict
 from .lots import render_lots
+from .terminal import render_warnings
 
 
 def review_to_dict(result: ReviewResult) -> dict[str, Any]:
@@ -105,6 +106,7 @@ def render_review(result: ReviewResult, console: Console) -> None:
                           f"{p.baseline_part} -> {p.candidate_part}", f"{p.baseline_max:,.0f}",
                           f"{p.candidate_max:,.0f}", f"{p.limit:,.0f}")
         console.print(worse)
+    _render_warnings(result, console)
     if result.reasons:
         console.print(Text("Why, in physical terms:", style="bold"))
         for line in result.reasons:
@@ -129,6 +131,15 @@ def render_review(result: ReviewResult, console: Console) -> None:
                         title_align="left", border_style="red"))
 
 
+def _render_warnings(result: ReviewResult, console: Console) -> None:
+    """Each design's plausibility warnings, those of the candidate only where they differ."""
+    shown = set()
+    for label, checked in (("baseline", result.baseline), ("candidate", result.candidate)):
+        fresh = [w for w in checked.warnings if (w.key, w.message) not in shown]
+        shown.update((w.key, w.message) for w in fresh)
+        render_warnings(fresh, console, label=f" ({label})")
+
+
 def _why(result: ReviewResult) -> str:
     parts = []
     if result.candidate.verdict != "pass":
@@ -145,3 +156,4 @@ def render_review_summary(result: ReviewResult, console: Console) -> None:
                                                                        c.candidate_ran)]
     console.print(f"{result.verdict}: candidate {result.candidate.verdict}"
                   + (f"; worse in {', '.join(worse)}" if worse else ""), highlight=False)
+    _render_warnings(result, console)

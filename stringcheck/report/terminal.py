@@ -106,6 +106,7 @@ def render_check(result: CheckResult, console: Console) -> None:
         console.print(Text(" VERDICT: FAIL ", style="bold white on red"), _fail_reason(result))
     if result.impossible:
         console.print(Text(f"Impossible design: {result.impossible}.", style="bold red"))
+    render_warnings(result.warnings, console)
     console.print()
 
     summary = Table(title="Checks", title_justify="left", show_lines=False)
@@ -172,6 +173,13 @@ def render_check(result: CheckResult, console: Console) -> None:
                                discharge_time=grading.discharge_time)
     console.print(Panel("\n".join(f"! {line}" for line in cautions), title="High-voltage cautions",
                         title_align="left", border_style="red"))
+
+
+def render_warnings(warnings, console: Console, *, label: str = "") -> None:
+    """The plausibility warnings, one line each (nothing when there are none)."""
+    for warning in warnings:
+        console.print(Text(f"warning{label}: {warning.key}: {warning.message}", style="bold yellow"),
+                      highlight=False)
 
 
 WANTED_RELATIVE_ERROR = 0.1  # relative standard error of P(fail) the report asks for
@@ -268,7 +276,7 @@ def _render_network(result: CheckResult, console: Console) -> None:
                      + (f" (rated {format_quantity(grading.resistor_rated_power, 'W')})"
                         if grading.resistor_rated_power else "")))
         rows.append(("total grading loss at nominal share", format_quantity(grading.total_grading_loss, "W")))
-    rows.append(("worst stage voltage (static or dynamic)",
+    rows.append((f"worst stage voltage ({_worst_from(grading.worst_voltage_check)})",
                  format_quantity(grading.worst_resistor_voltage, "V")
                  + (f" (resistor rated {format_quantity(grading.resistor_rated_voltage, 'V')})"
                     if grading.resistor_rated_voltage else "")))
@@ -336,6 +344,7 @@ def render_check_summary(result: CheckResult, console: Console) -> None:
     if result.impossible is not None:
         parts.append("impossible design")
     console.print(f"{result.verdict}: " + ", ".join(parts), highlight=False)
+    render_warnings(result.warnings, console)
 
 
 def render_sizing(result: "SizingResult", console: Console) -> None:
@@ -389,7 +398,8 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
                         "what the spreads give)")
     console.print()
     rows = [
-        ("worst stage voltage (static or dynamic)", format_quantity(ratings.worst_stage_voltage, "V")),
+        (f"worst stage voltage ({_worst_from(ratings.worst_voltage_check)})",
+         format_quantity(ratings.worst_stage_voltage, "V")),
         (f"resistor working voltage required (/ derating {ratings.derating:g})",
          format_quantity(ratings.resistor_voltage_required, "V")),
         ("resistor power at worst static voltage, continuous",
@@ -426,6 +436,11 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
     console.print()
     console.print(Text("Check of the sized design", style="bold underline"))
     render_check(result.check, console)
+
+
+def _worst_from(check: str) -> str:
+    """Which check found the worst stage voltage (the worst of all that ran), for a row label."""
+    return f"of every check that ran: {check}" if check else "no voltage check ran"
 
 
 def _rejected(candidate, unit: str, direction: str) -> str:

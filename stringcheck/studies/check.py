@@ -18,6 +18,7 @@ import numpy as np
 from ..design import Design, Part
 from ..errors import DesignError
 from ..physics.leakage import leakage_current
+from ..plausibility import PlausibilityWarning, plausibility_warnings
 from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
 from ..solvers.series_dynamic import solve_dynamic_sharing
 from ..solvers.series_static import solve_static_sharing
@@ -135,6 +136,8 @@ class CheckResult:
     assumptions: tuple[str, ...]
     no_scatter: tuple[str, ...]
     drivers: tuple[Driver, ...] = ()
+    # Valid values that are probably slips (``plausibility``): shown by the report, never fatal.
+    warnings: tuple[PlausibilityWarning, ...] = ()
 
 
 def run_check(design: Design, *, trials: int | None = None, seed: int | None = None,
@@ -320,7 +323,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                        checks=checks, grading=grading,
                        verdict=verdict, impossible=impossible,
                        assumptions=design.assumptions + model_assumptions(design, rescaling_note),
-                       no_scatter=no_scatter(design, parameters), drivers=ranking)
+                       no_scatter=no_scatter(design, parameters), drivers=ranking,
+                       warnings=plausibility_warnings(design,
+                                                      grading_loss=grading.total_grading_loss))
 
 
 @dataclass(frozen=True)
@@ -447,17 +452,11 @@ def _finish(name: str, accumulator: PositionSums, grid: np.ndarray, confidence: 
     ratios = np.concatenate(accumulator.worst_ratios)
     failures = int(np.count_nonzero(~(ratios <= 1.0)))
     estimate = failure_estimate(failures, trials, confidence=confidence)
-    count = max(accumulator.count, 1)
-    total = np.zeros(grid.shape)
-    total_squares = np.zeros(grid.shape)
-    for block_total, block_squares in zip(accumulator.block_totals, accumulator.block_squares):
-        total += block_total
-        total_squares += block_squares
-    mean_shift = total / count
-    variance = np.maximum(total_squares / count - mean_shift ** 2, 0.0)
-    if accumulator.count > 1:
-        variance *= accumulator.count / (accumulator.count - 1)
-    mean = mean_shift + accumulator.limits
+    moments = accumulator.moments()
+    # No solved trial: the mean of nothing is 0 shifted by nothing, as before (the limit).
+    mean = moments.mean if moments.count else accumulator.limits.copy()
+    # One solved trial has no spread to speak of: 0, as before.
+    variance = moments.variance(ddof=1) if moments.count > 1 else np.zeros(grid.shape)
     positions = []
     for branch in range(grid.shape[0]):
         for index in range(grid.shape[1]):

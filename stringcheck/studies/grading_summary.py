@@ -20,10 +20,15 @@ from ..quantity import format_quantity as _q
 # Grading current below this multiple of the hottest maximum leakage draws an advisory (common
 # practice: "several times" the leakage; 5x is our threshold for saying so).
 GRADING_CURRENT_MULTIPLE = 5.0
-# Residual-voltage threshold and time: 60 V DC (IEC 61010-1 hazardous-live level) within 5 s
-# (IEC 60204-1 clause 6.2.4).
+# Residual-voltage criterion: below 60 V within 5 s of switching off (IEC 60204-1:2016 clause 6.2.4,
+# from memory).
 SAFE_VOLTAGE = 60.0
 SAFE_DISCHARGE_TIME = 5.0
+# The checks whose worst figure is a stage voltage [V]: every grading component across a stage
+# sees it (the transient check's is the simulated turn-off peak, overshoot included).
+STAGE_VOLTAGE_CHECKS = ("static", "dynamic", "transient")
+_CHECK_WORDS = {"static": "static blocking", "dynamic": "charge-balance turn-off",
+                "transient": "simulated turn-off peak"}
 
 
 @dataclass(frozen=True)
@@ -34,6 +39,7 @@ class GradingSummary:
     capacitor: float | None
     damping_resistor: float | None
     worst_resistor_voltage: float
+    worst_voltage_check: str
     resistor_power_continuous: float | None
     resistor_power_duty: float | None
     resistor_rated_power: float | None
@@ -51,6 +57,17 @@ class GradingSummary:
 
 
 
+def worst_stage_voltage(checks: Mapping[str, object]) -> tuple[float, str]:
+    """The highest stage voltage [V] any check that ran found (``STAGE_VOLTAGE_CHECKS``), and the
+    name of that check (NaN and "" when none ran)."""
+    found = [(checks[name].worst_voltage, name) for name in STAGE_VOLTAGE_CHECKS
+             if name in checks and checks[name].ran and np.isfinite(checks[name].worst_voltage)]
+    if not found:
+        return float("nan"), ""
+    value, name = max(found, key=lambda item: item[0])
+    return float(value), name
+
+
 def grading_summary(design: Design, checks: Mapping[str, object], temperature: np.ndarray,
                      junction_capacitance: np.ndarray) -> GradingSummary:
     grading = design.grading
@@ -58,8 +75,8 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
     stage_count = layout.series * layout.parallel
     nominal_share = design.duty.reverse_voltage / layout.series
     static_worst = checks["static"].worst_voltage if checks["static"].ran else float("nan")
-    dynamic_worst = checks["dynamic"].worst_voltage if checks["dynamic"].ran else float("nan")
-    worst_any = float(np.nanmax([static_worst, dynamic_worst]))
+    worst_any, worst_check = worst_stage_voltage(checks)
+    seen = f"{_q(worst_any, 'V')} at worst ({_CHECK_WORDS.get(worst_check, worst_check)})"
     problems, advisories = [], []
 
     power_continuous = power_duty = total_loss = grading_current = None
@@ -73,8 +90,8 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
             problems.append(f"grading resistor dissipates {_q(power_duty, 'W')} at the worst static "
                             f"voltage, above its rating of {_q(grading.resistor_rated_power, 'W')}")
         if grading.resistor_rated_voltage is not None and worst_any > grading.resistor_rated_voltage:
-            problems.append(f"grading resistor sees {_q(worst_any, 'V')} at worst, above its working-"
-                            f"voltage rating of {_q(grading.resistor_rated_voltage, 'V')}")
+            problems.append(f"grading resistor sees {seen}, above its working-voltage rating of "
+                            f"{_q(grading.resistor_rated_voltage, 'V')}")
         if grading.resistor_rated_power is None:
             advisories.append("grading.resistor_rated_power not given: resistor power not checked")
         if grading.resistor_rated_voltage is None:
@@ -109,8 +126,8 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
     if grading.capacitor is not None:
         stage_energy = float(stored_energy(grading.capacitor, worst_any))
         if grading.capacitor_rated_voltage is not None and worst_any > grading.capacitor_rated_voltage:
-            problems.append(f"grading capacitor sees {_q(worst_any, 'V')} at worst, above its rating "
-                            f"of {_q(grading.capacitor_rated_voltage, 'V')}")
+            problems.append(f"grading capacitor sees {seen}, above its rating of "
+                            f"{_q(grading.capacitor_rated_voltage, 'V')}")
         if grading.capacitor_rated_voltage is None:
             advisories.append("grading.capacitor_rated_voltage not given: capacitor voltage not "
                               "checked")
@@ -125,10 +142,12 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
     if time > SAFE_DISCHARGE_TIME:
         advisories.append(f"the stack takes {_q(time, 's')} to fall below {SAFE_VOLTAGE:g} V through "
                           f"its grading resistors, longer than the {SAFE_DISCHARGE_TIME:g} s of "
-                          "IEC 60204-1 clause 6.2.4: provide a discharge device or earthing stick")
+                          "IEC 60204-1:2016 clause 6.2.4: provide a discharge device or earthing "
+                          "stick")
     return GradingSummary(
         resistor=grading.resistor, capacitor=grading.capacitor,
         damping_resistor=grading.damping_resistor, worst_resistor_voltage=worst_any,
+        worst_voltage_check=worst_check,
         resistor_power_continuous=power_continuous, resistor_power_duty=power_duty,
         resistor_rated_power=grading.resistor_rated_power,
         resistor_rated_voltage=grading.resistor_rated_voltage, total_grading_loss=total_loss,

@@ -1,8 +1,8 @@
 """Per-position sums of a series check, kept chunk by chunk so that memory stays flat in the trial
-count: counts, block sums of the voltages and their squares (shifted by the limit), maxima, failures
-per position and each trial's worst stress ratio. Sums are kept per sampling block and added up in
-block order at the end, so a run gives the same figures bit for bit whatever its chunk size or number
-of worker processes.
+count: each sampling block's count, mean and sum of squared deviations per position
+(``stats.block_moments``), maxima, failures per position and each trial's worst stress ratio. The
+blocks' moments are merged in block order at the end (``stats.merge_moments``), so a run gives the
+same figures bit for bit whatever its chunk size or number of worker processes.
 """
 
 from __future__ import annotations
@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..sampling import BLOCK_TRIALS
+from ..stats import Moments, block_moments, merge_moments
 
 
 @dataclass
@@ -21,8 +22,7 @@ class PositionSums:
     shape: tuple[int, int]
     limits: np.ndarray
     count: int = 0
-    block_totals: list = field(default_factory=list)
-    block_squares: list = field(default_factory=list)
+    blocks: list = field(default_factory=list)
     maximum: np.ndarray = field(init=False)
     failures_by_position: np.ndarray = field(init=False)
     worst_ratios: list = field(default_factory=list)
@@ -41,8 +41,7 @@ class PositionSums:
     def merge(self, other: "PositionSums") -> None:
         """Add the sums of a later chunk (chunks are merged in trial order)."""
         self.count += other.count
-        self.block_totals.extend(other.block_totals)
-        self.block_squares.extend(other.block_squares)
+        self.blocks.extend(other.blocks)
         self.maximum = np.maximum(self.maximum, other.maximum)
         self.failures_by_position += other.failures_by_position
         self.worst_ratios.extend(other.worst_ratios)
@@ -51,6 +50,14 @@ class PositionSums:
             self.worst_ratio = other.worst_ratio
             self.worst_trial = other.worst_trial
             self.worst_string = other.worst_string
+
+    def moments(self) -> Moments:
+        """Count, mean [V] and sum of squared deviations [V^2] of each position over the solved
+        trials."""
+        if not self.blocks:
+            zeros = np.zeros(self.shape)
+            return Moments(count=0, reference=zeros, offset=zeros, squares=zeros)
+        return merge_moments(self.blocks)
 
     def add(self, voltages: np.ndarray, solved: np.ndarray, first_trial: int) -> None:
         rows = voltages.shape[0]
@@ -62,16 +69,13 @@ class PositionSums:
         trial_ratio = np.where(solved, _trial_maximum(ratio), np.inf)
         unsolved = int(np.count_nonzero(~solved))
         self.unsolved += unsolved
-        # Sums are shifted by the limit to keep the variance sum well conditioned, and are kept
-        # per sampling block (chunks start on block boundaries) and added up in block order at the
-        # end, so that they are the same bit for bit whatever the chunk size or the number of
+        # Moments per sampling block (chunks start on block boundaries), merged in block order at
+        # the end, so that they are the same bit for bit whatever the chunk size or the number of
         # worker processes.
         for start in range(0, rows, BLOCK_TRIALS):
             block = slice(start, start + BLOCK_TRIALS)
-            shifted = voltages[block] - self.limits if not unsolved else \
-                voltages[block][solved[block]] - self.limits
-            self.block_totals.append(np.einsum("ijk->jk", shifted))
-            self.block_squares.append(np.einsum("ijk->jk", np.square(shifted, out=shifted)))
+            self.blocks.append(block_moments(voltages[block] if not unsolved else
+                                             voltages[block][solved[block]]))
         good = voltages if not unsolved else voltages[solved]
         self.count += good.shape[0]
         if good.shape[0]:

@@ -20,8 +20,8 @@ from typing import Callable
 import numpy as np
 
 from .. import eseries
-from ..design import Design
-from ..errors import ImpossibleDesignError, SizingError
+from ..design import LOGNORMAL_PARAMETERS, Design
+from ..errors import DesignError, ImpossibleDesignError, SizingError
 from ..physics.grading import (
     discharge_time,
     resistor_power,
@@ -30,8 +30,11 @@ from ..physics.grading import (
     worst_case_static_resistance,
 )
 from ..physics.leakage import leakage_current
+from ..spread_maps import spread_quantile
 from ..stats import trials_for_upper_bound
 from .check import CheckResult, run_check
+from .check_inputs import with_recovery_charge
+from .recovery_conditions import recovery_rescaling, rescale_charges
 from .runner import WorkerPool, worker_pool
 
 # Range of the ladders searched [ohm], [F]: wide enough for any grading network we know of.
@@ -85,6 +88,7 @@ class Ratings:
     discharge_time: float
     worst_stage_voltage: float
     derating: float
+    worst_voltage_check: str = ""
 
 
 @dataclass(frozen=True)
@@ -289,7 +293,9 @@ def _search(evaluate: Evaluate, series: str, start: float | None, value_range: t
     def good(index: int) -> bool:
         return at(index).passed
 
-    if start is None or not math.isfinite(start) or start <= 0:
+    # The corner is reported as given (None: there is none); the search starts mid-range then.
+    bound = start if start is not None and math.isfinite(start) and start > 0 else None
+    if bound is None:
         start = float(np.sqrt(value_range[0] * value_range[1]))
     middle = int(np.clip(np.searchsorted(ladder, start), 0, len(ladder) - 1))
     step = len(eseries.series_values(series))  # one decade of the ladder
@@ -300,31 +306,31 @@ def _search(evaluate: Evaluate, series: str, start: float | None, value_range: t
             while high < len(ladder) - 1 and good(high):
                 low, high = high, min(high + step, len(ladder) - 1)
             if good(high):
-                return LadderChoice(series, at(high), None, start)
+                return LadderChoice(series, at(high), None, bound)
         else:
             while low > 0 and not good(low):
                 high, low = low, max(low - step, 0)
             if not good(low):
-                return LadderChoice(series, None, at(low), start)
+                return LadderChoice(series, None, at(low), bound)
         while high - low > 1:
             mid = (low + high) // 2
             low, high = (mid, high) if good(mid) else (low, mid)
-        return LadderChoice(series, at(low), at(high), start)
+        return LadderChoice(series, at(low), at(high), bound)
     low, high = middle, middle
     if good(middle):
         while low > 0 and good(low):
             high, low = low, max(low - step, 0)
         if good(low):
-            return LadderChoice(series, at(low), None, start)
+            return LadderChoice(series, at(low), None, bound)
     else:
         while high < len(ladder) - 1 and not good(high):
             low, high = high, min(high + step, len(ladder) - 1)
         if not good(high):
-            return LadderChoice(series, None, at(high), start)
+            return LadderChoice(series, None, at(high), bound)
     while high - low > 1:
         mid = (low + high) // 2
         low, high = (low, mid) if good(mid) else (mid, high)
-    return LadderChoice(series, at(high), at(low), start)
+    return LadderChoice(series, at(high), at(low), bound)
 
 
 def _corner_limits(design: Design) -> tuple[int, float]:
@@ -333,43 +339,93 @@ def _corner_limits(design: Design) -> tuple[int, float]:
     return layout.series, min(limits)
 
 
+def drawn_limits(design: Design, name: str, parameter: str) -> tuple[float, float]:
+    """The least and the greatest value of ``parameter`` of part ``name`` that the Monte Carlo
+    draws at the datasheet's limit level [SI unit of the parameter].
+
+    A limit the datasheet gives is itself; a missing one is the value the draw puts at
+    ``sigma_at_limit`` standard deviations on that side (the two-piece spread mirrors the limit
+    given: typ^2 / max for a lognormal parameter, 2 typ - max for a normal one); a fixed ``{typ}``
+    is typ on both sides. A measured lot's column gives its least and greatest device when
+    resampled, its fit's values at -+ ``sigma_at_limit`` when fitted. (The draw itself is not
+    bounded where screening does not truncate it: these are the corner's values, not extremes.)
+    """
+    part = design.parts[name]
+    sigma = design.monte_carlo.sigma_at_limit
+    lot = part.measured
+    if lot is not None and parameter in lot.parameters:
+        column = lot.columns[lot.parameters.index(parameter)]
+        if lot.resampled:
+            return float(column.low), float(column.high)
+        low, high = column.quantile(np.array([-sigma, sigma]))
+        return float(low), float(high)
+    spread = part.spread(parameter)
+    low, high = spread_quantile(spread, np.array([-sigma, sigma]),
+                                lognormal=parameter in LOGNORMAL_PARAMETERS,
+                                sigma_at_limit=sigma, screened=False)
+    return (float(low) if spread.low is None else spread.low,
+            float(high) if spread.high is None else spread.high)
+
+
+def _part_temperatures(design: Design, name: str) -> np.ndarray:
+    """Junction temperatures [degC] of the positions that can hold part ``name``."""
+    temperature = design.duty.ambient + design.string.temperature_rise_grid()
+    return np.concatenate([temperature[grid == name] for grid in design.string.part_grids()])
+
+
 def _static_bound(design: Design) -> float | None:
-    """The textbook worst-case R (n V_DM - V_s) / ((n - 1) dI_R), with leakage at the hottest device."""
+    """The textbook worst-case R (n V_DM - V_s) / ((n - 1) dI_R) for the leakages the Monte Carlo
+    draws: dI_R from the greatest drawn leakage at the hottest position to the least at the coolest
+    (``drawn_limits``); None where nothing scatters (no corner: any R passes)."""
     n, v_dm = _corner_limits(design)
     if n < 2:
         return None
-    rise = float(design.string.temperature_rise_grid().max())
     highs, lows = [], []
     for name in design.parts_used():
         part = design.parts[name]
         spread = part.i_r
-        factor = float(leakage_current(1.0, spread.at_voltage, design.duty.ambient + rise,
-                                       reference_voltage=spread.at_voltage,
-                                       reference_temperature=spread.at_temperature,
-                                       doubling_temperature=part.leakage_doubling,
-                                       voltage_exponent=part.leakage_voltage_exponent))
-        highs.append(factor * (spread.high if spread.high is not None else spread.typ))
-        lows.append(factor * (spread.low if spread.low is not None else 0.0))
+        factors = leakage_current(1.0, spread.at_voltage, _part_temperatures(design, name),
+                                  reference_voltage=spread.at_voltage,
+                                  reference_temperature=spread.at_temperature,
+                                  doubling_temperature=part.leakage_doubling,
+                                  voltage_exponent=part.leakage_voltage_exponent)
+        low, high = drawn_limits(design, name, "i_r")
+        highs.append(float(np.max(factors)) * high)
+        lows.append(float(np.min(factors)) * low)
     spread_current = max(highs) - min(lows)
-    if spread_current <= 0 or n * v_dm <= design.duty.reverse_voltage:
+    if not spread_current > 0 or n * v_dm <= design.duty.reverse_voltage:
         return None
     return float(worst_case_static_resistance(n, v_dm, design.duty.reverse_voltage, spread_current))
 
 
 def _dynamic_bound(design: Design) -> float | None:
-    """The textbook worst-case C (n - 1) dQ_rr / (n V_DM - V_s)."""
+    """The textbook worst-case C (n - 1) dQ_rr / (n V_DM - V_s) for the recovery charges the
+    Monte Carlo draws (``drawn_limits``), carried to the application's I_F and di/dt where the
+    dynamic check carries them (``recovery_conditions``); None where nothing scatters."""
     n, v_dm = _corner_limits(design)
     if n < 2 or n * v_dm <= design.duty.reverse_voltage:
         return None
+    # The charges the dynamic check draws, once a capacitor stands at every stage (its value does
+    # not enter: only the parts' recovery data are read).
+    with_capacitor = replace(design, grading=replace(design.grading,
+                                                     capacitor=_CAPACITOR_RANGE[1]))
+    try:
+        design = with_recovery_charge(with_capacitor)
+    except DesignError:
+        return None
+    if any(design.parts[name].q_rr is None for name in design.parts_used()):
+        return None
+    rescaling, _ = recovery_rescaling(design)
     highs, lows = [], []
     for name in design.parts_used():
-        spread = design.parts[name].q_rr
-        if spread is None:
-            return None
-        highs.append(spread.high if spread.high is not None else spread.typ)
-        lows.append(spread.low if spread.low is not None else 0.0)
+        limits = np.array(drawn_limits(design, name, "q_rr"))
+        if rescaling is not None:
+            limits = rescale_charges(limits.reshape(1, 1, 2), np.full((1, 2), name, dtype=object),
+                                     rescaling).reshape(2)
+        lows.append(float(limits[0]))
+        highs.append(float(limits[1]))
     charge = max(highs) - min(lows)
-    if charge <= 0:
+    if not charge > 0:
         return None
     return float(worst_case_dynamic_capacitance(n, v_dm, design.duty.reverse_voltage, charge))
 
@@ -526,5 +582,6 @@ def _ratings(design: Design, check: CheckResult) -> Ratings:
         discharge_time=time,
         worst_stage_voltage=worst,
         derating=derating,
+        worst_voltage_check=check.grading.worst_voltage_check,
     )
 

@@ -203,3 +203,16 @@ def test_recovery_charge_derived_from_peak_current_and_time():
     direct = run_check(parse_design_text(corner_design(resistor=1e5, capacitor=1e-6)))
     assert result.checks["dynamic"].worst_voltage == pytest.approx(
         direct.checks["dynamic"].worst_voltage, rel=1e-12)
+
+
+def test_positions_without_scatter_report_zero_spread_and_the_exact_voltage():
+    # A corner without scatter: every trial gives the same string, so each position's standard
+    # deviation is 0 (numpy.std of identical values) and its mean is its one voltage, bit for bit
+    # the maximum. A sum of squares shifted by the limit gave 5.7e-5 V on the dynamic check here.
+    design = parse_design_text(corner_design(string_voltage=9001.7, leak_low=2.3e-6,
+                                             resistor=1.234e7, capacitor=1.1e-8, trials=20000))
+    result = run_check(design)
+    for name in ("static", "dynamic"):
+        for position in result.checks[name].positions:
+            assert position.std_voltage == 0.0, (name, position)
+            assert position.mean_voltage == position.max_voltage, (name, position)

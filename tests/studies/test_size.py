@@ -240,3 +240,51 @@ def test_transient_chooses_the_least_energy_damping_resistor_within_the_limit():
     assert all(c.worst_ratio <= 1.0 for c in good)
     # The final check of the sized design includes the transient.
     assert result.check.checks["transient"].ran
+
+
+def test_printed_corner_of_fixed_parts_is_the_textbook_corner_and_agrees_with_the_choice():
+    # Textbook corners of series-diode grading (from memory: N. Mohan, T. M. Undeland and
+    # W. P. Robbins, Power Electronics, and M. H. Rashid, Power Electronics, chapter on power
+    # diodes, series connection): R <= (n V_max - V_S) / ((n - 1) dI_R) and
+    # C >= (n - 1) dQ_rr / (n V_max - V_S). Fixed {typ} parts: dI_R = 12 - 2 uA and
+    # dQ_rr = 1.0 - 0.4 uC; a missing min is not zero. The choice must then be the preferred value
+    # next to the corner on the right side of it.
+    result = size(parse_design_text(corner()))
+    n, v_s, v_max = 8, 9000.0, 0.9 * 1400.0
+    r_corner = (n * v_max - v_s) / ((n - 1) * (12e-6 - 2e-6))
+    c_corner = (n - 1) * (1.0e-6 - 0.4e-6) / (n * v_max - v_s)
+    assert result.resistor.textbook_bound == pytest.approx(r_corner, rel=1e-12)
+    assert result.capacitor.textbook_bound == pytest.approx(c_corner, rel=1e-12)
+    assert result.resistor.chosen.value <= r_corner < result.resistor.rejected_neighbour.value
+    assert result.capacitor.rejected_neighbour.value < c_corner <= result.capacitor.chosen.value
+
+
+def test_printed_corner_uses_the_mirrored_limit_the_monte_carlo_draws():
+    # SLOW gives only a max: the draw puts its lower limit level (sigma_at_limit standard
+    # deviations below typ) at typ^2 / max (the lognormal spread mirrored, DESIGN.md section 4),
+    # not at zero; FAST stays fixed. dI_R = max(SLOW) - min(FAST typ, SLOW typ^2 / max), and so for
+    # Q_rr; textbook corners as in the test above.
+    text = corner().replace(
+        'i_r = { typ = 1.2e-05, at_temperature = "25 degC", at_voltage = 1400.0 }',
+        'i_r = { typ = 1.2e-05, max = 1.5e-05, at_temperature = "25 degC", at_voltage = 1400.0 }'
+    ).replace("q_rr = { typ = 1e-06 }", "q_rr = { typ = 1e-06, max = 1.2e-06 }")
+    assert "max = 1.5e-05" in text and "max = 1.2e-06" in text
+    result = size(parse_design_text(text))
+    n, v_s, v_max = 8, 9000.0, 0.9 * 1400.0
+    leakage = 1.5e-5 - min(2e-6, 1.2e-5 ** 2 / 1.5e-5)
+    charge = 1.2e-6 - min(0.4e-6, 1.0e-6 ** 2 / 1.2e-6)
+    assert result.resistor.textbook_bound == pytest.approx(
+        (n * v_max - v_s) / ((n - 1) * leakage), rel=1e-9)
+    assert result.capacitor.textbook_bound == pytest.approx(
+        (n - 1) * charge / (n * v_max - v_s), rel=1e-9)
+    # The scattered draws stay inside the corner: the Monte Carlo choice is no worse than it.
+    assert result.resistor.chosen.value >= eseries.round_down(result.resistor.textbook_bound, "E96")
+    assert result.capacitor.chosen.value <= eseries.round_up(result.capacitor.textbook_bound, "E12")
+
+
+def test_no_scatter_anywhere_gives_no_corner():
+    # One part, fixed: every device alike, dI_R = 0 (R unbounded by the corner), so no corner is
+    # printed rather than one from a zero minimum.
+    text = corner().replace('part = "FAST"', 'part = "SLOW"')
+    result = size(parse_design_text(text))
+    assert result.resistor.textbook_bound is None

@@ -1,0 +1,181 @@
+"""Plausibility warnings: values a design file accepts that are almost certainly a slip.
+
+A design can be valid and still say something no engineer meant: a string voltage written as 50
+(volts) where 50 kV was meant, a turn-off slope of 50 A/s where 50 A/us was meant, a leakage maximum a
+thousand times its typical value (uA against mA), a target that lets one stack in five fail. None of
+these is an error (an unusual design may mean it), and each runs without complaint; so each gives a
+warning, a ``(key, message)`` pair that the check carries into its result, the report shows near
+the verdict and the JSON lists under ``warnings``. Thresholds sit orders of magnitude from ordinary
+designs (common practice for the values named; no standard sets them), so that a warning is rare
+and worth reading.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from .design import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Design
+from .quantity import format_quantity
+
+# The nominal share V_s / n below this fraction of a device's V_RRM: two orders of magnitude below
+# the rating, where real stacks run at some 30 to 80 % of it (common practice).
+MIN_SHARE_OF_RATING = 0.01
+# A turn-off slope below this [A/s] (1 mA/us) commutates an ampere in a millisecond or more: slower
+# than any rectifier's commutation (common practice: 1 to 1000 A/us). Below a tenth of the 50/60 Hz
+# sine's own slope at its zero the natural turn-off of a half-sine is slower still, so the threshold
+# is the smaller of the two.
+SLOW_DI_DT = 1.0e3
+# A datasheet limit this many times its typical value (or the typical this many times the min):
+# leakage limits sit about a decade above typ, charge and time limits within a factor of 2 or 3,
+# forward figures within tens of percent (common practice; the defaults of design.TYP_FRACTION_OF_MAX).
+SPREAD_RATIO = {"i_r": 1.0e3, "q_rr": 1.0e2, "i_rm": 1.0e2, "t_rr": 1.0e2, "v_t0": 10.0,
+                "r_t": 10.0}
+# A target P(fail) above this lets more than one built stack in ten fail.
+MAX_TARGET_P_FAIL = 0.1
+# A confidence below this makes the "upper" bound lie below the best estimate more often than not.
+MIN_CONFIDENCE = 0.5
+# Grading loss of the whole stack at the nominal share [W] above which, with no power rating
+# given, a unit slip in the resistor is likelier than the design (grading losses run from watts to
+# kilowatts; common practice).
+LARGE_GRADING_LOSS = 1.0e6
+# Ambient below this [degC]: colder than power devices and grading components are commonly rated
+# for (-40 to -55 degC; common practice).
+COLDEST_AMBIENT = -60.0
+
+
+@dataclass(frozen=True)
+class PlausibilityWarning:
+    """One value that is valid but probably not what was meant: the design-file key and why."""
+
+    key: str
+    message: str
+
+
+def plausibility_warnings(design: Design, *,
+                          grading_loss: float | None = None) -> tuple[PlausibilityWarning, ...]:
+    """The plausibility warnings of ``design``, in the order of the design file's tables.
+
+    Parameters
+    ----------
+    design
+        A validated design.
+    grading_loss
+        Loss of all grading resistors at the nominal share [W] (``GradingSummary``), None where
+        there are no resistors or it was not computed.
+    """
+    found: list[PlausibilityWarning] = []
+    found += _string_voltage(design)
+    found += _turn_off_slopes(design)
+    if design.duty.ambient < COLDEST_AMBIENT:
+        found.append(PlausibilityWarning("duty.ambient", (
+            f"{design.duty.ambient:g} degC is colder than {COLDEST_AMBIENT:g} degC, below what "
+            "power devices and grading components are commonly rated for; check the sign and "
+            "the unit (a bare number is degC)")))
+    found += _spreads(design)
+    if (grading_loss is not None and math.isfinite(grading_loss)
+            and grading_loss >= LARGE_GRADING_LOSS and design.grading.resistor_rated_power is None):
+        found.append(PlausibilityWarning("grading.resistor", (
+            f"the grading resistors of {format_quantity(design.grading.resistor, 'ohm')} "
+            f"dissipate {format_quantity(grading_loss, 'W')} in all at the nominal share, and no "
+            "grading.resistor_rated_power is given to check it; a unit slip in the resistance "
+            "(a bare number is ohms: write e.g. \"4.7 MOhm\")?")))
+    confidence = design.monte_carlo.confidence
+    if confidence < MIN_CONFIDENCE:
+        found.append(PlausibilityWarning("monte_carlo.confidence", (
+            f"{confidence:g}: an upper bound at less than {MIN_CONFIDENCE:.0%} confidence lies "
+            "below the best estimate of P(fail) more often than not, so a pass vouches for "
+            "little; 0.95 is usual")))
+    target = design.sizing.target_p_fail
+    if target > MAX_TARGET_P_FAIL:
+        found.append(PlausibilityWarning("sizing.target_p_fail", (
+            f"{target:g} lets more than one built stack in ten fail; targets are usually 1e-3 "
+            f"to 1e-6 (was a percentage meant? {target:g} % is {target / 100:g})")))
+    return tuple(found)
+
+
+def _string_voltage(design: Design) -> list[PlausibilityWarning]:
+    layout = design.string
+    share = design.duty.reverse_voltage / layout.series
+    ratings = {name: design.parts[name].v_rrm for name in design.parts_used()}
+    weakest = min(ratings, key=ratings.get)
+    if share >= MIN_SHARE_OF_RATING * ratings[weakest]:
+        return []
+    voltage = design.duty.reverse_voltage
+    return [PlausibilityWarning("duty.reverse_voltage", (
+        f"{format_quantity(voltage, 'V')} across {layout.series} devices in series is "
+        f"{format_quantity(share, 'V')} per device, {100 * share / ratings[weakest]:.2g} % of the V_RRM "
+        f"of part '{weakest}' ({format_quantity(ratings[weakest], 'V')}): orders of magnitude "
+        f"below any rating; a bare number is volts (write \"{voltage:g} kV\" if kilovolts were "
+        "meant)"))]
+
+
+def _turn_off_slopes(design: Design) -> list[PlausibilityWarning]:
+    duty = design.duty
+    threshold = SLOW_DI_DT
+    if (duty.waveform == "half-sine" and duty.frequency is not None
+            and duty.forward_current is not None):
+        # A branch's half-sine of average I carries I_pk = pi I; its slope at the zero is
+        # omega I_pk (the slowest natural turn-off).
+        peak = math.pi * duty.forward_current / design.string.parallel
+        threshold = min(threshold, 0.1 * 2.0 * math.pi * duty.frequency * peak)
+    found = []
+    if duty.di_dt is not None and duty.di_dt < threshold:
+        found.append(PlausibilityWarning("duty.di_dt", _slope_text(duty.di_dt, "turn-off slope")))
+    for name in design.parts_used():
+        part = design.parts[name]
+        for parameter in ("q_rr", "i_rm", "t_rr"):
+            spread = part.spread(parameter)
+            if spread is not None and spread.at_di_dt is not None and spread.at_di_dt < SLOW_DI_DT:
+                found.append(PlausibilityWarning(
+                    f"parts.{name}.{parameter}.at_di_dt",
+                    _slope_text(spread.at_di_dt, "datasheet test di/dt")))
+    return found
+
+
+def _slope_text(value: float, what: str) -> str:
+    return (f"a {what} of {value:g} A/s ({value * 1e-6:.3g} A/us) is orders of magnitude slower "
+            "than any commutation (1 to 1000 A/us is usual); a bare number is A/s: write "
+            f"\"{value:g} A/us\" if that was meant")
+
+
+def _spreads(design: Design) -> list[PlausibilityWarning]:
+    found = []
+    for name in design.parts_used():
+        part = design.parts[name]
+        for parameter in SPREAD_PARAMETERS:
+            spread = part.spread(parameter)
+            if spread is None or spread.typ <= 0:
+                continue
+            ratio = SPREAD_RATIO[parameter]
+            what = "leakage" if parameter == "i_r" else parameter
+            unit = _UNITS[parameter]
+            if spread.high is not None and spread.high >= ratio * spread.typ:
+                found.append(PlausibilityWarning(f"parts.{name}.{parameter}", (
+                    f"the maximum {what} {format_quantity(spread.high, unit)} is "
+                    f"{_times(spread.high / spread.typ)} its typical value "
+                    f"{format_quantity(spread.typ, unit)}" + _typ_note(spread.typ_assumed)
+                    + f"; limits sit within {_within(parameter)} of typ: check the units of both")))
+            if spread.low is not None and 0 < spread.low and spread.typ >= ratio * spread.low:
+                found.append(PlausibilityWarning(f"parts.{name}.{parameter}", (
+                    f"the typical {what} {format_quantity(spread.typ, unit)} is "
+                    f"{_times(spread.typ / spread.low)} its minimum "
+                    f"{format_quantity(spread.low, unit)}; limits sit within "
+                    f"{_within(parameter)} of typ: check the units of both")))
+    return found
+
+
+def _times(ratio: float) -> str:
+    return f"{ratio:,.0f} x" if ratio < 1e9 else f"{ratio:.2g} x"
+
+
+def _typ_note(assumed: bool) -> str:
+    return " (typ assumed from the max)" if assumed else ""
+
+
+def _within(parameter: str) -> str:
+    return "about a decade" if parameter == "i_r" else (
+        "a factor of 2 or 3" if parameter in LOGNORMAL_PARAMETERS else "some tens of percent")
+
+
+_UNITS = {"i_r": "A", "q_rr": "C", "i_rm": "A", "t_rr": "s", "v_t0": "V", "r_t": "ohm"}

@@ -1,0 +1,77 @@
+"""The grading network's ratings against the worst stage voltage of every check that ran."""
+
+from __future__ import annotations
+
+import pytest
+
+from stringcheck.design import parse_design_text
+from stringcheck.report.export import result_to_dict
+from stringcheck.studies.check import run_check
+
+# A small ringing stack of our own: a low damping resistor lets the stray inductance overshoot far
+# above the charge-balance voltage (1 kV devices, peaks near 1.7 kV).
+RINGING = """
+[duty]
+reverse_voltage = "3 kV"
+waveform = "half-sine"
+frequency = "50 Hz"
+di_dt = "20 A/us"
+forward_current = "1 A"
+[string]
+series = 4
+derating = 0.9
+part = "F"
+[parts.F]
+v_rrm = "1 kV"
+i_r = { typ = "0.5 uA", max = "3 uA", at_temperature = "25 degC" }
+q_rr = { typ = "60 nC", max = "100 nC", at_di_dt = "20 A/us", at_forward_current = "1 A" }
+t_rr = { typ = "0.15 us", at_di_dt = "20 A/us" }
+c_j = "20 pF"
+[grading]
+resistor = "2 MOhm"
+resistor_tolerance = "1 %"
+resistor_rated_voltage = "RATED"
+capacitor = "330 pF"
+capacitor_tolerance = "5 %"
+capacitor_rated_voltage = "RATED"
+damping_resistor = "10 ohm"
+[monte_carlo]
+trials = 400
+seed = 5
+[sizing]
+target_p_fail = 0.02
+"""
+
+
+def _run(rated: str, *, transient: bool):
+    design = parse_design_text(RINGING.replace("RATED", rated))
+    return run_check(design, transient=transient, transient_worst=5, transient_sample=20)
+
+
+def test_ratings_are_judged_at_the_simulated_turn_off_peak():
+    # Issue 14.6: 1.2 kV resistors and capacitors beside simulated peaks of about 1.7 kV must be a
+    # rating problem. The worst stage voltage is the maximum of every voltage check's own worst
+    # (the grading components sit across the stage), here the transient's.
+    result = _run("1.2 kV", transient=True)
+    checks = result.checks
+    peaks = {name: checks[name].worst_voltage for name in ("static", "dynamic", "transient")}
+    assert peaks["static"] < 1200.0 and peaks["dynamic"] < 1200.0 < peaks["transient"], peaks
+    assert result.grading.worst_resistor_voltage == max(peaks.values())
+    assert result.grading.worst_voltage_check == "transient"
+    problems = result.grading.rating_problems
+    assert any(p.startswith("grading resistor sees") and "simulated turn-off" in p
+               for p in problems), problems
+    assert any(p.startswith("grading capacitor sees") for p in problems), problems
+    assert result.verdict == "fail"
+    network = result_to_dict(result)["network"]
+    assert network["worst_stage_voltage"] == pytest.approx(peaks["transient"])
+    assert network["worst_stage_voltage_check"] == "transient"
+
+
+def test_without_the_transient_the_charge_balance_worst_rates_the_parts():
+    # The same 1.2 kV ratings hold against the checks that ran when the turn-off is not simulated.
+    result = _run("1.2 kV", transient=False)
+    assert result.grading.worst_voltage_check in ("static", "dynamic")
+    assert result.grading.worst_resistor_voltage == max(
+        result.checks[name].worst_voltage for name in ("static", "dynamic"))
+    assert not result.grading.rating_problems
