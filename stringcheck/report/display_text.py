@@ -17,7 +17,7 @@ from typing import IO, List
 from rich.console import Console, ConsoleOptions, ConsoleRenderable, RenderHook, RenderResult
 from rich.segment import Segment
 
-__all__ = ["CONTROL_CHARACTERS", "excerpt", "report_console", "shown"]
+__all__ = ["CONTROL_CHARACTERS", "report_console", "shown"]
 
 # C0 (U+0000-U+001F, newline and tab included), DEL (U+007F) and C1 (U+0080-U+009F): the code
 # points ECMA-48 (5th edition, 1991), clause 5, reserves for control functions.
@@ -28,15 +28,6 @@ _CONTROL_BUT_NEWLINE = re.compile("[\x00-\x09\x0b-\x1f\x7f-\x9f]")
 def shown(text: object) -> str:
     """``text`` as one printable line: every control character replaced by ``?``."""
     return CONTROL_CHARACTERS.sub("?", str(text))
-
-
-def excerpt(text: object, limit: int = 40) -> str:
-    """At most ``limit`` characters of ``text``, control characters as ``?``, quoted, with ``...``
-    when cut: how a message quotes what it read from a file it does not trust."""
-    clean = shown(text)
-    if len(clean) > limit:
-        clean = clean[:limit - 3] + "..."
-    return repr(clean)
 
 
 class _Clean:

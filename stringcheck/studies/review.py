@@ -24,7 +24,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..design import MAX_LEAKAGE_DOUBLINGS, Design, Mix, PositionOverride
-from ..errors import StringcheckError
+from ..errors import StringcheckError, excerpt
 from ..part_reading import check_lot_sizes
 from .check import CheckResult, run_check
 from .runner import worker_pool
@@ -77,19 +77,13 @@ class ReviewResult:
 _SWAP = re.compile(r"^\s*([0-9,\-\s]+)\s*:\s*([^:\s]+)\s*$")
 
 
-def _quoted(text: str, limit: int = 40) -> str:
-    """``text`` for a one-line message: at most ``limit`` characters, control characters as ?."""
-    clean = "".join(c if c.isprintable() else "?" for c in text[:limit + 1])
-    return repr(clean if len(clean) <= limit else clean[:limit - 3] + "...")
-
-
 def parse_swap(text: str, design: Design) -> tuple[tuple[int, ...], str]:
     """``"1-4:B"`` or ``"7,9:B"`` -> (positions, part), checked against ``design``.
 
     Every number is checked against the string's series count before a range is built, so a slip
     (``1-100000000:B``) is one short message, not a list of a hundred million positions.
     """
-    option = f"--swap {_quoted(text)}"
+    option = f"--swap {excerpt(text)}"
     match = _SWAP.match(text)
     if not match:
         raise StringcheckError(f"{option}: write POSITIONS:PART, e.g. 1-4:B or 7,9:B")
@@ -98,7 +92,7 @@ def parse_swap(text: str, design: Design) -> tuple[tuple[int, ...], str]:
     def position(digits: str, piece: str) -> int:
         digits = digits.strip()
         if not digits.isdigit():
-            raise StringcheckError(f"{option}: {_quoted(piece)} is not a position number or a "
+            raise StringcheckError(f"{option}: {excerpt(piece)} is not a position number or a "
                                    "range like 1-4")
         # More digits than any series count has: out of range without reading the number.
         number = int(digits) if len(digits) <= 9 else series + 1
@@ -116,10 +110,10 @@ def parse_swap(text: str, design: Design) -> tuple[tuple[int, ...], str]:
         if "-" in piece:
             first, _, last = piece.partition("-")
             if not (first.strip().isdigit() and last.strip().isdigit()):
-                raise StringcheckError(f"{option}: {_quoted(piece)} is not a range like 1-4")
+                raise StringcheckError(f"{option}: {excerpt(piece)} is not a range like 1-4")
             low, high = position(first, piece), position(last, piece)
             if low > high:
-                raise StringcheckError(f"{option}: the range {_quoted(piece)} runs backwards")
+                raise StringcheckError(f"{option}: the range {excerpt(piece)} runs backwards")
             positions.update(range(low, high + 1))
         else:
             positions.add(position(piece, piece))
@@ -128,8 +122,8 @@ def parse_swap(text: str, design: Design) -> tuple[tuple[int, ...], str]:
     part = match.group(2)
     if part not in design.parts:
         known = ", ".join(sorted(design.parts))
-        raise StringcheckError(f"{option}: no part {_quoted(part)} in {design.source}; define "
-                               f"[parts.{_quoted(part)[1:-1]}] there (known: {known})")
+        raise StringcheckError(f"{option}: no part {excerpt(part)} in {design.source}; define "
+                               f"[parts.{excerpt(part)[1:-1]}] there (known: {known})")
     ordered = tuple(sorted(positions))
     _check_substitute(design, part, option,
                       design.string.temperature_rise_grid()[:, [p - 1 for p in ordered]])
@@ -166,14 +160,14 @@ _MIX = re.compile(r"^\s*([^:%\s]+)\s*(%?)\s*:\s*([^:\s]+)\s*$")
 
 def parse_mix(text: str, design: Design) -> tuple[float, str]:
     """``"0.25:B"`` or ``"25%:B"`` -> (fraction [1] in [0, 1], part), checked against ``design``."""
-    option = f"--mix {_quoted(text)}"
+    option = f"--mix {excerpt(text)}"
     match = _MIX.match(text)
     if not match:
         raise StringcheckError(f"{option}: write FRACTION:PART, e.g. 0.25:B or 25%:B")
     try:
         fraction = float(match.group(1))
     except ValueError:
-        raise StringcheckError(f"{option}: {_quoted(match.group(1))} is not a number; write "
+        raise StringcheckError(f"{option}: {excerpt(match.group(1))} is not a number; write "
                                "FRACTION:PART, e.g. 0.25:B or 25%:B") from None
     if match.group(2):
         fraction /= 100.0
@@ -182,8 +176,8 @@ def parse_mix(text: str, design: Design) -> tuple[float, str]:
     part = match.group(3)
     if part not in design.parts:
         known = ", ".join(sorted(design.parts))
-        raise StringcheckError(f"{option}: no part {_quoted(part)} in {design.source}; define "
-                               f"[parts.{_quoted(part)[1:-1]}] there (known: {known})")
+        raise StringcheckError(f"{option}: no part {excerpt(part)} in {design.source}; define "
+                               f"[parts.{excerpt(part)[1:-1]}] there (known: {known})")
     _check_substitute(design, part, option, design.string.temperature_rise_grid())
     return fraction, part
 
