@@ -408,7 +408,8 @@ def _header(columns, source: str, where: str) -> tuple[list[str], list, str | No
         expected = _UNITS[name]
         if not unit_text:
             raise DesignError(f"column {number} {excerpt(text)} has no unit {where}; write the "
-                              f"unit in brackets, e.g. '{name} [{_example_unit(name)}]'", source=source)
+                              f"unit in brackets, e.g. '{name} [{_example_unit(name)}]'",
+                              source=source)
         try:
             factor = parse_quantity(f"1 {unit_text}", expected, key=f"column {excerpt(text)}")
         except QuantityError:
