@@ -44,8 +44,8 @@ def render_lots(design: Design, console: Console, *, also: Design | None = None)
     review's other design), its lots too, each lot once."""
     if also is not None:
         render_lots(design, console)
-        shown = frozenset((name, lot.path) for name, lot in _lots(design))
-        design, lots = also, list(_lots(also, shown))
+        listed = frozenset((name, lot.path) for name, lot in _lots(design))
+        design, lots = also, list(_lots(also, listed))
     else:
         lots = list(_lots(design))
     for name, lot in lots:
