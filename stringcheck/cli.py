@@ -338,7 +338,7 @@ def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capaci
                           progress=progress, workers=workers, transient=transient)
     outputs = [] if json_path is None else [(json_path, json_text(sizing_to_dict(result)))]
     console = _console(stderr=json_path == "-", wrap=not quiet)
-    with atomic_outputs(outputs):
+    with atomic_outputs(outputs), _report_stream(json_path == "-"):
         if quiet:
             r = result.resistor.chosen.value
             c = result.design.grading.capacitor if result.capacitor else None
@@ -418,7 +418,26 @@ def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trial
 def _print_report(result, *, quiet: bool, stderr: bool, full, summary) -> None:
     """The report, or its one line with --quiet; on stderr when machine output is on stdout."""
     console = _console(stderr=stderr, wrap=not quiet)
-    (summary if quiet else full)(result, console)
+    with _report_stream(stderr):
+        (summary if quiet else full)(result, console)
+
+
+class _report_stream:
+    """Turn a report that cannot be written (``> /dev/full``) into an input error; a reader that
+    left (BrokenPipeError) goes on to exit 141."""
+
+    def __init__(self, stderr: bool = False) -> None:
+        self.name = "standard error" if stderr else "standard output"
+
+    def __enter__(self) -> None:
+        return None
+
+    def __exit__(self, kind, value, trace) -> bool:
+        if kind is not None and issubclass(kind, OSError) and not issubclass(kind, BrokenPipeError):
+            raise StringcheckError(f"the report cannot be written to {self.name} "
+                                   f"({value.strerror or kind.__name__}); no output file was "
+                                   "replaced") from None
+        return False
 
 
 @app.command()
@@ -462,7 +481,7 @@ def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, he
     outputs = [] if csv_path is None else \
         [(csv_path, waveform_csv(result.trace, capacitor_voltages=True))]
     console = _console(stderr=csv_path == "-")
-    with atomic_outputs(outputs):
+    with atomic_outputs(outputs), _report_stream(csv_path == "-"):
         if not bool(result.converged[0]):
             console.print("[bold red]the engine could not finish this trial; the plot shows what "
                           "was reached[/]", markup=True)

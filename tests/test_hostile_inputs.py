@@ -195,3 +195,22 @@ def test_sigterm_stops_the_worker_processes_and_exits_143(tmp_path):
     assert not any(_alive(pid) for pid in workers), "a worker outlived the command"
     assert kept.read_text() == "old"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["kept.json"]
+
+
+@pytest.mark.skipif(not Path("/dev/full").exists(), reason="needs /dev/full")
+@pytest.mark.parametrize("machine", [False, True], ids=["report", "json on stdout"])
+def test_a_full_standard_output_is_exit_2_and_replaces_nothing(tmp_path, machine):
+    # null(4): every write to /dev/full fails with ENOSPC, as a full disk would.
+    kept = tmp_path / "kept.csv"
+    kept.write_text("old")
+    args = ["demo", "--trials", "300", "--no-rare", "--quiet", "--csv", str(kept)]
+    with open("/dev/full", "w") as full:
+        done = subprocess.run(_command(*args, *(["--json", "-"] if machine else [])),
+                              stdout=full, stderr=subprocess.PIPE, text=True, timeout=120,
+                              env=_environment())
+    assert done.returncode == 2, done.stderr
+    lines = done.stderr.strip().splitlines()
+    assert "standard output" in lines[-1] and "No space left" in lines[-1], done.stderr
+    assert "Traceback" not in done.stderr
+    assert kept.read_text() == "old"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["kept.csv"]

@@ -245,8 +245,14 @@ def atomic_outputs(files: Sequence[tuple[str | Path, str]]) -> Iterator[None]:
             staged.append((_stage(target, text), target))
         yield
         for text in to_stdout:
-            sys.stdout.write(text)
-            sys.stdout.flush()
+            try:
+                sys.stdout.write(text)
+                sys.stdout.flush()
+            except BrokenPipeError:
+                raise  # the reader left: exit 141, not an error of the input
+            except OSError as error:  # `--json - > /dev/full`
+                raise StringcheckError(f"standard output cannot be written ({error.strerror}); "
+                                       "no output file was replaced") from None
         while staged:
             temporary, target = staged[0]
             os.replace(temporary, target)
