@@ -93,6 +93,9 @@ def load_design(path: str | Path) -> Design:
                               f"{MAX_FILE_BYTES:,}); check the path", source=source)
         with path.open("rb") as stream:
             data = stream.read(MAX_FILE_BYTES + 1)
+        if len(data) > MAX_FILE_BYTES:  # a file under /proc says 0 bytes whatever it holds
+            raise DesignError(f"holds more than {MAX_FILE_BYTES:,} bytes, too large for a design "
+                              "file; check the path", source=source)
     except OSError as error:
         reason = error.strerror or type(error).__name__
         raise DesignError(f"cannot be read ({reason})", source=source) from None

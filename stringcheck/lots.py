@@ -318,9 +318,12 @@ def _read_table(path: Path, source: str, where: str, *, design_source: str, key:
         if not path.is_file():
             raise DesignError(f"{excerpt(source, 80)} is not a regular file; give a CSV file of "
                               "measured devices", source=design_source, key=key)
-        with path.open("rb") as stream:
-            data = stream.read(MAX_LOT_BYTES + 1)
-        if len(data) > MAX_LOT_BYTES:
+        too_large = path.stat().st_size > MAX_LOT_BYTES  # refused without reading it
+        if not too_large:
+            with path.open("rb") as stream:
+                data = stream.read(MAX_LOT_BYTES + 1)
+            too_large = len(data) > MAX_LOT_BYTES  # a file under /proc says 0 bytes
+        if too_large:
             raise DesignError(f"is larger than {MAX_LOT_BYTES:,} bytes {where}; a lot file holds "
                               "one row per device", source=source)
         if b"\x00" in data:

@@ -214,3 +214,12 @@ def test_a_full_standard_output_is_exit_2_and_replaces_nothing(tmp_path, machine
     assert "Traceback" not in done.stderr
     assert kept.read_text() == "old"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["kept.csv"]
+
+
+@LINUX
+def test_a_design_file_under_proc_is_read_only_up_to_the_cap():
+    # proc(5): pagemap reports size 0 and holds 8 bytes per virtual page, far beyond 4 MiB.
+    if not os.access("/proc/self/pagemap", os.R_OK):
+        pytest.skip("/proc/self/pagemap cannot be read here")
+    one_line_error(runner.invoke(app, ["check", "/proc/self/pagemap"]), "/proc/self/pagemap",
+                   "too large for a design file")
