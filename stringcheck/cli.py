@@ -583,8 +583,10 @@ def main() -> None:
     except usage_error as error:
         if type(error).__name__ == "NoArgsIsHelpError":  # bare `stringcheck`: help was shown
             sys.exit(EXIT_INPUT)
+        from .report.display_text import shown
+
         where = error.ctx.command_path if error.ctx is not None else "stringcheck"
-        print(f"error: {' '.join(error.format_message().split())} (see '{where} --help')",
+        print(f"error: {shown(' '.join(error.format_message().split()))} (see '{where} --help')",
               file=sys.stderr)
         sys.exit(EXIT_INPUT)
     except KeyboardInterrupt:  # pragma: no cover - interrupt outside a command
