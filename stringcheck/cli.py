@@ -1,7 +1,7 @@
 """The ``stringcheck`` command line: parse options, call one study, hand the result to a renderer.
 
 Exit codes: 0 every check passes; 1 a check fails; 2 bad input or usage; 3 internal error;
-130 interrupted.
+130 interrupted (Ctrl-C); 141 the reader of standard output went away; 143 terminated (SIGTERM).
 """
 
 from __future__ import annotations
@@ -25,6 +25,7 @@ from .errors import ImpossibleDesignError, StringcheckError
 
 EXIT_PASS, EXIT_FAIL, EXIT_INPUT, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
 EXIT_BROKEN_PIPE = 141  # 128 + SIGPIPE, what a shell reports for a writer whose reader left
+EXIT_TERMINATED = 143  # 128 + SIGTERM, what a shell reports for a process ended by `kill`
 
 app = typer.Typer(
     add_completion=False,
@@ -60,7 +61,39 @@ _WORKERS = typer.Option(1, "--workers", help="Processes to run the trials in (th
 
 
 def _console(stderr: bool = False, *, wrap: bool = True) -> Console:
-    return Console(stderr=stderr, highlight=False, soft_wrap=not wrap)
+    from .report.display_text import report_console
+
+    return report_console(stderr=stderr, soft_wrap=not wrap)
+
+
+class _Terminated(BaseException):
+    """SIGTERM arrived: unwind like Ctrl-C (worker processes stopped, no output file left), but
+    not as an Exception, which some code may catch."""
+
+
+class _TerminateOnSigterm:
+    """While a command runs, turn SIGTERM into :class:`_Terminated` (main thread only, and only
+    where SIGTERM would end the process anyway), so that cleanup runs: worker processes are
+    stopped and temporary files removed."""
+
+    def __init__(self) -> None:
+        self.previous = None
+
+    def __enter__(self) -> "_TerminateOnSigterm":
+        if threading.current_thread() is threading.main_thread() and \
+                signal.getsignal(signal.SIGTERM) is signal.SIG_DFL:
+            self.previous = signal.signal(signal.SIGTERM, self._raise)
+        return self
+
+    @staticmethod
+    def _raise(signum, frame) -> None:
+        raise _Terminated
+
+    def __exit__(self, *exc) -> bool:
+        if self.previous is not None:
+            signal.signal(signal.SIGTERM, self.previous)
+            self.previous = None
+        return False
 
 
 class _DeferredInterrupt:
@@ -152,15 +185,19 @@ class _DelayedProgress:
 
 
 def _one_line(error: BaseException) -> str:
+    """The message as one line of rich markup: user text in it is escaped, control characters
+    shown as '?'."""
     from rich.markup import escape
 
-    return escape(" ".join(str(error).split()))
+    from .report.display_text import shown
+
+    return escape(shown(" ".join(str(error).split())))
 
 
 def _run(action: Callable[[], int], debug: bool) -> None:
     """Run ``action`` and turn its outcome into an exit code, never a traceback (unless --debug)."""
     try:
-        with warnings.catch_warnings():
+        with warnings.catch_warnings(), _TerminateOnSigterm():
             if not debug:
                 # numpy's overflow and invalid-value warnings are not messages for a user: a trial
                 # that could not be solved is counted and reported as such. --debug shows them.
@@ -177,6 +214,12 @@ def _run(action: Callable[[], int], debug: bool) -> None:
     except KeyboardInterrupt:
         _console(stderr=True).print("interrupted; no partial output file was left behind")
         code = EXIT_INTERRUPTED
+    except _Terminated:
+        try:
+            _console(stderr=True).print("terminated; no partial output file was left behind")
+        except OSError:
+            pass
+        code = EXIT_TERMINATED
     except BrokenPipeError:
         # The reader of standard output went away (`--json - | head`): not an error of ours.
         # Point stdout at /dev/null so that the interpreter's final flush stays quiet.
@@ -196,22 +239,32 @@ def _run(action: Callable[[], int], debug: bool) -> None:
     raise typer.Exit(code)
 
 
+def _read_files(design, path: Path, what: str = "the design file") -> list[tuple[Path, str]]:
+    """Every file a run of ``design`` reads, with what it is: no output may replace one."""
+    files = [(Path(path), what)]
+    for name, part in design.parts.items():
+        if part.measured is not None:
+            files.append((Path(part.measured.path), f"the measured lot of parts.{name}"))
+    return files
+
+
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
            transient=None, drivers=False, rare=None, source_label=None) -> int:
     from .design import load_design
     from .report.export import (
+        atomic_outputs,
         check_output_targets,
         json_text,
         positions_csv,
         result_to_dict,
-        write_files_atomic,
     )
     from .report.terminal import render_check, render_check_summary
     from .studies.check import run_check
 
     design = load_design(path)
     check_output_targets({"--json": json_path, "--csv": csv_path},
-                         inputs=[path] if source_label is None else [])
+                         inputs=_read_files(design, path, "the design file" if source_label is None
+                                            else "the bundled demo design"))
     if source_label is not None:
         from dataclasses import replace
 
@@ -220,16 +273,17 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
     with _DelayedProgress(enabled=not quiet, label="drawing strings") as progress:
         result = run_check(design, trials=trials, seed=seed, progress=progress, workers=workers,
                            drivers=drivers, rare=rare, **(transient or {}))
-    # Both texts are made before either file is touched, and both files are replaced together.
+    # Both texts are made before either file is touched; both files are replaced together, after
+    # the report was printed, so that a report that fails leaves the old files.
     outputs = []
     if json_path is not None:
         outputs.append((json_path, json_text(result_to_dict(result))))
     if csv_path is not None:
         outputs.append((csv_path, positions_csv(result)))
-    write_files_atomic(outputs)
-    # With machine output on standard output, the report goes to stderr so the two never mix.
-    _print_report(result, quiet=quiet, stderr=to_stdout, full=render_check,
-                  summary=render_check_summary)
+    with atomic_outputs(outputs):
+        # With machine output on standard output, the report goes to stderr so the two never mix.
+        _print_report(result, quiet=quiet, stderr=to_stdout, full=render_check,
+                      summary=render_check_summary)
     return EXIT_PASS if result.verdict == "pass" else EXIT_FAIL
 
 
@@ -265,12 +319,12 @@ def _transient_options(transient: bool, worst: int, sample: Optional[int]) -> di
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,
           find_series, workers=1, transient=False) -> int:
     from .design import load_design
-    from .report.export import check_output_targets, json_text, sizing_to_dict, write_text_atomic
+    from .report.export import atomic_outputs, check_output_targets, json_text, sizing_to_dict
     from .report.terminal import render_check_summary, render_sizing
     from .studies.size import size as run_size
 
     design = load_design(path)
-    check_output_targets({"--json": json_path}, inputs=[path])
+    check_output_targets({"--json": json_path}, inputs=_read_files(design, path))
     status = _console(stderr=True)
     with _DeferredInterrupt() if not quiet else _nothing() as interrupt, \
             status.status("sizing", spinner="line") if not quiet else _nothing() as spinner:
@@ -282,18 +336,18 @@ def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capaci
         result = run_size(design, trials=trials, seed=seed, resistor_series=resistor_series,
                           capacitor_series=capacitor_series, find_series=find_series,
                           progress=progress, workers=workers, transient=transient)
-    if json_path is not None:
-        write_text_atomic(json_path, json_text(sizing_to_dict(result)))
+    outputs = [] if json_path is None else [(json_path, json_text(sizing_to_dict(result)))]
     console = _console(stderr=json_path == "-", wrap=not quiet)
-    if quiet:
-        r = result.resistor.chosen.value
-        c = result.design.grading.capacitor if result.capacitor else None
-        console.print(f"R = {r:.4g} ohm" + (f", C = {c:.4g} F" if c else "")
-                      + (f", R_d = {result.damping_resistor:.3g} ohm" if result.damping_resistor
-                         else "") + f", n = {result.series_count}; ", end="")
-        render_check_summary(result.check, console)
-    else:
-        render_sizing(result, console)
+    with atomic_outputs(outputs), _report_stream(json_path == "-"):
+        if quiet:
+            r = result.resistor.chosen.value
+            c = result.design.grading.capacitor if result.capacitor else None
+            console.print(f"R = {r:.4g} ohm" + (f", C = {c:.4g} F" if c else "")
+                          + (f", R_d = {result.damping_resistor:.3g} ohm" if result.damping_resistor
+                             else "") + f", n = {result.series_count}; ", end="")
+            render_check_summary(result.check, console)
+        else:
+            render_sizing(result, console)
     return EXIT_PASS if result.check.verdict == "pass" else EXIT_FAIL
 
 
@@ -333,37 +387,57 @@ def size(
 def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trials, seed,
             json_path, quiet, workers, transient, drivers=False, rare=None) -> int:
     from .design import load_design
-    from .report.export import check_output_targets, json_text, write_text_atomic
+    from .report.export import atomic_outputs, check_output_targets, json_text
     from .report.review import render_review, render_review_summary, review_to_dict
     from .studies.review import mixed, parse_mix, parse_swap, review, swapped
 
     baseline = load_design(base_path)
-    check_output_targets({"--json": json_path},
-                         inputs=[base_path] + ([candidate_path] if candidate_path else []))
+    read = _read_files(baseline, base_path, "the baseline design file")
     if [candidate_path, swap, mix].count(None) != 2:
         raise StringcheckError("give exactly one of a CANDIDATE design file, --swap POSITIONS:PART "
                                "(e.g. --swap 1-4:B) or --mix FRACTION:PART (e.g. --mix 0.25:B)")
     if candidate_path is not None:
         candidate = load_design(candidate_path)
-    elif mix is not None:
+        read += _read_files(candidate, candidate_path, "the candidate design file")
+    check_output_targets({"--json": json_path}, inputs=read)
+    if mix is not None:
         candidate = mixed(baseline, *parse_mix(mix, baseline))
-    else:
+    elif swap is not None:
         positions, part = parse_swap(swap, baseline)
         candidate = swapped(baseline, positions, part)
     with _DelayedProgress(enabled=not quiet, label="baseline, then candidate") as progress:
         result = review(baseline, candidate, trials=trials, seed=seed, workers=workers,
                         transient=transient, rare=rare, drivers=drivers, progress=progress)
-    if json_path is not None:
-        write_text_atomic(json_path, json_text(review_to_dict(result)))
-    _print_report(result, quiet=quiet, stderr=json_path == "-", full=render_review,
-                  summary=render_review_summary)
+    outputs = [] if json_path is None else [(json_path, json_text(review_to_dict(result)))]
+    with atomic_outputs(outputs):
+        _print_report(result, quiet=quiet, stderr=json_path == "-", full=render_review,
+                      summary=render_review_summary)
     return EXIT_PASS if result.verdict == "accept" else EXIT_FAIL
 
 
 def _print_report(result, *, quiet: bool, stderr: bool, full, summary) -> None:
     """The report, or its one line with --quiet; on stderr when machine output is on stdout."""
     console = _console(stderr=stderr, wrap=not quiet)
-    (summary if quiet else full)(result, console)
+    with _report_stream(stderr):
+        (summary if quiet else full)(result, console)
+
+
+class _report_stream:
+    """Turn a report that cannot be written (``> /dev/full``) into an input error; a reader that
+    left (BrokenPipeError) goes on to exit 141."""
+
+    def __init__(self, stderr: bool = False) -> None:
+        self.name = "standard error" if stderr else "standard output"
+
+    def __enter__(self) -> None:
+        return None
+
+    def __exit__(self, kind, value, trace) -> bool:
+        if kind is not None and issubclass(kind, OSError) and not issubclass(kind, BrokenPipeError):
+            raise StringcheckError(f"the report cannot be written to {self.name} "
+                                   f"({value.strerror or kind.__name__}); no output file was "
+                                   "replaced") from None
+        return False
 
 
 @app.command()
@@ -396,25 +470,27 @@ def review(
 
 def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height) -> int:
     from .design import load_design
-    from .report.export import check_output_targets, write_text_atomic
+    from .report.display_text import shown
+    from .report.export import atomic_outputs, check_output_targets
     from .report.waveform import waveform_csv, waveform_plot
     from .studies.transient_check import trial_trace
 
     design = load_design(path)
-    check_output_targets({"--csv": csv_path}, inputs=[path])
+    check_output_targets({"--csv": csv_path}, inputs=_read_files(design, path))
     result, notes = trial_trace(design, trial, trials=trials, seed=seed, branch=branch)
-    if csv_path is not None:
-        write_text_atomic(csv_path, waveform_csv(result.trace, capacitor_voltages=True))
+    outputs = [] if csv_path is None else \
+        [(csv_path, waveform_csv(result.trace, capacitor_voltages=True))]
     console = _console(stderr=csv_path == "-")
-    if not bool(result.converged[0]):
-        console.print("[bold red]the engine could not finish this trial; the plot shows what was "
-                      "reached[/]", markup=True)
-    console.print(f"{design.title}: trial {trial}, branch {branch}; turn-off from "
-                  f"{result.trace.time.shape[0]} recorded steps", highlight=False)
-    console.print(waveform_plot(result.trace, width=width, height=height, worst=worst),
-                  end="", highlight=False, markup=False)
-    for note in notes:
-        console.print(f"note: {note}", highlight=False)
+    with atomic_outputs(outputs), _report_stream(csv_path == "-"):
+        if not bool(result.converged[0]):
+            console.print("[bold red]the engine could not finish this trial; the plot shows what "
+                          "was reached[/]", markup=True)
+        console.print(f"{shown(design.title)}: trial {trial}, branch {branch}; turn-off from "
+                      f"{result.trace.time.shape[0]} recorded steps")
+        console.print(waveform_plot(result.trace, width=width, height=height, worst=worst),
+                      end="")
+        for note in notes:
+            console.print(f"note: {shown(note)}")
     return EXIT_PASS
 
 
@@ -507,8 +583,10 @@ def main() -> None:
     except usage_error as error:
         if type(error).__name__ == "NoArgsIsHelpError":  # bare `stringcheck`: help was shown
             sys.exit(EXIT_INPUT)
+        from .report.display_text import shown
+
         where = error.ctx.command_path if error.ctx is not None else "stringcheck"
-        print(f"error: {' '.join(error.format_message().split())} (see '{where} --help')",
+        print(f"error: {shown(' '.join(error.format_message().split()))} (see '{where} --help')",
               file=sys.stderr)
         sys.exit(EXIT_INPUT)
     except KeyboardInterrupt:  # pragma: no cover - interrupt outside a command

@@ -93,6 +93,9 @@ def load_design(path: str | Path) -> Design:
                               f"{MAX_FILE_BYTES:,}); check the path", source=source)
         with path.open("rb") as stream:
             data = stream.read(MAX_FILE_BYTES + 1)
+        if len(data) > MAX_FILE_BYTES:  # a file under /proc says 0 bytes whatever it holds
+            raise DesignError(f"holds more than {MAX_FILE_BYTES:,} bytes, too large for a design "
+                              "file; check the path", source=source)
     except OSError as error:
         reason = error.strerror or type(error).__name__
         raise DesignError(f"cannot be read ({reason})", source=source) from None
@@ -122,7 +125,17 @@ def parse_design_text(text: str, *, source: str = "<design>") -> Design:
         line = _line_of_long_number(text)
         raise DesignError(f"TOML syntax error: a number too long to read (line {line}); "
                           "write it in exponent form, e.g. 1e3", source=source) from None
-    return parse_design(raw, source=source)
+    except RecursionError:
+        # tomllib reads nested arrays and inline tables by recursion; a design needs a few levels.
+        raise DesignError(_TOO_DEEP, source=source) from None
+    try:
+        return parse_design(raw, source=source)
+    except RecursionError:
+        raise DesignError(_TOO_DEEP, source=source) from None
+
+
+_TOO_DEEP = ("TOML nesting too deep (arrays or inline tables nested hundreds of levels); a design "
+             "file nests a few levels at most: check the brackets")
 
 
 def _quoted_line(text: str, message: str) -> str:

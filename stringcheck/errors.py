@@ -51,3 +51,13 @@ class ImpossibleDesignError(StringcheckError):
 
     The command line reports it as a failed design (exit code 1), not as bad input.
     """
+
+
+def excerpt(text: object, limit: int = 40) -> str:
+    """How a message quotes text it read from a file or an option: at most ``limit`` characters,
+    every non-printable character (control characters, line breaks) as ``?``, in quotes, with
+    ``...`` where it was cut. A message stays one short line, and a file the user did not mean to
+    name (``/etc/shadow``) is not echoed."""
+    raw = str(text)
+    clean = "".join(c if c.isprintable() else "?" for c in raw[:limit + 1])
+    return repr(clean if len(clean) <= limit else clean[:limit - 3] + "...")

@@ -29,7 +29,7 @@ import numpy as np
 from scipy import special, stats
 
 from .design import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Spread
-from .errors import DesignError, QuantityError
+from .errors import DesignError, QuantityError, excerpt
 from .quantity import AMPERE, COULOMB, OHM, SECOND, VOLT, parse_quantity
 
 FITS = ("resample", "lognormal", "normal", "auto")
@@ -301,21 +301,37 @@ def read_lot(path: Path, *, key: str, design_source: str, fit: str,
 
 
 def _read_table(path: Path, source: str, where: str, *, design_source: str, key: str):
-    """The lot's cells as text, and the file line of each row (blank lines dropped)."""
+    """The lot's cells as text, and the file line of each row (blank lines dropped).
+
+    At most ``MAX_LOT_BYTES`` + 1 bytes are read, whatever size the file claims (a file under
+    /proc says 0 and may never end), and a binary file is refused before it is parsed.
+    """
+    import io
+
     import pandas as pd
 
     try:
         if not path.exists():
-            raise DesignError(f"no such lot file {source!r}; check the path (it is read relative "
-                              "to the design file's folder)", source=design_source, key=key)
+            raise DesignError(f"no such lot file {excerpt(source, 80)}; check the path (it is "
+                              "read relative to the design file's folder)", source=design_source,
+                              key=key)
         if not path.is_file():
-            raise DesignError(f"{source!r} is not a regular file; give a CSV file of measured "
-                              "devices", source=design_source, key=key)
-        if path.stat().st_size > MAX_LOT_BYTES:
+            raise DesignError(f"{excerpt(source, 80)} is not a regular file; give a CSV file of "
+                              "measured devices", source=design_source, key=key)
+        too_large = path.stat().st_size > MAX_LOT_BYTES  # refused without reading it
+        if not too_large:
+            with path.open("rb") as stream:
+                data = stream.read(MAX_LOT_BYTES + 1)
+            too_large = len(data) > MAX_LOT_BYTES  # a file under /proc says 0 bytes
+        if too_large:
             raise DesignError(f"is larger than {MAX_LOT_BYTES:,} bytes {where}; a lot file holds "
                               "one row per device", source=source)
-        table = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True,
-                            encoding="utf-8-sig", skip_blank_lines=False)
+        if b"\x00" in data:
+            raise DesignError(f"is a binary file, not a CSV lot {where}; give the CSV file of "
+                              "measured devices", source=source)
+        text = data.decode("utf-8-sig")
+        table = pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False,
+                            skipinitialspace=True, skip_blank_lines=False)
     except DesignError:
         raise
     except pd.errors.EmptyDataError:
@@ -325,9 +341,11 @@ def _read_table(path: Path, source: str, where: str, *, design_source: str, key:
         raise DesignError(f"is not UTF-8 text {where}; save it as UTF-8 (\"CSV UTF-8\" in a "
                           "spreadsheet)", source=source) from None
     except (pd.errors.ParserError, OSError) as error:
-        reason = str(error).splitlines()[0] if str(error) else type(error).__name__
-        raise DesignError(f"cannot be read as CSV ({reason}) {where}; write one row per device, "
-                          "comma-separated, with a header row", source=source) from None
+        # The reason as pandas or the system gives it, cut short: it may quote the file.
+        reason = (str(error).splitlines() or [type(error).__name__])[0]
+        raise DesignError(f"cannot be read as CSV ({excerpt(reason, 80)[1:-1]}) {where}; write "
+                          "one row per device, comma-separated, with a header row",
+                          source=source) from None
     if table.shape[1] == 1:
         header = str(table.columns[0])
         for separator, name in ((";", "semicolons"), ("\t", "tabs")):
@@ -385,19 +403,21 @@ def _header(columns, source: str, where: str) -> tuple[list[str], list, str | No
             close = difflib.get_close_matches(name, valid, n=1, cutoff=0.6)
             hint = f"did you mean '{close[0]}'?" if close else "valid columns: " + ", ".join(valid)
             shown = text if text.strip() and not text.startswith("Unnamed:") else "(blank)"
-            raise DesignError(f"unknown column {number} {shown!r} {where}; {hint}", source=source)
+            raise DesignError(f"unknown column {number} {excerpt(shown)} {where}; {hint}",
+                              source=source)
         if name in parameters:
-            raise DesignError(f"column {number} {text!r} repeats {name} {where}; keep one column "
-                              "per parameter", source=source)
+            raise DesignError(f"column {number} {excerpt(text)} repeats {name} {where}; keep one "
+                              "column per parameter", source=source)
         expected = _UNITS[name]
         if not unit_text:
-            raise DesignError(f"column {number} {text!r} has no unit {where}; write the unit in "
-                              f"brackets, e.g. '{name} [{_example_unit(name)}]'", source=source)
+            raise DesignError(f"column {number} {excerpt(text)} has no unit {where}; write the "
+                              f"unit in brackets, e.g. '{name} [{_example_unit(name)}]'",
+                              source=source)
         try:
-            factor = parse_quantity(f"1 {unit_text}", expected, key=f"column {text!r}")
+            factor = parse_quantity(f"1 {unit_text}", expected, key=f"column {excerpt(text)}")
         except QuantityError:
-            raise DesignError(f"column {number} {text!r}: {unit_text!r} is not a unit of "
-                              f"{expected.pint_unit} ({expected.label}) {where}; e.g. "
+            raise DesignError(f"column {number} {excerpt(text)}: {excerpt(unit_text)} is not a "
+                              f"unit of {expected.pint_unit} ({expected.label}) {where}; e.g. "
                               f"'{name} [{_example_unit(name)}]'", source=source) from None
         parameters.append(name)
         units.append(factor)
@@ -426,22 +446,23 @@ def _numbers(cells: np.ndarray, lines: np.ndarray, header: str, parameter: str, 
     for row, cell in enumerate(cells):
         line = int(lines[row])
         text = str(cell).strip()
+        column = f"line {line}, column {excerpt(header)}"
         try:
             number = float(text)
         except ValueError:
-            shown = "an empty cell" if not text else repr(text)
-            raise DesignError(f"line {line}, column {header!r}: {shown} is not a number {where}; "
+            shown = "an empty cell" if not text else excerpt(text)
+            raise DesignError(f"{column}: {shown} is not a number {where}; "
                               "every measured cell must be a number in the column's unit",
                               source=source) from None
         if not math.isfinite(number):
-            raise DesignError(f"line {line}, column {header!r}: {text!r} is not a finite number "
+            raise DesignError(f"{column}: {excerpt(text)} is not a finite number "
                               f"{where}; leave out a device that was not measured", source=source)
         value = number * factor
         if parameter in LOGNORMAL_PARAMETERS and value <= 0:
-            raise DesignError(f"line {line}, column {header!r}: {text} must be greater than zero "
+            raise DesignError(f"{column}: {excerpt(text)} must be greater than zero "
                               f"{where}", source=source)
         if parameter not in LOGNORMAL_PARAMETERS and value < 0:
-            raise DesignError(f"line {line}, column {header!r}: {text} must not be negative "
+            raise DesignError(f"{column}: {excerpt(text)} must not be negative "
                               f"{where}", source=source)
         out[row] = value
     return out
@@ -453,10 +474,11 @@ def _check_serials(serials: tuple[str, ...], lines: np.ndarray, header: str, sou
     for row, serial in enumerate(serials):
         line = int(lines[row])
         if not serial:
-            raise DesignError(f"line {line}, column {header!r}: empty serial number {where}; give "
-                              "every device its serial, or drop the column", source=source)
+            raise DesignError(f"line {line}, column {excerpt(header)}: empty serial number "
+                              f"{where}; give every device its serial, or drop the column",
+                              source=source)
         if serial in seen:
-            raise DesignError(f"line {line}, column {header!r}: serial {serial!r} repeats line "
-                              f"{seen[serial]} {where}; serial numbers must be unique",
+            raise DesignError(f"line {line}, column {excerpt(header)}: serial {excerpt(serial)} "
+                              f"repeats line {seen[serial]} {where}; serial numbers must be unique",
                               source=source)
         seen[serial] = line

@@ -608,7 +608,7 @@ def test_a_reader_that_goes_away_is_not_an_internal_error(demo_file, monkeypatch
     def closed(*args, **kwargs):
         raise BrokenPipeError(32, "Broken pipe")
 
-    monkeypatch.setattr(export, "write_files_atomic", closed)
+    monkeypatch.setattr(export, "atomic_outputs", closed)
     result = invoke("check", str(demo_file), "--trials", "200", "--json", "-")
     assert result.exit_code == 141, result.output
     assert "internal error" not in result.output

@@ -12,6 +12,7 @@ from rich.text import Text
 from ..quantity import format_quantity
 from ..studies.forward_check import ParallelCheck, ThermalCheck
 from ..studies.transient_check import TransientCheck
+from .display_text import shown
 
 
 def json_number(value: float | None) -> float | None:
@@ -197,7 +198,7 @@ def render_transient(check: TransientCheck, design, console: Console) -> None:
         table.add_column(column, justify="left" if column in ("position", "part") else "right")
     for p in ranked:
         label = f"#{p.index}" if single_branch else f"branch {p.branch} #{p.index}"
-        table.add_row(label, p.part, f"{p.mean_voltage:,.0f}", f"{p.max_voltage:,.0f}",
+        table.add_row(label, shown(p.part), f"{p.mean_voltage:,.0f}", f"{p.max_voltage:,.0f}",
                       f"{p.max_overshoot:,.0f}", f"{p.limit:,.0f}", f"{p.failures:,}")
     console.print(table)
     console.print(f"  worst peak {format_quantity(check.worst_voltage, 'V')} (overshoot up to "
@@ -209,7 +210,7 @@ def render_transient(check: TransientCheck, design, console: Console) -> None:
                            "charge-balance strings exceed the limit in the time domain",
                            style="bold red"))
     for note in check.notes:
-        console.print(Text(f"  note: {note}", style="italic"))
+        console.print(Text(f"  note: {shown(note)}", style="italic"))
     console.print()
 
 
@@ -275,7 +276,8 @@ def render_thermal(check: ThermalCheck, design, console: Console) -> None:
         table.add_column(column, justify="left" if column in ("position", "part") else "right")
     for p in ranked:
         label = f"#{p.index}" if single_branch else f"branch {p.branch} #{p.index}"
-        table.add_row(label, p.part, f"{p.mean_temperature:.1f}", f"{p.max_temperature:.1f}",
+        table.add_row(label, shown(p.part), f"{p.mean_temperature:.1f}",
+                      f"{p.max_temperature:.1f}",
                       f"{p.limit:.0f}", f"{p.failures:,}")
     console.print(Text("Hottest positions (degC, trials with an equilibrium):", style="italic"))
     console.print(table)

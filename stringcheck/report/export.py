@@ -1,9 +1,11 @@
 """Machine-readable output: JSON (stable keys, DESIGN.md section 6) and per-position CSV.
 
-Files are written atomically: to a temporary file in the same folder, then renamed over the target, so
-an existing file is replaced only by a complete new one; an interrupt or an error before the rename
-leaves the old file as it was and no temporary file behind. The output paths are checked before a run
-(:func:`check_output_targets`), so a long run does not end in an error about where to write.
+Files are written all or nothing (:func:`atomic_outputs`): each to a temporary file in its target's
+folder, renamed over the targets together only after the whole run, the terminal report included,
+has succeeded; an interrupt or an error before that leaves every old file as it was and no temporary
+file behind. The output paths are checked before a run (:func:`check_output_targets`): an output may
+not be a file the run reads, and must be a regular file, ``/dev/null`` or ``-`` (standard output), so
+a long run does not end in an error about where to write, nor block on a pipe nobody reads.
 """
 
 from __future__ import annotations
@@ -13,8 +15,9 @@ import os
 import stat
 import sys
 import tempfile
+from contextlib import contextmanager
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Mapping, Sequence
+from typing import TYPE_CHECKING, Any, Iterator, Mapping, Sequence
 
 from ..errors import StringcheckError
 from ..studies.check import CheckResult, SeriesCheck
@@ -152,7 +155,7 @@ def _csv_text(text: str) -> str:
 
 
 def check_output_targets(targets: Mapping[str, str | Path | None], *,
-                         inputs: Sequence[str | Path] = ()) -> None:
+                         inputs: Sequence[str | Path | tuple[str | Path, str]] = ()) -> None:
     """Check, before a run, that every requested output can be written, so that a long run never
     ends in an error about its output.
 
@@ -161,20 +164,26 @@ def check_output_targets(targets: Mapping[str, str | Path | None], *,
     targets
         Option name (``"--json"``) -> path, ``"-"`` for standard output, or None when not requested.
     inputs
-        Files the run reads (the design file): an output must not replace them.
+        Files the run reads, each a path or a ``(path, what)`` pair (``what`` names it in the
+        message, e.g. ``"the measured lot of parts.B"``; a bare path is "the design file"): an
+        output must not replace them. Two names of one file (a symbolic or a hard link) count as
+        the same file.
 
     Raises
     ------
     StringcheckError
         When two outputs go to standard output or to the same file, an output would replace an
-        input, or a path is empty, is a folder, or lies in a folder that does not exist or cannot
-        be written.
+        input, a path is empty or is a folder, lies in a folder that does not exist or cannot be
+        written, or is not a regular file: a named pipe, a socket, a device other than
+        ``/dev/null``, or one of this process's standard streams under another name than ``-``
+        (``/dev/stdout``).
     """
     to_stdout = [option for option, path in targets.items() if path is not None and str(path) == "-"]
     if len(to_stdout) > 1:
         raise StringcheckError(f"{' and '.join(to_stdout)} both write to standard output ('-'), "
                                "where they would mix; send all but one of them to a file")
-    read = {_real(Path(path)): str(path) for path in inputs}
+    read = [(Path(item[0]), item[1]) if isinstance(item, tuple) else (Path(item), "the design file")
+            for item in inputs]
     seen: dict[str, str] = {}
     for option, path in targets.items():
         if path is None or str(path) == "-":
@@ -183,13 +192,14 @@ def check_output_targets(targets: Mapping[str, str | Path | None], *,
             raise StringcheckError(f"{option}: empty path; give a file name, or '-' for standard "
                                    "output")
         target = Path(path)
+        for source, what in read:
+            if _same_file(target, source):
+                raise StringcheckError(f"{option} {_shown_path(target)}: is {what}, which this run "
+                                       "reads; give another name (it would be overwritten)")
         real = _real(target)
-        if real in read:
-            raise StringcheckError(f"{option} {target}: is the design file this run reads; give "
-                                   "another name (the design would be overwritten)")
         if real in seen:
-            raise StringcheckError(f"{option} {target}: the same file as {seen[real]}; give each "
-                                   "output its own name")
+            raise StringcheckError(f"{option} {_shown_path(target)}: the same file as "
+                                   f"{seen[real]}; give each output its own name")
         seen[real] = option
         try:
             _writable(target)
@@ -200,27 +210,39 @@ def check_output_targets(targets: Mapping[str, str | Path | None], *,
 def write_text_atomic(path: str | Path, text: str) -> None:
     """Write ``text`` to ``path`` atomically ("-" writes to standard output).
 
-    See :func:`write_files_atomic`.
+    See :func:`atomic_outputs`.
     """
     write_files_atomic([(path, text)])
 
 
 def write_files_atomic(files: Sequence[tuple[str | Path, str]]) -> None:
-    """Write each ``(path, text)``: all to temporary files first, then each renamed over its target.
+    """Write each ``(path, text)`` all or nothing; see :func:`atomic_outputs`."""
+    with atomic_outputs(files):
+        pass
 
-    A failure or an interrupt before the renames leaves every existing target as it was and removes
-    every temporary file; a target is only ever replaced by a complete new file. A symbolic link is
-    followed (its target is replaced, the link kept); an existing file keeps its permissions; a
-    target that is not a regular file (``/dev/null``, a pipe) is written in place. ``"-"`` writes to
-    standard output, after the files.
+
+@contextmanager
+def atomic_outputs(files: Sequence[tuple[str | Path, str]]) -> Iterator[None]:
+    """Stage every ``(path, text)`` on entry; publish them all only when the block succeeds.
+
+    On entry each file's text goes to a new temporary file beside its target (nothing is replaced
+    yet). The block runs (the terminal report, say). When it ends without an error, the text for
+    standard output (``"-"``) is written and flushed, then every temporary file is renamed over its
+    target, then ``/dev/null`` targets are written. When the block, the standard-output write (a
+    reader that went away) or a rename fails, or on Ctrl-C, the temporary files not yet renamed are
+    removed and every target not yet renamed is left byte for byte as it was. A symbolic link is
+    followed (its target is replaced, the link kept); an existing file keeps its permissions. The
+    only target written in place is ``/dev/null``; any other target that is not a regular file is
+    refused (see :func:`check_output_targets`).
 
     Raises
     ------
     StringcheckError
-        When a folder does not exist or cannot be written, or a target is a folder.
+        When a folder does not exist or cannot be written, a target is a folder or not a regular
+        file, or a temporary file cannot be written (a full disk).
     """
     staged: list[tuple[str, Path]] = []
-    in_place: list[tuple[Path, str]] = []
+    discarded: list[str] = []
     to_stdout: list[str] = []
     try:
         for path, text in files:
@@ -228,28 +250,33 @@ def write_files_atomic(files: Sequence[tuple[str | Path, str]]) -> None:
                 to_stdout.append(text)
                 continue
             target = _writable(Path(path))
-            if target.exists() and not target.is_file():
-                in_place.append((target, text))
+            if _is_null(target):
+                discarded.append(text)
                 continue
             staged.append((_stage(target, text), target))
-        for temporary, target in staged:
+        yield
+        for text in to_stdout:
+            try:
+                sys.stdout.write(text)
+                sys.stdout.flush()
+            except BrokenPipeError:
+                raise  # the reader left: exit 141, not an error of the input
+            except OSError as error:  # `--json - > /dev/full`
+                raise StringcheckError(f"standard output cannot be written ({error.strerror}); "
+                                       "no output file was replaced") from None
+        while staged:
+            temporary, target = staged[0]
             os.replace(temporary, target)
-    except BaseException:
+            staged.pop(0)
+    finally:
         for temporary, _ in staged:
             try:
                 os.unlink(temporary)
             except OSError:
-                pass  # renamed already, or never made
-        raise
-    for target, text in in_place:
-        try:
-            with open(target, "w", encoding="utf-8", newline="") as stream:
-                stream.write(text)
-        except OSError as error:
-            raise StringcheckError(f"{target}: cannot be written ({error.strerror})") from None
-    for text in to_stdout:
-        sys.stdout.write(text)
-        sys.stdout.flush()
+                pass  # never made
+    for text in discarded:
+        with open(os.devnull, "w", encoding="utf-8") as stream:
+            stream.write(text)
 
 
 def _real(path: Path) -> str:
@@ -257,25 +284,75 @@ def _real(path: Path) -> str:
     return os.path.realpath(path)
 
 
-def _writable(target: Path) -> Path:
-    """The file to write for ``target`` (links followed), after checking that it can be written."""
+def _same_file(first: Path, second: Path) -> bool:
+    """Whether two names lead to one file (symbolic links followed, hard links too)."""
+    if _real(first) == _real(second):
+        return True
     try:
+        return os.path.samefile(first, second)
+    except OSError:  # one of them does not exist (yet)
+        return False
+
+
+def _is_null(path: Path) -> bool:
+    try:
+        return os.path.samefile(path, os.devnull)
+    except OSError:
+        return False
+
+
+def _standard_stream(path: Path) -> str | None:
+    """"standard output" (or input, error) when ``path`` names one of this process's streams."""
+    try:
+        status = os.stat(path)
+    except OSError:
+        return None
+    for number, name in ((1, "standard output"), (2, "standard error"), (0, "standard input")):
+        try:
+            stream = os.fstat(number)
+        except OSError:
+            continue
+        if (stream.st_dev, stream.st_ino) == (status.st_dev, status.st_ino):
+            return name
+    return None
+
+
+def _shown_path(path: Path) -> str:
+    """A file name as the user wrote it, with control characters shown as '?' (one line)."""
+    return "".join(c if c.isprintable() else "?" for c in str(path))
+
+
+def _writable(target: Path) -> Path:
+    """The file to write for ``target`` (links followed), after checking that it can be written:
+    a regular file (existing or new) in a folder that can be written, or ``/dev/null``."""
+    shown = _shown_path(target)
+    try:
+        stream = _standard_stream(target)
+        if stream is not None and not _is_null(target):
+            raise StringcheckError(f"{shown}: is this run's {stream}; write '-' for standard "
+                                   "output, or give a file name")
         real = Path(_real(target))
         folder = real.parent
         if real.is_dir():
-            raise StringcheckError(f"{target}: is a folder; give a file name")
-        if real.exists() and not real.is_file():  # a device or a pipe: written in place
-            if not os.access(real, os.W_OK):
-                raise StringcheckError(f"{target}: cannot be written (permission denied)")
-            return real
+            raise StringcheckError(f"{shown}: is a folder; give a file name")
+        if real.exists() and not real.is_file():
+            if _is_null(real):
+                return real
+            mode = os.stat(real).st_mode
+            kind = ("a named pipe (FIFO)" if stat.S_ISFIFO(mode) else
+                    "a socket" if stat.S_ISSOCK(mode) else "a device")
+            # A pipe with no reader would block the end of a finished run for ever, and a device
+            # cannot be replaced as a whole: only regular files and /dev/null are outputs.
+            raise StringcheckError(f"{shown}: is {kind}, not a regular file; give a file name, or "
+                                   "'-' for standard output (and pipe that)")
         if not folder.is_dir():
-            shown = target.parent if str(target.parent) else Path(".")
-            raise StringcheckError(f"{target}: the folder {shown} does not exist")
+            where = target.parent if str(target.parent) else Path(".")
+            raise StringcheckError(f"{shown}: the folder {_shown_path(where)} does not exist")
         if not os.access(folder, os.W_OK):
-            raise StringcheckError(f"{target}: the folder {folder} cannot be written (permission "
-                                   "denied)")
+            raise StringcheckError(f"{shown}: the folder {_shown_path(folder)} cannot be written "
+                                   "(permission denied)")
     except OSError as error:
-        raise StringcheckError(f"{target}: cannot be written ({error.strerror})") from None
+        raise StringcheckError(f"{shown}: cannot be written ({error.strerror})") from None
     return real
 
 

@@ -14,6 +14,7 @@ from rich.text import Text
 from ..design import Design
 from ..quantity import format_quantity
 from .check_sections import json_number
+from .display_text import shown
 
 _UNITS = {"i_r": "A", "q_rr": "C", "i_rm": "A", "t_rr": "s", "v_t0": "V", "r_t": "ohm"}
 _HOW = {"resample": "devices drawn from the lot itself, without replacement in a string "
@@ -43,12 +44,12 @@ def render_lots(design: Design, console: Console, *, also: Design | None = None)
     review's other design), its lots too, each lot once."""
     if also is not None:
         render_lots(design, console)
-        shown = frozenset((name, lot.path) for name, lot in _lots(design))
-        design, lots = also, list(_lots(also, shown))
+        listed = frozenset((name, lot.path) for name, lot in _lots(design))
+        design, lots = also, list(_lots(also, listed))
     else:
         lots = list(_lots(design))
     for name, lot in lots:
-        console.print(Text(f"Measured lot of part {name}: {Path(lot.path).name}, "
+        console.print(Text(f"Measured lot of part {shown(name)}: {shown(Path(lot.path).name)}, "
                            f"{lot.devices} devices", style="bold"))
         console.print(f"  {_HOW[lot.fit]}.", highlight=False)
         placed = _placed(design, name)
@@ -85,9 +86,9 @@ def render_lots(design: Design, console: Console, *, also: Design | None = None)
             console.print("  correlation of the normal scores: " + ", ".join(pairs),
                           highlight=False)
         for note in lot.notes:
-            console.print(f"  {note}.", highlight=False)
+            console.print(f"  {shown(note)}.", highlight=False)
         for warning in lot.outside_limits(name):
-            console.print(Text(f"  ! {warning}: the lot lies outside the datasheet limits (the "
+            console.print(Text(f"  ! {shown(warning)}: the lot lies outside the datasheet limits (the "
                                "check uses the devices as measured)", style="yellow"))
         console.print()
 

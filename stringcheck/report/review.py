@@ -13,6 +13,7 @@ from rich.text import Text
 from ..studies.review import ReviewResult
 from .cautions import safety_cautions
 from .check_sections import json_number, render_drivers
+from .display_text import shown
 from .export import result_to_dict
 from .lots import render_lots
 from .terminal import render_warnings
@@ -67,8 +68,8 @@ def _mix(result: ReviewResult) -> dict[str, Any] | None:
 def render_review(result: ReviewResult, console: Console) -> None:
     base, cand = result.baseline, result.candidate
     heading = Text.assemble(
-        ("baseline  ", "bold"), f"{base.design.title} ({base.design.source})\n",
-        ("candidate ", "bold"), f"{cand.design.title} ({cand.design.source})\n",
+        ("baseline  ", "bold"), f"{shown(base.design.title)} ({shown(base.design.source)})\n",
+        ("candidate ", "bold"), f"{shown(cand.design.title)} ({shown(cand.design.source)})\n",
         f"{base.trials:,} built strings each, seed {base.seed}, on common random numbers (the same "
         "draws wherever the two share a part); accepted when the candidate passes and no check's "
         f"P(fail) upper bound rises by more than {result.tolerance:g}")
@@ -103,14 +104,15 @@ def render_review(result: ReviewResult, console: Console) -> None:
                                                                   "part base -> cand") else "right")
         for p in result.worse_positions[:8]:
             worse.add_row(p.check, f"branch {p.branch} #{p.index}",
-                          f"{p.baseline_part} -> {p.candidate_part}", f"{p.baseline_max:,.0f}",
+                          f"{shown(p.baseline_part)} -> {shown(p.candidate_part)}",
+                          f"{p.baseline_max:,.0f}",
                           f"{p.candidate_max:,.0f}", f"{p.limit:,.0f}")
         console.print(worse)
     _render_warnings(result, console)
     if result.reasons:
         console.print(Text("Why, in physical terms:", style="bold"))
         for line in result.reasons:
-            console.print(f"  - {line}")
+            console.print(f"  - {shown(line)}")
     for label, checked in (("baseline", base), ("candidate", cand)):
         for name, check in checked.checks.items():
             rare = getattr(check, "rare", None) if check.ran else None

@@ -15,6 +15,7 @@ from ..stats import trials_for_relative_error
 from ..studies.check import CheckResult, SeriesCheck
 from ..studies.forward_check import ParallelCheck, ThermalCheck
 from .cautions import safety_cautions
+from .display_text import shown
 from ..studies.transient_check import TransientCheck
 from .lots import render_lots
 from .check_sections import failure_point_text, render_drivers, render_parallel, render_thermal, render_transient, turn_off_text, worst_value_text
@@ -78,10 +79,10 @@ def render_check(result: CheckResult, console: Console) -> None:
     design = result.design
     layout = design.string
     confidence = design.monte_carlo.confidence
-    parts = ", ".join(design.parts_used())
+    parts = ", ".join(shown(name) for name in design.parts_used())
     heading = Text.assemble(
-        (design.title, "bold"), "\n",
-        f"file {design.source}\n",
+        (shown(design.title), "bold"), "\n",
+        f"file {shown(design.source)}\n",
         f"{layout.parallel} branch(es) x {layout.series} devices in series, part(s) {parts}; "
         f"{format_quantity(design.duty.reverse_voltage, 'V')} peak reverse, "
         f"{design.duty.waveform} duty, ambient {design.duty.ambient:g} degC\n",
@@ -125,7 +126,7 @@ def render_check(result: CheckResult, console: Console) -> None:
     console.print(summary)
     for name, check in result.checks.items():
         if not check.ran:
-            console.print(Text(f"{name} check not run: {check.reason}.", style="yellow"))
+            console.print(Text(f"{name} check not run: {shown(check.reason)}.", style="yellow"))
         elif _convergence_note(check):
             console.print(_convergence_note(check), highlight=False)
         if check.ran and getattr(check, "rare", None) is not None:
@@ -162,10 +163,10 @@ def render_check(result: CheckResult, console: Console) -> None:
     if result.assumptions:
         console.print(Text("Assumptions made", style="bold"))
         for line in result.assumptions:
-            console.print(f"  - {line}")
+            console.print(f"  - {shown(line)}")
     if result.no_scatter:
         console.print(Text("Without scatter (fixed values)", style="bold"))
-        console.print("  - " + "; ".join(result.no_scatter))
+        console.print("  - " + shown("; ".join(result.no_scatter)))
     console.print()
     grading = result.grading
     cautions = safety_cautions(string_voltage=design.duty.reverse_voltage,
@@ -247,7 +248,7 @@ def _render_detail(name: str, check: SeriesCheck, console: Console) -> None:
         table.add_column(column, justify="left" if column in ("position", "part") else "right")
     for p in ranked:
         label = f"#{p.index}" if single_branch else f"branch {p.branch} #{p.index}"
-        table.add_row(label, p.part, f"{p.mean_voltage:,.0f}",
+        table.add_row(label, shown(p.part), f"{p.mean_voltage:,.0f}",
                       f"{p.std_voltage:,.1f}", f"{p.max_voltage:,.0f}", f"{p.limit:,.0f}",
                       f"{p.max_voltage / p.limit:.3f}", f"{p.failures:,}")
     console.print(Text("Most stressed positions:", style="italic"))
@@ -298,9 +299,9 @@ def _render_network(result: CheckResult, console: Console) -> None:
         table.add_row(*row)
     console.print(table)
     for problem in grading.rating_problems:
-        console.print(Text(f"  RATING EXCEEDED: {problem}", style="bold red"))
+        console.print(Text(f"  RATING EXCEEDED: {shown(problem)}", style="bold red"))
     for advisory in grading.advisories:
-        console.print(Text(f"  advisory: {advisory}", style="yellow"))
+        console.print(Text(f"  advisory: {shown(advisory)}", style="yellow"))
     console.print()
 
 
@@ -352,7 +353,7 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
     design = result.design
     ratings = result.ratings
     console.print(Panel(Text.assemble(
-        (design.title, "bold"), "\n",
+        (shown(design.title), "bold"), "\n",
         f"proposed grading network for {design.string.parallel} branch(es) x "
         f"{result.series_count} devices at {format_quantity(design.duty.reverse_voltage, 'V')}\n",
         f"target: P(fail) <= {result.target_p_fail:g} at {design.monte_carlo.confidence:.0%} "

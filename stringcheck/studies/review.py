@@ -24,7 +24,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..design import MAX_LEAKAGE_DOUBLINGS, Design, Mix, PositionOverride
-from ..errors import StringcheckError
+from ..errors import StringcheckError, excerpt
 from ..part_reading import check_lot_sizes
 from .check import CheckResult, run_check
 from .runner import worker_pool
@@ -78,11 +78,31 @@ _SWAP = re.compile(r"^\s*([0-9,\-\s]+)\s*:\s*([^:\s]+)\s*$")
 
 
 def parse_swap(text: str, design: Design) -> tuple[tuple[int, ...], str]:
-    """``"1-4:B"`` or ``"7,9:B"`` -> (positions, part), checked against ``design``."""
+    """``"1-4:B"`` or ``"7,9:B"`` -> (positions, part), checked against ``design``.
+
+    Every number is checked against the string's series count before a range is built, so a slip
+    (``1-100000000:B``) is one short message, not a list of a hundred million positions.
+    """
+    option = f"--swap {excerpt(text)}"
     match = _SWAP.match(text)
     if not match:
-        raise StringcheckError(f"--swap {text!r}: write POSITIONS:PART, e.g. 1-4:B or 7,9:B")
-    positions: list[int] = []
+        raise StringcheckError(f"{option}: write POSITIONS:PART, e.g. 1-4:B or 7,9:B")
+    series = design.string.series
+
+    def position(digits: str, piece: str) -> int:
+        digits = digits.strip()
+        if not digits.isdigit():
+            raise StringcheckError(f"{option}: {excerpt(piece)} is not a position number or a "
+                                   "range like 1-4")
+        # More digits than any series count has: out of range without reading the number.
+        number = int(digits) if len(digits) <= 9 else series + 1
+        if not 1 <= number <= series:
+            shown = digits if len(digits) <= 12 else digits[:9] + "..."
+            raise StringcheckError(f"{option}: position {shown} lies outside 1..{series} (the "
+                                   "string's series count)")
+        return number
+
+    positions: set[int] = set()
     for piece in match.group(1).split(","):
         piece = piece.strip()
         if not piece:
@@ -90,29 +110,24 @@ def parse_swap(text: str, design: Design) -> tuple[tuple[int, ...], str]:
         if "-" in piece:
             first, _, last = piece.partition("-")
             if not (first.strip().isdigit() and last.strip().isdigit()):
-                raise StringcheckError(f"--swap {text!r}: {piece!r} is not a range like 1-4")
-            low, high = int(first), int(last)
+                raise StringcheckError(f"{option}: {excerpt(piece)} is not a range like 1-4")
+            low, high = position(first, piece), position(last, piece)
             if low > high:
-                raise StringcheckError(f"--swap {text!r}: the range {piece} runs backwards")
-            positions.extend(range(low, high + 1))
-        elif piece.isdigit():
-            positions.append(int(piece))
+                raise StringcheckError(f"{option}: the range {excerpt(piece)} runs backwards")
+            positions.update(range(low, high + 1))
         else:
-            raise StringcheckError(f"--swap {text!r}: {piece!r} is not a position number")
-    series = design.string.series
-    outside = [p for p in positions if not 1 <= p <= series]
-    if outside or not positions:
-        raise StringcheckError(f"--swap {text!r}: positions must lie in 1..{series} (the string's "
-                               f"series count), got {outside or 'none'}")
+            positions.add(position(piece, piece))
+    if not positions:
+        raise StringcheckError(f"{option}: no position given; write e.g. 1-4:B or 7,9:B")
     part = match.group(2)
     if part not in design.parts:
         known = ", ".join(sorted(design.parts))
-        raise StringcheckError(f"--swap {text!r}: no part {part!r} in {design.source}; define "
-                               f"[parts.{part}] there (known: {known})")
-    positions = tuple(sorted(set(positions)))
-    _check_substitute(design, part, f"--swap {text!r}",
-                      design.string.temperature_rise_grid()[:, [p - 1 for p in positions]])
-    return positions, part
+        raise StringcheckError(f"{option}: no part {excerpt(part)} in {design.source}; define "
+                               f"[parts.{excerpt(part)[1:-1]}] there (known: {known})")
+    ordered = tuple(sorted(positions))
+    _check_substitute(design, part, option,
+                      design.string.temperature_rise_grid()[:, [p - 1 for p in ordered]])
+    return ordered, part
 
 
 def swapped(design: Design, positions: tuple[int, ...], part: str) -> Design:
@@ -145,24 +160,25 @@ _MIX = re.compile(r"^\s*([^:%\s]+)\s*(%?)\s*:\s*([^:\s]+)\s*$")
 
 def parse_mix(text: str, design: Design) -> tuple[float, str]:
     """``"0.25:B"`` or ``"25%:B"`` -> (fraction [1] in [0, 1], part), checked against ``design``."""
+    option = f"--mix {excerpt(text)}"
     match = _MIX.match(text)
     if not match:
-        raise StringcheckError(f"--mix {text!r}: write FRACTION:PART, e.g. 0.25:B or 25%:B")
+        raise StringcheckError(f"{option}: write FRACTION:PART, e.g. 0.25:B or 25%:B")
     try:
         fraction = float(match.group(1))
     except ValueError:
-        raise StringcheckError(f"--mix {text!r}: {match.group(1)!r} is not a number; write "
+        raise StringcheckError(f"{option}: {excerpt(match.group(1))} is not a number; write "
                                "FRACTION:PART, e.g. 0.25:B or 25%:B") from None
     if match.group(2):
         fraction /= 100.0
     if not (math.isfinite(fraction) and 0.0 <= fraction <= 1.0):
-        raise StringcheckError(f"--mix {text!r}: the fraction must lie in 0..1 (or 0%..100%)")
+        raise StringcheckError(f"{option}: the fraction must lie in 0..1 (or 0%..100%)")
     part = match.group(3)
     if part not in design.parts:
         known = ", ".join(sorted(design.parts))
-        raise StringcheckError(f"--mix {text!r}: no part {part!r} in {design.source}; define "
-                               f"[parts.{part}] there (known: {known})")
-    _check_substitute(design, part, f"--mix {text!r}", design.string.temperature_rise_grid())
+        raise StringcheckError(f"{option}: no part {excerpt(part)} in {design.source}; define "
+                               f"[parts.{excerpt(part)[1:-1]}] there (known: {known})")
+    _check_substitute(design, part, option, design.string.temperature_rise_grid())
     return fraction, part
 
 

@@ -26,7 +26,7 @@ from ..sampling import BLOCK_TRIALS
 Context = TypeVar("Context")
 Outcome = TypeVar("Outcome")
 
-__all__ = ["WorkerPool", "check_workers", "chunk_size", "map_chunks", "worker_pool"]
+__all__ = ["WorkerPool", "check_workers", "chunk_size", "map_chunks", "stop_workers", "worker_pool"]
 
 
 def check_workers(workers: int) -> int:
@@ -56,13 +56,35 @@ def worker_pool(workers: int) -> Iterator[WorkerPool | None]:
     if workers == 1:
         yield None
         return
+    before = set(multiprocessing.active_children())
     executor = ProcessPoolExecutor(max_workers=workers,
                                    mp_context=multiprocessing.get_context("spawn"))
     try:
         yield WorkerPool(executor=executor, workers=workers)
-    finally:
-        # On an interrupt, drop the chunks not yet started instead of finishing them.
-        executor.shutdown(wait=True, cancel_futures=True)
+    except BaseException:
+        # An error, Ctrl-C or SIGTERM (which the command line raises as an exception): stop the
+        # workers now, the chunks they are running included, rather than wait for those; a
+        # worker left running would outlive this process.
+        # Shutting down first lets the pool drop the cancelled chunks before it sees its workers
+        # gone (else it would try to fail a cancelled chunk, and print a traceback).
+        executor.shutdown(wait=False, cancel_futures=True)
+        stop_workers(before)
+        executor.shutdown(wait=True)
+        raise
+    executor.shutdown(wait=True)
+
+
+def stop_workers(before: set) -> None:
+    """Terminate (SIGTERM, then SIGKILL after a second) this process's multiprocessing children
+    that are not in ``before``, and wait for them."""
+    started = [child for child in multiprocessing.active_children() if child not in before]
+    for child in started:
+        child.terminate()
+    for child in started:
+        child.join(timeout=1.0)
+        if child.is_alive():
+            child.kill()
+            child.join()
 
 
 def chunk_size(trials: int, preferred: int, pool: WorkerPool | None) -> int:
