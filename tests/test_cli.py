@@ -437,6 +437,20 @@ def test_size_of_an_impossible_string_exits_1_with_the_arithmetic(tmp_path):
     assert "2560 V" in result.stderr and "--find-series" in result.stderr
 
 
+
+def test_size_find_series_past_the_device_cap_is_refused_with_the_arithmetic(tmp_path):
+    # A kV/MV slip: 16 MV over devices of 0.8 x 1.6 kV = 1280 V needs 16e6 / 1280 = 12,500 devices,
+    # past the 10,000 the tool holds; refused before any Monte Carlo (issue 15 item 9).
+    path = tmp_path / "slip.toml"
+    path.write_text(FAILING_DESIGN.replace('"4 kV"', '"16 MV"'), encoding="utf-8")
+    result = invoke("size", str(path), "--find-series", "--trials", PASSING_TRIALS)
+    assert result.exit_code == 2, result.output
+    assert_no_traceback(result)
+    assert len(result.stderr.strip().splitlines()) == 1, result.stderr
+    line = flat(result.stderr)
+    assert "12,500 devices" in line and "10,000" in line, line
+    assert "slip.toml" in line and "duty.reverse_voltage" in line, line
+
 # --- workers ---------------------------------------------------------------------------------------
 
 def test_workers_two_and_one_give_identical_json(demo_file, tmp_path):
