@@ -23,6 +23,7 @@ import numpy as np
 
 from .. import eseries
 from ..design import Design
+from ..errors import DesignError, SizingError
 from ..sampling import BLOCK_TRIALS, DrawnStrings
 from ..solvers.electrothermal import (
     OVER_LIMIT,
@@ -452,7 +453,8 @@ def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulato
         for b in range(currents.shape[1]))
     worst_share = float(np.nanmax(share))
     ballast = _ballast_advice(setup.target_share, accumulator.joined("ballast"),
-                              accumulator.joined("ballast_loss_per_ohm"), target)
+                              accumulator.joined("ballast_loss_per_ohm"), target,
+                              source=design.source)
     return ParallelCheck(
         name="parallel", ran=True, reason="", passed=estimate.ci_high <= target,
         worst_share=worst_share, p99_share=float(np.nanpercentile(share, 99)),
@@ -468,9 +470,13 @@ def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulato
 
 
 def _ballast_advice(target_share: float, per_trial: np.ndarray | None,
-                    loss_per_ohm: np.ndarray | None, target_p_fail: float) -> BallastAdvice:
+                    loss_per_ohm: np.ndarray | None, target_p_fail: float, *,
+                    source: str | None = None) -> BallastAdvice:
     """Ballast that meets the share target in all but ``target_p_fail`` of the built groups,
-    rounded up to E12 (common practice for a power resistor); its loss at the mean branch RMS."""
+    rounded up to E12 (common practice for a power resistor); its loss at the mean branch RMS.
+
+    Raises DesignError (naming ``source``) when the ballast lies outside the range preferred
+    values are made for: only a unit slip in the forward current or characteristic gets there."""
     quantile = 1.0 - target_p_fail
     exact = float(np.quantile(per_trial, quantile, method="higher"))
     if not np.isfinite(exact):
@@ -479,7 +485,14 @@ def _ballast_advice(target_share: float, per_trial: np.ndarray | None,
     if exact <= 0.0:
         return BallastAdvice(target_share=target_share, resistance=0.0, exact_resistance=0.0,
                              loss=0.0, quantile=quantile, reachable=True)
-    chosen = float(eseries.round_up(exact, "E12"))
+    try:
+        chosen = float(eseries.round_up(exact, "E12"))
+    except SizingError:
+        raise DesignError(f"the series ballast that brings the branch share within "
+                          f"{target_share:g} works out at {exact:.3g} ohm, beyond any resistor; "
+                          "check the unit of duty.forward_current (the group's average, e.g. "
+                          '"40 A") and of the parts\' v_t0 and r_t', source=source,
+                          key="duty.forward_current") from None
     return BallastAdvice(target_share=target_share, resistance=chosen, exact_resistance=exact,
                          loss=float(chosen * np.mean(loss_per_ohm)), quantile=quantile,
                          reachable=True)
