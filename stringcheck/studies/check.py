@@ -17,6 +17,7 @@ import numpy as np
 
 from ..design import Design, Part
 from ..errors import DesignError
+from ..limits import within_limit
 from ..physics.leakage import leakage_current
 from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
 from ..solvers.series_dynamic import solve_dynamic_sharing
@@ -434,7 +435,7 @@ def _finish(name: str, accumulator: PositionSums, grid: np.ndarray, confidence: 
     """Summarise one check. It passes when the upper confidence bound of P(fail) is within
     ``target`` ([sizing] target_p_fail): a run too short to show that cannot pass."""
     ratios = np.concatenate(accumulator.worst_ratios)
-    failures = int(np.count_nonzero(~(ratios <= 1.0)))
+    failures = int(np.count_nonzero(~within_limit(ratios)))
     estimate = failure_estimate(failures, trials, confidence=confidence)
     count = max(accumulator.count, 1)
     total = np.zeros(grid.shape)

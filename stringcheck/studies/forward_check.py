@@ -24,6 +24,7 @@ import numpy as np
 from .. import eseries
 from ..design import Design
 from ..errors import DesignError, SizingError
+from ..limits import exceeds_limit, within_limit
 from ..sampling import BLOCK_TRIALS, DrawnStrings
 from ..solvers.electrothermal import (
     OVER_LIMIT,
@@ -313,7 +314,8 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
             tj_sum=_block_sums(temperature, good, drawn.first_trial),
             tj_max=hot.max(axis=0) if hot.size else np.full(shape[1:], -np.inf),
             tj_count=int(np.count_nonzero(good)),
-            tj_over=np.count_nonzero(temperature > setup.max_junction_temperature, axis=0),
+            tj_over=np.count_nonzero(exceeds_limit(temperature, setup.max_junction_temperature),
+                                  axis=0),
             power_total=equilibrium.power.sum(axis=(1, 2)),
         )
         # The first RUNAWAY_SAMPLE trials of every sampling block, so that the sample does not
@@ -375,7 +377,7 @@ def forward_ratios(design: Design, setup: ForwardSetup, drawn: DrawnStrings,
         return np.where(solved, chunk.current_ratio, np.inf)
     failed = np.isin(chunk.classification, (RUNAWAY, OVER_LIMIT))
     ratio = np.where(np.isnan(chunk.tj_ratio), np.inf, chunk.tj_ratio)
-    return np.where(failed & ~(ratio > 1.0), np.inf, ratio)
+    return np.where(failed & within_limit(ratio), np.inf, ratio)
 
 
 def _duty(design: Design) -> ParallelDuty:
@@ -436,7 +438,7 @@ def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulato
     ratio = accumulator.joined("current_ratio")
     currents = accumulator.joined("branch_current")
     unsolved = ~np.isfinite(ratio) | ~np.isfinite(share)
-    failed = unsolved | (ratio > 1.0)
+    failed = unsolved | exceeds_limit(ratio)
     estimate = failure_estimate(int(np.count_nonzero(failed)), trials, confidence=confidence)
     finite = ratio[np.isfinite(ratio)]
     mean = currents.mean(axis=-1, keepdims=True)
@@ -449,7 +451,7 @@ def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulato
                          max_current=float(np.nanmax(currents[:, b])),
                          mean_share=float(np.nanmean(branch_share[:, b])),
                          max_share=float(np.nanmax(branch_share[:, b])),
-                         failures=int(np.count_nonzero(currents[:, b] > drawn_limit[:, b])))
+                         failures=int(np.count_nonzero(exceeds_limit(currents[:, b], drawn_limit[:, b]))))
         for b in range(currents.shape[1]))
     worst_share = float(np.nanmax(share))
     ballast = _ballast_advice(setup.target_share, accumulator.joined("ballast"),
@@ -514,7 +516,7 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
     classes = accumulator.joined("classification")
     runaway = classes == "runaway"
     over = classes == "over T_j,max"
-    failed = runaway | over | ~(ratio <= 1.0)
+    failed = runaway | over | ~within_limit(ratio)
     estimate = failure_estimate(int(np.count_nonzero(failed)), trials, confidence=confidence)
     runaway_estimate = failure_estimate(int(np.count_nonzero(runaway)), trials,
                                         confidence=confidence)

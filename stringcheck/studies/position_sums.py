@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..limits import exceeds_limit
 from ..sampling import BLOCK_TRIALS
 
 
@@ -77,9 +78,9 @@ class PositionSums:
         if good.shape[0]:
             self.maximum = np.maximum(self.maximum, _position_maximum(good))
         # A position above its limit puts its trial's ratio above 1: only those trials count.
-        over = np.flatnonzero(trial_ratio > 1.0)
+        over = np.flatnonzero(exceeds_limit(trial_ratio))
         if over.size:
-            self.failures_by_position += np.count_nonzero(ratio[over] > 1.0, axis=0)
+            self.failures_by_position += np.count_nonzero(exceeds_limit(ratio[over]), axis=0)
         self.worst_ratios.append(trial_ratio)
         best = int(np.argmax(trial_ratio))
         if trial_ratio[best] > self.worst_ratio:

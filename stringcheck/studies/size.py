@@ -22,6 +22,7 @@ import numpy as np
 from .. import eseries
 from ..design import MAX_DEVICES, Design
 from ..errors import DesignError, ImpossibleDesignError, SizingError
+from ..limits import within_limit
 from ..physics.grading import (
     discharge_time,
     resistor_power,
@@ -488,7 +489,7 @@ def _damping_in_time_domain(design: Design, rule_value: float, rule: str, trials
             return rule_value, rule + f"; not chosen in the time domain: {check.reason}", ()
         tried.append(DampingCandidate(value=float(value), worst_ratio=check.worst_ratio,
                                       energy=check.damping_energy,
-                                      within_limit=bool(check.worst_ratio <= 1.0)))
+                                      within_limit=bool(within_limit(check.worst_ratio))))
     good = [c for c in tried if c.within_limit]
     if not good:
         return rule_value, rule + ("; no E12 value from rule/4 to 4 x rule keeps the simulated "

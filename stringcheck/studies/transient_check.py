@@ -30,6 +30,7 @@ from ..physics.charge_control_fit import lifetime_for_charge
 from ..sampling import BLOCK_TRIALS, DrawnStrings, draw_strings
 from ..solvers.transient import simulate_turn_off
 from ..errors import StringcheckError
+from ..limits import within_limit
 from ..stats import FailureEstimate, failure_estimate
 from .mixed_stock import device_part_grid, position_values
 from .drivers import TOP_DRIVERS, Driver, chunk_features, label, rank_inputs, tightenable
@@ -155,7 +156,7 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
         design, fits, selected, trials, seed, inductance, forward)
     ratio = np.max(peaks / device_limits, axis=(1, 2))
     ratio = np.where(solved, ratio, np.inf)
-    failed = ~(ratio <= 1.0)
+    failed = ~within_limit(ratio)
     in_sample = np.isin(selected, sample_set)
     in_worst = np.isin(selected, worst_set)
     estimate = failure_estimate(int(np.count_nonzero(failed[in_sample])), sample,
