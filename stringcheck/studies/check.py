@@ -61,11 +61,8 @@ from .check_inputs import (
 from .mixed_stock import device_part_grid, device_values, position_values
 from .recovery_conditions import RecoveryRescaling, recovery_rescaling, rescale_charges
 from .position_sums import PositionSums
-from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
+from .runner import CHUNK_ELEMENTS, WorkerPool, chunk_size, map_chunks, worker_pool
 
-# A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
-# in the trial count.
-_CHUNK_ELEMENTS = 1_000_000
 # The checks whose inputs the drivers rank; --rare estimates these and the transient check by
 # importance sampling.
 RARE_CHECKS = ("static", "dynamic", "parallel", "thermal")
@@ -147,7 +144,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     trials, seed
         Override the design's Monte Carlo settings.
     chunk_trials
-        Trials per chunk (rounded to whole sampling blocks); the result does not depend on it.
+        Trials per chunk (rounded to whole sampling blocks, or below a block to a sub-block of
+        ``sampling.SUM_TRIALS`` x 2^k); the result does not depend on it, bit for bit.
     only
         Run only these of ("static", "dynamic") (the sizing search uses it); a check left out is
         reported as not run.
@@ -229,7 +227,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     ratios: dict[str, list] = {"static": [], "dynamic": [], "parallel": [], "thermal": []}
     with worker_pool(workers) if pool is None else nullcontext(pool) as active:
         if chunk_trials is None:
-            chunk_trials = chunk_size(trials, _CHUNK_ELEMENTS // (layout.series * layout.parallel),
+            chunk_trials = chunk_size(trials, CHUNK_ELEMENTS // (layout.series * layout.parallel),
                                       active)
         bounds = chunk_bounds(trials, chunk_trials)
         for outcome in map_chunks(_run_chunk, context, bounds, pool=active, progress=progress):

@@ -25,7 +25,7 @@ from .. import eseries
 from ..design import Design
 from ..errors import DesignError, SizingError
 from ..limits import exceeds_limit, within_limit
-from ..sampling import BLOCK_TRIALS, DrawnStrings
+from ..sampling import BLOCK_TRIALS, SUM_TRIALS, DrawnStrings
 from ..solvers.electrothermal import (
     OVER_LIMIT,
     RUNAWAY,
@@ -38,6 +38,7 @@ from ..solvers.parallel import ballast_for_share, branch_currents
 from ..physics.forward import slope_resistance, threshold_voltage
 from ..stats import FailureEstimate, failure_estimate
 from .mixed_stock import device_values, position_values
+from .position_sums import BlockSums, unit_sums
 from .rare_events import RareEstimate
 
 # Runaway ambient is searched on the first trials of each sampling block only (a bisection costs
@@ -309,9 +310,10 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
             tj_ratio=tj_ratio,
             worst_tj=np.where(runaway, np.inf, temperature.max(axis=(1, 2))),
             classification=equilibrium.classification,
-            # Per sampling block (chunks hold whole blocks), added up in block order at the end:
-            # the same figures bit for bit whatever the chunking or the number of workers.
-            tj_sum=_block_sums(temperature, good, drawn.first_trial),
+            # Per unit of SUM_TRIALS trials, folded into block sums in trial order as chunks
+            # are merged (position_sums.BlockSums): the same figures bit for bit whatever the
+            # chunking, the sub-blocks or the number of workers.
+            tj_sum=unit_sums(np.where(good[:, None, None], temperature, 0.0)),
             tj_max=hot.max(axis=0) if hot.size else np.full(shape[1:], -np.inf),
             tj_count=int(np.count_nonzero(good)),
             tj_over=np.count_nonzero(exceeds_limit(temperature, setup.max_junction_temperature),
@@ -326,6 +328,8 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
             found = runaway_ambient(_rows(devices, rows), _duty(design),
                                     upper_limit=setup.search_limit)
             outcome_tj["runaway_ambient"] = found.ambient
+        elif summaries:  # a sub-block past the sample rows of its block: none of its own
+            outcome_tj["runaway_ambient"] = np.zeros(0)
         branch_threshold = threshold_voltage(
             threshold, setup.threshold_tempco, temperature,
             setup.forward_reference_temperature).sum(axis=-1)
@@ -398,24 +402,18 @@ def _rows(devices: ParallelDevices, rows: np.ndarray) -> ParallelDevices:
     return ParallelDevices(**values)
 
 
-def _block_sums(temperature: np.ndarray, good: np.ndarray, first_trial: int) -> np.ndarray:
-    """Sums of the junction temperatures [degC] of the ``good`` trials per position, one per
-    sampling block of the chunk, (blocks, parallel, series)."""
-    count = temperature.shape[0]
-    starts = np.arange(0, count, BLOCK_TRIALS) if first_trial % BLOCK_TRIALS == 0 else \
-        np.array([0])  # a chunk that does not start on a block (the sampler's own strings)
-    kept = np.where(good[:, None, None], temperature, 0.0)
-    return np.stack([kept[start:start + BLOCK_TRIALS].sum(axis=0) for start in starts]) \
-        if count else np.zeros((1,) + temperature.shape[1:])
-
-
 @dataclass
 class ForwardAccumulator:
-    """Chunks of the forward checks, kept in trial order."""
+    """Chunks of the forward checks, kept in trial order; their junction-temperature sums are
+    folded into block sums (``tj_blocks``) as they come."""
 
     chunks: list = field(default_factory=list)
+    tj_blocks: BlockSums = field(default_factory=BlockSums)
 
     def merge(self, chunk: ForwardChunk) -> None:
+        if chunk.tj_sum is not None:
+            self.tj_blocks.add(chunk.tj_sum, chunk.first_trial // SUM_TRIALS)
+            chunk.tj_sum = None
         self.chunks.append(chunk)
 
     def joined(self, name: str) -> np.ndarray | None:
@@ -522,7 +520,7 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
                                         confidence=confidence)
     finite = ratio[np.isfinite(ratio)]
     count = sum(chunk.tj_count for chunk in accumulator.chunks)
-    total = np.concatenate([chunk.tj_sum for chunk in accumulator.chunks]).sum(axis=0)
+    total = np.sum(accumulator.tj_blocks.blocks(), axis=0)
     maximum = np.max([chunk.tj_max for chunk in accumulator.chunks], axis=0)
     exceed = sum(chunk.tj_over for chunk in accumulator.chunks)
     grid = design.string.part_labels()

@@ -1,8 +1,13 @@
 """Per-position sums of a series check, kept chunk by chunk so that memory stays flat in the trial
 count: counts, block sums of the voltages and their squares (shifted by the limit), maxima, failures
-per position and each trial's worst stress ratio. Sums are kept per sampling block and added up in
-block order at the end, so a run gives the same figures bit for bit whatever its chunk size or number
-of worker processes.
+per position and each trial's worst stress ratio.
+
+Sums are formed in one fixed order whatever the run was cut into: each unit of ``SUM_TRIALS``
+consecutive trials (counted from trial 0) is summed row after row, a sampling block is the sum of
+its units one after another (:class:`BlockSums`, carried across chunks that end inside a block),
+and the blocks are added up in block order at the end. So a run gives the same figures bit for bit
+whatever its chunk size, its sub-blocks (a string too large for a block in memory) or its number of
+worker processes.
 """
 
 from __future__ import annotations
@@ -12,7 +17,81 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..limits import exceeds_limit
-from ..sampling import BLOCK_TRIALS
+from ..sampling import BLOCK_TRIALS, SUM_TRIALS
+
+_UNITS_PER_BLOCK = BLOCK_TRIALS // SUM_TRIALS
+
+
+def unit_sums(values: np.ndarray) -> np.ndarray:
+    """Sums over each ``SUM_TRIALS`` rows of ``values`` (rows, ...), row after row, (units, ...);
+    the last unit may be short. The order of the additions is fixed, so a unit's sum does not
+    depend on what else was in the array."""
+    rows = values.shape[0]
+    whole = rows // SUM_TRIALS * SUM_TRIALS
+    parts = []
+    if whole:
+        grouped = values[:whole].reshape((whole // SUM_TRIALS, SUM_TRIALS) + values.shape[1:])
+        parts.append(_fold(grouped))
+    if whole < rows:
+        parts.append(_fold(values[whole:][None]))
+    return np.concatenate(parts) if parts else np.zeros((0,) + values.shape[1:])
+
+
+def _fold(grouped: np.ndarray) -> np.ndarray:
+    """grouped[:, 0] + grouped[:, 1] + ... in that order, vectorized over the leading axis."""
+    total = grouped[:, 0].copy()
+    for index in range(1, grouped.shape[1]):
+        total += grouped[:, index]
+    return total
+
+
+@dataclass
+class BlockSums:
+    """Sums per sampling block, folded from unit sums (:func:`unit_sums`) that arrive in trial
+    order: a block is its first unit plus each next one in turn, also when its units come from
+    several chunks. ``blocks()`` gives the sums of the blocks so far (the last one possibly still
+    open), in block order."""
+
+    done: list = field(default_factory=list)
+    open_sum: np.ndarray | None = None
+    open_block: int = -1
+
+    def add(self, units: np.ndarray, first_unit: int) -> None:
+        """Fold ``units`` (units, ...), the unit sums of units ``first_unit``.. of the run."""
+        unit = first_unit
+        while units.shape[0]:
+            block, place = divmod(unit, _UNITS_PER_BLOCK)
+            take = min(_UNITS_PER_BLOCK - place, units.shape[0])
+            if place == 0 and units.shape[0] >= _UNITS_PER_BLOCK:
+                # Runs of whole blocks: vectorized over the blocks, the same additions in order.
+                whole = units.shape[0] // _UNITS_PER_BLOCK * _UNITS_PER_BLOCK
+                folded = _fold(units[:whole].reshape((-1, _UNITS_PER_BLOCK) + units.shape[1:]))
+                self._close()
+                self.done.extend(folded)
+                unit += whole
+                units = units[whole:]
+                continue
+            piece = units[:take]
+            if place == 0 or self.open_block != block:
+                # A new block (or, for a chunk's own sums, the part of a block it starts in).
+                self._close()
+                self.open_sum, self.open_block = piece[0].copy(), block
+                piece = piece[1:]
+            for row in piece:
+                self.open_sum += row
+            if place + take == _UNITS_PER_BLOCK:
+                self._close()
+            unit += take
+            units = units[take:]
+
+    def _close(self) -> None:
+        if self.open_sum is not None:
+            self.done.append(self.open_sum)
+            self.open_sum, self.open_block = None, -1
+
+    def blocks(self) -> list:
+        """The block sums so far in block order, the open block's last."""
+        return self.done + ([] if self.open_sum is None else [self.open_sum])
 
 
 @dataclass
@@ -22,8 +101,11 @@ class PositionSums:
     shape: tuple[int, int]
     limits: np.ndarray
     count: int = 0
-    block_totals: list = field(default_factory=list)
-    block_squares: list = field(default_factory=list)
+    # Unit sums of this accumulator's own ``add`` calls, (first unit, totals, squares), not yet
+    # folded into the block sums; ``merge`` folds those of a later chunk after its own.
+    pending: list = field(default_factory=list)
+    totals: BlockSums = field(default_factory=BlockSums)
+    squares: BlockSums = field(default_factory=BlockSums)
     maximum: np.ndarray = field(init=False)
     failures_by_position: np.ndarray = field(init=False)
     worst_ratios: list = field(default_factory=list)
@@ -39,11 +121,30 @@ class PositionSums:
         self.maximum = np.full(self.shape, -np.inf)
         self.failures_by_position = np.zeros(self.shape, dtype=np.int64)
 
+    @property
+    def block_totals(self) -> list:
+        """Sums of the voltages shifted by the limit, per sampling block in block order."""
+        self._fold(self.pending)
+        return self.totals.blocks()
+
+    @property
+    def block_squares(self) -> list:
+        """Sums of the squares of the shifted voltages, per sampling block in block order."""
+        self._fold(self.pending)
+        return self.squares.blocks()
+
+    def _fold(self, pending: list) -> None:
+        for first_unit, totals, squares in pending:
+            self.totals.add(totals, first_unit)
+            self.squares.add(squares, first_unit)
+        if pending is self.pending:
+            self.pending = []
+
     def merge(self, other: "PositionSums") -> None:
         """Add the sums of a later chunk (chunks are merged in trial order)."""
         self.count += other.count
-        self.block_totals.extend(other.block_totals)
-        self.block_squares.extend(other.block_squares)
+        self._fold(self.pending)
+        self._fold(other.pending)
         self.maximum = np.maximum(self.maximum, other.maximum)
         self.failures_by_position += other.failures_by_position
         self.worst_ratios.extend(other.worst_ratios)
@@ -63,16 +164,16 @@ class PositionSums:
         trial_ratio = np.where(solved, _trial_maximum(ratio), np.inf)
         unsolved = int(np.count_nonzero(~solved))
         self.unsolved += unsolved
-        # Sums are shifted by the limit to keep the variance sum well conditioned, and are kept
-        # per sampling block (chunks start on block boundaries) and added up in block order at the
-        # end, so that they are the same bit for bit whatever the chunk size or the number of
-        # worker processes.
-        for start in range(0, rows, BLOCK_TRIALS):
-            block = slice(start, start + BLOCK_TRIALS)
-            shifted = voltages[block] - self.limits if not unsolved else \
-                voltages[block][solved[block]] - self.limits
-            self.block_totals.append(np.einsum("ijk->jk", shifted))
-            self.block_squares.append(np.einsum("ijk->jk", np.square(shifted, out=shifted)))
+        # Sums are shifted by the limit to keep the variance sum well conditioned, and are formed
+        # unit by unit in a fixed order (module docstring), so that they are the same bit for bit
+        # whatever the chunks and sub-blocks. An unsolved trial adds zeros (x + 0 is exact).
+        # (Chunks of a run start on a unit; another caller's strings just form their own units.)
+        shifted = voltages - self.limits
+        if unsolved:
+            shifted[~solved] = 0.0
+        totals = unit_sums(shifted)
+        squares = unit_sums(np.square(shifted, out=shifted))
+        self.pending.append((first_trial // SUM_TRIALS, totals, squares))
         good = voltages if not unsolved else voltages[solved]
         self.count += good.shape[0]
         if good.shape[0]:

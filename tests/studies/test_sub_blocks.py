@@ -1,0 +1,86 @@
+"""A run cut into sub-blocks (a memory budget below one sampling block) gives the same figures,
+bit for bit, as the default run in whole blocks (issue 15 item 10)."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from stringcheck.design import parse_design_text
+from stringcheck.report.export import result_to_dict
+from stringcheck.sampling import BLOCK_TRIALS, SUM_TRIALS, chunk_bounds, draw_strings
+from stringcheck.studies.check import run_check
+from stringcheck.studies.position_sums import BlockSums, unit_sums
+
+from .test_check import SCATTER
+
+EXAMPLES = Path(__file__).resolve().parents[2] / "examples"
+
+
+def _same(a, b) -> None:
+    left, right = result_to_dict(a), result_to_dict(b)
+    assert json.dumps(left, sort_keys=True) == json.dumps(right, sort_keys=True)
+
+
+@pytest.mark.parametrize("chunk_trials", [SUM_TRIALS, 3 * SUM_TRIALS])
+def test_sub_blocks_give_the_default_run_bit_for_bit(chunk_trials):
+    # Static and dynamic sums over a block and a part of the next (trials not a multiple of a
+    # unit either), evaluated 64 or 128 (3 x 64 rounds down to a power-of-two sub-block) trials
+    # at a time against the default whole-block chunk.
+    design = parse_design_text(SCATTER)
+    trials = BLOCK_TRIALS + 300 + 7
+    default = run_check(design, trials=trials)
+    cut = run_check(design, trials=trials, chunk_trials=chunk_trials)
+    assert chunk_bounds(trials, chunk_trials)[0][1] < BLOCK_TRIALS
+    _same(default, cut)
+    for name in ("static", "dynamic"):
+        assert default.checks[name].positions == cut.checks[name].positions
+        assert default.checks[name].worst_trial == cut.checks[name].worst_trial
+
+
+def test_sub_blocks_give_the_forward_checks_bit_for_bit():
+    # Parallel and thermal checks too: junction-temperature sums, the runaway-ambient sample (the
+    # first rows of each block: the second sub-block of a block has none), the ballast.
+    text = (EXAMPLES / "furnace-rectifier-3x2-parallel.toml").read_text(encoding="utf-8")
+    design = parse_design_text(text.replace("trials = 5000", "trials = 4200"))
+    default = run_check(design)
+    cut = run_check(design, chunk_trials=BLOCK_TRIALS // 2)
+    _same(default, cut)
+    assert default.checks["thermal"].positions == cut.checks["thermal"].positions
+
+
+def test_sub_block_draws_are_the_block_rows():
+    # PCG64.advance skips the rows before a sub-block: its draws are those rows of the block.
+    design = parse_design_text(SCATTER)
+    whole = draw_strings(design, ("i_r", "q_rr"), 0, BLOCK_TRIALS)
+    first, count = 5 * SUM_TRIALS, SUM_TRIALS
+    piece = draw_strings(design, ("i_r", "q_rr"), first, count)
+    for name in ("i_r", "q_rr"):
+        assert np.array_equal(piece.parameters[name], whole.parameters[name][first:first + count])
+    assert np.array_equal(piece.resistance, whole.resistance[first:first + count])
+    assert np.array_equal(piece.capacitance, whole.capacitance[first:first + count])
+
+
+def test_block_sums_do_not_depend_on_how_the_units_arrive():
+    # A block sum is its units added one after another: the same whether they come in one piece
+    # or scattered over many (the order of floating-point additions is fixed), and equal to
+    # math.fsum within the rounding of 64 additions.
+    import math
+
+    rng = np.random.default_rng(4)
+    values = rng.standard_normal((2 * BLOCK_TRIALS + 300, 3)) * 10.0 ** rng.integers(-6, 6, (1, 3))
+    units = unit_sums(values)
+    one = BlockSums()
+    one.add(units, 0)
+    scattered = BlockSums()
+    cuts = [0, 1, 7, 64, 65, 130, units.shape[0]]
+    for a, b in zip(cuts[:-1], cuts[1:]):
+        scattered.add(units[a:b], a)
+    assert len(one.blocks()) == 3
+    for x, y in zip(one.blocks(), scattered.blocks()):
+        assert np.array_equal(x, y)
+    exact = math.fsum(values[:BLOCK_TRIALS, 0])
+    assert one.blocks()[0][0] == pytest.approx(exact, rel=1e-12, abs=1e-12 * np.abs(values).max())
