@@ -469,6 +469,19 @@ def test_a_ballast_past_any_resistor_names_the_file_and_the_key(tmp_path):
     line = flat(result.stderr)
     assert "slip.toml" in line and "duty.forward_current" in line and "ohm" in line, line
 
+
+def test_a_trial_count_past_the_memory_exits_2_in_one_line(demo_file, monkeypatch):
+    # Issue 15 item 10: refused after the first chunk with the arithmetic, not a MemoryError.
+    from stringcheck.studies import check
+
+    monkeypatch.setattr(check, "available_memory", lambda: 1024 * 1024)
+    result = invoke("check", str(demo_file), "--trials", "2000000", "--quiet")
+    assert result.exit_code == 2, result.output
+    assert_no_traceback(result)
+    assert len(result.stderr.strip().splitlines()) == 1, result.stderr
+    line = flat(result.stderr)
+    assert "2,000,000 trials keep" in line and "1 MiB" in line and "--trials" in line, line
+
 # --- workers ---------------------------------------------------------------------------------------
 
 def test_workers_two_and_one_give_identical_json(demo_file, tmp_path):

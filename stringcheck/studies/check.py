@@ -61,7 +61,8 @@ from .check_inputs import (
 from .mixed_stock import device_part_grid, device_values, position_values
 from .recovery_conditions import RecoveryRescaling, recovery_rescaling, rescale_charges
 from .position_sums import PositionSums
-from .runner import CHUNK_ELEMENTS, WorkerPool, chunk_size, map_chunks, worker_pool
+from .runner import CHUNK_ELEMENTS, WorkerPool, available_memory, chunk_size, map_chunks
+from .runner import worker_pool
 
 # The checks whose inputs the drivers rank; --rare estimates these and the transient check by
 # importance sampling.
@@ -70,6 +71,11 @@ RARE_CHECKS = ("static", "dynamic", "parallel", "thermal")
 TRANSIENT_RARE_SAMPLES = 2000
 # Trials per slice of a chunk in the solvers (whole sampling blocks).
 _SOLVE_TRIALS = 2 * BLOCK_TRIALS
+# Peak memory of the per-trial figures while the checks are summarised, in multiples of what the
+# chunks keep: a check's figures joined into one array beside the chunks' pieces, and the finite
+# ones copied for the percentiles (measured with tracemalloc on benchmarks/run.py's design: 3.0
+# for the static and dynamic checks).
+_SUMMARY_FACTOR = 3
 
 ProgressCallback = Callable[[int, int], None]
 
@@ -230,7 +236,10 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
             chunk_trials = chunk_size(trials, CHUNK_ELEMENTS // (layout.series * layout.parallel),
                                       active)
         bounds = chunk_bounds(trials, chunk_trials)
-        for outcome in map_chunks(_run_chunk, context, bounds, pool=active, progress=progress):
+        for number, outcome in enumerate(map_chunks(_run_chunk, context, bounds, pool=active,
+                                                    progress=progress)):
+            if number == 0 and len(bounds) > 1:
+                _check_memory(design, trials, _per_trial_bytes(outcome, bounds[0][1]))
             if static is not None:
                 static.merge(outcome.static)
             if dynamic is not None:
@@ -372,6 +381,46 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     if first < context.driver_trials:
         features = chunk_features(drawn, design, min(count, context.driver_trials - first))
     return _ChunkOutcome(static=static, dynamic=dynamic, forward=forward, features=features)
+
+
+def _per_trial_bytes(outcome: _ChunkOutcome, count: int) -> float:
+    """Bytes per trial of the figures a chunk's outcome keeps until the end of the run (the worst
+    ratio of each trial in each check, the forward checks' per-trial figures)."""
+    total = 0
+    for sums in (outcome.static, outcome.dynamic):
+        if sums is not None:
+            total += sum(ratios.nbytes for ratios in sums.worst_ratios)
+    if outcome.forward is not None:
+        for name, value in vars(outcome.forward).items():
+            # (The runaway-ambient sample is a few rows per block, not per trial.)
+            if name != "runaway_ambient" and isinstance(value, np.ndarray) and value.ndim \
+                    and value.shape[0] == count:
+                total += value.nbytes
+    return total / max(count, 1)
+
+
+def _check_memory(design: Design, trials: int, per_trial: float) -> None:
+    """Refuse, after the first chunk, a run whose per-trial figures the machine cannot hold."""
+    available = available_memory()
+    if available is None or per_trial <= 0:
+        return
+    kept = per_trial * trials
+    needed = _SUMMARY_FACTOR * kept
+    if needed <= available:
+        return
+    most = int(available / (_SUMMARY_FACTOR * per_trial)) // 1000 * 1000
+    raise DesignError(
+        f"{trials:,} trials keep {per_trial:.0f} bytes of figures each ({_bytes(kept)}), and "
+        f"summarising them takes about {_SUMMARY_FACTOR} times that ({_bytes(needed)}), more than "
+        f"the {_bytes(available)} of memory available: use at most {most:,} trials (--trials or "
+        "monte_carlo.trials)", source=design.source, key="monte_carlo.trials")
+
+
+def _bytes(count: float) -> str:
+    for scale, unit in ((2 ** 40, "TiB"), (2 ** 30, "GiB"), (2 ** 20, "MiB"), (2 ** 10, "KiB")):
+        if count >= scale:
+            return f"{count / scale:.3g} {unit}"
+    return f"{count:.0f} B"
 
 
 def _for_devices(context: _ChunkContext, drawn: DrawnStrings) -> _ChunkContext:

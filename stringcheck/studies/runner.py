@@ -27,13 +27,42 @@ from ..sampling import BLOCK_TRIALS, evaluation_trials
 Context = TypeVar("Context")
 Outcome = TypeVar("Outcome")
 
-__all__ = ["CHUNK_ELEMENTS", "WorkerPool", "check_workers", "chunk_size", "map_chunks",
-           "worker_pool"]
+__all__ = ["CHUNK_ELEMENTS", "WorkerPool", "available_memory", "check_workers", "chunk_size",
+           "map_chunks", "worker_pool"]
 
 # A chunk's array budget: chunks hold about this many device values (of the order of 100 bytes of
 # working arrays each while a chunk is drawn and solved), so memory stays flat in the trial count
 # and in the string's size.
 CHUNK_ELEMENTS = 1_000_000
+
+
+def available_memory() -> int | None:
+    """Bytes of memory this process may still take: the kernel's estimate of what can be allocated
+    without swapping (``MemAvailable`` of /proc/meminfo, Linux 3.14+), else the free physical
+    pages, capped by an address-space limit (``RLIMIT_AS``) if one is set; None when unknown."""
+    available = None
+    try:
+        with open("/proc/meminfo", encoding="ascii") as meminfo:
+            for line in meminfo:
+                if line.startswith("MemAvailable:"):
+                    available = int(line.split()[1]) * 1024
+                    break
+    except (OSError, ValueError):
+        pass
+    if available is None:
+        try:
+            available = os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
+        except (AttributeError, OSError, ValueError):
+            available = None
+    try:
+        import resource
+
+        soft, _ = resource.getrlimit(resource.RLIMIT_AS)
+        if soft != resource.RLIM_INFINITY and soft > 0:
+            available = soft if available is None else min(available, soft)
+    except (ImportError, OSError, ValueError):
+        pass
+    return available
 
 
 def check_workers(workers: int) -> int:

@@ -84,3 +84,24 @@ def test_block_sums_do_not_depend_on_how_the_units_arrive():
         assert np.array_equal(x, y)
     exact = math.fsum(values[:BLOCK_TRIALS, 0])
     assert one.blocks()[0][0] == pytest.approx(exact, rel=1e-12, abs=1e-12 * np.abs(values).max())
+
+
+def test_a_trial_count_the_memory_cannot_hold_is_refused_with_the_arithmetic(monkeypatch):
+    # SCATTER runs the static and dynamic checks: each trial keeps its worst ratio in each, 2 x 8
+    # bytes (float64). 20,000 trials keep 320,000 B (312.5 KiB), 3 times that while summarised
+    # (938 KiB), against 64 KiB "available": at most 65536 / 48 = 1365 trials, 1,000 rounded down.
+    from stringcheck.errors import DesignError
+    from stringcheck.studies import check
+
+    monkeypatch.setattr(check, "available_memory", lambda: 64 * 1024)
+    design = parse_design_text(SCATTER)
+    with pytest.raises(DesignError) as raised:
+        run_check(design, trials=20_000, chunk_trials=BLOCK_TRIALS)
+    message = str(raised.value)
+    assert "monte_carlo.trials" in message and "\n" not in message
+    assert "20,000 trials keep 16 bytes" in message, message
+    assert "312 KiB" in message and "938 KiB" in message and "64 KiB" in message, message
+    assert "at most 1,000 trials" in message, message
+    # With the memory there, the same run goes through.
+    monkeypatch.setattr(check, "available_memory", lambda: 2 ** 30)
+    assert run_check(design, trials=5000, chunk_trials=BLOCK_TRIALS).trials == 5000
