@@ -72,9 +72,10 @@ TRANSIENT_RARE_SAMPLES = 2000
 # Trials per slice of a chunk in the solvers (whole sampling blocks).
 _SOLVE_TRIALS = 2 * BLOCK_TRIALS
 # Peak memory of the per-trial figures while the checks are summarised, in multiples of what the
-# chunks keep: a check's figures joined into one array beside the chunks' pieces, and the finite
-# ones copied for the percentiles (measured with tracemalloc on benchmarks/run.py's design: 3.0
-# for the static and dynamic checks).
+# chunks keep. A series check joins its ratios into one array (its pieces then freed) and copies
+# the finite ones for the percentiles (sorted in place): 2 for the static and dynamic checks by
+# that count. The forward checks join several figures and derive (trials, parallel) arrays from
+# them beside their chunks, hence the margin.
 _SUMMARY_FACTOR = 3
 
 ProgressCallback = Callable[[int, int], None]
@@ -482,6 +483,8 @@ def _finish(name: str, accumulator: PositionSums, grid: np.ndarray, confidence: 
     """Summarise one check. It passes when the upper confidence bound of P(fail) is within
     ``target`` ([sizing] target_p_fail): a run too short to show that cannot pass."""
     ratios = np.concatenate(accumulator.worst_ratios)
+    # One copy of the per-trial ratios from here on (the transient check reads them again).
+    accumulator.worst_ratios[:] = [ratios]
     failures = int(np.count_nonzero(~within_limit(ratios)))
     estimate = failure_estimate(failures, trials, confidence=confidence)
     count = max(accumulator.count, 1)
@@ -506,14 +509,17 @@ def _finish(name: str, accumulator: PositionSums, grid: np.ndarray, confidence: 
                 max_voltage=float(accumulator.maximum[branch, index]),
                 failures=int(accumulator.failures_by_position[branch, index])))
     finite = ratios[np.isfinite(ratios)]
+    # Both percentiles from one partial sort of ``finite`` in place (no further copy); the
+    # histogram below does not depend on the order.
+    p50, p99 = np.percentile(finite, [50, 99], overwrite_input=True) if finite.size else \
+        (float("nan"), float("nan"))
     worst_string = accumulator.worst_string if accumulator.worst_string is not None else \
         np.full(grid.shape, np.nan)
     return SeriesCheck(
         name=name, ran=True, reason="", passed=estimate.ci_high <= target,
         worst_voltage=float(np.max(accumulator.maximum)) if accumulator.count else float("nan"),
         worst_ratio=float(np.max(ratios)),
-        p50_ratio=float(np.percentile(finite, 50)) if finite.size else float("nan"),
-        p99_ratio=float(np.percentile(finite, 99)) if finite.size else float("nan"),
+        p50_ratio=float(p50), p99_ratio=float(p99),
         estimate=estimate, unsolved=accumulator.unsolved, worst_trial=accumulator.worst_trial,
         worst_string=worst_string, positions=tuple(positions),
         histogram=tuple(histogram_counts(finite, bins=12)) if finite.size else ())
