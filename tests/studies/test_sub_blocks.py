@@ -4,6 +4,7 @@ bit for bit, as the default run in whole blocks (issue 15 item 10)."""
 from __future__ import annotations
 
 import json
+from importlib import resources
 from pathlib import Path
 
 import numpy as np
@@ -105,3 +106,19 @@ def test_a_trial_count_the_memory_cannot_hold_is_refused_with_the_arithmetic(mon
     # With the memory there, the same run goes through.
     monkeypatch.setattr(check, "available_memory", lambda: 2 ** 30)
     assert run_check(design, trials=5000, chunk_trials=BLOCK_TRIALS).trials == 5000
+
+
+def test_the_transient_check_redraws_sub_blocks_bit_for_bit(monkeypatch):
+    # The turn-off redraws the strings it simulates; under a budget below a block it redraws only
+    # the sub-blocks that hold them, whose draws are those rows of the block: the same check.
+    from stringcheck.studies import transient_check
+
+    demo = (resources.files("stringcheck") / "data" / "demo.toml").read_text(encoding="utf-8")
+    design = parse_design_text(demo)
+    options = dict(trials=BLOCK_TRIALS + 500, transient=True, transient_worst=3, transient_sample=40)
+    default = run_check(design, **options).checks["transient"]
+    devices = design.string.series * design.string.parallel
+    monkeypatch.setattr(transient_check, "CHUNK_ELEMENTS", SUM_TRIALS * devices)
+    cut = run_check(design, **options).checks["transient"]
+    assert default.ran and cut.ran
+    assert default == cut
