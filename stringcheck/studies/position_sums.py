@@ -2,12 +2,16 @@
 count: counts, block sums of the voltages and their squares (shifted by the limit), maxima, failures
 per position and each trial's worst stress ratio.
 
-Sums are formed in one fixed order whatever the run was cut into: each unit of ``SUM_TRIALS``
-consecutive trials (counted from trial 0) is summed row after row, a sampling block is the sum of
-its units one after another (:class:`BlockSums`, carried across chunks that end inside a block),
-and the blocks are added up in block order at the end. So a run gives the same figures bit for bit
-whatever its chunk size, its sub-blocks (a string too large for a block in memory) or its number of
-worker processes.
+Sums are formed in one fixed way whatever the run was cut into: each unit of ``SUM_TRIALS``
+consecutive trials (counted from trial 0; a short last unit padded with zero rows) is summed over its
+rows by one reduction (:func:`unit_sums`); a sampling block is the sum of its 64 units by the same
+reduction (:class:`BlockSums`, which holds the units of a block cut over several chunks until it is
+complete); and the blocks are added up in block order at the end. Adding a zero is exact, so the
+padding changes nothing. numpy's reduction of a unit depends only on the unit's values, not on how
+many units one call holds nor where they sit in memory (tests/studies/test_sub_blocks.py checks
+sub-blocks against whole blocks bit for bit), so a run gives the same figures bit for bit whatever
+its chunk size, its sub-blocks (a string too large for a block in memory) or its number of worker
+processes.
 """
 
 from __future__ import annotations
@@ -23,75 +27,72 @@ _UNITS_PER_BLOCK = BLOCK_TRIALS // SUM_TRIALS
 
 
 def unit_sums(values: np.ndarray) -> np.ndarray:
-    """Sums over each ``SUM_TRIALS`` rows of ``values`` (rows, ...), row after row, (units, ...);
-    the last unit may be short. The order of the additions is fixed, so a unit's sum does not
-    depend on what else was in the array."""
+    """Sums over each ``SUM_TRIALS`` rows of ``values`` (rows, ...), (units, ...); a short last
+    unit is padded with zero rows, so that every unit is reduced alike."""
     rows = values.shape[0]
     whole = rows // SUM_TRIALS * SUM_TRIALS
     parts = []
     if whole:
-        grouped = values[:whole].reshape((whole // SUM_TRIALS, SUM_TRIALS) + values.shape[1:])
-        parts.append(_fold(grouped))
+        parts.append(_group_sums(values[:whole].reshape((whole // SUM_TRIALS, SUM_TRIALS)
+                                                         + values.shape[1:])))
     if whole < rows:
-        parts.append(_fold(values[whole:][None]))
+        padded = np.zeros((1, SUM_TRIALS) + values.shape[1:])
+        padded[0, :rows - whole] = values[whole:]
+        parts.append(_group_sums(padded))
     return np.concatenate(parts) if parts else np.zeros((0,) + values.shape[1:])
 
 
-def _fold(grouped: np.ndarray) -> np.ndarray:
-    """grouped[:, 0] + grouped[:, 1] + ... in that order, vectorized over the leading axis."""
-    total = grouped[:, 0].copy()
-    for index in range(1, grouped.shape[1]):
-        total += grouped[:, index]
-    return total
+def _group_sums(grouped: np.ndarray) -> np.ndarray:
+    """Sum over axis 1 of (groups, n, ...) for each group, (groups, ...)."""
+    return np.einsum("ui...->u...", grouped)
 
 
 @dataclass
 class BlockSums:
-    """Sums per sampling block, folded from unit sums (:func:`unit_sums`) that arrive in trial
-    order: a block is its first unit plus each next one in turn, also when its units come from
-    several chunks. ``blocks()`` gives the sums of the blocks so far (the last one possibly still
-    open), in block order."""
+    """Sums per sampling block from the unit sums (:func:`unit_sums`) of its 64 units; the units of a block that arrive in several pieces (chunks that start or end inside
+    it) are held until it is complete. ``blocks()`` gives the sums of the blocks so far in block
+    order, the open one last (its missing units count as zero)."""
 
     done: list = field(default_factory=list)
-    open_sum: np.ndarray | None = None
+    open_units: np.ndarray | None = None
     open_block: int = -1
 
     def add(self, units: np.ndarray, first_unit: int) -> None:
-        """Fold ``units`` (units, ...), the unit sums of units ``first_unit``.. of the run."""
+        """Take ``units`` (units, ...), the unit sums of units ``first_unit``.. of the run."""
         unit = first_unit
         while units.shape[0]:
             block, place = divmod(unit, _UNITS_PER_BLOCK)
-            take = min(_UNITS_PER_BLOCK - place, units.shape[0])
             if place == 0 and units.shape[0] >= _UNITS_PER_BLOCK:
-                # Runs of whole blocks: vectorized over the blocks, the same additions in order.
+                # Runs of whole blocks: the same reduction, vectorized over the blocks.
                 whole = units.shape[0] // _UNITS_PER_BLOCK * _UNITS_PER_BLOCK
-                folded = _fold(units[:whole].reshape((-1, _UNITS_PER_BLOCK) + units.shape[1:]))
                 self._close()
-                self.done.extend(folded)
+                self.done.extend(_group_sums(
+                    units[:whole].reshape((-1, _UNITS_PER_BLOCK) + units.shape[1:])))
                 unit += whole
                 units = units[whole:]
                 continue
-            piece = units[:take]
-            if place == 0 or self.open_block != block:
-                # A new block (or, for a chunk's own sums, the part of a block it starts in).
+            take = min(_UNITS_PER_BLOCK - place, units.shape[0])
+            if self.open_block != block:
                 self._close()
-                self.open_sum, self.open_block = piece[0].copy(), block
-                piece = piece[1:]
-            for row in piece:
-                self.open_sum += row
+                self.open_units = np.zeros((_UNITS_PER_BLOCK,) + units.shape[1:])
+                self.open_block = block
+            self.open_units[place:place + take] = units[:take]
             if place + take == _UNITS_PER_BLOCK:
                 self._close()
             unit += take
             units = units[take:]
 
     def _close(self) -> None:
-        if self.open_sum is not None:
-            self.done.append(self.open_sum)
-            self.open_sum, self.open_block = None, -1
+        if self.open_units is not None:
+            self.done.append(self._open_sum())
+            self.open_units, self.open_block = None, -1
+
+    def _open_sum(self) -> np.ndarray:
+        return _group_sums(self.open_units[None])[0]
 
     def blocks(self) -> list:
         """The block sums so far in block order, the open block's last."""
-        return self.done + ([] if self.open_sum is None else [self.open_sum])
+        return self.done + ([] if self.open_units is None else [self._open_sum()])
 
 
 @dataclass

@@ -122,3 +122,22 @@ def test_the_transient_check_redraws_sub_blocks_bit_for_bit(monkeypatch):
     cut = run_check(design, **options).checks["transient"]
     assert default.ran and cut.ran
     assert default == cut
+
+
+@pytest.mark.parametrize("width", [1, 3, 20, 257])
+def test_a_unit_sum_depends_only_on_the_unit(width):
+    # The property the bit-for-bit sub-blocks rest on: a unit's sum is the same whether it is
+    # reduced among many units or alone, wherever it sits in memory (an 8-byte shift of a copy
+    # changes its alignment); a short last unit padded with zeros equals its plain sum closely.
+    rng = np.random.default_rng(width)
+    values = rng.standard_normal((10 * SUM_TRIALS + 5, width)) * 10.0 ** rng.integers(-9, 9, width)
+    together = unit_sums(values)
+    for unit in (0, 3, 9):
+        rows = values[unit * SUM_TRIALS:(unit + 1) * SUM_TRIALS]
+        buffer = np.empty(rows.size + 1)
+        shifted = buffer[1:].reshape(rows.shape)
+        shifted[...] = rows
+        assert np.array_equal(unit_sums(shifted)[0], together[unit])
+    assert np.array_equal(unit_sums(values[10 * SUM_TRIALS:].copy())[0], together[10])
+    assert together[10] == pytest.approx(values[10 * SUM_TRIALS:].sum(axis=0), rel=1e-12,
+                                         abs=1e-12 * np.abs(values).max())
