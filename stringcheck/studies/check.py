@@ -239,8 +239,6 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         bounds = chunk_bounds(trials, chunk_trials)
         for number, outcome in enumerate(map_chunks(_run_chunk, context, bounds, pool=active,
                                                     progress=progress)):
-            if number == 0 and len(bounds) > 1:
-                _check_memory(design, trials, _per_trial_bytes(outcome, bounds[0][1]))
             if static is not None:
                 static.merge(outcome.static)
             if dynamic is not None:
@@ -259,6 +257,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                     ratios["parallel"].append(outcome.forward.current_ratio[:count])
                     if outcome.forward.tj_ratio is not None:
                         ratios["thermal"].append(outcome.forward.tj_ratio[:count])
+            if number == 0 and len(bounds) > 1:
+                # What the first chunk keeps, as merged, tells what the whole run will keep.
+                _check_memory(design, trials, _per_trial_bytes(outcome, bounds[0][1]))
 
     confidence = design.monte_carlo.confidence
     target = design.sizing.target_p_fail

@@ -29,6 +29,7 @@ from ..sampling import BLOCK_TRIALS, SUM_TRIALS, DrawnStrings
 from ..solvers.electrothermal import (
     OVER_LIMIT,
     RUNAWAY,
+    STABLE,
     ParallelDevices,
     ParallelDuty,
     runaway_ambient,
@@ -402,6 +403,18 @@ def _rows(devices: ParallelDevices, rows: np.ndarray) -> ParallelDevices:
     return ParallelDevices(**values)
 
 
+# The equilibrium classes of the accumulated chunks, one byte per trial (as text, numpy's '<U12'
+# takes 48 bytes a trial).
+_CLASS_CODES = {STABLE: 0, OVER_LIMIT: 1, RUNAWAY: 2}
+
+
+def _class_codes(classes: np.ndarray) -> np.ndarray:
+    codes = np.zeros(classes.shape, dtype=np.int8)
+    for name, code in _CLASS_CODES.items():
+        codes[classes == name] = code
+    return codes
+
+
 @dataclass
 class ForwardAccumulator:
     """Chunks of the forward checks, kept in trial order; their junction-temperature sums are
@@ -411,6 +424,8 @@ class ForwardAccumulator:
     tj_blocks: BlockSums = field(default_factory=BlockSums)
 
     def merge(self, chunk: ForwardChunk) -> None:
+        if chunk.classification is not None and chunk.classification.dtype.kind in "UO":
+            chunk.classification = _class_codes(chunk.classification)
         if chunk.tj_sum is not None:
             self.tj_blocks.add(chunk.tj_sum, chunk.first_trial // SUM_TRIALS)
             chunk.tj_sum = None
@@ -512,8 +527,8 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
     ratio = accumulator.joined("tj_ratio")
     worst = accumulator.joined("worst_tj")
     classes = accumulator.joined("classification")
-    runaway = classes == "runaway"
-    over = classes == "over T_j,max"
+    runaway = classes == _CLASS_CODES[RUNAWAY]
+    over = classes == _CLASS_CODES[OVER_LIMIT]
     failed = runaway | over | ~within_limit(ratio)
     estimate = failure_estimate(int(np.count_nonzero(failed)), trials, confidence=confidence)
     runaway_estimate = failure_estimate(int(np.count_nonzero(runaway)), trials,
