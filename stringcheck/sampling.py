@@ -23,7 +23,10 @@ Random streams: trials are grouped in blocks of :data:`BLOCK_TRIALS`. Block b dr
 (one parameter of the devices, the lot of one part, the resistors, the capacitors) from its own stream,
 ``SeedSequence(seed, spawn_key=(b, component))``. A run processes whole blocks in chunks, so the result
 does not depend on the chunk size or on how chunks are shared out among processes, and drawing one more
-parameter never changes the draws of the others.
+parameter never changes the draws of the others. A string of many devices is evaluated in sub-blocks
+(whole :data:`SUM_TRIALS` units, see :func:`evaluation_trials`) so that a chunk stays within the
+memory budget: a sub-block draws its rows of the block's streams by skipping the rows before it
+(``PCG64.advance``: one 64-bit step per uniform), so its draws are those of the whole block.
 
 Mixed stock (``StringLayout.mix``, ``review --mix``): one more component draws a uniform u per device
 and block; the device is the mix's part where u < fraction, else the part its position holds. Every
@@ -43,11 +46,15 @@ from scipy import special
 from .design import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Design, correlation_matrix
 from .spread_maps import normal_scores, spread_quantile, tolerance_draw
 
-__all__ = ["BLOCK_TRIALS", "DrawnStrings", "Latent", "chunk_bounds", "draw_latent", "draw_strings",
-           "latent_parameters", "spread_quantile", "strings_from_latent", "substituted_devices",
-           "tolerance_draw"]
+__all__ = ["BLOCK_TRIALS", "SUM_TRIALS", "DrawnStrings", "Latent", "chunk_bounds", "draw_latent", "draw_strings",
+           "evaluation_trials", "latent_parameters", "spread_quantile", "strings_from_latent",
+           "substituted_devices", "tolerance_draw"]
 
 BLOCK_TRIALS = 4096
+# The unit of the per-position sums (``studies.position_sums``) and the smallest sub-block a large
+# string is evaluated in: sums over these units, added in trial order, are the same bit for bit
+# whichever sub-blocks a run was cut into.
+SUM_TRIALS = 64
 
 # Stream numbers of the components that are not a device parameter.
 _RESISTOR_STREAM = 1001
@@ -136,12 +143,14 @@ def _part_stream_id(name: str) -> int:
 
 
 def _block_draws(seed: int, first_trial: int, count: int, component: int, width: int,
-                 draw, dtype=float) -> np.ndarray:
+                 draw, dtype=float, row_steps: int | None = None) -> np.ndarray:
     """(count, width) draws for trials first_trial.. of one component, block by block:
-    ``draw(generator, offset, rows)`` fills ``rows`` with the block's draws from row ``offset`` on.
+    ``draw(generator, rows)`` fills ``rows`` with the next rows of the block's draws.
 
-    A block's draws are generated in order, so the first rows of a longer draw equal a shorter one:
-    the offset rows are generated and dropped only when a chunk starts inside a block.
+    A block's draws are generated in order, so the first rows of a longer draw equal a shorter one;
+    a chunk that starts inside a block skips the rows before it (every ``draw`` takes one 64-bit
+    step of the generator per uniform, ``row_steps`` per row (default ``width``), so ``advance``
+    lands on the row exactly).
     """
     out = np.empty((count, width), dtype=dtype)
     trial = first_trial
@@ -149,8 +158,10 @@ def _block_draws(seed: int, first_trial: int, count: int, component: int, width:
     while trial < end:
         block, offset = divmod(trial, BLOCK_TRIALS)
         take = min(BLOCK_TRIALS - offset, end - trial)
-        draw(_stream(seed, block, component), offset,
-             out[trial - first_trial:trial - first_trial + take])
+        generator = _stream(seed, block, component)
+        if offset:
+            generator.bit_generator.advance(offset * (width if row_steps is None else row_steps))
+        draw(generator, out[trial - first_trial:trial - first_trial + take])
         trial += take
     return out
 
@@ -170,8 +181,8 @@ def _lot_rows(seed: int, first_trial: int, count: int, component: int, devices: 
     rows of a longer one (the block scheme of :func:`_block_draws`).
     """
 
-    def draw(generator: np.random.Generator, offset: int, rows: np.ndarray) -> None:
-        uniforms = generator.random((offset + rows.shape[0], 2 * take))[offset:]
+    def draw(generator: np.random.Generator, rows: np.ndarray) -> None:
+        uniforms = generator.random((rows.shape[0], 2 * take))
         chosen = rows
         for i, j in enumerate(range(devices - take, devices)):
             t = np.minimum((uniforms[:, i] * (j + 1)).astype(np.int64), j)
@@ -180,7 +191,8 @@ def _lot_rows(seed: int, first_trial: int, count: int, component: int, devices: 
         order = np.argsort(uniforms[:, take:], axis=1)
         rows[...] = np.take_along_axis(chosen, order, axis=1)
 
-    return _block_draws(seed, first_trial, count, component, take, draw, dtype=np.int64)
+    return _block_draws(seed, first_trial, count, component, take, draw, dtype=np.int64,
+                        row_steps=2 * take)
 
 
 @dataclass(frozen=True)
@@ -468,9 +480,8 @@ def _mapped_scores(scores: StreamScores, mapper) -> np.ndarray:
     time: the block's scores stay in cache and are not kept."""
     width = scores.shape[0] * scores.shape[1]
 
-    def draw(generator: np.random.Generator, offset: int, rows: np.ndarray) -> None:
-        u = generator.random((offset + rows.shape[0], width))[offset:]
-        mapper(u, rows)
+    def draw(generator: np.random.Generator, rows: np.ndarray) -> None:
+        mapper(generator.random((rows.shape[0], width)), rows)
 
     return _block_draws(scores.seed, scores.first_trial, scores.count, scores.component, width,
                         draw).reshape((scores.count,) + scores.shape)
@@ -479,11 +490,8 @@ def _mapped_scores(scores: StreamScores, mapper) -> np.ndarray:
 def _uniforms(seed: int, first_trial: int, count: int, component: int, width: int) -> np.ndarray:
     """Uniforms on [0, 1), (count, width), for trials first_trial.. of one component, block by
     block: a longer draw begins with a shorter one."""
-    def draw(generator: np.random.Generator, offset: int, rows: np.ndarray) -> None:
-        if offset == 0:
-            generator.random(out=rows)
-        else:
-            rows[...] = generator.random((offset + rows.shape[0], width))[offset:]
+    def draw(generator: np.random.Generator, rows: np.ndarray) -> None:
+        generator.random(out=rows)
 
     return _block_draws(seed, first_trial, count, component, width, draw)
 
@@ -548,7 +556,24 @@ def _mixed_strings(design: Design, parameters: tuple[str, ...], latent: Latent, 
                    latent=pick(base.latent, other.latent), part_index=index, part_names=names)
 
 
+def evaluation_trials(devices: int, elements: int) -> int:
+    """Trials a chunk of strings of ``devices`` devices may hold within ``elements`` device values:
+    whole sampling blocks when one block fits, else the largest sub-block of ``SUM_TRIALS`` x 2^k
+    trials that fits (at least ``SUM_TRIALS``), which divides a block."""
+    fitting = elements // max(devices, 1)
+    if fitting >= BLOCK_TRIALS:
+        return fitting // BLOCK_TRIALS * BLOCK_TRIALS
+    piece = SUM_TRIALS
+    while 2 * piece <= fitting:
+        piece *= 2
+    return piece
+
+
 def chunk_bounds(trials: int, chunk_trials: int) -> list[tuple[int, int]]:
-    """(first_trial, count) of each chunk; chunks hold whole blocks except the last."""
-    chunk = max(BLOCK_TRIALS, (chunk_trials // BLOCK_TRIALS) * BLOCK_TRIALS)
+    """(first_trial, count) of each chunk; chunks hold whole blocks except the last, or, below a
+    block, whole sub-blocks (:func:`evaluation_trials`) that divide it."""
+    if chunk_trials >= BLOCK_TRIALS:
+        chunk = chunk_trials // BLOCK_TRIALS * BLOCK_TRIALS
+    else:
+        chunk = evaluation_trials(1, max(chunk_trials, 1))
     return [(start, min(chunk, trials - start)) for start in range(0, trials, chunk)]

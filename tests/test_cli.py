@@ -437,6 +437,51 @@ def test_size_of_an_impossible_string_exits_1_with_the_arithmetic(tmp_path):
     assert "2560 V" in result.stderr and "--find-series" in result.stderr
 
 
+
+def test_size_find_series_past_the_device_cap_is_refused_with_the_arithmetic(tmp_path):
+    # A kV/MV slip: 16 MV over devices of 0.8 x 1.6 kV = 1280 V needs 16e6 / 1280 = 12,500 devices,
+    # past the 10,000 the tool holds; refused before any Monte Carlo (issue 15 item 9).
+    path = tmp_path / "slip.toml"
+    path.write_text(FAILING_DESIGN.replace('"4 kV"', '"16 MV"'), encoding="utf-8")
+    result = invoke("size", str(path), "--find-series", "--trials", PASSING_TRIALS)
+    assert result.exit_code == 2, result.output
+    assert_no_traceback(result)
+    assert len(result.stderr.strip().splitlines()) == 1, result.stderr
+    line = flat(result.stderr)
+    assert "12,500 devices" in line and "10,000" in line, line
+    assert "slip.toml" in line and "duty.reverse_voltage" in line, line
+
+
+def test_a_ballast_past_any_resistor_names_the_file_and_the_key(tmp_path):
+    # A unit slip in the group current (1e-295 A): the ballast that brings the share within 1.1
+    # works out near 1e295 ohm, past the 1e290 the preferred-value ladder is built for (IEC
+    # 60063 values cover any practical resistor); one line naming file and key, exit 2.
+    example = Path(__file__).resolve().parents[1] / "examples" / \
+        "furnace-rectifier-3x2-parallel.toml"
+    text = example.read_text(encoding="utf-8").replace('forward_current = "40 A"',
+                                                       "forward_current = 1e-295")
+    path = tmp_path / "slip.toml"
+    path.write_text(text.replace("trials = 5000", "trials = 300"), encoding="utf-8")
+    result = invoke("check", str(path), "--no-rare", "--quiet")
+    assert result.exit_code == 2, result.output
+    assert_no_traceback(result)
+    assert len(result.stderr.strip().splitlines()) == 1, result.stderr
+    line = flat(result.stderr)
+    assert "slip.toml" in line and "duty.forward_current" in line and "ohm" in line, line
+
+
+def test_a_trial_count_past_the_memory_exits_2_in_one_line(demo_file, monkeypatch):
+    # Issue 15 item 10: refused after the first chunk with the arithmetic, not a MemoryError.
+    from stringcheck.studies import check
+
+    monkeypatch.setattr(check, "available_memory", lambda: 1024 * 1024)
+    result = invoke("check", str(demo_file), "--trials", "2000000", "--quiet")
+    assert result.exit_code == 2, result.output
+    assert_no_traceback(result)
+    assert len(result.stderr.strip().splitlines()) == 1, result.stderr
+    line = flat(result.stderr)
+    assert "2,000,000 trials keep" in line and "1 MiB" in line and "--trials" in line, line
+
 # --- workers ---------------------------------------------------------------------------------------
 
 def test_workers_two_and_one_give_identical_json(demo_file, tmp_path):

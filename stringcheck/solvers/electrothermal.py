@@ -72,6 +72,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from stringcheck.errors import StringcheckError
+from stringcheck.limits import exceeds_limit
 from stringcheck.physics.forward import (
     SLOPE_RESISTANCE_FLOOR,
     leakage_loss,
@@ -492,7 +493,7 @@ def solve_equilibrium(
                              resistance.sum(axis=-1) + duty.path_resistance,
                              phase_samples(duty.forward_current, duty.waveform).peak)
     stable = converged & (radius < 1.0)
-    over = (temperature > devices.max_junction_temperature).any(axis=(-2, -1))
+    over = exceeds_limit(temperature, devices.max_junction_temperature).any(axis=(-2, -1))
     classification = np.where(stable, np.where(over, OVER_LIMIT, STABLE), RUNAWAY)
     return Equilibrium(
         junction_temperature=temperature,

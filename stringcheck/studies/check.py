@@ -17,6 +17,7 @@ import numpy as np
 
 from ..design import Design, Part
 from ..errors import DesignError
+from ..limits import within_limit
 from ..physics.leakage import leakage_current
 from ..plausibility import PlausibilityWarning, plausibility_warnings
 from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
@@ -66,11 +67,9 @@ from .recovery_conditions import (
     recovery_rescaling,
 )
 from .position_sums import PositionSums
-from .runner import WorkerPool, chunk_size, map_chunks, worker_pool
+from .runner import CHUNK_ELEMENTS, WorkerPool, available_memory, chunk_size, map_chunks
+from .runner import worker_pool
 
-# A check's per-chunk array budget: chunks hold about this many device values, so memory stays flat
-# in the trial count.
-_CHUNK_ELEMENTS = 1_000_000
 # The checks whose inputs the drivers rank; --rare estimates these and the transient check by
 # importance sampling.
 RARE_CHECKS = ("static", "dynamic", "parallel", "thermal")
@@ -78,6 +77,12 @@ RARE_CHECKS = ("static", "dynamic", "parallel", "thermal")
 TRANSIENT_RARE_SAMPLES = 2000
 # Trials per slice of a chunk in the solvers (whole sampling blocks).
 _SOLVE_TRIALS = 2 * BLOCK_TRIALS
+# Peak memory of the per-trial figures while the checks are summarised, in multiples of what the
+# chunks keep. A series check joins its ratios into one array (its pieces then freed) and copies
+# the finite ones for the percentiles (sorted in place): 2 for the static and dynamic checks by
+# that count. The forward checks join several figures and derive (trials, parallel) arrays from
+# them beside their chunks, hence the margin.
+_SUMMARY_FACTOR = 3
 
 ProgressCallback = Callable[[int, int], None]
 
@@ -157,7 +162,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     trials, seed
         Override the design's Monte Carlo settings.
     chunk_trials
-        Trials per chunk (rounded to whole sampling blocks); the result does not depend on it.
+        Trials per chunk (rounded to whole sampling blocks, or below a block to a sub-block of
+        ``sampling.SUM_TRIALS`` x 2^k); the result does not depend on it, bit for bit.
     only
         Run only these of ("static", "dynamic") (the sizing search uses it); a check left out is
         reported as not run.
@@ -242,10 +248,11 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     ratios: dict[str, list] = {"static": [], "dynamic": [], "parallel": [], "thermal": []}
     with worker_pool(workers) if pool is None else nullcontext(pool) as active:
         if chunk_trials is None:
-            chunk_trials = chunk_size(trials, _CHUNK_ELEMENTS // (layout.series * layout.parallel),
+            chunk_trials = chunk_size(trials, CHUNK_ELEMENTS // (layout.series * layout.parallel),
                                       active)
         bounds = chunk_bounds(trials, chunk_trials)
-        for outcome in map_chunks(_run_chunk, context, bounds, pool=active, progress=progress):
+        for number, outcome in enumerate(map_chunks(_run_chunk, context, bounds, pool=active,
+                                                    progress=progress)):
             if static is not None:
                 static.merge(outcome.static)
             if dynamic is not None:
@@ -264,6 +271,9 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                     ratios["parallel"].append(outcome.forward.current_ratio[:count])
                     if outcome.forward.tj_ratio is not None:
                         ratios["thermal"].append(outcome.forward.tj_ratio[:count])
+            if number == 0 and len(bounds) > 1:
+                # What the first chunk keeps, as merged, tells what the whole run will keep.
+                _check_memory(design, trials, _per_trial_bytes(outcome, bounds[0][1]))
 
     confidence = design.monte_carlo.confidence
     target = design.sizing.target_p_fail
@@ -393,6 +403,46 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     return _ChunkOutcome(static=static, dynamic=dynamic, forward=forward, features=features)
 
 
+def _per_trial_bytes(outcome: _ChunkOutcome, count: int) -> float:
+    """Bytes per trial of the figures a chunk's outcome keeps until the end of the run (the worst
+    ratio of each trial in each check, the forward checks' per-trial figures)."""
+    total = 0
+    for sums in (outcome.static, outcome.dynamic):
+        if sums is not None:
+            total += sum(ratios.nbytes for ratios in sums.worst_ratios)
+    if outcome.forward is not None:
+        for name, value in vars(outcome.forward).items():
+            # (The runaway-ambient sample is a few rows per block, not per trial.)
+            if name != "runaway_ambient" and isinstance(value, np.ndarray) and value.ndim \
+                    and value.shape[0] == count:
+                total += value.nbytes
+    return total / max(count, 1)
+
+
+def _check_memory(design: Design, trials: int, per_trial: float) -> None:
+    """Refuse, after the first chunk, a run whose per-trial figures the machine cannot hold."""
+    available = available_memory()
+    if available is None or per_trial <= 0:
+        return
+    kept = per_trial * trials
+    needed = _SUMMARY_FACTOR * kept
+    if needed <= available:
+        return
+    most = int(available / (_SUMMARY_FACTOR * per_trial)) // 1000 * 1000
+    raise DesignError(
+        f"{trials:,} trials keep {per_trial:.0f} bytes of figures each ({_bytes(kept)}), and "
+        f"summarising them takes about {_SUMMARY_FACTOR} times that ({_bytes(needed)}), more than "
+        f"the {_bytes(available)} of memory available: use at most {most:,} trials (--trials or "
+        "monte_carlo.trials)", source=design.source, key="monte_carlo.trials")
+
+
+def _bytes(count: float) -> str:
+    for scale, unit in ((2 ** 40, "TiB"), (2 ** 30, "GiB"), (2 ** 20, "MiB"), (2 ** 10, "KiB")):
+        if count >= scale:
+            return f"{count / scale:.3g} {unit}"
+    return f"{count:.0f} B"
+
+
 def _for_devices(context: _ChunkContext, drawn: DrawnStrings) -> _ChunkContext:
     """The context with each drawn device's own part constants (a mix), (trials, parallel, series)."""
     design = context.design
@@ -450,7 +500,9 @@ def _finish(name: str, accumulator: PositionSums, grid: np.ndarray, confidence: 
     """Summarise one check. It passes when the upper confidence bound of P(fail) is within
     ``target`` ([sizing] target_p_fail): a run too short to show that cannot pass."""
     ratios = np.concatenate(accumulator.worst_ratios)
-    failures = int(np.count_nonzero(~(ratios <= 1.0)))
+    # One copy of the per-trial ratios from here on (the transient check reads them again).
+    accumulator.worst_ratios[:] = [ratios]
+    failures = int(np.count_nonzero(~within_limit(ratios)))
     estimate = failure_estimate(failures, trials, confidence=confidence)
     moments = accumulator.moments()
     # No solved trial: the mean of nothing is 0 shifted by nothing, as before (the limit).
@@ -468,14 +520,17 @@ def _finish(name: str, accumulator: PositionSums, grid: np.ndarray, confidence: 
                 max_voltage=float(accumulator.maximum[branch, index]),
                 failures=int(accumulator.failures_by_position[branch, index])))
     finite = ratios[np.isfinite(ratios)]
+    # Both percentiles from one partial sort of ``finite`` in place (no further copy); the
+    # histogram below does not depend on the order.
+    p50, p99 = np.percentile(finite, [50, 99], overwrite_input=True) if finite.size else \
+        (float("nan"), float("nan"))
     worst_string = accumulator.worst_string if accumulator.worst_string is not None else \
         np.full(grid.shape, np.nan)
     return SeriesCheck(
         name=name, ran=True, reason="", passed=estimate.ci_high <= target,
         worst_voltage=float(np.max(accumulator.maximum)) if accumulator.count else float("nan"),
         worst_ratio=float(np.max(ratios)),
-        p50_ratio=float(np.percentile(finite, 50)) if finite.size else float("nan"),
-        p99_ratio=float(np.percentile(finite, 99)) if finite.size else float("nan"),
+        p50_ratio=float(p50), p99_ratio=float(p99),
         estimate=estimate, unsolved=accumulator.unsolved, worst_trial=accumulator.worst_trial,
         worst_string=worst_string, positions=tuple(positions),
         histogram=tuple(histogram_counts(finite, bins=12)) if finite.size else ())

@@ -23,10 +23,13 @@ import numpy as np
 
 from .. import eseries
 from ..design import Design
-from ..sampling import BLOCK_TRIALS, DrawnStrings
+from ..errors import DesignError, SizingError
+from ..limits import exceeds_limit, within_limit
+from ..sampling import BLOCK_TRIALS, SUM_TRIALS, DrawnStrings
 from ..solvers.electrothermal import (
     OVER_LIMIT,
     RUNAWAY,
+    STABLE,
     ParallelDevices,
     ParallelDuty,
     runaway_ambient,
@@ -36,6 +39,7 @@ from ..solvers.parallel import ballast_for_share, branch_currents
 from ..physics.forward import slope_resistance, threshold_voltage
 from ..stats import FailureEstimate, failure_estimate
 from .mixed_stock import device_values, position_values
+from .position_sums import BlockSums, unit_sums
 from .rare_events import RareEstimate
 from .recovery_conditions import RecoveryRescaling, TurnOffCurrent, carried_charges
 
@@ -325,12 +329,14 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
             tj_ratio=tj_ratio,
             worst_tj=np.where(runaway, np.inf, temperature.max(axis=(1, 2))),
             classification=equilibrium.classification,
-            # Per sampling block (chunks hold whole blocks), added up in block order at the end:
-            # the same figures bit for bit whatever the chunking or the number of workers.
-            tj_sum=_block_sums(temperature, good, drawn.first_trial),
+            # Per unit of SUM_TRIALS trials, folded into block sums in trial order as chunks
+            # are merged (position_sums.BlockSums): the same figures bit for bit whatever the
+            # chunking, the sub-blocks or the number of workers.
+            tj_sum=unit_sums(np.where(good[:, None, None], temperature, 0.0)),
             tj_max=hot.max(axis=0) if hot.size else np.full(shape[1:], -np.inf),
             tj_count=int(np.count_nonzero(good)),
-            tj_over=np.count_nonzero(temperature > setup.max_junction_temperature, axis=0),
+            tj_over=np.count_nonzero(exceeds_limit(temperature, setup.max_junction_temperature),
+                                  axis=0),
             power_total=equilibrium.power.sum(axis=(1, 2)),
         )
         # The first RUNAWAY_SAMPLE trials of every sampling block, so that the sample does not
@@ -341,6 +347,8 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
             found = runaway_ambient(_rows(devices, rows), _duty(design),
                                     upper_limit=setup.search_limit)
             outcome_tj["runaway_ambient"] = found.ambient
+        elif summaries:  # a sub-block past the sample rows of its block: none of its own
+            outcome_tj["runaway_ambient"] = np.zeros(0)
         branch_threshold, branch_resistance = _branch_lines(design, setup, threshold,
                                                             resistance, temperature)
     else:
@@ -396,7 +404,7 @@ def forward_ratios(design: Design, setup: ForwardSetup, drawn: DrawnStrings,
         return np.where(solved, chunk.current_ratio, np.inf)
     failed = np.isin(chunk.classification, (RUNAWAY, OVER_LIMIT))
     ratio = np.where(np.isnan(chunk.tj_ratio), np.inf, chunk.tj_ratio)
-    return np.where(failed & ~(ratio > 1.0), np.inf, ratio)
+    return np.where(failed & within_limit(ratio), np.inf, ratio)
 
 
 def _duty(design: Design) -> ParallelDuty:
@@ -417,24 +425,32 @@ def _rows(devices: ParallelDevices, rows: np.ndarray) -> ParallelDevices:
     return ParallelDevices(**values)
 
 
-def _block_sums(temperature: np.ndarray, good: np.ndarray, first_trial: int) -> np.ndarray:
-    """Sums of the junction temperatures [degC] of the ``good`` trials per position, one per
-    sampling block of the chunk, (blocks, parallel, series)."""
-    count = temperature.shape[0]
-    starts = np.arange(0, count, BLOCK_TRIALS) if first_trial % BLOCK_TRIALS == 0 else \
-        np.array([0])  # a chunk that does not start on a block (the sampler's own strings)
-    kept = np.where(good[:, None, None], temperature, 0.0)
-    return np.stack([kept[start:start + BLOCK_TRIALS].sum(axis=0) for start in starts]) \
-        if count else np.zeros((1,) + temperature.shape[1:])
+# The equilibrium classes of the accumulated chunks, one byte per trial (as text, numpy's '<U12'
+# takes 48 bytes a trial).
+_CLASS_CODES = {STABLE: 0, OVER_LIMIT: 1, RUNAWAY: 2}
+
+
+def _class_codes(classes: np.ndarray) -> np.ndarray:
+    codes = np.zeros(classes.shape, dtype=np.int8)
+    for name, code in _CLASS_CODES.items():
+        codes[classes == name] = code
+    return codes
 
 
 @dataclass
 class ForwardAccumulator:
-    """Chunks of the forward checks, kept in trial order."""
+    """Chunks of the forward checks, kept in trial order; their junction-temperature sums are
+    folded into block sums (``tj_blocks``) as they come."""
 
     chunks: list = field(default_factory=list)
+    tj_blocks: BlockSums = field(default_factory=BlockSums)
 
     def merge(self, chunk: ForwardChunk) -> None:
+        if chunk.classification is not None and chunk.classification.dtype.kind in "UO":
+            chunk.classification = _class_codes(chunk.classification)
+        if chunk.tj_sum is not None:
+            self.tj_blocks.add(chunk.tj_sum, chunk.first_trial // SUM_TRIALS)
+            chunk.tj_sum = None
         self.chunks.append(chunk)
 
     def joined(self, name: str) -> np.ndarray | None:
@@ -457,7 +473,7 @@ def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulato
     ratio = accumulator.joined("current_ratio")
     currents = accumulator.joined("branch_current")
     unsolved = ~np.isfinite(ratio) | ~np.isfinite(share)
-    failed = unsolved | (ratio > 1.0)
+    failed = unsolved | exceeds_limit(ratio)
     estimate = failure_estimate(int(np.count_nonzero(failed)), trials, confidence=confidence)
     finite = ratio[np.isfinite(ratio)]
     mean = currents.mean(axis=-1, keepdims=True)
@@ -470,11 +486,12 @@ def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulato
                          max_current=float(np.nanmax(currents[:, b])),
                          mean_share=float(np.nanmean(branch_share[:, b])),
                          max_share=float(np.nanmax(branch_share[:, b])),
-                         failures=int(np.count_nonzero(currents[:, b] > drawn_limit[:, b])))
+                         failures=int(np.count_nonzero(exceeds_limit(currents[:, b], drawn_limit[:, b]))))
         for b in range(currents.shape[1]))
     worst_share = float(np.nanmax(share))
     ballast = _ballast_advice(setup.target_share, accumulator.joined("ballast"),
-                              accumulator.joined("ballast_loss_per_ohm"), target)
+                              accumulator.joined("ballast_loss_per_ohm"), target,
+                              source=design.source)
     return ParallelCheck(
         name="parallel", ran=True, reason="", passed=estimate.ci_high <= target,
         worst_share=worst_share, p99_share=float(np.nanpercentile(share, 99)),
@@ -490,9 +507,13 @@ def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulato
 
 
 def _ballast_advice(target_share: float, per_trial: np.ndarray | None,
-                    loss_per_ohm: np.ndarray | None, target_p_fail: float) -> BallastAdvice:
+                    loss_per_ohm: np.ndarray | None, target_p_fail: float, *,
+                    source: str | None = None) -> BallastAdvice:
     """Ballast that meets the share target in all but ``target_p_fail`` of the built groups,
-    rounded up to E12 (common practice for a power resistor); its loss at the mean branch RMS."""
+    rounded up to E12 (common practice for a power resistor); its loss at the mean branch RMS.
+
+    Raises DesignError (naming ``source``) when the ballast lies outside the range preferred
+    values are made for: only a unit slip in the forward current or characteristic gets there."""
     quantile = 1.0 - target_p_fail
     exact = float(np.quantile(per_trial, quantile, method="higher"))
     if not np.isfinite(exact):
@@ -501,7 +522,14 @@ def _ballast_advice(target_share: float, per_trial: np.ndarray | None,
     if exact <= 0.0:
         return BallastAdvice(target_share=target_share, resistance=0.0, exact_resistance=0.0,
                              loss=0.0, quantile=quantile, reachable=True)
-    chosen = float(eseries.round_up(exact, "E12"))
+    try:
+        chosen = float(eseries.round_up(exact, "E12"))
+    except SizingError:
+        raise DesignError(f"the series ballast that brings the branch share within "
+                          f"{target_share:g} works out at {exact:.3g} ohm, beyond any resistor; "
+                          "check the unit of duty.forward_current (the group's average, e.g. "
+                          '"40 A") and of the parts\' v_t0 and r_t', source=source,
+                          key="duty.forward_current") from None
     return BallastAdvice(target_share=target_share, resistance=chosen, exact_resistance=exact,
                          loss=float(chosen * np.mean(loss_per_ohm)), quantile=quantile,
                          reachable=True)
@@ -521,15 +549,15 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
     ratio = accumulator.joined("tj_ratio")
     worst = accumulator.joined("worst_tj")
     classes = accumulator.joined("classification")
-    runaway = classes == "runaway"
-    over = classes == "over T_j,max"
-    failed = runaway | over | ~(ratio <= 1.0)
+    runaway = classes == _CLASS_CODES[RUNAWAY]
+    over = classes == _CLASS_CODES[OVER_LIMIT]
+    failed = runaway | over | ~within_limit(ratio)
     estimate = failure_estimate(int(np.count_nonzero(failed)), trials, confidence=confidence)
     runaway_estimate = failure_estimate(int(np.count_nonzero(runaway)), trials,
                                         confidence=confidence)
     finite = ratio[np.isfinite(ratio)]
     count = sum(chunk.tj_count for chunk in accumulator.chunks)
-    total = np.concatenate([chunk.tj_sum for chunk in accumulator.chunks]).sum(axis=0)
+    total = np.sum(accumulator.tj_blocks.blocks(), axis=0)
     maximum = np.max([chunk.tj_max for chunk in accumulator.chunks], axis=0)
     exceed = sum(chunk.tj_over for chunk in accumulator.chunks)
     grid = design.string.part_labels()

@@ -13,6 +13,7 @@ from typing import Mapping
 import numpy as np
 
 from ..design import Design
+from ..limits import exceeds_limit
 from ..physics.grading import discharge_time, resistor_power, stored_energy
 from ..physics.leakage import leakage_current
 from ..quantity import format_quantity as _q
@@ -86,10 +87,12 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
         total_loss = float(stage_count * resistor_power(nominal_share, grading.resistor,
                                                         waveform=design.duty.waveform))
         grading_current = nominal_share / grading.resistor
-        if grading.resistor_rated_power is not None and power_duty > grading.resistor_rated_power:
+        if grading.resistor_rated_power is not None and exceeds_limit(power_duty,
+                                                                    grading.resistor_rated_power):
             problems.append(f"grading resistor dissipates {_q(power_duty, 'W')} at the worst static "
                             f"voltage, above its rating of {_q(grading.resistor_rated_power, 'W')}")
-        if grading.resistor_rated_voltage is not None and worst_any > grading.resistor_rated_voltage:
+        if grading.resistor_rated_voltage is not None and exceeds_limit(
+                worst_any, grading.resistor_rated_voltage):
             problems.append(f"grading resistor sees {seen}, above its working-voltage rating of "
                             f"{_q(grading.resistor_rated_voltage, 'V')}")
         if grading.resistor_rated_power is None:

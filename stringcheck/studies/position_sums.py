@@ -1,8 +1,20 @@
 """Per-position sums of a series check, kept chunk by chunk so that memory stays flat in the trial
-count: each sampling block's count, mean and sum of squared deviations per position
-(``stats.block_moments``), maxima, failures per position and each trial's worst stress ratio. The
-blocks' moments are merged in block order at the end (``stats.merge_moments``), so a run gives the
-same figures bit for bit whatever its chunk size or number of worker processes.
+count: each position's count, mean and sum of squared deviations (``stats.Moments``), maxima,
+failures per position and each trial's worst stress ratio.
+
+Figures are formed in one fixed way whatever the run was cut into: each unit of ``SUM_TRIALS``
+consecutive trials (counted from trial 0; the last unit may be short) gets its moments by the
+shifted-data algorithm (:func:`unit_moments`, vectorized over the units); a sampling block's moments
+are its units' merged pairwise in unit order (:class:`BlockMoments`, which holds the units of a block
+cut over several chunks until it is complete); and the blocks are merged pairwise in block order at
+the end (``stats.merge_moments``). numpy's reduction of a unit depends only on the unit's values,
+not on how many units one call holds nor where they sit in memory (tests/studies/test_sub_blocks.py
+checks sub-blocks against whole blocks bit for bit), so a run gives the same figures bit for bit
+whatever its chunk size, its sub-blocks (a string too large for a block in memory) or its number of
+worker processes. A position without scatter has a sum of squared deviations of exactly 0.
+
+:func:`unit_sums` and :class:`BlockSums` form plain sums the same way (the forward checks'
+junction-temperature sums).
 """
 
 from __future__ import annotations
@@ -11,8 +23,153 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..sampling import BLOCK_TRIALS
-from ..stats import Moments, block_moments, merge_moments
+from ..limits import exceeds_limit
+from ..sampling import BLOCK_TRIALS, SUM_TRIALS
+from ..stats import Moments, merge_moments
+
+_UNITS_PER_BLOCK = BLOCK_TRIALS // SUM_TRIALS
+
+
+def unit_sums(values: np.ndarray) -> np.ndarray:
+    """Sums over each ``SUM_TRIALS`` rows of ``values`` (rows, ...), (units, ...); a short last
+    unit is padded with zero rows, so that every unit is reduced alike."""
+    rows = values.shape[0]
+    whole = rows // SUM_TRIALS * SUM_TRIALS
+    parts = []
+    if whole:
+        parts.append(_group_sums(values[:whole].reshape((whole // SUM_TRIALS, SUM_TRIALS)
+                                                         + values.shape[1:])))
+    if whole < rows:
+        padded = np.zeros((1, SUM_TRIALS) + values.shape[1:])
+        padded[0, :rows - whole] = values[whole:]
+        parts.append(_group_sums(padded))
+    return np.concatenate(parts) if parts else np.zeros((0,) + values.shape[1:])
+
+
+def _group_sums(grouped: np.ndarray) -> np.ndarray:
+    """Sum over axis 1 of (groups, n, ...) for each group, (groups, ...)."""
+    return np.einsum("ui...->u...", grouped)
+
+
+@dataclass
+class BlockSums:
+    """Sums per sampling block from the unit sums (:func:`unit_sums`) of its 64 units; the units of a block that arrive in several pieces (chunks that start or end inside
+    it) are held until it is complete. ``blocks()`` gives the sums of the blocks so far in block
+    order, the open one last (its missing units count as zero)."""
+
+    done: list = field(default_factory=list)
+    open_units: np.ndarray | None = None
+    open_block: int = -1
+
+    def add(self, units: np.ndarray, first_unit: int) -> None:
+        """Take ``units`` (units, ...), the unit sums of units ``first_unit``.. of the run."""
+        unit = first_unit
+        while units.shape[0]:
+            block, place = divmod(unit, _UNITS_PER_BLOCK)
+            if place == 0 and units.shape[0] >= _UNITS_PER_BLOCK:
+                # Runs of whole blocks: the same reduction, vectorized over the blocks.
+                whole = units.shape[0] // _UNITS_PER_BLOCK * _UNITS_PER_BLOCK
+                self._close()
+                self.done.extend(_group_sums(
+                    units[:whole].reshape((-1, _UNITS_PER_BLOCK) + units.shape[1:])))
+                unit += whole
+                units = units[whole:]
+                continue
+            take = min(_UNITS_PER_BLOCK - place, units.shape[0])
+            if self.open_block != block:
+                self._close()
+                self.open_units = np.zeros((_UNITS_PER_BLOCK,) + units.shape[1:])
+                self.open_block = block
+            self.open_units[place:place + take] = units[:take]
+            if place + take == _UNITS_PER_BLOCK:
+                self._close()
+            unit += take
+            units = units[take:]
+
+    def _close(self) -> None:
+        if self.open_units is not None:
+            self.done.append(self._open_sum())
+            self.open_units, self.open_block = None, -1
+
+    def _open_sum(self) -> np.ndarray:
+        return _group_sums(self.open_units[None])[0]
+
+    def blocks(self) -> list:
+        """The block sums so far in block order, the open block's last."""
+        return self.done + ([] if self.open_units is None else [self._open_sum()])
+
+
+def unit_moments(values: np.ndarray, solved: np.ndarray) -> list[Moments]:
+    """The moments of each ``SUM_TRIALS`` rows of ``values`` (rows, ...) over their solved rows
+    (``solved``, (rows,) bool), one :class:`~stringcheck.stats.Moments` per unit; a short last unit
+    holds the rows there are.
+
+    Notes
+    -----
+    The shifted-data algorithm of ``stats.block_moments`` (Chan, Golub and LeVeque, The American
+    Statistician 37(3), 1983, section 3), shifted by each unit's first solved row and vectorized
+    over the units; a unit with no solved row has count 0.
+    """
+    rows = values.shape[0]
+    units = -(-rows // SUM_TRIALS)
+    if units == 0:
+        return []
+    padded = units * SUM_TRIALS
+    if padded != rows:
+        grown = np.zeros((padded,) + values.shape[1:])
+        grown[:rows] = values
+        mask = np.zeros(padded, dtype=bool)
+        mask[:rows] = solved
+        values, solved = grown, mask
+    grouped = values.reshape((units, SUM_TRIALS) + values.shape[1:])
+    mask = solved.reshape(units, SUM_TRIALS)
+    counts = np.count_nonzero(mask, axis=1)
+    shift = grouped[np.arange(units), np.argmax(mask, axis=1)]
+    shift[counts == 0] = 0.0
+    keep = mask.reshape(mask.shape + (1,) * (values.ndim - 1))
+    deviation = np.where(keep, grouped - shift[:, None], 0.0)
+    total = _group_sums(deviation)
+    squares = _group_sums(np.square(deviation, out=deviation))
+    extra = (1,) * (values.ndim - 1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        offset = np.where(counts.reshape((units,) + extra) > 0,
+                          total / np.maximum(counts, 1).reshape((units,) + extra), 0.0)
+    # S = sum d^2 - (sum d)^2 / n >= 0; rounding may leave a few ulps below zero.
+    spread = np.maximum(squares - total * offset, 0.0)
+    return [Moments(count=int(counts[u]), reference=shift[u], offset=offset[u], squares=spread[u])
+            for u in range(units)]
+
+
+@dataclass
+class BlockMoments:
+    """Moments per sampling block from the moments of its 64 units (:func:`unit_moments`), merged
+    pairwise in unit order; the units of a block that arrive in several pieces (chunks that start
+    or end inside it) are held until it is complete. ``blocks()`` gives the moments of the blocks
+    so far in block order, the open one last."""
+
+    done: list = field(default_factory=list)
+    open_units: list = field(default_factory=list)
+    open_block: int = -1
+
+    def add(self, units: list, first_unit: int) -> None:
+        """Take ``units``, the moments of units ``first_unit``.. of the run, in order."""
+        for unit, moments in enumerate(units, start=first_unit):
+            block, place = divmod(unit, _UNITS_PER_BLOCK)
+            if block != self.open_block:
+                self._close()
+                self.open_block = block
+            self.open_units.append(moments)
+            if place == _UNITS_PER_BLOCK - 1:
+                self._close()
+
+    def _close(self) -> None:
+        if self.open_units:
+            self.done.append(merge_moments(self.open_units))
+        self.open_units, self.open_block = [], -1
+
+    def blocks(self) -> list:
+        """The block moments so far in block order, the open block's last."""
+        return self.done + ([merge_moments(self.open_units)] if self.open_units else [])
 
 
 @dataclass
@@ -22,7 +179,10 @@ class PositionSums:
     shape: tuple[int, int]
     limits: np.ndarray
     count: int = 0
-    blocks: list = field(default_factory=list)
+    # Unit moments of this accumulator's own ``add`` calls, (first unit, moments), not yet folded
+    # into the block moments; ``merge`` folds those of a later chunk after its own.
+    pending: list = field(default_factory=list)
+    blocks: BlockMoments = field(default_factory=BlockMoments)
     maximum: np.ndarray = field(init=False)
     failures_by_position: np.ndarray = field(init=False)
     worst_ratios: list = field(default_factory=list)
@@ -38,10 +198,27 @@ class PositionSums:
         self.maximum = np.full(self.shape, -np.inf)
         self.failures_by_position = np.zeros(self.shape, dtype=np.int64)
 
+    def moments(self) -> Moments:
+        """Count, mean [V] and sum of squared deviations [V^2] of each position over the solved
+        trials."""
+        self._fold(self.pending)
+        blocks = self.blocks.blocks()
+        if not blocks:
+            zeros = np.zeros(self.shape)
+            return Moments(count=0, reference=zeros, offset=zeros, squares=zeros)
+        return merge_moments(blocks)
+
+    def _fold(self, pending: list) -> None:
+        for first_unit, units in pending:
+            self.blocks.add(units, first_unit)
+        if pending is self.pending:
+            self.pending = []
+
     def merge(self, other: "PositionSums") -> None:
         """Add the sums of a later chunk (chunks are merged in trial order)."""
         self.count += other.count
-        self.blocks.extend(other.blocks)
+        self._fold(self.pending)
+        self._fold(other.pending)
         self.maximum = np.maximum(self.maximum, other.maximum)
         self.failures_by_position += other.failures_by_position
         self.worst_ratios.extend(other.worst_ratios)
@@ -51,16 +228,7 @@ class PositionSums:
             self.worst_trial = other.worst_trial
             self.worst_string = other.worst_string
 
-    def moments(self) -> Moments:
-        """Count, mean [V] and sum of squared deviations [V^2] of each position over the solved
-        trials."""
-        if not self.blocks:
-            zeros = np.zeros(self.shape)
-            return Moments(count=0, reference=zeros, offset=zeros, squares=zeros)
-        return merge_moments(self.blocks)
-
     def add(self, voltages: np.ndarray, solved: np.ndarray, first_trial: int) -> None:
-        rows = voltages.shape[0]
         with np.errstate(invalid="ignore"):
             # A NaN or infinite voltage makes its trial's sum NaN or infinite (the sum of finite
             # voltages would overflow only beyond 1e307 V).
@@ -69,21 +237,18 @@ class PositionSums:
         trial_ratio = np.where(solved, _trial_maximum(ratio), np.inf)
         unsolved = int(np.count_nonzero(~solved))
         self.unsolved += unsolved
-        # Moments per sampling block (chunks start on block boundaries), merged in block order at
-        # the end, so that they are the same bit for bit whatever the chunk size or the number of
-        # worker processes.
-        for start in range(0, rows, BLOCK_TRIALS):
-            block = slice(start, start + BLOCK_TRIALS)
-            self.blocks.append(block_moments(voltages[block] if not unsolved else
-                                             voltages[block][solved[block]]))
+        # Moments formed unit by unit in a fixed order (module docstring), so that they are the same
+        # bit for bit whatever the chunks and sub-blocks; an unsolved trial is left out.
+        # (Chunks of a run start on a unit; another caller's strings just form their own units.)
+        self.pending.append((first_trial // SUM_TRIALS, unit_moments(voltages, solved)))
         good = voltages if not unsolved else voltages[solved]
         self.count += good.shape[0]
         if good.shape[0]:
             self.maximum = np.maximum(self.maximum, _position_maximum(good))
         # A position above its limit puts its trial's ratio above 1: only those trials count.
-        over = np.flatnonzero(trial_ratio > 1.0)
+        over = np.flatnonzero(exceeds_limit(trial_ratio))
         if over.size:
-            self.failures_by_position += np.count_nonzero(ratio[over] > 1.0, axis=0)
+            self.failures_by_position += np.count_nonzero(exceeds_limit(ratio[over]), axis=0)
         self.worst_ratios.append(trial_ratio)
         best = int(np.argmax(trial_ratio))
         if trial_ratio[best] > self.worst_ratio:

@@ -1,7 +1,8 @@
 """Run the chunks of a Monte Carlo study in this process or in worker processes.
 
-A study splits its trials into chunks of whole sampling blocks (``sampling.chunk_bounds``); each
-chunk draws from its own random streams, so a chunk's outcome depends only on (design, seed, first
+A study splits its trials into chunks of whole sampling blocks, or of sub-blocks for a string too
+large for a block within :data:`CHUNK_ELEMENTS` (``sampling.chunk_bounds``); each chunk draws from
+its own random streams, so a chunk's outcome depends only on (design, seed, first
 trial, count). The runner hands the chunks out and returns their outcomes **in chunk order**, which
 the study merges in that order: the result is then identical for any chunk size and any number of
 workers (floating-point sums are added in the same order either way).
@@ -21,12 +22,47 @@ from dataclasses import dataclass
 from typing import Callable, Iterator, Sequence, TypeVar
 
 from ..errors import StringcheckError
-from ..sampling import BLOCK_TRIALS
+from ..sampling import BLOCK_TRIALS, evaluation_trials
 
 Context = TypeVar("Context")
 Outcome = TypeVar("Outcome")
 
-__all__ = ["WorkerPool", "check_workers", "chunk_size", "map_chunks", "stop_workers", "worker_pool"]
+__all__ = ["CHUNK_ELEMENTS", "WorkerPool", "available_memory", "check_workers", "chunk_size",
+           "map_chunks", "stop_workers", "worker_pool"]
+
+# A chunk's array budget: chunks hold about this many device values (of the order of 100 bytes of
+# working arrays each while a chunk is drawn and solved), so memory stays flat in the trial count
+# and in the string's size.
+CHUNK_ELEMENTS = 1_000_000
+
+
+def available_memory() -> int | None:
+    """Bytes of memory this process may still take: the kernel's estimate of what can be allocated
+    without swapping (``MemAvailable`` of /proc/meminfo, Linux 3.14+), else the free physical
+    pages, capped by an address-space limit (``RLIMIT_AS``) if one is set; None when unknown."""
+    available = None
+    try:
+        with open("/proc/meminfo", encoding="ascii") as meminfo:
+            for line in meminfo:
+                if line.startswith("MemAvailable:"):
+                    available = int(line.split()[1]) * 1024
+                    break
+    except (OSError, ValueError):
+        pass
+    if available is None:
+        try:
+            available = os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
+        except (AttributeError, OSError, ValueError):
+            available = None
+    try:
+        import resource
+
+        soft, _ = resource.getrlimit(resource.RLIMIT_AS)
+        if soft != resource.RLIM_INFINITY and soft > 0:
+            available = soft if available is None else min(available, soft)
+    except (ImportError, OSError, ValueError):
+        pass
+    return available
 
 
 def check_workers(workers: int) -> int:
@@ -89,7 +125,10 @@ def stop_workers(before: set) -> None:
 
 def chunk_size(trials: int, preferred: int, pool: WorkerPool | None) -> int:
     """Trials per chunk: ``preferred`` (the memory budget), smaller with a pool so that every
-    worker gets several chunks (about four each); whole sampling blocks either way."""
+    worker gets several chunks (about four each); whole sampling blocks either way, or a sub-block
+    (``sampling.evaluation_trials``) when the budget holds less than a block."""
+    if preferred < BLOCK_TRIALS:
+        return evaluation_trials(1, preferred)
     if pool is None:
         return max(BLOCK_TRIALS, preferred)
     share = -(-trials // (4 * pool.workers))

@@ -20,8 +20,9 @@ from typing import Callable
 import numpy as np
 
 from .. import eseries
-from ..design import LOGNORMAL_PARAMETERS, Design
+from ..design import LOGNORMAL_PARAMETERS, MAX_DEVICES, Design
 from ..errors import DesignError, ImpossibleDesignError, SizingError
+from ..limits import within_limit
 from ..physics.grading import (
     discharge_time,
     resistor_power,
@@ -30,6 +31,7 @@ from ..physics.grading import (
     worst_case_static_resistance,
 )
 from ..physics.leakage import leakage_current
+from ..quantity import format_quantity
 from ..spread_maps import spread_quantile
 from ..stats import trials_for_upper_bound
 from .check import CheckResult, run_check
@@ -477,9 +479,31 @@ def _minimum_series(design: Design) -> int:
 
 
 def _with_series(design: Design, count: int) -> Design:
+    """The design with ``count`` devices per branch; DesignError past the device cap."""
     layout = design.string
+    if count * layout.parallel > MAX_DEVICES:
+        raise _over_cap(design, count)
     positions = tuple(p for p in layout.positions if p.index <= count)
     return replace(design, string=replace(layout, series=count, positions=positions))
+
+
+def _over_cap(design: Design, count: int) -> DesignError:
+    """The error for a device count past MAX_DEVICES, with the arithmetic of the minimum count
+    (a slip of kV for MV in the string voltage, or of V for kV in V_RRM, asks for thousands)."""
+    layout = design.string
+    _, v_dm = _corner_limits(design)
+    minimum = _minimum_series(design)
+    branches = f" x {layout.parallel} branches" if layout.parallel > 1 else ""
+    cap = MAX_DEVICES // layout.parallel
+    if minimum > cap:
+        why = (f"needs {minimum:,} devices in series{branches} "
+               f"({format_quantity(design.duty.reverse_voltage, 'V')} / "
+               f"{format_quantity(v_dm, 'V')} per device at derating {layout.derating:g})")
+    else:
+        why = f"the search for a device count reached {count:,} devices in series{branches}"
+    return DesignError(f"{why}; the cap is {MAX_DEVICES:,} devices: check the unit of "
+                       "duty.reverse_voltage and of the parts' v_rrm",
+                       source=design.source, key="duty.reverse_voltage")
 
 
 def _enough_devices(design: Design, find_series: bool) -> Design:
@@ -521,7 +545,7 @@ def _damping_in_time_domain(design: Design, rule_value: float, rule: str, trials
             return rule_value, rule + f"; not chosen in the time domain: {check.reason}", ()
         tried.append(DampingCandidate(value=float(value), worst_ratio=check.worst_ratio,
                                       energy=check.damping_energy,
-                                      within_limit=bool(check.worst_ratio <= 1.0)))
+                                      within_limit=bool(within_limit(check.worst_ratio))))
     good = [c for c in tried if c.within_limit]
     if not good:
         return rule_value, rule + ("; no E12 value from rule/4 to 4 x rule keeps the simulated "
@@ -538,14 +562,14 @@ def _smallest_series(design: Design, trials: int, seed: int, pool: WorkerPool | 
     layout = design.string
     target = design.sizing.target_p_fail
     start = _minimum_series(design)
-    for count in range(start, max(start * 4, layout.series * 2) + 1):
+    last = min(max(start * 4, layout.series * 2), MAX_DEVICES // layout.parallel)
+    for count in range(start, last + 1):
         candidate = _with_series(design, count)
         result = run_check(candidate, trials=trials, seed=seed, pool=pool)
         ran = [check for check in result.checks.values() if check.ran]
         if all(check.estimate.ci_high <= target for check in ran) and result.impossible is None:
             return candidate
-    raise SizingError(f"no device count up to {max(start * 4, layout.series * 2)} passes with this "
-                      "network")
+    raise SizingError(f"no device count up to {last} passes with this network")
 
 
 def _ratings(design: Design, check: CheckResult) -> Ratings:

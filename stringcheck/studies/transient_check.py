@@ -27,14 +27,16 @@ import numpy as np
 
 from ..design import Design
 from ..physics.charge_control_fit import lifetime_for_charge
-from ..sampling import BLOCK_TRIALS, DrawnStrings, draw_strings
+from ..sampling import BLOCK_TRIALS, DrawnStrings, draw_strings, evaluation_trials
 from ..solvers.transient import simulate_turn_off
 from ..errors import StringcheckError
+from ..limits import within_limit
 from ..stats import FailureEstimate, failure_estimate
 from .mixed_stock import device_part_grid, position_values
 from .drivers import TOP_DRIVERS, Driver, chunk_features, label, rank_inputs, tightenable
 from .drivers import tightened
 from .rare_events import RareEstimate
+from .runner import CHUNK_ELEMENTS
 from .recovery_conditions import (
     TURN_OFF_TEST_CURRENT,
     InconsistentRecoveryData,
@@ -164,7 +166,7 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
         design, fits, selected, trials, seed, inductance, forward)
     ratio = np.max(peaks / device_limits, axis=(1, 2))
     ratio = np.where(solved, ratio, np.inf)
-    failed = ~(ratio <= 1.0)
+    failed = ~within_limit(ratio)
     in_sample = np.isin(selected, sample_set)
     in_worst = np.isin(selected, worst_set)
     estimate = failure_estimate(int(np.count_nonzero(failed[in_sample])), sample,
@@ -247,14 +249,17 @@ def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: i
 
 
 def _redrawn(design: Design, selected: np.ndarray, trials: int, seed: int):
-    """The sampling blocks that hold the (sorted) ``selected`` trials, redrawn one at a time:
-    (mask of ``selected`` in the block, their rows in it, the block's strings drawn with
-    ``("q_rr",)``)."""
-    blocks = selected // BLOCK_TRIALS
-    for block in np.unique(blocks):
-        first = int(block) * BLOCK_TRIALS
-        drawn = draw_strings(design, ("q_rr",), first, min(BLOCK_TRIALS, trials - first), seed=seed)
-        where = blocks == block
+    """The sampling blocks (for a long string, the sub-blocks within the chunk budget,
+    ``sampling.evaluation_trials``) that hold the (sorted) ``selected`` trials, redrawn one at a
+    time: (mask of ``selected`` in the piece, their rows in it, the piece's strings drawn with
+    ``("q_rr",)``). A sub-block's draws are those rows of its block."""
+    layout = design.string
+    piece = min(BLOCK_TRIALS, evaluation_trials(layout.series * layout.parallel, CHUNK_ELEMENTS))
+    pieces = selected // piece
+    for number in np.unique(pieces):
+        first = int(number) * piece
+        drawn = draw_strings(design, ("q_rr",), first, min(piece, trials - first), seed=seed)
+        where = pieces == number
         yield where, selected[where] - first, drawn
 
 

@@ -127,6 +127,14 @@ def test_find_series_lengthens_an_impossible_string():
     assert result.check.verdict == "pass"
 
 
+
+def test_find_series_stops_at_the_device_cap_with_the_arithmetic():
+    # 50 MV over 0.8 x 5 kV = 4 kV per device: ceil(50e6 / 4e3) = 12,500 devices > 10,000.
+    text = corner(n=6).replace("reverse_voltage = 9000.0", 'reverse_voltage = "50 MV"') \
+        .replace("v_rrm = 1400.0", 'v_rrm = "5 kV"').replace("derating = 0.9", "derating = 0.8")
+    with pytest.raises(DesignError, match=r"12,500 devices.*50 MV / 4 kV.*10,000"):
+        size(parse_design_text(text), find_series=True)
+
 def test_too_few_trials_for_the_target_is_a_clear_error():
     # Zero-failure Clopper-Pearson bound: 1000 trials cannot show P <= 1e-3 (needs about 3689).
     with pytest.raises(SizingError, match="--trials"):
