@@ -30,7 +30,8 @@ g(u) = worst stress ratio > 1.
    :data:`MAX_REGIONS`. The sample checks the search: a failure outside the tangent half-space of
    every shift is searched along its own ray, and a region found so is added and the sample
    drawn again (up to ``_ADAPT_ROUNDS`` times). Where the search stopped at its cap, the last
-   sample still revealed a region, or one sample carries most of the estimate, the estimator
+   sample still revealed a region, or the estimate rests on a few samples' worth of its weight
+   (``_LEAST_EFFECTIVE``), the estimator
    cannot rule out a region it did not search, says so (``coverage_assured``), and does not
    decide the check.
 3. Exchangeable positions (same part, same temperature rise, no measured device placed by serial)
@@ -92,7 +93,10 @@ _SAME_RADIUS = 1.02  # the probe of one region: the two points' mean direction a
 _FLOOR_SHARE = 0.02  # each region's least share of the shifted half, of the most likely region's
 _EXPLAIN_SLACK = 1.0  # latent units: a failure this far inside a region's tangent plane is its
 _ADAPT_ROUNDS = 2  # times the sample may reveal a region the search did not find (then resampled)
-_DOMINANT_SHARE = 0.5  # one sample carrying more of the estimate than this: poor diagnostics
+# An estimate resting on fewer samples' worth of its weight than this (the effective sample size
+# (sum c)^2 / sum c^2 of the contributions c = w 1[fail]; A. B. Owen, Monte Carlo theory, methods
+# and examples, 2013, ch. 9, from memory) is a region sampled by chance, not searched.
+_LEAST_EFFECTIVE = 10.0
 
 
 @dataclass(frozen=True)
@@ -139,7 +143,7 @@ class RareEstimate:
     found), ``regions_found`` the number of those regions that are not images of one another.
     ``coverage_assured`` is False when the estimator cannot rule out a failure region it did not
     find (the search stopped at :data:`MAX_REGIONS`, its sample kept revealing regions the search
-    had missed, or one sample carries most of the estimate): the estimate then does not decide.
+    had missed, or the estimate rests on a few samples): the estimate then does not decide.
     ``pooled_trials`` is the number of plain trials behind the interval when no failure point
     was found (the sampler's plain samples plus the check's own run; 0 otherwise). ``decides``
     is False when the check's verdict comes from its plain Monte Carlo run instead (set by the
@@ -393,16 +397,16 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
     if count > regions:
         text += f" and {count - regions} image(s) under the exchangeable positions"
     total = float(contribution.sum())
-    dominant = total > 0 and float(contribution.max()) > _DOMINANT_SHARE * total
+    effective = total ** 2 / float(contribution @ contribution) if total > 0 else math.inf
     reasons = []
     if search.capped:
         reasons.append(f"the search stopped at {MAX_REGIONS} failure regions and more remained")
     if revealed:
         reasons.append(f"its sample still revealed {revealed} failure region(s) the search had "
                        f"missed after {_ADAPT_ROUNDS} resampling(s)")
-    if dominant:
-        reasons.append(f"one sample carries {float(contribution.max()) / total:.0%} of the "
-                       "estimate (a region sampled by chance, not searched)")
+    if effective < _LEAST_EFFECTIVE:
+        reasons.append(f"the estimate rests on about {effective:.1f} samples' worth of its "
+                       "weight (a region sampled by chance, not searched)")
     assured = not reasons
     notes = []
     if not complete:

@@ -194,6 +194,28 @@ def test_a_failure_region_the_sample_reveals_is_searched_and_sampled(monkeypatch
     assert rare.ci_low <= exact <= rare.ci_high
 
 
+def test_an_estimate_resting_on_a_few_samples_does_not_decide(monkeypatch):
+    # The search blinded to the high tail (beta 3.7, P = 1.1e-4: the steepest ascent alone, no
+    # mirrored seeds, no search along the sample's failures): with seed 4 the defensive half
+    # catches one failure there, weight ~2 against ~1e-7 for the low tail's, and the estimate
+    # (1e-4) rests on one sample (effective sample size (sum c)^2 / sum c^2 ~ 1). It must say
+    # so and leave the verdict to the plain run (0 of 4,096: up to 9e-4, above the target).
+    def ascent_only(g, pilot, values, effort):
+        return rare_events._gradient(g, np.zeros(pilot.shape[1]), effort.step)[1][None, :]
+
+    monkeypatch.setattr(rare_events, "_seed_directions", ascent_only)
+    monkeypatch.setattr(rare_events, "_mirrored_directions",
+                        lambda points, effort: np.zeros((0, points.shape[1])))
+    monkeypatch.setattr(rare_events, "_explained", lambda u, shifts: np.ones(u.shape[0], bool))
+    check = run_check(parse_design_text(_two_ways(4.5, 3.7)), trials=4096, seed=4,
+                      rare=True).checks["static"]
+    rare = check.rare
+    assert rare.regions_found == 1 and rare.p_fail > 10 * stats.norm.sf(4.5)
+    assert not rare.coverage_assured and not rare.decides
+    assert "samples' worth of its weight" in rare.note
+    assert check.estimate.failures == 0 and not check.passed
+
+
 def test_a_search_stopped_at_its_cap_does_not_decide(monkeypatch):
     # Room for one region where there are two: the estimate (about half of P(fail)) says it cannot
     # rule out a region it did not search, and the plain run (0 of 4,096: up to 9e-4) decides:
