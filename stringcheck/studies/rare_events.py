@@ -620,7 +620,7 @@ def _seed_directions(g, pilot: np.ndarray, pilot_values: np.ndarray,
     axis and the pilot sample with the highest g on each side of it (the extremes of the pilot:
     one device leaking little and one leaking much fail in regions on opposite sides)."""
     dimension = pilot.shape[1]
-    value, gradient = _gradient(g, np.zeros(dimension), effort.step)
+    gradient = _gradient(g, np.zeros(dimension), effort.step)[1]
     directions = [gradient, -gradient]
     gradients = [gradient]
     failing = ~(pilot_values <= 1.0)
