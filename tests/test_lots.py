@@ -365,10 +365,15 @@ def test_rank_scores_and_their_correlation():
 # --- the studies ---------------------------------------------------------------------------------
 
 
-def test_rare_draws_a_resampled_lot_from_its_fit(tmp_path):
+def test_rare_draws_a_resampled_lot_from_its_fit(tmp_path, monkeypatch):
     # The importance sampler needs a continuous distribution: a resampled lot enters it through
     # its fit (the same figures as fit = "auto", which fits the same families), and says so.
-    # At 15 kV on 10 devices (50 V below the limit) the charge balance can fail: P ~ 3e-5.
+    # At 15 kV on 10 devices (50 V below the limit) the charge balance can fail: P ~ 3e-5. The
+    # static check fails only far out (one device leaking much, beta = 11.1, P ~ 1e-27): searched
+    # within |u| <= 10 it has no failure point.
+    from stringcheck.studies import rare_events
+
+    monkeypatch.setattr(rare_events, "_RAY_LIMIT", 10.0)
     _write_lot(tmp_path, 60)
     result = run_check(_design(tmp_path, series=10, voltage="15 kV"), trials=500, rare=True,
                        rare_samples=2000)

@@ -62,7 +62,8 @@ def rare_to_dict(rare) -> dict[str, Any] | None:
             "found_failure_point": rare.found_failure_point,
             "failure_points": rare.failure_points, "pooled_trials": rare.pooled_trials,
             "decides": rare.decides, "note": rare.note, "automatic": rare.automatic,
-            "orbit_complete": rare.orbit_complete,
+            "orbit_complete": rare.orbit_complete, "regions_found": rare.regions_found,
+            "coverage_assured": rare.coverage_assured,
             "importance": [{"input": item.input, "share": item.share, "branch": item.branch,
                             "index": item.index, "sign": item.sign}
                            for item in rare.importance]}

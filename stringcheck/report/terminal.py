@@ -51,6 +51,8 @@ def _plain_mark(check) -> str:
         return ""
     if not rare.orbit_complete:
         return " (plain; IS orbit incomplete)"
+    if not rare.coverage_assured:
+        return " (plain; IS coverage not assured)"
     if rare.found_failure_point:
         return " (plain; IS disagrees)"
     return " (plain; IS found no failure point)"

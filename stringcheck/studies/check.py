@@ -620,8 +620,9 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
                 f"Monte Carlo lower bound {plain.ci_low:.2g} ({plain.failures:,} of "
                 f"{plain.trials:,}): the estimators disagree, so the plain interval decides")
         estimate = replace(estimate, decides=False, note=note)
-    # An estimate that does not decide (the cases above, or an incomplete orbit, which the
-    # estimator declines itself) leaves the verdict to the plain interval.
+    # An estimate that does not decide (the cases above, or an incomplete orbit or a search that
+    # cannot rule out a failure region it missed, which the estimator declines itself) leaves the
+    # verdict to the plain interval.
     bound = estimate.ci_high if estimate.decides else plain.ci_high
     return replace(check, rare=estimate, passed=bound <= target and worst_ok)
 

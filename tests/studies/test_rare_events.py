@@ -79,6 +79,163 @@ def test_the_verdict_follows_the_importance_sampling_bound(half_plane_design):
     assert run_check(design, trials=2000, rare=True, rare_samples=5000).verdict == "pass"
 
 
+# One scattered device among fixed ones fails two ways (DESIGN.md 4, static sharing with constant
+# leakage, closed form): with equal R, V_k = V_s / n + R (mean I_R - I_R,k). The scattered device
+# (leakage X, lognormal, median 1 uA, sigma = ln(10) / 3) among n - 1 fixed ones (1 uA) takes
+# V_s / n - R (n - 1) (X - 1 uA) / n and fails when it leaks little, X < X_lo; each fixed device
+# takes V_s / n + R (X - 1 uA) / n and fails when X leaks much, X > X_hi. In its latent coordinate z
+# the two failure regions are z < -beta_lo and z > beta_hi, on opposite sides: neither is an image
+# of the other, and P(fail) = Phi(-beta_lo) + Phi(-beta_hi) (scipy.stats.norm). A second branch
+# may hold another scattered part (``second``: its beta_lo; sigma = ln(2) / 3, so that its high
+# side lies beyond the search radius of 12, at ~15 for beta_hi = 4.5): the branches share the
+# voltage, not the current, so they fail independently, P = 1 - (1 - P_1) (1 - P_2).
+def _two_ways(beta_low: float, beta_high: float, *, second: float | None = None,
+              target: float = 5e-6) -> str:
+    series, string_voltage, resistance = 3, 2000.0, 100e6
+    wide, narrow = math.log(10.0) / 3.0, math.log(2.0) / 3.0
+
+    def rating(sigma: float, beta: float) -> float:  # a scattered device's V_RRM for beta_lo
+        low = 1e-6 * math.exp(-sigma * beta)
+        return string_voltage / series + (1e-6 - low) * (series - 1) * resistance / series
+
+    high = 1e-6 * math.exp(wide * beta_high)
+    fixed = string_voltage / series + (high - 1e-6) * resistance / series
+    text = f"""
+[duty]
+reverse_voltage = "{string_voltage!r} V"
+[string]
+series = {series}
+parallel = {1 if second is None else 2}
+derating = 1.0
+part = "FIX"
+[[string.position]]
+index = 1
+branch = 1
+part = "WIDE"
+[parts.FIX]
+v_rrm = "{fixed!r} V"
+i_r = {{ typ = "1 uA", at_temperature = "25 degC" }}
+leakage_voltage_exponent = 0
+[parts.WIDE]
+v_rrm = "{rating(wide, beta_low)!r} V"
+i_r = {{ typ = "1 uA", max = "10 uA", at_temperature = "25 degC" }}
+leakage_voltage_exponent = 0
+[grading]
+resistor = "{resistance!r} Ohm"
+[monte_carlo]
+seed = 1
+screened = false
+[sizing]
+target_p_fail = {target!r}
+"""
+    if second is not None:
+        text = text.replace("[parts.FIX]", f"""[[string.position]]
+index = 1
+branch = 2
+part = "NARROW"
+[parts.NARROW]
+v_rrm = "{rating(narrow, second)!r} V"
+i_r = {{ typ = "1 uA", max = "2 uA", at_temperature = "25 degC" }}
+leakage_voltage_exponent = 0
+[parts.FIX]""")
+    return text
+
+
+def test_a_device_failing_by_leaking_little_or_much_fails_the_check():
+    # Both tails at beta = 4.5: P(fail) = 2 Phi(-4.5) = 6.8e-6 above the 5e-6 target, and 4,096
+    # plain trials see no failure (upper bound 9e-4: the sampler runs by itself). The search used
+    # to find one tail only (its images are none: the device is the only one of its part) and the
+    # defensive half never reached the other: 3.3e-6 +- 0.08e-6, 44 standard errors below the
+    # closed form, and the check passed. Both tails are now regions of the mixture.
+    exact = 2 * stats.norm.sf(4.5)
+    result = run_check(parse_design_text(_two_ways(4.5, 4.5)), trials=4096, rare=None)
+    check = result.checks["static"]
+    rare = check.rare
+    assert check.estimate.failures == 0 and rare.automatic
+    assert rare.regions_found == 2 and rare.failure_points == 2 and rare.coverage_assured
+    assert rare.beta == pytest.approx(4.5, rel=1e-6)
+    assert rare.ci_low <= exact <= rare.ci_high
+    assert rare.std_error < 0.05 * exact
+    assert rare.decides and not check.passed and result.verdict == "fail"
+
+
+def test_three_failure_regions_of_two_branches_against_their_closed_form():
+    # Branch 1: the wide device's two tails (beta 4.3 low, 4.6 high); branch 2: the narrow one's
+    # low tail (beta 4.45; its high tail at 4.6 ln(10) / ln(2) = 15.3 adds Phi(-15.3) ~ 4e-53).
+    # Three regions, none an image of another (the branches hold different parts).
+    p_first = stats.norm.sf(4.3) + stats.norm.sf(4.6)
+    p_second = stats.norm.sf(4.45) + stats.norm.sf(4.6 * math.log(10.0) / math.log(2.0))
+    exact = 1 - (1 - p_first) * (1 - p_second)  # about 1.5e-5
+    design = parse_design_text(_two_ways(4.3, 4.6, second=4.45, target=1e-5))
+    result = run_check(design, trials=4096, rare=True)
+    rare = result.checks["static"].rare
+    assert rare.regions_found == 3 and rare.failure_points == 3 and rare.decides
+    assert rare.beta == pytest.approx(4.3, rel=1e-6)
+    assert rare.ci_low <= exact <= rare.ci_high
+    assert rare.std_error < 0.05 * exact
+    assert result.verdict == "fail"  # the closest region alone, Phi(-4.3) = 8.5e-6, would pass
+
+
+def test_a_failure_region_the_sample_reveals_is_searched_and_sampled(monkeypatch):
+    # The search seeded by the steepest ascent alone (which points to the low tail) and no
+    # mirrored seeds: the defensive half of the sample sees failures of the high tail (beta 3,
+    # P = 1.3e-3), searches along them and resamples with both tails. Closed form
+    # Phi(-4.5) + Phi(-3) (scipy.stats.norm).
+    def ascent_only(g, pilot, values, effort):
+        return rare_events._gradient(g, np.zeros(pilot.shape[1]), effort.step)[1][None, :]
+
+    monkeypatch.setattr(rare_events, "_seed_directions", ascent_only)
+    monkeypatch.setattr(rare_events, "_mirrored_directions",
+                        lambda points, effort: np.zeros((0, points.shape[1])))
+    exact = stats.norm.sf(4.5) + stats.norm.sf(3.0)
+    rare = run_check(parse_design_text(_two_ways(4.5, 3.0)), trials=4096,
+                     rare=True).checks["static"].rare
+    assert rare.regions_found == 2 and rare.coverage_assured
+    assert rare.ci_low <= exact <= rare.ci_high
+
+
+def test_an_estimate_resting_on_a_few_samples_does_not_decide(monkeypatch):
+    # The search blinded to the high tail (beta 3.7, P = 1.1e-4: the steepest ascent alone, no
+    # mirrored seeds, no search along the sample's failures): with seed 4 the defensive half
+    # catches one failure there, weight ~2 against ~1e-7 for the low tail's, and the estimate
+    # (1e-4) rests on one sample (effective sample size (sum c)^2 / sum c^2 ~ 1). It must say
+    # so and leave the verdict to the plain run (0 of 4,096: up to 9e-4, above the target).
+    def ascent_only(g, pilot, values, effort):
+        return rare_events._gradient(g, np.zeros(pilot.shape[1]), effort.step)[1][None, :]
+
+    monkeypatch.setattr(rare_events, "_seed_directions", ascent_only)
+    monkeypatch.setattr(rare_events, "_mirrored_directions",
+                        lambda points, effort: np.zeros((0, points.shape[1])))
+    monkeypatch.setattr(rare_events, "_explained", lambda u, shifts: np.ones(u.shape[0], bool))
+    check = run_check(parse_design_text(_two_ways(4.5, 3.7)), trials=4096, seed=4,
+                      rare=True).checks["static"]
+    rare = check.rare
+    assert rare.regions_found == 1 and rare.p_fail > 10 * stats.norm.sf(4.5)
+    assert not rare.coverage_assured and not rare.decides
+    assert "samples' worth of its weight" in rare.note
+    assert check.estimate.failures == 0 and not check.passed
+
+
+def test_a_search_stopped_at_its_cap_does_not_decide(monkeypatch):
+    # Room for one region where there are two: the estimate (about half of P(fail)) says it cannot
+    # rule out a region it did not search, and the plain run (0 of 4,096: up to 9e-4) decides:
+    # the check fails for too few trials instead of passing at half the probability.
+    from stringcheck.report.check_sections import rare_to_dict
+    from stringcheck.report.terminal import _plain_mark
+
+    monkeypatch.setattr(rare_events, "MAX_REGIONS", 1)
+    check = run_check(parse_design_text(_two_ways(4.5, 4.5)), trials=4096,
+                      rare=True).checks["static"]
+    rare = check.rare
+    assert rare.regions_found == 1 and not rare.coverage_assured and not rare.decides
+    assert rare.ci_high < 5e-6  # it would have passed on its own
+    assert "cannot rule out a failure region" in rare.note and "plain interval decides" in rare.note
+    assert not check.passed
+    assert _plain_mark(check) == " (plain; IS coverage not assured)"
+    exported = rare_to_dict(rare)
+    assert exported["regions_found"] == 1 and exported["coverage_assured"] is False
+
+
 # The parallel pair of tests/conftest.py (fixture parallel_pair_design): P(fail) = 2 Phi(-beta).
 def test_importance_sampling_of_the_parallel_check_against_two_half_planes(parallel_pair_design):
     d = 2 * 0.010 * (9.8 - 15 / 2)
@@ -226,14 +383,19 @@ def test_images_are_the_orbit_of_the_failure_point(parallel, override, leakage, 
 
 @given(shifts=st.lists(st.lists(st.floats(-3.0, 3.0), min_size=3, max_size=3), min_size=1,
                        max_size=4),
-       seed=st.integers(0, 2 ** 16))
-def test_the_mixture_weight_is_the_likelihood_ratio(shifts, seed):
-    # E_q[phi / q] = 1 and E_q[(phi / q) 1(u_1 > 1)] = Phi(-1) for any set of shifts (importance
-    # sampling identity; Hesterberg 1995): a wrong normalisation of the mixture fails this.
+       seed=st.integers(0, 2 ** 16), uneven=st.booleans())
+def test_the_mixture_weight_is_the_likelihood_ratio(shifts, seed, uneven):
+    # E_q[phi / q] = 1 and E_q[(phi / q) 1(u_1 > 1)] = Phi(-1) for any set of shifts and shares
+    # (importance sampling identity; Hesterberg 1995): a wrong normalisation of the mixture, or
+    # shares that sample and weight disagree on, fail this.
     shifts = np.array(shifts)
     rng = np.random.default_rng(seed)
-    u = mixture_sample(rng, 40_000, shifts, 0.5)
-    weight = mixture_weight(u, shifts, 0.5)
+    shares = None
+    if uneven:
+        shares = rng.random(shifts.shape[0]) + 0.05
+        shares /= shares.sum()
+    u = mixture_sample(rng, 40_000, shifts, 0.5, shares)
+    weight = mixture_weight(u, shifts, 0.5, shares)
     assert np.all(weight <= 2.0 + 1e-12)  # the defensive half bounds the weight by 1 / a
     for values, expected in ((weight, 1.0), (weight * (u[:, 0] > 1.0), stats.norm.sf(1.0))):
         error = values.std() / math.sqrt(values.size)
@@ -370,12 +532,14 @@ def test_positions_that_differ_only_in_temperature_still_share_the_charge_balanc
     assert plain.failures > 400 and rare.failure_points >= 4
     plain_error = math.sqrt(plain.p_fail * (1 - plain.p_fail) / plain.trials)
     assert abs(rare.p_fail - plain.p_fail) <= 3.0 * math.hypot(rare.std_error, plain_error)
-    # Without the check of which images lie near failure, the hot position is left out or alone.
+    # Without the check of which images lie near failure, the orbit leaves the hot position out
+    # or holds it alone (1 or 3 images); the search then finds the rest as a failure region of
+    # its own (both regions in the mixture, all four positions covered).
     original = rare_events.failure_point_orbit
     monkeypatch.setattr(rare_events, "failure_point_orbit",
                         lambda design, space, point, near=None: original(design, space, point))
     keyed = run_check(design, trials=4096, rare=True, only=("dynamic",)).checks["dynamic"].rare
-    assert keyed.failure_points in (1, 3)
+    assert keyed.regions_found == 2 and keyed.failure_points == 4
 
 
 # Four fast-recovery stages on 7.35 kV with R-C-R_d grading, 1.2 kOhm damping: the turn-off peak
