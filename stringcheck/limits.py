@@ -6,10 +6,10 @@ the charge balance or the static solver through a different chain of roundings t
 derating x V_RRM itself, and lands one or two units in the last place (ulps) above or below it. So a
 stress passes when it is within a relative ``LIMIT_RTOL`` (four ulps of 1.0) of its limit. The
 checks (static, dynamic, transient, parallel, thermal, the electro-thermal T_j,max class, the
-grading ratings, the damping search of ``size``) make their pass/fail comparison through
+grading ratings, the damping search of ``size``, the importance sampler's failure indicator and
+its search) make their pass/fail comparison through
 :func:`within_limit` (or its complement :func:`exceeds_limit`, for counting devices over a limit),
-so that one device judged by two checks is judged alike. (The importance sampler of
-``studies.rare_events`` still tests its g(u) <= 1 directly.)
+so that one device judged by two checks is judged alike.
 """
 
 from __future__ import annotations

@@ -69,6 +69,7 @@ from scipy import optimize, special, stats
 
 from ..design import SPREAD_PARAMETERS, Design
 from ..errors import DesignError
+from ..limits import exceeds_limit, within_limit
 from ..sampling import DrawnStrings, Latent, latent_parameters, strings_from_latent
 from ..stats import FailureEstimate, failure_estimate
 from .failure_orbits import MAX_IMAGES, failure_point_orbit
@@ -348,7 +349,7 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
         shifts, shares = search.mixture()
         used = list(search.regions)  # the regions this sample is drawn around
         u = mixture_sample(rng, samples, shifts, _MIXTURE_WEIGHT, shares)
-        failed = ~(g(u) <= 1.0)
+        failed = ~within_limit(g(u))
         if not found:
             break
         # A failure outside the tangent half-space of every shift is searched along its own ray:
@@ -464,7 +465,7 @@ class _RegionSearch:
         """Rays along ``directions`` (rows, any length); each first failure outside the regions
         held is refined and, with its orbit, becomes a region, closest first."""
         g, effort = self.g, self.effort
-        if not self.regions and g(np.zeros((1, self.space.dimension)))[0] > 1.0:
+        if not self.regions and exceeds_limit(g(np.zeros((1, self.space.dimension)))[0]):
             origin = np.zeros(self.space.dimension)
             self.regions.append(_Region(origin, origin[None, :], True))
         if self.regions and float(np.linalg.norm(self.regions[0].point)) == 0.0:
@@ -575,7 +576,7 @@ def _same_rows(g, a: np.ndarray, b: np.ndarray) -> np.ndarray:
     # Nearly opposite points have no mean direction (its rounding would point anywhere): apart.
     probe = ~out & (lengths > _OPPOSITE) & (norms_a > 0) & (norms_b > 0)
     if np.any(probe):
-        out[probe] = g(middle[probe] / lengths[probe, None] * radius[probe, None]) > 1.0
+        out[probe] = exceeds_limit(g(middle[probe] / lengths[probe, None] * radius[probe, None]))
     return out
 
 
@@ -623,7 +624,7 @@ def _seed_directions(g, pilot: np.ndarray, pilot_values: np.ndarray,
     gradient = _gradient(g, np.zeros(dimension), effort.step)[1]
     directions = [gradient, -gradient]
     gradients = [gradient]
-    failing = ~(pilot_values <= 1.0)
+    failing = ~within_limit(pilot_values)
     if np.any(failing):
         directions.extend(_distinct(pilot[failing], effort.failures))
     finite = np.where(np.isfinite(pilot_values), pilot_values, -np.inf)
@@ -721,7 +722,7 @@ def _on_rays(g, directions: np.ndarray, effort: SearchEffort = SearchEffort()) -
     count, dimension = directions.shape
     radii = np.linspace(0.0, _RAY_LIMIT, effort.ray_points)
     along = g((radii[None, :, None] * directions[:, None, :]).reshape(-1, dimension))
-    beyond = along.reshape(count, radii.size) > 1.0
+    beyond = exceeds_limit(along.reshape(count, radii.size))
     out = np.full((count, dimension), np.nan)
     rows = np.flatnonzero(np.any(beyond, axis=1))
     if rows.size == 0:
@@ -734,7 +735,7 @@ def _on_rays(g, directions: np.ndarray, effort: SearchEffort = SearchEffort()) -
     for _ in range(effort.rounds):
         trial = low[:, None] + (high - low)[:, None] * inside[None, :]
         points = trial[:, :, None] * directions[rows][:, None, :]
-        failing = g(points.reshape(-1, dimension)).reshape(trial.shape) > 1.0
+        failing = exceeds_limit(g(points.reshape(-1, dimension)).reshape(trial.shape))
         hit = np.any(failing, axis=1)
         index = np.argmax(failing, axis=1)
         new_high = np.where(hit, trial[which, index], high)
