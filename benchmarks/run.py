@@ -48,7 +48,7 @@ import numpy as np
 
 from scipy.integrate import solve_ivp
 
-from stringcheck.design import parse_design_text
+from stringcheck.design.reading import parse_design_text
 from stringcheck.physics.charge_control import (
     DEFAULT_EMISSION_COEFFICIENT,
     DEFAULT_SATURATION_CURRENT,
@@ -56,7 +56,7 @@ from stringcheck.physics.charge_control import (
     thermal_voltage,
 )
 from stringcheck.physics.leakage import leakage_current
-from stringcheck.sampling import draw_strings
+from stringcheck.montecarlo.sampling import draw_strings
 from stringcheck.solvers.transient import simulate_turn_off
 
 # An invented 20-device stack with R and C grading and square-root leakage (m = 1/2).

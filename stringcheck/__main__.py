@@ -1,5 +1,5 @@
 """``python -m stringcheck``."""
 
-from .cli import main
+from stringcheck.cli.app import main
 
 main()

@@ -13,8 +13,8 @@ import pytest
 from scipy import stats
 from typer.testing import CliRunner
 
-from stringcheck.cli import app
-from stringcheck.design import load_design
+from stringcheck.cli.app import app
+from stringcheck.design.reading import load_design
 
 # The installed typer keeps stdout and stderr apart (Result.stdout / Result.stderr; `output` is
 # both interleaved), so no mix_stderr switch is needed.

@@ -9,18 +9,17 @@ from importlib import resources
 import numpy as np
 import pytest
 
-from stringcheck.design import (
+from stringcheck.design.model import (
     DEFAULT_AMBIENT,
     DEFAULT_DERATING,
     TYP_FRACTION_OF_MAX,
     Design,
     Part,
     Spread,
-    load_design,
-    parse_design_text,
 )
+from stringcheck.design.reading import load_design, parse_design_text
 from stringcheck.errors import DesignError
-from stringcheck.presets import preset
+from stringcheck.design.device_classes import preset
 from stringcheck.report.starter import starter_design
 
 # A small valid design; tests replace whole tables of it. Values of our own invention.
@@ -184,7 +183,7 @@ def test_defaults_are_recorded_as_assumptions():
     assert "parts.A.leakage_doubling not given" in lines
     assert "parts.A.leakage_voltage_exponent not given" in lines
     part = design.parts["A"]
-    # Defaults of the part (design.py _PART_DEFAULTS): 10 K doubling for silicon (common practice),
+    # Defaults of the part (design/model.py _PART_DEFAULTS): 10 K doubling for silicon (common practice),
     # m = 0.5 for generation current in an abrupt junction (Sze, Physics of Semiconductor Devices).
     assert part.leakage_doubling == 10.0
     assert part.leakage_voltage_exponent == 0.5
@@ -202,7 +201,7 @@ def test_scaled_spread_keeps_conditions():
 # --- presets inheritance ---------------------------------------------------------------------------
 
 def test_part_key_overrides_the_class_key_whole():
-    # presets.py: "a key the part sets replaces the class's key whole (a spread table is not merged
+    # design/device_classes.py: "a key the part sets replaces the class's key whole (a spread table is not merged
     # field by field)". The class gives q_rr {typ, max, conditions}; the part gives typ only.
     body = ('class = "si-fast-recovery"\nv_rrm = "1.6 kV"\nq_rr = { typ = "100 nC" }\n'
             'i_r = { max = "5 uA" }')
@@ -399,7 +398,7 @@ def test_a_correlation_pair_given_twice_is_refused_naming_both(tmp_path, body, k
     # keeping the last silently would drop the other.
     from typer.testing import CliRunner
 
-    from stringcheck.cli import app
+    from stringcheck.cli.app import app
 
     text = design_text(monte_carlo="[monte_carlo.correlation]\n" + body)
     with pytest.raises(DesignError) as caught:
@@ -427,7 +426,7 @@ def test_the_same_key_twice_is_a_toml_error_with_its_line():
 
 
 def test_a_pair_in_either_order_gives_the_same_matrix():
-    from stringcheck.design import SPREAD_PARAMETERS, correlation_matrix
+    from stringcheck.design.model import SPREAD_PARAMETERS, correlation_matrix
 
     def matrix(body):
         design = parse_design_text(design_text(monte_carlo="[monte_carlo.correlation]\n" + body))

@@ -23,7 +23,7 @@ from pathlib import Path
 import pytest
 from typer.testing import CliRunner
 
-from stringcheck.cli import app
+from stringcheck.cli.app import app
 
 runner = CliRunner()
 ROOT = Path(__file__).resolve().parents[1]

@@ -20,10 +20,10 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from stringcheck.design import load_design
+from stringcheck.design.reading import load_design
 from stringcheck.errors import DesignError
-from stringcheck.lots import fit_column, rank_scores, score_correlation
-from stringcheck.sampling import draw_strings
+from stringcheck.design.lots import fit_column, rank_scores, score_correlation
+from stringcheck.montecarlo.sampling import draw_strings
 from stringcheck.studies.check import run_check
 
 DESIGN = """
@@ -262,7 +262,7 @@ def test_resampling_is_independent_of_chunking(tmp_path):
 def test_lot_rows_are_distinct_and_in_range(devices, take, seed):
     # Property: for any lot size and any string that fits in it, every trial gets distinct rows of
     # the lot, and every row is used with equal frequency in the long run (not tested here).
-    from stringcheck.sampling import _lot_rows
+    from stringcheck.montecarlo.sampling import _lot_rows
 
     take = min(take, devices)
     rows = _lot_rows(seed, 4090, 20, 77, devices, take)
@@ -371,7 +371,7 @@ def test_rare_draws_a_resampled_lot_from_its_fit(tmp_path, monkeypatch):
     # At 15 kV on 10 devices (50 V below the limit) the charge balance can fail: P ~ 3e-5. The
     # static check fails only far out (one device leaking much, beta = 11.1, P ~ 1e-27): searched
     # within |u| <= 10 it has no failure point.
-    from stringcheck.studies import rare_events
+    from stringcheck.montecarlo import importance as rare_events
 
     monkeypatch.setattr(rare_events, "_RAY_LIMIT", 10.0)
     _write_lot(tmp_path, 60)
@@ -429,7 +429,7 @@ def test_cli_reports_the_lot_and_its_warning(tmp_path):
 
     from typer.testing import CliRunner
 
-    from stringcheck.cli import app
+    from stringcheck.cli.app import app
 
     example = Path(__file__).resolve().parent.parent / "examples" / \
         "precipitator-30kv-measured.toml"
@@ -448,7 +448,7 @@ def test_cli_reports_the_lot_and_its_warning(tmp_path):
 def test_cli_bad_lot_is_one_line_exit_2(tmp_path):
     from typer.testing import CliRunner
 
-    from stringcheck.cli import app
+    from stringcheck.cli.app import app
 
     _write_lot(tmp_path, header="serial,i_r [uA],q_rr [nC]", rows=["S1,1,2", "S2,1.5,oops"])
     (tmp_path / "design.toml").write_text(DESIGN.format(series=2, parallel=1, fit="", positions="",
@@ -487,7 +487,7 @@ def _design_with_b(folder: Path, *, series: int, positions: str = ""):
 
 
 def test_mix_with_a_resampled_substitute_draws_distinct_devices(tmp_path):
-    from stringcheck.sampling import substituted_devices
+    from stringcheck.montecarlo.sampling import substituted_devices
     from stringcheck.studies.review import mixed
 
     _write_lot(tmp_path, 40)
@@ -550,7 +550,7 @@ def test_every_ordered_sample_is_equally_likely():
     # Floyd's algorithm plus a random order gives every ordered pair of distinct devices out of 5
     # the same probability 1/20 (chi-square, scipy.stats.chisquare), and a lot far larger than
     # the string costs no more than a small one (2 uniforms per drawn device).
-    from stringcheck.sampling import _lot_rows
+    from stringcheck.montecarlo.sampling import _lot_rows
 
     pairs = _lot_rows(11, 0, 40_000, 5, 5, 2)
     counts = np.zeros((5, 5), dtype=int)

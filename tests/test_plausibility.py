@@ -9,8 +9,8 @@ from pathlib import Path
 
 import pytest
 
-from stringcheck.design import load_design, parse_design_text
-from stringcheck.plausibility import plausibility_warnings
+from stringcheck.design.reading import load_design, parse_design_text
+from stringcheck.checks.plausibility import plausibility_warnings
 from stringcheck.report.export import json_text, result_to_dict
 from stringcheck.studies.check import run_check
 
@@ -142,7 +142,7 @@ def test_check_command_shows_the_warning_and_exports_it(tmp_path):
     # its key, the run goes on (the verdict decides the exit code), and JSON lists it.
     from typer.testing import CliRunner
 
-    from stringcheck.cli import app
+    from stringcheck.cli.app import app
 
     design = tmp_path / "slip.toml"
     design.write_text(BASE.replace('ambient = "25 degC"', 'ambient = "-70 degC"'),

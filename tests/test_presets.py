@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import pytest
 
-from stringcheck.design import parse_design_text
-from stringcheck.presets import PRESET_NAMES, describe, preset
+from stringcheck.design.reading import parse_design_text
+from stringcheck.design.device_classes import PRESET_NAMES, describe, preset
 
 PN_SILICON = ("si-rectifier", "si-fast-recovery")
 

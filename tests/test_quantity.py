@@ -9,7 +9,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from stringcheck.errors import QuantityError, StringcheckError
-from stringcheck.quantity import (
+from stringcheck.units import (
     AMPERE,
     AMPERE_PER_SECOND,
     CELSIUS,
@@ -327,8 +327,8 @@ PASTED_BAD = [
 def test_pasted_notation_is_refused_by_the_reader_and_the_cli(tmp_path, old, new, key, fragments):
     from typer.testing import CliRunner
 
-    from stringcheck.cli import app
-    from stringcheck.design import parse_design_text
+    from stringcheck.cli.app import app
+    from stringcheck.design.reading import parse_design_text
     from stringcheck.errors import DesignError
 
     text = pasted(old, new)
@@ -351,7 +351,7 @@ def test_pasted_notation_is_refused_by_the_reader_and_the_cli(tmp_path, old, new
 
 
 def test_the_pasted_base_design_is_valid():
-    from stringcheck.design import parse_design_text
+    from stringcheck.design.reading import parse_design_text
 
     design = parse_design_text(PASTE_BASE)
     assert design.grading.capacitor == 2.2e-9 and design.duty.reverse_voltage == 6e3
@@ -493,7 +493,7 @@ def test_unit_powers_are_read_but_powers_of_the_number_are_not():
 def test_design_with_degrees_celsius_equals_its_kelvin_twin():
     # SI Brochure 2.3.1 (a difference of 1 degC is 1 K): every coefficient and thermal resistance
     # the schema takes reads the same per degC as per K.
-    from stringcheck.design import parse_design_text
+    from stringcheck.design.reading import parse_design_text
 
     keys = {"r_th_jc": "0.5 {K}/W", "r_th_cs": "0.1 {K}/W", "tempco_v_t0": "-2.5 mV/{K}",
             "tempco_r_t": "0.4 %/{K}"}

@@ -35,15 +35,16 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from typer.testing import CliRunner
 
-import stringcheck.cli as cli
+import stringcheck.cli.app as cli
 import stringcheck.report.export as export
 import stringcheck.studies.check as check_study
 import stringcheck.studies.size as size_study  # imported before any test patches run_check
-from stringcheck.cli import app
-from stringcheck.design import Design, Spread, load_design, parse_design_text
+from stringcheck.cli.app import app
+from stringcheck.design.model import Design, Spread
+from stringcheck.design.reading import load_design, parse_design_text
 from stringcheck.errors import DesignError, StringcheckError
-from stringcheck.presets import PRESET_NAMES
-from stringcheck.sampling import spread_quantile
+from stringcheck.design.device_classes import PRESET_NAMES
+from stringcheck.montecarlo.quantile_maps import spread_quantile
 from stringcheck.solvers.series_static import solve_static_sharing
 
 runner = CliRunner()
@@ -316,7 +317,7 @@ def test_branch_entry_wins_over_every_branch_entry_whatever_the_order():
 
 
 def test_the_tcr_reference_temperature_is_the_studys():
-    from stringcheck import design
+    from stringcheck.design import model as design
 
     assert design.RESISTOR_TCR_REFERENCE == check_study.RESISTOR_TCR_REFERENCE
 

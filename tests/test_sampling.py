@@ -11,14 +11,10 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from stringcheck.design import Spread, parse_design_text
-from stringcheck.sampling import (
-    BLOCK_TRIALS,
-    chunk_bounds,
-    draw_strings,
-    spread_quantile,
-    tolerance_draw,
-)
+from stringcheck.design.model import Spread
+from stringcheck.design.reading import parse_design_text
+from stringcheck.montecarlo.sampling import BLOCK_TRIALS, chunk_bounds, draw_strings
+from stringcheck.montecarlo.quantile_maps import spread_quantile, tolerance_draw
 
 K = 3.0  # DESIGN.md section 4: a datasheet limit sits sigma_at_limit = 3 standard deviations out
 
@@ -201,7 +197,7 @@ def test_tabulated_truncation_matches_the_exact_map(low, high):
     # The piecewise polynomial that evaluates the truncation map must agree with the map from
     # the normal CDF (ndtr / ndtri, each side in its accurate form) to a few units of the last
     # place, on a dense grid and across the interval joints; beyond |z| = 8 the exact map is used.
-    from stringcheck.spread_maps import _truncate, _truncate_exact
+    from stringcheck.montecarlo.quantile_maps import _truncate, _truncate_exact
 
     z = np.concatenate([np.linspace(-9.0, 9.0, 400_001), np.arange(-512, 513) / 64.0,
                         [-np.inf, np.inf, np.nan]])
@@ -225,7 +221,7 @@ def test_tabulated_screened_draw_matches_the_exact_map(low, high, log_scale):
     # A screened draw, typ exp(sigma y) (lognormal) or typ + sigma y (normal, and the tolerance
     # draws), y the truncated latent, is tabulated as one map: it must agree with the exact map to
     # a few units of the last place, relative.
-    from stringcheck.spread_maps import _exact_map, _truncate
+    from stringcheck.montecarlo.quantile_maps import _exact_map, _truncate
 
     z = np.concatenate([np.linspace(-9.0, 9.0, 400_001), np.arange(-2048, 2049) / 256.0])
     table = _truncate(z, low, high, scale=log_scale, median=2e-7, lognormal=True)
@@ -372,7 +368,7 @@ def test_correlation_key_gives_the_latent_correlation():
 
 
 def test_drawing_one_more_parameter_does_not_change_the_others():
-    # sampling.py docstring: each parameter has its own stream, so adding one leaves the rest.
+    # montecarlo/sampling.py docstring: each parameter has its own stream, so adding one leaves the rest.
     design = make_design(lot_share=0.3)
     alone = draw_strings(design, ("i_r",), 1000, 3000)
     more = draw_strings(design, ("q_rr", "v_t0", "i_r"), 1000, 3000)

@@ -1,4 +1,4 @@
-"""Tests of stringcheck.stats against scipy, closed forms and simulation."""
+"""Tests of stringcheck.montecarlo.estimates against scipy, closed forms and simulation."""
 
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 from scipy import stats as scipy_stats
 
-from stringcheck import stats
+from stringcheck.montecarlo import estimates as stats
 from stringcheck.errors import StringcheckError
 
 

@@ -12,8 +12,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from stringcheck.design import Spread
-from stringcheck.spread_maps import (
+from stringcheck.design.model import Spread
+from stringcheck.montecarlo.quantile_maps import (
     _SCORE_TOLERANCE,
     _exact_ends,
     _exact_from_uniform,

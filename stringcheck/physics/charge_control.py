@@ -60,7 +60,7 @@ DEFAULT_SATURATION_CURRENT = 1e-9
 DEFAULT_EMISSION_COEFFICIENT = 2.0
 """Default n [-]: close to 2 under high-level injection in a PiN diode (common practice)."""
 
-_SOLVER_ITERATIONS = 200
+SOLVER_ITERATIONS = 200
 
 
 def thermal_voltage(temperature: ArrayLike) -> NDArray[np.float64]:
@@ -236,7 +236,7 @@ def forward_state(
     scale = np.asarray(emission_coefficient, dtype=float) * thermal_voltage(temperature)
     saturation_charge = np.asarray(saturation_current, dtype=float) * tau
     voltage = scale * np.log1p(total_time * current / saturation_charge)
-    for _ in range(_SOLVER_ITERATIONS):
+    for _ in range(SOLVER_ITERATIONS):
         excess = saturation_charge * np.expm1(voltage / scale) - total_time * (
             current - conductance * voltage
         )
@@ -275,7 +275,7 @@ class RampRecovery:
     recovery_time: NDArray[np.float64]
 
 
-def _peak_current(lifetime, share, forward_current, di_dt):
+def ramp_peak_current(lifetime, share, forward_current, di_dt):
     """I_RM = a tau (p + W0(-p exp(-p - I_F / (a tau)))) with p = tau / (tau + T_M)."""
     argument = -share * np.exp(-share - forward_current / (di_dt * lifetime))
     return di_dt * lifetime * (share + lambertw(argument, 0).real)
@@ -346,7 +346,7 @@ def ramp_recovery(
     tau = np.asarray(lifetime, dtype=float)
     transit = np.asarray(transit_time, dtype=float)
     rate = np.asarray(di_dt, dtype=float)
-    peak = _peak_current(tau, tau / (tau + transit), np.asarray(forward_current, float), rate)
+    peak = ramp_peak_current(tau, tau / (tau + transit), np.asarray(forward_current, float), rate)
     tail = tau * transit / (tau + transit)
     rise = peak / rate
     return RampRecovery(
@@ -356,18 +356,3 @@ def ramp_recovery(
         recovery_charge=peak * peak / (2.0 * rate) + peak * tail,
         recovery_time=recovery_time_to_fraction(rise, tail, fraction=fraction),
     )
-
-
-# The fitting to datasheet figures is its own module (charge_control_fit.py, which imports this one);
-# its names stay reachable from here, resolved on first use so that either module may be imported
-# first (PEP 562 module __getattr__).
-_FITTING = ("ChargeControlFit", "fit_charge_control", "lifetime_for_charge",
-            "peak_current_from_recovery_time", "rescale_recovery_charge")
-
-
-def __getattr__(name: str):
-    if name in _FITTING:
-        from stringcheck.physics import charge_control_fit
-
-        return getattr(charge_control_fit, name)
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -18,7 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from stringcheck.physics.charge_control import _SOLVER_ITERATIONS, _peak_current, ramp_recovery
+from stringcheck.physics.charge_control import SOLVER_ITERATIONS, ramp_peak_current, ramp_recovery
 from stringcheck.physics.recovery import RECOVERY_END_FRACTION
 
 __all__ = ["ChargeControlFit", "fit_charge_control", "lifetime_for_charge",
@@ -36,7 +36,7 @@ def _solve_increasing(function, target, low, high):
     valid = (value_low <= 0.0) & (value_high >= 0.0)
     side = np.zeros(np.shape(target), dtype=int)
     guess = 0.5 * (log_low + log_high)
-    for _ in range(_SOLVER_ITERATIONS):
+    for _ in range(SOLVER_ITERATIONS):
         denominator = value_high - value_low
         spread = denominator > 0.0
         secant = log_high - value_high * (log_high - log_low) / np.where(spread, denominator, 1.0)
@@ -116,7 +116,7 @@ def fit_charge_control(
     tail = np.where((tail > 0.0) & (current > 0.0), tail, np.nan)
 
     def model_peak(tau):
-        return _peak_current(tau, 1.0 - tail / tau, current, rate)
+        return ramp_peak_current(tau, 1.0 - tail / tau, current, rate)
 
     low = tail + peak / rate
     high = _expand_until(model_peak, peak, low, 2.0)
@@ -127,7 +127,7 @@ def fit_charge_control(
 def _expand_until(function, target, start, factor):
     """Grow start by factor (per element) until function >= target; at most 200 times."""
     high = np.array(start, dtype=float, copy=True)
-    for _ in range(_SOLVER_ITERATIONS):
+    for _ in range(SOLVER_ITERATIONS):
         short = function(high) < target
         if not short.any():
             break

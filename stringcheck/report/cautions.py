@@ -7,7 +7,7 @@ from __future__ import annotations
 
 import math
 
-from ..quantity import format_quantity
+from stringcheck.units import format_quantity
 
 
 def safety_cautions(*, string_voltage: float, stage_energy: float | None, total_energy: float | None,

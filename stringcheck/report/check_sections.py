@@ -9,10 +9,10 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from ..quantity import format_quantity
-from ..studies.forward_check import ParallelCheck, ThermalCheck
-from ..studies.transient_check import TransientCheck
-from .display_text import shown
+from stringcheck.units import format_quantity
+from stringcheck.checks.forward import ParallelCheck, ThermalCheck
+from stringcheck.checks.transient import TransientCheck
+from stringcheck.report.display_text import shown
 
 
 def json_number(value: float | None) -> float | None:
@@ -23,7 +23,7 @@ def json_number(value: float | None) -> float | None:
     return value if math.isfinite(value) else None
 
 
-# How each basis of the turn-off current (studies.recovery_conditions.TurnOffCurrent) reads.
+# How each basis of the turn-off current (checks.recovery_conditions.TurnOffCurrent) reads.
 _TURN_OFF_BASIS = {
     "dc": "the dc forward current",
     "square_peak": "a square wave commutates from its peak, 2 I_F(AV)",

@@ -19,13 +19,13 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Iterator, Mapping, Sequence
 
-from ..errors import StringcheckError
-from ..studies.check import CheckResult, SeriesCheck
-from ..studies.forward_check import ParallelCheck, ThermalCheck
-from .cautions import safety_cautions
-from ..studies.transient_check import TransientCheck
-from .lots import lots_to_list
-from .check_sections import (
+from stringcheck.errors import StringcheckError
+from stringcheck.studies.check import CheckResult, SeriesCheck
+from stringcheck.checks.forward import ParallelCheck, ThermalCheck
+from stringcheck.report.cautions import safety_cautions
+from stringcheck.checks.transient import TransientCheck
+from stringcheck.report.lots import lots_to_list
+from stringcheck.report.check_sections import (
     drivers_to_list,
     json_number,
     parallel_to_dict,
@@ -36,7 +36,7 @@ from .check_sections import (
 )
 
 if TYPE_CHECKING:
-    from ..studies.size import SizingResult
+    from stringcheck.studies.size import SizingResult
 
 SCHEMA_VERSION = 1
 

@@ -11,10 +11,10 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from ..design import Design
-from ..quantity import format_quantity
-from .check_sections import json_number
-from .display_text import shown
+from stringcheck.design.model import Design
+from stringcheck.units import format_quantity
+from stringcheck.report.check_sections import json_number
+from stringcheck.report.display_text import shown
 
 _UNITS = {"i_r": "A", "q_rr": "C", "i_rm": "A", "t_rr": "s", "v_t0": "V", "r_t": "ohm"}
 _HOW = {"resample": "devices drawn from the lot itself, without replacement in a string "

@@ -10,13 +10,13 @@ from rich.panel import Panel
 from rich.table import Table
 from rich.text import Text
 
-from ..studies.review import ReviewResult
-from .cautions import safety_cautions
-from .check_sections import json_number, render_drivers
-from .display_text import shown
-from .export import result_to_dict
-from .lots import render_lots
-from .terminal import render_warnings
+from stringcheck.studies.review import ReviewResult
+from stringcheck.report.cautions import safety_cautions
+from stringcheck.report.check_sections import json_number, render_drivers
+from stringcheck.report.display_text import shown
+from stringcheck.report.export import result_to_dict
+from stringcheck.report.lots import render_lots
+from stringcheck.report.terminal import render_warnings
 
 
 def review_to_dict(result: ReviewResult) -> dict[str, Any]:

@@ -10,18 +10,26 @@ from rich.panel import Panel
 from rich.table import Table
 from rich.text import Text
 
-from ..quantity import format_quantity
-from ..stats import trials_for_relative_error
-from ..studies.check import CheckResult, SeriesCheck
-from ..studies.forward_check import ParallelCheck, ThermalCheck
-from .cautions import safety_cautions
-from .display_text import shown
-from ..studies.transient_check import TransientCheck
-from .lots import render_lots
-from .check_sections import failure_point_text, render_drivers, render_parallel, render_thermal, render_transient, turn_off_text, worst_value_text
+from stringcheck.units import format_quantity
+from stringcheck.montecarlo.estimates import trials_for_relative_error
+from stringcheck.studies.check import CheckResult, SeriesCheck
+from stringcheck.checks.forward import ParallelCheck, ThermalCheck
+from stringcheck.report.cautions import safety_cautions
+from stringcheck.report.display_text import shown
+from stringcheck.checks.transient import TransientCheck
+from stringcheck.report.lots import render_lots
+from stringcheck.report.check_sections import (
+    failure_point_text,
+    render_drivers,
+    render_parallel,
+    render_thermal,
+    render_transient,
+    turn_off_text,
+    worst_value_text,
+)
 
 if TYPE_CHECKING:
-    from ..studies.size import SizingResult
+    from stringcheck.studies.size import SizingResult
 
 _TITLES = {
     "static": "Blocking-state sharing (leakage vs grading resistors)",

@@ -14,9 +14,9 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from ..errors import StringcheckError
-from ..quantity import format_quantity
-from ..solvers.transient import TurnOffTrace
+from stringcheck.errors import StringcheckError
+from stringcheck.units import format_quantity
+from stringcheck.solvers.transient import TurnOffTrace
 
 __all__ = ["TrialWaveform", "trial_waveform", "waveform_csv", "waveform_plot"]
 

@@ -85,7 +85,14 @@ from stringcheck.physics.charge_control import (
     thermal_voltage,
 )
 
-from stringcheck.solvers.turn_off_newton import _Circuit, _factor, _newton, _rates, _settled, _solve
+from stringcheck.solvers.turn_off_newton import (
+    StringCircuit,
+    circuit_rates,
+    factor_jacobian,
+    newton_solve,
+    settled_values,
+    solve_linear,
+)
 
 __all__ = ["TurnOff", "TurnOffTrace", "simulate_turn_off"]
 
@@ -228,7 +235,7 @@ def simulate_turn_off(
         Forward current before turn-off I_F [A], >= 0; scalar or ``(trials,)``.
     lifetime, transit_time
         Charge-control tau and T_M of each diode [s], > 0; ``(trials, n)`` or broadcastable
-        (see :func:`stringcheck.physics.charge_control.fit_charge_control`).
+        (see :func:`stringcheck.physics.charge_control_fit.fit_charge_control`).
     junction_capacitance, grading_resistance, grading_capacitance, damping_resistance
         C_j [F] >= 0, R_k [ohm] > 0 (``inf`` for none), C_k [F] >= 0 with C_j + C_k > 0, and
         R_d [ohm] >= 0 in series with C_k (0, or below 1e-12 sqrt(L / (C_j + C_k)), puts C_k
@@ -295,7 +302,7 @@ def simulate_turn_off(
     # C_j + C_k, duration and step limit the integration needs, are reported as not converged.
     valid = np.isfinite(np.concatenate(
         [np.stack(loop[:4] + [circuit.duration, circuit.max_step, circuit.current_scale], axis=1),
-         state.v, state.q] + [getattr(circuit, f.name) for f in fields(_Circuit)
+         state.v, state.q] + [getattr(circuit, f.name) for f in fields(StringCircuit)
                               if getattr(circuit, f.name).ndim == 2], axis=1)).all(axis=1)
     valid &= (np.concatenate([circuit.lifetime, circuit.transit_time, circuit.stage_capacitance,
                               np.stack([circuit.inductance, circuit.duration, circuit.max_step],
@@ -335,7 +342,7 @@ def simulate_turn_off(
             trace.append(_trace_row(trials, rows, accept, c, state))
 
         # End of a trial: settled, out of time, or failed.
-        target = _settled(c, state.v, state.w)
+        target = settled_values(c, state.v, state.w)
         slack = settle_tolerance * c.voltage_scale[:, None]
         ringing_done = (
             (np.abs(-state.v - target) <= slack).all(axis=1)
@@ -379,7 +386,7 @@ class _State:
     time: NDArray[np.float64]
     step: NDArray[np.float64]
     grow: NDArray[np.float64]  # largest step growth factor: 1 right after a rejection
-    rates: tuple  # the right-hand sides at (v, q, w, i), see _rates
+    rates: tuple  # the right-hand sides at (v, q, w, i), see circuit_rates
     history_t: NDArray[np.float64]  # (2, T): the two previous accepted times
     history_u: NDArray[np.float64]  # (2, T, n): reverse stage voltages there
     history_i: NDArray[np.float64]  # (2, T): reverse loop current there
@@ -415,7 +422,7 @@ def _build(loop, stage):
     duration = np.where(np.isnan(duration), default + 30.0 * period, duration)
     max_step = np.where(np.isnan(max_step), period / 16.0, max_step)
     voltage_scale = source / count
-    circuit = _Circuit(
+    circuit = StringCircuit(
         source=source, inductance=inductance, loop_resistance=resistance,
         saturation_charge=i_sat * tau, inverse_scale=1.0 / (emission * thermal_voltage(temp)),
         lifetime=tau, transit_time=transit,
@@ -437,7 +444,7 @@ def _build(loop, stage):
     return circuit, _State(
         v=v, q=start.stored_charge, w=v.copy(), i=i, energy=np.zeros_like(v), time=zero,
         step=1e-3 * np.minimum(max_step * 16.0, period), grow=np.full_like(current, 5.0),
-        rates=_rates(circuit, v, start.stored_charge, v, i), history_t=np.stack([zero, zero]),
+        rates=circuit_rates(circuit, v, start.stored_charge, v, i), history_t=np.stack([zero, zero]),
         history_u=np.stack([-v, -v]), history_i=np.stack([-i, -i]),
     )
 
@@ -455,21 +462,21 @@ def _trbdf2_step(c, state, step, rtol):
     # Trapezoidal stage to t + gamma h, then BDF2 stage to t + h; the same matrix M - a J.
     rhs = (c.node_capacitance * v + a2 * rate_v, q + a2 * rate_q,
            c.branch_capacitance * w + a2 * rate_w, c.inductance * i + a * rate_i)
-    middle, ok_middle = _newton(c, a, rhs, (v, q, w, i), weights)
-    middle_rates = _rates(c, *middle)
+    middle, ok_middle = newton_solve(c, a, rhs, (v, q, w, i), weights)
+    middle_rates = circuit_rates(c, *middle)
     sv, sq, sw, si = middle
     rhs = (c.node_capacitance * (_FROM_STAGE * sv - _FROM_START * v),
            _FROM_STAGE * sq - _FROM_START * q,
            c.branch_capacitance * (_FROM_STAGE * sw - _FROM_START * w),
            c.inductance * (_FROM_STAGE * si - _FROM_START * i))
-    (nv, nq, nw, ni), ok_end = _newton(c, a, rhs, middle, weights)
-    new_rates = _rates(c, nv, nq, nw, ni)
+    (nv, nq, nw, ni), ok_end = newton_solve(c, a, rhs, middle, weights)
+    new_rates = circuit_rates(c, nv, nq, nw, ni)
 
     # Local error 2 C h [(f1 - fg) / (1 - gamma) - (fg - f0) / gamma], filtered by M - a J.
     estimate = [2.0 * _ERROR_CONSTANT * (step if f0.ndim == 1 else step[:, None])
                 * ((f1 - fg) / (1.0 - _GAMMA) - (fg - f0) / _GAMMA)
                 for f0, fg, f1 in zip(state.rates[:4], middle_rates[:4], new_rates[:4])]
-    ev, eq, ew, ei = _solve(c, a, _factor(c, a, new_rates[4]), new_rates[4], *estimate)
+    ev, eq, ew, ei = solve_linear(c, a, factor_jacobian(c, a, new_rates[4]), new_rates[4], *estimate)
     error = np.maximum.reduce([
         (np.maximum(np.abs(ev), np.abs(ew)) / np.maximum(weight_v, rtol * np.abs(nv))).max(axis=1),
         (np.abs(eq) / np.maximum(weight_q, rtol * np.abs(nq))).max(axis=1),

@@ -25,7 +25,7 @@ _FORWARD_CAP = 4.0  # largest rise of v per Newton iteration in forward bias [n 
 
 
 @dataclass(frozen=True)
-class _Circuit:
+class StringCircuit:
     """Per-trial constants of the working set; loop arrays (T,), stage arrays (T, n)."""
 
     source: NDArray[np.float64]
@@ -47,11 +47,11 @@ class _Circuit:
     duration: NDArray[np.float64]
     max_step: NDArray[np.float64]
 
-    def take(self, rows: NDArray[np.intp]) -> _Circuit:
-        return _Circuit(**{f.name: getattr(self, f.name)[rows] for f in fields(self)})
+    def take(self, rows: NDArray[np.intp]) -> StringCircuit:
+        return StringCircuit(**{f.name: getattr(self, f.name)[rows] for f in fields(self)})
 
 
-def _rates(c, v, q, w, i):
+def circuit_rates(c, v, q, w, i):
     """Right-hand sides M x' = f(x), the diode's dI_D/dv and the damping-resistor power."""
     growth = np.exp(np.minimum(v * c.inverse_scale, 300.0))
     diode = (c.saturation_charge * (growth - 1.0) - q) / c.transit_time
@@ -63,7 +63,7 @@ def _rates(c, v, q, w, i):
     return rate_v, rate_q, branch, rate_i, slope, branch * (v - w)
 
 
-def _factor(c, a, slope):
+def factor_jacobian(c, a, slope):
     """Pivots of M - a J after eliminating q_M and w of every stage (Schur complement)."""
     a2 = a[:, None]
     pivot_q = 1.0 + a2 / c.transit_time + a2 / c.lifetime
@@ -78,7 +78,7 @@ def _factor(c, a, slope):
     return pivot_q, pivot_w, pivot_v, pivot_i
 
 
-def _solve(c, a, factors, slope, bv, bq, bw, bi, room=None):
+def solve_linear(c, a, factors, slope, bv, bq, bw, bi, room=None):
     """(M - a J) dx = b by the Schur complement; dv capped at ``room`` before back substitution."""
     pivot_q, pivot_w, pivot_v, pivot_i = factors
     a2 = a[:, None]
@@ -91,7 +91,7 @@ def _solve(c, a, factors, slope, bv, bq, bw, bi, room=None):
     return dv, dq, (bw + a2 * c.damping_conductance * dv) / pivot_w, di
 
 
-def _newton(c, a, rhs, start, weights, iterations=_NEWTON_ITERATIONS):
+def newton_solve(c, a, rhs, start, weights, iterations=_NEWTON_ITERATIONS):
     """Solve M x - a f(x) = rhs for every trial; returns x and a convergence flag per trial.
 
     Once fewer than half of the trials are still iterating, the rest continue on their own
@@ -104,13 +104,13 @@ def _newton(c, a, rhs, start, weights, iterations=_NEWTON_ITERATIONS):
     cap = _FORWARD_CAP / c.inverse_scale
     a2 = a[:, None]
     for iteration in range(iterations):
-        rate_v, rate_q, rate_w, rate_i, slope, _ = _rates(c, v, q, w, i)
+        rate_v, rate_q, rate_w, rate_i, slope, _ = circuit_rates(c, v, q, w, i)
         bv = rhs[0] - c.node_capacitance * v + a2 * rate_v
         bq = rhs[1] - q + a2 * rate_q
         bw = rhs[2] - c.branch_capacitance * w + a2 * rate_w
         bi = rhs[3] - c.inductance * i + a * rate_i
         room = np.maximum(np.maximum(v, 0.0) + cap - v, 0.0)
-        dv, dq, dw, di = _solve(c, a, _factor(c, a, slope), slope, bv, bq, bw, bi, room)
+        dv, dq, dw, di = solve_linear(c, a, factor_jacobian(c, a, slope), slope, bv, bq, bw, bi, room)
         size = np.maximum(
             np.max(np.maximum(np.abs(dv) / weight_v, np.abs(dw) / weight_v), axis=1),
             np.maximum(np.max(np.abs(dq) / weight_q, axis=1), np.abs(di) / weight_i),
@@ -127,7 +127,7 @@ def _newton(c, a, rhs, start, weights, iterations=_NEWTON_ITERATIONS):
         if left.size == 0 or iteration + 1 == iterations:
             break
         if 2 * left.size < active.size:
-            (v[left], q[left], w[left], i[left]), converged[left] = _newton(
+            (v[left], q[left], w[left], i[left]), converged[left] = newton_solve(
                 c.take(left), a[left], tuple(part[left] for part in rhs),
                 (v[left], q[left], w[left], i[left]), tuple(part[left] for part in weights),
                 iterations - iteration - 1)
@@ -135,7 +135,7 @@ def _newton(c, a, rhs, start, weights, iterations=_NEWTON_ITERATIONS):
     return (v, q, w, i), converged
 
 
-def _settled(c, v, w):
+def settled_values(c, v, w):
     """Charge-balance reverse voltages the ringing decays towards (module notes)."""
     charge = -(c.node_capacitance * v + c.held_capacitance * w)
     inverse = 1.0 / c.stage_capacitance

@@ -15,16 +15,21 @@ from typing import Callable, Mapping
 
 import numpy as np
 
-from ..design import Design, Part
-from ..errors import DesignError
-from ..limits import within_limit
-from ..physics.leakage import leakage_current
-from ..plausibility import PlausibilityWarning, plausibility_warnings
-from ..sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
-from ..solvers.series_dynamic import solve_dynamic_sharing
-from ..solvers.series_static import solve_static_sharing
-from ..stats import FailureEstimate, failure_estimate, histogram_counts, trials_for_upper_bound
-from .forward_check import (
+from stringcheck.design.model import Design, Part
+from stringcheck.errors import DesignError
+from stringcheck.limits import within_limit
+from stringcheck.physics.leakage import leakage_current
+from stringcheck.checks.plausibility import PlausibilityWarning, plausibility_warnings
+from stringcheck.montecarlo.sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
+from stringcheck.solvers.series_dynamic import solve_dynamic_sharing
+from stringcheck.solvers.series_static import solve_static_sharing
+from stringcheck.montecarlo.estimates import (
+    FailureEstimate,
+    failure_estimate,
+    histogram_counts,
+    trials_for_upper_bound,
+)
+from stringcheck.checks.forward import (
     ForwardAccumulator,
     ForwardChunk,
     ForwardSetup,
@@ -37,12 +42,18 @@ from .forward_check import (
     forward_setup,
     run_forward_chunk,
 )
-from .transient_check import DEFAULT_WORST, run_transient, transient_evaluator
-from .transient_check import not_run as not_run_transient
-from .drivers import DRIVER_TRIALS, TEMPERATURE_CHECKS, TOP_DRIVERS, Driver, chunk_features
-from .drivers import cooler, label, rank_inputs, tightenable, tightened
-from .grading_summary import GradingSummary, grading_summary
-from .rare_events import (
+from stringcheck.checks.transient import DEFAULT_WORST, run_transient, transient_evaluator
+from stringcheck.checks.transient import not_run as not_run_transient
+from stringcheck.montecarlo.sensitivity import (
+    DRIVER_TRIALS,
+    TEMPERATURE_CHECKS,
+    TOP_DRIVERS,
+    Driver,
+    chunk_features,
+)
+from stringcheck.montecarlo.sensitivity import cooler, label, rank_inputs, tightenable, tightened
+from stringcheck.checks.grading_ratings import GradingSummary, grading_summary
+from stringcheck.montecarlo.importance import (
     COARSE_SEARCH,
     DEFAULT_SAMPLES,
     RareEstimate,
@@ -51,7 +62,7 @@ from .rare_events import (
     rare_design,
     rare_event_estimate,
 )
-from .check_inputs import (
+from stringcheck.checks.preconditions import (
     RESISTOR_TCR_REFERENCE,
     dynamic_check_reason,
     impossibility,
@@ -59,16 +70,22 @@ from .check_inputs import (
     no_scatter,
     with_recovery_charge,
 )
-from .mixed_stock import device_values, position_values
-from .recovery_conditions import (
+from stringcheck.montecarlo.mixed_stock import device_values, position_values
+from stringcheck.checks.recovery_conditions import (
     RecoveryRescaling,
     TurnOffCurrent,
     carried_charges,
     recovery_rescaling,
 )
-from .position_sums import PositionSums
-from .runner import CHUNK_ELEMENTS, WorkerPool, available_memory, chunk_size, map_chunks
-from .runner import worker_pool
+from stringcheck.montecarlo.accumulators import PositionSums
+from stringcheck.montecarlo.executor import (
+    CHUNK_ELEMENTS,
+    WorkerPool,
+    available_memory,
+    chunk_size,
+    map_chunks,
+)
+from stringcheck.montecarlo.executor import worker_pool
 
 # The checks whose inputs the drivers rank; --rare estimates these and the transient check by
 # importance sampling.
@@ -173,12 +190,12 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         Run the chunks in ``workers`` processes, or in an open ``pool`` (see ``runner.worker_pool``);
         the result is identical to a run in this process.
     transient, transient_worst, transient_sample
-        Also run the time-domain turn-off (``studies.transient_check``) on the worst
+        Also run the time-domain turn-off (``checks.transient``) on the worst
         ``transient_worst`` charge-balance trials and a random sample of ``transient_sample``
         trials (default: the trials the target needs, so that the check can pass).
     rare, rare_samples
         Estimate the P(fail) of every check (static, dynamic, transient, parallel, thermal) by
-        importance sampling (``studies.rare_events``) with ``rare_samples`` strings (the transient
+        importance sampling (``montecarlo.importance``) with ``rare_samples`` strings (the transient
         check at most ``TRANSIENT_RARE_SAMPLES``); each check then passes on that estimate's upper
         bound (the plain exact interval decides when the two disagree or the estimator declines).
         None: automatically, for each check whose plain run could not decide it with fewer than
@@ -186,7 +203,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
         check names: for those (``review`` gives both designs the same).
     drivers
         Rank the inputs by their influence on each series check's worst stress, and rerun the
-        check with each of the top inputs tightened (``studies.drivers``).
+        check with each of the top inputs tightened (``montecarlo.sensitivity``).
     """
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed

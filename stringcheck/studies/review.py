@@ -2,7 +2,7 @@
 
 Both designs are checked on common random numbers: the same seed and trial count, so every
 grading component, every lot and every device parameter of a position is drawn from the same
-latent standard-normal value in both (sampling.py keys its streams by block, parameter and part),
+latent standard-normal value in both (montecarlo/sampling.py keys its streams by block, parameter and part),
 and only the mapping of that latent value through the part's spread differs where the part
 changed. Differences between the two results are therefore the parts' doing, not sampling noise.
 
@@ -23,11 +23,11 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from ..design import MAX_LEAKAGE_DOUBLINGS, Design, Mix, PositionOverride
-from ..errors import StringcheckError, excerpt
-from ..part_reading import check_lot_sizes
-from .check import CheckResult, run_check
-from .runner import worker_pool
+from stringcheck.design.model import MAX_LEAKAGE_DOUBLINGS, Design, Mix, PositionOverride
+from stringcheck.errors import StringcheckError, excerpt
+from stringcheck.design.parts import check_lot_sizes
+from stringcheck.studies.check import CheckResult, run_check
+from stringcheck.montecarlo.executor import worker_pool
 
 
 @dataclass(frozen=True)

@@ -19,25 +19,25 @@ from typing import Callable
 
 import numpy as np
 
-from .. import eseries
-from ..design import LOGNORMAL_PARAMETERS, MAX_DEVICES, Design
-from ..errors import DesignError, ImpossibleDesignError, SizingError
-from ..limits import within_limit
-from ..physics.grading import (
+from stringcheck import eseries
+from stringcheck.design.model import LOGNORMAL_PARAMETERS, MAX_DEVICES, Design
+from stringcheck.errors import DesignError, ImpossibleDesignError, SizingError
+from stringcheck.limits import within_limit
+from stringcheck.physics.grading import (
     discharge_time,
     resistor_power,
     stored_energy,
     worst_case_dynamic_capacitance,
     worst_case_static_resistance,
 )
-from ..physics.leakage import leakage_current
-from ..quantity import format_quantity
-from ..spread_maps import spread_quantile
-from ..stats import trials_for_upper_bound
-from .check import CheckResult, run_check
-from .check_inputs import with_recovery_charge
-from .recovery_conditions import recovery_rescaling, rescale_charges
-from .runner import WorkerPool, worker_pool
+from stringcheck.physics.leakage import leakage_current
+from stringcheck.units import format_quantity
+from stringcheck.montecarlo.quantile_maps import spread_quantile
+from stringcheck.montecarlo.estimates import trials_for_upper_bound
+from stringcheck.studies.check import CheckResult, run_check
+from stringcheck.checks.preconditions import with_recovery_charge
+from stringcheck.checks.recovery_conditions import recovery_rescaling, rescale_charges
+from stringcheck.montecarlo.executor import WorkerPool, worker_pool
 
 # Range of the ladders searched [ohm], [F]: wide enough for any grading network we know of.
 _RESISTOR_RANGE = (1.0, 1e11)

@@ -19,18 +19,20 @@ from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
 from stringcheck.physics.charge_control import (
-    ChargeControlFit,
     RampRecovery,
     diode_current,
     emitter_charge,
-    fit_charge_control,
     forward_state,
-    lifetime_for_charge,
-    peak_current_from_recovery_time,
     ramp_recovery,
-    rescale_recovery_charge,
     stored_charge_rate,
     thermal_voltage,
+)
+from stringcheck.physics.charge_control_fit import (
+    ChargeControlFit,
+    fit_charge_control,
+    lifetime_for_charge,
+    peak_current_from_recovery_time,
+    rescale_recovery_charge,
 )
 
 SATURATION, EMISSION = 1e-9, 2.0

@@ -16,7 +16,7 @@ import pytest
 from rich.text import Text
 from typer.testing import CliRunner
 
-from stringcheck.cli import app
+from stringcheck.cli.app import app
 from stringcheck.report.display_text import CONTROL_CHARACTERS, report_console, shown
 
 runner = CliRunner()

@@ -23,7 +23,7 @@ from typer.testing import CliRunner
 import stringcheck.report.terminal as terminal
 import stringcheck.studies.check as check_study
 import stringcheck.studies.review as review_study
-from stringcheck.cli import app
+from stringcheck.cli.app import app
 
 runner = CliRunner()
 EXAMPLES = Path(__file__).resolve().parents[2] / "examples"

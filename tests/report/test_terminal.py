@@ -7,7 +7,7 @@ import io
 import pytest
 from rich.console import Console
 
-from stringcheck.design import parse_design_text
+from stringcheck.design.reading import parse_design_text
 from stringcheck.report.terminal import render_check, render_check_summary
 from stringcheck.studies.check import run_check
 

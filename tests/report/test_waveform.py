@@ -18,13 +18,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from stringcheck.errors import StringcheckError
-from stringcheck.quantity import format_quantity
-from stringcheck.report.waveform import (
-    TrialWaveform,
-    trial_waveform,
-    waveform_csv,
-    waveform_plot,
-)
+from stringcheck.units import format_quantity
+from stringcheck.report.waveform import TrialWaveform, trial_waveform, waveform_csv, waveform_plot
 from stringcheck.solvers.transient import TurnOffTrace, simulate_turn_off
 
 GUTTER = 10  # eight label characters, a space and the axis

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from stringcheck.design import parse_design_text
+from stringcheck.design.reading import parse_design_text
 from stringcheck.errors import DesignError
 from stringcheck.physics.grading import worst_case_dynamic_capacitance, worst_case_static_resistance
 from stringcheck.studies.check import run_check

@@ -7,9 +7,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from stringcheck.design import parse_design_text
+from stringcheck.design.reading import parse_design_text
 from stringcheck.studies.check import run_check
-from stringcheck.studies.drivers import rank_inputs, tightened
+from stringcheck.montecarlo.sensitivity import rank_inputs, tightened
 
 
 def design(*, q_rr: str, capacitor_tolerance: str, i_r: str, resistor_tolerance: str) -> str:

@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from stringcheck.design import parse_design_text
+from stringcheck.design.reading import parse_design_text
 from stringcheck.report.export import json_text, result_to_dict
 from stringcheck.studies.check import run_check
 

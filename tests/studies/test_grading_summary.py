@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from stringcheck.design import parse_design_text
+from stringcheck.design.reading import parse_design_text
 from stringcheck.report.export import result_to_dict
 from stringcheck.studies.check import run_check
 

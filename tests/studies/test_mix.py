@@ -19,11 +19,11 @@ from hypothesis import strategies as st
 from scipy import stats
 from typer.testing import CliRunner
 
-from stringcheck.cli import app
-from stringcheck.design import parse_design_text
+from stringcheck.cli.app import app
+from stringcheck.design.reading import parse_design_text
 from stringcheck.errors import StringcheckError
 from stringcheck.report.export import result_to_dict
-from stringcheck.sampling import BLOCK_TRIALS, draw_strings, substituted_devices
+from stringcheck.montecarlo.sampling import BLOCK_TRIALS, draw_strings, substituted_devices
 from stringcheck.solvers.series_static import solve_static_sharing
 from stringcheck.studies.check import run_check
 from stringcheck.studies.review import mixed, parse_mix, parse_swap, review, swapped

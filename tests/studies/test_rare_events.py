@@ -1,4 +1,4 @@
-"""Importance sampling of small failure probabilities against a closed form (studies.rare_events)."""
+"""Importance sampling of small failure probabilities against a closed form (montecarlo.importance)."""
 
 from __future__ import annotations
 
@@ -9,12 +9,11 @@ import pytest
 from hypothesis import given, strategies as st
 from scipy import stats
 
-from stringcheck.design import parse_design_text
-from stringcheck.studies import rare_events
+from stringcheck.design.reading import parse_design_text
+from stringcheck.montecarlo import importance as rare_events
 from stringcheck.studies.check import run_check
-from stringcheck.studies.failure_orbits import failure_point_images
-from stringcheck.studies.rare_events import _Space, mixture_sample, \
-    mixture_weight
+from stringcheck.montecarlo.symmetry_images import failure_point_images
+from stringcheck.montecarlo.importance import _Space, mixture_sample, mixture_weight
 
 # The two-stage design of tests/conftest.py (fixture half_plane_design): P(fail) = Phi(-beta)
 # exactly, a half-plane in latent space.
@@ -575,13 +574,8 @@ seed = 4
 def test_the_transient_failure_function_is_the_transient_checks_own():
     # The importance sampler judges a string with the engine exactly as the check does: the same
     # drawn strings give the same worst peak over limit.
-    from stringcheck.sampling import draw_strings
-    from stringcheck.studies.transient_check import (
-        _fits_or_reason,
-        _loop,
-        _simulate,
-        transient_evaluator,
-    )
+    from stringcheck.montecarlo.sampling import draw_strings
+    from stringcheck.checks.transient import _fits_or_reason, _loop, _simulate, transient_evaluator
 
     design = parse_design_text(_TURN_OFF_FOUR)
     fits, _ = _fits_or_reason(design)
@@ -671,8 +665,8 @@ def test_the_automatic_sampler_runs_only_where_it_can_decide():
     # a transient check already failed by one of its worst strings: do not.
     from types import SimpleNamespace
 
-    from stringcheck.stats import failure_estimate
-    from stringcheck.studies.check import needs_rare
+    from stringcheck.montecarlo.estimates import failure_estimate
+    from stringcheck.montecarlo.importance import needs_rare
 
     def check(failures, trials, worst_failures=0):
         return SimpleNamespace(estimate=failure_estimate(failures, trials, confidence=0.95),
@@ -759,7 +753,7 @@ def test_a_temperature_gradient_stack_that_fails_is_not_passed():
 def test_an_orbit_too_large_to_take_is_cut_and_reported_incomplete():
     # Eight positions all unlike: 8! = 40,320 rearrangements, more than the 1,024 taken. The orbit
     # is reported incomplete, and an estimate on it does not decide (the plain interval does).
-    from stringcheck.studies.failure_orbits import MAX_IMAGES, failure_point_orbit
+    from stringcheck.montecarlo.symmetry_images import MAX_IMAGES, failure_point_orbit
 
     design = parse_design_text(_SERIES_FOUR.format(parallel=1, override="").replace(
         "series = 4", "series = 8"))

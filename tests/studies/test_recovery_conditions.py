@@ -1,4 +1,4 @@
-"""Q_rr carried from datasheet test conditions to the application (studies.recovery_conditions)."""
+"""Q_rr carried from datasheet test conditions to the application (checks.recovery_conditions)."""
 
 from __future__ import annotations
 
@@ -8,15 +8,17 @@ from importlib import resources
 import numpy as np
 import pytest
 
-from stringcheck.design import parse_design_text
-from stringcheck.physics.charge_control import rescale_recovery_charge
+from stringcheck.design.reading import parse_design_text
+from stringcheck.physics.charge_control_fit import (
+    rescale_recovery_charge,
+)
 from stringcheck.physics.charge_control_fit import (
     fit_charge_control,
     peak_current_from_recovery_time,
 )
 from stringcheck.report.export import json_text, result_to_dict
 from stringcheck.studies.check import run_check
-from stringcheck.studies.recovery_conditions import recovery_rescaling, rescale_charges
+from stringcheck.checks.recovery_conditions import recovery_rescaling, rescale_charges
 
 DEMO = (resources.files("stringcheck") / "data" / "demo.toml").read_text(encoding="utf-8")
 
@@ -29,7 +31,7 @@ def _with_duty(forward: str, di_dt: str) -> str:
 @pytest.mark.parametrize("forward,di_dt", [("0.01 A", "10 A/us"), ("0.2 A", "1 A/us"),
                                            ("5 A", "100 A/us")])
 def test_interpolated_map_equals_the_exact_model(forward, di_dt):
-    # The grid interpolation must reproduce physics.charge_control.rescale_recovery_charge (the
+    # The grid interpolation must reproduce physics.charge_control_fit.rescale_recovery_charge (the
     # model itself) to 1e-6 relative, in regimes where the map is far from a power law.
     design = parse_design_text(_with_duty(forward, di_dt))
     rescaling, _ = recovery_rescaling(design)

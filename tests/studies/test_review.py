@@ -7,8 +7,8 @@ import json
 import pytest
 from typer.testing import CliRunner
 
-from stringcheck.cli import app
-from stringcheck.design import parse_design_text
+from stringcheck.cli.app import app
+from stringcheck.design.reading import parse_design_text
 from stringcheck.studies.review import parse_swap, review, swapped
 from stringcheck.errors import StringcheckError
 

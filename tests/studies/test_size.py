@@ -9,7 +9,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from stringcheck import eseries
-from stringcheck.design import parse_design_text
+from stringcheck.design.reading import parse_design_text
 from stringcheck.errors import DesignError, ImpossibleDesignError, SizingError
 from stringcheck.physics.grading import worst_case_dynamic_capacitance, worst_case_static_resistance
 from stringcheck.studies.check import run_check

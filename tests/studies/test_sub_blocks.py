@@ -10,11 +10,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from stringcheck.design import parse_design_text
+from stringcheck.design.reading import parse_design_text
 from stringcheck.report.export import result_to_dict
-from stringcheck.sampling import BLOCK_TRIALS, SUM_TRIALS, chunk_bounds, draw_strings
+from stringcheck.montecarlo.sampling import BLOCK_TRIALS, SUM_TRIALS, chunk_bounds, draw_strings
 from stringcheck.studies.check import run_check
-from stringcheck.studies.position_sums import BlockSums, unit_sums
+from stringcheck.montecarlo.accumulators import BlockSums, unit_sums
 
 from .test_check import SCATTER
 
@@ -111,7 +111,7 @@ def test_a_trial_count_the_memory_cannot_hold_is_refused_with_the_arithmetic(mon
 def test_the_transient_check_redraws_sub_blocks_bit_for_bit(monkeypatch):
     # The turn-off redraws the strings it simulates; under a budget below a block it redraws only
     # the sub-blocks that hold them, whose draws are those rows of the block: the same check.
-    from stringcheck.studies import transient_check
+    from stringcheck.checks import transient as transient_check
 
     demo = (resources.files("stringcheck") / "data" / "demo.toml").read_text(encoding="utf-8")
     design = parse_design_text(demo)

@@ -6,7 +6,7 @@ import json
 from importlib import resources
 
 
-from stringcheck.design import parse_design_text
+from stringcheck.design.reading import parse_design_text
 from stringcheck.report.export import json_text, result_to_dict
 from stringcheck.studies.check import run_check
 

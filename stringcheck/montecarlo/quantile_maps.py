@@ -3,7 +3,7 @@ truncation, and the grading components' tolerance draws (DESIGN.md section 4, "S
 image depends on that value alone, so the maps are the same whatever the chunking of a run.
 
 One latent variable has two faces: a uniform score u on (0, 1) and the standard normal
-z = Phi^-1(u). :mod:`stringcheck.sampling` draws uniform scores (``uniform=True``: the quantile
+z = Phi^-1(u). :mod:`stringcheck.montecarlo.sampling` draws uniform scores (``uniform=True``: the quantile
 function of the spread applied to u, tabulated, no normal draw and no normal CDF in between); the
 rare-event estimator and the copulas work with z (``uniform=False``).
 """
@@ -15,7 +15,7 @@ import functools
 import numpy as np
 from scipy import special
 
-from .design import Spread
+from stringcheck.design.model import Spread
 
 
 def spread_quantile(spread: Spread, latent: np.ndarray, *, lognormal: bool, sigma_at_limit: float,

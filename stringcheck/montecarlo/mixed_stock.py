@@ -17,8 +17,8 @@ from typing import Callable
 
 import numpy as np
 
-from ..design import Design, Part
-from ..sampling import DrawnStrings
+from stringcheck.design.model import Design, Part
+from stringcheck.montecarlo.sampling import DrawnStrings
 
 Attribute = Callable[[Part], float]
 

@@ -1,8 +1,8 @@
-"""The design file schema: validated, frozen dataclasses (read from TOML by design_reading.py).
+"""The design file schema: validated, frozen dataclasses (read from TOML by design/reading.py).
 
 The schema is DESIGN.md section 3. Every error names the file, the dotted key and what would be valid;
 unknown keys are errors with the nearest valid key suggested. Values are converted to SI floats
-(temperatures in [degC], temperature differences in [K]) by :mod:`stringcheck.quantity`.
+(temperatures in [degC], temperature differences in [K]) by :mod:`stringcheck.units`.
 
 Defaults that the file may leave out are recorded in :attr:`Design.assumptions`, so that the report can
 list every assumption that was made on the user's behalf.
@@ -11,12 +11,9 @@ list every assumption that was made on the user's behalf.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
-from typing import TYPE_CHECKING, Mapping
+from typing import Mapping
 
 import numpy as np
-
-if TYPE_CHECKING:
-    from .lots import MeasuredLot
 
 WAVEFORMS = ("dc", "half-sine", "square")
 HEATSINKS = ("shared", "separate")
@@ -108,6 +105,7 @@ class Part:
     tempco_v_t0: float
     tempco_r_t: float
     device_class: str | None = None
+    # A stringcheck.design.lots.MeasuredLot (named, not imported: the lot reader builds on this model).
     measured: "MeasuredLot | None" = None
 
     def spread(self, parameter: str) -> Spread | None:
@@ -348,7 +346,3 @@ def correlation_matrix(pairs: tuple[tuple[str, str, float], ...],
             i, j = parameters.index(first), parameters.index(second)
             matrix[i, j] = matrix[j, i] = rho
     return matrix
-
-
-# The reader is its own module (design_reading.py); its entry points are part of this module's API.
-from .design_reading import load_design, parse_design, parse_design_text  # noqa: E402,F401

@@ -24,7 +24,7 @@ from dataclasses import dataclass
 from functools import lru_cache
 from typing import Any
 
-from .errors import QuantityError
+from stringcheck.errors import QuantityError
 
 
 @dataclass(frozen=True)

@@ -10,7 +10,7 @@ How a spread becomes a draw (DESIGN.md section 4, "Spreads"):
 * Production-screened limits (``screened``, default on) truncate the draw at min/max: the latent normal
   is mapped onto the truncated normal by its CDF, which keeps the Gaussian-copula dependence.
 * The streams give uniform scores u, one per device and parameter, and each drawn value is the
-  spread's quantile function at u (:mod:`stringcheck.spread_maps`); the latent normal of a score is
+  spread's quantile function at u (:mod:`stringcheck.montecarlo.quantile_maps`); the latent normal of a score is
   z = Phi^-1(u), computed only where a copula or lot sharing mixes latent values. (Drawing u and
   mapping it costs about half of drawing a normal and mapping it through the truncation.)
 * ``lot_share`` is the fraction of the latent variance common to every device of one part in one built
@@ -43,15 +43,20 @@ from typing import Mapping
 import numpy as np
 from scipy import special
 
-from .design import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Design, correlation_matrix
-from .spread_maps import normal_scores, spread_quantile, tolerance_draw
+from stringcheck.design.model import (
+    LOGNORMAL_PARAMETERS,
+    SPREAD_PARAMETERS,
+    Design,
+    correlation_matrix,
+)
+from stringcheck.montecarlo.quantile_maps import normal_scores, spread_quantile, tolerance_draw
 
 __all__ = ["BLOCK_TRIALS", "SUM_TRIALS", "DrawnStrings", "Latent", "chunk_bounds", "draw_latent", "draw_strings",
            "evaluation_trials", "latent_parameters", "spread_quantile", "strings_from_latent",
            "substituted_devices", "tolerance_draw"]
 
 BLOCK_TRIALS = 4096
-# The unit of the per-position sums (``studies.position_sums``) and the smallest sub-block a large
+# The unit of the per-position sums (``montecarlo.accumulators``) and the smallest sub-block a large
 # string is evaluated in: sums over these units, added in trial order, are the same bit for bit
 # whichever sub-blocks a run was cut into.
 SUM_TRIALS = 64

@@ -21,8 +21,8 @@ from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Callable, Iterator, Sequence, TypeVar
 
-from ..errors import StringcheckError
-from ..sampling import BLOCK_TRIALS, evaluation_trials
+from stringcheck.errors import StringcheckError
+from stringcheck.montecarlo.sampling import BLOCK_TRIALS, evaluation_trials
 
 Context = TypeVar("Context")
 Outcome = TypeVar("Outcome")

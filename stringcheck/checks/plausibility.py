@@ -15,8 +15,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from .design import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Design
-from .quantity import format_quantity
+from stringcheck.design.model import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Design
+from stringcheck.units import format_quantity
 
 # The nominal share V_s / n below this fraction of a device's V_RRM: two orders of magnitude below
 # the rating, where real stacks run at some 30 to 80 % of it (common practice).

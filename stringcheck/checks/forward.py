@@ -21,12 +21,12 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .. import eseries
-from ..design import Design
-from ..errors import DesignError, SizingError
-from ..limits import exceeds_limit, within_limit
-from ..sampling import BLOCK_TRIALS, SUM_TRIALS, DrawnStrings
-from ..solvers.electrothermal import (
+from stringcheck import eseries
+from stringcheck.design.model import Design
+from stringcheck.errors import DesignError, SizingError
+from stringcheck.limits import exceeds_limit, within_limit
+from stringcheck.montecarlo.sampling import BLOCK_TRIALS, SUM_TRIALS, DrawnStrings
+from stringcheck.solvers.electrothermal import (
     OVER_LIMIT,
     RUNAWAY,
     STABLE,
@@ -35,13 +35,17 @@ from ..solvers.electrothermal import (
     runaway_ambient,
     solve_equilibrium,
 )
-from ..solvers.parallel import ballast_for_share, branch_currents
-from ..physics.forward import slope_resistance, threshold_voltage
-from ..stats import FailureEstimate, failure_estimate
-from .mixed_stock import device_values, position_values
-from .position_sums import BlockSums, unit_sums
-from .rare_events import RareEstimate
-from .recovery_conditions import RecoveryRescaling, TurnOffCurrent, carried_charges
+from stringcheck.solvers.parallel import ballast_for_share, branch_currents
+from stringcheck.physics.forward import slope_resistance, threshold_voltage
+from stringcheck.montecarlo.estimates import FailureEstimate, failure_estimate
+from stringcheck.montecarlo.mixed_stock import device_values, position_values
+from stringcheck.montecarlo.accumulators import BlockSums, unit_sums
+from stringcheck.montecarlo.importance import RareEstimate
+from stringcheck.checks.recovery_conditions import (
+    RecoveryRescaling,
+    TurnOffCurrent,
+    carried_charges,
+)
 
 # Runaway ambient is searched on the first trials of each sampling block only (a bisection costs
 # some fifteen equilibrium solves); its percentiles describe the margin, the pass/fail rests on the

@@ -25,8 +25,8 @@ from dataclasses import dataclass, replace
 import numpy as np
 from scipy import stats
 
-from ..design import LOGNORMAL_PARAMETERS, Design, Spread
-from ..sampling import DrawnStrings
+from stringcheck.design.model import LOGNORMAL_PARAMETERS, Design, Spread
+from stringcheck.montecarlo.sampling import DrawnStrings
 
 DRIVER_TRIALS = 20_000
 TOP_DRIVERS = 3

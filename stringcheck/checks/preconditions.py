@@ -11,10 +11,10 @@ from dataclasses import replace
 
 import numpy as np
 
-from ..design import Design, Spread
-from ..errors import DesignError
-from ..physics.recovery import recovery_charge
-from .mixed_stock import mix_description, position_values
+from stringcheck.design.model import Design, Spread
+from stringcheck.errors import DesignError
+from stringcheck.physics.recovery import recovery_charge
+from stringcheck.montecarlo.mixed_stock import mix_description, position_values
 
 RESISTOR_TCR_REFERENCE = 25.0  # [degC]; resistor TCR is specified from 25 degC (common practice)
 

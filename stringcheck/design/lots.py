@@ -14,7 +14,7 @@ then takes each device of that part from the lot, either
   scores, so correlations are kept there too.
 
 This module reads the file (pandas), checks every cell, and fits; the draws are made by
-:mod:`stringcheck.sampling`.
+:mod:`stringcheck.montecarlo.sampling`.
 """
 
 from __future__ import annotations
@@ -28,9 +28,9 @@ from pathlib import Path
 import numpy as np
 from scipy import special, stats
 
-from .design import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Spread
-from .errors import DesignError, QuantityError, excerpt
-from .quantity import AMPERE, COULOMB, OHM, SECOND, VOLT, parse_quantity
+from stringcheck.design.model import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Spread
+from stringcheck.errors import DesignError, QuantityError, excerpt
+from stringcheck.units import AMPERE, COULOMB, OHM, SECOND, VOLT, parse_quantity
 
 FITS = ("resample", "lognormal", "normal", "auto")
 # A fit from fewer devices than this says more about the fit than about the lot.

@@ -11,15 +11,9 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from . import presets
-from .design import (
-    DEFAULT_AMBIENT,
-    SPREAD_PARAMETERS,
-    Design,
-    Part,
-    Spread,
-)
-from .quantity import (
+from stringcheck.design import device_classes as presets
+from stringcheck.design.model import DEFAULT_AMBIENT, SPREAD_PARAMETERS, Design, Part, Spread
+from stringcheck.units import (
     AMPERE,
     CELSIUS,
     DIMENSIONLESS,
@@ -31,7 +25,7 @@ from .quantity import (
     VOLT_PER_KELVIN,
 )
 
-from .design_schema import _SCHEMA_KEYS, _Reader, _join
+from stringcheck.design.schema import SCHEMA_KEYS, Reader, join_key
 
 _PART_SCALARS = {"v_rrm": VOLT, "i_fav": AMPERE, "c_j": FARAD, "r_th_jc": KELVIN_PER_WATT,
                  "r_th_cs": KELVIN_PER_WATT, "t_j_max": CELSIUS, "leakage_doubling": KELVIN_DIFFERENCE,
@@ -48,7 +42,7 @@ _PART_DEFAULT_NOTES = {
 }
 
 
-def read_parts(reader: _Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
+def read_parts(reader: Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
     parts_table = reader.table(raw, "parts")
     if not parts_table:
         raise reader.error("parts", "no parts defined; add a [parts.NAME] table with at least v_rrm "
@@ -61,7 +55,7 @@ def read_parts(reader: _Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
                                                   "a NAME such as MAIN")
         if not isinstance(table, Mapping):
             raise reader.error(prefix, f"must be a table ([{prefix}])")
-        reader.check_keys(table, _SCHEMA_KEYS["part"], prefix)
+        reader.check_keys(table, SCHEMA_KEYS["part"], prefix)
         merged: dict[str, Any] = {}
         device_class = reader.text(table, "class", prefix)
         if device_class is not None:
@@ -69,7 +63,7 @@ def read_parts(reader: _Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
                 close = difflib.get_close_matches(device_class, presets.PRESET_NAMES, n=1)
                 hint = f"did you mean '{close[0]}'?" if close else \
                     "valid classes: " + ", ".join(presets.PRESET_NAMES)
-                raise reader.error(_join(prefix, "class"), f"unknown device class {device_class!r}; "
+                raise reader.error(join_key(prefix, "class"), f"unknown device class {device_class!r}; "
                                                            + hint)
             merged.update(presets.preset(device_class))
             inherited = sorted(set(merged) - set(table))
@@ -87,7 +81,7 @@ def read_parts(reader: _Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
                 note=_PART_DEFAULT_NOTES.get(key))
         exponent = scalars["leakage_voltage_exponent"]
         if not 0.0 <= exponent <= 1.0:
-            raise reader.error(_join(prefix, "leakage_voltage_exponent"),
+            raise reader.error(join_key(prefix, "leakage_voltage_exponent"),
                                f"must lie in [0, 1] (0.5 for generation current), got {exponent:g}")
         spreads = {parameter: reader.spread(merged[parameter], parameter, prefix)
                    if parameter in merged else None for parameter in SPREAD_PARAMETERS}
@@ -98,28 +92,28 @@ def read_parts(reader: _Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
     return parts
 
 
-def _read_lot(reader: _Reader, table: Mapping[str, Any], spreads: dict[str, Spread | None],
+def _read_lot(reader: Reader, table: Mapping[str, Any], spreads: dict[str, Spread | None],
               prefix: str):
     """The part's measured lot (``measured``, ``fit``), or None; fills in a spread for each
     measured parameter the datasheet does not give (the lot's median, min and max), so that test
     conditions and ratings have one home."""
-    from .lots import FITS, read_lot
+    from stringcheck.design.lots import FITS, read_lot
 
     fit = reader.text(table, "fit", prefix, choices=FITS)
     path_text = reader.text(table, "measured", prefix)
     if path_text is None:
         if fit is not None:
-            raise reader.error(_join(prefix, "fit"), "says how to use a measured lot, but the part "
+            raise reader.error(join_key(prefix, "fit"), "says how to use a measured lot, but the part "
                                                      "has none; add measured = \"lot.csv\" or "
                                                      "remove fit")
         return None
     if not path_text.strip():
-        raise reader.error(_join(prefix, "measured"), "is empty; give the lot's CSV file, e.g. "
+        raise reader.error(join_key(prefix, "measured"), "is empty; give the lot's CSV file, e.g. "
                                                       "measured = \"lot42.csv\"")
     path = Path(path_text)
     if not path.is_absolute() and not reader.source.startswith("<"):
         path = Path(reader.source).parent / path
-    lot = read_lot(path, key=_join(prefix, "measured"), design_source=reader.source,
+    lot = read_lot(path, key=join_key(prefix, "measured"), design_source=reader.source,
                    fit=fit or "resample", datasheet=spreads)
     where = Path(path_text).name
     if fit is None:
@@ -144,7 +138,7 @@ def _read_lot(reader: _Reader, table: Mapping[str, Any], spreads: dict[str, Spre
     return lot
 
 
-def _leakage_conditions(reader: _Reader, spread: Spread | None, v_rrm: float,
+def _leakage_conditions(reader: Reader, spread: Spread | None, v_rrm: float,
                         prefix: str) -> Spread | None:
     """Fill in the test conditions of a leakage spread that the datasheet row left out."""
     if spread is None:
@@ -160,7 +154,7 @@ def _leakage_conditions(reader: _Reader, spread: Spread | None, v_rrm: float,
     return replace(spread, **changes) if changes else spread
 
 
-def check_serials(reader: _Reader, design: Design, grid: np.ndarray) -> None:
+def check_serials(reader: Reader, design: Design, grid: np.ndarray) -> None:
     """Each serial names a device of its position's lot, once; a resampled lot covers the string."""
     used: dict[tuple[str, str], tuple[int, int]] = {}
     for override_number, override in enumerate(design.string.positions, start=1):
@@ -188,10 +182,10 @@ def check_serials(reader: _Reader, design: Design, grid: np.ndarray) -> None:
     check_lot_sizes(design, reader)
 
 
-def check_lot_sizes(design: Design, reader: _Reader | None = None) -> None:
+def check_lot_sizes(design: Design, reader: Reader | None = None) -> None:
     """A resampled lot holds every device a built string may draw from it (with a mix, every
     position that may hold the part in either of ``Design.mix_variants``); raises DesignError."""
-    reader = _Reader(design.source) if reader is None else reader
+    reader = Reader(design.source) if reader is None else reader
     placed = design.string.placed_by_serial()
     for name in design.parts_used():
         lot = design.parts[name].measured

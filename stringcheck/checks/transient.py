@@ -25,19 +25,31 @@ from typing import Callable
 
 import numpy as np
 
-from ..design import Design
-from ..physics.charge_control_fit import lifetime_for_charge
-from ..sampling import BLOCK_TRIALS, DrawnStrings, draw_strings, evaluation_trials
-from ..solvers.transient import simulate_turn_off
-from ..errors import StringcheckError
-from ..limits import within_limit
-from ..stats import FailureEstimate, failure_estimate
-from .mixed_stock import device_part_grid, position_values
-from .drivers import TOP_DRIVERS, Driver, chunk_features, label, rank_inputs, tightenable
-from .drivers import tightened
-from .rare_events import RareEstimate
-from .runner import CHUNK_ELEMENTS
-from .recovery_conditions import (
+from stringcheck.design.model import Design
+from stringcheck.physics.charge_control_fit import lifetime_for_charge
+from stringcheck.montecarlo.sampling import (
+    BLOCK_TRIALS,
+    DrawnStrings,
+    draw_strings,
+    evaluation_trials,
+)
+from stringcheck.solvers.transient import simulate_turn_off
+from stringcheck.errors import StringcheckError
+from stringcheck.limits import within_limit
+from stringcheck.montecarlo.estimates import FailureEstimate, failure_estimate
+from stringcheck.montecarlo.mixed_stock import device_part_grid, position_values
+from stringcheck.montecarlo.sensitivity import (
+    TOP_DRIVERS,
+    Driver,
+    chunk_features,
+    label,
+    rank_inputs,
+    tightenable,
+)
+from stringcheck.montecarlo.sensitivity import tightened
+from stringcheck.montecarlo.importance import RareEstimate
+from stringcheck.montecarlo.executor import CHUNK_ELEMENTS
+from stringcheck.checks.recovery_conditions import (
     TURN_OFF_TEST_CURRENT,
     InconsistentRecoveryData,
     PartFit,
@@ -47,7 +59,7 @@ from .recovery_conditions import (
     turn_off_current,
 )
 
-# Stream of the random sample, apart from every stream of the draws (sampling.py uses < 3000 and
+# Stream of the random sample, apart from every stream of the draws (montecarlo/sampling.py uses < 3000 and
 # part streams from 2000 up; this one is ours alone).
 _SAMPLE_STREAM = 7001
 # Trials simulated at once (memory of the engine's working set stays small).
@@ -140,7 +152,7 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
     """Simulate the worst ``worst`` charge-balance trials and a random ``sample`` of all trials.
 
     With ``drivers``, rank the inputs by the rank correlation of their mismatch with the worst
-    peak over limit on the sample (``studies.drivers``), and simulate the same sampled strings
+    peak over limit on the sample (``montecarlo.sensitivity``), and simulate the same sampled strings
     again with each of the top inputs' spread halved (the worst set kept)."""
     fits, reason = _fits_or_reason(design)
     if reason:

@@ -2,7 +2,7 @@
 
 Every error names the file, the dotted key and what would be valid; unknown keys are errors with
 the nearest valid key suggested; defaults taken on the user's behalf go into ``Design.assumptions``.
-The key lists and the value reader are in design_schema.py, the parts in part_reading.py.
+The key lists and the value reader are in design/schema.py, the parts in design/parts.py.
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from .design import (
+from stringcheck.design.model import (
     DEFAULT_AMBIENT,
     DEFAULT_CONFIDENCE,
     DEFAULT_DERATING,
@@ -43,8 +43,8 @@ from .design import (
     Thermal,
     correlation_matrix,
 )
-from .errors import DesignError
-from .quantity import (
+from stringcheck.errors import DesignError
+from stringcheck.units import (
     AMPERE,
     AMPERE_PER_SECOND,
     CELSIUS,
@@ -60,8 +60,8 @@ from .quantity import (
     WATT,
 )
 
-from .design_schema import _SCHEMA_KEYS, _TOP_LEVEL, _Reader, _join
-from .part_reading import check_serials, read_parts
+from stringcheck.design.schema import SCHEMA_KEYS, TOP_LEVEL, Reader, join_key
+from stringcheck.design.parts import check_serials, read_parts
 
 _SERIES_NAMES = ("E6", "E12", "E24", "E48", "E96", "E192")
 
@@ -160,11 +160,11 @@ def _line_of_long_number(text: str) -> int:
 
 def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
     """Validate an already-parsed design table into a :class:`Design`."""
-    reader = _Reader(source)
-    reader.check_keys(raw, _TOP_LEVEL, "")
+    reader = Reader(source)
+    reader.check_keys(raw, TOP_LEVEL, "")
 
     design_table = reader.table(raw, "design")
-    reader.check_keys(design_table, _SCHEMA_KEYS["design"], "design")
+    reader.check_keys(design_table, SCHEMA_KEYS["design"], "design")
     title = reader.text(design_table, "title", "design", default=Path(source).stem) or ""
     notes = reader.text(design_table, "notes", "design", default="") or ""
 
@@ -176,7 +176,7 @@ def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
     sizing = _read_sizing(reader, raw)
     thermal = _read_thermal(reader, raw)
     review_table = reader.table(raw, "review")
-    reader.check_keys(review_table, _SCHEMA_KEYS["review"], "review")
+    reader.check_keys(review_table, SCHEMA_KEYS["review"], "review")
     review = Review(tolerance=reader.fraction(review_table, "tolerance", "review", default=0.0,
                                               low=0.0, high=1.0))
 
@@ -187,9 +187,9 @@ def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
     return design
 
 
-def _read_duty(reader: _Reader, raw: Mapping[str, Any]) -> Duty:
+def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:
     table = reader.table(raw, "duty")
-    reader.check_keys(table, _SCHEMA_KEYS["duty"], "duty")
+    reader.check_keys(table, SCHEMA_KEYS["duty"], "duty")
     if "duty" not in raw:
         raise reader.error("duty", "missing; add a [duty] table with at least reverse_voltage")
     waveform = reader.text(table, "waveform", "duty", default=None, choices=WAVEFORMS)
@@ -209,11 +209,11 @@ def _read_duty(reader: _Reader, raw: Mapping[str, Any]) -> Duty:
     )
 
 
-def _read_string(reader: _Reader, raw: Mapping[str, Any], parts: Mapping[str, Part]) -> StringLayout:
+def _read_string(reader: Reader, raw: Mapping[str, Any], parts: Mapping[str, Part]) -> StringLayout:
     table = reader.table(raw, "string")
     if "string" not in raw:
         raise reader.error("string", "missing; add a [string] table with at least series = N")
-    reader.check_keys(table, _SCHEMA_KEYS["string"], "string")
+    reader.check_keys(table, SCHEMA_KEYS["string"], "string")
     series = reader.integer(table, "series", "string", cap=MAX_DEVICES)
     parallel = reader.integer(table, "parallel", "string", default=1, cap=MAX_DEVICES)
     if series * parallel > MAX_DEVICES:
@@ -239,22 +239,22 @@ def _read_string(reader: _Reader, raw: Mapping[str, Any], parts: Mapping[str, Pa
         prefix = f"string.position[{number}]"
         if not isinstance(entry, Mapping):
             raise reader.error(prefix, "must be a table ([[string.position]])")
-        reader.check_keys(entry, _SCHEMA_KEYS["position"], prefix)
+        reader.check_keys(entry, SCHEMA_KEYS["position"], prefix)
         index = reader.integer(entry, "index", prefix, maximum=series)
         branch = reader.integer(entry, "branch", prefix, default=0, minimum=1, maximum=parallel)
         part = reader.text(entry, "part", prefix)
         if part is not None:
-            _check_part_name(reader, _join(prefix, "part"), part, parts)
+            _check_part_name(reader, join_key(prefix, "part"), part, parts)
         rise = reader.quantity(entry, "temperature_rise", KELVIN_DIFFERENCE, prefix,
                                non_negative=True)
         serial = reader.text(entry, "serial", prefix)
         if serial is not None:
             serial = serial.strip()
             if not serial:
-                raise reader.error(_join(prefix, "serial"), "is empty; give the serial number of "
+                raise reader.error(join_key(prefix, "serial"), "is empty; give the serial number of "
                                                             "the measured device, or remove it")
             if branch == 0 and parallel > 1:
-                raise reader.error(_join(prefix, "serial"), f"names one device, but the entry "
+                raise reader.error(join_key(prefix, "serial"), f"names one device, but the entry "
                                                             f"covers all {parallel} branches; "
                                                             "add branch = N")
         # Two entries for the same place would leave one of them silently unused. An entry for every
@@ -272,16 +272,16 @@ def _read_string(reader: _Reader, raw: Mapping[str, Any], parts: Mapping[str, Pa
                         positions=tuple(positions))
 
 
-def _check_part_name(reader: _Reader, key: str, name: str, parts: Mapping[str, Part]) -> None:
+def _check_part_name(reader: Reader, key: str, name: str, parts: Mapping[str, Part]) -> None:
     if name not in parts:
         close = difflib.get_close_matches(name, list(parts), n=1)
         hint = f"did you mean '{close[0]}'?" if close else "defined parts: " + ", ".join(parts)
         raise reader.error(key, f"no part named {name!r}; {hint}")
 
 
-def _read_grading(reader: _Reader, raw: Mapping[str, Any]) -> Grading:
+def _read_grading(reader: Reader, raw: Mapping[str, Any]) -> Grading:
     table = reader.table(raw, "grading")
-    reader.check_keys(table, _SCHEMA_KEYS["grading"], "grading")
+    reader.check_keys(table, SCHEMA_KEYS["grading"], "grading")
     prefix = "grading"
     return Grading(
         resistor=reader.quantity(table, "resistor", OHM, prefix, positive=True),
@@ -301,10 +301,10 @@ def _read_grading(reader: _Reader, raw: Mapping[str, Any]) -> Grading:
     )
 
 
-def _read_monte_carlo(reader: _Reader, raw: Mapping[str, Any]) -> MonteCarlo:
+def _read_monte_carlo(reader: Reader, raw: Mapping[str, Any]) -> MonteCarlo:
     table = reader.table(raw, "monte_carlo")
     prefix = "monte_carlo"
-    reader.check_keys(table, _SCHEMA_KEYS[prefix], prefix)
+    reader.check_keys(table, SCHEMA_KEYS[prefix], prefix)
     screened = table.get("screened", True)
     if not isinstance(screened, bool):
         raise reader.error("monte_carlo.screened", f"must be true or false, got {screened!r}")
@@ -345,16 +345,16 @@ def _read_monte_carlo(reader: _Reader, raw: Mapping[str, Any]) -> MonteCarlo:
     )
 
 
-def _read_sizing(reader: _Reader, raw: Mapping[str, Any]) -> Sizing:
+def _read_sizing(reader: Reader, raw: Mapping[str, Any]) -> Sizing:
     table = reader.table(raw, "sizing")
     prefix = "sizing"
-    reader.check_keys(table, _SCHEMA_KEYS[prefix], prefix)
+    reader.check_keys(table, SCHEMA_KEYS[prefix], prefix)
     series = {}
     for key, default in (("resistor_series", "E96"), ("capacitor_series", "E12")):
         value = reader.text(table, key, prefix, default=default)
         assert value is not None
         if value.upper() not in _SERIES_NAMES:
-            raise reader.error(_join(prefix, key), f"unknown preferred-value series {value!r}; "
+            raise reader.error(join_key(prefix, key), f"unknown preferred-value series {value!r}; "
                                                    "one of " + ", ".join(_SERIES_NAMES))
         series[key] = value.upper()
     target_share = reader.quantity(table, "target_share", DIMENSIONLESS, prefix)
@@ -369,10 +369,10 @@ def _read_sizing(reader: _Reader, raw: Mapping[str, Any]) -> Sizing:
     )
 
 
-def _read_thermal(reader: _Reader, raw: Mapping[str, Any]) -> Thermal:
+def _read_thermal(reader: Reader, raw: Mapping[str, Any]) -> Thermal:
     table = reader.table(raw, "thermal")
     prefix = "thermal"
-    reader.check_keys(table, _SCHEMA_KEYS[prefix], prefix)
+    reader.check_keys(table, SCHEMA_KEYS[prefix], prefix)
     return Thermal(
         heatsink=reader.text(table, "heatsink", prefix, default="separate", choices=HEATSINKS) or "",
         r_th_sa=reader.quantity(table, "r_th_sa", KELVIN_PER_WATT, prefix, non_negative=True),
@@ -381,7 +381,7 @@ def _read_thermal(reader: _Reader, raw: Mapping[str, Any]) -> Thermal:
     )
 
 
-def _cross_check(reader: _Reader, design: Design) -> None:
+def _cross_check(reader: Reader, design: Design) -> None:
     """Checks that need more than one table: temperatures against limits, what each check needs."""
     if design.monte_carlo.correlation:
         try:

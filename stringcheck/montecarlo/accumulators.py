@@ -23,9 +23,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..limits import exceeds_limit
-from ..sampling import BLOCK_TRIALS, SUM_TRIALS
-from ..stats import Moments, merge_moments
+from stringcheck.limits import exceeds_limit
+from stringcheck.montecarlo.sampling import BLOCK_TRIALS, SUM_TRIALS
+from stringcheck.montecarlo.estimates import Moments, merge_moments
 
 _UNITS_PER_BLOCK = BLOCK_TRIALS // SUM_TRIALS
 
@@ -101,7 +101,7 @@ class BlockSums:
 
 def unit_moments(values: np.ndarray, solved: np.ndarray) -> list[Moments]:
     """The moments of each ``SUM_TRIALS`` rows of ``values`` (rows, ...) over their solved rows
-    (``solved``, (rows,) bool), one :class:`~stringcheck.stats.Moments` per unit; a short last unit
+    (``solved``, (rows,) bool), one :class:`~stringcheck.montecarlo.estimates.Moments` per unit; a short last unit
     holds the rows there are.
 
     Notes

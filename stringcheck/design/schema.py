@@ -1,6 +1,6 @@
 """The design file's key lists and the value reader shared by the table readers.
 
-:class:`_Reader` walks raw TOML tables: it converts quantities (checked against their unit), fractions,
+:class:`Reader` walks raw TOML tables: it converts quantities (checked against their unit), fractions,
 integers, text and spreads, collects the assumptions made on the user's behalf, and raises a
 :class:`~stringcheck.errors.DesignError` naming the file, the dotted key and the fix.
 """
@@ -11,13 +11,9 @@ import difflib
 import math
 from typing import Any, Mapping
 
-from .design import (
-    LOGNORMAL_PARAMETERS,
-    TYP_FRACTION_OF_MAX,
-    Spread,
-)
-from .errors import DesignError, QuantityError
-from .quantity import (
+from stringcheck.design.model import LOGNORMAL_PARAMETERS, TYP_FRACTION_OF_MAX, Spread
+from stringcheck.errors import DesignError, QuantityError
+from stringcheck.units import (
     AMPERE,
     AMPERE_PER_SECOND,
     CELSIUS,
@@ -35,7 +31,7 @@ _SPREAD_UNITS = {"i_r": AMPERE, "q_rr": COULOMB, "i_rm": AMPERE, "t_rr": SECOND,
                  "r_t": OHM}
 _CONDITION_UNITS = {"at_temperature": CELSIUS, "at_voltage": VOLT, "at_di_dt": AMPERE_PER_SECOND,
                     "at_forward_current": AMPERE}
-_SCHEMA_KEYS = {
+SCHEMA_KEYS = {
     "design": ("title", "notes"),
     "duty": ("reverse_voltage", "forward_current", "waveform", "frequency", "di_dt", "ambient",
              "stray_inductance"),
@@ -54,12 +50,12 @@ _SCHEMA_KEYS = {
     "sizing": ("target_p_fail", "target_share", "resistor_series", "capacitor_series"),
     "review": ("tolerance",),
 }
-_TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
+TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
               "review")
 _SERIES_NAMES = ("E6", "E12", "E24", "E48", "E96", "E192")
 
 
-class _Reader:
+class Reader:
     """Walks the raw TOML tables, converting values and collecting assumptions."""
 
     def __init__(self, source: str):
@@ -74,19 +70,19 @@ class _Reader:
             if key not in allowed:
                 close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
                 hint = f"; did you mean '{close[0]}'?" if close else f"; valid keys: {', '.join(allowed)}"
-                raise self.error(_join(prefix, key), f"unknown key{hint}")
+                raise self.error(join_key(prefix, key), f"unknown key{hint}")
 
     def table(self, raw: Mapping[str, Any], key: str, prefix: str = "") -> Mapping[str, Any]:
         value = raw.get(key, {})
         if not isinstance(value, Mapping):
-            raise self.error(_join(prefix, key), f"must be a table ([{_join(prefix, key)}]), "
+            raise self.error(join_key(prefix, key), f"must be a table ([{join_key(prefix, key)}]), "
                                                  f"not {type(value).__name__}")
         return value
 
     def quantity(self, table: Mapping[str, Any], key: str, unit: Unit, prefix: str, *,
                  required: bool = False, default: float | None = None, positive: bool = False,
                  non_negative: bool = False, note: str | None = None) -> float | None:
-        dotted = _join(prefix, key)
+        dotted = join_key(prefix, key)
         if key not in table:
             if required:
                 raise self.error(dotted, f"missing; give it in {unit.label}, e.g. {_example(unit)}")
@@ -96,7 +92,7 @@ class _Reader:
         # A value's tolerance key in the same table ("capacitor" -> "capacitor_tolerance"), named
         # when the text carries one after its unit ("2.2 nF 10 %").
         tolerance = f"{key}_tolerance"
-        tolerance_key = _join(prefix, tolerance) if tolerance in _SCHEMA_KEYS.get(prefix, ()) \
+        tolerance_key = join_key(prefix, tolerance) if tolerance in SCHEMA_KEYS.get(prefix, ()) \
             else None
         try:
             value = parse_quantity(table[key], unit, key=dotted, tolerance_key=tolerance_key)
@@ -118,13 +114,13 @@ class _Reader:
         above = value >= high if high_open else value > high
         if below or above:
             interval = f"{'(' if low_open else '['}{low:g}, {high:g}{')' if high_open else ']'}"
-            raise self.error(_join(prefix, key), f"must lie in {interval}, got {table.get(key)!r}")
+            raise self.error(join_key(prefix, key), f"must lie in {interval}, got {table.get(key)!r}")
         return value
 
     def integer(self, table: Mapping[str, Any], key: str, prefix: str, *, default: int | None = None,
                 minimum: int = 1, maximum: int | None = None, cap: int | None = None) -> int:
         """A whole number in ``minimum..maximum``; ``cap`` is a limit of the tool, not the schema's."""
-        dotted = _join(prefix, key)
+        dotted = join_key(prefix, key)
         if key not in table:
             if default is None:
                 raise self.error(dotted, f"missing; give a whole number >= {minimum}")
@@ -142,7 +138,7 @@ class _Reader:
 
     def text(self, table: Mapping[str, Any], key: str, prefix: str, *, default: str | None = None,
              choices: tuple[str, ...] | None = None) -> str | None:
-        dotted = _join(prefix, key)
+        dotted = join_key(prefix, key)
         if key not in table:
             return default
         value = table[key]
@@ -154,13 +150,13 @@ class _Reader:
         return value
 
     def spread(self, raw: Any, parameter: str, prefix: str) -> Spread:
-        dotted = _join(prefix, parameter)
+        dotted = join_key(prefix, parameter)
         unit = _SPREAD_UNITS[parameter]
         if not isinstance(raw, Mapping):
             value = self.quantity({parameter: raw}, parameter, unit, prefix, positive=True)
             assert value is not None
             return Spread(typ=value)
-        self.check_keys(raw, _SCHEMA_KEYS["spread"], dotted)
+        self.check_keys(raw, SCHEMA_KEYS["spread"], dotted)
         lognormal = parameter in LOGNORMAL_PARAMETERS
         values = {}
         for bound in ("min", "typ", "max"):
@@ -197,7 +193,7 @@ class _Reader:
         return Spread(typ=typ, low=low, high=high, typ_assumed=typ_assumed, **conditions)
 
 
-def _join(prefix: str, key: str) -> str:
+def join_key(prefix: str, key: str) -> str:
     return f"{prefix}.{key}" if prefix else key
 
 

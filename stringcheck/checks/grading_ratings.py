@@ -12,11 +12,11 @@ from typing import Mapping
 
 import numpy as np
 
-from ..design import Design
-from ..limits import exceeds_limit
-from ..physics.grading import discharge_time, resistor_power, stored_energy
-from ..physics.leakage import leakage_current
-from ..quantity import format_quantity as _q
+from stringcheck.design.model import Design
+from stringcheck.limits import exceeds_limit
+from stringcheck.physics.grading import discharge_time, resistor_power, stored_energy
+from stringcheck.physics.leakage import leakage_current
+from stringcheck.units import format_quantity as _q
 
 # Grading current below this multiple of the hottest maximum leakage draws an advisory (common
 # practice: "several times" the leakage; 5x is our threshold for saying so).

@@ -17,15 +17,16 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..design import Design
-from ..sampling import DrawnStrings, spread_quantile
-from ..physics.charge_control_fit import (
+from stringcheck.design.model import Design
+from stringcheck.montecarlo.sampling import DrawnStrings
+from stringcheck.montecarlo.quantile_maps import spread_quantile
+from stringcheck.physics.charge_control_fit import (
     fit_charge_control,
     peak_current_from_recovery_time,
     rescale_recovery_charge,
 )
-from ..physics.forward import peak_factor
-from .mixed_stock import device_part_grid
+from stringcheck.physics.forward import peak_factor
+from stringcheck.montecarlo.mixed_stock import device_part_grid
 
 _GRID_POINTS = 513
 _LATENT_SPAN = 9.0

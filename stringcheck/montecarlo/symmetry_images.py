@@ -1,4 +1,4 @@
-"""The images of a failure point under a string's symmetries (``studies.rare_events``).
+"""The images of a failure point under a string's symmetries (``montecarlo.importance``).
 
 Devices in series share one current and parallel branches one voltage, whatever their order: a
 permutation of the positions within a branch, or of whole branches, that maps every position onto
@@ -16,7 +16,7 @@ from typing import Callable
 
 import numpy as np
 
-from ..design import Design
+from stringcheck.design.model import Design
 
 MAX_IMAGES = 1024  # rearrangements of the failure point used as shifts, at most
 _CLUSTER_TOLERANCE = 0.05  # latent units: positions whose coordinates agree this well count as one

@@ -21,7 +21,7 @@ import typer
 from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 
-from .errors import ImpossibleDesignError, StringcheckError
+from stringcheck.errors import ImpossibleDesignError, StringcheckError
 
 EXIT_PASS, EXIT_FAIL, EXIT_INPUT, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
 EXIT_BROKEN_PIPE = 141  # 128 + SIGPIPE, what a shell reports for a writer whose reader left
@@ -61,7 +61,7 @@ _WORKERS = typer.Option(1, "--workers", help="Processes to run the trials in (th
 
 
 def _console(stderr: bool = False, *, wrap: bool = True) -> Console:
-    from .report.display_text import report_console
+    from stringcheck.report.display_text import report_console
 
     return report_console(stderr=stderr, soft_wrap=not wrap)
 
@@ -189,7 +189,7 @@ def _one_line(error: BaseException) -> str:
     shown as '?'."""
     from rich.markup import escape
 
-    from .report.display_text import shown
+    from stringcheck.report.display_text import shown
 
     return escape(shown(" ".join(str(error).split())))
 
@@ -250,16 +250,16 @@ def _read_files(design, path: Path, what: str = "the design file") -> list[tuple
 
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
            transient=None, drivers=False, rare=None, source_label=None) -> int:
-    from .design import load_design
-    from .report.export import (
+    from stringcheck.design.reading import load_design
+    from stringcheck.report.export import (
         atomic_outputs,
         check_output_targets,
         json_text,
         positions_csv,
         result_to_dict,
     )
-    from .report.terminal import render_check, render_check_summary
-    from .studies.check import run_check
+    from stringcheck.report.terminal import render_check, render_check_summary
+    from stringcheck.studies.check import run_check
 
     design = load_design(path)
     check_output_targets({"--json": json_path, "--csv": csv_path},
@@ -318,10 +318,15 @@ def _transient_options(transient: bool, worst: int, sample: Optional[int]) -> di
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,
           find_series, workers=1, transient=False) -> int:
-    from .design import load_design
-    from .report.export import atomic_outputs, check_output_targets, json_text, sizing_to_dict
-    from .report.terminal import render_check_summary, render_sizing
-    from .studies.size import size as run_size
+    from stringcheck.design.reading import load_design
+    from stringcheck.report.export import (
+        atomic_outputs,
+        check_output_targets,
+        json_text,
+        sizing_to_dict,
+    )
+    from stringcheck.report.terminal import render_check_summary, render_sizing
+    from stringcheck.studies.size import size as run_size
 
     design = load_design(path)
     check_output_targets({"--json": json_path}, inputs=_read_files(design, path))
@@ -386,10 +391,10 @@ def size(
 
 def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trials, seed,
             json_path, quiet, workers, transient, drivers=False, rare=None) -> int:
-    from .design import load_design
-    from .report.export import atomic_outputs, check_output_targets, json_text
-    from .report.review import render_review, render_review_summary, review_to_dict
-    from .studies.review import mixed, parse_mix, parse_swap, review, swapped
+    from stringcheck.design.reading import load_design
+    from stringcheck.report.export import atomic_outputs, check_output_targets, json_text
+    from stringcheck.report.review import render_review, render_review_summary, review_to_dict
+    from stringcheck.studies.review import mixed, parse_mix, parse_swap, review, swapped
 
     baseline = load_design(base_path)
     read = _read_files(baseline, base_path, "the baseline design file")
@@ -469,11 +474,11 @@ def review(
 
 
 def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height) -> int:
-    from .design import load_design
-    from .report.display_text import shown
-    from .report.export import atomic_outputs, check_output_targets
-    from .report.waveform import waveform_csv, waveform_plot
-    from .studies.transient_check import trial_trace
+    from stringcheck.design.reading import load_design
+    from stringcheck.report.display_text import shown
+    from stringcheck.report.export import atomic_outputs, check_output_targets
+    from stringcheck.report.waveform import waveform_csv, waveform_plot
+    from stringcheck.checks.transient import trial_trace
 
     design = load_design(path)
     check_output_targets({"--csv": csv_path}, inputs=_read_files(design, path))
@@ -550,8 +555,8 @@ def new(
 ) -> None:
     """Write a commented starter design file to edit."""
     def action() -> int:
-        from .report.export import write_text_atomic
-        from .report.starter import starter_design
+        from stringcheck.report.export import write_text_atomic
+        from stringcheck.report.starter import starter_design
 
         if str(file) == "-":  # the starter on standard output, and nothing else there
             write_text_atomic("-", starter_design())
@@ -583,7 +588,7 @@ def main() -> None:
     except usage_error as error:
         if type(error).__name__ == "NoArgsIsHelpError":  # bare `stringcheck`: help was shown
             sys.exit(EXIT_INPUT)
-        from .report.display_text import shown
+        from stringcheck.report.display_text import shown
 
         where = error.ctx.command_path if error.ctx is not None else "stringcheck"
         print(f"error: {shown(' '.join(error.format_message().split()))} (see '{where} --help')",

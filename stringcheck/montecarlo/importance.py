@@ -37,7 +37,7 @@ g(u) = worst stress ratio > 1.
 3. Exchangeable positions (same part, same temperature rise, no measured device placed by serial)
    and identical parallel branches each have their own, equally likely failure point: the images
    u_1 = u*, ..., u_M of u* are its orbit, every distinct rearrangement of its per-position
-   coordinates within branches and of whole branches (``studies.failure_orbits``). Shifting to
+   coordinates within branches and of whole branches (``montecarlo.symmetry_images``). Shifting to
    u* alone, or to part of the orbit, would almost never sample the rest and estimate a fraction
    of P(fail) with a small standard error. The samples come from the defensive mixture
    q(u) = a phi(u) + (1 - a) sum_i s_i phi(u - u_i), a = 1/2 (T. Hesterberg, "Weighted average
@@ -67,16 +67,21 @@ from typing import Callable
 import numpy as np
 from scipy import optimize, special, stats
 
-from ..design import SPREAD_PARAMETERS, Design
-from ..errors import DesignError
-from ..limits import exceeds_limit, within_limit
-from ..sampling import DrawnStrings, Latent, latent_parameters, strings_from_latent
-from ..stats import FailureEstimate, failure_estimate
-from .failure_orbits import MAX_IMAGES, failure_point_orbit
+from stringcheck.design.model import SPREAD_PARAMETERS, Design
+from stringcheck.errors import DesignError
+from stringcheck.limits import exceeds_limit, within_limit
+from stringcheck.montecarlo.sampling import (
+    DrawnStrings,
+    Latent,
+    latent_parameters,
+    strings_from_latent,
+)
+from stringcheck.montecarlo.estimates import FailureEstimate, failure_estimate
+from stringcheck.montecarlo.symmetry_images import MAX_IMAGES, failure_point_orbit
 
 DEFAULT_SAMPLES = 20_000
 _MIXTURE_WEIGHT = 0.5
-_STREAM = 7002  # our own stream, apart from every stream of sampling.py and the transient sample
+_STREAM = 7002  # our own stream, apart from every stream of montecarlo/sampling.py and the transient sample
 _STEP = 1e-4  # finite-difference step in latent units
 _RAY_LIMIT = 12.0  # |u| beyond which failure is not looked for (Phi(-12) ~ 2e-33)
 _BATCH = 4096

@@ -1,0 +1,5 @@
+"""The ``stringcheck`` command line (commands in :mod:`stringcheck.cli.app`)."""
+
+from stringcheck.cli.app import main
+
+__all__ = ["main"]
