@@ -291,3 +291,23 @@ def test_merged_blocks_agree_with_numpy_for_any_split(sizes, centre, scale, seed
     assert moments.count == total
     assert moments.mean == pytest.approx(values.mean(), rel=1e-12, abs=1e-12 * scale)
     assert moments.variance(ddof=1) == pytest.approx(values.var(ddof=1), rel=1e-7)
+
+
+@given(sizes=st.lists(st.integers(0, 40), min_size=1, max_size=23),
+       centre=st.floats(-1e6, 1e6), scale=st.floats(1e-9, 1e3), seed=st.integers(0, 2 ** 32 - 1))
+def test_merging_rows_of_blocks_is_merge_moments_bit_for_bit(sizes, centre, scale, seed):
+    # The vectorized merge (accumulators fold a block's 64 units with it) must build the same
+    # pairwise tree with the same element-wise formula as merge_moments, empty blocks included:
+    # compared for exact equality, not within a tolerance.
+    rng = np.random.default_rng(seed)
+    values = centre + scale * rng.standard_normal((sum(sizes), 3))
+    edges = np.cumsum([0] + sizes)
+    parts = [stats.block_moments(values[a:b]) for a, b in zip(edges[:-1], edges[1:])]
+    expected = stats.merge_moments(parts)
+    rows = stats.merge_moment_rows(np.array([part.count for part in parts]),
+                                   np.stack([part.reference for part in parts]),
+                                   np.stack([part.offset for part in parts]),
+                                   np.stack([part.squares for part in parts]))
+    assert rows.count == expected.count
+    for name in ("reference", "offset", "squares"):
+        assert np.array_equal(getattr(rows, name), getattr(expected, name)), name

@@ -25,7 +25,7 @@ import numpy as np
 
 from stringcheck.limits import exceeds_limit
 from stringcheck.montecarlo.sampling import BLOCK_TRIALS, SUM_TRIALS
-from stringcheck.montecarlo.estimates import Moments, merge_moments
+from stringcheck.montecarlo.estimates import Moments, merge_moment_rows, merge_moments
 
 _UNITS_PER_BLOCK = BLOCK_TRIALS // SUM_TRIALS
 
@@ -99,45 +99,84 @@ class BlockSums:
         return self.done + ([] if self.open_units is None else [self._open_sum()])
 
 
-def unit_moments(values: np.ndarray, solved: np.ndarray) -> list[Moments]:
+@dataclass(eq=False)
+class UnitMoments:
+    """The moments of consecutive ``SUM_TRIALS``-trial units as rows: ``count`` (units,) [1],
+    ``reference``, ``offset``, ``squares`` (units, ...) as the fields of
+    :class:`~stringcheck.montecarlo.estimates.Moments`."""
+
+    count: np.ndarray
+    reference: np.ndarray
+    offset: np.ndarray
+    squares: np.ndarray
+
+    def rows(self, start: int, stop: int) -> "UnitMoments":
+        """Units ``start``..``stop - 1`` of these."""
+        return UnitMoments(self.count[start:stop], self.reference[start:stop],
+                           self.offset[start:stop], self.squares[start:stop])
+
+    @staticmethod
+    def join(parts: list) -> "UnitMoments":
+        """The units of ``parts`` one after another."""
+        return UnitMoments(*(np.concatenate([getattr(part, name) for part in parts])
+                             for name in ("count", "reference", "offset", "squares")))
+
+    def merged(self) -> Moments:
+        """The moments of all these units together, merged pairwise in unit order."""
+        return merge_moment_rows(self.count, self.reference, self.offset, self.squares)
+
+
+def unit_moments(values: np.ndarray, solved: np.ndarray) -> UnitMoments:
     """The moments of each ``SUM_TRIALS`` rows of ``values`` (rows, ...) over their solved rows
-    (``solved``, (rows,) bool), one :class:`~stringcheck.montecarlo.estimates.Moments` per unit; a short last unit
-    holds the rows there are.
+    (``solved``, (rows,) bool); a short last unit holds the rows there are.
 
     Notes
     -----
-    The shifted-data algorithm of ``stats.block_moments`` (Chan, Golub and LeVeque, The American
-    Statistician 37(3), 1983, section 3), shifted by each unit's first solved row and vectorized
-    over the units; a unit with no solved row has count 0.
+    The shifted-data algorithm of ``estimates.block_moments`` (Chan, Golub and LeVeque, The
+    American Statistician 37(3), 1983, section 3), shifted by each unit's first solved row and
+    vectorized over the units; a unit with no solved row has count 0. Each unit's figures depend
+    only on its own rows.
     """
     rows = values.shape[0]
-    units = -(-rows // SUM_TRIALS)
-    if units == 0:
-        return []
-    padded = units * SUM_TRIALS
-    if padded != rows:
-        grown = np.zeros((padded,) + values.shape[1:])
-        grown[:rows] = values
-        mask = np.zeros(padded, dtype=bool)
-        mask[:rows] = solved
-        values, solved = grown, mask
+    whole = rows // SUM_TRIALS
+    parts = []
+    if whole:
+        parts.append(_unit_rows(values[:whole * SUM_TRIALS], solved[:whole * SUM_TRIALS]))
+    if whole * SUM_TRIALS < rows:
+        tail = np.zeros((SUM_TRIALS,) + values.shape[1:])
+        tail[:rows - whole * SUM_TRIALS] = values[whole * SUM_TRIALS:]
+        mask = np.zeros(SUM_TRIALS, dtype=bool)
+        mask[:rows - whole * SUM_TRIALS] = solved[whole * SUM_TRIALS:]
+        parts.append(_unit_rows(tail, mask))
+    if not parts:
+        empty = np.zeros((0,) + values.shape[1:])
+        return UnitMoments(np.zeros(0, dtype=np.int64), empty, empty, empty)
+    return parts[0] if len(parts) == 1 else UnitMoments.join(parts)
+
+
+def _unit_rows(values: np.ndarray, solved: np.ndarray) -> UnitMoments:
+    """:func:`unit_moments` of whole units."""
+    units = values.shape[0] // SUM_TRIALS
+    extra = (1,) * (values.ndim - 1)
     grouped = values.reshape((units, SUM_TRIALS) + values.shape[1:])
     mask = solved.reshape(units, SUM_TRIALS)
-    counts = np.count_nonzero(mask, axis=1)
-    shift = grouped[np.arange(units), np.argmax(mask, axis=1)]
-    shift[counts == 0] = 0.0
-    keep = mask.reshape(mask.shape + (1,) * (values.ndim - 1))
-    deviation = np.where(keep, grouped - shift[:, None], 0.0)
+    if mask.all():
+        counts = np.full(units, SUM_TRIALS, dtype=np.int64)
+        shift = grouped[:, 0].copy()
+        deviation = grouped - shift[:, None]
+    else:
+        counts = np.count_nonzero(mask, axis=1).astype(np.int64)
+        shift = grouped[np.arange(units), np.argmax(mask, axis=1)]
+        shift[counts == 0] = 0.0
+        keep = mask.reshape(mask.shape + extra)
+        deviation = np.where(keep, grouped - shift[:, None], 0.0)
     total = _group_sums(deviation)
     squares = _group_sums(np.square(deviation, out=deviation))
-    extra = (1,) * (values.ndim - 1)
     with np.errstate(invalid="ignore", divide="ignore"):
         offset = np.where(counts.reshape((units,) + extra) > 0,
                           total / np.maximum(counts, 1).reshape((units,) + extra), 0.0)
     # S = sum d^2 - (sum d)^2 / n >= 0; rounding may leave a few ulps below zero.
-    spread = np.maximum(squares - total * offset, 0.0)
-    return [Moments(count=int(counts[u]), reference=shift[u], offset=offset[u], squares=spread[u])
-            for u in range(units)]
+    return UnitMoments(counts, shift, offset, np.maximum(squares - total * offset, 0.0))
 
 
 @dataclass
@@ -151,25 +190,28 @@ class BlockMoments:
     open_units: list = field(default_factory=list)
     open_block: int = -1
 
-    def add(self, units: list, first_unit: int) -> None:
+    def add(self, units: UnitMoments, first_unit: int) -> None:
         """Take ``units``, the moments of units ``first_unit``.. of the run, in order."""
-        for unit, moments in enumerate(units, start=first_unit):
-            block, place = divmod(unit, _UNITS_PER_BLOCK)
+        start, total = 0, units.count.shape[0]
+        while start < total:
+            block, place = divmod(first_unit + start, _UNITS_PER_BLOCK)
             if block != self.open_block:
                 self._close()
                 self.open_block = block
-            self.open_units.append(moments)
-            if place == _UNITS_PER_BLOCK - 1:
+            take = min(_UNITS_PER_BLOCK - place, total - start)
+            self.open_units.append(units.rows(start, start + take))
+            start += take
+            if place + take == _UNITS_PER_BLOCK:
                 self._close()
 
     def _close(self) -> None:
         if self.open_units:
-            self.done.append(merge_moments(self.open_units))
+            self.done.append(UnitMoments.join(self.open_units).merged())
         self.open_units, self.open_block = [], -1
 
     def blocks(self) -> list:
         """The block moments so far in block order, the open block's last."""
-        return self.done + ([merge_moments(self.open_units)] if self.open_units else [])
+        return self.done + ([UnitMoments.join(self.open_units).merged()] if self.open_units else [])
 
 
 @dataclass

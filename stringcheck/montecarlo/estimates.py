@@ -30,6 +30,7 @@ __all__ = [
     "FailureEstimate",
     "Moments",
     "block_moments",
+    "merge_moment_rows",
     "clopper_pearson",
     "failure_estimate",
     "histogram_counts",
@@ -480,3 +481,56 @@ def _merge_pair(first: Moments, second: Moments) -> Moments:
     offset = first.offset + delta * weight
     squares = first.squares + second.squares + delta * delta * (first.count * weight)
     return Moments(count=count, reference=first.reference, offset=offset, squares=squares)
+
+
+def merge_moment_rows(count: NDArray[np.int64], reference: NDArray[np.float64],
+                      offset: NDArray[np.float64], squares: NDArray[np.float64]) -> Moments:
+    """The moments of the union of disjoint blocks given as rows of arrays (row k: block k),
+    merged pairwise in row order: :func:`merge_moments` vectorized over the blocks.
+
+    Parameters
+    ----------
+    count
+        Rows of each block [1], shape (blocks,), at least one block.
+    reference, offset, squares
+        As the fields of :class:`Moments`, shape (blocks, ...) [unit of the values, squared for
+        ``squares``].
+
+    Returns
+    -------
+    Moments
+        Bit for bit what :func:`merge_moments` gives for the same blocks in the same order: the
+        same pairwise tree, level by level, and the same element-wise formula (Chan, Golub and
+        LeVeque, Stanford report STAN-CS-79-773, 1979), with a block of no rows left out of its
+        pair.
+    """
+    count = np.asarray(count, dtype=np.int64)
+    if count.shape[0] == 0:
+        raise ValueError("merge_moment_rows needs at least one block")
+    while count.shape[0] > 1:
+        pairs = count.shape[0] // 2
+        a, b = slice(0, 2 * pairs, 2), slice(1, 2 * pairs, 2)
+        n_a, n_b = count[a], count[b]
+        total = n_a + n_b
+        extra = (1,) * (reference.ndim - 1)
+        first_empty = (n_a == 0).reshape((pairs,) + extra)
+        second_empty = (n_b == 0).reshape((pairs,) + extra)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            weight = (n_b / total).reshape((pairs,) + extra)
+            delta = (reference[b] - reference[a]) + (offset[b] - offset[a])
+            merged_offset = offset[a] + delta * weight
+            merged_squares = squares[a] + squares[b] \
+                + delta * delta * (n_a.reshape((pairs,) + extra) * weight)
+        new_reference = np.where(first_empty, reference[b], reference[a])
+        new_offset = np.where(second_empty, offset[a], np.where(first_empty, offset[b],
+                                                                 merged_offset))
+        new_squares = np.where(second_empty, squares[a], np.where(first_empty, squares[b],
+                                                                   merged_squares))
+        if count.shape[0] % 2:
+            total = np.concatenate([total, count[-1:]])
+            new_reference = np.concatenate([new_reference, reference[-1:]])
+            new_offset = np.concatenate([new_offset, offset[-1:]])
+            new_squares = np.concatenate([new_squares, squares[-1:]])
+        count, reference, offset, squares = total, new_reference, new_offset, new_squares
+    return Moments(count=int(count[0]), reference=reference[0], offset=offset[0],
+                   squares=squares[0])
