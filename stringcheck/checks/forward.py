@@ -22,6 +22,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from stringcheck import eseries
+from stringcheck.constants import DATASHEET_TEMPERATURE
 from stringcheck.design.model import Design
 from stringcheck.errors import DesignError, SizingError
 from stringcheck.limits import exceeds_limit, within_limit
@@ -279,7 +280,7 @@ def _part_constants(values) -> dict[str, np.ndarray]:
 
 
 def _reference(temperature: float | None) -> float:
-    return 25.0 if temperature is None else temperature
+    return DATASHEET_TEMPERATURE if temperature is None else temperature
 
 
 def forward_parameters(design: Design) -> tuple[str, ...]:

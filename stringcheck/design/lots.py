@@ -28,9 +28,9 @@ from pathlib import Path
 import numpy as np
 from scipy import special, stats
 
-from stringcheck.design.model import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Spread
+from stringcheck.design.model import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, SPREAD_UNITS, Spread
 from stringcheck.errors import DesignError, QuantityError, excerpt
-from stringcheck.units import AMPERE, COULOMB, OHM, SECOND, VOLT, parse_quantity
+from stringcheck.units import parse_quantity
 
 FITS = ("resample", "lognormal", "normal", "auto")
 # A fit from fewer devices than this says more about the fit than about the lot.
@@ -40,7 +40,6 @@ MAX_LOT_BYTES = 64 * 1024 * 1024
 SERIAL_COLUMN = "serial"
 # A normal fit of a quantity that cannot be negative may put at most this fraction below zero.
 _NEGATIVE_TOLERANCE = 1e-6
-_UNITS = {"i_r": AMPERE, "q_rr": COULOMB, "i_rm": AMPERE, "t_rr": SECOND, "v_t0": VOLT, "r_t": OHM}
 _HEADER = re.compile(r"^\s*([^\[\]]*?)\s*(?:\[\s*([^\[\]]*?)\s*\])?\s*$")
 
 
@@ -398,7 +397,7 @@ def _header(columns, source: str, where: str) -> tuple[list[str], list, str | No
                                   "column", source=source)
             serial = text
             continue
-        if name not in _UNITS:
+        if name not in SPREAD_UNITS:
             valid = (SERIAL_COLUMN,) + SPREAD_PARAMETERS
             close = difflib.get_close_matches(name, valid, n=1, cutoff=0.6)
             hint = f"did you mean '{close[0]}'?" if close else "valid columns: " + ", ".join(valid)
@@ -408,7 +407,7 @@ def _header(columns, source: str, where: str) -> tuple[list[str], list, str | No
         if name in parameters:
             raise DesignError(f"column {number} {excerpt(text)} repeats {name} {where}; keep one "
                               "column per parameter", source=source)
-        expected = _UNITS[name]
+        expected = SPREAD_UNITS[name]
         if not unit_text:
             raise DesignError(f"column {number} {excerpt(text)} has no unit {where}; write the "
                               f"unit in brackets, e.g. '{name} [{_example_unit(name)}]'",

@@ -15,8 +15,8 @@ from typing import Mapping
 
 import numpy as np
 
-WAVEFORMS = ("dc", "half-sine", "square")
-HEATSINKS = ("shared", "separate")
+from stringcheck.units import AMPERE, COULOMB, OHM, SECOND, VOLT, Unit
+
 DEFAULT_DERATING = 0.8
 DEFAULT_AMBIENT = 25.0
 DEFAULT_TRIALS = 20_000
@@ -36,12 +36,12 @@ MAX_FILE_BYTES = 4 * 1024 * 1024
 # Leakage referred over more doublings than this (a factor 2^200 ~ 1e60) is a slip in a temperature
 # or in leakage_doubling, and would overflow the leakage arithmetic of the static check.
 MAX_LEAKAGE_DOUBLINGS = 200
-# The grading resistor's TCR is specified from this temperature [degC] (common practice); the same
-# value as stringcheck.studies.check.RESISTOR_TCR_REFERENCE (a test holds them equal).
-RESISTOR_TCR_REFERENCE = 25.0
 LOGNORMAL_PARAMETERS = ("i_r", "q_rr", "i_rm", "t_rr")
 NORMAL_PARAMETERS = ("v_t0", "r_t")
 SPREAD_PARAMETERS = LOGNORMAL_PARAMETERS + NORMAL_PARAMETERS
+# The SI unit of each spread parameter: of its design-file row, its lot-file column and its report.
+SPREAD_UNITS: dict[str, Unit] = {"i_r": AMPERE, "q_rr": COULOMB, "i_rm": AMPERE, "t_rr": SECOND,
+                                 "v_t0": VOLT, "r_t": OHM}
 
 # When a datasheet gives only a maximum, the median ("typ") is taken as this fraction of it. These are
 # our documented assumptions, listed in every report that uses them: leakage limits commonly sit about

@@ -11,8 +11,9 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from stringcheck.constants import DATASHEET_TEMPERATURE
 from stringcheck.design import device_classes as presets
-from stringcheck.design.model import DEFAULT_AMBIENT, SPREAD_PARAMETERS, Design, Part, Spread
+from stringcheck.design.model import SPREAD_PARAMETERS, Design, Part, Spread
 from stringcheck.units import (
     AMPERE,
     CELSIUS,
@@ -149,8 +150,9 @@ def _leakage_conditions(reader: Reader, spread: Spread | None, v_rrm: float,
         reader.assumptions.append(f"{prefix}.i_r: at_voltage not given, taken at V_RRM "
                                   f"({v_rrm:g} V)")
     if spread.at_temperature is None:
-        changes["at_temperature"] = DEFAULT_AMBIENT
-        reader.assumptions.append(f"{prefix}.i_r: at_temperature not given, taken at 25 degC")
+        changes["at_temperature"] = DATASHEET_TEMPERATURE
+        reader.assumptions.append(f"{prefix}.i_r: at_temperature not given, taken at "
+                                  f"{DATASHEET_TEMPERATURE:g} degC")
     return replace(spread, **changes) if changes else spread
 
 

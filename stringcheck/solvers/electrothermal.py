@@ -71,6 +71,7 @@ from dataclasses import dataclass, fields, replace
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from stringcheck.constants import HEATSINKS
 from stringcheck.errors import StringcheckError
 from stringcheck.limits import exceeds_limit
 from stringcheck.physics.forward import (
@@ -81,7 +82,7 @@ from stringcheck.physics.forward import (
     slope_resistance,
     threshold_voltage,
 )
-from stringcheck.physics.thermal import HEATSINKS, junction_temperature
+from stringcheck.physics.thermal import junction_temperature
 from stringcheck.solvers.parallel import phase_rule, split_current
 
 __all__ = [

@@ -15,6 +15,7 @@ from typing import Callable, Mapping
 
 import numpy as np
 
+from stringcheck.constants import RESISTOR_TCR_REFERENCE
 from stringcheck.design.model import Design, Part
 from stringcheck.errors import DesignError
 from stringcheck.limits import within_limit
@@ -63,7 +64,6 @@ from stringcheck.montecarlo.importance import (
     rare_event_estimate,
 )
 from stringcheck.checks.preconditions import (
-    RESISTOR_TCR_REFERENCE,
     dynamic_check_reason,
     impossibility,
     model_assumptions,
