@@ -109,8 +109,8 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
                 value = float(leakage_current(maximum, spread.at_voltage, temperature[branch, index],
                                               reference_voltage=spread.at_voltage,
                                               reference_temperature=spread.at_temperature,
-                                              doubling_temperature=part.leakage_doubling,
-                                              voltage_exponent=part.leakage_voltage_exponent))
+                                              doubling_temperature=part.doubling_temperature,
+                                              voltage_exponent=part.voltage_exponent))
                 hottest_leakage = max(hottest_leakage, value)
     if grading_current is not None and grading_current < GRADING_CURRENT_MULTIPLE * hottest_leakage:
         advisories.append(

@@ -100,8 +100,8 @@ class Part:
     r_th_jc: float | None
     r_th_cs: float | None
     t_j_max: float | None
-    leakage_doubling: float
-    leakage_voltage_exponent: float
+    doubling_temperature: float  # design-file key leakage_doubling
+    voltage_exponent: float  # design-file key leakage_voltage_exponent
     tempco_v_t0: float
     tempco_r_t: float
     device_class: str | None = None

@@ -88,6 +88,9 @@ def read_parts(reader: Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
                    if parameter in merged else None for parameter in SPREAD_PARAMETERS}
         lot = _read_lot(reader, table, spreads, prefix)
         spreads["i_r"] = _leakage_conditions(reader, spreads["i_r"], scalars["v_rrm"], prefix)
+        # The model names the quantities as the physics does (the file keys carry "leakage_").
+        scalars["doubling_temperature"] = scalars.pop("leakage_doubling")
+        scalars["voltage_exponent"] = scalars.pop("leakage_voltage_exponent")
         parts[name] = Part(name=name, device_class=device_class, measured=lot, **scalars,
                            **spreads)
     return parts

@@ -406,7 +406,7 @@ def _cross_check(reader: Reader, design: Design) -> None:
         reference = part.i_r.at_temperature if part.i_r.at_temperature is not None else \
             DATASHEET_TEMPERATURE
         farthest = float(temperatures[np.argmax(np.abs(temperatures - reference))])
-        doublings = abs(farthest - reference) / part.leakage_doubling
+        doublings = abs(farthest - reference) / part.doubling_temperature
         if doublings > MAX_LEAKAGE_DOUBLINGS:
             raise reader.error(f"parts.{name}.leakage_doubling",
                                f"referring the leakage from {reference:g} degC to "

@@ -196,7 +196,7 @@ def _check_substitute(design: Design, name: str, option: str, rise) -> None:
                                "another part or lower duty.ambient")
     temperatures = design.duty.ambient + np.asarray(rise, dtype=float)
     doublings = float(np.max(np.abs(temperatures - part.i_r.at_temperature))) / \
-        part.leakage_doubling
+        part.doubling_temperature
     if doublings > MAX_LEAKAGE_DOUBLINGS:
         raise StringcheckError(f"{option}: referring part {name!r}'s leakage from its "
                                f"i_r.at_temperature takes {doublings:.3g} doublings, more than "
