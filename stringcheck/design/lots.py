@@ -9,7 +9,7 @@ then takes each device of that part from the lot, either
   the measured correlations between a device's parameters are kept exactly, and no device stands in
   two positions of one string; or
 * ``fit = "lognormal"``, ``"normal"`` or ``"auto"`` (lognormal for leakage and recovery parameters,
-  normal for V_T0 and r_T, as DESIGN.md section 4): each column fitted by maximum likelihood
+  normal for V_T0 and r_T, as docs/methods/monte-carlo.md): each column fitted by maximum likelihood
   (scipy.stats), joined by a Gaussian copula whose correlation is that of the lot's fitted normal
   scores, so correlations are kept there too.
 
@@ -364,8 +364,9 @@ def _read_table(path: Path, source: str, where: str, *, design_source: str, key:
 
 def _recovery_columns(parameters: tuple[str, ...], values: np.ndarray, source: str, where: str):
     """A lot that measured I_RM and t_rr but not Q_rr gets Q_rr = 1/2 I_RM t_rr per device (the
-    triangular recovery of DESIGN.md section 4); I_RM or t_rr alone is refused, and beside a
-    measured Q_rr they are kept for the report only. Returns (parameters, values, notes)."""
+    triangular recovery of :func:`stringcheck.physics.recovery.recovery_charge`); I_RM or t_rr
+    alone is refused, and beside a measured Q_rr they are kept for the report only. Returns
+    (parameters, values, notes)."""
     has = set(parameters)
     if not has & {"i_rm", "t_rr"}:
         return parameters, values, ()

@@ -1,6 +1,6 @@
 """The design file schema: validated, frozen dataclasses (read from TOML by design/reading.py).
 
-The schema is DESIGN.md section 3. Every error names the file, the dotted key and what would be valid;
+The schema is docs/design-file.md. Every error names the file, the dotted key and what would be valid;
 unknown keys are errors with the nearest valid key suggested. Values are converted to SI floats
 (temperatures in [degC], temperature differences in [K]) by :mod:`stringcheck.units`.
 

@@ -1,4 +1,4 @@
-"""High-voltage safety cautions shown with every report (DESIGN.md section 7).
+"""High-voltage safety cautions shown with every report (docs/safety.md).
 
 The text lives here only; the figures (stored energy, discharge time) come from the study's result.
 """
