@@ -438,6 +438,12 @@ def example(unit: Unit) -> str:
     return _EXAMPLES.get(unit.label, unit.label)
 
 
+# The SI prefixes of whole powers of 10^3 from tera to femto, largest first, "u" for micro (SI
+# Brochure, 9th ed., 2019, chapter 3).
+ENGINEERING_PREFIXES = ((1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"),
+                        (1e-6, "u"), (1e-9, "n"), (1e-12, "p"), (1e-15, "f"))
+
+
 def format_quantity(value: float, unit_label: str, *, digits: int = 3) -> str:
     """Format ``value`` [SI] with an engineering prefix, e.g. ``format_quantity(4.7e6, "ohm")``.
 
@@ -451,10 +457,8 @@ def format_quantity(value: float, unit_label: str, *, digits: int = 3) -> str:
         return f"{value:.{digits}g} {'' if unit_label == '1' else unit_label}".strip()
     if value == 0:
         return f"0 {unit_label}"
-    prefixes = ((1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"),
-                (1e-6, "u"), (1e-9, "n"), (1e-12, "p"), (1e-15, "f"))
     magnitude = abs(value)
-    for scale, prefix in prefixes:
+    for scale, prefix in ENGINEERING_PREFIXES:
         if magnitude >= scale * 0.9995:
             break
     text = f"{value / scale:.{digits}g}"

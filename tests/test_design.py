@@ -185,8 +185,8 @@ def test_defaults_are_recorded_as_assumptions():
     part = design.parts["A"]
     # Defaults of the part (design/model.py _PART_DEFAULTS): 10 K doubling for silicon (common practice),
     # m = 0.5 for generation current in an abrupt junction (Sze, Physics of Semiconductor Devices).
-    assert part.leakage_doubling == 10.0
-    assert part.leakage_voltage_exponent == 0.5
+    assert part.doubling_temperature == 10.0
+    assert part.voltage_exponent == 0.5
     assert part.c_j == 0.0
 
 

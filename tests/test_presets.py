@@ -47,7 +47,7 @@ def test_every_class_alone_loads_as_a_valid_part(name):
     assert part.v_rrm > 0 and part.i_fav > 0
     assert part.i_r is not None and part.q_rr is not None
     assert part.t_j_max is not None and part.t_j_max > 25.0
-    assert 0.0 <= part.leakage_voltage_exponent <= 1.0
+    assert 0.0 <= part.voltage_exponent <= 1.0
     # Every spread of a class has scatter (a limit beyond typ) and typ <= max.
     for parameter in ("i_r", "q_rr", "i_rm", "t_rr", "v_t0", "r_t"):
         spread = part.spread(parameter)
@@ -128,7 +128,7 @@ def _leakage_density_at(part, temperature: float) -> float:
     doubling temperature: I_R(T) = I_R,ref 2^((T - T_ref) / T_d) (DESIGN.md section 4, "Leakage";
     doubling law common practice)."""
     spread = part.i_r
-    referred = spread.high * 2.0 ** ((temperature - spread.at_temperature) / part.leakage_doubling)
+    referred = spread.high * 2.0 ** ((temperature - spread.at_temperature) / part.doubling_temperature)
     return referred / part.i_fav
 
 
@@ -155,15 +155,15 @@ def test_sic_schottky_capacitive_charge_class(parts):
     assert sic.i_rm.typ < 0.1 * sic.i_fav
     assert sic.i_rm.high < 0.1 * sic.i_fav
     # SiC leakage doubles more slowly with temperature than silicon's ~10 K (common practice).
-    assert sic.leakage_doubling > parts["si-fast-recovery"].leakage_doubling
+    assert sic.doubling_temperature > parts["si-fast-recovery"].doubling_temperature
 
 
 def test_silicon_classes_use_the_silicon_leakage_law(parts):
     # DESIGN.md section 4: doubling every ~10 K for silicon (common practice); m = 0.5 for
     # generation current (Sze).
     for name in ("si-rectifier", "si-fast-recovery", "si-schottky"):
-        assert parts[name].leakage_doubling == 10.0
-        assert parts[name].leakage_voltage_exponent == 0.5
+        assert parts[name].doubling_temperature == 10.0
+        assert parts[name].voltage_exponent == 0.5
 
 
 def test_pn_silicon_threshold_falls_with_temperature(parts):

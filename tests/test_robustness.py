@@ -317,7 +317,7 @@ def test_branch_entry_wins_over_every_branch_entry_whatever_the_order():
 
 
 def test_the_tcr_reference_temperature_is_the_studys():
-    from stringcheck.design import model as design
+    from stringcheck import constants as design
 
     assert design.RESISTOR_TCR_REFERENCE == check_study.RESISTOR_TCR_REFERENCE
 

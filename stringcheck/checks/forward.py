@@ -22,6 +22,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from stringcheck import eseries
+from stringcheck.constants import DATASHEET_TEMPERATURE
 from stringcheck.design.model import Design
 from stringcheck.errors import DesignError, SizingError
 from stringcheck.limits import exceeds_limit, within_limit
@@ -160,8 +161,8 @@ class ForwardSetup:
     resistance_tempco: np.ndarray
     leakage_reference_voltage: np.ndarray
     leakage_reference_temperature: np.ndarray
-    leakage_doubling: np.ndarray
-    leakage_voltage_exponent: np.ndarray
+    doubling_temperature: np.ndarray
+    voltage_exponent: np.ndarray
     junction_to_sink: np.ndarray
     max_junction_temperature: np.ndarray
     rated_current: np.ndarray
@@ -270,8 +271,8 @@ def _part_constants(values) -> dict[str, np.ndarray]:
         resistance_tempco=values(lambda p: p.tempco_r_t),
         leakage_reference_voltage=values(lambda p: p.i_r.at_voltage),
         leakage_reference_temperature=values(lambda p: p.i_r.at_temperature),
-        leakage_doubling=values(lambda p: p.leakage_doubling),
-        leakage_voltage_exponent=values(lambda p: p.leakage_voltage_exponent),
+        doubling_temperature=values(lambda p: p.doubling_temperature),
+        voltage_exponent=values(lambda p: p.voltage_exponent),
         junction_to_sink=values(lambda p: limit_or_nan(p.r_th_jc) + (p.r_th_cs or 0.0)),
         max_junction_temperature=values(lambda p: limit_or_nan(p.t_j_max)),
         rated_current=values(lambda p: limit_or_nan(p.i_fav)),
@@ -279,7 +280,7 @@ def _part_constants(values) -> dict[str, np.ndarray]:
 
 
 def _reference(temperature: float | None) -> float:
-    return 25.0 if temperature is None else temperature
+    return DATASHEET_TEMPERATURE if temperature is None else temperature
 
 
 def forward_parameters(design: Design) -> tuple[str, ...]:
@@ -313,8 +314,8 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
             leakage_current=parameters["i_r"],
             leakage_reference_voltage=setup.leakage_reference_voltage,
             leakage_reference_temperature=setup.leakage_reference_temperature,
-            leakage_doubling=setup.leakage_doubling,
-            leakage_voltage_exponent=setup.leakage_voltage_exponent,
+            doubling_temperature=setup.doubling_temperature,
+            voltage_exponent=setup.voltage_exponent,
             recovery_charge=charge, junction_to_sink=setup.junction_to_sink,
             max_junction_temperature=setup.max_junction_temperature)
         operating = _duty(design)

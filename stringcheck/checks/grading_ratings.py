@@ -12,6 +12,7 @@ from typing import Mapping
 
 import numpy as np
 
+from stringcheck.constants import SAFE_DISCHARGE_TIME, SAFE_VOLTAGE
 from stringcheck.design.model import Design
 from stringcheck.limits import exceeds_limit
 from stringcheck.physics.grading import discharge_time, resistor_power, stored_energy
@@ -21,10 +22,6 @@ from stringcheck.units import format_quantity as _q
 # Grading current below this multiple of the hottest maximum leakage draws an advisory (common
 # practice: "several times" the leakage; 5x is our threshold for saying so).
 GRADING_CURRENT_MULTIPLE = 5.0
-# Residual-voltage criterion: below 60 V within 5 s of switching off (IEC 60204-1:2016 clause 6.2.4,
-# from memory).
-SAFE_VOLTAGE = 60.0
-SAFE_DISCHARGE_TIME = 5.0
 # The checks whose worst figure is a stage voltage [V]: every grading component across a stage
 # sees it (the transient check's is the simulated turn-off peak, overshoot included).
 STAGE_VOLTAGE_CHECKS = ("static", "dynamic", "transient")
@@ -112,8 +109,8 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
                 value = float(leakage_current(maximum, spread.at_voltage, temperature[branch, index],
                                               reference_voltage=spread.at_voltage,
                                               reference_temperature=spread.at_temperature,
-                                              doubling_temperature=part.leakage_doubling,
-                                              voltage_exponent=part.leakage_voltage_exponent))
+                                              doubling_temperature=part.doubling_temperature,
+                                              voltage_exponent=part.voltage_exponent))
                 hottest_leakage = max(hottest_leakage, value)
     if grading_current is not None and grading_current < GRADING_CURRENT_MULTIPLE * hottest_leakage:
         advisories.append(

@@ -15,7 +15,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from stringcheck.design.model import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Design
+from stringcheck.design.model import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, SPREAD_UNITS, Design
 from stringcheck.units import format_quantity
 
 # The nominal share V_s / n below this fraction of a device's V_RRM: two orders of magnitude below
@@ -149,7 +149,7 @@ def _spreads(design: Design) -> list[PlausibilityWarning]:
                 continue
             ratio = SPREAD_RATIO[parameter]
             what = "leakage" if parameter == "i_r" else parameter
-            unit = _UNITS[parameter]
+            unit = SPREAD_UNITS[parameter].label
             if spread.high is not None and spread.high >= ratio * spread.typ:
                 found.append(PlausibilityWarning(f"parts.{name}.{parameter}", (
                     f"the maximum {what} {format_quantity(spread.high, unit)} is "
@@ -177,5 +177,3 @@ def _within(parameter: str) -> str:
     return "about a decade" if parameter == "i_r" else (
         "a factor of 2 or 3" if parameter in LOGNORMAL_PARAMETERS else "some tens of percent")
 
-
-_UNITS = {"i_r": "A", "q_rr": "C", "i_rm": "A", "t_rr": "s", "v_t0": "V", "r_t": "ohm"}

@@ -11,12 +11,11 @@ from dataclasses import replace
 
 import numpy as np
 
+from stringcheck.constants import RESISTOR_TCR_REFERENCE
 from stringcheck.design.model import Design, Spread
 from stringcheck.errors import DesignError
 from stringcheck.physics.recovery import recovery_charge
 from stringcheck.montecarlo.mixed_stock import mix_description, position_values
-
-RESISTOR_TCR_REFERENCE = 25.0  # [degC]; resistor TCR is specified from 25 degC (common practice)
 
 
 def dynamic_check_reason(design: Design) -> str:

@@ -9,7 +9,7 @@ then takes each device of that part from the lot, either
   the measured correlations between a device's parameters are kept exactly, and no device stands in
   two positions of one string; or
 * ``fit = "lognormal"``, ``"normal"`` or ``"auto"`` (lognormal for leakage and recovery parameters,
-  normal for V_T0 and r_T, as DESIGN.md section 4): each column fitted by maximum likelihood
+  normal for V_T0 and r_T, as docs/methods/monte-carlo.md): each column fitted by maximum likelihood
   (scipy.stats), joined by a Gaussian copula whose correlation is that of the lot's fitted normal
   scores, so correlations are kept there too.
 
@@ -28,9 +28,9 @@ from pathlib import Path
 import numpy as np
 from scipy import special, stats
 
-from stringcheck.design.model import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, Spread
+from stringcheck.design.model import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, SPREAD_UNITS, Spread
 from stringcheck.errors import DesignError, QuantityError, excerpt
-from stringcheck.units import AMPERE, COULOMB, OHM, SECOND, VOLT, parse_quantity
+from stringcheck.units import parse_quantity
 
 FITS = ("resample", "lognormal", "normal", "auto")
 # A fit from fewer devices than this says more about the fit than about the lot.
@@ -40,7 +40,6 @@ MAX_LOT_BYTES = 64 * 1024 * 1024
 SERIAL_COLUMN = "serial"
 # A normal fit of a quantity that cannot be negative may put at most this fraction below zero.
 _NEGATIVE_TOLERANCE = 1e-6
-_UNITS = {"i_r": AMPERE, "q_rr": COULOMB, "i_rm": AMPERE, "t_rr": SECOND, "v_t0": VOLT, "r_t": OHM}
 _HEADER = re.compile(r"^\s*([^\[\]]*?)\s*(?:\[\s*([^\[\]]*?)\s*\])?\s*$")
 
 
@@ -365,8 +364,9 @@ def _read_table(path: Path, source: str, where: str, *, design_source: str, key:
 
 def _recovery_columns(parameters: tuple[str, ...], values: np.ndarray, source: str, where: str):
     """A lot that measured I_RM and t_rr but not Q_rr gets Q_rr = 1/2 I_RM t_rr per device (the
-    triangular recovery of DESIGN.md section 4); I_RM or t_rr alone is refused, and beside a
-    measured Q_rr they are kept for the report only. Returns (parameters, values, notes)."""
+    triangular recovery of :func:`stringcheck.physics.recovery.recovery_charge`); I_RM or t_rr
+    alone is refused, and beside a measured Q_rr they are kept for the report only. Returns
+    (parameters, values, notes)."""
     has = set(parameters)
     if not has & {"i_rm", "t_rr"}:
         return parameters, values, ()
@@ -398,7 +398,7 @@ def _header(columns, source: str, where: str) -> tuple[list[str], list, str | No
                                   "column", source=source)
             serial = text
             continue
-        if name not in _UNITS:
+        if name not in SPREAD_UNITS:
             valid = (SERIAL_COLUMN,) + SPREAD_PARAMETERS
             close = difflib.get_close_matches(name, valid, n=1, cutoff=0.6)
             hint = f"did you mean '{close[0]}'?" if close else "valid columns: " + ", ".join(valid)
@@ -408,7 +408,7 @@ def _header(columns, source: str, where: str) -> tuple[list[str], list, str | No
         if name in parameters:
             raise DesignError(f"column {number} {excerpt(text)} repeats {name} {where}; keep one "
                               "column per parameter", source=source)
-        expected = _UNITS[name]
+        expected = SPREAD_UNITS[name]
         if not unit_text:
             raise DesignError(f"column {number} {excerpt(text)} has no unit {where}; write the "
                               f"unit in brackets, e.g. '{name} [{_example_unit(name)}]'",

@@ -1,6 +1,6 @@
 """The design file schema: validated, frozen dataclasses (read from TOML by design/reading.py).
 
-The schema is DESIGN.md section 3. Every error names the file, the dotted key and what would be valid;
+The schema is docs/design-file.md. Every error names the file, the dotted key and what would be valid;
 unknown keys are errors with the nearest valid key suggested. Values are converted to SI floats
 (temperatures in [degC], temperature differences in [K]) by :mod:`stringcheck.units`.
 
@@ -15,8 +15,8 @@ from typing import Mapping
 
 import numpy as np
 
-WAVEFORMS = ("dc", "half-sine", "square")
-HEATSINKS = ("shared", "separate")
+from stringcheck.units import AMPERE, COULOMB, OHM, SECOND, VOLT, Unit
+
 DEFAULT_DERATING = 0.8
 DEFAULT_AMBIENT = 25.0
 DEFAULT_TRIALS = 20_000
@@ -36,12 +36,12 @@ MAX_FILE_BYTES = 4 * 1024 * 1024
 # Leakage referred over more doublings than this (a factor 2^200 ~ 1e60) is a slip in a temperature
 # or in leakage_doubling, and would overflow the leakage arithmetic of the static check.
 MAX_LEAKAGE_DOUBLINGS = 200
-# The grading resistor's TCR is specified from this temperature [degC] (common practice); the same
-# value as stringcheck.studies.check.RESISTOR_TCR_REFERENCE (a test holds them equal).
-RESISTOR_TCR_REFERENCE = 25.0
 LOGNORMAL_PARAMETERS = ("i_r", "q_rr", "i_rm", "t_rr")
 NORMAL_PARAMETERS = ("v_t0", "r_t")
 SPREAD_PARAMETERS = LOGNORMAL_PARAMETERS + NORMAL_PARAMETERS
+# The SI unit of each spread parameter: of its design-file row, its lot-file column and its report.
+SPREAD_UNITS: dict[str, Unit] = {"i_r": AMPERE, "q_rr": COULOMB, "i_rm": AMPERE, "t_rr": SECOND,
+                                 "v_t0": VOLT, "r_t": OHM}
 
 # When a datasheet gives only a maximum, the median ("typ") is taken as this fraction of it. These are
 # our documented assumptions, listed in every report that uses them: leakage limits commonly sit about
@@ -100,8 +100,8 @@ class Part:
     r_th_jc: float | None
     r_th_cs: float | None
     t_j_max: float | None
-    leakage_doubling: float
-    leakage_voltage_exponent: float
+    doubling_temperature: float  # design-file key leakage_doubling
+    voltage_exponent: float  # design-file key leakage_voltage_exponent
     tempco_v_t0: float
     tempco_r_t: float
     device_class: str | None = None

@@ -11,8 +11,9 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from stringcheck.constants import DATASHEET_TEMPERATURE
 from stringcheck.design import device_classes as presets
-from stringcheck.design.model import DEFAULT_AMBIENT, SPREAD_PARAMETERS, Design, Part, Spread
+from stringcheck.design.model import SPREAD_PARAMETERS, Design, Part, Spread
 from stringcheck.units import (
     AMPERE,
     CELSIUS,
@@ -87,6 +88,9 @@ def read_parts(reader: Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
                    if parameter in merged else None for parameter in SPREAD_PARAMETERS}
         lot = _read_lot(reader, table, spreads, prefix)
         spreads["i_r"] = _leakage_conditions(reader, spreads["i_r"], scalars["v_rrm"], prefix)
+        # The model names the quantities as the physics does (the file keys carry "leakage_").
+        scalars["doubling_temperature"] = scalars.pop("leakage_doubling")
+        scalars["voltage_exponent"] = scalars.pop("leakage_voltage_exponent")
         parts[name] = Part(name=name, device_class=device_class, measured=lot, **scalars,
                            **spreads)
     return parts
@@ -149,8 +153,9 @@ def _leakage_conditions(reader: Reader, spread: Spread | None, v_rrm: float,
         reader.assumptions.append(f"{prefix}.i_r: at_voltage not given, taken at V_RRM "
                                   f"({v_rrm:g} V)")
     if spread.at_temperature is None:
-        changes["at_temperature"] = DEFAULT_AMBIENT
-        reader.assumptions.append(f"{prefix}.i_r: at_temperature not given, taken at 25 degC")
+        changes["at_temperature"] = DATASHEET_TEMPERATURE
+        reader.assumptions.append(f"{prefix}.i_r: at_temperature not given, taken at "
+                                  f"{DATASHEET_TEMPERATURE:g} degC")
     return replace(spread, **changes) if changes else spread
 
 

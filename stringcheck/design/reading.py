@@ -15,6 +15,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from stringcheck.constants import DATASHEET_TEMPERATURE, HEATSINKS, RESISTOR_TCR_REFERENCE, WAVEFORMS
 from stringcheck.design.model import (
     DEFAULT_AMBIENT,
     DEFAULT_CONFIDENCE,
@@ -23,14 +24,11 @@ from stringcheck.design.model import (
     DEFAULT_SIGMA_AT_LIMIT,
     DEFAULT_TARGET_P_FAIL,
     DEFAULT_TRIALS,
-    HEATSINKS,
     MAX_DEVICES,
     MAX_FILE_BYTES,
     MAX_LEAKAGE_DOUBLINGS,
-    RESISTOR_TCR_REFERENCE,
     SIGMA_AT_LIMIT_RANGE,
     SPREAD_PARAMETERS,
-    WAVEFORMS,
     Design,
     Duty,
     Grading,
@@ -43,6 +41,7 @@ from stringcheck.design.model import (
     Thermal,
     correlation_matrix,
 )
+from stringcheck.eseries import SERIES_NAMES
 from stringcheck.errors import DesignError
 from stringcheck.units import (
     AMPERE,
@@ -62,8 +61,6 @@ from stringcheck.units import (
 
 from stringcheck.design.schema import SCHEMA_KEYS, TOP_LEVEL, Reader, join_key
 from stringcheck.design.parts import check_serials, read_parts
-
-_SERIES_NAMES = ("E6", "E12", "E24", "E48", "E96", "E192")
 
 
 def load_design(path: str | Path) -> Design:
@@ -353,9 +350,9 @@ def _read_sizing(reader: Reader, raw: Mapping[str, Any]) -> Sizing:
     for key, default in (("resistor_series", "E96"), ("capacitor_series", "E12")):
         value = reader.text(table, key, prefix, default=default)
         assert value is not None
-        if value.upper() not in _SERIES_NAMES:
+        if value.upper() not in SERIES_NAMES:
             raise reader.error(join_key(prefix, key), f"unknown preferred-value series {value!r}; "
-                                                   "one of " + ", ".join(_SERIES_NAMES))
+                                                   "one of " + ", ".join(SERIES_NAMES))
         series[key] = value.upper()
     target_share = reader.quantity(table, "target_share", DIMENSIONLESS, prefix)
     if target_share is not None and not target_share >= 1.0:
@@ -407,9 +404,9 @@ def _cross_check(reader: Reader, design: Design) -> None:
                                                     "at_temperature = \"125 degC\" }")
         temperatures = design.duty.ambient + rise[grid == name]
         reference = part.i_r.at_temperature if part.i_r.at_temperature is not None else \
-            DEFAULT_AMBIENT
+            DATASHEET_TEMPERATURE
         farthest = float(temperatures[np.argmax(np.abs(temperatures - reference))])
-        doublings = abs(farthest - reference) / part.leakage_doubling
+        doublings = abs(farthest - reference) / part.doubling_temperature
         if doublings > MAX_LEAKAGE_DOUBLINGS:
             raise reader.error(f"parts.{name}.leakage_doubling",
                                f"referring the leakage from {reference:g} degC to "

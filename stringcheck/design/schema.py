@@ -11,24 +11,19 @@ import difflib
 import math
 from typing import Any, Mapping
 
-from stringcheck.design.model import LOGNORMAL_PARAMETERS, TYP_FRACTION_OF_MAX, Spread
+from stringcheck.design.model import LOGNORMAL_PARAMETERS, SPREAD_UNITS, TYP_FRACTION_OF_MAX, Spread
 from stringcheck.errors import DesignError, QuantityError
 from stringcheck.units import (
     AMPERE,
     AMPERE_PER_SECOND,
     CELSIUS,
-    COULOMB,
     DIMENSIONLESS,
-    OHM,
-    SECOND,
     VOLT,
     Unit,
     example,
     parse_quantity,
 )
 
-_SPREAD_UNITS = {"i_r": AMPERE, "q_rr": COULOMB, "i_rm": AMPERE, "t_rr": SECOND, "v_t0": VOLT,
-                 "r_t": OHM}
 _CONDITION_UNITS = {"at_temperature": CELSIUS, "at_voltage": VOLT, "at_di_dt": AMPERE_PER_SECOND,
                     "at_forward_current": AMPERE}
 SCHEMA_KEYS = {
@@ -52,7 +47,6 @@ SCHEMA_KEYS = {
 }
 TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
               "review")
-_SERIES_NAMES = ("E6", "E12", "E24", "E48", "E96", "E192")
 
 
 class Reader:
@@ -151,7 +145,7 @@ class Reader:
 
     def spread(self, raw: Any, parameter: str, prefix: str) -> Spread:
         dotted = join_key(prefix, parameter)
-        unit = _SPREAD_UNITS[parameter]
+        unit = SPREAD_UNITS[parameter]
         if not isinstance(raw, Mapping):
             value = self.quantity({parameter: raw}, parameter, unit, prefix, positive=True)
             assert value is not None

@@ -1,5 +1,5 @@
 """Datasheet spreads as maps of latent values: the two-piece normal and lognormal, production-screened
-truncation, and the grading components' tolerance draws (DESIGN.md section 4, "Spreads"). Each value's
+truncation, and the grading components' tolerance draws (docs/methods/monte-carlo.md). Each value's
 image depends on that value alone, so the maps are the same whatever the chunking of a run.
 
 One latent variable has two faces: a uniform score u on (0, 1) and the standard normal

@@ -1,6 +1,6 @@
 """Device populations -> arrays of drawn parameters, shape (trials, parallel, series).
 
-How a spread becomes a draw (DESIGN.md section 4, "Spreads"):
+How a spread becomes a draw (docs/methods/monte-carlo.md):
 
 * ``typ`` is the median; a datasheet limit sits ``sigma_at_limit`` standard deviations away from it.
   Leakage, recovery charge, peak recovery current and recovery time are lognormal, V_T0 and r_T normal.

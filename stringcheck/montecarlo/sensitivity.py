@@ -30,14 +30,14 @@ from stringcheck.montecarlo.sampling import DrawnStrings
 
 DRIVER_TRIALS = 20_000
 TOP_DRIVERS = 3
-# The inputs each check's physics depends on (DESIGN.md section 4): the blocking-state sharing on
+# The inputs each check's physics depends on (docs/methods/): the blocking-state sharing on
 # leakage against the resistors, the turn-off sharing on recovery charge against the capacitors.
 CHECK_INPUTS = {"static": ("i_r", "resistor", "mix"), "dynamic": ("q_rr", "capacitor", "mix"),
                 "parallel": ("v_t0", "r_t", "i_r", "q_rr", "mix"),
                 "thermal": ("v_t0", "r_t", "i_r", "q_rr", "mix"),
                 "transient": ("q_rr", "capacitor", "resistor", "mix")}
 # The checks whose physics depends on the temperature (leakage doubling, forward temperature
-# coefficients, the thermal balance); the dynamic check's Q_rr does not (DESIGN.md 4).
+# coefficients, the thermal balance); the dynamic check's Q_rr does not.
 TEMPERATURE_CHECKS = ("static", "parallel", "thermal")
 COOLER_BY = 10.0  # [K] the ambient change the drivers table shows
 

@@ -23,13 +23,13 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.special import gammaln
 
+from stringcheck.constants import WAVEFORMS
 from stringcheck.errors import StringcheckError
 from stringcheck.physics.leakage import leakage_current
 
 __all__ = [
     "DEFAULT_PHASE_POINTS",
     "SLOPE_RESISTANCE_FLOOR",
-    "WAVEFORMS",
     "PhaseSamples",
     "blocking_factor",
     "conduction_loss",
@@ -41,9 +41,6 @@ __all__ = [
     "slope_resistance",
     "threshold_voltage",
 ]
-
-WAVEFORMS = ("dc", "half-sine", "square")
-"""Waveform names of the forward current (the design file's ``duty.waveform``)."""
 
 SLOPE_RESISTANCE_FLOOR = 1e-9
 """Smallest slope resistance r_T(T) returned [ohm] (1 nano-ohm).
@@ -189,7 +186,7 @@ def peak_factor(waveform: str) -> float:
     Parameters
     ----------
     waveform
-        One of :data:`WAVEFORMS`.
+        One of :data:`stringcheck.constants.WAVEFORMS`.
 
     Returns
     -------
@@ -211,7 +208,7 @@ def form_factor(waveform: str) -> float:
     Parameters
     ----------
     waveform
-        One of :data:`WAVEFORMS`.
+        One of :data:`stringcheck.constants.WAVEFORMS`.
 
     Returns
     -------
@@ -237,7 +234,7 @@ def phase_samples(
     average_current
         Average forward current of the whole group I_F(AV) [A], >= 0; any shape ``...``.
     waveform
-        One of :data:`WAVEFORMS`.
+        One of :data:`stringcheck.constants.WAVEFORMS`.
     points
         Number of samples of a half-sine, >= 1. A dc or square current is constant while it
         flows and is represented exactly by a single sample whatever ``points`` is.
@@ -339,7 +336,7 @@ def blocking_factor(
     voltage_exponent
         Exponent m of the leakage voltage law I_R ~ V^m [-], in [0, 1].
     waveform
-        One of :data:`WAVEFORMS`.
+        One of :data:`stringcheck.constants.WAVEFORMS`.
     forward_current
         Average forward current of the group [A], >= 0; decides only the dc case.
 
@@ -406,7 +403,7 @@ def leakage_loss(
         Parameters of :func:`stringcheck.physics.leakage.leakage_current`: V_ref [V], T_ref
         [degC], T_double [K], m [-].
     waveform
-        One of :data:`WAVEFORMS`; fixes the shape of the reverse voltage (see
+        One of :data:`stringcheck.constants.WAVEFORMS`; fixes the shape of the reverse voltage (see
         :func:`blocking_factor`).
     forward_current
         Average forward current of the group [A], >= 0 (a dc group with current blocks never).

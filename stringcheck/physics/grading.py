@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from stringcheck.constants import SAFE_VOLTAGE
 from stringcheck.errors import StringcheckError
 
 __all__ = [
@@ -207,7 +208,7 @@ def discharge_time(
     resistances: ArrayLike,
     capacitances: ArrayLike,
     *,
-    threshold: ArrayLike = 60.0,
+    threshold: ArrayLike = SAFE_VOLTAGE,
 ) -> NDArray[np.float64]:
     """Time for the terminal voltage of a disconnected RC-graded string to fall to a threshold.
 
@@ -222,7 +223,7 @@ def discharge_time(
         Capacitance of each stage C_k [F], broadcastable to ``(..., n)``, >= 0.
     threshold
         Voltage the string must fall to [V], > 0; scalar or broadcastable to the leading
-        shape. Default 60 V.
+        shape. Default 60 V (:data:`stringcheck.constants.SAFE_VOLTAGE`).
 
     Returns
     -------

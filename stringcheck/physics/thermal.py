@@ -12,12 +12,10 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from stringcheck.constants import HEATSINKS
 from stringcheck.errors import StringcheckError
 
-__all__ = ["HEATSINKS", "junction_temperature", "semenov_limit", "semenov_number"]
-
-HEATSINKS = ("shared", "separate")
-"""Heatsink arrangements (the design file's ``thermal.heatsink``)."""
+__all__ = ["junction_temperature", "semenov_limit", "semenov_number"]
 
 
 def junction_temperature(
@@ -52,7 +50,7 @@ def junction_temperature(
     Raises
     ------
     StringcheckError
-        If ``heatsink`` is not one of :data:`HEATSINKS`.
+        If ``heatsink`` is not one of :data:`stringcheck.constants.HEATSINKS`.
 
     Notes
     -----

@@ -1,4 +1,4 @@
-"""High-voltage safety cautions shown with every report (DESIGN.md section 7).
+"""High-voltage safety cautions shown with every report (docs/safety.md).
 
 The text lives here only; the figures (stored energy, discharge time) come from the study's result.
 """
@@ -7,12 +7,13 @@ from __future__ import annotations
 
 import math
 
+from stringcheck.constants import SAFE_DISCHARGE_TIME, SAFE_VOLTAGE
 from stringcheck.units import format_quantity
 
 
 def safety_cautions(*, string_voltage: float, stage_energy: float | None, total_energy: float | None,
-                    discharge_time: float, safe_voltage: float = 60.0,
-                    allowed_time: float = 5.0) -> list[str]:
+                    discharge_time: float, safe_voltage: float = SAFE_VOLTAGE,
+                    allowed_time: float = SAFE_DISCHARGE_TIME) -> list[str]:
     """The cautions, as plain sentences, filled in with the design's figures.
 
     Parameters
@@ -37,8 +38,7 @@ def safety_cautions(*, string_voltage: float, stage_energy: float | None, total_
     if total_energy is not None:
         stored += f", {format_quantity(total_energy, 'J')} in the whole stack at the nominal share"
     lines.append(stored + ".")
-    # The criterion: below 60 V within 5 s of switching off (IEC 60204-1:2016 clause 6.2.4, from
-    # memory). IEC 61010-1's hazardous-live levels differ between editions (from memory: 60 V dc
+    # The criterion: stringcheck.constants.SAFE_VOLTAGE and SAFE_DISCHARGE_TIME. IEC 61010-1's hazardous-live levels differ between editions (from memory: 60 V dc
     # in the 2001 edition, 70 V dc in normal condition in the 2010 edition): cited with theirs.
     criterion = (f"{safe_voltage:g} V within {allowed_time:g} s is the residual-voltage criterion "
                  "of IEC 60204-1:2016 clause 6.2.4 for machinery; the hazardous-live levels of "

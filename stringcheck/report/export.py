@@ -1,4 +1,4 @@
-"""Machine-readable output: JSON (stable keys, DESIGN.md section 6) and per-position CSV.
+"""Machine-readable output: JSON (stable keys, docs/json.md) and per-position CSV.
 
 Files are written all or nothing (:func:`atomic_outputs`): each to a temporary file in its target's
 folder, renamed over the targets together only after the whole run, the terminal report included,

@@ -11,12 +11,11 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from stringcheck.design.model import Design
+from stringcheck.design.model import SPREAD_UNITS, Design
 from stringcheck.units import format_quantity
 from stringcheck.report.check_sections import json_number
 from stringcheck.report.display_text import shown
 
-_UNITS = {"i_r": "A", "q_rr": "C", "i_rm": "A", "t_rr": "s", "v_t0": "V", "r_t": "ohm"}
 _HOW = {"resample": "devices drawn from the lot itself, without replacement in a string "
                     "(measured correlations kept exactly)",
         "lognormal": "devices drawn from a lognormal fitted to each column, joined by the lot's "
@@ -61,7 +60,7 @@ def render_lots(design: Design, console: Console, *, also: Design | None = None)
         for column in ("parameter", "median", "min", "max", fitted, "KS p", "outside limits"):
             table.add_column(column, justify="left" if column in ("parameter", fitted) else "right")
         for column in lot.columns:
-            unit = _UNITS[column.parameter]
+            unit = SPREAD_UNITS[column.parameter].label
             if column.scale == 0:
                 fit = "fixed (no scatter)"
             elif column.family == "lognormal":

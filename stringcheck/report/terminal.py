@@ -10,6 +10,7 @@ from rich.panel import Panel
 from rich.table import Table
 from rich.text import Text
 
+from stringcheck.constants import SAFE_VOLTAGE
 from stringcheck.units import format_quantity
 from stringcheck.montecarlo.estimates import trials_for_relative_error
 from stringcheck.studies.check import CheckResult, SeriesCheck
@@ -300,7 +301,8 @@ def _render_network(result: CheckResult, console: Console) -> None:
                      if grading.damping_resistor else "none"))
         rows.append(("energy per capacitor at worst stage voltage", format_quantity(grading.stage_energy, "J")))
     rows.append(("energy stored in the stack at nominal share", format_quantity(grading.total_energy, "J")))
-    rows.append(("time to fall below 60 V", "never (no bleed path)" if math.isinf(grading.discharge_time)
+    rows.append((f"time to fall below {SAFE_VOLTAGE:g} V",
+                 "never (no bleed path)" if math.isinf(grading.discharge_time)
                  else format_quantity(grading.discharge_time, "s")))
     table = Table(show_header=False, show_edge=False, pad_edge=False)
     table.add_column("item")
@@ -432,7 +434,8 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
         ]
     rows += [
         ("energy stored in the stack at nominal share", format_quantity(ratings.total_energy, "J")),
-        ("time to fall below 60 V", "never (no bleed path)" if math.isinf(ratings.discharge_time)
+        (f"time to fall below {SAFE_VOLTAGE:g} V",
+         "never (no bleed path)" if math.isinf(ratings.discharge_time)
          else format_quantity(ratings.discharge_time, "s")),
     ]
     ratings_table = Table(title="Ratings the chosen parts must have", title_justify="left",

@@ -15,7 +15,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from stringcheck.errors import StringcheckError
-from stringcheck.units import format_quantity
+from stringcheck.units import ENGINEERING_PREFIXES, format_quantity
 from stringcheck.solvers.transient import TurnOffTrace
 
 __all__ = ["TrialWaveform", "trial_waveform", "waveform_csv", "waveform_plot"]
@@ -26,8 +26,7 @@ _MARKS = "123456789ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz"
 _CURRENT_MARK, _PEAK_MARK, _REVERSE_PEAK_MARK, _ZERO_MARK = "*", "^", "v", "."
 _GUTTER = 10  # "%8s |": eight characters of axis label, a space and the axis
 _MIN_WIDTH, _MIN_HEIGHT = 40, 12
-_PREFIXES = ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "u"),
-             (1e-9, "n"), (1e-12, "p"))
+_PREFIXES = ENGINEERING_PREFIXES[1:-1]  # giga to pico: the range of a turn-off's axes
 
 
 @dataclass(frozen=True)

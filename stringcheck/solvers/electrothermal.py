@@ -71,6 +71,7 @@ from dataclasses import dataclass, fields, replace
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from stringcheck.constants import HEATSINKS
 from stringcheck.errors import StringcheckError
 from stringcheck.limits import exceeds_limit
 from stringcheck.physics.forward import (
@@ -81,7 +82,7 @@ from stringcheck.physics.forward import (
     slope_resistance,
     threshold_voltage,
 )
-from stringcheck.physics.thermal import HEATSINKS, junction_temperature
+from stringcheck.physics.thermal import junction_temperature
 from stringcheck.solvers.parallel import phase_rule, split_current
 
 __all__ = [
@@ -133,10 +134,10 @@ class ParallelDevices:
         V_ref of I_R,ref [V], > 0.
     leakage_reference_temperature
         T_ref of I_R,ref [degC].
-    leakage_doubling
-        Temperature rise that doubles the leakage [K], >= 1.
-    leakage_voltage_exponent
-        Exponent m of the leakage voltage law [-], in [0, 1].
+    doubling_temperature
+        Temperature rise that doubles the leakage [K], >= 1 (``leakage_doubling``).
+    voltage_exponent
+        Exponent m of the leakage voltage law [-], in [0, 1] (``leakage_voltage_exponent``).
     recovery_charge
         Q_rr at the application's conditions [C], >= 0.
     junction_to_sink
@@ -154,8 +155,8 @@ class ParallelDevices:
     leakage_current: ArrayLike
     leakage_reference_voltage: ArrayLike
     leakage_reference_temperature: ArrayLike
-    leakage_doubling: ArrayLike
-    leakage_voltage_exponent: ArrayLike
+    doubling_temperature: ArrayLike
+    voltage_exponent: ArrayLike
     recovery_charge: ArrayLike
     junction_to_sink: ArrayLike
     max_junction_temperature: ArrayLike
@@ -320,8 +321,8 @@ def _evaluate(devices: ParallelDevices, duty: ParallelDuty, temperature,
         d.leakage_current, duty.blocking_voltage, temperature,
         reference_voltage=d.leakage_reference_voltage,
         reference_temperature=d.leakage_reference_temperature,
-        doubling_temperature=d.leakage_doubling,
-        voltage_exponent=d.leakage_voltage_exponent,
+        doubling_temperature=d.doubling_temperature,
+        voltage_exponent=d.voltage_exponent,
         waveform=duty.waveform,
         forward_current=duty.forward_current[:, None, None],
     )
@@ -370,7 +371,7 @@ def _evaluate(devices: ParallelDevices, duty: ParallelDuty, temperature,
     coupled = (by_theta[..., None] * threshold_slope[:, None, None, :, :]
                + by_rho[..., None] * resistance_slope[:, None, None, :, :]).reshape(
         trials, size, size)
-    rate = _LN2 / np.asarray(d.leakage_doubling, dtype=float)
+    rate = _LN2 / np.asarray(d.doubling_temperature, dtype=float)
     direct = (threshold_slope * average[..., None] + resistance_slope * mean_square[..., None]
               + leakage * rate).reshape(trials, size)
     power_slope = coupled + direct[:, :, None] * np.eye(size)

@@ -15,6 +15,7 @@ from typing import Callable, Mapping
 
 import numpy as np
 
+from stringcheck.constants import RESISTOR_TCR_REFERENCE
 from stringcheck.design.model import Design, Part
 from stringcheck.errors import DesignError
 from stringcheck.limits import within_limit
@@ -63,7 +64,6 @@ from stringcheck.montecarlo.importance import (
     rare_event_estimate,
 )
 from stringcheck.checks.preconditions import (
-    RESISTOR_TCR_REFERENCE,
     dynamic_check_reason,
     impossibility,
     model_assumptions,
@@ -210,7 +210,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     if trials < 1:
         raise DesignError(f"--trials must be at least 1, got {trials}", key="monte_carlo.trials")
     if design.grading.resistor is None and any(
-            design.parts[name].leakage_voltage_exponent == 0.0 for name in design.parts_used()):
+            design.parts[name].voltage_exponent == 0.0 for name in design.parts_used()):
         raise DesignError("missing; with voltage-independent leakage (leakage_voltage_exponent = 0) "
                           "the string voltage is undetermined without grading resistors (or run "
                           "`stringcheck size` to choose them)", source=design.source,
@@ -231,8 +231,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     temperature = design.duty.ambient + layout.temperature_rise_grid()
     reference_voltage = per_position(lambda p: p.i_r.at_voltage)
     reference_temperature = per_position(lambda p: p.i_r.at_temperature)
-    doubling = per_position(lambda p: p.leakage_doubling)
-    exponent = per_position(lambda p: p.leakage_voltage_exponent)
+    doubling_temperature = per_position(lambda p: p.doubling_temperature)
+    voltage_exponent = per_position(lambda p: p.voltage_exponent)
     junction_capacitance = per_position(lambda p: p.c_j)
 
     dynamic_reason = "not requested" if only is not None and "dynamic" not in only else \
@@ -257,8 +257,10 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     context = _ChunkContext(design=design, seed=seed, parameters=parameters, run_static=run_static,
                             run_dynamic=run_dynamic, limits=limits, temperature=temperature,
                             reference_voltage=reference_voltage,
-                            reference_temperature=reference_temperature, doubling=doubling,
-                            exponent=exponent, junction_capacitance=junction_capacitance,
+                            reference_temperature=reference_temperature,
+                            doubling_temperature=doubling_temperature,
+                            voltage_exponent=voltage_exponent,
+                            junction_capacitance=junction_capacitance,
                             forward=forward, rescaling=rescaling,
                             driver_trials=DRIVER_TRIALS if drivers else 0)
     features: dict[str, list] = {}
@@ -368,8 +370,8 @@ class _ChunkContext:
     temperature: np.ndarray
     reference_voltage: np.ndarray
     reference_temperature: np.ndarray
-    doubling: np.ndarray
-    exponent: np.ndarray
+    doubling_temperature: np.ndarray
+    voltage_exponent: np.ndarray
     junction_capacitance: np.ndarray
     forward: ForwardSetup | None
     rescaling: RecoveryRescaling | None
@@ -405,7 +407,8 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
         if static is not None:
             static.device_limits = own_limits
             _static_chunk(design, part, static, devices.temperature, devices.reference_voltage,
-                          devices.reference_temperature, devices.doubling, devices.exponent)
+                          devices.reference_temperature, devices.doubling_temperature,
+                          devices.voltage_exponent)
             static.device_limits = None
         if dynamic is not None:
             dynamic.device_limits = own_limits
@@ -471,8 +474,8 @@ def _for_devices(context: _ChunkContext, drawn: DrawnStrings) -> _ChunkContext:
         context, limits=design.string.derating * values(lambda p: p.v_rrm),
         reference_voltage=values(lambda p: p.i_r.at_voltage),
         reference_temperature=values(lambda p: p.i_r.at_temperature),
-        doubling=values(lambda p: p.leakage_doubling),
-        exponent=values(lambda p: p.leakage_voltage_exponent),
+        doubling_temperature=values(lambda p: p.doubling_temperature),
+        voltage_exponent=values(lambda p: p.voltage_exponent),
         junction_capacitance=values(lambda p: p.c_j),
         forward=None if context.forward is None else forward_for_devices(design, context.forward,
                                                                           drawn))
@@ -480,15 +483,17 @@ def _for_devices(context: _ChunkContext, drawn: DrawnStrings) -> _ChunkContext:
 
 def _static_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums,
                   temperature: np.ndarray, reference_voltage: np.ndarray,
-                  reference_temperature: np.ndarray, doubling: np.ndarray,
-                  exponent: np.ndarray) -> None:
+                  reference_temperature: np.ndarray, doubling_temperature: np.ndarray,
+                  voltage_exponent: np.ndarray) -> None:
     leakage = leakage_current(drawn.parameters["i_r"], reference_voltage, temperature,
                               reference_voltage=reference_voltage,
                               reference_temperature=reference_temperature,
-                              doubling_temperature=doubling, voltage_exponent=exponent)
+                              doubling_temperature=doubling_temperature,
+                              voltage_exponent=voltage_exponent)
     conductance = _grading_conductance(design, drawn, temperature)
     solution = solve_static_sharing(design.duty.reverse_voltage, conductance, leakage,
-                                    reference_voltage=reference_voltage, voltage_exponent=exponent)
+                                    reference_voltage=reference_voltage,
+                                    voltage_exponent=voltage_exponent)
     converged = np.asarray(solution.converged).reshape(solution.voltages.shape[0], -1).all(axis=1)
     accumulator.add(solution.voltages, converged, drawn.first_trial)
 
@@ -569,8 +574,8 @@ def evaluate_strings(context: _ChunkContext, drawn: DrawnStrings, check: str) ->
         accumulator.device_limits = devices.limits
     if check == "static":
         _static_chunk(context.design, drawn, accumulator, devices.temperature,
-                      devices.reference_voltage, devices.reference_temperature, devices.doubling,
-                      devices.exponent)
+                      devices.reference_voltage, devices.reference_temperature,
+                      devices.doubling_temperature, devices.voltage_exponent)
     else:
         _dynamic_chunk(context.design, drawn, accumulator, devices.junction_capacitance,
                        context.rescaling)

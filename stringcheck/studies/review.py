@@ -23,6 +23,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from stringcheck.checks.grading_ratings import STAGE_VOLTAGE_CHECKS
 from stringcheck.design.model import MAX_LEAKAGE_DOUBLINGS, Design, Mix, PositionOverride
 from stringcheck.errors import StringcheckError, excerpt
 from stringcheck.design.parts import check_lot_sizes
@@ -196,7 +197,7 @@ def _check_substitute(design: Design, name: str, option: str, rise) -> None:
                                "another part or lower duty.ambient")
     temperatures = design.duty.ambient + np.asarray(rise, dtype=float)
     doublings = float(np.max(np.abs(temperatures - part.i_r.at_temperature))) / \
-        part.leakage_doubling
+        part.doubling_temperature
     if doublings > MAX_LEAKAGE_DOUBLINGS:
         raise StringcheckError(f"{option}: referring part {name!r}'s leakage from its "
                                f"i_r.at_temperature takes {doublings:.3g} doublings, more than "
@@ -309,7 +310,7 @@ def _worse_positions(base: CheckResult, cand: CheckResult) -> tuple[PositionChan
     grid_base = base.design.string.part_labels()
     grid_cand = cand.design.string.part_labels()
     rows = []
-    for name in ("static", "dynamic", "transient"):
+    for name in STAGE_VOLTAGE_CHECKS:
         a, b = base.checks.get(name), cand.checks.get(name)
         if a is None or b is None or not (a.ran and b.ran):
             continue

@@ -389,8 +389,8 @@ def _static_bound(design: Design) -> float | None:
         factors = leakage_current(1.0, spread.at_voltage, _part_temperatures(design, name),
                                   reference_voltage=spread.at_voltage,
                                   reference_temperature=spread.at_temperature,
-                                  doubling_temperature=part.leakage_doubling,
-                                  voltage_exponent=part.leakage_voltage_exponent)
+                                  doubling_temperature=part.doubling_temperature,
+                                  voltage_exponent=part.voltage_exponent)
         low, high = drawn_limits(design, name, "i_r")
         highs.append(float(np.max(factors)) * high)
         lows.append(float(np.min(factors)) * low)

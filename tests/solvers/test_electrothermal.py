@@ -27,8 +27,8 @@ DEVICE = dict(
     threshold_voltage=0.80, slope_resistance=3e-3, forward_reference_temperature=25.0,
     resistance_reference_temperature=25.0,
     threshold_tempco=-2e-3, resistance_tempco=0.0, leakage_current=0.0,
-    leakage_reference_voltage=1000.0, leakage_reference_temperature=25.0, leakage_doubling=10.0,
-    leakage_voltage_exponent=0.5, recovery_charge=0.0, junction_to_sink=0.6,
+    leakage_reference_voltage=1000.0, leakage_reference_temperature=25.0, doubling_temperature=10.0,
+    voltage_exponent=0.5, recovery_charge=0.0, junction_to_sink=0.6,
     max_junction_temperature=1e9,
 )
 DUTY = dict(
@@ -59,7 +59,7 @@ def _semenov_case(rate_doubling, resistance, power, number):
     """One blocking device with P = P_0 2^((T - 25) / T_double) at a given Semenov number."""
     rate = math.log(2.0) / rate_doubling
     ambient = 25.0 + math.log(number / (rate * resistance * power)) / rate
-    devices = _devices(leakage_current=power / 1000.0, leakage_doubling=rate_doubling,
+    devices = _devices(leakage_current=power / 1000.0, doubling_temperature=rate_doubling,
                        junction_to_sink=resistance)
     duty = _duty(forward_current=0.0, blocking_voltage=1000.0, sink_to_ambient=0.0,
                  ambient=ambient)
@@ -94,7 +94,7 @@ def test_runaway_ambient_finds_the_semenov_limit_for_a_batch():
     power = np.array([0.8, 0.05, 3.0])[:, None, None]
     rate = math.log(2.0) / doubling
     limit = (25.0 - (1.0 + np.log(rate * resistance * power)) / rate).ravel()
-    devices = _devices(leakage_current=power / 1000.0, leakage_doubling=doubling,
+    devices = _devices(leakage_current=power / 1000.0, doubling_temperature=doubling,
                        junction_to_sink=resistance)
     duty = _duty(forward_current=0.0, blocking_voltage=1000.0, sink_to_ambient=0.0,
                  ambient=limit - 30.0)
