@@ -18,6 +18,7 @@ from typing import Annotated, Optional
 
 import typer
 
+from stringcheck.cli import output_files
 from stringcheck.cli.exit_codes import (
     EXIT_FAIL,
     EXIT_INPUT,
@@ -71,7 +72,6 @@ def _options(
 
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
            transient=None, drivers=False, rare=None, source_label=None) -> int:
-    from stringcheck.cli import output_files
     from stringcheck.design.reading import load_design
     from stringcheck.report.export import json_text, positions_csv, result_to_dict
     from stringcheck.report.terminal import render_check, render_check_summary
@@ -106,10 +106,8 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
 
 def _print_report(result, *, quiet: bool, stderr: bool, full, summary) -> None:
     """The report, or its one line with --quiet; on stderr when machine output is on stdout."""
-    from stringcheck.cli.output_files import report_stream
-
     shown_on = console(stderr=stderr, wrap=not quiet)
-    with report_stream(stderr):
+    with output_files.report_stream(stderr):
         (summary if quiet else full)(result, shown_on)
 
 
@@ -145,7 +143,6 @@ def check(
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,
           find_series, workers=1, transient=False) -> int:
-    from stringcheck.cli import output_files
     from stringcheck.design.reading import load_design
     from stringcheck.report.export import json_text, sizing_to_dict
     from stringcheck.report.terminal import render_check_summary, render_sizing
@@ -202,7 +199,6 @@ def size(
 
 def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trials, seed,
             json_path, quiet, workers, transient, drivers=False, rare=None) -> int:
-    from stringcheck.cli import output_files
     from stringcheck.design.reading import load_design
     from stringcheck.report.export import json_text
     from stringcheck.report.review import render_review, render_review_summary, review_to_dict
@@ -261,7 +257,6 @@ def review(
 
 def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height) -> int:
     from stringcheck.checks.transient import trial_trace
-    from stringcheck.cli import output_files
     from stringcheck.design.reading import load_design
     from stringcheck.report.display_text import shown
     from stringcheck.report.waveform import waveform_csv, waveform_plot
@@ -345,16 +340,15 @@ def new(
 ) -> None:
     """Write a commented starter design file to edit."""
     def action() -> int:
-        from stringcheck.cli.output_files import write_text_atomic
         from stringcheck.report.starter import starter_design
 
         if str(file) == "-":  # the starter on standard output, and nothing else there
-            write_text_atomic("-", starter_design())
+            output_files.write_text_atomic("-", starter_design())
             return EXIT_PASS
         if os.path.lexists(file) and not force:
             raise StringcheckError(f"{file}: already exists; choose another name or add --force "
                                    "to overwrite it")
-        write_text_atomic(file, starter_design())
+        output_files.write_text_atomic(file, starter_design())
         console().print(f"wrote {file}; edit it, then run: stringcheck check {file}")
         return EXIT_PASS
 
