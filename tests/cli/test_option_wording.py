@@ -3,6 +3,7 @@
 
 import ast
 import math
+import pickle
 import re
 from pathlib import Path
 
@@ -95,6 +96,9 @@ def test_an_error_keeps_its_pieces_and_its_key():
     assert error.worded(option_wording) == \
         "a.toml: monte_carlo.trials: --trials must be at least 1, got 0"
     assert error.detail == "trials must be at least 1, got 0" and error.key == "monte_carlo.trials"
+    # An error raised in a worker process comes back pickled, its pieces with it.
+    again = pickle.loads(pickle.dumps(error))
+    assert again.worded(option_wording) == error.worded(option_wording) and again.key == error.key
     assert isinstance(StringcheckError("plain"), ValueError) and str(StringcheckError("plain")) == "plain"
 
 
