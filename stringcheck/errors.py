@@ -6,9 +6,58 @@ so that the command line can print it as one line and exit with code 2.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+from typing import Callable
+
+
+@dataclass(frozen=True)
+class Setting:
+    """A keyword argument of a public function, as an error message names it.
+
+    A study knows its own keywords, not the command line's options, so a message that tells the
+    user which setting to change holds one of these and whoever shows the message spells it:
+    Python as the keyword (``trials``, ``trials=3000``, :meth:`__str__`), the command line as its
+    option (``--trials``, ``--trials 3000``; ``stringcheck.cli.options``).
+
+    Parameters
+    ----------
+    keyword
+        The keyword argument, e.g. ``"trials"`` or ``"find_series"``.
+    value
+        The value the message proposes or quotes, or None for the setting alone; text is quoted
+        as :func:`excerpt` quotes it (the user typed it), a bool names the switch on or off.
+    """
+
+    keyword: str
+    value: object = None
+
+    def shown_value(self) -> str:
+        """The value as a message shows it (text quoted and cut, see :func:`excerpt`)."""
+        return excerpt(self.value) if isinstance(self.value, str) else str(self.value)
+
+    def __str__(self) -> str:
+        return self.keyword if self.value is None else f"{self.keyword}={self.shown_value()}"
+
 
 class StringcheckError(ValueError):
-    """Base class of every error stringcheck raises on purpose."""
+    """Base class of every error stringcheck raises on purpose.
+
+    Parameters
+    ----------
+    *message
+        The message, in pieces: text, and a :class:`Setting` wherever it names a setting to
+        change, so that the command line can name its option instead (:meth:`worded`). ``str()``
+        of the error names the Python keyword.
+    """
+
+    def __init__(self, *message: str | Setting) -> None:
+        self.pieces: tuple[str | Setting, ...] = message
+        super().__init__(self.worded())
+
+    def worded(self, spell: Callable[[Setting], str] = str) -> str:
+        """The message with each :class:`Setting` in it spelled by ``spell``."""
+        return "".join(spell(piece) if isinstance(piece, Setting) else str(piece)
+                       for piece in self.pieces)
 
 
 class QuantityError(StringcheckError):
@@ -20,18 +69,20 @@ class DesignError(StringcheckError):
 
     Parameters
     ----------
-    message
-        What is wrong and how to fix it.
+    *message
+        What is wrong and how to fix it (text and :class:`Setting` pieces, as for
+        :class:`StringcheckError`).
     source
         The file (or other origin) the design came from, if known.
     key
         The dotted key path, e.g. ``parts.A.i_r.max``, if the error belongs to one key.
     """
 
-    def __init__(self, message: str, *, source: str | None = None, key: str | None = None):
+    def __init__(self, *message: str | Setting, source: str | None = None,
+                 key: str | None = None) -> None:
         self.source = source
         self.key = key
-        self.detail = message
+        self.detail = "".join(str(piece) for piece in message)
         where = ""
         if source and key:
             where = f"{source}: {key}: "
@@ -39,7 +90,7 @@ class DesignError(StringcheckError):
             where = f"{source}: "
         elif key:
             where = f"{key}: "
-        super().__init__(where + message)
+        super().__init__(where, *message)
 
 
 class SizingError(StringcheckError):

@@ -648,12 +648,12 @@ def test_usage_errors_of_the_installed_command_are_one_line(args, fragment):
 def test_a_reader_that_goes_away_is_not_an_internal_error(demo_file, monkeypatch):
     # `--json - | head`: the pipe closes under us. Exit 141 (128 + SIGPIPE, the shell's code for
     # it), no "internal error" and no traceback.
-    import stringcheck.report.export as export
+    import stringcheck.cli.output_files as output_files
 
     def closed(*args, **kwargs):
         raise BrokenPipeError(32, "Broken pipe")
 
-    monkeypatch.setattr(export, "atomic_outputs", closed)
+    monkeypatch.setattr(output_files, "atomic_outputs", closed)
     result = invoke("check", str(demo_file), "--trials", "200", "--json", "-")
     assert result.exit_code == 141, result.output
     assert "internal error" not in result.output

@@ -36,6 +36,8 @@ from hypothesis import strategies as st
 from typer.testing import CliRunner
 
 import stringcheck.cli.app as cli
+import stringcheck.cli.output_files as output_files
+import stringcheck.cli.progress as cli_progress
 import stringcheck.report.export as export
 import stringcheck.studies.check as check_study
 import stringcheck.studies.size as size_study  # imported before any test patches run_check
@@ -398,14 +400,14 @@ def two_chunks(monkeypatch):
     def run(design, *, trials=None, seed=None, progress=None, **options):
         return real(design, trials=8192, seed=seed, progress=progress, chunk_trials=4096)
 
-    real_init = cli._DelayedProgress.__init__
+    real_init = cli_progress.DelayedProgress.__init__
 
     def started_long_ago(self, *args, **kwargs):
         real_init(self, *args, **kwargs)
         self.start -= 100.0
 
     monkeypatch.setattr(check_study, "run_check", run)
-    monkeypatch.setattr(cli._DelayedProgress, "__init__", started_long_ago)
+    monkeypatch.setattr(cli_progress.DelayedProgress, "__init__", started_long_ago)
 
 
 def test_json_on_stdout_is_only_json_with_the_progress_bar_shown(design_file, two_chunks):
@@ -555,24 +557,24 @@ def test_an_interrupted_run_exits_130_and_leaves_no_file(tmp_path, monkeypatch):
 
 
 def test_ctrl_c_under_a_live_display_is_held_to_the_next_report():
-    # cli._DeferredInterrupt: the first SIGINT only sets a flag (rich's redraw thread must not be cut
+    # cli_progress.DeferredInterrupt: the first SIGINT only sets a flag (rich's redraw thread must not be cut
     # at an arbitrary point), check() raises it, a second SIGINT raises at once, and the handler of
     # before is back afterwards.
     before = signal.getsignal(signal.SIGINT)
     with pytest.raises(KeyboardInterrupt):
-        with cli._DeferredInterrupt() as interrupt:
+        with cli_progress.DeferredInterrupt() as interrupt:
             os.kill(os.getpid(), signal.SIGINT)
             time.sleep(0.01)  # the handler has run by now, and raised nothing
             assert interrupt.requested
             interrupt.check()
     assert signal.getsignal(signal.SIGINT) is before
     with pytest.raises(KeyboardInterrupt):
-        with cli._DeferredInterrupt():
+        with cli_progress.DeferredInterrupt():
             os.kill(os.getpid(), signal.SIGINT)
             time.sleep(0.01)
         # leaving the context raises the interrupt still held
     with pytest.raises(KeyboardInterrupt):
-        with cli._DeferredInterrupt():
+        with cli_progress.DeferredInterrupt():
             os.kill(os.getpid(), signal.SIGINT)
             time.sleep(0.01)
             os.kill(os.getpid(), signal.SIGINT)  # the second one is not held
@@ -605,7 +607,7 @@ def test_ctrl_c_of_the_real_command_exits_130_and_keeps_the_old_output(tmp_path)
         # A shell without job control starts background jobs with SIGINT ignored; undo that.
         preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
     try:
-        # scipy is first imported inside the command's own error handling (cli._run imports the
+        # scipy is first imported inside the command's own error handling (the command imports the
         # study), so from then on Ctrl-C is the command's to handle; half a second more is well into
         # the run (10 million trials take minutes). numpy's bundled BLAS is named after scipy too,
         # hence the folder.
@@ -617,7 +619,7 @@ def test_ctrl_c_of_the_real_command_exits_130_and_keeps_the_old_output(tmp_path)
         process.kill()
     # A shell reports both as 130: the exit code 130, or death by SIGINT (128 + 2). The second was
     # seen about once in 50 runs with the progress bar shown, after the command's own message; its
-    # cause is not found (cli._DeferredInterrupt made it rarer).
+    # cause is not found (cli_progress.DeferredInterrupt made it rarer).
     assert process.returncode in (130, -signal.SIGINT), stderr
     assert stdout == "" and "interrupted" in stderr and "Traceback" not in stderr
     assert old.read_bytes() == OLD_JSON
@@ -641,7 +643,7 @@ def test_writer_interrupted_between_temporary_write_and_rename_removes_the_tempo
     monkeypatch.setattr(os, "fsync", fsync)
     monkeypatch.setattr(os, "replace", replace)
     with pytest.raises(KeyboardInterrupt):
-        export.write_text_atomic(target, '{"new": true}\n')
+        output_files.write_text_atomic(target, '{"new": true}\n')
     assert written, "the temporary file was never written"
     assert target.read_bytes() == OLD_JSON
     assert [p.name for p in tmp_path.iterdir()] == ["out.json"]
@@ -660,7 +662,7 @@ def test_writer_interrupted_between_two_renames_leaves_each_file_whole(tmp_path,
 
     monkeypatch.setattr(os, "replace", replace)
     with pytest.raises(KeyboardInterrupt):
-        export.write_files_atomic([(first, "new json\n"), (second, "new csv\n")])
+        output_files.write_files_atomic([(first, "new json\n"), (second, "new csv\n")])
     assert first.read_text() == "new json\n"
     assert second.read_bytes() == OLD_CSV
     assert sorted(p.name for p in tmp_path.iterdir()) == ["a.json", "b.csv"]
@@ -670,10 +672,10 @@ def test_replacing_a_file_keeps_its_permissions_and_a_new_file_gets_the_umask(tm
     kept = tmp_path / "kept.json"
     kept.write_text("old")
     kept.chmod(0o640)
-    export.write_text_atomic(kept, "new")
+    output_files.write_text_atomic(kept, "new")
     assert stat.S_IMODE(kept.stat().st_mode) == 0o640
     fresh = tmp_path / "fresh.json"
-    export.write_text_atomic(fresh, "new")
+    output_files.write_text_atomic(fresh, "new")
     mask = os.umask(0)
     os.umask(mask)
     # What open(..., "w") would have given; mkstemp alone would leave 0600.
@@ -686,7 +688,7 @@ def test_a_symbolic_link_is_followed_not_replaced(tmp_path):
     real.write_text("old")
     link = tmp_path / "latest.json"
     link.symlink_to(real)
-    export.write_text_atomic(link, "new")
+    output_files.write_text_atomic(link, "new")
     assert link.is_symlink() and real.read_text() == "new"
 
 
@@ -696,7 +698,7 @@ def test_a_device_is_written_in_place_never_renamed_over(monkeypatch):
         raise AssertionError(f"os.replace over {destination}")
 
     monkeypatch.setattr(os, "replace", replace)
-    export.write_text_atomic("/dev/null", "discarded\n")
+    output_files.write_text_atomic("/dev/null", "discarded\n")
     assert stat.S_ISCHR(os.stat("/dev/null").st_mode)
 
 

@@ -34,7 +34,7 @@ from stringcheck.montecarlo.sampling import (
     evaluation_trials,
 )
 from stringcheck.solvers.transient import simulate_turn_off
-from stringcheck.errors import StringcheckError
+from stringcheck.errors import Setting, StringcheckError
 from stringcheck.limits import within_limit
 from stringcheck.montecarlo.estimates import FailureEstimate, failure_estimate
 from stringcheck.montecarlo.mixed_stock import device_part_grid, position_values
@@ -359,10 +359,11 @@ def trial_trace(design: Design, trial: int, *, trials: int | None = None,
     if reason:
         raise StringcheckError(f"{design.source}: cannot simulate the turn-off: {reason}")
     if not 1 <= branch <= design.string.parallel:
-        raise StringcheckError(f"--branch must be in 1..{design.string.parallel}, got {branch}")
+        raise StringcheckError(Setting("branch"), f" must be in 1..{design.string.parallel}, "
+                               f"got {branch}")
     if not 0 <= trial < trials:
-        raise StringcheckError(f"--trial must be in 0..{trials - 1} (the run has {trials} trials),"
-                               f" got {trial}")
+        raise StringcheckError(Setting("trial"), f" must be in 0..{trials - 1} (the run has "
+                               f"{trials} trials), got {trial}")
     inductance, forward, notes = _loop(design, fits)
     stage = _stage_rows(design, fits, np.array([trial]), trials, seed)
     row = slice(branch - 1, branch)

@@ -21,7 +21,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Callable, Iterator, Sequence, TypeVar
 
-from stringcheck.errors import StringcheckError
+from stringcheck.errors import Setting, StringcheckError
 from stringcheck.montecarlo.sampling import BLOCK_TRIALS, evaluation_trials
 
 Context = TypeVar("Context")
@@ -66,14 +66,14 @@ def available_memory() -> int | None:
 
 
 def check_workers(workers: int) -> int:
-    """Validate a ``--workers`` value: 1 .. the number of CPUs this process may use."""
+    """Validate a ``workers`` value: 1 .. the number of CPUs this process may use."""
     available = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else \
         (os.cpu_count() or 1)
     if workers < 1:
-        raise StringcheckError(f"--workers must be at least 1, got {workers}")
+        raise StringcheckError(Setting("workers"), f" must be at least 1, got {workers}")
     if workers > 4 * available:
-        raise StringcheckError(f"--workers {workers} is far above the {available} CPU(s) of this "
-                               f"machine; use at most {available}")
+        raise StringcheckError(Setting("workers", workers), f" is far above the {available} CPU(s) "
+                               f"of this machine; use at most {available}")
     return workers
 
 

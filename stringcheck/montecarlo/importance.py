@@ -68,7 +68,7 @@ import numpy as np
 from scipy import optimize, special, stats
 
 from stringcheck.design.model import SPREAD_PARAMETERS, Design
-from stringcheck.errors import DesignError
+from stringcheck.errors import DesignError, Setting
 from stringcheck.limits import exceeds_limit, within_limit
 from stringcheck.montecarlo.sampling import (
     DrawnStrings,
@@ -301,8 +301,9 @@ def rare_design(design: Design) -> tuple[Design, tuple[str, ...]]:
             try:
                 parts[name] = replace(parts[name], measured=lot.as_fitted())
             except DesignError as error:
-                raise DesignError(f"is resampled, and --rare needs a fit to it: {error.detail}, "
-                                  "or run without --rare", source=design.source,
+                raise DesignError("is resampled, and ", Setting("rare", True), " needs a fit to "
+                                  f"it: {error.detail}, or run without ", Setting("rare", True),
+                                  source=design.source,
                                   key=f"parts.{name}.measured") from None
             refitted.append(name)
     return (replace(design, parts=parts) if refitted else design), tuple(refitted)

@@ -17,7 +17,7 @@ import numpy as np
 
 from stringcheck.constants import RESISTOR_TCR_REFERENCE
 from stringcheck.design.model import Design, Part
-from stringcheck.errors import DesignError
+from stringcheck.errors import DesignError, Setting
 from stringcheck.limits import within_limit
 from stringcheck.physics.leakage import leakage_current
 from stringcheck.checks.plausibility import PlausibilityWarning, plausibility_warnings
@@ -208,7 +208,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
     if trials < 1:
-        raise DesignError(f"--trials must be at least 1, got {trials}", key="monte_carlo.trials")
+        raise DesignError(Setting("trials"), f" must be at least 1, got {trials}",
+                          key="monte_carlo.trials")
     if design.grading.resistor is None and any(
             design.parts[name].voltage_exponent == 0.0 for name in design.parts_used()):
         raise DesignError("missing; with voltage-independent leakage (leakage_voltage_exponent = 0) "
@@ -452,8 +453,8 @@ def _check_memory(design: Design, trials: int, per_trial: float) -> None:
     raise DesignError(
         f"{trials:,} trials keep {per_trial:.0f} bytes of figures each ({_bytes(kept)}), and "
         f"summarising them takes about {_SUMMARY_FACTOR} times that ({_bytes(needed)}), more than "
-        f"the {_bytes(available)} of memory available: use at most {most:,} trials (--trials or "
-        "monte_carlo.trials)", source=design.source, key="monte_carlo.trials")
+        f"the {_bytes(available)} of memory available: use at most {most:,} trials (",
+        Setting("trials"), " or monte_carlo.trials)", source=design.source, key="monte_carlo.trials")
 
 
 def _bytes(count: float) -> str:

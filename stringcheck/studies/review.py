@@ -6,7 +6,7 @@ latent standard-normal value in both (montecarlo/sampling.py keys its streams by
 and only the mapping of that latent value through the part's spread differs where the part
 changed. Differences between the two results are therefore the parts' doing, not sampling noise.
 
-A mixed-stock candidate (``--mix FRACTION:PART``, :func:`mixed`) keeps the baseline's parts but
+A mixed-stock candidate (``mix="FRACTION:PART"``, :func:`mixed`) keeps the baseline's parts but
 makes every device of every built string the given part with probability FRACTION, drawn from a
 stream of its own (``sampling.substituted_devices``), so it too shares every other draw with the
 baseline.
@@ -25,7 +25,7 @@ import numpy as np
 
 from stringcheck.checks.grading_ratings import STAGE_VOLTAGE_CHECKS
 from stringcheck.design.model import MAX_LEAKAGE_DOUBLINGS, Design, Mix, PositionOverride
-from stringcheck.errors import StringcheckError, excerpt
+from stringcheck.errors import Setting, StringcheckError, excerpt
 from stringcheck.design.parts import check_lot_sizes
 from stringcheck.studies.check import CheckResult, run_check
 from stringcheck.montecarlo.executor import worker_pool
@@ -84,22 +84,22 @@ def parse_swap(text: str, design: Design) -> tuple[tuple[int, ...], str]:
     Every number is checked against the string's series count before a range is built, so a slip
     (``1-100000000:B``) is one short message, not a list of a hundred million positions.
     """
-    option = f"--swap {excerpt(text)}"
+    option = Setting("swap", text)
     match = _SWAP.match(text)
     if not match:
-        raise StringcheckError(f"{option}: write POSITIONS:PART, e.g. 1-4:B or 7,9:B")
+        raise StringcheckError(option, ": write POSITIONS:PART, e.g. 1-4:B or 7,9:B")
     series = design.string.series
 
     def position(digits: str, piece: str) -> int:
         digits = digits.strip()
         if not digits.isdigit():
-            raise StringcheckError(f"{option}: {excerpt(piece)} is not a position number or a "
+            raise StringcheckError(option, f": {excerpt(piece)} is not a position number or a "
                                    "range like 1-4")
         # More digits than any series count has: out of range without reading the number.
         number = int(digits) if len(digits) <= 9 else series + 1
         if not 1 <= number <= series:
             shown = digits if len(digits) <= 12 else digits[:9] + "..."
-            raise StringcheckError(f"{option}: position {shown} lies outside 1..{series} (the "
+            raise StringcheckError(option, f": position {shown} lies outside 1..{series} (the "
                                    "string's series count)")
         return number
 
@@ -111,19 +111,19 @@ def parse_swap(text: str, design: Design) -> tuple[tuple[int, ...], str]:
         if "-" in piece:
             first, _, last = piece.partition("-")
             if not (first.strip().isdigit() and last.strip().isdigit()):
-                raise StringcheckError(f"{option}: {excerpt(piece)} is not a range like 1-4")
+                raise StringcheckError(option, f": {excerpt(piece)} is not a range like 1-4")
             low, high = position(first, piece), position(last, piece)
             if low > high:
-                raise StringcheckError(f"{option}: the range {excerpt(piece)} runs backwards")
+                raise StringcheckError(option, f": the range {excerpt(piece)} runs backwards")
             positions.update(range(low, high + 1))
         else:
             positions.add(position(piece, piece))
     if not positions:
-        raise StringcheckError(f"{option}: no position given; write e.g. 1-4:B or 7,9:B")
+        raise StringcheckError(option, ": no position given; write e.g. 1-4:B or 7,9:B")
     part = match.group(2)
     if part not in design.parts:
         known = ", ".join(sorted(design.parts))
-        raise StringcheckError(f"{option}: no part {excerpt(part)} in {design.source}; define "
+        raise StringcheckError(option, f": no part {excerpt(part)} in {design.source}; define "
                                f"[parts.{excerpt(part)[1:-1]}] there (known: {known})")
     ordered = tuple(sorted(positions))
     _check_substitute(design, part, option,
@@ -161,45 +161,45 @@ _MIX = re.compile(r"^\s*([^:%\s]+)\s*(%?)\s*:\s*([^:\s]+)\s*$")
 
 def parse_mix(text: str, design: Design) -> tuple[float, str]:
     """``"0.25:B"`` or ``"25%:B"`` -> (fraction [1] in [0, 1], part), checked against ``design``."""
-    option = f"--mix {excerpt(text)}"
+    option = Setting("mix", text)
     match = _MIX.match(text)
     if not match:
-        raise StringcheckError(f"{option}: write FRACTION:PART, e.g. 0.25:B or 25%:B")
+        raise StringcheckError(option, ": write FRACTION:PART, e.g. 0.25:B or 25%:B")
     try:
         fraction = float(match.group(1))
     except ValueError:
-        raise StringcheckError(f"{option}: {excerpt(match.group(1))} is not a number; write "
+        raise StringcheckError(option, f": {excerpt(match.group(1))} is not a number; write "
                                "FRACTION:PART, e.g. 0.25:B or 25%:B") from None
     if match.group(2):
         fraction /= 100.0
     if not (math.isfinite(fraction) and 0.0 <= fraction <= 1.0):
-        raise StringcheckError(f"{option}: the fraction must lie in 0..1 (or 0%..100%)")
+        raise StringcheckError(option, ": the fraction must lie in 0..1 (or 0%..100%)")
     part = match.group(3)
     if part not in design.parts:
         known = ", ".join(sorted(design.parts))
-        raise StringcheckError(f"{option}: no part {excerpt(part)} in {design.source}; define "
+        raise StringcheckError(option, f": no part {excerpt(part)} in {design.source}; define "
                                f"[parts.{excerpt(part)[1:-1]}] there (known: {known})")
     _check_substitute(design, part, option, design.string.temperature_rise_grid())
     return fraction, part
 
 
-def _check_substitute(design: Design, name: str, option: str, rise) -> None:
-    """What the design reader checks of a part in use, for a part the option brings in; ``rise``
-    holds the temperature rises [K] of the positions it may take."""
+def _check_substitute(design: Design, name: str, option: Setting, rise) -> None:
+    """What the design reader checks of a part in use, for a part the setting ``option`` (``swap``
+    or ``mix``) brings in; ``rise`` holds the temperature rises [K] of the positions it may take."""
     part = design.parts[name]
     if part.i_r is None:
-        raise StringcheckError(f"{option}: part {name!r} gives no i_r; the static check needs its "
+        raise StringcheckError(option, f": part {name!r} gives no i_r; the static check needs its "
                                f"reverse leakage: add parts.{name}.i_r to {design.source}")
     hottest = design.duty.ambient + float(np.max(rise))
     if part.t_j_max is not None and hottest >= part.t_j_max:
-        raise StringcheckError(f"{option}: ambient plus temperature rise ({hottest:g} degC) is not "
+        raise StringcheckError(option, f": ambient plus temperature rise ({hottest:g} degC) is not "
                                f"below t_j_max of part {name!r} ({part.t_j_max:g} degC); choose "
                                "another part or lower duty.ambient")
     temperatures = design.duty.ambient + np.asarray(rise, dtype=float)
     doublings = float(np.max(np.abs(temperatures - part.i_r.at_temperature))) / \
         part.doubling_temperature
     if doublings > MAX_LEAKAGE_DOUBLINGS:
-        raise StringcheckError(f"{option}: referring part {name!r}'s leakage from its "
+        raise StringcheckError(option, f": referring part {name!r}'s leakage from its "
                                f"i_r.at_temperature takes {doublings:.3g} doublings, more than "
                                f"{MAX_LEAKAGE_DOUBLINGS}; check parts.{name}.leakage_doubling")
 
@@ -210,6 +210,15 @@ def mixed(design: Design, fraction: float, part: str) -> Design:
     layout = replace(design.string, mix=Mix(fraction=fraction, part=part))
     title = f"{design.title} with {part} mixed in at {100 * fraction:.4g} % of the devices"
     return _lots_checked(replace(design, string=layout, title=title))
+
+
+def substituted(baseline: Design, *, swap: str | None = None, mix: str | None = None) -> Design:
+    """The candidate that ``swap`` (``"1-4:B"``, :func:`parse_swap`) or ``mix`` (``"0.25:B"``,
+    :func:`parse_mix`) makes of ``baseline``; exactly one of the two is given (``mix`` wins)."""
+    if mix is not None:
+        return mixed(baseline, *parse_mix(mix, baseline))
+    positions, part = parse_swap(swap, baseline)
+    return swapped(baseline, positions, part)
 
 
 def _ranges(positions: tuple[int, ...]) -> str:

@@ -21,7 +21,7 @@ import numpy as np
 
 from stringcheck import eseries
 from stringcheck.design.model import LOGNORMAL_PARAMETERS, MAX_DEVICES, Design
-from stringcheck.errors import DesignError, ImpossibleDesignError, SizingError
+from stringcheck.errors import DesignError, ImpossibleDesignError, Setting, SizingError
 from stringcheck.limits import within_limit
 from stringcheck.physics.grading import (
     discharge_time,
@@ -170,7 +170,8 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
     if trials < needed:
         raise SizingError(
             f"{trials} trials cannot show P(fail) <= {target:g} at {confidence:.0%} confidence even "
-            f"with no failure; use --trials {needed} or more (or raise [sizing] target_p_fail)")
+            "with no failure; use ", Setting("trials", needed),
+            " or more (or raise [sizing] target_p_fail)")
     say = progress or (lambda message: None)
     design = _enough_devices(design, find_series)
 
@@ -195,7 +196,8 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
         if resistor.chosen is None:
             raise SizingError("no grading resistor between 1 ohm and 100 GOhm meets the target "
                               "(with a small R the sharing follows the resistor tolerance); add "
-                              "devices (--find-series) or tighten grading.resistor_tolerance")
+                              "devices (", Setting("find_series", True), ") or tighten "
+                              "grading.resistor_tolerance")
         sized = with_resistor(resistor.chosen.value)
 
         capacitor = None
@@ -213,7 +215,7 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
             if capacitor.chosen is None:
                 raise SizingError("no grading capacitor up to 1 mF meets the target at turn-off "
                                   "(with a large C the sharing follows the capacitor tolerance); "
-                                  "add devices (--find-series), tighten "
+                                  "add devices (", Setting("find_series", True), "), tighten "
                                   "grading.capacitor_tolerance or the parts' Q_rr spread")
             sized = with_capacitor(capacitor.chosen.value)
         return resistor, capacitor, sized
@@ -524,7 +526,7 @@ def _enough_devices(design: Design, find_series: bool) -> Design:
         f"{design.source or 'design'}: the string cannot hold {design.duty.reverse_voltage:g} V even "
         f"with perfect sharing: derating x V_RRM summed over the {layout.series} devices of a branch "
         f"is {capacity:g} V (derating {layout.derating:g}); no grading network can fix that: use "
-        f"string.series >= {minimum}, or add --find-series")
+        f"string.series >= {minimum}, or add ", Setting("find_series", True))
 
 
 def _damping_in_time_domain(design: Design, rule_value: float, rule: str, trials: int, seed: int,

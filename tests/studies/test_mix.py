@@ -285,7 +285,7 @@ t_j_max = "20 degC"
         parse_mix("0.1:NOLEAK", design)
     with pytest.raises(StringcheckError, match="t_j_max of part 'COOL'"):
         parse_mix("0.1:COOL", design)
-    with pytest.raises(StringcheckError, match="--swap.*NOLEAK.*i_r"):
+    with pytest.raises(StringcheckError, match="swap='2:NOLEAK'.*NOLEAK.*i_r"):
         parse_swap("2:NOLEAK", design)
 
 

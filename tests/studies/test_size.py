@@ -137,7 +137,8 @@ def test_find_series_stops_at_the_device_cap_with_the_arithmetic():
 
 def test_too_few_trials_for_the_target_is_a_clear_error():
     # Zero-failure Clopper-Pearson bound: 1000 trials cannot show P <= 1e-3 (needs about 3689).
-    with pytest.raises(SizingError, match="--trials"):
+    # The study names its keyword; the option's wording: tests/cli/test_option_wording.py.
+    with pytest.raises(SizingError, match=r"use trials=\d+ or more"):
         size(parse_design_text(corner(trials=1000)))
 
 
