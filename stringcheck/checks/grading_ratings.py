@@ -12,6 +12,7 @@ from typing import Mapping
 
 import numpy as np
 
+from stringcheck.checks.outcome import Exported, figure, json_number, listed, text_or_null
 from stringcheck.design.model import Design
 from stringcheck.limits import exceeds_limit
 from stringcheck.physics.grading import discharge_time, resistor_power, stored_energy
@@ -32,30 +33,37 @@ _CHECK_WORDS = {"static": "static blocking", "dynamic": "charge-balance turn-off
                 "transient": "simulated turn-off peak"}
 
 
-@dataclass(frozen=True)
-class GradingSummary:
-    """What the grading network must withstand, from nominal values and the worst drawn voltages."""
+@dataclass(frozen=True, eq=False, kw_only=True, repr=False)
+class GradingSummary(Exported):
+    """What the grading network must withstand, from nominal values and the worst drawn voltages
+    (SI units); its JSON is the result's ``network``."""
 
-    resistor: float | None
-    capacitor: float | None
-    damping_resistor: float | None
-    worst_resistor_voltage: float
-    worst_voltage_check: str
-    resistor_power_continuous: float | None
-    resistor_power_duty: float | None
-    resistor_rated_power: float | None
-    resistor_rated_voltage: float | None
-    total_grading_loss: float | None
-    worst_capacitor_voltage: float
-    capacitor_rated_voltage: float | None
-    stage_energy: float | None
-    total_energy: float | None
-    discharge_time: float
-    grading_current: float | None
-    hottest_max_leakage: float
-    rating_problems: tuple[str, ...]
-    advisories: tuple[str, ...]
+    json_order = ("resistor", "capacitor", "damping_resistor", "worst_stage_voltage",
+                  "worst_stage_voltage_check", "resistor_power_continuous", "resistor_power_duty",
+                  "resistor_rated_power", "resistor_rated_voltage", "capacitor_rated_voltage",
+                  "total_grading_loss", "stage_energy", "total_energy", "discharge_time",
+                  "grading_current", "hottest_max_leakage", "rating_problems", "advisories")
 
+    resistor: float | None = figure(unit="ohm")
+    capacitor: float | None = figure(unit="F")
+    damping_resistor: float | None = figure(unit="ohm")
+    worst_resistor_voltage: float = figure("worst_stage_voltage", unit="V", encode=json_number)
+    worst_voltage_check: str = figure("worst_stage_voltage_check", encode=text_or_null)
+    resistor_power_continuous: float | None = figure(unit="W", encode=json_number)
+    resistor_power_duty: float | None = figure(unit="W", encode=json_number)
+    resistor_rated_power: float | None = figure(unit="W")
+    resistor_rated_voltage: float | None = figure(unit="V")
+    total_grading_loss: float | None = figure(unit="W", encode=json_number)
+    # The same worst stage voltage as worst_resistor_voltage (every component of a stage sees it).
+    worst_capacitor_voltage: float = figure(None, unit="V")
+    capacitor_rated_voltage: float | None = figure(unit="V")
+    stage_energy: float | None = figure(unit="J", encode=json_number)
+    total_energy: float | None = figure(unit="J", encode=json_number)
+    discharge_time: float = figure(unit="s", encode=json_number)
+    grading_current: float | None = figure(unit="A", encode=json_number)
+    hottest_max_leakage: float = figure(unit="A", encode=json_number)
+    rating_problems: tuple[str, ...] = figure(encode=listed)
+    advisories: tuple[str, ...] = figure(encode=listed)
 
 
 def worst_stage_voltage(checks: Mapping[str, object]) -> tuple[float, str]:

@@ -13,7 +13,7 @@ from rich.text import Text
 
 from stringcheck.design.model import Design
 from stringcheck.units import format_quantity
-from stringcheck.report.check_sections import json_number
+from stringcheck.checks.outcome import json_number
 from stringcheck.report.display_text import shown
 
 _UNITS = {"i_r": "A", "q_rr": "C", "i_rm": "A", "t_rr": "s", "v_t0": "V", "r_t": "ohm"}
