@@ -68,7 +68,7 @@ DEFAULT_TARGET_SHARE = 1.1
 _BALLAST_RTOL = 1e-6
 
 
-@dataclass(frozen=True, eq=False, kw_only=True, repr=False)
+@dataclass(frozen=True, kw_only=True, repr=False)
 class BranchStatistics(Exported):
     """Statistics of one branch over all trials."""
 
@@ -81,7 +81,7 @@ class BranchStatistics(Exported):
     failures: int = figure()
 
 
-@dataclass(frozen=True, eq=False, kw_only=True, repr=False)
+@dataclass(frozen=True, kw_only=True, repr=False)
 class DeviceTemperature(Exported):
     """Junction temperature of one device position over the converged trials [degC]."""
 
@@ -94,7 +94,7 @@ class DeviceTemperature(Exported):
     failures: int = figure()
 
 
-@dataclass(frozen=True, eq=False, kw_only=True, repr=False)
+@dataclass(frozen=True, kw_only=True, repr=False)
 class BallastAdvice(Exported):
     """The series ballast per branch that brings the share under ``target_share``."""
 

@@ -33,7 +33,7 @@ _CHECK_WORDS = {"static": "static blocking", "dynamic": "charge-balance turn-off
                 "transient": "simulated turn-off peak"}
 
 
-@dataclass(frozen=True, eq=False, kw_only=True, repr=False)
+@dataclass(frozen=True, kw_only=True, repr=False)
 class GradingSummary(Exported):
     """What the grading network must withstand, from nominal values and the worst drawn voltages
     (SI units); its JSON is the result's ``network``."""

@@ -149,9 +149,10 @@ class Exported:
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON object of this result: the same dict the JSON export writes for it."""
+        keys = type(self).json_fields()  # every field declared, before anything is encoded
         entries: dict[str, Any] = {}
         for item in dataclasses.fields(self):
-            key = _json_key(type(self), item)
+            key = keys[item.name][0]
             if key is None:
                 continue
             value = item.metadata["encode"](getattr(self, item.name))

@@ -47,7 +47,7 @@ SERIES_CHECKS = ("static", "dynamic")
 _SOLVE_TRIALS = 2 * BLOCK_TRIALS
 
 
-@dataclass(frozen=True, eq=False, kw_only=True, repr=False)
+@dataclass(frozen=True, kw_only=True, repr=False)
 class PositionStatistics(Exported):
     """Statistics of one device position over all trials [V]."""
 

@@ -75,7 +75,7 @@ _BATCH = 512
 DEFAULT_WORST = 20
 
 
-@dataclass(frozen=True, eq=False, kw_only=True, repr=False)
+@dataclass(frozen=True, kw_only=True, repr=False)
 class TransientPosition(Exported):
     """Peak reverse voltage of one position over the random sample [V]."""
 
