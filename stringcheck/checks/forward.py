@@ -106,7 +106,7 @@ class BallastAdvice(Exported):
     reachable: bool = figure()
 
 
-@dataclass(frozen=True, eq=False, kw_only=True, repr=False)
+@dataclass(frozen=True, eq=True, kw_only=True, repr=False)
 class ParallelCheck(CheckOutcome):
     """Current sharing of the parallel branches (shares and ratios [-], currents [A])."""
 
@@ -125,7 +125,7 @@ class ParallelCheck(CheckOutcome):
         return self.branches
 
 
-@dataclass(frozen=True, eq=False, kw_only=True, repr=False)
+@dataclass(frozen=True, eq=True, kw_only=True, repr=False)
 class ThermalCheck(CheckOutcome):
     """Electro-thermal equilibrium of the group: junction temperatures [degC] and runaway."""
 

@@ -191,6 +191,8 @@ def _cut(text: str) -> str:
     return text if len(text) <= REPR_LIMIT else text[:REPR_LIMIT - 3] + "..."
 
 
+# eq=False: identity, as for a result holding arrays (the series checks' worst string); a check
+# whose fields are all scalars declares eq=True and compares by value.
 @dataclass(frozen=True, eq=False, kw_only=True, repr=False)
 class CheckOutcome(Exported):
     """What every check's result holds. A check extends it with its own figures."""
@@ -228,8 +230,9 @@ class CheckOutcome(Exported):
         return upper_bound <= target
 
     def per_position(self) -> tuple:
-        """The per-position figures (the parallel check's are per branch); () when none."""
-        return getattr(self, "positions", ())
+        """The per-position figures (the parallel check's are per branch); a check with them
+        returns them here, the base has none."""
+        return ()
 
     def to_frame(self):
         """The per-position figures as a pandas DataFrame, one row per position (branch for the

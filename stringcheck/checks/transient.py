@@ -90,7 +90,7 @@ class TransientPosition(Exported):
     failures: int = figure()
 
 
-@dataclass(frozen=True, eq=False, kw_only=True, repr=False)
+@dataclass(frozen=True, eq=True, kw_only=True, repr=False)
 class TransientCheck(CheckOutcome):
     """Outcome of the transient check (voltages [V], currents [A], energies [J])."""
 

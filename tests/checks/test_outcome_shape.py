@@ -146,10 +146,19 @@ def test_result_to_dict_is_the_export_without_the_worded_sections(result):
     assert [key for key in exported if key in own] == list(own)
 
 
-@pytest.mark.parametrize("kind", CHECK_TYPES + (CheckResult,))
+@pytest.mark.parametrize("kind", (SeriesCheck, DynamicCheck, CheckResult))
 def test_results_holding_arrays_compare_by_identity(kind):
     # A generated __eq__ would compare the arrays and raise ("truth value ... is ambiguous").
     assert kind.__eq__ is object.__eq__
+
+
+@pytest.mark.parametrize("name", ("transient", "parallel", "thermal"))
+def test_results_of_scalars_compare_by_value(result, name):
+    check = result.checks[name]
+    assert not any(isinstance(getattr(check, item.name), np.ndarray)
+                   for item in dataclasses.fields(check))
+    assert dataclasses.replace(check) == check
+    assert dataclasses.replace(check, worst_trial=check.worst_trial + 1) != check
 
 
 def test_comparing_two_series_checks_does_not_raise(result):
