@@ -358,7 +358,7 @@ def sizing_to_dict(result: "SizingResult") -> dict[str, Any]:
             "resistor_power_continuous": json_number(ratings.resistor_power_continuous),
             "resistor_power_duty": json_number(ratings.resistor_power_duty),
             "resistor_power_required": json_number(ratings.resistor_power_required),
-            "grading_loss_total": json_number(ratings.grading_loss_total),
+            "grading_loss_total": json_number(ratings.total_grading_loss),
             "capacitor_voltage_required": json_number(ratings.capacitor_voltage_required),
             "damping_loss_per_stage": json_number(ratings.damping_loss_per_stage),
             "damping_loss_total": json_number(ratings.damping_loss_total),

@@ -291,7 +291,7 @@ def _render_network(result: CheckResult, console: Console) -> None:
                         if grading.resistor_rated_power else "")))
         rows.append(("total grading loss at nominal share", format_quantity(grading.total_grading_loss, "W")))
     rows.append((f"worst stage voltage ({_worst_from(grading.worst_voltage_check)})",
-                 format_quantity(grading.worst_resistor_voltage, "V")
+                 format_quantity(grading.worst_stage_voltage, "V")
                  + (f" (resistor rated {format_quantity(grading.resistor_rated_voltage, 'V')})"
                     if grading.resistor_rated_voltage else "")))
     rows.append(("hottest device's maximum leakage", format_quantity(grading.hottest_max_leakage, "A")))
@@ -429,7 +429,7 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
         (f"resistor power, {design.duty.waveform} duty (RMS)", format_quantity(ratings.resistor_power_duty, "W")),
         (f"resistor power rating required (/ derating {ratings.derating:g})",
          format_quantity(ratings.resistor_power_required, "W")),
-        ("total grading-resistor loss", format_quantity(ratings.grading_loss_total, "W")),
+        ("total grading-resistor loss", format_quantity(ratings.total_grading_loss, "W")),
     ]
     if result.capacitor is not None:
         rows += [
