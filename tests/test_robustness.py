@@ -320,8 +320,9 @@ def test_branch_entry_wins_over_every_branch_entry_whatever_the_order():
 
 def test_the_tcr_reference_temperature_is_the_studys():
     from stringcheck import constants as design
+    from stringcheck.checks import preconditions
 
-    assert design.RESISTOR_TCR_REFERENCE == check_study.RESISTOR_TCR_REFERENCE
+    assert design.RESISTOR_TCR_REFERENCE == preconditions.RESISTOR_TCR_REFERENCE
 
 
 # --- usage errors, internal errors, exit codes -----------------------------------------------------

@@ -41,7 +41,17 @@ from stringcheck.physics.forward import slope_resistance, threshold_voltage
 from stringcheck.montecarlo.estimates import FailureEstimate, failure_estimate
 from stringcheck.montecarlo.mixed_stock import device_values, position_values
 from stringcheck.montecarlo.accumulators import BlockSums, unit_sums
-from stringcheck.montecarlo.importance import RareEstimate
+from stringcheck.checks.outcome import (
+    CheckOutcome,
+    Exported,
+    figure,
+    json_number,
+    numbers_by_key,
+    record_or_null,
+    records,
+    runaway_keys,
+    turn_off_to_dict,
+)
 from stringcheck.checks.recovery_conditions import (
     RecoveryRescaling,
     TurnOffCurrent,
@@ -59,94 +69,93 @@ DEFAULT_TARGET_SHARE = 1.1
 _BALLAST_RTOL = 1e-6
 
 
-@dataclass(frozen=True)
-class BranchStatistics:
+@dataclass(frozen=True, kw_only=True, repr=False)
+class BranchStatistics(Exported):
     """Statistics of one branch over all trials."""
 
-    branch: int
-    limit_current: float
-    mean_current: float
-    max_current: float
-    mean_share: float
-    max_share: float
-    failures: int
+    branch: int = figure()
+    limit_current: float = figure(unit="A", encode=json_number)
+    mean_current: float = figure(unit="A", encode=json_number)
+    max_current: float = figure(unit="A", encode=json_number)
+    mean_share: float = figure(encode=json_number)
+    max_share: float = figure(encode=json_number)
+    failures: int = figure()
 
 
-@dataclass(frozen=True)
-class DeviceTemperature:
+@dataclass(frozen=True, kw_only=True, repr=False)
+class DeviceTemperature(Exported):
     """Junction temperature of one device position over the converged trials [degC]."""
 
-    branch: int
-    index: int
-    part: str
-    limit: float
-    mean_temperature: float
-    max_temperature: float
-    failures: int
+    branch: int = figure()
+    index: int = figure()
+    part: str = figure()
+    limit: float = figure(unit="degC")
+    mean_temperature: float = figure("mean_tj", unit="degC", encode=json_number)
+    max_temperature: float = figure("max_tj", unit="degC", encode=json_number)
+    failures: int = figure()
 
 
-@dataclass(frozen=True)
-class BallastAdvice:
+@dataclass(frozen=True, kw_only=True, repr=False)
+class BallastAdvice(Exported):
     """The series ballast per branch that brings the share under ``target_share``."""
 
-    target_share: float
-    resistance: float | None
-    exact_resistance: float
-    loss: float | None
-    quantile: float
-    reachable: bool
+    target_share: float = figure()
+    resistance: float | None = figure(unit="ohm", encode=json_number)
+    exact_resistance: float = figure(unit="ohm", encode=json_number)
+    loss: float | None = figure(unit="W", encode=json_number)
+    quantile: float = figure()
+    reachable: bool = figure()
 
 
-@dataclass(frozen=True)
-class ParallelCheck:
-    """Current sharing of the parallel branches."""
+@dataclass(frozen=True, eq=True, kw_only=True, repr=False)
+class ParallelCheck(CheckOutcome):
+    """Current sharing of the parallel branches (shares and ratios [-], currents [A])."""
 
-    name: str
-    ran: bool
-    reason: str
-    passed: bool
-    worst_share: float
-    p99_share: float
-    worst_ratio: float
-    p50_ratio: float
-    p99_ratio: float
-    estimate: FailureEstimate | None
-    unsolved: int
-    worst_trial: int
-    required_derating: float
-    electro_thermal: bool
-    branches: tuple[BranchStatistics, ...]
-    ballast: BallastAdvice | None
-    rare: RareEstimate | None = None
+    json_order = ("passed", "worst_share", "p99_share", "worst_ratio", "p50_ratio", "p99_ratio",
+                  "failures", "p_fail", "p_fail_ci", "rare", "unsolved", "worst_trial",
+                  "required_derating", "electro_thermal", "branches", "ballast")
+
+    worst_share: float = figure(encode=json_number, idle=np.nan)
+    p99_share: float = figure(encode=json_number, idle=np.nan)
+    required_derating: float = figure(encode=json_number, idle=np.nan)
+    electro_thermal: bool = figure(idle=False)
+    branches: tuple[BranchStatistics, ...] = figure(encode=records, idle=())
+    ballast: BallastAdvice | None = figure(encode=record_or_null, idle=None)
+
+    def per_position(self) -> tuple[BranchStatistics, ...]:
+        return self.branches
 
 
-@dataclass(frozen=True)
-class ThermalCheck:
-    """Electro-thermal equilibrium of the group: junction temperatures and runaway."""
+@dataclass(frozen=True, eq=True, kw_only=True, repr=False)
+class ThermalCheck(CheckOutcome):
+    """Electro-thermal equilibrium of the group: junction temperatures [degC] and runaway."""
 
-    name: str
-    ran: bool
-    reason: str
-    passed: bool
-    worst_tj: float
-    p99_tj: float
-    worst_ratio: float
-    p50_ratio: float
-    p99_ratio: float
-    estimate: FailureEstimate | None
-    runaway: FailureEstimate | None
-    over_limit: int
-    unsolved: int
-    worst_trial: int
-    runaway_ambient: dict[str, float]
-    runaway_ambient_trials: int
-    runaway_search_limit: float
-    positions: tuple[DeviceTemperature, ...]
-    total_power_mean: float
-    rare: RareEstimate | None = None
+    json_order = ("passed", "worst_tj", "p99_tj", "worst_ratio", "p50_ratio", "p99_ratio",
+                  "failures", "p_fail", "p_fail_ci", "rare", "p_runaway", "p_runaway_ci",
+                  "runaway_trials", "over_tj_max_trials", "worst_trial", "runaway_ambient",
+                  "runaway_ambient_trials", "runaway_search_limit", "mean_total_power",
+                  "turn_off_current", "positions")
+
+    # The groups that ran away: in the JSON as runaway_trials.
+    unsolved: int = figure(None, idle=0)
+    worst_tj: float = figure(unit="degC", encode=json_number, idle=np.nan)
+    p99_tj: float = figure(unit="degC", encode=json_number, idle=np.nan)
+    runaway: FailureEstimate | None = figure(encode=runaway_keys, spread=True, idle=None)
+    over_limit: int = figure("over_tj_max_trials", idle=0)
+    runaway_ambient: dict[str, float] = figure(unit="degC", encode=numbers_by_key,
+                                               idle_factory=dict)
+    runaway_ambient_trials: int = figure(idle=0)
+    runaway_search_limit: float = figure(unit="degC", idle=np.nan)
+    positions: tuple[DeviceTemperature, ...] = figure(encode=records, idle=())
+    total_power_mean: float = figure("mean_total_power", unit="W", encode=json_number,
+                                     idle=np.nan)
     # The current each branch commutates from, to which the recovery loss's Q_rr was carried
     # (None: Q_rr at the datasheet's test conditions, or no turn-off).
-    turn_off_current: TurnOffCurrent | None = None
+    turn_off_current: TurnOffCurrent | None = figure(unit="A", encode=turn_off_to_dict,
+                                                     default=None)
+
+    def per_position(self) -> tuple[DeviceTemperature, ...]:
+        return self.positions
 
 
 @dataclass(frozen=True)
@@ -469,11 +478,7 @@ def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulato
                     confidence: float, target: float, trials: int) -> ParallelCheck:
     """Summarise the parallel check over the whole run."""
     if reason:
-        return ParallelCheck(name="parallel", ran=False, reason=reason, passed=False,
-                             worst_share=np.nan, p99_share=np.nan, worst_ratio=np.nan,
-                             p50_ratio=np.nan, p99_ratio=np.nan, estimate=None, unsolved=0,
-                             worst_trial=-1, required_derating=np.nan, electro_thermal=False,
-                             branches=(), ballast=None)
+        return ParallelCheck.not_run("parallel", reason)
     share = accumulator.joined("share")
     ratio = accumulator.joined("current_ratio")
     currents = accumulator.joined("branch_current")
@@ -545,12 +550,7 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
                    trials: int) -> ThermalCheck:
     """Summarise the thermal check over the whole run."""
     if reason:
-        return ThermalCheck(name="thermal", ran=False, reason=reason, passed=False,
-                            worst_tj=np.nan, p99_tj=np.nan, worst_ratio=np.nan, p50_ratio=np.nan,
-                            p99_ratio=np.nan, estimate=None, runaway=None, over_limit=0,
-                            unsolved=0, worst_trial=-1, runaway_ambient={},
-                            runaway_ambient_trials=0, runaway_search_limit=np.nan,
-                            positions=(), total_power_mean=np.nan)
+        return ThermalCheck.not_run("thermal", reason)
     ratio = accumulator.joined("tj_ratio")
     worst = accumulator.joined("worst_tj")
     classes = accumulator.joined("classification")

@@ -12,6 +12,7 @@ from typing import Mapping
 
 import numpy as np
 
+from stringcheck.checks.outcome import Exported, figure, json_number, listed, text_or_null
 from stringcheck.constants import SAFE_DISCHARGE_TIME, SAFE_VOLTAGE
 from stringcheck.design.model import Design
 from stringcheck.limits import exceeds_limit
@@ -29,30 +30,45 @@ _CHECK_WORDS = {"static": "static blocking", "dynamic": "charge-balance turn-off
                 "transient": "simulated turn-off peak"}
 
 
-@dataclass(frozen=True)
-class GradingSummary:
-    """What the grading network must withstand, from nominal values and the worst drawn voltages."""
+@dataclass(frozen=True, kw_only=True, repr=False)
+class GradingSummary(Exported):
+    """What the grading network must withstand, from nominal values and the worst drawn voltages
+    (SI units); its JSON is the result's ``network``."""
 
-    resistor: float | None
-    capacitor: float | None
-    damping_resistor: float | None
-    worst_resistor_voltage: float
-    worst_voltage_check: str
-    resistor_power_continuous: float | None
-    resistor_power_duty: float | None
-    resistor_rated_power: float | None
-    resistor_rated_voltage: float | None
-    total_grading_loss: float | None
-    worst_capacitor_voltage: float
-    capacitor_rated_voltage: float | None
-    stage_energy: float | None
-    total_energy: float | None
-    discharge_time: float
-    grading_current: float | None
-    hottest_max_leakage: float
-    rating_problems: tuple[str, ...]
-    advisories: tuple[str, ...]
+    json_order = ("resistor", "capacitor", "damping_resistor", "worst_stage_voltage",
+                  "worst_stage_voltage_check", "resistor_power_continuous", "resistor_power_duty",
+                  "resistor_rated_power", "resistor_rated_voltage", "capacitor_rated_voltage",
+                  "total_grading_loss", "stage_energy", "total_energy", "discharge_time",
+                  "grading_current", "hottest_max_leakage", "rating_problems", "advisories")
 
+    resistor: float | None = figure(unit="ohm")
+    capacitor: float | None = figure(unit="F")
+    damping_resistor: float | None = figure(unit="ohm")
+    # The highest stage voltage any check found: every component of a stage sees it.
+    worst_stage_voltage: float = figure(unit="V", encode=json_number)
+    worst_voltage_check: str = figure("worst_stage_voltage_check", encode=text_or_null)
+    resistor_power_continuous: float | None = figure(unit="W", encode=json_number)
+    resistor_power_duty: float | None = figure(unit="W", encode=json_number)
+    resistor_rated_power: float | None = figure(unit="W")
+    resistor_rated_voltage: float | None = figure(unit="V")
+    total_grading_loss: float | None = figure(unit="W", encode=json_number)
+    capacitor_rated_voltage: float | None = figure(unit="V")
+    stage_energy: float | None = figure(unit="J", encode=json_number)
+    total_energy: float | None = figure(unit="J", encode=json_number)
+    discharge_time: float = figure(unit="s", encode=json_number)
+    grading_current: float | None = figure(unit="A", encode=json_number)
+    hottest_max_leakage: float = figure(unit="A", encode=json_number)
+    rating_problems: tuple[str, ...] = figure(encode=listed)
+    advisories: tuple[str, ...] = figure(encode=listed)
+    # What a sized network's parts must be rated for (``studies.size``; None in a plain check):
+    # the worst stage voltage and the resistor's power over the derating, the capacitors' loss
+    # in the damping resistors. In the JSON of ``size`` (its ``grading.ratings``), not here.
+    derating: float | None = figure(None, default=None)
+    resistor_voltage_required: float | None = figure(None, unit="V", default=None)
+    resistor_power_required: float | None = figure(None, unit="W", default=None)
+    capacitor_voltage_required: float | None = figure(None, unit="V", default=None)
+    damping_loss_per_stage: float | None = figure(None, unit="W", default=None)
+    damping_loss_total: float | None = figure(None, unit="W", default=None)
 
 
 def worst_stage_voltage(checks: Mapping[str, object]) -> tuple[float, str]:
@@ -146,12 +162,12 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
                           "stick")
     return GradingSummary(
         resistor=grading.resistor, capacitor=grading.capacitor,
-        damping_resistor=grading.damping_resistor, worst_resistor_voltage=worst_any,
+        damping_resistor=grading.damping_resistor, worst_stage_voltage=worst_any,
         worst_voltage_check=worst_check,
         resistor_power_continuous=power_continuous, resistor_power_duty=power_duty,
         resistor_rated_power=grading.resistor_rated_power,
         resistor_rated_voltage=grading.resistor_rated_voltage, total_grading_loss=total_loss,
-        worst_capacitor_voltage=worst_any, capacitor_rated_voltage=grading.capacitor_rated_voltage,
+        capacitor_rated_voltage=grading.capacitor_rated_voltage,
         stage_energy=stage_energy, total_energy=total_energy, discharge_time=time,
         grading_current=grading_current, hottest_max_leakage=hottest_leakage,
         rating_problems=tuple(problems), advisories=tuple(advisories))

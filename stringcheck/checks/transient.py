@@ -36,7 +36,7 @@ from stringcheck.montecarlo.sampling import (
 from stringcheck.solvers.transient import simulate_turn_off
 from stringcheck.errors import Setting, StringcheckError
 from stringcheck.limits import within_limit
-from stringcheck.montecarlo.estimates import FailureEstimate, failure_estimate
+from stringcheck.montecarlo.estimates import failure_estimate
 from stringcheck.montecarlo.mixed_stock import device_part_grid, position_values
 from stringcheck.montecarlo.sensitivity import (
     TOP_DRIVERS,
@@ -47,7 +47,15 @@ from stringcheck.montecarlo.sensitivity import (
     tightenable,
 )
 from stringcheck.montecarlo.sensitivity import tightened
-from stringcheck.montecarlo.importance import RareEstimate
+from stringcheck.checks.outcome import (
+    CheckOutcome,
+    Exported,
+    figure,
+    json_number,
+    listed,
+    records,
+    turn_off_to_dict,
+)
 from stringcheck.montecarlo.executor import CHUNK_ELEMENTS
 from stringcheck.checks.recovery_conditions import (
     TURN_OFF_TEST_CURRENT,
@@ -67,62 +75,61 @@ _BATCH = 512
 DEFAULT_WORST = 20
 
 
-@dataclass(frozen=True)
-class TransientPosition:
+@dataclass(frozen=True, kw_only=True, repr=False)
+class TransientPosition(Exported):
     """Peak reverse voltage of one position over the random sample [V]."""
 
-    branch: int
-    index: int
-    part: str
-    limit: float
-    mean_voltage: float
-    std_voltage: float
-    max_voltage: float
-    max_overshoot: float
-    failures: int
+    branch: int = figure()
+    index: int = figure()
+    part: str = figure()
+    limit: float = figure(unit="V")
+    mean_voltage: float = figure(unit="V", encode=json_number)
+    std_voltage: float = figure(unit="V", encode=json_number)
+    max_voltage: float = figure(unit="V", encode=json_number)
+    max_overshoot: float = figure(unit="V", encode=json_number)
+    failures: int = figure()
 
 
-@dataclass(frozen=True)
-class TransientCheck:
-    """Outcome of the transient check."""
+@dataclass(frozen=True, eq=True, kw_only=True, repr=False)
+class TransientCheck(CheckOutcome):
+    """Outcome of the transient check (voltages [V], currents [A], energies [J])."""
 
-    name: str
-    ran: bool
-    reason: str
-    passed: bool
-    worst_voltage: float
-    worst_ratio: float
-    p50_ratio: float
-    p99_ratio: float
-    overshoot: float
-    estimate: FailureEstimate | None
-    unsolved: int
-    worst_trial: int
-    sampled: int
-    worst_simulated: int
-    worst_failures: int
-    peak_recovery_current: float
-    damping_energy: float
-    inductance: float
-    forward_current: float
-    positions: tuple[TransientPosition, ...]
-    notes: tuple[str, ...]
-    rare: RareEstimate | None = None
-    drivers: tuple[Driver, ...] = ()
+    json_order = ("passed", "worst_voltage", "overshoot", "worst_ratio", "p50_ratio", "p99_ratio",
+                  "failures", "p_fail", "p_fail_ci", "unsolved", "worst_trial", "sampled",
+                  "worst_simulated", "simulated", "worst_failures", "peak_recovery_current",
+                  "damping_energy", "inductance", "forward_current", "turn_off_current",
+                  "notes", "rare", "positions")
+
+    worst_voltage: float = figure(unit="V", encode=json_number, idle=math.nan)
+    overshoot: float = figure(unit="V", encode=json_number, idle=math.nan)
+    sampled: int = figure(idle=0)
+    worst_simulated: int = figure(idle=0)
+    worst_failures: int = figure(idle=0)
+    peak_recovery_current: float = figure(unit="A", encode=json_number, idle=math.nan)
+    damping_energy: float = figure(unit="J", encode=json_number, idle=math.nan)
+    inductance: float = figure(unit="H", encode=json_number, idle=math.nan)
+    forward_current: float = figure(unit="A", encode=json_number, idle=math.nan)
+    positions: tuple[TransientPosition, ...] = figure(encode=records, idle=())
+    notes: tuple[str, ...] = figure(encode=listed, idle=())
+    drivers: tuple[Driver, ...] = figure(None, default=())
     # The current each branch commutates from (``forward_current`` is its value [A]).
-    turn_off_current: TurnOffCurrent | None = None
+    turn_off_current: TurnOffCurrent | None = figure(unit="A", encode=turn_off_to_dict,
+                                                     default=None)
     # Strings simulated in all: the random sample and the worst ones (a string in both counts
     # once).
-    simulated: int = 0
+    simulated: int = figure(default=0)
+
+    def passes(self, upper_bound: float, target: float) -> bool:
+        """The transient check also fails on any of its simulated worst charge-balance strings."""
+        return upper_bound <= target and self.worst_failures == 0
+
+    def per_position(self) -> tuple[TransientPosition, ...]:
+        return self.positions
 
 
 def not_run(reason: str) -> TransientCheck:
-    return TransientCheck(name="transient", ran=False, reason=reason, passed=False,
-                          worst_voltage=math.nan, worst_ratio=math.nan, p50_ratio=math.nan,
-                          p99_ratio=math.nan, overshoot=math.nan, estimate=None, unsolved=0,
-                          worst_trial=-1, sampled=0, worst_simulated=0, worst_failures=0,
-                          peak_recovery_current=math.nan, damping_energy=math.nan,
-                          inductance=math.nan, forward_current=math.nan, positions=(), notes=())
+    """The transient check that did not run, and why."""
+    return TransientCheck.not_run("transient", reason)
 
 
 def transient_reason(design: Design) -> str:

@@ -18,6 +18,7 @@ from stringcheck.errors import StringcheckError
 __all__ = [
     "WAVEFORM_MEAN_SQUARE_FACTOR",
     "discharge_time",
+    "resistance_at_temperature",
     "resistor_power",
     "stored_energy",
     "worst_case_dynamic_capacitance",
@@ -117,6 +118,49 @@ def worst_case_dynamic_capacitance(
     limit = np.asarray(device_voltage_limit, dtype=float)
     voltage = np.asarray(string_voltage, dtype=float)
     return (n - 1.0) * np.asarray(charge_spread, dtype=float) / (n * limit - voltage)
+
+
+def resistance_at_temperature(
+    resistance: ArrayLike,
+    temperature_coefficient: ArrayLike,
+    temperature: ArrayLike,
+    *,
+    reference_temperature: ArrayLike,
+) -> NDArray[np.float64]:
+    """Resistance of a grading resistor at its temperature, from its linear temperature coefficient.
+
+    Parameters
+    ----------
+    resistance
+        Resistance R at ``reference_temperature`` [ohm], > 0.
+    temperature_coefficient
+        Temperature coefficient of resistance alpha (TCR) [1/K], e.g. 100e-6 for 100 ppm/K;
+        |alpha (T - T_ref)| < 1.
+    temperature
+        Temperature of the resistor T [degC].
+    reference_temperature
+        Temperature the TCR is specified from T_ref [degC] (25 degC for resistor datasheets,
+        common practice).
+
+    Returns
+    -------
+    numpy.ndarray
+        R(T) [ohm], broadcast over the inputs.
+
+    Notes
+    -----
+    R(T) = R (1 + alpha (T - T_ref)), the first-order (linear) law a resistor's datasheet TCR
+    states; valid over the range the TCR is specified for.
+
+    References
+    ----------
+    .. [1] IEC 60115-1:2020, Fixed resistors for use in electronic equipment - Part 1: Generic
+       specification, clause 6 (temperature coefficient of resistance, measured from the
+       reference temperature), from memory.
+    """
+    resistance = np.asarray(resistance, dtype=float)
+    return resistance * (1.0 + np.asarray(temperature_coefficient, dtype=float)
+                         * (np.asarray(temperature, dtype=float) - reference_temperature))
 
 
 def resistor_power(

@@ -1,26 +1,18 @@
-"""Report sections and JSON of the checks beyond the series ones: parallel sharing, thermal, transient."""
+"""Report sections of the checks beyond the series ones: parallel sharing, thermal, transient (their
+JSON is generated from the result fields, ``checks.outcome``)."""
 
 from __future__ import annotations
 
 import math
-from typing import Any
-
 from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
 from stringcheck.units import format_quantity
 from stringcheck.checks.forward import ParallelCheck, ThermalCheck
+from stringcheck.checks.series import DynamicCheck, SeriesCheck
 from stringcheck.checks.transient import TransientCheck
 from stringcheck.report.display_text import shown
-
-
-def json_number(value: float | None) -> float | None:
-    """JSON has no inf or NaN: write them as null (the report text says why)."""
-    if value is None:
-        return None
-    value = float(value)
-    return value if math.isfinite(value) else None
 
 
 # How each basis of the turn-off current (checks.recovery_conditions.TurnOffCurrent) reads.
@@ -33,40 +25,10 @@ _TURN_OFF_BASIS = {
 }
 
 
-def turn_off_to_dict(turn_off) -> dict[str, Any] | None:
-    """JSON of the current a branch commutates from (null where no check used one)."""
-    if turn_off is None:
-        return None
-    return {"value": json_number(turn_off.current), "unit": "A", "per": "branch",
-            "basis": turn_off.basis}
-
-
 def turn_off_text(turn_off) -> str:
     """The current a branch commutates from, in words."""
     return (f"I_F = {format_quantity(turn_off.current, 'A')} per branch at turn-off "
             f"({_TURN_OFF_BASIS[turn_off.basis]})")
-
-
-def _estimate(estimate) -> dict[str, Any]:
-    return {"failures": estimate.failures, "p_fail": estimate.p_fail,
-            "p_fail_ci": [estimate.ci_low, estimate.ci_high]}
-
-
-def rare_to_dict(rare) -> dict[str, Any] | None:
-    """JSON of a check's importance-sampling estimate (``--rare``), or None."""
-    if rare is None:
-        return None
-    return {"estimator": rare.estimator, "p_fail": rare.p_fail, "std_error": rare.std_error,
-            "p_fail_ci": [rare.ci_low, rare.ci_high], "beta": json_number(rare.beta),
-            "first_order": rare.first_order, "samples": rare.samples,
-            "found_failure_point": rare.found_failure_point,
-            "failure_points": rare.failure_points, "pooled_trials": rare.pooled_trials,
-            "decides": rare.decides, "note": rare.note, "automatic": rare.automatic,
-            "orbit_complete": rare.orbit_complete, "regions_found": rare.regions_found,
-            "coverage_assured": rare.coverage_assured,
-            "importance": [{"input": item.input, "share": item.share, "branch": item.branch,
-                            "index": item.index, "sign": item.sign}
-                           for item in rare.importance]}
 
 
 def failure_point_text(rare, *, top: int = 3) -> str:
@@ -87,100 +49,6 @@ def failure_point_text(rare, *, top: int = 3) -> str:
             f"{state}"
         pieces.append(f"{item.share:.0%} {name}{where}")
     return "failure point: " + "; ".join(pieces) if pieces else ""
-
-
-def parallel_to_dict(check: ParallelCheck) -> dict[str, Any]:
-    """JSON of the parallel check (currents [A], shares and ratios [-])."""
-    ballast = check.ballast
-    return {
-        "passed": check.passed,
-        "worst_share": json_number(check.worst_share),
-        "p99_share": json_number(check.p99_share),
-        "worst_ratio": json_number(check.worst_ratio),
-        "p50_ratio": json_number(check.p50_ratio),
-        "p99_ratio": json_number(check.p99_ratio),
-        **_estimate(check.estimate),
-        "rare": rare_to_dict(check.rare),
-        "unsolved": check.unsolved,
-        "worst_trial": check.worst_trial,
-        "required_derating": json_number(check.required_derating),
-        "electro_thermal": check.electro_thermal,
-        "branches": [
-            {"branch": b.branch, "limit_current": json_number(b.limit_current),
-             "mean_current": json_number(b.mean_current), "max_current": json_number(b.max_current),
-             "mean_share": json_number(b.mean_share), "max_share": json_number(b.max_share),
-             "failures": b.failures}
-            for b in check.branches
-        ],
-        "ballast": None if ballast is None else {
-            "target_share": ballast.target_share, "resistance": json_number(ballast.resistance),
-            "exact_resistance": json_number(ballast.exact_resistance), "loss": json_number(ballast.loss),
-            "quantile": ballast.quantile, "reachable": ballast.reachable},
-    }
-
-
-def thermal_to_dict(check: ThermalCheck) -> dict[str, Any]:
-    """JSON of the thermal check (temperatures [degC], powers [W])."""
-    runaway = check.runaway
-    return {
-        "passed": check.passed,
-        "worst_tj": json_number(check.worst_tj),
-        "p99_tj": json_number(check.p99_tj),
-        "worst_ratio": json_number(check.worst_ratio),
-        "p50_ratio": json_number(check.p50_ratio),
-        "p99_ratio": json_number(check.p99_ratio),
-        **_estimate(check.estimate),
-        "rare": rare_to_dict(check.rare),
-        "p_runaway": runaway.p_fail,
-        "p_runaway_ci": [runaway.ci_low, runaway.ci_high],
-        "runaway_trials": runaway.failures,
-        "over_tj_max_trials": check.over_limit,
-        "worst_trial": check.worst_trial,
-        "runaway_ambient": {key: json_number(value) for key, value in check.runaway_ambient.items()},
-        "runaway_ambient_trials": check.runaway_ambient_trials,
-        "runaway_search_limit": check.runaway_search_limit,
-        "mean_total_power": json_number(check.total_power_mean),
-        "turn_off_current": turn_off_to_dict(check.turn_off_current),
-        "positions": [
-            {"branch": p.branch, "index": p.index, "part": p.part, "limit": p.limit,
-             "mean_tj": json_number(p.mean_temperature), "max_tj": json_number(p.max_temperature),
-             "failures": p.failures}
-            for p in check.positions
-        ],
-    }
-
-
-def transient_to_dict(check: TransientCheck) -> dict[str, Any]:
-    """JSON of the transient check (voltages [V], currents [A], energies [J])."""
-    return {
-        "passed": check.passed,
-        "worst_voltage": json_number(check.worst_voltage),
-        "overshoot": json_number(check.overshoot),
-        "worst_ratio": json_number(check.worst_ratio),
-        "p50_ratio": json_number(check.p50_ratio),
-        "p99_ratio": json_number(check.p99_ratio),
-        **_estimate(check.estimate),
-        "unsolved": check.unsolved,
-        "worst_trial": check.worst_trial,
-        "sampled": check.sampled,
-        "worst_simulated": check.worst_simulated,
-        "simulated": check.simulated,
-        "worst_failures": check.worst_failures,
-        "peak_recovery_current": json_number(check.peak_recovery_current),
-        "damping_energy": json_number(check.damping_energy),
-        "inductance": json_number(check.inductance),
-        "forward_current": json_number(check.forward_current),
-        "turn_off_current": turn_off_to_dict(check.turn_off_current),
-        "notes": list(check.notes),
-        "rare": rare_to_dict(check.rare),
-        "positions": [
-            {"branch": p.branch, "index": p.index, "part": p.part, "limit": p.limit,
-             "mean_voltage": json_number(p.mean_voltage), "std_voltage": json_number(p.std_voltage),
-             "max_voltage": json_number(p.max_voltage), "max_overshoot": json_number(p.max_overshoot),
-             "failures": p.failures}
-            for p in check.positions
-        ],
-    }
 
 
 def render_transient(check: TransientCheck, design, console: Console) -> None:
@@ -216,12 +84,22 @@ def render_transient(check: TransientCheck, design, console: Console) -> None:
 
 
 def worst_value_text(check) -> str:
-    """The 'worst' cell of the summary table for a check that is not a series check."""
-    if isinstance(check, TransientCheck):
-        return format_quantity(check.worst_voltage, "V")
-    if isinstance(check, ParallelCheck):
-        return f"share {check.worst_share:.3f}"
+    """The 'worst' cell of the summary table: the check's own worst figure."""
+    return _WORST_TEXT[type(check)](check)
+
+
+def _thermal_worst(check: ThermalCheck) -> str:
     return "runaway" if not math.isfinite(check.worst_tj) else f"T_j {check.worst_tj:.0f} degC"
+
+
+# Each check's worst figure in words (a check type missing here is a KeyError, never a wrong cell).
+_WORST_TEXT = {
+    SeriesCheck: lambda check: format_quantity(check.worst_voltage, "V"),
+    DynamicCheck: lambda check: format_quantity(check.worst_voltage, "V"),
+    TransientCheck: lambda check: format_quantity(check.worst_voltage, "V"),
+    ParallelCheck: lambda check: f"share {check.worst_share:.3f}",
+    ThermalCheck: _thermal_worst,
+}
 
 
 def render_parallel(check: ParallelCheck, design, console: Console) -> None:
@@ -304,15 +182,6 @@ def _temperature(value: float, limit: float) -> str:
     if math.isinf(value):
         return "already at the given ambient"
     return f"{value:.1f} degC"
-
-
-def drivers_to_list(drivers) -> list[dict[str, Any]]:
-    """JSON of the drivers ranking (``check --drivers``)."""
-    return [{"check": d.check, "input": d.input, "label": d.label,
-             "rank_correlation": json_number(d.rank_correlation),
-             "tightened_p99_ratio": json_number(d.tightened_p99_ratio),
-             "tightened_p_fail_upper": json_number(d.tightened_p_fail_upper),
-             "failure_point_share": json_number(d.failure_point_share)} for d in drivers]
 
 
 def render_drivers(result, console: Console) -> None:

@@ -13,7 +13,7 @@ from rich.text import Text
 
 from stringcheck.design.model import SPREAD_UNITS, Design
 from stringcheck.units import format_quantity
-from stringcheck.report.check_sections import json_number
+from stringcheck.checks.outcome import json_number
 from stringcheck.report.display_text import shown
 
 _HOW = {"resample": "devices drawn from the lot itself, without replacement in a string "

@@ -12,7 +12,8 @@ from rich.text import Text
 
 from stringcheck.studies.review import ReviewResult
 from stringcheck.report.cautions import safety_cautions
-from stringcheck.report.check_sections import json_number, render_drivers
+from stringcheck.checks.outcome import json_number
+from stringcheck.report.check_sections import render_drivers
 from stringcheck.report.display_text import shown
 from stringcheck.report.export import result_to_dict
 from stringcheck.report.lots import render_lots
@@ -115,7 +116,7 @@ def render_review(result: ReviewResult, console: Console) -> None:
             console.print(f"  - {shown(line)}")
     for label, checked in (("baseline", base), ("candidate", cand)):
         for name, check in checked.checks.items():
-            rare = getattr(check, "rare", None) if check.ran else None
+            rare = check.rare if check.ran else None
             if rare is not None:
                 console.print(f"{label} {name}: P(fail) from {rare.estimator}"
                               + (" (run automatically)" if rare.automatic else "")

@@ -13,8 +13,9 @@ from rich.text import Text
 from stringcheck.constants import SAFE_VOLTAGE
 from stringcheck.units import format_quantity
 from stringcheck.montecarlo.estimates import trials_for_relative_error
-from stringcheck.studies.check import CheckResult, SeriesCheck
+from stringcheck.studies.check import CheckResult
 from stringcheck.checks.forward import ParallelCheck, ThermalCheck
+from stringcheck.checks.series import DynamicCheck, SeriesCheck
 from stringcheck.report.cautions import safety_cautions
 from stringcheck.report.display_text import shown
 from stringcheck.checks.transient import TransientCheck
@@ -49,13 +50,13 @@ def _ratio(value: float) -> str:
 
 def _deciding_rare(check):
     """The check's importance-sampling estimate when it decided the check, else None."""
-    rare = getattr(check, "rare", None)
+    rare = check.rare
     return rare if rare is not None and rare.decides else None
 
 
 def _plain_mark(check) -> str:
     """Why the plain run decided a check the importance sampler also ran on ("" if it did not)."""
-    rare = getattr(check, "rare", None)
+    rare = check.rare
     if rare is None or rare.decides:
         return ""
     if not rare.orbit_complete:
@@ -130,8 +131,7 @@ def render_check(result: CheckResult, console: Console) -> None:
             summary.add_row(name, "-", "-", "-", "-", Text("not run", style="yellow"))
             continue
         outcome = Text("pass", style="green") if check.passed else Text("FAIL", style="bold red")
-        worst = format_quantity(check.worst_voltage, "V") if isinstance(check, SeriesCheck) else \
-            worst_value_text(check)
+        worst = worst_value_text(check)
         summary.add_row(name, worst, _ratio(check.worst_ratio),
                         _ratio(check.p99_ratio), _probability(check, confidence), outcome)
     console.print(summary)
@@ -140,7 +140,7 @@ def render_check(result: CheckResult, console: Console) -> None:
             console.print(Text(f"{name} check not run: {shown(check.reason)}.", style="yellow"))
         elif _convergence_note(check):
             console.print(_convergence_note(check), highlight=False)
-        if check.ran and getattr(check, "rare", None) is not None:
+        if check.ran and check.rare is not None:
             rare = check.rare
             automatic = (" (run automatically: the plain run saw too few failures to decide the "
                          "check)" if rare.automatic else "")
@@ -156,16 +156,8 @@ def render_check(result: CheckResult, console: Console) -> None:
     console.print()
 
     for name, check in result.checks.items():
-        if not check.ran:
-            continue
-        if isinstance(check, ParallelCheck):
-            render_parallel(check, design, console)
-        elif isinstance(check, ThermalCheck):
-            render_thermal(check, design, console)
-        elif isinstance(check, TransientCheck):
-            render_transient(check, design, console)
-        else:
-            _render_detail(name, check, console)
+        if check.ran:
+            _DETAIL[type(check)](name, check, design, console)
 
     render_drivers(result, console)
     render_lots(design, console)
@@ -211,7 +203,7 @@ def _convergence_note(check) -> str:
     failures = f"{estimate.failures:,} failure" + ("" if estimate.failures == 1 else "s")
     return (f"{check.name}: {failures} in {estimate.trials:,} trials know "
             f"P(fail) to +-{relative:.0%} (standard error); about {needed:,} trials would give "
-            f"+-{WANTED_RELATIVE_ERROR:.0%}" + ("" if getattr(check, "rare", None) is not None
+            f"+-{WANTED_RELATIVE_ERROR:.0%}" + ("" if check.rare is not None
                                                 else ", or use --rare"))
 
 
@@ -244,7 +236,7 @@ def _fail_reason(result: CheckResult) -> str:
     return "; ".join(reasons) if reasons else "see below"
 
 
-def _render_detail(name: str, check: SeriesCheck, console: Console) -> None:
+def _render_detail(name: str, check: SeriesCheck, design, console: Console) -> None:
     console.print(Text(_TITLES.get(name, name), style="bold underline"))
     if name == "dynamic":
         console.print("Q_rr of each device carried to " + turn_off_text(check.turn_off_current)
@@ -274,6 +266,17 @@ def _render_detail(name: str, check: SeriesCheck, console: Console) -> None:
     console.print()
 
 
+# The detail section of each check type (a check type missing here is a KeyError, never a section
+# of the wrong kind).
+_DETAIL = {
+    SeriesCheck: _render_detail,
+    DynamicCheck: _render_detail,
+    ParallelCheck: lambda name, check, design, console: render_parallel(check, design, console),
+    ThermalCheck: lambda name, check, design, console: render_thermal(check, design, console),
+    TransientCheck: lambda name, check, design, console: render_transient(check, design, console),
+}
+
+
 def _render_network(result: CheckResult, console: Console) -> None:
     grading = result.grading
     console.print(Text("Grading network", style="bold underline"))
@@ -289,7 +292,7 @@ def _render_network(result: CheckResult, console: Console) -> None:
                         if grading.resistor_rated_power else "")))
         rows.append(("total grading loss at nominal share", format_quantity(grading.total_grading_loss, "W")))
     rows.append((f"worst stage voltage ({_worst_from(grading.worst_voltage_check)})",
-                 format_quantity(grading.worst_resistor_voltage, "V")
+                 format_quantity(grading.worst_stage_voltage, "V")
                  + (f" (resistor rated {format_quantity(grading.resistor_rated_voltage, 'V')})"
                     if grading.resistor_rated_voltage else "")))
     rows.append(("hottest device's maximum leakage", format_quantity(grading.hottest_max_leakage, "A")))
@@ -317,6 +320,16 @@ def _render_network(result: CheckResult, console: Console) -> None:
     console.print()
 
 
+def _transient_simulated(check: TransientCheck, trials: int) -> str:
+    return (f"; {check.worst_failures:,}/{check.worst_simulated:,} worst charge-balance strings "
+            f"failed; {check.simulated:,} of the {trials:,} strings simulated")
+
+
+# The checks that simulate a selection of the trials (their P(fail) is on a sample): what the
+# summary line says of it.
+_SIMULATED_TEXT = {TransientCheck: _transient_simulated}
+
+
 def render_check_summary(result: CheckResult, console: Console) -> None:
     """One line for ``--quiet``: the verdict and each check's P(fail) bound, the one that decided
     it (marked (IS) when the importance sampler's, (pooled) for its pooled plain interval)."""
@@ -328,11 +341,9 @@ def render_check_summary(result: CheckResult, console: Console) -> None:
             status = "pass" if check.passed else "FAIL"
             # The transient check simulates a random sample and the worst charge-balance
             # strings, not every trial of the run: say how many.
-            worst = (f"; {check.worst_failures:,}/{check.worst_simulated:,} worst "
-                     f"charge-balance strings failed; {check.simulated:,} of the "
-                     f"{result.trials:,} strings simulated"
-                     if isinstance(check, TransientCheck) else "")
-            sampled = " sampled" if isinstance(check, TransientCheck) else ""
+            simulated = _SIMULATED_TEXT.get(type(check))
+            worst = "" if simulated is None else simulated(check, result.trials)
+            sampled = "" if simulated is None else " sampled"
             if rare is not None and rare.found_failure_point:
                 parts.append(f"{name} {status} (P(fail) upper bound {rare.ci_high:.2g} (IS) vs "
                              f"target {result.target_p_fail:g}; plain {estimate.failures:,}/"
@@ -345,7 +356,7 @@ def render_check_summary(result: CheckResult, console: Console) -> None:
                 trials, bound = (rare.pooled_trials if pooled else rare.samples), rare.ci_high
                 mark = " (pooled)" if pooled else " (IS: none found)"
                 sampled = ""
-            elif getattr(check, "rare", None) is not None:
+            elif check.rare is not None:
                 mark = _plain_mark(check)
             if not check.passed and failures == 0:
                 status = "FAIL, too few trials to show the target"
@@ -420,7 +431,7 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
         (f"resistor power, {design.duty.waveform} duty (RMS)", format_quantity(ratings.resistor_power_duty, "W")),
         (f"resistor power rating required (/ derating {ratings.derating:g})",
          format_quantity(ratings.resistor_power_required, "W")),
-        ("total grading-resistor loss", format_quantity(ratings.grading_loss_total, "W")),
+        ("total grading-resistor loss", format_quantity(ratings.total_grading_loss, "W")),
     ]
     if result.capacitor is not None:
         rows += [

@@ -1,35 +1,46 @@
-"""The series string check: draw built strings, solve static and dynamic sharing, count failures.
+"""The check workflow: draw built strings chunk by chunk, evaluate every check on them, finish.
 
-A trial is one built string (all its branches). A trial fails a check when any device of it exceeds
-``derating x V_RRM`` of its part, or when the solver could not solve it (counted and reported, never
-dropped). A check passes when the upper bound of the exact confidence interval of P(fail) is within
-``[sizing] target_p_fail`` (default 1e-3): the same criterion the sizing search uses, and a run too
-short to show it cannot pass. Results are plain dataclasses; nothing here formats text.
+Each check lives in its module of ``checks/`` with the same steps: set up from the design, evaluate
+a chunk of drawn strings, merge the chunks in trial order, finish (the series checks in
+``checks.series``, the parallel and thermal ones in ``checks.forward``; the transient check
+simulates a selection of the trials afterwards, ``checks.transient``). This module only runs those
+steps: it draws the chunks (in worker processes if asked), refuses a run the memory cannot hold,
+adds the importance-sampling estimates (``--rare``) and the drivers, and forms the verdict. A check
+passes when the upper bound of the exact confidence interval of P(fail) is within ``[sizing]
+target_p_fail`` (default 1e-3): the same criterion the sizing search uses, and a run too short to
+show it cannot pass. Results are plain dataclasses; nothing here formats text.
 """
 
 from __future__ import annotations
 
+import dataclasses
 from contextlib import nullcontext
 from dataclasses import dataclass, replace
-from typing import Callable, Mapping
+from typing import Any, Callable, Mapping
 
 import numpy as np
 
-from stringcheck.constants import RESISTOR_TCR_REFERENCE
-from stringcheck.design.model import Design, Part
+from stringcheck.design.model import Design
 from stringcheck.errors import DesignError, Setting
-from stringcheck.limits import within_limit
-from stringcheck.physics.leakage import leakage_current
+from stringcheck.checks.outcome import CheckOutcome, Exported, figure, listed, positions_frame
+from stringcheck.checks.outcome import drivers_to_list, record_or_null
 from stringcheck.checks.plausibility import PlausibilityWarning, plausibility_warnings
-from stringcheck.montecarlo.sampling import BLOCK_TRIALS, DrawnStrings, chunk_bounds, draw_strings
-from stringcheck.solvers.series_dynamic import solve_dynamic_sharing
-from stringcheck.solvers.series_static import solve_static_sharing
-from stringcheck.montecarlo.estimates import (
-    FailureEstimate,
-    failure_estimate,
-    histogram_counts,
-    trials_for_upper_bound,
+from stringcheck.checks.series import (
+    SERIES_CHECKS,
+    DynamicCheck,
+    PositionStatistics,
+    SeriesAccumulator,
+    SeriesCheck,
+    SeriesChunk,
+    SeriesSetup,
+    finish_series,
+    not_run_series,
+    run_series_chunk,
+    series_ratios,
+    series_setup,
 )
+from stringcheck.montecarlo.sampling import DrawnStrings, chunk_bounds, draw_strings
+from stringcheck.montecarlo.estimates import trials_for_upper_bound
 from stringcheck.checks.forward import (
     ForwardAccumulator,
     ForwardChunk,
@@ -57,7 +68,6 @@ from stringcheck.checks.grading_ratings import GradingSummary, grading_summary
 from stringcheck.montecarlo.importance import (
     COARSE_SEARCH,
     DEFAULT_SAMPLES,
-    RareEstimate,
     SearchEffort,
     needs_rare,
     rare_design,
@@ -70,14 +80,8 @@ from stringcheck.checks.preconditions import (
     no_scatter,
     with_recovery_charge,
 )
-from stringcheck.montecarlo.mixed_stock import device_values, position_values
-from stringcheck.checks.recovery_conditions import (
-    RecoveryRescaling,
-    TurnOffCurrent,
-    carried_charges,
-    recovery_rescaling,
-)
-from stringcheck.montecarlo.accumulators import PositionSums
+from stringcheck.montecarlo.mixed_stock import position_values
+from stringcheck.checks.recovery_conditions import recovery_rescaling
 from stringcheck.montecarlo.executor import (
     CHUNK_ELEMENTS,
     WorkerPool,
@@ -87,13 +91,15 @@ from stringcheck.montecarlo.executor import (
 )
 from stringcheck.montecarlo.executor import worker_pool
 
+__all__ = ["CheckResult", "DynamicCheck", "PositionStatistics", "SeriesCheck", "run_check"]
+
+# Version of the JSON result's layout (DESIGN.md section 6).
+SCHEMA_VERSION = 1
 # The checks whose inputs the drivers rank; --rare estimates these and the transient check by
 # importance sampling.
-RARE_CHECKS = ("static", "dynamic", "parallel", "thermal")
+RARE_CHECKS = SERIES_CHECKS + ("parallel", "thermal")
 # The transient check's importance sampler: each string costs milliseconds of the turn-off engine.
 TRANSIENT_RARE_SAMPLES = 2000
-# Trials per slice of a chunk in the solvers (whole sampling blocks).
-_SOLVE_TRIALS = 2 * BLOCK_TRIALS
 # Peak memory of the per-trial figures while the checks are summarised, in multiples of what the
 # chunks keep. A series check joins its ratios into one array (its pieces then freed) and copies
 # the finite ones for the percentiles (sorted in place): 2 for the static and dynamic checks by
@@ -104,62 +110,75 @@ _SUMMARY_FACTOR = 3
 ProgressCallback = Callable[[int, int], None]
 
 
-@dataclass(frozen=True)
-class PositionStatistics:
-    """Statistics of one device position over all trials [V]."""
-
-    branch: int
-    index: int
-    part: str
-    limit: float
-    mean_voltage: float
-    std_voltage: float
-    max_voltage: float
-    failures: int
+def _checks_to_dict(checks: Mapping[str, CheckOutcome]) -> dict[str, Any]:
+    return {name: check.to_dict() for name, check in checks.items() if check.ran}
 
 
-@dataclass(frozen=True)
-class SeriesCheck:
-    """The outcome of one check (static or dynamic) over the whole run."""
-
-    name: str
-    ran: bool
-    reason: str
-    passed: bool
-    worst_voltage: float
-    worst_ratio: float
-    p50_ratio: float
-    p99_ratio: float
-    estimate: FailureEstimate | None
-    unsolved: int
-    worst_trial: int
-    worst_string: np.ndarray
-    positions: tuple[PositionStatistics, ...]
-    histogram: tuple[tuple[float, float, int], ...]
-    rare: RareEstimate | None = None
-    # The dynamic check: the current each branch commutates from, to which Q_rr was carried
-    # (None: Q_rr taken at the datasheet's test conditions; the static check has none).
-    turn_off_current: TurnOffCurrent | None = None
+def _skipped_to_dict(checks: Mapping[str, CheckOutcome]) -> dict[str, str]:
+    return {name: check.reason for name, check in checks.items() if not check.ran}
 
 
-@dataclass(frozen=True)
-class CheckResult:
-    """Everything ``stringcheck check`` found."""
+def _design_to_dict(design: Design) -> dict[str, Any]:
+    return {"title": design.title, "file": design.source}
 
-    design: Design
-    trials: int
-    seed: int
-    target_p_fail: float
-    trials_needed: int
-    checks: Mapping[str, SeriesCheck]
-    grading: GradingSummary
-    verdict: str
-    impossible: str | None
-    assumptions: tuple[str, ...]
-    no_scatter: tuple[str, ...]
-    drivers: tuple[Driver, ...] = ()
+
+def _warnings_to_list(warnings) -> list[dict[str, str]]:
+    """The plausibility warnings as JSON objects {key, message}."""
+    return [{"key": warning.key, "message": warning.message} for warning in warnings]
+
+
+@dataclass(frozen=True, eq=False, kw_only=True, repr=False)
+class CheckResult(Exported):
+    """Everything ``stringcheck check`` found.
+
+    ``to_dict()`` is the JSON result without the two sections the report writes in words
+    (``lots`` and ``cautions``; ``report.export.result_to_dict`` adds them); ``to_frame()`` the
+    per-position figures of every check that ran, one row per check and position.
+    """
+
+    json_order = ("schema", "design", "trials", "seed", "confidence", "target_p_fail",
+                  "trials_needed", "verdict", "impossible", "checks", "skipped", "network",
+                  "drivers", "assumptions", "no_scatter", "warnings")
+
+    design: Design = figure(encode=_design_to_dict)
+    trials: int = figure()
+    seed: int = figure()
+    target_p_fail: float = figure()
+    trials_needed: int = figure()
+    checks: Mapping[str, CheckOutcome] = figure(encode=_checks_to_dict)
+    grading: GradingSummary = figure("network", encode=record_or_null)
+    verdict: str = figure()
+    impossible: str | None = figure()
+    assumptions: tuple[str, ...] = figure(encode=listed)
+    no_scatter: tuple[str, ...] = figure(encode=listed)
+    drivers: tuple[Driver, ...] = figure(encode=drivers_to_list, default=())
     # Valid values that are probably slips (``plausibility``): shown by the report, never fatal.
-    warnings: tuple[PlausibilityWarning, ...] = ()
+    warnings: tuple[PlausibilityWarning, ...] = figure(encode=_warnings_to_list, default=())
+
+    def to_dict(self) -> dict[str, Any]:
+        data = super().to_dict()
+        # Read from the design and the checks, not fields of their own.
+        extra = {"schema": SCHEMA_VERSION, "confidence": self.design.monte_carlo.confidence,
+                 "skipped": _skipped_to_dict(self.checks)}
+        merged = {**data, **extra}
+        ordered = {key: merged.pop(key) for key in self.json_order if key in merged}
+        ordered.update(merged)
+        return ordered
+
+    def to_frame(self):
+        """The per-position figures of every check that ran, one row per check and position (the
+        parallel check's per branch), a ``check`` column first."""
+        import pandas as pd
+
+        frames = [positions_frame(check.per_position(), check=name)
+                  for name, check in self.checks.items() if check.ran]
+        return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+
+    def __repr__(self) -> str:
+        shown = ", ".join(f"{name} {'pass' if check.passed else 'FAIL'}" if check.ran else
+                          f"{name} not run" for name, check in self.checks.items())
+        return (f"CheckResult({self.design.title!r}, {self.verdict}, {self.trials:,} trials, "
+                f"seed {self.seed}: {shown})")
 
 
 def run_check(design: Design, *, trials: int | None = None, seed: int | None = None,
@@ -207,6 +226,65 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     """
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
+    _refuse(design, trials, rare)
+    if only is None or "dynamic" in only:
+        design = with_recovery_charge(design)
+    plan = _plan(design, seed, only, drivers)
+    confidence = design.monte_carlo.confidence
+    target = design.sizing.target_p_fail
+    with worker_pool(workers) if pool is None else nullcontext(pool) as active:
+        run = _run_chunks(plan, trials, chunk_trials, progress, active)
+    grid = design.string.part_labels()
+    series = plan.context.series
+    turn_off = None if series.rescaling is None else series.rescaling.turn_off
+    checks: dict[str, CheckOutcome] = {}
+    for name in SERIES_CHECKS:
+        sums = run.series.sums.get(name)
+        checks[name] = not_run_series(name, plan.reasons[name]) if sums is None else \
+            finish_series(name, sums, grid, confidence, trials, target, turn_off=turn_off)
+    if transient:
+        checks["transient"] = _transient(design, run.series.sums.get("dynamic"), plan, trials,
+                                         seed, transient_worst, transient_sample, drivers)
+    if plan.run_forward:
+        forward = plan.context.forward
+        checks["parallel"] = finish_parallel(design, forward, plan.reasons["parallel"],
+                                             run.forward, confidence, target, trials)
+        checks["thermal"] = finish_thermal(design, forward, plan.reasons["thermal"],
+                                           run.forward, confidence, target, trials)
+    grading = grading_summary(design, checks, series.temperature,
+                              position_values(design, lambda p: p.c_j, pick=np.maximum))
+    if rare is not False:
+        for name in RARE_CHECKS + ("transient",):
+            check = checks.get(name)
+            wanted = check is not None and check.ran and (
+                name in rare if isinstance(rare, tuple) else rare or needs_rare(check, target))
+            if wanted:
+                checks[name] = _with_rare(check, plan.context, seed, confidence, target,
+                                          rare_samples, automatic=rare is None)
+    ranking: tuple[Driver, ...] = ()
+    if drivers and run.features:
+        ranking = _drivers(design, checks, run.features, run.ratios, trials=trials, seed=seed,
+                           pool=pool)
+    if drivers and transient and checks["transient"].ran:
+        ranking += _transient_drivers(checks["transient"])
+    impossible = impossibility(design)
+    passed = all(check.passed for check in checks.values() if check.ran)
+    # A check the user asked for that could not run never lets the design pass.
+    requested_missing = transient and not checks["transient"].ran
+    verdict = "pass" if passed and impossible is None and not grading.rating_problems \
+        and not requested_missing else "fail"
+    return CheckResult(design=design, trials=trials, seed=seed, target_p_fail=target,
+                       trials_needed=trials_for_upper_bound(target, confidence=confidence),
+                       checks=checks, grading=grading,
+                       verdict=verdict, impossible=impossible,
+                       assumptions=design.assumptions + model_assumptions(design, plan.note),
+                       no_scatter=no_scatter(design, plan.context.parameters), drivers=ranking,
+                       warnings=plausibility_warnings(design,
+                                                      grading_loss=grading.total_grading_loss))
+
+
+def _refuse(design: Design, trials: int, rare) -> None:
+    """Refuse, before drawing, a run that cannot give an answer."""
     if trials < 1:
         raise DesignError(Setting("trials"), f" must be at least 1, got {trials}",
                           key="monte_carlo.trials")
@@ -218,144 +296,6 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                           key="grading.resistor")
     if rare:
         rare_design(design)  # a lot too small to fit is refused before the run
-    if only is None or "dynamic" in only:
-        design = with_recovery_charge(design)
-    layout = design.string
-    shape = (layout.parallel, layout.series)
-    grid = layout.part_labels()
-
-    def per_position(attribute: Callable[[Part], float]) -> np.ndarray:
-        # With a mix these are each position's lowest values; chunks use each device's own.
-        return position_values(design, attribute)
-
-    limits = layout.derating * per_position(lambda p: p.v_rrm)
-    temperature = design.duty.ambient + layout.temperature_rise_grid()
-    reference_voltage = per_position(lambda p: p.i_r.at_voltage)
-    reference_temperature = per_position(lambda p: p.i_r.at_temperature)
-    doubling_temperature = per_position(lambda p: p.doubling_temperature)
-    voltage_exponent = per_position(lambda p: p.voltage_exponent)
-    junction_capacitance = per_position(lambda p: p.c_j)
-
-    dynamic_reason = "not requested" if only is not None and "dynamic" not in only else \
-        dynamic_check_reason(design)
-    run_dynamic = dynamic_reason == ""
-    run_static = only is None or "static" in only
-    parameters = ("i_r", "q_rr") if run_dynamic else ("i_r",)
-    run_forward = only is None
-    parallel_reason, thermal_reason = forward_reasons(design) if run_forward else \
-        ("not requested", "not requested")
-    # The recovery charge carried to the application's turn-off: one value per drawn device for
-    # the dynamic check and the thermal check's recovery loss (a turn-off exactly when the
-    # dynamic check can run: an ac waveform or a di_dt).
-    rescaling, rescaling_note = recovery_rescaling(design) if run_dynamic else (None, "")
-    forward = None
-    if not (parallel_reason and thermal_reason):
-        forward = forward_setup(design, parallel_reason, thermal_reason, rescaling)
-        parameters = tuple(dict.fromkeys(parameters + forward_parameters(design)))
-    forward_sums = ForwardAccumulator()
-    static = PositionSums(shape, limits) if run_static else None
-    dynamic = PositionSums(shape, limits) if run_dynamic else None
-    context = _ChunkContext(design=design, seed=seed, parameters=parameters, run_static=run_static,
-                            run_dynamic=run_dynamic, limits=limits, temperature=temperature,
-                            reference_voltage=reference_voltage,
-                            reference_temperature=reference_temperature,
-                            doubling_temperature=doubling_temperature,
-                            voltage_exponent=voltage_exponent,
-                            junction_capacitance=junction_capacitance,
-                            forward=forward, rescaling=rescaling,
-                            driver_trials=DRIVER_TRIALS if drivers else 0)
-    features: dict[str, list] = {}
-    ratios: dict[str, list] = {"static": [], "dynamic": [], "parallel": [], "thermal": []}
-    with worker_pool(workers) if pool is None else nullcontext(pool) as active:
-        if chunk_trials is None:
-            chunk_trials = chunk_size(trials, CHUNK_ELEMENTS // (layout.series * layout.parallel),
-                                      active)
-        bounds = chunk_bounds(trials, chunk_trials)
-        for number, outcome in enumerate(map_chunks(_run_chunk, context, bounds, pool=active,
-                                                    progress=progress)):
-            if static is not None:
-                static.merge(outcome.static)
-            if dynamic is not None:
-                dynamic.merge(outcome.dynamic)
-            if outcome.forward is not None:
-                forward_sums.merge(outcome.forward)
-            if outcome.features is not None:
-                for name, values in outcome.features.items():
-                    features.setdefault(name, []).append(values)
-                count = len(next(iter(outcome.features.values())))
-                for name, accumulator in (("static", outcome.static),
-                                          ("dynamic", outcome.dynamic)):
-                    if accumulator is not None:
-                        ratios[name].append(np.concatenate(accumulator.worst_ratios)[:count])
-                if outcome.forward is not None:
-                    ratios["parallel"].append(outcome.forward.current_ratio[:count])
-                    if outcome.forward.tj_ratio is not None:
-                        ratios["thermal"].append(outcome.forward.tj_ratio[:count])
-            if number == 0 and len(bounds) > 1:
-                # What the first chunk keeps, as merged, tells what the whole run will keep.
-                _check_memory(design, trials, _per_trial_bytes(outcome, bounds[0][1]))
-
-    confidence = design.monte_carlo.confidence
-    target = design.sizing.target_p_fail
-    checks = {"static": _finish("static", static, grid, confidence, trials, target)
-              if static is not None
-              else _not_run("static", "not requested")}
-    if dynamic is not None:
-        checks["dynamic"] = replace(_finish("dynamic", dynamic, grid, confidence, trials, target),
-                                    turn_off_current=None if rescaling is None
-                                    else rescaling.turn_off)
-    else:
-        checks["dynamic"] = _not_run("dynamic", dynamic_reason)
-    if transient:
-        if dynamic is None:
-            checks["transient"] = not_run_transient(f"needs the dynamic check, which did not run: "
-                                                    f"{dynamic_reason}")
-        else:
-            needed = trials_for_upper_bound(target, confidence=confidence)
-            checks["transient"] = run_transient(
-                design, dynamic_ratios=np.concatenate(dynamic.worst_ratios), trials=trials,
-                seed=seed, worst=transient_worst,
-                sample=needed if transient_sample is None else transient_sample,
-                confidence=confidence, target=target, drivers=drivers)
-    if run_forward:
-        checks["parallel"] = finish_parallel(design, forward, parallel_reason, forward_sums,
-                                             confidence, target, trials)
-        checks["thermal"] = finish_thermal(design, forward, thermal_reason, forward_sums,
-                                           confidence, target, trials)
-
-    impossible = impossibility(design)
-    grading = grading_summary(design, checks, temperature,
-                              position_values(design, lambda p: p.c_j, pick=np.maximum))
-    if rare is not False:
-        for name in RARE_CHECKS + ("transient",):
-            wanted = name in rare if isinstance(rare, tuple) else \
-                (rare or needs_rare(checks[name], target)) if name in checks else False
-            if name in checks and checks[name].ran and wanted:
-                checks[name] = _with_rare(checks[name], context, seed, confidence, target,
-                                          rare_samples, automatic=rare is None)
-    passed = all(check.passed for check in checks.values() if check.ran)
-    ranking: tuple[Driver, ...] = ()
-    if drivers and features:
-        ranking = _drivers(design, checks, features, ratios, trials=trials, seed=seed,
-                           pool=pool if pool is not None else None)
-    if drivers and transient and checks["transient"].ran:
-        rare_estimate = checks["transient"].rare
-        shares = {item.input: item.share for item in rare_estimate.importance} \
-            if rare_estimate is not None and rare_estimate.found_failure_point else {}
-        ranking += tuple(replace(driver, failure_point_share=shares.get(driver.input))
-                         for driver in checks["transient"].drivers)
-    # A check the user asked for that could not run never lets the design pass.
-    requested_missing = transient and not checks["transient"].ran
-    verdict = "pass" if passed and impossible is None and not grading.rating_problems \
-        and not requested_missing else "fail"
-    return CheckResult(design=design, trials=trials, seed=seed, target_p_fail=target,
-                       trials_needed=trials_for_upper_bound(target, confidence=confidence),
-                       checks=checks, grading=grading,
-                       verdict=verdict, impossible=impossible,
-                       assumptions=design.assumptions + model_assumptions(design, rescaling_note),
-                       no_scatter=no_scatter(design, parameters), drivers=ranking,
-                       warnings=plausibility_warnings(design,
-                                                      grading_loss=grading.total_grading_loss))
 
 
 @dataclass(frozen=True)
@@ -365,72 +305,152 @@ class _ChunkContext:
     design: Design
     seed: int
     parameters: tuple[str, ...]
-    run_static: bool
-    run_dynamic: bool
-    limits: np.ndarray
-    temperature: np.ndarray
-    reference_voltage: np.ndarray
-    reference_temperature: np.ndarray
-    doubling_temperature: np.ndarray
-    voltage_exponent: np.ndarray
-    junction_capacitance: np.ndarray
+    series: SeriesSetup
     forward: ForwardSetup | None
-    rescaling: RecoveryRescaling | None
     driver_trials: int
 
 
 @dataclass(frozen=True)
+class _Plan:
+    """Which checks run (the reason of each that does not), and what their chunks need."""
+
+    context: _ChunkContext
+    reasons: dict[str, str]
+    run_forward: bool
+    note: str  # how the recovery charge was carried to the application (an assumption)
+
+
+def _plan(design: Design, seed: int, only: tuple[str, ...] | None, drivers: bool) -> _Plan:
+    """Set every check up from the design: which run, their constants, the parameters drawn."""
+    reasons = {"static": "" if only is None or "static" in only else "not requested",
+               "dynamic": "not requested" if only is not None and "dynamic" not in only else
+               dynamic_check_reason(design)}
+    run_dynamic = reasons["dynamic"] == ""
+    parameters = ("i_r", "q_rr") if run_dynamic else ("i_r",)
+    run_forward = only is None
+    reasons["parallel"], reasons["thermal"] = forward_reasons(design) if run_forward else \
+        ("not requested", "not requested")
+    # The recovery charge carried to the application's turn-off: one value per drawn device for
+    # the dynamic check and the thermal check's recovery loss (a turn-off exactly when the
+    # dynamic check can run: an ac waveform or a di_dt).
+    rescaling, note = recovery_rescaling(design) if run_dynamic else (None, "")
+    forward = None
+    if not (reasons["parallel"] and reasons["thermal"]):
+        forward = forward_setup(design, reasons["parallel"], reasons["thermal"], rescaling)
+        parameters = tuple(dict.fromkeys(parameters + forward_parameters(design)))
+    series = series_setup(design, run_static=reasons["static"] == "", run_dynamic=run_dynamic,
+                          rescaling=rescaling)
+    context = _ChunkContext(design=design, seed=seed, parameters=parameters, series=series,
+                            forward=forward, driver_trials=DRIVER_TRIALS if drivers else 0)
+    return _Plan(context=context, reasons=reasons, run_forward=run_forward, note=note)
+
+
+@dataclass(frozen=True)
 class _ChunkOutcome:
-    static: PositionSums | None
-    dynamic: PositionSums | None
+    series: SeriesChunk
     forward: ForwardChunk | None
     features: dict[str, np.ndarray] | None
 
 
-def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
-    """Draw and solve one chunk of trials; its sums, to be merged in trial order."""
+@dataclass
+class _Run:
+    """The chunks merged: each check's accumulator, and the drivers' features and ratios."""
+
+    series: SeriesAccumulator
+    forward: ForwardAccumulator
+    features: dict[str, list]
+    ratios: dict[str, list]
+
+
+def _run_chunks(plan: _Plan, trials: int, chunk_trials: int | None,
+                progress: ProgressCallback | None, pool: WorkerPool | None) -> _Run:
+    """Evaluate every chunk (in ``pool``'s workers if any) and merge them in trial order."""
+    context = plan.context
     design = context.design
-    shape = context.limits.shape
+    layout = design.string
+    run = _Run(series=SeriesAccumulator(context.series), forward=ForwardAccumulator(),
+               features={}, ratios={name: [] for name in RARE_CHECKS})
+    if chunk_trials is None:
+        chunk_trials = chunk_size(trials, CHUNK_ELEMENTS // (layout.series * layout.parallel), pool)
+    bounds = chunk_bounds(trials, chunk_trials)
+    for number, outcome in enumerate(map_chunks(_run_chunk, context, bounds, pool=pool,
+                                                progress=progress)):
+        run.series.merge(outcome.series)
+        if outcome.forward is not None:
+            run.forward.merge(outcome.forward)
+        if outcome.features is not None:
+            _keep_driver_figures(run, outcome)
+        if number == 0 and len(bounds) > 1:
+            # What the first chunk keeps, as merged, tells what the whole run will keep.
+            _check_memory(design, trials, _per_trial_bytes(outcome, bounds[0][1]))
+    return run
+
+
+def _keep_driver_figures(run: _Run, outcome: _ChunkOutcome) -> None:
+    """The drivers' inputs and each check's worst ratio of the chunk's first trials."""
+    for name, values in outcome.features.items():
+        run.features.setdefault(name, []).append(values)
+    count = len(next(iter(outcome.features.values())))
+    for name, accumulator in outcome.series.sums().items():
+        run.ratios[name].append(np.concatenate(accumulator.worst_ratios)[:count])
+    if outcome.forward is not None:
+        run.ratios["parallel"].append(outcome.forward.current_ratio[:count])
+        if outcome.forward.tj_ratio is not None:
+            run.ratios["thermal"].append(outcome.forward.tj_ratio[:count])
+
+
+def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
+    """Draw one chunk of trials and evaluate every check on it; its sums, to be merged in trial
+    order."""
+    design = context.design
     drawn = draw_strings(design, context.parameters, first, count, seed=context.seed)
-    static = PositionSums(shape, context.limits) if context.run_static else None
-    dynamic = PositionSums(shape, context.limits) if context.run_dynamic else None
-    devices = _devices(context, drawn)
-    if drawn.part_index is None:
-        # The solvers work through the chunk in slices of whole sampling blocks, small enough for
-        # their temporaries to stay in cache; the accumulators take them in trial order.
-        slices = [drawn.trial_slice(start, _SOLVE_TRIALS) for start in range(0, count, _SOLVE_TRIALS)]
-    else:
-        # With a mix, each drawn device's own part constants, (trials, parallel, series), cover
-        # the whole chunk at once.
-        slices = [drawn]
-    own_limits = None if drawn.part_index is None else devices.limits
-    for part in slices:
-        if static is not None:
-            static.device_limits = own_limits
-            _static_chunk(design, part, static, devices.temperature, devices.reference_voltage,
-                          devices.reference_temperature, devices.doubling_temperature,
-                          devices.voltage_exponent)
-            static.device_limits = None
-        if dynamic is not None:
-            dynamic.device_limits = own_limits
-            _dynamic_chunk(design, part, dynamic, devices.junction_capacitance, context.rescaling)
-            dynamic.device_limits = None
+    series = run_series_chunk(design, context.series, drawn)
     forward = None
     if context.forward is not None:
-        forward = run_forward_chunk(design, devices.forward, drawn)
+        forward = run_forward_chunk(design, _forward_devices(context, drawn), drawn)
     features = None
     if first < context.driver_trials:
         features = chunk_features(drawn, design, min(count, context.driver_trials - first))
-    return _ChunkOutcome(static=static, dynamic=dynamic, forward=forward, features=features)
+    return _ChunkOutcome(series=series, forward=forward, features=features)
+
+
+def _forward_devices(context: _ChunkContext, drawn: DrawnStrings) -> ForwardSetup:
+    """The forward checks' constants, each drawn device's own under a mix."""
+    if drawn.part_index is None:
+        return context.forward
+    return forward_for_devices(context.design, context.forward, drawn)
+
+
+def _transient(design: Design, dynamic, plan: _Plan, trials: int, seed: int, worst: int,
+               sample: int | None, drivers: bool) -> CheckOutcome:
+    """The transient check on the dynamic check's worst trials and a random sample."""
+    if dynamic is None:
+        return not_run_transient(f"needs the dynamic check, which did not run: "
+                                 f"{plan.reasons['dynamic']}")
+    confidence = design.monte_carlo.confidence
+    target = design.sizing.target_p_fail
+    needed = trials_for_upper_bound(target, confidence=confidence)
+    return run_transient(design, dynamic_ratios=np.concatenate(dynamic.worst_ratios),
+                         trials=trials, seed=seed, worst=worst,
+                         sample=needed if sample is None else sample, confidence=confidence,
+                         target=target, drivers=drivers)
+
+
+def _transient_drivers(check) -> tuple[Driver, ...]:
+    """The transient check's drivers, with their share of its failure point."""
+    rare_estimate = check.rare
+    shares = {item.input: item.share for item in rare_estimate.importance} \
+        if rare_estimate is not None and rare_estimate.found_failure_point else {}
+    return tuple(replace(driver, failure_point_share=shares.get(driver.input))
+                 for driver in check.drivers)
 
 
 def _per_trial_bytes(outcome: _ChunkOutcome, count: int) -> float:
     """Bytes per trial of the figures a chunk's outcome keeps until the end of the run (the worst
     ratio of each trial in each check, the forward checks' per-trial figures)."""
     total = 0
-    for sums in (outcome.static, outcome.dynamic):
-        if sums is not None:
-            total += sum(ratios.nbytes for ratios in sums.worst_ratios)
+    for sums in outcome.series.sums().values():
+        total += sum(ratios.nbytes for ratios in sums.worst_ratios)
     if outcome.forward is not None:
         for name, value in vars(outcome.forward).items():
             # (The runaway-ambient sample is a few rows per block, not per trial.)
@@ -464,130 +484,6 @@ def _bytes(count: float) -> str:
     return f"{count:.0f} B"
 
 
-def _for_devices(context: _ChunkContext, drawn: DrawnStrings) -> _ChunkContext:
-    """The context with each drawn device's own part constants (a mix), (trials, parallel, series)."""
-    design = context.design
-
-    def values(attribute: Callable[[Part], float]) -> np.ndarray:
-        return device_values(design, drawn, attribute)
-
-    return replace(
-        context, limits=design.string.derating * values(lambda p: p.v_rrm),
-        reference_voltage=values(lambda p: p.i_r.at_voltage),
-        reference_temperature=values(lambda p: p.i_r.at_temperature),
-        doubling_temperature=values(lambda p: p.doubling_temperature),
-        voltage_exponent=values(lambda p: p.voltage_exponent),
-        junction_capacitance=values(lambda p: p.c_j),
-        forward=None if context.forward is None else forward_for_devices(design, context.forward,
-                                                                          drawn))
-
-
-def _static_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums,
-                  temperature: np.ndarray, reference_voltage: np.ndarray,
-                  reference_temperature: np.ndarray, doubling_temperature: np.ndarray,
-                  voltage_exponent: np.ndarray) -> None:
-    leakage = leakage_current(drawn.parameters["i_r"], reference_voltage, temperature,
-                              reference_voltage=reference_voltage,
-                              reference_temperature=reference_temperature,
-                              doubling_temperature=doubling_temperature,
-                              voltage_exponent=voltage_exponent)
-    conductance = _grading_conductance(design, drawn, temperature)
-    solution = solve_static_sharing(design.duty.reverse_voltage, conductance, leakage,
-                                    reference_voltage=reference_voltage,
-                                    voltage_exponent=voltage_exponent)
-    converged = np.asarray(solution.converged).reshape(solution.voltages.shape[0], -1).all(axis=1)
-    accumulator.add(solution.voltages, converged, drawn.first_trial)
-
-
-def _grading_conductance(design: Design, drawn: DrawnStrings, temperature: np.ndarray) -> np.ndarray:
-    if drawn.resistance is None:
-        return np.zeros_like(drawn.parameters["i_r"])
-    tcr = design.grading.resistor_tcr
-    resistance = drawn.resistance * (1.0 + tcr * (temperature - RESISTOR_TCR_REFERENCE))
-    return 1.0 / resistance
-
-
-def _dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums,
-                   junction_capacitance: np.ndarray, rescaling: RecoveryRescaling | None) -> None:
-    capacitance = junction_capacitance if drawn.capacitance is None else \
-        drawn.capacitance + junction_capacitance
-    charge = carried_charges(design, drawn, rescaling)
-    capacitance = np.broadcast_to(capacitance, charge.shape)
-    solution = solve_dynamic_sharing(design.duty.reverse_voltage, charge, capacitance)
-    solved = np.ones(solution.voltages.shape[0], dtype=bool)
-    accumulator.add(solution.voltages, solved, drawn.first_trial)
-
-
-def _finish(name: str, accumulator: PositionSums, grid: np.ndarray, confidence: float,
-            trials: int, target: float) -> SeriesCheck:
-    """Summarise one check. It passes when the upper confidence bound of P(fail) is within
-    ``target`` ([sizing] target_p_fail): a run too short to show that cannot pass."""
-    ratios = np.concatenate(accumulator.worst_ratios)
-    # One copy of the per-trial ratios from here on (the transient check reads them again).
-    accumulator.worst_ratios[:] = [ratios]
-    failures = int(np.count_nonzero(~within_limit(ratios)))
-    estimate = failure_estimate(failures, trials, confidence=confidence)
-    moments = accumulator.moments()
-    # No solved trial: the mean of nothing is 0 shifted by nothing, as before (the limit).
-    mean = moments.mean if moments.count else accumulator.limits.copy()
-    # One solved trial has no spread to speak of: 0, as before.
-    variance = moments.variance(ddof=1) if moments.count > 1 else np.zeros(grid.shape)
-    positions = []
-    for branch in range(grid.shape[0]):
-        for index in range(grid.shape[1]):
-            positions.append(PositionStatistics(
-                branch=branch + 1, index=index + 1, part=str(grid[branch, index]),
-                limit=float(accumulator.limits[branch, index]),
-                mean_voltage=float(mean[branch, index]),
-                std_voltage=float(np.sqrt(variance[branch, index])),
-                max_voltage=float(accumulator.maximum[branch, index]),
-                failures=int(accumulator.failures_by_position[branch, index])))
-    finite = ratios[np.isfinite(ratios)]
-    # Both percentiles from one partial sort of ``finite`` in place (no further copy); the
-    # histogram below does not depend on the order.
-    p50, p99 = np.percentile(finite, [50, 99], overwrite_input=True) if finite.size else \
-        (float("nan"), float("nan"))
-    worst_string = accumulator.worst_string if accumulator.worst_string is not None else \
-        np.full(grid.shape, np.nan)
-    return SeriesCheck(
-        name=name, ran=True, reason="", passed=estimate.ci_high <= target,
-        worst_voltage=float(np.max(accumulator.maximum)) if accumulator.count else float("nan"),
-        worst_ratio=float(np.max(ratios)),
-        p50_ratio=float(p50), p99_ratio=float(p99),
-        estimate=estimate, unsolved=accumulator.unsolved, worst_trial=accumulator.worst_trial,
-        worst_string=worst_string, positions=tuple(positions),
-        histogram=tuple(histogram_counts(finite, bins=12)) if finite.size else ())
-
-
-def _not_run(name: str, reason: str) -> SeriesCheck:
-    return SeriesCheck(name=name, ran=False, reason=reason, passed=False, worst_voltage=float("nan"),
-                       worst_ratio=float("nan"), p50_ratio=float("nan"), p99_ratio=float("nan"),
-                       estimate=None, unsolved=0, worst_trial=-1, worst_string=np.empty((0, 0)),
-                       positions=(), histogram=())
-
-
-def evaluate_strings(context: _ChunkContext, drawn: DrawnStrings, check: str) -> np.ndarray:
-    """Each drawn string's worst stress ratio in ``check`` ("static" or "dynamic"); inf unsolved.
-    With a mix each device is judged with its own part's constants and limit."""
-    devices = _devices(context, drawn)
-    accumulator = PositionSums(context.limits.shape, context.limits)
-    if drawn.part_index is not None:
-        accumulator.device_limits = devices.limits
-    if check == "static":
-        _static_chunk(context.design, drawn, accumulator, devices.temperature,
-                      devices.reference_voltage, devices.reference_temperature,
-                      devices.doubling_temperature, devices.voltage_exponent)
-    else:
-        _dynamic_chunk(context.design, drawn, accumulator, devices.junction_capacitance,
-                       context.rescaling)
-    return np.concatenate(accumulator.worst_ratios)
-
-
-def _devices(context: _ChunkContext, drawn: DrawnStrings) -> _ChunkContext:
-    """The context with per-device constants under a mix (:func:`_for_devices`), else itself."""
-    return context if drawn.part_index is None else _for_devices(context, drawn)
-
-
 def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, target: float,
                samples: int, *, automatic: bool = False):
     """The check with its P(fail) estimated by importance sampling, passing on that estimate's
@@ -604,14 +500,14 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
         parameters = ("i_r",) if name == "static" else ("q_rr",)
 
         def evaluate(drawn: DrawnStrings) -> np.ndarray:
-            return evaluate_strings(context, drawn, name)
+            return series_ratios(context.design, context.series, drawn, name)
     else:
         # The forward checks depend on V_T0 and r_T and, through the losses and the junction
         # temperatures, on the leakage and recovery charge.
         parameters = forward_parameters(context.design)
 
         def evaluate(drawn: DrawnStrings) -> np.ndarray:
-            return forward_ratios(context.design, _devices(context, drawn).forward, drawn, name)
+            return forward_ratios(context.design, _forward_devices(context, drawn), drawn, name)
     plain = check.estimate
     try:
         design, refitted = rare_design(context.design)
@@ -625,8 +521,6 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
                                    confidence=confidence, samples=samples,
                                    plain=None if refitted else plain, effort=effort)
     estimate = replace(estimate, automatic=automatic)
-    # The transient check also fails on any of its simulated worst charge-balance strings.
-    worst_ok = getattr(check, "worst_failures", 0) == 0
     if refitted:
         estimate = replace(estimate, estimator=estimate.estimator + (
             f"; the resampled lot(s) of {', '.join(refitted)} drawn from their fit (per column "
@@ -647,7 +541,7 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
     # cannot rule out a failure region it missed, which the estimator declines itself) leaves the
     # verdict to the plain interval.
     bound = estimate.ci_high if estimate.decides else plain.ci_high
-    return replace(check, rare=estimate, passed=bound <= target and worst_ok)
+    return replace(check, rare=estimate, passed=check.passes(bound, target))
 
 
 def _drivers(design: Design, checks, features: dict[str, list], ratios: dict[str, list], *,
@@ -658,7 +552,7 @@ def _drivers(design: Design, checks, features: dict[str, list], ratios: dict[str
     out = []
 
     def rerun(changed: Design, name: str) -> tuple[float, float]:
-        only = (name,) if name in ("static", "dynamic") else None
+        only = (name,) if name in SERIES_CHECKS else None
         again = run_check(changed, trials=trials, seed=seed, only=only, pool=pool).checks[name]
         return again.p99_ratio, again.estimate.ci_high
 
@@ -666,7 +560,7 @@ def _drivers(design: Design, checks, features: dict[str, list], ratios: dict[str
         if name not in checks or not checks[name].ran or not ratios[name]:
             continue
         shares = {}
-        rare = getattr(checks[name], "rare", None)
+        rare = checks[name].rare
         if rare is not None and rare.found_failure_point:
             shares = {item.input: item.share for item in rare.importance}
         ranked = rank_inputs(name, joined, np.concatenate(ratios[name]))

@@ -286,7 +286,7 @@ def review(baseline: Design, candidate: Design, *, trials: int | None = None,
 def _sampled(result: CheckResult) -> set[str]:
     """The checks of a result the importance sampler ran on."""
     return {name for name, check in result.checks.items()
-            if check.ran and getattr(check, "rare", None) is not None}
+            if check.ran and check.rare is not None}
 
 
 def _compared_bounds(base_check, cand_check) -> tuple[float | None, str, float | None, str]:
@@ -295,7 +295,7 @@ def _compared_bounds(base_check, cand_check) -> tuple[float | None, str, float |
     a tight bound against a loose one would make a better part look worse, or a worse one
     better). Each with the estimator's name."""
     def deciding(check):
-        rare = getattr(check, "rare", None) if check is not None and check.ran else None
+        rare = check.rare if check is not None and check.ran else None
         return rare if rare is not None and rare.decides else None
 
     def plain(check):

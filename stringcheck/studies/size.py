@@ -34,6 +34,7 @@ from stringcheck.physics.leakage import leakage_current
 from stringcheck.units import format_quantity
 from stringcheck.montecarlo.quantile_maps import spread_quantile
 from stringcheck.montecarlo.estimates import trials_for_upper_bound
+from stringcheck.checks.grading_ratings import GradingSummary
 from stringcheck.studies.check import CheckResult, run_check
 from stringcheck.checks.preconditions import with_recovery_charge
 from stringcheck.checks.recovery_conditions import recovery_rescaling, rescale_charges
@@ -74,26 +75,6 @@ class LadderChoice:
 
 
 @dataclass(frozen=True)
-class Ratings:
-    """What the chosen network must be rated for, per stage and for the stack (SI)."""
-
-    resistor_voltage_required: float | None
-    resistor_power_continuous: float | None
-    resistor_power_duty: float | None
-    resistor_power_required: float | None
-    grading_loss_total: float | None
-    capacitor_voltage_required: float | None
-    damping_loss_per_stage: float | None
-    damping_loss_total: float | None
-    stage_energy: float | None
-    total_energy: float | None
-    discharge_time: float
-    worst_stage_voltage: float
-    derating: float
-    worst_voltage_check: str = ""
-
-
-@dataclass(frozen=True)
 class DampingCandidate:
     """One damping resistor tried in the time domain."""
 
@@ -114,7 +95,9 @@ class SizingResult:
     damping_rule: str
     series_count: int
     series_searched: bool
-    ratings: Ratings
+    # The sized network's summary with the ratings its parts must have (``GradingSummary``'s
+    # sizing fields filled in).
+    ratings: GradingSummary
     check: CheckResult
     target_p_fail: float
     advisories: tuple[str, ...]
@@ -574,13 +557,17 @@ def _smallest_series(design: Design, trials: int, seed: int, pool: WorkerPool | 
     raise SizingError(f"no device count up to {last} passes with this network")
 
 
-def _ratings(design: Design, check: CheckResult) -> Ratings:
+def _ratings(design: Design, check: CheckResult) -> GradingSummary:
+    """The check's grading summary with the ratings the sized network's parts must have. The
+    stack's stored energy and discharge time are taken at the first branch's parts, with their
+    mean capacitance (as ``size`` has always reported them; the check's own summary takes every
+    branch)."""
     grading, duty, layout = design.grading, design.duty, design.string
     derating = layout.derating
     stages = layout.series * layout.parallel
     nominal = duty.reverse_voltage / layout.series
     static = check.checks["static"].worst_voltage
-    worst = check.grading.worst_resistor_voltage
+    worst = check.grading.worst_stage_voltage
     r = grading.resistor
     continuous = float(resistor_power(static, r, waveform="dc")) if r else None
     duty_power = float(resistor_power(static, r, waveform=duty.waveform)) if r else None
@@ -594,20 +581,19 @@ def _ratings(design: Design, check: CheckResult) -> Ratings:
     capacitance = junction + (c or 0.0)
     resistances = np.full(layout.series, np.inf if r is None else r)
     time = float(discharge_time(np.full(layout.series, nominal), resistances, capacitance))
-    return Ratings(
+    return replace(
+        check.grading,
         resistor_voltage_required=worst / derating if r else None,
         resistor_power_continuous=continuous,
         resistor_power_duty=duty_power,
         resistor_power_required=duty_power / derating if duty_power is not None else None,
-        grading_loss_total=loss,
+        total_grading_loss=loss,
         capacitor_voltage_required=worst / derating if c else None,
         damping_loss_per_stage=damping_loss,
         damping_loss_total=damping_loss * stages if damping_loss is not None else None,
         stage_energy=float(stored_energy(c, worst)) if c else None,
         total_energy=float(stages * stored_energy(capacitance.mean(), nominal)),
         discharge_time=time,
-        worst_stage_voltage=worst,
         derating=derating,
-        worst_voltage_check=check.grading.worst_voltage_check,
     )
 

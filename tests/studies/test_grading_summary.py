@@ -56,7 +56,7 @@ def test_ratings_are_judged_at_the_simulated_turn_off_peak():
     checks = result.checks
     peaks = {name: checks[name].worst_voltage for name in ("static", "dynamic", "transient")}
     assert peaks["static"] < 1200.0 and peaks["dynamic"] < 1200.0 < peaks["transient"], peaks
-    assert result.grading.worst_resistor_voltage == max(peaks.values())
+    assert result.grading.worst_stage_voltage == max(peaks.values())
     assert result.grading.worst_voltage_check == "transient"
     problems = result.grading.rating_problems
     assert any(p.startswith("grading resistor sees") and "simulated turn-off" in p
@@ -72,6 +72,6 @@ def test_without_the_transient_the_charge_balance_worst_rates_the_parts():
     # The same 1.2 kV ratings hold against the checks that ran when the turn-off is not simulated.
     result = _run("1.2 kV", transient=False)
     assert result.grading.worst_voltage_check in ("static", "dynamic")
-    assert result.grading.worst_resistor_voltage == max(
+    assert result.grading.worst_stage_voltage == max(
         result.checks[name].worst_voltage for name in ("static", "dynamic"))
     assert not result.grading.rating_problems

@@ -219,7 +219,7 @@ def test_a_search_stopped_at_its_cap_does_not_decide(monkeypatch):
     # Room for one region where there are two: the estimate (about half of P(fail)) says it cannot
     # rule out a region it did not search, and the plain run (0 of 4,096: up to 9e-4) decides:
     # the check fails for too few trials instead of passing at half the probability.
-    from stringcheck.report.check_sections import rare_to_dict
+    from stringcheck.checks.outcome import rare_to_dict
     from stringcheck.report.terminal import _plain_mark
 
     monkeypatch.setattr(rare_events, "MAX_REGIONS", 1)
