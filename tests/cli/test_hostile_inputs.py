@@ -26,7 +26,7 @@ from typer.testing import CliRunner
 from stringcheck.cli.app import app
 
 runner = CliRunner()
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 EXAMPLES = ROOT / "examples"
 LINUX = pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="needs Linux /proc")
 

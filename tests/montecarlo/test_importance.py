@@ -252,7 +252,7 @@ def test_importance_sampling_of_the_parallel_check_against_two_half_planes(paral
 
 
 def _parallel_group(text: str, branches: int, beta: float) -> str:
-    """PARALLEL_PAIR with ``branches`` branches and I_F(AV) put at ``beta`` (see below)."""
+    """tests/designs/parallel_pair.toml with ``branches`` branches and I_F(AV) put at ``beta`` (see below)."""
     # m branches, one V_T0 each, one r_T: i_k = I / m + (mean V_T0 - V_T0,k) / r_T (DESIGN.md 4,
     # forward sharing by hand), so branch k fails when sigma w_k > d = r_T (I_F(AV) - I / m), with
     # w_k = mean z - z_k, Var w_k = (m - 1) / m: a half-plane at beta = d / (sigma sqrt((m-1)/m)).
