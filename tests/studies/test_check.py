@@ -7,6 +7,7 @@ import pytest
 from stringcheck.design.reading import parse_design_text
 from stringcheck.errors import DesignError
 from stringcheck.physics.grading import worst_case_dynamic_capacitance, worst_case_static_resistance
+import stringcheck.studies.check as check_study
 from stringcheck.studies.check import run_check
 from tests.designs import corner_design, design_text
 
@@ -151,3 +152,38 @@ def test_positions_without_scatter_report_zero_spread_and_the_exact_voltage():
         for position in result.checks[name].positions:
             assert position.std_voltage == 0.0, (name, position)
             assert position.mean_voltage == position.max_voltage, (name, position)
+
+
+def test_the_tcr_reference_temperature_is_the_studys():
+    from stringcheck.design import model as design
+
+    assert design.RESISTOR_TCR_REFERENCE == check_study.RESISTOR_TCR_REFERENCE
+
+
+# Found by the fuzzing of tests/checks/test_fuzz.py (fixed).
+_STALLED_DESIGN = """
+[duty]
+reverse_voltage = "1 kV"
+[string]
+series = 2
+part = "COLD"
+[[string.position]]
+index = 1
+part = "HOT"
+[parts.HOT]
+v_rrm = "1 kV"
+i_r = { typ = "125 nA", at_voltage = "1 kV", at_temperature = "25 degC" }
+leakage_voltage_exponent = 0.01
+[parts.COLD]
+v_rrm = "1 kV"
+i_r = { typ = "0.125 nA", at_voltage = "1 kV", at_temperature = "25 degC" }
+leakage_voltage_exponent = 0.01
+"""
+
+
+@pytest.mark.filterwarnings("ignore::RuntimeWarning")  # the overflow this bug causes
+def test_check_counts_a_trial_the_static_solver_could_not_solve():
+    result = check_study.run_check(parse_design_text(_STALLED_DESIGN), trials=3, seed=1)
+    static = result.checks["static"]
+    assert static.unsolved == 3 or sum(p.mean_voltage for p in static.positions) == \
+        pytest.approx(1000.0, rel=1e-9), [p.mean_voltage for p in static.positions]
