@@ -19,11 +19,13 @@ import tempfile
 from typing import Any
 
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, Phase, find, given, settings
 from hypothesis import strategies as st
 
 import stringcheck.report.export as export
 import stringcheck.studies.check as check_study
+from stringcheck.checks.forward import forward_reasons
+from stringcheck.checks.transient import transient_reason
 from stringcheck.design.device_classes import PRESET_NAMES
 from stringcheck.design.model import Design
 from stringcheck.design.reading import load_design, parse_design_text
@@ -123,7 +125,7 @@ def quantity(draw, value: float, unit: str, *, bare_allowed: bool = True) -> Any
     """``value`` [SI] written as a bare number or as text with a unit and a prefix."""
     if bare_allowed and draw(st.booleans()):
         return value
-    if unit in ("degC", "K", "%", "ppm/K", "1/K"):
+    if unit in ("degC", "K", "%", "ppm/K", "1/K", "K/W", "V/K"):
         return f"{value!r} {unit}"
     prefix = draw(st.sampled_from(sorted(_PREFIXES)))
     spelling = {"ohm": draw(st.sampled_from(["Ohm", "ohm", "\u03a9"]))}.get(unit, unit)
@@ -153,10 +155,38 @@ def spread(draw, typ: float, unit: str, *, ratio: float = 10.0) -> Any:
 
 
 @st.composite
-def valid_designs(draw) -> dict[str, Any]:
-    """A design dictionary that the loader must accept (our own invented stacks)."""
+def forward_spread(draw, typ: float, unit: str, *, ratio: float) -> Any:
+    """A forward-characteristic spread (v_t0, r_t): a typical value, a maximum or both."""
+    form = draw(st.sampled_from(["typ-max", "typ", "scalar", "min-typ-max"]))
+    if form == "scalar":
+        return draw(quantity(typ, unit))
+    body: dict[str, Any] = {}
+    if form == "min-typ-max":
+        body["min"] = draw(quantity(float(f"{typ / draw(st.floats(1.0, ratio)):.6g}"), unit))
+    body["typ"] = draw(quantity(typ, unit))
+    if "max" in form:
+        body["max"] = draw(quantity(float(f"{typ * draw(st.floats(1.0, ratio)):.6g}"), unit))
+    if draw(st.booleans()):
+        body["at_temperature"] = draw(quantity(draw(st.sampled_from([25.0, 125.0])), "degC"))
+    return body
+
+
+@st.composite
+def valid_designs(draw, *, transient: bool = False) -> dict[str, Any]:
+    """A design dictionary that the loader must accept (our own invented stacks).
+
+    Part of them carry a forward current with every part's forward characteristic and rated
+    current, and part of those the thermal data too, so that the parallel and the thermal checks
+    run (``checks.forward.forward_reasons``: duty.forward_current; v_t0, r_t of every part and
+    i_fav with two branches or more; r_th_jc, t_j_max of every part and thermal.r_th_sa); part
+    give the recovery data the transient check fits (q_rr at a test di/dt with t_rr). With
+    ``transient``, every part gives that data itself (no class whose charge would meet a drawn
+    i_rm or t_rr) and the duty a turn-off di/dt, so that the transient check runs."""
     series = draw(st.integers(1, 10))
     parallel = draw(st.integers(1, 3))
+    forward = draw(st.booleans())
+    thermal = forward and draw(st.integers(0, 3)) > 0
+    i_fav_min = math.inf
     derating = draw(st.sampled_from([0.5, 0.6, 0.7, 0.8, 0.9, 1.0]))
     part_names = draw(st.lists(st.sampled_from(["MAIN", "ALT", "B2", "x-1", "second source"]),
                                min_size=1, max_size=2, unique=True))
@@ -167,7 +197,7 @@ def valid_designs(draw) -> dict[str, Any]:
         v_rrm = draw(_log_uniform(200.0, 6000.0))
         v_rrm_min = min(v_rrm_min, v_rrm)
         body: dict[str, Any] = {}
-        if draw(st.booleans()):
+        if not transient and draw(st.booleans()):
             body["class"] = draw(st.sampled_from(PRESET_NAMES))
         body["v_rrm"] = draw(quantity(v_rrm, "V"))
         leakage = draw(_log_uniform(1e-9, 1e-4))
@@ -178,16 +208,46 @@ def valid_designs(draw) -> dict[str, Any]:
         if isinstance(i_r, dict) and draw(st.booleans()):
             i_r["at_voltage"] = draw(quantity(v_rrm, "V"))
         body["i_r"] = i_r
-        recovery = draw(st.sampled_from(["q_rr", "i_rm-t_rr", "none"]))
+        recovery = "q_rr-t_rr" if transient else \
+            draw(st.sampled_from(["q_rr", "i_rm-t_rr", "none", "q_rr-t_rr"]))
         if recovery == "q_rr":
             body["q_rr"] = draw(spread(draw(_log_uniform(5e-9, 5e-6)), "C", ratio=3.0))
+        elif recovery == "q_rr-t_rr":
+            # At one test di/dt, with t_rr above the shortest the charge allows
+            # (Q_rr <= di/dt t_rr^2 / 2, the triangular recovery's bound).
+            charge = draw(_log_uniform(5e-9, 5e-6))
+            test_di_dt = draw(_log_uniform(1e6, 2e8))
+            q_rr = draw(spread(charge, "C", ratio=3.0))
+            if not isinstance(q_rr, dict):
+                q_rr = {"typ": q_rr}
+            q_rr["at_di_dt"] = draw(quantity(test_di_dt, "A/s"))
+            if not forward or draw(st.booleans()):
+                q_rr["at_forward_current"] = draw(quantity(draw(_log_uniform(1.0, 100.0)), "A"))
+            body["q_rr"] = q_rr
+            shortest = math.sqrt(2.0 * charge / test_di_dt)
+            body["t_rr"] = {"typ": draw(quantity(float(f"{shortest * draw(st.floats(1.5, 4.0)):.6g}"),
+                                                 "s"))}
         elif recovery == "i_rm-t_rr":
             body["i_rm"] = draw(spread(draw(_log_uniform(0.1, 20.0)), "A", ratio=2.0))
             body["t_rr"] = draw(spread(draw(_log_uniform(2e-8, 5e-6)), "s", ratio=2.0))
         if draw(st.booleans()):
             body["c_j"] = draw(quantity(draw(_log_uniform(1e-12, 1e-9)), "F"))
-        if draw(st.booleans()):
+        if thermal or draw(st.booleans()):
             body["t_j_max"] = draw(quantity(ambient + draw(st.floats(60.0, 120.0)), "degC"))
+        if forward:
+            body["v_t0"] = draw(forward_spread(draw(st.floats(0.6, 1.5)), "V", ratio=1.3))
+            body["r_t"] = draw(forward_spread(draw(_log_uniform(1e-3, 5e-2)), "ohm", ratio=1.5))
+            i_fav = draw(_log_uniform(1.0, 50.0))
+            i_fav_min = min(i_fav_min, i_fav)
+            body["i_fav"] = draw(quantity(i_fav, "A"))
+            if draw(st.booleans()):
+                body["tempco_v_t0"] = draw(st.sampled_from(["-2 mV/K", "-1.5 mV/K", "0 V/K"]))
+            if draw(st.booleans()):
+                body["tempco_r_t"] = draw(st.sampled_from(["0.003 1/K", "0.004 1/K"]))
+        if thermal:
+            body["r_th_jc"] = draw(quantity(draw(_log_uniform(0.05, 1.5)), "K/W"))
+            if draw(st.booleans()):
+                body["r_th_cs"] = draw(quantity(draw(_log_uniform(0.01, 0.3)), "K/W"))
         if draw(st.booleans()):
             body["leakage_doubling"] = draw(quantity(draw(st.floats(6.0, 15.0)), "K"))
         if draw(st.booleans()):
@@ -217,10 +277,16 @@ def valid_designs(draw) -> dict[str, Any]:
     waveform = draw(st.sampled_from([None, "dc", "half-sine", "square"]))
     if waveform is not None:
         duty["waveform"] = waveform
-    if draw(st.booleans()):
+    if transient or draw(st.booleans()):
         duty["di_dt"] = draw(quantity(draw(_log_uniform(1e5, 5e8)), "A/s"))
+    if transient and draw(st.booleans()):
+        duty["stray_inductance"] = draw(quantity(draw(_log_uniform(1e-7, 1e-5)), "H"))
     if draw(st.booleans()):
         duty["frequency"] = draw(quantity(draw(_log_uniform(10.0, 1e5)), "Hz"))
+    if forward:
+        # The group's average current: up to a little above every branch at its rating.
+        duty["forward_current"] = draw(quantity(
+            float(f"{parallel * i_fav_min * draw(st.floats(0.1, 1.2)):.6g}"), "A"))
 
     string: dict[str, Any] = {"series": series}
     if parallel > 1 or draw(st.booleans()):
@@ -238,7 +304,7 @@ def valid_designs(draw) -> dict[str, Any]:
         grading["resistor_tolerance"] = draw(st.sampled_from([0.0, 0.01, "1 %", "5 %"]))
         if draw(st.booleans()):
             grading["resistor_tcr"] = draw(st.sampled_from(["100 ppm/K", "-200 ppm/K", 0.0]))
-    if draw(st.integers(0, 4)):
+    if transient or draw(st.integers(0, 4)):
         grading["capacitor"] = draw(quantity(draw(_log_uniform(1e-10, 1e-7)), "F"))
         grading["capacitor_tolerance"] = draw(st.sampled_from([0.0, 0.1, "10 %", "20 %"]))
 
@@ -260,6 +326,14 @@ def valid_designs(draw) -> dict[str, Any]:
         "grading": grading,
         "monte_carlo": monte_carlo,
     }
+    if thermal:
+        cooling: dict[str, Any] = {"r_th_sa": draw(quantity(draw(_log_uniform(0.02, 1.0)),
+                                                            "K/W"))}
+        if draw(st.booleans()):
+            cooling["heatsink"] = draw(st.sampled_from(["shared", "separate"]))
+        if draw(st.booleans()):
+            cooling["path_resistance"] = draw(quantity(draw(_log_uniform(1e-4, 1e-2)), "ohm"))
+        design["thermal"] = cooling
     if draw(st.booleans()):
         design["sizing"] = {"target_p_fail": draw(st.sampled_from([1e-3, 0.01, 0.5]))}
     return design
@@ -400,28 +474,72 @@ def _load_or_own_error(text: str) -> Design | None:
     return design
 
 
-def _assert_runs_to_a_finite_verdict(design: Design) -> None:
-    """run_check gives a verdict and finite figures, or refuses with the package's own error."""
+def _assert_runs_to_a_finite_verdict(design: Design, *, transient: bool = False) -> None:
+    """run_check gives a verdict and finite figures, or refuses with the package's own error.
+
+    Every check is judged through the fields that each check's result has (name, ran, reason,
+    passed, worst / p50 / p99 ratio, estimate, unsolved), then through its own figures."""
     try:
-        result = check_study.run_check(design, trials=_FUZZ_TRIALS, seed=1)
+        result = check_study.run_check(design, trials=_FUZZ_TRIALS, seed=1, transient=transient,
+                                       transient_worst=1, transient_sample=1)
     except StringcheckError as error:
         # The study's own input checks (e.g. "the dynamic check needs capacitance") name a key.
         assert isinstance(error, DesignError) and error.key, error
         return
     assert result.verdict in ("pass", "fail")
+    devices = design.string.series * design.string.parallel
     for name, outcome in result.checks.items():
+        assert outcome.name == name
+        assert isinstance(outcome.ran, bool) and isinstance(outcome.passed, bool), name
         if not outcome.ran:
             assert outcome.reason, name
+            assert not outcome.passed, name  # a check that did not run never passes
             continue
-        # README "Failure": a trial the solver could not solve is counted, never dropped.
-        assert outcome.unsolved == 0, (name, outcome.unsolved)
-        assert math.isfinite(outcome.worst_ratio) and math.isfinite(outcome.worst_voltage), name
         estimate = outcome.estimate
         assert 0.0 <= estimate.ci_low <= estimate.p_fail <= estimate.ci_high <= 1.0, name
-        assert len(outcome.positions) == design.string.series * design.string.parallel
-        for position in outcome.positions:
-            assert all(math.isfinite(value) for value in (
-                position.mean_voltage, position.std_voltage, position.max_voltage)), position
+        # A check passes on the upper bound of its failure probability (DESIGN.md section 4).
+        assert not outcome.passed or estimate.ci_high <= result.target_p_fail, name
+        assert not math.isnan(outcome.worst_ratio), name
+        if outcome.unsolved == 0:
+            assert math.isfinite(outcome.worst_ratio), name
+            assert outcome.p50_ratio <= outcome.p99_ratio <= outcome.worst_ratio, name
+        else:
+            # README "Failure": a trial that could not be solved is a failure, never dropped.
+            assert outcome.worst_ratio == math.inf, name
+        if name in ("static", "dynamic"):
+            # README "Failure": a trial the solver could not solve is counted, never dropped.
+            assert outcome.unsolved == 0, (name, outcome.unsolved)
+            assert math.isfinite(outcome.worst_ratio) and math.isfinite(outcome.worst_voltage), name
+            assert len(outcome.positions) == devices
+            for position in outcome.positions:
+                assert all(math.isfinite(value) for value in (
+                    position.mean_voltage, position.std_voltage, position.max_voltage)), position
+        elif name == "parallel":
+            assert estimate.failures >= outcome.unsolved, name
+            assert len(outcome.branches) == design.string.parallel
+            if outcome.unsolved == 0:
+                assert math.isfinite(outcome.worst_share), name
+                for branch in outcome.branches:
+                    assert all(math.isfinite(value) for value in (
+                        branch.mean_current, branch.max_current, branch.mean_share,
+                        branch.max_share)), branch
+        elif name == "thermal":
+            # A group that runs away is an unsolved trial and a failure.
+            assert estimate.failures >= outcome.unsolved, name
+            assert len(outcome.positions) == devices
+            if outcome.unsolved == 0:
+                assert math.isfinite(outcome.worst_tj), name
+                assert all(math.isfinite(p.max_temperature) for p in outcome.positions), name
+        elif name == "transient":
+            # Unsolved strings of the random sample count in its estimate, those of the worst set
+            # among the worst set's failures.
+            assert estimate.failures + outcome.worst_failures >= outcome.unsolved, name
+            assert len(outcome.positions) == devices
+            if outcome.unsolved == 0:
+                assert math.isfinite(outcome.worst_voltage), name
+                assert all(math.isfinite(p.max_voltage) for p in outcome.positions), name
+        else:
+            raise AssertionError(f"a check the fuzzing does not know: {name}")
     # Machine output can always be written (JSON has no NaN, export.json_text refuses them).
     json.loads(export.json_text(export.result_to_dict(result)))
     export.positions_csv(result)
@@ -433,6 +551,33 @@ def test_fuzz_valid_designs_load_and_give_a_finite_verdict(design):
     text = to_toml(design)
     loaded = parse_design_text(text, source="fuzz.toml")  # valid: must load
     _assert_runs_to_a_finite_verdict(loaded)
+
+
+# The transient check simulates each chosen string in the time domain (about a second a string):
+# fewer designs, one worst and one sampled string each.
+_FUZZ_TRANSIENT = settings(_FUZZ, max_examples=4)
+
+
+@pytest.mark.slow
+@_FUZZ_TRANSIENT
+@given(valid_designs(transient=True))
+def test_fuzz_designs_with_a_turn_off_give_a_finite_verdict_in_the_transient_check(design):
+    loaded = parse_design_text(to_toml(design), source="fuzz.toml")  # valid: must load
+    _assert_runs_to_a_finite_verdict(loaded, transient=True)
+
+
+def _ready(design: dict[str, Any], reasons) -> bool:
+    return reasons(parse_design_text(to_toml(design), source="fuzz.toml")) in ("", ("", ""))
+
+
+def test_the_fuzzed_designs_reach_every_check():
+    # The fuzzing above is only as wide as its designs: some must let the parallel and the thermal
+    # check run (checks.forward.forward_reasons), some the transient check (its own reasons).
+    # Generation only: the first design that qualifies is the evidence, shrinking it adds nothing.
+    settled = settings(max_examples=500, deadline=None, database=None, phases=[Phase.generate],
+                       suppress_health_check=list(HealthCheck))
+    find(valid_designs(), lambda d: _ready(d, forward_reasons), settings=settled)
+    find(valid_designs(transient=True), lambda d: _ready(d, transient_reason), settings=settled)
 
 
 @_FUZZ
