@@ -545,6 +545,7 @@ def _assert_runs_to_a_finite_verdict(design: Design, *, transient: bool = False)
     export.positions_csv(result)
 
 
+@pytest.mark.slow
 @_FUZZ
 @given(valid_designs())
 def test_fuzz_valid_designs_load_and_give_a_finite_verdict(design):

@@ -497,6 +497,7 @@ def test_workers_two_and_one_give_identical_json(demo_file, tmp_path):
     assert outputs[0] == outputs[1]
 
 
+@pytest.mark.slow
 def test_workers_two_and_one_give_identical_json_with_the_forward_checks(tmp_path):
     # The parallel and thermal checks too: the runaway-ambient sample is taken per sampling block
     # and the junction-temperature sums are added block by block (they were per chunk, and the
@@ -526,7 +527,10 @@ def test_workers_below_one_is_bad_input(demo_file):
 EXAMPLES = sorted((Path(__file__).resolve().parents[2] / "examples").glob("*.toml"))
 
 
-@pytest.mark.parametrize("path", EXAMPLES, ids=[p.stem for p in EXAMPLES])
+# The furnace example runs the parallel and thermal checks on three branches: a few seconds.
+@pytest.mark.parametrize("path", [
+    pytest.param(p, marks=pytest.mark.slow) if p.stem == "furnace-rectifier-3x2-parallel" else p
+    for p in EXAMPLES], ids=[p.stem for p in EXAMPLES])
 def test_every_example_runs_to_a_verdict(path):
     # The README lists them as working scenarios: each must load and give pass or fail (0 or 1).
     result = invoke("check", str(path), "--trials", "300", "--quiet")

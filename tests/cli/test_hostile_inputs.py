@@ -165,6 +165,7 @@ def _alive(pid: int) -> bool:
     return state != "Z"
 
 
+@pytest.mark.slow
 @LINUX
 def test_sigterm_stops_the_worker_processes_and_exits_143(tmp_path):
     kept = tmp_path / "kept.json"

@@ -385,6 +385,7 @@ def test_cli_review_mix_exit_codes(tmp_path):
         assert both.exit_code == 2 and "exactly one" in both.stderr, both.output
 
 
+@pytest.mark.slow
 def test_cli_mixing_a_lower_threshold_part_into_a_parallel_group_worsens_the_share(tmp_path):
     # Forward sharing (DESIGN.md 4): a branch with a lower V_T0 takes more of the group current.
     text = (EXAMPLES / "furnace-rectifier-3x2-parallel.toml").read_text(encoding="utf-8")
