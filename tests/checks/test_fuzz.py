@@ -157,6 +157,7 @@ def spread(draw, typ: float, unit: str, *, ratio: float = 10.0) -> Any:
 @st.composite
 def forward_spread(draw, typ: float, unit: str, *, ratio: float) -> Any:
     """A forward-characteristic spread (v_t0, r_t): a typical value, a maximum or both."""
+    typ = float(f"{typ:.6g}")  # as written, so that min <= typ <= max holds after rounding
     form = draw(st.sampled_from(["typ-max", "typ", "scalar", "min-typ-max"]))
     if form == "scalar":
         return draw(quantity(typ, unit))
