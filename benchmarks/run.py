@@ -317,7 +317,7 @@ def bench_turn_off(trials: int, reference_trials: int) -> dict:
 
 
 # Two stages, one with unscreened lognormal leakage: the failure region is a half-plane in latent
-# space, P(fail) = Phi(-beta) exactly (tests/studies/test_rare_events.py has the derivation).
+# space, P(fail) = Phi(-beta) exactly (tests/montecarlo/test_importance.py has the derivation).
 RARE_DESIGN = """
 [duty]
 reverse_voltage = "2 kV"

@@ -14,7 +14,7 @@ from stringcheck.design.reading import parse_design_text
 from stringcheck.limits import LIMIT_RTOL, within_limit
 from stringcheck.studies.check import run_check
 
-from .studies.test_check import corner_design
+from tests.designs import corner_design
 
 
 def test_tolerance_is_four_ulps_of_one():

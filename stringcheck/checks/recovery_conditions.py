@@ -5,7 +5,7 @@ parameters (tau, T_M; ``physics.charge_control``) are fitted to its typical Q_rr
 there; a device's drawn Q_rr then maps onto its own tau at the fixed T_M, and the model gives its
 Q_rr at the application's turn-off current (:func:`turn_off_current`) and di/dt. The map is
 monotone, so it is evaluated exactly on a grid of drawn values per part and interpolated in log-log
-coordinates (relative error below 1e-6; tests/studies/test_recovery_conditions.py).
+coordinates (relative error below 1e-6; tests/checks/test_recovery_conditions.py).
 :func:`carried_charges` gives every check that needs the recovery charge of a drawn device (the
 dynamic check's charge balance, the thermal check's recovery loss) the same value.
 """

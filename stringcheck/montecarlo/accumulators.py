@@ -8,7 +8,7 @@ shifted-data algorithm (:func:`unit_moments`, vectorized over the units); a samp
 are its units' merged pairwise in unit order (:class:`BlockMoments`, which holds the units of a block
 cut over several chunks until it is complete); and the blocks are merged pairwise in block order at
 the end (``stats.merge_moments``). numpy's reduction of a unit depends only on the unit's values,
-not on how many units one call holds nor where they sit in memory (tests/studies/test_sub_blocks.py
+not on how many units one call holds nor where they sit in memory (tests/montecarlo/test_sub_blocks.py
 checks sub-blocks against whole blocks bit for bit), so a run gives the same figures bit for bit
 whatever its chunk size, its sub-blocks (a string too large for a block in memory) or its number of
 worker processes. A position without scatter has a sum of squared deviations of exactly 0.

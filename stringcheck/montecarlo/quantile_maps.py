@@ -302,7 +302,7 @@ def _from_uniform(u: np.ndarray, low: float, high: float, upper: float, lower: f
 
 # The table of the truncation map: intervals of _TABLE_STEP on [-_TABLE_RANGE, _TABLE_RANGE], a
 # polynomial of _TABLE_DEGREE on each. Degree 4 on steps of 1/256 reproduces the exact map within
-# 6e-15 for limits at 1 to 6 standard deviations (tests/test_sampling.py).
+# 6e-15 for limits at 1 to 6 standard deviations (tests/montecarlo/test_sampling.py).
 _TABLE_RANGE = 8.0
 _TABLE_STEP = 2.0**-8
 _TABLE_DEGREE = 4

@@ -309,3 +309,16 @@ def test_lowering_every_conductance_by_a_common_amount_never_lowers_the_worst_vo
     before = _solve(string_voltage, resistances, leakage, exponent).voltages.max()
     after = _solve(string_voltage, 1.0 / lowered, leakage, exponent).voltages.max()
     assert after >= before - 1e-10 * string_voltage
+
+
+# Found by the fuzzing of tests/checks/test_fuzz.py (fixed).
+_STALLED = dict(reference_voltage=1000.0, voltage_exponent=0.01)
+
+
+def test_static_solver_never_calls_a_wrong_answer_converged():
+    # Two stages without resistors, leakage 125 nA and 0.125 nA at 1 kV, m = 0.01; our own values,
+    # found by the fuzzing of wide value ranges. Kirchhoff: the stage voltages sum to V_s.
+    solution = solve_static_sharing(1000.0, [0.0, 0.0], [1.25e-7, 1.25e-10], **_STALLED)
+    total = float(solution.voltages.sum())
+    assert not solution.converged or total == pytest.approx(1000.0, rel=1e-9), (
+        solution.converged, solution.voltages)

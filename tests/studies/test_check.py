@@ -7,46 +7,9 @@ import pytest
 from stringcheck.design.reading import parse_design_text
 from stringcheck.errors import DesignError
 from stringcheck.physics.grading import worst_case_dynamic_capacitance, worst_case_static_resistance
+import stringcheck.studies.check as check_study
 from stringcheck.studies.check import run_check
-
-
-def corner_design(*, series=8, string_voltage=9000.0, v_rrm=1400.0, derating=0.9,
-                  leak_low=2e-6, leak_high=12e-6, charge_low=0.4e-6, charge_high=1.0e-6,
-                  resistor=None, capacitor=None, exponent=0.0, trials=10, extra="") -> str:
-    """A fixed (no-scatter) corner: position 1 holds the low-leakage, fast part; the rest the other."""
-    resistor_line = f"resistor = {resistor!r}" if resistor is not None else ""
-    capacitor_line = f"capacitor = {capacitor!r}" if capacitor is not None else ""
-    return f"""
-[duty]
-reverse_voltage = {string_voltage}
-waveform = "half-sine"
-frequency = 50
-di_dt = "10 A/us"
-ambient = "25 degC"
-[string]
-series = {series}
-derating = {derating}
-part = "SLOW"
-[[string.position]]
-index = 1
-part = "FAST"
-[parts.FAST]
-v_rrm = {v_rrm}
-i_r = {{ typ = {leak_low}, at_temperature = "25 degC", at_voltage = {v_rrm} }}
-q_rr = {{ typ = {charge_low} }}
-leakage_voltage_exponent = {exponent}
-[parts.SLOW]
-v_rrm = {v_rrm}
-i_r = {{ typ = {leak_high}, at_temperature = "25 degC", at_voltage = {v_rrm} }}
-q_rr = {{ typ = {charge_high} }}
-leakage_voltage_exponent = {exponent}
-[grading]
-{resistor_line}
-{capacitor_line}
-[monte_carlo]
-trials = {trials}
-{extra}
-"""
+from tests.designs import corner_design, design_text
 
 
 def test_static_textbook_corner_reaches_the_limit_exactly():
@@ -102,34 +65,7 @@ def test_no_failure_reports_the_upper_bound_not_zero():
     assert estimate.ci_high == pytest.approx(1 - 0.025 ** (1 / 3000), rel=1e-9)
 
 
-SCATTER = """
-[duty]
-reverse_voltage = "20 kV"
-di_dt = "20 A/us"
-ambient = "45 degC"
-[string]
-series = 16
-parallel = 2
-derating = 0.8
-[[string.position]]
-index = 3
-temperature_rise = "20 K"
-[parts.D]
-class = "si-fast-recovery"
-v_rrm = "1.6 kV"
-i_r = { max = "0.2 mA", at_temperature = "125 degC" }
-q_rr = { typ = "0.3 uC", max = "0.6 uC" }
-c_j = "50 pF"
-[grading]
-resistor = "10 MOhm"
-resistor_tolerance = "2 %"
-capacitor = "4.7 nF"
-capacitor_tolerance = "10 %"
-[monte_carlo]
-trials = 9000
-seed = 5
-lot_share = 0.3
-"""
+SCATTER = design_text("scatter")
 
 
 def test_result_does_not_depend_on_chunk_size():
@@ -216,3 +152,39 @@ def test_positions_without_scatter_report_zero_spread_and_the_exact_voltage():
         for position in result.checks[name].positions:
             assert position.std_voltage == 0.0, (name, position)
             assert position.mean_voltage == position.max_voltage, (name, position)
+
+
+def test_the_tcr_reference_temperature_is_the_studys():
+    from stringcheck import constants as design
+    from stringcheck.checks import preconditions
+
+    assert design.RESISTOR_TCR_REFERENCE == preconditions.RESISTOR_TCR_REFERENCE
+
+
+# Found by the fuzzing of tests/checks/test_fuzz.py (fixed).
+_STALLED_DESIGN = """
+[duty]
+reverse_voltage = "1 kV"
+[string]
+series = 2
+part = "COLD"
+[[string.position]]
+index = 1
+part = "HOT"
+[parts.HOT]
+v_rrm = "1 kV"
+i_r = { typ = "125 nA", at_voltage = "1 kV", at_temperature = "25 degC" }
+leakage_voltage_exponent = 0.01
+[parts.COLD]
+v_rrm = "1 kV"
+i_r = { typ = "0.125 nA", at_voltage = "1 kV", at_temperature = "25 degC" }
+leakage_voltage_exponent = 0.01
+"""
+
+
+@pytest.mark.filterwarnings("ignore::RuntimeWarning")  # the overflow this bug causes
+def test_check_counts_a_trial_the_static_solver_could_not_solve():
+    result = check_study.run_check(parse_design_text(_STALLED_DESIGN), trials=3, seed=1)
+    static = result.checks["static"]
+    assert static.unsolved == 3 or sum(p.mean_voltage for p in static.positions) == \
+        pytest.approx(1000.0, rel=1e-9), [p.mean_voltage for p in static.positions]

@@ -236,6 +236,7 @@ target_p_fail = 0.02
 """
 
 
+@pytest.mark.slow
 def test_transient_chooses_the_least_energy_damping_resistor_within_the_limit():
     # The time-domain choice is an argmin over the E12 values tried: the chosen R_d is one whose
     # worst simulated peak stays within the limit, with the least energy per turn-off among them.

@@ -168,3 +168,10 @@ def test_exact_intervals_are_found_as_tails_or_looked_up():
     # (With limits on both sides at K the kink, at u = 1/2, falls on a joint; here it does not.)
     kinked = _score_table(-math.inf, K, 1.0, 0.2, 0.0, False)[3]
     assert kinked[1000:-1000].any() and _exact_ends(kinked.tobytes()) is None
+
+
+# Found by the fuzzing of tests/checks/test_fuzz.py (fixed).
+def test_screened_normal_draw_stays_within_its_limit():
+    drawn = spread_quantile(Spread(typ=1.0, high=2.0), np.array([9.0]), lognormal=False,
+                            sigma_at_limit=5.09375, screened=True)
+    assert drawn[0] <= 2.0 * (1 + 1e-12), repr(drawn[0])

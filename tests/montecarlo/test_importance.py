@@ -252,7 +252,7 @@ def test_importance_sampling_of_the_parallel_check_against_two_half_planes(paral
 
 
 def _parallel_group(text: str, branches: int, beta: float) -> str:
-    """PARALLEL_PAIR with ``branches`` branches and I_F(AV) put at ``beta`` (see below)."""
+    """tests/designs/parallel_pair.toml with ``branches`` branches and I_F(AV) put at ``beta`` (see below)."""
     # m branches, one V_T0 each, one r_T: i_k = I / m + (mean V_T0 - V_T0,k) / r_T (DESIGN.md 4,
     # forward sharing by hand), so branch k fails when sigma w_k > d = r_T (I_F(AV) - I / m), with
     # w_k = mean z - z_k, Var w_k = (m - 1) / m: a half-plane at beta = d / (sigma sqrt((m-1)/m)).
@@ -587,6 +587,7 @@ def test_the_transient_failure_function_is_the_transient_checks_own():
     np.testing.assert_array_equal(transient_evaluator(design)(drawn), expected)
 
 
+@pytest.mark.slow
 def test_importance_sampling_of_the_transient_check_against_its_plain_sample():
     # No closed form for a turn-off: the reference is the check's own plain sample of 3,000
     # simulated strings (~40 failures). The two must agree within 3 combined standard errors;
@@ -680,6 +681,7 @@ def test_the_automatic_sampler_runs_only_where_it_can_decide():
     assert not needs_rare(check(0, 2000, worst_failures=1), 1e-3)
 
 
+@pytest.mark.slow
 def test_drivers_of_the_transient_check_rank_its_own_inputs():
     # On the turn-off (_TURN_OFF_FOUR) the recovery charge and the grading capacitors set the
     # peaks, the grading resistors hardly (microseconds against R C of milliseconds): they rank
@@ -731,6 +733,7 @@ target_p_fail = {target}
 """
 
 
+@pytest.mark.slow
 def test_a_temperature_gradient_stack_that_fails_is_not_passed():
     # 24 stages 0.5 K apart: P(fail) ~ 3.5e-5 (4e6 plain trials: 142 failures) against a 2e-5
     # target. An earlier version merged alike positions ever more coarsely until the images fit,
@@ -779,6 +782,7 @@ def test_many_identical_branches_cost_no_factorial():
     assert sorted(int(np.argmin(shift[:9])) for shift in shifts) == list(range(9))
 
 
+@pytest.mark.slow
 def test_review_compares_one_check_by_one_estimator():
     # 12 stages 2 K apart at 9 kV (P(fail) ~ 1.2e-4 with part A). Part B, half the leakage spread,
     # hardly fails (none in 2e6 trials). By default the sampler runs where a plain run of 5,000

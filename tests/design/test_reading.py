@@ -21,6 +21,7 @@ from stringcheck.design.reading import load_design, parse_design_text
 from stringcheck.errors import DesignError
 from stringcheck.design.device_classes import preset
 from stringcheck.report.starter import starter_design
+from tests import designs
 
 # A small valid design; tests replace whole tables of it. Values of our own invention.
 BASE = {
@@ -482,3 +483,28 @@ def test_loaded_design_is_a_design_of_parts():
     design = parse_design_text(design_text())
     assert isinstance(design, Design)
     assert all(isinstance(part, Part) for part in design.parts.values())
+
+
+# The CLI tests' base stack (tests/designs/robustness_base.toml): series = 6, parallel = 1, one
+# [[string.position]] entry at index 1 with a 10 K rise.
+ROBUSTNESS_BASE = designs.design_text("robustness_base")
+
+
+def test_a_byte_order_mark_is_accepted(tmp_path):
+    # Some editors start UTF-8 files with U+FEFF; TOML 1.0 has no place for it, but it is no error
+    # of the user's.
+    path = tmp_path / "bom.toml"
+    path.write_bytes(b"\xef\xbb\xbf" + ROBUSTNESS_BASE.replace("\n", "\r\n").encode("utf-8"))
+    assert load_design(path).string.series == 6
+
+
+def test_branch_entry_wins_over_every_branch_entry_whatever_the_order():
+    # Two entries for one device may stand together when one names a branch: the specific one wins
+    # (README, [[string.position]]); neither is silently dropped by its order in the file.
+    assert ROBUSTNESS_BASE.count("parallel = 1") == 1
+    text = ROBUSTNESS_BASE.replace("parallel = 1", "parallel = 2").replace(
+        '[[string.position]]\nindex = 1\ntemperature_rise = "10 K"\n',
+        '[[string.position]]\nindex = 1\nbranch = 2\ntemperature_rise = "20 K"\n'
+        '[[string.position]]\nindex = 1\ntemperature_rise = "10 K"\n')
+    rise = parse_design_text(text).string.temperature_rise_grid()
+    assert rise[:, 0].tolist() == [10.0, 20.0]

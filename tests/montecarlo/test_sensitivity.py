@@ -104,7 +104,7 @@ def test_a_cooler_ambient_lowers_the_static_stress_of_a_leaky_string():
 
 def test_parallel_drivers_rank_the_threshold_voltage_and_show_the_failure_point(
         parallel_pair_design):
-    # Two branches whose only scatter that matters is V_T0 (tests/conftest.py, PARALLEL_PAIR):
+    # Two branches whose only scatter that matters is V_T0 (tests/designs/parallel_pair.toml):
     # V_T0 is ranked first for the parallel check, and with --rare it makes up the whole failure
     # point (its share of beta^2 is 1 to rounding).
     result = run_check(parse_design_text(parallel_pair_design), trials=8192, drivers=True, rare=True,

@@ -129,7 +129,7 @@ def test_several_slips_each_warn_once():
 
 
 def test_examples_and_demo_raise_no_warning():
-    examples = sorted(Path(__file__).resolve().parents[1].joinpath("examples").glob("*.toml"))
+    examples = sorted(Path(__file__).resolve().parents[2].joinpath("examples").glob("*.toml"))
     assert examples
     for path in examples:
         assert plausibility_warnings(load_design(path)) == (), path

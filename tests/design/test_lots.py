@@ -431,7 +431,7 @@ def test_cli_reports_the_lot_and_its_warning(tmp_path):
 
     from stringcheck.cli.app import app
 
-    example = Path(__file__).resolve().parent.parent / "examples" / \
+    example = Path(__file__).resolve().parents[2] / "examples" / \
         "precipitator-30kv-measured.toml"
     out = tmp_path / "result.json"
     result = CliRunner().invoke(app, ["check", str(example), "--trials", "4000", "--json",

@@ -290,7 +290,7 @@ t_j_max = "20 degC"
 
 
 def _pair_with_a_lower_threshold(pair: str, beta: float, shift: float) -> str:
-    """``pair`` (tests/conftest.py PARALLEL_PAIR) at beta, and part LOW: the same with V_T0 lower by
+    """``pair`` (tests/designs/parallel_pair.toml) at beta, and part LOW: the same with V_T0 lower by
     ``shift`` standard deviations of dV = V_T0,1 - V_T0,2 (sigma sqrt 2, sigma = 10 mV)."""
     sigma = 0.010
     i_fav = 7.5 + beta * sigma * math.sqrt(2) / (2 * 0.010)  # d = 2 r_T (I_F(AV) - I / 2)
@@ -310,7 +310,7 @@ r_t = {{ typ = "10 mOhm" }}
                                                           (5.0, 1.5, 0.1, 4096)])
 def test_importance_sampling_under_a_mix_against_the_closed_form(beta, shift, fraction, trials,
                                                                  parallel_pair_design):
-    # Two branches (tests/conftest.py PARALLEL_PAIR): a branch fails when the other's V_T0 exceeds
+    # Two branches (tests/designs/parallel_pair.toml): a branch fails when the other's V_T0 exceeds
     # its own by more than d = beta sigma sqrt 2. With each device LOW (V_T0 lower by
     # shift sigma sqrt 2) with probability f, independently: P(fail) = ((1-f)^2 + f^2) 2 Phi(-beta)
     # + 2 f (1-f) (Phi(-(beta - shift)) + Phi(-(beta + shift))) (scipy.stats.norm). The
@@ -385,6 +385,7 @@ def test_cli_review_mix_exit_codes(tmp_path):
         assert both.exit_code == 2 and "exactly one" in both.stderr, both.output
 
 
+@pytest.mark.slow
 def test_cli_mixing_a_lower_threshold_part_into_a_parallel_group_worsens_the_share(tmp_path):
     # Forward sharing (DESIGN.md 4): a branch with a lower V_T0 takes more of the group current.
     text = (EXAMPLES / "furnace-rectifier-3x2-parallel.toml").read_text(encoding="utf-8")

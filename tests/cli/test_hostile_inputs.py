@@ -26,7 +26,7 @@ from typer.testing import CliRunner
 from stringcheck.cli.app import app
 
 runner = CliRunner()
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 EXAMPLES = ROOT / "examples"
 LINUX = pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="needs Linux /proc")
 
@@ -165,6 +165,7 @@ def _alive(pid: int) -> bool:
     return state != "Z"
 
 
+@pytest.mark.slow
 @LINUX
 def test_sigterm_stops_the_worker_processes_and_exits_143(tmp_path):
     kept = tmp_path / "kept.json"

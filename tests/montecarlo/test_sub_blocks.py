@@ -16,7 +16,9 @@ from stringcheck.montecarlo.sampling import BLOCK_TRIALS, SUM_TRIALS, chunk_boun
 from stringcheck.studies.check import run_check
 from stringcheck.montecarlo.accumulators import BlockSums, unit_sums
 
-from .test_check import SCATTER
+from tests.designs import design_text
+
+SCATTER = design_text("scatter")
 
 EXAMPLES = Path(__file__).resolve().parents[2] / "examples"
 

@@ -456,7 +456,7 @@ def test_a_ballast_past_any_resistor_names_the_file_and_the_key(tmp_path):
     # A unit slip in the group current (1e-295 A): the ballast that brings the share within 1.1
     # works out near 1e295 ohm, past the 1e290 the preferred-value ladder is built for (IEC
     # 60063 values cover any practical resistor); one line naming file and key, exit 2.
-    example = Path(__file__).resolve().parents[1] / "examples" / \
+    example = Path(__file__).resolve().parents[2] / "examples" / \
         "furnace-rectifier-3x2-parallel.toml"
     text = example.read_text(encoding="utf-8").replace('forward_current = "40 A"',
                                                        "forward_current = 1e-295")
@@ -497,11 +497,12 @@ def test_workers_two_and_one_give_identical_json(demo_file, tmp_path):
     assert outputs[0] == outputs[1]
 
 
+@pytest.mark.slow
 def test_workers_two_and_one_give_identical_json_with_the_forward_checks(tmp_path):
     # The parallel and thermal checks too: the runaway-ambient sample is taken per sampling block
     # and the junction-temperature sums are added block by block (they were per chunk, and the
     # chunks follow the worker count). 3 blocks, so that the workers split them unevenly.
-    example = Path(__file__).resolve().parents[1] / "examples" / \
+    example = Path(__file__).resolve().parents[2] / "examples" / \
         "furnace-rectifier-3x2-parallel.toml"
     outputs = []
     for workers in ("1", "2"):
@@ -523,10 +524,13 @@ def test_workers_below_one_is_bad_input(demo_file):
 
 # --- examples --------------------------------------------------------------------------------------
 
-EXAMPLES = sorted((Path(__file__).resolve().parent.parent / "examples").glob("*.toml"))
+EXAMPLES = sorted((Path(__file__).resolve().parents[2] / "examples").glob("*.toml"))
 
 
-@pytest.mark.parametrize("path", EXAMPLES, ids=[p.stem for p in EXAMPLES])
+# The furnace example runs the parallel and thermal checks on three branches: a few seconds.
+@pytest.mark.parametrize("path", [
+    pytest.param(p, marks=pytest.mark.slow) if p.stem == "furnace-rectifier-3x2-parallel" else p
+    for p in EXAMPLES], ids=[p.stem for p in EXAMPLES])
 def test_every_example_runs_to_a_verdict(path):
     # The README lists them as working scenarios: each must load and give pass or fail (0 or 1).
     result = invoke("check", str(path), "--trials", "300", "--quiet")
@@ -604,7 +608,7 @@ def test_quiet_line_gives_the_bound_that_decided(tmp_path, half_plane_design):
 
 def test_drivers_label_their_reruns_as_plain_monte_carlo(tmp_path, parallel_pair_design):
     # The reruns behind "P(fail) upper after" are plain Monte Carlo even with --rare deciding the
-    # check (tests/conftest.py, PARALLEL_PAIR): the column and the table's lead-in say so.
+    # check (tests/designs/parallel_pair.toml): the column and the table's lead-in say so.
     path = tmp_path / "pair.toml"
     path.write_text(parallel_pair_design, encoding="utf-8")
     result = runner.invoke(app, ["check", str(path), "--drivers", "--rare", "--trials", "4096"],
@@ -615,7 +619,7 @@ def test_drivers_label_their_reruns_as_plain_monte_carlo(tmp_path, parallel_pair
 
 
 def test_no_failure_point_pools_the_plain_run_in_the_quiet_line(tmp_path, half_plane_design):
-    # Screened, nothing can fail (tests/studies/test_rare_events.py): 100,000 plain trials and the
+    # Screened, nothing can fail (tests/montecarlo/test_importance.py): 100,000 plain trials and the
     # sampler's 20,000 pooled show 3.1e-5 < 1e-4 (exact interval, 0 of 120,000).
     path = tmp_path / "none.toml"
     path.write_text(half_plane_design(5.2, screened=True, trials=100_000)
