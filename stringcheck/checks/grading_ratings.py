@@ -141,7 +141,8 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
     capacitance = junction_capacitance + (grading.capacitor or 0.0)
     if grading.capacitor is not None:
         stage_energy = float(stored_energy(grading.capacitor, worst_any))
-        if grading.capacitor_rated_voltage is not None and worst_any > grading.capacitor_rated_voltage:
+        if grading.capacitor_rated_voltage is not None and exceeds_limit(
+                worst_any, grading.capacitor_rated_voltage):
             problems.append(f"grading capacitor sees {seen}, above its rating of "
                             f"{_q(grading.capacitor_rated_voltage, 'V')}")
         if grading.capacitor_rated_voltage is None:

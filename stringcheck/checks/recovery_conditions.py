@@ -51,7 +51,10 @@ def part_fits(design: Design) -> dict[str, PartFit]:
     for name in design.parts_used():
         part = design.parts[name]
         test_rate = part.q_rr.at_di_dt
-        test_current = part.q_rr.at_forward_current or design.duty.forward_current
+        # No test I_F on the datasheet row: the charge is taken as given at the current each
+        # branch turns off from (no rescaling in current; the report says so). The group's total
+        # forward current would scale it down by the number of branches on no datasheet basis.
+        test_current = part.q_rr.at_forward_current or _duty_turn_off(design).current
         if part.i_rm is not None:
             peak = part.i_rm.typ
         else:
@@ -111,10 +114,15 @@ class TurnOffCurrent:
 def turn_off_current(design: Design, fits: dict[str, PartFit]) -> TurnOffCurrent:
     """The current each branch commutates from, the same for every check that carries Q_rr
     (dynamic, thermal) or simulates the turn-off (transient); ``fits`` from :func:`part_fits`."""
-    duty = design.duty
-    if duty.forward_current is None:
+    if design.duty.forward_current is None:
         return TurnOffCurrent(current=max(fit.test_current for fit in fits.values()),
                               basis=TURN_OFF_TEST_CURRENT)
+    return _duty_turn_off(design)
+
+
+def _duty_turn_off(design: Design) -> TurnOffCurrent:
+    """The turn-off current of the duty's forward current (which must be given), per branch."""
+    duty = design.duty
     per_branch = duty.forward_current / design.string.parallel
     if duty.waveform == "square":
         # I_pk = 2 I_AV flows until the commutation (physics.forward.peak_factor).
@@ -172,6 +180,11 @@ def recovery_rescaling(design: Design) -> tuple[RecoveryRescaling | None, str]:
             "fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); the charge "
             "balance of the dynamic check and the recovery loss of the thermal check use the same "
             "carried value")
+    untested = [name for name in fits if design.parts[name].q_rr.at_forward_current is None]
+    if untested:
+        note += ("; " + ", ".join(f"parts.{name}" for name in untested)
+                 + " give(s) no q_rr.at_forward_current: Q_rr taken as given at the turn-off "
+                 "current (not rescaled in current)")
     nodes, mapped = {}, {}
     for name, fit in fits.items():
         spread = design.parts[name].q_rr

@@ -404,14 +404,19 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
     if count > regions:
         text += f" and {count - regions} image(s) under the exchangeable positions"
     total = float(contribution.sum())
-    effective = total ** 2 / float(contribution @ contribution) if total > 0 else math.inf
+    # Kish's effective sample size of the failing samples' weights (L. Kish, Survey Sampling, 1965):
+    # no failing sample at all is no evidence, not infinite evidence, so coverage is not assured and
+    # the plain run decides.
+    effective = total ** 2 / float(contribution @ contribution) if total > 0 else 0.0
     reasons = []
     if search.capped:
         reasons.append(f"the search stopped at {MAX_REGIONS} failure regions and more remained")
     if revealed:
         reasons.append(f"its sample still revealed {revealed} failure region(s) the search had "
                        f"missed after {_ADAPT_ROUNDS} resampling(s)")
-    if effective < _LEAST_EFFECTIVE:
+    if total == 0:
+        reasons.append("none of its samples failed, although the search found a failure region")
+    elif effective < _LEAST_EFFECTIVE:
         reasons.append(f"the estimate rests on about {effective:.1f} samples' worth of its "
                        "weight (a region sampled by chance, not searched)")
     assured = not reasons

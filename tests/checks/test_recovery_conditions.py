@@ -188,3 +188,26 @@ def test_thermal_recovery_loss_takes_the_carried_charge():
     # The datasheet's Q_rr (at 5 A, 50 A/us) would give another loss: the test tells them apart.
     assert abs(_carried(1.5e-6, 20.0) - 1.5e-6) * 500.0 * 20e3 > 0.5
     assert check.turn_off_current.current == 20.0
+
+
+def test_without_a_test_current_q_rr_is_taken_at_the_turn_off_current_of_a_branch():
+    # No q_rr.at_forward_current: the datasheet charge is taken as given at the current each branch
+    # turns off from (no rescaling in current), never at the group's total forward current, which
+    # would scale a 3-branch group's charge down by a factor of 3 on no datasheet basis. At the
+    # test di/dt the round trip of the fitted model is the identity (the charge-control closed form
+    # of physics.charge_control_fit, checked against solve_ivp in tests/physics/), so the carried
+    # charge is the datasheet's.
+    text = (_SQUARE.format(current="30 A", waveform="half-sine", part=_PART)
+            .replace(', at_forward_current = "5 A"', "")
+            .replace('di_dt = "100 A/us"', 'di_dt = "50 A/us"')
+            .replace("series = 2", "series = 2\nparallel = 3"))
+    design = parse_design_text(text)
+    rescaling, note = recovery_rescaling(design)
+    assert rescaling.turn_off.current == pytest.approx(10.0)  # 30 A over 3 branches, half-sine
+    for fit in rescaling.fits.values():
+        assert fit.test_current == pytest.approx(10.0)
+    grid = design.string.part_grid()
+    # Fixed parts (typ only): A's 1 uC and B's 1.5 uC, as drawn.
+    charge = np.broadcast_to(np.where(grid == "A", 1e-6, 1.5e-6), (4,) + grid.shape)
+    np.testing.assert_allclose(rescale_charges(charge, grid, rescaling), charge, rtol=1e-6)
+    assert "no q_rr.at_forward_current" in note and "not rescaled in current" in note

@@ -798,3 +798,24 @@ def test_review_compares_one_check_by_one_estimator():
         static = next(c for c in result.changes if c.name == "static")
         assert static.baseline_by == static.candidate_by
         assert result.verdict == verdict, (held, static)
+
+
+def test_a_region_no_sample_reaches_decides_nothing(half_plane_design):
+    # A failure sliver |z - 3| < 1e-7 on one latent coordinate: the search's ray lands in it, but
+    # the mixture's samples (continuous draws) never do, so the estimate sees 0 failures with 0
+    # standard error. No failing sample is no evidence (Kish's effective sample size of the failing
+    # weights is 0, L. Kish, Survey Sampling, 1965): the estimate must not decide, else a check
+    # would pass on an interval of [0, 0].
+    design = parse_design_text(half_plane_design(5.0))
+    sigma = math.log(10.0) / 3.0
+
+    def evaluate(drawn):
+        z = np.log(drawn.parameters["i_r"][:, 0, 1] / 1e-6) / sigma
+        return np.where(np.abs(z - 3.0) < 1e-7, 2.0, 0.5 + 0.01 * z)
+
+    found = rare_events.rare_event_estimate(design, "static", ("i_r",), evaluate, seed=1,
+                                            confidence=0.95)
+    assert found.found_failure_point and found.failures == 0
+    assert not found.coverage_assured
+    assert not found.decides
+    assert "none of its samples failed" in found.note
