@@ -93,7 +93,7 @@ from stringcheck.montecarlo.executor import worker_pool
 
 __all__ = ["CheckResult", "DynamicCheck", "PositionStatistics", "SeriesCheck", "run_check"]
 
-# Version of the JSON result's layout (DESIGN.md section 6).
+# Version of the JSON result's layout (docs/json.md).
 SCHEMA_VERSION = 1
 # The checks whose inputs the drivers rank; --rare estimates these and the transient check by
 # importance sampling.
