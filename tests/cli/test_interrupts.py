@@ -112,7 +112,16 @@ def test_an_interrupted_run_exits_130_and_leaves_no_file(tmp_path, monkeypatch):
 def test_ctrl_c_under_a_live_display_is_held_to_the_next_report():
     # cli_progress.DeferredInterrupt: the first SIGINT only sets a flag (rich's redraw thread must not be cut
     # at an arbitrary point), check() raises it, a second SIGINT raises at once, and the handler of
-    # before is back afterwards.
+    # before is back afterwards. Python's own handler first: a job started in the background has
+    # SIGINT ignored, and DeferredInterrupt rightly leaves an ignored SIGINT alone.
+    inherited = signal.signal(signal.SIGINT, signal.default_int_handler)
+    try:
+        _held_ctrl_c()
+    finally:
+        signal.signal(signal.SIGINT, inherited)
+
+
+def _held_ctrl_c() -> None:
     before = signal.getsignal(signal.SIGINT)
     with pytest.raises(KeyboardInterrupt):
         with cli_progress.DeferredInterrupt() as interrupt:
