@@ -35,7 +35,7 @@ from stringcheck.montecarlo.sampling import (
 )
 from stringcheck.solvers.transient import simulate_turn_off
 from stringcheck.errors import Setting, StringcheckError
-from stringcheck.limits import within_limit
+from stringcheck.limits import exceeds_limit, within_limit
 from stringcheck.montecarlo.estimates import failure_estimate
 from stringcheck.montecarlo.mixed_stock import device_part_grid, position_values
 from stringcheck.montecarlo.sensitivity import (
@@ -47,9 +47,9 @@ from stringcheck.montecarlo.sensitivity import (
     tightenable,
 )
 from stringcheck.montecarlo.sensitivity import tightened
+from stringcheck.checks.series import PositionStatistics
 from stringcheck.checks.outcome import (
     CheckOutcome,
-    Exported,
     figure,
     json_number,
     listed,
@@ -76,18 +76,14 @@ DEFAULT_WORST = 20
 
 
 @dataclass(frozen=True, kw_only=True, repr=False)
-class TransientPosition(Exported):
-    """Peak reverse voltage of one position over the random sample [V]."""
+class TransientPosition(PositionStatistics):
+    """Peak reverse voltage of one position over the random sample [V], and its largest overshoot
+    above the settled voltage [V]."""
 
-    branch: int = figure()
-    index: int = figure()
-    part: str = figure()
-    limit: float = figure(unit="V")
-    mean_voltage: float = figure(unit="V", encode=json_number)
-    std_voltage: float = figure(unit="V", encode=json_number)
-    max_voltage: float = figure(unit="V", encode=json_number)
+    json_order = ("branch", "index", "part", "limit", "mean_voltage", "std_voltage", "max_voltage",
+                  "max_overshoot", "failures")
+
     max_overshoot: float = figure(unit="V", encode=json_number)
-    failures: int = figure()
 
 
 @dataclass(frozen=True, eq=True, kw_only=True, repr=False)
@@ -204,8 +200,8 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
                 std_voltage=float(values.std(ddof=1)) if values.size > 1 else math.nan,
                 max_voltage=float(values.max()) if values.size else math.nan,
                 max_overshoot=float(np.nanmax(overshoots[:, b, k])),
-                failures=int(np.count_nonzero(sample_peaks[:, b, k] >
-                                              device_limits[in_sample][:, b, k]))))
+                failures=int(np.count_nonzero(exceeds_limit(
+                    sample_peaks[:, b, k], device_limits[in_sample][:, b, k])))))
     top = int(np.argmax(ratio))
     ranked = ()
     if drivers:
