@@ -16,7 +16,7 @@ settings.load_profile("ci" if os.environ.get("CI") else os.environ.get("HYPOTHES
 
 # Two stages, 100 MOhm each on 2 kV, m = 0. Stage 1 leaks a fixed 1 uA; stage 2 a lognormal leakage,
 # median 1 uA, sigma = ln(10) / 3 (max 10 uA at 3 sigma), unscreened. Static sharing (closed form,
-# DESIGN.md 4): V_1 = V_s / 2 + R (I_2 - I_1) / 2, so V_1 > V_RRM exactly when
+# docs/methods/): V_1 = V_s / 2 + R (I_2 - I_1) / 2, so V_1 > V_RRM exactly when
 # z_2 > beta = ln(1 + 2 (V_RRM - V_s / 2) / (R I_1)) / sigma: a half-plane in latent space, and
 # P(fail) = Phi(-beta). Stage 2 cannot fail: V_2 < V_s / 2 + R I_1 / 2 < V_RRM.
 # The text: tests/designs/half_plane.template.toml, filled in by
@@ -30,7 +30,7 @@ def half_plane_design():
 
 
 # Two branches of one device, dc, no thermal data: branch currents i_k = (v - V_T0,k) / r_T with one
-# r_T, so the hotter branch carries I / 2 + |V_T0,1 - V_T0,2| / (2 r_T) (DESIGN.md 4, forward
+# r_T, so the hotter branch carries I / 2 + |V_T0,1 - V_T0,2| / (2 r_T) (docs/methods/, forward
 # sharing, solved by hand). It exceeds I_F(AV) when |dV| > d = 2 r_T (I_F(AV) - I / 2). V_T0 normal,
 # sigma = 10 mV, unscreened: dV ~ N(0, 2 sigma^2), two half-planes at beta = d / (sigma sqrt 2) in
 # latent space, P(fail) = 2 Phi(-beta) (scipy.stats.norm).

@@ -102,7 +102,7 @@ def test_prefixed_values_are_exact_decimals():
                                              (10, KELVIN_DIFFERENCE), (0.05, DIMENSIONLESS),
                                              (-0.002, VOLT_PER_KELVIN)])
 def test_bare_numbers_are_taken_in_the_expected_unit(value, unit):
-    # DESIGN.md section 3: bare numbers are SI base units (degC / K for temperatures).
+    # docs/design-file.md: bare numbers are SI base units (degC / K for temperatures).
     assert parse_quantity(value, unit, key="k") == float(value)
 
 
@@ -604,7 +604,7 @@ def two_number_texts(draw):
 @settings(max_examples=300)
 @given(case=two_number_texts())
 def test_no_accepted_string_holds_two_numbers(case):
-    # DESIGN.md section 3: a quantity is one number and one unit; pint alone would multiply
+    # docs/design-file.md: a quantity is one number and one unit; pint alone would multiply
     # juxtaposed terms. Every text with a second number is refused, naming what was read.
     text, unit = case
     with pytest.raises(QuantityError) as caught:

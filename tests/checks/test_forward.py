@@ -100,7 +100,7 @@ def _water_level_split(thresholds, resistances, total):
 
 def test_slope_resistance_is_referred_from_its_own_row_temperature():
     # Issue 14 item 2: V_T0 given at 25 degC, r_T at 125 degC. At T = 40 degC (ambient, no rise),
-    # V_k(T) = V_k + a (T - 25) and r_k(T) = r_k (1 + b (T - 125)) (DESIGN.md 4, forward sharing),
+    # V_k(T) = V_k + a (T - 25) and r_k(T) = r_k (1 + b (T - 125)) (docs/methods/, forward sharing),
     # and two conducting lines share I by Kirchhoff (hand closed form):
     # i_1 = (I r_2(T) + V_2(T) - V_1(T)) / (r_1(T) + r_2(T)).
     text = design(current="40 A", v_t0=("1.00 V", "1.05 V"), r_t=("10 mOhm", "15 mOhm"),
@@ -190,7 +190,7 @@ def test_thermal_runaway_fails_and_is_counted():
 
 
 def test_json_holds_the_forward_keys():
-    # DESIGN.md section 6: checks.parallel.worst_share; checks.thermal with its own figures.
+    # docs/commands.md and docs/json.md: checks.parallel.worst_share; checks.thermal with its own figures.
     text = design(spread_v='{ typ = "1.0 V", max = "1.1 V", at_temperature = "25 degC" }',
                   tempco_v="-2 mV/K", trials=500)
     data = json.loads(json_text(result_to_dict(run_check(parse_design_text(text)))))

@@ -2,7 +2,7 @@
 raises the package's own one-line error, and a design that loads runs every check to a finite
 result and a verdict.
 
-Sources of the expectations: DESIGN.md section 3 (schema, ranges) and section 6 (machine output);
+Sources of the expectations: docs/design-file.md (schema, ranges) and section 6 (machine output);
 STYLE.md "Errors" (the package's exceptions subclass ValueError, one line naming the key); TOML 1.0
 (the writer below: basic strings, inline tables, arrays of tables).
 """
@@ -498,7 +498,7 @@ def _assert_runs_to_a_finite_verdict(design: Design, *, transient: bool = False)
             continue
         estimate = outcome.estimate
         assert 0.0 <= estimate.ci_low <= estimate.p_fail <= estimate.ci_high <= 1.0, name
-        # A check passes on the upper bound of its failure probability (DESIGN.md section 4).
+        # A check passes on the upper bound of its failure probability (docs/methods/).
         assert not outcome.passed or estimate.ci_high <= result.target_p_fail, name
         assert not math.isnan(outcome.worst_ratio), name
         if outcome.unsolved == 0:

@@ -23,7 +23,7 @@ NAMES = ("static", "dynamic", "transient", "parallel", "thermal")
 CHECK_TYPES = (SeriesCheck, DynamicCheck, TransientCheck, ParallelCheck, ThermalCheck)
 BASE_FIELDS = {"name", "ran", "reason", "passed", "worst_ratio", "p50_ratio", "p99_ratio",
                "estimate", "unsolved", "worst_trial", "rare"}
-# The keys every check's JSON object holds (DESIGN.md section 6), and its worst figure: a voltage
+# The keys every check's JSON object holds (docs/commands.md and docs/json.md), and its worst figure: a voltage
 # [V] or a share, or (the thermal check) a junction temperature [degC].
 DESIGN_KEYS = {"passed", "worst_ratio", "p99_ratio", "p_fail", "p_fail_ci"}
 WORST_KEYS = {"worst_voltage", "worst_share", "worst_tj"}

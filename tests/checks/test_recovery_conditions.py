@@ -139,7 +139,7 @@ def _carried(charge, turn_off_current):
 
 def test_square_wave_turns_off_from_its_peak_in_the_dynamic_check():
     # Issue 14 item 4: a square wave commutates from I_pk = 2 I_F(AV) (physics.forward.peak_factor).
-    # Charge balance of two stages (DESIGN.md 4, by hand): (2 Q - Q_A - Q_B) / C = V_s, so the
+    # Charge balance of two stages (docs/methods/, by hand): (2 Q - Q_A - Q_B) / C = V_s, so the
     # stage that recovers first holds V_A = V_s / 2 + (Q_B - Q_A) / (2 C), with the Q_rr carried
     # to 20 A.
     result = run_check(_square_design())

@@ -2,7 +2,7 @@
 test module): the small valid stack that each bad input edits in one place (tests/designs/
 robustness_base.toml, our own invention: 6 x 1.6 kV at derating 0.8 hold 7.68 kV > 6 kV).
 
-Sources of the expectations: DESIGN.md section 6 (exit codes, machine output apart from the
+Sources of the expectations: docs/commands.md and docs/json.md (exit codes, machine output apart from the
 progress bar); STYLE.md "Errors" (one line, the key and the fix).
 """
 
@@ -40,7 +40,7 @@ def assert_no_traceback(result) -> None:
 
 def assert_one_line_error(result, *fragments: str) -> str:
     """Exit 2, nothing on stdout, exactly one line on stderr starting "error:" and holding every
-    fragment; no traceback (DESIGN.md section 6, STYLE.md "Errors")."""
+    fragment; no traceback (docs/commands.md and docs/json.md, STYLE.md "Errors")."""
     assert result.exit_code == 2, result.output
     assert_no_traceback(result)
     assert result.stdout == "", result.stdout

@@ -93,7 +93,7 @@ def test_demo_passes_with_the_key_report_lines():
     assert "VERDICT: PASS" in text
     assert "High-voltage cautions" in text
     assert "LETHAL VOLTAGE" in text
-    assert "60 V" in text  # residual-voltage criterion (DESIGN.md section 7)
+    assert "60 V" in text  # residual-voltage criterion (docs/safety.md)
     assert "IEC 60204-1:2016 clause 6.2.4" in text
     assert "IEC 60664-1" in text  # creepage and clearance not checked
     assert "4,000 built strings drawn" in text
@@ -179,7 +179,7 @@ def test_quiet_prints_one_line():
 # --- machine output --------------------------------------------------------------------------------
 
 def test_json_has_the_stable_keys(demo_run, demo_file):
-    # DESIGN.md section 6, "Machine-readable result".
+    # docs/commands.md and docs/json.md, "Machine-readable result".
     result, json_path, _ = demo_run
     assert result.exit_code == 0, result.output
     data = json.loads(json_path.read_text(encoding="utf-8"))
@@ -306,7 +306,7 @@ BAD_INPUTS = [
 @pytest.mark.parametrize(("content", "fragment"), [case[1:] for case in BAD_INPUTS],
                          ids=[case[0] for case in BAD_INPUTS])
 def test_bad_input_exits_2_with_one_line(tmp_path, content, fragment):
-    # DESIGN.md section 6: exit 2 on bad input; STYLE.md: the CLI prints one line, no traceback.
+    # docs/commands.md and docs/json.md: exit 2 on bad input; STYLE.md: the CLI prints one line, no traceback.
     path = tmp_path / "bad.toml"
     if content is not None:
         path.write_bytes(content if isinstance(content, bytes) else content.encode("utf-8"))
@@ -384,7 +384,7 @@ def test_size_proposes_a_network_that_passes(sized):
 
 
 def test_size_json_has_the_grading_keys_of_design_md(sized):
-    # DESIGN.md / issue 3: `grading` holds resistor, capacitor, damping_resistor [SI], series_used
+    # docs/json.md / issue 3: `grading` holds resistor, capacitor, damping_resistor [SI], series_used
     # and the ratings.
     _, data = sized
     grading = data["grading"]
@@ -485,7 +485,7 @@ def test_a_trial_count_past_the_memory_exits_2_in_one_line(demo_file, monkeypatc
 # --- workers ---------------------------------------------------------------------------------------
 
 def test_workers_two_and_one_give_identical_json(demo_file, tmp_path):
-    # DESIGN.md section 5: chunk c uses its own streams, so the result does not depend on the
+    # docs/methods/monte-carlo.md: chunk c uses its own streams, so the result does not depend on the
     # number of worker processes. 2 chunks of 4096 trials so that both workers get one.
     outputs = []
     for workers in ("1", "2"):

@@ -1,7 +1,7 @@
 """Every bad design file is one clear line and exit code 2 (issue 8): the file, the key (or the
 line) and what is wrong, never a traceback.
 
-Sources of the expectations: DESIGN.md section 3 (schema, ranges, unknown keys with a suggestion)
+Sources of the expectations: docs/design-file.md (schema, ranges, unknown keys with a suggestion)
 and section 6 (exit codes); STYLE.md "Errors" (one line, the key and the fix); the README section
 "Errors and exit codes". There is no CSV reader yet (measured lots are rejected by the loader), so
 there are no CSV-level bad inputs here.

@@ -1,7 +1,7 @@
 """Usage errors are exit 2 without a traceback; an internal error is one line, exit 3, with the
 hint to --debug; numerical warnings show only with --debug (issue 8).
 
-Sources of the expectations: DESIGN.md section 6 (exit codes); STYLE.md "Errors"; the README
+Sources of the expectations: docs/commands.md and docs/json.md (exit codes); STYLE.md "Errors"; the README
 section "Errors and exit codes".
 """
 

@@ -2,7 +2,7 @@
 byte, an interrupted run exits 130 and leaves no file, and Ctrl-C under the live display is held
 to the next report.
 
-Sources of the expectations: DESIGN.md section 6 (exit codes: 130 for an interrupt, as a shell
+Sources of the expectations: docs/commands.md and docs/json.md (exit codes: 130 for an interrupt, as a shell
 reports 128 + SIGINT); STYLE.md "Errors".
 """
 

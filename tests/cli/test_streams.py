@@ -1,7 +1,7 @@
 """Machine output on stdout never mixes with the report or the progress bar, and every output
 problem is found before the run (issue 8).
 
-Sources of the expectations: DESIGN.md section 6 (machine output apart from the progress bar);
+Sources of the expectations: docs/commands.md and docs/json.md (machine output apart from the progress bar);
 STYLE.md "Errors".
 """
 

@@ -36,7 +36,7 @@ def parts():
 
 
 def test_the_four_documented_classes_exist():
-    # DESIGN.md / starter file: si-rectifier | si-fast-recovery | si-schottky | sic-schottky.
+    # docs/design-file.md / starter file: si-rectifier | si-fast-recovery | si-schottky | sic-schottky.
     assert set(PRESET_NAMES) == {"si-rectifier", "si-fast-recovery", "si-schottky", "sic-schottky"}
 
 
@@ -125,7 +125,7 @@ def test_schottky_stores_almost_no_charge(parts):
 
 def _leakage_density_at(part, temperature: float) -> float:
     """Maximum leakage per ampere of rating, referred to ``temperature`` [degC] with the part's own
-    doubling temperature: I_R(T) = I_R,ref 2^((T - T_ref) / T_d) (DESIGN.md section 4, "Leakage";
+    doubling temperature: I_R(T) = I_R,ref 2^((T - T_ref) / T_d) (docs/methods/, "Leakage";
     doubling law common practice)."""
     spread = part.i_r
     referred = spread.high * 2.0 ** ((temperature - spread.at_temperature) / part.doubling_temperature)
@@ -159,7 +159,7 @@ def test_sic_schottky_capacitive_charge_class(parts):
 
 
 def test_silicon_classes_use_the_silicon_leakage_law(parts):
-    # DESIGN.md section 4: doubling every ~10 K for silicon (common practice); m = 0.5 for
+    # docs/methods/: doubling every ~10 K for silicon (common practice); m = 0.5 for
     # generation current (Sze).
     for name in ("si-rectifier", "si-fast-recovery", "si-schottky"):
         assert parts[name].doubling_temperature == 10.0
@@ -167,7 +167,7 @@ def test_silicon_classes_use_the_silicon_leakage_law(parts):
 
 
 def test_pn_silicon_threshold_falls_with_temperature(parts):
-    # About -2 mV/K for a silicon PN junction (DESIGN.md section 4, common practice).
+    # About -2 mV/K for a silicon PN junction (docs/methods/, common practice).
     for name in PN_SILICON:
         assert parts[name].tempco_v_t0 == pytest.approx(-2e-3)
     for name, part in parts.items():

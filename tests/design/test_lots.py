@@ -565,7 +565,7 @@ def test_every_ordered_sample_is_equally_likely():
 
 
 def test_a_lot_of_i_rm_and_t_rr_gives_each_device_its_charge(tmp_path):
-    # Q_rr = 1/2 I_RM t_rr per device (DESIGN.md 4, triangular recovery), by hand: 1/2 x 2 A x
+    # Q_rr = 1/2 I_RM t_rr per device (docs/methods/, triangular recovery), by hand: 1/2 x 2 A x
     # 100 ns = 100 nC and 1/2 x 3 A x 80 ns = 120 nC.
     _write_lot(tmp_path, header="serial,i_r [uA],i_rm [A],t_rr [ns]",
                rows=["S1,0.2,2,100", "S2,0.3,3,80"])

@@ -112,7 +112,7 @@ def test_dataclasses_are_frozen():
 
 @pytest.mark.parametrize("parameter", sorted(TYP_FRACTION_OF_MAX))
 def test_max_only_spread_takes_the_documented_typ(parameter):
-    # DESIGN.md section 3: "{max} alone takes typ from a documented per-parameter assumption".
+    # docs/design-file.md: "{max} alone takes typ from a documented per-parameter assumption".
     units = {"i_r": "uA", "q_rr": "nC", "i_rm": "A", "t_rr": "us", "v_t0": "V", "r_t": "mOhm"}
     extra = f'\n{parameter} = {{ max = "2 {units[parameter]}" }}' if parameter != "i_r" else ""
     ir = 'i_r = { max = "2 uA" }' if parameter == "i_r" else 'i_r = { typ = "0.2 uA" }'
@@ -146,7 +146,7 @@ def test_min_and_max_without_typ_take_the_geometric_mean_or_midpoint():
 @pytest.mark.parametrize("body", ['q_rr = { typ = "80 nC" }', 'q_rr = "80 nC"', 'q_rr = 80e-9',
                                   'q_rr = { min = "80 nC", typ = "80 nC", max = "80 nC" }'])
 def test_typ_alone_is_fixed(body):
-    # DESIGN.md section 3: "{typ} alone is a fixed value (no scatter)".
+    # docs/design-file.md: "{typ} alone is a fixed value (no scatter)".
     design = parse_design_text(design_text(parts_A='v_rrm = "1.6 kV"\ni_r = { max = "2 uA" }\n'
                                                    + body))
     spread = design.parts["A"].q_rr
@@ -343,8 +343,8 @@ BAD_TEXT = [
 @pytest.mark.parametrize(("tables", "key", "fragment"), [case[1:] for case in BAD_TEXT],
                          ids=[case[0] for case in BAD_TEXT])
 def test_bad_design_text_names_the_key(tables, key, fragment):
-    # DESIGN.md section 2: "every error names key + fix". Expected keys and fixes from DESIGN.md
-    # section 3 (ranges: derating a fraction of V_RRM in (0, 1], tolerances below 100 %, ...).
+    # Every error names key + fix (docs/commands.md). Expected keys and fixes from
+    # docs/design-file.md (ranges: derating a fraction of V_RRM in (0, 1], tolerances below 100 %, ...).
     with pytest.raises(DesignError) as caught:
         parse_design_text(design_text(**tables), source="stack.toml")
     message = str(caught.value)

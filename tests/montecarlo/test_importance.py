@@ -78,7 +78,7 @@ def test_the_verdict_follows_the_importance_sampling_bound(half_plane_design):
     assert run_check(design, trials=2000, rare=True, rare_samples=5000).verdict == "pass"
 
 
-# One scattered device among fixed ones fails two ways (DESIGN.md 4, static sharing with constant
+# One scattered device among fixed ones fails two ways (docs/methods/, static sharing with constant
 # leakage, closed form): with equal R, V_k = V_s / n + R (mean I_R - I_R,k). The scattered device
 # (leakage X, lognormal, median 1 uA, sigma = ln(10) / 3) among n - 1 fixed ones (1 uA) takes
 # V_s / n - R (n - 1) (X - 1 uA) / n and fails when it leaks little, X < X_lo; each fixed device
@@ -253,7 +253,7 @@ def test_importance_sampling_of_the_parallel_check_against_two_half_planes(paral
 
 def _parallel_group(text: str, branches: int, beta: float) -> str:
     """tests/designs/parallel_pair.toml with ``branches`` branches and I_F(AV) put at ``beta`` (see below)."""
-    # m branches, one V_T0 each, one r_T: i_k = I / m + (mean V_T0 - V_T0,k) / r_T (DESIGN.md 4,
+    # m branches, one V_T0 each, one r_T: i_k = I / m + (mean V_T0 - V_T0,k) / r_T (docs/methods/,
     # forward sharing by hand), so branch k fails when sigma w_k > d = r_T (I_F(AV) - I / m), with
     # w_k = mean z - z_k, Var w_k = (m - 1) / m: a half-plane at beta = d / (sigma sqrt((m-1)/m)).
     i_fav = 15.0 / branches + beta * math.sqrt((branches - 1) / branches)
@@ -402,7 +402,7 @@ def test_the_mixture_weight_is_the_likelihood_ratio(shifts, seed, uneven):
 
 
 # One device, dc, 10 A, fixed r_T = 10 mOhm, no temperature coefficients, R_th 1 + 1 K/W to a 25 degC
-# ambient: T_j = 25 + 2 (10 V_T0 + 1) degC (DESIGN.md 4, conduction loss P = V_T0 I + r_T I^2, the
+# ambient: T_j = 25 + 2 (10 V_T0 + 1) degC (docs/methods/, conduction loss P = V_T0 I + r_T I^2, the
 # leakage loss of 1 nA is below 1e-6 W). With V_T0 normal (0.9 V, sigma 10 mV, unscreened) and
 # t_j_max = 25 + 2 (10 (0.9 + beta sigma) + 1) degC, T_j > t_j_max on a half-plane: P = Phi(-beta).
 def _thermal_half_plane(beta: float) -> str:

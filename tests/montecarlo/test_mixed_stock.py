@@ -221,7 +221,7 @@ def test_more_of_a_weaker_part_never_lowers_the_static_failures(low, step, seed)
 @settings(max_examples=25, deadline=None)
 @given(low=st.floats(0.0, 1.0), high=st.floats(0.0, 1.0), seed=st.integers(0, 2**32 - 1))
 def test_more_of_a_leakier_part_never_unloads_the_devices_that_keep_their_part(low, high, seed):
-    # Property (coupling and static sharing, DESIGN.md 4): LEAKY leaks 3x SLOW at every quantile,
+    # Property (coupling and static sharing, docs/methods/): LEAKY leaks 3x SLOW at every quantile,
     # so without lot sharing each device substituted at f2 >= f1 leaks at least as much as at f1.
     # With V_k = (I - I_R,k) / G_k and sum V_k = V_s, more leakage elsewhere raises the string
     # current I, so a device that is SLOW at f2 never carries less voltage than at f1.
@@ -240,7 +240,7 @@ def test_more_of_a_leakier_part_never_unloads_the_devices_that_keep_their_part(l
 
 
 def test_a_leakier_substitute_pushes_voltage_onto_the_devices_that_keep_their_part():
-    # Static sharing (DESIGN.md 4): V_k = (I - I_R,k) R_k with sum V_k = V_s; a leakier device takes
+    # Static sharing (docs/methods/): V_k = (I - I_R,k) R_k with sum V_k = V_s; a leakier device takes
     # less voltage and pushes it onto the others, so a string with both parts shares worse than
     # one of a single part, and every position is reported as the mixed "SLOW|LEAKY".
     base = parse_design_text(BASE)
@@ -387,7 +387,7 @@ def test_cli_review_mix_exit_codes(tmp_path):
 
 @pytest.mark.slow
 def test_cli_mixing_a_lower_threshold_part_into_a_parallel_group_worsens_the_share(tmp_path):
-    # Forward sharing (DESIGN.md 4): a branch with a lower V_T0 takes more of the group current.
+    # Forward sharing (docs/methods/): a branch with a lower V_T0 takes more of the group current.
     text = (EXAMPLES / "furnace-rectifier-3x2-parallel.toml").read_text(encoding="utf-8")
     path = tmp_path / "furnace.toml"
     path.write_text(text + LOW_THRESHOLD, encoding="utf-8")

@@ -24,7 +24,7 @@ from stringcheck.montecarlo.quantile_maps import (
     tolerance_draw,
 )
 
-K = 3.0  # DESIGN.md section 4: a datasheet limit sits sigma_at_limit = 3 standard deviations out
+K = 3.0  # docs/methods/: a datasheet limit sits sigma_at_limit = 3 standard deviations out
 
 # Scores the generator can give: k 2^-53, k < 2^53. Dense on [0, 1), every interval joint of the
 # table, and both extremes.

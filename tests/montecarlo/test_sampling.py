@@ -16,7 +16,7 @@ from stringcheck.design.reading import parse_design_text
 from stringcheck.montecarlo.sampling import BLOCK_TRIALS, chunk_bounds, draw_strings
 from stringcheck.montecarlo.quantile_maps import spread_quantile, tolerance_draw
 
-K = 3.0  # DESIGN.md section 4: a datasheet limit sits sigma_at_limit = 3 standard deviations out
+K = 3.0  # docs/methods/: a datasheet limit sits sigma_at_limit = 3 standard deviations out
 
 
 def make_design(*, lot_share: float = 0.0, correlation: str = "", series: int = 6,
@@ -150,7 +150,7 @@ def test_fixed_spread_gives_the_constant():
        latent=st.lists(st.floats(-9.0, 9.0), min_size=1, max_size=40))
 def test_screened_draws_never_leave_the_limits(typ, low_factor, high_factor, lognormal, sigma,
                                                latent):
-    # Screening: a device outside the datasheet limits was rejected by its maker (DESIGN.md 4).
+    # Screening: a device outside the datasheet limits was rejected by its maker (docs/methods/).
     # Also the map must be rank-preserving (non-decreasing in the latent value), which the
     # Gaussian copula relies on.
     if low_factor is None and high_factor is None:
@@ -280,7 +280,7 @@ def test_same_seed_gives_the_same_arrays_and_another_seed_does_not():
 
 @pytest.mark.parametrize("cuts", [(1000,), (5000,), (1000, 4096, 8191), (BLOCK_TRIALS,)])
 def test_chunks_give_the_same_draws_as_one_piece(cuts):
-    # DESIGN.md section 5: results do not depend on chunk size; chunks may start inside a block.
+    # docs/methods/monte-carlo.md: results do not depend on chunk size; chunks may start inside a block.
     design = make_design(lot_share=0.3, correlation=CORRELATED)
     parameters = ("i_r", "q_rr", "v_t0")
     total = 10_000
@@ -329,7 +329,7 @@ def test_no_lot_share_leaves_positions_uncorrelated():
 @pytest.mark.parametrize("share", [0.5, 0.3])
 def test_lot_share_correlates_positions_of_one_string(share):
     # z = sqrt(s) z_lot + sqrt(1 - s) z_device: corr = s between two devices of one lot, and
-    # unit variance (DESIGN.md section 4, "lot_share is the fraction of variance common...").
+    # unit variance (docs/methods/, "lot_share is the fraction of variance common...").
     drawn = draw_strings(make_design(lot_share=share), ("i_r", "q_rr"), 0, N_CORRELATION)
     for name in ("i_r", "q_rr"):
         latent = drawn.latent[name]
@@ -344,7 +344,7 @@ def test_lot_share_correlates_positions_of_one_string(share):
 
 
 def test_different_parts_of_one_string_draw_from_different_lots():
-    # A mixed-vendor string draws each position from its own part (DESIGN.md section 4).
+    # A mixed-vendor string draws each position from its own part (docs/methods/).
     positions = '[[string.position]]\nindex = 1\npart = "B"'
     drawn = draw_strings(make_design(lot_share=0.5, positions=positions), ("i_r",), 0, N_CORRELATION)
     latent = drawn.latent["i_r"]

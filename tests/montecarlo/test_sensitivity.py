@@ -90,7 +90,7 @@ def test_rank_is_by_absolute_correlation(seed, strength):
 
 
 def test_a_cooler_ambient_lowers_the_static_stress_of_a_leaky_string():
-    # Leakage doubles every 10 K (DESIGN.md 4), so 10 K cooler halves every leakage; with the
+    # Leakage doubles every 10 K (docs/methods/), so 10 K cooler halves every leakage; with the
     # resistors fixed the leakage spread pushes less voltage around: the static p99 falls, and the
     # dynamic check (Q_rr has no temperature in the model) gets no ambient row.
     text = design(q_rr='{ typ = "1 uC", max = "2 uC" }', capacitor_tolerance="0 %",

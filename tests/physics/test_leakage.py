@@ -124,7 +124,7 @@ def test_temperature_factor_composes(first, second, third, doubling):
     doublings,
 )
 def test_matches_the_formula_term_by_term(voltage, reference, exponent, temperature, doubling):
-    # DESIGN.md section 4 formula evaluated independently with the math module.
+    # docs/methods/ formula evaluated independently with the math module.
     expected = 2e-7 * math.pow(voltage / reference, exponent) * math.pow(2.0, (temperature - 25.0) / doubling)
     model = leakage_current(
         2e-7,

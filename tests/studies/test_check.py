@@ -69,7 +69,7 @@ SCATTER = design_text("scatter")
 
 
 def test_result_does_not_depend_on_chunk_size():
-    # DESIGN.md section 5: chunk c uses its own stream, so chunking never changes the answer.
+    # docs/methods/monte-carlo.md: chunk c uses its own stream, so chunking never changes the answer.
     design = parse_design_text(SCATTER)
     one = run_check(design, chunk_trials=100_000)
     many = run_check(design, chunk_trials=4096)

@@ -61,7 +61,7 @@ def test_a_swap_that_changes_nothing_accepts_with_zero_change():
 
 
 def test_a_faster_substitute_takes_the_charge_balance_corner_voltage():
-    # Charge balance with one fast device (Q_f) among n - 1 slow ones (Q_s), equal C (DESIGN.md 4,
+    # Charge balance with one fast device (Q_f) among n - 1 slow ones (Q_s), equal C (docs/methods/,
     # the textbook series-diode argument): sum (Q - Q_k) / C = V_s gives
     # V_fast = V_s / n + (n - 1)(Q_s - Q_f) / (n C) = 1000 + 5 x 0.3 uC / (6 x 3.3 nF) = 1075.8 V.
     base = parse_design_text(BASE)

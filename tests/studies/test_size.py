@@ -271,7 +271,7 @@ def test_printed_corner_of_fixed_parts_is_the_textbook_corner_and_agrees_with_th
 
 def test_printed_corner_uses_the_mirrored_limit_the_monte_carlo_draws():
     # SLOW gives only a max: the draw puts its lower limit level (sigma_at_limit standard
-    # deviations below typ) at typ^2 / max (the lognormal spread mirrored, DESIGN.md section 4),
+    # deviations below typ) at typ^2 / max (the lognormal spread mirrored, docs/methods/),
     # not at zero; FAST stays fixed. dI_R = max(SLOW) - min(FAST typ, SLOW typ^2 / max), and so for
     # Q_rr; textbook corners as in the test above.
     text = corner().replace(
