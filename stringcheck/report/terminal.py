@@ -12,7 +12,7 @@ from rich.text import Text
 
 from stringcheck.constants import SAFE_VOLTAGE
 from stringcheck.units import format_quantity
-from stringcheck.montecarlo.estimates import trials_for_relative_error
+from stringcheck.montecarlo.estimates import WANTED_RELATIVE_ERROR
 from stringcheck.studies.check import CheckResult
 from stringcheck.checks.forward import ParallelCheck, ThermalCheck
 from stringcheck.checks.series import DynamicCheck, SeriesCheck
@@ -186,23 +186,16 @@ def render_warnings(warnings, console: Console, *, label: str = "") -> None:
                       highlight=False)
 
 
-WANTED_RELATIVE_ERROR = 0.1  # relative standard error of P(fail) the report asks for
-
-
 def _convergence_note(check) -> str:
     """How precisely the plain Monte Carlo run knows P(fail), when it is too short for 10 %
-    (pointing to --rare unless it ran)."""
+    (pointing to --rare unless it ran); the figures are the estimate's own."""
     estimate = check.estimate
-    if estimate is None or estimate.failures == 0 or estimate.failures == estimate.trials:
+    if estimate is None or not estimate.needs_more_trials:
         return ""
-    p = estimate.p_fail
-    relative = math.sqrt(p * (1 - p) / estimate.trials) / p
-    if relative <= WANTED_RELATIVE_ERROR:
-        return ""
-    needed = trials_for_relative_error(p, WANTED_RELATIVE_ERROR)
     failures = f"{estimate.failures:,} failure" + ("" if estimate.failures == 1 else "s")
     return (f"{check.name}: {failures} in {estimate.trials:,} trials know "
-            f"P(fail) to +-{relative:.0%} (standard error); about {needed:,} trials would give "
+            f"P(fail) to +-{estimate.relative_error:.0%} (standard error); about "
+            f"{estimate.trials_for_wanted_error:,} trials would give "
             f"+-{WANTED_RELATIVE_ERROR:.0%}" + ("" if check.rare is not None
                                                 else ", or use --rare"))
 
