@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Callable
 
 from rich.console import Console
 from rich.panel import Panel
@@ -11,6 +11,7 @@ from rich.table import Table
 from rich.text import Text
 
 from stringcheck.constants import SAFE_VOLTAGE
+from stringcheck.errors import Setting
 from stringcheck.units import format_quantity
 from stringcheck.montecarlo.estimates import WANTED_RELATIVE_ERROR
 from stringcheck.studies.check import CheckResult
@@ -20,6 +21,7 @@ from stringcheck.report.cautions import safety_cautions
 from stringcheck.report.display_text import shown
 from stringcheck.checks.transient import TransientCheck
 from stringcheck.report.lots import render_lots
+from stringcheck.report.wording import sentences
 from stringcheck.report.check_sections import (
     failure_point_text,
     render_drivers,
@@ -218,7 +220,7 @@ def _fail_reason(result: CheckResult) -> str:
     transient = result.checks.get("transient")
     if transient is not None and not transient.ran:
         reasons.append(f"the requested transient check could not run ({transient.reason})")
-    reasons += list(result.grading.rating_problems)
+    reasons += sentences(result.grading.rating_problems)
     short = [name for name, check in result.checks.items()
              if check.ran and check.estimate.failures == 0 and not check.passed
              and _deciding_rare(check) is None]
@@ -306,9 +308,9 @@ def _render_network(result: CheckResult, console: Console) -> None:
     for row in rows:
         table.add_row(*row)
     console.print(table)
-    for problem in grading.rating_problems:
+    for problem in sentences(grading.rating_problems):
         console.print(Text(f"  RATING EXCEEDED: {shown(problem)}", style="bold red"))
-    for advisory in grading.advisories:
+    for advisory in sentences(grading.advisories):
         console.print(Text(f"  advisory: {shown(advisory)}", style="yellow"))
     console.print()
 
@@ -364,8 +366,10 @@ def render_check_summary(result: CheckResult, console: Console) -> None:
     render_warnings(result.warnings, console)
 
 
-def render_sizing(result: "SizingResult", console: Console) -> None:
-    """Print the proposed grading network, the evidence for each value, ratings and cautions."""
+def render_sizing(result: "SizingResult", console: Console, *,
+                  spell: Callable[[Setting], str] = str) -> None:
+    """Print the proposed grading network, the evidence for each value, ratings and cautions (a
+    setting the advisories name spelled by ``spell``, ``report.wording.sentence``)."""
     design = result.design
     ratings = result.ratings
     console.print(Panel(Text.assemble(
@@ -449,7 +453,7 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
     for row in rows:
         ratings_table.add_row(*row)
     console.print(ratings_table)
-    for advisory in result.advisories:
+    for advisory in sentences(result.advisories, spell=spell):
         console.print(Text(f"  advisory: {advisory}", style="yellow"))
     console.print()
     console.print(Text("Check of the sized design", style="bold underline"))

@@ -131,9 +131,11 @@ def _warnings_to_list(warnings) -> list[dict[str, str]]:
 class CheckResult(Exported):
     """Everything ``stringcheck check`` found.
 
-    ``to_dict()`` is the JSON result without the two sections the report writes in words
-    (``lots`` and ``cautions``; ``report.export.result_to_dict`` adds them); ``to_frame()`` the
-    per-position figures of every check that ran, one row per check and position.
+    ``to_dict()`` is the JSON result without what the report writes in words (the sections
+    ``lots`` and ``cautions``, and the sentences of the network's findings, ``rating_problems`` and
+    ``advisories``, whose codes it gives; ``report.export.result_to_dict`` adds them);
+    ``to_frame()`` the per-position figures of every check that ran, one row per check and
+    position.
     """
 
     json_order = ("schema", "design", "trials", "seed", "confidence", "target_p_fail",

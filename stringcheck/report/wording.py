@@ -1,0 +1,114 @@
+"""The English of every finding (``checks.findings.Finding``): a table of code -> sentence.
+
+The layers below the report return findings (a code, the figures, the limit); this module is the
+one place that says them in words, for the terminal report and for the JSON's text keys alike.
+
+A template is a :meth:`str.format` string over the finding's values by name and ``limit``. A value
+with a unit and no format spec is written by :func:`stringcheck.units.format_quantity`; a spec
+(``{time:.3g}``) formats the bare number; ``{check:check}`` names a check in words; and
+``{option:KEYWORD}`` names a setting, spelled by whoever shows the sentence (the command line as its
+option, ``--transient``; Python as the keyword), as ``errors.Setting`` is for errors.
+"""
+
+from __future__ import annotations
+
+from typing import Callable
+
+from stringcheck.checks.findings import Finding, Value
+from stringcheck.errors import Setting
+from stringcheck.units import format_quantity
+
+__all__ = ["CHECK_WORDS", "TEMPLATES", "sentence", "sentences"]
+
+# How a check that found a stage voltage is named in a sentence.
+CHECK_WORDS = {"static": "static blocking", "dynamic": "charge-balance turn-off",
+               "transient": "simulated turn-off peak"}
+
+TEMPLATES: dict[str, str] = {
+    # checks.grading_ratings: ratings exceeded (they fail the verdict)
+    "rating.resistor_power":
+        "grading resistor dissipates {power} at the worst static voltage, above its rating of "
+        "{limit}",
+    "rating.resistor_voltage":
+        "grading resistor sees {voltage} at worst ({check:check}), above its working-voltage "
+        "rating of {limit}",
+    "rating.capacitor_voltage":
+        "grading capacitor sees {voltage} at worst ({check:check}), above its rating of {limit}",
+    # checks.grading_ratings: advisories (common practice, never hidden constraints)
+    "advisory.resistor_rated_power_missing":
+        "grading.resistor_rated_power not given: resistor power not checked",
+    "advisory.resistor_rated_voltage_missing":
+        "grading.resistor_rated_voltage not given: resistor working voltage not checked",
+    "advisory.grading_current_low":
+        "grading current {current} is less than {multiple:g} x the hottest maximum leakage "
+        "({leakage}); several times is common practice",
+    "advisory.no_grading_resistors":
+        "no grading resistors: static sharing rests on the leakage alone and the stack has no "
+        "bleed path for stored charge",
+    "advisory.capacitor_rated_voltage_missing":
+        "grading.capacitor_rated_voltage not given: capacitor voltage not checked",
+    "advisory.damping_resistor_missing":
+        "grading.damping_resistor not given: an undamped grading capacitor rings with the stray "
+        "inductance and discharges into the device at turn-on",
+    "advisory.slow_discharge":
+        "the stack takes {time} to fall below {voltage:g} V through its grading resistors, longer "
+        "than the {limit:g} s of IEC 60204-1:2016 clause 6.2.4: provide a discharge device or "
+        "earthing stick",
+    # studies.size: what sizing changed or could not settle
+    "size.capacitor_raised":
+        "capacitor raised from {previous:.3g} F to {raised:.3g} F: no damping resistor kept the "
+        "simulated turn-off within the limit",
+    "size.damping_slower_than_recovery":
+        "R_d C = {time_constant:.3g} s is longer than the shortest typical t_rr ({limit:.3g} s): "
+        "the capacitor may not take the charge in time; `{option:transient}` checks it in the "
+        "time domain",
+}
+
+
+class _Shown:
+    """A finding's value as a template writes it (see the module docstring)."""
+
+    def __init__(self, value: Value | None):
+        self.value = value
+
+    def __format__(self, spec: str) -> str:
+        number, unit = self.value.number, self.value.unit
+        if spec == "check":
+            return CHECK_WORDS.get(number, number)
+        if spec:
+            return format(number, spec)
+        if unit and not isinstance(number, str):
+            return format_quantity(number, unit)
+        return str(number)
+
+
+class _Options:
+    """``{option:KEYWORD}``: the setting ``KEYWORD`` spelled by the caller's speller."""
+
+    def __init__(self, spell: Callable[[Setting], str]):
+        self.spell = spell
+
+    def __format__(self, keyword: str) -> str:
+        return self.spell(Setting(keyword))
+
+
+def sentence(finding: Finding, *, spell: Callable[[Setting], str] = str) -> str:
+    """``finding`` in words (the sentence its code's template gives).
+
+    Parameters
+    ----------
+    finding
+        A finding whose code is in :data:`TEMPLATES` (a KeyError otherwise: a code without a
+        sentence is a bug, never a blank line).
+    spell
+        How a setting the sentence names is spelled (default: the Python keyword;
+        ``stringcheck.cli.options.option_wording`` for the command line's option).
+    """
+    values = {name: _Shown(value) for name, value in finding.values.items()}
+    return TEMPLATES[finding.code].format(**values, limit=_Shown(finding.limit),
+                                          option=_Options(spell))
+
+
+def sentences(findings, *, spell: Callable[[Setting], str] = str) -> list[str]:
+    """Each of ``findings`` in words, in order."""
+    return [sentence(finding, spell=spell) for finding in findings]

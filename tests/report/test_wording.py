@@ -1,0 +1,159 @@
+"""Findings in words (report.wording): each code's sentence is the text printed before findings
+existed, and the layers below the report no longer write the sentences they were converted from."""
+
+from __future__ import annotations
+
+import ast
+import re
+import string
+from pathlib import Path
+
+import pytest
+
+from stringcheck.checks.findings import Finding, Value, codes
+from stringcheck.cli.options import OPTIONS, option_wording
+from stringcheck.report.wording import CHECK_WORDS, TEMPLATES, sentence, sentences
+
+PACKAGE = Path(__file__).resolve().parents[2] / "stringcheck"
+
+# One finding per code and the sentence the code printed before it was a finding (the f-strings
+# of checks/grading_ratings.py and studies/size.py, evaluated by hand for these values with
+# units.format_quantity's three significant figures).
+TODAY = [
+    (Finding("rating.resistor_power", {"power": Value(1.52, "W")}, Value(1.0, "W")),
+     "grading resistor dissipates 1.52 W at the worst static voltage, above its rating of 1 W"),
+    (Finding("rating.resistor_voltage", {"voltage": Value(1712.3, "V"),
+                                         "check": Value("transient")}, Value(1200.0, "V")),
+     "grading resistor sees 1.71 kV at worst (simulated turn-off peak), above its "
+     "working-voltage rating of 1.2 kV"),
+    (Finding("rating.capacitor_voltage", {"voltage": Value(1712.3, "V"),
+                                          "check": Value("dynamic")}, Value(1200.0, "V")),
+     "grading capacitor sees 1.71 kV at worst (charge-balance turn-off), above its rating of "
+     "1.2 kV"),
+    (Finding("advisory.resistor_rated_power_missing"),
+     "grading.resistor_rated_power not given: resistor power not checked"),
+    (Finding("advisory.resistor_rated_voltage_missing"),
+     "grading.resistor_rated_voltage not given: resistor working voltage not checked"),
+    (Finding("advisory.grading_current_low",
+             {"current": Value(5.45e-5, "A"), "leakage": Value(2.1e-5, "A"),
+              "multiple": Value(5.0)}, Value(1.05e-4, "A")),
+     "grading current 54.5 uA is less than 5 x the hottest maximum leakage (21 uA); several "
+     "times is common practice"),
+    (Finding("advisory.no_grading_resistors"),
+     "no grading resistors: static sharing rests on the leakage alone and the stack has no "
+     "bleed path for stored charge"),
+    (Finding("advisory.capacitor_rated_voltage_missing"),
+     "grading.capacitor_rated_voltage not given: capacitor voltage not checked"),
+    (Finding("advisory.damping_resistor_missing"),
+     "grading.damping_resistor not given: an undamped grading capacitor rings with the stray "
+     "inductance and discharges into the device at turn-on"),
+    (Finding("advisory.slow_discharge", {"time": Value(312.0, "s"), "voltage": Value(60.0, "V")},
+             Value(5.0, "s")),
+     "the stack takes 312 s to fall below 60 V through its grading resistors, longer than the "
+     "5 s of IEC 60204-1:2016 clause 6.2.4: provide a discharge device or earthing stick"),
+    (Finding("size.capacitor_raised", {"previous": Value(4.7e-10, "F"),
+                                       "raised": Value(6.8e-10, "F")}),
+     "capacitor raised from 4.7e-10 F to 6.8e-10 F: no damping resistor kept the simulated "
+     "turn-off within the limit"),
+]
+# The command line's wording of the one code that names a setting (the JSON of `size` has it).
+SIZE_DAMPING = (Finding("size.damping_slower_than_recovery", {"time_constant": Value(3.3e-7, "s")},
+                        Value(1.5e-7, "s")),
+                "R_d C = 3.3e-07 s is longer than the shortest typical t_rr (1.5e-07 s): the "
+                "capacitor may not take the charge in time; `--transient` checks it in the time "
+                "domain")
+
+
+@pytest.mark.parametrize("finding, text", TODAY, ids=[f.code for f, _ in TODAY])
+def test_each_code_reads_as_it_did(finding, text):
+    assert sentence(finding) == text
+    assert sentence(finding, spell=option_wording) == text  # names no setting
+
+
+def test_a_setting_in_a_sentence_is_spelled_by_whoever_shows_it():
+    finding, text = SIZE_DAMPING
+    assert sentence(finding, spell=option_wording) == text
+    # From Python the setting is the keyword, never a command-line option.
+    assert sentence(finding) == text.replace("--transient", "transient")
+
+
+def test_every_code_has_a_sentence_and_is_tested():
+    tested = {finding.code for finding, _ in TODAY} | {SIZE_DAMPING[0].code}
+    assert tested == set(TEMPLATES)
+    with pytest.raises(KeyError):
+        sentence(Finding("no.such_code"))
+    assert sentences([f for f, _ in TODAY]) == [t for _, t in TODAY]
+    assert codes([f for f, _ in TODAY]) == [f.code for f, _ in TODAY]
+
+
+def test_templates_name_only_known_settings_and_check_words():
+    for code, template in TEMPLATES.items():
+        for _, field, spec, _ in string.Formatter().parse(template):
+            if field == "option":
+                assert spec in OPTIONS, (code, spec)
+            if spec == "check":
+                assert field == "check", code
+    assert set(CHECK_WORDS) == {"static", "dynamic", "transient"}
+
+
+def _produced_codes() -> set[str]:
+    """The codes the package's modules below the report make findings of (Finding("code", ...))."""
+    found = set()
+    for path in PACKAGE.rglob("*.py"):
+        if path.relative_to(PACKAGE).parts[0] in ("report", "cli"):
+            continue
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            if isinstance(node, ast.Call) and getattr(node.func, "id", None) == "Finding" \
+                    and node.args and isinstance(node.args[0], ast.Constant):
+                found.add(node.args[0].value)
+    return found
+
+
+def test_every_code_a_layer_below_produces_has_a_sentence():
+    produced = _produced_codes()
+    assert produced == set(TEMPLATES), produced ^ set(TEMPLATES)
+
+
+def _sentence_constants(tree) -> list[str]:
+    """String constants and f-strings of two or more words, outside docstrings and the messages
+    of raised errors (errors are worded where they are raised, with errors.Setting)."""
+    skip = set()
+    for node in ast.walk(tree):
+        if isinstance(node, (ast.Module, ast.ClassDef, ast.FunctionDef)) and node.body and \
+                isinstance(node.body[0], ast.Expr) and isinstance(node.body[0].value, ast.Constant):
+            skip.update(id(n) for n in ast.walk(node.body[0]))
+        if isinstance(node, ast.Raise):
+            skip.update(id(n) for n in ast.walk(node))
+    found = []
+    for node in ast.walk(tree):
+        if id(node) in skip:
+            continue
+        if isinstance(node, ast.JoinedStr) and any(
+                isinstance(v, ast.Constant) and " " in v.value for v in node.values):
+            found.append(f"{node.lineno}: f-string")
+            skip.update(id(n) for n in ast.walk(node))
+        elif isinstance(node, ast.Constant) and isinstance(node.value, str) and \
+                re.search(r"[a-z]+ [a-z]+", node.value):
+            found.append(f"{node.lineno}: {node.value!r}")
+    return found
+
+
+def test_the_converted_modules_write_no_sentences():
+    # checks/grading_ratings.py was converted whole: no sentence left in it.
+    tree = ast.parse((PACKAGE / "checks" / "grading_ratings.py").read_text(encoding="utf-8"))
+    assert not _sentence_constants(tree)
+    # The scan can fail: the module before its conversion held the advisories' f-strings.
+    assert _sentence_constants(ast.parse('advisories.append(f"grading current {x} is low")'))
+
+
+def test_sizing_advisories_are_findings():
+    # studies/size.py: whatever is appended to its advisories is a Finding, never text.
+    tree = ast.parse((PACKAGE / "studies" / "size.py").read_text(encoding="utf-8"))
+    appended = [node for node in ast.walk(tree) if isinstance(node, ast.Call)
+                and isinstance(node.func, ast.Attribute) and node.func.attr == "append"
+                and getattr(node.func.value, "id", None) in ("advisories", "raised")]
+    assert appended
+    for call in appended:
+        argument = call.args[0]
+        assert isinstance(argument, ast.Call) and argument.func.id == "Finding", \
+            ast.unparse(call)
