@@ -16,13 +16,14 @@ from stringcheck.studies.check import SCHEMA_VERSION, CheckResult
 from stringcheck.report.cautions import safety_cautions
 from stringcheck.report.lots import lots_to_list
 from stringcheck.errors import Setting
-from stringcheck.report.wording import sentences
+from stringcheck.report.wording import sentence, sentences
 
 if TYPE_CHECKING:
     from stringcheck.studies.size import SizingResult
 
 __all__ = ["SCHEMA_VERSION", "check_to_dict", "json_text", "network_to_dict", "positions_csv",
-           "result_to_dict", "sizing_to_dict", "write_files_atomic", "write_text_atomic"]
+           "result_to_dict", "sizing_to_dict", "warnings_to_list", "write_files_atomic",
+           "write_text_atomic"]
 
 
 def check_to_dict(check: CheckOutcome) -> dict[str, Any]:
@@ -42,6 +43,8 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
         out[key] = value
         if key == "network" and value is not None:
             out[key] = network_to_dict(grading)
+        if key == "warnings":
+            out[key] = warnings_to_list(result.warnings)
         if key == "drivers":
             out["lots"] = lots_to_list(design)
     out.setdefault("lots", lots_to_list(design))
@@ -63,6 +66,12 @@ def network_to_dict(grading: GradingSummary) -> dict[str, Any]:
             out["advisories"] = sentences(grading.advisories)
         out[key] = value
     return out
+
+
+def warnings_to_list(warnings) -> list[dict[str, str]]:
+    """The plausibility warnings' JSON: {key, message (``report.wording``), code} each."""
+    return [{"key": warning.key, "message": sentence(warning.finding),
+             "code": warning.finding.code} for warning in warnings]
 
 
 def positions_csv(result: CheckResult) -> str:

@@ -21,7 +21,7 @@ from stringcheck.report.cautions import safety_cautions
 from stringcheck.report.display_text import shown
 from stringcheck.checks.transient import TransientCheck
 from stringcheck.report.lots import render_lots
-from stringcheck.report.wording import sentences
+from stringcheck.report.wording import sentence, sentences
 from stringcheck.report.check_sections import (
     failure_point_text,
     render_drivers,
@@ -184,7 +184,8 @@ def render_check(result: CheckResult, console: Console) -> None:
 def render_warnings(warnings, console: Console, *, label: str = "") -> None:
     """The plausibility warnings, one line each (nothing when there are none)."""
     for warning in warnings:
-        console.print(Text(f"warning{label}: {warning.key}: {warning.message}", style="bold yellow"),
+        console.print(Text(f"warning{label}: {warning.key}: {sentence(warning.finding)}",
+                           style="bold yellow"),
                       highlight=False)
 
 

@@ -5,7 +5,8 @@ one place that says them in words, for the terminal report and for the JSON's te
 
 A template is a :meth:`str.format` string over the finding's values by name and ``limit``. A value
 with a unit and no format spec is written by :func:`stringcheck.units.format_quantity`; a spec
-(``{time:.3g}``) formats the bare number; ``{check:check}`` names a check in words; and
+(``{time:.3g}``) formats the bare number; a worded spec (``{check:check}``, ``{ratio:times}``,
+``{parameter:what}``: ``_WORDED``) says the value in words; and
 ``{option:KEYWORD}`` names a setting, spelled by whoever shows the sentence (the command line as its
 option, ``--transient``; Python as the keyword), as ``errors.Setting`` is for errors.
 """
@@ -15,6 +16,7 @@ from __future__ import annotations
 from typing import Callable
 
 from stringcheck.checks.findings import Finding, Value
+from stringcheck.design.model import LOGNORMAL_PARAMETERS
 from stringcheck.errors import Setting
 from stringcheck.units import format_quantity
 
@@ -62,6 +64,59 @@ TEMPLATES: dict[str, str] = {
         "R_d C = {time_constant:.3g} s is longer than the shortest typical t_rr ({limit:.3g} s): "
         "the capacitor may not take the charge in time; `{option:transient}` checks it in the "
         "time domain",
+    # checks.plausibility: valid values that are probably slips (the design-file key beside)
+    "plausibility.string_voltage_low":
+        "{voltage} across {series} devices in series is {share} per device, {percent:.2g} % of "
+        "the V_RRM of part '{part}' ({rating}): orders of magnitude below any rating; a bare "
+        "number is volts (write \"{voltage:g} kV\" if kilovolts were meant)",
+    "plausibility.slow_turn_off_slope":
+        "a turn-off slope of {slope:g} A/s ({slope_per_us:.3g} A/us) is orders of magnitude "
+        "slower than any commutation (1 to 1000 A/us is usual); a bare number is A/s: write "
+        "\"{slope:g} A/us\" if that was meant",
+    "plausibility.slow_test_di_dt":
+        "a datasheet test di/dt of {slope:g} A/s ({slope_per_us:.3g} A/us) is orders of "
+        "magnitude slower than any commutation (1 to 1000 A/us is usual); a bare number is A/s: "
+        "write \"{slope:g} A/us\" if that was meant",
+    "plausibility.ambient_cold":
+        "{ambient:g} degC is colder than {limit:g} degC, below what power devices and grading "
+        "components are commonly rated for; check the sign and the unit (a bare number is degC)",
+    "plausibility.max_far_above_typ":
+        "the maximum {parameter:what} {high} is {ratio:times} its typical value {typ}"
+        "{typ_assumed:typ_note}; limits sit within {parameter:within} of typ: check the units of "
+        "both",
+    "plausibility.typ_far_above_min":
+        "the typical {parameter:what} {typ} is {ratio:times} its minimum {low}; limits sit within "
+        "{parameter:within} of typ: check the units of both",
+    "plausibility.grading_loss_large":
+        "the grading resistors of {resistor} dissipate {loss} in all at the nominal share, and no "
+        "grading.resistor_rated_power is given to check it; a unit slip in the resistance (a bare "
+        "number is ohms: write e.g. \"4.7 MOhm\")?",
+    "plausibility.confidence_low":
+        "{confidence:g}: an upper bound at less than {limit:.0%} confidence lies below the best "
+        "estimate of P(fail) more often than not, so a pass vouches for little; 0.95 is usual",
+    "plausibility.target_high":
+        "{target:g} lets more than one built stack in ten fail; targets are usually 1e-3 to 1e-6 "
+        "(was a percentage meant? {target:g} % is {as_percent:g})",
+}
+
+
+def _times(ratio: float) -> str:
+    return f"{ratio:,.0f} x" if ratio < 1e9 else f"{ratio:.2g} x"
+
+
+def _within(parameter: str) -> str:
+    """How close to typ a datasheet puts the limits of ``parameter`` (common practice)."""
+    return "about a decade" if parameter == "i_r" else (
+        "a factor of 2 or 3" if parameter in LOGNORMAL_PARAMETERS else "some tens of percent")
+
+
+# Format specs that word a value rather than format its number.
+_WORDED = {
+    "check": lambda name: CHECK_WORDS.get(name, name),
+    "what": lambda parameter: "leakage" if parameter == "i_r" else parameter,
+    "within": _within,
+    "times": _times,
+    "typ_note": lambda assumed: " (typ assumed from the max)" if assumed else "",
 }
 
 
@@ -73,8 +128,8 @@ class _Shown:
 
     def __format__(self, spec: str) -> str:
         number, unit = self.value.number, self.value.unit
-        if spec == "check":
-            return CHECK_WORDS.get(number, number)
+        if spec in _WORDED:
+            return _WORDED[spec](number)
         if spec:
             return format(number, spec)
         if unit and not isinstance(number, str):

@@ -123,8 +123,9 @@ def _design_to_dict(design: Design) -> dict[str, Any]:
 
 
 def _warnings_to_list(warnings) -> list[dict[str, str]]:
-    """The plausibility warnings as JSON objects {key, message}."""
-    return [{"key": warning.key, "message": warning.message} for warning in warnings]
+    """The plausibility warnings as JSON objects {key, code} (``report.export`` adds each one's
+    ``message``, in words)."""
+    return [{"key": warning.key, "code": warning.finding.code} for warning in warnings]
 
 
 @dataclass(frozen=True, eq=False, kw_only=True, repr=False)
@@ -132,8 +133,9 @@ class CheckResult(Exported):
     """Everything ``stringcheck check`` found.
 
     ``to_dict()`` is the JSON result without what the report writes in words (the sections
-    ``lots`` and ``cautions``, and the sentences of the network's findings, ``rating_problems`` and
-    ``advisories``, whose codes it gives; ``report.export.result_to_dict`` adds them);
+    ``lots`` and ``cautions``, and the sentences of the findings: the network's
+    ``rating_problems`` and ``advisories`` and each warning's ``message``, whose codes it gives;
+    ``report.export.result_to_dict`` adds them);
     ``to_frame()`` the per-position figures of every check that ran, one row per check and
     position.
     """

@@ -17,8 +17,8 @@ from stringcheck.report.wording import CHECK_WORDS, TEMPLATES, sentence, sentenc
 PACKAGE = Path(__file__).resolve().parents[2] / "stringcheck"
 
 # One finding per code and the sentence the code printed before it was a finding (the f-strings
-# of checks/grading_ratings.py and studies/size.py, evaluated by hand for these values with
-# units.format_quantity's three significant figures).
+# of checks/grading_ratings.py, checks/plausibility.py and studies/size.py, evaluated for these
+# values with units.format_quantity's three significant figures).
 TODAY = [
     (Finding("rating.resistor_power", {"power": Value(1.52, "W")}, Value(1.0, "W")),
      "grading resistor dissipates 1.52 W at the worst static voltage, above its rating of 1 W"),
@@ -51,6 +51,52 @@ TODAY = [
              Value(5.0, "s")),
      "the stack takes 312 s to fall below 60 V through its grading resistors, longer than the "
      "5 s of IEC 60204-1:2016 clause 6.2.4: provide a discharge device or earthing stick"),
+    # checks/plausibility.py
+    (Finding("plausibility.string_voltage_low",
+             {"voltage": Value(50.0, "V"), "series": Value(4), "share": Value(12.5, "V"),
+              "percent": Value(100 * 12.5 / 1200.0), "part": Value("A"),
+              "rating": Value(1200.0, "V")}, Value(12.0, "V")),
+     "50 V across 4 devices in series is 12.5 V per device, 1 % of the V_RRM of part 'A' "
+     "(1.2 kV): orders of magnitude below any rating; a bare number is volts (write \"50 kV\" if "
+     "kilovolts were meant)"),
+    (Finding("plausibility.slow_turn_off_slope", {"slope": Value(50.0, "A/s"),
+                                                  "slope_per_us": Value(5e-5, "A/us")},
+             Value(1e3, "A/s")),
+     "a turn-off slope of 50 A/s (5e-05 A/us) is orders of magnitude slower than any "
+     "commutation (1 to 1000 A/us is usual); a bare number is A/s: write \"50 A/us\" if that "
+     "was meant"),
+    (Finding("plausibility.slow_test_di_dt", {"slope": Value(50.0, "A/s"),
+                                              "slope_per_us": Value(5e-5, "A/us")},
+             Value(1e3, "A/s")),
+     "a datasheet test di/dt of 50 A/s (5e-05 A/us) is orders of magnitude slower than any "
+     "commutation (1 to 1000 A/us is usual); a bare number is A/s: write \"50 A/us\" if that "
+     "was meant"),
+    (Finding("plausibility.ambient_cold", {"ambient": Value(-70.0, "degC")},
+             Value(-60.0, "degC")),
+     "-70 degC is colder than -60 degC, below what power devices and grading components are "
+     "commonly rated for; check the sign and the unit (a bare number is degC)"),
+    (Finding("plausibility.max_far_above_typ",
+             {"parameter": Value("i_r"), "high": Value(2e-3, "A"), "typ": Value(1e-6, "A"),
+              "ratio": Value(2000.0), "typ_assumed": Value(1)}, Value(1e3)),
+     "the maximum leakage 2 mA is 2,000 x its typical value 1 uA (typ assumed from the max); "
+     "limits sit within about a decade of typ: check the units of both"),
+    (Finding("plausibility.typ_far_above_min",
+             {"parameter": Value("v_t0"), "typ": Value(3.0, "V"), "low": Value(0.2, "V"),
+              "ratio": Value(15.0)}, Value(10.0)),
+     "the typical v_t0 3 V is 15 x its minimum 200 mV; limits sit within some tens of percent of "
+     "typ: check the units of both"),
+    (Finding("plausibility.grading_loss_large", {"resistor": Value(4.7, "ohm"),
+                                                 "loss": Value(2.5e6, "W")}, Value(1e6, "W")),
+     "the grading resistors of 4.7 Ohm dissipate 2.5 MW in all at the nominal share, and no "
+     "grading.resistor_rated_power is given to check it; a unit slip in the resistance (a bare "
+     "number is ohms: write e.g. \"4.7 MOhm\")?"),
+    (Finding("plausibility.confidence_low", {"confidence": Value(0.3)}, Value(0.5)),
+     "0.3: an upper bound at less than 50% confidence lies below the best estimate of P(fail) "
+     "more often than not, so a pass vouches for little; 0.95 is usual"),
+    (Finding("plausibility.target_high", {"target": Value(5.0), "as_percent": Value(0.05)},
+             Value(0.1)),
+     "5 lets more than one built stack in ten fail; targets are usually 1e-3 to 1e-6 (was a "
+     "percentage meant? 5 % is 0.05)"),
     (Finding("size.capacitor_raised", {"previous": Value(4.7e-10, "F"),
                                        "raised": Value(6.8e-10, "F")}),
      "capacitor raised from 4.7e-10 F to 6.8e-10 F: no damping resistor kept the simulated "
@@ -106,6 +152,10 @@ def _produced_codes() -> set[str]:
             if isinstance(node, ast.Call) and getattr(node.func, "id", None) == "Finding" \
                     and node.args and isinstance(node.args[0], ast.Constant):
                 found.add(node.args[0].value)
+            # a code handed to a helper that makes the finding (plausibility's _slope)
+            elif isinstance(node, ast.Constant) and isinstance(node.value, str) and \
+                    re.fullmatch(r"(rating|advisory|size|plausibility)\.[a-z_]+", node.value):
+                found.add(node.value)
     return found
 
 
@@ -138,9 +188,10 @@ def _sentence_constants(tree) -> list[str]:
     return found
 
 
-def test_the_converted_modules_write_no_sentences():
-    # checks/grading_ratings.py was converted whole: no sentence left in it.
-    tree = ast.parse((PACKAGE / "checks" / "grading_ratings.py").read_text(encoding="utf-8"))
+@pytest.mark.parametrize("module", ("grading_ratings.py", "plausibility.py", "findings.py"))
+def test_the_converted_modules_write_no_sentences(module):
+    # These checks modules were converted whole: no sentence left in them.
+    tree = ast.parse((PACKAGE / "checks" / module).read_text(encoding="utf-8"))
     assert not _sentence_constants(tree)
     # The scan can fail: the module before its conversion held the advisories' f-strings.
     assert _sentence_constants(ast.parse('advisories.append(f"grading current {x} is low")'))
