@@ -88,7 +88,8 @@ def plausibility_warnings(design: Design, *,
     target = design.sizing.target_p_fail
     if target > MAX_TARGET_P_FAIL:
         found.append(PlausibilityWarning("sizing.target_p_fail", Finding(
-            "plausibility.target_high", {"target": Value(target), "as_percent": Value(target / 100)},
+            "plausibility.target_high",
+            {"target": Value(target), "as_percent": Value(target / 100)},
             Value(MAX_TARGET_P_FAIL))))
     return tuple(found)
 
@@ -134,8 +135,8 @@ def _turn_off_slopes(design: Design) -> list[PlausibilityWarning]:
 
 
 def _slope(code: str, value: float, threshold: float) -> Finding:
-    return Finding(code, {"slope": Value(value, "A/s"), "slope_per_us": Value(value * 1e-6, "A/us")},
-                   Value(threshold, "A/s"))
+    return Finding(code, {"slope": Value(value, "A/s"),
+                          "slope_per_us": Value(value * 1e-6, "A/us")}, Value(threshold, "A/s"))
 
 
 def _spreads(design: Design) -> list[PlausibilityWarning]:

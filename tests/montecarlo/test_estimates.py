@@ -156,7 +156,7 @@ def test_failure_estimate_arrays():
     assert estimate.upper_bound.shape == (2,)
 
 
-# --- convergence figures of an estimate ------------------------------------------------------------
+# --- convergence figures of an estimate --------------------------------------------------------
 @pytest.mark.parametrize("failures, trials", [(1, 10), (3, 1000), (40, 4000), (999, 1000)])
 def test_relative_error_is_the_binomial_closed_form(failures, trials):
     # A binomial proportion k / n has standard deviation sqrt(p (1 - p) / n) (Feller, vol. 1,
