@@ -16,7 +16,7 @@ from stringcheck.studies.check import SCHEMA_VERSION, CheckResult
 from stringcheck.report.cautions import safety_cautions
 from stringcheck.report.lots import lots_to_list
 from stringcheck.errors import Setting
-from stringcheck.report.wording import sentence, sentences
+from stringcheck.report.wording import impossibility_text, sentence, sentences
 
 if TYPE_CHECKING:
     from stringcheck.studies.size import SizingResult
@@ -40,6 +40,8 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
     grading = result.grading
     out: dict[str, Any] = {}
     for key, value in data.items():
+        if key == "impossible_codes":
+            out["impossible"] = impossibility_text(result.impossible)
         out[key] = value
         if key == "network" and value is not None:
             out[key] = network_to_dict(grading)

@@ -21,7 +21,7 @@ from stringcheck.report.cautions import safety_cautions
 from stringcheck.report.display_text import shown
 from stringcheck.checks.transient import TransientCheck
 from stringcheck.report.lots import render_lots
-from stringcheck.report.wording import sentence, sentences
+from stringcheck.report.wording import impossibility_text, sentence, sentences
 from stringcheck.report.check_sections import (
     failure_point_text,
     render_drivers,
@@ -120,7 +120,8 @@ def render_check(result: CheckResult, console: Console) -> None:
     else:
         console.print(Text(" VERDICT: FAIL ", style="bold white on red"), _fail_reason(result))
     if result.impossible:
-        console.print(Text(f"Impossible design: {result.impossible}.", style="bold red"))
+        console.print(Text(f"Impossible design: {impossibility_text(result.impossible)}.",
+                           style="bold red"))
     render_warnings(result.warnings, console)
     console.print()
 
@@ -361,7 +362,7 @@ def render_check_summary(result: CheckResult, console: Console) -> None:
                          f"{bound:.2g} vs target {result.target_p_fail:g}{worst})")
         else:
             parts.append(f"{name} not run")
-    if result.impossible is not None:
+    if result.impossible:
         parts.append("impossible design")
     console.print(f"{result.verdict}: " + ", ".join(parts), highlight=False)
     render_warnings(result.warnings, console)

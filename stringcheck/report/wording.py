@@ -20,7 +20,7 @@ from stringcheck.design.model import LOGNORMAL_PARAMETERS
 from stringcheck.errors import Setting
 from stringcheck.units import format_quantity
 
-__all__ = ["CHECK_WORDS", "TEMPLATES", "sentence", "sentences"]
+__all__ = ["CHECK_WORDS", "TEMPLATES", "impossibility_text", "sentence", "sentences"]
 
 # How a check that found a stage voltage is named in a sentence.
 CHECK_WORDS = {"static": "static blocking", "dynamic": "charge-balance turn-off",
@@ -64,6 +64,14 @@ TEMPLATES: dict[str, str] = {
         "R_d C = {time_constant:.3g} s is longer than the shortest typical t_rr ({limit:.3g} s): "
         "the capacitor may not take the charge in time; `{option:transient}` checks it in the "
         "time domain",
+    # checks.preconditions: no built string can pass, whatever is drawn (the arithmetic)
+    "impossible.string_voltage":
+        "the string cannot hold {voltage:g} V even with perfect sharing: the sum of derating x "
+        "V_RRM over the {series} devices of a branch is {limit:g} V (derating {derating:g})",
+    "impossible.group_current":
+        "the group cannot carry {current:g} A average even with perfect sharing: the {parallel} "
+        "branch(es) together are rated {limit:g} A (the sum over the branches of the weakest "
+        "device's i_fav)",
     # checks.plausibility: valid values that are probably slips (the design-file key beside)
     "plausibility.string_voltage_low":
         "{voltage} across {series} devices in series is {share} per device, {percent:.2g} % of "
@@ -167,3 +175,9 @@ def sentence(finding: Finding, *, spell: Callable[[Setting], str] = str) -> str:
 def sentences(findings, *, spell: Callable[[Setting], str] = str) -> list[str]:
     """Each of ``findings`` in words, in order."""
     return [sentence(finding, spell=spell) for finding in findings]
+
+
+def impossibility_text(findings) -> str | None:
+    """Why no built string can pass (``checks.preconditions.impossibility``), one clause per
+    finding joined by "; ", or None when the design is possible."""
+    return "; ".join(sentences(findings)) or None

@@ -554,7 +554,7 @@ def _smallest_series(design: Design, trials: int, seed: int, pool: WorkerPool | 
         candidate = _with_series(design, count)
         result = run_check(candidate, trials=trials, seed=seed, pool=pool)
         ran = [check for check in result.checks.values() if check.ran]
-        if all(check.estimate.ci_high <= target for check in ran) and result.impossible is None:
+        if all(check.estimate.ci_high <= target for check in ran) and not result.impossible:
             return candidate
     raise SizingError(f"no device count up to {last} passes with this network")
 

@@ -12,13 +12,14 @@ import pytest
 
 from stringcheck.checks.findings import Finding, Value, codes
 from stringcheck.cli.options import OPTIONS, option_wording
-from stringcheck.report.wording import CHECK_WORDS, TEMPLATES, sentence, sentences
+from stringcheck.report.wording import (CHECK_WORDS, TEMPLATES, impossibility_text, sentence,
+                                        sentences)
 
 PACKAGE = Path(__file__).resolve().parents[2] / "stringcheck"
 
 # One finding per code and the sentence the code printed before it was a finding (the f-strings
-# of checks/grading_ratings.py, checks/plausibility.py and studies/size.py, evaluated for these
-# values with units.format_quantity's three significant figures).
+# of checks/grading_ratings.py, checks/preconditions.py, checks/plausibility.py and studies/size.py,
+# evaluated for these values with units.format_quantity's three significant figures).
 TODAY = [
     (Finding("rating.resistor_power", {"power": Value(1.52, "W")}, Value(1.0, "W")),
      "grading resistor dissipates 1.52 W at the worst static voltage, above its rating of 1 W"),
@@ -51,6 +52,15 @@ TODAY = [
              Value(5.0, "s")),
      "the stack takes 312 s to fall below 60 V through its grading resistors, longer than the "
      "5 s of IEC 60204-1:2016 clause 6.2.4: provide a discharge device or earthing stick"),
+    # checks/preconditions.py (one finding each; the report joins several with "; ")
+    (Finding("impossible.string_voltage", {"voltage": Value(9000.0, "V"), "series": Value(6),
+                                           "derating": Value(0.9)}, Value(7560.0, "V")),
+     "the string cannot hold 9000 V even with perfect sharing: the sum of derating x V_RRM over "
+     "the 6 devices of a branch is 7560 V (derating 0.9)"),
+    (Finding("impossible.group_current", {"current": Value(50.0, "A"), "parallel": Value(2)},
+             Value(40.0, "A")),
+     "the group cannot carry 50 A average even with perfect sharing: the 2 branch(es) together "
+     "are rated 40 A (the sum over the branches of the weakest device's i_fav)"),
     # checks/plausibility.py
     (Finding("plausibility.string_voltage_low",
              {"voltage": Value(50.0, "V"), "series": Value(4), "share": Value(12.5, "V"),
@@ -154,7 +164,8 @@ def _produced_codes() -> set[str]:
                 found.add(node.args[0].value)
             # a code handed to a helper that makes the finding (plausibility's _slope)
             elif isinstance(node, ast.Constant) and isinstance(node.value, str) and \
-                    re.fullmatch(r"(rating|advisory|size|plausibility)\.[a-z_]+", node.value):
+                    re.fullmatch(r"(rating|advisory|size|plausibility|impossible)\.[a-z_]+",
+                                 node.value):
                 found.add(node.value)
     return found
 
@@ -208,3 +219,10 @@ def test_sizing_advisories_are_findings():
         argument = call.args[0]
         assert isinstance(argument, ast.Call) and argument.func.id == "Finding", \
             ast.unparse(call)
+
+
+def test_an_impossible_design_joins_its_reasons_as_before():
+    both = [TODAY[index] for index, (finding, _) in enumerate(TODAY)
+            if finding.code.startswith("impossible.")]
+    assert impossibility_text([f for f, _ in both]) == "; ".join(t for _, t in both)
+    assert impossibility_text(()) is None
