@@ -226,3 +226,11 @@ def test_an_impossible_design_joins_its_reasons_as_before():
             if finding.code.startswith("impossible.")]
     assert impossibility_text([f for f, _ in both]) == "; ".join(t for _, t in both)
     assert impossibility_text(()) is None
+
+
+def test_the_impossibility_arithmetic_writes_no_sentence():
+    # checks/preconditions.py is converted for impossibility() only (its assumptions are text yet).
+    tree = ast.parse((PACKAGE / "checks" / "preconditions.py").read_text(encoding="utf-8"))
+    (function,) = [node for node in tree.body
+                   if isinstance(node, ast.FunctionDef) and node.name == "impossibility"]
+    assert not _sentence_constants(function)
