@@ -112,7 +112,8 @@ class ParallelCheck(CheckOutcome):
     """Current sharing of the parallel branches (shares and ratios [-], currents [A])."""
 
     json_order = ("passed", "worst_share", "p99_share", "worst_ratio", "p50_ratio", "p99_ratio",
-                  "failures", "p_fail", "p_fail_ci", "rare", "unsolved", "worst_trial",
+                  "failures", "p_fail", "p_fail_ci", "p_fail_relative_error",
+                  "trials_for_relative_error", "rare", "unsolved", "worst_trial",
                   "required_derating", "electro_thermal", "branches", "ballast")
 
     worst_share: float = figure(encode=json_number, idle=np.nan)
@@ -131,7 +132,8 @@ class ThermalCheck(CheckOutcome):
     """Electro-thermal equilibrium of the group: junction temperatures [degC] and runaway."""
 
     json_order = ("passed", "worst_tj", "p99_tj", "worst_ratio", "p50_ratio", "p99_ratio",
-                  "failures", "p_fail", "p_fail_ci", "rare", "p_runaway", "p_runaway_ci",
+                  "failures", "p_fail", "p_fail_ci", "p_fail_relative_error",
+                  "trials_for_relative_error", "rare", "p_runaway", "p_runaway_ci",
                   "runaway_trials", "over_tj_max_trials", "worst_trial", "runaway_ambient",
                   "runaway_ambient_trials", "runaway_search_limit", "mean_total_power",
                   "turn_off_current", "positions")

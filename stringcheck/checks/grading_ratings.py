@@ -2,7 +2,8 @@
 energy and discharge time, from the nominal values and the worst voltages the checks found.
 
 Ratings exceeded are "rating problems" (they fail the verdict); rules of thumb are advisories,
-marked as common practice, never hidden constraints.
+marked as common practice, never hidden constraints. Both are findings (``checks.findings``): a
+code, the figures and the limit; ``report.wording`` says them in words.
 """
 
 from __future__ import annotations
@@ -12,13 +13,13 @@ from typing import Mapping
 
 import numpy as np
 
-from stringcheck.checks.outcome import Exported, figure, json_number, listed, text_or_null
+from stringcheck.checks.findings import Finding, Value, codes
+from stringcheck.checks.outcome import Exported, figure, json_number, text_or_null
 from stringcheck.constants import SAFE_DISCHARGE_TIME, SAFE_VOLTAGE
 from stringcheck.design.model import Design
 from stringcheck.limits import exceeds_limit
 from stringcheck.physics.grading import discharge_time, resistor_power, stored_energy
 from stringcheck.physics.leakage import leakage_current
-from stringcheck.units import format_quantity as _q
 
 # Grading current below this multiple of the hottest maximum leakage draws an advisory (common
 # practice: "several times" the leakage; 5x is our threshold for saying so).
@@ -26,8 +27,6 @@ GRADING_CURRENT_MULTIPLE = 5.0
 # The checks whose worst figure is a stage voltage [V]: every grading component across a stage
 # sees it (the transient check's is the simulated turn-off peak, overshoot included).
 STAGE_VOLTAGE_CHECKS = ("static", "dynamic", "transient")
-_CHECK_WORDS = {"static": "static blocking", "dynamic": "charge-balance turn-off",
-                "transient": "simulated turn-off peak"}
 
 
 @dataclass(frozen=True, kw_only=True, repr=False)
@@ -39,7 +38,8 @@ class GradingSummary(Exported):
                   "worst_stage_voltage_check", "resistor_power_continuous", "resistor_power_duty",
                   "resistor_rated_power", "resistor_rated_voltage", "capacitor_rated_voltage",
                   "total_grading_loss", "stage_energy", "total_energy", "discharge_time",
-                  "grading_current", "hottest_max_leakage", "rating_problems", "advisories")
+                  "grading_current", "hottest_max_leakage", "rating_problem_codes",
+                  "advisory_codes")
 
     resistor: float | None = figure(unit="ohm")
     capacitor: float | None = figure(unit="F")
@@ -58,8 +58,10 @@ class GradingSummary(Exported):
     discharge_time: float = figure(unit="s", encode=json_number)
     grading_current: float | None = figure(unit="A", encode=json_number)
     hottest_max_leakage: float = figure(unit="A", encode=json_number)
-    rating_problems: tuple[str, ...] = figure(encode=listed)
-    advisories: tuple[str, ...] = figure(encode=listed)
+    # Findings (checks.findings): their codes here, their sentences (rating_problems,
+    # advisories) written beside them by report.export.
+    rating_problems: tuple[Finding, ...] = figure("rating_problem_codes", encode=codes)
+    advisories: tuple[Finding, ...] = figure("advisory_codes", encode=codes)
     # What a sized network's parts must be rated for (``studies.size``; None in a plain check):
     # the worst stage voltage and the resistor's power over the derating, the capacitors' loss
     # in the damping resistors. In the JSON of ``size`` (its ``grading.ratings``), not here.
@@ -90,7 +92,7 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
     nominal_share = design.duty.reverse_voltage / layout.series
     static_worst = checks["static"].worst_voltage if checks["static"].ran else float("nan")
     worst_any, worst_check = worst_stage_voltage(checks)
-    seen = f"{_q(worst_any, 'V')} at worst ({_CHECK_WORDS.get(worst_check, worst_check)})"
+    seen = {"voltage": Value(worst_any, "V"), "check": Value(worst_check)}
     problems, advisories = [], []
 
     power_continuous = power_duty = total_loss = grading_current = None
@@ -102,17 +104,16 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
         grading_current = nominal_share / grading.resistor
         if grading.resistor_rated_power is not None and exceeds_limit(power_duty,
                                                                     grading.resistor_rated_power):
-            problems.append(f"grading resistor dissipates {_q(power_duty, 'W')} at the worst static "
-                            f"voltage, above its rating of {_q(grading.resistor_rated_power, 'W')}")
+            problems.append(Finding("rating.resistor_power", {"power": Value(power_duty, "W")},
+                                    Value(grading.resistor_rated_power, "W")))
         if grading.resistor_rated_voltage is not None and exceeds_limit(
                 worst_any, grading.resistor_rated_voltage):
-            problems.append(f"grading resistor sees {seen}, above its working-voltage rating of "
-                            f"{_q(grading.resistor_rated_voltage, 'V')}")
+            problems.append(Finding("rating.resistor_voltage", seen,
+                                    Value(grading.resistor_rated_voltage, "V")))
         if grading.resistor_rated_power is None:
-            advisories.append("grading.resistor_rated_power not given: resistor power not checked")
+            advisories.append(Finding("advisory.resistor_rated_power_missing"))
         if grading.resistor_rated_voltage is None:
-            advisories.append("grading.resistor_rated_voltage not given: resistor working voltage "
-                              "not checked")
+            advisories.append(Finding("advisory.resistor_rated_voltage_missing"))
 
     hottest_leakage = 0.0
     # With a mix, every part that can stand at a position (StringLayout.part_grids).
@@ -129,13 +130,13 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
                                               voltage_exponent=part.voltage_exponent))
                 hottest_leakage = max(hottest_leakage, value)
     if grading_current is not None and grading_current < GRADING_CURRENT_MULTIPLE * hottest_leakage:
-        advisories.append(
-            f"grading current {_q(grading_current, 'A')} is less than "
-            f"{GRADING_CURRENT_MULTIPLE:g} x the hottest maximum leakage "
-            f"({_q(hottest_leakage, 'A')}); several times is common practice")
+        advisories.append(Finding(
+            "advisory.grading_current_low",
+            {"current": Value(grading_current, "A"), "leakage": Value(hottest_leakage, "A"),
+             "multiple": Value(GRADING_CURRENT_MULTIPLE)},
+            Value(GRADING_CURRENT_MULTIPLE * hottest_leakage, "A")))
     if grading.resistor is None:
-        advisories.append("no grading resistors: static sharing rests on the leakage alone and the "
-                          "stack has no bleed path for stored charge")
+        advisories.append(Finding("advisory.no_grading_resistors"))
 
     stage_energy = total_energy = None
     capacitance = junction_capacitance + (grading.capacitor or 0.0)
@@ -143,24 +144,20 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
         stage_energy = float(stored_energy(grading.capacitor, worst_any))
         if grading.capacitor_rated_voltage is not None and exceeds_limit(
                 worst_any, grading.capacitor_rated_voltage):
-            problems.append(f"grading capacitor sees {seen}, above its rating of "
-                            f"{_q(grading.capacitor_rated_voltage, 'V')}")
+            problems.append(Finding("rating.capacitor_voltage", seen,
+                                    Value(grading.capacitor_rated_voltage, "V")))
         if grading.capacitor_rated_voltage is None:
-            advisories.append("grading.capacitor_rated_voltage not given: capacitor voltage not "
-                              "checked")
+            advisories.append(Finding("advisory.capacitor_rated_voltage_missing"))
         if grading.damping_resistor is None:
-            advisories.append("grading.damping_resistor not given: an undamped grading capacitor "
-                              "rings with the stray inductance and discharges into the device at "
-                              "turn-on")
+            advisories.append(Finding("advisory.damping_resistor_missing"))
     total_energy = float(np.sum(stored_energy(capacitance, nominal_share)))
     resistances = np.full(layout.series, np.inf if grading.resistor is None else grading.resistor)
     time = float(np.max([discharge_time(np.full(layout.series, nominal_share), resistances,
                                         capacitance[branch]) for branch in range(layout.parallel)]))
     if time > SAFE_DISCHARGE_TIME:
-        advisories.append(f"the stack takes {_q(time, 's')} to fall below {SAFE_VOLTAGE:g} V through "
-                          f"its grading resistors, longer than the {SAFE_DISCHARGE_TIME:g} s of "
-                          "IEC 60204-1:2016 clause 6.2.4: provide a discharge device or earthing "
-                          "stick")
+        advisories.append(Finding("advisory.slow_discharge",
+                                  {"time": Value(time, "s"), "voltage": Value(SAFE_VOLTAGE, "V")},
+                                  Value(SAFE_DISCHARGE_TIME, "s")))
     return GradingSummary(
         resistor=grading.resistor, capacitor=grading.capacitor,
         damping_resistor=grading.damping_resistor, worst_stage_voltage=worst_any,

@@ -67,9 +67,14 @@ def numbers_by_key(values: dict[str, float]) -> dict[str, float | None]:
 
 
 def estimate_keys(estimate: FailureEstimate) -> dict[str, Any]:
-    """The plain estimate's keys: failures, p_fail and its exact interval p_fail_ci [low, high]."""
+    """The plain estimate's keys: failures, p_fail and its exact interval p_fail_ci [low, high],
+    and its convergence figures: p_fail_relative_error (the relative standard error [1], null
+    with no failure seen) and trials_for_relative_error (trials for a relative error of
+    ``WANTED_RELATIVE_ERROR``, null with no failure seen)."""
     return {"failures": estimate.failures, "p_fail": estimate.p_fail,
-            "p_fail_ci": [estimate.ci_low, estimate.ci_high]}
+            "p_fail_ci": [estimate.ci_low, estimate.ci_high],
+            "p_fail_relative_error": json_number(estimate.relative_error),
+            "trials_for_relative_error": estimate.trials_for_wanted_error}
 
 
 def runaway_keys(estimate: FailureEstimate) -> dict[str, Any]:
@@ -100,7 +105,8 @@ def rare_to_dict(rare: RareEstimate | None) -> dict[str, Any] | None:
             "coverage_assured": rare.coverage_assured,
             "importance": [{"input": item.input, "share": item.share, "branch": item.branch,
                             "index": item.index, "sign": item.sign}
-                           for item in rare.importance]}
+                           for item in rare.importance],
+            "failures": rare.failures}
 
 
 def drivers_to_list(drivers) -> list[dict[str, Any]]:

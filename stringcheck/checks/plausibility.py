@@ -4,8 +4,9 @@ A design can be valid and still say something no engineer meant: a string voltag
 (volts) where 50 kV was meant, a turn-off slope of 50 A/s where 50 A/us was meant, a leakage maximum a
 thousand times its typical value (uA against mA), a target that lets one stack in five fail. None of
 these is an error (an unusual design may mean it), and each runs without complaint; so each gives a
-warning, a ``(key, message)`` pair that the check carries into its result, the report shows near
-the verdict and the JSON lists under ``warnings``. Thresholds sit orders of magnitude from ordinary
+warning, a design-file key and a finding (``checks.findings``: a code, the values, the limit) that
+the check carries into its result; the report words it (``report.wording``) near the verdict and
+the JSON lists it under ``warnings``. Thresholds sit orders of magnitude from ordinary
 designs (common practice for the values named; no standard sets them), so that a warning is rare
 and worth reading.
 """
@@ -15,8 +16,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from stringcheck.design.model import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, SPREAD_UNITS, Design
-from stringcheck.units import format_quantity
+from stringcheck.checks.findings import Finding, Value
+from stringcheck.design.model import SPREAD_PARAMETERS, SPREAD_UNITS, Design
 
 # The nominal share V_s / n below this fraction of a device's V_RRM: two orders of magnitude below
 # the rating, where real stacks run at some 30 to 80 % of it (common practice).
@@ -46,10 +47,11 @@ COLDEST_AMBIENT = -60.0
 
 @dataclass(frozen=True)
 class PlausibilityWarning:
-    """One value that is valid but probably not what was meant: the design-file key and why."""
+    """One value that is valid but probably not what was meant: the design-file key and what was
+    found (``report.wording`` says it in words)."""
 
     key: str
-    message: str
+    finding: Finding
 
 
 def plausibility_warnings(design: Design, *,
@@ -68,29 +70,27 @@ def plausibility_warnings(design: Design, *,
     found += _string_voltage(design)
     found += _turn_off_slopes(design)
     if design.duty.ambient < COLDEST_AMBIENT:
-        found.append(PlausibilityWarning("duty.ambient", (
-            f"{design.duty.ambient:g} degC is colder than {COLDEST_AMBIENT:g} degC, below what "
-            "power devices and grading components are commonly rated for; check the sign and "
-            "the unit (a bare number is degC)")))
+        found.append(PlausibilityWarning("duty.ambient", Finding(
+            "plausibility.ambient_cold", {"ambient": Value(design.duty.ambient, "degC")},
+            Value(COLDEST_AMBIENT, "degC"))))
     found += _spreads(design)
     if (grading_loss is not None and math.isfinite(grading_loss)
             and grading_loss >= LARGE_GRADING_LOSS and design.grading.resistor_rated_power is None):
-        found.append(PlausibilityWarning("grading.resistor", (
-            f"the grading resistors of {format_quantity(design.grading.resistor, 'ohm')} "
-            f"dissipate {format_quantity(grading_loss, 'W')} in all at the nominal share, and no "
-            "grading.resistor_rated_power is given to check it; a unit slip in the resistance "
-            "(a bare number is ohms: write e.g. \"4.7 MOhm\")?")))
+        found.append(PlausibilityWarning("grading.resistor", Finding(
+            "plausibility.grading_loss_large", {"resistor": Value(design.grading.resistor, "ohm"),
+                                                "loss": Value(grading_loss, "W")},
+            Value(LARGE_GRADING_LOSS, "W"))))
     confidence = design.monte_carlo.confidence
     if confidence < MIN_CONFIDENCE:
-        found.append(PlausibilityWarning("monte_carlo.confidence", (
-            f"{confidence:g}: an upper bound at less than {MIN_CONFIDENCE:.0%} confidence lies "
-            "below the best estimate of P(fail) more often than not, so a pass vouches for "
-            "little; 0.95 is usual")))
+        found.append(PlausibilityWarning("monte_carlo.confidence", Finding(
+            "plausibility.confidence_low", {"confidence": Value(confidence)},
+            Value(MIN_CONFIDENCE))))
     target = design.sizing.target_p_fail
     if target > MAX_TARGET_P_FAIL:
-        found.append(PlausibilityWarning("sizing.target_p_fail", (
-            f"{target:g} lets more than one built stack in ten fail; targets are usually 1e-3 "
-            f"to 1e-6 (was a percentage meant? {target:g} % is {target / 100:g})")))
+        found.append(PlausibilityWarning("sizing.target_p_fail", Finding(
+            "plausibility.target_high",
+            {"target": Value(target), "as_percent": Value(target / 100)},
+            Value(MAX_TARGET_P_FAIL))))
     return tuple(found)
 
 
@@ -102,12 +102,12 @@ def _string_voltage(design: Design) -> list[PlausibilityWarning]:
     if share >= MIN_SHARE_OF_RATING * ratings[weakest]:
         return []
     voltage = design.duty.reverse_voltage
-    return [PlausibilityWarning("duty.reverse_voltage", (
-        f"{format_quantity(voltage, 'V')} across {layout.series} devices in series is "
-        f"{format_quantity(share, 'V')} per device, {100 * share / ratings[weakest]:.2g} % of the V_RRM "
-        f"of part '{weakest}' ({format_quantity(ratings[weakest], 'V')}): orders of magnitude "
-        f"below any rating; a bare number is volts (write \"{voltage:g} kV\" if kilovolts were "
-        "meant)"))]
+    return [PlausibilityWarning("duty.reverse_voltage", Finding(
+        "plausibility.string_voltage_low",
+        {"voltage": Value(voltage, "V"), "series": Value(layout.series),
+         "share": Value(share, "V"), "percent": Value(100 * share / ratings[weakest]),
+         "part": Value(weakest), "rating": Value(ratings[weakest], "V")},
+        Value(MIN_SHARE_OF_RATING * ratings[weakest], "V")))]
 
 
 def _turn_off_slopes(design: Design) -> list[PlausibilityWarning]:
@@ -121,7 +121,8 @@ def _turn_off_slopes(design: Design) -> list[PlausibilityWarning]:
         threshold = min(threshold, 0.1 * 2.0 * math.pi * duty.frequency * peak)
     found = []
     if duty.di_dt is not None and duty.di_dt < threshold:
-        found.append(PlausibilityWarning("duty.di_dt", _slope_text(duty.di_dt, "turn-off slope")))
+        found.append(PlausibilityWarning("duty.di_dt", _slope("plausibility.slow_turn_off_slope",
+                                                              duty.di_dt, threshold)))
     for name in design.parts_used():
         part = design.parts[name]
         for parameter in ("q_rr", "i_rm", "t_rr"):
@@ -129,14 +130,13 @@ def _turn_off_slopes(design: Design) -> list[PlausibilityWarning]:
             if spread is not None and spread.at_di_dt is not None and spread.at_di_dt < SLOW_DI_DT:
                 found.append(PlausibilityWarning(
                     f"parts.{name}.{parameter}.at_di_dt",
-                    _slope_text(spread.at_di_dt, "datasheet test di/dt")))
+                    _slope("plausibility.slow_test_di_dt", spread.at_di_dt, SLOW_DI_DT)))
     return found
 
 
-def _slope_text(value: float, what: str) -> str:
-    return (f"a {what} of {value:g} A/s ({value * 1e-6:.3g} A/us) is orders of magnitude slower "
-            "than any commutation (1 to 1000 A/us is usual); a bare number is A/s: write "
-            f"\"{value:g} A/us\" if that was meant")
+def _slope(code: str, value: float, threshold: float) -> Finding:
+    return Finding(code, {"slope": Value(value, "A/s"),
+                          "slope_per_us": Value(value * 1e-6, "A/us")}, Value(threshold, "A/s"))
 
 
 def _spreads(design: Design) -> list[PlausibilityWarning]:
@@ -148,32 +148,18 @@ def _spreads(design: Design) -> list[PlausibilityWarning]:
             if spread is None or spread.typ <= 0:
                 continue
             ratio = SPREAD_RATIO[parameter]
-            what = "leakage" if parameter == "i_r" else parameter
             unit = SPREAD_UNITS[parameter].label
             if spread.high is not None and spread.high >= ratio * spread.typ:
-                found.append(PlausibilityWarning(f"parts.{name}.{parameter}", (
-                    f"the maximum {what} {format_quantity(spread.high, unit)} is "
-                    f"{_times(spread.high / spread.typ)} its typical value "
-                    f"{format_quantity(spread.typ, unit)}" + _typ_note(spread.typ_assumed)
-                    + f"; limits sit within {_within(parameter)} of typ: check the units of both")))
+                found.append(PlausibilityWarning(f"parts.{name}.{parameter}", Finding(
+                    "plausibility.max_far_above_typ",
+                    {"parameter": Value(parameter), "high": Value(spread.high, unit),
+                     "typ": Value(spread.typ, unit), "ratio": Value(spread.high / spread.typ),
+                     "typ_assumed": Value(int(spread.typ_assumed))},
+                    Value(ratio))))
             if spread.low is not None and 0 < spread.low and spread.typ >= ratio * spread.low:
-                found.append(PlausibilityWarning(f"parts.{name}.{parameter}", (
-                    f"the typical {what} {format_quantity(spread.typ, unit)} is "
-                    f"{_times(spread.typ / spread.low)} its minimum "
-                    f"{format_quantity(spread.low, unit)}; limits sit within "
-                    f"{_within(parameter)} of typ: check the units of both")))
+                found.append(PlausibilityWarning(f"parts.{name}.{parameter}", Finding(
+                    "plausibility.typ_far_above_min",
+                    {"parameter": Value(parameter), "typ": Value(spread.typ, unit),
+                     "low": Value(spread.low, unit), "ratio": Value(spread.typ / spread.low)},
+                    Value(ratio))))
     return found
-
-
-def _times(ratio: float) -> str:
-    return f"{ratio:,.0f} x" if ratio < 1e9 else f"{ratio:.2g} x"
-
-
-def _typ_note(assumed: bool) -> str:
-    return " (typ assumed from the max)" if assumed else ""
-
-
-def _within(parameter: str) -> str:
-    return "about a decade" if parameter == "i_r" else (
-        "a factor of 2 or 3" if parameter in LOGNORMAL_PARAMETERS else "some tens of percent")
-

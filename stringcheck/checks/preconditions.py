@@ -11,6 +11,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from stringcheck.checks.findings import Finding, Value
 from stringcheck.constants import RESISTOR_TCR_REFERENCE
 from stringcheck.design.model import Design, Spread
 from stringcheck.errors import DesignError
@@ -61,18 +62,19 @@ def with_recovery_charge(design: Design) -> Design:
     return replace(design, parts=parts, assumptions=design.assumptions + tuple(notes))
 
 
-def impossibility(design: Design) -> str | None:
-    """Why no built string can pass whatever is drawn (with the arithmetic), or None. With a mix
-    each position counts with the best of the parts that can stand there."""
+def impossibility(design: Design) -> tuple[Finding, ...]:
+    """Why no built string can pass whatever is drawn, as findings with the arithmetic's figures
+    (empty when it can). With a mix each position counts with the best of the parts that can
+    stand there."""
     layout = design.string
     reasons = []
     capacity = layout.derating * position_values(design, lambda p: p.v_rrm, pick=np.maximum)
     weakest = float(capacity.sum(axis=1).min())
     if design.duty.reverse_voltage > weakest:
-        reasons.append(
-            f"the string cannot hold {design.duty.reverse_voltage:g} V even with perfect "
-            f"sharing: the sum of derating x V_RRM over the {layout.series} devices of a branch "
-            f"is {weakest:g} V (derating {layout.derating:g})")
+        reasons.append(Finding(
+            "impossible.string_voltage",
+            {"voltage": Value(design.duty.reverse_voltage, "V"), "series": Value(layout.series),
+             "derating": Value(layout.derating)}, Value(weakest, "V")))
     current = design.duty.forward_current
     if current is not None and all(design.parts[n].i_fav is not None for n in design.parts_used()):
         # A branch carries no more than its weakest device's I_F(AV); perfect sharing at best
@@ -80,11 +82,10 @@ def impossibility(design: Design) -> str | None:
         ratings = position_values(design, lambda p: p.i_fav, pick=np.maximum)
         group = float(ratings.min(axis=1).sum())
         if current > group:
-            reasons.append(
-                f"the group cannot carry {current:g} A average even with perfect sharing: the "
-                f"{layout.parallel} branch(es) together are rated {group:g} A (the sum over the "
-                "branches of the weakest device's i_fav)")
-    return "; ".join(reasons) if reasons else None
+            reasons.append(Finding("impossible.group_current",
+                                   {"current": Value(current, "A"),
+                                    "parallel": Value(layout.parallel)}, Value(group, "A")))
+    return tuple(reasons)
 
 
 def model_assumptions(design: Design, rescaling_note: str) -> tuple[str, ...]:

@@ -66,7 +66,8 @@ class SeriesCheck(CheckOutcome):
     """The outcome of a series check (static or dynamic) over the whole run."""
 
     json_order = ("passed", "worst_voltage", "worst_ratio", "p50_ratio", "p99_ratio", "failures",
-                  "unsolved", "p_fail", "p_fail_ci", "worst_trial", "rare", "positions")
+                  "unsolved", "p_fail", "p_fail_ci", "p_fail_relative_error",
+                  "trials_for_relative_error", "worst_trial", "rare", "positions")
 
     worst_voltage: float = figure(unit="V", encode=json_number, idle=math.nan)
     worst_string: np.ndarray = figure(None, unit="V", idle_factory=lambda: np.empty((0, 0)))

@@ -91,7 +91,8 @@ class TransientCheck(CheckOutcome):
     """Outcome of the transient check (voltages [V], currents [A], energies [J])."""
 
     json_order = ("passed", "worst_voltage", "overshoot", "worst_ratio", "p50_ratio", "p99_ratio",
-                  "failures", "p_fail", "p_fail_ci", "unsolved", "worst_trial", "sampled",
+                  "failures", "p_fail", "p_fail_ci", "p_fail_relative_error",
+                  "trials_for_relative_error", "unsolved", "worst_trial", "sampled",
                   "worst_simulated", "simulated", "worst_failures", "peak_recovery_current",
                   "damping_energy", "inductance", "forward_current", "turn_off_current",
                   "notes", "rare", "positions")

@@ -42,6 +42,7 @@ from stringcheck.cli.options import (
     TransientWorst,
     Trials,
     Workers,
+    option_wording,
 )
 from stringcheck.cli.progress import DelayedProgress, StepSpinner
 from stringcheck.errors import StringcheckError
@@ -155,7 +156,8 @@ def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capaci
         result = run_size(design, trials=trials, seed=seed, resistor_series=resistor_series,
                           capacitor_series=capacitor_series, find_series=find_series,
                           progress=progress, workers=workers, transient=transient)
-    outputs = [] if json_path is None else [(json_path, json_text(sizing_to_dict(result)))]
+    outputs = [] if json_path is None else [
+        (json_path, json_text(sizing_to_dict(result, spell=option_wording)))]
     shown_on = console(stderr=json_path == "-", wrap=not quiet)
     with output_files.atomic_outputs(outputs), output_files.report_stream(json_path == "-"):
         if quiet:
@@ -167,7 +169,7 @@ def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capaci
                            + f", n = {result.series_count}; ", end="")
             render_check_summary(result.check, shown_on)
         else:
-            render_sizing(result, shown_on)
+            render_sizing(result, shown_on, spell=option_wording)
     return EXIT_PASS if result.check.verdict == "pass" else EXIT_FAIL
 
 

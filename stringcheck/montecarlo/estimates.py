@@ -37,7 +37,12 @@ __all__ = [
     "merge_moments",
     "trials_for_relative_error",
     "trials_for_upper_bound",
+    "WANTED_RELATIVE_ERROR",
 ]
+
+# Relative standard error of a plain P(fail) estimate the report asks for (10 %): with fewer trials
+# it says how many more would give it (``FailureEstimate.trials_for_wanted_error``).
+WANTED_RELATIVE_ERROR = 0.1
 
 
 def _plain(array: NDArray) -> NDArray | float | int:
@@ -150,7 +155,9 @@ class FailureEstimate:
     confidence
         Two-sided confidence level of the interval.
 
-    Fields are Python numbers for scalar counts and numpy arrays for arrays of counts.
+    Fields are Python numbers for scalar counts and numpy arrays for arrays of counts. The
+    convergence figures (:attr:`relative_error`, :attr:`trials_for_wanted_error`) are properties
+    computed from the counts, so the report and the JSON read the same numbers.
     """
 
     failures: int | NDArray[np.int64]
@@ -167,6 +174,47 @@ class FailureEstimate:
         It is also the one-sided upper bound at confidence ``(1 + confidence) / 2``.
         """
         return self.ci_high
+
+    @property
+    def relative_error(self) -> float | NDArray[np.float64]:
+        """Relative standard error of ``p_fail``, ``sqrt((1 - p) / (n p))`` [1].
+
+        ``inf`` where no failure was seen (the point estimate 0 has no relative precision: the
+        upper bound is what the run knows), 0 where every trial failed.
+
+        Notes
+        -----
+        The count of failures is binomial, so ``k / n`` has variance ``p (1 - p) / n``; divided
+        by ``p`` its standard deviation is ``sqrt((1 - p) / (n p))`` (W. Feller, An Introduction
+        to Probability Theory and Its Applications, vol. 1, 3rd ed., Wiley 1968, ch. VI, from
+        memory).
+        """
+        p = np.asarray(self.p_fail, dtype=np.float64)
+        n = np.asarray(self.trials, dtype=np.float64)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            # Written as standard error / p, the way the report has always formed it.
+            relative = np.where(p > 0.0, np.sqrt(p * (1.0 - p) / n) / np.where(p > 0.0, p, 1.0),
+                                np.inf)
+        return _plain(relative)
+
+    @property
+    def trials_for_wanted_error(self) -> int | None:
+        """Trials a plain run would need for :data:`WANTED_RELATIVE_ERROR` at this ``p_fail``
+        (:func:`trials_for_relative_error`) [1]; None where no failure was seen (scalar counts
+        only)."""
+        if np.ndim(self.p_fail) != 0:
+            raise TypeError("trials_for_wanted_error is defined for scalar counts only")
+        if self.p_fail <= 0.0:
+            return None
+        return trials_for_relative_error(self.p_fail, WANTED_RELATIVE_ERROR)
+
+    @property
+    def needs_more_trials(self) -> bool:
+        """Whether the run knows P(fail) less precisely than :data:`WANTED_RELATIVE_ERROR`
+        while having seen some but not only failures (scalar counts only)."""
+        if self.failures == 0 or self.failures == self.trials:
+            return False
+        return self.relative_error > WANTED_RELATIVE_ERROR
 
 
 def failure_estimate(

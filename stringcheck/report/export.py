@@ -6,19 +6,24 @@ Writing the texts to files is the command line's job (``stringcheck.cli.output_f
 from __future__ import annotations
 
 import json
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, Callable
 
+from stringcheck.checks.findings import codes
+from stringcheck.checks.grading_ratings import GradingSummary
 from stringcheck.checks.outcome import CheckOutcome, json_number
 from stringcheck.checks.series import SERIES_CHECKS
 from stringcheck.studies.check import SCHEMA_VERSION, CheckResult
 from stringcheck.report.cautions import safety_cautions
 from stringcheck.report.lots import lots_to_list
+from stringcheck.errors import Setting
+from stringcheck.report.wording import impossibility_text, sentence, sentences
 
 if TYPE_CHECKING:
     from stringcheck.studies.size import SizingResult
 
-__all__ = ["SCHEMA_VERSION", "check_to_dict", "json_text", "positions_csv", "result_to_dict",
-           "sizing_to_dict", "write_files_atomic", "write_text_atomic"]
+__all__ = ["SCHEMA_VERSION", "check_to_dict", "json_text", "network_to_dict", "positions_csv",
+           "result_to_dict", "sizing_to_dict", "warnings_to_list", "write_files_atomic",
+           "write_text_atomic"]
 
 
 def check_to_dict(check: CheckOutcome) -> dict[str, Any]:
@@ -35,7 +40,13 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
     grading = result.grading
     out: dict[str, Any] = {}
     for key, value in data.items():
+        if key == "impossible_codes":
+            out["impossible"] = impossibility_text(result.impossible)
         out[key] = value
+        if key == "network" and value is not None:
+            out[key] = network_to_dict(grading)
+        if key == "warnings":
+            out[key] = warnings_to_list(result.warnings)
         if key == "drivers":
             out["lots"] = lots_to_list(design)
     out.setdefault("lots", lots_to_list(design))
@@ -44,6 +55,25 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
                                       total_energy=grading.total_energy,
                                       discharge_time=grading.discharge_time)
     return out
+
+
+def network_to_dict(grading: GradingSummary) -> dict[str, Any]:
+    """The grading network's JSON (``network``): its own ``to_dict()`` with the sentences of its
+    findings (``rating_problems``, ``advisories``, ``report.wording``) before their codes."""
+    out: dict[str, Any] = {}
+    for key, value in grading.to_dict().items():
+        if key == "rating_problem_codes":
+            out["rating_problems"] = sentences(grading.rating_problems)
+        elif key == "advisory_codes":
+            out["advisories"] = sentences(grading.advisories)
+        out[key] = value
+    return out
+
+
+def warnings_to_list(warnings) -> list[dict[str, str]]:
+    """The plausibility warnings' JSON: {key, message (``report.wording``), code} each."""
+    return [{"key": warning.key, "message": sentence(warning.finding),
+             "code": warning.finding.code} for warning in warnings]
 
 
 def positions_csv(result: CheckResult) -> str:
@@ -69,8 +99,10 @@ def json_text(data: dict[str, Any]) -> str:
     return json.dumps(data, indent=2, allow_nan=False) + "\n"
 
 
-def sizing_to_dict(result: "SizingResult") -> dict[str, Any]:
-    """The result of ``size``: the check of the sized design plus ``grading`` (SI units)."""
+def sizing_to_dict(result: "SizingResult", *,
+                   spell: Callable[[Setting], str] = str) -> dict[str, Any]:
+    """The result of ``size``: the check of the sized design plus ``grading`` (SI units); a
+    setting its advisories name is spelled by ``spell`` (``report.wording.sentence``)."""
     data = result_to_dict(result.check)
     ratings = result.ratings
 
@@ -117,6 +149,7 @@ def sizing_to_dict(result: "SizingResult") -> dict[str, Any]:
             "total_energy": json_number(ratings.total_energy),
             "discharge_time": json_number(ratings.discharge_time),
         },
-        "advisories": list(result.advisories),
+        "advisories": sentences(result.advisories, spell=spell),
+        "advisory_codes": codes(result.advisories),
     }
     return data

@@ -18,6 +18,7 @@ from stringcheck.report.display_text import shown
 from stringcheck.report.export import result_to_dict
 from stringcheck.report.lots import render_lots
 from stringcheck.report.terminal import render_warnings
+from stringcheck.report.wording import sentence
 
 
 def review_to_dict(result: ReviewResult) -> dict[str, Any]:
@@ -138,8 +139,8 @@ def _render_warnings(result: ReviewResult, console: Console) -> None:
     """Each design's plausibility warnings, those of the candidate only where they differ."""
     shown = set()
     for label, checked in (("baseline", result.baseline), ("candidate", result.candidate)):
-        fresh = [w for w in checked.warnings if (w.key, w.message) not in shown]
-        shown.update((w.key, w.message) for w in fresh)
+        fresh = [w for w in checked.warnings if (w.key, sentence(w.finding)) not in shown]
+        shown.update((w.key, sentence(w.finding)) for w in fresh)
         render_warnings(fresh, console, label=f" ({label})")
 
 

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Callable
 
 from rich.console import Console
 from rich.panel import Panel
@@ -11,8 +11,9 @@ from rich.table import Table
 from rich.text import Text
 
 from stringcheck.constants import SAFE_VOLTAGE
+from stringcheck.errors import Setting
 from stringcheck.units import format_quantity
-from stringcheck.montecarlo.estimates import trials_for_relative_error
+from stringcheck.montecarlo.estimates import WANTED_RELATIVE_ERROR
 from stringcheck.studies.check import CheckResult
 from stringcheck.checks.forward import ParallelCheck, ThermalCheck
 from stringcheck.checks.series import DynamicCheck, SeriesCheck
@@ -20,6 +21,7 @@ from stringcheck.report.cautions import safety_cautions
 from stringcheck.report.display_text import shown
 from stringcheck.checks.transient import TransientCheck
 from stringcheck.report.lots import render_lots
+from stringcheck.report.wording import impossibility_text, sentence, sentences
 from stringcheck.report.check_sections import (
     failure_point_text,
     render_drivers,
@@ -118,7 +120,8 @@ def render_check(result: CheckResult, console: Console) -> None:
     else:
         console.print(Text(" VERDICT: FAIL ", style="bold white on red"), _fail_reason(result))
     if result.impossible:
-        console.print(Text(f"Impossible design: {result.impossible}.", style="bold red"))
+        console.print(Text(f"Impossible design: {impossibility_text(result.impossible)}.",
+                           style="bold red"))
     render_warnings(result.warnings, console)
     console.print()
 
@@ -182,27 +185,21 @@ def render_check(result: CheckResult, console: Console) -> None:
 def render_warnings(warnings, console: Console, *, label: str = "") -> None:
     """The plausibility warnings, one line each (nothing when there are none)."""
     for warning in warnings:
-        console.print(Text(f"warning{label}: {warning.key}: {warning.message}", style="bold yellow"),
+        console.print(Text(f"warning{label}: {warning.key}: {sentence(warning.finding)}",
+                           style="bold yellow"),
                       highlight=False)
-
-
-WANTED_RELATIVE_ERROR = 0.1  # relative standard error of P(fail) the report asks for
 
 
 def _convergence_note(check) -> str:
     """How precisely the plain Monte Carlo run knows P(fail), when it is too short for 10 %
-    (pointing to --rare unless it ran)."""
+    (pointing to --rare unless it ran); the figures are the estimate's own."""
     estimate = check.estimate
-    if estimate is None or estimate.failures == 0 or estimate.failures == estimate.trials:
+    if estimate is None or not estimate.needs_more_trials:
         return ""
-    p = estimate.p_fail
-    relative = math.sqrt(p * (1 - p) / estimate.trials) / p
-    if relative <= WANTED_RELATIVE_ERROR:
-        return ""
-    needed = trials_for_relative_error(p, WANTED_RELATIVE_ERROR)
     failures = f"{estimate.failures:,} failure" + ("" if estimate.failures == 1 else "s")
     return (f"{check.name}: {failures} in {estimate.trials:,} trials know "
-            f"P(fail) to +-{relative:.0%} (standard error); about {needed:,} trials would give "
+            f"P(fail) to +-{estimate.relative_error:.0%} (standard error); about "
+            f"{estimate.trials_for_wanted_error:,} trials would give "
             f"+-{WANTED_RELATIVE_ERROR:.0%}" + ("" if check.rare is not None
                                                 else ", or use --rare"))
 
@@ -225,7 +222,7 @@ def _fail_reason(result: CheckResult) -> str:
     transient = result.checks.get("transient")
     if transient is not None and not transient.ran:
         reasons.append(f"the requested transient check could not run ({transient.reason})")
-    reasons += list(result.grading.rating_problems)
+    reasons += sentences(result.grading.rating_problems)
     short = [name for name, check in result.checks.items()
              if check.ran and check.estimate.failures == 0 and not check.passed
              and _deciding_rare(check) is None]
@@ -313,9 +310,9 @@ def _render_network(result: CheckResult, console: Console) -> None:
     for row in rows:
         table.add_row(*row)
     console.print(table)
-    for problem in grading.rating_problems:
+    for problem in sentences(grading.rating_problems):
         console.print(Text(f"  RATING EXCEEDED: {shown(problem)}", style="bold red"))
-    for advisory in grading.advisories:
+    for advisory in sentences(grading.advisories):
         console.print(Text(f"  advisory: {shown(advisory)}", style="yellow"))
     console.print()
 
@@ -365,14 +362,16 @@ def render_check_summary(result: CheckResult, console: Console) -> None:
                          f"{bound:.2g} vs target {result.target_p_fail:g}{worst})")
         else:
             parts.append(f"{name} not run")
-    if result.impossible is not None:
+    if result.impossible:
         parts.append("impossible design")
     console.print(f"{result.verdict}: " + ", ".join(parts), highlight=False)
     render_warnings(result.warnings, console)
 
 
-def render_sizing(result: "SizingResult", console: Console) -> None:
-    """Print the proposed grading network, the evidence for each value, ratings and cautions."""
+def render_sizing(result: "SizingResult", console: Console, *,
+                  spell: Callable[[Setting], str] = str) -> None:
+    """Print the proposed grading network, the evidence for each value, ratings and cautions (a
+    setting the advisories name spelled by ``spell``, ``report.wording.sentence``)."""
     design = result.design
     ratings = result.ratings
     console.print(Panel(Text.assemble(
@@ -456,7 +455,7 @@ def render_sizing(result: "SizingResult", console: Console) -> None:
     for row in rows:
         ratings_table.add_row(*row)
     console.print(ratings_table)
-    for advisory in result.advisories:
+    for advisory in sentences(result.advisories, spell=spell):
         console.print(Text(f"  advisory: {advisory}", style="yellow"))
     console.print()
     console.print(Text("Check of the sized design", style="bold underline"))

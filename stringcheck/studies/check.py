@@ -22,6 +22,7 @@ import numpy as np
 
 from stringcheck.design.model import Design
 from stringcheck.errors import DesignError, Setting
+from stringcheck.checks.findings import Finding, codes
 from stringcheck.checks.outcome import CheckOutcome, Exported, figure, listed, positions_frame
 from stringcheck.checks.outcome import drivers_to_list, record_or_null
 from stringcheck.checks.plausibility import PlausibilityWarning, plausibility_warnings
@@ -123,21 +124,25 @@ def _design_to_dict(design: Design) -> dict[str, Any]:
 
 
 def _warnings_to_list(warnings) -> list[dict[str, str]]:
-    """The plausibility warnings as JSON objects {key, message}."""
-    return [{"key": warning.key, "message": warning.message} for warning in warnings]
+    """The plausibility warnings as JSON objects {key, code} (``report.export`` adds each one's
+    ``message``, in words)."""
+    return [{"key": warning.key, "code": warning.finding.code} for warning in warnings]
 
 
 @dataclass(frozen=True, eq=False, kw_only=True, repr=False)
 class CheckResult(Exported):
     """Everything ``stringcheck check`` found.
 
-    ``to_dict()`` is the JSON result without the two sections the report writes in words
-    (``lots`` and ``cautions``; ``report.export.result_to_dict`` adds them); ``to_frame()`` the
-    per-position figures of every check that ran, one row per check and position.
+    ``to_dict()`` is the JSON result without what the report writes in words (the sections
+    ``lots`` and ``cautions``, and the sentences of the findings: ``impossible``, the network's
+    ``rating_problems`` and ``advisories`` and each warning's ``message``, whose codes it gives;
+    ``report.export.result_to_dict`` adds them);
+    ``to_frame()`` the per-position figures of every check that ran, one row per check and
+    position.
     """
 
     json_order = ("schema", "design", "trials", "seed", "confidence", "target_p_fail",
-                  "trials_needed", "verdict", "impossible", "checks", "skipped", "network",
+                  "trials_needed", "verdict", "impossible_codes", "checks", "skipped", "network",
                   "drivers", "assumptions", "no_scatter", "warnings")
 
     design: Design = figure(encode=_design_to_dict)
@@ -148,7 +153,9 @@ class CheckResult(Exported):
     checks: Mapping[str, CheckOutcome] = figure(encode=_checks_to_dict)
     grading: GradingSummary = figure("network", encode=record_or_null)
     verdict: str = figure()
-    impossible: str | None = figure()
+    # Why no built string can pass (findings; empty when it can): their codes here, the text
+    # (``impossible``) written beside them by report.export.
+    impossible: tuple[Finding, ...] = figure("impossible_codes", encode=codes)
     assumptions: tuple[str, ...] = figure(encode=listed)
     no_scatter: tuple[str, ...] = figure(encode=listed)
     drivers: tuple[Driver, ...] = figure(encode=drivers_to_list, default=())
@@ -271,7 +278,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     passed = all(check.passed for check in checks.values() if check.ran)
     # A check the user asked for that could not run never lets the design pass.
     requested_missing = transient and not checks["transient"].ran
-    verdict = "pass" if passed and impossible is None and not grading.rating_problems \
+    verdict = "pass" if passed and not impossible and not grading.rating_problems \
         and not requested_missing else "fail"
     return CheckResult(design=design, trials=trials, seed=seed, target_p_fail=target,
                        trials_needed=trials_for_upper_bound(target, confidence=confidence),

@@ -34,6 +34,7 @@ from stringcheck.physics.leakage import leakage_current
 from stringcheck.units import format_quantity
 from stringcheck.montecarlo.quantile_maps import spread_quantile
 from stringcheck.montecarlo.estimates import trials_for_upper_bound
+from stringcheck.checks.findings import Finding, Value
 from stringcheck.checks.grading_ratings import GradingSummary
 from stringcheck.studies.check import CheckResult, run_check
 from stringcheck.checks.preconditions import with_recovery_charge
@@ -100,7 +101,8 @@ class SizingResult:
     ratings: GradingSummary
     check: CheckResult
     target_p_fail: float
-    advisories: tuple[str, ...]
+    # Findings (checks.findings): sizing's own, then the final check's network advisories.
+    advisories: tuple[Finding, ...]
     damping_candidates: tuple[DampingCandidate, ...] = ()
 
 
@@ -230,8 +232,8 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
                 break
             previous = sized.grading.capacitor
             larger = float(eseries.step(previous, c_series, _CAPACITOR_STEP[c_series]))
-            raised.append(f"capacitor raised from {previous:.3g} F to {larger:.3g} F: no damping "
-                          "resistor kept the simulated turn-off within the limit")
+            raised.append(Finding("size.capacitor_raised", {"previous": Value(previous, "F"),
+                                                            "raised": Value(larger, "F")}))
             sized = replace(sized, grading=replace(sized.grading, capacitor=larger))
             damping, rule = _damping_resistor(sized)
     if damping is not None:
@@ -251,10 +253,10 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
         recovery = [sized.parts[name].t_rr.typ for name in sized.parts_used()
                     if sized.parts[name].t_rr is not None]
         if recovery and damping * sized.grading.capacitor > min(recovery):
-            advisories.append(
-                f"R_d C = {damping * sized.grading.capacitor:.3g} s is longer than the shortest "
-                f"typical t_rr ({min(recovery):.3g} s): the capacitor may not take the charge in "
-                "time; `--transient` checks it in the time domain")
+            advisories.append(Finding(
+                "size.damping_slower_than_recovery",
+                {"time_constant": Value(damping * sized.grading.capacitor, "s")},
+                Value(min(recovery), "s")))
     return SizingResult(design=sized, resistor=resistor, capacitor=capacitor,
                         damping_resistor=damping, damping_rule=rule, series_count=series_count,
                         series_searched=find_series, ratings=ratings, check=check,
@@ -552,7 +554,7 @@ def _smallest_series(design: Design, trials: int, seed: int, pool: WorkerPool | 
         candidate = _with_series(design, count)
         result = run_check(candidate, trials=trials, seed=seed, pool=pool)
         ran = [check for check in result.checks.values() if check.ran]
-        if all(check.estimate.ci_high <= target for check in ran) and result.impossible is None:
+        if all(check.estimate.ci_high <= target for check in ran) and not result.impossible:
             return candidate
     raise SizingError(f"no device count up to {last} passes with this network")
 

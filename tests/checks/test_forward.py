@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
+from stringcheck.checks.findings import Value
 from stringcheck.design.reading import parse_design_text
 from stringcheck.report.export import json_text, result_to_dict
 from stringcheck.studies.check import run_check
@@ -216,4 +217,8 @@ def test_a_group_that_cannot_carry_the_current_is_impossible():
     # 2 branches x 20 A rated = 40 A at perfect sharing < 50 A asked: impossible, with the sum.
     result = run_check(parse_design_text(design(current="50 A", thermal=False)), trials=200)
     assert result.verdict == "fail"
-    assert "cannot carry 50 A" in result.impossible and "40 A" in result.impossible
+    (finding,) = result.impossible
+    assert finding.code == "impossible.group_current"
+    assert finding.values["current"] == Value(50.0, "A") and finding.limit == Value(40.0, "A")
+    text = result_to_dict(result)["impossible"]
+    assert "cannot carry 50 A" in text and "40 A" in text

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import pytest
 
+from stringcheck.checks.findings import Value
 from stringcheck.design.reading import parse_design_text
 from stringcheck.report.export import result_to_dict
 from stringcheck.studies.check import run_check
@@ -58,12 +59,21 @@ def test_ratings_are_judged_at_the_simulated_turn_off_peak():
     assert peaks["static"] < 1200.0 and peaks["dynamic"] < 1200.0 < peaks["transient"], peaks
     assert result.grading.worst_stage_voltage == max(peaks.values())
     assert result.grading.worst_voltage_check == "transient"
-    problems = result.grading.rating_problems
-    assert any(p.startswith("grading resistor sees") and "simulated turn-off" in p
-               for p in problems), problems
-    assert any(p.startswith("grading capacitor sees") for p in problems), problems
+    # Findings, not sentences: the code, the voltage seen and the check that saw it, the rating.
+    problems = {finding.code: finding for finding in result.grading.rating_problems}
+    assert set(problems) == {"rating.resistor_voltage", "rating.capacitor_voltage"}, problems
+    for finding in problems.values():
+        assert finding.values["voltage"] == Value(peaks["transient"], "V")
+        assert finding.number("check") == "transient"
+        assert finding.limit == Value(1200.0, "V")
     assert result.verdict == "fail"
     network = result_to_dict(result)["network"]
+    # The JSON keeps the sentences (report.wording) and gives the codes beside them.
+    assert network["rating_problem_codes"] == [f.code for f in result.grading.rating_problems]
+    texts = network["rating_problems"]
+    assert any(p.startswith("grading resistor sees") and "simulated turn-off" in p
+               for p in texts), texts
+    assert any(p.startswith("grading capacitor sees") for p in texts), texts
     assert network["worst_stage_voltage"] == pytest.approx(peaks["transient"])
     assert network["worst_stage_voltage_check"] == "transient"
 

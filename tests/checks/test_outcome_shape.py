@@ -141,9 +141,16 @@ def test_result_to_frame_stacks_every_check(result):
 def test_result_to_dict_is_the_export_without_the_worded_sections(result):
     exported = result_to_dict(result)
     own = result.to_dict()
-    assert set(exported) - set(own) == {"lots", "cautions"}
-    assert all(exported[key] == value for key, value in own.items())
+    assert set(exported) - set(own) == {"lots", "cautions", "impossible"}
+    assert all(exported[key] == value for key, value in own.items() if key != "network")
+    assert exported["impossible"] is None if not own["impossible_codes"] else exported["impossible"]
     assert [key for key in exported if key in own] == list(own)
+    # The network's findings are in words only in the export (report.wording), beside their codes.
+    network, own_network = exported["network"], own["network"]
+    assert set(network) - set(own_network) == {"rating_problems", "advisories"}
+    assert all(network[key] == value for key, value in own_network.items())
+    assert len(network["advisories"]) == len(own_network["advisory_codes"])
+    assert len(network["rating_problems"]) == len(own_network["rating_problem_codes"])
 
 
 @pytest.mark.parametrize("kind", (SeriesCheck, DynamicCheck, CheckResult))

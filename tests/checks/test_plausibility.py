@@ -154,7 +154,9 @@ def test_check_command_shows_the_warning_and_exports_it(tmp_path):
     text = " ".join(full.stdout.split())
     assert "warning: duty.ambient: -70 degC is colder than -60 degC" in text
     data = json.loads(out.read_text(encoding="utf-8"))
-    assert data["warnings"] == [{"key": "duty.ambient", "message": data["warnings"][0]["message"]}]
+    assert data["warnings"] == [{"key": "duty.ambient", "message": data["warnings"][0]["message"],
+                                 "code": "plausibility.ambient_cold"}]
+    assert data["warnings"][0]["message"].startswith("-70 degC is colder than -60 degC")
     quiet = runner.invoke(app, ["check", str(design), "--trials", "400", "--quiet"])
     assert quiet.exit_code == full.exit_code, quiet.output
     assert "warning: duty.ambient:" in quiet.stdout

@@ -42,9 +42,8 @@ def _docstrings(tree) -> set[int]:
     return ids
 
 
-# Known and left for the findings of issue 16 item 3 (a study returns findings, report/ words
-# them): the sizing advisory about R_d C, whose text is in the JSON of `size`.
-KNOWN = {("studies/size.py", "`--transient` checks it in the time domain")}
+# Known exceptions (none since the sizing advisory about R_d C became a finding, issue 16.3).
+KNOWN: set[tuple[str, str]] = set()
 
 
 def test_no_layer_below_the_report_writes_an_option_name():

@@ -156,6 +156,51 @@ def test_failure_estimate_arrays():
     assert estimate.upper_bound.shape == (2,)
 
 
+# --- convergence figures of an estimate --------------------------------------------------------
+@pytest.mark.parametrize("failures, trials", [(1, 10), (3, 1000), (40, 4000), (999, 1000)])
+def test_relative_error_is_the_binomial_closed_form(failures, trials):
+    # A binomial proportion k / n has standard deviation sqrt(p (1 - p) / n) (Feller, vol. 1,
+    # ch. VI, from memory); divided by p: sqrt((1 - p) / (n p)).
+    p = failures / trials
+    estimate = stats.failure_estimate(failures, trials)
+    assert estimate.relative_error == pytest.approx(math.sqrt((1 - p) / (trials * p)), rel=1e-12)
+    # scipy's binomial: the standard deviation of the count over its mean is the same figure.
+    assert estimate.relative_error == pytest.approx(
+        scipy_stats.binom(trials, p).std() / scipy_stats.binom(trials, p).mean(), rel=1e-12)
+
+
+def test_relative_error_ends_and_arrays():
+    assert stats.failure_estimate(0, 100).relative_error == math.inf
+    assert stats.failure_estimate(100, 100).relative_error == 0.0
+    both = stats.failure_estimate(np.array([0, 25]), np.array([100, 100])).relative_error
+    np.testing.assert_allclose(both, [math.inf, math.sqrt(0.75 / 25)])
+
+
+@pytest.mark.parametrize("failures, trials", [(1, 10), (3, 1000), (40, 4000), (7, 50)])
+def test_trials_for_wanted_error_reaches_the_wanted_error(failures, trials):
+    estimate = stats.failure_estimate(failures, trials)
+    p = estimate.p_fail
+    needed = estimate.trials_for_wanted_error
+    # n = (1 - p) / (p e^2), rounded up (the binomial closed form solved for n)
+    assert needed == math.ceil((1 - p) / (p * stats.WANTED_RELATIVE_ERROR ** 2))
+    assert math.sqrt((1 - p) / (needed * p)) <= stats.WANTED_RELATIVE_ERROR
+    assert needed == 1 or math.sqrt((1 - p) / ((needed - 1) * p)) > stats.WANTED_RELATIVE_ERROR
+    assert estimate.needs_more_trials == (needed > trials)
+
+
+def test_no_failure_needs_no_relative_error_but_the_zero_failure_bound():
+    estimate = stats.failure_estimate(0, 3688)
+    assert estimate.trials_for_wanted_error is None and not estimate.needs_more_trials
+    # Clopper and Pearson (1934) with k = 0: the two-sided upper end is 1 - (alpha / 2)^(1 / n).
+    assert estimate.upper_bound == pytest.approx(1 - 0.025 ** (1 / 3688), rel=1e-10)
+    assert not stats.failure_estimate(10, 10).needs_more_trials
+
+
+def test_trials_for_wanted_error_is_for_scalar_counts():
+    with pytest.raises(TypeError):
+        stats.failure_estimate(np.array([1, 2]), np.array([10, 10])).trials_for_wanted_error
+
+
 # --- trials needed -------------------------------------------------------------------------------
 def test_trials_for_upper_bound_worked_example():
     # Hand calculation: ln(0.025) / ln(0.999) = 3687.2, so 3688 failure-free trials show

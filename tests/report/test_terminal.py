@@ -73,3 +73,29 @@ def test_report_states_the_turn_off_current_of_each_check(result):
     text = _text(render_check, result)
     phrase = "I_F = 20 A per branch at turn-off (a square wave commutates from its peak"
     assert text.count(phrase) == 2, text  # the dynamic and the transient check
+
+
+def test_convergence_note_and_json_carry_the_estimates_own_figures(result):
+    # Issue 16 item 3: the relative error of P(fail) and the trials for 10 % are the estimate's
+    # figures, printed by the report and written to the JSON alike. Closed forms: relative standard
+    # error sqrt((1 - p) / (n p)) of a binomial proportion, n = (1 - p) / (p e^2) (Feller, vol. 1,
+    # ch. VI, from memory): p = 0.003, n = 1000 gives 57.6 % and 33,234 trials for 10 %.
+    import dataclasses
+
+    from stringcheck.montecarlo.estimates import failure_estimate
+
+    static = dataclasses.replace(result.checks["static"], estimate=failure_estimate(3, 1000),
+                                 rare=None)
+    changed = dataclasses.replace(result, checks={**result.checks, "static": static})
+    text = _text(render_check, changed)
+    assert ("static: 3 failures in 1,000 trials know P(fail) to +-58% (standard error); about "
+            "33,234 trials would give +-10%, or use --rare") in text, text
+    keys = static.to_dict()
+    assert keys["p_fail_relative_error"] == pytest.approx((0.997 / 3) ** 0.5, rel=1e-12)
+    assert keys["trials_for_relative_error"] == 33234
+    # No failure seen: no relative error (null), no note, and the zero-failure bound stands.
+    quiet = result.checks["static"]
+    assert quiet.estimate.failures == 0
+    assert quiet.to_dict()["p_fail_relative_error"] is None
+    assert quiet.to_dict()["trials_for_relative_error"] is None
+    assert "static: 0 failures" not in _text(render_check, result)

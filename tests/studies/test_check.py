@@ -4,10 +4,12 @@ from __future__ import annotations
 
 import pytest
 
+from stringcheck.checks.findings import Value
 from stringcheck.design.reading import parse_design_text
 from stringcheck.errors import DesignError
 from stringcheck.physics.grading import worst_case_dynamic_capacitance, worst_case_static_resistance
 import stringcheck.studies.check as check_study
+from stringcheck.report.export import result_to_dict
 from stringcheck.studies.check import run_check
 from tests.designs import corner_design, design_text
 
@@ -119,7 +121,9 @@ def test_dc_duty_without_turn_off_skips_the_dynamic_check_and_says_why():
 def test_impossible_string_is_reported_and_fails():
     text = SCATTER.replace('reverse_voltage = "20 kV"', 'reverse_voltage = "30 kV"')
     result = run_check(parse_design_text(text), trials=1000)
-    assert result.impossible is not None and "perfect sharing" in result.impossible
+    assert [finding.code for finding in result.impossible] == ["impossible.string_voltage"]
+    assert result.impossible[0].values["voltage"] == Value(30e3, "V")
+    assert "perfect sharing" in result_to_dict(result)["impossible"]
     assert result.verdict == "fail"
 
 

@@ -1,0 +1,236 @@
+"""Findings in words (report.wording): each code's sentence is the text printed before findings
+existed, and the layers below the report no longer write the sentences they were converted from."""
+
+from __future__ import annotations
+
+import ast
+import re
+import string
+from pathlib import Path
+
+import pytest
+
+from stringcheck.checks.findings import Finding, Value, codes
+from stringcheck.cli.options import OPTIONS, option_wording
+from stringcheck.report.wording import (CHECK_WORDS, TEMPLATES, impossibility_text, sentence,
+                                        sentences)
+
+PACKAGE = Path(__file__).resolve().parents[2] / "stringcheck"
+
+# One finding per code and the sentence the code printed before it was a finding (the f-strings
+# of checks/grading_ratings.py, checks/preconditions.py, checks/plausibility.py and studies/size.py,
+# evaluated for these values with units.format_quantity's three significant figures).
+TODAY = [
+    (Finding("rating.resistor_power", {"power": Value(1.52, "W")}, Value(1.0, "W")),
+     "grading resistor dissipates 1.52 W at the worst static voltage, above its rating of 1 W"),
+    (Finding("rating.resistor_voltage", {"voltage": Value(1712.3, "V"),
+                                         "check": Value("transient")}, Value(1200.0, "V")),
+     "grading resistor sees 1.71 kV at worst (simulated turn-off peak), above its "
+     "working-voltage rating of 1.2 kV"),
+    (Finding("rating.capacitor_voltage", {"voltage": Value(1712.3, "V"),
+                                          "check": Value("dynamic")}, Value(1200.0, "V")),
+     "grading capacitor sees 1.71 kV at worst (charge-balance turn-off), above its rating of "
+     "1.2 kV"),
+    (Finding("advisory.resistor_rated_power_missing"),
+     "grading.resistor_rated_power not given: resistor power not checked"),
+    (Finding("advisory.resistor_rated_voltage_missing"),
+     "grading.resistor_rated_voltage not given: resistor working voltage not checked"),
+    (Finding("advisory.grading_current_low",
+             {"current": Value(5.45e-5, "A"), "leakage": Value(2.1e-5, "A"),
+              "multiple": Value(5.0)}, Value(1.05e-4, "A")),
+     "grading current 54.5 uA is less than 5 x the hottest maximum leakage (21 uA); several "
+     "times is common practice"),
+    (Finding("advisory.no_grading_resistors"),
+     "no grading resistors: static sharing rests on the leakage alone and the stack has no "
+     "bleed path for stored charge"),
+    (Finding("advisory.capacitor_rated_voltage_missing"),
+     "grading.capacitor_rated_voltage not given: capacitor voltage not checked"),
+    (Finding("advisory.damping_resistor_missing"),
+     "grading.damping_resistor not given: an undamped grading capacitor rings with the stray "
+     "inductance and discharges into the device at turn-on"),
+    (Finding("advisory.slow_discharge", {"time": Value(312.0, "s"), "voltage": Value(60.0, "V")},
+             Value(5.0, "s")),
+     "the stack takes 312 s to fall below 60 V through its grading resistors, longer than the "
+     "5 s of IEC 60204-1:2016 clause 6.2.4: provide a discharge device or earthing stick"),
+    # checks/preconditions.py (one finding each; the report joins several with "; ")
+    (Finding("impossible.string_voltage", {"voltage": Value(9000.0, "V"), "series": Value(6),
+                                           "derating": Value(0.9)}, Value(7560.0, "V")),
+     "the string cannot hold 9000 V even with perfect sharing: the sum of derating x V_RRM over "
+     "the 6 devices of a branch is 7560 V (derating 0.9)"),
+    (Finding("impossible.group_current", {"current": Value(50.0, "A"), "parallel": Value(2)},
+             Value(40.0, "A")),
+     "the group cannot carry 50 A average even with perfect sharing: the 2 branch(es) together "
+     "are rated 40 A (the sum over the branches of the weakest device's i_fav)"),
+    # checks/plausibility.py
+    (Finding("plausibility.string_voltage_low",
+             {"voltage": Value(50.0, "V"), "series": Value(4), "share": Value(12.5, "V"),
+              "percent": Value(100 * 12.5 / 1200.0), "part": Value("A"),
+              "rating": Value(1200.0, "V")}, Value(12.0, "V")),
+     "50 V across 4 devices in series is 12.5 V per device, 1 % of the V_RRM of part 'A' "
+     "(1.2 kV): orders of magnitude below any rating; a bare number is volts (write \"50 kV\" if "
+     "kilovolts were meant)"),
+    (Finding("plausibility.slow_turn_off_slope", {"slope": Value(50.0, "A/s"),
+                                                  "slope_per_us": Value(5e-5, "A/us")},
+             Value(1e3, "A/s")),
+     "a turn-off slope of 50 A/s (5e-05 A/us) is orders of magnitude slower than any "
+     "commutation (1 to 1000 A/us is usual); a bare number is A/s: write \"50 A/us\" if that "
+     "was meant"),
+    (Finding("plausibility.slow_test_di_dt", {"slope": Value(50.0, "A/s"),
+                                              "slope_per_us": Value(5e-5, "A/us")},
+             Value(1e3, "A/s")),
+     "a datasheet test di/dt of 50 A/s (5e-05 A/us) is orders of magnitude slower than any "
+     "commutation (1 to 1000 A/us is usual); a bare number is A/s: write \"50 A/us\" if that "
+     "was meant"),
+    (Finding("plausibility.ambient_cold", {"ambient": Value(-70.0, "degC")},
+             Value(-60.0, "degC")),
+     "-70 degC is colder than -60 degC, below what power devices and grading components are "
+     "commonly rated for; check the sign and the unit (a bare number is degC)"),
+    (Finding("plausibility.max_far_above_typ",
+             {"parameter": Value("i_r"), "high": Value(2e-3, "A"), "typ": Value(1e-6, "A"),
+              "ratio": Value(2000.0), "typ_assumed": Value(1)}, Value(1e3)),
+     "the maximum leakage 2 mA is 2,000 x its typical value 1 uA (typ assumed from the max); "
+     "limits sit within about a decade of typ: check the units of both"),
+    (Finding("plausibility.typ_far_above_min",
+             {"parameter": Value("v_t0"), "typ": Value(3.0, "V"), "low": Value(0.2, "V"),
+              "ratio": Value(15.0)}, Value(10.0)),
+     "the typical v_t0 3 V is 15 x its minimum 200 mV; limits sit within some tens of percent of "
+     "typ: check the units of both"),
+    (Finding("plausibility.grading_loss_large", {"resistor": Value(4.7, "ohm"),
+                                                 "loss": Value(2.5e6, "W")}, Value(1e6, "W")),
+     "the grading resistors of 4.7 Ohm dissipate 2.5 MW in all at the nominal share, and no "
+     "grading.resistor_rated_power is given to check it; a unit slip in the resistance (a bare "
+     "number is ohms: write e.g. \"4.7 MOhm\")?"),
+    (Finding("plausibility.confidence_low", {"confidence": Value(0.3)}, Value(0.5)),
+     "0.3: an upper bound at less than 50% confidence lies below the best estimate of P(fail) "
+     "more often than not, so a pass vouches for little; 0.95 is usual"),
+    (Finding("plausibility.target_high", {"target": Value(5.0), "as_percent": Value(0.05)},
+             Value(0.1)),
+     "5 lets more than one built stack in ten fail; targets are usually 1e-3 to 1e-6 (was a "
+     "percentage meant? 5 % is 0.05)"),
+    (Finding("size.capacitor_raised", {"previous": Value(4.7e-10, "F"),
+                                       "raised": Value(6.8e-10, "F")}),
+     "capacitor raised from 4.7e-10 F to 6.8e-10 F: no damping resistor kept the simulated "
+     "turn-off within the limit"),
+]
+# The command line's wording of the one code that names a setting (the JSON of `size` has it).
+SIZE_DAMPING = (Finding("size.damping_slower_than_recovery", {"time_constant": Value(3.3e-7, "s")},
+                        Value(1.5e-7, "s")),
+                "R_d C = 3.3e-07 s is longer than the shortest typical t_rr (1.5e-07 s): the "
+                "capacitor may not take the charge in time; `--transient` checks it in the time "
+                "domain")
+
+
+@pytest.mark.parametrize("finding, text", TODAY, ids=[f.code for f, _ in TODAY])
+def test_each_code_reads_as_it_did(finding, text):
+    assert sentence(finding) == text
+    assert sentence(finding, spell=option_wording) == text  # names no setting
+
+
+def test_a_setting_in_a_sentence_is_spelled_by_whoever_shows_it():
+    finding, text = SIZE_DAMPING
+    assert sentence(finding, spell=option_wording) == text
+    # From Python the setting is the keyword, never a command-line option.
+    assert sentence(finding) == text.replace("--transient", "transient")
+
+
+def test_every_code_has_a_sentence_and_is_tested():
+    tested = {finding.code for finding, _ in TODAY} | {SIZE_DAMPING[0].code}
+    assert tested == set(TEMPLATES)
+    with pytest.raises(KeyError):
+        sentence(Finding("no.such_code"))
+    assert sentences([f for f, _ in TODAY]) == [t for _, t in TODAY]
+    assert codes([f for f, _ in TODAY]) == [f.code for f, _ in TODAY]
+
+
+def test_templates_name_only_known_settings_and_check_words():
+    for code, template in TEMPLATES.items():
+        for _, field, spec, _ in string.Formatter().parse(template):
+            if field == "option":
+                assert spec in OPTIONS, (code, spec)
+            if spec == "check":
+                assert field == "check", code
+    assert set(CHECK_WORDS) == {"static", "dynamic", "transient"}
+
+
+def _produced_codes() -> set[str]:
+    """The codes the package's modules below the report make findings of (Finding("code", ...))."""
+    found = set()
+    for path in PACKAGE.rglob("*.py"):
+        if path.relative_to(PACKAGE).parts[0] in ("report", "cli"):
+            continue
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            if isinstance(node, ast.Call) and getattr(node.func, "id", None) == "Finding" \
+                    and node.args and isinstance(node.args[0], ast.Constant):
+                found.add(node.args[0].value)
+            # a code handed to a helper that makes the finding (plausibility's _slope)
+            elif isinstance(node, ast.Constant) and isinstance(node.value, str) and \
+                    re.fullmatch(r"(rating|advisory|size|plausibility|impossible)\.[a-z_]+",
+                                 node.value):
+                found.add(node.value)
+    return found
+
+
+def test_every_code_a_layer_below_produces_has_a_sentence():
+    produced = _produced_codes()
+    assert produced == set(TEMPLATES), produced ^ set(TEMPLATES)
+
+
+def _sentence_constants(tree) -> list[str]:
+    """String constants and f-strings of two or more words, outside docstrings and the messages
+    of raised errors (errors are worded where they are raised, with errors.Setting)."""
+    skip = set()
+    for node in ast.walk(tree):
+        if isinstance(node, (ast.Module, ast.ClassDef, ast.FunctionDef)) and node.body and \
+                isinstance(node.body[0], ast.Expr) and isinstance(node.body[0].value, ast.Constant):
+            skip.update(id(n) for n in ast.walk(node.body[0]))
+        if isinstance(node, ast.Raise):
+            skip.update(id(n) for n in ast.walk(node))
+    found = []
+    for node in ast.walk(tree):
+        if id(node) in skip:
+            continue
+        if isinstance(node, ast.JoinedStr) and any(
+                isinstance(v, ast.Constant) and " " in v.value for v in node.values):
+            found.append(f"{node.lineno}: f-string")
+            skip.update(id(n) for n in ast.walk(node))
+        elif isinstance(node, ast.Constant) and isinstance(node.value, str) and \
+                re.search(r"[a-z]+ [a-z]+", node.value):
+            found.append(f"{node.lineno}: {node.value!r}")
+    return found
+
+
+@pytest.mark.parametrize("module", ("grading_ratings.py", "plausibility.py", "findings.py"))
+def test_the_converted_modules_write_no_sentences(module):
+    # These checks modules were converted whole: no sentence left in them.
+    tree = ast.parse((PACKAGE / "checks" / module).read_text(encoding="utf-8"))
+    assert not _sentence_constants(tree)
+    # The scan can fail: the module before its conversion held the advisories' f-strings.
+    assert _sentence_constants(ast.parse('advisories.append(f"grading current {x} is low")'))
+
+
+def test_sizing_advisories_are_findings():
+    # studies/size.py: whatever is appended to its advisories is a Finding, never text.
+    tree = ast.parse((PACKAGE / "studies" / "size.py").read_text(encoding="utf-8"))
+    appended = [node for node in ast.walk(tree) if isinstance(node, ast.Call)
+                and isinstance(node.func, ast.Attribute) and node.func.attr == "append"
+                and getattr(node.func.value, "id", None) in ("advisories", "raised")]
+    assert appended
+    for call in appended:
+        argument = call.args[0]
+        assert isinstance(argument, ast.Call) and argument.func.id == "Finding", \
+            ast.unparse(call)
+
+
+def test_an_impossible_design_joins_its_reasons_as_before():
+    both = [TODAY[index] for index, (finding, _) in enumerate(TODAY)
+            if finding.code.startswith("impossible.")]
+    assert impossibility_text([f for f, _ in both]) == "; ".join(t for _, t in both)
+    assert impossibility_text(()) is None
+
+
+def test_the_impossibility_arithmetic_writes_no_sentence():
+    # checks/preconditions.py is converted for impossibility() only (its assumptions are text yet).
+    tree = ast.parse((PACKAGE / "checks" / "preconditions.py").read_text(encoding="utf-8"))
+    (function,) = [node for node in tree.body
+                   if isinstance(node, ast.FunctionDef) and node.name == "impossibility"]
+    assert not _sentence_constants(function)
