@@ -146,7 +146,7 @@ def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capaci
           find_series, workers=1, transient=False) -> int:
     from stringcheck.design.reading import load_design
     from stringcheck.report.export import json_text, sizing_to_dict
-    from stringcheck.report.terminal import render_check_summary, render_sizing
+    from stringcheck.report.terminal import render_sizing, render_sizing_summary
     from stringcheck.studies.size import size as run_size
 
     design = load_design(path)
@@ -161,13 +161,7 @@ def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capaci
     shown_on = console(stderr=json_path == "-", wrap=not quiet)
     with output_files.atomic_outputs(outputs), output_files.report_stream(json_path == "-"):
         if quiet:
-            r = result.resistor.chosen.value
-            c = result.design.grading.capacitor if result.capacitor else None
-            shown_on.print(f"R = {r:.4g} ohm" + (f", C = {c:.4g} F" if c else "")
-                           + (f", R_d = {result.damping_resistor:.3g} ohm"
-                              if result.damping_resistor else "")
-                           + f", n = {result.series_count}; ", end="")
-            render_check_summary(result.check, shown_on)
+            render_sizing_summary(result, shown_on)
         else:
             render_sizing(result, shown_on, spell=option_wording)
     return EXIT_PASS if result.check.verdict == "pass" else EXIT_FAIL
@@ -260,8 +254,7 @@ def review(
 def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height) -> int:
     from stringcheck.checks.transient import trial_trace
     from stringcheck.design.reading import load_design
-    from stringcheck.report.display_text import shown
-    from stringcheck.report.waveform import waveform_csv, waveform_plot
+    from stringcheck.report.waveform import render_wave, waveform_csv
 
     design = load_design(path)
     output_files.check_output_targets({"--csv": csv_path},
@@ -271,15 +264,8 @@ def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, he
         [(csv_path, waveform_csv(result.trace, capacitor_voltages=True))]
     shown_on = console(stderr=csv_path == "-")
     with output_files.atomic_outputs(outputs), output_files.report_stream(csv_path == "-"):
-        if not bool(result.converged[0]):
-            shown_on.print("[bold red]the engine could not finish this trial; the plot shows what "
-                           "was reached[/]", markup=True)
-        shown_on.print(f"{shown(design.title)}: trial {trial}, branch {branch}; turn-off from "
-                       f"{result.trace.time.shape[0]} recorded steps")
-        shown_on.print(waveform_plot(result.trace, width=width, height=height, worst=worst),
-                       end="")
-        for note in notes:
-            shown_on.print(f"note: {shown(note)}")
+        render_wave(design.title, trial, branch, result, notes, shown_on, width=width,
+                    height=height, worst=worst)
     return EXIT_PASS
 
 

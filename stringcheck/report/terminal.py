@@ -368,6 +368,17 @@ def render_check_summary(result: CheckResult, console: Console) -> None:
     render_warnings(result.warnings, console)
 
 
+def render_sizing_summary(result: "SizingResult", console: Console) -> None:
+    """One line for ``size --quiet``: the chosen R [ohm], C [F], R_d [ohm] and device count, then
+    the check of the sized design (:func:`render_check_summary`)."""
+    r = result.resistor.chosen.value
+    c = result.design.grading.capacitor if result.capacitor else None
+    console.print(f"R = {r:.4g} ohm" + (f", C = {c:.4g} F" if c else "")
+                  + (f", R_d = {result.damping_resistor:.3g} ohm" if result.damping_resistor else "")
+                  + f", n = {result.series_count}; ", end="")
+    render_check_summary(result.check, console)
+
+
 def render_sizing(result: "SizingResult", console: Console, *,
                   spell: Callable[[Setting], str] = str) -> None:
     """Print the proposed grading network, the evidence for each value, ratings and cautions (a

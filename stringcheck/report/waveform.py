@@ -15,8 +15,9 @@ import numpy as np
 from numpy.typing import NDArray
 
 from stringcheck.errors import StringcheckError
+from stringcheck.report.display_text import shown
 from stringcheck.units import ENGINEERING_PREFIXES, format_quantity
-from stringcheck.solvers.transient import TurnOffTrace
+from stringcheck.solvers.transient import TurnOff, TurnOffTrace
 
 __all__ = ["TrialWaveform", "trial_waveform", "waveform_csv", "waveform_plot"]
 
@@ -315,3 +316,18 @@ def waveform_plot(trace: TurnOffTrace, *, trial: int = 0, width: int = 80, heigh
     which = "stages" if worst is None else f"worst {order.size} of {count} stages"
     lines.append(_fit(f"{which}: {shown}", width))
     return "".join(_fit(line, width) + "\n" for line in lines)
+
+
+def render_wave(title: str, trial: int, branch: int, result: TurnOff, notes, console, *,
+                width: int = 80, height: int = 24, worst: int = 6) -> None:
+    """Print ``stringcheck wave``'s report of one traced turn-off (``checks.transient.trial_trace``)
+    on a rich ``console``: a line naming the trial, the terminal plot (:func:`waveform_plot`) and
+    the trace's notes; a trial the engine could not finish says so first."""
+    if not bool(result.converged[0]):
+        console.print("[bold red]the engine could not finish this trial; the plot shows what "
+                      "was reached[/]", markup=True)
+    console.print(f"{shown(title)}: trial {trial}, branch {branch}; turn-off from "
+                  f"{result.trace.time.shape[0]} recorded steps")
+    console.print(waveform_plot(result.trace, width=width, height=height, worst=worst), end="")
+    for note in notes:
+        console.print(f"note: {shown(note)}")
