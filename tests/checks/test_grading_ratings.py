@@ -9,26 +9,11 @@ from stringcheck.design.reading import parse_design_text
 from stringcheck.report.export import result_to_dict
 from stringcheck.studies.check import run_check
 
+from tests.designs import design_text
+
 # A small ringing stack of our own: a low damping resistor lets the stray inductance overshoot far
 # above the charge-balance voltage (1 kV devices, peaks near 1.7 kV).
-RINGING = """
-[duty]
-reverse_voltage = "3 kV"
-waveform = "half-sine"
-frequency = "50 Hz"
-di_dt = "20 A/us"
-forward_current = "1 A"
-[string]
-series = 4
-derating = 0.9
-part = "F"
-[parts.F]
-v_rrm = "1 kV"
-i_r = { typ = "0.5 uA", max = "3 uA", at_temperature = "25 degC" }
-q_rr = { typ = "60 nC", max = "100 nC", at_di_dt = "20 A/us", at_forward_current = "1 A" }
-t_rr = { typ = "0.15 us", at_di_dt = "20 A/us" }
-c_j = "20 pF"
-[grading]
+RINGING = design_text("one_kv_stack") + """[grading]
 resistor = "2 MOhm"
 resistor_tolerance = "1 %"
 resistor_rated_voltage = "RATED"

@@ -14,25 +14,9 @@ from stringcheck.checks.plausibility import plausibility_warnings
 from stringcheck.report.export import json_text, result_to_dict
 from stringcheck.studies.check import run_check
 
-BASE = """
-[duty]
-reverse_voltage = "3 kV"
-waveform = "half-sine"
-frequency = "50 Hz"
-di_dt = "20 A/us"
-forward_current = "1 A"
-ambient = "25 degC"
-[string]
-series = 4
-derating = 0.9
-part = "F"
-[parts.F]
-v_rrm = "1 kV"
-i_r = { typ = "0.5 uA", max = "3 uA", at_temperature = "25 degC" }
-q_rr = { typ = "60 nC", max = "100 nC", at_di_dt = "20 A/us", at_forward_current = "1 A" }
-t_rr = { typ = "0.15 us", at_di_dt = "20 A/us" }
-c_j = "20 pF"
-[grading]
+from tests.designs import design_text
+
+BASE = design_text("one_kv_stack") + """[grading]
 resistor = "10 MOhm"
 capacitor = "1 nF"
 [monte_carlo]

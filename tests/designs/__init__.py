@@ -10,6 +10,8 @@ function below fills in (``string.Template``), so that a test can set the values
 - ``half_plane.template.toml``: two stages whose static P(fail) is Phi(-beta)
   (:func:`half_plane_design_text`).
 - ``corner.template.toml``: a no-scatter corner of two parts (:func:`corner_design`).
+- ``one_kv_stack.toml``: four 1 kV devices at 3 kV without a grading network; the grading-ratings,
+  plausibility and sizing tests add their own tables.
 """
 
 from __future__ import annotations

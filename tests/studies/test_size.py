@@ -15,6 +15,8 @@ from stringcheck.physics.grading import worst_case_dynamic_capacitance, worst_ca
 from stringcheck.studies.check import run_check
 from stringcheck.studies.size import size
 
+from tests.designs import design_text
+
 
 def corner(*, n=8, v_s=9000.0, v_rrm=1400.0, derating=0.9, leak=(2e-6, 12e-6),
            charge=(0.4e-6, 1.0e-6), target=1e-3, trials=4000, resistor_series="E96",
@@ -208,24 +210,7 @@ def test_tighter_target_never_gives_larger_r_or_smaller_c(seed):
     assert tight.capacitor.chosen.value >= loose.capacitor.chosen.value
 
 
-SMALL_STACK = """
-[duty]
-reverse_voltage = "3 kV"
-waveform = "half-sine"
-frequency = "50 Hz"
-di_dt = "20 A/us"
-forward_current = "1 A"
-[string]
-series = 4
-derating = 0.9
-part = "F"
-[parts.F]
-v_rrm = "1 kV"
-i_r = { typ = "0.5 uA", max = "3 uA", at_temperature = "25 degC" }
-q_rr = { typ = "60 nC", max = "100 nC", at_di_dt = "20 A/us", at_forward_current = "1 A" }
-t_rr = { typ = "0.15 us", at_di_dt = "20 A/us" }
-c_j = "20 pF"
-[grading]
+SMALL_STACK = design_text("one_kv_stack") + """[grading]
 resistor_tolerance = "1 %"
 capacitor_tolerance = "5 %"
 [monte_carlo]
