@@ -99,7 +99,7 @@ def _reference_loop(design, first: int, count: int) -> tuple[float, np.ndarray]:
     leak = leakage_current(drawn.parameters["i_r"], part.i_r.at_voltage, temperature,
                            reference_voltage=part.i_r.at_voltage,
                            reference_temperature=part.i_r.at_temperature,
-                           doubling_temperature=part.leakage_doubling, voltage_exponent=0.5)
+                           doubling_temperature=part.doubling_temperature, voltage_exponent=0.5)
     coefficient = (leak / math.sqrt(part.i_r.at_voltage)).tolist()
     tcr = design.grading.resistor_tcr
     conductance = (1.0 / (drawn.resistance * (1.0 + tcr * (temperature - 25.0)))).tolist()
