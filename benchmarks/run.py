@@ -91,7 +91,7 @@ seed = 11
 """
 
 
-def _reference_loop(design, first: int, count: int) -> tuple[float, np.ndarray]:
+def reference_loop(design, first: int, count: int) -> tuple[float, np.ndarray]:
     """Solve ``count`` drawn strings one by one in plain Python; (seconds, worst voltage per trial)."""
     drawn = draw_strings(design, ("i_r", "q_rr"), first, count)
     part = design.parts["B"]
@@ -154,7 +154,7 @@ def bench_check(trials: int, reference_trials: int) -> dict:
     start = time.perf_counter()
     result = run_check(design, trials=trials)
     ours = time.perf_counter() - start
-    loop_seconds, loop_worst = _reference_loop(design, 0, reference_trials)
+    loop_seconds, loop_worst = reference_loop(design, 0, reference_trials)
     reference = loop_seconds * trials / reference_trials
     engine = run_check(design, trials=reference_trials)
     engine_worst = max(engine.checks["static"].worst_voltage, engine.checks["dynamic"].worst_voltage)
