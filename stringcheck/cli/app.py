@@ -100,7 +100,8 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
         outputs.append((csv_path, positions_csv(result)))
     with output_files.atomic_outputs(outputs):
         # With machine output on standard output, the report goes to stderr so the two never mix.
-        _print_report(result, quiet=quiet, stderr=to_stdout, full=render_check,
+        _print_report(result, quiet=quiet, stderr=to_stdout,
+                      full=lambda shown, on: render_check(shown, on, spell=option_wording),
                       summary=render_check_summary)
     return EXIT_PASS if result.verdict == "pass" else EXIT_FAIL
 

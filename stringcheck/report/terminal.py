@@ -88,8 +88,10 @@ def _probability(check: SeriesCheck, confidence: float) -> str:
     return f"{estimate.p_fail:.2g} [{estimate.ci_low:.2g}, {estimate.ci_high:.2g}]{plain_decided}"
 
 
-def render_check(result: CheckResult, console: Console) -> None:
-    """Print the whole check report to ``console``."""
+def render_check(result: CheckResult, console: Console, *,
+                 spell: Callable[[Setting], str] = str) -> None:
+    """Print the whole check report to ``console``; a setting the report suggests is spelled by
+    ``spell`` (the command line's option, by default the Python keyword)."""
     design = result.design
     layout = design.string
     confidence = design.monte_carlo.confidence
@@ -112,13 +114,13 @@ def render_check(result: CheckResult, console: Console) -> None:
         if skipped:
             caveat += f" Not checked: {', '.join(skipped)} (reasons below)."
         if "transient" not in result.checks and result.checks["dynamic"].ran:
-            caveat += (" The turn-off was judged by charge balance only; --transient adds the "
-                       "overshoot of the stray inductance.")
+            caveat += (" The turn-off was judged by charge balance only; "
+                       f"{spell(Setting('transient'))} adds the overshoot of the stray inductance.")
         console.print(Text(" VERDICT: PASS ", style="bold black on green"),
                       f"P(fail) is shown to be at most {result.target_p_fail:g} for every check "
                       "that ran, and every rating given holds." + caveat)
     else:
-        console.print(Text(" VERDICT: FAIL ", style="bold white on red"), _fail_reason(result))
+        console.print(Text(" VERDICT: FAIL ", style="bold white on red"), _fail_reason(result, spell))
     if result.impossible:
         console.print(Text(f"Impossible design: {impossibility_text(result.impossible)}.",
                            style="bold red"))
@@ -141,8 +143,8 @@ def render_check(result: CheckResult, console: Console) -> None:
     for name, check in result.checks.items():
         if not check.ran:
             console.print(Text(f"{name} check not run: {shown(check.reason)}.", style="yellow"))
-        elif _convergence_note(check):
-            console.print(_convergence_note(check), highlight=False)
+        elif _convergence_note(check, spell):
+            console.print(_convergence_note(check, spell), highlight=False)
         if check.ran and check.rare is not None:
             rare = check.rare
             automatic = (" (run automatically: the plain run saw too few failures to decide the "
@@ -190,9 +192,9 @@ def render_warnings(warnings, console: Console, *, label: str = "") -> None:
                       highlight=False)
 
 
-def _convergence_note(check) -> str:
+def _convergence_note(check, spell: Callable[[Setting], str]) -> str:
     """How precisely the plain Monte Carlo run knows P(fail), when it is too short for 10 %
-    (pointing to --rare unless it ran); the figures are the estimate's own."""
+    (pointing to the importance sampler unless it ran); the figures are the estimate's own."""
     estimate = check.estimate
     if estimate is None or not estimate.needs_more_trials:
         return ""
@@ -201,10 +203,10 @@ def _convergence_note(check) -> str:
             f"P(fail) to +-{estimate.relative_error:.0%} (standard error); about "
             f"{estimate.trials_for_wanted_error:,} trials would give "
             f"+-{WANTED_RELATIVE_ERROR:.0%}" + ("" if check.rare is not None
-                                                else ", or use --rare"))
+                                                else f", or use {spell(Setting('rare'))}"))
 
 
-def _fail_reason(result: CheckResult) -> str:
+def _fail_reason(result: CheckResult, spell: Callable[[Setting], str]) -> str:
     reasons = []
     for name, check in result.checks.items():
         if check.ran and not check.passed:
@@ -229,7 +231,7 @@ def _fail_reason(result: CheckResult) -> str:
     if short:
         reasons.append(f"{result.trials:,} trials cannot show P(fail) <= {result.target_p_fail:g} "
                        f"even with no failure seen; run at least {result.trials_needed:,} "
-                       "(--trials)")
+                       f"({spell(Setting('trials'))})")
     return "; ".join(reasons) if reasons else "see below"
 
 
@@ -470,7 +472,7 @@ def render_sizing(result: "SizingResult", console: Console, *,
         console.print(Text(f"  advisory: {advisory}", style="yellow"))
     console.print()
     console.print(Text("Check of the sized design", style="bold underline"))
-    render_check(result.check, console)
+    render_check(result.check, console, spell=spell)
 
 
 def _worst_from(check: str) -> str:

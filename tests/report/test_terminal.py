@@ -87,7 +87,11 @@ def test_convergence_note_and_json_carry_the_estimates_own_figures(result):
     static = dataclasses.replace(result.checks["static"], estimate=failure_estimate(3, 1000),
                                  rare=None)
     changed = dataclasses.replace(result, checks={**result.checks, "static": static})
-    text = _text(render_check, changed)
+    from functools import partial
+
+    from stringcheck.cli.options import option_wording
+
+    text = _text(partial(render_check, spell=option_wording), changed)  # as the command line shows it
     assert ("static: 3 failures in 1,000 trials know P(fail) to +-58% (standard error); about "
             "33,234 trials would give +-10%, or use --rare") in text, text
     keys = static.to_dict()
@@ -99,3 +103,21 @@ def test_convergence_note_and_json_carry_the_estimates_own_figures(result):
     assert quiet.to_dict()["p_fail_relative_error"] is None
     assert quiet.to_dict()["trials_for_relative_error"] is None
     assert "static: 0 failures" not in _text(render_check, result)
+
+
+
+def test_the_report_spells_the_settings_it_suggests_as_told():
+    # Only the command line knows option names (docs/architecture.md): the report names a setting
+    # through the spelling it is given, the Python keyword by default, the option from the CLI.
+    # 100 trials cannot show 1e-3 (Clopper-Pearson: 3,688 needed with no failure seen).
+    from pathlib import Path
+
+    from stringcheck.cli.options import option_wording
+    from stringcheck.design.reading import load_design
+
+    example = Path(__file__).resolve().parents[2] / "examples" / "precipitator-30kv.toml"
+    short = run_check(load_design(example), trials=100, rare=False)
+    for spell, expected in ((str, "(trials)"), (option_wording, "(--trials)")):
+        out = io.StringIO()
+        render_check(short, Console(file=out, width=200), spell=spell)
+        assert f"run at least {short.trials_needed:,} {expected}" in out.getvalue()
