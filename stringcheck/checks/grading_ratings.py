@@ -84,6 +84,17 @@ def worst_stage_voltage(checks: Mapping[str, object]) -> tuple[float, str]:
     return float(value), name
 
 
+def _against_rating(stress: float, values: dict, rating: float | None, unit: str, over: str,
+                    missing: str, problems: list, advisories: list) -> None:
+    """One rating of a grading part: a rating given is compared with the ``stress`` [``unit``]
+    through the shared limit comparison (a problem ``over`` when exceeded, with ``values``); a
+    rating not given is advised as ``missing``, since the stress then goes unchecked."""
+    if rating is None:
+        advisories.append(Finding(missing))
+    elif exceeds_limit(stress, rating):
+        problems.append(Finding(over, values, Value(rating, unit)))
+
+
 def grading_summary(design: Design, checks: Mapping[str, object], temperature: np.ndarray,
                      junction_capacitance: np.ndarray) -> GradingSummary:
     grading = design.grading
@@ -102,18 +113,12 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
         total_loss = float(stage_count * resistor_power(nominal_share, grading.resistor,
                                                         waveform=design.duty.waveform))
         grading_current = nominal_share / grading.resistor
-        if grading.resistor_rated_power is not None and exceeds_limit(power_duty,
-                                                                    grading.resistor_rated_power):
-            problems.append(Finding("rating.resistor_power", {"power": Value(power_duty, "W")},
-                                    Value(grading.resistor_rated_power, "W")))
-        if grading.resistor_rated_voltage is not None and exceeds_limit(
-                worst_any, grading.resistor_rated_voltage):
-            problems.append(Finding("rating.resistor_voltage", seen,
-                                    Value(grading.resistor_rated_voltage, "V")))
-        if grading.resistor_rated_power is None:
-            advisories.append(Finding("advisory.resistor_rated_power_missing"))
-        if grading.resistor_rated_voltage is None:
-            advisories.append(Finding("advisory.resistor_rated_voltage_missing"))
+        _against_rating(power_duty, {"power": Value(power_duty, "W")},
+                        grading.resistor_rated_power, "W", "rating.resistor_power",
+                        "advisory.resistor_rated_power_missing", problems, advisories)
+        _against_rating(worst_any, seen, grading.resistor_rated_voltage, "V",
+                        "rating.resistor_voltage", "advisory.resistor_rated_voltage_missing",
+                        problems, advisories)
 
     hottest_leakage = 0.0
     # With a mix, every part that can stand at a position (StringLayout.part_grids).
@@ -142,12 +147,9 @@ def grading_summary(design: Design, checks: Mapping[str, object], temperature: n
     capacitance = junction_capacitance + (grading.capacitor or 0.0)
     if grading.capacitor is not None:
         stage_energy = float(stored_energy(grading.capacitor, worst_any))
-        if grading.capacitor_rated_voltage is not None and exceeds_limit(
-                worst_any, grading.capacitor_rated_voltage):
-            problems.append(Finding("rating.capacitor_voltage", seen,
-                                    Value(grading.capacitor_rated_voltage, "V")))
-        if grading.capacitor_rated_voltage is None:
-            advisories.append(Finding("advisory.capacitor_rated_voltage_missing"))
+        _against_rating(worst_any, seen, grading.capacitor_rated_voltage, "V",
+                        "rating.capacitor_voltage", "advisory.capacitor_rated_voltage_missing",
+                        problems, advisories)
         if grading.damping_resistor is None:
             advisories.append(Finding("advisory.damping_resistor_missing"))
     total_energy = float(np.sum(stored_energy(capacitance, nominal_share)))
