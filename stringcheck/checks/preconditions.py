@@ -55,8 +55,7 @@ def with_recovery_charge(design: Design) -> Design:
                                          part.t_rr.high or part.t_rr.typ))
         parts[name] = replace(part, q_rr=Spread(typ=typ, high=high, at_di_dt=part.i_rm.at_di_dt,
                                                 typ_assumed=True))
-        notes.append(f"parts.{name}.q_rr derived as 1/2 I_RM t_rr from i_rm and t_rr "
-                     "(max from the product of maxima: conservative)")
+        notes.append(Finding("assumed.q_rr_from_i_rm_t_rr", {"key": Value(f"parts.{name}.q_rr")}))
     if not notes:
         return design
     return replace(design, parts=parts, assumptions=design.assumptions + tuple(notes))
@@ -88,22 +87,18 @@ def impossibility(design: Design) -> tuple[Finding, ...]:
     return tuple(reasons)
 
 
-def model_assumptions(design: Design, rescaling_note: str) -> tuple[str, ...]:
+def model_assumptions(design: Design, rescaling_note: Finding | None) -> tuple[Finding, ...]:
+    """The model's assumptions the report lists (findings ``model.*`` and the recovery charge's
+    ``recovery.*``)."""
     notes = [
-        "static: the peak reverse voltage is held as dc; at line frequency the grading capacitors "
-        "also share the voltage, which this check does not credit",
-        "junction temperature = ambient + the position's temperature_rise (no self-heating); "
-        "leakage referred from its datasheet temperature with the part's doubling temperature",
-        f"grading resistor TCR referred to {RESISTOR_TCR_REFERENCE:g} degC, resistor at its "
-        "diode's temperature",
+        Finding("model.static_dc"),
+        Finding("model.junction_temperature"),
+        Finding("model.resistor_tcr", {"reference": Value(RESISTOR_TCR_REFERENCE, "degC")}),
     ]
     if design.string.mix is not None:
-        notes.append("mixed stock: " + mix_description(design) + "; a mixed position (part A|B) "
-                     "is judged device by device against the limit of the part drawn, and its "
-                     "per-position limit shown is the lowest of the two")
-    if rescaling_note:
-        notes.append(rescaling_note + "; junction temperature does not enter Q_rr; the whole "
-                     "string voltage is assumed to appear after recovery (hard commutation)")
+        notes.append(Finding("model.mixed_stock", {"mix": Value(mix_description(design))}))
+    if rescaling_note is not None:
+        notes.append(rescaling_note)
     return tuple(notes)
 
 

@@ -17,6 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from stringcheck.findings import Finding, Value
 from stringcheck.design.model import Design
 from stringcheck.montecarlo.sampling import DrawnStrings
 from stringcheck.montecarlo.quantile_maps import spread_quantile
@@ -150,41 +151,26 @@ class RecoveryRescaling:
     turn_off: TurnOffCurrent | None = None
 
 
-def recovery_rescaling(design: Design) -> tuple[RecoveryRescaling | None, str]:
+def recovery_rescaling(design: Design) -> tuple[RecoveryRescaling | None, Finding]:
     """The rescaling for the dynamic check and the thermal check's recovery loss, or None, with
-    the sentence the report lists."""
+    the assumption the report lists (a finding ``recovery.*``)."""
     duty = design.duty
     di_dt = duty.di_dt if duty.di_dt is not None else (
         duty.reverse_voltage / duty.stray_inductance if duty.stray_inductance else None)
     missing = missing_recovery_data(design) if di_dt is not None else "no di/dt"
     if missing:
-        return None, ("recovery charge: Q_rr taken at the datasheet's test conditions, not "
-                      f"rescaled to the application ({missing})")
+        return None, Finding("recovery.not_rescaled", {"missing": Value(missing)})
     try:
         fits = part_fits(design)
     except InconsistentRecoveryData as error:
-        return None, (f"recovery charge: Q_rr taken at the datasheet's test conditions: "
-                      f"parts.{error}'s typical q_rr, i_rm or t_rr and at_di_dt fit no recovery "
-                      "waveform")
+        return None, Finding("recovery.no_fit", {"part": Value(str(error))})
     turn_off = turn_off_current(design, fits)
     current = turn_off.current
-    source = {
-        TURN_OFF_TEST_CURRENT: f"I_F = the test I_F ({current:.3g} A; no duty.forward_current)",
-        TURN_OFF_SQUARE_PEAK: f"I_F = {current:.3g} A per branch, the square wave's peak",
-        TURN_OFF_HALF_SINE_AVERAGE: f"I_F = {current:.3g} A per branch, the half-sine's average "
-                                    "(its decay to the zero crossing is not modelled)",
-        TURN_OFF_DC: f"I_F = {current:.3g} A per branch",
-    }[turn_off.basis]
-    note = (f"recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the "
-            f"application's ({source}, di/dt = {di_dt:.3g} A/s) through the charge-control model "
-            "fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); the charge "
-            "balance of the dynamic check and the recovery loss of the thermal check use the same "
-            "carried value")
     untested = [name for name in fits if design.parts[name].q_rr.at_forward_current is None]
-    if untested:
-        note += ("; " + ", ".join(f"parts.{name}" for name in untested)
-                 + " give(s) no q_rr.at_forward_current: Q_rr taken as given at the turn-off "
-                 "current (not rescaled in current)")
+    note = Finding(f"recovery.carried.{turn_off.basis}", {
+        "current": Value(current, "A"),
+        "di_dt": Value(di_dt, "A/s"),
+        "untested": Value(", ".join(f"parts.{name}" for name in untested))})
     nodes, mapped = {}, {}
     for name, fit in fits.items():
         spread = design.parts[name].q_rr

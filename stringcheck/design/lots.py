@@ -30,6 +30,7 @@ from scipy import special, stats
 
 from stringcheck.design.model import LOGNORMAL_PARAMETERS, SPREAD_PARAMETERS, SPREAD_UNITS, Spread
 from stringcheck.errors import DesignError, QuantityError, excerpt
+from stringcheck.findings import Finding, Value
 from stringcheck.units import parse_quantity
 
 FITS = ("resample", "lognormal", "normal", "auto")
@@ -107,7 +108,7 @@ class MeasuredLot:
     columns: tuple[ColumnFit, ...]
     scores: np.ndarray
     correlation: np.ndarray
-    notes: tuple[str, ...] = ()
+    notes: tuple[Finding, ...] = ()
 
     @property
     def devices(self) -> int:
@@ -147,15 +148,18 @@ class MeasuredLot:
             return None
         return self.serials.index(serial)
 
-    def outside_limits(self, part: str) -> tuple[str, ...]:
-        """One warning per parameter whose measured devices lie outside the datasheet limits."""
+    def outside_limits(self, part: str) -> tuple[Finding, ...]:
+        """One finding per parameter and side whose measured devices lie outside the datasheet
+        limits (code ``lot.below_datasheet_min`` or ``lot.above_datasheet_max``)."""
         notes = []
         for column in self.columns:
-            for count, side in ((column.below, "below the datasheet min"),
-                                (column.above, "above the datasheet max")):
+            for count, side in ((column.below, "below_datasheet_min"),
+                                (column.above, "above_datasheet_max")):
                 if count:
-                    notes.append(f"parts.{part}: {count} of {self.devices} devices of "
-                                 f"{Path(self.path).name} have {column.parameter} {side}")
+                    notes.append(Finding(f"lot.{side}", {
+                        "key": Value(f"parts.{part}"), "count": Value(count),
+                        "devices": Value(self.devices), "file": Value(Path(self.path).name),
+                        "parameter": Value(column.parameter)}))
         return tuple(notes)
 
 
@@ -371,8 +375,7 @@ def _recovery_columns(parameters: tuple[str, ...], values: np.ndarray, source: s
     if not has & {"i_rm", "t_rr"}:
         return parameters, values, ()
     if "q_rr" in has:
-        return parameters, values, ("i_rm and t_rr are shown for reference; the checks use the "
-                                    "measured q_rr",)
+        return parameters, values, (Finding("lot.recovery_for_reference"),)
     if not {"i_rm", "t_rr"} <= has:
         alone = "i_rm" if "i_rm" in has else "t_rr"
         raise DesignError(f"column {alone} alone is not used by any check {where}; measure q_rr, "
@@ -382,7 +385,7 @@ def _recovery_columns(parameters: tuple[str, ...], values: np.ndarray, source: s
     at = sum(SPREAD_PARAMETERS.index(p) < position for p in parameters)
     return (parameters[:at] + ("q_rr",) + parameters[at:],
             np.insert(values, at, charge, axis=1),
-            ("q_rr of each device derived as 1/2 I_RM t_rr from its measured i_rm and t_rr",))
+            (Finding("lot.q_rr_derived"),))
 
 
 def _header(columns, source: str, where: str) -> tuple[list[str], list, str | None]:

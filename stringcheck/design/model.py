@@ -15,6 +15,8 @@ from typing import Mapping
 
 import numpy as np
 
+from stringcheck.findings import Finding
+
 from stringcheck.units import AMPERE, COULOMB, OHM, SECOND, VOLT, Unit
 
 DEFAULT_DERATING = 0.8
@@ -290,7 +292,9 @@ class Design:
     sizing: Sizing
     thermal: Thermal
     review: Review
-    assumptions: tuple[str, ...] = field(default=())
+    # What was assumed on the user's behalf (defaults, derived rows), as findings: the report
+    # says them in words (``report.wording``).
+    assumptions: tuple[Finding, ...] = field(default=())
 
     def mix_variants(self) -> tuple["Design", ...]:
         """The mix-free designs a built string picks its devices from, device by device: the design

@@ -14,6 +14,7 @@ import numpy as np
 from stringcheck.constants import DATASHEET_TEMPERATURE
 from stringcheck.design import device_classes as presets
 from stringcheck.design.model import SPREAD_PARAMETERS, Design, Part, Spread
+from stringcheck.findings import Finding, Value
 from stringcheck.units import (
     AMPERE,
     CELSIUS,
@@ -34,13 +35,9 @@ _PART_SCALARS = {"v_rrm": VOLT, "i_fav": AMPERE, "c_j": FARAD, "r_th_jc": KELVIN
                  "tempco_r_t": PER_KELVIN}
 _PART_DEFAULTS = {"leakage_doubling": 10.0, "leakage_voltage_exponent": 0.5, "c_j": 0.0,
                   "tempco_v_t0": -2e-3, "tempco_r_t": 0.0}
-_PART_DEFAULT_NOTES = {
-    "leakage_doubling": "leakage doubles every 10 K (silicon, common practice)",
-    "leakage_voltage_exponent": "leakage grows as V^0.5 (generation current, abrupt junction)",
-    "c_j": "junction capacitance 0 F (only the grading capacitor counts in the dynamic check)",
-    "tempco_v_t0": "V_T0 temperature coefficient -2 mV/K (silicon PN, common practice)",
-    "tempco_r_t": "r_T temperature coefficient 0 1/K",
-}
+# The assumption each default stands for (its sentence in ``report.wording``).
+_PART_DEFAULT_NOTES = {key: Finding(f"assumed.part_{key}") for key in (
+    "leakage_doubling", "leakage_voltage_exponent", "c_j", "tempco_v_t0", "tempco_r_t")}
 
 
 def read_parts(reader: Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
@@ -69,8 +66,9 @@ def read_parts(reader: Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
             merged.update(presets.preset(device_class))
             inherited = sorted(set(merged) - set(table))
             if inherited:
-                reader.assumptions.append(
-                    f"{prefix}: {', '.join(inherited)} taken from class '{device_class}'")
+                reader.assumptions.append(Finding(
+                    "assumed.from_class", {"key": Value(prefix), "keys": Value(", ".join(inherited)),
+                                           "device_class": Value(device_class)}))
         merged.update({k: v for k, v in table.items() if k not in ("class", "measured", "fit")})
         scalars = {}
         for key, unit in _PART_SCALARS.items():
@@ -121,8 +119,8 @@ def _read_lot(reader: Reader, table: Mapping[str, Any], spreads: dict[str, Sprea
                    fit=fit or "resample", datasheet=spreads)
     where = Path(path_text).name
     if fit is None:
-        reader.assumptions.append(f"{prefix}: devices resampled from the measured lot {where} "
-                                  "(fit not given)")
+        reader.assumptions.append(Finding("assumed.lot_resampled",
+                                          {"key": Value(prefix), "file": Value(where)}))
     for column in lot.columns:
         if spreads[column.parameter] is None:
             # A charge derived from I_RM and t_rr was measured at their test conditions.
@@ -134,11 +132,11 @@ def _read_lot(reader: Reader, table: Mapping[str, Any], spreads: dict[str, Sprea
             spreads[column.parameter] = Spread(typ=column.median,
                                                low=None if fixed else column.low,
                                                high=None if fixed else column.high, **conditions)
-            reader.assumptions.append(
-                f"{prefix}.{column.parameter}: no datasheet row; the measured lot's median, min and "
-                "max stand for it in the textbook bounds (test conditions as noted)")
+            reader.assumptions.append(Finding("assumed.lot_for_row",
+                                              {"key": Value(f"{prefix}.{column.parameter}")}))
     for note in lot.notes:
-        reader.assumptions.append(f"{prefix}.measured: {note}")
+        reader.assumptions.append(Finding("assumed.lot_note", {"key": Value(f"{prefix}.measured"),
+                                                               "note": Value(note.code)}))
     return lot
 
 
@@ -150,12 +148,13 @@ def _leakage_conditions(reader: Reader, spread: Spread | None, v_rrm: float,
     changes = {}
     if spread.at_voltage is None:
         changes["at_voltage"] = v_rrm
-        reader.assumptions.append(f"{prefix}.i_r: at_voltage not given, taken at V_RRM "
-                                  f"({v_rrm:g} V)")
+        reader.assumptions.append(Finding("assumed.leakage_at_v_rrm",
+                                          {"key": Value(f"{prefix}.i_r"), "v_rrm": Value(v_rrm, "V")}))
     if spread.at_temperature is None:
         changes["at_temperature"] = DATASHEET_TEMPERATURE
-        reader.assumptions.append(f"{prefix}.i_r: at_temperature not given, taken at "
-                                  f"{DATASHEET_TEMPERATURE:g} degC")
+        reader.assumptions.append(Finding(
+            "assumed.leakage_at_datasheet_temperature",
+            {"key": Value(f"{prefix}.i_r"), "temperature": Value(DATASHEET_TEMPERATURE, "degC")}))
     return replace(spread, **changes) if changes else spread
 
 

@@ -59,6 +59,7 @@ from stringcheck.units import (
     WATT,
 )
 
+from stringcheck.findings import Finding, Value
 from stringcheck.design.schema import SCHEMA_KEYS, TOP_LEVEL, Reader, join_key
 from stringcheck.design.parts import check_serials, read_parts
 
@@ -192,7 +193,7 @@ def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:
     waveform = reader.text(table, "waveform", "duty", default=None, choices=WAVEFORMS)
     if waveform is None:
         waveform = "dc"
-        reader.assumptions.append("duty.waveform not given: dc (continuous reverse voltage)")
+        reader.assumptions.append(Finding("assumed.waveform_dc", {"key": Value("duty.waveform")}))
     return Duty(
         reverse_voltage=reader.quantity(table, "reverse_voltage", VOLT, "duty", required=True,
                                         positive=True),
@@ -201,7 +202,8 @@ def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:
         frequency=reader.quantity(table, "frequency", HERTZ, "duty", positive=True),
         di_dt=reader.quantity(table, "di_dt", AMPERE_PER_SECOND, "duty", positive=True),
         ambient=reader.quantity(table, "ambient", CELSIUS, "duty", default=DEFAULT_AMBIENT,
-                                note="ambient 25 degC") or 0.0,
+                                note=Finding("assumed.ambient",
+                                             {"ambient": Value(DEFAULT_AMBIENT, "degC")})) or 0.0,
         stray_inductance=reader.quantity(table, "stray_inductance", HENRY, "duty", positive=True),
     )
 
@@ -219,7 +221,8 @@ def _read_string(reader: Reader, raw: Mapping[str, Any], parts: Mapping[str, Par
                                               f"{MAX_DEVICES:,} this tool can hold in memory")
     derating = reader.fraction(table, "derating", "string", default=DEFAULT_DERATING, low=0.0,
                                high=1.0, low_open=True, high_open=False,
-                               note=f"derating {DEFAULT_DERATING:g} x V_RRM (common practice)")
+                               note=Finding("assumed.derating",
+                                            {"derating": Value(DEFAULT_DERATING)}))
     default_part = reader.text(table, "part", "string")
     if default_part is None:
         if len(parts) != 1:

@@ -13,6 +13,7 @@ from typing import Any, Mapping
 
 from stringcheck.design.model import LOGNORMAL_PARAMETERS, SPREAD_UNITS, TYP_FRACTION_OF_MAX, Spread
 from stringcheck.errors import DesignError, QuantityError
+from stringcheck.findings import Finding, Value
 from stringcheck.units import (
     AMPERE,
     AMPERE_PER_SECOND,
@@ -54,7 +55,7 @@ class Reader:
 
     def __init__(self, source: str):
         self.source = source
-        self.assumptions: list[str] = []
+        self.assumptions: list[Finding] = []
 
     def error(self, key: str, message: str) -> DesignError:
         return DesignError(message, source=self.source, key=key)
@@ -75,13 +76,15 @@ class Reader:
 
     def quantity(self, table: Mapping[str, Any], key: str, unit: Unit, prefix: str, *,
                  required: bool = False, default: float | None = None, positive: bool = False,
-                 non_negative: bool = False, note: str | None = None) -> float | None:
+                 non_negative: bool = False, note: Finding | None = None) -> float | None:
+        """The quantity ``key`` of ``table`` in SI; ``note``: the assumption a ``default`` stands
+        for (its values get the dotted ``key``)."""
         dotted = join_key(prefix, key)
         if key not in table:
             if required:
                 raise self.error(dotted, f"missing; give it in {unit.label}, e.g. {_example(unit)}")
             if default is not None and note:
-                self.assumptions.append(f"{dotted} not given: {note}")
+                self.assumptions.append(Finding(note.code, {"key": Value(dotted), **note.values}))
             return default
         # A value's tolerance key in the same table ("capacitor" -> "capacitor_tolerance"), named
         # when the text carries one after its unit ("2.2 nF 10 %").
@@ -101,7 +104,7 @@ class Reader:
 
     def fraction(self, table: Mapping[str, Any], key: str, prefix: str, *, default: float,
                  low: float, high: float, low_open: bool = False, high_open: bool = True,
-                 note: str | None = None) -> float:
+                 note: Finding | None = None) -> float:
         value = self.quantity(table, key, DIMENSIONLESS, prefix, default=default, note=note)
         assert value is not None
         below = value <= low if low_open else value < low
@@ -169,12 +172,13 @@ class Reader:
                 raise self.error(dotted, "give at least 'typ' or 'max' (a lone 'min' says too little)")
             if low is not None:
                 typ = math.sqrt(low * high) if lognormal else 0.5 * (low + high)
-                how = "geometric mean" if lognormal else "midpoint"
-                self.assumptions.append(f"{dotted}: typ not given, taken as the {how} of min and max")
+                how = "geometric_mean" if lognormal else "midpoint"
+                self.assumptions.append(Finding(f"assumed.typ_{how}", {"key": Value(dotted)}))
             else:
                 typ = TYP_FRACTION_OF_MAX[parameter] * high
-                self.assumptions.append(
-                    f"{dotted}: only max given, typ taken as {TYP_FRACTION_OF_MAX[parameter]:g} x max")
+                self.assumptions.append(Finding(
+                    "assumed.typ_from_max",
+                    {"key": Value(dotted), "fraction": Value(TYP_FRACTION_OF_MAX[parameter])}))
             typ_assumed = True
         if low is not None and low > typ:
             raise self.error(dotted, f"min ({raw.get('min')!r}) is above typ; min <= typ <= max")

@@ -42,6 +42,8 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
     for key, value in data.items():
         if key == "impossible_codes":
             out["impossible"] = impossibility_text(result.impossible)
+        if key == "assumption_codes":
+            out["assumptions"] = sentences(result.assumptions)
         out[key] = value
         if key == "network" and value is not None:
             out[key] = network_to_dict(grading)

@@ -15,6 +15,7 @@ from stringcheck.design.model import SPREAD_UNITS, Design
 from stringcheck.units import format_quantity
 from stringcheck.checks.outcome import json_number
 from stringcheck.report.display_text import shown
+from stringcheck.report.wording import sentences
 
 _HOW = {"resample": "devices drawn from the lot itself, without replacement in a string "
                     "(measured correlations kept exactly)",
@@ -84,9 +85,9 @@ def render_lots(design: Design, console: Console, *, also: Design | None = None)
                      for j, b in enumerate(lot.parameters) if j > i]
             console.print("  correlation of the normal scores: " + ", ".join(pairs),
                           highlight=False)
-        for note in lot.notes:
+        for note in sentences(lot.notes):
             console.print(f"  {shown(note)}.", highlight=False)
-        for warning in lot.outside_limits(name):
+        for warning in sentences(lot.outside_limits(name)):
             console.print(Text(f"  ! {shown(warning)}: the lot lies outside the datasheet limits (the "
                                "check uses the devices as measured)", style="yellow"))
         console.print()
@@ -109,7 +110,7 @@ def lots_to_list(design: Design) -> list[dict[str, Any]]:
                         for c in lot.columns],
             "correlation": {"parameters": list(lot.parameters),
                             "matrix": lot.correlation.tolist()},
-            "warnings": list(lot.outside_limits(name)),
-            "notes": list(lot.notes),
+            "warnings": sentences(lot.outside_limits(name)),
+            "notes": sentences(lot.notes),
         })
     return out

@@ -170,7 +170,7 @@ def render_check(result: CheckResult, console: Console, *,
 
     if result.assumptions:
         console.print(Text("Assumptions made", style="bold"))
-        for line in result.assumptions:
+        for line in sentences(result.assumptions):
             console.print(f"  - {shown(line)}")
     if result.no_scatter:
         console.print(Text("Without scatter (fixed values)", style="bold"))

@@ -26,6 +26,19 @@ __all__ = ["CHECK_WORDS", "TEMPLATES", "impossibility_text", "sentence", "senten
 CHECK_WORDS = {"static": "static blocking", "dynamic": "charge-balance turn-off",
                "transient": "simulated turn-off peak"}
 
+# What every recovery-charge assumption ends with.
+_RECOVERY_MODEL = ("junction temperature does not enter Q_rr; the whole string voltage is assumed "
+                   "to appear after recovery (hard commutation)")
+
+# Where the turn-off current comes from (``checks.recovery_conditions.TurnOffCurrent.basis``).
+_TURN_OFF_CURRENT = {
+    "test_current": "I_F = the test I_F ({current:.3g} A; no duty.forward_current)",
+    "square_peak": "I_F = {current:.3g} A per branch, the square wave's peak",
+    "half_sine_average": "I_F = {current:.3g} A per branch, the half-sine's average (its decay "
+                         "to the zero crossing is not modelled)",
+    "dc": "I_F = {current:.3g} A per branch",
+}
+
 TEMPLATES: dict[str, str] = {
     # checks.grading_ratings: ratings exceeded (they fail the verdict)
     "rating.resistor_power":
@@ -64,6 +77,70 @@ TEMPLATES: dict[str, str] = {
         "R_d C = {time_constant:.3g} s is longer than the shortest typical t_rr ({limit:.3g} s): "
         "the capacitor may not take the charge in time; `{option:transient}` checks it in the "
         "time domain",
+    # design.reading: what was assumed on the user's behalf ({key}: the design-file key)
+    "assumed.waveform_dc": "{key} not given: dc (continuous reverse voltage)",
+    "assumed.ambient": "{key} not given: ambient {ambient:g} degC",
+    "assumed.derating": "{key} not given: derating {derating:g} x V_RRM (common practice)",
+    "assumed.part_leakage_doubling":
+        "{key} not given: leakage doubles every 10 K (silicon, common practice)",
+    "assumed.part_leakage_voltage_exponent":
+        "{key} not given: leakage grows as V^0.5 (generation current, abrupt junction)",
+    "assumed.part_c_j":
+        "{key} not given: junction capacitance 0 F (only the grading capacitor counts in the "
+        "dynamic check)",
+    "assumed.part_tempco_v_t0":
+        "{key} not given: V_T0 temperature coefficient -2 mV/K (silicon PN, common practice)",
+    "assumed.part_tempco_r_t": "{key} not given: r_T temperature coefficient 0 1/K",
+    "assumed.typ_geometric_mean": "{key}: typ not given, taken as the geometric mean of min and max",
+    "assumed.typ_midpoint": "{key}: typ not given, taken as the midpoint of min and max",
+    "assumed.typ_from_max": "{key}: only max given, typ taken as {fraction:g} x max",
+    "assumed.from_class": "{key}: {keys} taken from class '{device_class}'",
+    "assumed.lot_resampled": "{key}: devices resampled from the measured lot {file} (fit not given)",
+    "assumed.lot_for_row":
+        "{key}: no datasheet row; the measured lot's median, min and max stand for it in the "
+        "textbook bounds (test conditions as noted)",
+    "assumed.lot_note": "{key}: {note:sentence}",
+    "assumed.leakage_at_v_rrm": "{key}: at_voltage not given, taken at V_RRM ({v_rrm:g} V)",
+    "assumed.leakage_at_datasheet_temperature":
+        "{key}: at_temperature not given, taken at {temperature:g} degC",
+    "assumed.q_rr_from_i_rm_t_rr":
+        "{key} derived as 1/2 I_RM t_rr from i_rm and t_rr (max from the product of maxima: "
+        "conservative)",
+    # design.lots: what a measured lot's reading derived or found
+    "lot.recovery_for_reference":
+        "i_rm and t_rr are shown for reference; the checks use the measured q_rr",
+    "lot.q_rr_derived":
+        "q_rr of each device derived as 1/2 I_RM t_rr from its measured i_rm and t_rr",
+    "lot.below_datasheet_min":
+        "{key}: {count} of {devices} devices of {file} have {parameter} below the datasheet min",
+    "lot.above_datasheet_max":
+        "{key}: {count} of {devices} devices of {file} have {parameter} above the datasheet max",
+    # checks.preconditions: the model's assumptions
+    "model.static_dc":
+        "static: the peak reverse voltage is held as dc; at line frequency the grading capacitors "
+        "also share the voltage, which this check does not credit",
+    "model.junction_temperature":
+        "junction temperature = ambient + the position's temperature_rise (no self-heating); "
+        "leakage referred from its datasheet temperature with the part's doubling temperature",
+    "model.resistor_tcr":
+        "grading resistor TCR referred to {reference:g} degC, resistor at its diode's temperature",
+    "model.mixed_stock":
+        "mixed stock: {mix}; a mixed position (part A|B) is judged device by device against the "
+        "limit of the part drawn, and its per-position limit shown is the lowest of the two",
+    # checks.recovery_conditions: how the recovery charge was carried to the application
+    "recovery.not_rescaled":
+        "recovery charge: Q_rr taken at the datasheet's test conditions, not rescaled to the "
+        "application ({missing}); " + _RECOVERY_MODEL,
+    "recovery.no_fit":
+        "recovery charge: Q_rr taken at the datasheet's test conditions: parts.{part}'s typical "
+        "q_rr, i_rm or t_rr and at_di_dt fit no recovery waveform; " + _RECOVERY_MODEL,
+    **{f"recovery.carried.{basis}":
+       "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the "
+       f"application's ({current}, di/dt = {{di_dt:.3g}} A/s) through the charge-control model "
+       "fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); the charge balance "
+       "of the dynamic check and the recovery loss of the thermal check use the same carried "
+       "value{untested:untested_current}; " + _RECOVERY_MODEL
+       for basis, current in _TURN_OFF_CURRENT.items()},
     # checks.preconditions: no built string can pass, whatever is drawn (the arithmetic)
     "impossible.string_voltage":
         "the string cannot hold {voltage:g} V even with perfect sharing: the sum of derating x "
@@ -118,6 +195,11 @@ def _within(parameter: str) -> str:
         "a factor of 2 or 3" if parameter in LOGNORMAL_PARAMETERS else "some tens of percent")
 
 
+def _untested_current(parts: str) -> str:
+    return "" if not parts else (f"; {parts} give(s) no q_rr.at_forward_current: Q_rr taken as "
+                                 "given at the turn-off current (not rescaled in current)")
+
+
 # Format specs that word a value rather than format its number.
 _WORDED = {
     "check": lambda name: CHECK_WORDS.get(name, name),
@@ -125,6 +207,9 @@ _WORDED = {
     "within": _within,
     "times": _times,
     "typ_note": lambda assumed: " (typ assumed from the max)" if assumed else "",
+    "untested_current": _untested_current,
+    # A value that is itself a finding's code without values: its sentence.
+    "sentence": lambda code: TEMPLATES[code],
 }
 
 

@@ -143,7 +143,7 @@ class CheckResult(Exported):
 
     json_order = ("schema", "design", "trials", "seed", "confidence", "target_p_fail",
                   "trials_needed", "verdict", "impossible_codes", "checks", "skipped", "network",
-                  "drivers", "assumptions", "no_scatter", "warnings")
+                  "drivers", "assumption_codes", "no_scatter", "warnings")
 
     design: Design = figure(encode=_design_to_dict)
     trials: int = figure()
@@ -156,7 +156,7 @@ class CheckResult(Exported):
     # Why no built string can pass (findings; empty when it can): their codes here, the text
     # (``impossible``) written beside them by report.export.
     impossible: tuple[Finding, ...] = figure("impossible_codes", encode=codes)
-    assumptions: tuple[str, ...] = figure(encode=listed)
+    assumptions: tuple[Finding, ...] = figure("assumption_codes", encode=codes)
     no_scatter: tuple[str, ...] = figure(encode=listed)
     drivers: tuple[Driver, ...] = figure(encode=drivers_to_list, default=())
     # Valid values that are probably slips (``plausibility``): shown by the report, never fatal.
@@ -324,7 +324,7 @@ class _Plan:
     context: _ChunkContext
     reasons: dict[str, str]
     run_forward: bool
-    note: str  # how the recovery charge was carried to the application (an assumption)
+    note: Finding | None  # how the recovery charge was carried to the application (an assumption)
 
 
 def _plan(design: Design, seed: int, only: tuple[str, ...] | None, drivers: bool) -> _Plan:
@@ -340,7 +340,7 @@ def _plan(design: Design, seed: int, only: tuple[str, ...] | None, drivers: bool
     # The recovery charge carried to the application's turn-off: one value per drawn device for
     # the dynamic check and the thermal check's recovery loss (a turn-off exactly when the
     # dynamic check can run: an ac waveform or a di_dt).
-    rescaling, note = recovery_rescaling(design) if run_dynamic else (None, "")
+    rescaling, note = recovery_rescaling(design) if run_dynamic else (None, None)
     forward = None
     if not (reasons["parallel"] and reasons["thermal"]):
         forward = forward_setup(design, reasons["parallel"], reasons["thermal"], rescaling)

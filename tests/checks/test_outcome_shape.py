@@ -141,7 +141,7 @@ def test_result_to_frame_stacks_every_check(result):
 def test_result_to_dict_is_the_export_without_the_worded_sections(result):
     exported = result_to_dict(result)
     own = result.to_dict()
-    assert set(exported) - set(own) == {"lots", "cautions", "impossible"}
+    assert set(exported) - set(own) == {"lots", "cautions", "impossible", "assumptions"}
     assert all(exported[key] == value for key, value in own.items() if key != "network")
     assert exported["impossible"] is None if not own["impossible_codes"] else exported["impossible"]
     assert [key for key in exported if key in own] == list(own)

@@ -19,6 +19,7 @@ from stringcheck.physics.charge_control_fit import (
 from stringcheck.report.export import json_text, result_to_dict
 from stringcheck.studies.check import run_check
 from stringcheck.checks.recovery_conditions import recovery_rescaling, rescale_charges
+from stringcheck.report.wording import sentence, sentences
 
 DEMO = (resources.files("stringcheck") / "data" / "demo.toml").read_text(encoding="utf-8")
 
@@ -53,7 +54,7 @@ def test_application_at_the_test_conditions_leaves_q_rr_unchanged():
     grid = design.string.part_grid()
     charge = np.random.default_rng(1).lognormal(np.log(80e-9), 0.3, size=(500, 1, grid.shape[1]))
     np.testing.assert_allclose(rescale_charges(charge, grid, rescaling), charge, rtol=1e-6)
-    assert "carried" in note
+    assert "carried" in sentence(note)
 
 
 def test_faster_turn_off_means_more_recovery_charge_and_a_harder_dynamic_check():
@@ -63,7 +64,7 @@ def test_faster_turn_off_means_more_recovery_charge_and_a_harder_dynamic_check()
     slow = run_check(parse_design_text(_with_duty("0.5 A", "5 A/us")), trials=2000)
     fast = run_check(parse_design_text(_with_duty("0.5 A", "40 A/us")), trials=2000)
     assert fast.checks["dynamic"].worst_voltage > slow.checks["dynamic"].worst_voltage
-    assert any("carried" in line for line in fast.assumptions)
+    assert any("carried" in line for line in sentences(fast.assumptions))
 
 
 def test_without_recovery_data_the_report_says_q_rr_is_not_rescaled():
@@ -71,7 +72,7 @@ def test_without_recovery_data_the_report_says_q_rr_is_not_rescaled():
     text = DEMO.replace('t_rr = { typ = "0.2 us", max = "0.3 us", at_di_dt = "10 A/us" }\n', "")
     text = "\n".join(line for line in text.splitlines() if not line.startswith("class ="))
     result = run_check(parse_design_text(text), trials=200)
-    assert any("not rescaled" in line for line in result.assumptions)
+    assert any("not rescaled" in line for line in sentences(result.assumptions))
 
 
 # Two devices in series, one branch, fixed values ({typ} alone), a square current: part A recovers
@@ -210,4 +211,5 @@ def test_without_a_test_current_q_rr_is_taken_at_the_turn_off_current_of_a_branc
     # Fixed parts (typ only): A's 1 uC and B's 1.5 uC, as drawn.
     charge = np.broadcast_to(np.where(grid == "A", 1e-6, 1.5e-6), (4,) + grid.shape)
     np.testing.assert_allclose(rescale_charges(charge, grid, rescaling), charge, rtol=1e-6)
-    assert "no q_rr.at_forward_current" in note and "not rescaled in current" in note
+    assert "no q_rr.at_forward_current" in sentence(note) and \
+        "not rescaled in current" in sentence(note)

@@ -25,6 +25,7 @@ from stringcheck.errors import DesignError
 from stringcheck.design.lots import fit_column, rank_scores, score_correlation
 from stringcheck.montecarlo.sampling import draw_strings
 from stringcheck.studies.check import run_check
+from stringcheck.report.wording import sentences
 
 DESIGN = """
 [duty]
@@ -136,7 +137,7 @@ def test_lot_outside_the_datasheet_limit_is_counted(tmp_path):
     leakage = lot.columns[0]
     assert (leakage.below, leakage.above) == (0, 2)
     assert any("2 of 6 devices" in w and "above the datasheet max" in w
-               for w in lot.outside_limits("A"))
+               for w in sentences(lot.outside_limits("A")))
 
 
 # --- errors: one DesignError naming the lot, the row and the column --------------------------------
@@ -574,7 +575,7 @@ def test_a_lot_of_i_rm_and_t_rr_gives_each_device_its_charge(tmp_path):
     np.testing.assert_allclose(lot.column("q_rr"), [100e-9, 120e-9], rtol=1e-12)
     drawn = draw_strings(design, ("i_r", "q_rr"), 0, 50).parameters["q_rr"]
     np.testing.assert_allclose(np.unique(drawn), [1e-7, 1.2e-7], rtol=1e-12)
-    assert any("1/2 I_RM t_rr" in note for note in design.assumptions)
+    assert any("1/2 I_RM t_rr" in note for note in sentences(design.assumptions))
 
 
 def test_recovery_time_alone_is_refused(tmp_path):

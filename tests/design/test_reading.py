@@ -21,6 +21,7 @@ from stringcheck.design.reading import load_design, parse_design_text
 from stringcheck.errors import DesignError
 from stringcheck.design.device_classes import preset
 from stringcheck.report.starter import starter_design
+from stringcheck.report.wording import sentences
 from tests import designs
 
 # A small valid design; tests replace whole tables of it. Values of our own invention.
@@ -76,7 +77,7 @@ def test_demo_loads_with_its_values():
     assert not rise[0, 4:].any()
     # The class supplies the keys the part leaves out, and the report is told so.
     assert part.v_t0 is not None
-    assert any("taken from class 'si-fast-recovery'" in line for line in design.assumptions)
+    assert any("taken from class 'si-fast-recovery'" in line for line in sentences(design.assumptions))
 
 
 def test_starter_design_loads():
@@ -123,7 +124,7 @@ def test_max_only_spread_takes_the_documented_typ(parameter):
     assert spread.typ == pytest.approx(TYP_FRACTION_OF_MAX[parameter] * 2 * scale)
     assert spread.typ_assumed and not spread.fixed
     assert f"parts.A.{parameter}: only max given, typ taken as " \
-           f"{TYP_FRACTION_OF_MAX[parameter]:g} x max" in design.assumptions
+           f"{TYP_FRACTION_OF_MAX[parameter]:g} x max" in sentences(design.assumptions)
 
 
 def test_leakage_typ_fraction_is_a_decade_below_max():
@@ -139,8 +140,8 @@ def test_min_and_max_without_typ_take_the_geometric_mean_or_midpoint():
     design = parse_design_text(design_text(parts_A=body))
     assert design.parts["A"].i_r.typ == pytest.approx(1e-6)
     assert design.parts["A"].v_t0.typ == pytest.approx(1.0)
-    assert any("geometric mean" in line for line in design.assumptions)
-    assert any("midpoint" in line for line in design.assumptions)
+    assert any("geometric mean" in line for line in sentences(design.assumptions))
+    assert any("midpoint" in line for line in sentences(design.assumptions))
 
 
 @pytest.mark.parametrize("body", ['q_rr = { typ = "80 nC" }', 'q_rr = "80 nC"', 'q_rr = 80e-9',
@@ -167,8 +168,8 @@ def test_spread_conditions_are_kept_and_leakage_conditions_defaulted():
     # Leakage without test conditions: taken at V_RRM and 25 degC, and listed as assumptions.
     assert part.i_r.at_voltage == 1600.0
     assert part.i_r.at_temperature == DEFAULT_AMBIENT
-    assert any("at_voltage not given" in line for line in design.assumptions)
-    assert any("at_temperature not given" in line for line in design.assumptions)
+    assert any("at_voltage not given" in line for line in sentences(design.assumptions))
+    assert any("at_temperature not given" in line for line in sentences(design.assumptions))
 
 
 def test_defaults_are_recorded_as_assumptions():
@@ -177,7 +178,7 @@ def test_defaults_are_recorded_as_assumptions():
     assert design.duty.waveform == "dc"
     assert design.string.derating == DEFAULT_DERATING
     assert design.string.parallel == 1
-    lines = "\n".join(design.assumptions)
+    lines = "\n".join(sentences(design.assumptions))
     assert "duty.ambient not given" in lines
     assert "duty.waveform not given" in lines
     assert "string.derating not given" in lines
@@ -215,7 +216,7 @@ def test_part_key_overrides_the_class_key_whole():
     assert part.i_fav == 30.0  # si-fast-recovery "30 A"
     assert part.t_rr.typ == pytest.approx(0.2e-6)
     assert part.device_class == "si-fast-recovery"
-    inherited = [line for line in design.assumptions if "taken from class" in line]
+    inherited = [line for line in sentences(design.assumptions) if "taken from class" in line]
     assert len(inherited) == 1
     assert "t_rr" in inherited[0] and "q_rr" not in inherited[0] and "v_rrm" not in inherited[0]
 

@@ -17,6 +17,10 @@ from stringcheck.report.wording import (CHECK_WORDS, TEMPLATES, impossibility_te
 
 PACKAGE = Path(__file__).resolve().parents[2] / "stringcheck"
 
+# What every recovery-charge assumption said at its end (checks/preconditions.py).
+RECOVERY_MODEL = ("junction temperature does not enter Q_rr; the whole string voltage is assumed "
+                  "to appear after recovery (hard commutation)")
+
 # One finding per code and the sentence the code printed before it was a finding (the f-strings
 # of checks/grading_ratings.py, checks/preconditions.py, checks/plausibility.py and studies/size.py,
 # evaluated for these values with units.format_quantity's three significant figures).
@@ -111,6 +115,117 @@ TODAY = [
                                        "raised": Value(6.8e-10, "F")}),
      "capacitor raised from 4.7e-10 F to 6.8e-10 F: no damping resistor kept the simulated "
      "turn-off within the limit"),
+    # design/schema.py, design/reading.py, design/parts.py, design/lots.py: the assumptions made
+    # on the user's behalf, as the f-strings there wrote them
+    (Finding("assumed.waveform_dc", {"key": Value("duty.waveform")}),
+     "duty.waveform not given: dc (continuous reverse voltage)"),
+    (Finding("assumed.ambient", {"key": Value("duty.ambient"), "ambient": Value(25.0, "degC")}),
+     "duty.ambient not given: ambient 25 degC"),
+    (Finding("assumed.derating", {"key": Value("string.derating"), "derating": Value(0.8)}),
+     "string.derating not given: derating 0.8 x V_RRM (common practice)"),
+    (Finding("assumed.part_leakage_doubling", {"key": Value("parts.A.leakage_doubling")}),
+     "parts.A.leakage_doubling not given: leakage doubles every 10 K (silicon, common practice)"),
+    (Finding("assumed.part_leakage_voltage_exponent",
+             {"key": Value("parts.A.leakage_voltage_exponent")}),
+     "parts.A.leakage_voltage_exponent not given: leakage grows as V^0.5 (generation current, "
+     "abrupt junction)"),
+    (Finding("assumed.part_c_j", {"key": Value("parts.A.c_j")}),
+     "parts.A.c_j not given: junction capacitance 0 F (only the grading capacitor counts in the "
+     "dynamic check)"),
+    (Finding("assumed.part_tempco_v_t0", {"key": Value("parts.A.tempco_v_t0")}),
+     "parts.A.tempco_v_t0 not given: V_T0 temperature coefficient -2 mV/K (silicon PN, common "
+     "practice)"),
+    (Finding("assumed.part_tempco_r_t", {"key": Value("parts.A.tempco_r_t")}),
+     "parts.A.tempco_r_t not given: r_T temperature coefficient 0 1/K"),
+    (Finding("assumed.typ_geometric_mean", {"key": Value("parts.A.i_r")}),
+     "parts.A.i_r: typ not given, taken as the geometric mean of min and max"),
+    (Finding("assumed.typ_midpoint", {"key": Value("parts.A.v_t0")}),
+     "parts.A.v_t0: typ not given, taken as the midpoint of min and max"),
+    (Finding("assumed.typ_from_max", {"key": Value("parts.A.i_r"), "fraction": Value(0.1)}),
+     "parts.A.i_r: only max given, typ taken as 0.1 x max"),
+    (Finding("assumed.from_class", {"key": Value("parts.A"), "keys": Value("c_j, v_rrm"),
+                                    "device_class": Value("si-fast-recovery")}),
+     "parts.A: c_j, v_rrm taken from class 'si-fast-recovery'"),
+    (Finding("assumed.lot_resampled", {"key": Value("parts.A"), "file": Value("lot.csv")}),
+     "parts.A: devices resampled from the measured lot lot.csv (fit not given)"),
+    (Finding("assumed.lot_for_row", {"key": Value("parts.A.q_rr")}),
+     "parts.A.q_rr: no datasheet row; the measured lot's median, min and max stand for it in the "
+     "textbook bounds (test conditions as noted)"),
+    (Finding("assumed.lot_note", {"key": Value("parts.A.measured"),
+                                  "note": Value("lot.q_rr_derived")}),
+     "parts.A.measured: q_rr of each device derived as 1/2 I_RM t_rr from its measured i_rm and "
+     "t_rr"),
+    (Finding("assumed.leakage_at_v_rrm", {"key": Value("parts.A.i_r"), "v_rrm": Value(1200.0, "V")}),
+     "parts.A.i_r: at_voltage not given, taken at V_RRM (1200 V)"),
+    (Finding("assumed.leakage_at_datasheet_temperature",
+             {"key": Value("parts.A.i_r"), "temperature": Value(25.0, "degC")}),
+     "parts.A.i_r: at_temperature not given, taken at 25 degC"),
+    (Finding("assumed.q_rr_from_i_rm_t_rr", {"key": Value("parts.A.q_rr")}),
+     "parts.A.q_rr derived as 1/2 I_RM t_rr from i_rm and t_rr (max from the product of maxima: "
+     "conservative)"),
+    (Finding("lot.recovery_for_reference"),
+     "i_rm and t_rr are shown for reference; the checks use the measured q_rr"),
+    (Finding("lot.q_rr_derived"),
+     "q_rr of each device derived as 1/2 I_RM t_rr from its measured i_rm and t_rr"),
+    (Finding("lot.below_datasheet_min", {"key": Value("parts.A"), "count": Value(2),
+                                         "devices": Value(6), "file": Value("lot.csv"),
+                                         "parameter": Value("i_r")}),
+     "parts.A: 2 of 6 devices of lot.csv have i_r below the datasheet min"),
+    (Finding("lot.above_datasheet_max", {"key": Value("parts.A"), "count": Value(2),
+                                         "devices": Value(6), "file": Value("lot.csv"),
+                                         "parameter": Value("q_rr")}),
+     "parts.A: 2 of 6 devices of lot.csv have q_rr above the datasheet max"),
+    # checks/preconditions.py and checks/recovery_conditions.py: the model's assumptions
+    (Finding("model.static_dc"),
+     "static: the peak reverse voltage is held as dc; at line frequency the grading capacitors "
+     "also share the voltage, which this check does not credit"),
+    (Finding("model.junction_temperature"),
+     "junction temperature = ambient + the position's temperature_rise (no self-heating); "
+     "leakage referred from its datasheet temperature with the part's doubling temperature"),
+    (Finding("model.resistor_tcr", {"reference": Value(25.0, "degC")}),
+     "grading resistor TCR referred to 25 degC, resistor at its diode's temperature"),
+    (Finding("model.mixed_stock", {"mix": Value("30 % of positions B")}),
+     "mixed stock: 30 % of positions B; a mixed position (part A|B) is judged device by device "
+     "against the limit of the part drawn, and its per-position limit shown is the lowest of "
+     "the two"),
+    (Finding("recovery.not_rescaled", {"missing": Value("no di/dt")}),
+     "recovery charge: Q_rr taken at the datasheet's test conditions, not rescaled to the "
+     "application (no di/dt); " + RECOVERY_MODEL),
+    (Finding("recovery.no_fit", {"part": Value("A")}),
+     "recovery charge: Q_rr taken at the datasheet's test conditions: parts.A's typical q_rr, "
+     "i_rm or t_rr and at_di_dt fit no recovery waveform; " + RECOVERY_MODEL),
+    (Finding("recovery.carried.dc", {"current": Value(12.5, "A"), "di_dt": Value(5e7, "A/s"),
+                                     "untested": Value("")}),
+     "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
+     "(I_F = 12.5 A per branch, di/dt = 5e+07 A/s) through the charge-control model fitted to "
+     "each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); the charge balance of the "
+     "dynamic check and the recovery loss of the thermal check use the same carried value; "
+     + RECOVERY_MODEL),
+    (Finding("recovery.carried.square_peak", {"current": Value(25.0, "A"),
+                                              "di_dt": Value(5e7, "A/s"),
+                                              "untested": Value("parts.A, parts.B")}),
+     "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
+     "(I_F = 25 A per branch, the square wave's peak, di/dt = 5e+07 A/s) through the "
+     "charge-control model fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); "
+     "the charge balance of the dynamic check and the recovery loss of the thermal check use the "
+     "same carried value; parts.A, parts.B give(s) no q_rr.at_forward_current: Q_rr taken as "
+     "given at the turn-off current (not rescaled in current); " + RECOVERY_MODEL),
+    (Finding("recovery.carried.half_sine_average", {"current": Value(12.5, "A"),
+                                                    "di_dt": Value(1e7, "A/s"),
+                                                    "untested": Value("")}),
+     "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
+     "(I_F = 12.5 A per branch, the half-sine's average (its decay to the zero crossing is not "
+     "modelled), di/dt = 1e+07 A/s) through the charge-control model fitted to each part's "
+     "typical Q_rr and I_RM or t_rr (Lauritzen-Ma); the charge balance of the dynamic check and "
+     "the recovery loss of the thermal check use the same carried value; " + RECOVERY_MODEL),
+    (Finding("recovery.carried.test_current", {"current": Value(10.0, "A"),
+                                               "di_dt": Value(5e7, "A/s"),
+                                               "untested": Value("")}),
+     "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
+     "(I_F = the test I_F (10 A; no duty.forward_current), di/dt = 5e+07 A/s) through the "
+     "charge-control model fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); "
+     "the charge balance of the dynamic check and the recovery loss of the thermal check use the "
+     "same carried value; " + RECOVERY_MODEL),
 ]
 # The command line's wording of the one code that names a setting (the JSON of `size` has it).
 SIZE_DAMPING = (Finding("size.damping_slower_than_recovery", {"time_constant": Value(3.3e-7, "s")},
@@ -166,6 +281,16 @@ def _produced_codes() -> set[str]:
             elif isinstance(node, ast.Constant) and isinstance(node.value, str) and \
                     re.fullmatch(r"(rating|advisory|size|plausibility|impossible)\.[a-z_]+",
                                  node.value):
+                found.add(node.value)
+            # a code built from a prefix (f"assumed.part_{key}"): every template it can name
+            elif isinstance(node, ast.JoinedStr) and node.values and \
+                    isinstance(node.values[0], ast.Constant) and \
+                    re.fullmatch(r"(assumed|lot|recovery)\.[a-z_.]*", node.values[0].value):
+                prefix = node.values[0].value
+                found.update(code for code in TEMPLATES if code.startswith(prefix))
+            # a code named by a constant beside the finding (_PART_DEFAULT_NOTES' keys)
+            elif isinstance(node, ast.Constant) and isinstance(node.value, str) and \
+                    re.fullmatch(r"(assumed|lot|model|recovery)\.[a-z_.]*[a-z]", node.value):
                 found.add(node.value)
     return found
 

@@ -11,6 +11,7 @@ from stringcheck.physics.grading import worst_case_dynamic_capacitance, worst_ca
 import stringcheck.studies.check as check_study
 from stringcheck.report.export import result_to_dict
 from stringcheck.studies.check import run_check
+from stringcheck.report.wording import sentences
 from tests.designs import corner_design, design_text
 
 
@@ -138,7 +139,7 @@ def test_recovery_charge_derived_from_peak_current_and_time():
     text = corner_design(resistor=1e5, capacitor=1e-6).replace(
         "q_rr = { typ = 1e-06 }", "i_rm = { typ = 2.0 }\nt_rr = { typ = 1e-6 }")
     result = run_check(parse_design_text(text))
-    assert any("1/2 I_RM t_rr" in note for note in result.assumptions)
+    assert any("1/2 I_RM t_rr" in note for note in sentences(result.assumptions))
     # All SLOW devices now have Q_rr = 1 uC: the same as the corner written directly.
     direct = run_check(parse_design_text(corner_design(resistor=1e5, capacitor=1e-6)))
     assert result.checks["dynamic"].worst_voltage == pytest.approx(
