@@ -35,6 +35,7 @@ from stringcheck.cli.options import (
     JsonPath,
     Quiet,
     Rare,
+    ReportPath,
     Seed,
     TRANSIENT_WORST,
     Transient,
@@ -71,8 +72,14 @@ def _options(
     """Monte Carlo checks of voltage sharing in series strings of power diodes."""
 
 
+def _command_line() -> list[str]:
+    """The command as typed (for the HTML report's header)."""
+    return ["stringcheck", *sys.argv[1:]]
+
+
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
-           transient=None, drivers=False, rare=None, source_label=None) -> int:
+           transient=None, drivers=False, rare=None, source_label=None,
+           report_path=None) -> int:
     from stringcheck.design.reading import load_design
     from stringcheck.report.export import json_text, positions_csv, result_to_dict
     from stringcheck.report.terminal import render_check, render_check_summary
@@ -80,14 +87,14 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
 
     design = load_design(path)
     output_files.check_output_targets(
-        {"--json": json_path, "--csv": csv_path},
+        {"--json": json_path, "--csv": csv_path, "--report": report_path},
         inputs=output_files.design_inputs(design, path, "the design file" if source_label is None
                                           else "the bundled demo design"))
     if source_label is not None:
         from dataclasses import replace
 
         design = replace(design, source=source_label)
-    to_stdout = "-" in (json_path, csv_path)
+    to_stdout = "-" in (json_path, csv_path, report_path)
     with DelayedProgress(enabled=not quiet, label="drawing strings") as progress:
         result = run_check(design, trials=trials, seed=seed, progress=progress, workers=workers,
                            drivers=drivers, rare=rare, **(transient or {}))
@@ -98,6 +105,11 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
         outputs.append((json_path, json_text(result_to_dict(result))))
     if csv_path is not None:
         outputs.append((csv_path, positions_csv(result)))
+    if report_path is not None:
+        from stringcheck.report.html_page import check_page
+
+        outputs.append((report_path, check_page(result, command_line=_command_line(),
+                                                spell=option_wording)))
     with output_files.atomic_outputs(outputs):
         # With machine output on standard output, the report goes to stderr so the two never mix.
         _print_report(result, quiet=quiet, stderr=to_stdout,
@@ -126,6 +138,7 @@ def check(
     seed: Seed = None,
     json: JsonPath = None,
     csv: CsvPath = None,
+    report: ReportPath = None,
     quiet: Quiet = False,
     workers: Workers = 1,
     transient: Transient = False,
@@ -140,7 +153,7 @@ def check(
     options = _transient_options(transient, transient_worst, transient_sample)
     run_guarded(lambda: _check(file, trials=trials, seed=seed, json_path=json, csv_path=csv,
                                quiet=quiet, workers=workers, transient=options, drivers=drivers,
-                               rare=rare), debug)
+                               rare=rare, report_path=report), debug)
 
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,
@@ -299,6 +312,7 @@ def demo(
     seed: Seed = None,
     json: JsonPath = None,
     csv: CsvPath = None,
+    report: ReportPath = None,
     quiet: Quiet = False,
     workers: Workers = 1,
     transient: Transient = False,
@@ -315,7 +329,8 @@ def demo(
         with resources.as_file(resources.files("stringcheck") / "data" / "demo.toml") as path:
             return _check(path, trials=trials, seed=seed, json_path=json, csv_path=csv,
                           quiet=quiet, workers=workers, transient=options, drivers=drivers,
-                          rare=rare, source_label="demo (bundled example)")
+                          rare=rare, source_label="demo (bundled example)",
+                          report_path=report)
 
     run_guarded(action, debug)
 
