@@ -53,6 +53,9 @@ app = typer.Typer(
     no_args_is_help=True,
     help="Monte Carlo checks of voltage sharing in series strings of power diodes.",
     pretty_exceptions_enable=False,
+    # Help text is plain text: "[sizing]" names a design-file table, not rich markup.
+    rich_markup_mode=None,
+    context_settings={"help_option_names": ["-h", "--help"]},
 )
 
 
@@ -113,7 +116,11 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
     with output_files.atomic_outputs(outputs):
         # With machine output on standard output, the report goes to stderr so the two never mix.
         _print_report(result, quiet=quiet, stderr=to_stdout,
-                      full=lambda shown, on: render_check(shown, on, spell=option_wording),
+                      full=lambda shown, on: render_check(
+                          shown, on, spell=option_wording,
+                          trace=None if source_label is not None else
+                          lambda trial, seed, trials: f"stringcheck wave {path} --trial {trial} "
+                                                      f"--trials {trials} --seed {seed}"),
                       summary=render_check_summary)
     return EXIT_PASS if result.verdict == "pass" else EXIT_FAIL
 
@@ -265,22 +272,62 @@ def review(
                                 drivers=drivers, rare=rare), debug)
 
 
-def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height) -> int:
+def _window_end(text: str) -> float:
+    """``--window`` as a duration [s] (one-line error, exit 2, for anything else)."""
+    from stringcheck.errors import QuantityError
+    from stringcheck.units import SECOND, parse_quantity
+
+    try:
+        value = parse_quantity(text, SECOND, key="--window")
+    except QuantityError as error:
+        raise StringcheckError(str(error)) from None
+    if not value > 0:
+        raise StringcheckError(f"--window: must be a duration above zero, got {text!r}")
+    return value
+
+
+def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height,
+          png_path=None, svg_path=None, window=None) -> int:
     from stringcheck.checks.transient import trial_trace
     from stringcheck.design.reading import load_design
     from stringcheck.report.waveform import render_wave, waveform_csv
 
+    window_end = None if window is None else _window_end(window)
     design = load_design(path)
-    output_files.check_output_targets({"--csv": csv_path},
+    output_files.check_output_targets({"--csv": csv_path, "--png": png_path, "--svg": svg_path},
                                       inputs=output_files.design_inputs(design, path))
     result, notes = trial_trace(design, trial, trials=trials, seed=seed, branch=branch)
     outputs = [] if csv_path is None else \
         [(csv_path, waveform_csv(result.trace, capacitor_voltages=True))]
+    if png_path is not None or svg_path is not None:
+        outputs += _wave_images(design, result, trial, branch, png_path, svg_path, window_end)
     shown_on = console(stderr=csv_path == "-")
     with output_files.atomic_outputs(outputs), output_files.report_stream(csv_path == "-"):
         render_wave(design.title, trial, branch, result, notes, shown_on, width=width,
                     height=height, worst=worst)
     return EXIT_PASS
+
+
+def _wave_images(design, result, trial, branch, png_path, svg_path, window_end):
+    """The PNG and SVG of one trial's turn-off, as (path, content) for the atomic outputs."""
+    import numpy as np
+
+    from stringcheck.montecarlo.mixed_stock import position_values
+    from stringcheck.report.figures import event_window, wave_figure
+    from stringcheck.report.waveform import trial_waveform
+
+    waveform = trial_waveform(result.trace)
+    # Each stage's device limit (the lowest part that can stand there under a mix).
+    limits = design.string.derating * position_values(design, lambda p: p.v_rrm,
+                                                      pick=np.minimum)[branch - 1]
+    span = event_window(waveform) if window_end is None else (0.0, window_end)
+    title = f"{design.title}: trial {trial}, branch {branch}"
+    images = []
+    for path, kind in ((png_path, "png"), (svg_path, "svg")):
+        if path is not None:
+            images.append((path, wave_figure(waveform, limits=list(limits), window=span,
+                                             title=title, image=kind)))
+    return images
 
 
 @app.command()
@@ -299,11 +346,20 @@ def wave(
     seed: Seed = None,
     csv: Annotated[Optional[str], typer.Option(
         "--csv", metavar="PATH", help="Write the waveforms of the trial as CSV.")] = None,
+    png: Annotated[Optional[str], typer.Option(
+        "--png", metavar="PATH", help="Also draw the turn-off as a PNG image.")] = None,
+    svg: Annotated[Optional[str], typer.Option(
+        "--svg", metavar="PATH", help="Also draw the turn-off as an SVG image.")] = None,
+    window: Annotated[Optional[str], typer.Option(
+        "--window", metavar="TIME",
+        help="Time span of the PNG/SVG from the source reversal, e.g. '2 us' (default: the event, "
+             "until the stages settle).")] = None,
     debug: Debug = False,
 ) -> None:
     """Simulate one built string's turn-off and plot its stage voltages and loop current."""
     run_guarded(lambda: _wave(file, trial=trial, branch=branch, trials=trials, seed=seed,
-                              csv_path=csv, worst=worst, width=width, height=height), debug)
+                              csv_path=csv, worst=worst, width=width, height=height,
+                              png_path=png, svg_path=svg, window=window), debug)
 
 
 @app.command()

@@ -23,8 +23,9 @@ import numpy as np  # noqa: E402
 
 from stringcheck.units import ENGINEERING_PREFIXES  # noqa: E402
 
-__all__ = ["branch_current_figure", "drivers_figure", "junction_figure", "position_figure",
-           "stress_distribution_figure", "sizing_curve_figure", "svg_text", "wave_figure"]
+__all__ = ["branch_current_figure", "drivers_figure", "event_window", "junction_figure",
+           "position_figure", "runaway_figure", "sizing_curve_figure", "stress_distribution_figure",
+           "svg_text", "wave_figure"]
 
 # Our own plain look: ink for data, a second ink for limits; widths and dashes tell them apart.
 INK = "#1f3b4d"
@@ -296,31 +297,74 @@ def sizing_curve_figure(points, *, x_label: str, x_unit: str, target: float,
     return svg_text(figure)
 
 
+def event_window(waveform, *, settle: float = 0.02) -> tuple[float, float]:
+    """The time span of a turn-off worth drawing [s]: from the source reversal to when every
+    stage voltage has stayed within ``settle`` x the highest peak of its final value, with a
+    quarter of that span again after it (the whole record when it never settles).
+    ``waveform``: a ``report.waveform.TrialWaveform``."""
+    time = np.asarray(waveform.time, float)
+    voltage = np.asarray(waveform.voltage, float)
+    if time.size < 2:
+        return float(time[0]) if time.size else 0.0, float(time[-1]) if time.size else 1.0
+    band = settle * np.nanmax(np.abs(voltage))
+    away = np.abs(voltage - voltage[-1]).max(axis=1) > band
+    last = int(np.flatnonzero(away)[-1]) + 1 if away.any() else 1
+    last = min(last, time.size - 1)
+    start, end = float(time[0]), float(time[last])
+    return start, min(float(time[-1]), end + 0.25 * (end - start))
+
+
 @_styled
-def wave_figure(trace, *, stages: Sequence[int], limit: Sequence[float],
-                window: tuple[float, float]) -> str:
-    """One string's simulated turn-off: the voltage of the given stages (each its own line
-    style) with its limit (dashed), and the loop current below, over ``window`` [s]."""
-    with plt.rc_context(_STYLE):
-        figure, (upper, lower) = plt.subplots(2, 1, figsize=(WIDTH, 4.2), sharex=True,
-                                              gridspec_kw={"height_ratios": [2, 1]})
-    time = np.asarray(trace.time)
+def wave_figure(waveform, *, limits: Sequence[float], window: tuple[float, float],
+                stages: Sequence[int] | None = None, title: str = "", image: str = "svg"):
+    """One string's simulated turn-off: the voltage of the chosen stages (default: the three
+    highest peaks and the lowest), each with its own line style, against the device limit
+    (dashed, the lowest of the stages drawn when they differ), and the loop current below, over
+    ``window`` [s]. ``waveform``: a ``report.waveform.TrialWaveform``; ``limits``: each stage's
+    limit [V]. Returns SVG text, or PNG bytes with ``image="png"``."""
+    time = np.asarray(waveform.time, float)
+    voltage = np.asarray(waveform.voltage, float)
+    current = np.asarray(waveform.current, float)
     shown = (time >= window[0]) & (time <= window[1])
+    if shown.sum() < 2:
+        shown = np.ones_like(time, dtype=bool)
+    peaks = np.nanmax(voltage[shown], axis=0)
+    if stages is None:
+        order = list(np.argsort(peaks)[::-1])
+        stages = order[:3] + ([order[-1]] if len(order) > 3 else [])
+    figure, (upper, lower) = plt.subplots(2, 1, figsize=(WIDTH, 4.4), sharex=True,
+                                          gridspec_kw={"height_ratios": [2, 1]})
     t_factor, t_unit = _scale([window[1] - window[0]], "s")
-    voltages = np.asarray(trace.stage_voltage)
-    v_factor, v_unit = _scale(list(np.abs(voltages[shown][:, list(stages)]).ravel())
-                              + list(limit), "V")
+    drawn_limits = [limits[stage] for stage in stages]
+    v_factor, v_unit = _scale(list(peaks[list(stages)]) + drawn_limits, "V")
     styles = ["-", "--", "-.", ":"]
     for number, stage in enumerate(stages):
-        upper.plot(time[shown] / t_factor, voltages[shown, stage] / v_factor,
-                   color=INK if number == 0 else SOFT, ls=styles[number % len(styles)], lw=1.1,
-                   label=f"stage {stage + 1}")
-    upper.axhline(max(limit) / v_factor, color=LIMIT, ls="--", lw=1.2, label="limit")
-    upper.set_ylabel(f"stage voltage [{v_unit}]")
-    _legend_above(upper, ncol=4)
-    current = np.asarray(trace.current)
+        label = f"stage {stage + 1} (peak {peaks[stage] / v_factor:.3g} {v_unit})"
+        upper.plot(time[shown] / t_factor, voltage[shown, stage] / v_factor,
+                   color=INK if number < 3 else SOFT, ls=styles[number % len(styles)], lw=1.1,
+                   label=label + (", lowest" if number == 3 else ""))
+    upper.axhline(min(drawn_limits) / v_factor, color=LIMIT, ls="--", lw=1.3,
+                  label="limit: derating x V_RRM")
+    upper.set_ylabel(f"stage reverse voltage [{v_unit}]")
+    _legend_above(upper, ncol=2)
+    if title:
+        # Above the legend's rows (about 11 points each).
+        upper.set_title(title, loc="left", fontsize=9, pad=8 + 11 * -(-(len(stages) + 1) // 2))
     i_factor, i_unit = _scale(list(np.abs(current[shown])), "A")
     lower.plot(time[shown] / t_factor, current[shown] / i_factor, color=INK, lw=1.1)
+    low = int(np.argmin(np.where(shown, current, np.inf)))
+    lower.annotate(f"reverse-recovery peak {current[low] / i_factor:.3g} {i_unit}",
+                   (time[low] / t_factor, current[low] / i_factor), xytext=(14, 14),
+                   textcoords="offset points", fontsize=7.5, va="bottom",
+                   arrowprops={"arrowstyle": "-", "color": "#555555", "lw": 0.6})
+    lower.axhline(0.0, color="#555555", lw=0.6)
     lower.set_ylabel(f"loop current [{i_unit}]")
-    lower.set_xlabel(f"time [{t_unit}]")
+    lower.set_xlabel(f"time since the source reversed [{t_unit}]")
+    lower.set_xlim(window[0] / t_factor, window[1] / t_factor)
+    if image == "png":
+        buffer = io.BytesIO()
+        figure.savefig(buffer, format="png", dpi=150, bbox_inches="tight",
+                       metadata={"Software": None})
+        plt.close(figure)
+        return buffer.getvalue()
     return svg_text(figure)

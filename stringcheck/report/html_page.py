@@ -189,6 +189,11 @@ def _figures(result) -> dict[str, list[dict[str, str]]]:
         if not check.ran:
             continue
         shown = []
+        if name in ("static", "dynamic") and design.string.series == 1:
+            out[name] = [{"svg": "", "caption": (
+                "One device per branch (string.series = 1): each device blocks the whole string "
+                "voltage, so there is no sharing to draw.")}]
+            continue
         if name in ("static", "dynamic"):
             shown.append({"svg": figures.position_figure(check, design), "caption": (
                 "Stage voltage along the stack over every built string drawn: the thick bar is "
