@@ -36,7 +36,7 @@ _DOTS = ((0x01, 0x08), (0x02, 0x10), (0x04, 0x20), (0x40, 0x80))
 
 _MIN_WIDTH, _MIN_HEIGHT, _MIN_COLUMNS = 40, 12, 10
 _MAX_STAGE_ROWS = 4
-_CURRENT_ROWS = (3, 6)  # fewest and most rows of the loop-current panel
+_CURRENT_ROWS = (4, 6)  # fewest and most rows of the loop-current panel
 _PREFIXES = ENGINEERING_PREFIXES[1:-1]  # giga to pico: the range of a turn-off's axes
 
 SETTLE_FRACTION = 0.02
