@@ -284,7 +284,7 @@ def wave(
     width: Annotated[Optional[int], typer.Option(
         "--width", min=40, help="Plot width in characters (default: the terminal's, 80 when "
                                 "piped).", show_default=False)] = None,
-    height: Annotated[int, typer.Option("--height", min=12, help="Plot height in lines.")] = 24,
+    height: Annotated[int, typer.Option("--height", min=12, help="The most lines the plot takes.")] = 24,
     trials: Trials = None,
     seed: Seed = None,
     csv: Annotated[Optional[str], typer.Option(

@@ -263,10 +263,10 @@ def _stage_rows(high, stage, rows, top):
     """The panel of one stage: ``rows`` lines of block characters, one per column of ``high``
     (the highest voltage in each column [V]).
 
-    With a limit the top row is the band: it covers the limit to ``rows / (rows - 1)`` of it,
-    shows the light shade where the stage stays at or below the limit, and fills (rounded up,
-    so any excess shows) where ``exceeds_limit``; the rows below cover zero to the limit. With
-    no limit all rows cover zero to ``top`` [V].
+    With a limit the top row is the band: it covers the limit to ``top`` times it [-], shows the
+    light shade where the stage stays at or below the limit, and fills (rounded up, so any
+    excess shows) where ``exceeds_limit``; the rows below cover zero to the limit. With no limit
+    all rows cover zero to ``top`` [V].
     """
     columns = high.size
     if not np.isfinite(stage.limit):
@@ -276,7 +276,7 @@ def _stage_rows(high, stage, rows, top):
     cells = [_eighths(min(value, stage.limit) / stage.limit, below) for value in high]
     lines = [[_BAND] * columns] + [[cell[row] for cell in cells] for row in range(below)]
     over = exceeds_limit(high, stage.limit)
-    excess = (high / stage.limit - 1.0) * below * 8
+    excess = (high / stage.limit - 1.0) / (top - 1.0) * 8
     for column in np.flatnonzero(over):
         lines[0][column] = _LEVELS[int(np.clip(np.ceil(excess[column]), 1, 8))]
     return ["".join(line) for line in lines]
@@ -371,7 +371,9 @@ def waveform_plot(trace: TurnOffTrace, *, trial: int = 0, width: int = 80, heigh
           rows of block characters, one column per time step of the axis, each the highest
           reverse voltage in that column. The top row is the band: its light shade marks the
           limit, the rows under it cover zero to the limit in eighths of a row, and a trace
-          in the band is over the limit. Beside the panel: the stage's highest sample, its
+          in the band is over the limit. The band covers the limit to one row more on the same
+          scale, or, where a stage shown goes higher, to the highest peak over limit (the
+          heading then says how far). Beside the panel: the stage's highest sample, its
           share of the limit and its time, computed from all samples;
         - a heading line and a braille panel of the loop current (forward positive, dotted line
           at zero, range in the gutter), a line pointing at the reverse-recovery peak (the most
@@ -436,13 +438,15 @@ def waveform_plot(trace: TurnOffTrace, *, trial: int = 0, width: int = 80, heigh
         lowest, highest = float(limits.min()), float(limits.max())
         limit_text = format_quantity(lowest, "V") if np.isclose(lowest, highest) else \
             f"{format_quantity(lowest, 'V')} to {format_quantity(highest, 'V')}"
-        heading = f"reverse voltage per stage; {_BAND} band: over the limit ({limit_text})"
+        band_top = max(1.0 + 1.0 / (rows - 1), max(stage.peak / stage.limit for stage in chosen))
+        reach = f" to {band_top:.0%}" if band_top > 1.0 + 1.0 / (rows - 1) else ""
+        heading = f"reverse voltage per stage; {_BAND} band: over the limit ({limit_text}){reach}"
         right = "peak, share, time"
     else:
         heading = "reverse voltage of each stage, to the highest peak (no limit given)"
         right = "peak, time"
     lines.append(_beside(heading, right, width))
-    top = max(stage.peak for stage in chosen)
+    top = band_top if has_limit else max(stage.peak for stage in chosen)
     _, high = _spans(time, voltage, columns)
     for stage, (name, role), (first, second) in zip(chosen, labels, notes):
         strip = _stage_rows(high[:, stage.index], stage, rows, top)

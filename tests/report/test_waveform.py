@@ -173,6 +173,19 @@ def test_the_band_row_is_the_same_in_every_panel():
         assert (set(band) != {BAND}) == over, (stage, band)
 
 
+def test_a_band_stretched_to_the_highest_peak_over_limit():
+    # Stages flat at 300 % and 150 % of a 1 kV limit from 0.5 us on: the band covers 100 % to
+    # 300 % (the highest), so at the end the first fills its band cell (8 eighths) and the second
+    # (150 - 100) / (300 - 100) x 8 = 2 eighths; the heading says how far the band reaches.
+    time = np.linspace(0.0, 2e-6, 200)
+    shape = np.clip(time / 0.5e-6, 0.0, 1.0)[:, None]
+    trace = _trace(time, np.linspace(5.0, -1.0, 200), shape * [3000.0, 1500.0])
+    lines = _lines(waveform_plot(trace, width=80, height=24, limit=1000.0), 80, 24)
+    assert "over the limit (1 kV) to 300%" in lines[0]
+    assert _trace_cells(_stage_panel(lines, 1)[0])[-1] == BLOCKS[8]
+    assert _trace_cells(_stage_panel(lines, 2)[0])[-1] == BLOCKS[2]
+
+
 def test_the_worst_stages_and_the_median_stage_get_panels():
     # Five stages, limits differ: the order is by peak over limit, not by peak.
     time = np.linspace(0.0, 1e-6, 100)
