@@ -20,16 +20,32 @@ from stringcheck.report.display_text import shown
 from stringcheck.units import ENGINEERING_PREFIXES, format_quantity
 from stringcheck.solvers.transient import TurnOff, TurnOffTrace
 
-__all__ = ["PEAK_SPAN", "SETTLE_FRACTION", "TrialWaveform", "event_window", "render_wave", "trial_waveform",
-           "waveform_csv", "waveform_plot"]
+__all__ = ["PEAK_SPAN", "SETTLE_FRACTION", "TrialWaveform", "event_window", "render_wave",
+           "trial_waveform", "waveform_csv", "waveform_plot"]
 
-_LEVELS = " ▁▂▃▄▅▆▇█"
-"""A cell filled from the bottom in eighths, empty to full (U+2581 to U+2588)."""
+@dataclass(frozen=True)
+class _Glyphs:
+    """The characters of the panels: ``levels`` a cell filled from the bottom in eighths (empty
+    to full, nine), ``band`` the shade of the band just above a stage's limit, ``rule`` the left
+    edge of every panel, ``tick`` under a round time of the axis, ``pointer`` under the loop
+    current's reverse-recovery peak; ``braille`` draws the current in braille dots, otherwise in
+    the ASCII marks of :func:`_ascii_cell`."""
 
-_BAND = "░"  # light shade (U+2591): the band of a stage panel, just above its limit
-_RULE = "│"  # the left edge of every panel
-_TICK = "╵"  # under a round time of the axis
-_POINTER = "↑"  # under the loop current's reverse-recovery peak
+    levels: str
+    band: str
+    rule: str
+    tick: str
+    pointer: str
+    braille: bool
+
+
+_UNICODE = _Glyphs(levels=" ▁▂▃▄▅▆▇█", band="░", rule="│", tick="╵", pointer="↑", braille=True)
+"""Blocks U+2581 to U+2588, light shade U+2591, box drawing, an arrow, braille U+2800 on."""
+
+_ASCII = _Glyphs(levels=" ..--==##", band="/", rule="|", tick="'", pointer="|", braille=False)
+"""For a console that cannot encode the above: half-cells in marks of growing weight, the band
+hatched."""
+
 _BRAILLE = 0x2800
 _DOTS = ((0x01, 0x08), (0x02, 0x10), (0x04, 0x20), (0x40, 0x80))
 """Bit of the braille dot in row r (0 to 3, from the top) and column c (0, 1) of a cell."""
@@ -252,14 +268,14 @@ def _stages_of_interest(waveform, limit, worst, room):
             for k in chosen]
 
 
-def _eighths(fraction, rows):
-    """Block characters of a filled column ``fraction`` of ``rows`` rows high, top row first;
-    each row resolves eighths of itself (U+2581 to U+2588)."""
+def _eighths(fraction, rows, levels):
+    """Characters of a filled column ``fraction`` of ``rows`` rows high, top row first; each row
+    resolves eighths of itself (``levels``: empty to full)."""
     filled = int(np.clip(np.rint(fraction * 8 * rows), 0, 8 * rows))
-    return [_LEVELS[int(np.clip(filled - 8 * (rows - 1 - row), 0, 8))] for row in range(rows)]
+    return [levels[int(np.clip(filled - 8 * (rows - 1 - row), 0, 8))] for row in range(rows)]
 
 
-def _stage_rows(high, stage, rows, top):
+def _stage_rows(high, stage, rows, top, glyphs):
     """The panel of one stage: ``rows`` lines of block characters, one per column of ``high``
     (the highest voltage in each column [V]).
 
@@ -270,21 +286,23 @@ def _stage_rows(high, stage, rows, top):
     """
     columns = high.size
     if not np.isfinite(stage.limit):
-        cells = [_eighths(value / top, rows) for value in high]
+        cells = [_eighths(value / top, rows, glyphs.levels) for value in high]
         return ["".join(cell[row] for cell in cells) for row in range(rows)]
     below = rows - 1
-    cells = [_eighths(min(value, stage.limit) / stage.limit, below) for value in high]
-    lines = [[_BAND] * columns] + [[cell[row] for cell in cells] for row in range(below)]
+    cells = [_eighths(min(value, stage.limit) / stage.limit, below, glyphs.levels)
+             for value in high]
+    lines = [[glyphs.band] * columns] + [[cell[row] for cell in cells] for row in range(below)]
     over = exceeds_limit(high, stage.limit)
     excess = (high / stage.limit - 1.0) / (top - 1.0) * 8
     for column in np.flatnonzero(over):
-        lines[0][column] = _LEVELS[int(np.clip(np.ceil(excess[column]), 1, 8))]
+        lines[0][column] = glyphs.levels[int(np.clip(np.ceil(excess[column]), 1, 8))]
     return ["".join(line) for line in lines]
 
 
-def _braille(time, values, rows, columns):
-    """One series as a braille trace, ``rows`` lines of ``columns`` cells (2 x 4 dots each),
-    with a dotted line at zero; returns the lines and the row of the zero line."""
+def _braille(time, values, rows, columns, glyphs):
+    """One series as a trace of ``rows`` lines of ``columns`` cells of 2 x 4 dots each, with a
+    dotted line at zero, in braille (or :func:`_ascii_cell`); returns the lines, the row of the
+    zero line and the range (low, high) [unit of ``values``]."""
     low = min(float(values.min()), 0.0)
     high = max(float(values.max()), 0.0)
     if high - low <= 0.0:
@@ -297,19 +315,39 @@ def _braille(time, values, rows, columns):
                        dots_down - 1).astype(int)
 
     bits = np.zeros((rows, columns), dtype=int)
+    zero_bits = np.zeros((rows, columns), dtype=int)
     top, bottom = dot_row(span_high[:, 0]), dot_row(span_low[:, 0])
     zero = int(dot_row(0.0))
     for dot_column in range(2 * columns):
-        rows_lit = list(range(top[dot_column], bottom[dot_column] + 1))
-        if dot_column % 4 == 0:
-            rows_lit.append(zero)
-        for row in rows_lit:
+        for row in range(top[dot_column], bottom[dot_column] + 1):
             bits[row // 4, dot_column // 2] |= _DOTS[row % 4][dot_column % 2]
-    lines = ["".join(chr(_BRAILLE + int(b)) if b else " " for b in line) for line in bits]
+        if dot_column % 4 == 0:
+            zero_bits[zero // 4, dot_column // 2] |= _DOTS[zero % 4][dot_column % 2]
+    if glyphs.braille:
+        lines = ["".join(chr(_BRAILLE + int(b)) if b else " " for b in line)
+                 for line in bits | zero_bits]
+    else:
+        lines = ["".join(_ascii_cell(int(b), int(z)) for b, z in zip(line, zeros))
+                 for line, zeros in zip(bits, zero_bits)]
     return lines, zero // 4, (low, high)
 
 
-def _time_axis(start, end, columns):
+def _ascii_cell(trace: int, zero: int) -> str:
+    """An ASCII mark for a cell of 2 x 4 dots (braille bits): the trace in its top half only
+    ``'``, in its bottom half only ``.``, in both ``|`` (a steep stretch) or ``:``; a cell of the
+    zero line alone ``-``; an empty cell a space."""
+    upper = trace & (0x01 | 0x08 | 0x02 | 0x10)
+    lower = trace & (0x04 | 0x20 | 0x40 | 0x80)
+    if upper and lower:
+        return "|" if trace & (0x01 | 0x08) and trace & (0x40 | 0x80) else ":"
+    if upper:
+        return "'"
+    if lower:
+        return "."
+    return "-" if zero else " "
+
+
+def _time_axis(start, end, columns, tick):
     """Tick marks under round times and their labels, the unit after the last one."""
     scale, prefix = _prefix(max(abs(start), abs(end)))
     step = _tick_step(end - start)
@@ -318,7 +356,7 @@ def _time_axis(start, end, columns):
     placed = []
     for value in values:
         column = int(np.rint((value - start) / (end - start) * (columns - 1)))
-        ticks[column] = _TICK
+        ticks[column] = tick
         placed.append((column, f"{value / scale + 0.0:.4g}"))
     column, text = placed[-1]
     placed[-1] = (column, f"{text} {prefix}s")
@@ -338,11 +376,11 @@ def _time_axis(start, end, columns):
 
 def _fit(text: str, width: int) -> str:
     """Cut a line to at most ``width`` characters (an ellipsis shows the cut)."""
-    return text if len(text) <= width else text[:width - 1] + "…"
+    return text if len(text) <= width else text[:width - 3] + "..."
 
 
 def waveform_plot(trace: TurnOffTrace, *, trial: int = 0, width: int = 80, height: int = 24,
-                  worst: int | None = None, limit=None) -> str:
+                  worst: int | None = None, limit=None, ascii_only: bool = False) -> str:
     """Panels of one trial's turn-off: a strip per stage of interest and the loop current.
 
     Parameters
@@ -359,6 +397,10 @@ def waveform_plot(trace: TurnOffTrace, *, trial: int = 0, width: int = 80, heigh
     limit
         Each stage's limit [V] (scalar or ``(n,)``), the one its peak is judged by; None draws
         no band and scales every stage to the highest peak.
+    ascii_only
+        Plain ASCII marks instead of block, shade, box-drawing and braille characters (for a
+        console that cannot encode them): the band hatched ``/``, half-cells ``.-=#`` and the
+        current in ``'.:|`` marks.
 
     Returns
     -------
@@ -399,6 +441,7 @@ def waveform_plot(trace: TurnOffTrace, *, trial: int = 0, width: int = 80, heigh
     if limit is not None and not np.all(limits > 0.0):
         raise StringcheckError("limit: give each stage's limit in volts, above zero")
     has_limit = limit is not None
+    glyphs = _ASCII if ascii_only else _UNICODE
 
     # Lines: two headings, the pointer line, the tick marks and their labels (5), panels.
     room = height - 5 - _CURRENT_ROWS[0]
@@ -440,7 +483,8 @@ def waveform_plot(trace: TurnOffTrace, *, trial: int = 0, width: int = 80, heigh
             f"{format_quantity(lowest, 'V')} to {format_quantity(highest, 'V')}"
         band_top = max(1.0 + 1.0 / (rows - 1), max(stage.peak / stage.limit for stage in chosen))
         reach = f" to {band_top:.0%}" if band_top > 1.0 + 1.0 / (rows - 1) else ""
-        heading = f"reverse voltage per stage; {_BAND} band: over the limit ({limit_text}){reach}"
+        heading = (f"reverse voltage per stage; {glyphs.band} band: over the limit "
+                   f"({limit_text}){reach}")
         right = "peak, share, time"
     else:
         heading = "reverse voltage of each stage, to the highest peak (no limit given)"
@@ -449,33 +493,33 @@ def waveform_plot(trace: TurnOffTrace, *, trial: int = 0, width: int = 80, heigh
     top = band_top if has_limit else max(stage.peak for stage in chosen)
     _, high = _spans(time, voltage, columns)
     for stage, (name, role), (first, second) in zip(chosen, labels, notes):
-        strip = _stage_rows(high[:, stage.index], stage, rows, top)
+        strip = _stage_rows(high[:, stage.index], stage, rows, top, glyphs)
         for row, text in enumerate(strip):
             left = name if row == 0 else role if row == 1 else ""
             note = first if row == 0 else second if row == 1 else ""
-            lines.append(f"{left:>{gutter}}{_RULE}{text} {note}".rstrip())
+            lines.append(f"{left:>{gutter}}{glyphs.rule}{text} {note}".rstrip())
 
     lines.append(_fit("loop current, forward positive; dotted line at zero", width))
-    traced, zero_row, _ = _braille(time, current, current_rows, columns)
+    traced, zero_row, _ = _braille(time, current, current_rows, columns, glyphs)
     for row, text in enumerate(traced):
         left = current_labels[0] if row == 0 else current_labels[2] \
             if row == current_rows - 1 else "0" if row == zero_row else ""
-        lines.append(f"{left:>{gutter}}{_RULE}{text}".rstrip())
+        lines.append(f"{left:>{gutter}}{glyphs.rule}{text}".rstrip())
     reverse = int(np.argmin(waveform.current))
     if waveform.current[reverse] < 0.0:
         words = (f"reverse-recovery peak {format_quantity(-waveform.current[reverse], 'A')} "
                  f"at {format_quantity(waveform.time[reverse], 's')}")
         column = gutter + 1 + int(np.rint((waveform.time[reverse] - start) / (end - start)
                                           * (columns - 1)))
-        pointed = f"{_POINTER} {words}"
+        pointed = f"{glyphs.pointer} {words}"
         if column + len(pointed) <= width:
             lines.append(" " * column + pointed)
         else:
-            lines.append(_fit(" " * max(column - len(words) - 1, 0) + f"{words} {_POINTER}",
+            lines.append(_fit(" " * max(column - len(words) - 1, 0) + f"{words} {glyphs.pointer}",
                               width))
     else:
         lines.append(_fit(" " * (gutter + 1) + "no reverse current", width))
-    ticks, tick_labels = _time_axis(start, end, columns)
+    ticks, tick_labels = _time_axis(start, end, columns, glyphs.tick)
     lines.append((" " * (gutter + 1) + ticks).rstrip())
     lines.append(_fit(" " * (gutter + 1) + tick_labels, width))
     return "".join(line + "\n" for line in lines)
@@ -496,14 +540,16 @@ def render_wave(title: str, trial: int, branch: int, result: TurnOff, notes, con
     stage's ``limit`` [V] from ``checks.transient.trial_limits``) and the trace's notes; a trial
     the engine could not finish says so first. ``width`` None: the console's width (the
     terminal's, or ``COLUMNS``, 80 when piped); the panels are never wrapped or cut by the
-    console."""
+    console; a console that cannot encode UTF-8 gets the ASCII marks."""
     width = console.width if width is None else width
+    ascii_only = not console.encoding.lower().replace("-", "").startswith("utf")
     if not bool(result.converged[0]):
         console.print("[bold]the engine could not finish this trial; the panels show what "
                       "was reached[/]", markup=True)
     console.print(f"{shown(title)}: trial {trial}, branch {branch}; turn-off from "
                   f"{result.trace.time.shape[0]} recorded steps")
     console.print(waveform_plot(result.trace, width=max(width, _MIN_WIDTH), height=height,
-                                worst=worst, limit=limit), end="", soft_wrap=True)
+                                worst=worst, limit=limit, ascii_only=ascii_only),
+                  end="", soft_wrap=True)
     for note in notes:
         console.print(f"note: {shown(note)}")

@@ -287,6 +287,22 @@ def test_render_wave_fits_the_console_and_needs_no_colour(width):
     assert "stage " in piped and "reverse-recovery peak" in piped and "note: a note" in piped
 
 
+def test_a_console_that_cannot_encode_utf8_gets_ascii_marks():
+    result = _simulated()
+    raw = io.BytesIO()
+    stream = io.TextIOWrapper(raw, encoding="ascii", newline="\n")
+    console = Console(file=stream, width=80, highlight=False, markup=False)
+    render_wave("Invented stack", 0, 1, result, (), console, limit=np.full(12, 1500.0))
+    stream.flush()
+    text = raw.getvalue().decode("ascii")  # raises if anything else was written
+    lines = text.splitlines()
+    assert all(len(line) <= 80 for line in lines), text
+    band = [line for line in lines if re.match(r"\s*stage \d+\|", line)]
+    assert band and all(set(line.split("|", 1)[1].split(" ")[0]) <= set("/.-=#") for line in band)
+    assert "reverse-recovery peak" in text
+    assert not any(mark in text for mark in ("*", "^", "+-", "-+"))
+
+
 def test_bad_arguments_name_themselves():
     trace = _trace([0.0, 1e-6], [1.0, 0.0], [[0.0], [1.0]])
     with pytest.raises(StringcheckError, match="width, height"):
