@@ -52,6 +52,7 @@ _DOTS = ((0x01, 0x08), (0x02, 0x10), (0x04, 0x20), (0x40, 0x80))
 
 _MIN_WIDTH, _MIN_HEIGHT, _MIN_COLUMNS = 40, 12, 10
 _MAX_STAGE_ROWS = 4
+_TINY = 1e-30  # the scale of a panel whose every stage stays at zero [V]
 _CURRENT_ROWS = (4, 6)  # fewest and most rows of the loop-current panel
 _PREFIXES = ENGINEERING_PREFIXES[1:-1]  # giga to pico: the range of a turn-off's axes
 
@@ -490,7 +491,7 @@ def waveform_plot(trace: TurnOffTrace, *, trial: int = 0, width: int = 80, heigh
         heading = "reverse voltage of each stage, to the highest peak (no limit given)"
         right = "peak, time"
     lines.append(_beside(heading, right, width))
-    top = band_top if has_limit else max(stage.peak for stage in chosen)
+    top = band_top if has_limit else max(max(stage.peak for stage in chosen), _TINY)
     _, high = _spans(time, voltage, columns)
     for stage, (name, role), (first, second) in zip(chosen, labels, notes):
         strip = _stage_rows(high[:, stage.index], stage, rows, top, glyphs)

@@ -132,6 +132,24 @@ def test_every_line_fits_the_size_asked_for(width, height, worst):
     assert not any(mark in line for line in lines for mark in ("*", "^", "+-", "-+"))
 
 
+@settings(max_examples=40, deadline=None)
+@given(st.lists(st.floats(min_value=0.0, max_value=5e3), min_size=1, max_size=30),
+       st.booleans(), st.integers(min_value=40, max_value=130))
+def test_any_stage_amplitudes_give_panels_within_the_width(amplitudes, with_limit, width):
+    # Stages rising to their amplitude (zero included), with or without a limit: the lines
+    # fit, and the first panel is the stage with the highest peak (over the limit), its peak
+    # written as format_quantity prints the highest sample.
+    time = np.linspace(0.0, 1e-6, 60)
+    voltage = np.sin(np.linspace(0.0, 3.0, 60))[:, None] * np.asarray(amplitudes)
+    trace = _trace(time, np.linspace(3.0, -1.0, 60), voltage)
+    limit = 1000.0 if with_limit else None
+    lines = _lines(waveform_plot(trace, width=width, height=24, limit=limit), width, 24)
+    peaks = voltage.max(axis=0)
+    worst = int(np.argmax(peaks))  # the first of equal peaks (a stable order)
+    assert re.match(rf"\s*stage {worst + 1}│", lines[1]), lines[1]
+    assert format_quantity(peaks[worst], "V") in lines[1]
+
+
 def test_a_ramp_fills_the_rows_the_linear_map_gives_and_the_band_starts_at_the_limit():
     # One stage rising linearly from 0 to 1.5 x its 1 kV limit over the record (its peak at the
     # end, so the window is the whole record). Column j stands for t_j = j T / (columns - 1);
