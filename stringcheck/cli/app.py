@@ -253,7 +253,7 @@ def review(
 
 
 def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height) -> int:
-    from stringcheck.checks.transient import trial_trace
+    from stringcheck.checks.transient import trial_limits, trial_trace
     from stringcheck.design.reading import load_design
     from stringcheck.report.waveform import render_wave, waveform_csv
 
@@ -261,12 +261,13 @@ def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, he
     output_files.check_output_targets({"--csv": csv_path},
                                       inputs=output_files.design_inputs(design, path))
     result, notes = trial_trace(design, trial, trials=trials, seed=seed, branch=branch)
+    limit = trial_limits(design, trial, trials=trials, seed=seed, branch=branch)
     outputs = [] if csv_path is None else \
         [(csv_path, waveform_csv(result.trace, capacitor_voltages=True))]
     shown_on = console(stderr=csv_path == "-")
     with output_files.atomic_outputs(outputs), output_files.report_stream(csv_path == "-"):
         render_wave(design.title, trial, branch, result, notes, shown_on, width=width,
-                    height=height, worst=worst)
+                    height=height, worst=worst, limit=limit)
     return EXIT_PASS
 
 
@@ -278,10 +279,12 @@ def wave(
     branch: Annotated[int, typer.Option("--branch", min=1,
                                         help="Branch of a parallel group, from 1.")] = 1,
     worst: Annotated[Optional[int], typer.Option(
-        "--worst", min=1, help="Plot only the N stages with the highest peaks.")] = 6,
-    width: Annotated[int, typer.Option("--width", min=40,
-                                       help="Plot width in characters.")] = 80,
-    height: Annotated[int, typer.Option("--height", min=12, help="Plot height in lines.")] = 24,
+        "--worst", min=1, help="A panel for each of the N stages with the highest peak over "
+                               "limit, and one for the median stage.")] = 6,
+    width: Annotated[Optional[int], typer.Option(
+        "--width", min=40, help="Plot width in characters (default: the terminal's, 80 when "
+                                "piped).", show_default=False)] = None,
+    height: Annotated[int, typer.Option("--height", min=12, help="The most lines the plot takes.")] = 24,
     trials: Trials = None,
     seed: Seed = None,
     csv: Annotated[Optional[str], typer.Option(
