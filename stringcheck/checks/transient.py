@@ -353,10 +353,9 @@ def _loop(design: Design, fits) -> tuple[float, float, tuple[str, ...]]:
     return inductance * layout.parallel, forward, tuple(notes)
 
 
-def trial_trace(design: Design, trial: int, *, trials: int | None = None,
-                seed: int | None = None, branch: int = 1):
-    """The recorded turn-off of one trial (one branch) of the design's Monte Carlo run, for
-    ``stringcheck wave``. Returns (TurnOff with its trace, notes)."""
+def _one_trial(design: Design, trial: int, trials: int | None, seed: int | None, branch: int):
+    """The part fits, run size and seed for one trial of the run, after checking that the
+    design has a turn-off to simulate and that ``trial`` and ``branch`` exist."""
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
     fits, reason = _fits_or_reason(design)
@@ -368,6 +367,14 @@ def trial_trace(design: Design, trial: int, *, trials: int | None = None,
     if not 0 <= trial < trials:
         raise StringcheckError(Setting("trial"), f" must be in 0..{trials - 1} (the run has "
                                f"{trials} trials), got {trial}")
+    return fits, trials, seed
+
+
+def trial_trace(design: Design, trial: int, *, trials: int | None = None,
+                seed: int | None = None, branch: int = 1):
+    """The recorded turn-off of one trial (one branch) of the design's Monte Carlo run, for
+    ``stringcheck wave``. Returns (TurnOff with its trace, notes)."""
+    fits, trials, seed = _one_trial(design, trial, trials, seed, branch)
     inductance, forward, notes = _loop(design, fits)
     stage = _stage_rows(design, fits, np.array([trial]), trials, seed)
     row = slice(branch - 1, branch)
@@ -378,6 +385,18 @@ def trial_trace(design: Design, trial: int, *, trials: int | None = None,
         design.grading.damping_resistor or 0.0, temperature=design.duty.ambient + 273.15,
         record=True)
     return result, notes
+
+
+def trial_limits(design: Design, trial: int, *, trials: int | None = None,
+                 seed: int | None = None, branch: int = 1) -> np.ndarray:
+    """The limit of each stage of one trial (one branch) of the design's Monte Carlo run, the
+    one the transient check compares the stage's peak with: derating x V_RRM of the part drawn
+    at that position [V], shape ``(series,)`` (with a mix the part, so the limit, varies from
+    trial to trial). Same arguments and checks as :func:`trial_trace`; for ``stringcheck
+    wave``'s limit band."""
+    fits, trials, seed = _one_trial(design, trial, trials, seed, branch)
+    stage = _stage_rows(design, fits, np.array([trial]), trials, seed)
+    return stage["limit"][0, branch - 1].astype(float)
 
 
 def _simulate(design: Design, fits, selected: np.ndarray, trials: int, seed: int,

@@ -288,7 +288,7 @@ def _window_end(text: str) -> float:
 
 def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height,
           png_path=None, svg_path=None, window=None) -> int:
-    from stringcheck.checks.transient import trial_trace
+    from stringcheck.checks.transient import trial_limits, trial_trace
     from stringcheck.design.reading import load_design
     from stringcheck.report.waveform import render_wave, waveform_csv
 
@@ -297,29 +297,26 @@ def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, he
     output_files.check_output_targets({"--csv": csv_path, "--png": png_path, "--svg": svg_path},
                                       inputs=output_files.design_inputs(design, path))
     result, notes = trial_trace(design, trial, trials=trials, seed=seed, branch=branch)
+    limit = trial_limits(design, trial, trials=trials, seed=seed, branch=branch)
     outputs = [] if csv_path is None else \
         [(csv_path, waveform_csv(result.trace, capacitor_voltages=True))]
     if png_path is not None or svg_path is not None:
-        outputs += _wave_images(design, result, trial, branch, png_path, svg_path, window_end)
+        outputs += _wave_images(design, result, trial, branch, limit, png_path, svg_path,
+                                window_end)
     shown_on = console(stderr=csv_path == "-")
     with output_files.atomic_outputs(outputs), output_files.report_stream(csv_path == "-"):
         render_wave(design.title, trial, branch, result, notes, shown_on, width=width,
-                    height=height, worst=worst)
+                    height=height, worst=worst, limit=limit)
     return EXIT_PASS
 
 
-def _wave_images(design, result, trial, branch, png_path, svg_path, window_end):
-    """The PNG and SVG of one trial's turn-off, as (path, content) for the atomic outputs."""
-    import numpy as np
-
-    from stringcheck.montecarlo.mixed_stock import position_values
-    from stringcheck.report.figures import event_window, wave_figure
-    from stringcheck.report.waveform import trial_waveform
+def _wave_images(design, result, trial, branch, limits, png_path, svg_path, window_end):
+    """The PNG and SVG of one trial's turn-off (``limits``: each stage's, of the trial's own
+    devices), as (path, content) for the atomic outputs."""
+    from stringcheck.report.figures import wave_figure
+    from stringcheck.report.waveform import event_window, trial_waveform
 
     waveform = trial_waveform(result.trace)
-    # Each stage's device limit (the lowest part that can stand there under a mix).
-    limits = design.string.derating * position_values(design, lambda p: p.v_rrm,
-                                                      pick=np.minimum)[branch - 1]
     span = event_window(waveform) if window_end is None else (0.0, window_end)
     title = f"{design.title}: trial {trial}, branch {branch}"
     images = []
@@ -338,10 +335,12 @@ def wave(
     branch: Annotated[int, typer.Option("--branch", min=1,
                                         help="Branch of a parallel group, from 1.")] = 1,
     worst: Annotated[Optional[int], typer.Option(
-        "--worst", min=1, help="Plot only the N stages with the highest peaks.")] = 6,
-    width: Annotated[int, typer.Option("--width", min=40,
-                                       help="Plot width in characters.")] = 80,
-    height: Annotated[int, typer.Option("--height", min=12, help="Plot height in lines.")] = 24,
+        "--worst", min=1, help="A panel for each of the N stages with the highest peak over "
+                               "limit, and one for the median stage.")] = 6,
+    width: Annotated[Optional[int], typer.Option(
+        "--width", min=40, help="Plot width in characters (default: the terminal's, 80 when "
+                                "piped).", show_default=False)] = None,
+    height: Annotated[int, typer.Option("--height", min=12, help="The most lines the plot takes.")] = 24,
     trials: Trials = None,
     seed: Seed = None,
     csv: Annotated[Optional[str], typer.Option(

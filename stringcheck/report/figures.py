@@ -23,7 +23,7 @@ import numpy as np  # noqa: E402
 
 from stringcheck.units import ENGINEERING_PREFIXES  # noqa: E402
 
-__all__ = ["branch_current_figure", "drivers_figure", "event_window", "junction_figure",
+__all__ = ["branch_current_figure", "drivers_figure", "junction_figure",
            "position_figure", "runaway_figure", "sizing_curve_figure", "stress_distribution_figure",
            "svg_text", "wave_figure"]
 
@@ -297,31 +297,14 @@ def sizing_curve_figure(points, *, x_label: str, x_unit: str, target: float,
     return svg_text(figure)
 
 
-def event_window(waveform, *, settle: float = 0.02) -> tuple[float, float]:
-    """The time span of a turn-off worth drawing [s]: from the source reversal to when every
-    stage voltage has stayed within ``settle`` x the highest peak of its final value, with a
-    quarter of that span again after it (the whole record when it never settles).
-    ``waveform``: a ``report.waveform.TrialWaveform``."""
-    time = np.asarray(waveform.time, float)
-    voltage = np.asarray(waveform.voltage, float)
-    if time.size < 2:
-        return float(time[0]) if time.size else 0.0, float(time[-1]) if time.size else 1.0
-    band = settle * np.nanmax(np.abs(voltage))
-    away = np.abs(voltage - voltage[-1]).max(axis=1) > band
-    last = int(np.flatnonzero(away)[-1]) + 1 if away.any() else 1
-    last = min(last, time.size - 1)
-    start, end = float(time[0]), float(time[last])
-    return start, min(float(time[-1]), end + 0.25 * (end - start))
-
-
 @_styled
 def wave_figure(waveform, *, limits: Sequence[float], window: tuple[float, float],
                 stages: Sequence[int] | None = None, title: str = "", image: str = "svg"):
     """One string's simulated turn-off: the voltage of the chosen stages (default: the three
     highest peaks and the lowest), each with its own line style, against the device limit
     (dashed, the lowest of the stages drawn when they differ), and the loop current below, over
-    ``window`` [s]. ``waveform``: a ``report.waveform.TrialWaveform``; ``limits``: each stage's
-    limit [V]. Returns SVG text, or PNG bytes with ``image="png"``."""
+    ``window`` [s] (``report.waveform.event_window`` gives the event's). ``waveform``: a
+    ``report.waveform.TrialWaveform``; ``limits``: each stage's limit [V]. Returns SVG text, or PNG bytes with ``image="png"``."""
     time = np.asarray(waveform.time, float)
     voltage = np.asarray(waveform.voltage, float)
     current = np.asarray(waveform.current, float)

@@ -546,7 +546,8 @@ def test_wave_plots_one_trial_and_writes_its_csv(demo_file, tmp_path):
     target = tmp_path / "wave.csv"
     result = invoke("wave", str(demo_file), "--trial", "3", "--csv", str(target), "--height", "16")
     assert result.exit_code == 0, result.output
-    assert "stage reverse voltage [kV]" in result.stdout and "loop current [A]" in result.stdout
+    assert "reverse voltage per stage" in result.stdout and "loop current" in result.stdout
+    assert "reverse-recovery peak" in result.stdout
     table = pd.read_csv(target)
     assert list(table.columns[:3]) == ["time_s", "current_A", "v1_V"]
     assert (table["time_s"].diff().dropna() > 0).all()
@@ -555,6 +556,29 @@ def test_wave_plots_one_trial_and_writes_its_csv(demo_file, tmp_path):
     stages = [c for c in table.columns if c.startswith("v") and c.endswith("_V")
               and not c.startswith("vc")]
     assert table[stages].iloc[-1].sum() == pytest.approx(30e3, rel=0.01)
+
+
+@pytest.mark.parametrize("columns", [80, 120])
+def test_wave_fits_the_terminal_width_when_piped(demo_file, columns):
+    # Piped (CliRunner is no terminal): the panels follow COLUMNS, every line within it, and
+    # the band's limit is the demo's derating x V_RRM (the transient check's limit).
+    import numpy as np
+    from rich.cells import cell_len
+
+    from stringcheck.checks.transient import trial_limits
+    from stringcheck.design.reading import load_design
+    from stringcheck.units import format_quantity
+
+    result = runner.invoke(app, ["wave", str(demo_file)], env={"COLUMNS": str(columns)})
+    assert result.exit_code == 0, result.output
+    lines = result.stdout.splitlines()
+    assert all(cell_len(line) <= columns for line in lines), result.stdout
+    assert max(cell_len(line) for line in lines) > columns - 10  # the width is used
+    design = load_design(demo_file)
+    limit = design.string.derating * min(part.v_rrm for part in design.parts.values())
+    np.testing.assert_allclose(trial_limits(design, 0), limit)
+    assert f"over the limit ({format_quantity(limit, 'V')})" in result.stdout
+    assert "\x1b" not in result.stdout
 
 
 def test_wave_trial_outside_the_run_is_bad_input(demo_file):

@@ -10,7 +10,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from stringcheck.report.figures import event_window, wave_figure
+from stringcheck.report.figures import wave_figure
 from stringcheck.report.waveform import TrialWaveform
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -25,18 +25,6 @@ def _settling(tau: float, end: float) -> TrialWaveform:
     current = -np.exp(-time / tau)
     return TrialWaveform(time=time, current=current, voltage=voltage,
                          capacitor_voltage=voltage)
-
-
-def test_the_event_window_ends_where_the_stages_settle():
-    tau = 1e-6
-    start, end = event_window(_settling(tau, 50e-6), settle=0.02)
-    # Within 2 % of the 1 kV peak of its final value from t = tau ln(1000 / 20) = 3.91 tau on
-    # (closed form of the first-order step), plus a quarter of that span after it.
-    settled = tau * np.log(1000.0 / 20.0)
-    assert start == 0.0
-    assert end == pytest.approx(1.25 * settled, rel=0.01)
-    # A record that never settles is drawn whole.
-    assert event_window(_settling(1.0, 50e-6))[1] == pytest.approx(50e-6)
 
 
 def test_the_wave_images_are_an_svg_and_a_png():
