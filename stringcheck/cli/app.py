@@ -35,6 +35,7 @@ from stringcheck.cli.options import (
     JsonPath,
     Quiet,
     Rare,
+    ReportPath,
     Seed,
     TRANSIENT_WORST,
     Transient,
@@ -52,6 +53,9 @@ app = typer.Typer(
     no_args_is_help=True,
     help="Monte Carlo checks of voltage sharing in series strings of power diodes.",
     pretty_exceptions_enable=False,
+    # Help text is plain text: "[sizing]" names a design-file table, not rich markup.
+    rich_markup_mode=None,
+    context_settings={"help_option_names": ["-h", "--help"]},
 )
 
 
@@ -71,8 +75,14 @@ def _options(
     """Monte Carlo checks of voltage sharing in series strings of power diodes."""
 
 
+def _command_line() -> list[str]:
+    """The command as typed (for the HTML report's header)."""
+    return ["stringcheck", *sys.argv[1:]]
+
+
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
-           transient=None, drivers=False, rare=None, source_label=None) -> int:
+           transient=None, drivers=False, rare=None, source_label=None,
+           report_path=None) -> int:
     from stringcheck.design.reading import load_design
     from stringcheck.report.export import json_text, positions_csv, result_to_dict
     from stringcheck.report.terminal import render_check, render_check_summary
@@ -80,14 +90,14 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
 
     design = load_design(path)
     output_files.check_output_targets(
-        {"--json": json_path, "--csv": csv_path},
+        {"--json": json_path, "--csv": csv_path, "--report": report_path},
         inputs=output_files.design_inputs(design, path, "the design file" if source_label is None
                                           else "the bundled demo design"))
     if source_label is not None:
         from dataclasses import replace
 
         design = replace(design, source=source_label)
-    to_stdout = "-" in (json_path, csv_path)
+    to_stdout = "-" in (json_path, csv_path, report_path)
     with DelayedProgress(enabled=not quiet, label="drawing strings") as progress:
         result = run_check(design, trials=trials, seed=seed, progress=progress, workers=workers,
                            drivers=drivers, rare=rare, **(transient or {}))
@@ -98,10 +108,19 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
         outputs.append((json_path, json_text(result_to_dict(result))))
     if csv_path is not None:
         outputs.append((csv_path, positions_csv(result)))
+    if report_path is not None:
+        from stringcheck.report.html_page import check_page
+
+        outputs.append((report_path, check_page(result, command_line=_command_line(),
+                                                spell=option_wording)))
     with output_files.atomic_outputs(outputs):
         # With machine output on standard output, the report goes to stderr so the two never mix.
         _print_report(result, quiet=quiet, stderr=to_stdout,
-                      full=lambda shown, on: render_check(shown, on, spell=option_wording),
+                      full=lambda shown, on: render_check(
+                          shown, on, spell=option_wording,
+                          trace=None if source_label is not None else
+                          lambda trial, seed, trials: f"stringcheck wave {path} --trial {trial} "
+                                                      f"--trials {trials} --seed {seed}"),
                       summary=render_check_summary)
     return EXIT_PASS if result.verdict == "pass" else EXIT_FAIL
 
@@ -126,6 +145,7 @@ def check(
     seed: Seed = None,
     json: JsonPath = None,
     csv: CsvPath = None,
+    report: ReportPath = None,
     quiet: Quiet = False,
     workers: Workers = 1,
     transient: Transient = False,
@@ -140,7 +160,7 @@ def check(
     options = _transient_options(transient, transient_worst, transient_sample)
     run_guarded(lambda: _check(file, trials=trials, seed=seed, json_path=json, csv_path=csv,
                                quiet=quiet, workers=workers, transient=options, drivers=drivers,
-                               rare=rare), debug)
+                               rare=rare, report_path=report), debug)
 
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,
@@ -252,23 +272,59 @@ def review(
                                 drivers=drivers, rare=rare), debug)
 
 
-def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height) -> int:
+def _window_end(text: str) -> float:
+    """``--window`` as a duration [s] (one-line error, exit 2, for anything else)."""
+    from stringcheck.errors import QuantityError
+    from stringcheck.units import SECOND, parse_quantity
+
+    try:
+        value = parse_quantity(text, SECOND, key="--window")
+    except QuantityError as error:
+        raise StringcheckError(str(error)) from None
+    if not value > 0:
+        raise StringcheckError(f"--window: must be a duration above zero, got {text!r}")
+    return value
+
+
+def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, height,
+          png_path=None, svg_path=None, window=None) -> int:
     from stringcheck.checks.transient import trial_limits, trial_trace
     from stringcheck.design.reading import load_design
     from stringcheck.report.waveform import render_wave, waveform_csv
 
+    window_end = None if window is None else _window_end(window)
     design = load_design(path)
-    output_files.check_output_targets({"--csv": csv_path},
+    output_files.check_output_targets({"--csv": csv_path, "--png": png_path, "--svg": svg_path},
                                       inputs=output_files.design_inputs(design, path))
     result, notes = trial_trace(design, trial, trials=trials, seed=seed, branch=branch)
     limit = trial_limits(design, trial, trials=trials, seed=seed, branch=branch)
     outputs = [] if csv_path is None else \
         [(csv_path, waveform_csv(result.trace, capacitor_voltages=True))]
+    if png_path is not None or svg_path is not None:
+        outputs += _wave_images(design, result, trial, branch, limit, png_path, svg_path,
+                                window_end)
     shown_on = console(stderr=csv_path == "-")
     with output_files.atomic_outputs(outputs), output_files.report_stream(csv_path == "-"):
         render_wave(design.title, trial, branch, result, notes, shown_on, width=width,
                     height=height, worst=worst, limit=limit)
     return EXIT_PASS
+
+
+def _wave_images(design, result, trial, branch, limits, png_path, svg_path, window_end):
+    """The PNG and SVG of one trial's turn-off (``limits``: each stage's, of the trial's own
+    devices), as (path, content) for the atomic outputs."""
+    from stringcheck.report.figures import wave_figure
+    from stringcheck.report.waveform import event_window, trial_waveform
+
+    waveform = trial_waveform(result.trace)
+    span = event_window(waveform) if window_end is None else (0.0, window_end)
+    title = f"{design.title}: trial {trial}, branch {branch}"
+    images = []
+    for path, kind in ((png_path, "png"), (svg_path, "svg")):
+        if path is not None:
+            images.append((path, wave_figure(waveform, limits=list(limits), window=span,
+                                             title=title, image=kind)))
+    return images
 
 
 @app.command()
@@ -289,11 +345,20 @@ def wave(
     seed: Seed = None,
     csv: Annotated[Optional[str], typer.Option(
         "--csv", metavar="PATH", help="Write the waveforms of the trial as CSV.")] = None,
+    png: Annotated[Optional[str], typer.Option(
+        "--png", metavar="PATH", help="Also draw the turn-off as a PNG image.")] = None,
+    svg: Annotated[Optional[str], typer.Option(
+        "--svg", metavar="PATH", help="Also draw the turn-off as an SVG image.")] = None,
+    window: Annotated[Optional[str], typer.Option(
+        "--window", metavar="TIME",
+        help="Time span of the PNG/SVG from the source reversal, e.g. '2 us' (default: the event, "
+             "until the stages settle).")] = None,
     debug: Debug = False,
 ) -> None:
     """Simulate one built string's turn-off and plot its stage voltages and loop current."""
     run_guarded(lambda: _wave(file, trial=trial, branch=branch, trials=trials, seed=seed,
-                              csv_path=csv, worst=worst, width=width, height=height), debug)
+                              csv_path=csv, worst=worst, width=width, height=height,
+                              png_path=png, svg_path=svg, window=window), debug)
 
 
 @app.command()
@@ -302,6 +367,7 @@ def demo(
     seed: Seed = None,
     json: JsonPath = None,
     csv: CsvPath = None,
+    report: ReportPath = None,
     quiet: Quiet = False,
     workers: Workers = 1,
     transient: Transient = False,
@@ -318,7 +384,8 @@ def demo(
         with resources.as_file(resources.files("stringcheck") / "data" / "demo.toml") as path:
             return _check(path, trials=trials, seed=seed, json_path=json, csv_path=csv,
                           quiet=quiet, workers=workers, transient=options, drivers=drivers,
-                          rare=rare, source_label="demo (bundled example)")
+                          rare=rare, source_label="demo (bundled example)",
+                          report_path=report)
 
     run_guarded(action, debug)
 

@@ -15,7 +15,7 @@ import typer
 from stringcheck.errors import Setting
 
 __all__ = ["CsvPath", "Debug", "DesignFile", "Drivers", "JsonPath", "NEGATED_OPTIONS", "OPTIONS",
-           "Quiet", "Rare", "Seed", "TRANSIENT_WORST", "Transient", "TransientSample",
+           "Quiet", "Rare", "ReportPath", "Seed", "TRANSIENT_WORST", "Transient", "TransientSample",
            "TransientWorst", "Trials", "Workers", "option_wording"]
 
 DesignFile = Annotated[Path, typer.Argument(help="Design file (TOML).", show_default=False)]
@@ -27,6 +27,9 @@ Seed = Annotated[Optional[int], typer.Option("--seed", min=0,
 JsonPath = Annotated[Optional[str], typer.Option(
     "--json", help="Write the machine-readable result to PATH ('-' for standard output).",
     metavar="PATH")]
+ReportPath = Annotated[Optional[str], typer.Option(
+    "--report", help="Write a self-contained HTML report to PATH (figures inline, opens offline, "
+                     "prints to A4 from a browser).", metavar="PATH")]
 CsvPath = Annotated[Optional[str], typer.Option(
     "--csv", help="Write per-position statistics to PATH as CSV.", metavar="PATH")]
 Quiet = Annotated[bool, typer.Option("--quiet", "-q", help="Print only a one-line verdict.")]

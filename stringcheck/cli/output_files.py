@@ -108,8 +108,9 @@ def write_files_atomic(files: Sequence[tuple[str | Path, str]]) -> None:
 
 
 @contextmanager
-def atomic_outputs(files: Sequence[tuple[str | Path, str]]) -> Iterator[None]:
-    """Stage every ``(path, text)`` on entry; publish them all only when the block succeeds.
+def atomic_outputs(files: Sequence[tuple[str | Path, str | bytes]]) -> Iterator[None]:
+    """Stage every ``(path, text)`` on entry; publish them all only when the block succeeds (text
+    is str, or bytes for a binary file such as a PNG).
 
     On entry each file's text goes to a new temporary file beside its target (nothing is replaced
     yet). The block runs (the terminal report, say). When it ends without an error, the text for
@@ -143,8 +144,12 @@ def atomic_outputs(files: Sequence[tuple[str | Path, str]]) -> Iterator[None]:
         yield
         for text in to_stdout:
             try:
-                sys.stdout.write(text)
-                sys.stdout.flush()
+                if isinstance(text, bytes):
+                    sys.stdout.buffer.write(text)
+                    sys.stdout.buffer.flush()
+                else:
+                    sys.stdout.write(text)
+                    sys.stdout.flush()
             except BrokenPipeError:
                 raise  # the reader left: exit 141, not an error of the input
             except OSError as error:  # `--json - > /dev/full`
@@ -242,8 +247,9 @@ def _writable(target: Path) -> Path:
     return real
 
 
-def _stage(target: Path, text: str) -> str:
-    """Write ``text`` to a new temporary file beside ``target``; return its path."""
+def _stage(target: Path, text: str | bytes) -> str:
+    """Write ``text`` (or bytes, a PNG say) to a new temporary file beside ``target``; return its
+    path."""
     try:
         mode = stat.S_IMODE(target.stat().st_mode)
     except OSError:
@@ -255,7 +261,9 @@ def _stage(target: Path, text: str) -> str:
         raise StringcheckError(f"{target}: cannot write in {target.parent} "
                                f"({error.strerror})") from None
     try:
-        with os.fdopen(handle, "w", encoding="utf-8", newline="") as stream:
+        binary = isinstance(text, bytes)
+        with (os.fdopen(handle, "wb") if binary else
+              os.fdopen(handle, "w", encoding="utf-8", newline="")) as stream:
             os.fchmod(stream.fileno(), mode)
             stream.write(text)
             stream.flush()

@@ -294,6 +294,9 @@ class Design:
     review: Review
     # What was assumed on the user's behalf (defaults, derived rows), as findings: the report
     # says them in words (``report.wording``).
+    # SHA-256 (hex) of the design file's bytes as read (of the text for a design given as text):
+    # a result names the exact file it came from.
+    sha256: str = ""
     assumptions: tuple[Finding, ...] = field(default=())
 
     def mix_variants(self) -> tuple["Design", ...]:

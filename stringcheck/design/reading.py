@@ -8,8 +8,10 @@ The key lists and the value reader are in design/schema.py, the parts in design/
 from __future__ import annotations
 
 import difflib
+import hashlib
 import re
 import tomllib
+from dataclasses import replace
 from pathlib import Path
 from typing import Any, Mapping
 
@@ -108,7 +110,7 @@ def load_design(path: str | Path) -> Design:
         line = data[:error.start].count(b"\n") + 1
         raise DesignError(f"is not UTF-8 text (line {line}); save it as UTF-8",
                           source=source) from None
-    return parse_design_text(text, source=source)
+    return replace(parse_design_text(text, source=source), sha256=hashlib.sha256(data).hexdigest())
 
 
 def parse_design_text(text: str, *, source: str = "<design>") -> Design:
@@ -127,9 +129,10 @@ def parse_design_text(text: str, *, source: str = "<design>") -> Design:
         # tomllib reads nested arrays and inline tables by recursion; a design needs a few levels.
         raise DesignError(_TOO_DEEP, source=source) from None
     try:
-        return parse_design(raw, source=source)
+        design = parse_design(raw, source=source)
     except RecursionError:
         raise DesignError(_TOO_DEEP, source=source) from None
+    return replace(design, sha256=hashlib.sha256(text.encode("utf-8")).hexdigest())
 
 
 _TOO_DEEP = ("TOML nesting too deep (arrays or inline tables nested hundreds of levels); a design "

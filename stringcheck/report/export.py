@@ -5,8 +5,12 @@ Writing the texts to files is the command line's job (``stringcheck.cli.output_f
 
 from __future__ import annotations
 
+import dataclasses
 import json
-from typing import TYPE_CHECKING, Any, Callable
+import math
+from typing import TYPE_CHECKING, Any, Callable, Mapping
+
+import numpy as np
 
 from stringcheck.checks.findings import codes
 from stringcheck.checks.grading_ratings import GradingSummary
@@ -16,6 +20,7 @@ from stringcheck.studies.check import SCHEMA_VERSION, CheckResult
 from stringcheck.report.cautions import safety_cautions
 from stringcheck.report.lots import lots_to_list
 from stringcheck.errors import Setting
+from stringcheck.report.tool_version import tool_version
 from stringcheck.report.wording import impossibility_text, sentence, sentences
 
 if TYPE_CHECKING:
@@ -40,6 +45,9 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
     grading = result.grading
     out: dict[str, Any] = {}
     for key, value in data.items():
+        if key == "trials":
+            # What produced the result: the tool, the exact file, the inputs as read.
+            out.update(traceability(design))
         if key == "impossible_codes":
             out["impossible"] = impossibility_text(result.impossible)
         if key == "assumption_codes":
@@ -57,6 +65,50 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
                                       total_energy=grading.total_energy,
                                       discharge_time=grading.discharge_time)
     return out
+
+
+# Design fields left out of ``inputs``: named elsewhere in the result (``design``, ``assumptions``,
+# ``lots``) or not inputs.
+_NOT_INPUTS = ("title", "notes", "source", "sha256", "assumptions")
+# Where the model's name of a field differs from the design file's key, the key is written.
+_FILE_KEYS = {"low": "min", "high": "max", "doubling_temperature": "leakage_doubling",
+              "voltage_exponent": "leakage_voltage_exponent", "device_class": "class"}
+
+
+def traceability(design) -> dict[str, Any]:
+    """``tool_version``, ``design_sha256`` and ``inputs`` (the design as read, SI units,
+    temperatures in degC; a measured lot by its file, its devices being in ``lots``)."""
+    return {"tool_version": tool_version(), "design_sha256": design.sha256 or None,
+            "inputs": design_inputs_to_dict(design)}
+
+
+def design_inputs_to_dict(design) -> dict[str, Any]:
+    """Every input of ``design`` as read and resolved (defaults and class values filled in), as
+    JSON: generated from the design's dataclasses field by field, so that a new key of the design
+    file cannot be left out."""
+    return {field.name: _input_value(getattr(design, field.name))
+            for field in dataclasses.fields(design) if field.name not in _NOT_INPUTS}
+
+
+def _input_value(value: Any) -> Any:
+    if value is None or isinstance(value, (bool, str)):
+        return value
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        return float(value) if math.isfinite(value) else None
+    if dataclasses.is_dataclass(value):
+        if type(value).__name__ == "MeasuredLot":
+            return {"file": value.path, "fit": value.fit, "devices": value.devices}
+        return {_FILE_KEYS.get(field.name, field.name): _input_value(getattr(value, field.name))
+                for field in dataclasses.fields(value)}
+    if isinstance(value, Mapping):
+        return {str(key): _input_value(item) for key, item in value.items()}
+    if isinstance(value, (tuple, list)):
+        return [_input_value(item) for item in value]
+    if isinstance(value, np.ndarray):
+        return _input_value(value.tolist())
+    raise TypeError(f"no JSON form for a design input of type {type(value).__name__}")
 
 
 def network_to_dict(grading: GradingSummary) -> dict[str, Any]:

@@ -12,6 +12,8 @@ from rich.text import Text
 
 from stringcheck.constants import SAFE_VOLTAGE
 from stringcheck.errors import Setting
+import numpy as np
+
 from stringcheck.units import format_quantity
 from stringcheck.montecarlo.estimates import WANTED_RELATIVE_ERROR
 from stringcheck.studies.check import CheckResult
@@ -88,10 +90,36 @@ def _probability(check: SeriesCheck, confidence: float) -> str:
     return f"{estimate.p_fail:.2g} [{estimate.ci_low:.2g}, {estimate.ci_high:.2g}]{plain_decided}"
 
 
+def _render_worst_string(result: CheckResult, console: Console,
+                         trace: Callable[[int, int, int], str] | None) -> None:
+    """The worst built string of the turn-off (else of the static check): its trial, its highest
+    stage, and how to see its turn-off in the time domain."""
+    name = "dynamic" if result.checks["dynamic"].ran else "static"
+    check = result.checks[name]
+    if not check.ran or check.worst_trial < 0:
+        return
+    stages = np.asarray(check.worst_string, dtype=float)
+    text = f"Worst built string of the {name} check: trial {check.worst_trial:,}"
+    if np.isfinite(stages).any():
+        branch, index = np.unravel_index(np.nanargmax(stages), stages.shape)
+        where = f"position {index + 1}" + (f" of branch {branch + 1}" if stages.shape[0] > 1 else "")
+        text += f" ({format_quantity(float(stages[branch, index]), 'V')} at {where})"
+    if name == "dynamic" and trace is not None:
+        text += f"; its turn-off in the time domain: {trace(check.worst_trial, result.seed, result.trials)}"
+    console.print(shown(text) + ".", highlight=False)
+
+
+def _python_trace(trial: int, seed: int, trials: int) -> str:
+    return f"stringcheck.trace_turn_off(design, trial={trial}, trials={trials}, seed={seed})"
+
+
 def render_check(result: CheckResult, console: Console, *,
-                 spell: Callable[[Setting], str] = str) -> None:
+                 spell: Callable[[Setting], str] = str,
+                 trace: Callable[[int, int, int], str] | None = _python_trace) -> None:
     """Print the whole check report to ``console``; a setting the report suggests is spelled by
-    ``spell`` (the command line's option, by default the Python keyword)."""
+    ``spell`` (the command line's option, by default the Python keyword), and how to trace the
+    worst string's turn-off by ``trace(trial, seed, trials)`` (the command line's ``wave`` command; None:
+    not shown)."""
     design = result.design
     layout = design.string
     confidence = design.monte_carlo.confidence
@@ -158,11 +186,25 @@ def render_check(result: CheckResult, console: Console, *,
                 + f"; plain Monte Carlo: {check.estimate.failures:,} of {check.estimate.trials:,}"
                 + (f"; {failure_point_text(rare)}" if failure_point_text(rare) else "")
                 + ("" if rare.decides else f"; {rare.note}"))
+    if layout.series > 1:
+        _render_worst_string(result, console, trace)
     console.print()
 
     for name, check in result.checks.items():
-        if check.ran:
-            _DETAIL[type(check)](name, check, design, console)
+        if not check.ran:
+            continue
+        if name in ("static", "dynamic") and layout.series == 1:
+            continue
+        _DETAIL[type(check)](name, check, design, console)
+    if layout.series == 1 and any(result.checks[n].ran for n in ("static", "dynamic")):
+        worst = max(result.checks[n].worst_ratio for n in ("static", "dynamic")
+                    if result.checks[n].ran)
+        console.print(
+            f"Series sharing: one device per branch (string.series = 1), so each device blocks the "
+            f"whole {format_quantity(design.duty.reverse_voltage, 'V')} ({worst:.3f} of its "
+            "limit at worst): there is nothing to share, and the sharing sections are left out.",
+            highlight=False)
+        console.print()
 
     render_drivers(result, console)
     render_lots(design, console)
@@ -375,8 +417,10 @@ def render_sizing_summary(result: "SizingResult", console: Console) -> None:
     the check of the sized design (:func:`render_check_summary`)."""
     r = result.resistor.chosen.value
     c = result.design.grading.capacitor if result.capacitor else None
-    console.print(f"R = {r:.4g} ohm" + (f", C = {c:.4g} F" if c else "")
-                  + (f", R_d = {result.damping_resistor:.3g} ohm" if result.damping_resistor else "")
+    console.print(f"R = {format_quantity(r, 'ohm', digits=4)}"
+                  + (f", C = {format_quantity(c, 'F', digits=4)}" if c else "")
+                  + (f", R_d = {format_quantity(result.damping_resistor, 'ohm')}"
+                     if result.damping_resistor else "")
                   + f", n = {result.series_count}; ", end="")
     render_check_summary(result.check, console)
 

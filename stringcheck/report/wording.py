@@ -32,11 +32,11 @@ _RECOVERY_MODEL = ("junction temperature does not enter Q_rr; the whole string v
 
 # Where the turn-off current comes from (``checks.recovery_conditions.TurnOffCurrent.basis``).
 _TURN_OFF_CURRENT = {
-    "test_current": "I_F = the test I_F ({current:.3g} A; no duty.forward_current)",
-    "square_peak": "I_F = {current:.3g} A per branch, the square wave's peak",
-    "half_sine_average": "I_F = {current:.3g} A per branch, the half-sine's average (its decay "
+    "test_current": "I_F = the test I_F ({current}; no duty.forward_current)",
+    "square_peak": "I_F = {current} per branch, the square wave's peak",
+    "half_sine_average": "I_F = {current} per branch, the half-sine's average (its decay "
                          "to the zero crossing is not modelled)",
-    "dc": "I_F = {current:.3g} A per branch",
+    "dc": "I_F = {current} per branch",
 }
 
 TEMPLATES: dict[str, str] = {
@@ -71,10 +71,10 @@ TEMPLATES: dict[str, str] = {
         "earthing stick",
     # studies.size: what sizing changed or could not settle
     "size.capacitor_raised":
-        "capacitor raised from {previous:.3g} F to {raised:.3g} F: no damping resistor kept the "
+        "capacitor raised from {previous} to {raised}: no damping resistor kept the "
         "simulated turn-off within the limit",
     "size.damping_slower_than_recovery":
-        "R_d C = {time_constant:.3g} s is longer than the shortest typical t_rr ({limit:.3g} s): "
+        "R_d C = {time_constant} is longer than the shortest typical t_rr ({limit}): "
         "the capacitor may not take the charge in time; `{option:transient}` checks it in the "
         "time domain",
     # design.reading: what was assumed on the user's behalf ({key}: the design-file key)
@@ -136,7 +136,7 @@ TEMPLATES: dict[str, str] = {
         "q_rr, i_rm or t_rr and at_di_dt fit no recovery waveform; " + _RECOVERY_MODEL,
     **{f"recovery.carried.{basis}":
        "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the "
-       f"application's ({current}, di/dt = {{di_dt:.3g}} A/s) through the charge-control model "
+       f"application's ({current}, di/dt = {{di_dt}}) through the charge-control model "
        "fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); the charge balance "
        "of the dynamic check and the recovery loss of the thermal check use the same carried "
        "value{untested:untested_current}; " + _RECOVERY_MODEL

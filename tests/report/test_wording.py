@@ -1,5 +1,7 @@
 """Findings in words (report.wording): each code's sentence is the text printed before findings
-existed, and the layers below the report no longer write the sentences they were converted from."""
+existed (but for the numbers in prose, which now carry an SI prefix like the tables: "470 pF", not
+"4.7e-10 F"), and the layers below the report no longer write the sentences they were converted
+from."""
 
 from __future__ import annotations
 
@@ -113,7 +115,7 @@ TODAY = [
      "percentage meant? 5 % is 0.05)"),
     (Finding("size.capacitor_raised", {"previous": Value(4.7e-10, "F"),
                                        "raised": Value(6.8e-10, "F")}),
-     "capacitor raised from 4.7e-10 F to 6.8e-10 F: no damping resistor kept the simulated "
+     "capacitor raised from 470 pF to 680 pF: no damping resistor kept the simulated "
      "turn-off within the limit"),
     # design/schema.py, design/reading.py, design/parts.py, design/lots.py: the assumptions made
     # on the user's behalf, as the f-strings there wrote them
@@ -197,7 +199,7 @@ TODAY = [
     (Finding("recovery.carried.dc", {"current": Value(12.5, "A"), "di_dt": Value(5e7, "A/s"),
                                      "untested": Value("")}),
      "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
-     "(I_F = 12.5 A per branch, di/dt = 5e+07 A/s) through the charge-control model fitted to "
+     "(I_F = 12.5 A per branch, di/dt = 50 MA/s) through the charge-control model fitted to "
      "each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); the charge balance of the "
      "dynamic check and the recovery loss of the thermal check use the same carried value; "
      + RECOVERY_MODEL),
@@ -205,7 +207,7 @@ TODAY = [
                                               "di_dt": Value(5e7, "A/s"),
                                               "untested": Value("parts.A, parts.B")}),
      "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
-     "(I_F = 25 A per branch, the square wave's peak, di/dt = 5e+07 A/s) through the "
+     "(I_F = 25 A per branch, the square wave's peak, di/dt = 50 MA/s) through the "
      "charge-control model fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); "
      "the charge balance of the dynamic check and the recovery loss of the thermal check use the "
      "same carried value; parts.A, parts.B give(s) no q_rr.at_forward_current: Q_rr taken as "
@@ -215,14 +217,14 @@ TODAY = [
                                                     "untested": Value("")}),
      "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
      "(I_F = 12.5 A per branch, the half-sine's average (its decay to the zero crossing is not "
-     "modelled), di/dt = 1e+07 A/s) through the charge-control model fitted to each part's "
+     "modelled), di/dt = 10 MA/s) through the charge-control model fitted to each part's "
      "typical Q_rr and I_RM or t_rr (Lauritzen-Ma); the charge balance of the dynamic check and "
      "the recovery loss of the thermal check use the same carried value; " + RECOVERY_MODEL),
     (Finding("recovery.carried.test_current", {"current": Value(10.0, "A"),
                                                "di_dt": Value(5e7, "A/s"),
                                                "untested": Value("")}),
      "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
-     "(I_F = the test I_F (10 A; no duty.forward_current), di/dt = 5e+07 A/s) through the "
+     "(I_F = the test I_F (10 A; no duty.forward_current), di/dt = 50 MA/s) through the "
      "charge-control model fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); "
      "the charge balance of the dynamic check and the recovery loss of the thermal check use the "
      "same carried value; " + RECOVERY_MODEL),
@@ -230,7 +232,7 @@ TODAY = [
 # The command line's wording of the one code that names a setting (the JSON of `size` has it).
 SIZE_DAMPING = (Finding("size.damping_slower_than_recovery", {"time_constant": Value(3.3e-7, "s")},
                         Value(1.5e-7, "s")),
-                "R_d C = 3.3e-07 s is longer than the shortest typical t_rr (1.5e-07 s): the "
+                "R_d C = 330 ns is longer than the shortest typical t_rr (150 ns): the "
                 "capacitor may not take the charge in time; `--transient` checks it in the time "
                 "domain")
 
