@@ -52,6 +52,7 @@ from stringcheck.checks.outcome import (
     runaway_keys,
     turn_off_to_dict,
 )
+from stringcheck.montecarlo.temperature_rows import strings_at_temperature
 from stringcheck.checks.recovery_conditions import (
     RecoveryRescaling,
     TurnOffCurrent,
@@ -313,8 +314,9 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
     resistance = parameters["r_t"]
     shape = threshold.shape
     # Q_rr at the application's turn-off, the value the dynamic check takes for the same device.
-    charge = carried_charges(design, drawn, setup.rescaling) if "q_rr" in parameters else \
-        np.zeros(shape)
+    charge = carried_charges(design, strings_at_temperature(
+        design, drawn, setup.position_temperature, ("q_rr",)), setup.rescaling) \
+        if "q_rr" in parameters else np.zeros(shape)
     outcome_tj = None
     if setup.run_thermal:
         devices = ParallelDevices(
