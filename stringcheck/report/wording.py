@@ -27,8 +27,9 @@ CHECK_WORDS = {"static": "static blocking", "dynamic": "charge-balance turn-off"
                "transient": "simulated turn-off peak"}
 
 # What every recovery-charge assumption ends with.
-_RECOVERY_MODEL = ("junction temperature does not enter Q_rr; the whole string voltage is assumed "
-                   "to appear after recovery (hard commutation)")
+_RECOVERY_MODEL = ("Q_rr at each position's junction temperature (between its rows, or by its "
+                   "class's law); the whole string voltage is assumed to appear after recovery (hard "
+                   "commutation)")
 
 # Where the turn-off current comes from (``checks.recovery_conditions.TurnOffCurrent.basis``).
 _TURN_OFF_CURRENT = {
@@ -152,6 +153,9 @@ TEMPLATES: dict[str, str] = {
     "model.junction_temperature":
         "junction temperature = ambient + the position's temperature_rise (no self-heating); "
         "leakage referred from its datasheet temperature with the part's doubling temperature",
+    "model.junction_temperature_rows":
+        "junction temperature = ambient + the position's temperature_rise (no self-heating); "
+        "leakage of each device at that temperature between its datasheet rows (exponential in T)",
     "model.resistor_tcr":
         "grading resistor TCR referred to {reference:g} degC, resistor at its diode's temperature",
     "model.mixed_stock":

@@ -143,3 +143,12 @@ def test_tolerance_shapes_default_and_bad_value(tmp_path):
     path.write_text(BASE.replace('capacitor_tolerance = "10 %"', 'capacitor_tolerance = "10 %"\n'
                                  'capacitor_distribution = "flat"'), encoding="utf-8")
     assert_one_line_error(invoke("check", path), "grading.capacitor_distribution", "'uniform'")
+
+
+def test_the_model_assumption_names_the_leakage_rows():
+    from stringcheck.checks.preconditions import model_assumptions
+
+    one = [f.code for f in model_assumptions(design(BASE), None)]
+    rows = [f.code for f in model_assumptions(design(edited(ONE_ROW, TWO_ROWS)), None)]
+    assert "model.junction_temperature" in one and "model.junction_temperature_rows" not in one
+    assert "model.junction_temperature_rows" in rows and "model.junction_temperature" not in rows

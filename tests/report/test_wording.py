@@ -18,8 +18,9 @@ from stringcheck.report.wording import (CHECK_WORDS, TEMPLATES, impossibility_te
 PACKAGE = Path(__file__).resolve().parents[2] / "stringcheck"
 
 # What every recovery-charge assumption said at its end (checks/preconditions.py).
-RECOVERY_MODEL = ("junction temperature does not enter Q_rr; the whole string voltage is assumed "
-                  "to appear after recovery (hard commutation)")
+RECOVERY_MODEL = ("Q_rr at each position's junction temperature (between its rows, or by its "
+                  "class's law); the whole string voltage is assumed to appear after recovery (hard "
+                  "commutation)")
 
 # One finding per code and the sentence the code printed before it was a finding (the f-strings
 # of checks/grading_ratings.py, checks/preconditions.py, checks/plausibility.py and studies/size.py,
@@ -163,6 +164,9 @@ TODAY = [
     (Finding("assumed.q_rr_from_i_rm_t_rr", {"key": Value("parts.A.q_rr")}),
      "parts.A.q_rr derived as 1/2 I_RM t_rr from i_rm and t_rr (max from the product of maxima: "
      "conservative)"),
+    (Finding("model.junction_temperature_rows"),
+     "junction temperature = ambient + the position's temperature_rise (no self-heating); leakage "
+     "of each device at that temperature between its datasheet rows (exponential in T)"),
     # Issue 17 (rows): rows at several temperatures, screening per row, tolerance shapes (new
     # codes; the sentences are new, not converted).
     (Finding("rows.fitted", {"key": Value("parts.A.leakage_doubling"), "value": Value(30.103, "K"),
