@@ -30,10 +30,14 @@ from stringcheck.montecarlo.mixed_stock import device_part_grid
 from stringcheck.montecarlo.quantile_maps import spread_quantile
 from stringcheck.montecarlo.sampling import DrawnStrings
 from stringcheck.physics.leakage import temperature_factor
-from stringcheck.physics.temperature_laws import exponential_law, interpolate_rows
+from stringcheck.physics.temperature_laws import (
+    doubling_temperature_from_rows,
+    exponential_law,
+    interpolate_rows,
+)
 
-__all__ = ["RECOVERY_PARAMETERS", "parameter_at_temperature", "position_temperature",
-           "strings_at_temperature", "temperature_dependent"]
+__all__ = ["RECOVERY_PARAMETERS", "device_coefficient", "parameter_at_temperature",
+           "position_temperature", "strings_at_temperature", "temperature_dependent"]
 
 RECOVERY_PARAMETERS = ("q_rr", "i_rm", "t_rr")
 
@@ -126,3 +130,39 @@ def strings_at_temperature(design: Design, drawn: DrawnStrings, temperature: Arr
     if not moved:
         return drawn
     return replace(drawn, parameters={**drawn.parameters, **moved})
+
+
+def device_coefficient(design: Design, drawn: DrawnStrings, parameter: str,
+                       default: np.ndarray) -> np.ndarray:
+    """Each drawn device's own temperature coefficient of ``parameter`` through its coolest and
+    hottest rows, referred to the hottest (the part's own row), for a model that takes one law
+    per device: ``v_t0`` tempco [V/K] (v(T) = v_hot + a (T - T_hot)), ``r_t`` relative tempco
+    [1/K] (r(T) = r_hot (1 + a (T - T_hot))), ``i_r`` doubling temperature [K]; both linear forms
+    are the linear interpolation between the rows exactly, the doubling the exponential one. Where
+    no part used gives ``parameter`` in rows, ``default`` itself (the parts' own values, shape
+    broadcasting to (trials, parallel, series)); else (trials, parallel, series) with ``default``
+    for the devices of parts in one row."""
+    if not temperature_dependent(design, parameter, rows_only=True):
+        return default
+    shape = np.shape(drawn.parameters[parameter])
+    out = np.array(np.broadcast_to(default, shape), dtype=float)
+    grid = np.broadcast_to(device_part_grid(design, drawn), shape)
+    lognormal = parameter in LOGNORMAL_PARAMETERS
+    for name in design.parts_used():
+        rows = design.parts[name].rows(parameter)
+        mask = grid == name
+        if len(rows) < 2 or not mask.any():
+            continue
+        latent = drawn.latent[parameter][mask]
+        cool, hot = (spread_quantile(row, latent, lognormal=lognormal,
+                                     sigma_at_limit=design.monte_carlo.sigma_at_limit,
+                                     screened=row_screened(row, design.monte_carlo),
+                                     uniform=drawn.latent_uniform) for row in (rows[0], rows[-1]))
+        span = rows[-1].at_temperature - rows[0].at_temperature
+        if parameter == "i_r":
+            out[mask] = doubling_temperature_from_rows(0.0, cool, span, hot)
+        elif parameter == "v_t0":
+            out[mask] = (hot - cool) / span
+        else:
+            out[mask] = (1.0 - cool / hot) / span
+    return out

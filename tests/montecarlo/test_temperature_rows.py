@@ -167,3 +167,51 @@ def test_hotter_recovery_rows_raise_the_dynamic_check():
 
     assert ratio(hot) < ratio(cold) - 0.01
     assert ratio(cold) == pytest.approx(1.0, abs=0.02)
+
+
+def test_a_tightened_input_halves_every_row():
+    from stringcheck.montecarlo.sensitivity import tightened
+
+    part = tightened(rows_design(), "i_r").parts["MAIN"]
+    cool, hot = part.rows("i_r")
+    # Halved in log space: max/typ from 10 to sqrt(10), from 4 to 2.
+    assert cool.high / cool.typ == pytest.approx(math.sqrt(10.0))
+    assert hot.high / hot.typ == pytest.approx(2.0) and part.i_r == hot
+
+
+def test_forward_rows_give_each_device_its_own_line_through_them():
+    # Two V_T0 rows of the same spread (+-30 mV at 25 and at 125 degC, 0.2 V apart) are one
+    # tempco for every device, -2 mV/K: the thermal check through the rows equals the one-row part
+    # with tempco_v_t0 = -2 mV/K (linear interpolation between the rows, the solver's own law).
+    from tests.designs import design_text
+
+    text = design_text("parallel_pair") + '[thermal]\nr_th_sa = "0.5 K/W"\n'
+    text = text.replace('i_fav = "9.8 A"', 'i_fav = "9.8 A"\nr_th_jc = "0.5 K/W"\nr_th_cs = "0.1 K/W"'
+                        '\nt_j_max = "175 degC"')
+    row = 'v_t0 = { typ = "0.9 V", min = "0.87 V", max = "0.93 V", at_temperature = "25 degC" }'
+    rows = ('v_t0 = [{ typ = "0.9 V", min = "0.87 V", max = "0.93 V", at_temperature = "25 degC" },'
+            ' { typ = "0.7 V", min = "0.67 V", max = "0.73 V", at_temperature = "125 degC" }]')
+    one = ('v_t0 = { typ = "0.7 V", min = "0.67 V", max = "0.73 V", at_temperature = "125 degC" }\n'
+           'tempco_v_t0 = "-2 mV/K"')
+    through, single = (run_check(parse_design_text(text.replace(row, edit), source="p.toml"),
+                                 trials=256, rare=False).checks["thermal"]
+                       for edit in (rows, one))
+    assert through.ran and through.worst_tj == pytest.approx(single.worst_tj, rel=1e-9)
+    # The drawn devices' own tempcos are the rows' slope.
+    design = parse_design_text(text.replace(row, rows), source="p.toml")
+    drawn = draw_strings(design, ("v_t0",), 0, 64)
+    from stringcheck.montecarlo.temperature_rows import device_coefficient
+
+    np.testing.assert_allclose(device_coefficient(design, drawn, "v_t0", np.zeros((2, 1))),
+                               -2e-3, rtol=1e-9)
+    # Rows of unequal spread give each device its own tempco: the check differs from the one-row
+    # part with the typical slope (the rows reach the solver, not only their typical values).
+    wide = rows.replace('min = "0.67 V", max = "0.73 V"', 'min = "0.61 V", max = "0.79 V"')
+    own = parse_design_text(text.replace(row, wide), source="p.toml")
+    slopes = device_coefficient(own, draw_strings(own, ("v_t0",), 0, 64), "v_t0", np.zeros((2, 1)))
+    assert np.ptp(slopes) > 1e-4
+    spread = run_check(own, trials=256, rare=False).checks["thermal"]
+    typical = parse_design_text(text.replace(row, one.replace(
+        'min = "0.67 V", max = "0.73 V"', 'min = "0.61 V", max = "0.79 V"')), source="p.toml")
+    assert spread.worst_tj != pytest.approx(run_check(typical, trials=256, rare=False)
+                                            .checks["thermal"].worst_tj, rel=1e-6)
