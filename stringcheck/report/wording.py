@@ -109,7 +109,7 @@ TEMPLATES: dict[str, str] = {
         "{key} fitted from the typical values of the rows at {cool:g} and {hot:g} degC: {value}",
     "rows.extrapolated":
         "{key}: rows at {cool:g} to {hot:g} degC; a position at {temperature:g} degC lies outside "
-        "them, the end rows' exponential law extended",
+        "them, the end rows' law extended (each device moved by the typical values' slope)",
     "assumed.recovery_law_rising":
         "{key}: one row only; rises {factor:.2g} x per 100 K of junction temperature (class "
         "'{device_class}', silicon stored charge, common practice)",

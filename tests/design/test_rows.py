@@ -152,3 +152,13 @@ def test_the_model_assumption_names_the_leakage_rows():
     rows = [f.code for f in model_assumptions(design(edited(ONE_ROW, TWO_ROWS)), None)]
     assert "model.junction_temperature" in one and "model.junction_temperature_rows" not in one
     assert "model.junction_temperature_rows" in rows and "model.junction_temperature" not in rows
+
+
+def test_a_position_outside_the_rows_is_noted():
+    # Rows at 50 and 125 degC; the stack sits at 35-45 degC, below them.
+    rows = TWO_ROWS.replace('at_temperature = "25 degC"', 'at_temperature = "50 degC"')
+    found = design(edited(ONE_ROW, rows))
+    (note,) = [f for f in found.assumptions if f.code == "rows.extrapolated"]
+    assert note.values["key"].number == "parts.MAIN.i_r"
+    assert note.values["temperature"].number == 35.0
+    assert "rows.extrapolated" not in codes(design(edited(ONE_ROW, TWO_ROWS)))

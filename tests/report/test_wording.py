@@ -177,7 +177,7 @@ TODAY = [
                                    "hot": Value(125.0, "degC"),
                                    "temperature": Value(140.0, "degC")}),
      "parts.A.q_rr: rows at 25 to 125 degC; a position at 140 degC lies outside them, the end "
-     "rows' exponential law extended"),
+     "rows' law extended (each device moved by the typical values' slope)"),
     (Finding("assumed.recovery_law_rising", {"key": Value("parts.A.q_rr"),
                                              "device_class": Value("si-fast-recovery"),
                                              "factor": Value(2.5)}),
