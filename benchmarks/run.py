@@ -104,7 +104,9 @@ def reference_loop(design, first: int, count: int) -> tuple[float, np.ndarray]:
     tcr = design.grading.resistor_tcr
     conductance = (1.0 / (drawn.resistance * (1.0 + tcr * (temperature - 25.0)))).tolist()
     capacitance = (drawn.capacitance + part.c_j).tolist()
-    charge = drawn.parameters["q_rr"].tolist()
+    # Q_rr given in one row at 25 degC follows the silicon class law, 2.5x per 100 K of junction
+    # temperature (docs/design-file.md, rows at several temperatures).
+    charge = (drawn.parameters["q_rr"] * 2.5 ** ((temperature - 25.0) / 100.0)).tolist()
     v_s = design.duty.reverse_voltage
     worst = []
     start = time.perf_counter()

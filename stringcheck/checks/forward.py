@@ -52,6 +52,7 @@ from stringcheck.checks.outcome import (
     runaway_keys,
     turn_off_to_dict,
 )
+from stringcheck.montecarlo.temperature_rows import device_coefficient, strings_at_temperature
 from stringcheck.checks.recovery_conditions import (
     RecoveryRescaling,
     TurnOffCurrent,
@@ -309,12 +310,19 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
     duty = design.duty
     parameters = drawn.parameters
     count = drawn.trials
+    # Rows at several temperatures: each device's own law through its rows (its tempcos and
+    # leakage doubling, (trials, parallel, series)); the parts' own values otherwise.
+    setup = replace(setup, **{
+        field: device_coefficient(design, drawn, parameter, getattr(setup, field))
+        for field, parameter in (("threshold_tempco", "v_t0"), ("resistance_tempco", "r_t"),
+                                 ("doubling_temperature", "i_r")) if parameter in parameters})
     threshold = parameters["v_t0"]
     resistance = parameters["r_t"]
     shape = threshold.shape
     # Q_rr at the application's turn-off, the value the dynamic check takes for the same device.
-    charge = carried_charges(design, drawn, setup.rescaling) if "q_rr" in parameters else \
-        np.zeros(shape)
+    charge = carried_charges(design, strings_at_temperature(
+        design, drawn, setup.position_temperature, ("q_rr",)), setup.rescaling) \
+        if "q_rr" in parameters else np.zeros(shape)
     outcome_tj = None
     if setup.run_thermal:
         devices = ParallelDevices(

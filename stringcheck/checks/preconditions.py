@@ -90,9 +90,12 @@ def impossibility(design: Design) -> tuple[Finding, ...]:
 def model_assumptions(design: Design, rescaling_note: Finding | None) -> tuple[Finding, ...]:
     """The model's assumptions the report lists (findings ``model.*`` and the recovery charge's
     ``recovery.*``)."""
+    rows = any(len(design.parts[name].rows("i_r")) >= 2 for name in design.parts_used())
     notes = [
         Finding("model.static_dc"),
-        Finding("model.junction_temperature"),
+        # With leakage rows the leakage is each device's own between its rows, not referred by
+        # one doubling temperature.
+        Finding("model.junction_temperature_rows" if rows else "model.junction_temperature"),
         Finding("model.resistor_tcr", {"reference": Value(RESISTOR_TCR_REFERENCE, "degC")}),
     ]
     if design.string.mix is not None:

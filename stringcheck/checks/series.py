@@ -38,6 +38,11 @@ from stringcheck.montecarlo.estimates import failure_estimate, histogram_counts
 from stringcheck.montecarlo.mixed_stock import device_values, position_values
 from stringcheck.montecarlo.sampling import BLOCK_TRIALS, DrawnStrings
 from stringcheck.physics.grading import resistance_at_temperature
+from stringcheck.montecarlo.temperature_rows import (
+    parameter_at_temperature,
+    strings_at_temperature,
+    temperature_dependent,
+)
 from stringcheck.physics.leakage import leakage_current
 from stringcheck.solvers.series_dynamic import solve_dynamic_sharing
 from stringcheck.solvers.series_static import solve_static_sharing
@@ -180,9 +185,15 @@ def run_series_chunk(design: Design, setup: SeriesSetup, drawn: DrawnStrings) ->
 def static_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums,
                  devices: SeriesSetup) -> None:
     """Solve the static sharing of ``drawn`` into ``accumulator`` (constants of ``devices``)."""
-    leakage = leakage_current(drawn.parameters["i_r"], devices.reference_voltage,
+    reference_current, reference_temperature = drawn.parameters["i_r"], \
+        devices.reference_temperature
+    if temperature_dependent(design, "i_r", rows_only=True):
+        # Leakage rows at several temperatures: each device's own value at its temperature.
+        reference_current = parameter_at_temperature(design, drawn, "i_r", devices.temperature)
+        reference_temperature = devices.temperature
+    leakage = leakage_current(reference_current, devices.reference_voltage,
                               devices.temperature, reference_voltage=devices.reference_voltage,
-                              reference_temperature=devices.reference_temperature,
+                              reference_temperature=reference_temperature,
                               doubling_temperature=devices.doubling_temperature,
                               voltage_exponent=devices.voltage_exponent)
     conductance = _grading_conductance(design, drawn, devices.temperature)
@@ -208,7 +219,8 @@ def dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums
     junction_capacitance = devices.junction_capacitance
     capacitance = junction_capacitance if drawn.capacitance is None else \
         drawn.capacitance + junction_capacitance
-    charge = carried_charges(design, drawn, devices.rescaling)
+    charge = carried_charges(design, strings_at_temperature(design, drawn, devices.temperature,
+                                                            ("q_rr",)), devices.rescaling)
     capacitance = np.broadcast_to(capacitance, charge.shape)
     solution = solve_dynamic_sharing(design.duty.reverse_voltage, charge, capacitance)
     solved = np.ones(solution.voltages.shape[0], dtype=bool)

@@ -38,6 +38,7 @@ from stringcheck.errors import Setting, StringcheckError
 from stringcheck.limits import exceeds_limit, within_limit
 from stringcheck.montecarlo.estimates import failure_estimate
 from stringcheck.montecarlo.mixed_stock import device_part_grid, position_values
+from stringcheck.montecarlo.temperature_rows import position_temperature, strings_at_temperature
 from stringcheck.montecarlo.sensitivity import (
     TOP_DRIVERS,
     Driver,
@@ -254,6 +255,7 @@ def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: i
     resistance = np.full(shape, np.inf)
     capacitance = np.zeros(shape)
     for where, rows, drawn in _redrawn(design, selected, trials, seed):
+        drawn = strings_at_temperature(design, drawn, position_temperature(design), ("q_rr",))
         charge[where] = drawn.parameters["q_rr"][rows]
         parts = device_part_grid(design, drawn)
         grid[where] = parts if parts.ndim == 2 else parts[rows]
@@ -318,6 +320,7 @@ def transient_evaluator(design: Design) -> Callable[[DrawnStrings], np.ndarray]:
     inductance, forward, _ = _loop(design, fits)
 
     def evaluate(drawn: DrawnStrings) -> np.ndarray:
+        drawn = strings_at_temperature(design, drawn, position_temperature(design), ("q_rr",))
         charge = drawn.parameters["q_rr"]
         shape = charge.shape
         grid = np.broadcast_to(device_part_grid(design, drawn), shape)

@@ -67,6 +67,9 @@ class Spread:
     at_di_dt: float | None = None
     at_forward_current: float | None = None
     typ_assumed: bool = False
+    # Whether the row's limits were tested on every device (``screened`` in the row); None: not
+    # said, decided by :func:`row_screened`.
+    screened: bool | None = None
 
     @property
     def fixed(self) -> bool:
@@ -81,7 +84,7 @@ class Spread:
             high=None if self.high is None else self.high * factor,
             at_temperature=self.at_temperature, at_voltage=self.at_voltage,
             at_di_dt=self.at_di_dt, at_forward_current=self.at_forward_current,
-            typ_assumed=self.typ_assumed,
+            typ_assumed=self.typ_assumed, screened=self.screened,
         )
 
 
@@ -109,10 +112,29 @@ class Part:
     device_class: str | None = None
     # A stringcheck.design.lots.MeasuredLot (named, not imported: the lot reader builds on this model).
     measured: "MeasuredLot | None" = None
+    # Parameters given as a list of rows at several temperatures: (parameter, rows sorted by
+    # at_temperature). The parameter's own field holds the hottest row (the one a single-row
+    # consumer takes; the leakage doubling and the forward tempcos are fitted from the rows).
+    temperature_rows: tuple[tuple[str, tuple[Spread, ...]], ...] = ()
+    # The temperature law of a recovery parameter given in one row only: (parameter, rate [1/K])
+    # with value(T) = value(T_row) exp(rate (T - T_row)) (the device class's law).
+    recovery_rates: tuple[tuple[str, float], ...] = ()
 
     def spread(self, parameter: str) -> Spread | None:
         """The spread of ``parameter`` (one of SPREAD_PARAMETERS), or None if not given."""
         return getattr(self, parameter)
+
+    def rows(self, parameter: str) -> tuple[Spread, ...]:
+        """Every datasheet row of ``parameter``, coolest first (one row, or none if not given)."""
+        for name, rows in self.temperature_rows:
+            if name == parameter:
+                return rows
+        spread = self.spread(parameter)
+        return () if spread is None else (spread,)
+
+    def recovery_rate(self, parameter: str) -> float:
+        """The one-row temperature law's rate of ``parameter`` [1/K] (0: flat or not given)."""
+        return dict(self.recovery_rates).get(parameter, 0.0)
 
 
 @dataclass(frozen=True)
@@ -236,6 +258,10 @@ class Grading:
     capacitor_tolerance: float
     capacitor_rated_voltage: float | None
     damping_resistor: float | None
+    # Shape of the tolerance band: "normal" (tolerance at sigma_at_limit, truncated there) or
+    # "uniform" (anywhere in the band, as parts selected from a wider production spread).
+    resistor_distribution: str = "normal"
+    capacitor_distribution: str = "uniform"
 
 
 @dataclass(frozen=True)
@@ -249,6 +275,9 @@ class MonteCarlo:
     screened: bool
     lot_share: float
     correlation: tuple[tuple[str, str, float], ...] = ()
+    # Whether ``screened`` was written in the file: then it decides every row that does not say
+    # ``screened`` itself (the design-wide override of :func:`row_screened`).
+    screened_given: bool = False
 
 
 @dataclass(frozen=True)
@@ -335,6 +364,30 @@ class Design:
             for name in grid.ravel():
                 seen.setdefault(name, None)
         return tuple(seen)
+
+
+# Makers test their devices at room temperature: a row at 25 degC +- this window is taken as
+# screened (every device tested against its limits), a row elsewhere as guaranteed by design or
+# characterisation, not tested (common practice).
+SCREENING_TEMPERATURE = 25.0
+SCREENING_WINDOW = 10.0
+
+
+def row_screened(spread: Spread, monte_carlo: MonteCarlo) -> bool:
+    """Whether the draw of ``spread`` is truncated at its limits: the row's own ``screened``; else
+    the design-wide ``[monte_carlo] screened`` where the file gives it; else true for a row at
+    25 degC +- 10 K (or at no stated temperature: the datasheet's) and false elsewhere."""
+    if spread.screened is not None:
+        return spread.screened
+    if monte_carlo.screened_given:
+        return monte_carlo.screened
+    return row_at_test_temperature(spread)
+
+
+def row_at_test_temperature(spread: Spread) -> bool:
+    """A row at the makers' test temperature, 25 degC +- 10 K (no temperature: the datasheet's)."""
+    return spread.at_temperature is None or \
+        abs(spread.at_temperature - SCREENING_TEMPERATURE) <= SCREENING_WINDOW
 
 
 # ----------------------------------------------------------------------------------------------------

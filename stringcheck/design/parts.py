@@ -5,6 +5,7 @@ the serial numbers of measured devices placed in positions.
 from __future__ import annotations
 
 import difflib
+import math
 from dataclasses import replace
 from pathlib import Path
 from typing import Any, Mapping
@@ -70,8 +71,23 @@ def read_parts(reader: Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
                     "assumed.from_class", {"key": Value(prefix), "keys": Value(", ".join(inherited)),
                                            "device_class": Value(device_class)}))
         merged.update({k: v for k, v in table.items() if k not in ("class", "measured", "fit")})
+        row_lists = {parameter: _read_rows(reader, merged[parameter], parameter, prefix)
+                     for parameter in SPREAD_PARAMETERS
+                     if isinstance(merged.get(parameter), list)}
+        fitted = {_FITTED_FROM_ROWS[parameter]: parameter for parameter, rows in row_lists.items()
+                  if parameter in _FITTED_FROM_ROWS and len(rows) >= 2}
+        for key, parameter in fitted.items():
+            if key in table:
+                raise reader.error(join_key(prefix, key),
+                                   f"is fitted from the {len(row_lists[parameter])} rows of "
+                                   f"{join_key(prefix, parameter)}; give either the rows or "
+                                   f"{key}, not both")
+            merged.pop(key, None)  # a class's value gives way to the rows
         scalars = {}
         for key, unit in _PART_SCALARS.items():
+            if key in fitted:
+                scalars[key] = _fit_from_rows(reader, key, row_lists[fitted[key]], prefix)
+                continue
             default = _PART_DEFAULTS.get(key)
             scalars[key] = reader.quantity(
                 merged, key, unit, prefix, required=(key == "v_rrm"), default=default,
@@ -82,16 +98,128 @@ def read_parts(reader: Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
         if not 0.0 <= exponent <= 1.0:
             raise reader.error(join_key(prefix, "leakage_voltage_exponent"),
                                f"must lie in [0, 1] (0.5 for generation current), got {exponent:g}")
-        spreads = {parameter: reader.spread(merged[parameter], parameter, prefix)
+        spreads = {parameter: row_lists[parameter][-1] if parameter in row_lists else
+                   reader.spread(merged[parameter], parameter, prefix)
                    if parameter in merged else None for parameter in SPREAD_PARAMETERS}
         lot = _read_lot(reader, table, spreads, prefix)
-        spreads["i_r"] = _leakage_conditions(reader, spreads["i_r"], scalars["v_rrm"], prefix)
+        if "i_r" in row_lists:
+            row_lists["i_r"] = _leakage_rows(reader, row_lists["i_r"], scalars["v_rrm"], prefix)
+            spreads["i_r"] = row_lists["i_r"][-1]
+        else:
+            spreads["i_r"] = _leakage_conditions(reader, spreads["i_r"], scalars["v_rrm"], prefix)
         # The model names the quantities as the physics does (the file keys carry "leakage_").
         scalars["doubling_temperature"] = scalars.pop("leakage_doubling")
         scalars["voltage_exponent"] = scalars.pop("leakage_voltage_exponent")
+        rates = _recovery_law(reader, device_class, spreads, row_lists, prefix)
         parts[name] = Part(name=name, device_class=device_class, measured=lot, **scalars,
-                           **spreads)
+                           **spreads,
+                           temperature_rows=tuple((parameter, rows)
+                                                  for parameter, rows in row_lists.items()
+                                                  if len(rows) >= 2),
+                           recovery_rates=rates)
     return parts
+
+
+# The scalar key each parameter's rows replace when two or more are given (fitted from them).
+_FITTED_FROM_ROWS = {"i_r": "leakage_doubling", "v_t0": "tempco_v_t0", "r_t": "tempco_r_t"}
+_RECOVERY_PARAMETERS = ("q_rr", "i_rm", "t_rr")
+
+
+def _read_rows(reader: Reader, raw: list, parameter: str, prefix: str) -> tuple[Spread, ...]:
+    """A list of datasheet rows of ``parameter``, each with its ``at_temperature``, sorted by it."""
+    dotted = join_key(prefix, parameter)
+    if not raw:
+        raise reader.error(dotted, "is an empty list; give one row, or a list of rows at different "
+                                   "at_temperature")
+    rows = []
+    for number, entry in enumerate(raw, start=1):
+        key = f"{dotted}[{number}]"
+        if not isinstance(entry, Mapping):
+            raise reader.error(key, "must be a row { typ = ..., max = ..., at_temperature = ... }")
+        row = reader.spread(entry, parameter, prefix, key=key)
+        if len(raw) > 1 and row.at_temperature is None:
+            raise reader.error(key, "needs at_temperature: the rows of a list differ by their "
+                                    "junction temperature")
+        rows.append((number, row))
+    rows.sort(key=lambda item: -np.inf if item[1].at_temperature is None
+              else item[1].at_temperature)
+    for (first, cool), (second, hot) in zip(rows, rows[1:]):
+        if cool.at_temperature == hot.at_temperature:
+            raise reader.error(f"{dotted}[{second}]",
+                               f"is at {hot.at_temperature:g} degC like {dotted}[{first}]; each "
+                               "row of the list at its own at_temperature (merge the two rows)")
+        if parameter == "i_r" and not hot.typ > cool.typ:
+            raise reader.error(f"{dotted}[{second}]",
+                               f"leakage at {hot.at_temperature:g} degC (typ {hot.typ:.3g} A) is "
+                               f"not above the row at {cool.at_temperature:g} degC "
+                               f"(typ {cool.typ:.3g} A); leakage rises with temperature, check "
+                               "the rows' values and at_temperature")
+    return tuple(row for _, row in rows)
+
+
+def _fit_from_rows(reader: Reader, key: str, rows: tuple[Spread, ...], prefix: str) -> float:
+    """``key`` (leakage_doubling [K], tempco_v_t0 [V/K], tempco_r_t [1/K]) through the typical
+    values of the coolest and the hottest row, referred to the hottest (the part's own row)."""
+    cool, hot = rows[0], rows[-1]
+    span = hot.at_temperature - cool.at_temperature
+    if key == "leakage_doubling":
+        # x(T) = x_cool 2^((T - T_cool) / T_double) through both rows (the design layer sits
+        # below physics, so the arithmetic of physics.temperature_laws is written out here).
+        value = span * math.log(2.0) / math.log(hot.typ / cool.typ)
+        unit = "K"
+    elif key == "tempco_v_t0":
+        value, unit = (hot.typ - cool.typ) / span, "V/K"
+    else:  # r(T) = r_hot (1 + alpha (T - T_hot)) through r_cool
+        value, unit = (1.0 - cool.typ / hot.typ) / span, "1/K"
+    reader.assumptions.append(Finding("rows.fitted", {
+        "key": Value(join_key(prefix, key)), "value": Value(value, unit),
+        "cool": Value(cool.at_temperature, "degC"), "hot": Value(hot.at_temperature, "degC")}))
+    return value
+
+
+def _leakage_rows(reader: Reader, rows: tuple[Spread, ...], v_rrm: float,
+                  prefix: str) -> tuple[Spread, ...]:
+    """Leakage rows at one reverse voltage (each taken at V_RRM where it gives none)."""
+    filled = []
+    for row in rows:
+        if row.at_voltage is None:
+            row = replace(row, at_voltage=v_rrm)
+        filled.append(row)
+    voltages = {row.at_voltage for row in filled}
+    if len(voltages) > 1:
+        raise reader.error(join_key(prefix, "i_r"),
+                           "rows at different at_voltage; give every leakage row at one reverse "
+                           "voltage (refer them with leakage_voltage_exponent by hand)")
+    if any(row.at_voltage is None for row in rows):
+        reader.assumptions.append(Finding("assumed.leakage_at_v_rrm",
+                                          {"key": Value(f"{prefix}.i_r"),
+                                           "v_rrm": Value(v_rrm, "V")}))
+    return tuple(filled)
+
+
+def _recovery_law(reader: Reader, device_class: str | None, spreads: Mapping[str, Spread | None],
+                  row_lists: Mapping[str, tuple[Spread, ...]], prefix: str
+                  ) -> tuple[tuple[str, float], ...]:
+    """The one-row temperature law of the recovery parameters, from the device class (no class:
+    the silicon law), with the assumption listed for each parameter given in one row."""
+    rates = presets.recovery_temperature_rates(device_class)
+    for parameter in _RECOVERY_PARAMETERS:
+        if spreads[parameter] is None or len(row_lists.get(parameter, ())) >= 2:
+            continue
+        rate = rates[parameter]
+        values = {"key": Value(join_key(prefix, parameter)),
+                  "device_class": Value(device_class or presets.DEFAULT_RECOVERY_CLASS)}
+        if rate == 0.0:
+            reader.assumptions.append(Finding("assumed.recovery_law_flat", values))
+        else:
+            reader.assumptions.append(Finding("assumed.recovery_law_rising", {
+                **values, "factor": Value(float(np.exp(100.0 * rate)))}))
+            if spreads[parameter].at_temperature is None:
+                reader.assumptions.append(Finding(
+                    "assumed.recovery_at_datasheet_temperature",
+                    {"key": Value(join_key(prefix, parameter)),
+                     "temperature": Value(DATASHEET_TEMPERATURE, "degC")}))
+    return tuple(rates.items())
 
 
 def _read_lot(reader: Reader, table: Mapping[str, Any], spreads: dict[str, Spread | None],

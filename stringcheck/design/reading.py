@@ -42,6 +42,7 @@ from stringcheck.design.model import (
     StringLayout,
     Thermal,
     correlation_matrix,
+    row_screened,
 )
 from stringcheck.eseries import SERIES_NAMES
 from stringcheck.errors import DesignError
@@ -185,7 +186,42 @@ def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
                     parts=parts, grading=grading, monte_carlo=monte_carlo, sizing=sizing,
                     thermal=thermal, review=review, assumptions=tuple(reader.assumptions))
     _cross_check(reader, design)
-    return design
+    notes = _row_notes(design)
+    return replace(design, assumptions=design.assumptions + notes) if notes else design
+
+
+def _row_notes(design: Design) -> tuple[Finding, ...]:
+    """What the rows of the parts used say on the user's behalf: which rows are taken as screened
+    (``model.row_screened``), and which rows a position's temperature lies outside of."""
+    screened, unscreened, notes = [], [], []
+    temperatures = design.duty.ambient + design.string.temperature_rise_grid()
+    grid = design.string.part_grid()
+    for name in design.parts_used():
+        part = design.parts[name]
+        held = temperatures[grid == name] if np.any(grid == name) else temperatures
+        for parameter in SPREAD_PARAMETERS:
+            rows = part.rows(parameter)
+            for row in rows:
+                if row.fixed:
+                    continue
+                at = "" if row.at_temperature is None else f" at {row.at_temperature:g} degC"
+                label = f"parts.{name}.{parameter}{at}"
+                (screened if row_screened(row, design.monte_carlo) else unscreened).append(label)
+            if len(rows) >= 2:
+                cool, hot = rows[0].at_temperature, rows[-1].at_temperature
+                outside = held[(held < cool) | (held > hot)]
+                if outside.size:
+                    notes.append(Finding("rows.extrapolated", {
+                        "key": Value(f"parts.{name}.{parameter}"),
+                        "cool": Value(cool, "degC"), "hot": Value(hot, "degC"),
+                        "temperature": Value(float(outside[np.argmax(np.abs(outside - 0.5 * (
+                            cool + hot)))]), "degC")}))
+    if screened or unscreened:
+        basis = "row" if not design.monte_carlo.screened_given else "design"
+        notes.insert(0, Finding(f"assumed.screening_{basis}", {
+            "screened": Value(", ".join(screened) or "none"),
+            "unscreened": Value(", ".join(unscreened) or "none")}))
+    return tuple(notes)
 
 
 def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:
@@ -301,7 +337,29 @@ def _read_grading(reader: Reader, raw: Mapping[str, Any]) -> Grading:
         capacitor_rated_voltage=reader.quantity(table, "capacitor_rated_voltage", VOLT, prefix,
                                                 positive=True),
         damping_resistor=reader.quantity(table, "damping_resistor", OHM, prefix, positive=True),
+        **{f"{component}_distribution": _tolerance_shape(reader, table, component)
+           for component in ("resistor", "capacitor")},
     )
+
+
+# The shape of a grading component's tolerance band when the file does not say: a resistor sits
+# near its nominal value (normal, the tolerance at sigma_at_limit); a capacitor of a +-10 % class is
+# often picked from a wider production spread and may sit anywhere in the band (uniform: the
+# conservative choice for the dynamic sharing).
+_TOLERANCE_SHAPES = ("normal", "uniform")
+_DEFAULT_TOLERANCE_SHAPE = {"resistor": "normal", "capacitor": "uniform"}
+
+
+def _tolerance_shape(reader: Reader, table: Mapping[str, Any], component: str) -> str:
+    key = f"{component}_distribution"
+    shape = reader.text(table, key, "grading", choices=_TOLERANCE_SHAPES)
+    if shape is not None:
+        return shape
+    shape = _DEFAULT_TOLERANCE_SHAPE[component]
+    if table.get(component) is not None and table.get(f"{component}_tolerance") not in (None, 0):
+        reader.assumptions.append(Finding(f"assumed.{component}_distribution_{shape}",
+                                          {"key": Value(f"grading.{key}")}))
+    return shape
 
 
 def _read_monte_carlo(reader: Reader, raw: Mapping[str, Any]) -> MonteCarlo:
@@ -343,6 +401,7 @@ def _read_monte_carlo(reader: Reader, raw: Mapping[str, Any]) -> MonteCarlo:
                                        default=DEFAULT_SIGMA_AT_LIMIT, low=SIGMA_AT_LIMIT_RANGE[0],
                                        high=SIGMA_AT_LIMIT_RANGE[1], high_open=False),
         screened=screened,
+        screened_given="screened" in table,
         lot_share=reader.fraction(table, "lot_share", prefix, default=0.0, low=0.0, high=1.0),
         correlation=tuple(correlation),
     )

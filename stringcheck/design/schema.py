@@ -36,10 +36,11 @@ SCHEMA_KEYS = {
     "part": ("v_rrm", "i_fav", "i_r", "q_rr", "i_rm", "t_rr", "v_t0", "r_t", "c_j", "r_th_jc",
              "r_th_cs", "t_j_max", "leakage_doubling", "leakage_voltage_exponent", "tempco_v_t0",
              "tempco_r_t", "class", "measured", "fit"),
-    "spread": ("min", "typ", "max", "at_temperature", "at_voltage", "at_di_dt", "at_forward_current"),
+    "spread": ("min", "typ", "max", "at_temperature", "at_voltage", "at_di_dt", "at_forward_current",
+               "screened"),
     "grading": ("resistor", "resistor_tolerance", "resistor_tcr", "resistor_rated_voltage",
                 "resistor_rated_power", "capacitor", "capacitor_tolerance", "capacitor_rated_voltage",
-                "damping_resistor"),
+                "damping_resistor", "resistor_distribution", "capacitor_distribution"),
     "thermal": ("heatsink", "r_th_sa", "path_resistance"),
     "monte_carlo": ("trials", "seed", "confidence", "sigma_at_limit", "screened", "lot_share",
                     "correlation"),
@@ -146,8 +147,10 @@ class Reader:
                                      f"got {value!r}")
         return value
 
-    def spread(self, raw: Any, parameter: str, prefix: str) -> Spread:
-        dotted = join_key(prefix, parameter)
+    def spread(self, raw: Any, parameter: str, prefix: str, *, key: str | None = None) -> Spread:
+        """One datasheet row of ``parameter``; ``key``: its dotted key where it is not
+        ``prefix.parameter`` (a row of a list, ``parts.D.i_r[2]``)."""
+        dotted = join_key(prefix, parameter) if key is None else key
         unit = SPREAD_UNITS[parameter]
         if not isinstance(raw, Mapping):
             value = self.quantity({parameter: raw}, parameter, unit, prefix, positive=True)
@@ -188,7 +191,12 @@ class Reader:
             raise self.error(dotted, "typ must be greater than zero")
         if low is not None and high is not None and low == high == typ:
             low = high = None
-        return Spread(typ=typ, low=low, high=high, typ_assumed=typ_assumed, **conditions)
+        screened = raw.get("screened")
+        if screened is not None and not isinstance(screened, bool):
+            raise self.error(join_key(dotted, "screened"),
+                             f"must be true or false (no quotes), got {screened!r}")
+        return Spread(typ=typ, low=low, high=high, typ_assumed=typ_assumed, screened=screened,
+                      **conditions)
 
 
 def join_key(prefix: str, key: str) -> str:

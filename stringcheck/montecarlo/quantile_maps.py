@@ -338,9 +338,11 @@ def _truncation_table(low: float, high: float, scale: float | None, median: floa
 
 def tolerance_draw(nominal: float, tolerance: float, latent: np.ndarray, *,
                    sigma_at_limit: float, uniform: bool = False,
-                   out: np.ndarray | None = None) -> np.ndarray:
+                   out: np.ndarray | None = None, distribution: str = "normal") -> np.ndarray:
     """Component values within a tolerance: normal, tolerance at ``sigma_at_limit``, truncated there
-    [unit of ``nominal``] (common practice: a maker rejects parts outside the tolerance).
+    [unit of ``nominal``] (common practice: a maker rejects parts outside the tolerance); or with
+    ``distribution="uniform"`` anywhere in the band, nominal (1 + tolerance (2 u - 1)) for the
+    score u (u = Phi(z) of a standard normal), the shape of parts picked from a wider spread.
 
     Parameters
     ----------
@@ -361,6 +363,15 @@ def tolerance_draw(nominal: float, tolerance: float, latent: np.ndarray, *,
         if out is None:
             return np.full(np.shape(latent), nominal)
         out[...] = nominal
+        return out
+    if distribution == "uniform":
+        # The score's cell midpoint u + 2^-54 (as the other maps), or Phi(z).
+        score = _cell_probabilities(np.asarray(latent, dtype=float))[0] if uniform else \
+            special.ndtr(np.asarray(latent, dtype=float))
+        value = nominal * (1.0 + tolerance * (2.0 * score - 1.0))
+        if out is None:
+            return value
+        out[...] = value
         return out
     scale = nominal * tolerance / sigma_at_limit
     if uniform:

@@ -7,8 +7,13 @@ How a spread becomes a draw (docs/methods/monte-carlo.md):
   Where both limits are given and sit at different distances from typ, each side of the median takes its
   own standard deviation (a two-piece distribution; with symmetric limits it is the plain lognormal or
   normal). Where only one limit is given it sets both sides.
-* Production-screened limits (``screened``, default on) truncate the draw at min/max: the latent normal
-  is mapped onto the truncated normal by its CDF, which keeps the Gaussian-copula dependence.
+* Production-screened limits truncate the draw at min/max: the latent normal is mapped onto the
+  truncated normal by its CDF, which keeps the Gaussian-copula dependence. Whether a row is screened
+  is its own ``screened``, else the design-wide ``[monte_carlo] screened`` where given, else true
+  for a row at 25 degC +- 10 K and false elsewhere (``design.model.row_screened``).
+* A parameter given in rows at several temperatures draws one latent value per device; the value at
+  any temperature is each row's quantile at that latent, interpolated
+  (:mod:`stringcheck.montecarlo.temperature_rows`), so a device keeps its rank at every temperature.
 * The streams give uniform scores u, one per device and parameter, and each drawn value is the
   spread's quantile function at u (:mod:`stringcheck.montecarlo.quantile_maps`); the latent normal of a score is
   z = Phi^-1(u), computed only where a copula or lot sharing mixes latent values. (Drawing u and
@@ -17,7 +22,8 @@ How a spread becomes a draw (docs/methods/monte-carlo.md):
   string (same lot): z = sqrt(s) z_lot + sqrt(1 - s) z_device.
 * Parameters of one device may be correlated through a Gaussian copula (``[monte_carlo.correlation]``).
 * Grading resistors and capacitors: normal about the nominal value with the tolerance at
-  ``sigma_at_limit``, always truncated at the tolerance (a component outside it is rejected by its maker).
+  ``sigma_at_limit``, always truncated at the tolerance (a component outside it is rejected by its
+  maker), or uniform over the band (``resistor_distribution`` / ``capacitor_distribution``).
 
 Random streams: trials are grouped in blocks of :data:`BLOCK_TRIALS`. Block b draws each component
 (one parameter of the devices, the lot of one part, the resistors, the capacitors) from its own stream,
@@ -48,6 +54,7 @@ from stringcheck.design.model import (
     SPREAD_PARAMETERS,
     Design,
     correlation_matrix,
+    row_screened,
 )
 from stringcheck.montecarlo.quantile_maps import normal_scores, spread_quantile, tolerance_draw
 
@@ -426,8 +433,8 @@ def strings_from_latent(design: Design, parameters: tuple[str, ...], latent: Lat
             if spread is None:
                 raise ValueError(f"part {name!r} has no {parameter}")
             options = dict(lognormal=parameter in LOGNORMAL_PARAMETERS,
-                           sigma_at_limit=monte_carlo.sigma_at_limit, screened=monte_carlo.screened,
-                           uniform=device_uniform)
+                           sigma_at_limit=monte_carlo.sigma_at_limit,
+                           screened=row_screened(spread, monte_carlo), uniform=device_uniform)
             if out is None:  # one part everywhere: no gather and scatter by position
                 out = spread_quantile(spread, device_latent[parameter], **options)
             else:
@@ -439,12 +446,15 @@ def strings_from_latent(design: Design, parameters: tuple[str, ...], latent: Lat
 
     grading = design.grading
     resistance = capacitance = None
-    for nominal, tolerance, scores, name in (
-            (grading.resistor, grading.resistor_tolerance, latent.resistor, "resistance"),
-            (grading.capacitor, grading.capacitor_tolerance, latent.capacitor, "capacitance")):
+    for nominal, tolerance, scores, name, shape in (
+            (grading.resistor, grading.resistor_tolerance, latent.resistor, "resistance",
+             grading.resistor_distribution),
+            (grading.capacitor, grading.capacitor_tolerance, latent.capacitor, "capacitance",
+             grading.capacitor_distribution)):
         if nominal is None or scores is None:
             continue
-        options = dict(sigma_at_limit=monte_carlo.sigma_at_limit, uniform=grading_uniform)
+        options = dict(sigma_at_limit=monte_carlo.sigma_at_limit, uniform=grading_uniform,
+                       distribution=shape)
         if isinstance(scores, StreamScores):
             drawn = _mapped_scores(scores, lambda u, out: tolerance_draw(nominal, tolerance, u,
                                                                          out=out, **options))

@@ -143,7 +143,13 @@ def tightened(design: Design, name: str) -> Design:
         part = parts[part_name]
         spread = part.spread(name)
         if spread is not None and not spread.fixed:
-            parts[part_name] = replace(part, **{name: _halved(spread, name in LOGNORMAL_PARAMETERS)})
+            lognormal = name in LOGNORMAL_PARAMETERS
+            # Rows at several temperatures: every row halved (the part's own row is the hottest).
+            rows = tuple((parameter, tuple(row if row.fixed else _halved(row, lognormal)
+                                           for row in rows) if parameter == name else rows)
+                         for parameter, rows in part.temperature_rows)
+            parts[part_name] = replace(part, temperature_rows=rows,
+                                       **{name: _halved(spread, lognormal)})
     return replace(design, parts=parts)
 
 

@@ -27,8 +27,9 @@ CHECK_WORDS = {"static": "static blocking", "dynamic": "charge-balance turn-off"
                "transient": "simulated turn-off peak"}
 
 # What every recovery-charge assumption ends with.
-_RECOVERY_MODEL = ("junction temperature does not enter Q_rr; the whole string voltage is assumed "
-                   "to appear after recovery (hard commutation)")
+_RECOVERY_MODEL = ("Q_rr at each position's junction temperature (between its rows, or by its "
+                   "class's law); the whole string voltage is assumed to appear after recovery (hard "
+                   "commutation)")
 
 # Where the turn-off current comes from (``checks.recovery_conditions.TurnOffCurrent.basis``).
 _TURN_OFF_CURRENT = {
@@ -103,6 +104,36 @@ TEMPLATES: dict[str, str] = {
     "assumed.leakage_at_v_rrm": "{key}: at_voltage not given, taken at V_RRM ({v_rrm:g} V)",
     "assumed.leakage_at_datasheet_temperature":
         "{key}: at_temperature not given, taken at {temperature:g} degC",
+    # design.parts / design.reading: rows at several temperatures, screening, tolerance shapes
+    "rows.fitted":
+        "{key} fitted from the typical values of the rows at {cool:g} and {hot:g} degC: {value}",
+    "rows.extrapolated":
+        "{key}: rows at {cool:g} to {hot:g} degC; a position at {temperature:g} degC lies outside "
+        "them, the end rows' law extended (each device moved by the typical values' slope)",
+    "assumed.recovery_law_rising":
+        "{key}: one row only; rises {factor:.2g} x per 100 K of junction temperature (class "
+        "'{device_class}', silicon stored charge, common practice)",
+    "assumed.recovery_law_flat":
+        "{key}: one row only; independent of junction temperature (class '{device_class}': "
+        "capacitive charge, no stored minority charge)",
+    "assumed.recovery_at_datasheet_temperature":
+        "{key}: at_temperature not given, taken at {temperature:g} degC",
+    "assumed.screening_row":
+        "limits truncate the draw (screened, rows at 25 degC +- 10 K or saying screened = true): "
+        "{screened}; not screened (guaranteed by design or characterisation, drawn untruncated): "
+        "{unscreened}",
+    "assumed.screening_design":
+        "monte_carlo.screened decides the rows that do not say: screened: {screened}; not "
+        "screened: {unscreened}",
+    "assumed.resistor_distribution_normal":
+        "{key} not given: resistor values normal about nominal, the tolerance at sigma_at_limit",
+    "assumed.resistor_distribution_uniform":
+        "{key} not given: resistor values uniform over the tolerance band",
+    "assumed.capacitor_distribution_normal":
+        "{key} not given: capacitor values normal about nominal, the tolerance at sigma_at_limit",
+    "assumed.capacitor_distribution_uniform":
+        "{key} not given: capacitor values anywhere in the tolerance band (uniform; conservative "
+        "for parts picked from a wider production spread)",
     "assumed.q_rr_from_i_rm_t_rr":
         "{key} derived as 1/2 I_RM t_rr from i_rm and t_rr (max from the product of maxima: "
         "conservative)",
@@ -122,6 +153,9 @@ TEMPLATES: dict[str, str] = {
     "model.junction_temperature":
         "junction temperature = ambient + the position's temperature_rise (no self-heating); "
         "leakage referred from its datasheet temperature with the part's doubling temperature",
+    "model.junction_temperature_rows":
+        "junction temperature = ambient + the position's temperature_rise (no self-heating); "
+        "leakage of each device at that temperature between its datasheet rows (exponential in T)",
     "model.resistor_tcr":
         "grading resistor TCR referred to {reference:g} degC, resistor at its diode's temperature",
     "model.mixed_stock":

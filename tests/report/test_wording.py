@@ -20,8 +20,9 @@ from stringcheck.report.wording import (CHECK_WORDS, TEMPLATES, impossibility_te
 PACKAGE = Path(__file__).resolve().parents[2] / "stringcheck"
 
 # What every recovery-charge assumption said at its end (checks/preconditions.py).
-RECOVERY_MODEL = ("junction temperature does not enter Q_rr; the whole string voltage is assumed "
-                  "to appear after recovery (hard commutation)")
+RECOVERY_MODEL = ("Q_rr at each position's junction temperature (between its rows, or by its "
+                  "class's law); the whole string voltage is assumed to appear after recovery (hard "
+                  "commutation)")
 
 # One finding per code and the sentence the code printed before it was a finding (the f-strings
 # of checks/grading_ratings.py, checks/preconditions.py, checks/plausibility.py and studies/size.py,
@@ -165,6 +166,56 @@ TODAY = [
     (Finding("assumed.q_rr_from_i_rm_t_rr", {"key": Value("parts.A.q_rr")}),
      "parts.A.q_rr derived as 1/2 I_RM t_rr from i_rm and t_rr (max from the product of maxima: "
      "conservative)"),
+    (Finding("model.junction_temperature_rows"),
+     "junction temperature = ambient + the position's temperature_rise (no self-heating); leakage "
+     "of each device at that temperature between its datasheet rows (exponential in T)"),
+    # Issue 17 (rows): rows at several temperatures, screening per row, tolerance shapes (new
+    # codes; the sentences are new, not converted).
+    (Finding("rows.fitted", {"key": Value("parts.A.leakage_doubling"), "value": Value(30.103, "K"),
+                             "cool": Value(25.0, "degC"), "hot": Value(125.0, "degC")}),
+     "parts.A.leakage_doubling fitted from the typical values of the rows at 25 and 125 degC: "
+     "30.1 K"),
+    (Finding("rows.extrapolated", {"key": Value("parts.A.q_rr"), "cool": Value(25.0, "degC"),
+                                   "hot": Value(125.0, "degC"),
+                                   "temperature": Value(140.0, "degC")}),
+     "parts.A.q_rr: rows at 25 to 125 degC; a position at 140 degC lies outside them, the end "
+     "rows' law extended (each device moved by the typical values' slope)"),
+    (Finding("assumed.recovery_law_rising", {"key": Value("parts.A.q_rr"),
+                                             "device_class": Value("si-fast-recovery"),
+                                             "factor": Value(2.5)}),
+     "parts.A.q_rr: one row only; rises 2.5 x per 100 K of junction temperature (class "
+     "'si-fast-recovery', silicon stored charge, common practice)"),
+    (Finding("assumed.recovery_law_flat", {"key": Value("parts.A.q_rr"),
+                                           "device_class": Value("sic-schottky")}),
+     "parts.A.q_rr: one row only; independent of junction temperature (class 'sic-schottky': "
+     "capacitive charge, no stored minority charge)"),
+    (Finding("assumed.recovery_at_datasheet_temperature",
+             {"key": Value("parts.A.q_rr"), "temperature": Value(25.0, "degC")}),
+     "parts.A.q_rr: at_temperature not given, taken at 25 degC"),
+    (Finding("assumed.screening_row", {"screened": Value("parts.A.i_r at 25 degC"),
+                                       "unscreened": Value("parts.A.i_r at 125 degC")}),
+     "limits truncate the draw (screened, rows at 25 degC +- 10 K or saying screened = true): "
+     "parts.A.i_r at 25 degC; not screened (guaranteed by design or characterisation, drawn "
+     "untruncated): parts.A.i_r at 125 degC"),
+    (Finding("assumed.screening_design", {"screened": Value("parts.A.i_r at 125 degC"),
+                                          "unscreened": Value("none")}),
+     "monte_carlo.screened decides the rows that do not say: screened: parts.A.i_r at 125 degC; "
+     "not screened: none"),
+    (Finding("assumed.resistor_distribution_normal",
+             {"key": Value("grading.resistor_distribution")}),
+     "grading.resistor_distribution not given: resistor values normal about nominal, the "
+     "tolerance at sigma_at_limit"),
+    (Finding("assumed.resistor_distribution_uniform",
+             {"key": Value("grading.resistor_distribution")}),
+     "grading.resistor_distribution not given: resistor values uniform over the tolerance band"),
+    (Finding("assumed.capacitor_distribution_normal",
+             {"key": Value("grading.capacitor_distribution")}),
+     "grading.capacitor_distribution not given: capacitor values normal about nominal, the "
+     "tolerance at sigma_at_limit"),
+    (Finding("assumed.capacitor_distribution_uniform",
+             {"key": Value("grading.capacitor_distribution")}),
+     "grading.capacitor_distribution not given: capacitor values anywhere in the tolerance band "
+     "(uniform; conservative for parts picked from a wider production spread)"),
     (Finding("lot.recovery_for_reference"),
      "i_rm and t_rr are shown for reference; the checks use the measured q_rr"),
     (Finding("lot.q_rr_derived"),
