@@ -17,6 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from stringcheck.checks.findings import Finding, Value
 from stringcheck.design.model import Design
 from stringcheck.montecarlo.sampling import DrawnStrings
 from stringcheck.montecarlo.quantile_maps import spread_quantile
@@ -82,6 +83,29 @@ def missing_recovery_data(design: Design) -> str:
         if part.q_rr.at_forward_current is None and design.duty.forward_current is None:
             return f"parts.{name}.q_rr has no at_forward_current and the duty no forward_current"
     return ""
+
+
+def missing_recovery_finding(design: Design) -> Finding | None:
+    """What the model needs and a part does not give (None when every part gives it), as a
+    finding (``recovery_data.*``) naming the part: the transient check's reason not to run.
+    The same tests as :func:`missing_recovery_data`, whose sentence the recovery-rescaling note
+    still embeds."""
+    for name in design.parts_used():
+        part = design.parts[name]
+        code = None
+        if part.q_rr is None:
+            code = "recovery_data.no_charge"
+        elif part.i_rm is None and part.t_rr is None:
+            code = "recovery_data.no_peak_or_time"
+        elif part.q_rr.at_di_dt is None:
+            code = "recovery_data.no_test_di_dt"
+        elif part.i_rm is None and part.t_rr.at_di_dt not in (None, part.q_rr.at_di_dt):
+            code = "recovery_data.test_di_dt_differ"
+        elif part.q_rr.at_forward_current is None and design.duty.forward_current is None:
+            code = "recovery_data.no_test_current"
+        if code is not None:
+            return Finding(code, {"part": Value(name)})
+    return None
 
 
 # Where the turn-off current comes from (TurnOffCurrent.basis).

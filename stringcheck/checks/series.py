@@ -32,6 +32,7 @@ from stringcheck.checks.recovery_conditions import (
     carried_charges,
 )
 from stringcheck.design.model import Design, Part
+from stringcheck.checks.findings import Finding
 from stringcheck.limits import within_limit
 from stringcheck.montecarlo.accumulators import PositionSums
 from stringcheck.montecarlo.estimates import failure_estimate, histogram_counts
@@ -262,7 +263,7 @@ def finish_series(name: str, accumulator: PositionSums, grid: np.ndarray, confid
     worst_string = accumulator.worst_string if accumulator.worst_string is not None else \
         np.full(grid.shape, np.nan)
     figures = dict(
-        name=name, ran=True, reason="", passed=estimate.ci_high <= target,
+        name=name, ran=True, reason=None, passed=estimate.ci_high <= target,
         worst_voltage=float(np.max(accumulator.maximum)) if accumulator.count else float("nan"),
         worst_ratio=float(np.max(ratios)),
         p50_ratio=float(p50), p99_ratio=float(p99),
@@ -274,7 +275,7 @@ def finish_series(name: str, accumulator: PositionSums, grid: np.ndarray, confid
     return SeriesCheck(**figures)
 
 
-def not_run_series(name: str, reason: str) -> SeriesCheck:
+def not_run_series(name: str, reason: Finding) -> SeriesCheck:
     """A series check that did not run, and why."""
     return (DynamicCheck if name == "dynamic" else SeriesCheck).not_run(name, reason)
 
@@ -292,3 +293,4 @@ def series_ratios(design: Design, setup: SeriesSetup, drawn: DrawnStrings, check
     else:
         dynamic_chunk(design, drawn, accumulator, devices)
     return np.concatenate(accumulator.worst_ratios)
+

@@ -17,6 +17,7 @@ from typing import Callable
 
 import numpy as np
 
+from stringcheck.findings import Finding, Value
 from stringcheck.design.model import Design, Part
 from stringcheck.montecarlo.sampling import DrawnStrings
 
@@ -51,6 +52,16 @@ def device_part_grid(design: Design, drawn: DrawnStrings) -> np.ndarray:
     if drawn.part_index is None:
         return design.string.part_grid()
     return np.array(drawn.part_names, dtype=object)[drawn.part_index]
+
+
+def mix_finding(design: Design) -> Finding | None:
+    """The mix of ``design`` (``mixed_stock.mix``: the part mixed in and the percentage of the
+    devices it takes), or None without a mix."""
+    mix = design.string.mix
+    if mix is None:
+        return None
+    return Finding("mixed_stock.mix", {"part": Value(mix.part),
+                                       "percent": Value(100 * mix.fraction)})
 
 
 def mix_description(design: Design) -> str:

@@ -22,7 +22,7 @@ import numpy as np
 
 from stringcheck.design.model import Design
 from stringcheck.errors import DesignError, Setting
-from stringcheck.checks.findings import Finding, codes
+from stringcheck.checks.findings import Finding, Value, codes
 from stringcheck.checks.outcome import CheckOutcome, Exported, figure, listed, positions_frame
 from stringcheck.checks.outcome import drivers_to_list, record_or_null
 from stringcheck.checks.plausibility import PlausibilityWarning, plausibility_warnings
@@ -116,7 +116,9 @@ def _checks_to_dict(checks: Mapping[str, CheckOutcome]) -> dict[str, Any]:
 
 
 def _skipped_to_dict(checks: Mapping[str, CheckOutcome]) -> dict[str, str]:
-    return {name: check.reason for name, check in checks.items() if not check.ran}
+    """Each check that did not run -> the code of its reason (``report.export`` writes the
+    sentence in its place)."""
+    return {name: check.reason.code for name, check in checks.items() if not check.ran}
 
 
 def _design_to_dict(design: Design) -> dict[str, Any]:
@@ -136,7 +138,9 @@ class CheckResult(Exported):
     ``to_dict()`` is the JSON result without what the report writes in words (the sections
     ``lots`` and ``cautions``, and the sentences of the findings: ``impossible``, the network's
     ``rating_problems`` and ``advisories`` and each warning's ``message``, whose codes it gives;
-    ``report.export.result_to_dict`` adds them);
+    ``report.export.result_to_dict`` adds them), and with codes where that JSON has the
+    sentences: ``skipped`` (name -> the code of the reason), ``no_scatter`` and each check's
+    ``rare.estimator`` (lists of codes) and ``rare.note`` (a code or null);
     ``to_frame()`` the per-position figures of every check that ran, one row per check and
     position.
     """
@@ -157,7 +161,9 @@ class CheckResult(Exported):
     # (``impossible``) written beside them by report.export.
     impossible: tuple[Finding, ...] = figure("impossible_codes", encode=codes)
     assumptions: tuple[str, ...] = figure(encode=listed)
-    no_scatter: tuple[str, ...] = figure(encode=listed)
+    # Inputs drawn without scatter (findings): their codes here, the text written in their place
+    # by report.export.
+    no_scatter: tuple[Finding, ...] = figure(encode=codes)
     drivers: tuple[Driver, ...] = figure(encode=drivers_to_list, default=())
     # Valid values that are probably slips (``plausibility``): shown by the report, never fatal.
     warnings: tuple[PlausibilityWarning, ...] = figure(encode=_warnings_to_list, default=())
@@ -322,30 +328,33 @@ class _Plan:
     """Which checks run (the reason of each that does not), and what their chunks need."""
 
     context: _ChunkContext
-    reasons: dict[str, str]
+    reasons: dict[str, Finding | None]
     run_forward: bool
     note: str  # how the recovery charge was carried to the application (an assumption)
 
 
+NOT_REQUESTED = Finding("not_run.not_requested")
+
+
 def _plan(design: Design, seed: int, only: tuple[str, ...] | None, drivers: bool) -> _Plan:
     """Set every check up from the design: which run, their constants, the parameters drawn."""
-    reasons = {"static": "" if only is None or "static" in only else "not requested",
-               "dynamic": "not requested" if only is not None and "dynamic" not in only else
+    reasons = {"static": None if only is None or "static" in only else NOT_REQUESTED,
+               "dynamic": NOT_REQUESTED if only is not None and "dynamic" not in only else
                dynamic_check_reason(design)}
-    run_dynamic = reasons["dynamic"] == ""
+    run_dynamic = reasons["dynamic"] is None
     parameters = ("i_r", "q_rr") if run_dynamic else ("i_r",)
     run_forward = only is None
     reasons["parallel"], reasons["thermal"] = forward_reasons(design) if run_forward else \
-        ("not requested", "not requested")
+        (NOT_REQUESTED, NOT_REQUESTED)
     # The recovery charge carried to the application's turn-off: one value per drawn device for
     # the dynamic check and the thermal check's recovery loss (a turn-off exactly when the
     # dynamic check can run: an ac waveform or a di_dt).
     rescaling, note = recovery_rescaling(design) if run_dynamic else (None, "")
     forward = None
-    if not (reasons["parallel"] and reasons["thermal"]):
+    if reasons["parallel"] is None or reasons["thermal"] is None:
         forward = forward_setup(design, reasons["parallel"], reasons["thermal"], rescaling)
         parameters = tuple(dict.fromkeys(parameters + forward_parameters(design)))
-    series = series_setup(design, run_static=reasons["static"] == "", run_dynamic=run_dynamic,
+    series = series_setup(design, run_static=reasons["static"] is None, run_dynamic=run_dynamic,
                           rescaling=rescaling)
     context = _ChunkContext(design=design, seed=seed, parameters=parameters, series=series,
                             forward=forward, driver_trials=DRIVER_TRIALS if drivers else 0)
@@ -428,12 +437,16 @@ def _forward_devices(context: _ChunkContext, drawn: DrawnStrings) -> ForwardSetu
     return forward_for_devices(context.design, context.forward, drawn)
 
 
+def _needs_dynamic(plan: _Plan) -> Finding:
+    """Why the transient check cannot run when the dynamic check did not."""
+    return Finding("not_run.needs_dynamic", causes=(plan.reasons["dynamic"],))
+
+
 def _transient(design: Design, dynamic, plan: _Plan, trials: int, seed: int, worst: int,
                sample: int | None, drivers: bool) -> CheckOutcome:
     """The transient check on the dynamic check's worst trials and a random sample."""
     if dynamic is None:
-        return not_run_transient(f"needs the dynamic check, which did not run: "
-                                 f"{plan.reasons['dynamic']}")
+        return not_run_transient(_needs_dynamic(plan))
     confidence = design.monte_carlo.confidence
     target = design.sizing.target_p_fail
     needed = trials_for_upper_bound(target, confidence=confidence)
@@ -530,19 +543,17 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
     estimate = replace(estimate, automatic=automatic)
     if refitted:
         estimate = replace(estimate, estimator=estimate.estimator + (
-            f"; the resampled lot(s) of {', '.join(refitted)} drawn from their fit (per column "
-            "lognormal or normal, Gaussian copula)"))
+            Finding("estimator.refitted_lots", {"parts": Value(", ".join(refitted))}),))
         if not estimate.found_failure_point:
-            note = ("no failure point found and the sampler drew the lot's fit, not the lot: the "
-                    "plain run (the lot itself) decides")
-            estimate = replace(estimate, decides=False, note=note)
+            estimate = replace(estimate, decides=False,
+                               note=Finding("rare.fit_without_failure_point"))
     if estimate.found_failure_point and plain is not None and estimate.ci_high < plain.ci_low:
         # Two intervals of one probability that do not meet: one of the estimators is wrong, and
         # the importance sampler is the one that can be (a failure region it never sampled, such
         # as a failure point it did not find). The exact plain interval decides.
-        note = (f"the importance-sampling upper bound {estimate.ci_high:.2g} lies below the plain "
-                f"Monte Carlo lower bound {plain.ci_low:.2g} ({plain.failures:,} of "
-                f"{plain.trials:,}): the estimators disagree, so the plain interval decides")
+        note = Finding("rare.estimators_disagree",
+                       {"rare_high": Value(estimate.ci_high), "plain_low": Value(plain.ci_low),
+                        "failures": Value(plain.failures), "trials": Value(plain.trials)})
         estimate = replace(estimate, decides=False, note=note)
     # An estimate that does not decide (the cases above, or an incomplete orbit or a search that
     # cannot rule out a failure region it missed, which the estimator declines itself) leaves the
