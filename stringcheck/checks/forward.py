@@ -1,6 +1,9 @@
 """The forward checks of a string: current sharing of parallel branches, and electro-thermal stability.
 
-Both run inside the chunks of ``studies.check`` on the same drawn devices as the series checks.
+Both run inside the chunks of ``studies.check`` on the same drawn devices as the series checks,
+in the steps every chunked check module gives the workflow (:data:`FORWARD_STEPS`,
+``checks.steps``): set up (:func:`forward_setup`), evaluate a chunk (:func:`forward_chunk`), merge
+(:class:`ForwardAccumulator`), finish (:func:`finish_parallel`, :func:`finish_thermal`).
 
 * ``parallel`` (``parallel >= 2`` and a forward current): the share of each built group, max branch
   I_AV / mean branch I_AV, and each device's branch I_AV against its part's ``i_fav`` (I_F(AV)).
@@ -53,6 +56,7 @@ from stringcheck.checks.outcome import (
     runaway_keys,
     turn_off_to_dict,
 )
+from stringcheck.checks.steps import CheckSteps, RunFigures
 from stringcheck.checks.recovery_conditions import (
     RecoveryRescaling,
     TurnOffCurrent,
@@ -606,3 +610,78 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: Finding | None,
         else setup.rescaling.turn_off)
 
 
+
+FORWARD_CHECKS = ("parallel", "thermal")
+
+
+def forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings) -> ForwardChunk:
+    """:func:`run_forward_chunk` with each drawn device's own constants under a mix."""
+    return run_forward_chunk(design, _devices(design, setup, drawn), drawn)
+
+
+def _devices(design: Design, setup: ForwardSetup, drawn: DrawnStrings) -> ForwardSetup:
+    return setup if drawn.part_index is None else forward_for_devices(design, setup, drawn)
+
+
+def _reasons(design: Design, names: tuple[str, ...]) -> dict[str, Finding | None]:
+    reasons = dict(zip(FORWARD_CHECKS, forward_reasons(design)))
+    return {name: reasons[name] for name in names}
+
+
+def _setup(design: Design, reasons, rescaling: RecoveryRescaling | None) -> ForwardSetup | None:
+    if reasons["parallel"] is not None and reasons["thermal"] is not None:
+        return None
+    return forward_setup(design, reasons["parallel"], reasons["thermal"], rescaling)
+
+
+def _parameters(design: Design, reasons) -> tuple[str, ...]:
+    runs = reasons["parallel"] is None or reasons["thermal"] is None
+    return forward_parameters(design) if runs else ()
+
+
+def _finish(design: Design, setup: ForwardSetup | None, reasons,
+            accumulator: ForwardAccumulator, run: RunFigures) -> dict[str, CheckOutcome]:
+    return {"parallel": finish_parallel(design, setup, reasons["parallel"], accumulator,
+                                        run.confidence, run.target, run.trials),
+            "thermal": finish_thermal(design, setup, reasons["thermal"], accumulator,
+                                      run.confidence, run.target, run.trials)}
+
+
+def _chunk_ratios(chunk: ForwardChunk, count: int) -> dict[str, np.ndarray]:
+    out = {"parallel": chunk.current_ratio[:count]}
+    if chunk.tj_ratio is not None:
+        out["thermal"] = chunk.tj_ratio[:count]
+    return out
+
+
+def _chunk_bytes(chunk: ForwardChunk, count: int) -> int:
+    total = 0
+    for name, value in vars(chunk).items():
+        # (The runaway-ambient sample is a few rows per block, not per trial.)
+        if name != "runaway_ambient" and isinstance(value, np.ndarray) and value.ndim \
+                and value.shape[0] == count:
+            total += value.nbytes
+    return total
+
+
+def _trial_ratios(accumulator: ForwardAccumulator, name: str) -> np.ndarray | None:
+    return accumulator.joined("current_ratio" if name == "parallel" else "tj_ratio")
+
+
+def _ratios(design: Design, setup: ForwardSetup, drawn: DrawnStrings, name: str) -> np.ndarray:
+    return forward_ratios(design, _devices(design, setup, drawn), drawn, name)
+
+
+def _rare_parameters(design: Design, name: str) -> tuple[str, ...]:
+    # The forward checks depend on V_T0 and r_T and, through the losses and the junction
+    # temperatures, on the leakage and recovery charge.
+    return forward_parameters(design)
+
+
+# The forward checks' steps for the check workflow (``checks.steps``;
+# ``studies.check.CHECK_STEPS``).
+FORWARD_STEPS = CheckSteps(
+    names=FORWARD_CHECKS, reasons=_reasons, setup=_setup, parameters=_parameters,
+    evaluate=forward_chunk, accumulator=lambda setup: ForwardAccumulator(), finish=_finish,
+    chunk_ratios=_chunk_ratios, chunk_bytes=_chunk_bytes, trial_ratios=_trial_ratios,
+    ratios=_ratios, rare_parameters=_rare_parameters)
