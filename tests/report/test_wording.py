@@ -371,3 +371,61 @@ def test_a_finding_says_its_causes_in_order():
     joined = sentence(Finding("rare.coverage_not_assured", causes=(first, second)))
     assert joined.endswith(": " + sentence(first) + "; " + sentence(second))
     assert sentence(Finding("rare.plain_decides")) == ", so the plain interval decides"
+
+
+def _demo_design(**replaced: str):
+    from importlib import resources
+
+    from stringcheck.design.reading import parse_design_text
+
+    text = (resources.files("stringcheck") / "data" / "demo.toml").read_text(encoding="utf-8")
+    for old, new in replaced.items():
+        assert old in text, old
+        text = text.replace(old, new)
+    return parse_design_text(text, source="demo.toml")
+
+
+def test_the_mix_finding_reads_as_the_assumption_still_written_in_text():
+    # model_assumptions (still text) embeds mix_description; the finding must say the same.
+    from dataclasses import replace
+
+    from stringcheck.design.model import Mix
+    from stringcheck.montecarlo.mixed_stock import mix_description, mix_finding
+
+    design = _demo_design()
+    assert mix_finding(design) is None and mix_description(design) == ""
+    for fraction in (0.25, 1 / 3, 0.005):
+        mixed = replace(design, string=replace(design.string, mix=Mix(fraction=fraction,
+                                                                      part="FR2K")))
+        assert sentence(mix_finding(mixed)) == mix_description(mixed)
+
+
+@pytest.mark.parametrize("replaced", [
+    {},
+    {'q_rr = { typ = "80 nC", max = "150 nC", at_di_dt = "10 A/us", at_forward_current = "0.5 A", '
+     'at_temperature = "25 degC" }': 'q_rr = { typ = "80 nC", max = "150 nC" }'},
+    {'t_rr = { typ = "0.2 us", max = "0.3 us", at_di_dt = "10 A/us" }':
+     't_rr = { typ = "0.2 us", max = "0.3 us", at_di_dt = "20 A/us" }'},
+    {'at_forward_current = "0.5 A", ': '', '\nforward_current = "0.5 A"': '\n'},
+], ids=["complete", "no test di/dt", "two test di/dt", "no test current"])
+def test_the_missing_recovery_finding_reads_as_the_text_the_rescaling_note_embeds(replaced):
+    # recovery_rescaling's note (still text) embeds missing_recovery_data; the transient check's
+    # reason is the finding: the two must agree.
+    from stringcheck.checks.recovery_conditions import (missing_recovery_data,
+                                                        missing_recovery_finding)
+
+    design = _demo_design(**replaced)
+    finding = missing_recovery_finding(design)
+    assert (finding is None) == (missing_recovery_data(design) == "")
+    if finding is not None:
+        assert sentence(finding) == missing_recovery_data(design)
+
+
+def test_an_error_that_holds_a_finding_is_worded_by_the_command_line():
+    from stringcheck.cli.exit_codes import one_line
+    from stringcheck.errors import StringcheckError
+
+    error = StringcheckError("demo.toml: cannot simulate the turn-off: ",
+                             Finding("recovery_data.no_charge", {"part": Value("A")}))
+    assert str(error) == "demo.toml: cannot simulate the turn-off: recovery_data.no_charge"
+    assert one_line(error) == "demo.toml: cannot simulate the turn-off: parts.A gives no q_rr"
