@@ -9,6 +9,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Callable
 
+from stringcheck.findings import Finding
+
 
 @dataclass(frozen=True)
 class Setting:
@@ -45,19 +47,30 @@ class StringcheckError(ValueError):
     Parameters
     ----------
     *message
-        The message, in pieces: text, and a :class:`Setting` wherever it names a setting to
-        change, so that the command line can name its option instead (:meth:`worded`). ``str()``
-        of the error names the Python keyword.
+        The message, in pieces: text, a :class:`Setting` wherever it names a setting to
+        change, so that the command line can name its option instead (:meth:`worded`), and a
+        :class:`~stringcheck.findings.Finding` wherever it gives what a check found (worded by
+        the report's table). ``str()`` of the error names the Python keyword and the finding's
+        code.
     """
 
-    def __init__(self, *message: str | Setting) -> None:
-        self.pieces: tuple[str | Setting, ...] = message
+    def __init__(self, *message: str | Setting | Finding) -> None:
+        self.pieces: tuple[str | Setting | Finding, ...] = message
         super().__init__(self.worded())
 
-    def worded(self, spell: Callable[[Setting], str] = str) -> str:
-        """The message with each :class:`Setting` in it spelled by ``spell``."""
-        return "".join(spell(piece) if isinstance(piece, Setting) else str(piece)
-                       for piece in self.pieces)
+    def worded(self, spell: Callable[[Setting], str] = str,
+               word: Callable[[Finding], str] | None = None) -> str:
+        """The message with each :class:`Setting` in it spelled by ``spell`` and each finding
+        said by ``word`` (``report.wording.sentence``; None: its code)."""
+
+        def shown(piece) -> str:
+            if isinstance(piece, Setting):
+                return spell(piece)
+            if isinstance(piece, Finding):
+                return piece.code if word is None else word(piece)
+            return str(piece)
+
+        return "".join(shown(piece) for piece in self.pieces)
 
 
 class QuantityError(StringcheckError):

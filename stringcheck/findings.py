@@ -38,11 +38,15 @@ class Finding:
         The named figures the finding rests on.
     limit
         The limit the main figure was held against (None where there is none).
+    causes
+        The findings this one rests on, in order (a check that did not run because another did
+        not: that one's reason); its sentence says them where its template has ``{causes}``.
     """
 
     code: str
     values: Mapping[str, Value] = field(default_factory=dict)
     limit: Value | None = None
+    causes: tuple["Finding", ...] = ()
 
     def number(self, name: str) -> float | int | str:
         """The number (or name) of the value called ``name``."""

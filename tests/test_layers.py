@@ -10,7 +10,8 @@ from pathlib import Path
 PACKAGE = Path(__file__).resolve().parents[1] / "stringcheck"
 
 # Bottom to top; a module may import its own layer and the layers below it.
-LAYERS = {"errors": 0, "findings": 0, "units": 0, "eseries": 0, "limits": 0, "constants": 0, "design": 1,
+LAYERS = {"errors": 0, "findings": 0, "units": 0, "eseries": 0, "limits": 0, "constants": 0,
+          "design": 1,
           "physics": 2, "solvers": 3, "montecarlo": 4, "checks": 5, "studies": 6, "report": 7,
           "cli": 8}
 TOP = 9  # stringcheck/__init__.py and __main__.py: the API over every layer

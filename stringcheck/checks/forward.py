@@ -1,6 +1,9 @@
 """The forward checks of a string: current sharing of parallel branches, and electro-thermal stability.
 
-Both run inside the chunks of ``studies.check`` on the same drawn devices as the series checks.
+Both run inside the chunks of ``studies.check`` on the same drawn devices as the series checks,
+in the steps every chunked check module gives the workflow (:data:`FORWARD_STEPS`,
+``checks.steps``): set up (:func:`forward_setup`), evaluate a chunk (:func:`forward_chunk`), merge
+(:class:`ForwardAccumulator`), finish (:func:`finish_parallel`, :func:`finish_thermal`).
 
 * ``parallel`` (``parallel >= 2`` and a forward current): the share of each built group, max branch
   I_AV / mean branch I_AV, and each device's branch I_AV against its part's ``i_fav`` (I_F(AV)).
@@ -24,6 +27,7 @@ import numpy as np
 from stringcheck import eseries
 from stringcheck.constants import DATASHEET_TEMPERATURE
 from stringcheck.design.model import Design
+from stringcheck.checks.findings import Finding, Value
 from stringcheck.errors import DesignError, SizingError
 from stringcheck.limits import exceeds_limit, within_limit
 from stringcheck.montecarlo.sampling import BLOCK_TRIALS, SUM_TRIALS, DrawnStrings
@@ -53,6 +57,7 @@ from stringcheck.checks.outcome import (
     turn_off_to_dict,
 )
 from stringcheck.montecarlo.temperature_rows import device_coefficient, strings_at_temperature
+from stringcheck.checks.steps import CheckSteps, RunFigures
 from stringcheck.checks.recovery_conditions import (
     RecoveryRescaling,
     TurnOffCurrent,
@@ -208,39 +213,41 @@ class ForwardChunk:
     runaway_ambient: np.ndarray | None = None
 
 
-def forward_reasons(design: Design) -> tuple[str, str]:
-    """Why the parallel and the thermal check cannot run ("" for a check that can)."""
+def forward_reasons(design: Design) -> tuple[Finding | None, Finding | None]:
+    """Why the parallel and the thermal check cannot run (None for a check that can)."""
     duty = design.duty
     layout = design.string
     parts = [design.parts[name] for name in design.parts_used()]
+
+    def named(code: str, names: list[str]) -> Finding:
+        return Finding(code, {"parts": Value(", ".join(names))})
+
     if duty.forward_current is None:
-        missing = ("no duty.forward_current: give the average forward current of the whole group "
-                   "(I_F(AV)) to check current sharing and junction temperatures")
+        missing = Finding("not_run.no_forward_current")
         return missing, missing
     lacking = [p.name for p in parts if p.v_t0 is None or p.r_t is None]
     if lacking:
-        missing = (f"part(s) {', '.join(lacking)} give no v_t0 and r_t (forward characteristic); "
-                   "give them, or a class to inherit them from")
+        missing = named("not_run.no_forward_line", lacking)
         return missing, missing
-    parallel = "" if layout.parallel >= 2 else "one branch: no current to share"
-    if parallel == "":
+    parallel = None if layout.parallel >= 2 else Finding("not_run.one_branch")
+    if parallel is None:
         unrated = [p.name for p in parts if p.i_fav is None]
         if unrated:
-            parallel = (f"part(s) {', '.join(unrated)} give no i_fav (rated average forward "
-                        "current), the limit of this check")
-    thermal = ""
+            parallel = named("not_run.no_rated_current", unrated)
+    thermal = None
     no_resistance = [p.name for p in parts if p.r_th_jc is None]
     no_limit = [p.name for p in parts if p.t_j_max is None]
     if no_resistance:
-        thermal = f"part(s) {', '.join(no_resistance)} give no r_th_jc"
+        thermal = named("not_run.no_junction_to_case", no_resistance)
     elif no_limit:
-        thermal = f"part(s) {', '.join(no_limit)} give no t_j_max"
+        thermal = named("not_run.no_junction_limit", no_limit)
     elif design.thermal.r_th_sa is None:
-        thermal = "no thermal.r_th_sa (heatsink to ambient): give it to check junction temperatures"
+        thermal = Finding("not_run.no_heatsink")
     return parallel, thermal
 
 
-def forward_setup(design: Design, parallel_reason: str, thermal_reason: str,
+def forward_setup(design: Design, parallel_reason: Finding | None,
+                  thermal_reason: Finding | None,
                   rescaling: RecoveryRescaling | None = None) -> ForwardSetup:
     """The per-position constants, shape (parallel, series); with a mix each position's lowest
     value over the parts that can stand there (the limits shown per position), which the chunks
@@ -250,7 +257,7 @@ def forward_setup(design: Design, parallel_reason: str, thermal_reason: str,
     layout = design.string
     parts = [design.parts[name] for name in design.parts_used()]
     return ForwardSetup(
-        run_parallel=parallel_reason == "", run_thermal=thermal_reason == "",
+        run_parallel=parallel_reason is None, run_thermal=thermal_reason is None,
         **_part_constants(lambda attribute: position_values(design, attribute)),
         position_temperature=design.duty.ambient + layout.temperature_rise_grid(),
         # The runaway-ambient search ends at the highest T_j,max: no ambient above it is usable.
@@ -484,10 +491,11 @@ class ForwardAccumulator:
         return np.concatenate(parts)
 
 
-def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulator: ForwardAccumulator,
-                    confidence: float, target: float, trials: int) -> ParallelCheck:
-    """Summarise the parallel check over the whole run."""
-    if reason:
+def finish_parallel(design: Design, setup: ForwardSetup, reason: Finding | None,
+                    accumulator: ForwardAccumulator, confidence: float, target: float,
+                    trials: int) -> ParallelCheck:
+    """Summarise the parallel check over the whole run (not run, with ``reason``, when given)."""
+    if reason is not None:
         return ParallelCheck.not_run("parallel", reason)
     share = accumulator.joined("share")
     ratio = accumulator.joined("current_ratio")
@@ -513,7 +521,7 @@ def finish_parallel(design: Design, setup: ForwardSetup, reason: str, accumulato
                               accumulator.joined("ballast_loss_per_ohm"), target,
                               source=design.source)
     return ParallelCheck(
-        name="parallel", ran=True, reason="", passed=estimate.ci_high <= target,
+        name="parallel", ran=True, reason=None, passed=estimate.ci_high <= target,
         worst_share=worst_share, p99_share=float(np.nanpercentile(share, 99)),
         worst_ratio=float(np.max(np.where(unsolved, np.inf, ratio))),
         p50_ratio=float(np.percentile(finite, 50)) if finite.size else np.nan,
@@ -555,11 +563,11 @@ def _ballast_advice(target_share: float, per_trial: np.ndarray | None,
                          reachable=True)
 
 
-def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
+def finish_thermal(design: Design, setup: ForwardSetup, reason: Finding | None,
                    accumulator: ForwardAccumulator, confidence: float, target: float,
                    trials: int) -> ThermalCheck:
-    """Summarise the thermal check over the whole run."""
-    if reason:
+    """Summarise the thermal check over the whole run (not run, with ``reason``, when given)."""
+    if reason is not None:
         return ThermalCheck.not_run("thermal", reason)
     ratio = accumulator.joined("tj_ratio")
     worst = accumulator.joined("worst_tj")
@@ -592,7 +600,7 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
     power = accumulator.joined("power_total")
     settled = ~runaway & np.isfinite(power)
     return ThermalCheck(
-        name="thermal", ran=True, reason="", passed=estimate.ci_high <= target,
+        name="thermal", ran=True, reason=None, passed=estimate.ci_high <= target,
         worst_tj=float(np.max(worst)), p99_tj=float(np.percentile(finite_worst, 99))
         if finite_worst.size else np.nan,
         worst_ratio=float(np.max(ratio)),
@@ -609,3 +617,79 @@ def finish_thermal(design: Design, setup: ForwardSetup, reason: str,
         turn_off_current=None if setup.rescaling is None or design.duty.waveform == "dc"
         else setup.rescaling.turn_off)
 
+
+
+FORWARD_CHECKS = ("parallel", "thermal")
+
+
+def forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings) -> ForwardChunk:
+    """:func:`run_forward_chunk` with each drawn device's own constants under a mix."""
+    return run_forward_chunk(design, _devices(design, setup, drawn), drawn)
+
+
+def _devices(design: Design, setup: ForwardSetup, drawn: DrawnStrings) -> ForwardSetup:
+    return setup if drawn.part_index is None else forward_for_devices(design, setup, drawn)
+
+
+def _reasons(design: Design, names: tuple[str, ...]) -> dict[str, Finding | None]:
+    reasons = dict(zip(FORWARD_CHECKS, forward_reasons(design)))
+    return {name: reasons[name] for name in names}
+
+
+def _setup(design: Design, reasons, rescaling: RecoveryRescaling | None) -> ForwardSetup | None:
+    if reasons["parallel"] is not None and reasons["thermal"] is not None:
+        return None
+    return forward_setup(design, reasons["parallel"], reasons["thermal"], rescaling)
+
+
+def _parameters(design: Design, reasons) -> tuple[str, ...]:
+    runs = reasons["parallel"] is None or reasons["thermal"] is None
+    return forward_parameters(design) if runs else ()
+
+
+def _finish(design: Design, setup: ForwardSetup | None, reasons,
+            accumulator: ForwardAccumulator, run: RunFigures) -> dict[str, CheckOutcome]:
+    return {"parallel": finish_parallel(design, setup, reasons["parallel"], accumulator,
+                                        run.confidence, run.target, run.trials),
+            "thermal": finish_thermal(design, setup, reasons["thermal"], accumulator,
+                                      run.confidence, run.target, run.trials)}
+
+
+def _chunk_ratios(chunk: ForwardChunk, count: int) -> dict[str, np.ndarray]:
+    out = {"parallel": chunk.current_ratio[:count]}
+    if chunk.tj_ratio is not None:
+        out["thermal"] = chunk.tj_ratio[:count]
+    return out
+
+
+def _chunk_bytes(chunk: ForwardChunk, count: int) -> int:
+    total = 0
+    for name, value in vars(chunk).items():
+        # (The runaway-ambient sample is a few rows per block, not per trial.)
+        if name != "runaway_ambient" and isinstance(value, np.ndarray) and value.ndim \
+                and value.shape[0] == count:
+            total += value.nbytes
+    return total
+
+
+def _trial_ratios(accumulator: ForwardAccumulator, name: str) -> np.ndarray | None:
+    return accumulator.joined("current_ratio" if name == "parallel" else "tj_ratio")
+
+
+def _ratios(design: Design, setup: ForwardSetup, drawn: DrawnStrings, name: str) -> np.ndarray:
+    return forward_ratios(design, _devices(design, setup, drawn), drawn, name)
+
+
+def _rare_parameters(design: Design, name: str) -> tuple[str, ...]:
+    # The forward checks depend on V_T0 and r_T and, through the losses and the junction
+    # temperatures, on the leakage and recovery charge.
+    return forward_parameters(design)
+
+
+# The forward checks' steps for the check workflow (``checks.steps``;
+# ``studies.check.CHECK_STEPS``).
+FORWARD_STEPS = CheckSteps(
+    names=FORWARD_CHECKS, reasons=_reasons, setup=_setup, parameters=_parameters,
+    evaluate=forward_chunk, accumulator=lambda setup: ForwardAccumulator(), finish=_finish,
+    chunk_ratios=_chunk_ratios, chunk_bytes=_chunk_bytes, trial_ratios=_trial_ratios,
+    ratios=_ratios, rare_parameters=_rare_parameters)

@@ -20,6 +20,7 @@ import math
 from dataclasses import MISSING, dataclass
 from typing import Any, Callable, ClassVar
 
+from stringcheck.checks.findings import Finding, codes
 from stringcheck.checks.recovery_conditions import TurnOffCurrent
 from stringcheck.montecarlo.estimates import FailureEstimate
 from stringcheck.montecarlo.importance import RareEstimate
@@ -92,15 +93,18 @@ def turn_off_to_dict(turn_off: TurnOffCurrent | None) -> dict[str, Any] | None:
 
 
 def rare_to_dict(rare: RareEstimate | None) -> dict[str, Any] | None:
-    """JSON of a check's importance-sampling estimate (``--rare``), or None."""
+    """JSON of a check's importance-sampling estimate (``--rare``), or None: its ``estimator`` a
+    list of finding codes and its ``note`` a code or None (``report.export`` writes them in
+    words)."""
     if rare is None:
         return None
-    return {"estimator": rare.estimator, "p_fail": rare.p_fail, "std_error": rare.std_error,
+    return {"estimator": codes(rare.estimator), "p_fail": rare.p_fail, "std_error": rare.std_error,
             "p_fail_ci": [rare.ci_low, rare.ci_high], "beta": json_number(rare.beta),
             "first_order": rare.first_order, "samples": rare.samples,
             "found_failure_point": rare.found_failure_point,
             "failure_points": rare.failure_points, "pooled_trials": rare.pooled_trials,
-            "decides": rare.decides, "note": rare.note, "automatic": rare.automatic,
+            "decides": rare.decides, "note": None if rare.note is None else rare.note.code,
+            "automatic": rare.automatic,
             "orbit_complete": rare.orbit_complete, "regions_found": rare.regions_found,
             "coverage_assured": rare.coverage_assured,
             "importance": [{"input": item.input, "share": item.share, "branch": item.branch,
@@ -205,7 +209,8 @@ class CheckOutcome(Exported):
 
     name: str = figure(None)
     ran: bool = figure(None, idle=False)
-    reason: str = figure(None)  # why the check did not run ("" when it ran)
+    # Why the check did not run (None when it ran): a finding, worded by report.wording.
+    reason: Finding | None = figure(None)
     passed: bool = figure(idle=False)
     worst_ratio: float = figure(encode=json_number, idle=math.nan)
     p50_ratio: float = figure(encode=json_number, idle=math.nan)
@@ -218,7 +223,7 @@ class CheckOutcome(Exported):
     rare: RareEstimate | None = figure(encode=rare_to_dict, default=None)
 
     @classmethod
-    def not_run(cls, name: str, reason: str):
+    def not_run(cls, name: str, reason: Finding):
         """The result of a check that did not run, and why: every figure at its idle value."""
         values: dict[str, Any] = {"name": name, "reason": reason}
         for item in dataclasses.fields(cls):
@@ -247,7 +252,7 @@ class CheckOutcome(Exported):
 
     def __repr__(self) -> str:
         if not self.ran:
-            return _cut(f"{type(self).__name__}({self.name!r}, not run: {self.reason})")
+            return _cut(f"{type(self).__name__}({self.name!r}, not run: {self.reason.code})")
         estimate = self.estimate
         text = (f"{type(self).__name__}({self.name!r}, {'pass' if self.passed else 'FAIL'}, "
                 f"worst ratio {self.worst_ratio:.4g}, p99 {self.p99_ratio:.4g}, "

@@ -16,14 +16,13 @@ from stringcheck.constants import RESISTOR_TCR_REFERENCE
 from stringcheck.design.model import Design, Spread
 from stringcheck.errors import DesignError
 from stringcheck.physics.recovery import recovery_charge
-from stringcheck.montecarlo.mixed_stock import mix_description, position_values
+from stringcheck.montecarlo.mixed_stock import mix_finding, position_values
 
 
-def dynamic_check_reason(design: Design) -> str:
-    """Why the dynamic check cannot run ("" when it can)."""
+def dynamic_check_reason(design: Design) -> Finding | None:
+    """Why the dynamic check cannot run (None when it can)."""
     if design.duty.waveform == "dc" and design.duty.di_dt is None:
-        return ("dc duty with no turn-off: give duty.di_dt (or an ac waveform) to check the "
-                "voltage sharing at turn-off")
+        return Finding("not_run.no_turn_off")
     if design.grading.capacitor is None:
         bare = [name for name in design.parts_used() if design.parts[name].c_j <= 0]
         if bare:
@@ -31,7 +30,7 @@ def dynamic_check_reason(design: Design) -> str:
                 "the dynamic check needs capacitance at every stage: give grading.capacitor, or "
                 f"the junction capacitance c_j of part(s) {', '.join(bare)}",
                 source=design.source, key="grading.capacitor")
-    return ""
+    return None
 
 
 def with_recovery_charge(design: Design) -> Design:
@@ -99,22 +98,25 @@ def model_assumptions(design: Design, rescaling_note: Finding | None) -> tuple[F
         Finding("model.resistor_tcr", {"reference": Value(RESISTOR_TCR_REFERENCE, "degC")}),
     ]
     if design.string.mix is not None:
-        notes.append(Finding("model.mixed_stock", {"mix": Value(mix_description(design))}))
+        notes.append(Finding("model.mixed_stock", causes=(mix_finding(design),)))
     if rescaling_note is not None:
         notes.append(rescaling_note)
     return tuple(notes)
 
 
-def no_scatter(design: Design, parameters: tuple[str, ...]) -> tuple[str, ...]:
+def no_scatter(design: Design, parameters: tuple[str, ...]) -> tuple[Finding, ...]:
+    """The inputs drawn without scatter (fixed values): each part's parameters among
+    ``parameters`` with neither limit given, and grading components without a tolerance."""
     notes = []
     for name in design.parts_used():
         for parameter in parameters:
             spread = design.parts[name].spread(parameter)
             if spread is not None and spread.fixed:
-                notes.append(f"parts.{name}.{parameter}")
+                notes.append(Finding("no_scatter.parameter",
+                                     {"part": Value(name), "parameter": Value(parameter)}))
     grading = design.grading
     if grading.resistor is not None and grading.resistor_tolerance == 0:
-        notes.append("grading.resistor (no tolerance given)")
+        notes.append(Finding("no_scatter.resistor"))
     if grading.capacitor is not None and grading.capacitor_tolerance == 0:
-        notes.append("grading.capacitor (no tolerance given)")
+        notes.append(Finding("no_scatter.capacitor"))
     return tuple(notes)

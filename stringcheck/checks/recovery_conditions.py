@@ -67,22 +67,26 @@ def part_fits(design: Design) -> dict[str, PartFit]:
     return fits
 
 
-def missing_recovery_data(design: Design) -> str:
-    """What the model needs and a part does not give ("" when every part gives it)."""
+def missing_recovery_finding(design: Design) -> Finding | None:
+    """What the model needs and a part does not give (None when every part gives it), as a
+    finding (``recovery_data.*``) naming the part: the transient check's reason not to run.
+    The recovery-rescaling note names it as its cause."""
     for name in design.parts_used():
         part = design.parts[name]
+        code = None
         if part.q_rr is None:
-            return f"parts.{name} gives no q_rr"
-        if part.i_rm is None and part.t_rr is None:
-            return f"parts.{name} gives neither i_rm nor t_rr: the recovery model needs one"
-        if part.q_rr.at_di_dt is None:
-            return f"parts.{name}.q_rr has no at_di_dt (the datasheet's test di/dt)"
-        if part.i_rm is None and part.t_rr.at_di_dt not in (None, part.q_rr.at_di_dt):
-            return (f"parts.{name}: t_rr and q_rr are given at different test di/dt (the fit "
-                    "needs both at one test condition)")
-        if part.q_rr.at_forward_current is None and design.duty.forward_current is None:
-            return f"parts.{name}.q_rr has no at_forward_current and the duty no forward_current"
-    return ""
+            code = "recovery_data.no_charge"
+        elif part.i_rm is None and part.t_rr is None:
+            code = "recovery_data.no_peak_or_time"
+        elif part.q_rr.at_di_dt is None:
+            code = "recovery_data.no_test_di_dt"
+        elif part.i_rm is None and part.t_rr.at_di_dt not in (None, part.q_rr.at_di_dt):
+            code = "recovery_data.test_di_dt_differ"
+        elif part.q_rr.at_forward_current is None and design.duty.forward_current is None:
+            code = "recovery_data.no_test_current"
+        if code is not None:
+            return Finding(code, {"part": Value(name)})
+    return None
 
 
 # Where the turn-off current comes from (TurnOffCurrent.basis).
@@ -157,9 +161,10 @@ def recovery_rescaling(design: Design) -> tuple[RecoveryRescaling | None, Findin
     duty = design.duty
     di_dt = duty.di_dt if duty.di_dt is not None else (
         duty.reverse_voltage / duty.stray_inductance if duty.stray_inductance else None)
-    missing = missing_recovery_data(design) if di_dt is not None else "no di/dt"
-    if missing:
-        return None, Finding("recovery.not_rescaled", {"missing": Value(missing)})
+    missing = missing_recovery_finding(design) if di_dt is not None else \
+        Finding("recovery_data.no_di_dt")
+    if missing is not None:
+        return None, Finding("recovery.not_rescaled", causes=(missing,))
     try:
         fits = part_fits(design)
     except InconsistentRecoveryData as error:

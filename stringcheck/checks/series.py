@@ -3,7 +3,8 @@
 Both run inside the chunks of ``studies.check`` on the same drawn devices as the forward checks, in
 the steps every check module has: set up from the design (:func:`series_setup`), evaluate a chunk
 of drawn strings (:func:`run_series_chunk`), merge the chunks in trial order
-(:class:`SeriesAccumulator`), finish (:func:`finish_series`).
+(:class:`SeriesAccumulator`), finish (:func:`finish_series`), given to the workflow as
+:data:`SERIES_STEPS` (``checks.steps``).
 
 * ``static``: each stage's leakage against its grading resistor (``solvers.series_static``), the
   resistor at its temperature by its TCR (``physics.grading.resistance_at_temperature``).
@@ -25,6 +26,8 @@ import numpy as np
 
 from stringcheck.checks.outcome import CheckOutcome, Exported, figure, json_number, records
 from stringcheck.checks.outcome import turn_off_to_dict
+from stringcheck.checks.preconditions import dynamic_check_reason
+from stringcheck.checks.steps import CheckSteps, RunFigures
 from stringcheck.constants import RESISTOR_TCR_REFERENCE
 from stringcheck.checks.recovery_conditions import (
     RecoveryRescaling,
@@ -32,6 +35,7 @@ from stringcheck.checks.recovery_conditions import (
     carried_charges,
 )
 from stringcheck.design.model import Design, Part
+from stringcheck.checks.findings import Finding
 from stringcheck.limits import within_limit
 from stringcheck.montecarlo.accumulators import PositionSums
 from stringcheck.montecarlo.estimates import failure_estimate, histogram_counts
@@ -274,7 +278,7 @@ def finish_series(name: str, accumulator: PositionSums, grid: np.ndarray, confid
     worst_string = accumulator.worst_string if accumulator.worst_string is not None else \
         np.full(grid.shape, np.nan)
     figures = dict(
-        name=name, ran=True, reason="", passed=estimate.ci_high <= target,
+        name=name, ran=True, reason=None, passed=estimate.ci_high <= target,
         worst_voltage=float(np.max(accumulator.maximum)) if accumulator.count else float("nan"),
         worst_ratio=float(np.max(ratios)),
         p50_ratio=float(p50), p99_ratio=float(p99),
@@ -286,7 +290,7 @@ def finish_series(name: str, accumulator: PositionSums, grid: np.ndarray, confid
     return SeriesCheck(**figures)
 
 
-def not_run_series(name: str, reason: str) -> SeriesCheck:
+def not_run_series(name: str, reason: Finding) -> SeriesCheck:
     """A series check that did not run, and why."""
     return (DynamicCheck if name == "dynamic" else SeriesCheck).not_run(name, reason)
 
@@ -304,3 +308,56 @@ def series_ratios(design: Design, setup: SeriesSetup, drawn: DrawnStrings, check
     else:
         dynamic_chunk(design, drawn, accumulator, devices)
     return np.concatenate(accumulator.worst_ratios)
+
+
+def _reasons(design: Design, names: tuple[str, ...]) -> dict[str, Finding | None]:
+    """The static check always runs; the dynamic check needs a turn-off
+    (``preconditions.dynamic_check_reason``)."""
+    return {name: None if name == "static" else dynamic_check_reason(design) for name in names}
+
+
+def _setup(design: Design, reasons, rescaling: RecoveryRescaling | None) -> SeriesSetup:
+    return series_setup(design, run_static=reasons["static"] is None,
+                        run_dynamic=reasons["dynamic"] is None, rescaling=rescaling)
+
+
+def _parameters(design: Design, reasons) -> tuple[str, ...]:
+    return ("i_r", "q_rr") if reasons["dynamic"] is None else ("i_r",)
+
+
+def _finish(design: Design, setup: SeriesSetup, reasons, accumulator: SeriesAccumulator,
+            run: RunFigures) -> dict[str, SeriesCheck]:
+    grid = design.string.part_labels()
+    turn_off = None if setup.rescaling is None else setup.rescaling.turn_off
+    out = {}
+    for name in SERIES_CHECKS:
+        sums = accumulator.sums.get(name)
+        out[name] = not_run_series(name, reasons[name]) if sums is None else \
+            finish_series(name, sums, grid, run.confidence, run.trials, run.target,
+                          turn_off=turn_off)
+    return out
+
+
+def _chunk_ratios(chunk: SeriesChunk, count: int) -> dict[str, np.ndarray]:
+    return {name: np.concatenate(sums.worst_ratios)[:count] for name, sums in chunk.sums().items()}
+
+
+def _chunk_bytes(chunk: SeriesChunk, count: int) -> int:
+    return sum(ratios.nbytes for sums in chunk.sums().values() for ratios in sums.worst_ratios)
+
+
+def _trial_ratios(accumulator: SeriesAccumulator, name: str) -> np.ndarray | None:
+    sums = accumulator.sums.get(name)
+    return None if sums is None else np.concatenate(sums.worst_ratios)
+
+
+def _rare_parameters(design: Design, name: str) -> tuple[str, ...]:
+    return ("i_r",) if name == "static" else ("q_rr",)
+
+
+# The series checks' steps for the check workflow (``checks.steps``; ``studies.check.CHECK_STEPS``).
+SERIES_STEPS = CheckSteps(
+    names=SERIES_CHECKS, reasons=_reasons, setup=_setup, parameters=_parameters,
+    evaluate=run_series_chunk, accumulator=SeriesAccumulator, finish=_finish,
+    chunk_ratios=_chunk_ratios, chunk_bytes=_chunk_bytes, trial_ratios=_trial_ratios,
+    ratios=series_ratios, rare_parameters=_rare_parameters)

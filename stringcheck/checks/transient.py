@@ -25,6 +25,7 @@ from typing import Callable
 
 import numpy as np
 
+from stringcheck.checks.findings import Finding, Value
 from stringcheck.design.model import Design
 from stringcheck.physics.charge_control_fit import lifetime_for_charge
 from stringcheck.montecarlo.sampling import (
@@ -63,7 +64,7 @@ from stringcheck.checks.recovery_conditions import (
     InconsistentRecoveryData,
     PartFit,
     TurnOffCurrent,
-    missing_recovery_data,
+    missing_recovery_finding,
     part_fits,
     turn_off_current,
 )
@@ -125,30 +126,28 @@ class TransientCheck(CheckOutcome):
         return self.positions
 
 
-def not_run(reason: str) -> TransientCheck:
+def not_run(reason: Finding) -> TransientCheck:
     """The transient check that did not run, and why."""
     return TransientCheck.not_run("transient", reason)
 
 
-def transient_reason(design: Design) -> str:
-    """Why the transient check cannot run for this design ("" when it can)."""
+def transient_reason(design: Design) -> Finding | None:
+    """Why the transient check cannot run for this design (None when it can)."""
     duty = design.duty
     if duty.stray_inductance is None and duty.di_dt is None:
-        return "give duty.stray_inductance or duty.di_dt (the commutation loop)"
-    return missing_recovery_data(design)
+        return Finding("not_run.no_commutation_loop")
+    return missing_recovery_finding(design)
 
 
-def _fits_or_reason(design: Design) -> tuple[dict[str, PartFit], str]:
+def _fits_or_reason(design: Design) -> tuple[dict[str, PartFit], Finding | None]:
     """Each part's fitted recovery model, or why the turn-off cannot be simulated."""
     reason = transient_reason(design)
-    if reason:
+    if reason is not None:
         return {}, reason
     try:
-        return part_fits(design), ""
+        return part_fits(design), None
     except InconsistentRecoveryData as error:
-        return {}, (f"parts.{error}: its typical q_rr, i_rm or t_rr and at_di_dt are not "
-                    "consistent with any recovery waveform (with t_rr: Q_rr <= di/dt t_rr^2 / 2; "
-                    "with i_rm: Q_rr > I_RM^2 / (2 di/dt)); check the datasheet values")
+        return {}, Finding("not_run.inconsistent_recovery", {"part": Value(str(error))})
 
 
 def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, seed: int,
@@ -160,7 +159,7 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
     peak over limit on the sample (``montecarlo.sensitivity``), and simulate the same sampled strings
     again with each of the top inputs' spread halved (the worst set kept)."""
     fits, reason = _fits_or_reason(design)
-    if reason:
+    if reason is not None:
         return not_run(reason)
     worst = min(worst, trials)
     sample = min(sample, trials)
@@ -211,7 +210,7 @@ def run_transient(design: Design, *, dynamic_ratios: np.ndarray, trials: int, se
                        sample=sample, confidence=confidence, target=target)
         ranked = _rank(design, sample_set, ratio[in_sample], trials, seed, options)
     return TransientCheck(
-        name="transient", ran=True, reason="",
+        name="transient", ran=True, reason=None,
         passed=estimate.ci_high <= target and worst_failures == 0,
         worst_voltage=float(np.nanmax(np.where(solved[:, None, None], peaks, np.nan))),
         worst_ratio=float(ratio[top]),
@@ -315,8 +314,8 @@ def transient_evaluator(design: Design) -> Callable[[DrawnStrings], np.ndarray]:
     (strings drawn with ``("q_rr",)``; with a mix each device with its own part's recovery fit and
     limit). The design must pass :func:`transient_reason`."""
     fits, reason = _fits_or_reason(design)
-    if reason:
-        raise ValueError(f"the turn-off cannot be simulated: {reason}")
+    if reason is not None:
+        raise ValueError(f"the turn-off cannot be simulated: {reason.code}")
     inductance, forward, _ = _loop(design, fits)
 
     def evaluate(drawn: DrawnStrings) -> np.ndarray:
@@ -362,8 +361,8 @@ def _one_trial(design: Design, trial: int, trials: int | None, seed: int | None,
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
     fits, reason = _fits_or_reason(design)
-    if reason:
-        raise StringcheckError(f"{design.source}: cannot simulate the turn-off: {reason}")
+    if reason is not None:
+        raise StringcheckError(f"{design.source}: cannot simulate the turn-off: ", reason)
     if not 1 <= branch <= design.string.parallel:
         raise StringcheckError(Setting("branch"), f" must be in 1..{design.string.parallel}, "
                                f"got {branch}")

@@ -69,12 +69,15 @@ class TerminateOnSigterm:
 
 def one_line(error: BaseException) -> str:
     """The message as one line of rich markup: user text in it is escaped, control characters
-    shown as '?', and a setting it names (``errors.Setting``) spelled as its option."""
+    shown as '?', a setting it names (``errors.Setting``) spelled as its option, and a finding
+    in it in words (``report.wording``)."""
     from rich.markup import escape
 
     from stringcheck.report.display_text import shown
+    from stringcheck.report.wording import sentence
 
-    text = error.worded(option_wording) if isinstance(error, StringcheckError) else str(error)
+    text = error.worded(option_wording, lambda finding: sentence(finding, spell=option_wording)) \
+        if isinstance(error, StringcheckError) else str(error)
     return escape(shown(" ".join(text.split())))
 
 

@@ -69,6 +69,7 @@ from scipy import optimize, special, stats
 
 from stringcheck.design.model import SPREAD_PARAMETERS, Design
 from stringcheck.errors import DesignError, Setting
+from stringcheck.findings import Finding, Value
 from stringcheck.limits import exceeds_limit, within_limit
 from stringcheck.montecarlo.sampling import (
     DrawnStrings,
@@ -153,14 +154,15 @@ class RareEstimate:
     ``pooled_trials`` is the number of plain trials behind the interval when no failure point
     was found (the sampler's plain samples plus the check's own run; 0 otherwise). ``decides``
     is False when the check's verdict comes from its plain Monte Carlo run instead (set by the
-    check, or by the estimator itself), and ``note`` says why.
+    check, or by the estimator itself), and ``note`` says why. ``estimator`` says how the
+    estimate was made; both are findings (``report.wording`` words them).
     ``automatic`` is True when the estimator ran without being asked, because the check's plain
     run saw too few failures to decide it (set by the check). ``orbit_complete`` is False when the
     failure point had more images than the sampler takes: the estimate then does not decide.
     """
 
     check: str
-    estimator: str
+    estimator: tuple[Finding, ...]
     p_fail: float
     std_error: float
     ci_low: float
@@ -175,7 +177,7 @@ class RareEstimate:
     failure_points: int = 0
     pooled_trials: int = 0
     decides: bool = True
-    note: str = ""
+    note: Finding | None = None
     automatic: bool = False
     orbit_complete: bool = True
     regions_found: int = 0
@@ -382,14 +384,13 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
         extra_failures, extra_trials = (0, 0) if plain is None else (plain.failures, plain.trials)
         pooled = failure_estimate(failures + extra_failures, samples + extra_trials,
                                   confidence=confidence)
-        text = (f"no failure point found within |u| <= {_RAY_LIMIT:g} (steepest ascent, "
-                f"{effort.pilot:,} plain pilot samples and rays from the highest of them): ")
-        text += (f"the sampler's {samples:,} plain samples pooled with the check's "
-                 f"{extra_trials:,} Monte Carlo trials, exact interval" if extra_trials
-                 else "plain sampling with the exact interval")
+        search = {"radius": Value(_RAY_LIMIT), "pilot": Value(effort.pilot)}
+        text = Finding("estimator.no_failure_point_pooled",
+                       {**search, "samples": Value(samples), "trials": Value(extra_trials)}) \
+            if extra_trials else Finding("estimator.no_failure_point_plain", search)
         pooled_error = math.sqrt(pooled.p_fail * (1 - pooled.p_fail) / pooled.trials)
         return RareEstimate(
-            check=check, estimator=text, p_fail=pooled.p_fail, std_error=pooled_error,
+            check=check, estimator=(text,), p_fail=pooled.p_fail, std_error=pooled_error,
             ci_low=pooled.ci_low, ci_high=pooled.ci_high, confidence=confidence, beta=math.inf,
             first_order=0.0, samples=samples, failures=failures, found_failure_point=False,
             pooled_trials=pooled.trials if extra_trials else 0)
@@ -398,11 +399,9 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
     count = shifts.shape[0]
     regions = len(used)
     complete = all(region.complete for region in used)
-    text = "importance sampling, defensive mixture shifted to the most likely failure point"
-    if regions > 1:
-        text += f" of each of {regions} failure regions"
-    if count > regions:
-        text += f" and {count - regions} image(s) under the exchangeable positions"
+    # (The sentence names the regions when there are several, and the images when there are any.)
+    text = Finding("estimator.importance_sampling",
+                   {"regions": Value(regions), "images": Value(count - regions)})
     total = float(contribution.sum())
     # Kish's effective sample size of the failing samples' weights (L. Kish, Survey Sampling, 1965):
     # no failing sample at all is no evidence, not infinite evidence, so coverage is not assured and
@@ -410,32 +409,29 @@ def rare_event_estimate(design: Design, check: str, parameters: tuple[str, ...],
     effective = total ** 2 / float(contribution @ contribution) if total > 0 else 0.0
     reasons = []
     if search.capped:
-        reasons.append(f"the search stopped at {MAX_REGIONS} failure regions and more remained")
+        reasons.append(Finding("rare.search_capped", {"regions": Value(MAX_REGIONS)}))
     if revealed:
-        reasons.append(f"its sample still revealed {revealed} failure region(s) the search had "
-                       f"missed after {_ADAPT_ROUNDS} resampling(s)")
+        reasons.append(Finding("rare.regions_revealed", {"regions": Value(revealed),
+                                                         "rounds": Value(_ADAPT_ROUNDS)}))
     if total == 0:
-        reasons.append("none of its samples failed, although the search found a failure region")
+        reasons.append(Finding("rare.no_failing_sample"))
     elif effective < _LEAST_EFFECTIVE:
-        reasons.append(f"the estimate rests on about {effective:.1f} samples' worth of its "
-                       "weight (a region sampled by chance, not searched)")
+        reasons.append(Finding("rare.few_effective_samples", {"effective": Value(effective)},
+                               Value(_LEAST_EFFECTIVE)))
     assured = not reasons
     notes = []
     if not complete:
-        notes.append(f"the failure point found has more than {MAX_IMAGES:,} rearrangements under "
-                     "the string's symmetries (its other devices are not alike): the sampler used "
-                     f"{MAX_IMAGES:,} of them and may miss part of P(fail)")
+        notes.append(Finding("rare.orbit_incomplete", {"images": Value(MAX_IMAGES)}))
     if not assured:
-        notes.append("the sampler cannot rule out a failure region it did not search: "
-                     + "; ".join(reasons))
+        notes.append(Finding("rare.coverage_not_assured", causes=tuple(reasons)))
     return RareEstimate(
-        check=check, estimator=text, p_fail=p_fail, std_error=std_error,
+        check=check, estimator=(text,), p_fail=p_fail, std_error=std_error,
         ci_low=max(0.0, p_fail - z * std_error), ci_high=p_fail + z * std_error,
         confidence=confidence, beta=beta, first_order=float(stats.norm.sf(beta)),
         samples=samples, failures=int(np.count_nonzero(failed)), found_failure_point=True,
         importance=space.importance(point), failure_points=count, orbit_complete=complete,
         decides=complete and assured, regions_found=regions, coverage_assured=assured,
-        note="" if complete and assured else "; ".join(notes) + ", so the plain interval decides")
+        note=None if complete and assured else Finding("rare.plain_decides", causes=tuple(notes)))
 
 
 @dataclass(frozen=True)

@@ -17,6 +17,7 @@ from typing import Callable
 
 import numpy as np
 
+from stringcheck.findings import Finding, Value
 from stringcheck.design.model import Design, Part
 from stringcheck.montecarlo.sampling import DrawnStrings
 
@@ -53,10 +54,11 @@ def device_part_grid(design: Design, drawn: DrawnStrings) -> np.ndarray:
     return np.array(drawn.part_names, dtype=object)[drawn.part_index]
 
 
-def mix_description(design: Design) -> str:
-    """``"B mixed in at 25 % of the devices"``, or "" without a mix."""
+def mix_finding(design: Design) -> Finding | None:
+    """The mix of ``design`` (``mixed_stock.mix``: the part mixed in and the percentage of the
+    devices it takes), or None without a mix."""
     mix = design.string.mix
     if mix is None:
-        return ""
-    return (f"{mix.part} mixed in at {100 * mix.fraction:.4g} % of the devices (each device "
-            "independently, drawn anew in every built string)")
+        return None
+    return Finding("mixed_stock.mix", {"part": Value(mix.part),
+                                       "percent": Value(100 * mix.fraction)})

@@ -21,25 +21,44 @@ from stringcheck.report.cautions import safety_cautions
 from stringcheck.report.lots import lots_to_list
 from stringcheck.errors import Setting
 from stringcheck.report.tool_version import tool_version
-from stringcheck.report.wording import impossibility_text, sentence, sentences
+
+from stringcheck.report.wording import (
+    estimator_text,
+    impossibility_text,
+    rare_note_text,
+    reason_text,
+    sentence,
+    sentences,
+)
 
 if TYPE_CHECKING:
     from stringcheck.studies.size import SizingResult
 
 __all__ = ["SCHEMA_VERSION", "check_to_dict", "json_text", "network_to_dict", "positions_csv",
-           "result_to_dict", "sizing_to_dict", "warnings_to_list", "write_files_atomic",
+           "rare_to_dict", "result_to_dict", "sizing_to_dict", "warnings_to_list", "write_files_atomic",
            "write_text_atomic"]
 
 
 def check_to_dict(check: CheckOutcome) -> dict[str, Any]:
-    """The JSON object of one check that ran (generated from its fields)."""
-    return check.to_dict()
+    """The JSON object of one check that ran: its own ``to_dict()`` (generated from its fields),
+    with its importance-sampling estimate's ``estimator`` and ``note`` in words."""
+    data = check.to_dict()
+    if check.rare is not None:
+        data["rare"] = rare_to_dict(check.rare, data["rare"])
+    return data
+
+
+def rare_to_dict(rare, data: dict[str, Any]) -> dict[str, Any]:
+    """An importance-sampling estimate's JSON (``data``, its codes) with the sentences of its
+    ``estimator`` (joined by "; ") and ``note`` ("" when it decides) in place of the codes."""
+    return {**data, "estimator": estimator_text(rare), "note": rare_note_text(rare)}
 
 
 def result_to_dict(result: CheckResult) -> dict[str, Any]:
     """The whole result of ``check`` as a JSON-ready dictionary (SI units, temperatures in degC):
     the result's own ``to_dict()`` with the sections the report writes in words, the measured lots
-    and the safety cautions."""
+    and the safety cautions, and the sentences of the findings in place of their codes
+    (``skipped``, ``no_scatter``, each check's ``rare.estimator`` and ``rare.note``)."""
     data = result.to_dict()
     design = result.design
     grading = result.grading
@@ -53,6 +72,14 @@ def result_to_dict(result: CheckResult) -> dict[str, Any]:
         if key == "assumption_codes":
             out["assumptions"] = sentences(result.assumptions)
         out[key] = value
+        if key == "checks":
+            out[key] = {name: check_to_dict(check) for name, check in result.checks.items()
+                        if check.ran}
+        if key == "skipped":
+            out[key] = {name: reason_text(check.reason) for name, check in result.checks.items()
+                        if not check.ran}
+        if key == "no_scatter":
+            out[key] = sentences(result.no_scatter)
         if key == "network" and value is not None:
             out[key] = network_to_dict(grading)
         if key == "warnings":

@@ -18,7 +18,7 @@ from stringcheck.report.display_text import shown
 from stringcheck.report.export import result_to_dict
 from stringcheck.report.lots import render_lots
 from stringcheck.report.terminal import render_warnings
-from stringcheck.report.wording import sentence
+from stringcheck.report.wording import estimator_text, rare_note_text, sentence
 
 
 def review_to_dict(result: ReviewResult) -> dict[str, Any]:
@@ -119,10 +119,11 @@ def render_review(result: ReviewResult, console: Console) -> None:
         for name, check in checked.checks.items():
             rare = check.rare if check.ran else None
             if rare is not None:
-                console.print(f"{label} {name}: P(fail) from {rare.estimator}"
+                console.print(f"{label} {name}: P(fail) from {estimator_text(rare)}"
                               + (" (run automatically)" if rare.automatic else "")
                               + f"; {rare.samples:,} samples"
-                              + ("" if rare.decides else f"; {rare.note}"), highlight=False)
+                              + ("" if rare.decides else f"; {rare_note_text(rare)}"),
+                              highlight=False)
     if cand.drivers:
         render_drivers(cand, console)
     console.print()

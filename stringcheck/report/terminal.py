@@ -23,7 +23,14 @@ from stringcheck.report.cautions import safety_cautions
 from stringcheck.report.display_text import shown
 from stringcheck.checks.transient import TransientCheck
 from stringcheck.report.lots import render_lots
-from stringcheck.report.wording import impossibility_text, sentence, sentences
+from stringcheck.report.wording import (
+    estimator_text,
+    impossibility_text,
+    rare_note_text,
+    reason_text,
+    sentence,
+    sentences,
+)
 from stringcheck.report.check_sections import (
     failure_point_text,
     render_drivers,
@@ -170,7 +177,8 @@ def render_check(result: CheckResult, console: Console, *,
     console.print(summary)
     for name, check in result.checks.items():
         if not check.ran:
-            console.print(Text(f"{name} check not run: {shown(check.reason)}.", style="yellow"))
+            console.print(Text(f"{name} check not run: {shown(reason_text(check.reason))}.",
+                               style="yellow"))
         elif _convergence_note(check, spell):
             console.print(_convergence_note(check, spell), highlight=False)
         if check.ran and check.rare is not None:
@@ -178,14 +186,15 @@ def render_check(result: CheckResult, console: Console, *,
             automatic = (" (run automatically: the plain run saw too few failures to decide the "
                          "check)" if rare.automatic else "")
             console.print(
-                f"{name}: P(fail) from {rare.estimator}{automatic}; {rare.samples:,} samples, "
+                f"{name}: P(fail) from {estimator_text(rare)}{automatic}; {rare.samples:,} "
+                "samples, "
                 f"standard error "
                 f"{rare.std_error:.2g}" + (f", beta = {rare.beta:.2f} (first-order Phi(-beta) = "
                                            f"{rare.first_order:.2g}, for reference)"
                                            if rare.found_failure_point else "")
                 + f"; plain Monte Carlo: {check.estimate.failures:,} of {check.estimate.trials:,}"
                 + (f"; {failure_point_text(rare)}" if failure_point_text(rare) else "")
-                + ("" if rare.decides else f"; {rare.note}"))
+                + ("" if rare.decides else f"; {rare_note_text(rare)}"))
     if layout.series > 1:
         _render_worst_string(result, console, trace)
     console.print()
@@ -216,7 +225,7 @@ def render_check(result: CheckResult, console: Console, *,
             console.print(f"  - {shown(line)}")
     if result.no_scatter:
         console.print(Text("Without scatter (fixed values)", style="bold"))
-        console.print("  - " + shown("; ".join(result.no_scatter)))
+        console.print("  - " + shown("; ".join(sentences(result.no_scatter))))
     console.print()
     grading = result.grading
     cautions = safety_cautions(string_voltage=design.duty.reverse_voltage,
@@ -265,7 +274,8 @@ def _fail_reason(result: CheckResult, spell: Callable[[Setting], str]) -> str:
                                + (f" ({check.unsolved} unsolved)" if check.unsolved else ""))
     transient = result.checks.get("transient")
     if transient is not None and not transient.ran:
-        reasons.append(f"the requested transient check could not run ({transient.reason})")
+        reasons.append("the requested transient check could not run "
+                       f"({reason_text(transient.reason)})")
     reasons += sentences(result.grading.rating_problems)
     short = [name for name, check in result.checks.items()
              if check.ran and check.estimate.failures == 0 and not check.passed

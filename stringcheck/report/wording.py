@@ -20,7 +20,8 @@ from stringcheck.design.model import LOGNORMAL_PARAMETERS
 from stringcheck.errors import Setting
 from stringcheck.units import format_quantity
 
-__all__ = ["CHECK_WORDS", "TEMPLATES", "impossibility_text", "sentence", "sentences"]
+__all__ = ["CHECK_WORDS", "TEMPLATES", "estimator_text", "impossibility_text", "rare_note_text",
+           "reason_text", "sentence", "sentences"]
 
 # How a check that found a stage voltage is named in a sentence.
 CHECK_WORDS = {"static": "static blocking", "dynamic": "charge-balance turn-off",
@@ -159,12 +160,12 @@ TEMPLATES: dict[str, str] = {
     "model.resistor_tcr":
         "grading resistor TCR referred to {reference:g} degC, resistor at its diode's temperature",
     "model.mixed_stock":
-        "mixed stock: {mix}; a mixed position (part A|B) is judged device by device against the "
+        "mixed stock: {causes}; a mixed position (part A|B) is judged device by device against the "
         "limit of the part drawn, and its per-position limit shown is the lowest of the two",
     # checks.recovery_conditions: how the recovery charge was carried to the application
     "recovery.not_rescaled":
         "recovery charge: Q_rr taken at the datasheet's test conditions, not rescaled to the "
-        "application ({missing}); " + _RECOVERY_MODEL,
+        "application ({causes}); " + _RECOVERY_MODEL,
     "recovery.no_fit":
         "recovery charge: Q_rr taken at the datasheet's test conditions: parts.{part}'s typical "
         "q_rr, i_rm or t_rr and at_di_dt fit no recovery waveform; " + _RECOVERY_MODEL,
@@ -216,6 +217,91 @@ TEMPLATES: dict[str, str] = {
     "plausibility.target_high":
         "{target:g} lets more than one built stack in ten fail; targets are usually 1e-3 to 1e-6 "
         "(was a percentage meant? {target:g} % is {as_percent:g})",
+    # Why a check did not run (CheckOutcome.reason): studies.check, checks.preconditions,
+    # checks.forward, checks.transient
+    "not_run.not_requested": "not requested",
+    "not_run.needs_dynamic": "needs the dynamic check, which did not run: {causes}",
+    "not_run.no_turn_off":
+        "dc duty with no turn-off: give duty.di_dt (or an ac waveform) to check the voltage "
+        "sharing at turn-off",
+    "not_run.no_forward_current":
+        "no duty.forward_current: give the average forward current of the whole group "
+        "(I_F(AV)) to check current sharing and junction temperatures",
+    "not_run.no_forward_line":
+        "part(s) {parts} give no v_t0 and r_t (forward characteristic); give them, or a class to "
+        "inherit them from",
+    "not_run.one_branch": "one branch: no current to share",
+    "not_run.no_rated_current":
+        "part(s) {parts} give no i_fav (rated average forward current), the limit of this check",
+    "not_run.no_junction_to_case": "part(s) {parts} give no r_th_jc",
+    "not_run.no_junction_limit": "part(s) {parts} give no t_j_max",
+    "not_run.no_heatsink":
+        "no thermal.r_th_sa (heatsink to ambient): give it to check junction temperatures",
+    "not_run.no_commutation_loop":
+        "give duty.stray_inductance or duty.di_dt (the commutation loop)",
+    "not_run.inconsistent_recovery":
+        "parts.{part}: its typical q_rr, i_rm or t_rr and at_di_dt are not consistent with any "
+        "recovery waveform (with t_rr: Q_rr <= di/dt t_rr^2 / 2; with i_rm: Q_rr > I_RM^2 / "
+        "(2 di/dt)); check the datasheet values",
+    # checks.recovery_conditions.missing_recovery_finding: what the recovery model lacks
+    "recovery_data.no_di_dt": "no di/dt",
+    "recovery_data.no_charge": "parts.{part} gives no q_rr",
+    "recovery_data.no_peak_or_time":
+        "parts.{part} gives neither i_rm nor t_rr: the recovery model needs one",
+    "recovery_data.no_test_di_dt":
+        "parts.{part}.q_rr has no at_di_dt (the datasheet's test di/dt)",
+    "recovery_data.test_di_dt_differ":
+        "parts.{part}: t_rr and q_rr are given at different test di/dt (the fit needs both at "
+        "one test condition)",
+    "recovery_data.no_test_current":
+        "parts.{part}.q_rr has no at_forward_current and the duty no forward_current",
+    # checks.preconditions.no_scatter: inputs drawn without scatter (fixed values)
+    "no_scatter.parameter": "parts.{part}.{parameter}",
+    "no_scatter.resistor": "grading.resistor (no tolerance given)",
+    "no_scatter.capacitor": "grading.capacitor (no tolerance given)",
+    # montecarlo.mixed_stock.mix_finding
+    "mixed_stock.mix":
+        "{part} mixed in at {percent:.4g} % of the devices (each device independently, drawn "
+        "anew in every built string)",
+    # montecarlo.importance: the estimator (RareEstimate.estimator, joined by "; ")
+    "estimator.no_failure_point_pooled":
+        "no failure point found within |u| <= {radius:g} (steepest ascent, {pilot:,} plain "
+        "pilot samples and rays from the highest of them): the sampler's {samples:,} plain "
+        "samples pooled with the check's {trials:,} Monte Carlo trials, exact interval",
+    "estimator.no_failure_point_plain":
+        "no failure point found within |u| <= {radius:g} (steepest ascent, {pilot:,} plain "
+        "pilot samples and rays from the highest of them): plain sampling with the exact interval",
+    "estimator.importance_sampling":
+        "importance sampling, defensive mixture shifted to the most likely failure point"
+        "{regions:regions}{images:images}",
+    "estimator.refitted_lots":
+        "the resampled lot(s) of {parts} drawn from their fit (per column lognormal or normal, "
+        "Gaussian copula)",
+    # montecarlo.importance and studies.check: why the estimate does not decide
+    # (RareEstimate.note)
+    "rare.plain_decides": "{causes}, so the plain interval decides",
+    "rare.orbit_incomplete":
+        "the failure point found has more than {images:,} rearrangements under the string's "
+        "symmetries (its other devices are not alike): the sampler used {images:,} of them and "
+        "may miss part of P(fail)",
+    "rare.coverage_not_assured":
+        "the sampler cannot rule out a failure region it did not search: {causes}",
+    "rare.search_capped": "the search stopped at {regions} failure regions and more remained",
+    "rare.regions_revealed":
+        "its sample still revealed {regions} failure region(s) the search had missed after "
+        "{rounds} resampling(s)",
+    "rare.no_failing_sample":
+        "none of its samples failed, although the search found a failure region",
+    "rare.few_effective_samples":
+        "the estimate rests on about {effective:.1f} samples' worth of its weight (a region "
+        "sampled by chance, not searched)",
+    "rare.fit_without_failure_point":
+        "no failure point found and the sampler drew the lot's fit, not the lot: the plain run "
+        "(the lot itself) decides",
+    "rare.estimators_disagree":
+        "the importance-sampling upper bound {rare_high:.2g} lies below the plain Monte Carlo "
+        "lower bound {plain_low:.2g} ({failures:,} of {trials:,}): the estimators disagree, so "
+        "the plain interval decides",
 }
 
 
@@ -244,6 +330,9 @@ _WORDED = {
     "untested_current": _untested_current,
     # A value that is itself a finding's code without values: its sentence.
     "sentence": lambda code: TEMPLATES[code],
+    "regions": lambda count: f" of each of {count} failure regions" if count > 1 else "",
+    "images": lambda count: (f" and {count} image(s) under the exchangeable positions"
+                             if count > 0 else ""),
 }
 
 
@@ -287,13 +376,30 @@ def sentence(finding: Finding, *, spell: Callable[[Setting], str] = str) -> str:
         ``stringcheck.cli.options.option_wording`` for the command line's option).
     """
     values = {name: _Shown(value) for name, value in finding.values.items()}
+    causes = "; ".join(sentences(finding.causes, spell=spell))
     return TEMPLATES[finding.code].format(**values, limit=_Shown(finding.limit),
-                                          option=_Options(spell))
+                                          option=_Options(spell), causes=causes)
 
 
 def sentences(findings, *, spell: Callable[[Setting], str] = str) -> list[str]:
     """Each of ``findings`` in words, in order."""
     return [sentence(finding, spell=spell) for finding in findings]
+
+
+def reason_text(reason: Finding | None) -> str:
+    """Why a check did not run (``CheckOutcome.reason``) in words; "" for a check that ran."""
+    return "" if reason is None else sentence(reason)
+
+
+def estimator_text(rare) -> str:
+    """How an importance-sampling estimate (``montecarlo.importance.RareEstimate``) was made:
+    its ``estimator`` findings in words, joined by "; "."""
+    return "; ".join(sentences(rare.estimator))
+
+
+def rare_note_text(rare) -> str:
+    """Why an importance-sampling estimate does not decide its check (its ``note``), or ""."""
+    return "" if rare.note is None else sentence(rare.note)
 
 
 def impossibility_text(findings) -> str | None:

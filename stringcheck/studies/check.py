@@ -1,10 +1,11 @@
 """The check workflow: draw built strings chunk by chunk, evaluate every check on them, finish.
 
-Each check lives in its module of ``checks/`` with the same steps: set up from the design, evaluate
-a chunk of drawn strings, merge the chunks in trial order, finish (the series checks in
-``checks.series``, the parallel and thermal ones in ``checks.forward``; the transient check
-simulates a selection of the trials afterwards, ``checks.transient``). This module only runs those
-steps: it draws the chunks (in worker processes if asked), refuses a run the memory cannot hold,
+Each check lives in its module of ``checks/`` with the same steps (``checks.steps.CheckSteps``):
+set up from the design, evaluate a chunk of drawn strings, merge the chunks in trial order, finish
+(the series checks in ``checks.series``, the parallel and thermal ones in ``checks.forward``; the
+transient check simulates a selection of the trials afterwards, ``checks.transient``). The
+registry :data:`CHECK_STEPS` lists the chunked ones, and :func:`run_check` runs their steps in a
+loop: it draws the chunks (in worker processes if asked), refuses a run the memory cannot hold,
 adds the importance-sampling estimates (``--rare``) and the drivers, and forms the verdict. A check
 passes when the upper bound of the exact confidence interval of P(fail) is within ``[sizing]
 target_p_fail`` (default 1e-3): the same criterion the sizing search uses, and a run too short to
@@ -22,39 +23,21 @@ import numpy as np
 
 from stringcheck.design.model import Design
 from stringcheck.errors import DesignError, Setting
-from stringcheck.checks.findings import Finding, codes
+from stringcheck.checks.findings import Finding, Value, codes
 from stringcheck.checks.outcome import CheckOutcome, Exported, figure, listed, positions_frame
 from stringcheck.checks.outcome import drivers_to_list, record_or_null
 from stringcheck.checks.plausibility import PlausibilityWarning, plausibility_warnings
 from stringcheck.checks.series import (
     SERIES_CHECKS,
+    SERIES_STEPS,
     DynamicCheck,
     PositionStatistics,
-    SeriesAccumulator,
     SeriesCheck,
-    SeriesChunk,
-    SeriesSetup,
-    finish_series,
-    not_run_series,
-    run_series_chunk,
-    series_ratios,
-    series_setup,
 )
+from stringcheck.checks.steps import CheckSteps, RunFigures
 from stringcheck.montecarlo.sampling import DrawnStrings, chunk_bounds, draw_strings
 from stringcheck.montecarlo.estimates import trials_for_upper_bound
-from stringcheck.checks.forward import (
-    ForwardAccumulator,
-    ForwardChunk,
-    ForwardSetup,
-    finish_parallel,
-    finish_thermal,
-    forward_for_devices,
-    forward_parameters,
-    forward_ratios,
-    forward_reasons,
-    forward_setup,
-    run_forward_chunk,
-)
+from stringcheck.checks.forward import FORWARD_STEPS
 from stringcheck.checks.transient import DEFAULT_WORST, run_transient, transient_evaluator
 from stringcheck.checks.transient import not_run as not_run_transient
 from stringcheck.montecarlo.sensitivity import (
@@ -75,7 +58,6 @@ from stringcheck.montecarlo.importance import (
     rare_event_estimate,
 )
 from stringcheck.checks.preconditions import (
-    dynamic_check_reason,
     impossibility,
     model_assumptions,
     no_scatter,
@@ -96,9 +78,11 @@ __all__ = ["CheckResult", "DynamicCheck", "PositionStatistics", "SeriesCheck", "
 
 # Version of the JSON result's layout (docs/json.md).
 SCHEMA_VERSION = 1
-# The checks whose inputs the drivers rank; --rare estimates these and the transient check by
-# importance sampling.
-RARE_CHECKS = SERIES_CHECKS + ("parallel", "thermal")
+# The registry of the check modules evaluated chunk by chunk, in the order the result lists their
+# checks (``checks.steps``): a check is added by adding its module's steps here. The transient
+# check is no chunk step: it simulates a selection of the trials after the chunks, from the
+# dynamic check's worst ones (listed after it).
+CHECK_STEPS: tuple[CheckSteps, ...] = (SERIES_STEPS, FORWARD_STEPS)
 # The transient check's importance sampler: each string costs milliseconds of the turn-off engine.
 TRANSIENT_RARE_SAMPLES = 2000
 # Peak memory of the per-trial figures while the checks are summarised, in multiples of what the
@@ -111,12 +95,20 @@ _SUMMARY_FACTOR = 3
 ProgressCallback = Callable[[int, int], None]
 
 
+def chunked_checks() -> tuple[str, ...]:
+    """The checks of the registry, in its order: the drivers rank their inputs, and ``--rare``
+    estimates them (and the transient check) by importance sampling."""
+    return tuple(name for steps in CHECK_STEPS for name in steps.names)
+
+
 def _checks_to_dict(checks: Mapping[str, CheckOutcome]) -> dict[str, Any]:
     return {name: check.to_dict() for name, check in checks.items() if check.ran}
 
 
 def _skipped_to_dict(checks: Mapping[str, CheckOutcome]) -> dict[str, str]:
-    return {name: check.reason for name, check in checks.items() if not check.ran}
+    """Each check that did not run -> the code of its reason (``report.export`` writes the
+    sentence in its place)."""
+    return {name: check.reason.code for name, check in checks.items() if not check.ran}
 
 
 def _design_to_dict(design: Design) -> dict[str, Any]:
@@ -136,7 +128,9 @@ class CheckResult(Exported):
     ``to_dict()`` is the JSON result without what the report writes in words (the sections
     ``lots`` and ``cautions``, and the sentences of the findings: ``impossible``, the network's
     ``rating_problems`` and ``advisories`` and each warning's ``message``, whose codes it gives;
-    ``report.export.result_to_dict`` adds them);
+    ``report.export.result_to_dict`` adds them), and with codes where that JSON has the
+    sentences: ``skipped`` (name -> the code of the reason), ``no_scatter`` and each check's
+    ``rare.estimator`` (lists of codes) and ``rare.note`` (a code or null);
     ``to_frame()`` the per-position figures of every check that ran, one row per check and
     position.
     """
@@ -157,7 +151,9 @@ class CheckResult(Exported):
     # (``impossible``) written beside them by report.export.
     impossible: tuple[Finding, ...] = figure("impossible_codes", encode=codes)
     assumptions: tuple[Finding, ...] = figure("assumption_codes", encode=codes)
-    no_scatter: tuple[str, ...] = figure(encode=listed)
+    # Inputs drawn without scatter (findings): their codes here, the text written in their place
+    # by report.export.
+    no_scatter: tuple[Finding, ...] = figure(encode=codes)
     drivers: tuple[Driver, ...] = figure(encode=drivers_to_list, default=())
     # Valid values that are probably slips (``plausibility``): shown by the report, never fatal.
     warnings: tuple[PlausibilityWarning, ...] = figure(encode=_warnings_to_list, default=())
@@ -241,32 +237,27 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     target = design.sizing.target_p_fail
     with worker_pool(workers) if pool is None else nullcontext(pool) as active:
         run = _run_chunks(plan, trials, chunk_trials, progress, active)
-    grid = design.string.part_labels()
-    series = plan.context.series
-    turn_off = None if series.rescaling is None else series.rescaling.turn_off
+    figures = RunFigures(trials=trials, confidence=confidence, target=target)
     checks: dict[str, CheckOutcome] = {}
-    for name in SERIES_CHECKS:
-        sums = run.series.sums.get(name)
-        checks[name] = not_run_series(name, plan.reasons[name]) if sums is None else \
-            finish_series(name, sums, grid, confidence, trials, target, turn_off=turn_off)
-    if transient:
-        checks["transient"] = _transient(design, run.series.sums.get("dynamic"), plan, trials,
-                                         seed, transient_worst, transient_sample, drivers)
-    if plan.run_forward:
-        forward = plan.context.forward
-        checks["parallel"] = finish_parallel(design, forward, plan.reasons["parallel"],
-                                             run.forward, confidence, target, trials)
-        checks["thermal"] = finish_thermal(design, forward, plan.reasons["thermal"],
-                                           run.forward, confidence, target, trials)
-    grading = grading_summary(design, checks, series.temperature,
+    for steps, setup, accumulator in zip(plan.steps, plan.context.setups, run.accumulators):
+        checks.update(steps.finish(design, setup, plan.reasons, accumulator, figures))
+        if "dynamic" in steps.names and transient:
+            # The transient check simulates the dynamic check's worst trials and a sample.
+            checks["transient"] = _transient(design, steps.trial_ratios(accumulator, "dynamic"),
+                                             plan, trials, seed, transient_worst,
+                                             transient_sample, drivers)
+    if transient and "transient" not in checks:
+        checks["transient"] = not_run_transient(_needs_dynamic(plan))
+    temperature = design.duty.ambient + design.string.temperature_rise_grid()
+    grading = grading_summary(design, checks, temperature,
                               position_values(design, lambda p: p.c_j, pick=np.maximum))
     if rare is not False:
-        for name in RARE_CHECKS + ("transient",):
+        for name in chunked_checks() + ("transient",):
             check = checks.get(name)
             wanted = check is not None and check.ran and (
                 name in rare if isinstance(rare, tuple) else rare or needs_rare(check, target))
             if wanted:
-                checks[name] = _with_rare(check, plan.context, seed, confidence, target,
+                checks[name] = _with_rare(check, plan, seed, confidence, target,
                                           rare_samples, automatic=rare is None)
     ranking: tuple[Driver, ...] = ()
     if drivers and run.features:
@@ -307,13 +298,15 @@ def _refuse(design: Design, trials: int, rare) -> None:
 
 @dataclass(frozen=True)
 class _ChunkContext:
-    """What every chunk needs: picklable, so that chunks can run in worker processes."""
+    """What every chunk needs: picklable, so that chunks can run in worker processes. ``steps``
+    indexes :data:`CHECK_STEPS` (the check modules taking part), ``setups`` their setups (None
+    for one whose checks all cannot run: it evaluates no chunk)."""
 
     design: Design
     seed: int
     parameters: tuple[str, ...]
-    series: SeriesSetup
-    forward: ForwardSetup | None
+    steps: tuple[int, ...]
+    setups: tuple[Any, ...]
     driver_trials: int
 
 
@@ -322,49 +315,58 @@ class _Plan:
     """Which checks run (the reason of each that does not), and what their chunks need."""
 
     context: _ChunkContext
-    reasons: dict[str, str]
-    run_forward: bool
+    steps: tuple[CheckSteps, ...]
+    reasons: dict[str, Finding | None]
     note: Finding | None  # how the recovery charge was carried to the application (an assumption)
 
 
+NOT_REQUESTED = Finding("not_run.not_requested")
+
+
 def _plan(design: Design, seed: int, only: tuple[str, ...] | None, drivers: bool) -> _Plan:
-    """Set every check up from the design: which run, their constants, the parameters drawn."""
-    reasons = {"static": "" if only is None or "static" in only else "not requested",
-               "dynamic": "not requested" if only is not None and "dynamic" not in only else
-               dynamic_check_reason(design)}
-    run_dynamic = reasons["dynamic"] == ""
-    parameters = ("i_r", "q_rr") if run_dynamic else ("i_r",)
-    run_forward = only is None
-    reasons["parallel"], reasons["thermal"] = forward_reasons(design) if run_forward else \
-        ("not requested", "not requested")
+    """Set every check module up from the design: which of its checks run, their constants, the
+    parameters drawn. A module none of whose checks is asked for (``only``) takes no part; a
+    check of a taking part that is not asked for is not run ("not requested")."""
+    taking: list[int] = []
+    reasons: dict[str, Finding | None] = {}
+    for number, steps in enumerate(CHECK_STEPS):
+        asked = tuple(name for name in steps.names if only is None or name in only)
+        if not asked:
+            continue
+        taking.append(number)
+        found = steps.reasons(design, asked)
+        reasons.update({name: found[name] if name in asked else NOT_REQUESTED
+                        for name in steps.names})
     # The recovery charge carried to the application's turn-off: one value per drawn device for
     # the dynamic check and the thermal check's recovery loss (a turn-off exactly when the
     # dynamic check can run: an ac waveform or a di_dt).
+    run_dynamic = "dynamic" in reasons and reasons["dynamic"] is None
     rescaling, note = recovery_rescaling(design) if run_dynamic else (None, None)
-    forward = None
-    if not (reasons["parallel"] and reasons["thermal"]):
-        forward = forward_setup(design, reasons["parallel"], reasons["thermal"], rescaling)
-        parameters = tuple(dict.fromkeys(parameters + forward_parameters(design)))
-    series = series_setup(design, run_static=reasons["static"] == "", run_dynamic=run_dynamic,
-                          rescaling=rescaling)
-    context = _ChunkContext(design=design, seed=seed, parameters=parameters, series=series,
-                            forward=forward, driver_trials=DRIVER_TRIALS if drivers else 0)
-    return _Plan(context=context, reasons=reasons, run_forward=run_forward, note=note)
+    parameters: tuple[str, ...] = ()
+    setups = []
+    for number in taking:
+        steps = CHECK_STEPS[number]
+        setups.append(steps.setup(design, reasons, rescaling))
+        parameters += steps.parameters(design, reasons)
+    context = _ChunkContext(design=design, seed=seed, parameters=tuple(dict.fromkeys(parameters)),
+                            steps=tuple(taking), setups=tuple(setups),
+                            driver_trials=DRIVER_TRIALS if drivers else 0)
+    return _Plan(context=context, steps=tuple(CHECK_STEPS[number] for number in taking),
+                 reasons=reasons, note=note)
 
 
 @dataclass(frozen=True)
 class _ChunkOutcome:
-    series: SeriesChunk
-    forward: ForwardChunk | None
+    chunks: tuple[Any, ...]  # each taking check module's figures (None: it evaluates none)
     features: dict[str, np.ndarray] | None
 
 
 @dataclass
 class _Run:
-    """The chunks merged: each check's accumulator, and the drivers' features and ratios."""
+    """The chunks merged: each check module's accumulator, and the drivers' features and
+    ratios."""
 
-    series: SeriesAccumulator
-    forward: ForwardAccumulator
+    accumulators: tuple[Any, ...]
     features: dict[str, list]
     ratios: dict[str, list]
 
@@ -375,69 +377,63 @@ def _run_chunks(plan: _Plan, trials: int, chunk_trials: int | None,
     context = plan.context
     design = context.design
     layout = design.string
-    run = _Run(series=SeriesAccumulator(context.series), forward=ForwardAccumulator(),
-               features={}, ratios={name: [] for name in RARE_CHECKS})
+    run = _Run(accumulators=tuple(steps.accumulator(setup)
+                                  for steps, setup in zip(plan.steps, context.setups)),
+               features={}, ratios={name: [] for name in chunked_checks()})
     if chunk_trials is None:
         chunk_trials = chunk_size(trials, CHUNK_ELEMENTS // (layout.series * layout.parallel), pool)
     bounds = chunk_bounds(trials, chunk_trials)
     for number, outcome in enumerate(map_chunks(_run_chunk, context, bounds, pool=pool,
                                                 progress=progress)):
-        run.series.merge(outcome.series)
-        if outcome.forward is not None:
-            run.forward.merge(outcome.forward)
+        for accumulator, chunk in zip(run.accumulators, outcome.chunks):
+            if chunk is not None:
+                accumulator.merge(chunk)
         if outcome.features is not None:
-            _keep_driver_figures(run, outcome)
+            _keep_driver_figures(run, plan, outcome)
         if number == 0 and len(bounds) > 1:
             # What the first chunk keeps, as merged, tells what the whole run will keep.
-            _check_memory(design, trials, _per_trial_bytes(outcome, bounds[0][1]))
+            _check_memory(design, trials, _per_trial_bytes(plan, outcome, bounds[0][1]))
     return run
 
 
-def _keep_driver_figures(run: _Run, outcome: _ChunkOutcome) -> None:
+def _keep_driver_figures(run: _Run, plan: _Plan, outcome: _ChunkOutcome) -> None:
     """The drivers' inputs and each check's worst ratio of the chunk's first trials."""
     for name, values in outcome.features.items():
         run.features.setdefault(name, []).append(values)
     count = len(next(iter(outcome.features.values())))
-    for name, accumulator in outcome.series.sums().items():
-        run.ratios[name].append(np.concatenate(accumulator.worst_ratios)[:count])
-    if outcome.forward is not None:
-        run.ratios["parallel"].append(outcome.forward.current_ratio[:count])
-        if outcome.forward.tj_ratio is not None:
-            run.ratios["thermal"].append(outcome.forward.tj_ratio[:count])
+    for steps, chunk in zip(plan.steps, outcome.chunks):
+        if chunk is not None:
+            for name, ratios in steps.chunk_ratios(chunk, count).items():
+                run.ratios[name].append(ratios)
 
 
 def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
-    """Draw one chunk of trials and evaluate every check on it; its sums, to be merged in trial
-    order."""
+    """Draw one chunk of trials and evaluate every check on it; its figures, to be merged in
+    trial order."""
     design = context.design
     drawn = draw_strings(design, context.parameters, first, count, seed=context.seed)
-    series = run_series_chunk(design, context.series, drawn)
-    forward = None
-    if context.forward is not None:
-        forward = run_forward_chunk(design, _forward_devices(context, drawn), drawn)
+    chunks = tuple(None if setup is None else CHECK_STEPS[number].evaluate(design, setup, drawn)
+                   for number, setup in zip(context.steps, context.setups))
     features = None
     if first < context.driver_trials:
         features = chunk_features(drawn, design, min(count, context.driver_trials - first))
-    return _ChunkOutcome(series=series, forward=forward, features=features)
+    return _ChunkOutcome(chunks=chunks, features=features)
 
 
-def _forward_devices(context: _ChunkContext, drawn: DrawnStrings) -> ForwardSetup:
-    """The forward checks' constants, each drawn device's own under a mix."""
-    if drawn.part_index is None:
-        return context.forward
-    return forward_for_devices(context.design, context.forward, drawn)
+def _needs_dynamic(plan: _Plan) -> Finding:
+    """Why the transient check cannot run when the dynamic check did not."""
+    return Finding("not_run.needs_dynamic", causes=(plan.reasons.get("dynamic", NOT_REQUESTED),))
 
 
-def _transient(design: Design, dynamic, plan: _Plan, trials: int, seed: int, worst: int,
-               sample: int | None, drivers: bool) -> CheckOutcome:
+def _transient(design: Design, dynamic_ratios: np.ndarray | None, plan: _Plan, trials: int,
+               seed: int, worst: int, sample: int | None, drivers: bool) -> CheckOutcome:
     """The transient check on the dynamic check's worst trials and a random sample."""
-    if dynamic is None:
-        return not_run_transient(f"needs the dynamic check, which did not run: "
-                                 f"{plan.reasons['dynamic']}")
+    if dynamic_ratios is None:
+        return not_run_transient(_needs_dynamic(plan))
     confidence = design.monte_carlo.confidence
     target = design.sizing.target_p_fail
     needed = trials_for_upper_bound(target, confidence=confidence)
-    return run_transient(design, dynamic_ratios=np.concatenate(dynamic.worst_ratios),
+    return run_transient(design, dynamic_ratios=dynamic_ratios,
                          trials=trials, seed=seed, worst=worst,
                          sample=needed if sample is None else sample, confidence=confidence,
                          target=target, drivers=drivers)
@@ -452,18 +448,13 @@ def _transient_drivers(check) -> tuple[Driver, ...]:
                  for driver in check.drivers)
 
 
-def _per_trial_bytes(outcome: _ChunkOutcome, count: int) -> float:
+def _per_trial_bytes(plan: _Plan, outcome: _ChunkOutcome, count: int) -> float:
     """Bytes per trial of the figures a chunk's outcome keeps until the end of the run (the worst
     ratio of each trial in each check, the forward checks' per-trial figures)."""
     total = 0
-    for sums in outcome.series.sums().values():
-        total += sum(ratios.nbytes for ratios in sums.worst_ratios)
-    if outcome.forward is not None:
-        for name, value in vars(outcome.forward).items():
-            # (The runaway-ambient sample is a few rows per block, not per trial.)
-            if name != "runaway_ambient" and isinstance(value, np.ndarray) and value.ndim \
-                    and value.shape[0] == count:
-                total += value.nbytes
+    for steps, chunk in zip(plan.steps, outcome.chunks):
+        if chunk is not None:
+            total += steps.chunk_bytes(chunk, count)
     return total / max(count, 1)
 
 
@@ -491,30 +482,26 @@ def _bytes(count: float) -> str:
     return f"{count:.0f} B"
 
 
-def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, target: float,
+def _with_rare(check, plan: _Plan, seed: int, confidence: float, target: float,
                samples: int, *, automatic: bool = False):
     """The check with its P(fail) estimated by importance sampling, passing on that estimate's
     upper bound, unless that bound lies below the plain run's exact lower bound (then the plain
     interval decides, and the estimate says so)."""
     name = check.name
+    context = plan.context
     effort = SearchEffort()
     if name == "transient":
         parameters = ("q_rr",)
         evaluate = transient_evaluator(context.design)
         effort = COARSE_SEARCH
         samples = min(samples, TRANSIENT_RARE_SAMPLES)
-    elif name in ("static", "dynamic"):
-        parameters = ("i_r",) if name == "static" else ("q_rr",)
-
-        def evaluate(drawn: DrawnStrings) -> np.ndarray:
-            return series_ratios(context.design, context.series, drawn, name)
     else:
-        # The forward checks depend on V_T0 and r_T and, through the losses and the junction
-        # temperatures, on the leakage and recovery charge.
-        parameters = forward_parameters(context.design)
+        steps, setup = next((steps, setup) for steps, setup in zip(plan.steps, context.setups)
+                            if name in steps.names)
+        parameters = steps.rare_parameters(context.design, name)
 
         def evaluate(drawn: DrawnStrings) -> np.ndarray:
-            return forward_ratios(context.design, _forward_devices(context, drawn), drawn, name)
+            return steps.ratios(context.design, setup, drawn, name)
     plain = check.estimate
     try:
         design, refitted = rare_design(context.design)
@@ -530,19 +517,17 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
     estimate = replace(estimate, automatic=automatic)
     if refitted:
         estimate = replace(estimate, estimator=estimate.estimator + (
-            f"; the resampled lot(s) of {', '.join(refitted)} drawn from their fit (per column "
-            "lognormal or normal, Gaussian copula)"))
+            Finding("estimator.refitted_lots", {"parts": Value(", ".join(refitted))}),))
         if not estimate.found_failure_point:
-            note = ("no failure point found and the sampler drew the lot's fit, not the lot: the "
-                    "plain run (the lot itself) decides")
-            estimate = replace(estimate, decides=False, note=note)
+            estimate = replace(estimate, decides=False,
+                               note=Finding("rare.fit_without_failure_point"))
     if estimate.found_failure_point and plain is not None and estimate.ci_high < plain.ci_low:
         # Two intervals of one probability that do not meet: one of the estimators is wrong, and
         # the importance sampler is the one that can be (a failure region it never sampled, such
         # as a failure point it did not find). The exact plain interval decides.
-        note = (f"the importance-sampling upper bound {estimate.ci_high:.2g} lies below the plain "
-                f"Monte Carlo lower bound {plain.ci_low:.2g} ({plain.failures:,} of "
-                f"{plain.trials:,}): the estimators disagree, so the plain interval decides")
+        note = Finding("rare.estimators_disagree",
+                       {"rare_high": Value(estimate.ci_high), "plain_low": Value(plain.ci_low),
+                        "failures": Value(plain.failures), "trials": Value(plain.trials)})
         estimate = replace(estimate, decides=False, note=note)
     # An estimate that does not decide (the cases above, or an incomplete orbit or a search that
     # cannot rule out a failure region it missed, which the estimator declines itself) leaves the
@@ -563,7 +548,7 @@ def _drivers(design: Design, checks, features: dict[str, list], ratios: dict[str
         again = run_check(changed, trials=trials, seed=seed, only=only, pool=pool).checks[name]
         return again.p99_ratio, again.estimate.ci_high
 
-    for name in RARE_CHECKS:
+    for name in chunked_checks():
         if name not in checks or not checks[name].ran or not ratios[name]:
             continue
         shares = {}

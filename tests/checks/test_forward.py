@@ -15,6 +15,7 @@ from stringcheck.checks.findings import Value
 from stringcheck.design.reading import parse_design_text
 from stringcheck.report.export import json_text, result_to_dict
 from stringcheck.studies.check import run_check
+from stringcheck.report.wording import sentence
 
 
 def design(*, parallel=2, series=1, current="10 A", waveform="dc", v_t0=("1.0 V", "1.0 V"),
@@ -172,7 +173,8 @@ def test_single_device_temperature_is_the_linear_fixed_point():
         (1 - resistance * slope)
     assert check.ran and check.passed
     assert check.worst_tj == pytest.approx(expected, abs=1e-6)
-    assert result.checks["parallel"].reason.startswith("one branch")
+    assert result.checks["parallel"].reason.code == "not_run.one_branch"
+    assert sentence(result.checks["parallel"].reason).startswith("one branch")
 
 
 def test_thermal_runaway_fails_and_is_counted():
@@ -210,7 +212,8 @@ def test_forward_checks_skip_without_a_forward_current():
     result = run_check(parse_design_text(text))
     for name in ("parallel", "thermal"):
         assert not result.checks[name].ran
-        assert "forward_current" in result.checks[name].reason
+        assert result.checks[name].reason.code == "not_run.no_forward_current"
+        assert "forward_current" in sentence(result.checks[name].reason)
 
 
 def test_a_group_that_cannot_carry_the_current_is_impossible():

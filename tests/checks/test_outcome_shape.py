@@ -10,6 +10,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from stringcheck.checks.findings import Finding
 from stringcheck.checks.forward import ParallelCheck, ThermalCheck
 from stringcheck.checks.outcome import REPR_LIMIT, CheckOutcome, Exported, figure
 from stringcheck.checks.series import DynamicCheck, SeriesCheck
@@ -81,7 +82,7 @@ def test_a_field_without_a_declaration_is_refused():
         forgotten: float = 0.0
 
     with pytest.raises(TypeError, match="forgotten"):
-        Careless.not_run("careless", "no reason").to_dict()
+        Careless.not_run("careless", Finding("not_run.not_requested")).to_dict()
 
 
 def test_a_key_left_out_of_the_order_is_still_written():
@@ -96,12 +97,13 @@ def test_a_key_left_out_of_the_order_is_still_written():
 
 @pytest.mark.parametrize("kind", CHECK_TYPES)
 def test_one_way_to_say_not_run(kind):
-    check = kind.not_run("some check", "no forward current")
+    reason = Finding("not_run.no_forward_current")
+    check = kind.not_run("some check", reason)
     assert (check.name, check.ran, check.reason, check.passed) == \
-        ("some check", False, "no forward current", False)
+        ("some check", False, reason, False)
     assert math.isnan(check.worst_ratio) and math.isnan(check.p99_ratio)
     assert check.estimate is None and check.rare is None and check.per_position() == ()
-    assert "not run" in repr(check)
+    assert "not run: not_run.no_forward_current" in repr(check)
 
 
 def test_repr_is_short(result):

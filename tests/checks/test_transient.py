@@ -9,6 +9,7 @@ from importlib import resources
 from stringcheck.design.reading import parse_design_text
 from stringcheck.report.export import json_text, result_to_dict
 from stringcheck.studies.check import run_check
+from stringcheck.report.wording import sentence
 
 DEMO = (resources.files("stringcheck") / "data" / "demo.toml").read_text(encoding="utf-8")
 
@@ -49,7 +50,11 @@ def test_transient_needs_the_dynamic_check():
         '\ndi_dt = "10 A/us"', "\n")
     result = run_check(parse_design_text(text), trials=200, transient=True)
     assert not result.checks["transient"].ran
-    assert "dynamic" in result.checks["transient"].reason
+    reason = result.checks["transient"].reason
+    assert reason.code == "not_run.needs_dynamic"
+    assert reason.causes == (result.checks["dynamic"].reason,)
+    assert sentence(reason) == ("needs the dynamic check, which did not run: "
+                                + sentence(result.checks["dynamic"].reason))
 
 
 def test_inconsistent_recovery_data_is_reported_not_crashed():
@@ -58,6 +63,7 @@ def test_inconsistent_recovery_data_is_reported_not_crashed():
     text = DEMO.replace('t_rr = { typ = "0.2 us", max = "0.3 us"', 't_rr = { typ = "0.1 us"')
     result = run_check(parse_design_text(text), trials=4000, transient=True)
     check = result.checks["transient"]
-    assert not check.ran and "t_rr" in check.reason
+    assert not check.ran and check.reason.code == "not_run.inconsistent_recovery"
+    assert "t_rr" in sentence(check.reason)
     assert all(c.passed for c in result.checks.values() if c.ran)
     assert result.verdict == "fail"  # a requested check that could not run never passes

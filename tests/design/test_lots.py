@@ -26,6 +26,7 @@ from stringcheck.design.lots import fit_column, rank_scores, score_correlation
 from stringcheck.montecarlo.sampling import draw_strings
 from stringcheck.studies.check import run_check
 from stringcheck.report.wording import sentences
+from stringcheck.report.wording import estimator_text, rare_note_text
 
 DESIGN = """
 [duty]
@@ -383,14 +384,15 @@ def test_rare_draws_a_resampled_lot_from_its_fit(tmp_path, monkeypatch):
                        trials=500, rare=True, rare_samples=2000).checks
     rare = resampled["dynamic"].rare
     assert rare.found_failure_point and rare.decides
-    assert "drawn from their fit" in rare.estimator and "A" in rare.estimator
+    assert "drawn from their fit" in estimator_text(rare) and "A" in estimator_text(rare)
     assert rare.p_fail == fitted["dynamic"].rare.p_fail > 0
     assert rare.ci_high == fitted["dynamic"].rare.ci_high
     # No failure point (the static check): a model of the lot is not pooled with the lot itself,
     # and the plain run decides.
     static = resampled["static"]
     assert not static.rare.found_failure_point and static.rare.pooled_trials == 0
-    assert not static.rare.decides and "plain run (the lot itself) decides" in static.rare.note
+    assert not static.rare.decides
+    assert "plain run (the lot itself) decides" in rare_note_text(static.rare)
     assert static.passed == (static.estimate.ci_high <= result.target_p_fail)
     from stringcheck.report.terminal import _plain_mark
 

@@ -14,6 +14,7 @@ from stringcheck.montecarlo import importance as rare_events
 from stringcheck.studies.check import run_check
 from stringcheck.montecarlo.symmetry_images import failure_point_images
 from stringcheck.montecarlo.importance import _Space, mixture_sample, mixture_weight
+from stringcheck.report.wording import estimator_text, rare_note_text
 
 # The two-stage design of tests/conftest.py (fixture half_plane_design): P(fail) = Phi(-beta)
 # exactly, a half-plane in latent space.
@@ -53,7 +54,7 @@ def test_screened_limits_leave_no_failure_and_the_bound_stays_honest(half_plane_
     assert rare.pooled_trials == 4096 + 5000
     # Exact (Clopper-Pearson) upper bound for 0 of n: 1 - (alpha / 2)^(1 / n).
     assert rare.ci_high == pytest.approx(1 - 0.025 ** (1 / (4096 + 5000)), rel=1e-6)
-    assert "pooled" in rare.estimator
+    assert "pooled" in estimator_text(rare)
 
 
 def test_no_failure_point_pools_a_long_plain_run_instead_of_failing_it(half_plane_design):
@@ -211,7 +212,7 @@ def test_an_estimate_resting_on_a_few_samples_does_not_decide(monkeypatch):
     rare = check.rare
     assert rare.regions_found == 1 and rare.p_fail > 10 * stats.norm.sf(4.5)
     assert not rare.coverage_assured and not rare.decides
-    assert "samples' worth of its weight" in rare.note
+    assert "samples' worth of its weight" in rare_note_text(rare)
     assert check.estimate.failures == 0 and not check.passed
 
 
@@ -228,7 +229,8 @@ def test_a_search_stopped_at_its_cap_does_not_decide(monkeypatch):
     rare = check.rare
     assert rare.regions_found == 1 and not rare.coverage_assured and not rare.decides
     assert rare.ci_high < 5e-6  # it would have passed on its own
-    assert "cannot rule out a failure region" in rare.note and "plain interval decides" in rare.note
+    note = rare_note_text(rare)
+    assert "cannot rule out a failure region" in note and "plain interval decides" in note
     assert not check.passed
     assert _plain_mark(check) == " (plain; IS coverage not assured)"
     exported = rare_to_dict(rare)
@@ -318,7 +320,7 @@ def test_estimators_that_disagree_leave_the_verdict_to_the_exact_interval(parall
                       rare=True).checks["parallel"]
     assert check.estimate.failures == 5
     assert check.rare.ci_high < check.estimate.ci_low  # the situation the net is for
-    assert not check.rare.decides and "plain interval decides" in check.rare.note
+    assert not check.rare.decides and "plain interval decides" in rare_note_text(check.rare)
     assert not check.passed
 
 
@@ -822,4 +824,4 @@ def test_a_region_no_sample_reaches_decides_nothing(half_plane_design):
     assert found.found_failure_point and found.failures == 0
     assert not found.coverage_assured
     assert not found.decides
-    assert "none of its samples failed" in found.note
+    assert "none of its samples failed" in rare_note_text(found)

@@ -237,11 +237,14 @@ TODAY = [
      "leakage referred from its datasheet temperature with the part's doubling temperature"),
     (Finding("model.resistor_tcr", {"reference": Value(25.0, "degC")}),
      "grading resistor TCR referred to 25 degC, resistor at its diode's temperature"),
-    (Finding("model.mixed_stock", {"mix": Value("30 % of positions B")}),
-     "mixed stock: 30 % of positions B; a mixed position (part A|B) is judged device by device "
+    (Finding("model.mixed_stock", causes=(Finding("mixed_stock.mix", {
+        "part": Value("B"), "percent": Value(30.0)}),)),
+     "mixed stock: B mixed in at 30 % of the devices (each device independently, drawn anew in "
+     "every built string); a mixed position (part A|B) is judged device by device "
      "against the limit of the part drawn, and its per-position limit shown is the lowest of "
      "the two"),
-    (Finding("recovery.not_rescaled", {"missing": Value("no di/dt")}),
+    (Finding("recovery_data.no_di_dt"), "no di/dt"),
+    (Finding("recovery.not_rescaled", causes=(Finding("recovery_data.no_di_dt"),)),
      "recovery charge: Q_rr taken at the datasheet's test conditions, not rescaled to the "
      "application (no di/dt); " + RECOVERY_MODEL),
     (Finding("recovery.no_fit", {"part": Value("A")}),
@@ -279,6 +282,112 @@ TODAY = [
      "charge-control model fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); "
      "the charge balance of the dynamic check and the recovery loss of the thermal check use the "
      "same carried value; " + RECOVERY_MODEL),
+    # Why a check did not run (the strings of studies/check.py, checks/preconditions.py,
+    # checks/forward.py, checks/transient.py and checks/recovery_conditions.py before)
+    (Finding("not_run.not_requested"), "not requested"),
+    (Finding("not_run.needs_dynamic", causes=(Finding("not_run.no_turn_off"),)),
+     "needs the dynamic check, which did not run: dc duty with no turn-off: give duty.di_dt (or "
+     "an ac waveform) to check the voltage sharing at turn-off"),
+    (Finding("not_run.no_turn_off"),
+     "dc duty with no turn-off: give duty.di_dt (or an ac waveform) to check the voltage sharing "
+     "at turn-off"),
+    (Finding("not_run.no_forward_current"),
+     "no duty.forward_current: give the average forward current of the whole group (I_F(AV)) "
+     "to check current sharing and junction temperatures"),
+    (Finding("not_run.no_forward_line", {"parts": Value("A, B")}),
+     "part(s) A, B give no v_t0 and r_t (forward characteristic); give them, or a class to "
+     "inherit them from"),
+    (Finding("not_run.one_branch"), "one branch: no current to share"),
+    (Finding("not_run.no_rated_current", {"parts": Value("A")}),
+     "part(s) A give no i_fav (rated average forward current), the limit of this check"),
+    (Finding("not_run.no_junction_to_case", {"parts": Value("A")}), "part(s) A give no r_th_jc"),
+    (Finding("not_run.no_junction_limit", {"parts": Value("B")}), "part(s) B give no t_j_max"),
+    (Finding("not_run.no_heatsink"),
+     "no thermal.r_th_sa (heatsink to ambient): give it to check junction temperatures"),
+    (Finding("not_run.no_commutation_loop"),
+     "give duty.stray_inductance or duty.di_dt (the commutation loop)"),
+    (Finding("not_run.inconsistent_recovery", {"part": Value("A")}),
+     "parts.A: its typical q_rr, i_rm or t_rr and at_di_dt are not consistent with any recovery "
+     "waveform (with t_rr: Q_rr <= di/dt t_rr^2 / 2; with i_rm: Q_rr > I_RM^2 / (2 di/dt)); "
+     "check the datasheet values"),
+    (Finding("recovery_data.no_charge", {"part": Value("A")}), "parts.A gives no q_rr"),
+    (Finding("recovery_data.no_peak_or_time", {"part": Value("A")}),
+     "parts.A gives neither i_rm nor t_rr: the recovery model needs one"),
+    (Finding("recovery_data.no_test_di_dt", {"part": Value("A")}),
+     "parts.A.q_rr has no at_di_dt (the datasheet's test di/dt)"),
+    (Finding("recovery_data.test_di_dt_differ", {"part": Value("A")}),
+     "parts.A: t_rr and q_rr are given at different test di/dt (the fit needs both at one test "
+     "condition)"),
+    (Finding("recovery_data.no_test_current", {"part": Value("A")}),
+     "parts.A.q_rr has no at_forward_current and the duty no forward_current"),
+    # checks/preconditions.no_scatter and montecarlo/mixed_stock.mix_finding
+    (Finding("no_scatter.parameter", {"part": Value("A"), "parameter": Value("q_rr")}),
+     "parts.A.q_rr"),
+    (Finding("no_scatter.resistor"), "grading.resistor (no tolerance given)"),
+    (Finding("no_scatter.capacitor"), "grading.capacitor (no tolerance given)"),
+    (Finding("mixed_stock.mix", {"part": Value("B"), "percent": Value(100 * 0.125)}),
+     "B mixed in at 12.5 % of the devices (each device independently, drawn anew in every "
+     "built string)"),
+    # montecarlo/importance.py's estimator text and notes, and studies/check.py's notes on them
+    (Finding("estimator.no_failure_point_pooled",
+             {"radius": Value(12.0), "pilot": Value(10_000), "samples": Value(20_000),
+              "trials": Value(4000)}),
+     "no failure point found within |u| <= 12 (steepest ascent, 10,000 plain pilot samples and "
+     "rays from the highest of them): the sampler's 20,000 plain samples pooled with the check's "
+     "4,000 Monte Carlo trials, exact interval"),
+    (Finding("estimator.no_failure_point_plain", {"radius": Value(12.0), "pilot": Value(1000)}),
+     "no failure point found within |u| <= 12 (steepest ascent, 1,000 plain pilot samples and "
+     "rays from the highest of them): plain sampling with the exact interval"),
+    (Finding("estimator.importance_sampling", {"regions": Value(1), "images": Value(0)}),
+     "importance sampling, defensive mixture shifted to the most likely failure point"),
+    (Finding("estimator.importance_sampling", {"regions": Value(4), "images": Value(4)}),
+     "importance sampling, defensive mixture shifted to the most likely failure point of each "
+     "of 4 failure regions and 4 image(s) under the exchangeable positions"),
+    (Finding("estimator.importance_sampling", {"regions": Value(1), "images": Value(23)}),
+     "importance sampling, defensive mixture shifted to the most likely failure point and 23 "
+     "image(s) under the exchangeable positions"),
+    (Finding("estimator.refitted_lots", {"parts": Value("A, B")}),
+     "the resampled lot(s) of A, B drawn from their fit (per column lognormal or normal, "
+     "Gaussian copula)"),
+    (Finding("rare.plain_decides", causes=(
+        Finding("rare.orbit_incomplete", {"images": Value(1024)}),
+        Finding("rare.coverage_not_assured", causes=(
+            Finding("rare.search_capped", {"regions": Value(12)}),
+            Finding("rare.regions_revealed", {"regions": Value(2), "rounds": Value(2)}),
+            Finding("rare.few_effective_samples", {"effective": Value(3.14)},
+                    Value(10.0)))))),
+     "the failure point found has more than 1,024 rearrangements under the string's symmetries "
+     "(its other devices are not alike): the sampler used 1,024 of them and may miss part of "
+     "P(fail); the sampler cannot rule out a failure region it did not search: the search "
+     "stopped at 12 failure regions and more remained; its sample still revealed 2 failure "
+     "region(s) the search had missed after 2 resampling(s); the estimate rests on about 3.1 "
+     "samples' worth of its weight (a region sampled by chance, not searched), so the plain "
+     "interval decides"),
+    (Finding("rare.orbit_incomplete", {"images": Value(1024)}),
+     "the failure point found has more than 1,024 rearrangements under the string's symmetries "
+     "(its other devices are not alike): the sampler used 1,024 of them and may miss part of "
+     "P(fail)"),
+    (Finding("rare.coverage_not_assured", causes=(Finding("rare.no_failing_sample"),)),
+     "the sampler cannot rule out a failure region it did not search: none of its samples "
+     "failed, although the search found a failure region"),
+    (Finding("rare.search_capped", {"regions": Value(12)}),
+     "the search stopped at 12 failure regions and more remained"),
+    (Finding("rare.regions_revealed", {"regions": Value(1), "rounds": Value(2)}),
+     "its sample still revealed 1 failure region(s) the search had missed after 2 "
+     "resampling(s)"),
+    (Finding("rare.no_failing_sample"),
+     "none of its samples failed, although the search found a failure region"),
+    (Finding("rare.few_effective_samples", {"effective": Value(7.26)}, Value(10.0)),
+     "the estimate rests on about 7.3 samples' worth of its weight (a region sampled by chance, "
+     "not searched)"),
+    (Finding("rare.fit_without_failure_point"),
+     "no failure point found and the sampler drew the lot's fit, not the lot: the plain run "
+     "(the lot itself) decides"),
+    (Finding("rare.estimators_disagree", {"rare_high": Value(1.234e-7),
+                                          "plain_low": Value(2.5e-4), "failures": Value(12),
+                                          "trials": Value(20_000)}),
+     "the importance-sampling upper bound 1.2e-07 lies below the plain Monte Carlo lower bound "
+     "0.00025 (12 of 20,000): the estimators disagree, so the plain interval decides"),
 ]
 # The command line's wording of the one code that names a setting (the JSON of `size` has it).
 SIZE_DAMPING = (Finding("size.damping_slower_than_recovery", {"time_constant": Value(3.3e-7, "s")},
@@ -332,8 +441,8 @@ def _produced_codes() -> set[str]:
                 found.add(node.args[0].value)
             # a code handed to a helper that makes the finding (plausibility's _slope)
             elif isinstance(node, ast.Constant) and isinstance(node.value, str) and \
-                    re.fullmatch(r"(rating|advisory|size|plausibility|impossible)\.[a-z_]+",
-                                 node.value):
+                    re.fullmatch(r"(rating|advisory|size|plausibility|impossible|not_run|"
+                                 r"recovery_data)\.[a-z_]+", node.value):
                 found.add(node.value)
             # a code built from a prefix (f"assumed.part_{key}"): every template it can name
             elif isinstance(node, ast.JoinedStr) and node.values and \
@@ -412,3 +521,44 @@ def test_the_impossibility_arithmetic_writes_no_sentence():
     (function,) = [node for node in tree.body
                    if isinstance(node, ast.FunctionDef) and node.name == "impossibility"]
     assert not _sentence_constants(function)
+
+
+# The functions below the report converted to findings (issue 16, item 3): no sentence left.
+CONVERTED = [("checks/preconditions.py", "dynamic_check_reason"),
+             ("checks/preconditions.py", "no_scatter"),
+             ("checks/forward.py", "forward_reasons"),
+             ("checks/transient.py", "transient_reason"),
+             ("checks/transient.py", "_fits_or_reason"),
+             ("checks/recovery_conditions.py", "missing_recovery_finding"),
+             ("montecarlo/mixed_stock.py", "mix_finding"),
+             ("montecarlo/importance.py", "rare_event_estimate"),
+             ("studies/check.py", "_plan"),
+             ("studies/check.py", "_needs_dynamic"),
+             ("studies/check.py", "_with_rare")]
+
+
+@pytest.mark.parametrize("path, name", CONVERTED, ids=[name for _, name in CONVERTED])
+def test_the_converted_reasons_and_notes_write_no_sentence(path, name):
+    tree = ast.parse((PACKAGE / path).read_text(encoding="utf-8"))
+    (function,) = [node for node in tree.body
+                   if isinstance(node, ast.FunctionDef) and node.name == name]
+    assert not _sentence_constants(function), _sentence_constants(function)
+
+
+def test_a_finding_says_its_causes_in_order():
+    # "needs the dynamic check, which did not run: <its reason>", several causes joined by "; ".
+    first, second = Finding("rare.no_failing_sample"), Finding("rare.search_capped",
+                                                               {"regions": Value(3)})
+    joined = sentence(Finding("rare.coverage_not_assured", causes=(first, second)))
+    assert joined.endswith(": " + sentence(first) + "; " + sentence(second))
+    assert sentence(Finding("rare.plain_decides")) == ", so the plain interval decides"
+
+
+def test_an_error_that_holds_a_finding_is_worded_by_the_command_line():
+    from stringcheck.cli.exit_codes import one_line
+    from stringcheck.errors import StringcheckError
+
+    error = StringcheckError("demo.toml: cannot simulate the turn-off: ",
+                             Finding("recovery_data.no_charge", {"part": Value("A")}))
+    assert str(error) == "demo.toml: cannot simulate the turn-off: recovery_data.no_charge"
+    assert one_line(error) == "demo.toml: cannot simulate the turn-off: parts.A gives no q_rr"

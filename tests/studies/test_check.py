@@ -12,6 +12,7 @@ import stringcheck.studies.check as check_study
 from stringcheck.report.export import result_to_dict
 from stringcheck.studies.check import run_check
 from stringcheck.report.wording import sentences
+from stringcheck.report.wording import sentence
 from tests.designs import corner_design, design_text
 
 
@@ -116,7 +117,8 @@ def test_dc_duty_without_turn_off_skips_the_dynamic_check_and_says_why():
     text = SCATTER.replace('di_dt = "20 A/us"', 'waveform = "dc"')
     result = run_check(parse_design_text(text), trials=1000)
     assert not result.checks["dynamic"].ran
-    assert "di_dt" in result.checks["dynamic"].reason
+    assert result.checks["dynamic"].reason.code == "not_run.no_turn_off"
+    assert "di_dt" in sentence(result.checks["dynamic"].reason)
 
 
 def test_impossible_string_is_reported_and_fails():
