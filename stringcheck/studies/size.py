@@ -73,7 +73,7 @@ __all__ = ["Candidate", "Confirmation", "DampingChoice", "LadderChoice", "NoProp
 # Critical damping of the stray-inductance ring: damping ratio zeta = 1 (series RLC).
 DAMPING_RATIO = 1.0
 # The time-domain window of R_d: from this fraction of the critical (or step-limited) value up to
-# DAMPING_WINDOW_HIGH times the larger of the two, scanned on E3 and refined on E12.
+# DAMPING_WINDOW_HIGH times the larger of the two, walked on E6 and refined on E12.
 DAMPING_WINDOW_LOW = 1.0 / 30.0
 DAMPING_WINDOW_HIGH = 3.0
 # Strings simulated per damping candidate: the worst charge-balance ones and a random sample.
@@ -870,11 +870,11 @@ def _damping_rule(design: Design) -> DampingChoice:
 
 def _damping_in_time_domain(design: Design, rule: DampingChoice, trials: int, seed: int,
                             pool: WorkerPool | None) -> DampingChoice | None:
-    """R_d chosen in the time domain: scanned on E3 from ``DAMPING_WINDOW_LOW`` x the smaller of
-    the critical and the step-limited value up to ``DAMPING_WINDOW_HIGH`` x the larger, refined on
-    E12 around the best; the value whose worst simulated peak (the worst charge-balance strings and
-    a random sample) is lowest among those within derating x V_RRM (the least energy per turn-off
-    on a tie). ``time_domain`` False in the result when none keeps the peak within the limit;
+    """R_d chosen in the time domain, in the window from ``DAMPING_WINDOW_LOW`` x the smaller of
+    the critical and the step-limited value up to ``DAMPING_WINDOW_HIGH`` x the larger: a descent
+    along E6 from the critical value to the valley of the worst simulated peak (the worst
+    charge-balance strings and a random sample), refined on E12; the value whose peak is lowest
+    among those within derating x V_RRM (the least energy per turn-off on a tie). ``time_domain`` False in the result when none keeps the peak within the limit;
     None when the transient cannot run for this design."""
     known = [v for v in (rule.critical, rule.step_limit, rule.value) if math.isfinite(v) and v > 0]
     low, high = min(known) * DAMPING_WINDOW_LOW, max(known) * DAMPING_WINDOW_HIGH
@@ -895,13 +895,22 @@ def _damping_in_time_domain(design: Design, rule: DampingChoice, trials: int, se
                                         within_limit=bool(within_limit(check.worst_ratio)))
         return tried[value]
 
-    # E3 (1, 2.2, 4.7: every other E6 value) for the scan.
-    coarse = eseries.values_between(eseries.round_down(low, "E6"), high, "E6")
-    coarse = coarse[np.isin(np.round(coarse / 10.0 ** np.floor(np.log10(coarse)), 6),
-                            (1.0, 2.2, 4.7))]
-    for value in coarse:
-        if run(float(value)) is None:
-            return None
+    # The worst peak falls with R_d while R_d damps the ring and rises again once the step
+    # I_RM R_d dominates: a descent along E6 from the critical value finds the valley, and E12
+    # refines it. The window bounds the walk.
+    ladder = eseries.values_between(eseries.round_down(low, "E6"), high, "E6")
+    start = rule.critical if math.isfinite(rule.critical) else rule.value
+    index = int(np.clip(np.searchsorted(ladder, start), 0, len(ladder) - 1))
+    if run(float(ladder[index])) is None:
+        return None
+    for direction in (-1, +1):
+        position = index
+        while 0 <= position + direction < len(ladder):
+            here = run(float(ladder[position]))
+            there = run(float(ladder[position + direction]))
+            if there.worst_ratio >= here.worst_ratio:
+                break
+            position += direction
 
     def best() -> DampingCandidate | None:
         good = [c for c in tried.values() if c.within_limit]
@@ -910,7 +919,7 @@ def _damping_in_time_domain(design: Design, rule: DampingChoice, trials: int, se
     centre = best() or min(tried.values(), key=lambda c: c.worst_ratio)
     # Refine on E12 only where the scan came near the limit; far from it the capacitor steps up.
     near = centre.within_limit or centre.worst_ratio < _REFINE_BELOW
-    for steps in (-3, -2, -1, 1, 2, 3) if near else ():
+    for steps in (-1, 1) if near else ():
         value = float(eseries.step(eseries.round_up(centre.value, "E12"), "E12", steps))
         if low <= value <= high:
             run(value)
@@ -920,7 +929,7 @@ def _damping_in_time_domain(design: Design, rule: DampingChoice, trials: int, se
         return replace(rule, candidates=candidates, time_domain=False)
     bound = Finding("size.bound.time_domain", {
         "value": Value(chosen.value, "ohm"), "ratio": Value(chosen.worst_ratio),
-        "low": Value(float(coarse[0]), "ohm"), "high": Value(float(coarse[-1]), "ohm"),
+        "low": Value(low, "ohm"), "high": Value(high, "ohm"),
         "critical": Value(rule.critical, "ohm"), "step_limit": Value(rule.step_limit, "ohm"),
         "rule": Value(rule.value, "ohm")})
     n = design.string.series
