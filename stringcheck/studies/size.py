@@ -436,7 +436,12 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
                                                                 "raised": Value(larger, "F")}))
             raised = advisories[-1]
             sized = replace(sized, grading=replace(sized.grading, capacitor=larger))
-            capacitor = replace(capacitor, bound=raised)
+            # The raised value on the search's sample (it passes there: more C never worsens
+            # the charge balance), the proposal's figures and a point of the curve.
+            at_raised = _evaluate("dynamic", sized, trials, seed, pool, larger)
+            capacitor = replace(capacitor, chosen=at_raised, rejected_neighbour=None, bound=raised,
+                                curve=tuple(sorted(capacitor.curve + (at_raised,),
+                                                   key=lambda c: c.value)))
             resistor = _clamp_for_discharge(sized, resistor, trials, seed, pool)
             sized = replace(sized, grading=replace(sized.grading, resistor=resistor.chosen.value))
             damping = _damping_rule(sized)
