@@ -190,7 +190,7 @@ class NoProposal(ImpossibleDesignError):
     codes; ``report.wording`` says them."""
 
     def __init__(self, findings: tuple[Finding, ...]):
-        super().__init__("no proposal: " + ", ".join(f.code for f in findings))
+        super().__init__(", ".join(f.code for f in findings))
         self.findings = findings
 
 
