@@ -417,6 +417,7 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
     damping = _damping_rule(sized)
     advisories: list[Finding] = []
     if time_domain and damping.value is not None:
+        last_tried, last_capacitor = damping, sized.grading.capacitor
         for _ in range(_MAX_CAPACITOR_STEPS + 1):
             say("damping resistor (time domain)")
             tried = _damping_in_time_domain(sized, damping, trials, seed, pool)
@@ -425,7 +426,8 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
                                           {"reason": Value(transient_reason(sized))}))
                 time_domain = False
                 break
-            damping = tried
+            damping = last_tried = tried
+            last_capacitor = sized.grading.capacitor
             if damping.time_domain:
                 break
             previous = sized.grading.capacitor
@@ -446,11 +448,12 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
             sized = replace(sized, grading=replace(sized.grading, resistor=resistor.chosen.value))
             damping = _damping_rule(sized)
         if not damping.time_domain and time_domain:
-            closest = min(damping.candidates, key=lambda c: c.worst_ratio)
+            tried_values = last_tried.candidates
+            closest = min(tried_values, key=lambda c: c.worst_ratio)
             raise NoProposal((Finding("size.unmet.transient", {
-                "low": Value(min(c.value for c in damping.candidates), "ohm"),
-                "high": Value(max(c.value for c in damping.candidates), "ohm"),
-                "capacitor": Value(sized.grading.capacitor, "F"),
+                "low": Value(min(c.value for c in tried_values), "ohm"),
+                "high": Value(max(c.value for c in tried_values), "ohm"),
+                "capacitor": Value(last_capacitor, "F"),
                 "value": Value(closest.value, "ohm"), "ratio": Value(closest.worst_ratio)}),))
     if damping.value is not None:
         sized = replace(sized, grading=replace(sized.grading, damping_resistor=damping.value))
