@@ -20,9 +20,11 @@ instead of 2 kV in its four hottest positions; then one built string's turn-off.
 ('pass', 20000)
 >>> sorted(name for name, outcome in result.checks.items() if outcome.ran)
 ['dynamic', 'static']
->>> sized = stringcheck.size(design, trials=4000, seed=11)
+>>> sized = stringcheck.size(design, trials=4000, seed=11, transient=False)
 >>> sized.resistor.chosen.value, sized.capacitor.chosen.value, sized.check.verdict
-(140000000.0, 2.7e-10, 'pass')
+(11000000.0, 1.8e-10, 'pass')
+>>> sized.resistor.bound.code
+'size.bound.grading_current'
 >>> lower = replace(design.parts["FR2K"], v_rrm=1.6e3)
 >>> candidate_parts = {**design.parts, "LOWER": lower}
 >>> reviewed = stringcheck.review(replace(design, parts=candidate_parts), swap="1-4:LOWER",
@@ -158,7 +160,7 @@ def size(design: Design | str | os.PathLike[str], *, trials: int | None = None,
          seed: int | None = None, resistor_series: str | None = None,
          capacitor_series: str | None = None, find_series: bool = False,
          progress: Callable[[str], None] | None = None, workers: int = 1,
-         transient: bool = False) -> "SizingResult":
+         transient: bool | None = None, confirm: bool = True) -> "SizingResult":
     """Propose the grading resistor, capacitor and damping resistor from preferred values, with
     their ratings (``stringcheck size``).
 
@@ -180,7 +182,9 @@ def size(design: Design | str | os.PathLike[str], *, trials: int | None = None,
         Processes to run each check's trials in; the answer does not depend on it.
     transient
         Choose the damping resistor in the time domain and include the transient in the final
-        check.
+        check; None (default) whenever the design has the recovery data it needs, False skips it.
+    confirm
+        Confirm R and C on an independent sample (default), stepping a value once where it fails.
 
     Returns
     -------
@@ -191,7 +195,10 @@ def size(design: Design | str | os.PathLike[str], *, trials: int | None = None,
     Raises
     ------
     SizingError
-        Too few trials for the target, or no preferred value meets it.
+        Too few trials for the target.
+    NoProposal
+        No network meets every limit of ``[sizing]`` and the final check (an
+        ``ImpossibleDesignError``; its ``findings`` say which, and what came closest).
     ImpossibleDesignError
         Too few devices for the string voltage (and ``find_series`` not set).
     """
@@ -199,7 +206,7 @@ def size(design: Design | str | os.PathLike[str], *, trials: int | None = None,
 
     return run_size(_design(design), trials=trials, seed=seed, resistor_series=resistor_series,
                     capacitor_series=capacitor_series, find_series=find_series,
-                    progress=progress, workers=workers, transient=transient)
+                    progress=progress, workers=workers, transient=transient, confirm=confirm)
 
 
 def review(baseline: Design | str | os.PathLike[str],

@@ -29,3 +29,13 @@ def test_the_reference_loop_of_the_check_row_agrees_with_the_engine():
     engine = run_check(design, trials=40)
     engine_worst = max(engine.checks["static"].worst_voltage, engine.checks["dynamic"].worst_voltage)
     assert float(worst.max()) == pytest.approx(engine_worst, rel=1e-9)
+
+
+def test_the_size_rows_build_their_stacks():
+    # The size rows (issue 18) run the bundled demo and a 60-device stack of its part at the same
+    # 1.25 kV per device and 10 mA; the script must still build them (no timing here).
+    bench = _bench()
+    demo, sixty = bench._sized_stack(24), bench._sized_stack(60)
+    assert demo.string.series == 24 and demo.duty.reverse_voltage == 30e3
+    assert sixty.string.series == 60 and sixty.duty.reverse_voltage == pytest.approx(75e3)
+    assert sixty.duty.forward_current == pytest.approx(10e-3)

@@ -164,21 +164,42 @@ def check(
 
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,
-          find_series, workers=1, transient=False) -> int:
+          find_series, workers=1, transient=None, write_path=None, force=False) -> int:
     from stringcheck.design.reading import load_design
-    from stringcheck.report.export import json_text, sizing_to_dict
-    from stringcheck.report.terminal import render_sizing, render_sizing_summary
+    from stringcheck.report.design_file import sized_design_text
+    from stringcheck.report.export import json_text, no_proposal_to_dict, sizing_to_dict
+    from stringcheck.report.terminal import (
+        render_no_proposal,
+        render_sizing,
+        render_sizing_summary,
+    )
+    from stringcheck.studies.size import NoProposal
     from stringcheck.studies.size import size as run_size
 
     design = load_design(path)
     output_files.check_output_targets({"--json": json_path},
                                       inputs=output_files.design_inputs(design, path))
-    with StepSpinner(enabled=not quiet, label="sizing") as progress:
-        result = run_size(design, trials=trials, seed=seed, resistor_series=resistor_series,
-                          capacitor_series=capacitor_series, find_series=find_series,
-                          progress=progress, workers=workers, transient=transient)
+    if write_path is not None:
+        output_files.check_write_target(write_path, force=force, json_path=json_path)
+    try:
+        with StepSpinner(enabled=not quiet, label="sizing") as progress:
+            result = run_size(design, trials=trials, seed=seed, resistor_series=resistor_series,
+                              capacitor_series=capacitor_series, find_series=find_series,
+                              progress=progress, workers=workers, transient=transient)
+    except NoProposal as error:
+        # Not a proposal: say which limit or check cannot be met and what came closest; nothing
+        # is written to --write, the JSON says the same.
+        outputs = [] if json_path is None else [
+            (json_path, json_text(no_proposal_to_dict(error.findings, spell=option_wording)))]
+        shown_on = console(stderr=json_path == "-", wrap=not quiet)
+        with output_files.atomic_outputs(outputs), output_files.report_stream(json_path == "-"):
+            render_no_proposal(error.findings, shown_on, quiet=quiet, spell=option_wording)
+        return EXIT_FAIL
     outputs = [] if json_path is None else [
         (json_path, json_text(sizing_to_dict(result, spell=option_wording)))]
+    if write_path is not None:
+        outputs.append((write_path, sized_design_text(Path(path).read_text(encoding="utf-8"),
+                                                      result, source=str(path))))
     shown_on = console(stderr=json_path == "-", wrap=not quiet)
     with output_files.atomic_outputs(outputs), output_files.report_stream(json_path == "-"):
         if quiet:
@@ -202,15 +223,23 @@ def size(
     json: JsonPath = None,
     quiet: Quiet = False,
     workers: Workers = 1,
-    transient: Annotated[bool, typer.Option(
-        "--transient", help="Choose the damping resistor in the time domain and include the "
-                            "transient in the final check.")] = False,
+    transient: Annotated[Optional[bool], typer.Option(
+        "--transient/--no-transient", show_default=False,
+        help="Choose the damping resistor in the time domain and include the transient in the "
+             "final check. Default: whenever the design has the recovery data it needs.")] = None,
+    write: Annotated[Optional[Path], typer.Option(
+        "--write", metavar="PATH",
+        help="Write the design file with the proposed network to PATH (comments and layout "
+             "kept); an existing file only with --force.")] = None,
+    force: Annotated[bool, typer.Option(
+        "--force", help="With --write: replace an existing file.")] = False,
     debug: Debug = False,
 ) -> None:
     """Propose grading R, C and damping resistor from preferred values, with their ratings."""
     run_guarded(lambda: _size(file, trials=trials, seed=seed, json_path=json, quiet=quiet,
                               resistor_series=resistor_series, capacitor_series=capacitor_series,
-                              find_series=find_series, workers=workers, transient=transient),
+                              find_series=find_series, workers=workers, transient=transient,
+                              write_path=write, force=force),
                 debug)
 
 

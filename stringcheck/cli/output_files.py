@@ -25,7 +25,8 @@ from stringcheck.errors import StringcheckError
 if TYPE_CHECKING:
     from stringcheck.design.model import Design
 
-__all__ = ["atomic_outputs", "check_output_targets", "design_inputs", "report_stream",
+__all__ = ["atomic_outputs", "check_output_targets", "check_write_target", "design_inputs",
+           "report_stream",
            "write_files_atomic", "write_text_atomic"]
 
 
@@ -168,6 +169,22 @@ def atomic_outputs(files: Sequence[tuple[str | Path, str | bytes]]) -> Iterator[
     for text in discarded:
         with open(os.devnull, "w", encoding="utf-8") as stream:
             stream.write(text)
+
+
+def check_write_target(path: str | Path, *, force: bool, json_path: str | Path | None) -> None:
+    """Check the path ``size --write`` writes the sized design file to before the run: a regular
+    file that can be written (not standard output), not the --json target, and no existing file
+    unless ``force`` (the design file itself included: --force replaces it, comments kept)."""
+    target = Path(path)
+    shown = _shown_path(target)
+    if str(path) == "-":
+        raise StringcheckError("--write -: give a file name for the design file (the report and "
+                               "--json go to standard output)")
+    if json_path not in (None, "-") and _same_file(target, Path(json_path)):
+        raise StringcheckError(f"{shown}: --write and --json name the same file; give two names")
+    if target.exists() and not force:
+        raise StringcheckError(f"{shown}: exists; add --force to replace it, or give a new name")
+    _writable(target)
 
 
 def _real(path: Path) -> str:

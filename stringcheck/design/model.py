@@ -148,6 +148,9 @@ class Duty:
     di_dt: float | None
     ambient: float
     stray_inductance: float | None
+    # Capacitance across the whole string (smoothing capacitor, cable, load) [F]: it discharges
+    # through the grading resistors after power-off (``[sizing] discharge_time``).
+    load_capacitance: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -288,6 +291,18 @@ class Sizing:
     target_share: float | None
     resistor_series: str
     capacitor_series: str
+    # Engineering constraints of the proposal (common practice; docs/design-file.md): grading
+    # current >= grading_current_multiple x the hottest maximum leakage; the stack below 60 V
+    # within discharge_time [s]; C >= capacitance_multiple x (C_j + stray_capacitance) [F]; R and
+    # C within what the parts can realise [ohm], [F].
+    grading_current_multiple: float = 5.0
+    discharge_time: float = 5.0
+    capacitance_multiple: float = 10.0
+    stray_capacitance: float = 0.0
+    resistor_min: float = 1e3
+    resistor_max: float = 1e10
+    capacitor_min: float = 1e-12
+    capacitor_max: float = 1e-5
 
 
 @dataclass(frozen=True)

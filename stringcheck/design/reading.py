@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import difflib
 import hashlib
+import math
 import re
 import tomllib
 from dataclasses import replace
@@ -58,6 +59,7 @@ from stringcheck.units import (
     KELVIN_PER_WATT,
     OHM,
     PER_KELVIN,
+    SECOND,
     VOLT,
     WATT,
 )
@@ -244,6 +246,8 @@ def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:
                                 note=Finding("assumed.ambient",
                                              {"ambient": Value(DEFAULT_AMBIENT, "degC")})) or 0.0,
         stray_inductance=reader.quantity(table, "stray_inductance", HENRY, "duty", positive=True),
+        load_capacitance=reader.quantity(table, "load_capacitance", FARAD, "duty", default=0.0,
+                                         non_negative=True) or 0.0,
     )
 
 
@@ -423,12 +427,37 @@ def _read_sizing(reader: Reader, raw: Mapping[str, Any]) -> Sizing:
     if target_share is not None and not target_share >= 1.0:
         raise reader.error("sizing.target_share", "must be >= 1 (max branch current / mean), "
                                                   f"got {table['target_share']!r}")
+    limits = _sizing_constraints(reader, table, prefix)
     return Sizing(
+        **limits,
         target_p_fail=reader.fraction(table, "target_p_fail", prefix, default=DEFAULT_TARGET_P_FAIL,
                                       low=0.0, high=1.0, low_open=True),
         target_share=target_share,
         **series,
     )
+
+
+def _sizing_constraints(reader: Reader, table: Mapping[str, Any], prefix: str) -> dict[str, float]:
+    """The engineering constraints of ``[sizing]`` (defaults: ``Sizing``'s, common practice)."""
+    defaults = Sizing(target_p_fail=0.0, target_share=None, resistor_series="", capacitor_series="")
+    out: dict[str, float] = {}
+    for key in ("grading_current_multiple", "capacitance_multiple"):
+        value = reader.quantity(table, key, DIMENSIONLESS, prefix, default=getattr(defaults, key))
+        if not value >= 1.0 or not math.isfinite(value):
+            raise reader.error(join_key(prefix, key), f"must be a number >= 1 (a multiple), got "
+                                                      f"{table[key]!r}")
+        out[key] = value
+    for key, unit in (("discharge_time", SECOND), ("resistor_min", OHM), ("resistor_max", OHM),
+                      ("capacitor_min", FARAD), ("capacitor_max", FARAD)):
+        out[key] = reader.quantity(table, key, unit, prefix, default=getattr(defaults, key),
+                                   positive=True)
+    out["stray_capacitance"] = reader.quantity(table, "stray_capacitance", FARAD, prefix,
+                                               default=0.0, non_negative=True) or 0.0
+    for low, high in (("resistor_min", "resistor_max"), ("capacitor_min", "capacitor_max")):
+        if not out[low] < out[high]:
+            raise reader.error(join_key(prefix, high), f"must be greater than {prefix}.{low} "
+                                                       f"({out[low]:g}), got {table.get(high)!r}")
+    return out
 
 
 def _read_thermal(reader: Reader, raw: Mapping[str, Any]) -> Thermal:

@@ -30,7 +30,7 @@ _CONDITION_UNITS = {"at_temperature": CELSIUS, "at_voltage": VOLT, "at_di_dt": A
 SCHEMA_KEYS = {
     "design": ("title", "notes"),
     "duty": ("reverse_voltage", "forward_current", "waveform", "frequency", "di_dt", "ambient",
-             "stray_inductance"),
+             "stray_inductance", "load_capacitance"),
     "string": ("series", "parallel", "derating", "part", "position"),
     "position": ("index", "branch", "part", "temperature_rise", "serial"),
     "part": ("v_rrm", "i_fav", "i_r", "q_rr", "i_rm", "t_rr", "v_t0", "r_t", "c_j", "r_th_jc",
@@ -44,7 +44,10 @@ SCHEMA_KEYS = {
     "thermal": ("heatsink", "r_th_sa", "path_resistance"),
     "monte_carlo": ("trials", "seed", "confidence", "sigma_at_limit", "screened", "lot_share",
                     "correlation"),
-    "sizing": ("target_p_fail", "target_share", "resistor_series", "capacitor_series"),
+    "sizing": ("target_p_fail", "target_share", "resistor_series", "capacitor_series",
+               "grading_current_multiple", "discharge_time", "capacitance_multiple",
+               "stray_capacitance", "resistor_min", "resistor_max", "capacitor_min",
+               "capacitor_max"),
     "review": ("tolerance",),
 }
 TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",

@@ -35,7 +35,8 @@ if TYPE_CHECKING:
     from stringcheck.studies.size import SizingResult
 
 __all__ = ["SCHEMA_VERSION", "check_to_dict", "json_text", "network_to_dict", "positions_csv",
-           "rare_to_dict", "result_to_dict", "sizing_to_dict", "warnings_to_list", "write_files_atomic",
+           "no_proposal_to_dict", "rare_to_dict", "result_to_dict", "sizing_to_dict",
+           "warnings_to_list", "write_files_atomic",
            "write_text_atomic"]
 
 
@@ -180,6 +181,16 @@ def json_text(data: dict[str, Any]) -> str:
     return json.dumps(data, indent=2, allow_nan=False) + "\n"
 
 
+def no_proposal_to_dict(findings, *, spell: Callable[[Setting], str] = str) -> dict[str, Any]:
+    """``size`` without a proposal: ``proposal`` null, ``unmet`` (sentences: which limit or
+    check cannot be met, what came closest) and ``unmet_codes``, with each finding's figures."""
+    return {"schema_version": SCHEMA_VERSION, "proposal": None,
+            "unmet": sentences(findings, spell=spell), "unmet_codes": codes(findings),
+            "unmet_values": [{name: value.number for name, value in finding.values.items()}
+                             | ({"limit": finding.limit.number} if finding.limit else {})
+                             for finding in findings]}
+
+
 def sizing_to_dict(result: "SizingResult", *,
                    spell: Callable[[Setting], str] = str) -> dict[str, Any]:
     """The result of ``size``: the check of the sized design plus ``grading`` (SI units); a
@@ -199,13 +210,42 @@ def sizing_to_dict(result: "SizingResult", *,
 
         return {"series": ladder.series, "chosen": candidate(ladder.chosen),
                 "rejected_neighbour": candidate(ladder.rejected_neighbour),
-                "textbook_bound": json_number(ladder.textbook_bound)}
+                "textbook_bound": json_number(ladder.textbook_bound),
+                "bound": sentence(ladder.bound, spell=spell) if ladder.bound else None,
+                "bound_code": ladder.bound.code if ladder.bound else None,
+                "confirmations": [confirmation(c) for c in ladder.confirmations]}
+
+    def confirmation(c) -> dict[str, Any]:
+        return {"value": c.value, "passed": c.passed, "failures": c.failures, "trials": c.trials,
+                "seed": c.seed, "p_fail_upper": json_number(c.p_fail_upper), "rare": c.rare}
+
+    def curve(ladder) -> list[dict[str, Any]]:
+        if ladder is None:
+            return []
+        return [{"value": c.value, "p_fail": json_number(c.p_fail),
+                 "p_fail_ci": [json_number(c.p_fail_lower), json_number(c.p_fail_upper)],
+                 "failures": c.failures, "passed": c.passed,
+                 "worst_ratio": json_number(c.worst_ratio),
+                 "p99_ratio": json_number(c.p99_ratio)} for c in ladder.curve]
+
+    damping = result.damping
 
     data["grading"] = {
         "resistor": result.resistor.chosen.value,
         "capacitor": result.design.grading.capacitor if result.capacitor else None,
         "damping_resistor": result.damping_resistor,
-        "damping_rule": result.damping_rule,
+        "damping_rule": sentence(result.damping_rule, spell=spell),
+        "damping_rule_code": result.damping_rule.code,
+        "damping": None if damping is None else {
+            "inductance": json_number(damping.inductance),
+            "critical": json_number(damping.critical),
+            "peak_recovery_current": json_number(damping.peak_current),
+            "stage_margin": json_number(damping.margin),
+            "step_limit": json_number(damping.step_limit),
+            "damping_ratio": json_number(damping.damping_ratio),
+            "time_domain": damping.time_domain,
+        },
+        "confirmation_seed": result.confirmation_seed,
         "damping_candidates": [
             {"value": c.value, "worst_ratio": json_number(c.worst_ratio), "energy": json_number(c.energy),
              "within_limit": c.within_limit} for c in result.damping_candidates],
@@ -213,7 +253,21 @@ def sizing_to_dict(result: "SizingResult", *,
                         "capacitor": result.capacitor.series if result.capacitor else None},
         "series_count": result.series_count,
         "target_p_fail": result.target_p_fail,
-        "search": {"resistor": choice(result.resistor), "capacitor": choice(result.capacitor)},
+        "search": {
+            "resistor": choice(result.resistor), "capacitor": choice(result.capacitor),
+            "curve": {
+                "resistor": curve(result.resistor),
+                "capacitor": curve(result.capacitor),
+                "damping_resistor": [
+                    {"value": c.value, "worst_ratio": json_number(c.worst_ratio),
+                     "energy": json_number(c.energy), "within_limit": c.within_limit}
+                    for c in result.damping_candidates],
+                "textbook_corner": {
+                    "resistor": json_number(result.resistor.textbook_bound),
+                    "capacitor": None if result.capacitor is None else
+                    json_number(result.capacitor.textbook_bound)},
+            },
+        },
         "ratings": {
             "derating": ratings.derating,
             "worst_stage_voltage": json_number(ratings.worst_stage_voltage),
@@ -229,6 +283,11 @@ def sizing_to_dict(result: "SizingResult", *,
             "stage_energy": json_number(ratings.stage_energy),
             "total_energy": json_number(ratings.total_energy),
             "discharge_time": json_number(ratings.discharge_time),
+            "damping_pulse_voltage": None if damping is None else
+            json_number(damping.pulse_voltage),
+            "damping_energy_per_turn_off": None if damping is None else
+            json_number(damping.energy_per_turn_off),
+            "damping_power": None if damping is None else json_number(damping.power),
         },
         "advisories": sentences(result.advisories, spell=spell),
         "advisory_codes": codes(result.advisories),

@@ -435,10 +435,40 @@ def render_sizing_summary(result: "SizingResult", console: Console) -> None:
     render_check_summary(result.check, console)
 
 
+def render_no_proposal(findings, console: Console, *, quiet: bool = False,
+                       spell: Callable[[Setting], str] = str) -> None:
+    """``size`` when no network meets every limit and check: which cannot be met and what came
+    closest (``studies.size.NoProposal``'s findings); one line with ``quiet``."""
+    said = sentences(findings, spell=spell)
+    if quiet:
+        console.print("no proposal: " + "; ".join(said), highlight=False)
+        return
+    console.print(Panel(Text.assemble(
+        ("NO PROPOSAL", "bold red"), "\n",
+        "no grading network meets every limit of [sizing] and passes its own checks:"),
+        title="stringcheck size", title_align="left"))
+    for line in said:
+        console.print(Text(f"  - {line}"), highlight=False)
+
+
+def _confirmation_line(item: str, choice, unit: str) -> str | None:
+    """How the independent sample judged a proposed value (and the stepped one, where it failed)."""
+    if not choice.confirmations:
+        return None
+    runs = []
+    for run in choice.confirmations:
+        how = "rare-event estimate" if run.rare else f"{run.failures:,} failures in {run.trials:,}"
+        runs.append(f"{format_quantity(run.value, unit)}: P(fail) <= {run.p_fail_upper:.3g} "
+                    f"({how}), {'passes' if run.passed else 'fails'}")
+    seed = choice.confirmations[0].seed
+    return f"  {item} on an independent sample (seed {seed}): " + "; then ".join(runs)
+
+
 def render_sizing(result: "SizingResult", console: Console, *,
                   spell: Callable[[Setting], str] = str) -> None:
-    """Print the proposed grading network, the evidence for each value, ratings and cautions (a
-    setting the advisories name spelled by ``spell``, ``report.wording.sentence``)."""
+    """Print the proposed grading network, the limit that bound each value, its confirmation on an
+    independent sample, ratings and cautions (a setting the advisories name spelled by ``spell``,
+    ``report.wording.sentence``)."""
     design = result.design
     ratings = result.ratings
     console.print(Panel(Text.assemble(
@@ -449,36 +479,35 @@ def render_sizing(result: "SizingResult", console: Console, *,
         f"confidence, {result.check.trials:,} strings drawn (seed {result.check.seed}), the same "
         "strings for every candidate value"), title="stringcheck size", title_align="left"))
     table = Table(title="Proposal", title_justify="left")
-    for column in ("item", "value", "why", "next value, rejected"):
+    for column in ("item", "value", "limited by", "next value, rejected"):
         table.add_column(column)
     r = result.resistor
-    table.add_row(
-        f"grading resistor ({r.series})", format_quantity(r.chosen.value, "ohm"),
-        f"largest value with P(fail) <= {r.chosen.p_fail_upper:.3g} "
-        f"({r.chosen.failures} failures)",
-        _rejected(r.rejected_neighbour, "ohm", "larger"))
+    table.add_row(f"grading resistor ({r.series})", format_quantity(r.chosen.value, "ohm"),
+                  sentence(r.bound, spell=spell) if r.bound else "",
+                  _rejected(r.rejected_neighbour, "ohm"))
     if result.capacitor is not None:
         c = result.capacitor
-        final = result.design.grading.capacitor
-        why = (f"smallest value with P(fail) <= {c.chosen.p_fail_upper:.3g} "
-               f"({c.chosen.failures} failures)")
-        if final != c.chosen.value:
-            why = (f"raised from {format_quantity(c.chosen.value, 'F')} (charge balance: {why}) "
-                   "for the time-domain turn-off")
-        table.add_row(f"grading capacitor ({c.series})", format_quantity(final, "F"), why,
-                      _rejected(c.rejected_neighbour, "F", "smaller"))
+        table.add_row(f"grading capacitor ({c.series})",
+                      format_quantity(result.design.grading.capacitor, "F"),
+                      sentence(c.bound, spell=spell) if c.bound else "",
+                      _rejected(c.rejected_neighbour, "F"))
     table.add_row("damping resistor", format_quantity(result.damping_resistor, "ohm")
-                  if result.damping_resistor else "-", "see the rule below", "")
+                  if result.damping_resistor else "-", sentence(result.damping_rule, spell=spell),
+                  "")
     if result.series_searched:
         table.add_row("devices in series", str(result.series_count),
                       "smallest count that passes every check with this network", "")
     console.print(table)
-    console.print(f"  damping resistor: {result.damping_rule}")
+    for line in (_confirmation_line("R", r, "ohm"),
+                 None if result.capacitor is None else
+                 _confirmation_line("C", result.capacitor, "F")):
+        if line:
+            console.print(line, highlight=False)
     if result.damping_candidates:
         console.print("  damping resistors tried in the time domain: " + "; ".join(
             f"{format_quantity(c.value, 'ohm')} peak/limit {c.worst_ratio:.3f} "
             f"{format_quantity(c.energy, 'J')}{'' if c.within_limit else ' (over)'}"
-            for c in result.damping_candidates))
+            for c in result.damping_candidates), highlight=False)
     if r.textbook_bound is not None:
         console.print(f"  textbook worst-case corner: R <= {format_quantity(r.textbook_bound, 'ohm')}"
                       + (f", C >= {format_quantity(result.capacitor.textbook_bound, 'F')}"
@@ -509,6 +538,15 @@ def render_sizing(result: "SizingResult", console: Console, *,
              f"{format_quantity(ratings.damping_loss_total, 'W')}"),
             ("energy per capacitor at worst stage voltage", format_quantity(ratings.stage_energy, "J")),
         ]
+    damping = result.damping
+    if damping is not None and damping.value is not None:
+        rows += [
+            ("damping resistor pulse voltage I_RM x R_d", _figure(damping.pulse_voltage, "V")),
+            ("damping resistor energy per turn-off" + (" (simulated)" if damping.time_domain
+                                                       else " (C V^2 / 2)"),
+             _figure(damping.energy_per_turn_off, "J")),
+            ("damping resistor power at the duty frequency", _figure(damping.power, "W")),
+        ]
     rows += [
         ("energy stored in the stack at nominal share", format_quantity(ratings.total_energy, "J")),
         (f"time to fall below {SAFE_VOLTAGE:g} V",
@@ -529,13 +567,17 @@ def render_sizing(result: "SizingResult", console: Console, *,
     render_check(result.check, console, spell=spell)
 
 
+def _figure(value: float, unit: str) -> str:
+    return "-" if value is None or not math.isfinite(value) else format_quantity(value, unit)
+
+
 def _worst_from(check: str) -> str:
     """Which check found the worst stage voltage (the worst of all that ran), for a row label."""
     return f"of every check that ran: {check}" if check else "no voltage check ran"
 
 
-def _rejected(candidate, unit: str, direction: str) -> str:
+def _rejected(candidate, unit: str) -> str:
     if candidate is None:
-        return f"none ({direction} end of the searched range)"
+        return "-"
     return (f"{format_quantity(candidate.value, unit)}: P(fail) up to {candidate.p_fail_upper:.3g} "
-            f"({candidate.failures} failures), over the target")
+            f"({candidate.failures} failures)" + ("" if candidate.passed else ", over the target"))

@@ -73,8 +73,83 @@ TEMPLATES: dict[str, str] = {
         "earthing stick",
     # studies.size: what sizing changed or could not settle
     "size.capacitor_raised":
-        "capacitor raised from {previous} to {raised}: no damping resistor kept the "
-        "simulated turn-off within the limit",
+        "C raised from {previous} to {raised} for the time-domain turn-off: no damping resistor "
+        "kept the simulated peak within the limit at the smaller value",
+    "size.transient_not_run":
+        "damping resistor not confirmed in the time domain: {reason}",
+    # studies.size: the limit that bound each proposed value
+    "size.bound.p_fail":
+        "{item:item} limited by P(fail) ({check:check}): {value} gives P(fail) <= "
+        "{p_fail_upper:.3g} ({failures} failures), the next preferred value {next} gives "
+        "{next_p_fail_upper:.3g}, over the target {limit:g}",
+    "size.bound.grading_current":
+        "{item:item} limited by grading current >= {multiple:g} x max leakage: (V_s / n) / "
+        "({multiple:g} x {leakage}) = {limit} at {stage_voltage} per stage",
+    "size.bound.discharge":
+        "{item:item} limited by discharge below 60 V within {limit}: R <= {resistance} with "
+        "{stage_capacitance} per stage and {load_capacitance} across the stack of {series} "
+        "({time} at the proposed value)",
+    "size.bound.resistor_max":
+        "{item:item} limited by the largest realisable value ([sizing] resistor_max, {limit})",
+    "size.bound.resistor_min":
+        "{item:item} limited by the smallest realisable value ([sizing] resistor_min, {limit})",
+    "size.bound.capacitor_max":
+        "{item:item} limited by the largest realisable value ([sizing] capacitor_max, {limit})",
+    "size.bound.capacitor_min":
+        "{item:item} limited by the smallest realisable value ([sizing] capacitor_min, {limit})",
+    "size.bound.stage_capacitance":
+        "{item:item} limited by C >= {multiple:g} x (C_j + stray) = {multiple:g} x ({junction} + "
+        "{stray}) = {limit}",
+    "size.bound.confirmation":
+        "{item:item} limited by the confirmation on an independent sample (seed {seed}): {first} "
+        "gave P(fail) <= {first_p_fail_upper:.3g} ({first_failures} failures) against {limit:g} "
+        "({check:check}); one step further, {value} gives {p_fail_upper:.3g} ({failures} "
+        "failures)",
+    "size.bound.critical_damping":
+        "R_d limited by critical damping of the commutation loop: 2 sqrt(L / (n C)) = {critical} "
+        "with L = {inductance} ({inductance_source:inductance_source}), n = {series}, C = "
+        "{capacitor}; rounded up to E12: {value}",
+    "size.bound.recovery_step":
+        "R_d limited by the step I_RM x R_d = {peak_current} x {value} = {step} within the "
+        "stage's margin of {limit} (critical damping would ask {critical})",
+    "size.bound.time_domain":
+        "R_d chosen in the time domain: {value} keeps the worst simulated peak at {ratio:.3f} x "
+        "the limit, the lowest of the values tried from {low} to {high} (critical damping "
+        "{critical}, recovery-step limit {step_limit}, rule {rule})",
+    "size.damping.no_capacitor":
+        "no grading capacitor: no damping resistor needed",
+    "size.damping.kept":
+        "R_d kept at the design's {value} (no stray inductance or di/dt to size it)",
+    "size.damping.not_sized":
+        "R_d not sized: give duty.stray_inductance or duty.di_dt (the commutation loop)",
+    # studies.size: no proposal (what cannot be met, and what came closest)
+    "size.unmet.range":
+        "no {item:item} meets every limit: the lower limit ({low_code:limit_name}) {low} is above "
+        "the upper limit ({high_code:limit_name}) {high}",
+    "size.unmet.p_fail":
+        "no {item:item} from {low} to {high} meets the target on the {check:check} check: the "
+        "closest, {value}, gives P(fail) <= {p_fail_upper:.3g} ({failures} failures) against "
+        "{limit:g}",
+    "size.unmet.confirmation":
+        "{item:item} {first} fails its confirmation on an independent sample (seed {seed}, "
+        "{check:check}) even one step further: the closest, {value}, gives P(fail) <= "
+        "{p_fail_upper:.3g} ({failures} failures) against {limit:g}",
+    "size.unmet.transient":
+        "no damping resistor from {low} to {high} keeps the simulated turn-off within the limit, "
+        "even with C raised to {capacitor}: the closest, {value}, peaks at {ratio:.3f} x the "
+        "limit",
+    "size.unmet.damping_margin":
+        "no damping resistor fits: the nominal share {share} leaves no margin below the limit "
+        "{limit_voltage} for the step I_RM x R_d",
+    "size.unmet.check":
+        "the sized network (R {resistor}, C {capacitor}, R_d {damping_resistor}) fails the "
+        "{check:check} check of the final run: P(fail) <= {p_fail_upper:.3g} against {limit:g}, "
+        "worst stage at {ratio:.3f} x the limit",
+    "size.unmet.verdict":
+        "the sized network (R {resistor}, C {capacitor}, R_d {damping_resistor}) does not pass "
+        "the final check (verdict {verdict})",
+    "size.unmet.series":
+        "no device count from {first} to {last} passes with this network",
     "size.damping_slower_than_recovery":
         "R_d C = {time_constant} is longer than the shortest typical t_rr ({limit}): "
         "the capacitor may not take the charge in time; `{option:transient}` checks it in the "
@@ -333,6 +408,22 @@ _WORDED = {
     "regions": lambda count: f" of each of {count} failure regions" if count > 1 else "",
     "images": lambda count: (f" and {count} image(s) under the exchangeable positions"
                              if count > 0 else ""),
+    "item": lambda item: _ITEMS.get(item, item),
+    "limit_name": lambda code: _LIMIT_NAMES.get(code, code),
+    "inductance_source": lambda source: (
+        "duty.stray_inductance" if source == "duty.stray_inductance" else "V_s / (di/dt)"),
+}
+
+# How ``size`` names the values it proposes and the limits that bound them.
+_ITEMS = {"resistor": "R", "capacitor": "C", "damping_resistor": "R_d"}
+_LIMIT_NAMES = {
+    "size.bound.grading_current": "grading current >= k x max leakage",
+    "size.bound.discharge": "discharge below 60 V in time",
+    "size.bound.resistor_max": "[sizing] resistor_max",
+    "size.bound.resistor_min": "[sizing] resistor_min",
+    "size.bound.capacitor_max": "[sizing] capacitor_max",
+    "size.bound.capacitor_min": "[sizing] capacitor_min",
+    "size.bound.stage_capacitance": "C >= m x (C_j + stray)",
 }
 
 

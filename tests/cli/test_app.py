@@ -402,7 +402,8 @@ def test_size_json_has_the_grading_keys_of_design_md(sized):
 def test_size_series_options_change_the_series_used(demo_file, tmp_path):
     target = tmp_path / "e24.json"
     result = invoke("size", str(demo_file), "--trials", PASSING_TRIALS, "--resistor-series", "E24",
-                    "--capacitor-series", "E6", "--json", str(target), "--quiet")
+                    "--capacitor-series", "E6", "--json", str(target), "--quiet",
+                    "--no-transient")
     assert result.exit_code == 0, result.output
     grading = json.loads(target.read_text(encoding="utf-8"))["grading"]
     assert grading["series_used"] == {"resistor": "E24", "capacitor": "E6"}

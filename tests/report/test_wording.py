@@ -114,10 +114,11 @@ TODAY = [
              Value(0.1)),
      "5 lets more than one built stack in ten fail; targets are usually 1e-3 to 1e-6 (was a "
      "percentage meant? 5 % is 0.05)"),
+    # The sentence of size.capacitor_raised now gives the values with their prefixes (issue 18).
     (Finding("size.capacitor_raised", {"previous": Value(4.7e-10, "F"),
                                        "raised": Value(6.8e-10, "F")}),
-     "capacitor raised from 470 pF to 680 pF: no damping resistor kept the simulated "
-     "turn-off within the limit"),
+     "C raised from 470 pF to 680 pF for the time-domain turn-off: no damping resistor kept the "
+     "simulated peak within the limit at the smaller value"),
     # design/schema.py, design/reading.py, design/parts.py, design/lots.py: the assumptions made
     # on the user's behalf, as the f-strings there wrote them
     (Finding("assumed.waveform_dc", {"key": Value("duty.waveform")}),
@@ -389,6 +390,59 @@ TODAY = [
      "the importance-sampling upper bound 1.2e-07 lies below the plain Monte Carlo lower bound "
      "0.00025 (12 of 20,000): the estimators disagree, so the plain interval decides"),
 ]
+# studies/size.py: the limit that bound each proposed value, and why there is no proposal
+# (issue 18); sentences written for these findings, checked by hand against the figures.
+SIZING = [
+    (Finding("size.transient_not_run", {"reason": Value("give duty.stray_inductance or duty.di_dt (the commutation loop)")}),
+     'damping resistor not confirmed in the time domain: give duty.stray_inductance or duty.di_dt (the commutation loop)'),
+    (Finding("size.bound.p_fail", {"item": Value("resistor"), "check": Value("static"), "value": Value(4.7e6, "ohm"), "p_fail_upper": Value(0.00091), "failures": Value(9), "next": Value(5.6e6, "ohm"), "next_p_fail_upper": Value(0.0013)}, Value(1e-3)),
+     'R limited by P(fail) (static blocking): 4.7 MOhm gives P(fail) <= 0.00091 (9 failures), the next preferred value 5.6 MOhm gives 0.0013, over the target 0.001'),
+    (Finding("size.bound.grading_current", {"item": Value("resistor"), "multiple": Value(5.0), "leakage": Value(22.6e-6, "A"), "stage_voltage": Value(1250.0, "V"), "current": Value(113e-6, "A")}, Value(11.06e6, "ohm")),
+     'R limited by grading current >= 5 x max leakage: (V_s / n) / (5 x 22.6 uA) = 11.1 MOhm at 1.25 kV per stage'),
+    (Finding("size.bound.discharge", {"item": Value("resistor"), "stage_capacitance": Value(165e-12, "F"), "load_capacitance": Value(10e-9, "F"), "series": Value(24), "time": Value(4.6, "s"), "resistance": Value(3.3e6, "ohm")}, Value(5.0, "s")),
+     'R limited by discharge below 60 V within 5 s: R <= 3.3 MOhm with 165 pF per stage and 10 nF across the stack of 24 (4.6 s at the proposed value)'),
+    (Finding("size.bound.resistor_max", {"item": Value("resistor")}, Value(1e9, "ohm")),
+     'R limited by the largest realisable value ([sizing] resistor_max, 1 GOhm)'),
+    (Finding("size.bound.resistor_min", {"item": Value("resistor")}, Value(1e3, "ohm")),
+     'R limited by the smallest realisable value ([sizing] resistor_min, 1 kOhm)'),
+    (Finding("size.bound.capacitor_max", {"item": Value("capacitor")}, Value(1e-5, "F")),
+     'C limited by the largest realisable value ([sizing] capacitor_max, 10 uF)'),
+    (Finding("size.bound.capacitor_min", {"item": Value("capacitor")}, Value(1e-12, "F")),
+     'C limited by the smallest realisable value ([sizing] capacitor_min, 1 pF)'),
+    (Finding("size.bound.stage_capacitance", {"item": Value("capacitor"), "multiple": Value(10.0), "junction": Value(15e-12, "F"), "stray": Value(2e-12, "F")}, Value(170e-12, "F")),
+     'C limited by C >= 10 x (C_j + stray) = 10 x (15 pF + 2 pF) = 170 pF'),
+    (Finding("size.bound.confirmation", {"item": Value("capacitor"), "check": Value("dynamic"), "first": Value(150e-12, "F"), "first_p_fail_upper": Value(0.0012), "first_failures": Value(12), "value": Value(180e-12, "F"), "p_fail_upper": Value(0.0004), "failures": Value(2), "seed": Value(17)}, Value(1e-3)),
+     'C limited by the confirmation on an independent sample (seed 17): 150 pF gave P(fail) <= 0.0012 (12 failures) against 0.001 (charge-balance turn-off); one step further, 180 pF gives 0.0004 (2 failures)'),
+    (Finding("size.bound.critical_damping", {"value": Value(1800.0, "ohm"), "critical": Value(1783.0, "ohm"), "inductance": Value(3e-3, "H"), "inductance_source": Value("di_dt"), "series": Value(24), "capacitor": Value(150e-12, "F")}),
+     'R_d limited by critical damping of the commutation loop: 2 sqrt(L / (n C)) = 1.78 kOhm with L = 3 mH (V_s / (di/dt)), n = 24, C = 150 pF; rounded up to E12: 1.8 kOhm'),
+    (Finding("size.bound.recovery_step", {"value": Value(180.0, "ohm"), "peak_current": Value(1.73, "A"), "step": Value(311.4, "V"), "critical": Value(1826.0, "ohm"), "inductance": Value(3e-3, "H"), "inductance_source": Value("di_dt"), "series": Value(24), "capacitor": Value(150e-12, "F")}, Value(350.0, "V")),
+     "R_d limited by the step I_RM x R_d = 1.73 A x 180 Ohm = 311 V within the stage's margin of 350 V (critical damping would ask 1.83 kOhm)"),
+    (Finding("size.bound.time_domain", {"value": Value(1000.0, "ohm"), "ratio": Value(0.993), "low": Value(4.7, "ohm"), "high": Value(2200.0, "ohm"), "critical": Value(781.0, "ohm"), "step_limit": Value(202.0, "ohm"), "rule": Value(180.0, "ohm")}),
+     'R_d chosen in the time domain: 1 kOhm keeps the worst simulated peak at 0.993 x the limit, the lowest of the values tried from 4.7 Ohm to 2.2 kOhm (critical damping 781 Ohm, recovery-step limit 202 Ohm, rule 180 Ohm)'),
+    (Finding("size.damping.no_capacitor"),
+     'no grading capacitor: no damping resistor needed'),
+    (Finding("size.damping.kept", {"value": Value(1200.0, "ohm")}),
+     "R_d kept at the design's 1.2 kOhm (no stray inductance or di/dt to size it)"),
+    (Finding("size.damping.not_sized"),
+     'R_d not sized: give duty.stray_inductance or duty.di_dt (the commutation loop)'),
+    (Finding("size.unmet.range", {"item": Value("resistor"), "low_code": Value("size.bound.resistor_min"), "high_code": Value("size.bound.grading_current"), "low": Value(1e3, "ohm"), "high": Value(93.75, "ohm")}),
+     'no R meets every limit: the lower limit ([sizing] resistor_min) 1 kOhm is above the upper limit (grading current >= k x max leakage) 93.8 Ohm'),
+    (Finding("size.unmet.p_fail", {"item": Value("capacitor"), "check": Value("dynamic"), "value": Value(1e-9, "F"), "p_fail_upper": Value(1.0), "failures": Value(4000), "low": Value(1e-12, "F"), "high": Value(1e-9, "F")}, Value(1e-3)),
+     'no C from 1 pF to 1 nF meets the target on the charge-balance turn-off check: the closest, 1 nF, gives P(fail) <= 1 (4000 failures) against 0.001'),
+    (Finding("size.unmet.confirmation", {"item": Value("resistor"), "check": Value("static"), "value": Value(4.64e6, "ohm"), "first": Value(4.75e6, "ohm"), "p_fail_upper": Value(0.0011), "failures": Value(11), "seed": Value(17)}, Value(1e-3)),
+     'R 4.75 MOhm fails its confirmation on an independent sample (seed 17, static blocking) even one step further: the closest, 4.64 MOhm, gives P(fail) <= 0.0011 (11 failures) against 0.001'),
+    (Finding("size.unmet.transient", {"low": Value(4.7, "ohm"), "high": Value(2200.0, "ohm"), "capacitor": Value(2.2e-9, "F"), "value": Value(470.0, "ohm"), "ratio": Value(1.116)}),
+     'no damping resistor from 4.7 Ohm to 2.2 kOhm keeps the simulated turn-off within the limit, even with C raised to 2.2 nF: the closest, 470 Ohm, peaks at 1.116 x the limit'),
+    (Finding("size.unmet.damping_margin", {"limit_voltage": Value(1600.0, "V"), "share": Value(1650.0, "V")}),
+     'no damping resistor fits: the nominal share 1.65 kV leaves no margin below the limit 1.6 kV for the step I_RM x R_d'),
+    (Finding("size.unmet.check", {"check": Value("thermal"), "p_fail_upper": Value(0.02), "ratio": Value(1.3), "resistor": Value(4.7e6, "ohm"), "capacitor": Value(2.2e-9, "F"), "damping_resistor": Value(100.0, "ohm")}, Value(1e-3)),
+     'the sized network (R 4.7 MOhm, C 2.2 nF, R_d 100 Ohm) fails the thermal check of the final run: P(fail) <= 0.02 against 0.001, worst stage at 1.300 x the limit'),
+    (Finding("size.unmet.verdict", {"verdict": Value("fail"), "resistor": Value(4.7e6, "ohm"), "capacitor": Value(2.2e-9, "F"), "damping_resistor": Value(100.0, "ohm")}),
+     'the sized network (R 4.7 MOhm, C 2.2 nF, R_d 100 Ohm) does not pass the final check (verdict fail)'),
+    (Finding("size.unmet.series", {"first": Value(8), "last": Value(32)}),
+     'no device count from 8 to 32 passes with this network'),
+]
+
 # The command line's wording of the one code that names a setting (the JSON of `size` has it).
 SIZE_DAMPING = (Finding("size.damping_slower_than_recovery", {"time_constant": Value(3.3e-7, "s")},
                         Value(1.5e-7, "s")),
@@ -397,7 +451,8 @@ SIZE_DAMPING = (Finding("size.damping_slower_than_recovery", {"time_constant": V
                 "domain")
 
 
-@pytest.mark.parametrize("finding, text", TODAY, ids=[f.code for f, _ in TODAY])
+@pytest.mark.parametrize("finding, text", TODAY + SIZING,
+                         ids=[f.code for f, _ in TODAY + SIZING])
 def test_each_code_reads_as_it_did(finding, text):
     assert sentence(finding) == text
     assert sentence(finding, spell=option_wording) == text  # names no setting
@@ -411,7 +466,7 @@ def test_a_setting_in_a_sentence_is_spelled_by_whoever_shows_it():
 
 
 def test_every_code_has_a_sentence_and_is_tested():
-    tested = {finding.code for finding, _ in TODAY} | {SIZE_DAMPING[0].code}
+    tested = {finding.code for finding, _ in TODAY + SIZING} | {SIZE_DAMPING[0].code}
     assert tested == set(TEMPLATES)
     with pytest.raises(KeyError):
         sentence(Finding("no.such_code"))
@@ -562,3 +617,15 @@ def test_an_error_that_holds_a_finding_is_worded_by_the_command_line():
                              Finding("recovery_data.no_charge", {"part": Value("A")}))
     assert str(error) == "demo.toml: cannot simulate the turn-off: recovery_data.no_charge"
     assert one_line(error) == "demo.toml: cannot simulate the turn-off: parts.A gives no q_rr"
+
+
+def test_the_sizing_study_writes_no_sentences():
+    # studies/size.py (issue 16, issue 18): what it found are findings; the only text left is the
+    # progress labels handed to `say` (the spinner's step names) and the messages of raised errors.
+    tree = ast.parse((PACKAGE / "studies" / "size.py").read_text(encoding="utf-8"))
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Call) and getattr(node.func, "id", None) == "say":
+            node.args = []
+    # _over_cap builds the DesignError it returns to be raised (an error message, file and key).
+    tree.body = [node for node in tree.body if getattr(node, "name", "") != "_over_cap"]
+    assert not _sentence_constants(tree)

@@ -45,7 +45,8 @@ RATING_KEYS = {"derating", "worst_stage_voltage", "worst_stage_voltage_check",
                "resistor_voltage_required", "resistor_power_continuous", "resistor_power_duty",
                "resistor_power_required", "grading_loss_total", "capacitor_voltage_required",
                "damping_loss_per_stage", "damping_loss_total", "stage_energy", "total_energy",
-               "discharge_time"}
+               "discharge_time", "damping_pulse_voltage", "damping_energy_per_turn_off",
+               "damping_power"}
 
 
 @pytest.fixture(scope="module")
