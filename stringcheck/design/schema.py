@@ -43,7 +43,7 @@ SCHEMA_KEYS = {
     "monte_carlo": ("trials", "seed", "confidence", "sigma_at_limit", "screened", "lot_share",
                     "correlation"),
     "sizing": ("target_p_fail", "target_share", "resistor_series", "capacitor_series"),
-    "review": ("tolerance",),
+    "review": ("tolerance", "stress_tolerance"),
 }
 TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
               "review")
