@@ -528,7 +528,7 @@ def _position_figures(entry, labels: np.ndarray) -> tuple[str, float, float, flo
 # branch with a higher threshold or slope resistance takes less of the group's current
 # (docs/methods/parallel.md); a device with more loss or a higher thermal resistance
 # runs hotter.
-_INPUT_SIGNS: dict[str, dict[str, tuple[int, int]]] = {
+INPUT_SIGNS: dict[str, dict[str, tuple[int, int]]] = {
     "static": {"i_r": (-1, 1), "v_rrm": (-1, 0)},
     "dynamic": {"q_rr": (-1, 1), "c_j": (-1, 1), "v_rrm": (-1, 0)},
     "transient": {"q_rr": (-1, 1), "c_j": (-1, 1), "v_rrm": (-1, 0)},
@@ -619,7 +619,7 @@ def _mechanism(check: str, delta: PositionDelta, direction: int,
     (nothing to share against) or no typical value explains it, a wider or narrower spread that
     does (``review.scatter.wider`` / ``.narrower``); otherwise ``review.input_changed`` names
     the input without a cause, or ``review.no_input_changed``."""
-    signs = _INPUT_SIGNS.get(check, {})
+    signs = INPUT_SIGNS.get(check, {})
     if delta.index:
         own_pair = subs.get((delta.branch, delta.index))
     else:  # a branch of the parallel check: a substitute anywhere in it is its own
