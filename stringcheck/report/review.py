@@ -8,6 +8,7 @@ import math
 from typing import Any
 
 from rich.console import Console
+from rich.padding import Padding
 from rich.panel import Panel
 from rich.table import Table
 from rich.text import Text
@@ -153,19 +154,18 @@ def render_review(result: ReviewResult, console: Console) -> None:
     for label, findings in (("What decides:", decisive), ("Reported, not decisive:", noted)):
         if findings:
             console.print(Text(label, style="bold"))
-            for finding in findings:
-                console.print(f"  - {shown(sentence(finding))}", highlight=False)
+            _bullets(console, [("-", sentence(finding)) for finding in findings])
     if result.flags:
         console.print(Text("The substitute parts, whatever the Monte Carlo says:", style="bold"))
-        for finding in result.flags:
-            console.print(f"  ! {shown(sentence(finding))}", highlight=False)
+        _bullets(console, [("!", sentence(finding)) for finding in result.flags])
     _render_positions(result, console)
     _render_warnings(result, console)
     if result.reasons:
         console.print(Text("Why, in physical terms:", style="bold"))
-        for finding in result.reasons:
-            lead = "  - " if finding.code.startswith("review.position_") else "      "
-            console.print(f"{lead}{shown(sentence(finding))}", highlight=False)
+        # A position's change, then, indented under it, the input that explains it.
+        _bullets(console, [("-", sentence(finding)) if finding.code.startswith(
+            "review.position_") or finding.code == "review.same_parts" else
+            ("", sentence(finding)) for finding in result.reasons])
     for label, checked in (("baseline", base), ("candidate", cand)):
         for name, check in checked.checks.items():
             rare = check.rare if check.ran else None
@@ -184,6 +184,17 @@ def render_review(result: ReviewResult, console: Console) -> None:
                                discharge_time=grading.discharge_time)
     console.print(Panel("\n".join(f"! {line}" for line in cautions), title="High-voltage cautions",
                         title_align="left", border_style="red"))
+
+
+def _bullets(console: Console, lines: list[tuple[str, str]]) -> None:
+    """Marked lines, each wrapped under its own text (a hanging indent)."""
+    grid = Table.grid(padding=(0, 1), pad_edge=False)
+    grid.add_column(width=3, justify="right")
+    grid.add_column(overflow="fold")
+    for mark, text in lines:
+        # A line without a mark explains the one above it: indented further.
+        grid.add_row(mark, Padding(Text(shown(text)), (0, 0, 0, 0 if mark else 2)))
+    console.print(grid)
 
 
 def _pair(before: float | None, after: float | None) -> str:
@@ -206,10 +217,13 @@ def _render_positions(result: ReviewResult, console: Console) -> None:
     for column in ("check", "position", "part", "mean", "worst", "change"):
         table.add_column(column, justify="left" if column in ("check", "position", "part")
                          else "right")
+    more = []
     for name in dict.fromkeys(d.check for d in changed):
         rows = sorted((d for d in changed if d.check == name),
                       key=lambda d: -abs(d.worst_ratio_change)
                       if math.isfinite(d.worst_ratio_change) else -math.inf)
+        if len(rows) > POSITION_ROWS:
+            more.append(f"{len(rows) - POSITION_ROWS} {name}")
         for d in rows[:POSITION_ROWS]:
             where = f"branch {d.branch}" + (f" #{d.index}" if d.index else "")
             part = shown(d.baseline_part) if d.baseline_part == d.candidate_part else \
@@ -220,10 +234,10 @@ def _render_positions(result: ReviewResult, console: Console) -> None:
                           _pair(d.baseline_worst / d.baseline_limit,
                                 d.candidate_worst / d.candidate_limit),
                           f"{d.worst_ratio_change:+.3f}")
-        if len(rows) > POSITION_ROWS:
-            table.add_row(name, f"({len(rows) - POSITION_ROWS} more in the JSON and CSV)", "",
-                          "", "", "")
     console.print(table)
+    if more:
+        console.print(Text(f"(and {', '.join(more)} positions more in the JSON and the CSV)",
+                           style="italic"))
 
 
 def _render_warnings(result: ReviewResult, console: Console) -> None:

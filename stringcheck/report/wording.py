@@ -193,8 +193,9 @@ _WORDED.update({
     "statistic": lambda name: {"worst": "worst", "p99": "99th-percentile"}.get(name, name),
     "input": lambda name: _INPUT_WORDS.get(name, name),
     "class": lambda name: f"class {name!r}" if name else "no class",
+    "arrow": lambda name: f" -> {name}" if name else ", unchanged",
 })
-_WHERE = "branch {branch} #{index} ({baseline_part} -> {candidate_part})"
+_WHERE = "branch {branch} #{index} ({baseline_part}{new_part:arrow})"
 _TYP = "(typ {candidate} vs {baseline})"
 TEMPLATES.update({
     # what makes a check of the candidate unacceptable, or is only reported

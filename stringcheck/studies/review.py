@@ -596,6 +596,9 @@ def _reasons(base: CheckResult, cand: CheckResult,
                 "check": Value(name), "branch": Value(delta.branch), "index": Value(delta.index),
                 "baseline_part": Value(delta.baseline_part),
                 "candidate_part": Value(delta.candidate_part),
+                # The new part, "" where the position kept its part.
+                "new_part": Value("" if delta.candidate_part == delta.baseline_part
+                                  else delta.candidate_part),
                 "baseline": Value(delta.baseline_worst / delta.baseline_limit),
                 "candidate": Value(delta.candidate_worst / delta.candidate_limit),
                 "baseline_worst": Value(delta.baseline_worst, delta.unit),
