@@ -237,8 +237,11 @@ def review(baseline: Design | str | os.PathLike[str],
     Returns
     -------
     ReviewResult
-        ``verdict`` ("accept" or "reject"), both designs' results, the change of each check's
-        P(fail) bound and the positions that got worse.
+        ``verdict`` ("accept" or "reject"), both designs' results, each check's change (p99 and
+        worst stress ratio, P(fail) bound, and the findings that decide it), the per-position
+        change, the reasons and the flags of the substitute parts (findings: word them with
+        ``stringcheck.report.wording.sentence``). The candidate is judged by the baseline's
+        ``[review] stress_tolerance`` and ``tolerance`` (a fraction of ``target_p_fail``).
 
     Raises
     ------

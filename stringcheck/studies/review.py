@@ -321,7 +321,8 @@ def review(baseline: Design, candidate: Design, *, trials: int | None = None,
            rare: bool | None = False, drivers: bool = False, progress=None) -> ReviewResult:
     """Check both designs on common random numbers and compare them (``progress`` is called with
     (trials done, trials in all) over both checks: one bar from 0 to twice the trials).
-    ``rare`` and ``drivers`` are :func:`run_check`'s, for both designs."""
+    ``rare`` and ``drivers`` are :func:`run_check`'s, for both designs; the judgement is
+    :func:`compare`'s under the baseline's ``[review]`` settings."""
     if (baseline.string.series, baseline.string.parallel) != \
             (candidate.string.series, candidate.string.parallel):
         raise StringcheckError(
