@@ -74,6 +74,8 @@ def review_to_dict(result: ReviewResult) -> dict[str, Any]:
             "reason_codes": codes(result.reasons),
             "flags": sentences(result.flags),
             "flag_codes": codes(result.flags),
+            "decided_by": sentences(result.decided_by),
+            "decided_by_codes": codes(result.decided_by),
         },
     }
 
@@ -149,7 +151,7 @@ def render_review(result: ReviewResult, console: Console) -> None:
                       f"{_bound(c.baseline_p_fail_upper, c.baseline_by)} -> "
                       f"{_bound(c.candidate_p_fail_upper, c.candidate_by)}", outcome)
     console.print(table)
-    decisive = [f for c in result.changes for f in c.decisive]
+    decisive = list(result.decided_by) + [f for c in result.changes for f in c.decisive]
     noted = [f for c in result.changes for f in c.noted]
     for label, findings in (("What decides:", decisive), ("Reported, not decisive:", noted)):
         if findings:

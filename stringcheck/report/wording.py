@@ -202,6 +202,10 @@ TEMPLATES.update({
     "review.check_fails":
         "{check:check}: the candidate fails the check on its own (P(fail) upper bound "
         "{p_fail_upper:.2g}, target {limit:g})",
+    "review.candidate_fails":
+        "the candidate fails its own check outside the compared figures (a grading rating "
+        "exceeded, a requested check that could not run, or a string no sharing can rescue): "
+        "its check report says which",
     "review.check_not_run":
         "{check:check}: ran for the baseline but not for the candidate, so the two cannot be "
         "compared",

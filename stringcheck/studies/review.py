@@ -153,6 +153,9 @@ class ReviewResult:
     stress_tolerance: float = 0.0
     positions: tuple[PositionDelta, ...] = ()
     flags: tuple[Finding, ...] = ()
+    # What rejects the candidate besides its checks' changes (``review.candidate_fails``: its
+    # own check result fails where no compared check says why).
+    decided_by: tuple[Finding, ...] = ()
 
 
 def _difference(candidate: float | None, baseline: float | None) -> float | None:
@@ -360,7 +363,11 @@ def compare(base: CheckResult, cand: CheckResult, settings: Review | None = None
     positions = position_deltas(base, cand)
     verdict = "accept" if cand.verdict == "pass" and all(c.acceptable for c in changes) \
         else "reject"
-    return ReviewResult(baseline=base, candidate=cand, changes=changes,
+    # A failing candidate whose compared checks all pass fails on something else: a rating of
+    # its grading network, a requested check that could not run, an impossible design.
+    decided_by = (Finding("review.candidate_fails"),) if cand.verdict != "pass" and not any(
+        f.code == "review.check_fails" for c in changes for f in c.decisive) else ()
+    return ReviewResult(baseline=base, candidate=cand, changes=changes, decided_by=decided_by,
                         worse_positions=_worse_positions(base, cand),
                         reasons=_reasons(base, cand, positions),
                         tolerance=settings.tolerance, verdict=verdict,

@@ -266,3 +266,14 @@ def test_bad_review_settings_are_one_line_and_exit_2(tmp_path, line, fragment):
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and fragment in lines[0] and "base.toml" in lines[0], lines
     assert "Traceback" not in done.output
+
+
+def test_a_candidate_failing_outside_the_compared_figures_says_so():
+    # A requested transient check that cannot run (no part gives i_rm or t_rr) fails both
+    # designs' own results; no compared check changed, and the review names why it rejects.
+    base = parse_design_text(BASE)
+    result = review(base, substituted(base, swap="1:SLOW"), transient=True)
+    assert result.candidate.verdict == "fail" and result.verdict == "reject"
+    assert all(c.acceptable for c in result.changes)
+    assert _codes(result.decided_by) == ["review.candidate_fails"]
+    assert review_to_dict(result)["changes"]["decided_by_codes"] == ["review.candidate_fails"]
