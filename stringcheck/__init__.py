@@ -96,7 +96,8 @@ def check(design: Design | str | os.PathLike[str], *, trials: int | None = None,
           rare_samples: int = 20_000, chunk_trials: int | None = None,
           only: tuple[str, ...] | None = None,
           progress: Callable[[int, int], None] | None = None,
-          pool: "WorkerPool | None" = None) -> "CheckResult":
+          pool: "WorkerPool | None" = None,
+          position_percentiles: bool = False) -> "CheckResult":
     """Check a string: static and dynamic voltage sharing, parallel current sharing, junction
     temperatures and runaway, optionally the time-domain turn-off (``stringcheck check``).
 
@@ -133,6 +134,9 @@ def check(design: Design | str | os.PathLike[str], *, trials: int | None = None,
     pool
         An open worker pool (``montecarlo.executor.worker_pool``) to run in instead of
         ``workers`` new processes, so that several calls share one.
+    position_percentiles
+        Also give each position of the static and dynamic checks its 99th-percentile voltage
+        (``positions[k].p99_voltage``, else None); it keeps the largest 1 % of the voltages.
 
     Returns
     -------
@@ -151,7 +155,7 @@ def check(design: Design | str | os.PathLike[str], *, trials: int | None = None,
                      transient=transient, transient_worst=transient_worst,
                      transient_sample=transient_sample, drivers=drivers, rare=rare,
                      rare_samples=rare_samples, chunk_trials=chunk_trials, only=only,
-                     progress=progress, pool=pool)
+                     progress=progress, pool=pool, position_percentiles=position_percentiles)
 
 
 def size(design: Design | str | os.PathLike[str], *, trials: int | None = None,

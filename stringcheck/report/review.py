@@ -65,6 +65,8 @@ def review_to_dict(result: ReviewResult) -> dict[str, Any]:
                  "candidate_limit": json_number(d.candidate_limit),
                  "baseline_mean": json_number(d.baseline_mean),
                  "candidate_mean": json_number(d.candidate_mean),
+                 "baseline_p99": json_number(d.baseline_p99),
+                 "candidate_p99": json_number(d.candidate_p99),
                  "baseline_worst": json_number(d.baseline_worst),
                  "candidate_worst": json_number(d.candidate_worst),
                  "mean_ratio_change": json_number(d.mean_ratio_change),
@@ -88,14 +90,16 @@ def review_positions_csv(result: ReviewResult) -> str:
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow(["check", "branch", "index", "baseline_part", "candidate_part", "unit",
                      "baseline_limit", "candidate_limit", "baseline_mean", "candidate_mean",
-                     "baseline_worst", "candidate_worst", "mean_ratio_change",
-                     "worst_ratio_change"])
+                     "baseline_p99", "candidate_p99", "baseline_worst", "candidate_worst",
+                     "mean_ratio_change", "worst_ratio_change"])
     for d in result.positions:
+        # A figure the check does not keep (a p99 but of the static and dynamic checks) is empty.
         writer.writerow([d.check, d.branch, d.index, d.baseline_part, d.candidate_part, d.unit]
-                        + [f"{value:.6g}" for value in (
+                        + [f"{value:.6g}" if math.isfinite(value) else "" for value in (
                             d.baseline_limit, d.candidate_limit, d.baseline_mean,
-                            d.candidate_mean, d.baseline_worst, d.candidate_worst,
-                            d.mean_ratio_change, d.worst_ratio_change)])
+                            d.candidate_mean, d.baseline_p99, d.candidate_p99,
+                            d.baseline_worst, d.candidate_worst, d.mean_ratio_change,
+                            d.worst_ratio_change)])
     return out.getvalue()
 
 
@@ -214,11 +218,12 @@ def _render_positions(result: ReviewResult, console: Console) -> None:
                                style="italic"))
         return
     console.print(Text("Per-position change, baseline -> candidate (stress / limit; largest "
-                       "change of the worst first):", style="italic"))
+                       "change of the worst first; position BRANCH#INDEX):", style="italic"))
     table = Table(show_edge=False, pad_edge=False)
-    for column in ("check", "position", "part", "mean", "worst", "change"):
+    for column in ("check", "position", "part", "mean", "p99", "worst"):
         table.add_column(column, justify="left" if column in ("check", "position", "part")
                          else "right")
+    branches = max(d.branch for d in changed)
     more = []
     for name in dict.fromkeys(d.check for d in changed):
         rows = sorted((d for d in changed if d.check == name),
@@ -227,15 +232,17 @@ def _render_positions(result: ReviewResult, console: Console) -> None:
         if len(rows) > POSITION_ROWS:
             more.append(f"{len(rows) - POSITION_ROWS} {name}")
         for d in rows[:POSITION_ROWS]:
-            where = f"branch {d.branch}" + (f" #{d.index}" if d.index else "")
+            where = (f"branch {d.branch}" if not d.index else
+                     f"#{d.index}" if branches == 1 else f"{d.branch}#{d.index}")
             part = shown(d.baseline_part) if d.baseline_part == d.candidate_part else \
                 f"{shown(d.baseline_part)} -> {shown(d.candidate_part)}"
             table.add_row(name, where, part,
                           _pair(d.baseline_mean / d.baseline_limit,
                                 d.candidate_mean / d.candidate_limit),
+                          _pair(d.baseline_p99 / d.baseline_limit,
+                                d.candidate_p99 / d.candidate_limit),
                           _pair(d.baseline_worst / d.baseline_limit,
-                                d.candidate_worst / d.candidate_limit),
-                          f"{d.worst_ratio_change:+.3f}")
+                                d.candidate_worst / d.candidate_limit))
     console.print(table)
     if more:
         console.print(Text(f"(and {', '.join(more)} positions more in the JSON and the CSV)",

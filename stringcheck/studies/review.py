@@ -108,7 +108,8 @@ class PositionChange:
 class PositionDelta:
     """One position (a branch, for the parallel check) of one check in both designs: the stress
     in ``unit`` ("V" for the stage-voltage checks, "A" per branch for the parallel check, "degC"
-    for the thermal check), its mean and its worst over the trials, and each side's limit.
+    for the thermal check), its mean, 99th percentile and worst over the trials, and each side's
+    limit.
     ``index`` is 0 for a branch of the parallel check."""
 
     check: str
@@ -123,6 +124,10 @@ class PositionDelta:
     candidate_mean: float
     baseline_worst: float
     candidate_worst: float
+    # The 99th percentile over the trials (NaN where the check keeps none: the static and dynamic
+    # checks keep it).
+    baseline_p99: float = math.nan
+    candidate_p99: float = math.nan
 
     @property
     def worst_ratio_change(self) -> float:
@@ -336,7 +341,7 @@ def review(baseline: Design, candidate: Design, *, trials: int | None = None,
     seed = baseline.monte_carlo.seed if seed is None else seed
     with worker_pool(workers) as pool:
         options = dict(trials=trials, seed=seed, pool=pool, transient=transient, rare=rare,
-                       drivers=drivers)
+                       drivers=drivers, position_percentiles=True)
         base = run_check(baseline, progress=_stage(progress, 0), **options)
         cand = run_check(candidate, progress=_stage(progress, 1), **options)
         if rare is None:
@@ -506,26 +511,31 @@ def position_deltas(base: CheckResult, cand: CheckResult) -> tuple[PositionDelta
         for pa, pb in zip(a.per_position(), b.per_position()):
             figures = {side: _position_figures(entry, labels[side])
                        for side, entry in (("baseline", pa), ("candidate", pb))}
-            (unit, base_limit, base_mean, base_worst, base_part), \
-                (_, cand_limit, cand_mean, cand_worst, cand_part) = \
+            (unit, base_limit, base_mean, base_p99, base_worst, base_part), \
+                (_, cand_limit, cand_mean, cand_p99, cand_worst, cand_part) = \
                 figures["baseline"], figures["candidate"]
             rows.append(PositionDelta(
                 check=name, branch=pa.branch, index=getattr(pa, "index", 0),
                 baseline_part=base_part, candidate_part=cand_part, unit=unit,
                 baseline_limit=base_limit, candidate_limit=cand_limit,
                 baseline_mean=base_mean, candidate_mean=cand_mean,
-                baseline_worst=base_worst, candidate_worst=cand_worst))
+                baseline_worst=base_worst, candidate_worst=cand_worst,
+                baseline_p99=base_p99, candidate_p99=cand_p99))
     return tuple(rows)
 
 
-def _position_figures(entry, labels: np.ndarray) -> tuple[str, float, float, float, str]:
-    """(unit, limit, mean, worst, part) of one per-position entry of any check."""
+def _position_figures(entry, labels: np.ndarray) -> tuple[str, float, float, float, float, str]:
+    """(unit, limit, mean, p99, worst, part) of one per-position entry of any check (p99 NaN
+    where the check keeps none)."""
     if hasattr(entry, "max_voltage"):
-        return "V", entry.limit, entry.mean_voltage, entry.max_voltage, entry.part
+        p99 = math.nan if entry.p99_voltage is None else entry.p99_voltage
+        return "V", entry.limit, entry.mean_voltage, p99, entry.max_voltage, entry.part
     if hasattr(entry, "max_current"):
         parts = "+".join(dict.fromkeys(str(label) for label in labels[entry.branch - 1]))
-        return "A", entry.limit_current, entry.mean_current, entry.max_current, parts
-    return "degC", entry.limit, entry.mean_temperature, entry.max_temperature, entry.part
+        return ("A", entry.limit_current, entry.mean_current, math.nan, entry.max_current,
+                parts)
+    return ("degC", entry.limit, entry.mean_temperature, math.nan, entry.max_temperature,
+            entry.part)
 
 
 # Per check, the inputs a part brings that move a position's stress, each with the sign of the

@@ -89,6 +89,10 @@ def test_a_few_percent_of_margin_lost_without_failures_is_rejected_by_default(pl
     assert "review.margin_eroded" in _codes(dynamic.decisive)
     wider = compare(plain.baseline, plain.candidate, Review(stress_tolerance=0.05))
     assert wider.verdict == "accept"
+    # Per position, its mean, its 99th percentile and its worst, in that order on each side.
+    for d in plain.positions:
+        assert d.baseline_mean < d.baseline_p99 < d.baseline_worst
+        assert d.candidate_mean < d.candidate_p99 < d.candidate_worst
 
 
 @pytest.mark.slow
@@ -193,7 +197,7 @@ def test_every_review_code_has_a_sentence():
 
 def test_the_per_position_change_is_in_the_json_and_the_csv():
     base = parse_design_text(BASE)
-    result = review(base, substituted(base, swap="4:FAST"), trials=200)
+    result = review(base, substituted(base, swap="4:FAST"), trials=300)
     fast = 6000 / 6 + 5 * 0.3e-6 / (6 * 3.3e-9)  # closed form above
     data = review_to_dict(result)
     json.dumps(data, allow_nan=False)
@@ -204,12 +208,16 @@ def test_the_per_position_change_is_in_the_json_and_the_csv():
         ("SLOW", "FAST", "V")
     assert fourth["baseline_mean"] == pytest.approx(1000.0, rel=1e-9)
     assert fourth["candidate_worst"] == pytest.approx(fast, rel=1e-9)
+    # No scatter: every built string is the corner, so its p99 is the corner too.
+    assert fourth["baseline_p99"] == pytest.approx(1000.0, rel=1e-9)
+    assert fourth["candidate_p99"] == pytest.approx(fast, rel=1e-9)
     assert fourth["worst_ratio_change"] == pytest.approx((fast - 1000.0) / 1440.0, rel=1e-9)
     assert data["changes"]["reason_codes"][0].startswith("review.")
     table = list(csv.DictReader(io.StringIO(review_positions_csv(result))))
     assert len(table) == len(data["changes"]["positions"]) == 12
     row = next(r for r in table if r["check"] == "dynamic" and r["index"] == "4")
     assert float(row["candidate_worst"]) == pytest.approx(fast, rel=1e-5)
+    assert float(row["candidate_p99"]) == pytest.approx(fast, rel=1e-5)
     assert float(row["baseline_limit"]) == pytest.approx(1440.0)
 
 
