@@ -30,7 +30,7 @@ instead of 2 kV in its four hottest positions; then one built string's turn-off.
 >>> reviewed = stringcheck.review(replace(design, parts=candidate_parts), swap="1-4:LOWER",
 ...                               trials=4000, seed=11)
 >>> reviewed.verdict, [change.name for change in reviewed.changes if not change.acceptable]
-('reject', ['dynamic'])
+('reject', ['static', 'dynamic'])
 >>> turn_off, notes = stringcheck.trace_turn_off(design, 7, trials=4000, seed=11)
 >>> turn_off.peak_voltage.shape, bool(turn_off.converged[0])
 ((1, 24), True)
@@ -98,7 +98,8 @@ def check(design: Design | str | os.PathLike[str], *, trials: int | None = None,
           rare_samples: int = 20_000, chunk_trials: int | None = None,
           only: tuple[str, ...] | None = None,
           progress: Callable[[int, int], None] | None = None,
-          pool: "WorkerPool | None" = None) -> "CheckResult":
+          pool: "WorkerPool | None" = None,
+          position_percentiles: bool = False) -> "CheckResult":
     """Check a string: static and dynamic voltage sharing, parallel current sharing, junction
     temperatures and runaway, optionally the time-domain turn-off (``stringcheck check``).
 
@@ -135,6 +136,9 @@ def check(design: Design | str | os.PathLike[str], *, trials: int | None = None,
     pool
         An open worker pool (``montecarlo.executor.worker_pool``) to run in instead of
         ``workers`` new processes, so that several calls share one.
+    position_percentiles
+        Also give each position of the static and dynamic checks its 99th-percentile voltage
+        (``positions[k].p99_voltage``, else None); it keeps the largest 1 % of the voltages.
 
     Returns
     -------
@@ -153,7 +157,7 @@ def check(design: Design | str | os.PathLike[str], *, trials: int | None = None,
                      transient=transient, transient_worst=transient_worst,
                      transient_sample=transient_sample, drivers=drivers, rare=rare,
                      rare_samples=rare_samples, chunk_trials=chunk_trials, only=only,
-                     progress=progress, pool=pool)
+                     progress=progress, pool=pool, position_percentiles=position_percentiles)
 
 
 def size(design: Design | str | os.PathLike[str], *, trials: int | None = None,
@@ -244,8 +248,11 @@ def review(baseline: Design | str | os.PathLike[str],
     Returns
     -------
     ReviewResult
-        ``verdict`` ("accept" or "reject"), both designs' results, the change of each check's
-        P(fail) bound and the positions that got worse.
+        ``verdict`` ("accept" or "reject"), both designs' results, each check's change (p99 and
+        worst stress ratio, P(fail) bound, and the findings that decide it), the per-position
+        change, the reasons and the flags of the substitute parts (findings: word them with
+        ``stringcheck.report.wording.sentence``). The candidate is judged by the baseline's
+        ``[review] stress_tolerance`` and ``tolerance`` (a fraction of ``target_p_fail``).
 
     Raises
     ------

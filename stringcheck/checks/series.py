@@ -68,6 +68,9 @@ class PositionStatistics(Exported):
     std_voltage: float = figure(unit="V", encode=json_number)
     max_voltage: float = figure(unit="V", encode=json_number)
     failures: int = figure()
+    # The 99th percentile over the trials, where the run kept it (``run_check``'s
+    # ``position_percentiles``; None otherwise): the review's per-position change, not the JSON.
+    p99_voltage: float | None = figure(None, unit="V", default=None)
 
 
 @dataclass(frozen=True, eq=False, kw_only=True, repr=False)
@@ -114,6 +117,8 @@ class SeriesSetup:
     voltage_exponent: np.ndarray
     junction_capacitance: np.ndarray
     rescaling: RecoveryRescaling | None
+    # Largest voltages kept per position for its 99th percentile (0: none; accumulators.top_count).
+    top_count: int = 0
 
 
 def series_setup(design: Design, *, run_static: bool, run_dynamic: bool,
@@ -161,8 +166,10 @@ def run_series_chunk(design: Design, setup: SeriesSetup, drawn: DrawnStrings) ->
     """Solve the series checks of one chunk of drawn strings; its sums, to be merged in trial
     order."""
     shape = setup.limits.shape
-    static = PositionSums(shape, setup.limits) if setup.run_static else None
-    dynamic = PositionSums(shape, setup.limits) if setup.run_dynamic else None
+    static = PositionSums(shape, setup.limits, top_count=setup.top_count) \
+        if setup.run_static else None
+    dynamic = PositionSums(shape, setup.limits, top_count=setup.top_count) \
+        if setup.run_dynamic else None
     devices = series_for_devices(design, setup, drawn)
     if drawn.part_index is None:
         # The solvers work through the chunk in slices of whole sampling blocks, small enough for
@@ -236,7 +243,8 @@ class SeriesAccumulator:
 
     def __init__(self, setup: SeriesSetup) -> None:
         shape = setup.limits.shape
-        self.sums = {name: PositionSums(shape, setup.limits) for name, runs in
+        self.sums = {name: PositionSums(shape, setup.limits, top_count=setup.top_count)
+                     for name, runs in
                      (("static", setup.run_static), ("dynamic", setup.run_dynamic)) if runs}
 
     def merge(self, chunk: SeriesChunk) -> None:
@@ -260,6 +268,7 @@ def finish_series(name: str, accumulator: PositionSums, grid: np.ndarray, confid
     mean = moments.mean if moments.count else accumulator.limits.copy()
     # One solved trial has no spread to speak of: 0, as before.
     variance = moments.variance(ddof=1) if moments.count > 1 else np.zeros(grid.shape)
+    p99 = accumulator.position_percentile(99.0)
     positions = []
     for branch in range(grid.shape[0]):
         for index in range(grid.shape[1]):
@@ -269,7 +278,8 @@ def finish_series(name: str, accumulator: PositionSums, grid: np.ndarray, confid
                 mean_voltage=float(mean[branch, index]),
                 std_voltage=float(np.sqrt(variance[branch, index])),
                 max_voltage=float(accumulator.maximum[branch, index]),
-                failures=int(accumulator.failures_by_position[branch, index])))
+                failures=int(accumulator.failures_by_position[branch, index]),
+                p99_voltage=None if p99 is None else float(p99[branch, index])))
     finite = ratios[np.isfinite(ratios)]
     # Both percentiles from one partial sort of ``finite`` in place (no further copy); the
     # histogram below does not depend on the order.

@@ -244,10 +244,16 @@ def size(
 
 
 def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trials, seed,
-            json_path, quiet, workers, transient, drivers=False, rare=None) -> int:
+            json_path, quiet, workers, transient, drivers=False, rare=None,
+            csv_path=None) -> int:
     from stringcheck.design.reading import load_design
     from stringcheck.report.export import json_text
-    from stringcheck.report.review import render_review, render_review_summary, review_to_dict
+    from stringcheck.report.review import (
+        render_review,
+        render_review_summary,
+        review_positions_csv,
+        review_to_dict,
+    )
     from stringcheck.studies.review import review, substituted
 
     baseline = load_design(base_path)
@@ -258,16 +264,18 @@ def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trial
     if candidate_path is not None:
         candidate = load_design(candidate_path)
         read += output_files.design_inputs(candidate, candidate_path, "the candidate design file")
-    output_files.check_output_targets({"--json": json_path}, inputs=read)
+    output_files.check_output_targets({"--json": json_path, "--csv": csv_path}, inputs=read)
     if candidate_path is None:
         candidate = substituted(baseline, swap=swap, mix=mix)
     with DelayedProgress(enabled=not quiet, label="baseline, then candidate") as progress:
         result = review(baseline, candidate, trials=trials, seed=seed, workers=workers,
                         transient=transient, rare=rare, drivers=drivers, progress=progress)
     outputs = [] if json_path is None else [(json_path, json_text(review_to_dict(result)))]
+    if csv_path is not None:
+        outputs.append((csv_path, review_positions_csv(result)))
     with output_files.atomic_outputs(outputs):
-        _print_report(result, quiet=quiet, stderr=json_path == "-", full=render_review,
-                      summary=render_review_summary)
+        _print_report(result, quiet=quiet, stderr="-" in (json_path, csv_path),
+                      full=render_review, summary=render_review_summary)
     return EXIT_PASS if result.verdict == "accept" else EXIT_FAIL
 
 
@@ -288,6 +296,7 @@ def review(
     trials: Trials = None,
     seed: Seed = None,
     json: JsonPath = None,
+    csv: CsvPath = None,
     quiet: Quiet = False,
     workers: Workers = 1,
     transient: Transient = False,
@@ -298,7 +307,7 @@ def review(
     """May a candidate replace the baseline? Both checked on the same draws; exit 0 accept, 1 reject."""
     run_guarded(lambda: _review(base, candidate, swap=swap, mix=mix, trials=trials, seed=seed,
                                 json_path=json, quiet=quiet, workers=workers, transient=transient,
-                                drivers=drivers, rare=rare), debug)
+                                drivers=drivers, rare=rare, csv_path=csv), debug)
 
 
 def _window_end(text: str) -> float:

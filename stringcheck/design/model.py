@@ -314,11 +314,25 @@ class Thermal:
     path_resistance: float
 
 
+# Defaults of [review] (a design choice of ours, docs/commands.md): a candidate may raise a
+# check's P(fail) upper bound by a tenth of the target, and its p99 and worst stress by 2 % of the
+# limit (a fifth of the headroom a derating of 0.9 leaves between the limit and V_RRM).
+REVIEW_TOLERANCE = 0.1
+REVIEW_STRESS_TOLERANCE = 0.02
+
+
 @dataclass(frozen=True)
 class Review:
-    """Settings of the substitution review."""
+    """Settings of the substitution review (``[review]``).
 
-    tolerance: float
+    ``tolerance`` [1]: the rise of a check's P(fail) upper bound over the baseline's that the
+    candidate may show, as a fraction of ``[sizing] target_p_fail``. ``stress_tolerance`` [1]: the
+    rise of a check's p99 and worst stress ratio (stress / limit) the candidate may show, as a
+    fraction of the limit.
+    """
+
+    tolerance: float = REVIEW_TOLERANCE
+    stress_tolerance: float = REVIEW_STRESS_TOLERANCE
 
 
 @dataclass(frozen=True)

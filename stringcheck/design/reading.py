@@ -30,6 +30,8 @@ from stringcheck.design.model import (
     MAX_DEVICES,
     MAX_FILE_BYTES,
     MAX_LEAKAGE_DOUBLINGS,
+    REVIEW_STRESS_TOLERANCE,
+    REVIEW_TOLERANCE,
     SIGMA_AT_LIMIT_RANGE,
     SPREAD_PARAMETERS,
     Design,
@@ -181,8 +183,12 @@ def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
     thermal = _read_thermal(reader, raw)
     review_table = reader.table(raw, "review")
     reader.check_keys(review_table, SCHEMA_KEYS["review"], "review")
-    review = Review(tolerance=reader.fraction(review_table, "tolerance", "review", default=0.0,
-                                              low=0.0, high=1.0))
+    review = Review(
+        tolerance=reader.fraction(review_table, "tolerance", "review", default=REVIEW_TOLERANCE,
+                                  low=0.0, high=1.0, high_open=False),
+        stress_tolerance=reader.fraction(review_table, "stress_tolerance", "review",
+                                         default=REVIEW_STRESS_TOLERANCE, low=0.0, high=1.0,
+                                         high_open=False))
 
     design = Design(title=title, notes=notes, source=source, duty=duty, string=string,
                     parts=parts, grading=grading, monte_carlo=monte_carlo, sizing=sizing,

@@ -48,7 +48,7 @@ SCHEMA_KEYS = {
                "grading_current_multiple", "discharge_time", "capacitance_multiple",
                "stray_capacitance", "resistor_min", "resistor_max", "capacitor_min",
                "capacitor_max"),
-    "review": ("tolerance",),
+    "review": ("tolerance", "stress_tolerance"),
 }
 TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
               "review")

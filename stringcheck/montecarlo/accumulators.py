@@ -235,6 +235,10 @@ class PositionSums:
     # With a mix: the limit of each drawn device (trials, parallel, series) for the chunk in hand;
     # ``limits`` then holds each position's lowest limit, for the per-position figures.
     device_limits: np.ndarray | None = None
+    # Keep each position's ``top_count`` largest solved voltages (0: none), from which
+    # :meth:`position_percentile` takes an upper percentile exactly (:func:`top_count`).
+    top_count: int = 0
+    top: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         self.maximum = np.full(self.shape, -np.inf)
@@ -264,6 +268,8 @@ class PositionSums:
         self.maximum = np.maximum(self.maximum, other.maximum)
         self.failures_by_position += other.failures_by_position
         self.worst_ratios.extend(other.worst_ratios)
+        if other.top is not None:
+            self.top = _largest(self.top, other.top, self.top_count)
         self.unsolved += other.unsolved
         if other.worst_ratio > self.worst_ratio:
             self.worst_ratio = other.worst_ratio
@@ -287,6 +293,8 @@ class PositionSums:
         self.count += good.shape[0]
         if good.shape[0]:
             self.maximum = np.maximum(self.maximum, _position_maximum(good))
+            if self.top_count:
+                self.top = _largest(self.top, good, self.top_count)
         # A position above its limit puts its trial's ratio above 1: only those trials count.
         over = np.flatnonzero(exceeds_limit(trial_ratio))
         if over.size:
@@ -297,6 +305,39 @@ class PositionSums:
             self.worst_ratio = float(trial_ratio[best])
             self.worst_trial = first_trial + best
             self.worst_string = voltages[best].copy()
+
+    def position_percentile(self, q: float) -> np.ndarray | None:
+        """Each position's ``q``-th percentile [V] over the solved trials, as
+        ``numpy.percentile`` (linear interpolation) gives it over all of them, from the largest
+        voltages kept; None where none were kept or too few for ``q`` (or no trial solved)."""
+        if self.top is None or not self.count:
+            return None
+        rank = (self.count - 1) * q / 100.0
+        low = int(np.floor(rank))
+        # The sorted values x[low] and x[low + 1] are the (count - 1 - low)-th and the
+        # (count - 2 - low)-th largest, counted from 0.
+        above = self.count - 1 - low
+        if above >= self.top.shape[0]:
+            return None
+        ordered = -np.sort(-self.top, axis=0)
+        lower = ordered[above]
+        upper = ordered[max(above - 1, 0)]
+        return lower + (rank - low) * (upper - lower)
+
+
+def top_count(trials: int, q: float = 99.0) -> int:
+    """How many of the largest values of ``trials`` [1] hold the ``q``-th percentile and the one
+    above it: (100 - q) % of them and two more."""
+    return int(np.ceil(trials * (100.0 - q) / 100.0)) + 2
+
+
+def _largest(kept: np.ndarray | None, values: np.ndarray, count: int) -> np.ndarray:
+    """The ``count`` largest of ``kept`` and ``values`` along axis 0 (any order): exact whatever
+    the chunks they came in."""
+    joined = values if kept is None else np.concatenate([kept, values], axis=0)
+    if joined.shape[0] <= count:
+        return joined.copy() if joined is values else joined
+    return np.partition(joined, joined.shape[0] - count, axis=0)[joined.shape[0] - count:]
 
 
 def _trial_maximum(values: np.ndarray) -> np.ndarray:

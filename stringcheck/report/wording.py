@@ -497,3 +497,160 @@ def impossibility_text(findings) -> str | None:
     """Why no built string can pass (``checks.preconditions.impossibility``), one clause per
     finding joined by "; ", or None when the design is possible."""
     return "; ".join(sentences(findings)) or None
+
+
+# studies.review: what decided the verdict, the reasons from the computed change, and the flags
+# of the substitute parts (the review's findings, kept together here so that they read as one).
+_INPUT_WORDS = {"i_r": "leakage I_R", "q_rr": "recovery charge Q_rr", "c_j": "junction capacitance",
+                "v_rrm": "V_RRM", "v_t0": "threshold voltage V_T0", "r_t": "slope resistance r_T",
+                "i_fav": "current rating I_F(AV)", "t_j_max": "T_j,max",
+                "r_th_jc": "thermal resistance R_th(j-c)"}
+_WORDED.update({
+    "statistic": lambda name: {"worst": "worst", "p99": "99th-percentile"}.get(name, name),
+    "input": lambda name: _INPUT_WORDS.get(name, name),
+    "class": lambda name: f"class {name!r}" if name else "no class",
+    "arrow": lambda name: f" -> {name}" if name else ", unchanged",
+})
+_WHERE = "branch {branch} #{index} ({baseline_part}{new_part:arrow})"
+_TYP = "(typ {candidate} vs {baseline})"
+TEMPLATES.update({
+    # what makes a check of the candidate unacceptable, or is only reported
+    "review.check_fails":
+        "{check:check}: the candidate fails the check on its own (P(fail) upper bound "
+        "{p_fail_upper:.2g}, target {limit:g})",
+    "review.candidate_fails":
+        "the candidate fails its own check outside the compared figures (a grading rating "
+        "exceeded, a requested check that could not run, or a string no sharing can rescue): "
+        "its check report says which",
+    "review.check_not_run":
+        "{check:check}: ran for the baseline but not for the candidate, so the two cannot be "
+        "compared",
+    "review.margin_eroded":
+        "{check:check}: the {statistic:statistic} stress rose from {baseline:.3f} to "
+        "{candidate:.3f} of the limit, by {rise:.3f}, more than the stress tolerance of {limit:g}",
+    "review.p_fail_rose":
+        "{check:check}: the P(fail) upper bound rose from {baseline:.2g} to {candidate:.2g}, by "
+        "more than the tolerance ({tolerance:g} of the target {target:g}: {limit:.2g})",
+    "review.p_fail_rise_small":
+        "{check:check}: the P(fail) upper bound rose from {baseline:.2g} to {candidate:.2g}, "
+        "within the tolerance ({tolerance:g} of the target {target:g}): reported, not decisive",
+    # the positions whose stress changed most, and the input that explains the direction
+    "review.same_parts": "no position changed part: the candidate is the baseline",
+    "review.position_rose":
+        "{check:check}: the worst stress at " + _WHERE + " rose from {baseline:.3f} to "
+        "{candidate:.3f} of the limit ({baseline_worst} -> {candidate_worst})",
+    "review.position_fell":
+        "{check:check}: the worst stress at " + _WHERE + " fell from {baseline:.3f} to "
+        "{candidate:.3f} of the limit ({baseline_worst} -> {candidate_worst})",
+    "review.q_rr.own.rose":
+        "{new} stores less recovery charge than {old} " + _TYP + ": it recovers first, blocks "
+        "before the others and takes more of the turn-off voltage",
+    "review.q_rr.own.fell":
+        "{new} stores more recovery charge than {old} " + _TYP + ": it recovers later and "
+        "takes less of the turn-off voltage",
+    "review.q_rr.others.rose":
+        "{new} stores more recovery charge than {old} " + _TYP + ": it recovers last and "
+        "pushes the turn-off voltage onto the others",
+    "review.q_rr.others.fell":
+        "{new} stores less recovery charge than {old} " + _TYP + ": it recovers first and "
+        "takes turn-off voltage off the others",
+    "review.c_j.own.rose":
+        "{new} has less junction capacitance than {old} " + _TYP + ": the same charge raises "
+        "its voltage more",
+    "review.c_j.own.fell":
+        "{new} has more junction capacitance than {old} " + _TYP + ": the same charge raises "
+        "its voltage less",
+    "review.c_j.others.rose":
+        "{new} has more junction capacitance than {old} " + _TYP + ": it takes less of the "
+        "turn-off voltage and leaves more to the others",
+    "review.c_j.others.fell":
+        "{new} has less junction capacitance than {old} " + _TYP + ": it takes more of the "
+        "turn-off voltage, off the others",
+    "review.i_r.own.rose":
+        "{new} leaks less than {old} " + _TYP + ": it takes more of the blocking voltage",
+    "review.i_r.own.fell":
+        "{new} leaks more than {old} " + _TYP + ": it takes less of the blocking voltage",
+    "review.i_r.others.rose":
+        "{new} leaks more than {old} " + _TYP + ": it takes less of the blocking voltage and "
+        "pushes it onto the others",
+    "review.i_r.others.fell":
+        "{new} leaks less than {old} " + _TYP + ": it takes more of the blocking voltage, off "
+        "the others",
+    "review.v_rrm.own.rose":
+        "{new} is rated for less reverse voltage than {old} ({candidate} vs {baseline}): the "
+        "same voltage is a larger share of its lower limit",
+    "review.v_rrm.own.fell":
+        "{new} is rated for more reverse voltage than {old} ({candidate} vs {baseline}): the "
+        "same voltage is a smaller share of its higher limit",
+    "review.v_t0.own.rose":
+        "{new} has a lower threshold voltage than {old} " + _TYP + ": its branch takes more of "
+        "the group's current",
+    "review.v_t0.own.fell":
+        "{new} has a higher threshold voltage than {old} " + _TYP + ": its branch takes less of "
+        "the group's current",
+    "review.v_t0.others.rose":
+        "{new} has a higher threshold voltage than {old} " + _TYP + ": its branch takes less "
+        "current and leaves more to the others",
+    "review.v_t0.others.fell":
+        "{new} has a lower threshold voltage than {old} " + _TYP + ": its branch takes more "
+        "current, off the others",
+    "review.r_t.own.rose":
+        "{new} has a lower slope resistance than {old} " + _TYP + ": its branch takes more of "
+        "the group's current",
+    "review.r_t.own.fell":
+        "{new} has a higher slope resistance than {old} " + _TYP + ": its branch takes less of "
+        "the group's current",
+    "review.r_t.others.rose":
+        "{new} has a higher slope resistance than {old} " + _TYP + ": its branch takes less "
+        "current and leaves more to the others",
+    "review.r_t.others.fell":
+        "{new} has a lower slope resistance than {old} " + _TYP + ": its branch takes more "
+        "current, off the others",
+    "review.i_fav.own.rose":
+        "{new} is rated for less average current than {old} ({candidate} vs {baseline}): the "
+        "same current is a larger share of its rating",
+    "review.i_fav.own.fell":
+        "{new} is rated for more average current than {old} ({candidate} vs {baseline}): the "
+        "same current is a smaller share of its rating",
+    "review.thermal.t_j_max.own.rose":
+        "{new} allows a lower junction temperature than {old} ({candidate} vs {baseline})",
+    "review.thermal.t_j_max.own.fell":
+        "{new} allows a higher junction temperature than {old} ({candidate} vs {baseline})",
+    "review.thermal.r_th_jc.own.rose":
+        "{new} has a higher junction-to-case thermal resistance than {old} ({candidate:.3g} vs "
+        "{baseline:.3g} K/W): it runs hotter",
+    "review.thermal.r_th_jc.own.fell":
+        "{new} has a lower junction-to-case thermal resistance than {old} ({candidate:.3g} vs "
+        "{baseline:.3g} K/W): it runs cooler",
+    "review.thermal.i_r.own.rose":
+        "{new} leaks more than {old} " + _TYP + ": more leakage loss, it runs hotter",
+    "review.thermal.i_r.own.fell":
+        "{new} leaks less than {old} " + _TYP + ": less leakage loss, it runs cooler",
+    "review.thermal.q_rr.own.rose":
+        "{new} stores more recovery charge than {old} " + _TYP + ": more recovery loss, it "
+        "runs hotter",
+    "review.thermal.q_rr.own.fell":
+        "{new} stores less recovery charge than {old} " + _TYP + ": less recovery loss, it "
+        "runs cooler",
+    "review.scatter.wider":
+        "{new}'s {input:input} scatters more than {old}'s (max - typ {candidate} vs {baseline}): "
+        "the devices share less evenly and the worst of them takes more",
+    "review.scatter.narrower":
+        "{new}'s {input:input} scatters less than {old}'s (max - typ {candidate} vs {baseline}): "
+        "the devices share more evenly and the worst of them takes less",
+    "review.input_changed":
+        "the {input:input} changed ({old} typ {baseline}, {new} typ {candidate}), but alone it "
+        "would move this stress the other way: the change comes from how the string shares as "
+        "a whole",
+    "review.no_input_changed":
+        "{check:check}: no input of this check differs between the parts; the change comes "
+        "from the other devices' draws",
+    # the substitute parts themselves, whatever the Monte Carlo says
+    "review.lower_v_rrm":
+        "{new} (position(s) {positions}) is rated for less reverse voltage than {old} "
+        "({candidate} vs {baseline}): less margin above the derated limit, whatever the Monte "
+        "Carlo shows",
+    "review.class_changed":
+        "{new} (position(s) {positions}) is of {candidate:class} and {old} of {baseline:class}: "
+        "compare what the model does not (avalanche and surge ratings, ageing) before approving",
+})

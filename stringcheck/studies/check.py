@@ -38,6 +38,7 @@ from stringcheck.checks.steps import CheckSteps, RunFigures
 from stringcheck.montecarlo.sampling import DrawnStrings, chunk_bounds, draw_strings
 from stringcheck.montecarlo.estimates import trials_for_upper_bound
 from stringcheck.checks.forward import FORWARD_STEPS
+from stringcheck.montecarlo.accumulators import top_count
 from stringcheck.checks.transient import DEFAULT_WORST, run_transient, transient_evaluator
 from stringcheck.checks.transient import not_run as not_run_transient
 from stringcheck.montecarlo.sensitivity import (
@@ -191,7 +192,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
               transient_worst: int = DEFAULT_WORST,
               transient_sample: int | None = None, drivers: bool = False,
               rare: bool | None | tuple[str, ...] = False,
-              rare_samples: int = DEFAULT_SAMPLES) -> CheckResult:
+              rare_samples: int = DEFAULT_SAMPLES,
+              position_percentiles: bool = False) -> CheckResult:
     """Run the series check of ``design`` (static sharing always, dynamic when there is a turn-off).
 
     Parameters
@@ -226,6 +228,10 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     drivers
         Rank the inputs by their influence on each series check's worst stress, and rerun the
         check with each of the top inputs tightened (``montecarlo.sensitivity``).
+    position_percentiles
+        Also give each position of the static and dynamic checks its 99th-percentile voltage
+        (``PositionStatistics.p99_voltage``, else None; the review's per-position change), from the largest
+        1 % of each position's voltages kept over the run.
     """
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
@@ -233,6 +239,11 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     if only is None or "dynamic" in only:
         design = with_recovery_charge(design)
     plan = _plan(design, seed, only, drivers)
+    if position_percentiles:
+        # The series checks' setup keeps each position's largest 1 % of voltages.
+        setups = tuple(replace(setup, top_count=top_count(trials)) if steps is SERIES_STEPS
+                       else setup for steps, setup in zip(plan.steps, plan.context.setups))
+        plan = replace(plan, context=replace(plan.context, setups=setups))
     confidence = design.monte_carlo.confidence
     target = design.sizing.target_p_fail
     with worker_pool(workers) if pool is None else nullcontext(pool) as active:

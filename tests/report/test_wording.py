@@ -467,7 +467,8 @@ def test_a_setting_in_a_sentence_is_spelled_by_whoever_shows_it():
 
 def test_every_code_has_a_sentence_and_is_tested():
     tested = {finding.code for finding, _ in TODAY + SIZING} | {SIZE_DAMPING[0].code}
-    assert tested == set(TEMPLATES)
+    # The review's codes are tested in tests/report/test_review_wording.py.
+    assert tested == {code for code in TEMPLATES if not code.startswith("review.")}
     with pytest.raises(KeyError):
         sentence(Finding("no.such_code"))
     assert sentences([f for f, _ in TODAY]) == [t for _, t in TODAY]
@@ -513,8 +514,10 @@ def _produced_codes() -> set[str]:
 
 
 def test_every_code_a_layer_below_produces_has_a_sentence():
-    produced = _produced_codes()
-    assert produced == set(TEMPLATES), produced ^ set(TEMPLATES)
+    # The review's codes are in part made by pattern: tests/report/test_review_wording.py.
+    produced = {code for code in _produced_codes() if not code.startswith("review.")}
+    worded = {code for code in TEMPLATES if not code.startswith("review.")}
+    assert produced == worded, produced ^ worded
 
 
 def _sentence_constants(tree) -> list[str]:

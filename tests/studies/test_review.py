@@ -11,6 +11,7 @@ from stringcheck.cli.app import app
 from stringcheck.design.reading import parse_design_text
 from stringcheck.studies.review import parse_swap, review, swapped
 from stringcheck.errors import StringcheckError
+from stringcheck.report.wording import sentence
 
 runner = CliRunner()
 
@@ -71,7 +72,7 @@ def test_a_faster_substitute_takes_the_charge_balance_corner_voltage():
     assert dynamic.worst_voltage == pytest.approx(expected, rel=1e-9)
     assert dynamic.positions[3].max_voltage == pytest.approx(expected, rel=1e-9)
     assert result.worse_positions[0].index == 4
-    assert any("recovers first" in line for line in result.reasons)
+    assert any("recovers first" in sentence(f) for f in result.reasons)
 
 
 def test_a_weaker_substitute_is_rejected():
