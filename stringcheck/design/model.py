@@ -109,6 +109,10 @@ class Part:
     device_class: str | None = None
     # A stringcheck.design.lots.MeasuredLot (named, not imported: the lot reader builds on this model).
     measured: "MeasuredLot | None" = None
+    # C_j as datasheet rows (stringcheck.design.junction.JunctionRows; None: the constant c_j),
+    # and whether the recovery charge is the junction's capacitive charge (SiC Schottky).
+    junction_rows: "JunctionRows | None" = None
+    capacitive: bool = False
 
     def spread(self, parameter: str) -> Spread | None:
         """The spread of ``parameter`` (one of SPREAD_PARAMETERS), or None if not given."""

@@ -13,6 +13,7 @@ import numpy as np
 
 from stringcheck.constants import DATASHEET_TEMPERATURE
 from stringcheck.design import device_classes as presets
+from stringcheck.design.junction import is_rows, read_junction_rows
 from stringcheck.design.model import SPREAD_PARAMETERS, Design, Part, Spread
 from stringcheck.findings import Finding, Value
 from stringcheck.units import (
@@ -70,6 +71,12 @@ def read_parts(reader: Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
                     "assumed.from_class", {"key": Value(prefix), "keys": Value(", ".join(inherited)),
                                            "device_class": Value(device_class)}))
         merged.update({k: v for k, v in table.items() if k not in ("class", "measured", "fit")})
+        junction_rows = None
+        if is_rows(merged.get("c_j")):
+            junction_rows = read_junction_rows(reader, merged["c_j"], prefix, device_class)
+            # The constant c_j the rows stand for where a check has no C_j(V): the row at the
+            # highest voltage, nearest a blocking stage's.
+            merged["c_j"] = f"{junction_rows.rows[-1].typ!r} F"
         scalars = {}
         for key, unit in _PART_SCALARS.items():
             default = _PART_DEFAULTS.get(key)
@@ -89,8 +96,14 @@ def read_parts(reader: Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
         # The model names the quantities as the physics does (the file keys carry "leakage_").
         scalars["doubling_temperature"] = scalars.pop("leakage_doubling")
         scalars["voltage_exponent"] = scalars.pop("leakage_voltage_exponent")
+        # The recovery charge is the junction's own (integral of C_j dV up to the stage voltage)
+        # for a SiC Schottky diode, and for a part giving c_j but no q_rr, nor the i_rm and t_rr
+        # a stored charge is derived from.
+        capacitive = device_class == "sic-schottky" or (
+            "c_j" in merged and "q_rr" not in merged
+            and not ("i_rm" in merged and "t_rr" in merged))
         parts[name] = Part(name=name, device_class=device_class, measured=lot, **scalars,
-                           **spreads)
+                           **spreads, junction_rows=junction_rows, capacitive=capacitive)
     return parts
 
 

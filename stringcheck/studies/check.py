@@ -346,7 +346,7 @@ def _plan(design: Design, seed: int, only: tuple[str, ...] | None, drivers: bool
         forward = forward_setup(design, reasons["parallel"], reasons["thermal"], rescaling)
         parameters = tuple(dict.fromkeys(parameters + forward_parameters(design)))
     series = series_setup(design, run_static=reasons["static"] == "", run_dynamic=run_dynamic,
-                          rescaling=rescaling)
+                          rescaling=rescaling, seed=seed)
     context = _ChunkContext(design=design, seed=seed, parameters=parameters, series=series,
                             forward=forward, driver_trials=DRIVER_TRIALS if drivers else 0)
     return _Plan(context=context, reasons=reasons, run_forward=run_forward, note=note)
