@@ -17,7 +17,10 @@ which it converges monotonically (no bracket can be left, no step overshoots):
 * the stage voltage V_k(y) from below: the tangent of a concave function lies above it, so each
   step lands at or below the root; the iteration starts from the smaller of the two upper bounds
   y / C_g and Q_c^-1(y), and a first step below the lower bound y / (C_g + C_j0) is raised to it;
-* the extracted charge Q from above, starting at max_k Q_rr,k + min_k g_k(V_s), where F >= 0.
+* the extracted charge Q from above, starting at max_k Q_rr,k + min_k g_k(V_s), where F >= 0,
+  inside the bracket [min_k Q_rr,k, that start], with Newton's step on log(sum V_k) where it
+  stays inside (fast where a stage's V(Q) grows steeply, gamma near 1), and a bisection
+  where a step did not cut F tenfold far from the root.
 
 Every trial and stage is iterated at once (arrays of any leading shape); the loops are over Newton
 iterations only, until every row has converged.
@@ -118,18 +121,47 @@ def solve_capacitive_sharing(string_voltage: ArrayLike, recovery_charge: ArrayLi
         grading_capacitance, zero_bias_capacitance, built_in_potential, grading_exponent)))
     total = np.broadcast_to(total, shape[:-1])
     # Q = max Q_rr + min g_k(V_s) puts every stage k at V_k >= V_s for the k of the least g_k.
-    level = threshold.max(axis=-1) + stage.charge(total[..., None]).min(axis=-1)
+    high = threshold.max(axis=-1) + stage.charge(total[..., None]).min(axis=-1)
+    low = threshold.min(axis=-1)  # every stage at 0 V: F = -V_s
+    level = high
+    high_excess = high_slope = None
     converged = np.zeros(shape[:-1], dtype=bool)
     voltages = np.zeros(shape)
     for _ in range(_MAX_ITERATIONS):
-        voltages, slopes = stage.voltages(level[..., None] - threshold)
-        excess = voltages.sum(axis=-1) - total
-        converged = np.abs(excess) <= _RTOL * np.maximum(total, 1e-300)
-        if converged.all():
-            break
+        # A stage far above the root may overflow to V = inf: F = +inf, an upper end as any.
+        with np.errstate(over="ignore", invalid="ignore"):
+            voltages, slopes = stage.voltages(level[..., None] - threshold)
+            excess = voltages.sum(axis=-1) - total
         slope = slopes.sum(axis=-1)
-        step = np.where(slope > 0, excess / np.where(slope > 0, slope, 1.0), 0.0)
-        level = np.where(converged, level, level - step)
+        # The bracket collapsed to rounding: the level is as good as the arithmetic allows.
+        tight = (high - low) <= 4.0 * np.finfo(float).eps * np.abs(high)
+        converged = (np.abs(excess) <= _RTOL * np.maximum(total, 1e-300)) | (
+            tight & np.isfinite(excess))
+        if (converged | np.isnan(excess)).all():  # NaN rows stay unconverged
+            break
+        above = excess > 0
+        # Newton's step was slow where it did not cut F at the upper end tenfold while the
+        # string is still far above V_s (a stage whose V(Q) grows steeply, gamma near 1):
+        # bisect there next.
+        slow = above & (high_excess is not None) & (excess > total) & (
+            excess > 0.1 * (excess if high_excess is None else high_excess))
+        high = np.where(above, level, high)
+        low = np.where(above, low, level)
+        high_excess = excess if high_excess is None else np.where(above, excess, high_excess)
+        high_slope = slope if high_slope is None else np.where(above, slope, high_slope)
+        # Newton from the upper end on F never lands below the root (F is convex); Newton on
+        # log(sum V_k / V_s) takes the steeply growing stages (V ~ e^Q at gamma = 1) in one step
+        # and is taken where it stays above the known lower end.
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+            safe_slope = np.where(high_slope > 0, high_slope, 1.0)
+            newton = high - np.where(high_slope > 0, high_excess / safe_slope, 0.0)
+            ratio = (high_excess + total) / np.maximum(total, 1e-300)
+            logarithmic = high - np.where(high_slope > 0, np.log(ratio) * (high_excess + total)
+                                          / safe_slope, 0.0)
+        step = np.where(np.isfinite(logarithmic) & (logarithmic > low), logarithmic, newton)
+        middle = 0.5 * (low + high)
+        level = np.where(converged, level, np.where(
+            ~slow & (step > low) & (step < high), step, middle))
     return CapacitiveSharing(voltages=voltages, extracted_charge=level, converged=converged)
 
 
@@ -181,11 +213,14 @@ class _Stages:
         voltage = np.minimum(by_grading, by_junction)
         single = (self.grading <= 0) | (self.zero_bias <= 0)
         for _ in range(_MAX_ITERATIONS):
-            charge, capacitance = self.charge_and_capacitance(voltage)
+            with np.errstate(invalid="ignore", over="ignore"):  # inf where V overflowed
+                charge, capacitance = self.charge_and_capacitance(voltage)
             error = charge - y
-            done = single | (np.abs(error) <= _STAGE_RTOL * np.maximum(y, 1e-300))
+            done = single | ~np.isfinite(error) | (
+                np.abs(error) <= _STAGE_RTOL * np.maximum(y, 1e-300))
             if done.all():
                 break
             voltage = np.where(done, voltage, np.maximum(voltage - error / capacitance, lower))
-        slope = np.where(blocking, 1.0 / capacitance, 0.0)
+        with np.errstate(divide="ignore"):  # C = 0 where an overflowed V = inf: slope inf
+            slope = np.where(blocking, 1.0 / capacitance, 0.0)
         return voltage, slope

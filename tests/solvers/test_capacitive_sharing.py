@@ -114,3 +114,10 @@ def test_voltages_sum_to_the_string_voltage_in_any_order(stages, total, random):
                                     grading_exponent=gamma[0])
     fastest = int(np.argmin(thresholds))
     assert same.voltages[fastest] >= same.voltages.max() * (1 - 1e-9)
+
+
+def test_a_nan_row_is_flagged_and_the_others_solved():
+    sharing = solve_capacitive_sharing([800.0, np.nan], [[0.0, 1e-9], [0.0, 1e-9]], 0.0, 50e-12,
+                                       built_in_potential=1.0, grading_exponent=0.5)
+    assert sharing.converged.tolist() == [True, False]
+    assert math.isclose(sharing.voltages[0].sum(), 800.0, rel_tol=1e-11)
