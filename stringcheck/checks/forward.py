@@ -636,7 +636,8 @@ def _reasons(design: Design, names: tuple[str, ...]) -> dict[str, Finding | None
     return {name: reasons[name] for name in names}
 
 
-def _setup(design: Design, reasons, rescaling: RecoveryRescaling | None) -> ForwardSetup | None:
+def _setup(design: Design, reasons, rescaling: RecoveryRescaling | None,
+           seed: int | None = None) -> ForwardSetup | None:
     if reasons["parallel"] is not None and reasons["thermal"] is not None:
         return None
     return forward_setup(design, reasons["parallel"], reasons["thermal"], rescaling)

@@ -12,6 +12,7 @@ from dataclasses import replace
 import numpy as np
 
 from stringcheck.checks.findings import Finding, Value
+from stringcheck.checks.junction import capacitive_charge, capacitive_recovery_note
 from stringcheck.constants import RESISTOR_TCR_REFERENCE
 from stringcheck.design.model import Design, Spread
 from stringcheck.errors import DesignError
@@ -42,6 +43,15 @@ def with_recovery_charge(design: Design) -> Design:
     for name in design.parts_used():
         part = parts[name]
         if part.q_rr is not None:
+            continue
+        if part.capacitive:
+            # The charge balance takes the junction's own charge; the typical Q_c at an even
+            # share stands for q_rr where a check needs one figure (the thermal recovery loss).
+            share = design.duty.reverse_voltage / design.string.series
+            parts[name] = replace(part, q_rr=Spread(typ=capacitive_charge(part, share),
+                                                    typ_assumed=True))
+            notes.append(Finding("assumed.q_rr_capacitive", {"key": Value(f"parts.{name}.q_rr"),
+                                                             "voltage": Value(share, "V")}))
             continue
         if part.i_rm is None or part.t_rr is None:
             raise DesignError("missing; the dynamic check needs the recovery charge, or both i_rm "
@@ -101,6 +111,9 @@ def model_assumptions(design: Design, rescaling_note: Finding | None) -> tuple[F
         notes.append(Finding("model.mixed_stock", causes=(mix_finding(design),)))
     if rescaling_note is not None:
         notes.append(rescaling_note)
+    capacitive = capacitive_recovery_note(design)
+    if capacitive is not None and not dynamic_check_reason(design):
+        notes.append(capacitive)
     return tuple(notes)
 
 

@@ -34,12 +34,14 @@ from stringcheck.checks.recovery_conditions import (
     TurnOffCurrent,
     carried_charges,
 )
+from stringcheck.checks.junction import junction_arrays, needs_junction_law
 from stringcheck.design.model import Design, Part
 from stringcheck.checks.findings import Finding
 from stringcheck.limits import within_limit
 from stringcheck.montecarlo.accumulators import PositionSums
 from stringcheck.montecarlo.estimates import failure_estimate, histogram_counts
-from stringcheck.montecarlo.mixed_stock import device_values, position_values
+from stringcheck.montecarlo.junction_scatter import junction_factors, scatters
+from stringcheck.montecarlo.mixed_stock import device_part_grid, device_values, position_values
 from stringcheck.montecarlo.sampling import BLOCK_TRIALS, DrawnStrings
 from stringcheck.physics.grading import resistance_at_temperature
 from stringcheck.montecarlo.temperature_rows import (
@@ -48,6 +50,7 @@ from stringcheck.montecarlo.temperature_rows import (
     temperature_dependent,
 )
 from stringcheck.physics.leakage import leakage_current
+from stringcheck.solvers.capacitive_sharing import solve_capacitive_sharing
 from stringcheck.solvers.series_dynamic import solve_dynamic_sharing
 from stringcheck.solvers.series_static import solve_static_sharing
 
@@ -119,16 +122,27 @@ class SeriesSetup:
     rescaling: RecoveryRescaling | None
     # Largest voltages kept per position for its 99th percentile (0: none; accumulators.top_count).
     top_count: int = 0
+    # The junction law (checks.junction) where the charge balance needs it (C_j rows or a
+    # capacitive part): C_j0 [F], phi [V], gamma [1], 1 for a stored charge (0: capacitive).
+    junction_law: bool = False
+    junction_zero_bias: np.ndarray | None = None
+    junction_potential: np.ndarray | None = None
+    junction_exponent: np.ndarray | None = None
+    stored_charge: np.ndarray | None = None
+    # The run's seed, for the junction factors' stream (montecarlo.junction_scatter); None: C_j
+    # at typ.
+    seed: int | None = None
 
 
 def series_setup(design: Design, *, run_static: bool, run_dynamic: bool,
-                 rescaling: RecoveryRescaling | None) -> SeriesSetup:
+                 rescaling: RecoveryRescaling | None, seed: int | None = None) -> SeriesSetup:
     """The series checks' constants per position; with a mix each position's lowest value over
     the parts that can stand there (the limits shown per position), which the chunks replace by
     each drawn device's own (:func:`series_for_devices`)."""
     return SeriesSetup(run_static=run_static, run_dynamic=run_dynamic,
                        temperature=design.duty.ambient + design.string.temperature_rise_grid(),
-                       rescaling=rescaling,
+                       rescaling=rescaling, junction_law=needs_junction_law(design),
+                       seed=seed if scatters(design) else None,
                        **_part_constants(design, lambda attribute: position_values(design,
                                                                                    attribute)))
 
@@ -142,7 +156,8 @@ def series_for_devices(design: Design, setup: SeriesSetup, drawn: DrawnStrings) 
 
 
 def _part_constants(design: Design, values: Callable[[Callable[[Part], float]], np.ndarray]) -> dict:
-    return dict(limits=design.string.derating * values(lambda p: p.v_rrm),
+    junction = junction_arrays(values) if needs_junction_law(design) else {}
+    return dict(**junction,limits=design.string.derating * values(lambda p: p.v_rrm),
                 reference_voltage=values(lambda p: p.i_r.at_voltage),
                 reference_temperature=values(lambda p: p.i_r.at_temperature),
                 doubling_temperature=values(lambda p: p.doubling_temperature),
@@ -232,10 +247,32 @@ def dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums
         drawn.capacitance + junction_capacitance
     charge = carried_charges(design, strings_at_temperature(design, drawn, devices.temperature,
                                                             ("q_rr",)), devices.rescaling)
+    if devices.junction_law:
+        _nonlinear_dynamic_chunk(design, drawn, accumulator, devices, charge)
+        return
     capacitance = np.broadcast_to(capacitance, charge.shape)
     solution = solve_dynamic_sharing(design.duty.reverse_voltage, charge, capacitance)
     solved = np.ones(solution.voltages.shape[0], dtype=bool)
     accumulator.add(solution.voltages, solved, drawn.first_trial)
+
+
+def _nonlinear_dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums,
+                             devices: SeriesSetup, charge: np.ndarray) -> None:
+    """The charge balance with each junction's C_j(V) (``solvers.capacitive_sharing``): a
+    capacitive device's recovery charge is its junction's, up to its own stage voltage."""
+    grading = 0.0 if drawn.capacitance is None else drawn.capacitance
+    zero_bias = devices.junction_zero_bias
+    if devices.seed is not None:
+        zero_bias = zero_bias * junction_factors(design, device_part_grid(design, drawn),
+                                                 drawn.first_trial, drawn.trials, devices.seed)
+    solution = solve_capacitive_sharing(
+        design.duty.reverse_voltage, charge * devices.stored_charge, grading,
+        zero_bias, built_in_potential=devices.junction_potential,
+        grading_exponent=devices.junction_exponent)
+    shape = solution.voltages.shape
+    voltages = solution.voltages.reshape(shape[0], *charge.shape[1:])
+    solved = np.asarray(solution.converged).reshape(shape[0], -1).all(axis=1)
+    accumulator.add(voltages, solved, drawn.first_trial)
 
 
 class SeriesAccumulator:
@@ -326,8 +363,9 @@ def _reasons(design: Design, names: tuple[str, ...]) -> dict[str, Finding | None
     return {name: None if name == "static" else dynamic_check_reason(design) for name in names}
 
 
-def _setup(design: Design, reasons, rescaling: RecoveryRescaling | None) -> SeriesSetup:
-    return series_setup(design, run_static=reasons["static"] is None,
+def _setup(design: Design, reasons, rescaling: RecoveryRescaling | None,
+           seed: int | None = None) -> SeriesSetup:
+    return series_setup(design, seed=seed, run_static=reasons["static"] is None,
                         run_dynamic=reasons["dynamic"] is None, rescaling=rescaling)
 
 

@@ -49,7 +49,8 @@ class CheckSteps:
         ``reasons(design, names)``: why each of ``names`` (the checks asked for) cannot run,
         None for one that can.
     setup
-        ``setup(design, reasons, rescaling)``: the constants of its checks that run (picklable),
+        ``setup(design, reasons, rescaling, seed)``: the constants of its checks that run
+        (picklable; ``seed`` the run's, for a draw of its own such as the C_j factors),
         or None when none of them runs; ``rescaling`` is the recovery charge carried to the
         application's turn-off (``recovery_conditions.recovery_rescaling``), or None.
     parameters
@@ -82,7 +83,7 @@ class CheckSteps:
 
     names: tuple[str, ...]
     reasons: Callable[[Design, tuple[str, ...]], dict[str, Finding | None]]
-    setup: Callable[[Design, Reasons, RecoveryRescaling | None], Any]
+    setup: Callable[[Design, Reasons, RecoveryRescaling | None, int], Any]
     parameters: Callable[[Design, Reasons], tuple[str, ...]]
     evaluate: Callable[[Design, Any, DrawnStrings], Any]
     accumulator: Callable[[Any], Any]

@@ -38,6 +38,7 @@ from stringcheck.solvers.transient import simulate_turn_off
 from stringcheck.errors import Setting, StringcheckError
 from stringcheck.limits import exceeds_limit, within_limit
 from stringcheck.montecarlo.estimates import failure_estimate
+from stringcheck.montecarlo.junction_scatter import junction_factors, scatters
 from stringcheck.montecarlo.mixed_stock import device_part_grid, position_values
 from stringcheck.montecarlo.temperature_rows import position_temperature, strings_at_temperature
 from stringcheck.montecarlo.sensitivity import (
@@ -49,6 +50,7 @@ from stringcheck.montecarlo.sensitivity import (
     tightenable,
 )
 from stringcheck.montecarlo.sensitivity import tightened
+from stringcheck.checks.junction import needs_junction_law, part_junction
 from stringcheck.checks.series import PositionStatistics
 from stringcheck.checks.outcome import (
     CheckOutcome,
@@ -253,6 +255,8 @@ def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: i
     charge = np.empty(shape)
     resistance = np.full(shape, np.inf)
     capacitance = np.zeros(shape)
+    # Each device's C_j factor, as the dynamic check drew it (montecarlo.junction_scatter).
+    factor = np.ones(shape) if scatters(design) else None
     for where, rows, drawn in _redrawn(design, selected, trials, seed):
         drawn = strings_at_temperature(design, drawn, position_temperature(design), ("q_rr",))
         charge[where] = drawn.parameters["q_rr"][rows]
@@ -262,7 +266,14 @@ def _stage_rows(design: Design, fits, selected: np.ndarray, trials: int, seed: i
             resistance[where] = drawn.resistance[rows]
         if drawn.capacitance is not None:
             capacitance[where] = drawn.capacitance[rows]
-    return _engine_inputs(design, fits, grid, charge, resistance, capacitance)
+        if factor is not None:
+            factor[where] = junction_factors(design, parts, drawn.first_trial, drawn.trials,
+                                             seed)[rows]
+    stage = _engine_inputs(design, fits, grid, charge, resistance, capacitance)
+    if factor is not None:
+        stage["junction_capacitance"] = stage["junction_capacitance"] * factor.reshape(
+            stage["junction_capacitance"].shape)
+    return stage
 
 
 def _redrawn(design: Design, selected: np.ndarray, trials: int, seed: int):
@@ -301,11 +312,29 @@ def _engine_inputs(design: Design, fits, grid: np.ndarray, charge: np.ndarray,
         junction[mask] = design.parts[name].c_j
         limit[mask] = layout.derating * design.parts[name].v_rrm
     rows_shape = (shape[0] * layout.parallel, layout.series)
+    law = {}
+    if needs_junction_law(design):
+        # C_j(V) of each part's junction law (checks.junction): C_j0, phi and gamma.
+        potential, exponent = np.empty(shape), np.empty(shape)
+        for name in fits:
+            mask = grid == name
+            fitted = part_junction(design.parts[name])
+            junction[mask] = fitted.zero_bias_capacitance
+            potential[mask] = fitted.built_in_potential
+            exponent[mask] = fitted.grading_exponent
+        law = {"junction_potential": potential.reshape(rows_shape),
+               "junction_exponent": exponent.reshape(rows_shape)}
     return {"lifetime": lifetime.reshape(rows_shape),
             "transit_time": transit.reshape(rows_shape),
             "junction_capacitance": junction.reshape(rows_shape),
             "grading_resistance": resistance.reshape(rows_shape),
-            "grading_capacitance": capacitance.reshape(rows_shape), "limit": limit}
+            "grading_capacitance": capacitance.reshape(rows_shape), "limit": limit, **law}
+
+
+def _junction_law(stage: dict, rows: slice) -> dict:
+    """The engine's junction-law keywords for ``rows`` of ``stage`` (none: C_j constant)."""
+    return {key: stage[key][rows] for key in ("junction_potential", "junction_exponent")
+            if key in stage}
 
 
 def transient_evaluator(design: Design) -> Callable[[DrawnStrings], np.ndarray]:
@@ -385,7 +414,7 @@ def trial_trace(design: Design, trial: int, *, trials: int | None = None,
         stage["transit_time"][row], stage["junction_capacitance"][row],
         stage["grading_resistance"][row], stage["grading_capacitance"][row],
         design.grading.damping_resistor or 0.0, temperature=design.duty.ambient + 273.15,
-        record=True)
+        record=True, **_junction_law(stage, row))
     return result, notes
 
 
@@ -429,7 +458,7 @@ def _run_engine(design: Design, stage: dict, strings: int, inductance: float, fo
             design.duty.reverse_voltage, inductance, forward, stage["lifetime"][part],
             stage["transit_time"][part], stage["junction_capacitance"][part],
             stage["grading_resistance"][part], stage["grading_capacitance"][part], damping,
-            temperature=temperature)
+            temperature=temperature, **_junction_law(stage, part))
         peaks[part] = result.peak_voltage
         overshoot[part] = result.overshoot
         current[part] = result.peak_current

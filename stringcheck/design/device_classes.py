@@ -89,7 +89,10 @@ _PRESETS: dict[str, dict[str, Any]] = {
         "i_rm": {"typ": "0.3 A", "max": "0.5 A", "at_di_dt": "200 A/us"},
         "v_t0": {"typ": "0.95 V", "max": "1.05 V", "at_temperature": "25 degC"},
         "r_t": {"typ": "70 mOhm", "max": "90 mOhm", "at_temperature": "25 degC"},
-        "c_j": "40 pF",
+        # C_j rows consistent with the class's capacitive charge: Q_c(400 V) = integral of C_j dV
+        # is about 20 nC through the junction law fitted to them (tests/design).
+        "c_j": [{"typ": "400 pF", "at_voltage": "1 V"},
+                {"typ": "26 pF", "max": "31 pF", "at_voltage": "400 V"}],
         "r_th_jc": "2.0 K/W",
         "r_th_cs": "0.3 K/W",
         "t_j_max": "175 degC",
@@ -101,6 +104,26 @@ _PRESETS: dict[str, dict[str, Any]] = {
 }
 
 PRESET_NAMES: tuple[str, ...] = tuple(_PRESETS)
+
+# The junction law C_j0 / (1 + V/phi)^gamma of each class's junction (phi [V], gamma [1]), held
+# when a part gives C_j as rows (gamma only where one row gives no slope). Typical of the kind of
+# junction (common practice, from memory): a diffused rectifier's junction is graded (gamma about
+# 1/3), a Schottky barrier abrupt (1/2); phi about 0.7 V for silicon p-n, 0.5 V for a silicon
+# Schottky barrier and about 1.2 V for a silicon-carbide Schottky barrier.
+_JUNCTION_LAWS: dict[str | None, tuple[float, float]] = {
+    "si-rectifier": (0.7, 1.0 / 3.0),
+    "si-fast-recovery": (0.7, 0.4),
+    "si-schottky": (0.5, 0.5),
+    "sic-schottky": (1.2, 0.5),
+    None: (0.7, 0.5),
+}
+
+
+def junction_law_defaults(name: str | None) -> tuple[float, float, str]:
+    """phi [V] and gamma [1] of the junction law held for a part of class ``name`` (None: no
+    class, the silicon abrupt junction), and what they stand for (the class, or "silicon")."""
+    phi, gamma = _JUNCTION_LAWS.get(name, _JUNCTION_LAWS[None])
+    return phi, gamma, f"class '{name}'" if name in _PRESETS else "silicon p-n"
 
 
 def preset(name: str) -> Mapping[str, Any]:

@@ -119,6 +119,10 @@ class Part:
     # The temperature law of a recovery parameter given in one row only: (parameter, rate [1/K])
     # with value(T) = value(T_row) exp(rate (T - T_row)) (the device class's law).
     recovery_rates: tuple[tuple[str, float], ...] = ()
+    # C_j as datasheet rows (stringcheck.design.junction.JunctionRows; None: the constant c_j),
+    # and whether the recovery charge is the junction's capacitive charge (SiC Schottky).
+    junction_rows: "JunctionRows | None" = None
+    capacitive: bool = False
 
     def spread(self, parameter: str) -> Spread | None:
         """The spread of ``parameter`` (one of SPREAD_PARAMETERS), or None if not given."""

@@ -14,6 +14,7 @@ import numpy as np
 
 from stringcheck.constants import DATASHEET_TEMPERATURE
 from stringcheck.design import device_classes as presets
+from stringcheck.design.junction import is_rows, read_junction_rows
 from stringcheck.design.model import SPREAD_PARAMETERS, Design, Part, Spread
 from stringcheck.findings import Finding, Value
 from stringcheck.units import (
@@ -83,6 +84,12 @@ def read_parts(reader: Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
                                    f"{join_key(prefix, parameter)}; give either the rows or "
                                    f"{key}, not both")
             merged.pop(key, None)  # a class's value gives way to the rows
+        junction_rows = None
+        if is_rows(merged.get("c_j")):
+            junction_rows = read_junction_rows(reader, merged["c_j"], prefix, device_class)
+            # The constant c_j the rows stand for where a check has no C_j(V): the row at the
+            # highest voltage, nearest a blocking stage's.
+            merged["c_j"] = f"{junction_rows.rows[-1].typ!r} F"
         scalars = {}
         for key, unit in _PART_SCALARS.items():
             if key in fitted:
@@ -111,12 +118,19 @@ def read_parts(reader: Reader, raw: Mapping[str, Any]) -> dict[str, Part]:
         scalars["doubling_temperature"] = scalars.pop("leakage_doubling")
         scalars["voltage_exponent"] = scalars.pop("leakage_voltage_exponent")
         rates = _recovery_law(reader, device_class, spreads, row_lists, prefix)
+        # The recovery charge is the junction's own (integral of C_j dV up to the stage voltage)
+        # for a SiC Schottky diode, and for a part giving c_j but no q_rr, nor the i_rm and t_rr
+        # a stored charge is derived from.
+        capacitive = device_class == "sic-schottky" or (
+            "c_j" in merged and "q_rr" not in merged
+            and not ("i_rm" in merged and "t_rr" in merged))
         parts[name] = Part(name=name, device_class=device_class, measured=lot, **scalars,
                            **spreads,
                            temperature_rows=tuple((parameter, rows)
                                                   for parameter, rows in row_lists.items()
                                                   if len(rows) >= 2),
-                           recovery_rates=rates)
+                           recovery_rates=rates, junction_rows=junction_rows,
+                           capacitive=capacitive)
     return parts
 
 

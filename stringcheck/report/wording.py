@@ -168,6 +168,15 @@ TEMPLATES: dict[str, str] = {
     "assumed.part_tempco_v_t0":
         "{key} not given: V_T0 temperature coefficient -2 mV/K (silicon PN, common practice)",
     "assumed.part_tempco_r_t": "{key} not given: r_T temperature coefficient 0 1/K",
+    "assumed.c_j_law_one_row":
+        "{key}: one row; C_j(V) = C_j0 / (1 + V/phi)^gamma through it with phi = {potential} and "
+        "gamma = {exponent:.3g} ({basis}, common practice)",
+    "assumed.c_j_law_fitted":
+        "{key}: C_j(V) = C_j0 / (1 + V/phi)^gamma fitted to the rows with phi = {potential} held "
+        "({basis}, common practice)",
+    "assumed.q_rr_capacitive":
+        "{key} not given: the junction's typical capacitive charge up to {voltage} (an even share "
+        "of the string voltage) stands for it outside the charge balance",
     "assumed.typ_geometric_mean": "{key}: typ not given, taken as the geometric mean of min and max",
     "assumed.typ_midpoint": "{key}: typ not given, taken as the midpoint of min and max",
     "assumed.typ_from_max": "{key}: only max given, typ taken as {fraction:g} x max",
@@ -237,6 +246,10 @@ TEMPLATES: dict[str, str] = {
     "model.mixed_stock":
         "mixed stock: {causes}; a mixed position (part A|B) is judged device by device against the "
         "limit of the part drawn, and its per-position limit shown is the lowest of the two",
+    "recovery.capacitive":
+        "recovery charge of capacitive devices ({parts} typical, up to {voltage}): the junction's "
+        "own charge, the integral of C_j dV up to each stage's voltage, not an added Q_rr; the "
+        "charge balance follows C_j(V)",
     # checks.recovery_conditions: how the recovery charge was carried to the application
     "recovery.not_rescaled":
         "recovery charge: Q_rr taken at the datasheet's test conditions, not rescaled to the "

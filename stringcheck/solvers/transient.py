@@ -85,11 +85,14 @@ from stringcheck.physics.charge_control import (
     thermal_voltage,
 )
 
+from stringcheck.physics.junction_capacitance import junction_capacitance
 from stringcheck.solvers.turn_off_newton import (
     StringCircuit,
     circuit_rates,
     factor_jacobian,
     newton_solve,
+    node_capacitance_at,
+    node_charge,
     settled_values,
     solve_linear,
 )
@@ -221,6 +224,8 @@ def simulate_turn_off(
     settle_tolerance: float = 1e-3,
     max_steps: int = 100_000,
     record: bool = False,
+    junction_potential: ArrayLike | None = None,
+    junction_exponent: ArrayLike | None = None,
 ) -> TurnOff:
     """Simulate the turn-off of a series string of charge-control diodes, trial by trial.
 
@@ -262,6 +267,11 @@ def simulate_turn_off(
         Most steps (accepted and rejected) per trial before it is reported as not converged.
     record
         Keep every step in :attr:`TurnOff.trace` (memory grows as steps x trials x n).
+    junction_potential, junction_exponent
+        phi [V] > 0 and gamma [1] in [0, 1] of the junction law C_j0 / (1 + V/phi)^gamma
+        (:mod:`stringcheck.physics.junction_capacitance`), broadcastable to ``(trials, n)``;
+        with them ``junction_capacitance`` is C_j0 and each node's charge follows the law
+        (``None``: C_j constant, as before).
 
     Returns
     -------
@@ -287,7 +297,8 @@ def simulate_turn_off(
          np.nan if duration is None else duration, np.nan if max_step is None else max_step],
         [lifetime, transit_time, junction_capacitance, grading_resistance, grading_capacitance,
          damping_resistance, leakage_conductance, saturation_current, emission_coefficient,
-         temperature],
+         temperature] + ([] if junction_exponent is None else [
+             1.0 if junction_potential is None else junction_potential, junction_exponent]),
     )
     with np.errstate(divide="ignore", invalid="ignore"):  # bad rows are flagged just below
         circuit, state = _build(loop, stage)
@@ -303,7 +314,8 @@ def simulate_turn_off(
     valid = np.isfinite(np.concatenate(
         [np.stack(loop[:4] + [circuit.duration, circuit.max_step, circuit.current_scale], axis=1),
          state.v, state.q] + [getattr(circuit, f.name) for f in fields(StringCircuit)
-                              if getattr(circuit, f.name).ndim == 2], axis=1)).all(axis=1)
+                              if getattr(circuit, f.name) is not None
+                              and getattr(circuit, f.name).ndim == 2], axis=1)).all(axis=1)
     valid &= (np.concatenate([circuit.lifetime, circuit.transit_time, circuit.stage_capacitance,
                               np.stack([circuit.inductance, circuit.duration, circuit.max_step],
                                        axis=1)], axis=1) > 0.0).all(axis=1)
@@ -403,8 +415,15 @@ class _State:
 def _build(loop, stage):
     """Per-trial constants, default duration and step limit, and the forward starting state."""
     source, inductance, current, resistance, duration, max_step = loop
-    tau, transit, c_j, r_grading, c_grading, r_damping, g_leak, i_sat, emission, temp = stage
+    tau, transit, c_j, r_grading, c_grading, r_damping, g_leak, i_sat, emission, temp = stage[:10]
+    law = stage[10:]  # phi and gamma of the junction law, where C_j depends on the voltage
     count = tau.shape[1]
+    zero_bias = c_j
+    if law:
+        # C_j at an even share of V_s sets the scales, the ringing period and the step limit;
+        # the node holds C_j0, its charge follows the law (turn_off_newton.node_charge).
+        c_j = junction_capacitance((source / count)[:, None], zero_bias,
+                                   built_in_potential=law[0], grading_exponent=law[1])
     stage_capacitance = c_j + c_grading
     # R_d below 1e-12 of the stage's impedance sqrt(L / C) changes no result above rounding but
     # makes the equations needlessly stiff (and 1 / R_d overflows for a subnormal R_d): it puts
@@ -426,7 +445,7 @@ def _build(loop, stage):
         source=source, inductance=inductance, loop_resistance=resistance,
         saturation_charge=i_sat * tau, inverse_scale=1.0 / (emission * thermal_voltage(temp)),
         lifetime=tau, transit_time=transit,
-        node_capacitance=np.where(merged, stage_capacitance, c_j),
+        node_capacitance=np.where(merged, zero_bias + c_grading, zero_bias),
         branch_capacitance=np.where(unused, 1.0, c_grading),  # a placeholder where unused
         held_capacitance=np.where(merged, 0.0, c_grading),
         damping_conductance=np.where(unused, 0.0, 1.0 / np.where(unused, 1.0, r_damping)),
@@ -435,6 +454,8 @@ def _build(loop, stage):
         current_scale=np.maximum(current, source * np.sqrt(series_capacitance / inductance)),
         charge_scale=tau * current[:, None] + stage_capacitance * voltage_scale[:, None],
         duration=duration, max_step=max_step,
+        **(dict(junction_zero_bias=zero_bias, junction_potential=law[0],
+                junction_exponent=law[1]) if law else {}),
     )
     start = forward_state(current[:, None], tau, transit, shunt_conductance=shunt,
                           saturation_current=i_sat, emission_coefficient=emission,
@@ -460,12 +481,14 @@ def _trbdf2_step(c, state, step, rtol):
     a2 = a[:, None]
     rate_v, rate_q, rate_w, rate_i = state.rates[:4]
     # Trapezoidal stage to t + gamma h, then BDF2 stage to t + h; the same matrix M - a J.
-    rhs = (c.node_capacitance * v + a2 * rate_v, q + a2 * rate_q,
+    rhs = (node_charge(c, v) + a2 * rate_v, q + a2 * rate_q,
            c.branch_capacitance * w + a2 * rate_w, c.inductance * i + a * rate_i)
     middle, ok_middle = newton_solve(c, a, rhs, (v, q, w, i), weights)
     middle_rates = circuit_rates(c, *middle)
     sv, sq, sw, si = middle
-    rhs = (c.node_capacitance * (_FROM_STAGE * sv - _FROM_START * v),
+    rhs = (_FROM_STAGE * node_charge(c, sv) - _FROM_START * node_charge(c, v)
+           if c.junction_exponent is not None else
+           c.node_capacitance * (_FROM_STAGE * sv - _FROM_START * v),
            _FROM_STAGE * sq - _FROM_START * q,
            c.branch_capacitance * (_FROM_STAGE * sw - _FROM_START * w),
            c.inductance * (_FROM_STAGE * si - _FROM_START * i))
@@ -476,7 +499,8 @@ def _trbdf2_step(c, state, step, rtol):
     estimate = [2.0 * _ERROR_CONSTANT * (step if f0.ndim == 1 else step[:, None])
                 * ((f1 - fg) / (1.0 - _GAMMA) - (fg - f0) / _GAMMA)
                 for f0, fg, f1 in zip(state.rates[:4], middle_rates[:4], new_rates[:4])]
-    ev, eq, ew, ei = solve_linear(c, a, factor_jacobian(c, a, new_rates[4]), new_rates[4], *estimate)
+    factors = factor_jacobian(c, a, new_rates[4], node_capacitance_at(c, nv))
+    ev, eq, ew, ei = solve_linear(c, a, factors, new_rates[4], *estimate)
     error = np.maximum.reduce([
         (np.maximum(np.abs(ev), np.abs(ew)) / np.maximum(weight_v, rtol * np.abs(nv))).max(axis=1),
         (np.abs(eq) / np.maximum(weight_q, rtol * np.abs(nq))).max(axis=1),

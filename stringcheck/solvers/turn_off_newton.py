@@ -19,6 +19,8 @@ from dataclasses import dataclass, fields
 import numpy as np
 from numpy.typing import NDArray
 
+from stringcheck.physics.junction_capacitance import junction_capacitance, junction_charge
+
 _NEWTON_TOLERANCE = 0.03
 _NEWTON_ITERATIONS = 10
 _FORWARD_CAP = 4.0  # largest rise of v per Newton iteration in forward bias [n V_T]
@@ -46,9 +48,38 @@ class StringCircuit:
     charge_scale: NDArray[np.float64]
     duration: NDArray[np.float64]
     max_step: NDArray[np.float64]
+    # The junction law C_j0 / (1 + V/phi)^gamma of each stage (None: C_j constant, inside
+    # node_capacitance); node_capacitance then holds C_j0 (plus a merged grading capacitor).
+    junction_zero_bias: NDArray[np.float64] | None = None
+    junction_potential: NDArray[np.float64] | None = None
+    junction_exponent: NDArray[np.float64] | None = None
 
     def take(self, rows: NDArray[np.intp]) -> StringCircuit:
-        return StringCircuit(**{f.name: getattr(self, f.name)[rows] for f in fields(self)})
+        return StringCircuit(**{f.name: None if getattr(self, f.name) is None else
+                                getattr(self, f.name)[rows] for f in fields(self)})
+
+
+def node_charge(c, v):
+    """Charge of each stage's node capacitance at v [C] (forward orientation): C v for a constant
+    C_j; with the junction law, -Q_c(-v) of the junction in reverse bias (C_j0 v in forward bias,
+    where the diffusion charge q_M dominates) plus the merged grading capacitor's C v."""
+    if c.junction_exponent is None:
+        return c.node_capacitance * v
+    reverse = np.maximum(-v, 0.0)
+    junction = np.where(v > 0.0, c.junction_zero_bias * v, -junction_charge(
+        reverse, c.junction_zero_bias, built_in_potential=c.junction_potential,
+        grading_exponent=c.junction_exponent))
+    return (c.node_capacitance - c.junction_zero_bias) * v + junction
+
+
+def node_capacitance_at(c, v):
+    """d(node charge)/dv at v [F]: ``node_capacitance``, or with the junction law C_j(-v)."""
+    if c.junction_exponent is None:
+        return c.node_capacitance
+    junction = junction_capacitance(np.maximum(-v, 0.0), c.junction_zero_bias,
+                                    built_in_potential=c.junction_potential,
+                                    grading_exponent=c.junction_exponent)
+    return c.node_capacitance - c.junction_zero_bias + junction
 
 
 def circuit_rates(c, v, q, w, i):
@@ -63,13 +94,14 @@ def circuit_rates(c, v, q, w, i):
     return rate_v, rate_q, branch, rate_i, slope, branch * (v - w)
 
 
-def factor_jacobian(c, a, slope):
-    """Pivots of M - a J after eliminating q_M and w of every stage (Schur complement)."""
+def factor_jacobian(c, a, slope, capacitance=None):
+    """Pivots of M - a J after eliminating q_M and w of every stage (Schur complement);
+    ``capacitance``: dM/dv of the nodes where C_j depends on v (default ``node_capacitance``)."""
     a2 = a[:, None]
     pivot_q = 1.0 + a2 / c.transit_time + a2 / c.lifetime
     pivot_w = c.branch_capacitance + a2 * c.damping_conductance
     pivot_v = (
-        c.node_capacitance
+        (c.node_capacitance if capacitance is None else capacitance)
         + a2 * c.shunt_conductance
         + a2 * slope * (1.0 + a2 / c.lifetime) / pivot_q
         + a2 * c.damping_conductance * c.branch_capacitance / pivot_w
@@ -105,12 +137,13 @@ def newton_solve(c, a, rhs, start, weights, iterations=_NEWTON_ITERATIONS):
     a2 = a[:, None]
     for iteration in range(iterations):
         rate_v, rate_q, rate_w, rate_i, slope, _ = circuit_rates(c, v, q, w, i)
-        bv = rhs[0] - c.node_capacitance * v + a2 * rate_v
+        bv = rhs[0] - node_charge(c, v) + a2 * rate_v
         bq = rhs[1] - q + a2 * rate_q
         bw = rhs[2] - c.branch_capacitance * w + a2 * rate_w
         bi = rhs[3] - c.inductance * i + a * rate_i
         room = np.maximum(np.maximum(v, 0.0) + cap - v, 0.0)
-        dv, dq, dw, di = solve_linear(c, a, factor_jacobian(c, a, slope), slope, bv, bq, bw, bi, room)
+        factors = factor_jacobian(c, a, slope, node_capacitance_at(c, v))
+        dv, dq, dw, di = solve_linear(c, a, factors, slope, bv, bq, bw, bi, room)
         size = np.maximum(
             np.max(np.maximum(np.abs(dv) / weight_v, np.abs(dw) / weight_v), axis=1),
             np.maximum(np.max(np.abs(dq) / weight_q, axis=1), np.abs(di) / weight_i),
@@ -136,7 +169,16 @@ def newton_solve(c, a, rhs, start, weights, iterations=_NEWTON_ITERATIONS):
 
 
 def settled_values(c, v, w):
-    """Charge-balance reverse voltages the ringing decays towards (module notes)."""
+    """Charge-balance reverse voltages the ringing decays towards (module notes); with the
+    junction law, the balance linearised about the present stage voltages (exact once settled)."""
+    if c.junction_exponent is not None:
+        capacitance = node_capacitance_at(c, v) + c.held_capacitance
+        inverse = 1.0 / capacitance
+        # Stage k holds the charge it would hold with node and capacitor at -v, plus
+        # held (v - w); a common further charge dQ moves it by (dQ + held (v - w)) / C_k(v).
+        offset = c.held_capacitance * (v - w)
+        further = (c.source + v.sum(axis=1) - (offset * inverse).sum(axis=1)) / inverse.sum(axis=1)
+        return -v + (offset + further[:, None]) * inverse
     charge = -(c.node_capacitance * v + c.held_capacitance * w)
     inverse = 1.0 / c.stage_capacitance
     further = (c.source - (charge * inverse).sum(axis=1)) / inverse.sum(axis=1)

@@ -357,7 +357,7 @@ def _plan(design: Design, seed: int, only: tuple[str, ...] | None, drivers: bool
     setups = []
     for number in taking:
         steps = CHECK_STEPS[number]
-        setups.append(steps.setup(design, reasons, rescaling))
+        setups.append(steps.setup(design, reasons, rescaling, seed))
         parameters += steps.parameters(design, reasons)
     context = _ChunkContext(design=design, seed=seed, parameters=tuple(dict.fromkeys(parameters)),
                             steps=tuple(taking), setups=tuple(setups),

@@ -443,6 +443,27 @@ SIZING = [
      'no device count from 8 to 32 passes with this network'),
 ]
 
+# Issue 17 (capj): the junction law of C_j rows and the capacitive recovery charge.
+TODAY += [
+    (Finding("assumed.c_j_law_one_row", {"key": Value("parts.S.c_j"), "potential": Value(1.2, "V"),
+                                         "basis": Value("class 'sic-schottky'"),
+                                         "exponent": Value(0.5)}),
+     "parts.S.c_j: one row; C_j(V) = C_j0 / (1 + V/phi)^gamma through it with phi = 1.2 V and "
+     "gamma = 0.5 (class 'sic-schottky', common practice)"),
+    (Finding("assumed.c_j_law_fitted", {"key": Value("parts.S.c_j"), "potential": Value(0.7, "V"),
+                                        "basis": Value("silicon p-n")}),
+     "parts.S.c_j: C_j(V) = C_j0 / (1 + V/phi)^gamma fitted to the rows with phi = 700 mV held "
+     "(silicon p-n, common practice)"),
+    (Finding("assumed.q_rr_capacitive", {"key": Value("parts.S.q_rr"),
+                                         "voltage": Value(400.0, "V")}),
+     "parts.S.q_rr not given: the junction's typical capacitive charge up to 400 V (an even "
+     "share of the string voltage) stands for it outside the charge balance"),
+    (Finding("recovery.capacitive", {"parts": Value("parts.S 2.06e-08 C"),
+                                     "voltage": Value(400.0, "V")}),
+     "recovery charge of capacitive devices (parts.S 2.06e-08 C typical, up to 400 V): the "
+     "junction's own charge, the integral of C_j dV up to each stage's voltage, not an added "
+     "Q_rr; the charge balance follows C_j(V)"),
+]
 # The command line's wording of the one code that names a setting (the JSON of `size` has it).
 SIZE_DAMPING = (Finding("size.damping_slower_than_recovery", {"time_constant": Value(3.3e-7, "s")},
                         Value(1.5e-7, "s")),

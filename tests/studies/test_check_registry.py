@@ -63,7 +63,7 @@ def _finish(design, setup, reasons, accumulator, run):
 SPREAD_STEPS = CheckSteps(
     names=("spread",),
     reasons=lambda design, names: {name: None for name in names},
-    setup=lambda design, reasons, rescaling: 2.0 if reasons["spread"] is None else None,
+    setup=lambda design, reasons, rescaling, seed=None: 2.0 if reasons["spread"] is None else None,
     parameters=lambda design, reasons: ("i_r",),
     evaluate=_ratios, accumulator=_Ratios, finish=_finish,
     chunk_ratios=lambda chunk, count: {"spread": chunk[:count]},
