@@ -164,7 +164,8 @@ def check(
 
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,
-          find_series, workers=1, transient=None, write_path=None, force=False) -> int:
+          find_series, workers=1, transient=None, write_path=None, force=False,
+          report_path=None) -> int:
     from stringcheck.design.reading import load_design
     from stringcheck.report.design_file import sized_design_text
     from stringcheck.report.export import json_text, no_proposal_to_dict, sizing_to_dict
@@ -177,7 +178,7 @@ def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capaci
     from stringcheck.studies.size import size as run_size
 
     design = load_design(path)
-    output_files.check_output_targets({"--json": json_path},
+    output_files.check_output_targets({"--json": json_path, "--report": report_path},
                                       inputs=output_files.design_inputs(design, path))
     if write_path is not None:
         output_files.check_write_target(write_path, force=force, json_path=json_path)
@@ -200,6 +201,11 @@ def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capaci
     if write_path is not None:
         outputs.append((write_path, sized_design_text(Path(path).read_text(encoding="utf-8"),
                                                       result, source=str(path))))
+    if report_path is not None:
+        from stringcheck.report.html_page import sizing_page
+
+        outputs.append((report_path, sizing_page(result, command_line=_command_line(),
+                                                 spell=option_wording)))
     shown_on = console(stderr=json_path == "-", wrap=not quiet)
     with output_files.atomic_outputs(outputs), output_files.report_stream(json_path == "-"):
         if quiet:
@@ -221,6 +227,7 @@ def size(
     trials: Trials = None,
     seed: Seed = None,
     json: JsonPath = None,
+    report: ReportPath = None,
     quiet: Quiet = False,
     workers: Workers = 1,
     transient: Annotated[Optional[bool], typer.Option(
@@ -239,13 +246,13 @@ def size(
     run_guarded(lambda: _size(file, trials=trials, seed=seed, json_path=json, quiet=quiet,
                               resistor_series=resistor_series, capacitor_series=capacitor_series,
                               find_series=find_series, workers=workers, transient=transient,
-                              write_path=write, force=force),
+                              write_path=write, force=force, report_path=report),
                 debug)
 
 
 def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trials, seed,
             json_path, quiet, workers, transient, drivers=False, rare=None,
-            csv_path=None) -> int:
+            csv_path=None, report_path=None) -> int:
     from stringcheck.design.reading import load_design
     from stringcheck.report.export import json_text
     from stringcheck.report.review import (
@@ -264,7 +271,8 @@ def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trial
     if candidate_path is not None:
         candidate = load_design(candidate_path)
         read += output_files.design_inputs(candidate, candidate_path, "the candidate design file")
-    output_files.check_output_targets({"--json": json_path, "--csv": csv_path}, inputs=read)
+    output_files.check_output_targets({"--json": json_path, "--csv": csv_path,
+                                       "--report": report_path}, inputs=read)
     if candidate_path is None:
         candidate = substituted(baseline, swap=swap, mix=mix)
     with DelayedProgress(enabled=not quiet, label="baseline, then candidate") as progress:
@@ -273,8 +281,12 @@ def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trial
     outputs = [] if json_path is None else [(json_path, json_text(review_to_dict(result)))]
     if csv_path is not None:
         outputs.append((csv_path, review_positions_csv(result)))
+    if report_path is not None:
+        from stringcheck.report.html_page import review_page
+
+        outputs.append((report_path, review_page(result, command_line=_command_line())))
     with output_files.atomic_outputs(outputs):
-        _print_report(result, quiet=quiet, stderr="-" in (json_path, csv_path),
+        _print_report(result, quiet=quiet, stderr="-" in (json_path, csv_path, report_path),
                       full=render_review, summary=render_review_summary)
     return EXIT_PASS if result.verdict == "accept" else EXIT_FAIL
 
@@ -297,6 +309,7 @@ def review(
     seed: Seed = None,
     json: JsonPath = None,
     csv: CsvPath = None,
+    report: ReportPath = None,
     quiet: Quiet = False,
     workers: Workers = 1,
     transient: Transient = False,
@@ -307,7 +320,8 @@ def review(
     """May a candidate replace the baseline? Both checked on the same draws; exit 0 accept, 1 reject."""
     run_guarded(lambda: _review(base, candidate, swap=swap, mix=mix, trials=trials, seed=seed,
                                 json_path=json, quiet=quiet, workers=workers, transient=transient,
-                                drivers=drivers, rare=rare, csv_path=csv), debug)
+                                drivers=drivers, rare=rare, csv_path=csv, report_path=report),
+                debug)
 
 
 def _window_end(text: str) -> float:

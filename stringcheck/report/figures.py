@@ -19,12 +19,13 @@ import matplotlib
 
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402  (after the backend is chosen)
+import matplotlib.ticker  # noqa: E402
 import numpy as np  # noqa: E402
 
 from stringcheck.units import ENGINEERING_PREFIXES  # noqa: E402
 
 __all__ = ["branch_current_figure", "drivers_figure", "junction_figure",
-           "position_figure", "runaway_figure", "sizing_curve_figure", "stress_distribution_figure",
+           "position_figure", "review_position_figure", "runaway_figure", "sizing_curve_figure", "stress_distribution_figure",
            "svg_text", "wave_figure"]
 
 # Our own plain look: ink for data, a second ink for limits; widths and dashes tell them apart.
@@ -268,32 +269,87 @@ def drivers_figure(drivers, check: str) -> str:
 
 
 @_styled
-def sizing_curve_figure(points, *, x_label: str, x_unit: str, target: float,
-                        chosen: float | None = None, corner: float | None = None) -> str:
-    """A sizing search's design curve: the P(fail) upper bound (and the estimate) of each searched
-    value on a log scale, with the target (dashed), the textbook corner (dotted) and the chosen
-    value marked. ``points``: (value, p_fail, p_fail_upper) each."""
+def sizing_curve_figure(ladder, *, x_label: str, x_unit: str, target: float) -> str:
+    """A sizing search's design curve (``studies.size.LadderChoice``): the P(fail) upper bound
+    and estimate of every value searched (log scale, left), the p99 stress ratio (right), the
+    target (dashed), the textbook corner (dotted) and the chosen value (solid line)."""
+    points = sorted(ladder.curve, key=lambda c: c.value)
     figure, axes = _figure()
-    values = np.array([p[0] for p in points], float)
+    values = np.array([c.value for c in points], float)
     factor, unit = _scale(values, x_unit)
-    order = np.argsort(values)
-    upper = np.array([p[2] for p in points], float)[order]
-    estimate = np.array([p[1] for p in points], float)[order]
-    floor = min(target / 100, np.nanmin(np.where(upper > 0, upper, np.nan), initial=target))
-    axes.plot(values[order] / factor, np.maximum(upper, floor), marker="o", ms=3, color=INK,
+    upper = np.array([c.p_fail_upper for c in points], float)
+    estimate = np.array([c.p_fail for c in points], float)
+    finite = upper[(upper > 0) & np.isfinite(upper)]
+    floor = min(target / 100, finite.min() / 2) if finite.size else target / 100
+    axes.plot(values / factor, np.maximum(upper, floor), marker="o", ms=3, color=INK,
               label="P(fail) upper bound")
-    axes.plot(values[order] / factor, np.where(estimate > 0, estimate, np.nan), marker=".",
-              ls=":", color=SOFT, label="P(fail) estimate")
+    axes.plot(values / factor, np.where(estimate > 0, estimate, np.nan), marker=".", ls=":",
+              color=SOFT, label="P(fail) estimate")
     axes.axhline(target, color=LIMIT, ls="--", lw=1.2, label="target")
-    if corner is not None:
-        axes.axvline(corner / factor, color=LIMIT, ls=":", lw=1.0, label="textbook corner")
-    if chosen is not None:
-        axes.axvline(chosen / factor, color=INK, lw=1.4, label="chosen")
+    if ladder.textbook_bound is not None and np.isfinite(ladder.textbook_bound):
+        axes.axvline(ladder.textbook_bound / factor, color=LIMIT, ls=":", lw=1.0,
+                     label="textbook corner")
+    if ladder.chosen is not None:
+        axes.axvline(ladder.chosen.value / factor, color=INK, lw=1.4, label="chosen")
     axes.set_xscale("log")
     axes.set_yscale("log")
+    # Plain numbers on the value axis (the unit carries the prefix), P(fail) from below the
+    # lowest bound drawn up to 1.
+    plain = matplotlib.ticker.FuncFormatter(lambda value, _: f"{value:g}")
+    axes.xaxis.set_major_formatter(plain)
+    axes.xaxis.set_minor_formatter(plain)
+    axes.set_ylim(floor / 2, 1.5)
     axes.set_xlabel(f"{x_label} [{unit}]")
     axes.set_ylabel("P(fail)")
-    _legend_above(axes, ncol=3)
+    twin = axes.twinx()
+    p99 = np.array([c.p99_ratio for c in points], float)
+    twin.plot(values / factor, p99, marker="s", ms=2.5, ls="-.", color=SOFT, lw=0.9,
+              label="p99 stress / limit (right)")
+    twin.set_ylabel("p99 stress / limit")
+    twin.grid(False)
+    twin.spines["right"].set_visible(True)
+    _legend_above(axes, ncol=3, extra=twin)
+    return svg_text(figure)
+
+
+@_styled
+def review_position_figure(positions, check: str) -> str:
+    """A review's per-position change in one check (``studies.review.PositionDelta``): each
+    position's worst and mean stress over its own limit in the baseline (open marks, dashed) and
+    the candidate (filled marks, solid), position by position along the stack; the limit at 1."""
+    rows = [p for p in positions if p.check == check]
+    figure, axes = _figure()
+    x = np.arange(1, len(rows) + 1)
+
+    def ratio(values, limits):
+        values, limits = np.asarray(values, float), np.asarray(limits, float)
+        return np.where(limits > 0, values / np.where(limits > 0, limits, 1.0), np.nan)
+
+    base_worst = ratio([p.baseline_worst for p in rows], [p.baseline_limit for p in rows])
+    cand_worst = ratio([p.candidate_worst for p in rows], [p.candidate_limit for p in rows])
+    base_mean = ratio([p.baseline_mean for p in rows], [p.baseline_limit for p in rows])
+    cand_mean = ratio([p.candidate_mean for p in rows], [p.candidate_limit for p in rows])
+    axes.plot(x, base_worst, ls="--", marker="o", mfc="white", ms=4, color=SOFT, lw=1.0,
+              label="baseline, worst")
+    axes.plot(x, cand_worst, ls="-", marker="o", ms=4, color=INK, lw=1.2,
+              label="candidate, worst")
+    axes.plot(x, base_mean, ls="--", marker="s", mfc="white", ms=3, color=SOFT, lw=0.8,
+              label="baseline, mean")
+    axes.plot(x, cand_mean, ls="-", marker="s", ms=3, color=INK, lw=0.8,
+              label="candidate, mean")
+    changed = [number for number, p in enumerate(rows, start=1)
+               if p.baseline_part != p.candidate_part]
+    for number in changed:
+        axes.axvspan(number - 0.5, number + 0.5, color="#f2e6d9", lw=0, zorder=0)
+    if changed:
+        axes.fill_between([], [], color="#f2e6d9", label="part substituted")
+    axes.axhline(1.0, color=LIMIT, ls="--", lw=1.2, label="limit")
+    axes.set_xlim(0.5, len(rows) + 0.5)
+    if len(rows) <= 30:
+        axes.set_xticks(x, [f"{p.index}" if p.index else f"b{p.branch}" for p in rows])
+    axes.set_xlabel("position (branch by branch)" if check != "parallel" else "branch")
+    axes.set_ylabel("stress / limit")
+    _legend_above(axes, ncol=4)
     return svg_text(figure)
 
 

@@ -22,10 +22,10 @@ from markupsafe import Markup
 from stringcheck.errors import Setting
 from stringcheck.report import figures
 from stringcheck.report.export import result_to_dict, sizing_to_dict
-from stringcheck.report.wording import CHECK_WORDS
+from stringcheck.report.wording import CHECK_WORDS, sentence
 from stringcheck.units import format_quantity
 
-__all__ = ["check_page", "sizing_page"]
+__all__ = ["check_page", "review_page", "sizing_page"]
 
 # What each check is called in a heading, and the unit of its "worst" figure.
 CHECK_TITLES = {"static": "Static blocking (leakage and grading resistors)",
@@ -263,7 +263,59 @@ def check_page(result, *, command_line: Sequence[str], created: _datetime.dateti
 def sizing_page(result, *, command_line: Sequence[str],
                 created: _datetime.datetime | None = None,
                 spell: Callable[[Setting], str] = str) -> str:
-    """The HTML report of ``size``: the check of the sized design, with the proposal first."""
+    """The HTML report of ``size``: the proposal first (each value with the limit that bound it,
+    the design curves of the search), then the check of the sized design."""
     data = sizing_to_dict(result, spell=spell)
+    grading = data["grading"]
+    target = result.target_p_fail
+    proposal = [("grading resistor R", _quantity(grading["resistor"], "ohm"),
+                 sentence(result.resistor.bound, spell=spell) if result.resistor.bound else "")]
+    if result.capacitor is not None:
+        proposal.append(("grading capacitor C", _quantity(grading["capacitor"], "F"),
+                         sentence(result.capacitor.bound, spell=spell)
+                         if result.capacitor.bound else ""))
+    if grading.get("damping_resistor") is not None:
+        proposal.append(("damping resistor R_d", _quantity(grading["damping_resistor"], "ohm"),
+                         grading["damping_rule"]))
+    curves = []
+    if result.resistor.curve:
+        curves.append({"svg": figures.sizing_curve_figure(
+            result.resistor, x_label="grading resistor R", x_unit="Ohm", target=target),
+            "caption": (
+                "The search over R: P(fail) of each preferred value tried (upper bound of the "
+                "exact interval, and the estimate) on a log scale, and its p99 stress / limit "
+                "(right axis); the dashed line is the target, the dotted line the textbook "
+                "worst-case corner, the solid line the value chosen (the largest R that meets "
+                "every limit).")})
+    if result.capacitor is not None and result.capacitor.curve:
+        curves.append({"svg": figures.sizing_curve_figure(
+            result.capacitor, x_label="grading capacitor C", x_unit="F", target=target),
+            "caption": (
+                "The search over C: as for R; the value chosen is the smallest C that meets "
+                "every limit and check.")})
     return check_page(result.check, command_line=command_line, created=created, spell=spell,
-                      data=data, extra={"grading": data.get("grading")})
+                      data=data, extra={"proposal": proposal, "curves": curves,
+                                        "advisories": grading.get("advisories", [])})
+
+
+def review_page(result, *, command_line: Sequence[str],
+                created: _datetime.datetime | None = None) -> str:
+    """The HTML report of ``review``: the decision and what decided it, each check baseline
+    against candidate, the per-position change (figures), the reasons and flags, the cautions
+    and the sign-off block. Its numbers are those of the review's JSON."""
+    from stringcheck.report.review import review_to_dict
+
+    data = review_to_dict(result)
+    created = created or _datetime.datetime.now(_datetime.timezone.utc)
+    checks_shown = []
+    for change in data["changes"]["checks"]:
+        name = change["check"]
+        svg = ""
+        if any(p.check == name for p in result.positions):
+            svg = figures.review_position_figure(result.positions, name)
+        checks_shown.append({**change, "title": CHECK_TITLES.get(name, name), "svg": svg})
+    template = _environment().get_template("review.html.j2")
+    style = (resources.files("stringcheck.report") / "templates" / "report.css").read_text(
+        encoding="utf-8")
+    return template.render(style=style, data=data, command=" ".join(command_line),
+                           created=created.strftime("%Y-%m-%d %H:%M UTC"), checks=checks_shown)

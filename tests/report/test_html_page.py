@@ -207,3 +207,64 @@ def test_the_demo_report_renders_in_a_real_browser(demo, tmp_path):
     boxes = re.findall(rb"/MediaBox\s*\[0 0 ([0-9.]+) ([0-9.]+)\]", pdf.read_bytes())
     assert boxes and all(abs(float(w) - 595.3) < 1 and abs(float(h) - 841.9) < 1
                          for w, h in boxes), boxes
+
+
+def _run_cli(*args) -> subprocess.CompletedProcess:
+    return subprocess.run([sys.executable, "-m", "stringcheck", *args], capture_output=True,
+                          text=True)
+
+
+def _no_fetch(text: str, page: _Page) -> None:
+    for tag, attributes in page.tags:
+        assert tag not in ("script", "link", "img", "iframe", "object", "embed"), tag
+        assert all(attributes.get(name) is None or attributes[name].startswith("#")
+                   for name in ("src", "href", "xlink:href"))
+    assert not re.search(r"url\((?!#)", text)
+
+
+def test_the_size_report_shows_the_proposal_and_its_design_curves(tmp_path):
+    from stringcheck.units import format_quantity
+
+    page_path, json_path = tmp_path / "size.html", tmp_path / "size.json"
+    run = _run_cli("size", str(ROOT / "examples" / "precipitator-30kv.toml"), "--trials", "4000",
+                   "--no-transient", "--quiet", "--report", str(page_path), "--json",
+                   str(json_path))
+    assert run.returncode in (0, 1), run.stderr
+    text = page_path.read_text(encoding="utf-8")
+    data = json.loads(json_path.read_text(encoding="utf-8"))
+    page = _Page()
+    page.feed(text)
+    _no_fetch(text, page)
+    assert "proposal" in page.ids and "checks" in page.ids and "signoff" in page.ids
+    grading = data["grading"]
+    # The proposed values as the JSON has them, with the limit that bound each.
+    assert format_quantity(grading["resistor"], "ohm") in text
+    assert format_quantity(grading["capacitor"], "F") in text
+    assert "limited by" in text
+    # The design curves of R and C, plus the checks' figures of the sized design.
+    assert page.svgs == page.figures >= 2 + 4
+
+
+def test_the_review_report_shows_each_check_and_the_per_position_change(tmp_path):
+    page_path, json_path = tmp_path / "review.html", tmp_path / "review.json"
+    run = _run_cli("review", str(ROOT / "tests" / "designs" / "second_source_11kv.toml"),
+                   "--swap", "7:B", "--trials", "4000", "--quiet", "--report", str(page_path),
+                   "--json", str(json_path))
+    assert run.returncode in (0, 1), run.stderr
+    text = page_path.read_text(encoding="utf-8")
+    data = json.loads(json_path.read_text(encoding="utf-8"))
+    page = _Page()
+    page.feed(text)
+    _no_fetch(text, page)
+    assert data["verdict"].upper() in text
+    ran = [c for c in data["changes"]["checks"] if c["baseline_ran"] or c["candidate_ran"]]
+    for change in ran:
+        assert f"section-{change['check']}" in page.ids
+    # Baseline -> candidate worst / limit of each check, as the JSON has them.
+    shown = [cell.replace("\u2192", "->").split() for cell in page.cells["worst_ratio"]]
+    for change, cell in zip(data["changes"]["checks"], shown):
+        if change["baseline_worst_ratio"] is not None:
+            assert cell[0] == f"{change['baseline_worst_ratio']:.3f}"
+            assert cell[-1] == f"{change['candidate_worst_ratio']:.3f}"
+    assert page.figures == len(ran) and page.svgs == page.figures
+    assert "Review and sign-off" in text
