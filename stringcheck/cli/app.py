@@ -72,7 +72,7 @@ def _options(
 
 
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
-           transient=None, drivers=False, rare=None, source_label=None) -> int:
+           transient=None, drivers=False, rare=None, source_label=None, faults=False) -> int:
     from stringcheck.design.reading import load_design
     from stringcheck.report.export import json_text, positions_csv, result_to_dict
     from stringcheck.report.terminal import render_check, render_check_summary
@@ -91,19 +91,48 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
     with DelayedProgress(enabled=not quiet, label="drawing strings") as progress:
         result = run_check(design, trials=trials, seed=seed, progress=progress, workers=workers,
                            drivers=drivers, rare=rare, **(transient or {}))
+    study = None
+    if faults:
+        from stringcheck.studies.faults import run_faults
+
+        with DelayedProgress(enabled=not quiet, label="single faults") as progress:
+            study = run_faults(design, trials=trials, seed=seed, progress=progress)
     # Both texts are made before either file is touched; both files are replaced together, after
     # the report was printed, so that a report that fails leaves the old files.
     outputs = []
     if json_path is not None:
-        outputs.append((json_path, json_text(result_to_dict(result))))
+        data = result_to_dict(result)
+        if study is not None:
+            from stringcheck.report.faults import faults_to_dict
+
+            data["faults"] = faults_to_dict(study)
+        outputs.append((json_path, json_text(data)))
     if csv_path is not None:
         outputs.append((csv_path, positions_csv(result)))
+    full, summary = _with_faults(study, result.design.string,
+                                 lambda shown, on: render_check(shown, on, spell=option_wording),
+                                 render_check_summary)
     with output_files.atomic_outputs(outputs):
         # With machine output on standard output, the report goes to stderr so the two never mix.
-        _print_report(result, quiet=quiet, stderr=to_stdout,
-                      full=lambda shown, on: render_check(shown, on, spell=option_wording),
-                      summary=render_check_summary)
+        _print_report(result, quiet=quiet, stderr=to_stdout, full=full, summary=summary)
     return EXIT_PASS if result.verdict == "pass" else EXIT_FAIL
+
+
+def _with_faults(study, layout, full, summary):
+    """The check's renderers, followed by the fault study's when there is one."""
+    if study is None:
+        return full, summary
+    from stringcheck.report.faults import render_faults, render_faults_summary
+
+    def full_faults(result, on):
+        full(result, on)
+        render_faults(study, on, parallel=layout.parallel, derating=layout.derating)
+
+    def summary_faults(result, on):
+        summary(result, on)
+        render_faults_summary(study, on)
+
+    return full_faults, summary_faults
 
 
 def _print_report(result, *, quiet: bool, stderr: bool, full, summary) -> None:
@@ -133,6 +162,11 @@ def check(
     transient_sample: TransientSample = None,
     drivers: Drivers = False,
     rare: Rare = None,
+    faults: Annotated[bool, typer.Option(
+        "--faults", help="Also rerun the series checks on the same draws with every single fault "
+                         "([faults] kinds: shorted devices, open resistors, open or shorted "
+                         "capacitors, open damping resistors) and count the shorted devices the "
+                         "string tolerates.")] = False,
     debug: Debug = False,
 ) -> None:
     """Check a string: static and dynamic voltage sharing, parallel current sharing, junction
@@ -140,7 +174,7 @@ def check(
     options = _transient_options(transient, transient_worst, transient_sample)
     run_guarded(lambda: _check(file, trials=trials, seed=seed, json_path=json, csv_path=csv,
                                quiet=quiet, workers=workers, transient=options, drivers=drivers,
-                               rare=rare), debug)
+                               rare=rare, faults=faults), debug)
 
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,

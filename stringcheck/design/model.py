@@ -277,6 +277,18 @@ class Review:
     tolerance: float
 
 
+# Every kind of single fault ``check --faults`` evaluates (``studies.faults``), in report order.
+FAULT_KINDS = ("device_short", "resistor_open", "capacitor_open", "capacitor_short",
+               "damping_open")
+
+
+@dataclass(frozen=True)
+class Faults:
+    """Settings of the single-fault study (``[faults]``): the kinds of fault evaluated."""
+
+    kinds: tuple[str, ...] = FAULT_KINDS
+
+
 @dataclass(frozen=True)
 class Design:
     """A whole, validated design."""
@@ -295,6 +307,7 @@ class Design:
     # What was assumed on the user's behalf (defaults, derived rows), as findings: the report
     # says them in words (``report.wording``).
     assumptions: tuple[Finding, ...] = field(default=())
+    faults: Faults = field(default_factory=Faults)
 
     def mix_variants(self) -> tuple["Design", ...]:
         """The mix-free designs a built string picks its devices from, device by device: the design

@@ -30,7 +30,9 @@ from stringcheck.design.model import (
     SIGMA_AT_LIMIT_RANGE,
     SPREAD_PARAMETERS,
     Design,
+    FAULT_KINDS,
     Duty,
+    Faults,
     Grading,
     MonteCarlo,
     Part,
@@ -180,9 +182,27 @@ def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
 
     design = Design(title=title, notes=notes, source=source, duty=duty, string=string,
                     parts=parts, grading=grading, monte_carlo=monte_carlo, sizing=sizing,
-                    thermal=thermal, review=review, assumptions=tuple(reader.assumptions))
+                    thermal=thermal, review=review, assumptions=tuple(reader.assumptions),
+                    faults=_read_faults(reader, raw))
     _cross_check(reader, design)
     return design
+
+
+def _read_faults(reader: Reader, raw: Mapping[str, Any]) -> Faults:
+    """``[faults]``: the kinds of single fault ``check --faults`` evaluates (default all)."""
+    table = reader.table(raw, "faults")
+    reader.check_keys(table, SCHEMA_KEYS["faults"], "faults")
+    kinds = table.get("kinds", FAULT_KINDS)
+    if isinstance(kinds, str):
+        kinds = [kinds]
+    if not isinstance(kinds, (list, tuple)) or not kinds:
+        raise reader.error("faults.kinds", "must be a non-empty list of fault kinds, e.g. "
+                                           f"[\"device_short\"]; valid kinds: {', '.join(FAULT_KINDS)}")
+    for kind in kinds:
+        if kind not in FAULT_KINDS:
+            raise reader.error("faults.kinds", f"unknown fault kind {kind!r}; valid kinds: "
+                                               f"{', '.join(FAULT_KINDS)}")
+    return Faults(kinds=tuple(dict.fromkeys(kinds)))
 
 
 def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:

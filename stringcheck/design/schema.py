@@ -45,9 +45,10 @@ SCHEMA_KEYS = {
                     "correlation"),
     "sizing": ("target_p_fail", "target_share", "resistor_series", "capacitor_series"),
     "review": ("tolerance",),
+    "faults": ("kinds",),
 }
 TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
-              "review")
+              "review", "faults")
 
 
 class Reader:
