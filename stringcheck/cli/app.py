@@ -72,7 +72,8 @@ def _options(
 
 
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
-           transient=None, drivers=False, rare=None, source_label=None, faults=False) -> int:
+           transient=None, drivers=False, rare=None, source_label=None, faults=False,
+           failure_rate=False) -> int:
     from stringcheck.design.reading import load_design
     from stringcheck.report.export import json_text, positions_csv, result_to_dict
     from stringcheck.report.terminal import render_check, render_check_summary
@@ -97,6 +98,12 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
 
         with DelayedProgress(enabled=not quiet, label="single faults") as progress:
             study = run_faults(design, trials=trials, seed=seed, progress=progress)
+    rates = None
+    if failure_rate:
+        from stringcheck.studies.failure_rate import run_failure_rate
+
+        with DelayedProgress(enabled=not quiet, label="failure rate") as progress:
+            rates = run_failure_rate(design, trials=trials, seed=seed, progress=progress)
     # Both texts are made before either file is touched; both files are replaced together, after
     # the report was printed, so that a report that fails leaves the old files.
     outputs = []
@@ -106,12 +113,17 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
             from stringcheck.report.faults import faults_to_dict
 
             data["faults"] = faults_to_dict(study)
+        if rates is not None:
+            from stringcheck.report.failure_rate import failure_rate_to_dict
+
+            data["failure_rate"] = failure_rate_to_dict(rates)
         outputs.append((json_path, json_text(data)))
     if csv_path is not None:
         outputs.append((csv_path, positions_csv(result)))
     full, summary = _with_faults(study, result.design.string,
                                  lambda shown, on: render_check(shown, on, spell=option_wording),
                                  render_check_summary)
+    full, summary = _with_failure_rate(rates, result.design.string, full, summary)
     with output_files.atomic_outputs(outputs):
         # With machine output on standard output, the report goes to stderr so the two never mix.
         _print_report(result, quiet=quiet, stderr=to_stdout, full=full, summary=summary)
@@ -133,6 +145,23 @@ def _with_faults(study, layout, full, summary):
         render_faults_summary(study, on)
 
     return full_faults, summary_faults
+
+
+def _with_failure_rate(rates, layout, full, summary):
+    """The renderers, followed by the failure rate's when there is one."""
+    if rates is None:
+        return full, summary
+    from stringcheck.report.failure_rate import render_failure_rate, render_failure_rate_summary
+
+    def full_rates(result, on):
+        full(result, on)
+        render_failure_rate(rates, on, parallel=layout.parallel)
+
+    def summary_rates(result, on):
+        summary(result, on)
+        render_failure_rate_summary(rates, on)
+
+    return full_rates, summary_rates
 
 
 def _print_report(result, *, quiet: bool, stderr: bool, full, summary) -> None:
@@ -167,6 +196,10 @@ def check(
                          "([faults] kinds: shorted devices, open resistors, open or shorted "
                          "capacitors, open damping resistors) and count the shorted devices the "
                          "string tolerates.")] = False,
+    failure_rate: Annotated[bool, typer.Option(
+        "--failure-rate", help="Also estimate each device's and the stack's failure rate in FIT "
+                               "(MIL-HDBK-217F N2 section 6.1 parts stress; [reliability] "
+                               "factors) from the built strings' stresses.")] = False,
     debug: Debug = False,
 ) -> None:
     """Check a string: static and dynamic voltage sharing, parallel current sharing, junction
@@ -174,7 +207,7 @@ def check(
     options = _transient_options(transient, transient_worst, transient_sample)
     run_guarded(lambda: _check(file, trials=trials, seed=seed, json_path=json, csv_path=csv,
                                quiet=quiet, workers=workers, transient=options, drivers=drivers,
-                               rare=rare, faults=faults), debug)
+                               rare=rare, faults=faults, failure_rate=failure_rate), debug)
 
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,

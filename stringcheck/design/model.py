@@ -289,6 +289,28 @@ class Faults:
     kinds: tuple[str, ...] = FAULT_KINDS
 
 
+# The names ``[reliability]`` takes (the factor tables are ``physics.failure_rate``'s).
+RELIABILITY_DEVICE_TYPES = ("general_purpose", "switching", "fast_recovery", "power_rectifier",
+                            "high_voltage_stack")
+RELIABILITY_QUALITIES = ("JANTXV", "JANTX", "JAN", "lower", "plastic")
+RELIABILITY_ENVIRONMENTS = ("GB", "GF", "GM", "NS", "NU", "AIC", "AIF", "AUC", "AUF", "ARW", "SF",
+                            "MF", "ML", "CL")
+RELIABILITY_CONTACTS = ("metallurgical", "spring")
+
+
+@dataclass(frozen=True)
+class Reliability:
+    """Settings of the failure-rate estimate (``[reliability]``, MIL-HDBK-217F N2 section 6.1):
+    the diode type of the base rate (or ``base_rate`` [failures / 10^6 h] given), the quality
+    level, the environment and the contact construction."""
+
+    device_type: str = "power_rectifier"
+    base_rate: float | None = None
+    quality: str = "lower"
+    environment: str = "GB"
+    contact: str = "metallurgical"
+
+
 @dataclass(frozen=True)
 class Design:
     """A whole, validated design."""
@@ -308,6 +330,7 @@ class Design:
     # says them in words (``report.wording``).
     assumptions: tuple[Finding, ...] = field(default=())
     faults: Faults = field(default_factory=Faults)
+    reliability: Reliability = field(default_factory=Reliability)
 
     def mix_variants(self) -> tuple["Design", ...]:
         """The mix-free designs a built string picks its devices from, device by device: the design

@@ -8,6 +8,7 @@ The key lists and the value reader are in design/schema.py, the parts in design/
 from __future__ import annotations
 
 import difflib
+import math
 import re
 import tomllib
 from pathlib import Path
@@ -31,6 +32,11 @@ from stringcheck.design.model import (
     SPREAD_PARAMETERS,
     Design,
     FAULT_KINDS,
+    RELIABILITY_CONTACTS,
+    RELIABILITY_DEVICE_TYPES,
+    RELIABILITY_ENVIRONMENTS,
+    RELIABILITY_QUALITIES,
+    Reliability,
     Duty,
     Faults,
     Grading,
@@ -183,7 +189,7 @@ def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
     design = Design(title=title, notes=notes, source=source, duty=duty, string=string,
                     parts=parts, grading=grading, monte_carlo=monte_carlo, sizing=sizing,
                     thermal=thermal, review=review, assumptions=tuple(reader.assumptions),
-                    faults=_read_faults(reader, raw))
+                    faults=_read_faults(reader, raw), reliability=_read_reliability(reader, raw))
     _cross_check(reader, design)
     return design
 
@@ -203,6 +209,28 @@ def _read_faults(reader: Reader, raw: Mapping[str, Any]) -> Faults:
             raise reader.error("faults.kinds", f"unknown fault kind {kind!r}; valid kinds: "
                                                f"{', '.join(FAULT_KINDS)}")
     return Faults(kinds=tuple(dict.fromkeys(kinds)))
+
+
+def _read_reliability(reader: Reader, raw: Mapping[str, Any]) -> Reliability:
+    """``[reliability]``: the factors of the failure-rate estimate (``check --failure-rate``)."""
+    table = reader.table(raw, "reliability")
+    prefix = "reliability"
+    reader.check_keys(table, SCHEMA_KEYS[prefix], prefix)
+    defaults = Reliability()
+    values = {key: reader.text(table, key, prefix, default=getattr(defaults, key), choices=choices)
+              for key, choices in (("device_type", RELIABILITY_DEVICE_TYPES),
+                                   ("quality", RELIABILITY_QUALITIES),
+                                   ("environment", RELIABILITY_ENVIRONMENTS),
+                                   ("contact", RELIABILITY_CONTACTS))}
+    base_rate = None
+    if "base_rate" in table:
+        value = table["base_rate"]
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or \
+                not math.isfinite(value) or not value > 0:
+            raise reader.error("reliability.base_rate", "must be a number > 0 in failures per "
+                                                        f"10^6 hours (e.g. 0.003), got {value!r}")
+        base_rate = float(value)
+    return Reliability(base_rate=base_rate, **values)
 
 
 def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:

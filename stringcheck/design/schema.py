@@ -46,9 +46,10 @@ SCHEMA_KEYS = {
     "sizing": ("target_p_fail", "target_share", "resistor_series", "capacitor_series"),
     "review": ("tolerance",),
     "faults": ("kinds",),
+    "reliability": ("device_type", "base_rate", "quality", "environment", "contact"),
 }
 TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
-              "review", "faults")
+              "review", "faults", "reliability")
 
 
 class Reader:
