@@ -73,7 +73,7 @@ def _options(
 
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
            transient=None, drivers=False, rare=None, source_label=None, faults=False,
-           failure_rate=False) -> int:
+           failure_rate=False, end_of_life=False) -> int:
     from stringcheck.design.reading import load_design
     from stringcheck.report.export import json_text, positions_csv, result_to_dict
     from stringcheck.report.terminal import render_check, render_check_summary
@@ -89,9 +89,19 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
 
         design = replace(design, source=source_label)
     to_stdout = "-" in (json_path, csv_path)
-    with DelayedProgress(enabled=not quiet, label="drawing strings") as progress:
-        result = run_check(design, trials=trials, seed=seed, progress=progress, workers=workers,
-                           drivers=drivers, rare=rare, **(transient or {}))
+    aged = None
+    if end_of_life or design.end_of_life.enabled:
+        from stringcheck.studies.end_of_life import run_end_of_life
+
+        with DelayedProgress(enabled=not quiet, label="start and end of life") as progress:
+            aged = run_end_of_life(design, trials=trials, seed=seed, progress=progress,
+                                   workers=workers, drivers=drivers, rare=rare,
+                                   **(transient or {}))
+        result = aged.initial
+    else:
+        with DelayedProgress(enabled=not quiet, label="drawing strings") as progress:
+            result = run_check(design, trials=trials, seed=seed, progress=progress,
+                               workers=workers, drivers=drivers, rare=rare, **(transient or {}))
     study = None
     if faults:
         from stringcheck.studies.faults import run_faults
@@ -113,6 +123,10 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
             from stringcheck.report.faults import faults_to_dict
 
             data["faults"] = faults_to_dict(study)
+        if aged is not None:
+            from stringcheck.report.end_of_life import end_of_life_to_dict
+
+            data["end_of_life"] = end_of_life_to_dict(aged)
         if rates is not None:
             from stringcheck.report.failure_rate import failure_rate_to_dict
 
@@ -124,10 +138,29 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
                                  lambda shown, on: render_check(shown, on, spell=option_wording),
                                  render_check_summary)
     full, summary = _with_failure_rate(rates, result.design.string, full, summary)
+    full, summary = _with_end_of_life(aged, full, summary)
     with output_files.atomic_outputs(outputs):
         # With machine output on standard output, the report goes to stderr so the two never mix.
         _print_report(result, quiet=quiet, stderr=to_stdout, full=full, summary=summary)
-    return EXIT_PASS if result.verdict == "pass" else EXIT_FAIL
+    verdict = result.verdict if aged is None else aged.verdict
+    return EXIT_PASS if verdict == "pass" else EXIT_FAIL
+
+
+def _with_end_of_life(aged, full, summary):
+    """The renderers, followed by the end-of-life comparison when there is one."""
+    if aged is None:
+        return full, summary
+    from stringcheck.report.end_of_life import render_end_of_life, render_end_of_life_summary
+
+    def full_aged(result, on):
+        full(result, on)
+        render_end_of_life(aged, on)
+
+    def summary_aged(result, on):
+        summary(result, on)
+        render_end_of_life_summary(aged, on)
+
+    return full_aged, summary_aged
 
 
 def _with_faults(study, layout, full, summary):
@@ -200,6 +233,10 @@ def check(
         "--failure-rate", help="Also estimate each device's and the stack's failure rate in FIT "
                                "(MIL-HDBK-217F N2 section 6.1 parts stress; [reliability] "
                                "factors) from the built strings' stresses.")] = False,
+    end_of_life: Annotated[bool, typer.Option(
+        "--end-of-life", help="Also run every check with the [end_of_life] changes (resistor "
+                              "drift and voltage coefficient, capacitor dc-bias loss, surface "
+                              "leakage) on the same draws; report both margins.")] = False,
     debug: Debug = False,
 ) -> None:
     """Check a string: static and dynamic voltage sharing, parallel current sharing, junction
@@ -207,7 +244,8 @@ def check(
     options = _transient_options(transient, transient_worst, transient_sample)
     run_guarded(lambda: _check(file, trials=trials, seed=seed, json_path=json, csv_path=csv,
                                quiet=quiet, workers=workers, transient=options, drivers=drivers,
-                               rare=rare, faults=faults, failure_rate=failure_rate), debug)
+                               rare=rare, faults=faults, failure_rate=failure_rate,
+                               end_of_life=end_of_life), debug)
 
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,

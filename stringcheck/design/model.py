@@ -312,6 +312,34 @@ class Reliability:
 
 
 @dataclass(frozen=True)
+class EndOfLife:
+    """End-of-life changes of the grading network (``[end_of_life]``), applied when ``enabled``
+    (``check --end-of-life`` or ``enabled = true``).
+
+    ``resistor_drift`` [1]: each grading resistor's change over life, drawn uniformly within
+    +-drift (``resistor_drift_mode`` "band") or between 0 and drift ("shift", one-sided, the
+    sign of drift). ``resistor_voltage_coefficient`` [1/V]: R(V) = R (1 + gamma V) at the stage
+    voltage. ``capacitor_dc_bias`` [1]: fraction of C lost at ``grading.capacitor_rated_voltage``
+    (linear in V). ``surface_resistance`` [ohm]: a shunt across a stage (board surface leakage),
+    on each stage independently with probability ``surface_fraction`` in every built string.
+    """
+
+    enabled: bool = False
+    resistor_drift: float = 0.0
+    resistor_drift_mode: str = "band"
+    resistor_voltage_coefficient: float = 0.0
+    capacitor_dc_bias: float = 0.0
+    surface_resistance: float | None = None
+    surface_fraction: float = 1.0
+
+    @property
+    def given(self) -> bool:
+        """Whether any end-of-life change is given."""
+        return bool(self.resistor_drift or self.resistor_voltage_coefficient
+                    or self.capacitor_dc_bias or self.surface_resistance is not None)
+
+
+@dataclass(frozen=True)
 class Design:
     """A whole, validated design."""
 
@@ -331,6 +359,7 @@ class Design:
     assumptions: tuple[Finding, ...] = field(default=())
     faults: Faults = field(default_factory=Faults)
     reliability: Reliability = field(default_factory=Reliability)
+    end_of_life: EndOfLife = field(default_factory=EndOfLife)
 
     def mix_variants(self) -> tuple["Design", ...]:
         """The mix-free designs a built string picks its devices from, device by device: the design

@@ -32,6 +32,7 @@ from stringcheck.design.model import (
     SPREAD_PARAMETERS,
     Design,
     FAULT_KINDS,
+    EndOfLife,
     RELIABILITY_CONTACTS,
     RELIABILITY_DEVICE_TYPES,
     RELIABILITY_ENVIRONMENTS,
@@ -63,6 +64,7 @@ from stringcheck.units import (
     KELVIN_PER_WATT,
     OHM,
     PER_KELVIN,
+    PER_VOLT,
     VOLT,
     WATT,
 )
@@ -189,7 +191,8 @@ def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
     design = Design(title=title, notes=notes, source=source, duty=duty, string=string,
                     parts=parts, grading=grading, monte_carlo=monte_carlo, sizing=sizing,
                     thermal=thermal, review=review, assumptions=tuple(reader.assumptions),
-                    faults=_read_faults(reader, raw), reliability=_read_reliability(reader, raw))
+                    faults=_read_faults(reader, raw), reliability=_read_reliability(reader, raw),
+                    end_of_life=_read_end_of_life(reader, raw, grading))
     _cross_check(reader, design)
     return design
 
@@ -231,6 +234,45 @@ def _read_reliability(reader: Reader, raw: Mapping[str, Any]) -> Reliability:
                                                         f"10^6 hours (e.g. 0.003), got {value!r}")
         base_rate = float(value)
     return Reliability(base_rate=base_rate, **values)
+
+
+def _read_end_of_life(reader: Reader, raw: Mapping[str, Any], grading: Grading) -> EndOfLife:
+    """``[end_of_life]``: the grading network's changes over life (``check --end-of-life``)."""
+    table = reader.table(raw, "end_of_life")
+    prefix = "end_of_life"
+    reader.check_keys(table, SCHEMA_KEYS[prefix], prefix)
+    enabled = table.get("enabled", False)
+    if not isinstance(enabled, bool):
+        raise reader.error("end_of_life.enabled", f"must be true or false, got {enabled!r}")
+    drift = reader.quantity(table, "resistor_drift", DIMENSIONLESS, prefix, default=0.0)
+    if not -0.5 < drift < 0.5:
+        raise reader.error("end_of_life.resistor_drift", "must be a change within +-50 % (e.g. "
+                                                         f"\"2 %\"), got {table['resistor_drift']!r}")
+    mode = reader.text(table, "resistor_drift_mode", prefix, default="band",
+                       choices=("band", "shift"))
+    gamma = reader.quantity(table, "resistor_voltage_coefficient", PER_VOLT, prefix, default=0.0)
+    if not abs(gamma) < 1e-3:
+        raise reader.error("end_of_life.resistor_voltage_coefficient",
+                           "must be within +-1000 ppm/V (a few hundred ppm/V is typical of "
+                           f"high-value thick film), got {table['resistor_voltage_coefficient']!r}")
+    bias = reader.quantity(table, "capacitor_dc_bias", DIMENSIONLESS, prefix, default=0.0)
+    if not 0.0 <= bias < 1.0:
+        raise reader.error("end_of_life.capacitor_dc_bias", "must be a fraction of C lost at the "
+                                                            "rated voltage in [0, 1) (e.g. "
+                                                            f"\"20 %\"), got {table['capacitor_dc_bias']!r}")
+    surface = reader.quantity(table, "surface_resistance", OHM, prefix, positive=True)
+    fraction = reader.fraction(table, "surface_fraction", prefix, default=1.0, low=0.0, high=1.0,
+                               high_open=False)
+    if bias and grading.capacitor is not None and grading.capacitor_rated_voltage is None:
+        raise reader.error("grading.capacitor_rated_voltage", "missing; end_of_life."
+                                                              "capacitor_dc_bias is the loss at "
+                                                              "the capacitor's rated voltage")
+    if "surface_fraction" in table and surface is None:
+        raise reader.error("end_of_life.surface_fraction", "needs end_of_life.surface_resistance "
+                                                           "(the shunt it places)")
+    return EndOfLife(enabled=enabled, resistor_drift=drift, resistor_drift_mode=mode,
+                     resistor_voltage_coefficient=gamma, capacitor_dc_bias=bias,
+                     surface_resistance=surface, surface_fraction=fraction)
 
 
 def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:

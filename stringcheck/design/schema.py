@@ -47,9 +47,12 @@ SCHEMA_KEYS = {
     "review": ("tolerance",),
     "faults": ("kinds",),
     "reliability": ("device_type", "base_rate", "quality", "environment", "contact"),
+    "end_of_life": ("enabled", "resistor_drift", "resistor_drift_mode",
+                    "resistor_voltage_coefficient", "capacitor_dc_bias", "surface_resistance",
+                    "surface_fraction"),
 }
 TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
-              "review", "faults", "reliability")
+              "review", "faults", "reliability", "end_of_life")
 
 
 class Reader:
