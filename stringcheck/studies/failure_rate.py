@@ -15,7 +15,7 @@ Results are plain dataclasses; nothing here formats text.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Callable
 
 import numpy as np
@@ -109,6 +109,8 @@ def run_failure_rate(design: Design, *, trials: int | None = None, seed: int | N
     if trials < 1:
         raise DesignError(Setting("trials"), f" must be at least 1, got {trials}",
                           key="monte_carlo.trials")
+    # On the initial network (the end-of-life changes are check --end-of-life's).
+    design = replace(design, end_of_life=replace(design.end_of_life, enabled=False))
     settings = design.reliability
     design = with_recovery_charge(design)
     run_dynamic = dynamic_check_reason(design) == ""

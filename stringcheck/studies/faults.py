@@ -213,6 +213,8 @@ def run_faults(design: Design, *, trials: int | None = None, seed: int | None = 
                           f"shorted ({', '.join(shorting) or 'the redundancy count'}): leave "
                           "device_short and capacitor_short out of faults.kinds, or give "
                           "string.series >= 2", source=design.source, key="faults.kinds")
+    # On the initial network (the end-of-life changes are check --end-of-life's).
+    design = replace(design, end_of_life=replace(design.end_of_life, enabled=False))
     design = with_recovery_charge(design)
     run_dynamic = dynamic_check_reason(design) == ""
     rescaling = recovery_rescaling(design)[0] if run_dynamic else None
