@@ -50,6 +50,7 @@ AMPERE_PER_SECOND = Unit("A/s", "ampere / second")
 KELVIN_PER_WATT = Unit("K/W", "kelvin / watt")
 VOLT_PER_KELVIN = Unit("V/K", "volt / kelvin")
 PER_KELVIN = Unit("1/K", "1 / kelvin")
+PER_VOLT = Unit("1/V", "1 / volt")
 CELSIUS = Unit("degC", "degC", absolute_temperature=True)
 KELVIN_DIFFERENCE = Unit("K", "kelvin")
 DIMENSIONLESS = Unit("1", "dimensionless")
@@ -348,7 +349,7 @@ def _shown(value: Any) -> str:
 
 # Ratios pint reads as units of dimension one; beside another unit they scale it silently
 # ("2.2 nF %" would be 0.022 nF). Allowed where the expected unit is a ratio or a coefficient.
-_RATIO_UNITS = (DIMENSIONLESS, PER_KELVIN)
+_RATIO_UNITS = (DIMENSIONLESS, PER_KELVIN, PER_VOLT)
 
 
 def _convert_with_pint(number: float, unit_text: str, value: Any, unit: Unit, key: str) -> float:

@@ -211,6 +211,9 @@ class ForwardChunk:
     ballast_loss_per_ohm: np.ndarray | None = None
     branch_limit: np.ndarray | None = None
     runaway_ambient: np.ndarray | None = None
+    # Each device's junction temperature [degC], (trials, parallel, series): only when asked
+    # (``run_forward_chunk(keep_temperature=True)``, the failure-rate study), never merged.
+    junction_temperature: np.ndarray | None = None
 
 
 def forward_reasons(design: Design) -> tuple[Finding | None, Finding | None]:
@@ -311,9 +314,10 @@ def forward_parameters(design: Design) -> tuple[str, ...]:
 
 
 def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, *,
-                      summaries: bool = True) -> ForwardChunk:
+                      summaries: bool = True, keep_temperature: bool = False) -> ForwardChunk:
     """Solve the forward checks of one chunk of drawn strings (``summaries``: also the runaway
-    ambient of the chunk's first trials and the ballast each trial needs)."""
+    ambient of the chunk's first trials and the ballast each trial needs; ``keep_temperature``:
+    also each device's junction temperature)."""
     duty = design.duty
     parameters = drawn.parameters
     count = drawn.trials
@@ -394,6 +398,8 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
         current_ratio = np.max(average[..., None] / setup.rated_current, axis=(1, 2))
     chunk = ForwardChunk(first_trial=drawn.first_trial, share=share, current_ratio=current_ratio,
                          branch_current=average, **(outcome_tj or {}))
+    if keep_temperature:
+        chunk.junction_temperature = np.asarray(temperature, dtype=float)
     if setup.run_parallel and summaries:
         # Each branch's rated current, its weakest device's (with a mix, of the parts drawn).
         chunk.branch_limit = np.broadcast_to(np.min(setup.rated_current, axis=-1), average.shape)

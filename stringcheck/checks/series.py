@@ -51,6 +51,10 @@ from stringcheck.montecarlo.temperature_rows import (
 )
 from stringcheck.physics.leakage import leakage_current
 from stringcheck.solvers.capacitive_sharing import solve_capacitive_sharing
+from stringcheck.solvers.aged_sharing import (
+    solve_dynamic_sharing_dc_bias,
+    solve_static_sharing_voltage_coefficient,
+)
 from stringcheck.solvers.series_dynamic import solve_dynamic_sharing
 from stringcheck.solvers.series_static import solve_static_sharing
 
@@ -223,9 +227,18 @@ def static_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums,
                               doubling_temperature=devices.doubling_temperature,
                               voltage_exponent=devices.voltage_exponent)
     conductance = _grading_conductance(design, drawn, devices.temperature)
-    solution = solve_static_sharing(design.duty.reverse_voltage, conductance, leakage,
-                                    reference_voltage=devices.reference_voltage,
-                                    voltage_exponent=devices.voltage_exponent)
+    aged = design.end_of_life
+    surface = 0.0 if drawn.surface_conductance is None else drawn.surface_conductance
+    if aged.enabled and aged.resistor_voltage_coefficient and drawn.resistance is not None:
+        # End of life: R(V) = R (1 + gamma V), a nonlinear solve (solvers.aged_sharing).
+        solution = solve_static_sharing_voltage_coefficient(
+            design.duty.reverse_voltage, 1.0 / conductance, leakage,
+            reference_voltage=devices.reference_voltage, voltage_exponent=devices.voltage_exponent,
+            voltage_coefficient=aged.resistor_voltage_coefficient, shunt_conductance=surface)
+    else:
+        solution = solve_static_sharing(design.duty.reverse_voltage, conductance + surface,
+                                        leakage, reference_voltage=devices.reference_voltage,
+                                        voltage_exponent=devices.voltage_exponent)
     converged = np.asarray(solution.converged).reshape(solution.voltages.shape[0], -1).all(axis=1)
     accumulator.add(solution.voltages, converged, drawn.first_trial)
 
@@ -251,7 +264,14 @@ def dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums
         _nonlinear_dynamic_chunk(design, drawn, accumulator, devices, charge)
         return
     capacitance = np.broadcast_to(capacitance, charge.shape)
-    solution = solve_dynamic_sharing(design.duty.reverse_voltage, charge, capacitance)
+    aged = design.end_of_life
+    if aged.enabled and aged.capacitor_dc_bias and drawn.capacitance is not None:
+        # End of life: the grading capacitors lose capacitance under dc bias (solvers.aged_sharing).
+        solution = solve_dynamic_sharing_dc_bias(
+            design.duty.reverse_voltage, charge, drawn.capacitance, junction_capacitance,
+            dc_bias_loss=aged.capacitor_dc_bias, rated_voltage=design.grading.capacitor_rated_voltage)
+    else:
+        solution = solve_dynamic_sharing(design.duty.reverse_voltage, charge, capacitance)
     solved = np.ones(solution.voltages.shape[0], dtype=bool)
     accumulator.add(solution.voltages, solved, drawn.first_trial)
 

@@ -81,8 +81,8 @@ def _command_line() -> list[str]:
 
 
 def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
-           transient=None, drivers=False, rare=None, source_label=None,
-           report_path=None) -> int:
+           transient=None, drivers=False, rare=None, source_label=None, faults=False,
+           failure_rate=False, end_of_life=False, report_path=None) -> int:
     from stringcheck.design.reading import load_design
     from stringcheck.report.export import json_text, positions_csv, result_to_dict
     from stringcheck.report.terminal import render_check, render_check_summary
@@ -98,14 +98,49 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
 
         design = replace(design, source=source_label)
     to_stdout = "-" in (json_path, csv_path, report_path)
-    with DelayedProgress(enabled=not quiet, label="drawing strings") as progress:
-        result = run_check(design, trials=trials, seed=seed, progress=progress, workers=workers,
-                           drivers=drivers, rare=rare, **(transient or {}))
+    aged = None
+    if end_of_life or design.end_of_life.enabled:
+        from stringcheck.studies.end_of_life import run_end_of_life
+
+        with DelayedProgress(enabled=not quiet, label="start and end of life") as progress:
+            aged = run_end_of_life(design, trials=trials, seed=seed, progress=progress,
+                                   workers=workers, drivers=drivers, rare=rare,
+                                   **(transient or {}))
+        result = aged.initial
+    else:
+        with DelayedProgress(enabled=not quiet, label="drawing strings") as progress:
+            result = run_check(design, trials=trials, seed=seed, progress=progress,
+                               workers=workers, drivers=drivers, rare=rare, **(transient or {}))
+    study = None
+    if faults:
+        from stringcheck.studies.faults import run_faults
+
+        with DelayedProgress(enabled=not quiet, label="single faults") as progress:
+            study = run_faults(design, trials=trials, seed=seed, progress=progress)
+    rates = None
+    if failure_rate:
+        from stringcheck.studies.failure_rate import run_failure_rate
+
+        with DelayedProgress(enabled=not quiet, label="failure rate") as progress:
+            rates = run_failure_rate(design, trials=trials, seed=seed, progress=progress)
     # Both texts are made before either file is touched; both files are replaced together, after
     # the report was printed, so that a report that fails leaves the old files.
     outputs = []
     if json_path is not None:
-        outputs.append((json_path, json_text(result_to_dict(result))))
+        data = result_to_dict(result)
+        if study is not None:
+            from stringcheck.report.faults import faults_to_dict
+
+            data["faults"] = faults_to_dict(study)
+        if aged is not None:
+            from stringcheck.report.end_of_life import end_of_life_to_dict
+
+            data["end_of_life"] = end_of_life_to_dict(aged)
+        if rates is not None:
+            from stringcheck.report.failure_rate import failure_rate_to_dict
+
+            data["failure_rate"] = failure_rate_to_dict(rates)
+        outputs.append((json_path, json_text(data)))
     if csv_path is not None:
         outputs.append((csv_path, positions_csv(result)))
     if report_path is not None:
@@ -113,16 +148,71 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
 
         outputs.append((report_path, check_page(result, command_line=_command_line(),
                                                 spell=option_wording)))
+    trace = None if source_label is not None else (
+        lambda trial, seed, trials: f"stringcheck wave {path} --trial {trial} --trials {trials} "
+                                    f"--seed {seed}")
+    full, summary = _with_faults(study, result.design.string,
+                                 lambda shown, on: render_check(shown, on, spell=option_wording,
+                                                                trace=trace),
+                                 render_check_summary)
+    full, summary = _with_failure_rate(rates, result.design.string, full, summary)
+    full, summary = _with_end_of_life(aged, full, summary)
     with output_files.atomic_outputs(outputs):
         # With machine output on standard output, the report goes to stderr so the two never mix.
-        _print_report(result, quiet=quiet, stderr=to_stdout,
-                      full=lambda shown, on: render_check(
-                          shown, on, spell=option_wording,
-                          trace=None if source_label is not None else
-                          lambda trial, seed, trials: f"stringcheck wave {path} --trial {trial} "
-                                                      f"--trials {trials} --seed {seed}"),
-                      summary=render_check_summary)
-    return EXIT_PASS if result.verdict == "pass" else EXIT_FAIL
+        _print_report(result, quiet=quiet, stderr=to_stdout, full=full, summary=summary)
+    verdict = result.verdict if aged is None else aged.verdict
+    return EXIT_PASS if verdict == "pass" else EXIT_FAIL
+
+
+def _with_end_of_life(aged, full, summary):
+    """The renderers, followed by the end-of-life comparison when there is one."""
+    if aged is None:
+        return full, summary
+    from stringcheck.report.end_of_life import render_end_of_life, render_end_of_life_summary
+
+    def full_aged(result, on):
+        full(result, on)
+        render_end_of_life(aged, on)
+
+    def summary_aged(result, on):
+        summary(result, on)
+        render_end_of_life_summary(aged, on)
+
+    return full_aged, summary_aged
+
+
+def _with_faults(study, layout, full, summary):
+    """The check's renderers, followed by the fault study's when there is one."""
+    if study is None:
+        return full, summary
+    from stringcheck.report.faults import render_faults, render_faults_summary
+
+    def full_faults(result, on):
+        full(result, on)
+        render_faults(study, on, parallel=layout.parallel, derating=layout.derating)
+
+    def summary_faults(result, on):
+        summary(result, on)
+        render_faults_summary(study, on)
+
+    return full_faults, summary_faults
+
+
+def _with_failure_rate(rates, layout, full, summary):
+    """The renderers, followed by the failure rate's when there is one."""
+    if rates is None:
+        return full, summary
+    from stringcheck.report.failure_rate import render_failure_rate, render_failure_rate_summary
+
+    def full_rates(result, on):
+        full(result, on)
+        render_failure_rate(rates, on, parallel=layout.parallel)
+
+    def summary_rates(result, on):
+        summary(result, on)
+        render_failure_rate_summary(rates, on)
+
+    return full_rates, summary_rates
 
 
 def _print_report(result, *, quiet: bool, stderr: bool, full, summary) -> None:
@@ -153,6 +243,19 @@ def check(
     transient_sample: TransientSample = None,
     drivers: Drivers = False,
     rare: Rare = None,
+    faults: Annotated[bool, typer.Option(
+        "--faults", help="Also rerun the series checks on the same draws with every single fault "
+                         "([faults] kinds: shorted devices, open resistors, open or shorted "
+                         "capacitors, open damping resistors) and count the shorted devices the "
+                         "string tolerates.")] = False,
+    failure_rate: Annotated[bool, typer.Option(
+        "--failure-rate", help="Also estimate each device's and the stack's failure rate in FIT "
+                               "(MIL-HDBK-217F N2 section 6.1 parts stress; [reliability] "
+                               "factors) from the built strings' stresses.")] = False,
+    end_of_life: Annotated[bool, typer.Option(
+        "--end-of-life", help="Also run every check with the [end_of_life] changes (resistor "
+                              "drift and voltage coefficient, capacitor dc-bias loss, surface "
+                              "leakage) on the same draws; report both margins.")] = False,
     debug: Debug = False,
 ) -> None:
     """Check a string: static and dynamic voltage sharing, parallel current sharing, junction
@@ -160,7 +263,8 @@ def check(
     options = _transient_options(transient, transient_worst, transient_sample)
     run_guarded(lambda: _check(file, trials=trials, seed=seed, json_path=json, csv_path=csv,
                                quiet=quiet, workers=workers, transient=options, drivers=drivers,
-                               rare=rare, report_path=report), debug)
+                               rare=rare, faults=faults, failure_rate=failure_rate,
+                               end_of_life=end_of_life, report_path=report), debug)
 
 
 def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capacitor_series,

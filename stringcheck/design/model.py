@@ -339,6 +339,68 @@ class Review:
     stress_tolerance: float = REVIEW_STRESS_TOLERANCE
 
 
+# Every kind of single fault ``check --faults`` evaluates (``studies.faults``), in report order.
+FAULT_KINDS = ("device_short", "resistor_open", "capacitor_open", "capacitor_short",
+               "damping_open")
+
+
+@dataclass(frozen=True)
+class Faults:
+    """Settings of the single-fault study (``[faults]``): the kinds of fault evaluated."""
+
+    kinds: tuple[str, ...] = FAULT_KINDS
+
+
+# The names ``[reliability]`` takes (the factor tables are ``physics.failure_rate``'s).
+RELIABILITY_DEVICE_TYPES = ("general_purpose", "switching", "fast_recovery", "power_rectifier",
+                            "high_voltage_stack")
+RELIABILITY_QUALITIES = ("JANTXV", "JANTX", "JAN", "lower", "plastic")
+RELIABILITY_ENVIRONMENTS = ("GB", "GF", "GM", "NS", "NU", "AIC", "AIF", "AUC", "AUF", "ARW", "SF",
+                            "MF", "ML", "CL")
+RELIABILITY_CONTACTS = ("metallurgical", "spring")
+
+
+@dataclass(frozen=True)
+class Reliability:
+    """Settings of the failure-rate estimate (``[reliability]``, MIL-HDBK-217F N2 section 6.1):
+    the diode type of the base rate (or ``base_rate`` [failures / 10^6 h] given), the quality
+    level, the environment and the contact construction."""
+
+    device_type: str = "power_rectifier"
+    base_rate: float | None = None
+    quality: str = "lower"
+    environment: str = "GB"
+    contact: str = "metallurgical"
+
+
+@dataclass(frozen=True)
+class EndOfLife:
+    """End-of-life changes of the grading network (``[end_of_life]``), applied when ``enabled``
+    (``check --end-of-life`` or ``enabled = true``).
+
+    ``resistor_drift`` [1]: each grading resistor's change over life, drawn uniformly within
+    +-drift (``resistor_drift_mode`` "band") or between 0 and drift ("shift", one-sided, the
+    sign of drift). ``resistor_voltage_coefficient`` [1/V]: R(V) = R (1 + gamma V) at the stage
+    voltage. ``capacitor_dc_bias`` [1]: fraction of C lost at ``grading.capacitor_rated_voltage``
+    (linear in V). ``surface_resistance`` [ohm]: a shunt across a stage (board surface leakage),
+    on each stage independently with probability ``surface_fraction`` in every built string.
+    """
+
+    enabled: bool = False
+    resistor_drift: float = 0.0
+    resistor_drift_mode: str = "band"
+    resistor_voltage_coefficient: float = 0.0
+    capacitor_dc_bias: float = 0.0
+    surface_resistance: float | None = None
+    surface_fraction: float = 1.0
+
+    @property
+    def given(self) -> bool:
+        """Whether any end-of-life change is given."""
+        return bool(self.resistor_drift or self.resistor_voltage_coefficient
+                    or self.capacitor_dc_bias or self.surface_resistance is not None)
+
+
 @dataclass(frozen=True)
 class Design:
     """A whole, validated design."""
@@ -360,6 +422,9 @@ class Design:
     # a result names the exact file it came from.
     sha256: str = ""
     assumptions: tuple[Finding, ...] = field(default=())
+    faults: Faults = field(default_factory=Faults)
+    reliability: Reliability = field(default_factory=Reliability)
+    end_of_life: EndOfLife = field(default_factory=EndOfLife)
 
     def mix_variants(self) -> tuple["Design", ...]:
         """The mix-free designs a built string picks its devices from, device by device: the design

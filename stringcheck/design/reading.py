@@ -35,7 +35,15 @@ from stringcheck.design.model import (
     SIGMA_AT_LIMIT_RANGE,
     SPREAD_PARAMETERS,
     Design,
+    FAULT_KINDS,
+    EndOfLife,
+    RELIABILITY_CONTACTS,
+    RELIABILITY_DEVICE_TYPES,
+    RELIABILITY_ENVIRONMENTS,
+    RELIABILITY_QUALITIES,
+    Reliability,
     Duty,
+    Faults,
     Grading,
     MonteCarlo,
     Part,
@@ -62,6 +70,7 @@ from stringcheck.units import (
     OHM,
     PER_KELVIN,
     SECOND,
+    PER_VOLT,
     VOLT,
     WATT,
 )
@@ -192,7 +201,9 @@ def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
 
     design = Design(title=title, notes=notes, source=source, duty=duty, string=string,
                     parts=parts, grading=grading, monte_carlo=monte_carlo, sizing=sizing,
-                    thermal=thermal, review=review, assumptions=tuple(reader.assumptions))
+                    thermal=thermal, review=review, assumptions=tuple(reader.assumptions),
+                    faults=_read_faults(reader, raw), reliability=_read_reliability(reader, raw),
+                    end_of_life=_read_end_of_life(reader, raw, grading))
     _cross_check(reader, design)
     notes = _row_notes(design)
     return replace(design, assumptions=design.assumptions + notes) if notes else design
@@ -230,6 +241,84 @@ def _row_notes(design: Design) -> tuple[Finding, ...]:
             "screened": Value(", ".join(screened) or "none"),
             "unscreened": Value(", ".join(unscreened) or "none")}))
     return tuple(notes)
+
+
+def _read_faults(reader: Reader, raw: Mapping[str, Any]) -> Faults:
+    """``[faults]``: the kinds of single fault ``check --faults`` evaluates (default all)."""
+    table = reader.table(raw, "faults")
+    reader.check_keys(table, SCHEMA_KEYS["faults"], "faults")
+    kinds = table.get("kinds", FAULT_KINDS)
+    if isinstance(kinds, str):
+        kinds = [kinds]
+    if not isinstance(kinds, (list, tuple)) or not kinds:
+        raise reader.error("faults.kinds", "must be a non-empty list of fault kinds, e.g. "
+                                           f"[\"device_short\"]; valid kinds: {', '.join(FAULT_KINDS)}")
+    for kind in kinds:
+        if kind not in FAULT_KINDS:
+            raise reader.error("faults.kinds", f"unknown fault kind {kind!r}; valid kinds: "
+                                               f"{', '.join(FAULT_KINDS)}")
+    return Faults(kinds=tuple(dict.fromkeys(kinds)))
+
+
+def _read_reliability(reader: Reader, raw: Mapping[str, Any]) -> Reliability:
+    """``[reliability]``: the factors of the failure-rate estimate (``check --failure-rate``)."""
+    table = reader.table(raw, "reliability")
+    prefix = "reliability"
+    reader.check_keys(table, SCHEMA_KEYS[prefix], prefix)
+    defaults = Reliability()
+    values = {key: reader.text(table, key, prefix, default=getattr(defaults, key), choices=choices)
+              for key, choices in (("device_type", RELIABILITY_DEVICE_TYPES),
+                                   ("quality", RELIABILITY_QUALITIES),
+                                   ("environment", RELIABILITY_ENVIRONMENTS),
+                                   ("contact", RELIABILITY_CONTACTS))}
+    base_rate = None
+    if "base_rate" in table:
+        value = table["base_rate"]
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or \
+                not math.isfinite(value) or not value > 0:
+            raise reader.error("reliability.base_rate", "must be a number > 0 in failures per "
+                                                        f"10^6 hours (e.g. 0.003), got {value!r}")
+        base_rate = float(value)
+    return Reliability(base_rate=base_rate, **values)
+
+
+def _read_end_of_life(reader: Reader, raw: Mapping[str, Any], grading: Grading) -> EndOfLife:
+    """``[end_of_life]``: the grading network's changes over life (``check --end-of-life``)."""
+    table = reader.table(raw, "end_of_life")
+    prefix = "end_of_life"
+    reader.check_keys(table, SCHEMA_KEYS[prefix], prefix)
+    enabled = table.get("enabled", False)
+    if not isinstance(enabled, bool):
+        raise reader.error("end_of_life.enabled", f"must be true or false, got {enabled!r}")
+    drift = reader.quantity(table, "resistor_drift", DIMENSIONLESS, prefix, default=0.0)
+    if not -0.5 < drift < 0.5:
+        raise reader.error("end_of_life.resistor_drift", "must be a change within +-50 % (e.g. "
+                                                         f"\"2 %\"), got {table['resistor_drift']!r}")
+    mode = reader.text(table, "resistor_drift_mode", prefix, default="band",
+                       choices=("band", "shift"))
+    gamma = reader.quantity(table, "resistor_voltage_coefficient", PER_VOLT, prefix, default=0.0)
+    if not abs(gamma) < 1e-3:
+        raise reader.error("end_of_life.resistor_voltage_coefficient",
+                           "must be within +-1000 ppm/V (a few hundred ppm/V is typical of "
+                           f"high-value thick film), got {table['resistor_voltage_coefficient']!r}")
+    bias = reader.quantity(table, "capacitor_dc_bias", DIMENSIONLESS, prefix, default=0.0)
+    if not 0.0 <= bias < 1.0:
+        raise reader.error("end_of_life.capacitor_dc_bias", "must be a fraction of C lost at the "
+                                                            "rated voltage in [0, 1) (e.g. "
+                                                            f"\"20 %\"), got {table['capacitor_dc_bias']!r}")
+    surface = reader.quantity(table, "surface_resistance", OHM, prefix, positive=True)
+    fraction = reader.fraction(table, "surface_fraction", prefix, default=1.0, low=0.0, high=1.0,
+                               high_open=False)
+    if bias and grading.capacitor is not None and grading.capacitor_rated_voltage is None:
+        raise reader.error("grading.capacitor_rated_voltage", "missing; end_of_life."
+                                                              "capacitor_dc_bias is the loss at "
+                                                              "the capacitor's rated voltage")
+    if "surface_fraction" in table and surface is None:
+        raise reader.error("end_of_life.surface_fraction", "needs end_of_life.surface_resistance "
+                                                           "(the shunt it places)")
+    return EndOfLife(enabled=enabled, resistor_drift=drift, resistor_drift_mode=mode,
+                     resistor_voltage_coefficient=gamma, capacitor_dc_bias=bias,
+                     surface_resistance=surface, surface_fraction=fraction)
 
 
 def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:

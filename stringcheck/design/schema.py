@@ -49,9 +49,14 @@ SCHEMA_KEYS = {
                "stray_capacitance", "resistor_min", "resistor_max", "capacitor_min",
                "capacitor_max"),
     "review": ("tolerance", "stress_tolerance"),
+    "faults": ("kinds",),
+    "reliability": ("device_type", "base_rate", "quality", "environment", "contact"),
+    "end_of_life": ("enabled", "resistor_drift", "resistor_drift_mode",
+                    "resistor_voltage_coefficient", "capacitor_dc_bias", "surface_resistance",
+                    "surface_fraction"),
 }
 TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
-              "review")
+              "review", "faults", "reliability", "end_of_life")
 
 
 class Reader:

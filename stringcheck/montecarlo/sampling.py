@@ -72,6 +72,9 @@ SUM_TRIALS = 64
 _RESISTOR_STREAM = 1001
 _CAPACITOR_STREAM = 1002
 _MIX_STREAM = 1003
+# The end-of-life drift of each grading resistor, and which stages carry surface leakage.
+_DRIFT_STREAM = 1004
+_SURFACE_STREAM = 1005
 _LOT_STREAM_BASE = 2000
 # Which devices of a measured lot stand in a string: one stream per part, apart from its lot stream.
 _MEASURED_STREAM_BASE = 3_000_000
@@ -112,6 +115,9 @@ class DrawnStrings:
     part_index: np.ndarray | None = None
     part_names: tuple[str, ...] = ()
     latent_uniform: bool = False
+    # End of life (``aged_strings``): a surface-leakage conductance across each stage [S],
+    # (trials, parallel, series), 0 where a stage has none; None without.
+    surface_conductance: np.ndarray | None = None
 
     def latent_normals(self, name: str, count: int | None = None) -> np.ndarray:
         """The standard-normal latent values of parameter ``name`` for the first ``count`` trials
@@ -487,7 +493,30 @@ def draw_strings(design: Design, parameters: tuple[str, ...], first_trial: int, 
     """
     seed = design.monte_carlo.seed if seed is None else seed
     latent = draw_latent(design, parameters, first_trial, count, seed)
-    return strings_from_latent(design, parameters, latent, first_trial, seed=seed)
+    drawn = strings_from_latent(design, parameters, latent, first_trial, seed=seed)
+    return aged_strings(design, drawn, seed) if design.end_of_life.enabled else drawn
+
+
+def aged_strings(design: Design, drawn: DrawnStrings, seed: int) -> DrawnStrings:
+    """``drawn`` at the end of life (``design.end_of_life``): each grading resistor drifted by a
+    uniform draw within +-drift (band) or between 0 and drift (one-sided shift), and a surface
+    shunt 1 / surface_resistance across each stage with probability surface_fraction, each from
+    its own stream of ``seed`` (block by block, so the same whatever the chunks)."""
+    aged = design.end_of_life
+    layout = design.string
+    count = drawn.trials
+    shape = (count, layout.parallel, layout.series)
+    width = layout.parallel * layout.series
+    resistance = drawn.resistance
+    if resistance is not None and aged.resistor_drift:
+        scores = _uniforms(seed, drawn.first_trial, count, _DRIFT_STREAM, width).reshape(shape)
+        spread = 2.0 * scores - 1.0 if aged.resistor_drift_mode == "band" else scores
+        resistance = resistance * (1.0 + aged.resistor_drift * spread)
+    surface = None
+    if aged.surface_resistance is not None:
+        scores = _uniforms(seed, drawn.first_trial, count, _SURFACE_STREAM, width).reshape(shape)
+        surface = np.where(scores < aged.surface_fraction, 1.0 / aged.surface_resistance, 0.0)
+    return replace(drawn, resistance=resistance, surface_conductance=surface)
 
 
 def _mapped_scores(scores: StreamScores, mapper) -> np.ndarray:

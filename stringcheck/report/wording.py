@@ -76,7 +76,12 @@ TEMPLATES: dict[str, str] = {
         "C raised from {previous} to {raised} for the time-domain turn-off: no damping resistor "
         "kept the simulated peak within the limit at the smaller value",
     "size.transient_not_run":
-        "damping resistor not confirmed in the time domain: {reason}",
+        "damping resistor not confirmed in the time domain: {causes}",
+    # studies.faults: why a kind of fault was not evaluated
+    "fault.no_capacitor": "no grading capacitor (grading.capacitor)",
+    "fault.no_turn_off": "the dynamic check does not run (no turn-off)",
+    "fault.no_damping_resistor": "no damping resistor (grading.damping_resistor)",
+    "fault.no_resistor": "no grading resistor (grading.resistor)",
     # studies.size: the limit that bound each proposed value
     "size.bound.p_fail":
         "{item:item} limited by P(fail) ({check:check}): {value} gives P(fail) <= "

@@ -423,7 +423,7 @@ def _size(design: Design, *, trials: int | None, seed: int | None, resistor_seri
             tried = _damping_in_time_domain(sized, damping, trials, seed, pool)
             if tried is None:  # the transient cannot run for this design
                 advisories.append(Finding("size.transient_not_run",
-                                          {"reason": Value(transient_reason(sized))}))
+                                          causes=(transient_reason(sized),)))
                 time_domain = False
                 break
             damping = last_tried = tried

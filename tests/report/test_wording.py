@@ -393,8 +393,12 @@ TODAY = [
 # studies/size.py: the limit that bound each proposed value, and why there is no proposal
 # (issue 18); sentences written for these findings, checked by hand against the figures.
 SIZING = [
-    (Finding("size.transient_not_run", {"reason": Value("give duty.stray_inductance or duty.di_dt (the commutation loop)")}),
+    (Finding("size.transient_not_run", causes=(Finding("not_run.no_commutation_loop"),)),
      'damping resistor not confirmed in the time domain: give duty.stray_inductance or duty.di_dt (the commutation loop)'),
+    (Finding("fault.no_capacitor"), "no grading capacitor (grading.capacitor)"),
+    (Finding("fault.no_turn_off"), "the dynamic check does not run (no turn-off)"),
+    (Finding("fault.no_damping_resistor"), "no damping resistor (grading.damping_resistor)"),
+    (Finding("fault.no_resistor"), "no grading resistor (grading.resistor)"),
     (Finding("size.bound.p_fail", {"item": Value("resistor"), "check": Value("static"), "value": Value(4.7e6, "ohm"), "p_fail_upper": Value(0.00091), "failures": Value(9), "next": Value(5.6e6, "ohm"), "next_p_fail_upper": Value(0.0013)}, Value(1e-3)),
      'R limited by P(fail) (static blocking): 4.7 MOhm gives P(fail) <= 0.00091 (9 failures), the next preferred value 5.6 MOhm gives 0.0013, over the target 0.001'),
     (Finding("size.bound.grading_current", {"item": Value("resistor"), "multiple": Value(5.0), "leakage": Value(22.6e-6, "A"), "stage_voltage": Value(1250.0, "V"), "current": Value(113e-6, "A")}, Value(11.06e6, "ohm")),
