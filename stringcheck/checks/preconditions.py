@@ -99,6 +99,8 @@ def model_assumptions(design: Design, rescaling_note: Finding | None) -> tuple[F
         notes.append(Finding("model.mixed_stock", {"mix": Value(mix_description(design))}))
     if rescaling_note is not None:
         notes.append(rescaling_note)
+    if design.duty.waveform == "offset-sine":
+        notes.append(Finding("model.offset_sine_current"))
     return tuple(notes)
 
 
