@@ -22,7 +22,7 @@ instead of 2 kV in its four hottest positions; then one built string's turn-off.
 ['dynamic', 'static']
 >>> sized = stringcheck.size(design, trials=4000, seed=11)
 >>> sized.resistor.chosen.value, sized.capacitor.chosen.value, sized.check.verdict
-(140000000.0, 1.8e-10, 'pass')
+(140000000.0, 1e-13, 'pass')
 >>> lower = replace(design.parts["FR2K"], v_rrm=1.6e3)
 >>> candidate_parts = {**design.parts, "LOWER": lower}
 >>> reviewed = stringcheck.review(replace(design, parts=candidate_parts), swap="1-4:LOWER",

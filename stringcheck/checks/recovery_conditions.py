@@ -105,6 +105,7 @@ def missing_recovery_data(design: Design) -> str:
 TURN_OFF_DC = "dc"
 TURN_OFF_SQUARE_PEAK = "square_peak"
 TURN_OFF_HALF_SINE_HISTORY = "half_sine_history"
+TURN_OFF_HALF_SINE_CREST = "half_sine_crest"
 TURN_OFF_TEST_CURRENT = "test_current"
 
 # Which setting decided the commutation slope (CommutationSlope.source).
@@ -193,7 +194,9 @@ class TurnOffCurrent:
         Where it comes from: ``"dc"`` (the constant I_F(AV) / parallel), ``"square_peak"`` (a
         square wave turns off from its peak, I_pk = 2 I_F(AV) / parallel, held for half a
         period), ``"half_sine_history"`` (a half-sine pulse of crest I_pk = pi I_F(AV) /
-        parallel, the stored charge followed along the sine to its zero) or ``"test_current"``
+        parallel, the stored charge followed along the sine to its zero), ``"half_sine_crest"``
+        (the same crest taken as steady before the fall, an upper bound, where no
+        ``duty.frequency`` gives the sine's duration) or ``"test_current"``
         (no duty.forward_current: the parts' highest test I_F, steady).
     di_dt, di_dt_source, natural_di_dt
         The commutation slope [A/s], which setting decided it and the waveform's natural slope
@@ -244,8 +247,8 @@ def turn_off_current(design: Design, fits: dict[str, PartFit]) -> TurnOffCurrent
         equivalent = equivalent_steady_current(stored, lifetimes, slope.di_dt)
         # No steady current falling at di_dt stores that much: start from the crest.
         equivalent = np.where(np.isfinite(equivalent), equivalent, base.current)
-        steady = float(np.max(equivalent)) if base.basis != TURN_OFF_DC and \
-            base.basis != TURN_OFF_TEST_CURRENT else base.current
+        steady = float(np.max(equivalent)) if base.basis in (
+            TURN_OFF_HALF_SINE_HISTORY, TURN_OFF_SQUARE_PEAK) else base.current
     return TurnOffCurrent(current=base.current, basis=base.basis, di_dt=slope.di_dt,
                           di_dt_source=slope.source, natural_di_dt=slope.natural,
                           steady_equivalent=steady)
@@ -261,7 +264,8 @@ def _duty_turn_off(design: Design) -> TurnOffCurrent:
                               basis=TURN_OFF_SQUARE_PEAK)
     if duty.waveform in SINE_PULSES:
         return TurnOffCurrent(current=per_branch * forward_peak_factor(duty.waveform),
-                              basis=TURN_OFF_HALF_SINE_HISTORY)
+                              basis=TURN_OFF_HALF_SINE_HISTORY if duty.frequency is not None
+                              else TURN_OFF_HALF_SINE_CREST)
     return TurnOffCurrent(current=per_branch, basis=TURN_OFF_DC)
 
 

@@ -22,6 +22,8 @@ _TURN_OFF_BASIS = {
     "square_peak": "a square wave commutates from its peak, 2 I_F(AV)",
     "half_sine_history": "the crest pi I_F(AV) of the half-sine pulse; the stored charge is "
                          "followed along the sine to its zero",
+    "half_sine_crest": "the crest pi I_F(AV) of the half-sine pulse, taken as steady: no "
+                       "duty.frequency to follow the sine",
     "test_current": "the parts' test I_F: no duty.forward_current",
 }
 

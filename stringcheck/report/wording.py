@@ -36,6 +36,8 @@ _TURN_OFF_CURRENT = {
     "square_peak": "I_F = {current:.3g} A per branch, the square wave's peak",
     "half_sine_history": "a half-sine pulse of crest {current:.3g} A per branch, its stored "
                          "charge followed along the sine to the zero",
+    "half_sine_crest": "I_F = {current:.3g} A per branch, the half-sine's crest taken as steady "
+                       "(no duty.frequency to follow the sine: an upper bound)",
     "dc": "I_F = {current:.3g} A per branch",
 }
 

@@ -230,6 +230,19 @@ def test_commutation_slope_choice_and_which_decided(di_dt, stray, source, expect
     assert words[source] in sentence(note)
 
 
+def test_half_sine_without_frequency_turns_off_from_its_crest_held():
+    # No duty.frequency: the sine's duration is unknown, so its crest is taken as steady before
+    # the fall (an upper bound on the stored charge); the carried charge is then the steady ramp's.
+    text = _SQUARE.format(current="10 A", waveform="half-sine", part=_PART).replace(
+        'frequency = "20 kHz"\n', "").replace("[thermal]", "[thermal_unused]").replace(
+        'heatsink = "separate"\nr_th_sa = "0.5 K/W"\n', "")
+    text = text.replace("[thermal_unused]\n", "")
+    rescaling, note = recovery_rescaling(parse_design_text(text))
+    assert rescaling.turn_off.basis == "half_sine_crest" and note.code.endswith("half_sine_crest")
+    carried = {item.part: item.carried_typ for item in rescaling.turn_off.parts}
+    assert carried["A"] == pytest.approx(_carried(1e-6, 10 * np.pi), rel=1e-9)
+
+
 def test_square_wave_has_no_natural_slope():
     text = _SQUARE.format(current="10 A", waveform="square", part=_PART).replace(
         'di_dt = "100 A/us"', "")

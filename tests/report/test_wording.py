@@ -237,6 +237,16 @@ TODAY = [
      "(Lauritzen-Ma), driven by the duty's forward current up to its zero; the charge balance of "
      "the dynamic check and the recovery loss of the thermal check use the same carried value; "
      + RECOVERY_MODEL),
+    (Finding("recovery.carried.half_sine_crest", {"current": Value(31.4, "A"),
+                                                  "di_dt": Value(1e8, "A/s"),
+                                                  "source": Value("di_dt"),
+                                                  "untested": Value("")}),
+     "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
+     "(I_F = 31.4 A per branch, the half-sine's crest taken as steady (no duty.frequency to follow "
+     "the sine: an upper bound), di/dt = 1e+08 A/s, from duty.di_dt) through the charge-control "
+     "model fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma), driven by the "
+     "duty's forward current up to its zero; the charge balance of the dynamic check and the "
+     "recovery loss of the thermal check use the same carried value; " + RECOVERY_MODEL),
     (Finding("recovery.carried.test_current", {"current": Value(10.0, "A"),
                                                "di_dt": Value(5e7, "A/s"),
                                                "source": Value("di_dt"),
