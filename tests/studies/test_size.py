@@ -225,7 +225,11 @@ target_p_fail = 0.02
 def test_transient_chooses_the_least_energy_damping_resistor_within_the_limit():
     # The time-domain choice is an argmin over the E12 values tried: the chosen R_d is one whose
     # worst simulated peak stays within the limit, with the least energy per turn-off among them.
-    result = size(parse_design_text(SMALL_STACK), transient=True)
+    # A steady current at the turn-off: the 50 Hz half-sine of the shared stack leaves almost no
+    # recovery charge (issue 17), so the dynamic check would size a capacitor too small for any
+    # damping resistor to hold the overshoot of the step into the stray inductance.
+    result = size(parse_design_text(SMALL_STACK.replace('waveform = "half-sine"',
+                                                        'waveform = "dc"')), transient=True)
     tried = result.damping_candidates
     assert tried, result.damping_rule
     good = [c for c in tried if c.within_limit]
