@@ -31,8 +31,9 @@ SAFE_VOLTAGE = 60.0
 SAFE_DISCHARGE_TIME = 5.0
 
 # Waveform names of the forward current (the design file's ``duty.waveform``; the shapes are defined
-# in stringcheck.physics.forward): constant, half-wave sine pulses, half-period square pulses [-].
-WAVEFORMS = ("dc", "half-sine", "square")
+# in stringcheck.physics.waveforms): constant, half-wave sine pulses, half-period square pulses, and
+# the offset sine of capacitor-input and multiplier duty (reverse voltage (V/2)(1 - sin wt)) [-].
+WAVEFORMS = ("dc", "half-sine", "square", "offset-sine")
 
 # Heat-sink arrangements of a parallel group (the design file's ``thermal.heatsink``; the model is in
 # stringcheck.physics.thermal): one sink for every device, or one sink per device [-].

@@ -89,7 +89,19 @@ def turn_off_to_dict(turn_off: TurnOffCurrent | None) -> dict[str, Any] | None:
     if turn_off is None:
         return None
     return {"value": json_number(turn_off.current), "unit": "A", "per": "branch",
-            "basis": turn_off.basis}
+            "basis": turn_off.basis,
+            "di_dt": json_number(turn_off.di_dt), "di_dt_unit": "A/s",
+            "di_dt_source": turn_off.di_dt_source or None,
+            "natural_di_dt": json_number(turn_off.natural_di_dt),
+            "steady_equivalent": json_number(turn_off.steady_equivalent),
+            "parts": [{"part": item.part, "unit": "C",
+                       "q_rr_datasheet_typ": json_number(item.datasheet_typ),
+                       "q_rr_datasheet_max": json_number(item.datasheet_limit),
+                       "test_forward_current": json_number(item.test_current),
+                       "test_di_dt": json_number(item.test_di_dt),
+                       "q_rr_carried_typ": json_number(item.carried_typ),
+                       "q_rr_carried_max": json_number(item.carried_limit)}
+                      for item in turn_off.parts]}
 
 
 def rare_to_dict(rare: RareEstimate | None) -> dict[str, Any] | None:

@@ -17,6 +17,7 @@ import math
 from dataclasses import dataclass
 
 from stringcheck.checks.findings import Finding, Value
+from stringcheck.checks.recovery_conditions import commutation_slope
 from stringcheck.design.model import SPREAD_PARAMETERS, SPREAD_UNITS, Design
 
 # The nominal share V_s / n below this fraction of a device's V_RRM: two orders of magnitude below
@@ -27,6 +28,11 @@ MIN_SHARE_OF_RATING = 0.01
 # sine's own slope at its zero the natural turn-off of a half-sine is slower still, so the threshold
 # is the smaller of the two.
 SLOW_DI_DT = 1.0e3
+# A typed duty.di_dt this many times faster or slower than the half-sine pulse's own slope at its
+# zero (omega I_pk), with no stray inductance to force it: two orders of magnitude, where a
+# rectifier's commutation overlap or a snubber changes the slope by a few times at most (common
+# practice).
+NATURAL_SLOPE_RATIO = 100.0
 # A datasheet limit this many times its typical value (or the typical this many times the min):
 # leakage limits sit about a decade above typ, charge and time limits within a factor of 2 or 3,
 # forward figures within tens of percent (common practice; the defaults of design.TYP_FRACTION_OF_MAX).
@@ -120,6 +126,19 @@ def _turn_off_slopes(design: Design) -> list[PlausibilityWarning]:
         peak = math.pi * duty.forward_current / design.string.parallel
         threshold = min(threshold, 0.1 * 2.0 * math.pi * duty.frequency * peak)
     found = []
+    natural = commutation_slope(design).natural
+    if (duty.di_dt is not None and duty.stray_inductance is None and math.isfinite(natural)
+            and natural > 0 and duty.di_dt > 0):
+        ratio = duty.di_dt / natural
+        if ratio >= NATURAL_SLOPE_RATIO or ratio <= 1.0 / NATURAL_SLOPE_RATIO:
+            found.append(PlausibilityWarning("duty.di_dt", Finding(
+                "plausibility.di_dt_far_from_natural",
+                {"slope": Value(duty.di_dt, "A/s"), "slope_per_us": Value(duty.di_dt * 1e-6, "A/us"),
+                 "natural": Value(natural, "A/s"), "natural_per_us": Value(natural * 1e-6, "A/us"),
+                 "factor": Value(max(ratio, 1.0 / ratio)),
+                 "direction": Value("faster" if ratio > 1 else "slower"),
+                 "waveform": Value(duty.waveform), "frequency": Value(duty.frequency, "Hz")},
+                Value(NATURAL_SLOPE_RATIO))))
     if duty.di_dt is not None and duty.di_dt < threshold:
         found.append(PlausibilityWarning("duty.di_dt", _slope("plausibility.slow_turn_off_slope",
                                                               duty.di_dt, threshold)))

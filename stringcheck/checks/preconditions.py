@@ -114,6 +114,8 @@ def model_assumptions(design: Design, rescaling_note: Finding | None) -> tuple[F
     capacitive = capacitive_recovery_note(design)
     if capacitive is not None and not dynamic_check_reason(design):
         notes.append(capacitive)
+    if design.duty.waveform == "offset-sine":
+        notes.append(Finding("model.offset_sine_current"))
     return tuple(notes)
 
 

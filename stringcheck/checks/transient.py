@@ -372,7 +372,10 @@ def _loop(design: Design, fits) -> tuple[float, float, tuple[str, ...]]:
     inductance = duty.stray_inductance if duty.stray_inductance is not None else \
         duty.reverse_voltage / duty.di_dt
     turn_off = turn_off_current(design, fits)
-    forward = turn_off.current
+    # The engine starts in a steady state: from the steady current that leaves the typical
+    # device the stored charge the waveform's history leaves at the zero (recovery_conditions).
+    forward = turn_off.steady_equivalent if math.isfinite(turn_off.steady_equivalent) else \
+        turn_off.current
     if turn_off.basis == TURN_OFF_TEST_CURRENT:
         notes.append(f"no duty.forward_current: each branch starts from the parts' test I_F "
                      f"({forward:g} A)")

@@ -26,6 +26,7 @@ from scipy.special import gammaln
 from stringcheck.constants import WAVEFORMS
 from stringcheck.errors import StringcheckError
 from stringcheck.physics.leakage import leakage_current
+from stringcheck.physics.waveforms import SINE_PULSES, forward_peak_factor
 
 __all__ = [
     "DEFAULT_PHASE_POINTS",
@@ -199,7 +200,7 @@ def peak_factor(waveform: str) -> float:
     I_AV = I_pk / 2.
     """
     _check_waveform(waveform)
-    return {"dc": 1.0, "half-sine": np.pi, "square": 2.0}[waveform]
+    return forward_peak_factor(waveform)
 
 
 def form_factor(waveform: str) -> float:
@@ -221,7 +222,7 @@ def form_factor(waveform: str) -> float:
     I_RMS = I_pk / 2 and I_RMS / I_AV = pi / 2. Square: I_RMS = I_pk / sqrt(2), I_AV = I_pk / 2.
     """
     _check_waveform(waveform)
-    return {"dc": 1.0, "half-sine": np.pi / 2.0, "square": np.sqrt(2.0)}[waveform]
+    return {"dc": 1.0, "square": np.sqrt(2.0)}.get(waveform, np.pi / 2.0)
 
 
 def phase_samples(
@@ -265,7 +266,7 @@ def phase_samples(
     _check_waveform(waveform)
     average = np.asarray(average_current, dtype=float)
     peak = peak_factor(waveform) * average
-    if waveform == "half-sine":
+    if waveform in SINE_PULSES:
         # sin(theta) = sin(pi - theta): the midpoint samples pair up, so keep one of each pair
         # with twice the weight (the middle one of an odd count stands alone).
         kept = (points + 1) // 2
@@ -357,6 +358,12 @@ def blocking_factor(
 
       which is 1/pi for m = 0 (the mean of a half-wave sine), 1/4 for m = 1;
     * square: v = V over the blocking half period, k = 1/2;
+    * offset-sine: v = (V / 2)(1 - sin theta) = V sin^2(pi/4 - theta/2) over the whole period;
+      the mean of sin^(2a) over a period is Gamma(a + 1/2) / (sqrt(pi) Gamma(a + 1)), so
+
+      .. math:: k = \\frac{\\Gamma(m + 3/2)}{\\sqrt{\\pi}\\,\\Gamma(m + 2)}
+
+      which is 1/2 for m = 0, 3/8 for m = 1;
     * dc: conducting continuously, k = 0, where a forward current flows; blocking continuously at
       V, k = 1, where the forward current is 0.
 
@@ -370,6 +377,8 @@ def blocking_factor(
         factor = np.exp(gammaln(1.0 + exponent / 2.0) - gammaln((3.0 + exponent) / 2.0)) / (
             2.0 * np.sqrt(np.pi)
         )
+    elif waveform == "offset-sine":
+        factor = np.exp(gammaln(exponent + 1.5) - gammaln(exponent + 2.0)) / np.sqrt(np.pi)
     elif waveform == "square":
         factor = np.full_like(exponent, 0.5)
     else:

@@ -12,8 +12,9 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from stringcheck.constants import SAFE_VOLTAGE
+from stringcheck.constants import SAFE_VOLTAGE, WAVEFORMS
 from stringcheck.errors import StringcheckError
+from stringcheck.physics.waveforms import reverse_mean_square
 
 __all__ = [
     "WAVEFORM_MEAN_SQUARE_FACTOR",
@@ -25,7 +26,7 @@ __all__ = [
     "worst_case_static_resistance",
 ]
 
-WAVEFORM_MEAN_SQUARE_FACTOR = {"dc": 1.0, "half-sine": 0.25, "square": 0.5}
+WAVEFORM_MEAN_SQUARE_FACTOR = {name: reverse_mean_square(name) for name in WAVEFORMS}
 """Mean square of the reverse voltage over a period, per unit peak voltage squared."""
 
 _EPSILON = np.finfo(float).eps
@@ -187,6 +188,9 @@ def resistor_power(
             rectifier on a sinusoidal supply; the forward half-cycle is taken as 0 V).
         ``"square"``
             V for half of each period, zero for the other half.
+        ``"offset-sine"``
+            (V / 2)(1 - sin wt) throughout (capacitor-input and multiplier duty), mean square
+            3 V^2 / 8 (:func:`stringcheck.physics.waveforms.reverse_mean_square`).
 
     Returns
     -------

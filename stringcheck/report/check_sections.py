@@ -13,22 +13,57 @@ from stringcheck.checks.forward import ParallelCheck, ThermalCheck
 from stringcheck.checks.series import DynamicCheck, SeriesCheck
 from stringcheck.checks.transient import TransientCheck
 from stringcheck.report.display_text import shown
+from stringcheck.report.wording import SLOPE_SOURCES
 
 
 # How each basis of the turn-off current (checks.recovery_conditions.TurnOffCurrent) reads.
 _TURN_OFF_BASIS = {
     "dc": "the dc forward current",
     "square_peak": "a square wave commutates from its peak, 2 I_F(AV)",
-    "half_sine_average": "the half-sine's average I_F(AV); its decay to the zero crossing is not "
-                         "modelled yet",
+    "half_sine_history": "the crest pi I_F(AV) of the half-sine pulse; the stored charge is "
+                         "followed along the sine to its zero",
+    "half_sine_crest": "the crest pi I_F(AV) of the half-sine pulse, taken as steady: no "
+                       "duty.frequency to follow the sine",
     "test_current": "the parts' test I_F: no duty.forward_current",
 }
 
 
-def turn_off_text(turn_off) -> str:
-    """The current a branch commutates from, in words."""
-    return (f"I_F = {format_quantity(turn_off.current, 'A')} per branch at turn-off "
+def turn_off_text(turn_off, *, simulated: bool = False) -> str:
+    """The current a branch commutates from and the commutation slope, in words; ``simulated``
+    for the transient check, which starts from the steady equivalent of the current."""
+    text = (f"I_F = {format_quantity(turn_off.current, 'A')} per branch at turn-off "
             f"({_TURN_OFF_BASIS[turn_off.basis]})")
+    if simulated and turn_off.basis not in ("dc", "test_current") and \
+            math.isfinite(turn_off.steady_equivalent):
+        text += (f", simulated from the steady {format_quantity(turn_off.steady_equivalent, 'A')} "
+                 "that leaves the typical device the same stored charge at the zero")
+    if math.isfinite(turn_off.di_dt):
+        text += (f", di/dt = {_per_us(turn_off.di_dt)} from "
+                 f"{SLOPE_SOURCES[turn_off.di_dt_source]}")
+        if turn_off.di_dt_source != "natural" and math.isfinite(turn_off.natural_di_dt):
+            text += (f" (the waveform's natural slope is "
+                     f"{_per_us(turn_off.natural_di_dt)})")
+    return text
+
+
+def _per_us(slope: float) -> str:
+    """A slope [A/s] in A/us, the trade's unit."""
+    return f"{slope * 1e-6:.3g} A/us"
+
+
+def carried_recovery_lines(turn_off) -> list[str]:
+    """Per part, Q_rr at the datasheet's test beside the value carried to the turn-off."""
+    lines = []
+    for item in turn_off.parts:
+        given = f"typ {format_quantity(item.datasheet_typ, 'C')}"
+        carried = f"typ {format_quantity(item.carried_typ, 'C')}"
+        if item.datasheet_limit is not None:
+            given += f", max {format_quantity(item.datasheet_limit, 'C')}"
+            carried += f", max {format_quantity(item.carried_limit, 'C')}"
+        lines.append(f"  part {shown(item.part)}: Q_rr {given} at the datasheet's "
+                     f"{format_quantity(item.test_current, 'A')}, "
+                     f"{_per_us(item.test_di_dt)} -> carried {carried}")
+    return lines
 
 
 def failure_point_text(rare, *, top: int = 3) -> str:
@@ -54,7 +89,8 @@ def failure_point_text(rare, *, top: int = 3) -> str:
 def render_transient(check: TransientCheck, design, console: Console) -> None:
     console.print(Text("Turn-off in the time domain (stray inductance, recovery, damping)",
                        style="bold underline"))
-    current = turn_off_text(check.turn_off_current) if check.turn_off_current is not None else \
+    current = turn_off_text(check.turn_off_current, simulated=True) \
+        if check.turn_off_current is not None else \
         f"I_F = {format_quantity(check.forward_current, 'A')} per branch"
     console.print(f"L = {format_quantity(check.inductance, 'H')}, {current}; simulated: the "
                   f"{check.worst_simulated} worst charge-balance strings and a random sample of "
@@ -148,6 +184,8 @@ def render_thermal(check: ThermalCheck, design, console: Console) -> None:
     if check.turn_off_current is not None:
         console.print(f"recovery loss Q_rr V f with each device's Q_rr carried, as in the dynamic "
                       f"check, to {turn_off_text(check.turn_off_current)}")
+        for line in carried_recovery_lines(check.turn_off_current):
+            console.print(line)
     ranked = sorted(check.positions, key=lambda p: p.max_temperature, reverse=True)[:5]
     single_branch = all(p.branch == 1 for p in check.positions)
     table = Table(show_edge=False, pad_edge=False)

@@ -37,6 +37,7 @@ from stringcheck.report.check_sections import (
     render_parallel,
     render_thermal,
     render_transient,
+    carried_recovery_lines,
     turn_off_text,
     worst_value_text,
 )
@@ -294,6 +295,9 @@ def _render_detail(name: str, check: SeriesCheck, design, console: Console) -> N
                       if check.turn_off_current is not None else
                       "Q_rr of each device at the datasheet's test conditions (not carried to the "
                       "application's turn-off; see the assumptions)")
+        if check.turn_off_current is not None:
+            for line in carried_recovery_lines(check.turn_off_current):
+                console.print(line)
     single_branch = all(p.branch == 1 for p in check.positions)
     ranked = sorted(check.positions, key=lambda p: p.max_voltage / p.limit, reverse=True)[:5]
     table = Table(show_edge=False, pad_edge=False)

@@ -36,8 +36,10 @@ _RECOVERY_MODEL = ("Q_rr at each position's junction temperature (between its ro
 _TURN_OFF_CURRENT = {
     "test_current": "I_F = the test I_F ({current}; no duty.forward_current)",
     "square_peak": "I_F = {current} per branch, the square wave's peak",
-    "half_sine_average": "I_F = {current} per branch, the half-sine's average (its decay "
-                         "to the zero crossing is not modelled)",
+    "half_sine_history": "a half-sine pulse of crest {current} per branch, its stored "
+                         "charge followed along the sine to the zero",
+    "half_sine_crest": "I_F = {current} per branch, the half-sine's crest taken as steady "
+                       "(no duty.frequency to follow the sine: an upper bound)",
     "dc": "I_F = {current} per branch",
 }
 
@@ -248,6 +250,10 @@ TEMPLATES: dict[str, str] = {
         "leakage of each device at that temperature between its datasheet rows (exponential in T)",
     "model.resistor_tcr":
         "grading resistor TCR referred to {reference:g} degC, resistor at its diode's temperature",
+    "model.offset_sine_current":
+        "offset-sine duty: reverse voltage (V/2)(1 - sin wt), mean square 3/8 V^2; the forward "
+        "current is taken as a half-sine pulse of the same average over half the period (a "
+        "shorter conduction pulse commutates from a higher crest: give duty.di_dt where known)",
     "model.mixed_stock":
         "mixed stock: {causes}; a mixed position (part A|B) is judged device by device against the "
         "limit of the part drawn, and its per-position limit shown is the lowest of the two",
@@ -264,8 +270,9 @@ TEMPLATES: dict[str, str] = {
         "q_rr, i_rm or t_rr and at_di_dt fit no recovery waveform; " + _RECOVERY_MODEL,
     **{f"recovery.carried.{basis}":
        "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the "
-       f"application's ({current}, di/dt = {{di_dt}}) through the charge-control model "
-       "fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); the charge balance "
+       f"application's ({current}, di/dt = {{di_dt}}{{source:slope_source}}) through the "
+       "charge-control model fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma), "
+       "driven by the duty's forward current up to its zero; the charge balance "
        "of the dynamic check and the recovery loss of the thermal check use the same carried "
        "value{untested:untested_current}; " + _RECOVERY_MODEL
        for basis, current in _TURN_OFF_CURRENT.items()},
@@ -286,6 +293,11 @@ TEMPLATES: dict[str, str] = {
         "a turn-off slope of {slope:g} A/s ({slope_per_us:.3g} A/us) is orders of magnitude "
         "slower than any commutation (1 to 1000 A/us is usual); a bare number is A/s: write "
         "\"{slope:g} A/us\" if that was meant",
+    "plausibility.di_dt_far_from_natural":
+        "a turn-off slope of {slope_per_us:.3g} A/us is {factor:times} {direction} than the "
+        "{waveform} current's own slope at its zero ({natural_per_us:.3g} A/us = omega I_pk at "
+        "{frequency:g} Hz), and no duty.stray_inductance says what would force it; the recovery "
+        "is carried at the slope given (leave duty.di_dt out to use the natural slope)",
     "plausibility.slow_test_di_dt":
         "a datasheet test di/dt of {slope:g} A/s ({slope_per_us:.3g} A/us) is orders of "
         "magnitude slower than any commutation (1 to 1000 A/us is usual); a bare number is A/s: "
@@ -408,6 +420,11 @@ def _within(parameter: str) -> str:
         "a factor of 2 or 3" if parameter in LOGNORMAL_PARAMETERS else "some tens of percent")
 
 
+# Which setting decided the commutation slope (checks.recovery_conditions.CommutationSlope).
+SLOPE_SOURCES = {"di_dt": "duty.di_dt", "stray_inductance": "V_s / duty.stray_inductance",
+                 "natural": "the waveform's natural slope at its zero, omega I_pk", "": "unknown"}
+
+
 def _untested_current(parts: str) -> str:
     return "" if not parts else (f"; {parts} give(s) no q_rr.at_forward_current: Q_rr taken as "
                                  "given at the turn-off current (not rescaled in current)")
@@ -421,6 +438,7 @@ _WORDED = {
     "times": _times,
     "typ_note": lambda assumed: " (typ assumed from the max)" if assumed else "",
     "untested_current": _untested_current,
+    "slope_source": lambda source: f", from {SLOPE_SOURCES[source]}",
     # A value that is itself a finding's code without values: its sentence.
     "sentence": lambda code: TEMPLATES[code],
     "regions": lambda count: f" of each of {count} failure regions" if count > 1 else "",

@@ -146,7 +146,10 @@ def test_result_to_dict_is_the_export_without_the_worded_sections(result):
     # The report adds the worded sections and what identifies the result (report.export).
     assert set(exported) - set(own) == {"lots", "cautions", "impossible", "assumptions",
                                         "tool_version", "design_sha256", "inputs"}
-    assert all(exported[key] == value for key, value in own.items() if key != "network")
+    assert all(exported[key] == value for key, value in own.items()
+               if key not in ("network", "warnings"))
+    # The export adds each warning's sentence (``message``) beside its key and code.
+    assert [{k: w[k] for k in ("key", "code")} for w in exported["warnings"]] == own["warnings"]
     assert exported["impossible"] is None if not own["impossible_codes"] else exported["impossible"]
     assert [key for key in exported if key in own] == list(own)
     # The network's findings are in words only in the export (report.wording), beside their codes.

@@ -16,7 +16,10 @@ from stringcheck.studies.check import run_check
 
 from tests.designs import design_text
 
-BASE = design_text("one_kv_stack") + """[grading]
+# The shared stack types 20 A/us on a 50 Hz half-sine, 40,000 x its natural slope: a stray
+# inductance that forces that slope (3 kV / 150 uH = 20 A/us) keeps it an ordinary design here.
+BASE = design_text("one_kv_stack").replace(
+    'ambient = "25 degC"', 'ambient = "25 degC"\nstray_inductance = "150 uH"') + """[grading]
 resistor = "10 MOhm"
 capacitor = "1 nF"
 [monte_carlo]
@@ -112,13 +115,49 @@ def test_several_slips_each_warn_once():
     assert sorted(keys(text)) == sorted({key for _, _, key in SLIPS})
 
 
-def test_examples_and_demo_raise_no_warning():
+# The examples that type 10 A/us on a 50 Hz half-wave supply with no stray inductance (issue 17:
+# orders of magnitude off the natural slope) warn so; nothing else in them does.
+NATURAL_SLOPE_WARNED = {"furnace-rectifier-3x2-parallel", "precipitator-30kv",
+                        "precipitator-30kv-measured"}
+
+
+def test_examples_and_demo_raise_only_the_natural_slope_warning():
     examples = sorted(Path(__file__).resolve().parents[2].joinpath("examples").glob("*.toml"))
     assert examples
     for path in examples:
-        assert plausibility_warnings(load_design(path)) == (), path
+        expected = [("duty.di_dt", "plausibility.di_dt_far_from_natural")] \
+            if path.stem in NATURAL_SLOPE_WARNED else []
+        found = [(w.key, w.finding.code) for w in plausibility_warnings(load_design(path))]
+        assert found == expected, path
     demo = (resources.files("stringcheck") / "data" / "demo.toml").read_text(encoding="utf-8")
-    assert plausibility_warnings(parse_design_text(demo)) == ()
+    found = plausibility_warnings(parse_design_text(demo))
+    assert [w.finding.code for w in found] == ["plausibility.di_dt_far_from_natural"]
+    # By hand: 0.5 A average, I_pk = pi 0.5 A, omega I_pk = 2 pi 50 pi 0.5 = 493.5 A/s;
+    # 10 A/us / 493.5 A/s = 20,264.
+    assert found[0].finding.values["factor"].number == pytest.approx(1e7 / 493.48, rel=1e-4)
+
+
+@pytest.mark.parametrize("di_dt, stray, warned, direction", [
+    ('"20 A/us"', None, True, "faster"),           # 40,528 x the natural 493.5 A/s x 2 (1 A)
+    ('"20 A/us"', '"150 uH"', False, None),        # a stray inductance forces the slope
+    ("98700", None, True, "faster"),                # 100.0 x the natural 986.96 A/s
+    ("98000", None, False, None),                   # 99.3 x: within two orders of magnitude
+    ("1000", None, False, None),                    # about the natural slope
+    ("9.8", None, True, "slower"),                  # a hundredth of it
+])
+def test_di_dt_far_from_the_natural_slope_warns(di_dt, stray, warned, direction):
+    # Natural slope by hand: I_AV = 1 A, I_pk = pi A, omega I_pk = 2 pi 50 pi = 986.96 A/s.
+    text = design_text("one_kv_stack").replace('di_dt = "20 A/us"', f"di_dt = {di_dt}")
+    if stray:
+        text = text.replace('ambient = "25 degC"', f'ambient = "25 degC"\nstray_inductance = {stray}')
+    found = [w for w in plausibility_warnings(parse_design_text(text))
+             if w.finding.code == "plausibility.di_dt_far_from_natural"]
+    assert bool(found) == warned
+    if warned:
+        assert found[0].key == "duty.di_dt"
+        assert found[0].finding.values["direction"].number == direction
+        assert found[0].finding.values["natural"].number == pytest.approx(
+            2 * math.pi * 50 * math.pi * 1.0, rel=1e-12)
 
 
 def test_check_command_shows_the_warning_and_exports_it(tmp_path):

@@ -75,6 +75,23 @@ def test_report_states_the_turn_off_current_of_each_check(result):
     assert text.count(phrase) == 2, text  # the dynamic and the transient check
 
 
+def test_report_states_the_slope_and_each_parts_carried_charge(result):
+    # Issue 17 item 1: the di/dt, which setting decided it, and per part the datasheet's Q_rr
+    # beside the carried one (the dynamic and the thermal sections where both ran).
+    from stringcheck.units import format_quantity
+
+    text = " ".join(_text(render_check, result).split())
+    assert "di/dt = 100 A/us from duty.di_dt" in text, text
+    carried = result.checks["dynamic"].turn_off_current.parts[0]
+    assert carried.part == "A" and carried.datasheet_typ == 1e-6
+    line = (f"part A: Q_rr typ 1 uC, max 1.5 uC at the datasheet's 5 A, 50 A/us -> carried typ "
+            f"{format_quantity(carried.carried_typ, 'C')}, max "
+            f"{format_quantity(carried.carried_limit, 'C')}")
+    assert line in text, text
+    # Carried to 20 A at 100 A/us from 5 A at 50 A/us: more charge than the datasheet's.
+    assert carried.carried_typ > carried.datasheet_typ
+
+
 def test_convergence_note_and_json_carry_the_estimates_own_figures(result):
     # Issue 16 item 3: the relative error of P(fail) and the trials for 10 % are the estimate's
     # figures, printed by the report and written to the JSON alike. Closed forms: relative standard

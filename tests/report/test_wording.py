@@ -244,6 +244,19 @@ TODAY = [
      "every built string); a mixed position (part A|B) is judged device by device "
      "against the limit of the part drawn, and its per-position limit shown is the lowest of "
      "the two"),
+    (Finding("plausibility.di_dt_far_from_natural",
+             {"slope": Value(1e7, "A/s"), "slope_per_us": Value(10.0, "A/us"),
+              "natural": Value(493.5, "A/s"), "natural_per_us": Value(4.935e-4, "A/us"),
+              "factor": Value(20264.0), "direction": Value("faster"),
+              "waveform": Value("half-sine"), "frequency": Value(50.0, "Hz")}, Value(100.0)),
+     "a turn-off slope of 10 A/us is 20,264 x faster than the half-sine current's own slope at "
+     "its zero (0.000494 A/us = omega I_pk at 50 Hz), and no duty.stray_inductance says what "
+     "would force it; the recovery is carried at the slope given (leave duty.di_dt out to use "
+     "the natural slope)"),
+    (Finding("model.offset_sine_current"),
+     "offset-sine duty: reverse voltage (V/2)(1 - sin wt), mean square 3/8 V^2; the forward "
+     "current is taken as a half-sine pulse of the same average over half the period (a shorter "
+     "conduction pulse commutates from a higher crest: give duty.di_dt where known)"),
     (Finding("recovery_data.no_di_dt"), "no di/dt"),
     (Finding("recovery.not_rescaled", causes=(Finding("recovery_data.no_di_dt"),)),
      "recovery charge: Q_rr taken at the datasheet's test conditions, not rescaled to the "
@@ -252,35 +265,53 @@ TODAY = [
      "recovery charge: Q_rr taken at the datasheet's test conditions: parts.A's typical q_rr, "
      "i_rm or t_rr and at_di_dt fit no recovery waveform; " + RECOVERY_MODEL),
     (Finding("recovery.carried.dc", {"current": Value(12.5, "A"), "di_dt": Value(5e7, "A/s"),
-                                     "untested": Value("")}),
+                                     "source": Value("di_dt"), "untested": Value("")}),
      "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
-     "(I_F = 12.5 A per branch, di/dt = 50 MA/s) through the charge-control model fitted to "
-     "each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); the charge balance of the "
+     "(I_F = 12.5 A per branch, di/dt = 50 MA/s, from duty.di_dt) through the charge-control "
+     "model fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma), driven by the "
+     "duty's forward current up to its zero; the charge balance of the "
      "dynamic check and the recovery loss of the thermal check use the same carried value; "
      + RECOVERY_MODEL),
     (Finding("recovery.carried.square_peak", {"current": Value(25.0, "A"),
                                               "di_dt": Value(5e7, "A/s"),
+                                              "source": Value("stray_inductance"),
                                               "untested": Value("parts.A, parts.B")}),
      "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
-     "(I_F = 25 A per branch, the square wave's peak, di/dt = 50 MA/s) through the "
-     "charge-control model fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); "
+     "(I_F = 25 A per branch, the square wave's peak, di/dt = 50 MA/s, from V_s / "
+     "duty.stray_inductance) through the charge-control model fitted to each part's typical "
+     "Q_rr and I_RM or t_rr (Lauritzen-Ma), driven by the duty's forward current up to its zero; "
      "the charge balance of the dynamic check and the recovery loss of the thermal check use the "
      "same carried value; parts.A, parts.B give(s) no q_rr.at_forward_current: Q_rr taken as "
      "given at the turn-off current (not rescaled in current); " + RECOVERY_MODEL),
-    (Finding("recovery.carried.half_sine_average", {"current": Value(12.5, "A"),
+    (Finding("recovery.carried.half_sine_history", {"current": Value(12.5, "A"),
                                                     "di_dt": Value(1e7, "A/s"),
+                                                    "source": Value("natural"),
                                                     "untested": Value("")}),
      "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
-     "(I_F = 12.5 A per branch, the half-sine's average (its decay to the zero crossing is not "
-     "modelled), di/dt = 10 MA/s) through the charge-control model fitted to each part's "
-     "typical Q_rr and I_RM or t_rr (Lauritzen-Ma); the charge balance of the dynamic check and "
-     "the recovery loss of the thermal check use the same carried value; " + RECOVERY_MODEL),
+     "(a half-sine pulse of crest 12.5 A per branch, its stored charge followed along the sine "
+     "to the zero, di/dt = 10 MA/s, from the waveform's natural slope at its zero, omega I_pk) "
+     "through the charge-control model fitted to each part's typical Q_rr and I_RM or t_rr "
+     "(Lauritzen-Ma), driven by the duty's forward current up to its zero; the charge balance of "
+     "the dynamic check and the recovery loss of the thermal check use the same carried value; "
+     + RECOVERY_MODEL),
+    (Finding("recovery.carried.half_sine_crest", {"current": Value(31.4, "A"),
+                                                  "di_dt": Value(1e8, "A/s"),
+                                                  "source": Value("di_dt"),
+                                                  "untested": Value("")}),
+     "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
+     "(I_F = 31.4 A per branch, the half-sine's crest taken as steady (no duty.frequency to follow "
+     "the sine: an upper bound), di/dt = 100 MA/s, from duty.di_dt) through the charge-control "
+     "model fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma), driven by the "
+     "duty's forward current up to its zero; the charge balance of the dynamic check and the "
+     "recovery loss of the thermal check use the same carried value; " + RECOVERY_MODEL),
     (Finding("recovery.carried.test_current", {"current": Value(10.0, "A"),
                                                "di_dt": Value(5e7, "A/s"),
+                                               "source": Value("di_dt"),
                                                "untested": Value("")}),
      "recovery charge: Q_rr carried from the datasheet's test I_F and di/dt to the application's "
-     "(I_F = the test I_F (10 A; no duty.forward_current), di/dt = 50 MA/s) through the "
-     "charge-control model fitted to each part's typical Q_rr and I_RM or t_rr (Lauritzen-Ma); "
+     "(I_F = the test I_F (10 A; no duty.forward_current), di/dt = 50 MA/s, from duty.di_dt) "
+     "through the charge-control model fitted to each part's typical Q_rr and I_RM or t_rr "
+     "(Lauritzen-Ma), driven by the duty's forward current up to its zero; "
      "the charge balance of the dynamic check and the recovery loss of the thermal check use the "
      "same carried value; " + RECOVERY_MODEL),
     # Why a check did not run (the strings of studies/check.py, checks/preconditions.py,
