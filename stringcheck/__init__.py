@@ -22,7 +22,7 @@ instead of 2 kV in its four hottest positions; then one built string's turn-off.
 ['dynamic', 'static']
 >>> sized = stringcheck.size(design, trials=4000, seed=11, transient=False)
 >>> sized.resistor.chosen.value, sized.capacitor.chosen.value, sized.check.verdict
-(11000000.0, 2.7e-10, 'pass')
+(11000000.0, 1.5e-10, 'pass')
 >>> sized.resistor.bound.code
 'size.bound.grading_current'
 >>> lower = replace(design.parts["FR2K"], v_rrm=1.6e3)
