@@ -205,6 +205,9 @@ class ForwardChunk:
     ballast_loss_per_ohm: np.ndarray | None = None
     branch_limit: np.ndarray | None = None
     runaway_ambient: np.ndarray | None = None
+    # Each device's junction temperature [degC] (trials, parallel, series) where the thermal
+    # check ran: the series checks of the same chunk take it, and it is dropped before merging.
+    junction_temperature: np.ndarray | None = None
 
 
 def forward_reasons(design: Design) -> tuple[str, str]:
@@ -379,6 +382,10 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
         current_ratio = np.max(average[..., None] / setup.rated_current, axis=(1, 2))
     chunk = ForwardChunk(first_trial=drawn.first_trial, share=share, current_ratio=current_ratio,
                          branch_current=average, **(outcome_tj or {}))
+    if setup.run_thermal:
+        chunk.junction_temperature = settled_temperature(
+            temperature, converged & ~runaway, setup.max_junction_temperature,
+            setup.position_temperature)
     if setup.run_parallel and summaries:
         # Each branch's rated current, its weakest device's (with a mix, of the parts drawn).
         chunk.branch_limit = np.broadcast_to(np.min(setup.rated_current, axis=-1), average.shape)
@@ -421,6 +428,17 @@ def forward_ratios(design: Design, setup: ForwardSetup, drawn: DrawnStrings,
     failed = np.isin(chunk.classification, (RUNAWAY, OVER_LIMIT))
     ratio = np.where(np.isnan(chunk.tj_ratio), np.inf, chunk.tj_ratio)
     return np.where(failed & within_limit(ratio), np.inf, ratio)
+
+
+def settled_temperature(temperature: np.ndarray, settled: np.ndarray, maximum: np.ndarray,
+                        position: np.ndarray) -> np.ndarray:
+    """Each device's junction temperature [degC] for the checks that take it from the
+    equilibrium: the equilibrium's where the group ``settled`` (converged, no runaway), else the
+    part's T_j,max (a group that runs away is at least that hot; the thermal check fails it),
+    or the position's temperature where T_j,max is not given."""
+    fallback = np.where(np.isfinite(maximum), maximum, position)
+    good = settled[:, None, None] & np.isfinite(temperature)
+    return np.where(good, temperature, np.broadcast_to(fallback, temperature.shape))
 
 
 def _duty(design: Design) -> ParallelDuty:

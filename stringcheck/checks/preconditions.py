@@ -87,13 +87,19 @@ def impossibility(design: Design) -> tuple[Finding, ...]:
     return tuple(reasons)
 
 
-def model_assumptions(design: Design, rescaling_note: Finding | None) -> tuple[Finding, ...]:
+def model_assumptions(design: Design, rescaling_note: Finding | None, *,
+                      ac_blocking: bool = False, self_heating: bool = False
+                      ) -> tuple[Finding, ...]:
     """The model's assumptions the report lists (findings ``model.*`` and the recovery charge's
-    ``recovery.*``)."""
+    ``recovery.*``). ``ac_blocking``: the static check also followed the reverse half-period in
+    time; ``self_heating``: the leakage took the thermal check's junction temperatures."""
+    reference = {"reference": Value(RESISTOR_TCR_REFERENCE, "degC")}
     notes = [
-        Finding("model.static_dc"),
+        Finding("model.static_ac") if ac_blocking else Finding("model.static_dc"),
+        Finding("model.junction_temperature_equilibrium") if self_heating else
         Finding("model.junction_temperature"),
-        Finding("model.resistor_tcr", {"reference": Value(RESISTOR_TCR_REFERENCE, "degC")}),
+        Finding("model.resistor_tcr_position", reference) if self_heating else
+        Finding("model.resistor_tcr", reference),
     ]
     if design.string.mix is not None:
         notes.append(Finding("model.mixed_stock", {"mix": Value(mix_description(design))}))

@@ -248,7 +248,8 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     for name in SERIES_CHECKS:
         sums = run.series.sums.get(name)
         checks[name] = not_run_series(name, plan.reasons[name]) if sums is None else \
-            finish_series(name, sums, grid, confidence, trials, target, turn_off=turn_off)
+            finish_series(name, sums, grid, confidence, trials, target, turn_off=turn_off,
+                          static=run.series.static_figures() if name == "static" else None)
     if transient:
         checks["transient"] = _transient(design, run.series.sums.get("dynamic"), plan, trials,
                                          seed, transient_worst, transient_sample, drivers)
@@ -258,7 +259,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                                              run.forward, confidence, target, trials)
         checks["thermal"] = finish_thermal(design, forward, plan.reasons["thermal"],
                                            run.forward, confidence, target, trials)
-    grading = grading_summary(design, checks, series.temperature,
+    grading = grading_summary(design, checks, _hottest_junctions(series.temperature, checks),
                               position_values(design, lambda p: p.c_j, pick=np.maximum))
     if rare is not False:
         for name in RARE_CHECKS + ("transient",):
@@ -284,10 +285,28 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                        trials_needed=trials_for_upper_bound(target, confidence=confidence),
                        checks=checks, grading=grading,
                        verdict=verdict, impossible=impossible,
-                       assumptions=design.assumptions + model_assumptions(design, plan.note),
+                       assumptions=design.assumptions + model_assumptions(
+                           design, plan.note, ac_blocking=series.ac_times is not None,
+                           self_heating=series.self_heating),
                        no_scatter=no_scatter(design, plan.context.parameters), drivers=ranking,
                        warnings=plausibility_warnings(design,
                                                       grading_loss=grading.total_grading_loss))
+
+
+def _hottest_junctions(position: np.ndarray, checks: Mapping[str, CheckOutcome]) -> np.ndarray:
+    """Each position's hottest junction temperature [degC] (parallel, series) for the grading
+    network's leakage figure: the thermal check's highest equilibrium T_j where it ran (and found
+    one), else ambient + the position's temperature rise."""
+    thermal = checks.get("thermal")
+    hottest = np.array(position, dtype=float)
+    if thermal is None or not thermal.ran:
+        return hottest
+    for device in thermal.per_position():
+        value = device.max_temperature
+        if np.isfinite(value):
+            row, column = device.branch - 1, device.index - 1
+            hottest[row, column] = max(hottest[row, column], value)
+    return hottest
 
 
 def _refuse(design: Design, trials: int, rare) -> None:
@@ -345,8 +364,11 @@ def _plan(design: Design, seed: int, only: tuple[str, ...] | None, drivers: bool
     if not (reasons["parallel"] and reasons["thermal"]):
         forward = forward_setup(design, reasons["parallel"], reasons["thermal"], rescaling)
         parameters = tuple(dict.fromkeys(parameters + forward_parameters(design)))
+    # Each device's leakage at its own junction temperature: the thermal check's equilibrium
+    # where it runs (one pass: that equilibrium takes the leakage loss at the nominal share).
     series = series_setup(design, run_static=reasons["static"] == "", run_dynamic=run_dynamic,
-                          rescaling=rescaling)
+                          rescaling=rescaling,
+                          self_heating=forward is not None and forward.run_thermal)
     context = _ChunkContext(design=design, seed=seed, parameters=parameters, series=series,
                             forward=forward, driver_trials=DRIVER_TRIALS if drivers else 0)
     return _Plan(context=context, reasons=reasons, run_forward=run_forward, note=note)
@@ -411,10 +433,13 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     order."""
     design = context.design
     drawn = draw_strings(design, context.parameters, first, count, seed=context.seed)
-    series = run_series_chunk(design, context.series, drawn)
     forward = None
+    temperature = None
     if context.forward is not None:
         forward = run_forward_chunk(design, _forward_devices(context, drawn), drawn)
+        # The series checks take each device's equilibrium T_j; the merged chunks do not keep it.
+        temperature, forward.junction_temperature = forward.junction_temperature, None
+    series = run_series_chunk(design, context.series, drawn, junction_temperature=temperature)
     features = None
     if first < context.driver_trials:
         features = chunk_features(drawn, design, min(count, context.driver_trials - first))
@@ -505,9 +530,20 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
         samples = min(samples, TRANSIENT_RARE_SAMPLES)
     elif name in ("static", "dynamic"):
         parameters = ("i_r",) if name == "static" else ("q_rr",)
+        series = context.series
+        if name == "static" and series.ac_times is not None and series.run_dynamic:
+            parameters += ("q_rr",)  # the ac solution starts from the recovery's offsets
+        if name == "static" and series.self_heating:
+            # The junction temperatures come from each drawn string's own equilibrium.
+            parameters = tuple(dict.fromkeys(parameters + forward_parameters(context.design)))
 
         def evaluate(drawn: DrawnStrings) -> np.ndarray:
-            return series_ratios(context.design, context.series, drawn, name)
+            temperature = None
+            if name == "static" and series.self_heating:
+                temperature = run_forward_chunk(context.design, _forward_devices(context, drawn),
+                                                drawn, summaries=False).junction_temperature
+            return series_ratios(context.design, series, drawn, name,
+                                 junction_temperature=temperature)
     else:
         # The forward checks depend on V_T0 and r_T and, through the losses and the junction
         # temperatures, on the leakage and recovery charge.

@@ -184,6 +184,21 @@ TODAY = [
      "leakage referred from its datasheet temperature with the part's doubling temperature"),
     (Finding("model.resistor_tcr", {"reference": Value(25.0, "degC")}),
      "grading resistor TCR referred to 25 degC, resistor at its diode's temperature"),
+    (Finding("model.static_ac"),
+     "static: each device judged by the worse of two solutions, the dc one (the peak reverse "
+     "voltage held) and the ac one (the reverse half-period followed in time across grading R, "
+     "grading C + C_j and leakage, from the stage voltages the forward half leaves: discharged, "
+     "with a turn-off the offsets the recovery leaves); at line frequency an unequal capacitor "
+     "can make the sharing worse than dc, not only better"),
+    (Finding("model.junction_temperature_equilibrium"),
+     "junction temperature of each device from the thermal check's electro-thermal "
+     "equilibrium (ambient + temperature_rise + its self-heating: conduction, leakage at the "
+     "nominal share and recovery loss), solved once and taken by the static check's leakage "
+     "(one pass: the equilibrium is not re-solved with the static check's own share); "
+     "leakage referred from its datasheet temperature with the part's doubling temperature"),
+    (Finding("model.resistor_tcr_position", {"reference": Value(25.0, "degC")}),
+     "grading resistor TCR referred to 25 degC, resistor at ambient + its position's "
+     "temperature_rise (not its diode's self-heating)"),
     (Finding("model.mixed_stock", {"mix": Value("30 % of positions B")}),
      "mixed stock: 30 % of positions B; a mixed position (part A|B) is judged device by device "
      "against the limit of the part drawn, and its per-position limit shown is the lowest of "
