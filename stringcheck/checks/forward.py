@@ -383,9 +383,11 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
     chunk = ForwardChunk(first_trial=drawn.first_trial, share=share, current_ratio=current_ratio,
                          branch_current=average, **(outcome_tj or {}))
     if setup.run_thermal:
+        # The equilibrium is solved at the ambient; each position's own temperature_rise (its
+        # local air) shifts its junction by as much (one pass, as the methods page says).
         chunk.junction_temperature = settled_temperature(
-            temperature, converged & ~runaway, setup.max_junction_temperature,
-            setup.position_temperature)
+            temperature + (setup.position_temperature - duty.ambient), converged & ~runaway,
+            setup.max_junction_temperature, setup.position_temperature)
     if setup.run_parallel and summaries:
         # Each branch's rated current, its weakest device's (with a mix, of the parts drawn).
         chunk.branch_limit = np.broadcast_to(np.min(setup.rated_current, axis=-1), average.shape)
