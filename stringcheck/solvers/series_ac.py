@@ -43,14 +43,15 @@ class AcSharing:
         ``(..., n)``. (The peaks of different stages need not fall at the same instant, so they
         need not add up to the string's peak.)
     peak_times
-        Time of each stage's peak [s], shape ``(..., n)``.
+        Time of each stage's peak [s], shape ``(..., n)``; None unless asked for
+        (``peak_times=True``).
     final_voltages
         Stage voltages at the last time step [V], shape ``(..., n)``, summing to the string
         voltage of that instant.
     """
 
     peak_voltages: NDArray[np.float64]
-    peak_times: NDArray[np.float64]
+    peak_times: NDArray[np.float64] | None
     final_voltages: NDArray[np.float64]
 
 
@@ -72,6 +73,7 @@ def solve_ac_sharing(
     reference_voltage: ArrayLike,
     voltage_exponent: ArrayLike,
     recovery_charge: ArrayLike | None = None,
+    peak_times: bool = False,
 ) -> AcSharing:
     """Follow the stage voltages of a series string through one reverse half-period.
 
@@ -99,6 +101,8 @@ def solve_ac_sharing(
         Each device's recovery charge at the turn-off that starts the half-period Q_rr,k [C],
         broadcastable to ``conductance``, >= 0 (needs C_k > 0); None: no turn-off (the stages start
         from v(t_0) shared by their capacitances, 0 V from 0 V).
+    peak_times
+        Also record when each stage peaks (costs a third more time).
 
     Returns
     -------
@@ -118,9 +122,12 @@ def solve_ac_sharing(
     Recovery: with the stage charges referred to the moment each device stops conducting, the
     devices have all recovered once the string current has extracted max_k Q_rr,k; the stage
     voltages are then (max Q_rr - Q_rr,k) / C_k, whose sum S is the string voltage that moment
-    needs. While v(t_j) <= S the stage voltages are the charge balance at v(t_j) (resistive and
-    leakage currents over the recovery neglected, as in the dynamic check), and integration
-    continues from the first step past it.
+    needs. While v(t_j) <= S and rising, the stage voltages are the charge balance at v(t_j)
+    (resistive and leakage currents over the recovery neglected, as in the dynamic check), and
+    integration continues from the first step past it (a string voltage that peaks below S ends
+    the recovery at its peak: the charge still stored then recombines). A step onto the peak (a
+    square wave) thus starts from the dynamic check's charge balance, and the half-period shows
+    how far the grading resistors relax it.
 
     References
     ----------
@@ -158,7 +165,7 @@ def solve_ac_sharing(
         voltage = solve_dynamic_sharing(np.full(rows, source[0]), np.zeros(shape),
                                         capacitance).voltages
     peak = voltage.copy()
-    peak_time = np.zeros(shape)
+    peak_time = np.zeros(shape) if peak_times else None
     # Constant steps (a uniform grid): the implicit coefficients are formed once.
     h = float(times[1] - times[0])
     if not np.allclose(np.diff(times), h, rtol=1e-9, atol=0.0):
@@ -179,7 +186,10 @@ def solve_ac_sharing(
         target = source[j + 1]
         balanced = None
         if recovery_charge is not None and pinned.any():
-            pinned = pinned & (source[j] <= offset_sum)
+            # The recovery lasts while the string voltage rises to what it needs; once the
+            # voltage falls (its peak passed below S) the devices still holding charge lose it by
+            # recombination and every stage blocks from where it stands.
+            pinned = pinned & (source[j] <= offset_sum) & (source[j + 1] > source[j])
             if pinned.any():
                 balanced = solve_dynamic_sharing(np.full(int(pinned.sum()), target),
                                                  charge[pinned], capacitance[pinned]).voltages
@@ -188,8 +198,10 @@ def solve_ac_sharing(
             a = history * voltage
             inverse, total = inverse_euler, total_euler
         else:
-            predicted = 2.0 * voltage - previous
-            a = history * (2.0 * voltage - 0.5 * previous)
+            doubled = 2.0 * voltage
+            predicted = doubled - previous
+            doubled -= 0.5 * previous
+            a = history * doubled
             inverse, total = inverse_bdf2, total_bdf2
             if fresh.any():
                 first = fresh[..., None]
@@ -200,6 +212,8 @@ def solve_ac_sharing(
         if uniform_exponent:
             if exponent == 0.0:
                 leak = np.where(predicted > 0.0, coefficient, 0.0)
+            elif exponent == 0.5:
+                leak = scale * np.sqrt(np.maximum(predicted, 0.0))
             else:
                 leak = scale * np.power(np.maximum(predicted, 0.0), exponent)
         else:
@@ -211,8 +225,7 @@ def solve_ac_sharing(
             new[pinned] = balanced
         previous, voltage = voltage, new
         fresh = pinned.copy() if recovery_charge is not None else np.zeros(rows, dtype=bool)
-        higher = voltage > peak
+        if peak_time is not None:
+            peak_time[voltage > peak] = times[j + 1]
         np.maximum(peak, voltage, out=peak)
-        if higher.any():
-            peak_time[higher] = times[j + 1]
     return AcSharing(peak_voltages=peak, peak_times=peak_time, final_voltages=voltage)
