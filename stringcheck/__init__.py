@@ -28,7 +28,7 @@ instead of 2 kV in its four hottest positions; then one built string's turn-off.
 >>> reviewed = stringcheck.review(replace(design, parts=candidate_parts), swap="1-4:LOWER",
 ...                               trials=4000, seed=11)
 >>> reviewed.verdict, [change.name for change in reviewed.changes if not change.acceptable]
-('reject', ['dynamic'])
+('reject', ['static', 'dynamic'])
 >>> turn_off, notes = stringcheck.trace_turn_off(design, 7, trials=4000, seed=11)
 >>> turn_off.peak_voltage.shape, bool(turn_off.converged[0])
 ((1, 24), True)

@@ -146,23 +146,56 @@ class SeriesSetup:
     # it [V] (None: dc, the peak held only).
     ac_times: np.ndarray | None = None
     ac_voltage: np.ndarray | None = None
+    # Whether the ac solution starts from the offsets the recovery leaves (a reverse voltage that
+    # rises from zero after the turn-off; see reverse_half_period).
+    ac_recovery: bool = False
     # Whether the leakage is taken at the thermal check's junction temperatures.
     self_heating: bool = False
 
 
 def series_setup(design: Design, *, run_static: bool, run_dynamic: bool,
-                 rescaling: RecoveryRescaling | None, self_heating: bool = False) -> SeriesSetup:
+                 rescaling: RecoveryRescaling | None, ac_recovery: bool = False,
+                 self_heating: bool = False) -> SeriesSetup:
     """The series checks' constants per position; with a mix each position's lowest value over
     the parts that can stand there (the limits shown per position), which the chunks replace by
-    each drawn device's own (:func:`series_for_devices`). ``self_heating``: the chunks get each
-    device's junction temperature from the thermal check's equilibrium."""
+    each drawn device's own (:func:`series_for_devices`). ``ac_recovery``: the static check's ac
+    solution starts from the recovery's offsets (:func:`static_offsets`; the chunks then draw
+    Q_rr); ``self_heating``: the chunks get each device's junction temperature from the thermal
+    check's equilibrium."""
     constants = _part_constants(design, lambda attribute: position_values(design, attribute))
     half_period = reverse_half_period(design, constants["junction_capacitance"])
     times, voltage = half_period if half_period is not None else (None, None)
     return SeriesSetup(run_static=run_static, run_dynamic=run_dynamic,
                        temperature=design.duty.ambient + design.string.temperature_rise_grid(),
                        rescaling=rescaling, ac_times=times, ac_voltage=voltage,
+                       ac_recovery=ac_recovery and voltage is not None,
                        self_heating=self_heating, **constants)
+
+
+def static_offsets(design: Design) -> bool:
+    """Whether the static check's ac solution starts from the offsets the recovery leaves: a
+    turn-off (an ac waveform or a di_dt), a reverse voltage that rises from zero after it
+    (:func:`rises_from_zero`), capacitance at every stage, and every part's recovery charge (its
+    ``q_rr``, or ``i_rm`` and ``t_rr`` to derive it). Otherwise it starts from 0 V."""
+    half_period = reverse_half_period(
+        design, position_values(design, lambda p: p.c_j, pick=np.minimum))
+    if half_period is None or not rises_from_zero(half_period[1]):
+        return False
+    parts = [design.parts[name] for name in design.parts_used()]
+    if design.grading.capacitor is None and any(part.c_j <= 0 for part in parts):
+        return False
+    return all(part.q_rr is not None or (part.i_rm is not None and part.t_rr is not None)
+               for part in parts)
+
+
+def rises_from_zero(voltage: np.ndarray) -> bool:
+    """Whether the string voltage ``voltage`` [V] over the reverse half-period rises from zero
+    after the turn-off (below a tenth of its peak at the first step: a half-sine's natural
+    commutation), rather than stepping onto its peak (a square wave). Only then does the recovery
+    happen at a low string voltage and leave offsets that the blocking half carries to its peak;
+    after a step, the recovery's charge balance at the full voltage is the dynamic check's own
+    result, and the ac solution starts from the capacitive split of the step."""
+    return bool(voltage.size > 1 and voltage[1] < 0.1 * voltage.max())
 
 
 def reverse_voltage_shape(waveform: str, phase: np.ndarray) -> np.ndarray:
@@ -306,7 +339,7 @@ def static_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums,
         capacitance = devices.junction_capacitance if drawn.capacitance is None else \
             drawn.capacitance + devices.junction_capacitance
         charge = carried_charges(design, drawn, devices.rescaling) \
-            if devices.run_dynamic and "q_rr" in drawn.parameters else None
+            if devices.ac_recovery and "q_rr" in drawn.parameters else None
         ac = solve_ac_sharing(devices.ac_times, devices.ac_voltage,
                               np.broadcast_to(conductance, leakage.shape), capacitance, leakage,
                               reference_voltage=devices.reference_voltage,

@@ -39,6 +39,7 @@ from stringcheck.checks.series import (
     run_series_chunk,
     series_ratios,
     series_setup,
+    static_offsets,
 )
 from stringcheck.montecarlo.sampling import DrawnStrings, chunk_bounds, draw_strings
 from stringcheck.montecarlo.estimates import trials_for_upper_bound
@@ -234,7 +235,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
     _refuse(design, trials, rare)
-    if only is None or "dynamic" in only:
+    if only is None or "dynamic" in only or static_offsets(design):
         design = with_recovery_charge(design)
     plan = _plan(design, seed, only, drivers)
     confidence = design.monte_carlo.confidence
@@ -352,14 +353,17 @@ def _plan(design: Design, seed: int, only: tuple[str, ...] | None, drivers: bool
                "dynamic": "not requested" if only is not None and "dynamic" not in only else
                dynamic_check_reason(design)}
     run_dynamic = reasons["dynamic"] == ""
-    parameters = ("i_r", "q_rr") if run_dynamic else ("i_r",)
+    # The static check's ac solution starts from the recovery's offsets whether or not the dynamic
+    # check runs alongside (the sizing search runs it alone): the same figure either way.
+    offsets = reasons["static"] == "" and static_offsets(design)
+    parameters = ("i_r", "q_rr") if run_dynamic or offsets else ("i_r",)
     run_forward = only is None
     reasons["parallel"], reasons["thermal"] = forward_reasons(design) if run_forward else \
         ("not requested", "not requested")
     # The recovery charge carried to the application's turn-off: one value per drawn device for
     # the dynamic check and the thermal check's recovery loss (a turn-off exactly when the
     # dynamic check can run: an ac waveform or a di_dt).
-    rescaling, note = recovery_rescaling(design) if run_dynamic else (None, None)
+    rescaling, note = recovery_rescaling(design) if run_dynamic or offsets else (None, None)
     forward = None
     if not (reasons["parallel"] and reasons["thermal"]):
         forward = forward_setup(design, reasons["parallel"], reasons["thermal"], rescaling)
@@ -367,7 +371,7 @@ def _plan(design: Design, seed: int, only: tuple[str, ...] | None, drivers: bool
     # Each device's leakage at its own junction temperature: the thermal check's equilibrium
     # where it runs (one pass: that equilibrium takes the leakage loss at the nominal share).
     series = series_setup(design, run_static=reasons["static"] == "", run_dynamic=run_dynamic,
-                          rescaling=rescaling,
+                          rescaling=rescaling, ac_recovery=offsets,
                           self_heating=forward is not None and forward.run_thermal)
     context = _ChunkContext(design=design, seed=seed, parameters=parameters, series=series,
                             forward=forward, driver_trials=DRIVER_TRIALS if drivers else 0)
@@ -531,7 +535,7 @@ def _with_rare(check, context: _ChunkContext, seed: int, confidence: float, targ
     elif name in ("static", "dynamic"):
         parameters = ("i_r",) if name == "static" else ("q_rr",)
         series = context.series
-        if name == "static" and series.ac_times is not None and series.run_dynamic:
+        if name == "static" and series.ac_recovery:
             parameters += ("q_rr",)  # the ac solution starts from the recovery's offsets
         if name == "static" and series.self_heating:
             # The junction temperatures come from each drawn string's own equilibrium.
