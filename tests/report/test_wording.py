@@ -188,8 +188,9 @@ TODAY = [
      "static: each device judged by the worse of two solutions, the dc one (the peak reverse "
      "voltage held) and the ac one (the reverse half-period followed in time across grading R, "
      "grading C + C_j and leakage, from the stage voltages the forward half leaves: discharged, "
-     "with a turn-off the offsets the recovery leaves); at line frequency an unequal capacitor "
-     "can make the sharing worse than dc, not only better"),
+     "plus the offsets the recovery leaves where the reverse voltage rises from zero after the "
+     "turn-off); at line frequency an unequal capacitor can make the sharing worse than dc, not "
+     "only better"),
     (Finding("model.junction_temperature_equilibrium"),
      "junction temperature of each device from the thermal check's electro-thermal "
      "equilibrium (ambient + temperature_rise + its self-heating: conduction, leakage at the "
