@@ -52,7 +52,8 @@ from stringcheck.solvers.series_static import solve_static_sharing
 SERIES_CHECKS = ("static", "dynamic")
 # Time steps over the reverse half-period of the ac blocking state: with BDF2 the peaks are
 # within 3e-4 of the closed form and of solve_ivp for stage time constants from 1/40 to 13 steps
-# (tests/solvers/test_series_ac.py); the demo's 20,000 strings of 24 take about 0.6 s of CPU.
+# (tests/solvers/test_series_ac.py); it adds about 0.5 s of CPU to the demo's check (20,000
+# strings of 24).
 AC_STEPS = 64
 # Trials per slice of a chunk in the solvers (whole sampling blocks).
 _SOLVE_TRIALS = 2 * BLOCK_TRIALS
