@@ -150,6 +150,8 @@ class SeriesSetup:
     # Whether the ac solution starts from the offsets the recovery leaves (a reverse voltage that
     # rises from zero after the turn-off; see reverse_half_period).
     ac_recovery: bool = False
+    # The string voltage [V] at the end of the recovery (the waveform at the recovery time).
+    recovery_end_voltage: float = 0.0
     # Whether the leakage is taken at the thermal check's junction temperatures.
     self_heating: bool = False
 
@@ -170,6 +172,7 @@ def series_setup(design: Design, *, run_static: bool, run_dynamic: bool,
                        temperature=design.duty.ambient + design.string.temperature_rise_grid(),
                        rescaling=rescaling, ac_times=times, ac_voltage=voltage,
                        ac_recovery=ac_recovery and voltage is not None,
+                       recovery_end_voltage=recovery_end_voltage(design) if ac_recovery else 0.0,
                        self_heating=self_heating, **constants)
 
 
@@ -187,6 +190,38 @@ def static_offsets(design: Design) -> bool:
         return False
     return all(part.q_rr is not None or (part.i_rm is not None and part.t_rr is not None)
                for part in parts)
+
+
+def recovery_time(design: Design) -> float:
+    """How long the recovery lasts [s]: the longest over the parts used of the datasheet's t_rr
+    (its max, else typ), else 2 Q_rr / I_RM, else sqrt(2 Q_rr / (di/dt)) at the duty's di/dt
+    (Q_rr its max, else typ; the triangular recovery of DESIGN.md section 4, Rashid ch. 2), else 0.
+    The recovery's offsets develop only over this time: after it, the charge the string current
+    has not extracted recombines."""
+    longest = 0.0
+    for name in design.parts_used():
+        part = design.parts[name]
+        charge = part.q_rr
+        if part.t_rr is not None:
+            value = part.t_rr.high if part.t_rr.high is not None else part.t_rr.typ
+        elif charge is not None and part.i_rm is not None:
+            value = 2.0 * (charge.high or charge.typ) / (part.i_rm.high or part.i_rm.typ)
+        elif charge is not None and design.duty.di_dt:
+            value = math.sqrt(2.0 * (charge.high or charge.typ) / design.duty.di_dt)
+        else:
+            value = 0.0
+        longest = max(longest, float(value))
+    return longest
+
+
+def recovery_end_voltage(design: Design) -> float:
+    """The string voltage [V] the reverse waveform reaches by the end of the recovery
+    (:func:`recovery_time`), capped at its peak."""
+    duty = design.duty
+    if duty.waveform == "dc" or not duty.frequency:
+        return 0.0
+    phase = min(2.0 * math.pi * duty.frequency * recovery_time(design), math.pi / 2)
+    return float(duty.reverse_voltage * reverse_voltage_shape(duty.waveform, np.array(phase)))
 
 
 def rises_from_zero(voltage: np.ndarray) -> bool:
@@ -339,12 +374,19 @@ def static_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums,
     if devices.ac_times is not None:
         capacitance = devices.junction_capacitance if drawn.capacitance is None else \
             drawn.capacitance + devices.junction_capacitance
-        charge = carried_charges(design, drawn, devices.rescaling) \
-            if devices.ac_recovery and "q_rr" in drawn.parameters else None
+        initial = None
+        if devices.ac_recovery and "q_rr" in drawn.parameters:
+            # The offsets the recovery leaves: the charge balance at the string voltage reached
+            # by the end of the recovery (the rest of the stored charge recombines).
+            charge = carried_charges(design, drawn, devices.rescaling)
+            initial = solve_dynamic_sharing(
+                np.full(charge.shape[:-1], devices.recovery_end_voltage), charge,
+                np.broadcast_to(capacitance, charge.shape)).voltages
         ac = solve_ac_sharing(devices.ac_times, devices.ac_voltage,
                               np.broadcast_to(conductance, leakage.shape), capacitance, leakage,
                               reference_voltage=devices.reference_voltage,
-                              voltage_exponent=devices.voltage_exponent, recovery_charge=charge)
+                              voltage_exponent=devices.voltage_exponent,
+                              initial_voltages=initial)
         limits = devices.limits
         dc_ratio = np.max(voltages / limits, axis=(1, 2))
         ac_ratio = np.max(ac.peak_voltages / limits, axis=(1, 2))

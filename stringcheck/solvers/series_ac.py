@@ -14,10 +14,9 @@ C_j only follows its resistive split without ringing) and explicit in the leakag
 second order), so a step is a closed form: every V_k is affine in i and the sum fixes i. The step
 is vectorized over any leading axes (trials, branches); there is no per-trial loop.
 
-Where the reverse half-period starts with a turn-off, the devices first give up their recovery
-charges: while the string voltage is below what the recovery offsets need, the stage voltages are
-the charge balance of the instantaneous string voltage (``solvers.series_dynamic``); from there the
-integration continues.
+The half-period starts from the stage voltages the forward half and the turn-off leave (0 V: the
+stages discharged by the conducting diodes; after a recovery, its offsets, which the caller forms
+with the charge balance of ``solvers.series_dynamic``).
 """
 
 from __future__ import annotations
@@ -26,8 +25,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-
-from stringcheck.solvers.series_dynamic import solve_dynamic_sharing
 
 __all__ = ["AcSharing", "solve_ac_sharing"]
 
@@ -72,7 +69,7 @@ def solve_ac_sharing(
     *,
     reference_voltage: ArrayLike,
     voltage_exponent: ArrayLike,
-    recovery_charge: ArrayLike | None = None,
+    initial_voltages: ArrayLike | None = None,
     peak_times: bool = False,
 ) -> AcSharing:
     """Follow the stage voltages of a series string through one reverse half-period.
@@ -97,10 +94,11 @@ def solve_ac_sharing(
         Voltage at which ``leakage_current`` is given V_ref [V], > 0, broadcastable.
     voltage_exponent
         Exponent m of the leakage's voltage law I_R ~ V^m [-], in [0, 1], broadcastable.
-    recovery_charge
-        Each device's recovery charge at the turn-off that starts the half-period Q_rr,k [C],
-        broadcastable to ``conductance``, >= 0 (needs C_k > 0); None: no turn-off (the stages start
-        from v(t_0) shared by their capacitances, 0 V from 0 V).
+    initial_voltages
+        Stage voltages at t_0 [V], broadcastable to ``conductance``, >= 0 (None: 0 V, the stages
+        discharged by the conducting diodes). After a turn-off, the offsets the recovery leaves;
+        their sum need not equal v(t_0) (the recovery's instant lies within the first step), the
+        first step restores sum_k V_k = v(t_1).
     peak_times
         Also record when each stage peaks (costs a third more time).
 
@@ -113,21 +111,10 @@ def solve_ac_sharing(
     -----
     With F_k(V) = I_R,k(V) the step t_j -> t_{j+1} (h = t_{j+1} - t_j) takes
     C_k (3 V^{j+1} - 4 V^j + V^{j-1}) / (2h) + G_k V^{j+1} + F_k(2 V^j - V^{j-1}) = i (BDF2 [1]_,
-    chapter III.1; backward Euler C_k (V^{j+1} - V^j) / h on the first step and after the
-    recovery). Then V_k^{j+1} = (i + a_k) / b_k with b_k = 1.5 C_k / h + G_k and a_k the known
-    terms, and sum_k V_k^{j+1} = v(t_{j+1}) gives i = (v - sum a_k / b_k) / sum 1 / b_k. Explicit
+    chapter III.1; backward Euler C_k (V^{j+1} - V^j) / h on the first step). Then
+    V_k^{j+1} = (i + a_k) / b_k with b_k = 1.5 C_k / h + G_k and a_k the known terms, and sum_k V_k^{j+1} = v(t_{j+1}) gives i = (v - sum a_k / b_k) / sum 1 / b_k. Explicit
     leakage is stable while h dF/dV << C; the leakage's differential conductance is far below
     the grading conductance in a graded string.
-
-    Recovery: with the stage charges referred to the moment each device stops conducting, the
-    devices have all recovered once the string current has extracted max_k Q_rr,k; the stage
-    voltages are then (max Q_rr - Q_rr,k) / C_k, whose sum S is the string voltage that moment
-    needs. While v(t_j) <= S and rising, the stage voltages are the charge balance at v(t_j)
-    (resistive and leakage currents over the recovery neglected, as in the dynamic check), and
-    integration continues from the first step past it (a string voltage that peaks below S ends
-    the recovery at its peak: the charge still stored then recombines). A step onto the peak (a
-    square wave) thus starts from the dynamic check's charge balance, and the half-period shows
-    how far the grading resistors relax it.
 
     References
     ----------
@@ -147,23 +134,11 @@ def solve_ac_sharing(
     coefficient = np.broadcast_to(np.asarray(leakage_current, dtype=float), shape)
     reference_voltage = np.asarray(reference_voltage, dtype=float)
     exponent = np.asarray(voltage_exponent, dtype=float)
-    rows = shape[:-1]
     previous = np.zeros(shape)
     voltage = np.zeros(shape)
     steps = times.size - 1
-    pinned = np.zeros(rows, dtype=bool)
-    offset_sum = None
-    if recovery_charge is not None:
-        charge = np.broadcast_to(np.asarray(recovery_charge, dtype=float), shape)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            offsets = (charge.max(axis=-1, keepdims=True) - charge) / capacitance
-        offset_sum = np.where(np.isfinite(offsets), offsets, 0.0).sum(axis=-1)
-        pinned = np.ones(rows, dtype=bool)
-    elif source[0] != 0.0:
-        # A string that starts charged, shared by its capacitances (charge balance with no
-        # recovery charge).
-        voltage = solve_dynamic_sharing(np.full(rows, source[0]), np.zeros(shape),
-                                        capacitance).voltages
+    if initial_voltages is not None:
+        voltage = np.array(np.broadcast_to(np.asarray(initial_voltages, dtype=float), shape))
     peak = voltage.copy()
     peak_time = np.zeros(shape) if peak_times else None
     # Constant steps (a uniform grid): the implicit coefficients are formed once.
@@ -180,20 +155,10 @@ def solve_ac_sharing(
     if uniform_exponent:
         exponent = float(exponent.flat[0])
         scale = coefficient / np.power(reference_voltage, exponent)
-    # First step (and the first after the recovery) by backward Euler: no history yet.
-    fresh = np.ones(rows, dtype=bool)
     for j in range(steps):
         target = source[j + 1]
-        balanced = None
-        if recovery_charge is not None and pinned.any():
-            # The recovery lasts while the string voltage rises to what it needs; once the
-            # voltage falls (its peak passed below S) the devices still holding charge lose it by
-            # recombination and every stage blocks from where it stands.
-            pinned = pinned & (source[j] <= offset_sum) & (source[j + 1] > source[j])
-            if pinned.any():
-                balanced = solve_dynamic_sharing(np.full(int(pinned.sum()), target),
-                                                 charge[pinned], capacitance[pinned]).voltages
-        if fresh.all():
+        if j == 0:
+            # The first step by backward Euler: no history yet.
             predicted = voltage
             a = history * voltage
             inverse, total = inverse_euler, total_euler
@@ -203,12 +168,6 @@ def solve_ac_sharing(
             doubled -= 0.5 * previous
             a = history * doubled
             inverse, total = inverse_bdf2, total_bdf2
-            if fresh.any():
-                first = fresh[..., None]
-                predicted = np.where(first, voltage, predicted)
-                a = np.where(first, history * voltage, a)
-                inverse = np.where(first, inverse_euler, inverse_bdf2)
-                total = np.where(fresh, total_euler, total_bdf2)
         if uniform_exponent:
             if exponent == 0.0:
                 leak = np.where(predicted > 0.0, coefficient, 0.0)
@@ -221,10 +180,7 @@ def solve_ac_sharing(
         a -= leak
         current = (target - np.einsum("...k,...k->...", a, inverse)) / total
         new = (current[..., None] + a) * inverse
-        if balanced is not None:
-            new[pinned] = balanced
         previous, voltage = voltage, new
-        fresh = pinned.copy() if recovery_charge is not None else np.zeros(rows, dtype=bool)
         if peak_time is not None:
             peak_time[voltage > peak] = times[j + 1]
         np.maximum(peak, voltage, out=peak)

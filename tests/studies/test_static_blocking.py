@@ -4,11 +4,13 @@ equilibrium's formula)."""
 
 from __future__ import annotations
 
+import math
 from dataclasses import replace
 
 import pytest
 
 from stringcheck import example_design
+from stringcheck.checks.series import recovery_end_voltage, recovery_time
 from stringcheck.design.reading import parse_design_text
 from stringcheck.report.export import result_to_dict
 from stringcheck.studies.check import run_check
@@ -187,3 +189,31 @@ def test_a_capacitor_rated_between_the_dc_and_the_ac_peak_is_a_rating_problem():
     assert "rating.capacitor_voltage" in problems
     assert result.grading.worst_voltage_check == "static"
     assert result.verdict == "fail"
+
+
+def test_the_recovery_offsets_develop_only_over_the_recovery():
+    # The demo: t_rr max 0.3 us, so the offsets are the charge balance at the string voltage a
+    # 50 Hz half-sine reaches by then, 30 kV x sin(2 pi 50 Hz x 0.3 us) = 2.8 V: negligible.
+    design = example_design()
+    assert recovery_time(design) == pytest.approx(0.3e-6)
+    assert recovery_end_voltage(design) == pytest.approx(30e3 * math.sin(2 * math.pi * 50 * 0.3e-6),
+                                                         rel=1e-12)
+    # At 20 kHz with a 2 us recovery on two stages of 1 nF holding 0.2 and 0.5 uC, the string
+    # reaches 2 kV x sin(2 pi 20 kHz x 2 us) = 497 V by the end of the recovery, more than the
+    # (0.5 - 0.2) uC / 1 nF = 300 V the charge balance needs: device A then holds
+    # (497 + 300) / 2 V. With R C = 0.1 s against a 25 us half-period the stages stay a
+    # capacitive divider that keeps that difference (leakage moves them by I_R t / C < 1 V), so
+    # A peaks at (2000 + 300) / 2 = 1150 V (charge conservation) against 1000 V from 0 V.
+    text = HOT_PAIR.replace('[thermal]\nheatsink = "shared"\nr_th_sa = "0.5 K/W"\n', "")
+    text = text.replace('waveform = "dc"', 'waveform = "half-sine"\nfrequency = "20 kHz"')
+    text = text.replace('resistor = "10 MOhm"', 'resistor = "100 MOhm"\ncapacitor = "1 nF"')
+    text = text.replace('r_t = { typ = "20 mOhm" }', 'r_t = { typ = "20 mOhm" }\n'
+                        'q_rr = { typ = "0.2 uC" }\nt_rr = { typ = "2 us" }')
+    text = text.replace('r_t = { typ = "10 mOhm" }', 'r_t = { typ = "10 mOhm" }\n'
+                        'q_rr = { typ = "0.5 uC" }\nt_rr = { typ = "2 us" }')
+    pair = parse_design_text(text)
+    assert recovery_end_voltage(pair) == pytest.approx(2000 * math.sin(0.08 * math.pi),
+                                                       rel=1e-12)
+    static = run_check(pair, only=("static",)).checks["static"]
+    assert static.blocking_state == "dc and ac"
+    assert static.ac_worst_voltage == pytest.approx(1150.0, rel=2e-3)
