@@ -211,8 +211,9 @@ class ForwardChunk:
     ballast_loss_per_ohm: np.ndarray | None = None
     branch_limit: np.ndarray | None = None
     runaway_ambient: np.ndarray | None = None
-    # Each device's junction temperature [degC], (trials, parallel, series): only when asked
-    # (``run_forward_chunk(keep_temperature=True)``, the failure-rate study), never merged.
+    # Each device's junction temperature [degC] (trials, parallel, series) where the thermal
+    # check ran: the series checks of the same chunk take it (and the failure-rate study), and it
+    # is dropped before merging.
     junction_temperature: np.ndarray | None = None
 
 
@@ -398,8 +399,12 @@ def run_forward_chunk(design: Design, setup: ForwardSetup, drawn: DrawnStrings, 
         current_ratio = np.max(average[..., None] / setup.rated_current, axis=(1, 2))
     chunk = ForwardChunk(first_trial=drawn.first_trial, share=share, current_ratio=current_ratio,
                          branch_current=average, **(outcome_tj or {}))
-    if keep_temperature:
-        chunk.junction_temperature = np.asarray(temperature, dtype=float)
+    if setup.run_thermal:
+        # The equilibrium is solved at the ambient; each position's own temperature_rise (its
+        # local air) shifts its junction by as much (one pass, as the methods page says).
+        chunk.junction_temperature = settled_temperature(
+            temperature + (setup.position_temperature - duty.ambient), converged & ~runaway,
+            setup.max_junction_temperature, setup.position_temperature)
     if setup.run_parallel and summaries:
         # Each branch's rated current, its weakest device's (with a mix, of the parts drawn).
         chunk.branch_limit = np.broadcast_to(np.min(setup.rated_current, axis=-1), average.shape)
@@ -442,6 +447,17 @@ def forward_ratios(design: Design, setup: ForwardSetup, drawn: DrawnStrings,
     failed = np.isin(chunk.classification, (RUNAWAY, OVER_LIMIT))
     ratio = np.where(np.isnan(chunk.tj_ratio), np.inf, chunk.tj_ratio)
     return np.where(failed & within_limit(ratio), np.inf, ratio)
+
+
+def settled_temperature(temperature: np.ndarray, settled: np.ndarray, maximum: np.ndarray,
+                        position: np.ndarray) -> np.ndarray:
+    """Each device's junction temperature [degC] for the checks that take it from the
+    equilibrium: the equilibrium's where the group ``settled`` (converged, no runaway), else the
+    part's T_j,max (a group that runs away is at least that hot; the thermal check fails it),
+    or the position's temperature where T_j,max is not given."""
+    fallback = np.where(np.isfinite(maximum), maximum, position)
+    good = settled[:, None, None] & np.isfinite(temperature)
+    return np.where(good, temperature, np.broadcast_to(fallback, temperature.shape))
 
 
 def _duty(design: Design) -> ParallelDuty:
@@ -642,6 +658,13 @@ def _reasons(design: Design, names: tuple[str, ...]) -> dict[str, Finding | None
     return {name: reasons[name] for name in names}
 
 
+def _handoff(chunk: ForwardChunk) -> dict:
+    """Each device's equilibrium junction temperature, for the series checks of the same chunk
+    (taken out of the chunk: the merged chunks do not keep it)."""
+    temperature, chunk.junction_temperature = chunk.junction_temperature, None
+    return {} if temperature is None else {"junction_temperature": temperature}
+
+
 def _setup(design: Design, reasons, rescaling: RecoveryRescaling | None,
            seed: int | None = None) -> ForwardSetup | None:
     if reasons["parallel"] is not None and reasons["thermal"] is not None:
@@ -699,4 +722,4 @@ FORWARD_STEPS = CheckSteps(
     names=FORWARD_CHECKS, reasons=_reasons, setup=_setup, parameters=_parameters,
     evaluate=forward_chunk, accumulator=lambda setup: ForwardAccumulator(), finish=_finish,
     chunk_ratios=_chunk_ratios, chunk_bytes=_chunk_bytes, trial_ratios=_trial_ratios,
-    ratios=_ratios, rare_parameters=_rare_parameters)
+    ratios=_ratios, rare_parameters=_rare_parameters, handoff=_handoff)

@@ -96,16 +96,23 @@ def impossibility(design: Design) -> tuple[Finding, ...]:
     return tuple(reasons)
 
 
-def model_assumptions(design: Design, rescaling_note: Finding | None) -> tuple[Finding, ...]:
+def model_assumptions(design: Design, rescaling_note: Finding | None, *,
+                      ac_blocking: bool = False, self_heating: bool = False
+                      ) -> tuple[Finding, ...]:
     """The model's assumptions the report lists (findings ``model.*`` and the recovery charge's
-    ``recovery.*``)."""
+    ``recovery.*``). ``ac_blocking``: the static check also followed the reverse half-period in
+    time; ``self_heating``: the leakage took the thermal check's junction temperatures."""
     rows = any(len(design.parts[name].rows("i_r")) >= 2 for name in design.parts_used())
+    reference = {"reference": Value(RESISTOR_TCR_REFERENCE, "degC")}
+    # With leakage rows the leakage is each device's own between its rows, not referred by one
+    # doubling temperature.
+    junction = "model.junction_temperature_equilibrium" if self_heating else (
+        "model.junction_temperature_rows" if rows else "model.junction_temperature")
     notes = [
-        Finding("model.static_dc"),
-        # With leakage rows the leakage is each device's own between its rows, not referred by
-        # one doubling temperature.
-        Finding("model.junction_temperature_rows" if rows else "model.junction_temperature"),
-        Finding("model.resistor_tcr", {"reference": Value(RESISTOR_TCR_REFERENCE, "degC")}),
+        Finding("model.static_ac") if ac_blocking else Finding("model.static_dc"),
+        Finding(junction),
+        Finding("model.resistor_tcr_position", reference) if self_heating else
+        Finding("model.resistor_tcr", reference),
     ]
     if design.string.mix is not None:
         notes.append(Finding("model.mixed_stock", causes=(mix_finding(design),)))

@@ -7,7 +7,12 @@ of drawn strings (:func:`run_series_chunk`), merge the chunks in trial order
 :data:`SERIES_STEPS` (``checks.steps``).
 
 * ``static``: each stage's leakage against its grading resistor (``solvers.series_static``), the
-  resistor at its temperature by its TCR (``physics.grading.resistance_at_temperature``).
+  resistor at its temperature by its TCR (``physics.grading.resistance_at_temperature``); for a
+  periodic duty also the reverse half-period followed in time across grading R, grading C + C_j
+  and leakage (``solvers.series_ac``), each device judged by the worse of the two, and which one
+  decided kept per trial. The leakage is taken at each device's junction temperature: ambient +
+  its position's ``temperature_rise``, or the electro-thermal equilibrium's T_j of the same drawn
+  device where the thermal check runs (``junction_temperature`` of :func:`run_series_chunk`).
 * ``dynamic``: charge balance after reverse recovery (``solvers.series_dynamic``), each device's
   Q_rr carried to the application's turn-off (``checks.recovery_conditions``).
 
@@ -20,6 +25,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
+from dataclasses import field as dataclass_field
 from typing import Callable
 
 import numpy as np
@@ -55,10 +61,17 @@ from stringcheck.solvers.aged_sharing import (
     solve_dynamic_sharing_dc_bias,
     solve_static_sharing_voltage_coefficient,
 )
+from stringcheck.solvers.series_ac import solve_ac_sharing
+from stringcheck.physics.waveforms import reverse_voltage_shape as waveform_shape
 from stringcheck.solvers.series_dynamic import solve_dynamic_sharing
 from stringcheck.solvers.series_static import solve_static_sharing
 
 SERIES_CHECKS = ("static", "dynamic")
+# Time steps over the reverse half-period of the ac blocking state: with BDF2 the peaks are
+# within 3e-4 of the closed form and of solve_ivp for stage time constants from 1/40 to 13 steps
+# (tests/solvers/test_series_ac.py); it adds about 0.5 s of CPU to the demo's check (20,000
+# strings of 24).
+AC_STEPS = 64
 # Trials per slice of a chunk in the solvers (whole sampling blocks).
 _SOLVE_TRIALS = 2 * BLOCK_TRIALS
 
@@ -96,6 +109,32 @@ class SeriesCheck(CheckOutcome):
 
     def per_position(self) -> tuple[PositionStatistics, ...]:
         return self.positions
+
+
+def _text(value: str | None):
+    return value if value else None
+
+
+@dataclass(frozen=True, eq=False, kw_only=True, repr=False)
+class StaticCheck(SeriesCheck):
+    """The static (blocking-state) check: a series check, with which solution decided. For a
+    periodic duty each device's stress is the worse of the dc solution (the peak reverse voltage
+    held) and the ac one (the reverse half-period followed in time); ``decided_by`` says which gave
+    the worst trial, ``ac_decided_share`` in what fraction of the trials the ac solution was the
+    worse. ``junction_temperature`` says where the leakage's temperature came from."""
+
+    json_order = SeriesCheck.json_order[:-1] + (
+        "blocking_state", "decided_by", "ac_decided_share", "dc_worst_voltage",
+        "ac_worst_voltage", "junction_temperature", "positions")
+
+    # "dc" (the peak held: a dc duty, or no capacitance to share it in time) or "dc and ac".
+    blocking_state: str = figure(default="dc")
+    decided_by: str = figure(default="dc")
+    ac_decided_share: float | None = figure(encode=json_number, default=None)
+    dc_worst_voltage: float = figure(unit="V", encode=json_number, default=math.nan)
+    ac_worst_voltage: float | None = figure(unit="V", encode=json_number, default=None)
+    # "position" (ambient + temperature_rise) or "equilibrium" (the thermal check's T_j).
+    junction_temperature: str = figure(default="position")
 
 
 @dataclass(frozen=True, eq=False, kw_only=True, repr=False)
@@ -137,18 +176,131 @@ class SeriesSetup:
     # at typ.
     seed: int | None = None
 
+    # The reverse half-period of a periodic duty: its time grid [s] and the string voltage over
+    # it [V] (None: dc, the peak held only).
+    ac_times: np.ndarray | None = None
+    ac_voltage: np.ndarray | None = None
+    # Whether the ac solution starts from the offsets the recovery leaves (a reverse voltage that
+    # rises from zero after the turn-off; see reverse_half_period).
+    ac_recovery: bool = False
+    # The string voltage [V] at the end of the recovery (the waveform at the recovery time).
+    recovery_end_voltage: float = 0.0
+    # Whether the leakage is taken at the thermal check's junction temperatures.
+    self_heating: bool = False
+
+
 
 def series_setup(design: Design, *, run_static: bool, run_dynamic: bool,
-                 rescaling: RecoveryRescaling | None, seed: int | None = None) -> SeriesSetup:
+                 rescaling: RecoveryRescaling | None, seed: int | None = None,
+                 ac_recovery: bool = False, self_heating: bool = False) -> SeriesSetup:
     """The series checks' constants per position; with a mix each position's lowest value over
     the parts that can stand there (the limits shown per position), which the chunks replace by
-    each drawn device's own (:func:`series_for_devices`)."""
+    each drawn device's own (:func:`series_for_devices`). ``ac_recovery``: the static check's ac
+    solution starts from the recovery's offsets (:func:`static_offsets`; the chunks then draw
+    Q_rr); ``self_heating``: the chunks get each device's junction temperature from the thermal
+    check's equilibrium."""
+    constants = _part_constants(design, lambda attribute: position_values(design, attribute))
+    half_period = reverse_half_period(design, constants["junction_capacitance"])
+    times, voltage = half_period if half_period is not None else (None, None)
     return SeriesSetup(run_static=run_static, run_dynamic=run_dynamic,
                        temperature=design.duty.ambient + design.string.temperature_rise_grid(),
                        rescaling=rescaling, junction_law=needs_junction_law(design),
                        seed=seed if scatters(design) else None,
-                       **_part_constants(design, lambda attribute: position_values(design,
-                                                                                   attribute)))
+                       ac_times=times, ac_voltage=voltage,
+                       ac_recovery=ac_recovery and voltage is not None,
+                       recovery_end_voltage=recovery_end_voltage(design) if ac_recovery else 0.0,
+                       self_heating=self_heating, **constants)
+
+
+def static_offsets(design: Design) -> bool:
+    """Whether the static check's ac solution starts from the offsets the recovery leaves: a
+    turn-off (an ac waveform or a di_dt), a reverse voltage that rises from zero after it
+    (:func:`rises_from_zero`), capacitance at every stage, and every part's recovery charge (its
+    ``q_rr``, or ``i_rm`` and ``t_rr`` to derive it). Otherwise it starts from 0 V."""
+    half_period = reverse_half_period(
+        design, position_values(design, lambda p: p.c_j, pick=np.minimum))
+    if half_period is None or not rises_from_zero(half_period[1]):
+        return False
+    parts = [design.parts[name] for name in design.parts_used()]
+    if design.grading.capacitor is None and any(part.c_j <= 0 for part in parts):
+        return False
+    return all(part.q_rr is not None or (part.i_rm is not None and part.t_rr is not None)
+               for part in parts)
+
+
+def recovery_time(design: Design) -> float:
+    """How long the recovery lasts [s]: the longest over the parts used of the datasheet's t_rr
+    (its max, else typ), else 2 Q_rr / I_RM, else sqrt(2 Q_rr / (di/dt)) at the duty's di/dt
+    (Q_rr its max, else typ; the triangular recovery of DESIGN.md section 4, Rashid ch. 2), else 0.
+    The recovery's offsets develop only over this time: after it, the charge the string current
+    has not extracted recombines."""
+    longest = 0.0
+    for name in design.parts_used():
+        part = design.parts[name]
+        charge = part.q_rr
+        if part.t_rr is not None:
+            value = part.t_rr.high if part.t_rr.high is not None else part.t_rr.typ
+        elif charge is not None and part.i_rm is not None:
+            value = 2.0 * (charge.high or charge.typ) / (part.i_rm.high or part.i_rm.typ)
+        elif charge is not None and design.duty.di_dt:
+            value = math.sqrt(2.0 * (charge.high or charge.typ) / design.duty.di_dt)
+        else:
+            value = 0.0
+        longest = max(longest, float(value))
+    return longest
+
+
+def recovery_end_voltage(design: Design) -> float:
+    """The string voltage [V] the reverse waveform reaches by the end of the recovery
+    (:func:`recovery_time`), capped at its peak."""
+    duty = design.duty
+    if duty.waveform in ("dc", "offset-sine") or not duty.frequency:
+        return 0.0
+    phase = min(2.0 * math.pi * duty.frequency * recovery_time(design), math.pi / 2)
+    return float(duty.reverse_voltage * reverse_voltage_shape(duty.waveform, np.array(phase)))
+
+
+def rises_from_zero(voltage: np.ndarray) -> bool:
+    """Whether the string voltage ``voltage`` [V] over the reverse half-period rises from zero
+    after the turn-off (below a tenth of its peak at the first step: a half-sine's natural
+    commutation), rather than stepping onto its peak (a square wave). Only then does the recovery
+    happen at a low string voltage and leave offsets that the blocking half carries to its peak;
+    after a step, the recovery's charge balance at the full voltage is the dynamic check's own
+    result, and the ac solution starts from the capacitive split of the step."""
+    return bool(voltage.size > 1 and voltage[1] < 0.1 * voltage.max())
+
+
+def reverse_voltage_shape(waveform: str, phase: np.ndarray) -> np.ndarray:
+    """The string's reverse voltage over the reverse half-period as a fraction of its peak [-],
+    at ``phase`` = omega t in [0, pi] from the end of conduction: the waveform's own shape
+    (``physics.waveforms.reverse_voltage_shape``) over its blocking half, pi + phase (sin(phase)
+    for a half-sine; 1 from the first instant on for a square wave, 0 at phase 0, where the
+    forward half leaves the string)."""
+    if waveform not in ("half-sine", "square"):
+        raise ValueError(f"waveform: {waveform!r} has no reverse half-period")
+    shape = waveform_shape(waveform, np.pi + np.asarray(phase, dtype=float))
+    return np.where(np.asarray(phase) > 0.0, shape, 0.0) if waveform == "square" else shape
+
+
+def reverse_half_period(design: Design, junction_capacitance: np.ndarray
+                        ) -> tuple[np.ndarray, np.ndarray] | None:
+    """The time grid [s] of the reverse half-period and the string voltage over it [V], or None
+    where the blocking state is dc: a dc waveform, no frequency, or no capacitance at any stage
+    (the stages then share each instant's voltage as the dc solution shares the peak)."""
+    duty = design.duty
+    # An offset sine blocks over the whole period: its blocking state is judged at the peak as
+    # dc (an ac solution over its period is not built yet).
+    if duty.waveform in ("dc", "offset-sine") or not duty.frequency:
+        return None
+    if design.grading.capacitor is None and (
+            not np.any(junction_capacitance > 0)
+            or (design.grading.resistor is None and np.any(junction_capacitance <= 0))):
+        return None
+    half = 0.5 / duty.frequency
+    times = np.linspace(0.0, half, AC_STEPS + 1)
+    voltage = duty.reverse_voltage * reverse_voltage_shape(duty.waveform,
+                                                           np.pi * times / half)
+    return times, voltage
 
 
 def series_for_devices(design: Design, setup: SeriesSetup, drawn: DrawnStrings) -> SeriesSetup:
@@ -170,20 +322,38 @@ def _part_constants(design: Design, values: Callable[[Callable[[Part], float]], 
 
 
 @dataclass
+class StaticSolutions:
+    """Which blocking-state solution decided, per trial of a chunk (trial order), and the highest
+    stage voltage of each (NaN: not solved)."""
+
+    ac_decided: list = dataclass_field(default_factory=list)
+    dc_worst: float = -math.inf
+    ac_worst: float = -math.inf
+
+    def add(self, other: "StaticSolutions") -> None:
+        self.ac_decided.extend(other.ac_decided)
+        self.dc_worst = max(self.dc_worst, other.dc_worst)
+        self.ac_worst = max(self.ac_worst, other.ac_worst)
+
+
+@dataclass
 class SeriesChunk:
     """The per-position sums of one chunk of each series check that runs (None: not run)."""
 
     static: PositionSums | None
     dynamic: PositionSums | None
+    static_solutions: StaticSolutions | None = None
 
     def sums(self) -> dict[str, PositionSums]:
         return {name: sums for name, sums in (("static", self.static), ("dynamic", self.dynamic))
                 if sums is not None}
 
 
-def run_series_chunk(design: Design, setup: SeriesSetup, drawn: DrawnStrings) -> SeriesChunk:
+def run_series_chunk(design: Design, setup: SeriesSetup, drawn: DrawnStrings, *,
+                     junction_temperature: np.ndarray | None = None) -> SeriesChunk:
     """Solve the series checks of one chunk of drawn strings; its sums, to be merged in trial
-    order."""
+    order. ``junction_temperature``: each drawn device's T_j [degC] (trials, parallel, series)
+    from the thermal check's equilibrium (None: ambient + each position's temperature_rise)."""
     shape = setup.limits.shape
     static = PositionSums(shape, setup.limits, top_count=setup.top_count) \
         if setup.run_static else None
@@ -194,38 +364,50 @@ def run_series_chunk(design: Design, setup: SeriesSetup, drawn: DrawnStrings) ->
         # The solvers work through the chunk in slices of whole sampling blocks, small enough for
         # their temporaries to stay in cache; the accumulators take them in trial order.
         count = drawn.trials
-        slices = [drawn.trial_slice(start, _SOLVE_TRIALS) for start in range(0, count, _SOLVE_TRIALS)]
+        starts = range(0, count, _SOLVE_TRIALS)
+        slices = [drawn.trial_slice(start, _SOLVE_TRIALS) for start in starts]
+        temperatures = [None if junction_temperature is None else
+                        junction_temperature[start:start + _SOLVE_TRIALS] for start in starts]
     else:
         # With a mix, each drawn device's own part constants, (trials, parallel, series), cover
         # the whole chunk at once.
         slices = [drawn]
+        temperatures = [junction_temperature]
     own_limits = None if drawn.part_index is None else devices.limits
-    for part in slices:
+    solutions = StaticSolutions() if static is not None else None
+    for part, temperature in zip(slices, temperatures):
         if static is not None:
             static.device_limits = own_limits
-            static_chunk(design, part, static, devices)
+            solutions.add(static_chunk(design, part, static, devices, temperature=temperature))
             static.device_limits = None
         if dynamic is not None:
             dynamic.device_limits = own_limits
             dynamic_chunk(design, part, dynamic, devices)
             dynamic.device_limits = None
-    return SeriesChunk(static=static, dynamic=dynamic)
+    return SeriesChunk(static=static, dynamic=dynamic, static_solutions=solutions)
 
 
 def static_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums,
-                 devices: SeriesSetup) -> None:
-    """Solve the static sharing of ``drawn`` into ``accumulator`` (constants of ``devices``)."""
+                 devices: SeriesSetup, *, temperature: np.ndarray | None = None
+                 ) -> StaticSolutions:
+    """Solve the static sharing of ``drawn`` into ``accumulator`` (constants of ``devices``):
+    the dc solution, and for a periodic duty the ac one, each device's stress the worse of the
+    two. ``temperature``: each device's junction temperature [degC] (None: its position's).
+    Returns which solution decided each trial."""
+    junction = devices.temperature if temperature is None else temperature
     reference_current, reference_temperature = drawn.parameters["i_r"], \
         devices.reference_temperature
     if temperature_dependent(design, "i_r", rows_only=True):
         # Leakage rows at several temperatures: each device's own value at its temperature.
-        reference_current = parameter_at_temperature(design, drawn, "i_r", devices.temperature)
-        reference_temperature = devices.temperature
+        reference_current = parameter_at_temperature(design, drawn, "i_r", junction)
+        reference_temperature = junction
     leakage = leakage_current(reference_current, devices.reference_voltage,
-                              devices.temperature, reference_voltage=devices.reference_voltage,
+                              junction, reference_voltage=devices.reference_voltage,
                               reference_temperature=reference_temperature,
                               doubling_temperature=devices.doubling_temperature,
                               voltage_exponent=devices.voltage_exponent)
+    # The grading resistor sits at its position's temperature (ambient + temperature_rise): it
+    # does not share its diode's self-heating.
     conductance = _grading_conductance(design, drawn, devices.temperature)
     aged = design.end_of_life
     surface = 0.0 if drawn.surface_conductance is None else drawn.surface_conductance
@@ -240,7 +422,38 @@ def static_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums,
                                         leakage, reference_voltage=devices.reference_voltage,
                                         voltage_exponent=devices.voltage_exponent)
     converged = np.asarray(solution.converged).reshape(solution.voltages.shape[0], -1).all(axis=1)
-    accumulator.add(solution.voltages, converged, drawn.first_trial)
+    voltages = solution.voltages
+    outcome = StaticSolutions(dc_worst=_finite_maximum(voltages))
+    if devices.ac_times is not None:
+        capacitance = devices.junction_capacitance if drawn.capacitance is None else \
+            drawn.capacitance + devices.junction_capacitance
+        initial = None
+        if devices.ac_recovery and "q_rr" in drawn.parameters:
+            # The offsets the recovery leaves: the charge balance at the string voltage reached
+            # by the end of the recovery (the rest of the stored charge recombines).
+            charge = carried_charges(design, strings_at_temperature(
+                design, drawn, devices.temperature, ("q_rr",)), devices.rescaling)
+            initial = solve_dynamic_sharing(
+                np.full(charge.shape[:-1], devices.recovery_end_voltage), charge,
+                np.broadcast_to(capacitance, charge.shape)).voltages
+        ac = solve_ac_sharing(devices.ac_times, devices.ac_voltage,
+                              np.broadcast_to(conductance, leakage.shape), capacitance, leakage,
+                              reference_voltage=devices.reference_voltage,
+                              voltage_exponent=devices.voltage_exponent,
+                              initial_voltages=initial)
+        limits = devices.limits
+        dc_ratio = np.max(voltages / limits, axis=(1, 2))
+        ac_ratio = np.max(ac.peak_voltages / limits, axis=(1, 2))
+        outcome = StaticSolutions(ac_decided=[ac_ratio > dc_ratio], dc_worst=outcome.dc_worst,
+                                  ac_worst=_finite_maximum(ac.peak_voltages))
+        voltages = np.maximum(voltages, ac.peak_voltages)
+    accumulator.add(voltages, converged, drawn.first_trial)
+    return outcome
+
+
+def _finite_maximum(values: np.ndarray) -> float:
+    finite = values[np.isfinite(values)]
+    return float(finite.max()) if finite.size else -math.inf
 
 
 def _grading_conductance(design: Design, drawn: DrawnStrings, temperature: np.ndarray) -> np.ndarray:
@@ -303,18 +516,43 @@ class SeriesAccumulator:
         self.sums = {name: PositionSums(shape, setup.limits, top_count=setup.top_count)
                      for name, runs in
                      (("static", setup.run_static), ("dynamic", setup.run_dynamic)) if runs}
+        self.static_solutions = StaticSolutions()
+        self.ac = setup.ac_times is not None
+        self.self_heating = setup.self_heating
 
     def merge(self, chunk: SeriesChunk) -> None:
         for name, sums in chunk.sums().items():
             self.sums[name].merge(sums)
+        if chunk.static_solutions is not None:
+            self.static_solutions.add(chunk.static_solutions)
+
+    def static_figures(self) -> dict:
+        """The static check's figures of which blocking-state solution decided."""
+        solutions = self.static_solutions
+        sums = self.sums.get("static")
+        figures = dict(blocking_state="dc and ac" if self.ac else "dc",
+                       junction_temperature="equilibrium" if self.self_heating else "position",
+                       dc_worst_voltage=solutions.dc_worst if math.isfinite(solutions.dc_worst)
+                       else math.nan, decided_by="dc")
+        if self.ac and solutions.ac_decided:
+            decided = np.concatenate(solutions.ac_decided)
+            worst = -1 if sums is None else sums.worst_trial
+            figures.update(
+                ac_decided_share=float(np.count_nonzero(decided)) / max(decided.size, 1),
+                ac_worst_voltage=solutions.ac_worst if math.isfinite(solutions.ac_worst)
+                else math.nan,
+                decided_by="ac" if 0 <= worst < decided.size and decided[worst] else "dc")
+        return figures
 
 
 def finish_series(name: str, accumulator: PositionSums, grid: np.ndarray, confidence: float,
-                  trials: int, target: float, *, turn_off: TurnOffCurrent | None = None
-                  ) -> SeriesCheck:
+                  trials: int, target: float, *, turn_off: TurnOffCurrent | None = None,
+                  static: dict | None = None) -> SeriesCheck:
     """Summarise one series check. It passes when the upper confidence bound of P(fail) is within
     ``target`` ([sizing] target_p_fail): a run too short to show that cannot pass. ``turn_off``:
-    the dynamic check's turn-off current (a :class:`DynamicCheck` for ``"dynamic"``)."""
+    the dynamic check's turn-off current (a :class:`DynamicCheck` for ``"dynamic"``); ``static``:
+    the static check's figures of :meth:`SeriesAccumulator.static_figures` (a
+    :class:`StaticCheck` for ``"static"``)."""
     ratios = np.concatenate(accumulator.worst_ratios)
     # One copy of the per-trial ratios from here on (the transient check reads them again).
     accumulator.worst_ratios[:] = [ratios]
@@ -354,24 +592,26 @@ def finish_series(name: str, accumulator: PositionSums, grid: np.ndarray, confid
         histogram=tuple(histogram_counts(finite, bins=12)) if finite.size else ())
     if name == "dynamic":
         return DynamicCheck(**figures, turn_off_current=turn_off)
-    return SeriesCheck(**figures)
+    return StaticCheck(**figures, **(static or {}))
 
 
 def not_run_series(name: str, reason: Finding) -> SeriesCheck:
     """A series check that did not run, and why."""
-    return (DynamicCheck if name == "dynamic" else SeriesCheck).not_run(name, reason)
+    return (DynamicCheck if name == "dynamic" else StaticCheck).not_run(name, reason)
 
 
-def series_ratios(design: Design, setup: SeriesSetup, drawn: DrawnStrings, check: str) -> np.ndarray:
+def series_ratios(design: Design, setup: SeriesSetup, drawn: DrawnStrings, check: str, *,
+                  junction_temperature: np.ndarray | None = None) -> np.ndarray:
     """Each drawn string's worst stress ratio in ``check`` ("static" or "dynamic"), inf unsolved:
     the function g of the rare-event estimator (fails when > 1). With a mix each device is judged
-    with its own part's constants and limit."""
+    with its own part's constants and limit. ``junction_temperature`` as for
+    :func:`run_series_chunk`."""
     devices = series_for_devices(design, setup, drawn)
     accumulator = PositionSums(setup.limits.shape, setup.limits)
     if drawn.part_index is not None:
         accumulator.device_limits = devices.limits
     if check == "static":
-        static_chunk(design, drawn, accumulator, devices)
+        static_chunk(design, drawn, accumulator, devices, temperature=junction_temperature)
     else:
         dynamic_chunk(design, drawn, accumulator, devices)
     return np.concatenate(accumulator.worst_ratios)
@@ -385,12 +625,36 @@ def _reasons(design: Design, names: tuple[str, ...]) -> dict[str, Finding | None
 
 def _setup(design: Design, reasons, rescaling: RecoveryRescaling | None,
            seed: int | None = None) -> SeriesSetup:
+    # The static check's ac solution starts from the recovery's offsets whether or not the
+    # dynamic check runs alongside (the sizing search runs it alone): the same figure either way.
+    # Each device's leakage at its own junction temperature where the thermal check runs (one
+    # pass: that equilibrium takes the leakage loss at the nominal share).
     return series_setup(design, seed=seed, run_static=reasons["static"] is None,
-                        run_dynamic=reasons["dynamic"] is None, rescaling=rescaling)
+                        run_dynamic=reasons["dynamic"] is None, rescaling=rescaling,
+                        ac_recovery=recovery_offsets(design, reasons),
+                        self_heating="thermal" in reasons and reasons["thermal"] is None)
+
+
+
+def recovery_offsets(design: Design, reasons) -> bool:
+    """Whether the static check, asked for in ``reasons``, starts its ac solution from the
+    recovery's offsets (:func:`static_offsets`; the chunks then draw Q_rr)."""
+    return "static" in reasons and reasons["static"] is None and static_offsets(design)
 
 
 def _parameters(design: Design, reasons) -> tuple[str, ...]:
-    return ("i_r", "q_rr") if reasons["dynamic"] is None else ("i_r",)
+    wanted = reasons["dynamic"] is None or recovery_offsets(design, reasons)
+    return ("i_r", "q_rr") if wanted else ("i_r",)
+
+
+def _evaluate(design: Design, setup: SeriesSetup, drawn: DrawnStrings, *,
+              handed=None) -> SeriesChunk:
+    """:func:`run_series_chunk` with each device's equilibrium junction temperature where the
+    thermal check ran on the same chunk (``handed``, from the forward checks)."""
+    temperature = None
+    if setup.self_heating and handed:
+        temperature = handed.get("junction_temperature")
+    return run_series_chunk(design, setup, drawn, junction_temperature=temperature)
 
 
 def _finish(design: Design, setup: SeriesSetup, reasons, accumulator: SeriesAccumulator,
@@ -402,7 +666,8 @@ def _finish(design: Design, setup: SeriesSetup, reasons, accumulator: SeriesAccu
         sums = accumulator.sums.get(name)
         out[name] = not_run_series(name, reasons[name]) if sums is None else \
             finish_series(name, sums, grid, run.confidence, run.trials, run.target,
-                          turn_off=turn_off)
+                          turn_off=turn_off,
+                          static=accumulator.static_figures() if name == "static" else None)
     return out
 
 
@@ -420,12 +685,15 @@ def _trial_ratios(accumulator: SeriesAccumulator, name: str) -> np.ndarray | Non
 
 
 def _rare_parameters(design: Design, name: str) -> tuple[str, ...]:
-    return ("i_r",) if name == "static" else ("q_rr",)
+    if name == "static":
+        # The ac solution starts from the recovery's offsets: the sampler moves Q_rr too.
+        return ("i_r", "q_rr") if static_offsets(design) else ("i_r",)
+    return ("q_rr",)
 
 
 # The series checks' steps for the check workflow (``checks.steps``; ``studies.check.CHECK_STEPS``).
 SERIES_STEPS = CheckSteps(
     names=SERIES_CHECKS, reasons=_reasons, setup=_setup, parameters=_parameters,
-    evaluate=run_series_chunk, accumulator=SeriesAccumulator, finish=_finish,
+    evaluate=_evaluate, accumulator=SeriesAccumulator, finish=_finish, takes_handoff=True,
     chunk_ratios=_chunk_ratios, chunk_bytes=_chunk_bytes, trial_ratios=_trial_ratios,
     ratios=series_ratios, rare_parameters=_rare_parameters)

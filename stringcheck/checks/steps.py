@@ -79,6 +79,14 @@ class CheckSteps:
     rare_parameters
         ``rare_parameters(design, name)``: the device parameters the importance sampler moves
         for ``name``.
+    handoff
+        ``handoff(chunk)``: figures of a chunk that the modules evaluated after it on the same
+        drawn strings take (the forward checks' junction temperatures), taken out of the chunk
+        so that they are not merged; None: nothing to hand on. A module with a hand-off is
+        evaluated before the others.
+    takes_handoff
+        Whether ``evaluate`` takes the figures handed on, as ``evaluate(design, setup, drawn,
+        handed=...)``.
     """
 
     names: tuple[str, ...]
@@ -93,3 +101,5 @@ class CheckSteps:
     trial_ratios: Callable[[Any, str], np.ndarray | None]
     ratios: Callable[[Design, Any, DrawnStrings, str], np.ndarray]
     rare_parameters: Callable[[Design, str], tuple[str, ...]]
+    handoff: Callable[[Any], dict[str, Any]] | None = None
+    takes_handoff: bool = False

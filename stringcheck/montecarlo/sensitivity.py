@@ -31,8 +31,10 @@ from stringcheck.montecarlo.sampling import DrawnStrings
 DRIVER_TRIALS = 20_000
 TOP_DRIVERS = 3
 # The inputs each check's physics depends on (docs/methods/): the blocking-state sharing on
-# leakage against the resistors, the turn-off sharing on recovery charge against the capacitors.
-CHECK_INPUTS = {"static": ("i_r", "resistor", "mix"), "dynamic": ("q_rr", "capacitor", "mix"),
+# leakage against the resistors and, for a periodic duty, the capacitors and the offsets the
+# recovery leaves; the turn-off sharing on recovery charge against the capacitors.
+CHECK_INPUTS = {"static": ("i_r", "resistor", "capacitor", "q_rr", "mix"),
+                "dynamic": ("q_rr", "capacitor", "mix"),
                 "parallel": ("v_t0", "r_t", "i_r", "q_rr", "mix"),
                 "thermal": ("v_t0", "r_t", "i_r", "q_rr", "mix"),
                 "transient": ("q_rr", "capacitor", "resistor", "mix")}

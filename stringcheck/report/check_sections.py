@@ -10,7 +10,7 @@ from rich.text import Text
 
 from stringcheck.units import format_quantity
 from stringcheck.checks.forward import ParallelCheck, ThermalCheck
-from stringcheck.checks.series import DynamicCheck, SeriesCheck
+from stringcheck.checks.series import DynamicCheck, SeriesCheck, StaticCheck
 from stringcheck.checks.transient import TransientCheck
 from stringcheck.report.display_text import shown
 from stringcheck.report.wording import SLOPE_SOURCES
@@ -64,6 +64,22 @@ def carried_recovery_lines(turn_off) -> list[str]:
                      f"{format_quantity(item.test_current, 'A')}, "
                      f"{_per_us(item.test_di_dt)} -> carried {carried}")
     return lines
+
+
+def static_solution_text(check: StaticCheck) -> str:
+    """The static check's line on its blocking-state solutions: dc only, or dc and ac and which
+    decided, and where the junction temperatures came from."""
+    where = ("junction temperatures from the thermal check's electro-thermal equilibrium"
+             if check.junction_temperature == "equilibrium" else
+             "junction temperatures = ambient + each position's temperature rise")
+    if check.blocking_state == "dc" or check.ac_worst_voltage is None:
+        return f"Blocking state solved as dc (the peak reverse voltage held); {where}"
+    share = check.ac_decided_share or 0.0
+    return (f"Blocking state: the dc solution (peak held, worst "
+            f"{format_quantity(check.dc_worst_voltage, 'V')}) and the ac one (the reverse "
+            f"half-period followed in time, worst {format_quantity(check.ac_worst_voltage, 'V')}); "
+            f"each device judged by the worse, the {check.decided_by} solution decided the worst "
+            f"string (ac the worse in {share:.0%} of the strings); {where}")
 
 
 def failure_point_text(rare, *, top: int = 3) -> str:
@@ -131,6 +147,7 @@ def _thermal_worst(check: ThermalCheck) -> str:
 # Each check's worst figure in words (a check type missing here is a KeyError, never a wrong cell).
 _WORST_TEXT = {
     SeriesCheck: lambda check: format_quantity(check.worst_voltage, "V"),
+    StaticCheck: lambda check: format_quantity(check.worst_voltage, "V"),
     DynamicCheck: lambda check: format_quantity(check.worst_voltage, "V"),
     TransientCheck: lambda check: format_quantity(check.worst_voltage, "V"),
     ParallelCheck: lambda check: f"share {check.worst_share:.3f}",

@@ -18,7 +18,7 @@ from stringcheck.units import format_quantity
 from stringcheck.montecarlo.estimates import WANTED_RELATIVE_ERROR
 from stringcheck.studies.check import CheckResult
 from stringcheck.checks.forward import ParallelCheck, ThermalCheck
-from stringcheck.checks.series import DynamicCheck, SeriesCheck
+from stringcheck.checks.series import DynamicCheck, SeriesCheck, StaticCheck
 from stringcheck.report.cautions import safety_cautions
 from stringcheck.report.display_text import shown
 from stringcheck.checks.transient import TransientCheck
@@ -38,6 +38,7 @@ from stringcheck.report.check_sections import (
     render_thermal,
     render_transient,
     carried_recovery_lines,
+    static_solution_text,
     turn_off_text,
     worst_value_text,
 )
@@ -298,6 +299,8 @@ def _render_detail(name: str, check: SeriesCheck, design, console: Console) -> N
         if check.turn_off_current is not None:
             for line in carried_recovery_lines(check.turn_off_current):
                 console.print(line)
+    if isinstance(check, StaticCheck):
+        console.print(static_solution_text(check))
     single_branch = all(p.branch == 1 for p in check.positions)
     ranked = sorted(check.positions, key=lambda p: p.max_voltage / p.limit, reverse=True)[:5]
     table = Table(show_edge=False, pad_edge=False)
@@ -325,6 +328,7 @@ def _render_detail(name: str, check: SeriesCheck, design, console: Console) -> N
 # of the wrong kind).
 _DETAIL = {
     SeriesCheck: _render_detail,
+    StaticCheck: _render_detail,
     DynamicCheck: _render_detail,
     ParallelCheck: lambda name, check, design, console: render_parallel(check, design, console),
     ThermalCheck: lambda name, check, design, console: render_thermal(check, design, console),

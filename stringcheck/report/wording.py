@@ -248,6 +248,22 @@ TEMPLATES: dict[str, str] = {
     "model.junction_temperature_rows":
         "junction temperature = ambient + the position's temperature_rise (no self-heating); "
         "leakage of each device at that temperature between its datasheet rows (exponential in T)",
+    "model.static_ac":
+        "static: each device judged by the worse of two solutions, the dc one (the peak reverse "
+        "voltage held) and the ac one (the reverse half-period followed in time across grading R, "
+        "grading C + C_j and leakage, from the stage voltages the forward half leaves: discharged, "
+        "plus the offsets the recovery leaves where the reverse voltage rises from zero after the "
+        "turn-off: the charge balance at the string voltage reached by the end of the recovery); at "
+        "line frequency an unequal capacitor can make the sharing worse than dc, not only better",
+    "model.junction_temperature_equilibrium":
+        "junction temperature of each device from the thermal check's electro-thermal "
+        "equilibrium (ambient + temperature_rise + its self-heating: conduction, leakage at the "
+        "nominal share and recovery loss), solved once and taken by the static check's leakage "
+        "(one pass: the equilibrium is not re-solved with the static check's own share); "
+        "leakage referred from its datasheet temperature with the part's doubling temperature",
+    "model.resistor_tcr_position":
+        "grading resistor TCR referred to {reference:g} degC, resistor at ambient + its "
+        "position's temperature_rise (not its diode's self-heating)",
     "model.resistor_tcr":
         "grading resistor TCR referred to {reference:g} degC, resistor at its diode's temperature",
     "model.offset_sine_current":

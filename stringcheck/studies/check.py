@@ -33,11 +33,14 @@ from stringcheck.checks.series import (
     DynamicCheck,
     PositionStatistics,
     SeriesCheck,
+    recovery_offsets,
+    series_ratios,
+    static_offsets,
 )
 from stringcheck.checks.steps import CheckSteps, RunFigures
 from stringcheck.montecarlo.sampling import DrawnStrings, chunk_bounds, draw_strings
 from stringcheck.montecarlo.estimates import trials_for_upper_bound
-from stringcheck.checks.forward import FORWARD_STEPS
+from stringcheck.checks.forward import FORWARD_STEPS, forward_chunk, forward_parameters
 from stringcheck.montecarlo.accumulators import top_count
 from stringcheck.checks.transient import DEFAULT_WORST, run_transient, transient_evaluator
 from stringcheck.checks.transient import not_run as not_run_transient
@@ -236,7 +239,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     trials = design.monte_carlo.trials if trials is None else trials
     seed = design.monte_carlo.seed if seed is None else seed
     _refuse(design, trials, rare)
-    if only is None or "dynamic" in only:
+    if only is None or "dynamic" in only or static_offsets(design):
         design = with_recovery_charge(design)
     plan = _plan(design, seed, only, drivers)
     if position_percentiles:
@@ -260,7 +263,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     if transient and "transient" not in checks:
         checks["transient"] = not_run_transient(_needs_dynamic(plan))
     temperature = design.duty.ambient + design.string.temperature_rise_grid()
-    grading = grading_summary(design, checks, temperature,
+    grading = grading_summary(design, checks, _hottest_junctions(temperature, checks),
                               position_values(design, lambda p: p.c_j, pick=np.maximum))
     if rare is not False:
         for name in chunked_checks() + ("transient",):
@@ -277,6 +280,7 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
     if drivers and transient and checks["transient"].ran:
         ranking += _transient_drivers(checks["transient"])
     impossible = impossibility(design)
+    series = _series_setup(plan)
     passed = all(check.passed for check in checks.values() if check.ran)
     # A check the user asked for that could not run never lets the design pass.
     requested_missing = transient and not checks["transient"].ran
@@ -286,10 +290,41 @@ def run_check(design: Design, *, trials: int | None = None, seed: int | None = N
                        trials_needed=trials_for_upper_bound(target, confidence=confidence),
                        checks=checks, grading=grading,
                        verdict=verdict, impossible=impossible,
-                       assumptions=design.assumptions + model_assumptions(design, plan.note),
+                       assumptions=design.assumptions + model_assumptions(
+                           design, plan.note,
+                           ac_blocking=series is not None and series.ac_times is not None,
+                           self_heating=series is not None and series.self_heating),
                        no_scatter=no_scatter(design, plan.context.parameters), drivers=ranking,
                        warnings=plausibility_warnings(design,
                                                       grading_loss=grading.total_grading_loss))
+
+
+def _series_setup(plan: _Plan):
+    """The series checks' setup of ``plan`` (None where they take no part)."""
+    return next((setup for steps, setup in zip(plan.steps, plan.context.setups)
+                 if steps is SERIES_STEPS), None)
+
+
+def _forward_setup(plan: _Plan):
+    """The forward checks' setup of ``plan`` (None where they take no part or none runs)."""
+    return next((setup for steps, setup in zip(plan.steps, plan.context.setups)
+                 if steps is FORWARD_STEPS), None)
+
+
+def _hottest_junctions(position: np.ndarray, checks: Mapping[str, CheckOutcome]) -> np.ndarray:
+    """Each position's hottest junction temperature [degC] (parallel, series) for the grading
+    network's leakage figure: the thermal check's highest equilibrium T_j where it ran (and found
+    one), else ambient + the position's temperature rise."""
+    thermal = checks.get("thermal")
+    hottest = np.array(position, dtype=float)
+    if thermal is None or not thermal.ran:
+        return hottest
+    for device in thermal.per_position():
+        value = device.max_temperature
+        if np.isfinite(value):
+            row, column = device.branch - 1, device.index - 1
+            hottest[row, column] = max(hottest[row, column], value)
+    return hottest
 
 
 def _refuse(design: Design, trials: int, rare) -> None:
@@ -352,7 +387,10 @@ def _plan(design: Design, seed: int, only: tuple[str, ...] | None, drivers: bool
     # the dynamic check and the thermal check's recovery loss (a turn-off exactly when the
     # dynamic check can run: an ac waveform or a di_dt).
     run_dynamic = "dynamic" in reasons and reasons["dynamic"] is None
-    rescaling, note = recovery_rescaling(design) if run_dynamic else (None, None)
+    # The static check's ac solution may start from the recovery's offsets (checks.series), which
+    # carry the recovery charge too.
+    carried = run_dynamic or recovery_offsets(design, reasons)
+    rescaling, note = recovery_rescaling(design) if carried else (None, None)
     parameters: tuple[str, ...] = ()
     setups = []
     for number in taking:
@@ -423,8 +461,21 @@ def _run_chunk(context: _ChunkContext, first: int, count: int) -> _ChunkOutcome:
     trial order."""
     design = context.design
     drawn = draw_strings(design, context.parameters, first, count, seed=context.seed)
-    chunks = tuple(None if setup is None else CHECK_STEPS[number].evaluate(design, setup, drawn)
-                   for number, setup in zip(context.steps, context.setups))
+    chunks: list = [None] * len(context.setups)
+    handed: dict = {}
+    # A module that hands figures on (the forward checks' junction temperatures) goes first.
+    order = sorted(range(len(context.setups)),
+                   key=lambda k: CHECK_STEPS[context.steps[k]].handoff is None)
+    for k in order:
+        steps, setup = CHECK_STEPS[context.steps[k]], context.setups[k]
+        if setup is None:
+            continue
+        chunk = steps.evaluate(design, setup, drawn, handed=handed) if steps.takes_handoff \
+            else steps.evaluate(design, setup, drawn)
+        if steps.handoff is not None:
+            handed.update(steps.handoff(chunk))
+        chunks[k] = chunk
+    chunks = tuple(chunks)
     features = None
     if first < context.driver_trials:
         features = chunk_features(drawn, design, min(count, context.driver_trials - first))
@@ -506,6 +557,21 @@ def _with_rare(check, plan: _Plan, seed: int, confidence: float, target: float,
         evaluate = transient_evaluator(context.design)
         effort = COARSE_SEARCH
         samples = min(samples, TRANSIENT_RARE_SAMPLES)
+    elif name == "static" and _series_setup(plan) is not None and (
+            _series_setup(plan).ac_recovery or _series_setup(plan).self_heating):
+        series = _series_setup(plan)
+        forward = _forward_setup(plan)
+        parameters = ("i_r",) + (("q_rr",) if series.ac_recovery else ())
+        if series.self_heating and forward is not None:
+            # The junction temperatures come from each drawn string's own equilibrium.
+            parameters = tuple(dict.fromkeys(parameters + forward_parameters(context.design)))
+
+        def evaluate(drawn: DrawnStrings) -> np.ndarray:
+            temperature = None
+            if series.self_heating and forward is not None:
+                temperature = forward_chunk(context.design, forward, drawn).junction_temperature
+            return series_ratios(context.design, series, drawn, "static",
+                                 junction_temperature=temperature)
     else:
         steps, setup = next((steps, setup) for steps, setup in zip(plan.steps, context.setups)
                             if name in steps.names)

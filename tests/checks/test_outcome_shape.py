@@ -13,7 +13,7 @@ import pytest
 from stringcheck.checks.findings import Finding
 from stringcheck.checks.forward import ParallelCheck, ThermalCheck
 from stringcheck.checks.outcome import REPR_LIMIT, CheckOutcome, Exported, figure
-from stringcheck.checks.series import DynamicCheck, SeriesCheck
+from stringcheck.checks.series import DynamicCheck, StaticCheck
 from stringcheck.checks.transient import TransientCheck
 from stringcheck.design.reading import load_design
 from stringcheck.report.export import result_to_dict
@@ -21,7 +21,7 @@ from stringcheck.studies.check import CheckResult, run_check
 
 EXAMPLE = Path(__file__).resolve().parents[2] / "examples" / "furnace-rectifier-3x2-parallel.toml"
 NAMES = ("static", "dynamic", "transient", "parallel", "thermal")
-CHECK_TYPES = (SeriesCheck, DynamicCheck, TransientCheck, ParallelCheck, ThermalCheck)
+CHECK_TYPES = (StaticCheck, DynamicCheck, TransientCheck, ParallelCheck, ThermalCheck)
 BASE_FIELDS = {"name", "ran", "reason", "passed", "worst_ratio", "p50_ratio", "p99_ratio",
                "estimate", "unsolved", "worst_trial", "rare"}
 # The keys every check's JSON object holds (docs/commands.md and docs/json.md), and its worst figure: a voltage
@@ -160,7 +160,7 @@ def test_result_to_dict_is_the_export_without_the_worded_sections(result):
     assert len(network["rating_problems"]) == len(own_network["rating_problem_codes"])
 
 
-@pytest.mark.parametrize("kind", (SeriesCheck, DynamicCheck, CheckResult))
+@pytest.mark.parametrize("kind", (StaticCheck, DynamicCheck, CheckResult))
 def test_results_holding_arrays_compare_by_identity(kind):
     # A generated __eq__ would compare the arrays and raise ("truth value ... is ambiguous").
     assert kind.__eq__ is object.__eq__

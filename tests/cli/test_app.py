@@ -204,8 +204,14 @@ def test_json_has_the_stable_keys(demo_run, demo_file):
         assert check["worst_voltage"] == pytest.approx(check["worst_ratio"] * 1600.0, rel=1e-9)
         assert len(check["positions"]) == 24
         assert [p["index"] for p in check["positions"]] == list(range(1, 25))
-        # Mean stage voltages sum to the string voltage (Kirchhoff's voltage law), 30 kV.
-        assert sum(p["mean_voltage"] for p in check["positions"]) == pytest.approx(30e3, rel=1e-6)
+        # Mean stage voltages sum to the string voltage (Kirchhoff's voltage law), 30 kV; the
+        # static check's are each device's worse of the dc solution (which sums to 30 kV) and the
+        # ac one (whose peaks need not fall at one instant), so they sum to at least that.
+        total = sum(p["mean_voltage"] for p in check["positions"])
+        if name == "dynamic" or check["blocking_state"] == "dc":
+            assert total == pytest.approx(30e3, rel=1e-6)
+        else:
+            assert total >= 30e3 * (1 - 1e-9)
 
 
 def test_csv_has_a_header_and_a_row_per_check_and_position(demo_run):

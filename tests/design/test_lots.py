@@ -12,6 +12,7 @@ Distributions vol. 1, ch. 14); the copula's correlation against the lot's with i
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -420,6 +421,13 @@ def test_a_leakier_lot_shifts_voltage_to_the_others(tmp_path):
     design = _design(tmp_path, series=10, positions='[[string.position]]\nindex = 1\n'
                                                     'serial = "S0"\n')
     static = run_check(design, trials=300, only=("static",)).checks["static"]
+    means = [p.mean_voltage for p in static.positions]
+    # At 50 Hz the 2.2 nF capacitors (omega R C = 3.25) hold it nearer its share over the
+    # blocking half, so each device's stress (the worse of dc and ac) differs less than the dc
+    # solution's; held as dc, the leaky device takes under 0.9 of the others' share.
+    assert means[0] == min(means) and means[0] < 0.96 * np.mean(means[1:])
+    dc = replace(design, duty=replace(design.duty, waveform="dc"))
+    static = run_check(dc, trials=300, only=("static",)).checks["static"]
     means = [p.mean_voltage for p in static.positions]
     assert means[0] == min(means) and means[0] < 0.9 * np.mean(means[1:])
 

@@ -12,11 +12,12 @@ from stringcheck.studies.check import run_check
 from stringcheck.montecarlo.sensitivity import rank_inputs, tightened
 
 
-def design(*, q_rr: str, capacitor_tolerance: str, i_r: str, resistor_tolerance: str) -> str:
+def design(*, q_rr: str, capacitor_tolerance: str, i_r: str, resistor_tolerance: str,
+           waveform: str = "half-sine") -> str:
     return f"""
 [duty]
 reverse_voltage = "6 kV"
-waveform = "half-sine"
+waveform = "{waveform}"
 frequency = "50 Hz"
 di_dt = "10 A/us"
 [string]
@@ -43,20 +44,26 @@ def _first(result, check):
     return next(d for d in result.drivers if d.check == check)
 
 
-def test_only_the_scattered_input_is_ranked_first():
-    # Issue 7: "a design where only one parameter scatters ranks that parameter first".
+@pytest.mark.parametrize("waveform", ["dc", "half-sine"])
+def test_only_the_scattered_input_is_ranked_first(waveform):
+    # Issue 7: "a design where only one parameter scatters ranks that parameter first". With a dc
+    # blocking state the static check sees only the leakage against the resistors. At 50 Hz with
+    # omega R C = 2 pi 50 x 10 MOhm x 3.3 nF = 10.4 the capacitors share the blocking half as well
+    # (issue 17), so their tolerance decides when it scatters. The recovery's offsets do not: they
+    # develop only over the recovery (sqrt(2 x 2 uC / 10 A/us) = 0.63 us here), by when a 50 Hz
+    # half-sine has reached 6 kV x sin(2 pi 50 x 0.63 us) = 1.2 V.
     only_charge = design(q_rr='{ typ = "1 uC", max = "2 uC" }', capacitor_tolerance="0 %",
                          i_r='{ typ = "1 uA", at_temperature = "25 degC" }',
-                         resistor_tolerance="2 %")
+                         resistor_tolerance="2 %", waveform=waveform)
     result = run_check(parse_design_text(only_charge), drivers=True)
     assert _first(result, "dynamic").input == "q_rr"
     assert _first(result, "static").input == "resistor"
     only_capacitor = design(q_rr='{ typ = "1 uC" }', capacitor_tolerance="10 %",
                             i_r='{ typ = "1 uA", max = "10 uA", at_temperature = "25 degC" }',
-                            resistor_tolerance="0 %")
+                            resistor_tolerance="0 %", waveform=waveform)
     result = run_check(parse_design_text(only_capacitor), drivers=True)
     assert _first(result, "dynamic").input == "capacitor"
-    assert _first(result, "static").input == "i_r"
+    assert _first(result, "static").input == ("i_r" if waveform == "dc" else "capacitor")
 
 
 def test_halving_the_driving_spread_lowers_the_stress():

@@ -238,6 +238,22 @@ TODAY = [
      "leakage referred from its datasheet temperature with the part's doubling temperature"),
     (Finding("model.resistor_tcr", {"reference": Value(25.0, "degC")}),
      "grading resistor TCR referred to 25 degC, resistor at its diode's temperature"),
+    (Finding("model.static_ac"),
+     "static: each device judged by the worse of two solutions, the dc one (the peak reverse "
+     "voltage held) and the ac one (the reverse half-period followed in time across grading R, "
+     "grading C + C_j and leakage, from the stage voltages the forward half leaves: discharged, "
+     "plus the offsets the recovery leaves where the reverse voltage rises from zero after the "
+     "turn-off: the charge balance at the string voltage reached by the end of the recovery); at "
+     "line frequency an unequal capacitor can make the sharing worse than dc, not only better"),
+    (Finding("model.junction_temperature_equilibrium"),
+     "junction temperature of each device from the thermal check's electro-thermal "
+     "equilibrium (ambient + temperature_rise + its self-heating: conduction, leakage at the "
+     "nominal share and recovery loss), solved once and taken by the static check's leakage "
+     "(one pass: the equilibrium is not re-solved with the static check's own share); "
+     "leakage referred from its datasheet temperature with the part's doubling temperature"),
+    (Finding("model.resistor_tcr_position", {"reference": Value(25.0, "degC")}),
+     "grading resistor TCR referred to 25 degC, resistor at ambient + its position's "
+     "temperature_rise (not its diode's self-heating)"),
     (Finding("model.mixed_stock", causes=(Finding("mixed_stock.mix", {
         "part": Value("B"), "percent": Value(30.0)}),)),
      "mixed stock: B mixed in at 30 % of the devices (each device independently, drawn anew in "

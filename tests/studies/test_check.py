@@ -28,8 +28,15 @@ def test_static_textbook_corner_reaches_the_limit_exactly():
     static = result.checks["static"]
     assert static.positions[0].max_voltage == pytest.approx(v_dm, rel=1e-9)
     assert static.worst_voltage == pytest.approx(v_dm, rel=1e-9)
-    voltages = [p.max_voltage for p in static.positions]
-    assert sum(voltages) == pytest.approx(v_s, rel=1e-9)
+    assert static.dc_worst_voltage == pytest.approx(v_dm, rel=1e-9)
+    assert static.decided_by == "dc"
+    # The dc solution shares V_s exactly; at 50 Hz the 1 uF capacitors (tau = R C of seconds,
+    # far longer than the 10 ms reverse half) hold every stage near the capacitive split V_s / n
+    # (the recovery's offset (1.0 - 0.4) uC / 1 uF = 0.6 V aside), above the slow devices' dc
+    # share (V_s - V_DM) / (n - 1): each device is judged by the worse of the two.
+    for position in static.positions[1:]:
+        assert position.max_voltage == pytest.approx(v_s / n, rel=5e-3)
+        assert position.max_voltage > (v_s - v_dm) / (n - 1)
 
 
 def test_static_corner_just_above_textbook_resistance_fails():
