@@ -25,7 +25,7 @@ from typing import Callable
 
 import numpy as np
 
-from stringcheck.checks.findings import Finding, Value
+from stringcheck.checks.findings import Finding, Value, codes
 from stringcheck.design.model import Design
 from stringcheck.physics.charge_control_fit import lifetime_for_charge
 from stringcheck.montecarlo.sampling import (
@@ -111,7 +111,9 @@ class TransientCheck(CheckOutcome):
     inductance: float = figure(unit="H", encode=json_number, idle=math.nan)
     forward_current: float = figure(unit="A", encode=json_number, idle=math.nan)
     positions: tuple[TransientPosition, ...] = figure(encode=records, idle=())
-    notes: tuple[str, ...] = figure(encode=listed, idle=())
+    # How the simulated loop was chosen (findings ``transient.*``): their codes here, the
+    # sentences written in their place by report.export.
+    notes: tuple[Finding, ...] = figure(encode=codes, idle=())
     drivers: tuple[Driver, ...] = figure(None, default=())
     # The current each branch commutates from (``forward_current`` is its value [A]).
     turn_off_current: TurnOffCurrent | None = figure(unit="A", encode=turn_off_to_dict,
@@ -362,7 +364,7 @@ def transient_evaluator(design: Design) -> Callable[[DrawnStrings], np.ndarray]:
     return evaluate
 
 
-def _loop(design: Design, fits) -> tuple[float, float, tuple[str, ...]]:
+def _loop(design: Design, fits) -> tuple[float, float, tuple[Finding, ...]]:
     """Inductance per branch loop [H], I_F per branch at the turn-off [A]
     (:func:`recovery_conditions.turn_off_current`, as the dynamic check's), and the notes on how
     they were chosen."""
@@ -377,13 +379,10 @@ def _loop(design: Design, fits) -> tuple[float, float, tuple[str, ...]]:
     forward = turn_off.steady_equivalent if math.isfinite(turn_off.steady_equivalent) else \
         turn_off.current
     if turn_off.basis == TURN_OFF_TEST_CURRENT:
-        notes.append(f"no duty.forward_current: each branch starts from the parts' test I_F "
-                     f"({forward:g} A)")
+        notes.append(Finding("transient.test_current", {"current": Value(forward, "A")}))
     if layout.parallel > 1:
-        notes.append(f"each of the {layout.parallel} branches is simulated as its own loop with "
-                     f"{layout.parallel} x L and 1/{layout.parallel} of the current")
-    notes.append("leakage and the grading resistor's TCR are left out of the turn-off "
-                 "(microseconds); junction temperature enters only the thermal voltage")
+        notes.append(Finding("transient.branch_loops", {"parallel": Value(layout.parallel)}))
+    notes.append(Finding("transient.left_out"))
     return inductance * layout.parallel, forward, tuple(notes)
 
 

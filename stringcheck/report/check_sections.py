@@ -13,7 +13,7 @@ from stringcheck.checks.forward import ParallelCheck, ThermalCheck
 from stringcheck.checks.series import DynamicCheck, SeriesCheck, StaticCheck
 from stringcheck.checks.transient import TransientCheck
 from stringcheck.report.display_text import shown
-from stringcheck.report.wording import SLOPE_SOURCES
+from stringcheck.report.wording import SLOPE_SOURCES, sentences
 
 
 # How each basis of the turn-off current (checks.recovery_conditions.TurnOffCurrent) reads.
@@ -130,7 +130,7 @@ def render_transient(check: TransientCheck, design, console: Console) -> None:
         console.print(Text(f"  {check.worst_failures} of the {check.worst_simulated} worst "
                            "charge-balance strings exceed the limit in the time domain",
                            style="bold red"))
-    for note in check.notes:
+    for note in sentences(check.notes):
         console.print(Text(f"  note: {shown(note)}", style="italic"))
     console.print()
 

@@ -46,6 +46,10 @@ def check_to_dict(check: CheckOutcome) -> dict[str, Any]:
     data = check.to_dict()
     if check.rare is not None:
         data["rare"] = rare_to_dict(check.rare, data["rare"])
+    if "notes" in data and check.notes:
+        # The transient check's notes in words, their codes beside them.
+        data["note_codes"] = data["notes"]
+        data["notes"] = sentences(check.notes)
     return data
 
 

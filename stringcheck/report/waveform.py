@@ -17,6 +17,7 @@ from numpy.typing import NDArray
 from stringcheck.errors import StringcheckError
 from stringcheck.limits import exceeds_limit
 from stringcheck.report.display_text import shown
+from stringcheck.report.wording import sentences
 from stringcheck.units import ENGINEERING_PREFIXES, format_quantity
 from stringcheck.solvers.transient import TurnOff, TurnOffTrace
 
@@ -552,5 +553,5 @@ def render_wave(title: str, trial: int, branch: int, result: TurnOff, notes, con
     console.print(waveform_plot(result.trace, width=max(width, _MIN_WIDTH), height=height,
                                 worst=worst, limit=limit, ascii_only=ascii_only),
                   end="", soft_wrap=True)
-    for note in notes:
+    for note in sentences(notes):
         console.print(f"note: {shown(note)}")

@@ -79,6 +79,15 @@ TEMPLATES: dict[str, str] = {
         "kept the simulated peak within the limit at the smaller value",
     "size.transient_not_run":
         "damping resistor not confirmed in the time domain: {causes}",
+    # checks.transient: how the simulated loop was chosen
+    "transient.test_current":
+        "no duty.forward_current: each branch starts from the parts' test I_F ({current:g} A)",
+    "transient.branch_loops":
+        "each of the {parallel} branches is simulated as its own loop with {parallel} x L and "
+        "1/{parallel} of the current",
+    "transient.left_out":
+        "leakage and the grading resistor's TCR are left out of the turn-off (microseconds); "
+        "junction temperature enters only the thermal voltage",
     # studies.faults: why a kind of fault was not evaluated
     "fault.no_capacitor": "no grading capacitor (grading.capacitor)",
     "fault.no_turn_off": "the dynamic check does not run (no turn-off)",

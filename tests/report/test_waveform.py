@@ -12,6 +12,8 @@ import re
 from functools import lru_cache
 
 import numpy as np
+
+from stringcheck.findings import Finding
 import pandas as pd
 import pytest
 from rich.cells import cell_len
@@ -295,14 +297,14 @@ def test_render_wave_fits_the_console_and_needs_no_colour(width):
         # no markup read into text), with colours forced on for the terminal.
         console = Console(file=buffer, width=width, force_terminal=terminal, highlight=False,
                           markup=False, color_system="truecolor" if terminal else None)
-        render_wave("Invented stack", 0, 1, result, ("a note",), console,
+        render_wave("Invented stack", 0, 1, result, (Finding("transient.left_out"),), console,
                     limit=np.full(12, 1500.0))
         texts.append(buffer.getvalue())
     piped, coloured = texts
     assert "\x1b" not in piped and "\x1b" not in coloured  # nothing styled: shapes only
     assert piped == coloured
     assert all(cell_len(line) <= width for line in piped.splitlines()), piped
-    assert "stage " in piped and "reverse-recovery peak" in piped and "note: a note" in piped
+    assert "stage " in piped and "reverse-recovery peak" in piped and "note: leakage and" in piped
 
 
 def test_a_console_that_cannot_encode_utf8_gets_ascii_marks():

@@ -442,6 +442,13 @@ TODAY = [
 SIZING = [
     (Finding("size.transient_not_run", causes=(Finding("not_run.no_commutation_loop"),)),
      'damping resistor not confirmed in the time domain: give duty.stray_inductance or duty.di_dt (the commutation loop)'),
+    (Finding("transient.test_current", {"current": Value(10.0, "A")}),
+     "no duty.forward_current: each branch starts from the parts' test I_F (10 A)"),
+    (Finding("transient.branch_loops", {"parallel": Value(3)}),
+     "each of the 3 branches is simulated as its own loop with 3 x L and 1/3 of the current"),
+    (Finding("transient.left_out"),
+     "leakage and the grading resistor's TCR are left out of the turn-off (microseconds); "
+     "junction temperature enters only the thermal voltage"),
     (Finding("fault.no_capacitor"), "no grading capacitor (grading.capacitor)"),
     (Finding("fault.no_turn_off"), "the dynamic check does not run (no turn-off)"),
     (Finding("fault.no_damping_resistor"), "no damping resistor (grading.damping_resistor)"),
