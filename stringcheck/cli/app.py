@@ -146,8 +146,21 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
     if report_path is not None:
         from stringcheck.report.html_page import check_page
 
+        studies = {}
+        if study is not None:
+            from stringcheck.report.faults import faults_to_dict
+
+            studies["faults"] = faults_to_dict(study)
+        if aged is not None:
+            from stringcheck.report.end_of_life import end_of_life_to_dict
+
+            studies["end_of_life"] = end_of_life_to_dict(aged)
+        if rates is not None:
+            from stringcheck.report.failure_rate import failure_rate_to_dict
+
+            studies["failure_rate"] = failure_rate_to_dict(rates)
         outputs.append((report_path, check_page(result, command_line=_command_line(),
-                                                spell=option_wording)))
+                                                spell=option_wording, extra=studies)))
     trace = None if source_label is not None else (
         lambda trial, seed, trials: f"stringcheck wave {path} --trial {trial} --trials {trials} "
                                     f"--seed {seed}")

@@ -268,3 +268,27 @@ def test_the_review_report_shows_each_check_and_the_per_position_change(tmp_path
             assert cell[-1] == f"{change['candidate_worst_ratio']:.3f}"
     assert page.figures == len(ran) and page.svgs == page.figures
     assert "Review and sign-off" in text
+
+
+def test_the_fault_end_of_life_and_failure_rate_studies_get_a_section_each(tmp_path):
+    # Issue 22, item 4: each study the run made has its section, with the JSON's figures.
+    text = (ROOT / "examples" / "precipitator-30kv.toml").read_text(encoding="utf-8").replace(
+        "[grading]", "[end_of_life]\nresistor_drift = 0.02\ncapacitor_dc_bias = 0.1\n\n[grading]", 1)
+    design = tmp_path / "aged.toml"
+    design.write_text(text, encoding="utf-8")
+    page_path, json_path = tmp_path / "aged.html", tmp_path / "aged.json"
+    run = _run_cli("check", str(design), "--trials", "400", "--quiet", "--faults",
+                   "--failure-rate", "--end-of-life", "--report", str(page_path), "--json",
+                   str(json_path))
+    assert run.returncode in (0, 1), run.stderr
+    page_text = page_path.read_text(encoding="utf-8")
+    data = json.loads(json_path.read_text(encoding="utf-8"))
+    page = _Page()
+    page.feed(page_text)
+    assert {"faults", "end-of-life", "failure-rate"} <= page.ids
+    worst = data["faults"]["kinds"]["device_short"]["worst"]
+    assert f"{worst['worst_ratio']:.3f}" in page_text
+    assert f"{data['failure_rate']['stack_fit_p50']:.4g} FIT" in page_text
+    margin = data["end_of_life"]["margins"][0]
+    assert f"{margin['initial_worst_ratio']:.3f} &#8594; {margin['end_of_life_worst_ratio']:.3f}" \
+        in page_text
