@@ -159,6 +159,7 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
             from stringcheck.report.failure_rate import failure_rate_to_dict
 
             studies["failure_rate"] = failure_rate_to_dict(rates)
+        studies.update(_worst_turn_off(result))
         outputs.append((report_path, check_page(result, command_line=_command_line(),
                                                 spell=option_wording, extra=studies)))
     trace = None if source_label is not None else (
@@ -175,6 +176,30 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
         _print_report(result, quiet=quiet, stderr=to_stdout, full=full, summary=summary)
     verdict = result.verdict if aged is None else aged.verdict
     return EXIT_PASS if verdict == "pass" else EXIT_FAIL
+
+
+def _worst_turn_off(result) -> dict:
+    """For the HTML report of a run with ``--transient``: the simulated turn-off of the transient
+    check's worst string (each branch's stages, zoomed to the event) as a figure, traced again on
+    the same draws (``checks.transient.trial_trace``)."""
+    check = result.checks.get("transient")
+    if check is None or not check.ran or check.worst_trial < 0:
+        return {}
+    from stringcheck.checks.transient import trial_limits, trial_trace
+    from stringcheck.report.figures import wave_figure
+    from stringcheck.report.waveform import event_window, trial_waveform
+
+    design = result.design
+    figures = []
+    for branch in range(1, design.string.parallel + 1):
+        traced, _ = trial_trace(design, check.worst_trial, trials=result.trials, seed=result.seed,
+                                branch=branch)
+        limits = trial_limits(design, check.worst_trial, trials=result.trials, seed=result.seed,
+                              branch=branch)
+        waveform = trial_waveform(traced.trace)
+        figures.append(wave_figure(waveform, limits=list(limits), window=event_window(waveform),
+                                   title=f"trial {check.worst_trial:,}, branch {branch}"))
+    return {"worst_turn_off": {"trial": check.worst_trial, "figures": figures}}
 
 
 def _with_end_of_life(aged, full, summary):

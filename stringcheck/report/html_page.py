@@ -201,7 +201,7 @@ def _figures(result) -> dict[str, list[dict[str, str]]]:
                 "short mark the highest voltage drawn at that position. The dashed line is the "
                 "device limit (derating x V_RRM), the dotted line V_RRM. Shaded positions run "
                 "hotter (a temperature rise in the design).")})
-        if name in ("static", "dynamic", "transient") and check.histogram:
+        if name in ("static", "dynamic") and check.histogram:
             shown.append({"svg": figures.stress_distribution_figure(check), "caption": (
                 "The worst device of each built string: how many strings reach each stress ratio "
                 "(bars, log scale) and the fraction of strings at or below it (line, right "

@@ -292,3 +292,19 @@ def test_the_fault_end_of_life_and_failure_rate_studies_get_a_section_each(tmp_p
     margin = data["end_of_life"]["margins"][0]
     assert f"{margin['initial_worst_ratio']:.3f} &#8594; {margin['end_of_life_worst_ratio']:.3f}" \
         in page_text
+
+
+@pytest.mark.slow
+def test_a_transient_run_shows_the_worst_strings_turn_off(tmp_path):
+    page_path, json_path = tmp_path / "transient.html", tmp_path / "transient.json"
+    run = _run_cli("check", str(ROOT / "examples" / "precipitator-30kv.toml"), "--trials", "600",
+                   "--transient", "--transient-sample", "40", "--transient-worst", "5", "--quiet",
+                   "--report", str(page_path), "--json", str(json_path))
+    assert run.returncode in (0, 1), run.stderr
+    text = page_path.read_text(encoding="utf-8")
+    data = json.loads(json_path.read_text(encoding="utf-8"))
+    trial = data["checks"]["transient"]["worst_trial"]
+    # The worst string of the transient check, named by its trial, drawn inline in its section.
+    assert f"(trial {trial:,})" in text and f"trial {trial:,}, branch 1" in text
+    section = text[text.index('id="section-transient"'):]
+    assert section.index("<svg") < section.index("</section>")
