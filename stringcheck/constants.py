@@ -32,7 +32,9 @@ SAFE_DISCHARGE_TIME = 5.0
 
 # Waveform names of the forward current (the design file's ``duty.waveform``; the shapes are defined
 # in stringcheck.physics.forward): constant, half-wave sine pulses, half-period square pulses [-].
-WAVEFORMS = ("dc", "half-sine", "square")
+# "offset-sine": a capacitor-input or multiplier stack, reverse voltage (V/2)(1 - sin wt), whose
+# forward current is taken as a half-sine pulse (issue 23).
+WAVEFORMS = ("dc", "half-sine", "square", "offset-sine")
 
 # Heat-sink arrangements of a parallel group (the design file's ``thermal.heatsink``; the model is in
 # stringcheck.physics.thermal): one sink for every device, or one sink per device [-].

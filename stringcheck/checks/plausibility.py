@@ -113,7 +113,7 @@ def _string_voltage(design: Design) -> list[PlausibilityWarning]:
 def _turn_off_slopes(design: Design) -> list[PlausibilityWarning]:
     duty = design.duty
     threshold = SLOW_DI_DT
-    if (duty.waveform == "half-sine" and duty.frequency is not None
+    if (duty.waveform in ("half-sine", "offset-sine") and duty.frequency is not None
             and duty.forward_current is not None):
         # A branch's half-sine of average I carries I_pk = pi I; its slope at the zero is
         # omega I_pk (the slowest natural turn-off).

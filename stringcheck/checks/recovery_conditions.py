@@ -129,7 +129,7 @@ def _duty_turn_off(design: Design) -> TurnOffCurrent:
         # I_pk = 2 I_AV flows until the commutation (physics.forward.peak_factor).
         return TurnOffCurrent(current=per_branch * peak_factor("square"),
                               basis=TURN_OFF_SQUARE_PEAK)
-    if duty.waveform == "half-sine":
+    if duty.waveform in ("half-sine", "offset-sine"):
         return TurnOffCurrent(current=per_branch, basis=TURN_OFF_HALF_SINE_AVERAGE)
     return TurnOffCurrent(current=per_branch, basis=TURN_OFF_DC)
 

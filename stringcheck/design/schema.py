@@ -31,6 +31,9 @@ SCHEMA_KEYS = {
     "design": ("title", "notes"),
     "duty": ("reverse_voltage", "forward_current", "waveform", "frequency", "di_dt", "ambient",
              "stray_inductance"),
+    "circuit": ("topology", "stages", "phases", "secondary_voltage", "secondary_peak", "frequency",
+                "load_current", "load_resistance", "commutation_inductance", "filter_capacitor",
+                "stage_capacitor", "ambient"),
     "string": ("series", "parallel", "derating", "part", "position"),
     "position": ("index", "branch", "part", "temperature_rise", "serial"),
     "part": ("v_rrm", "i_fav", "i_r", "q_rr", "i_rm", "t_rr", "v_t0", "r_t", "c_j", "r_th_jc",
@@ -47,7 +50,7 @@ SCHEMA_KEYS = {
     "sizing": ("target_p_fail", "target_share", "resistor_series", "capacitor_series"),
     "review": ("tolerance",),
 }
-TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
+TOP_LEVEL = ("design", "duty", "circuit", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
               "review")
 
 

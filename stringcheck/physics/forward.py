@@ -199,7 +199,7 @@ def peak_factor(waveform: str) -> float:
     I_AV = I_pk / 2.
     """
     _check_waveform(waveform)
-    return {"dc": 1.0, "half-sine": np.pi, "square": 2.0}[waveform]
+    return {"dc": 1.0, "half-sine": np.pi, "square": 2.0, "offset-sine": np.pi}[waveform]
 
 
 def form_factor(waveform: str) -> float:
@@ -221,7 +221,8 @@ def form_factor(waveform: str) -> float:
     I_RMS = I_pk / 2 and I_RMS / I_AV = pi / 2. Square: I_RMS = I_pk / sqrt(2), I_AV = I_pk / 2.
     """
     _check_waveform(waveform)
-    return {"dc": 1.0, "half-sine": np.pi / 2.0, "square": np.sqrt(2.0)}[waveform]
+    return {"dc": 1.0, "half-sine": np.pi / 2.0, "square": np.sqrt(2.0),
+            "offset-sine": np.pi / 2.0}[waveform]
 
 
 def phase_samples(
@@ -265,7 +266,7 @@ def phase_samples(
     _check_waveform(waveform)
     average = np.asarray(average_current, dtype=float)
     peak = peak_factor(waveform) * average
-    if waveform == "half-sine":
+    if waveform in ("half-sine", "offset-sine"):
         # sin(theta) = sin(pi - theta): the midpoint samples pair up, so keep one of each pair
         # with twice the weight (the middle one of an odd count stands alone).
         kept = (points + 1) // 2
@@ -366,7 +367,7 @@ def blocking_factor(
     _check_waveform(waveform)
     exponent = np.asarray(voltage_exponent, dtype=float)
     current = np.asarray(forward_current, dtype=float)
-    if waveform == "half-sine":
+    if waveform in ("half-sine", "offset-sine"):
         factor = np.exp(gammaln(1.0 + exponent / 2.0) - gammaln((3.0 + exponent) / 2.0)) / (
             2.0 * np.sqrt(np.pi)
         )

@@ -25,7 +25,7 @@ __all__ = [
     "worst_case_static_resistance",
 ]
 
-WAVEFORM_MEAN_SQUARE_FACTOR = {"dc": 1.0, "half-sine": 0.25, "square": 0.5}
+WAVEFORM_MEAN_SQUARE_FACTOR = {"dc": 1.0, "half-sine": 0.25, "square": 0.5, "offset-sine": 0.25}
 """Mean square of the reverse voltage over a period, per unit peak voltage squared."""
 
 _EPSILON = np.finfo(float).eps

@@ -197,7 +197,7 @@ def phase_rule(
     average = np.asarray(average_current, dtype=float)
     leading = np.broadcast_shapes(threshold.shape[:-1], resistance.shape[:-1], average.shape)
     samples = phase_samples(np.broadcast_to(average, leading), waveform, points=1)
-    if waveform != "half-sine":
+    if waveform not in ("half-sine", "offset-sine"):
         return PhaseRule(currents=samples.currents,
                          weights=np.broadcast_to(samples.weights, samples.currents.shape),
                          peak=samples.peak)
@@ -322,7 +322,7 @@ def branch_currents(
     threshold = np.asarray(branch_threshold, dtype=float)
     resistance = np.asarray(branch_resistance, dtype=float)
     peak_current = peak_factor(waveform) * np.asarray(average_current, dtype=float)
-    if waveform == "half-sine":
+    if waveform in ("half-sine", "offset-sine"):
         average, mean_square = _half_sine_moments(threshold, resistance, average_current)
         rms = np.sqrt(mean_square)
         peak = split_current(threshold, resistance, peak_current).currents
