@@ -26,6 +26,11 @@ def _angle(value: float | None) -> str:
     return "-" if value is None else f"{math.degrees(value):.3g} deg"
 
 
+def _labels(labels) -> str:
+    """Stack labels as a table cell: all of a few, else the first and last with the count."""
+    return ", ".join(labels) if len(labels) <= 4 else f"{labels[0]}..{labels[-1]} ({len(labels)})"
+
+
 def _circuit_line(result: CircuitResult) -> str:
     circuit = result.design.circuit
     what = circuit.topology + (f" of {circuit.stages} stages" if circuit.stages else "") + \
@@ -44,17 +49,20 @@ def render_circuit(result: CircuitResult, console: Console, *,
                         f"{_circuit_line(result)}", title="stringcheck check (circuit)",
                         title_align="left"))
     table = Table(title="Duty of each stack, derived from the circuit", title_justify="left")
-    for column in ("stack", "peak reverse", "reverse waveform", "I_F(AV)", "I_F peak",
-                   "I_F rms", "conduction", "overlap", "turn-off di/dt", "checked as"):
-        table.add_column(column, justify="left" if column in ("stack", "reverse waveform",
-                                                             "checked as") else "right")
-    for stack in result.stacks:
-        table.add_row(stack.label, format_quantity(stack.reverse_voltage, "V"),
-                      stack.reverse_waveform, format_quantity(stack.forward_average, "A"),
-                      format_quantity(stack.forward_peak, "A"),
-                      format_quantity(stack.forward_rms, "A"), _angle(stack.conduction_angle),
-                      _angle(stack.overlap_angle), format_quantity(stack.di_dt, "A/s"),
-                      stack.duty.waveform)
+    table.add_column("stacks")
+    for group in result.groups:
+        table.add_column(_labels(group.labels), justify="right")
+    rows = (("peak reverse voltage", lambda s: format_quantity(s.reverse_voltage, "V")),
+            ("reverse-voltage waveform", lambda s: s.reverse_waveform),
+            ("forward current, average", lambda s: format_quantity(s.forward_average, "A")),
+            ("forward current, peak", lambda s: format_quantity(s.forward_peak, "A")),
+            ("forward current, rms", lambda s: format_quantity(s.forward_rms, "A")),
+            ("conduction angle", lambda s: _angle(s.conduction_angle)),
+            ("overlap angle", lambda s: _angle(s.overlap_angle)),
+            ("turn-off slope -di/dt", lambda s: format_quantity(s.di_dt, "A/s")),
+            ("checked as waveform", lambda s: s.duty.waveform))
+    for name, value in rows:
+        table.add_row(name, *(value(group.stack) for group in result.groups))
     console.print(table)
     for group in result.groups:
         console.print(f"How the duty of {', '.join(group.labels)} follows from the circuit:")
