@@ -16,7 +16,7 @@ notes = ""
 [duty]
 reverse_voltage = "10 kV"       # peak reverse voltage across the whole string
 forward_current = "1 A"
-waveform = "half-sine"          # dc | half-sine | square
+waveform = "half-sine"          # dc | half-sine | square | offset-sine
 frequency = "50 Hz"
 di_dt = "10 A/us"               # current slope at turn-off (omit for a dc duty with no turn-off)
 ambient = "40 degC"
