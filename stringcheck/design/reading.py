@@ -241,7 +241,7 @@ def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:
     reader.check_keys(table, SCHEMA_KEYS["duty"], "duty")
     if "duty" not in raw:
         raise reader.error("duty", "missing; add a [duty] table with at least reverse_voltage (or a [circuit] "
-                                   "table: `stringcheck new --circuit TOPOLOGY`)")
+                                   "table: see docs/design-file.md)")
     waveform = reader.text(table, "waveform", "duty", default=None, choices=WAVEFORMS)
     if waveform is None:
         waveform = "dc"

@@ -16,6 +16,7 @@ from stringcheck.checks.findings import Finding, Value, codes
 from stringcheck.cli.options import OPTIONS, option_wording
 from stringcheck.report.wording import (CHECK_WORDS, TEMPLATES, impossibility_text, sentence,
                                         sentences)
+from tests.report.circuit_wording import CIRCUIT_TODAY
 
 PACKAGE = Path(__file__).resolve().parents[2] / "stringcheck"
 
@@ -280,6 +281,7 @@ TODAY = [
      "the charge balance of the dynamic check and the recovery loss of the thermal check use the "
      "same carried value; " + RECOVERY_MODEL),
 ]
+TODAY += CIRCUIT_TODAY  # issue 23 (tests/report/circuit_wording.py)
 # The command line's wording of the one code that names a setting (the JSON of `size` has it).
 SIZE_DAMPING = (Finding("size.damping_slower_than_recovery", {"time_constant": Value(3.3e-7, "s")},
                         Value(1.5e-7, "s")),
@@ -341,6 +343,10 @@ def _produced_codes() -> set[str]:
                     re.fullmatch(r"(assumed|lot|recovery)\.[a-z_.]*", node.values[0].value):
                 prefix = node.values[0].value
                 found.update(code for code in TEMPLATES if code.startswith(prefix))
+            # a circuit code picked by topology before its finding is made (studies.circuit)
+            elif isinstance(node, ast.Constant) and isinstance(node.value, str) and \
+                    re.fullmatch(r"circuit\.(piv|waveform|forward|slope)\.[a-z_]+", node.value):
+                found.add(node.value)
             # a code named by a constant beside the finding (_PART_DEFAULT_NOTES' keys)
             elif isinstance(node, ast.Constant) and isinstance(node.value, str) and \
                     re.fullmatch(r"(assumed|lot|model|recovery)\.[a-z_.]*[a-z]", node.value):
