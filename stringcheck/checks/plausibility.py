@@ -119,7 +119,7 @@ def _string_voltage(design: Design) -> list[PlausibilityWarning]:
 def _turn_off_slopes(design: Design) -> list[PlausibilityWarning]:
     duty = design.duty
     threshold = SLOW_DI_DT
-    if (duty.waveform == "half-sine" and duty.frequency is not None
+    if (duty.waveform in ("half-sine", "offset-sine") and duty.frequency is not None
             and duty.forward_current is not None):
         # A branch's half-sine of average I carries I_pk = pi I; its slope at the zero is
         # omega I_pk (the slowest natural turn-off).
@@ -127,8 +127,9 @@ def _turn_off_slopes(design: Design) -> list[PlausibilityWarning]:
         threshold = min(threshold, 0.1 * 2.0 * math.pi * duty.frequency * peak)
     found = []
     natural = commutation_slope(design).natural
+    # A duty derived from a [circuit] has its slope from the circuit's own formula, not typed.
     if (duty.di_dt is not None and duty.stray_inductance is None and math.isfinite(natural)
-            and natural > 0 and duty.di_dt > 0):
+            and natural > 0 and duty.di_dt > 0 and design.circuit is None):
         ratio = duty.di_dt / natural
         if ratio >= NATURAL_SLOPE_RATIO or ratio <= 1.0 / NATURAL_SLOPE_RATIO:
             found.append(PlausibilityWarning("duty.di_dt", Finding(

@@ -89,6 +89,11 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
     from stringcheck.studies.check import run_check
 
     design = load_design(path)
+    if design.circuit is not None:
+        return _check_circuit(design, path, trials=trials, seed=seed, json_path=json_path,
+                              csv_path=csv_path, quiet=quiet, workers=workers,
+                              transient=transient, drivers=drivers, rare=rare,
+                              report_path=report_path)
     output_files.check_output_targets(
         {"--json": json_path, "--csv": csv_path, "--report": report_path},
         inputs=output_files.design_inputs(design, path, "the design file" if source_label is None
@@ -253,6 +258,46 @@ def _with_failure_rate(rates, layout, full, summary):
     return full_rates, summary_rates
 
 
+def _check_circuit(design, path: Path, *, trials, seed, json_path, csv_path, quiet, workers,
+                   transient, drivers, rare, report_path) -> int:
+    """``check`` of a design with a [circuit] table: every distinct stack duty (issue 23)."""
+    from stringcheck.report.circuit import (
+        circuit_csv,
+        circuit_to_dict,
+        render_circuit,
+        render_circuit_summary,
+    )
+    from stringcheck.report.export import json_text
+    from stringcheck.studies.circuit import run_circuit
+
+    if report_path is not None:
+        raise StringcheckError(f"{path}: --report (HTML) is not yet written for a design with a "
+                               "[circuit] table; use --json or --csv")
+    output_files.check_output_targets({"--json": json_path, "--csv": csv_path},
+                                      inputs=output_files.design_inputs(design, path))
+    with DelayedProgress(enabled=not quiet, label="drawing strings") as progress:
+        result = run_circuit(design, trials=trials, seed=seed, progress=progress,
+                             workers=workers, drivers=drivers, rare=rare, **(transient or {}))
+    outputs = []
+    if json_path is not None:
+        outputs.append((json_path, json_text(circuit_to_dict(result))))
+    if csv_path is not None:
+        outputs.append((csv_path, circuit_csv(result)))
+    with output_files.atomic_outputs(outputs):
+        _print_report(result, quiet=quiet, stderr="-" in (json_path, csv_path),
+                      full=lambda shown, on: render_circuit(shown, on, spell=option_wording),
+                      summary=render_circuit_summary)
+    return EXIT_PASS if result.verdict == "pass" else EXIT_FAIL
+
+
+def _needs_duty(design, path: Path, command: str) -> None:
+    """``command`` takes a [duty]; a [circuit] design is checked by ``check`` only so far."""
+    if design.circuit is not None:
+        raise StringcheckError(f"{path}: `stringcheck {command}` takes a design with a [duty] "
+                               "table; a [circuit] design is checked by `stringcheck check` (give "
+                               "the stack's [duty] for this command)")
+
+
 def _print_report(result, *, quiet: bool, stderr: bool, full, summary) -> None:
     """The report, or its one line with --quiet; on stderr when machine output is on stdout."""
     shown_on = console(stderr=stderr, wrap=not quiet)
@@ -320,6 +365,7 @@ def _size(path: Path, *, trials, seed, json_path, quiet, resistor_series, capaci
     from stringcheck.studies.size import size as run_size
 
     design = load_design(path)
+    _needs_duty(design, path, "size")
     output_files.check_output_targets({"--json": json_path, "--report": report_path},
                                       inputs=output_files.design_inputs(design, path))
     if write_path is not None:
@@ -406,12 +452,14 @@ def _review(base_path: Path, candidate_path: Optional[Path], *, swap, mix, trial
     from stringcheck.studies.review import review, substituted
 
     baseline = load_design(base_path)
+    _needs_duty(baseline, base_path, "review")
     read = output_files.design_inputs(baseline, base_path, "the baseline design file")
     if [candidate_path, swap, mix].count(None) != 2:
         raise StringcheckError("give exactly one of a CANDIDATE design file, --swap POSITIONS:PART "
                                "(e.g. --swap 1-4:B) or --mix FRACTION:PART (e.g. --mix 0.25:B)")
     if candidate_path is not None:
         candidate = load_design(candidate_path)
+        _needs_duty(candidate, candidate_path, "review")
         read += output_files.design_inputs(candidate, candidate_path, "the candidate design file")
     output_files.check_output_targets({"--json": json_path, "--csv": csv_path,
                                        "--report": report_path}, inputs=read)
@@ -488,6 +536,7 @@ def _wave(path: Path, *, trial, branch, trials, seed, csv_path, worst, width, he
 
     window_end = None if window is None else _window_end(window)
     design = load_design(path)
+    _needs_duty(design, path, "wave")
     output_files.check_output_targets({"--csv": csv_path, "--png": png_path, "--svg": svg_path},
                                       inputs=output_files.design_inputs(design, path))
     result, notes = trial_trace(design, trial, trials=trials, seed=seed, branch=branch)
@@ -589,11 +638,19 @@ def new(
     file: Annotated[Path, typer.Argument(
         help="Where to write the starter design ('-' for standard output).", show_default=False)],
     force: Annotated[bool, typer.Option("--force", help="Overwrite FILE if it exists.")] = False,
+    circuit: Annotated[Optional[str], typer.Option(
+        "--circuit", metavar="TOPOLOGY",
+        help="Start from a [circuit] table instead of [duty]: half-wave, center-tap, bridge, "
+             "doubler or multiplier.")] = None,
     debug: Debug = False,
 ) -> None:
     """Write a commented starter design file to edit."""
     def action() -> int:
-        from stringcheck.report.starter import starter_design
+        from stringcheck.report.starter import circuit_starter_design
+        from stringcheck.report.starter import starter_design as plain_starter
+
+        def starter_design() -> str:
+            return plain_starter() if circuit is None else circuit_starter_design(circuit)
 
         if str(file) == "-":  # the starter on standard output, and nothing else there
             output_files.write_text_atomic("-", starter_design())

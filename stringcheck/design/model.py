@@ -157,6 +157,33 @@ class Duty:
     load_capacitance: float = 0.0
 
 
+# Topologies of the design file's ``[circuit]`` table (issue 23).
+TOPOLOGIES = ("half-wave", "center-tap", "bridge", "doubler", "multiplier")
+
+
+@dataclass(frozen=True)
+class Circuit:
+    """The ``[circuit]`` table: the rectifier or multiplier whose stacks the design's string is.
+
+    Voltages [V] (``secondary_peak`` the peak of the secondary: of each half of a center-tapped
+    one, line-to-line for a three-phase bridge), frequency [Hz], load current [A] (from
+    ``load_resistance`` as V_pk / R where the file gives a resistance), inductance [H],
+    capacitances [F], ambient [degC].
+    """
+
+    topology: str
+    secondary_peak: float
+    frequency: float
+    load_current: float
+    ambient: float
+    stages: int | None = None
+    phases: int = 1
+    load_resistance: float | None = None
+    commutation_inductance: float | None = None
+    filter_capacitor: float | None = None
+    stage_capacitor: float | None = None
+
+
 @dataclass(frozen=True)
 class PositionOverride:
     """A ``[[string.position]]`` entry: 1-based ``index``; ``branch`` None means every branch.
@@ -408,7 +435,8 @@ class Design:
     title: str
     notes: str
     source: str
-    duty: Duty
+    # None for a design that gives a [circuit] instead (studies.circuit derives a duty per stack).
+    duty: Duty | None
     string: StringLayout
     parts: Mapping[str, Part]
     grading: Grading
@@ -425,6 +453,12 @@ class Design:
     faults: Faults = field(default_factory=Faults)
     reliability: Reliability = field(default_factory=Reliability)
     end_of_life: EndOfLife = field(default_factory=EndOfLife)
+    circuit: Circuit | None = None
+
+    @property
+    def ambient(self) -> float:
+        """The ambient temperature [degC], of the duty or of the circuit."""
+        return self.duty.ambient if self.duty is not None else self.circuit.ambient
 
     def mix_variants(self) -> tuple["Design", ...]:
         """The mix-free designs a built string picks its devices from, device by device: the design

@@ -34,6 +34,8 @@ from stringcheck.design.model import (
     REVIEW_TOLERANCE,
     SIGMA_AT_LIMIT_RANGE,
     SPREAD_PARAMETERS,
+    TOPOLOGIES,
+    Circuit,
     Design,
     FAULT_KINDS,
     EndOfLife,
@@ -184,7 +186,15 @@ def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
     notes = reader.text(design_table, "notes", "design", default="") or ""
 
     parts = read_parts(reader, raw)
-    duty = _read_duty(reader, raw)
+    circuit = None
+    if "circuit" in raw:
+        if "duty" in raw:
+            raise reader.error("circuit", "a design gives either [duty] or [circuit], not both; "
+                                          "remove one of the two tables")
+        circuit = _read_circuit(reader, raw)
+        duty = None
+    else:
+        duty = _read_duty(reader, raw)
     string = _read_string(reader, raw, parts)
     grading = _read_grading(reader, raw)
     monte_carlo = _read_monte_carlo(reader, raw)
@@ -203,7 +213,8 @@ def parse_design(raw: Mapping[str, Any], *, source: str = "<design>") -> Design:
                     parts=parts, grading=grading, monte_carlo=monte_carlo, sizing=sizing,
                     thermal=thermal, review=review, assumptions=tuple(reader.assumptions),
                     faults=_read_faults(reader, raw), reliability=_read_reliability(reader, raw),
-                    end_of_life=_read_end_of_life(reader, raw, grading))
+                    end_of_life=_read_end_of_life(reader, raw, grading),
+                    circuit=circuit)
     _cross_check(reader, design)
     notes = _row_notes(design)
     return replace(design, assumptions=design.assumptions + notes) if notes else design
@@ -213,7 +224,7 @@ def _row_notes(design: Design) -> tuple[Finding, ...]:
     """What the rows of the parts used say on the user's behalf: which rows are taken as screened
     (``model.row_screened``), and which rows a position's temperature lies outside of."""
     screened, unscreened, notes = [], [], []
-    temperatures = design.duty.ambient + design.string.temperature_rise_grid()
+    temperatures = design.ambient + design.string.temperature_rise_grid()
     grid = design.string.part_grid()
     for name in design.parts_used():
         part = design.parts[name]
@@ -325,7 +336,8 @@ def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:
     table = reader.table(raw, "duty")
     reader.check_keys(table, SCHEMA_KEYS["duty"], "duty")
     if "duty" not in raw:
-        raise reader.error("duty", "missing; add a [duty] table with at least reverse_voltage")
+        raise reader.error("duty", "missing; add a [duty] table with at least reverse_voltage (or a [circuit] "
+                                   "table: see docs/design-file.md)")
     waveform = reader.text(table, "waveform", "duty", default=None, choices=WAVEFORMS)
     if waveform is None:
         waveform = "dc"
@@ -343,6 +355,74 @@ def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:
         stray_inductance=reader.quantity(table, "stray_inductance", HENRY, "duty", positive=True),
         load_capacitance=reader.quantity(table, "load_capacitance", FARAD, "duty", default=0.0,
                                          non_negative=True) or 0.0,
+    )
+
+
+def _read_circuit(reader: Reader, raw: Mapping[str, Any]) -> Circuit:
+    """The [circuit] table (issue 23): the rectifier or multiplier the string is a stack of."""
+    table = reader.table(raw, "circuit")
+    prefix = "circuit"
+    reader.check_keys(table, SCHEMA_KEYS[prefix], prefix)
+    if "topology" not in table:
+        raise reader.error("circuit.topology", "missing; one of " + ", ".join(TOPOLOGIES))
+    topology = reader.text(table, "topology", prefix, choices=TOPOLOGIES)
+    stages = None
+    if topology == "multiplier":
+        if "stages" not in table:
+            raise reader.error("circuit.stages", "missing; a multiplier needs its stage count, "
+                                                 "e.g. stages = 6")
+        stages = reader.integer(table, "stages", prefix, maximum=1000)
+    elif "stages" in table:
+        raise reader.error("circuit.stages", f"only a multiplier has stages, not a {topology}; "
+                                             "remove it (a doubler is one stage)")
+    phases = reader.integer(table, "phases", prefix, default=1)
+    if phases not in (1, 3) or (phases == 3 and topology != "bridge"):
+        raise reader.error("circuit.phases", f"must be 1, or 3 for a bridge, got {phases} for a "
+                                             f"{topology}")
+    given = [key for key in ("secondary_voltage", "secondary_peak") if key in table]
+    if len(given) != 1:
+        raise reader.error("circuit.secondary_voltage", "give exactly one of secondary_voltage (rms) "
+                                                        "and secondary_peak, e.g. "
+                                                        "secondary_voltage = \"10 kV\"")
+    value = reader.quantity(table, given[0], VOLT, prefix, required=True, positive=True)
+    peak = value * math.sqrt(2.0) if given[0] == "secondary_voltage" else value
+    loads = [key for key in ("load_current", "load_resistance") if key in table]
+    if len(loads) != 1:
+        raise reader.error("circuit.load_current", "give exactly one of load_current and "
+                                                   "load_resistance, e.g. load_current = \"20 mA\"")
+    resistance = reader.quantity(table, "load_resistance", OHM, prefix, positive=True)
+    current = reader.quantity(table, "load_current", AMPERE, prefix, positive=True)
+    capacitor_key = "stage_capacitor" if topology in ("doubler", "multiplier") else \
+        "filter_capacitor"
+    other = "filter_capacitor" if capacitor_key == "stage_capacitor" else "stage_capacitor"
+    if other in table:
+        raise reader.error(f"circuit.{other}", f"a {topology} takes {capacitor_key}, not {other}")
+    capacitor = reader.quantity(table, capacitor_key, FARAD, prefix,
+                                required=capacitor_key == "stage_capacitor", positive=True)
+    # Dc output at no load: what a load resistance draws at most.
+    output = peak * (2 * (stages or 1) if topology in ("doubler", "multiplier") else 1)
+    if resistance is not None:
+        current = output / resistance
+        reader.assumptions.append(Finding("assumed.circuit_load_from_resistance", {
+            "resistance": Value(resistance, "ohm"), "voltage": Value(output, "V"),
+            "current": Value(current, "A")}))
+    inductance = reader.quantity(table, "commutation_inductance", HENRY, prefix, positive=True)
+    if phases == 3 and (inductance is None or capacitor is not None):
+        raise reader.error("circuit.commutation_inductance", "a three-phase bridge is taken as "
+                                                             "line-commutated: give "
+                                                             "commutation_inductance and no "
+                                                             "filter_capacitor")
+    return Circuit(
+        topology=topology, secondary_peak=peak,
+        frequency=reader.quantity(table, "frequency", HERTZ, prefix, required=True, positive=True),
+        load_current=current,
+        ambient=reader.quantity(table, "ambient", CELSIUS, prefix, default=DEFAULT_AMBIENT,
+                                note=Finding("assumed.ambient",
+                                             {"ambient": Value(DEFAULT_AMBIENT, "degC")})) or 0.0,
+        stages=stages, phases=phases, load_resistance=resistance,
+        commutation_inductance=inductance,
+        filter_capacitor=capacitor if capacitor_key == "filter_capacitor" else None,
+        stage_capacitor=capacitor if capacitor_key == "stage_capacitor" else None,
     )
 
 
@@ -582,7 +662,7 @@ def _cross_check(reader: Reader, design: Design) -> None:
     for name in design.parts_used():
         part = design.parts[name]
         if part.t_j_max is not None:
-            hottest = design.duty.ambient + float(rise[grid == name].max())
+            hottest = design.ambient + float(rise[grid == name].max())
             if hottest >= part.t_j_max:
                 raise reader.error("duty.ambient",
                                    f"ambient plus temperature rise ({hottest:g} degC) is not below "
@@ -591,7 +671,7 @@ def _cross_check(reader: Reader, design: Design) -> None:
             raise reader.error(f"parts.{name}.i_r", "missing; the static check needs the reverse "
                                                     "leakage, e.g. i_r = { max = \"0.5 mA\", "
                                                     "at_temperature = \"125 degC\" }")
-        temperatures = design.duty.ambient + rise[grid == name]
+        temperatures = design.ambient + rise[grid == name]
         reference = part.i_r.at_temperature if part.i_r.at_temperature is not None else \
             DATASHEET_TEMPERATURE
         farthest = float(temperatures[np.argmax(np.abs(temperatures - reference))])
@@ -605,7 +685,7 @@ def _cross_check(reader: Reader, design: Design) -> None:
                                "silicon), i_r.at_temperature and duty.ambient")
     tcr = design.grading.resistor_tcr
     if design.grading.resistor is not None and tcr != 0.0:
-        temperatures = design.duty.ambient + rise
+        temperatures = design.ambient + rise
         extreme = float(temperatures.max() if tcr < 0 else temperatures.min())
         factor = 1.0 + tcr * (extreme - RESISTOR_TCR_REFERENCE)
         if not factor > 0.0:

@@ -31,6 +31,9 @@ SCHEMA_KEYS = {
     "design": ("title", "notes"),
     "duty": ("reverse_voltage", "forward_current", "waveform", "frequency", "di_dt", "ambient",
              "stray_inductance", "load_capacitance"),
+    "circuit": ("topology", "stages", "phases", "secondary_voltage", "secondary_peak", "frequency",
+                "load_current", "load_resistance", "commutation_inductance", "filter_capacitor",
+                "stage_capacitor", "ambient"),
     "string": ("series", "parallel", "derating", "part", "position"),
     "position": ("index", "branch", "part", "temperature_rise", "serial"),
     "part": ("v_rrm", "i_fav", "i_r", "q_rr", "i_rm", "t_rr", "v_t0", "r_t", "c_j", "r_th_jc",
@@ -55,8 +58,8 @@ SCHEMA_KEYS = {
                     "resistor_voltage_coefficient", "capacitor_dc_bias", "surface_resistance",
                     "surface_fraction"),
 }
-TOP_LEVEL = ("design", "duty", "string", "parts", "grading", "thermal", "monte_carlo", "sizing",
-              "review", "faults", "reliability", "end_of_life")
+TOP_LEVEL = ("design", "duty", "circuit", "string", "parts", "grading", "thermal", "monte_carlo",
+             "sizing", "review", "faults", "reliability", "end_of_life")
 
 
 class Reader:

@@ -16,7 +16,7 @@ notes = ""
 [duty]
 reverse_voltage = "10 kV"       # peak reverse voltage across the whole string
 forward_current = "1 A"
-waveform = "half-sine"          # dc | half-sine | square
+waveform = "half-sine"          # dc | half-sine | square | offset-sine
 frequency = "50 Hz"
 di_dt = "10 A/us"               # current slope at turn-off (omit for a dc duty with no turn-off)
 ambient = "40 degC"
@@ -83,3 +83,59 @@ target_share = 1.1              # parallel groups: allowed max / mean branch cur
 def starter_design() -> str:
     """The text of a valid, commented starter design file."""
     return _STARTER
+
+
+_DUTY_BLOCK_START = "[duty]\n"
+_DUTY_BLOCK_END = "\n[string]\n"
+
+# The [circuit] table of each topology's starter (issue 23), sized for the starter's string of
+# 10 x 1.6 kV at derating 0.8 (12.8 kV).
+_CIRCUIT_LINES = {
+    "half-wave": ('secondary_voltage = "4 kV"      # rms (or secondary_peak = "5.66 kV")',
+                  'filter_capacitor = "100 nF"     # reservoir; omit for a resistive load'),
+    "center-tap": ('secondary_voltage = "4 kV"      # rms of each half of the winding',
+                   'filter_capacitor = "100 nF"     # reservoir; omit for a choke-fed load'),
+    "bridge": ('secondary_voltage = "8 kV"      # rms (line-to-line with phases = 3)',
+               '# phases = 1                     # 1 | 3 (a three-phase bridge: '
+               'line-commutated)',
+               '# filter_capacitor = "100 nF"   # capacitor input instead of a dc choke'),
+    "doubler": ('secondary_peak = "5 kV"         # peak of the ac input',
+                'stage_capacitor = "2.2 nF"'),
+    "multiplier": ('stages = 6                      # Cockcroft-Walton stages (2 stacks each)',
+                   'secondary_peak = "5 kV"         # peak of the ac input',
+                   'stage_capacitor = "2.2 nF"      # every stage capacitor'),
+}
+_LOADS = {"half-wave": '"20 mA"', "center-tap": '"20 mA"', "bridge": '"0.5 A"',
+          "doubler": '"1 mA"', "multiplier": '"1 mA"'}
+
+
+def circuit_starter_design(topology: str) -> str:
+    """The starter design with a ``[circuit]`` table of ``topology`` in place of ``[duty]``.
+
+    Raises
+    ------
+    StringcheckError
+        For a topology that is not one of :data:`stringcheck.design.model.TOPOLOGIES`.
+    """
+    from stringcheck.design.model import TOPOLOGIES
+    from stringcheck.errors import StringcheckError
+
+    if topology not in TOPOLOGIES:
+        raise StringcheckError(f"unknown circuit topology {topology!r}; one of "
+                               + ", ".join(TOPOLOGIES))
+    ac = topology in ("doubler", "multiplier")
+    lines = ["[circuit]                       # the circuit the string is a stack of "
+             "(instead of [duty])",
+             f'topology = "{topology}"          # half-wave | center-tap | bridge | doubler | '
+             "multiplier",
+             *_CIRCUIT_LINES[topology][:1 if topology != "multiplier" else 2],
+             f'frequency = "{"40 kHz" if ac else "50 Hz"}"',
+             f"load_current = {_LOADS[topology]}          # or load_resistance = \"...\"",
+             *_CIRCUIT_LINES[topology][1 if topology != "multiplier" else 2:],
+             ('commutation_inductance = "50 mH" # transformer leakage (referred to the '
+              'secondary): the overlap and turn-off slope') if topology == "bridge" else
+             '# commutation_inductance = "1 H" # transformer leakage, referred to the secondary',
+             'ambient = "40 degC"']
+    start = _STARTER.index(_DUTY_BLOCK_START)
+    end = _STARTER.index(_DUTY_BLOCK_END)
+    return _STARTER[:start] + "\n".join(lines) + "\n" + _STARTER[end:]

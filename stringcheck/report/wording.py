@@ -432,6 +432,76 @@ TEMPLATES: dict[str, str] = {
         "the importance-sampling upper bound {rare_high:.2g} lies below the plain Monte Carlo "
         "lower bound {plain_low:.2g} ({failures:,} of {trials:,}): the estimators disagree, so "
         "the plain interval decides",
+    # studies.circuit (issue 23): how each stack's duty follows from the circuit, with sources
+    "assumed.circuit_load_from_resistance":
+        "load current {current} taken as the no-load output {voltage} over circuit.load_resistance "
+        "({resistance}): an upper bound",
+    "circuit.piv.half_wave":
+        "peak reverse voltage {voltage} = V_pk ({peak}): the diode blocks the secondary's negative "
+        "crest (Mohan, Undeland and Robbins, Power Electronics, 3rd ed., 2003, ch. 5)",
+    "circuit.piv.half_wave_capacitor":
+        "peak reverse voltage {voltage} = 2 V_pk (V_pk = {peak}): the capacitor holds V_pk while the "
+        "secondary swings to -V_pk (Sedra and Smith, Microelectronic Circuits, 6th ed., ch. 4)",
+    "circuit.piv.center_tap":
+        "peak reverse voltage {voltage} = 2 V_pk (V_pk = {peak} per half): the conducting half's "
+        "crest plus this half's (Mohan, Undeland and Robbins, Power Electronics, 3rd ed., 2003, ch. 5)",
+    "circuit.piv.bridge":
+        "peak reverse voltage {voltage} = V_pk ({peak}): each diode blocks the secondary through "
+        "the conducting pair (Mohan, Undeland and Robbins, Power Electronics, 3rd ed., 2003, ch. 5)",
+    "circuit.piv.three_phase_bridge":
+        "peak reverse voltage {voltage} = sqrt(2) V_LL ({peak}): each diode blocks the line-to-line "
+        "crest (Mohan, Undeland and Robbins, Power Electronics, 3rd ed., 2003, ch. 5)",
+    "circuit.piv.multiplier":
+        "peak reverse voltage {voltage} = 2 V_pk (V_pk = {peak}) on every stack: each diode blocks "
+        "the two capacitors it bridges less the input (Kuffel, Zaengl and Kuffel, High Voltage "
+        "Engineering Fundamentals, 2nd ed., 2000, ch. 2, from memory)",
+    "circuit.waveform.offset_sine":
+        "reverse voltage V_pk (1 - sin wt) (V_pk = {peak}): an offset sine from 0 to 2 V_pk, "
+        "checked as offset-sine",
+    "circuit.waveform.half_sine":
+        "reverse voltage a half sine of crest {peak} over the blocking half period, checked as "
+        "half-sine",
+    "circuit.waveform.bridge_capacitor":
+        "reverse voltage near the capacitor voltage ({peak}) while the other pair conducts, "
+        "checked as half-sine (Mohan, Undeland and Robbins, Power Electronics, 3rd ed., 2003, ch. 5)",
+    "circuit.waveform.line_commutated":
+        "reverse voltage the secondary's crest {peak} in segments of the line voltage, checked as "
+        "a square wave of the same peak (Mohan, Undeland and Robbins, Power Electronics, 3rd ed., 2003, ch. 5)",
+    "circuit.forward.capacitor_input":
+        "capacitor input: conduction angle {angle:.3g} deg, ripple {ripple}, diode current "
+        "{average} average, {peak} peak, {rms} rms (ideal source; Mohan, Undeland and Robbins, Power Electronics, 3rd ed., 2003, ch. 5, idealized rectifier with "
+        "a dc-side capacitor); the checks take a half-sine pulse of the same average (the pulse's rms "
+        "is {rms_ratio:.3g} x the half-sine's: their conduction loss is low)",
+    "circuit.forward.multiplier":
+        "each stack charges its stage capacitor once a period as a peak rectifier does "
+        "(an approximation): conduction angle {angle:.3g} deg, diode current {average} average, "
+        "{peak} peak, {rms} rms; the checks take a half-sine pulse of the same average (the pulse's rms "
+        "is {rms_ratio:.3g} x the half-sine's: their conduction loss is low)",
+    "circuit.forward.current_fed":
+        "line-commutated: each diode carries I_d = {current} for {share:.3g} of the period "
+        "({average} average), checked as a square wave",
+    "circuit.forward.current_fed_three_phase":
+        "line-commutated three-phase bridge: each diode carries I_d = {current} for {share:.3g} "
+        "of the period ({average} average); checked as a square wave of the same peak over half "
+        "the period (average I_d / 2: conservative for the losses)",
+    "circuit.forward.resistive":
+        "resistive load: half-sine pulses of {average} average, crest {crest}",
+    "circuit.slope.overlap":
+        "overlap angle u = {overlap:.3g} deg from cos u = 1 - 2 omega L I_d / (sqrt(2) V) "
+        "(V = {voltage}, L = {inductance}, I_d = {current}, f = {frequency}); commutation slope "
+        "sqrt(2) V sin u / (2 L) = {di_dt} (Mohan, Undeland and Robbins, Power Electronics, 3rd ed., 2003, ch. 5)",
+    "circuit.slope.extinction":
+        "turn-off slope {di_dt} where the charging pulse ends, omega^2 C V_pk sin(theta_end) "
+        "(ideal source; Mohan, Undeland and Robbins, Power Electronics, 3rd ed., 2003, ch. 5)",
+    "circuit.slope.natural":
+        "turn-off slope {di_dt} = omega x crest ({crest}) at the half-sine's zero",
+    "circuit.multiplier_output":
+        "{stages} stage(s): no-load output {no_load}; ripple I n (n + 1) / (2 f C) = {ripple}, "
+        "regulation drop (I / (6 f C)) (4 n^3 + 3 n^2 - n) = {drop}, output {output} at "
+        "{current} (C = {capacitance}, f = {frequency}; Kuffel, Zaengl and Kuffel, High Voltage "
+        "Engineering Fundamentals, 2nd ed., 2000, ch. 2, from memory)",
+    "circuit.same_duty":
+        "{count} stacks ({stacks}) carry the same duty: checked once",
 }
 
 

@@ -16,6 +16,7 @@ from stringcheck.checks.findings import Finding, Value, codes
 from stringcheck.cli.options import OPTIONS, option_wording
 from stringcheck.report.wording import (CHECK_WORDS, TEMPLATES, impossibility_text, sentence,
                                         sentences)
+from tests.report.circuit_wording import CIRCUIT_TODAY
 
 PACKAGE = Path(__file__).resolve().parents[2] / "stringcheck"
 
@@ -522,6 +523,7 @@ TODAY += [
      "junction's own charge, the integral of C_j dV up to each stage's voltage, not an added "
      "Q_rr; the charge balance follows C_j(V)"),
 ]
+TODAY += CIRCUIT_TODAY  # issue 23 (tests/report/circuit_wording.py)
 # The command line's wording of the one code that names a setting (the JSON of `size` has it).
 SIZE_DAMPING = (Finding("size.damping_slower_than_recovery", {"time_constant": Value(3.3e-7, "s")},
                         Value(1.5e-7, "s")),
@@ -585,6 +587,10 @@ def _produced_codes() -> set[str]:
                     re.fullmatch(r"(assumed|lot|recovery)\.[a-z_.]*", node.values[0].value):
                 prefix = node.values[0].value
                 found.update(code for code in TEMPLATES if code.startswith(prefix))
+            # a circuit code picked by topology before its finding is made (studies.circuit)
+            elif isinstance(node, ast.Constant) and isinstance(node.value, str) and \
+                    re.fullmatch(r"circuit\.(piv|waveform|forward|slope)\.[a-z_]+", node.value):
+                found.add(node.value)
             # a code named by a constant beside the finding (_PART_DEFAULT_NOTES' keys)
             elif isinstance(node, ast.Constant) and isinstance(node.value, str) and \
                     re.fullmatch(r"(assumed|lot|model|recovery)\.[a-z_.]*[a-z]", node.value):
