@@ -482,7 +482,8 @@ def dynamic_chunk(design: Design, drawn: DrawnStrings, accumulator: PositionSums
         # End of life: the grading capacitors lose capacitance under dc bias (solvers.aged_sharing).
         solution = solve_dynamic_sharing_dc_bias(
             design.duty.reverse_voltage, charge, drawn.capacitance, junction_capacitance,
-            dc_bias_loss=aged.capacitor_dc_bias, rated_voltage=design.grading.capacitor_rated_voltage)
+            dc_bias_loss=aged.capacitor_dc_bias, rated_voltage=design.grading.capacitor_rated_voltage,
+            dc_bias_curve=aged.capacitor_dc_bias_curve)
     else:
         solution = solve_dynamic_sharing(design.duty.reverse_voltage, charge, capacitance)
     solved = np.ones(solution.voltages.shape[0], dtype=bool)

@@ -409,7 +409,9 @@ class EndOfLife:
     +-drift (``resistor_drift_mode`` "band") or between 0 and drift ("shift", one-sided, the
     sign of drift). ``resistor_voltage_coefficient`` [1/V]: R(V) = R (1 + gamma V) at the stage
     voltage. ``capacitor_dc_bias`` [1]: fraction of C lost at ``grading.capacitor_rated_voltage``
-    (linear in V). ``surface_resistance`` [ohm]: a shunt across a stage (board surface leakage),
+    (linear in V), or, with ``capacitor_dc_bias_curve``, the curve's loss there: the curve is
+    ((V / V_rated, loss), ...) points of the maker's dc-bias curve, the loss linear between them
+    from 0 at 0 V and held beyond the last. ``surface_resistance`` [ohm]: a shunt across a stage (board surface leakage),
     on each stage independently with probability ``surface_fraction`` in every built string.
     """
 
@@ -418,6 +420,7 @@ class EndOfLife:
     resistor_drift_mode: str = "band"
     resistor_voltage_coefficient: float = 0.0
     capacitor_dc_bias: float = 0.0
+    capacitor_dc_bias_curve: tuple[tuple[float, float], ...] = ()
     surface_resistance: float | None = None
     surface_fraction: float = 1.0
 

@@ -312,7 +312,12 @@ def _read_end_of_life(reader: Reader, raw: Mapping[str, Any], grading: Grading) 
         raise reader.error("end_of_life.resistor_voltage_coefficient",
                            "must be within +-1000 ppm/V (a few hundred ppm/V is typical of "
                            f"high-value thick film), got {table['resistor_voltage_coefficient']!r}")
-    bias = reader.quantity(table, "capacitor_dc_bias", DIMENSIONLESS, prefix, default=0.0)
+    curve: tuple[tuple[float, float], ...] = ()
+    if isinstance(table.get("capacitor_dc_bias"), list):
+        curve = _dc_bias_curve(reader, table["capacitor_dc_bias"])
+        bias = float(np.interp(1.0, [0.0] + [x for x, _ in curve], [0.0] + [y for _, y in curve]))
+    else:
+        bias = reader.quantity(table, "capacitor_dc_bias", DIMENSIONLESS, prefix, default=0.0)
     if not 0.0 <= bias < 1.0:
         raise reader.error("end_of_life.capacitor_dc_bias", "must be a fraction of C lost at the "
                                                             "rated voltage in [0, 1) (e.g. "
@@ -329,7 +334,32 @@ def _read_end_of_life(reader: Reader, raw: Mapping[str, Any], grading: Grading) 
                                                            "(the shunt it places)")
     return EndOfLife(enabled=enabled, resistor_drift=drift, resistor_drift_mode=mode,
                      resistor_voltage_coefficient=gamma, capacitor_dc_bias=bias,
-                     surface_resistance=surface, surface_fraction=fraction)
+                     capacitor_dc_bias_curve=curve, surface_resistance=surface,
+                     surface_fraction=fraction)
+
+
+def _dc_bias_curve(reader: Reader, raw: list) -> tuple[tuple[float, float], ...]:
+    """``capacitor_dc_bias`` as a maker's curve: [[V / V_rated, fraction of C lost], ...]."""
+    key = "end_of_life.capacitor_dc_bias"
+    hint = ("give [[V / V_rated, loss], ...] pairs of the maker's dc-bias curve, e.g. "
+            "[[0.5, 0.1], [1.0, 0.3]]")
+    points = []
+    for item in raw:
+        if not (isinstance(item, list) and len(item) == 2 and all(
+                isinstance(v, (int, float)) and not isinstance(v, bool) for v in item)):
+            raise reader.error(key, f"{hint}; got {item!r}")
+        points.append((float(item[0]), float(item[1])))
+    if not points:
+        raise reader.error(key, f"is an empty list; {hint}")
+    fractions = [x for x, _ in points]
+    losses = [y for _, y in points]
+    if any(not 0.0 < x <= 2.0 for x in fractions) or any(b <= a for a, b in zip(fractions,
+                                                                               fractions[1:])):
+        raise reader.error(key, "voltages must rise, each V / V_rated in (0, 2]; " + hint)
+    if any(not 0.0 <= y < 1.0 for y in losses) or any(b < a for a, b in zip(losses, losses[1:])):
+        raise reader.error(key, "losses must be fractions in [0, 1) that do not fall with the "
+                                "voltage (a capacitor loses more at a higher bias); " + hint)
+    return tuple(points)
 
 
 def _read_duty(reader: Reader, raw: Mapping[str, Any]) -> Duty:

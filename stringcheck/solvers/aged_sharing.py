@@ -15,7 +15,8 @@ from numpy.typing import ArrayLike
 from stringcheck.solvers.series_dynamic import DynamicSharing, solve_dynamic_sharing
 from stringcheck.solvers.series_static import StaticSharing, solve_static_sharing
 
-__all__ = ["solve_dynamic_sharing_dc_bias", "solve_static_sharing_voltage_coefficient"]
+__all__ = ["secant_capacitance_factor", "solve_dynamic_sharing_dc_bias",
+           "solve_static_sharing_voltage_coefficient"]
 
 _MAX_ITERATIONS = 200
 
@@ -95,7 +96,7 @@ def solve_static_sharing_voltage_coefficient(
 def solve_dynamic_sharing_dc_bias(
     string_voltage: ArrayLike, recovery_charge: ArrayLike, grading_capacitance: ArrayLike,
     junction_capacitance: ArrayLike, *, dc_bias_loss: float, rated_voltage: float,
-    rtol: float = 1e-11,
+    rtol: float = 1e-11, dc_bias_curve: tuple[tuple[float, float], ...] = (),
 ) -> DynamicSharing:
     """Charge balance with grading capacitors that lose capacitance under dc bias.
 
@@ -113,6 +114,10 @@ def solve_dynamic_sharing_dc_bias(
         b [1]: the fraction of C_0 lost at the rated voltage, in [0, 1).
     rated_voltage
         V_rated [V] of the grading capacitor, > 0.
+    dc_bias_curve
+        ((V / V_rated, loss), ...): the maker's curve, the loss linear between its points from 0
+        at 0 V and held beyond the last (:func:`secant_capacitance_factor`); empty: the linear
+        loss ``dc_bias_loss``.
 
     Returns
     -------
@@ -141,10 +146,56 @@ def solve_dynamic_sharing_dc_bias(
     solution = None
     scale = float(np.max(np.abs(np.asarray(string_voltage, dtype=float))))
     for _ in range(_MAX_ITERATIONS):
-        secant = grading * (1.0 - dc_bias_loss * voltages / (2.0 * rated_voltage))
+        if dc_bias_curve:
+            secant = grading * secant_capacitance_factor(voltages / rated_voltage, dc_bias_curve)
+        else:
+            secant = grading * (1.0 - dc_bias_loss * voltages / (2.0 * rated_voltage))
         solution = solve_dynamic_sharing(string_voltage, charge, np.maximum(secant, 0.0) + junction)
         change = np.max(np.abs(solution.voltages - voltages))
         voltages = solution.voltages
         if not change > rtol * scale:
             break
     return solution
+
+
+def secant_capacitance_factor(bias: ArrayLike, curve: tuple[tuple[float, float], ...]
+                              ) -> np.ndarray:
+    """Q(V) / (C_0 V) of a capacitor whose dc-bias loss follows a piecewise-linear curve [-].
+
+    Parameters
+    ----------
+    bias
+        V / V_rated [-], >= 0, any shape.
+    curve
+        ((V / V_rated, loss), ...) with rising voltages: the fraction of C_0 lost at each point,
+        linear between the points from 0 at 0 V, held beyond the last.
+
+    Returns
+    -------
+    numpy.ndarray
+        (1 / x) * integral_0^x (1 - L(u)) du, 1 at x = 0, the shape of ``bias``.
+
+    Notes
+    -----
+    The charge a capacitor of small-signal capacitance C(V) = C_0 (1 - L(V / V_rated)) holds at
+    V is Q = integral_0^V C(v) dv; with L piecewise linear the integral is exact by the
+    trapezoid rule on each segment (the integrand is linear there). A one-point curve ((1, b),)
+    is the linear loss b V / V_rated of :func:`solve_dynamic_sharing_dc_bias`.
+
+    References
+    ----------
+    .. [1] The trapezoid rule is exact for a linear integrand (any numerical-analysis text, e.g.
+       Press et al., *Numerical Recipes*, 3rd ed., 2007, section 4.1).
+    """
+    x = np.maximum(np.asarray(bias, dtype=float), 0.0)
+    nodes = np.array([0.0] + [point[0] for point in curve])
+    losses = np.array([0.0] + [point[1] for point in curve])
+    # The integral of 1 - L at each node (exact trapezoids), then within the segment of x.
+    widths = np.diff(nodes)
+    cumulative = np.concatenate([[0.0], np.cumsum(widths * (1.0 - 0.5 * (losses[1:] + losses[:-1])))])
+    segment = np.clip(np.searchsorted(nodes, x, side="right") - 1, 0, len(nodes) - 1)
+    start, loss_start = nodes[segment], losses[segment]
+    loss_here = np.interp(x, nodes, losses)  # held beyond the last node
+    integral = cumulative[segment] + (x - start) * (1.0 - 0.5 * (loss_start + loss_here))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(x > 0.0, integral / np.where(x > 0.0, x, 1.0), 1.0)
