@@ -131,42 +131,18 @@ def _check(path: Path, *, trials, seed, json_path, csv_path, quiet, workers=1,
     # Both texts are made before either file is touched; both files are replaced together, after
     # the report was printed, so that a report that fails leaves the old files.
     outputs = []
+    # The studies' JSON objects, made once for the JSON and the HTML report.
+    studies = _studies_to_dict(study, aged, rates)
     if json_path is not None:
-        data = result_to_dict(result)
-        if study is not None:
-            from stringcheck.report.faults import faults_to_dict
-
-            data["faults"] = faults_to_dict(study)
-        if aged is not None:
-            from stringcheck.report.end_of_life import end_of_life_to_dict
-
-            data["end_of_life"] = end_of_life_to_dict(aged)
-        if rates is not None:
-            from stringcheck.report.failure_rate import failure_rate_to_dict
-
-            data["failure_rate"] = failure_rate_to_dict(rates)
-        outputs.append((json_path, json_text(data)))
+        outputs.append((json_path, json_text({**result_to_dict(result), **studies})))
     if csv_path is not None:
         outputs.append((csv_path, positions_csv(result)))
     if report_path is not None:
         from stringcheck.report.html_page import check_page
 
-        studies = {}
-        if study is not None:
-            from stringcheck.report.faults import faults_to_dict
-
-            studies["faults"] = faults_to_dict(study)
-        if aged is not None:
-            from stringcheck.report.end_of_life import end_of_life_to_dict
-
-            studies["end_of_life"] = end_of_life_to_dict(aged)
-        if rates is not None:
-            from stringcheck.report.failure_rate import failure_rate_to_dict
-
-            studies["failure_rate"] = failure_rate_to_dict(rates)
-        studies.update(_worst_turn_off(result))
         outputs.append((report_path, check_page(result, command_line=_command_line(),
-                                                spell=option_wording, extra=studies)))
+                                                spell=option_wording,
+                                                extra={**studies, **_worst_turn_off(result)})))
     trace = None if source_label is not None else (
         lambda trial, seed, trials: f"stringcheck wave {path} --trial {trial} --trials {trials} "
                                     f"--seed {seed}")
@@ -207,21 +183,46 @@ def _worst_turn_off(result) -> dict:
     return {"worst_turn_off": {"trial": check.worst_trial, "figures": figures}}
 
 
+def _studies_to_dict(study, aged, rates) -> dict:
+    """The JSON objects of the studies that ran beside the check (``faults``, ``end_of_life``,
+    ``failure_rate``, in that order)."""
+    out = {}
+    if study is not None:
+        from stringcheck.report.faults import faults_to_dict
+
+        out["faults"] = faults_to_dict(study)
+    if aged is not None:
+        from stringcheck.report.end_of_life import end_of_life_to_dict
+
+        out["end_of_life"] = end_of_life_to_dict(aged)
+    if rates is not None:
+        from stringcheck.report.failure_rate import failure_rate_to_dict
+
+        out["failure_rate"] = failure_rate_to_dict(rates)
+    return out
+
+
+def _followed_by(full, summary, more_full, more_summary):
+    """The check's renderers (full report, --quiet line), each followed by a study's own."""
+    def full_then(result, on):
+        full(result, on)
+        more_full(on)
+
+    def summary_then(result, on):
+        summary(result, on)
+        more_summary(on)
+
+    return full_then, summary_then
+
+
 def _with_end_of_life(aged, full, summary):
     """The renderers, followed by the end-of-life comparison when there is one."""
     if aged is None:
         return full, summary
     from stringcheck.report.end_of_life import render_end_of_life, render_end_of_life_summary
 
-    def full_aged(result, on):
-        full(result, on)
-        render_end_of_life(aged, on)
-
-    def summary_aged(result, on):
-        summary(result, on)
-        render_end_of_life_summary(aged, on)
-
-    return full_aged, summary_aged
+    return _followed_by(full, summary, lambda on: render_end_of_life(aged, on),
+                        lambda on: render_end_of_life_summary(aged, on))
 
 
 def _with_faults(study, layout, full, summary):
@@ -230,15 +231,10 @@ def _with_faults(study, layout, full, summary):
         return full, summary
     from stringcheck.report.faults import render_faults, render_faults_summary
 
-    def full_faults(result, on):
-        full(result, on)
-        render_faults(study, on, parallel=layout.parallel, derating=layout.derating)
-
-    def summary_faults(result, on):
-        summary(result, on)
-        render_faults_summary(study, on)
-
-    return full_faults, summary_faults
+    return _followed_by(full, summary,
+                        lambda on: render_faults(study, on, parallel=layout.parallel,
+                                                 derating=layout.derating),
+                        lambda on: render_faults_summary(study, on))
 
 
 def _with_failure_rate(rates, layout, full, summary):
@@ -247,15 +243,9 @@ def _with_failure_rate(rates, layout, full, summary):
         return full, summary
     from stringcheck.report.failure_rate import render_failure_rate, render_failure_rate_summary
 
-    def full_rates(result, on):
-        full(result, on)
-        render_failure_rate(rates, on, parallel=layout.parallel)
-
-    def summary_rates(result, on):
-        summary(result, on)
-        render_failure_rate_summary(rates, on)
-
-    return full_rates, summary_rates
+    return _followed_by(full, summary,
+                        lambda on: render_failure_rate(rates, on, parallel=layout.parallel),
+                        lambda on: render_failure_rate_summary(rates, on))
 
 
 def _check_circuit(design, path: Path, *, trials, seed, json_path, csv_path, quiet, workers,

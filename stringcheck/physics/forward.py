@@ -23,10 +23,8 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.special import gammaln
 
-from stringcheck.constants import WAVEFORMS
-from stringcheck.errors import StringcheckError
 from stringcheck.physics.leakage import leakage_current
-from stringcheck.physics.waveforms import SINE_PULSES, forward_peak_factor
+from stringcheck.physics.waveforms import SINE_PULSES, check_waveform, forward_peak_factor
 
 __all__ = [
     "DEFAULT_PHASE_POINTS",
@@ -175,12 +173,6 @@ def slope_resistance(
     )
 
 
-def _check_waveform(waveform: str) -> None:
-    if waveform not in WAVEFORMS:
-        valid = ", ".join(repr(name) for name in WAVEFORMS)
-        raise StringcheckError(f"waveform: {waveform!r} is not known; use one of {valid}")
-
-
 def peak_factor(waveform: str) -> float:
     """Ratio of the peak to the average current, I_pk / I_AV, of a waveform.
 
@@ -199,7 +191,7 @@ def peak_factor(waveform: str) -> float:
     Half-sine: I_AV = (1 / 2 pi) int_0^pi I_pk sin(theta) d(theta) = I_pk / pi. Square:
     I_AV = I_pk / 2.
     """
-    _check_waveform(waveform)
+    check_waveform(waveform)
     return forward_peak_factor(waveform)
 
 
@@ -221,7 +213,7 @@ def form_factor(waveform: str) -> float:
     Half-sine: I_RMS^2 = (1 / 2 pi) int_0^pi I_pk^2 sin^2(theta) d(theta) = I_pk^2 / 4, so
     I_RMS = I_pk / 2 and I_RMS / I_AV = pi / 2. Square: I_RMS = I_pk / sqrt(2), I_AV = I_pk / 2.
     """
-    _check_waveform(waveform)
+    check_waveform(waveform)
     return {"dc": 1.0, "square": np.sqrt(2.0)}.get(waveform, np.pi / 2.0)
 
 
@@ -263,7 +255,7 @@ def phase_samples(
     integrate each branch of a group exactly instead, cutting the sine where each branch starts
     to conduct (:func:`stringcheck.solvers.parallel.phase_rule`).
     """
-    _check_waveform(waveform)
+    check_waveform(waveform)
     average = np.asarray(average_current, dtype=float)
     peak = peak_factor(waveform) * average
     if waveform in SINE_PULSES:
@@ -370,7 +362,7 @@ def blocking_factor(
     The integral is a standard one (Gradshteyn and Ryzhik 3.621, from memory); the test
     checks k against numerical quadrature.
     """
-    _check_waveform(waveform)
+    check_waveform(waveform)
     exponent = np.asarray(voltage_exponent, dtype=float)
     current = np.asarray(forward_current, dtype=float)
     if waveform == "half-sine":

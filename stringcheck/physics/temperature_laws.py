@@ -134,15 +134,7 @@ def interpolate_rows(temperature: ArrayLike, row_temperatures: ArrayLike, row_va
     .. [2] B. J. Baliga, *Fundamentals of Power Semiconductor Devices*, Springer, 2008,
        chapter 5 (recovery charge rising with lifetime and temperature).
     """
-    rows_t = np.asarray(row_temperatures, dtype=float)
-    values = np.asarray(row_values, dtype=float)
-    temperature = np.asarray(temperature, dtype=float)
-    shape = np.broadcast_shapes(temperature.shape, values.shape[:-1])
-    temperature = np.broadcast_to(temperature, shape)
-    values = np.broadcast_to(values, shape + values.shape[-1:])
-    index, fraction = _segments(temperature, rows_t)
-    first = np.take_along_axis(values, index[..., None], axis=-1)[..., 0]
-    second = np.take_along_axis(values, index[..., None] + 1, axis=-1)[..., 0]
+    index, fraction, first, second = _segment_ends(temperature, row_temperatures, row_values)
     if typical_values is None:
         if not exponential:
             return first + fraction * (second - first)
@@ -162,12 +154,21 @@ def local_doubling_temperature(temperature: ArrayLike, row_temperatures: ArrayLi
     holds (or extends to) each ``temperature`` [degC]; shapes as there (inf on a flat segment,
     negative on a falling one)."""
     rows_t = np.asarray(row_temperatures, dtype=float)
+    index, _, first, second = _segment_ends(temperature, rows_t, row_values)
+    return doubling_temperature_from_rows(rows_t[index], first, rows_t[index + 1], second)
+
+
+def _segment_ends(temperature: ArrayLike, row_temperatures: ArrayLike, row_values: ArrayLike):
+    """The segment of the rows that holds (or extends to) each ``temperature`` [degC]: its index,
+    the fraction t along it, and the values at its two ends (shapes as in
+    :func:`interpolate_rows`)."""
+    rows_t = np.asarray(row_temperatures, dtype=float)
     values = np.asarray(row_values, dtype=float)
     temperature = np.asarray(temperature, dtype=float)
     shape = np.broadcast_shapes(temperature.shape, values.shape[:-1])
     temperature = np.broadcast_to(temperature, shape)
     values = np.broadcast_to(values, shape + values.shape[-1:])
-    index, _ = _segments(temperature, rows_t)
+    index, fraction = _segments(temperature, rows_t)
     first = np.take_along_axis(values, index[..., None], axis=-1)[..., 0]
     second = np.take_along_axis(values, index[..., None] + 1, axis=-1)[..., 0]
-    return doubling_temperature_from_rows(rows_t[index], first, rows_t[index + 1], second)
+    return index, fraction, first, second

@@ -104,15 +104,8 @@ def test_every_section_and_figure_is_there(demo, furnace):
 
 def test_nothing_is_fetched_from_anywhere(furnace):
     text, page = _page(furnace)
-    for tag, attributes in page.tags:
-        assert tag not in ("script", "link", "img", "iframe", "object", "embed"), tag
-        for name in ("src", "href", "xlink:href"):
-            value = attributes.get(name)
-            # In-page references (#id) only: never a file or a URL.
-            assert value is None or value.startswith("#"), (tag, name, value)
+    _no_fetch(text, page)
     assert "@import" not in text
-    # url() only to an element of the page (the figures' clip paths: url(#id)).
-    assert not re.search(r"url\((?!#)", text)
     # The only URLs in the page are XML namespace names, which no browser fetches.
     urls = set(re.findall(r"https?://[^\s\"'<>)]+", text))
     assert urls <= {"http://www.w3.org/2000/svg", "http://www.w3.org/1999/xlink"}, urls
@@ -217,23 +210,31 @@ def _run_cli(*args) -> subprocess.CompletedProcess:
 def _no_fetch(text: str, page: _Page) -> None:
     for tag, attributes in page.tags:
         assert tag not in ("script", "link", "img", "iframe", "object", "embed"), tag
-        assert all(attributes.get(name) is None or attributes[name].startswith("#")
-                   for name in ("src", "href", "xlink:href"))
+        for name in ("src", "href", "xlink:href"):
+            value = attributes.get(name)
+            # In-page references (#id) only: never a file or a URL.
+            assert value is None or value.startswith("#"), (tag, name, value)
+    # url() only to an element of the page (the figures' clip paths: url(#id)).
     assert not re.search(r"url\((?!#)", text)
+
+
+def _cli_page(tmp_path, *args) -> tuple[str, dict, _Page]:
+    """Run the command line with ``--report`` and ``--json``; the page's text, the JSON, and the
+    parsed page."""
+    page_path, json_path = tmp_path / "page.html", tmp_path / "result.json"
+    run = _run_cli(*args, "--quiet", "--report", str(page_path), "--json", str(json_path))
+    assert run.returncode in (0, 1), run.stderr
+    text = page_path.read_text(encoding="utf-8")
+    page = _Page()
+    page.feed(text)
+    return text, json.loads(json_path.read_text(encoding="utf-8")), page
 
 
 def test_the_size_report_shows_the_proposal_and_its_design_curves(tmp_path):
     from stringcheck.units import format_quantity
 
-    page_path, json_path = tmp_path / "size.html", tmp_path / "size.json"
-    run = _run_cli("size", str(ROOT / "examples" / "precipitator-30kv.toml"), "--trials", "4000",
-                   "--no-transient", "--quiet", "--report", str(page_path), "--json",
-                   str(json_path))
-    assert run.returncode in (0, 1), run.stderr
-    text = page_path.read_text(encoding="utf-8")
-    data = json.loads(json_path.read_text(encoding="utf-8"))
-    page = _Page()
-    page.feed(text)
+    example = str(ROOT / "examples" / "precipitator-30kv.toml")
+    text, data, page = _cli_page(tmp_path, "size", example, "--trials", "4000", "--no-transient")
     _no_fetch(text, page)
     assert "proposal" in page.ids and "checks" in page.ids and "signoff" in page.ids
     grading = data["grading"]
@@ -246,15 +247,9 @@ def test_the_size_report_shows_the_proposal_and_its_design_curves(tmp_path):
 
 
 def test_the_review_report_shows_each_check_and_the_per_position_change(tmp_path):
-    page_path, json_path = tmp_path / "review.html", tmp_path / "review.json"
-    run = _run_cli("review", str(ROOT / "tests" / "designs" / "second_source_11kv.toml"),
-                   "--swap", "7:B", "--trials", "4000", "--quiet", "--report", str(page_path),
-                   "--json", str(json_path))
-    assert run.returncode in (0, 1), run.stderr
-    text = page_path.read_text(encoding="utf-8")
-    data = json.loads(json_path.read_text(encoding="utf-8"))
-    page = _Page()
-    page.feed(text)
+    text, data, page = _cli_page(tmp_path, "review",
+                                 str(ROOT / "tests" / "designs" / "second_source_11kv.toml"),
+                                 "--swap", "7:B", "--trials", "4000")
     _no_fetch(text, page)
     assert data["verdict"].upper() in text
     ran = [c for c in data["changes"]["checks"] if c["baseline_ran"] or c["candidate_ran"]]
@@ -272,19 +267,13 @@ def test_the_review_report_shows_each_check_and_the_per_position_change(tmp_path
 
 def test_the_fault_end_of_life_and_failure_rate_studies_get_a_section_each(tmp_path):
     # Issue 22, item 4: each study the run made has its section, with the JSON's figures.
+    aged = "[end_of_life]\nresistor_drift = 0.02\ncapacitor_dc_bias = 0.1\n\n[grading]"
     text = (ROOT / "examples" / "precipitator-30kv.toml").read_text(encoding="utf-8").replace(
-        "[grading]", "[end_of_life]\nresistor_drift = 0.02\ncapacitor_dc_bias = 0.1\n\n[grading]", 1)
+        "[grading]", aged, 1)
     design = tmp_path / "aged.toml"
     design.write_text(text, encoding="utf-8")
-    page_path, json_path = tmp_path / "aged.html", tmp_path / "aged.json"
-    run = _run_cli("check", str(design), "--trials", "400", "--quiet", "--faults",
-                   "--failure-rate", "--end-of-life", "--report", str(page_path), "--json",
-                   str(json_path))
-    assert run.returncode in (0, 1), run.stderr
-    page_text = page_path.read_text(encoding="utf-8")
-    data = json.loads(json_path.read_text(encoding="utf-8"))
-    page = _Page()
-    page.feed(page_text)
+    page_text, data, page = _cli_page(tmp_path, "check", str(design), "--trials", "400",
+                                      "--faults", "--failure-rate", "--end-of-life")
     assert {"faults", "end-of-life", "failure-rate"} <= page.ids
     worst = data["faults"]["kinds"]["device_short"]["worst"]
     assert f"{worst['worst_ratio']:.3f}" in page_text
@@ -296,13 +285,9 @@ def test_the_fault_end_of_life_and_failure_rate_studies_get_a_section_each(tmp_p
 
 @pytest.mark.slow
 def test_a_transient_run_shows_the_worst_strings_turn_off(tmp_path):
-    page_path, json_path = tmp_path / "transient.html", tmp_path / "transient.json"
-    run = _run_cli("check", str(ROOT / "examples" / "precipitator-30kv.toml"), "--trials", "600",
-                   "--transient", "--transient-sample", "40", "--transient-worst", "5", "--quiet",
-                   "--report", str(page_path), "--json", str(json_path))
-    assert run.returncode in (0, 1), run.stderr
-    text = page_path.read_text(encoding="utf-8")
-    data = json.loads(json_path.read_text(encoding="utf-8"))
+    example = str(ROOT / "examples" / "precipitator-30kv.toml")
+    text, data, _ = _cli_page(tmp_path, "check", example, "--trials", "600", "--transient",
+                              "--transient-sample", "40", "--transient-worst", "5")
     trial = data["checks"]["transient"]["worst_trial"]
     # The worst string of the transient check, named by its trial, drawn inline in its section.
     assert f"(trial {trial:,})" in text and f"trial {trial:,}, branch 1" in text
